@@ -1,0 +1,46 @@
+/* H(k) and dH/dk from H(R), many k-points at once.
+ *
+ * Method: the pairs R, -R are folded with hermiticity, H(k) = H_0 + sum_{R in half}
+ * [cos(2 pi k.R) C_R + sin(2 pi k.R) S_R] with C_R = H_R + H_R^dagger and S_R = i (H_R - H_R^dagger),
+ * both Hermitian, so only their upper triangles (as real pairs) are stored. A batch of k-points is
+ * then one real matrix product (DGEMM) of that coefficient table with a table of cosines and sines:
+ * a quarter of the flops of the direct complex sum and at BLAS speed. */
+#ifndef BANDSIEVE_HK_H
+#define BANDSIEVE_HK_H
+
+#include <complex.h>
+
+#include "bandsieve/err.h"
+#include "bandsieve/model.h"
+
+typedef struct hk_engine hk_engine;
+
+/* Prepares the folded coefficient table of m (borrowed; must outlive the engine only during
+ * create: the engine copies what it needs) for batches of up to max_batch k-points.
+ * The caller owns *out. */
+int hk_create(const tb_model *m, int max_batch, hk_engine **out, bs_err *err);
+
+/* Frees e; accepts NULL. */
+void hk_free(hk_engine *e);
+
+/* Number of basis states (matrix size). */
+int hk_norb(const hk_engine *e);
+
+/* Largest batch accepted by hk_build / hk_build_deriv. */
+int hk_max_batch(const hk_engine *e);
+
+/* Builds H(k) for nk <= max_batch reduced k-points k[3*j..3*j+2]. H receives nk full Hermitian
+ * matrices, column-major (element (a,b) of matrix j at H[j*norb*norb + a + b*norb]), eV. */
+int hk_build(hk_engine *e, int nk, const double *k, double complex *H, bs_err *err);
+
+/* As hk_build, and also dH/dk_i with respect to the reduced coordinates (eV per unit of reduced
+ * k, i.e. d/dk_i where k.R = k_i R_i): dH receives nk*3 matrices, dH[(j*3+i)*norb*norb + ...].
+ * H may be NULL when only derivatives are wanted. */
+int hk_build_deriv(hk_engine *e, int nk, const double *k, double complex *H, double complex *dH,
+                   bs_err *err);
+
+/* Reference implementation: the direct complex sum over every R at one k (for tests and the
+ * benchmark's baseline). H as in hk_build with nk = 1. */
+void hk_build_direct(const tb_model *m, const double k[3], double complex *H);
+
+#endif

@@ -1,0 +1,75 @@
+/* The tight-binding model: lattice, orbitals, spin layout, filling, and real-space hoppings H(R).
+ * Every other layer reads this struct; only the model layer builds one. */
+#ifndef BANDSIEVE_MODEL_H
+#define BANDSIEVE_MODEL_H
+
+#include <complex.h>
+#include <stddef.h>
+
+#include "bandsieve/err.h"
+
+enum { TB_SPIN_NONE = 0, TB_SPIN_BLOCKS = 1, TB_SPIN_INTERLEAVED = 2 };
+
+/* The model is a plain struct because every numerical layer reads its arrays directly;
+ * it is created and freed only through tb_model_create/tb_model_free.
+ *
+ * Basis states: norb of them (rows of H). For a spinless model, state i is spatial orbital i.
+ * For a spinful model nspatial = norb/2 and, with TB_SPIN_BLOCKS, state i is orbital i % nspatial
+ * with spin up for i < nspatial; with TB_SPIN_INTERLEAVED, state i is orbital i/2, spin up for even i.
+ *
+ * Hoppings: H[(r*norb + m)*norb + n] = <m, 0| H | n, R_r> in eV, already divided by nothing:
+ * the degeneracy weight deg[r] is kept separately and H(k) = sum_r exp(2 pi i k.R_r) H_r / deg[r],
+ * k in reduced coordinates (the convention of the plain-text hopping table). */
+typedef struct tb_model {
+    char id[128];
+    char formula[64];
+    char source[256];       /* where the model comes from (free text) */
+    int dim;                /* 2 or 3; in 2D, R3 = 0 and k3 is ignored */
+    double lattice[3][3];   /* rows a1, a2, a3, Cartesian, Angstrom */
+    int norb;               /* basis states */
+    int nspatial;           /* spatial orbitals */
+    int spinful;
+    int spin_layout;        /* TB_SPIN_* */
+    double (*orb_pos)[3];   /* nspatial reduced positions */
+    int *orb_l;             /* nspatial angular momenta 0..3 */
+    int nocc;               /* occupied bands (1..norb-1) */
+    int has_fermi;
+    double fermi_ev;
+    int has_inversion_op;   /* the card gave an explicit inversion operator */
+    int *inv_perm;          /* norb: state i maps to state inv_perm[i] ... */
+    double *inv_sign;       /* ... with factor inv_sign[i] (+1/-1); inv_shift below */
+    int (*inv_shift)[3];    /* norb: lattice vector added (tau_i -> -tau_i = tau_j + shift) */
+    int nR;
+    int (*R)[3];            /* nR lattice vectors */
+    int *deg;               /* nR degeneracy weights (>= 1) */
+    double complex *H;      /* nR * norb * norb, eV */
+} tb_model;
+
+/* Allocates a model for norb states, nspatial orbitals and nR lattice vectors, all arrays zeroed.
+ * The caller owns *out (free with tb_model_free). Fails with BS_EINVAL past the limits in config.h. */
+int tb_model_create(int norb, int nR, int spinful, tb_model **out, bs_err *err);
+
+/* Frees m and everything it owns; accepts NULL. */
+void tb_model_free(tb_model *m);
+
+/* Deep copy; the caller owns *out. */
+int tb_model_copy(const tb_model *m, tb_model **out, bs_err *err);
+
+/* Index of the lattice vector R in m, or -1. Linear search; fine outside hot loops. */
+int tb_model_find_R(const tb_model *m, const int R[3]);
+
+/* Spatial orbital and spin (0 up, 1 down; 0 for spinless) of basis state i. */
+int tb_state_orbital(const tb_model *m, int i);
+int tb_state_spin(const tb_model *m, int i);
+/* Basis state of spatial orbital o with spin s (s ignored when spinless). */
+int tb_state_index(const tb_model *m, int o, int s);
+
+/* Checks consistency: dim, nocc range, finite values, degeneracies >= 1, R3 = 0 in 2D, and
+ * hermiticity H(-R) = H(R)^dagger within tol_ev (also requires -R present for every R).
+ * `where` names the source (file path) for the message. */
+int tb_model_validate(const tb_model *m, double tol_ev, const char *where, bs_err *err);
+
+/* Reciprocal lattice vectors b_i (rows, 1/Angstrom, with the 2 pi) from m->lattice. */
+void tb_model_reciprocal(const tb_model *m, double b[3][3]);
+
+#endif

@@ -1,0 +1,72 @@
+/* bandsieve entry point: dispatches to the subcommands of src/cli/commands.h. */
+#include <stdio.h>
+#include <string.h>
+
+#include "bandsieve/config.h"
+#include "commands.h"
+
+/* Subcommands still being written are weak references, so that the binary links while the
+ * layers land one by one; a missing one reports itself instead of failing the whole build. */
+#pragma weak cmd_pack
+#pragma weak cmd_list
+#pragma weak cmd_bands
+#pragma weak cmd_models
+#pragma weak cmd_inspect
+#pragma weak cmd_screen
+#pragma weak cmd_rescreen
+#pragma weak cmd_query
+#pragma weak cmd_demo_set
+
+typedef struct command {
+    const char *name;
+    int (*run)(int argc, char **argv);
+    const char *summary;
+} command;
+
+static const command COMMANDS[] = {
+    {"pack", cmd_pack, "import material cards into a material set (HDF5)"},
+    {"list", cmd_list, "list what a material set holds"},
+    {"models", cmd_models, "list the built-in published lattice models and their parameters"},
+    {"bands", cmd_bands, "band energies of one material at given k-points"},
+    {"inspect", cmd_inspect, "full topological diagnosis of one material"},
+    {"screen", cmd_screen, "screen a material set into a catalogue (run under mpirun)"},
+    {"rescreen", cmd_rescreen, "rerun catalogue entries selected by SQL at a higher resolution"},
+    {"query", cmd_query, "run a read-only SQL query or a view on a catalogue"},
+    {"demo-set", cmd_demo_set, "generate the invented demonstration material set"},
+};
+
+static void usage(FILE *out)
+{
+    fprintf(out, "bandsieve %s: screen tight-binding Hamiltonians for band topology\n\n"
+                 "usage: bandsieve COMMAND [options]   (bandsieve COMMAND --help for each)\n\n",
+            BS_VERSION);
+    for (size_t i = 0; i < sizeof COMMANDS / sizeof COMMANDS[0]; i++)
+        fprintf(out, "  %-10s %s\n", COMMANDS[i].name, COMMANDS[i].summary);
+    fprintf(out, "\nSOURCE arguments are a card (path.json), SET.h5:ID, or model:NAME[:key=val,...].\n");
+}
+
+int main(int argc, char **argv)
+{
+    if (argc < 2) {
+        usage(stderr);
+        return 2;
+    }
+    if (!strcmp(argv[1], "--help") || !strcmp(argv[1], "-h") || !strcmp(argv[1], "help")) {
+        usage(stdout);
+        return 0;
+    }
+    if (!strcmp(argv[1], "--version")) {
+        printf("bandsieve %s\n", BS_VERSION);
+        return 0;
+    }
+    for (size_t i = 0; i < sizeof COMMANDS / sizeof COMMANDS[0]; i++)
+        if (!strcmp(argv[1], COMMANDS[i].name)) {
+            if (!COMMANDS[i].run) {
+                fprintf(stderr, "bandsieve: command '%s' is not built into this binary\n", argv[1]);
+                return 2;
+            }
+            return COMMANDS[i].run(argc - 1, argv + 1);
+        }
+    fprintf(stderr, "bandsieve: unknown command '%s' (bandsieve --help lists them)\n", argv[1]);
+    return 2;
+}

@@ -1,0 +1,202 @@
+/* H(k) and dH/dk from H(R) by one real matrix product per batch of k-points.
+ *
+ * With hermiticity H(-R) = H(R)^dagger, the sum over R folds onto a half set:
+ *   H(k) = H_0 + sum_{R in half} [cos(2 pi k.R) C_R + sin(2 pi k.R) S_R],
+ *   C_R = H_R + H_R^dagger,  S_R = i (H_R - H_R^dagger)   (both Hermitian).
+ * Only upper triangles are kept, as real/imaginary pairs, in a column-major coefficient table
+ * coef[2*npair x ncol]; the phases of a batch form phase[ncol x nk]; their product (DGEMM) is
+ * the packed upper triangle of every H(k) of the batch. Derivatives use the same table with the
+ * differentiated phases, in the same product. */
+#include "bandsieve/hk.h"
+
+#include <cblas.h>
+#include <math.h>
+#include <stdlib.h>
+#include <string.h>
+
+struct hk_engine {
+    int norb;
+    int npair;          /* norb (norb + 1) / 2 upper-triangle elements */
+    int nhalf;          /* lattice vectors in the half set (R = 0 excluded) */
+    int ncol;           /* 1 + 2 nhalf */
+    int max_batch;
+    double *Rhalf;      /* nhalf x 3 lattice vectors as doubles */
+    double *coef;       /* (2 npair) x ncol, column-major */
+    double *phase;      /* ncol x (4 max_batch) */
+    double *packed;     /* (2 npair) x (4 max_batch) */
+};
+
+static int is_half(const int R[3])
+{
+    if (R[0] != 0) return R[0] > 0;
+    if (R[1] != 0) return R[1] > 0;
+    return R[2] > 0;
+}
+
+/* Hermitian-symmetrised hopping block for R (divided by its weight): averages H_R with
+ * H_{-R}^dagger when both are present so that round-off in a table cannot make H(k) non-Hermitian. */
+static double complex hop_element(const tb_model *m, int r, int rm, int a, int b)
+{
+    size_t nn = (size_t)m->norb * m->norb;
+    double complex h = m->H[r * nn + (size_t)a * m->norb + b] / m->deg[r];
+    if (rm < 0) return h;
+    double complex hm = conj(m->H[rm * nn + (size_t)b * m->norb + a]) / m->deg[rm];
+    return 0.5 * (h + hm);
+}
+
+/* Fills column col of the coefficient table: the packed upper triangle of
+ * alpha * X + beta * X^dagger, where X = H_R (symmetrised). */
+static void fill_column(hk_engine *e, const tb_model *m, int r, int rm, int col,
+                        double complex alpha, double complex beta)
+{
+    int n = m->norb;
+    double *c = e->coef + (size_t)col * 2 * e->npair;
+    for (int b = 0; b < n; b++)
+        for (int a = 0; a <= b; a++) {
+            double complex hab = hop_element(m, r, rm, a, b);
+            double complex hba = hop_element(m, r, rm, b, a);
+            double complex v = alpha * hab + beta * conj(hba);
+            size_t p = (size_t)a + (size_t)b * (b + 1) / 2;
+            c[2 * p] = creal(v);
+            c[2 * p + 1] = cimag(v);
+        }
+}
+
+int hk_create(const tb_model *m, int max_batch, hk_engine **out, bs_err *err)
+{
+    *out = NULL;
+    if (max_batch < 1) max_batch = 1;
+    hk_engine *e = calloc(1, sizeof *e);
+    if (!e) return bs_fail(err, BS_ENOMEM, "out of memory for the H(k) engine");
+    e->norb = m->norb;
+    e->npair = m->norb * (m->norb + 1) / 2;
+    e->max_batch = max_batch;
+    int r0 = -1;
+    for (int r = 0; r < m->nR; r++) {
+        if (is_half(m->R[r])) e->nhalf++;
+        else if (m->R[r][0] == 0 && m->R[r][1] == 0 && m->R[r][2] == 0) r0 = r;
+    }
+    e->ncol = 1 + 2 * e->nhalf;
+    size_t rows = 2 * (size_t)e->npair;
+    e->Rhalf = calloc((size_t)e->nhalf * 3 + 1, sizeof *e->Rhalf);
+    e->coef = calloc(rows * e->ncol, sizeof *e->coef);
+    e->phase = calloc((size_t)e->ncol * 4 * max_batch, sizeof *e->phase);
+    e->packed = calloc(rows * 4 * max_batch, sizeof *e->packed);
+    if (!e->Rhalf || !e->coef || !e->phase || !e->packed) {
+        hk_free(e);
+        return bs_fail(err, BS_ENOMEM, "out of memory for the H(k) coefficient table (%d states, %d R)",
+                       m->norb, m->nR);
+    }
+    /* Column 0: H_0, already Hermitian after symmetrisation (alpha = beta = 1/2 of X + X^dagger). */
+    if (r0 >= 0) fill_column(e, m, r0, r0, 0, 0.5, 0.5);
+    int h = 0;
+    for (int r = 0; r < m->nR; r++) {
+        if (!is_half(m->R[r])) continue;
+        int minus[3] = {-m->R[r][0], -m->R[r][1], -m->R[r][2]};
+        int rm = tb_model_find_R(m, minus);
+        for (int d = 0; d < 3; d++) e->Rhalf[3 * h + d] = m->R[r][d];
+        fill_column(e, m, r, rm, 1 + h, 1.0, 1.0);                 /* C_R */
+        fill_column(e, m, r, rm, 1 + e->nhalf + h, I, -I);         /* S_R */
+        h++;
+    }
+    *out = e;
+    return 0;
+}
+
+void hk_free(hk_engine *e)
+{
+    if (!e) return;
+    free(e->Rhalf);
+    free(e->coef);
+    free(e->phase);
+    free(e->packed);
+    free(e);
+}
+
+int hk_norb(const hk_engine *e) { return e->norb; }
+int hk_max_batch(const hk_engine *e) { return e->max_batch; }
+
+/* Phase table for nk points; with derivs, blocks 1..3 hold d/dk_i of block 0. */
+static void fill_phases(hk_engine *e, int nk, const double *k, int nblock)
+{
+    int ncol = e->ncol, nh = e->nhalf;
+    for (int j = 0; j < nk; j++) {
+        double *p0 = e->phase + (size_t)j * ncol;
+        p0[0] = 1.0;
+        for (int b = 1; b < nblock; b++) e->phase[(size_t)(b * nk + j) * ncol] = 0.0;
+        for (int h = 0; h < nh; h++) {
+            const double *R = e->Rhalf + 3 * h;
+            double theta = 2.0 * M_PI * (k[3 * j] * R[0] + k[3 * j + 1] * R[1] + k[3 * j + 2] * R[2]);
+            double c = cos(theta), s = sin(theta);
+            p0[1 + h] = c;
+            p0[1 + nh + h] = s;
+            for (int b = 1; b < nblock; b++) {
+                double *pb = e->phase + (size_t)(b * nk + j) * ncol;
+                double f = 2.0 * M_PI * R[b - 1];
+                pb[1 + h] = -f * s;
+                pb[1 + nh + h] = f * c;
+            }
+        }
+    }
+}
+
+static void unpack(const hk_engine *e, const double *packed, double complex *H)
+{
+    int n = e->norb;
+    for (int b = 0; b < n; b++)
+        for (int a = 0; a <= b; a++) {
+            size_t p = (size_t)a + (size_t)b * (b + 1) / 2;
+            double complex v = packed[2 * p] + I * packed[2 * p + 1];
+            H[a + (size_t)b * n] = v;
+            H[b + (size_t)a * n] = conj(v);
+        }
+    for (int a = 0; a < n; a++) H[a + (size_t)a * n] = creal(H[a + (size_t)a * n]);
+}
+
+static int run_batch(hk_engine *e, int nk, const double *k, int nblock, bs_err *err)
+{
+    if (nk < 0 || nk > e->max_batch)
+        return bs_fail(err, BS_EINVAL, "batch of %d k-points exceeds the engine's %d", nk, e->max_batch);
+    fill_phases(e, nk, k, nblock);
+    int rows = 2 * e->npair;
+    cblas_dgemm(CblasColMajor, CblasNoTrans, CblasNoTrans, rows, nblock * nk, e->ncol, 1.0, e->coef,
+                rows, e->phase, e->ncol, 0.0, e->packed, rows);
+    return 0;
+}
+
+int hk_build(hk_engine *e, int nk, const double *k, double complex *H, bs_err *err)
+{
+    int rc = run_batch(e, nk, k, 1, err);
+    if (rc != 0) return rc;
+    size_t nn = (size_t)e->norb * e->norb, rows = 2 * (size_t)e->npair;
+    for (int j = 0; j < nk; j++) unpack(e, e->packed + j * rows, H + j * nn);
+    return 0;
+}
+
+int hk_build_deriv(hk_engine *e, int nk, const double *k, double complex *H, double complex *dH,
+                   bs_err *err)
+{
+    int rc = run_batch(e, nk, k, 4, err);
+    if (rc != 0) return rc;
+    size_t nn = (size_t)e->norb * e->norb, rows = 2 * (size_t)e->npair;
+    for (int j = 0; j < nk; j++) {
+        if (H) unpack(e, e->packed + j * rows, H + j * nn);
+        for (int i = 0; i < 3; i++)
+            unpack(e, e->packed + (size_t)((i + 1) * nk + j) * rows, dH + (size_t)(j * 3 + i) * nn);
+    }
+    return 0;
+}
+
+void hk_build_direct(const tb_model *m, const double k[3], double complex *H)
+{
+    int n = m->norb;
+    size_t nn = (size_t)n * n;
+    memset(H, 0, nn * sizeof *H);
+    for (int r = 0; r < m->nR; r++) {
+        double theta = 2.0 * M_PI * (k[0] * m->R[r][0] + k[1] * m->R[r][1] + k[2] * m->R[r][2]);
+        double complex ph = cexp(I * theta) / m->deg[r];
+        const double complex *Hr = m->H + r * nn;
+        for (int a = 0; a < n; a++)
+            for (int b = 0; b < n; b++) H[a + (size_t)b * n] += ph * Hr[(size_t)a * n + b];
+    }
+}

@@ -1,0 +1,196 @@
+/* The tight-binding model type: allocation, copies, basis-state bookkeeping and validation. */
+#include "bandsieve/model.h"
+
+#include <math.h>
+#include <stdlib.h>
+#include <string.h>
+
+#include "bandsieve/config.h"
+
+int tb_model_create(int norb, int nR, int spinful, tb_model **out, bs_err *err)
+{
+    *out = NULL;
+    if (norb < 1 || norb > BS_MAX_NORB)
+        return bs_fail(err, BS_EINVAL, "orbital count %d outside 1..%d", norb, BS_MAX_NORB);
+    if (nR < 1 || nR > BS_MAX_NR)
+        return bs_fail(err, BS_EINVAL, "lattice-vector count %d outside 1..%d", nR, BS_MAX_NR);
+    if ((long long)nR * norb * norb > BS_MAX_HR_ELEMENTS)
+        return bs_fail(err, BS_EINVAL, "%d lattice vectors x %d^2 orbitals exceeds the limit of %lld "
+                       "hopping elements", nR, norb, (long long)BS_MAX_HR_ELEMENTS);
+    if (spinful && norb % 2 != 0)
+        return bs_fail(err, BS_EINVAL, "spinful model needs an even number of states, got %d", norb);
+    tb_model *m = calloc(1, sizeof *m);
+    if (!m) return bs_fail(err, BS_ENOMEM, "out of memory for a model");
+    m->dim = 3;
+    m->norb = norb;
+    m->spinful = spinful ? 1 : 0;
+    m->spin_layout = spinful ? TB_SPIN_BLOCKS : TB_SPIN_NONE;
+    m->nspatial = spinful ? norb / 2 : norb;
+    m->nR = nR;
+    m->nocc = norb / 2 > 0 ? norb / 2 : 1;
+    for (int i = 0; i < 3; i++) m->lattice[i][i] = 1.0;
+    m->orb_pos = calloc((size_t)m->nspatial, sizeof *m->orb_pos);
+    m->orb_l = calloc((size_t)m->nspatial, sizeof *m->orb_l);
+    m->R = calloc((size_t)nR, sizeof *m->R);
+    m->deg = calloc((size_t)nR, sizeof *m->deg);
+    m->H = calloc((size_t)nR * norb * norb, sizeof *m->H);
+    if (!m->orb_pos || !m->orb_l || !m->R || !m->deg || !m->H) {
+        tb_model_free(m);
+        return bs_fail(err, BS_ENOMEM, "out of memory for %d x %d^2 hoppings", nR, norb);
+    }
+    for (int r = 0; r < nR; r++) m->deg[r] = 1;
+    *out = m;
+    return 0;
+}
+
+void tb_model_free(tb_model *m)
+{
+    if (!m) return;
+    free(m->orb_pos);
+    free(m->orb_l);
+    free(m->R);
+    free(m->deg);
+    free(m->H);
+    free(m->inv_perm);
+    free(m->inv_sign);
+    free(m->inv_shift);
+    free(m);
+}
+
+static int dup_array(void **dst, const void *src, size_t bytes)
+{
+    *dst = NULL;
+    if (!src) return 0;
+    *dst = malloc(bytes);
+    if (!*dst) return -1;
+    memcpy(*dst, src, bytes);
+    return 0;
+}
+
+int tb_model_copy(const tb_model *m, tb_model **out, bs_err *err)
+{
+    *out = NULL;
+    tb_model *c = NULL;
+    int rc = tb_model_create(m->norb, m->nR, m->spinful, &c, err);
+    if (rc != 0) return rc;
+    double (*pos)[3] = c->orb_pos;
+    int *l = c->orb_l, (*R)[3] = c->R, *deg = c->deg;
+    double complex *H = c->H;
+    *c = *m;
+    c->orb_pos = pos; c->orb_l = l; c->R = R; c->deg = deg; c->H = H;
+    memcpy(c->orb_pos, m->orb_pos, (size_t)m->nspatial * sizeof *m->orb_pos);
+    memcpy(c->orb_l, m->orb_l, (size_t)m->nspatial * sizeof *m->orb_l);
+    memcpy(c->R, m->R, (size_t)m->nR * sizeof *m->R);
+    memcpy(c->deg, m->deg, (size_t)m->nR * sizeof *m->deg);
+    memcpy(c->H, m->H, (size_t)m->nR * m->norb * m->norb * sizeof *m->H);
+    c->inv_perm = NULL; c->inv_sign = NULL; c->inv_shift = NULL;
+    size_t n = (size_t)m->norb;
+    if (dup_array((void **)&c->inv_perm, m->inv_perm, n * sizeof *m->inv_perm) ||
+        dup_array((void **)&c->inv_sign, m->inv_sign, n * sizeof *m->inv_sign) ||
+        dup_array((void **)&c->inv_shift, m->inv_shift, n * sizeof *m->inv_shift)) {
+        tb_model_free(c);
+        return bs_fail(err, BS_ENOMEM, "out of memory copying a model");
+    }
+    *out = c;
+    return 0;
+}
+
+int tb_model_find_R(const tb_model *m, const int R[3])
+{
+    for (int r = 0; r < m->nR; r++)
+        if (m->R[r][0] == R[0] && m->R[r][1] == R[1] && m->R[r][2] == R[2]) return r;
+    return -1;
+}
+
+int tb_state_orbital(const tb_model *m, int i)
+{
+    if (!m->spinful) return i;
+    return m->spin_layout == TB_SPIN_INTERLEAVED ? i / 2 : i % m->nspatial;
+}
+
+int tb_state_spin(const tb_model *m, int i)
+{
+    if (!m->spinful) return 0;
+    return m->spin_layout == TB_SPIN_INTERLEAVED ? i % 2 : i / m->nspatial;
+}
+
+int tb_state_index(const tb_model *m, int o, int s)
+{
+    if (!m->spinful) return o;
+    return m->spin_layout == TB_SPIN_INTERLEAVED ? 2 * o + s : o + s * m->nspatial;
+}
+
+static int validate_header(const tb_model *m, const char *where, bs_err *err)
+{
+    if (m->dim != 2 && m->dim != 3)
+        return bs_fail(err, BS_EINVAL, "%s: dimension must be 2 or 3, found %d", where, m->dim);
+    if (m->nocc < 1 || m->nocc >= m->norb)
+        return bs_fail(err, BS_EINVAL, "%s: occupied_bands must be in 1..%d for %d states, found %d",
+                       where, m->norb - 1, m->norb, m->nocc);
+    for (int i = 0; i < m->nspatial; i++) {
+        if (m->orb_l[i] < 0 || m->orb_l[i] > 3)
+            return bs_fail(err, BS_EINVAL, "%s: orbital %d has l = %d, expected 0..3", where, i + 1,
+                           m->orb_l[i]);
+        for (int d = 0; d < 3; d++)
+            if (!isfinite(m->orb_pos[i][d]))
+                return bs_fail(err, BS_EINVAL, "%s: orbital %d has a non-finite position", where, i + 1);
+    }
+    for (int a = 0; a < 3; a++)
+        for (int b = 0; b < 3; b++)
+            if (!isfinite(m->lattice[a][b]))
+                return bs_fail(err, BS_EINVAL, "%s: lattice vector %d is not finite", where, a + 1);
+    return 0;
+}
+
+int tb_model_validate(const tb_model *m, double tol_ev, const char *where, bs_err *err)
+{
+    int rc = validate_header(m, where, err);
+    if (rc != 0) return rc;
+    int n = m->norb;
+    for (int r = 0; r < m->nR; r++) {
+        if (m->deg[r] < 1)
+            return bs_fail(err, BS_EINVAL, "%s: degeneracy weight %d of R = (%d,%d,%d) must be >= 1",
+                           where, m->deg[r], m->R[r][0], m->R[r][1], m->R[r][2]);
+        if (m->dim == 2 && m->R[r][2] != 0)
+            return bs_fail(err, BS_EINVAL, "%s: 2D model has R3 = %d at R = (%d,%d,%d)", where,
+                           m->R[r][2], m->R[r][0], m->R[r][1], m->R[r][2]);
+        int minus[3] = {-m->R[r][0], -m->R[r][1], -m->R[r][2]};
+        int rm = tb_model_find_R(m, minus);
+        if (rm < 0)
+            return bs_fail(err, BS_EINVAL, "%s: R = (%d,%d,%d) present but -R missing (H is not Hermitian)",
+                           where, m->R[r][0], m->R[r][1], m->R[r][2]);
+        const double complex *Hp = m->H + (size_t)r * n * n;
+        const double complex *Hm = m->H + (size_t)rm * n * n;
+        for (int a = 0; a < n; a++)
+            for (int b = 0; b < n; b++) {
+                double complex h = Hp[(size_t)a * n + b];
+                if (!isfinite(creal(h)) || !isfinite(cimag(h)))
+                    return bs_fail(err, BS_EINVAL, "%s: non-finite hopping at R = (%d,%d,%d), m = %d, n = %d",
+                                   where, m->R[r][0], m->R[r][1], m->R[r][2], a + 1, b + 1);
+                double complex hd = conj(Hm[(size_t)b * n + a]);
+                /* Compare H_R / deg_R: the weights of R and -R may differ only in a broken file. */
+                double d = cabs(h / m->deg[r] - hd / m->deg[rm]);
+                if (d > tol_ev)
+                    return bs_fail(err, BS_EINVAL,
+                                   "%s: not Hermitian: H(R)[%d,%d] != conj(H(-R)[%d,%d]) at R = (%d,%d,%d), "
+                                   "difference %.3g eV", where, a + 1, b + 1, b + 1, a + 1,
+                                   m->R[r][0], m->R[r][1], m->R[r][2], d);
+            }
+    }
+    return 0;
+}
+
+void tb_model_reciprocal(const tb_model *m, double b[3][3])
+{
+    const double (*a)[3] = m->lattice;
+    double cross[3][3];
+    for (int i = 0; i < 3; i++) {
+        const double *u = a[(i + 1) % 3], *v = a[(i + 2) % 3];
+        cross[i][0] = u[1] * v[2] - u[2] * v[1];
+        cross[i][1] = u[2] * v[0] - u[0] * v[2];
+        cross[i][2] = u[0] * v[1] - u[1] * v[0];
+    }
+    double vol = a[0][0] * cross[0][0] + a[0][1] * cross[0][1] + a[0][2] * cross[0][2];
+    for (int i = 0; i < 3; i++)
+        for (int d = 0; d < 3; d++) b[i][d] = 2.0 * M_PI * cross[i][d] / vol;
+}

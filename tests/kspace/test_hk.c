@@ -1,0 +1,140 @@
+/* Tests of the folded, batched H(k) builder against the direct sum over R, and of dH/dk against
+ * central finite differences. The direct sum is the definition of H(k) in the hopping-table
+ * convention (DESIGN.md), so agreement to round-off is the reference. */
+#include <setjmp.h>
+#include <stdarg.h>
+#include <stddef.h>
+#include <stdint.h>
+#include <cmocka.h>
+
+#include <complex.h>
+#include <math.h>
+#include <stdlib.h>
+
+#include "bandsieve/hk.h"
+#include "bandsieve/model.h"
+
+/* Deterministic generator (splitmix64), seeded: common practice. */
+static double uniform(uint64_t *s)
+{
+    uint64_t z = (*s += 0x9E3779B97F4A7C15ULL);
+    z = (z ^ (z >> 30)) * 0xBF58476D1CE4E5B9ULL;
+    z = (z ^ (z >> 27)) * 0x94D049BB133111EBULL;
+    z ^= z >> 31;
+    return (z >> 11) * (1.0 / 9007199254740992.0);
+}
+
+/* A random Hermitian model with R in [-2,2]^3 (all 125 vectors), weights 1..3 and H(-R) = H(R)^dagger. */
+static tb_model *random_model(int norb, uint64_t seed)
+{
+    tb_model *m = NULL;
+    bs_err err;
+    bs_err_clear(&err);
+    assert_int_equal(tb_model_create(norb, 125, 0, &m, &err), 0);
+    int r = 0;
+    for (int a = -2; a <= 2; a++)
+        for (int b = -2; b <= 2; b++)
+            for (int c = -2; c <= 2; c++, r++) {
+                m->R[r][0] = a; m->R[r][1] = b; m->R[r][2] = c;
+                m->deg[r] = 1 + (abs(a + 2 * b + 3 * c) % 3);
+            }
+    size_t nn = (size_t)norb * norb;
+    for (r = 0; r < m->nR; r++) {
+        int minus[3] = {-m->R[r][0], -m->R[r][1], -m->R[r][2]};
+        int rm = tb_model_find_R(m, minus);
+        m->deg[rm] = m->deg[r];
+        if (rm < r) continue;
+        for (int i = 0; i < norb; i++)
+            for (int j = 0; j < norb; j++) {
+                double complex h = (uniform(&seed) - 0.5) + I * (uniform(&seed) - 0.5);
+                m->H[r * nn + (size_t)i * norb + j] = h;
+                m->H[rm * nn + (size_t)j * norb + i] = conj(h);
+            }
+    }
+    /* Make H(0) exactly Hermitian. */
+    int r0 = tb_model_find_R(m, (int[3]){0, 0, 0});
+    for (int i = 0; i < norb; i++) {
+        for (int j = 0; j < i; j++)
+            m->H[r0 * nn + (size_t)i * norb + j] = conj(m->H[r0 * nn + (size_t)j * norb + i]);
+        m->H[r0 * nn + (size_t)i * norb + i] = creal(m->H[r0 * nn + (size_t)i * norb + i]);
+    }
+    return m;
+}
+
+static double max_diff(const double complex *a, const double complex *b, size_t n)
+{
+    double d = 0;
+    for (size_t i = 0; i < n; i++) d = fmax(d, cabs(a[i] - b[i]));
+    return d;
+}
+
+static void test_batched_matches_direct_sum(void **state)
+{
+    (void)state;
+    int norb = 7, nk = 37;
+    tb_model *m = random_model(norb, 12345);
+    bs_err err;
+    bs_err_clear(&err);
+    assert_int_equal(tb_model_validate(m, 1e-12, "random", &err), 0);
+    hk_engine *e = NULL;
+    assert_int_equal(hk_create(m, 16, &e, &err), 0);
+    uint64_t seed = 99;
+    double *k = malloc(3 * nk * sizeof *k);
+    for (int i = 0; i < 3 * nk; i++) k[i] = uniform(&seed) * 2 - 0.5;
+    size_t nn = (size_t)norb * norb;
+    double complex *H = malloc(16 * nn * sizeof *H), *Hd = malloc(nn * sizeof *Hd);
+    for (int j0 = 0; j0 < nk; j0 += 16) {
+        int nb = nk - j0 < 16 ? nk - j0 : 16;
+        assert_int_equal(hk_build(e, nb, k + 3 * j0, H, &err), 0);
+        for (int j = 0; j < nb; j++) {
+            hk_build_direct(m, k + 3 * (j0 + j), Hd);
+            /* Round-off of ~125 terms of size 1: 1e-12 is generous and still catches any wrong
+             * sign, fold or weight (those give O(1) differences). */
+            assert_true(max_diff(H + j * nn, Hd, nn) < 1e-12);
+        }
+    }
+    /* A batch larger than the engine's is refused, not overrun. */
+    assert_int_equal(hk_build(e, 17, k, H, &err), BS_EINVAL);
+    free(k); free(H); free(Hd);
+    hk_free(e);
+    tb_model_free(m);
+}
+
+static void test_derivative_matches_finite_difference(void **state)
+{
+    (void)state;
+    int norb = 5;
+    tb_model *m = random_model(norb, 777);
+    bs_err err;
+    bs_err_clear(&err);
+    hk_engine *e = NULL;
+    assert_int_equal(hk_create(m, 4, &e, &err), 0);
+    size_t nn = (size_t)norb * norb;
+    double k[3] = {0.123, -0.377, 0.41};
+    double complex *H = malloc(nn * sizeof *H), *dH = malloc(3 * nn * sizeof *dH);
+    double complex *Hp = malloc(nn * sizeof *Hp), *Hm = malloc(nn * sizeof *Hm);
+    assert_int_equal(hk_build_deriv(e, 1, k, H, dH, &err), 0);
+    const double h = 1e-5;
+    for (int i = 0; i < 3; i++) {
+        double kp[3] = {k[0], k[1], k[2]}, km[3] = {k[0], k[1], k[2]};
+        kp[i] += h; km[i] -= h;
+        hk_build_direct(m, kp, Hp);
+        hk_build_direct(m, km, Hm);
+        double worst = 0;
+        for (size_t p = 0; p < nn; p++) worst = fmax(worst, cabs((Hp[p] - Hm[p]) / (2 * h) - dH[i * nn + p]));
+        /* Central difference error ~ h^2 |H'''| ~ 1e-10 * (2 pi * 2)^3 ~ 2e-7; round-off ~ 1e-16/h. */
+        assert_true(worst < 1e-5);
+    }
+    free(H); free(dH); free(Hp); free(Hm);
+    hk_free(e);
+    tb_model_free(m);
+}
+
+int main(void)
+{
+    const struct CMUnitTest tests[] = {
+        cmocka_unit_test(test_batched_matches_direct_sum),
+        cmocka_unit_test(test_derivative_matches_finite_difference),
+    };
+    return cmocka_run_group_tests(tests, NULL, NULL);
+}
