@@ -55,7 +55,13 @@ typedef struct diag_result {
     int z2_parity[4];
     int z2_wcc_status;
     int z2_wcc[4];
-    char z2_note[160];      /* why an index is ambiguous or the methods disagree */
+    char z2_note[240];      /* why an index is ambiguous or the methods disagree */
+    int ntrim;              /* 4 or 8 when parities were computed, else 0 */
+    int par_delta[8];       /* product of one parity per Kramers pair at TRIM n1 + 2 n2 + 4 n3 */
+    int par_nodd[8];        /* occupied states of odd parity there */
+    int wcc_gap_closed;     /* a Wilson-loop string met a gap closing */
+    int chirality_status;   /* DIAG_* of the node chiralities */
+    int nodes_tr_ok;        /* with time reversal: nodes in time-reversed sets of four */
 
     int chern_status;
     int chern;              /* 2D Chern number */

@@ -4,7 +4,8 @@
  * [cos(2 pi k.R) C_R + sin(2 pi k.R) S_R] with C_R = H_R + H_R^dagger and S_R = i (H_R - H_R^dagger),
  * both Hermitian, so only their upper triangles (as real pairs) are stored. A batch of k-points is
  * then one real matrix product (DGEMM) of that coefficient table with a table of cosines and sines:
- * a quarter of the flops of the direct complex sum and at BLAS speed. */
+ * a quarter of the flops of the direct complex sum and at BLAS speed. Derivatives from a reduced
+ * engine (hk_reduce) are valid only along the axes that were not fixed. */
 #ifndef BANDSIEVE_HK_H
 #define BANDSIEVE_HK_H
 
@@ -38,6 +39,19 @@ int hk_build(hk_engine *e, int nk, const double *k, double complex *H, bs_err *e
  * H may be NULL when only derivatives are wanted. */
 int hk_build_deriv(hk_engine *e, int nk, const double *k, double complex *H, double complex *dH,
                    bs_err *err);
+
+/* Dimension-by-dimension partial sums. Fixes reduced coordinate `axis` (0..2) at kval and sums it
+ * out: the result is an engine over the remaining lattice-vector components, so H(k) for k with
+ * k[axis] = kval costs (distinct remaining R) instead of N_R per point. Reducing twice gives a line
+ * engine whose cost per k is ~ (2 R_max + 1) columns: a Wilson-loop string or a mesh row then costs
+ * little more than its diagonalisations. Points passed to a reduced engine keep all three
+ * components; the fixed ones are ignored. The caller owns *out; src is only read, and *out does
+ * not refer to it afterwards. */
+int hk_reduce(const hk_engine *src, int axis, double kval, int max_batch, hk_engine **out, bs_err *err);
+
+/* Recomputes dst (made by hk_reduce from the same src and axis) for a new kval, without
+ * allocating: the column structure depends only on the lattice vectors. */
+int hk_rereduce(hk_engine *dst, const hk_engine *src, double kval, bs_err *err);
 
 /* Reference implementation: the direct complex sum over every R at one k (for tests and the
  * benchmark's baseline). H as in hk_build with nk = 1. */

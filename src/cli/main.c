@@ -7,14 +7,7 @@
 
 /* Subcommands still being written are weak references, so that the binary links while the
  * layers land one by one; a missing one reports itself instead of failing the whole build. */
-#pragma weak cmd_pack
-#pragma weak cmd_list
-#pragma weak cmd_bands
 #pragma weak cmd_models
-#pragma weak cmd_inspect
-#pragma weak cmd_screen
-#pragma weak cmd_rescreen
-#pragma weak cmd_query
 #pragma weak cmd_demo_set
 
 typedef struct command {

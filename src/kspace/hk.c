@@ -24,6 +24,13 @@ struct hk_engine {
     double *coef;       /* (2 npair) x ncol, column-major */
     double *phase;      /* ncol x (4 max_batch) */
     double *packed;     /* (2 npair) x (4 max_batch) */
+    /* Set only on engines made by hk_reduce: where each source column goes. */
+    int axis;           /* fixed axis, -1 for a full engine */
+    int src_ncol;
+    int *map_cos;       /* src column -> dst cosine column (0 for the constant) */
+    int *map_sin;       /* src column -> dst sine column, or -1 when the target is the constant */
+    double *map_sign;   /* +1, or -1 when the target vector is -R' (sine flips) */
+    double *src_Rax;    /* the source vectors' component along axis (0 for the constant) */
 };
 
 static int is_half(const int R[3])
@@ -71,6 +78,7 @@ int hk_create(const tb_model *m, int max_batch, hk_engine **out, bs_err *err)
     e->norb = m->norb;
     e->npair = m->norb * (m->norb + 1) / 2;
     e->max_batch = max_batch;
+    e->axis = -1;
     int r0 = -1;
     for (int r = 0; r < m->nR; r++) {
         if (is_half(m->R[r])) e->nhalf++;
@@ -110,7 +118,122 @@ void hk_free(hk_engine *e)
     free(e->coef);
     free(e->phase);
     free(e->packed);
+    free(e->map_cos);
+    free(e->map_sin);
+    free(e->map_sign);
+    free(e->src_Rax);
     free(e);
+}
+
+/* Finds (or appends) the half-space vector R in dst->Rhalf; returns its index. */
+static int half_index(hk_engine *dst, const double R[3])
+{
+    for (int h = 0; h < dst->nhalf; h++)
+        if (dst->Rhalf[3 * h] == R[0] && dst->Rhalf[3 * h + 1] == R[1] && dst->Rhalf[3 * h + 2] == R[2])
+            return h;
+    int h = dst->nhalf++;
+    for (int d = 0; d < 3; d++) dst->Rhalf[3 * h + d] = R[d];
+    return h;
+}
+
+static int is_half_d(const double R[3])
+{
+    if (R[0] != 0) return R[0] > 0;
+    if (R[1] != 0) return R[1] > 0;
+    return R[2] > 0;
+}
+
+int hk_reduce(const hk_engine *src, int axis, double kval, int max_batch, hk_engine **out, bs_err *err)
+{
+    *out = NULL;
+    if (axis < 0 || axis > 2) return bs_fail(err, BS_EINVAL, "reduction axis %d outside 0..2", axis);
+    if (max_batch < 1) max_batch = 1;
+    hk_engine *e = calloc(1, sizeof *e);
+    if (!e) return bs_fail(err, BS_ENOMEM, "out of memory for a reduced H(k) engine");
+    e->norb = src->norb;
+    e->npair = src->npair;
+    e->max_batch = max_batch;
+    e->axis = axis;
+    e->src_ncol = src->ncol;
+    int sn = src->ncol;
+    e->Rhalf = calloc((size_t)src->nhalf * 3 + 3, sizeof *e->Rhalf);
+    e->map_cos = calloc(sn, sizeof *e->map_cos);
+    e->map_sin = calloc(sn, sizeof *e->map_sin);
+    e->map_sign = calloc(sn, sizeof *e->map_sign);
+    e->src_Rax = calloc(sn, sizeof *e->src_Rax);
+    if (!e->Rhalf || !e->map_cos || !e->map_sin || !e->map_sign || !e->src_Rax) {
+        hk_free(e);
+        return bs_fail(err, BS_ENOMEM, "out of memory for a reduced H(k) engine");
+    }
+    /* Source column 0 is the constant; columns 1+h and 1+nhalf+h are the cosine and sine of Rhalf[h].
+     * For the pair h the target is R' = R with the axis component removed, folded into the half set. */
+    e->map_cos[0] = 0; e->map_sin[0] = -1; e->map_sign[0] = 1.0; e->src_Rax[0] = 0.0;
+    int *target = malloc((size_t)(src->nhalf + 1) * sizeof *target);
+    double *sign = malloc((size_t)(src->nhalf + 1) * sizeof *sign);
+    if (!target || !sign) {
+        free(target); free(sign); hk_free(e);
+        return bs_fail(err, BS_ENOMEM, "out of memory for a reduced H(k) engine");
+    }
+    for (int h = 0; h < src->nhalf; h++) {
+        double Rp[3] = {src->Rhalf[3 * h], src->Rhalf[3 * h + 1], src->Rhalf[3 * h + 2]};
+        Rp[axis] = 0.0;
+        if (Rp[0] == 0 && Rp[1] == 0 && Rp[2] == 0) { target[h] = -1; sign[h] = 1.0; continue; }
+        sign[h] = is_half_d(Rp) ? 1.0 : -1.0;
+        for (int d = 0; d < 3; d++) Rp[d] *= sign[h];
+        target[h] = half_index(e, Rp);
+    }
+    e->ncol = 1 + 2 * e->nhalf;
+    for (int h = 0; h < src->nhalf; h++) {
+        int t = target[h];
+        for (int which = 0; which < 2; which++) {
+            int c = 1 + h + which * src->nhalf;
+            e->map_cos[c] = t < 0 ? 0 : 1 + t;
+            e->map_sin[c] = t < 0 ? -1 : 1 + e->nhalf + t;
+            e->map_sign[c] = sign[h];
+            e->src_Rax[c] = src->Rhalf[3 * h + axis];
+        }
+    }
+    free(target);
+    free(sign);
+    size_t rows = 2 * (size_t)e->npair;
+    e->coef = calloc(rows * e->ncol, sizeof *e->coef);
+    e->phase = calloc((size_t)e->ncol * 4 * max_batch, sizeof *e->phase);
+    e->packed = calloc(rows * 4 * max_batch, sizeof *e->packed);
+    if (!e->coef || !e->phase || !e->packed) {
+        hk_free(e);
+        return bs_fail(err, BS_ENOMEM, "out of memory for a reduced H(k) engine");
+    }
+    int rc = hk_rereduce(e, src, kval, err);
+    if (rc != 0) { hk_free(e); return rc; }
+    *out = e;
+    return 0;
+}
+
+int hk_rereduce(hk_engine *dst, const hk_engine *src, double kval, bs_err *err)
+{
+    if (dst->axis < 0 || dst->src_ncol != src->ncol || dst->npair != src->npair)
+        return bs_fail(err, BS_EINVAL, "reduced engine does not belong to this source engine");
+    size_t rows = 2 * (size_t)dst->npair;
+    memset(dst->coef, 0, rows * dst->ncol * sizeof *dst->coef);
+    int nh = (src->ncol - 1) / 2;
+    cblas_daxpy((int)rows, 1.0, src->coef, 1, dst->coef, 1);
+    /* cos(t + phi) C + sin(t + phi) S = cos t [cos phi C + sin phi S] + sin t [cos phi S - sin phi C],
+     * with t the phase of R' and phi = 2 pi kval R_axis; folding R' -> -R' flips the sine. */
+    for (int h = 0; h < nh; h++) {
+        int cc = 1 + h, cs = 1 + nh + h;
+        double phi = 2.0 * M_PI * kval * dst->src_Rax[cc];
+        double c = cos(phi), s = sin(phi), sg = dst->map_sign[cc];
+        const double *C = src->coef + (size_t)cc * rows, *S = src->coef + (size_t)cs * rows;
+        double *dc = dst->coef + (size_t)dst->map_cos[cc] * rows;
+        cblas_daxpy((int)rows, c, C, 1, dc, 1);
+        cblas_daxpy((int)rows, s, S, 1, dc, 1);
+        if (dst->map_sin[cc] >= 0) {
+            double *ds = dst->coef + (size_t)dst->map_sin[cc] * rows;
+            cblas_daxpy((int)rows, sg * c, S, 1, ds, 1);
+            cblas_daxpy((int)rows, -sg * s, C, 1, ds, 1);
+        }
+    }
+    return 0;
 }
 
 int hk_norb(const hk_engine *e) { return e->norb; }
@@ -192,11 +315,13 @@ void hk_build_direct(const tb_model *m, const double k[3], double complex *H)
     int n = m->norb;
     size_t nn = (size_t)n * n;
     memset(H, 0, nn * sizeof *H);
+    /* Accumulate in the tables' row-major order (contiguous reads and writes); the row-major array
+     * of a Hermitian H is the column-major array of conj(H), so one conjugation finishes it. */
     for (int r = 0; r < m->nR; r++) {
         double theta = 2.0 * M_PI * (k[0] * m->R[r][0] + k[1] * m->R[r][1] + k[2] * m->R[r][2]);
         double complex ph = cexp(I * theta) / m->deg[r];
         const double complex *Hr = m->H + r * nn;
-        for (int a = 0; a < n; a++)
-            for (int b = 0; b < n; b++) H[a + (size_t)b * n] += ph * Hr[(size_t)a * n + b];
+        for (size_t p = 0; p < nn; p++) H[p] += ph * Hr[p];
     }
+    for (size_t p = 0; p < nn; p++) H[p] = conj(H[p]);
 }

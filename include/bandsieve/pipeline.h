@@ -1,0 +1,56 @@
+/* The screening run: an MPI coordinator (rank 0) hands materials one at a time to worker ranks,
+ * which read them from the set, diagnose them and send back compact results; the coordinator alone
+ * writes the catalogue. With one rank everything runs in that process. MPI stays inside
+ * src/pipeline: this header does not include <mpi.h>. */
+#ifndef BANDSIEVE_PIPELINE_H
+#define BANDSIEVE_PIPELINE_H
+
+#include <signal.h>
+
+#include "bandsieve/err.h"
+
+/* Counts shown by the progress callback and returned at the end. */
+typedef struct pl_counts {
+    int total;            /* materials this job set out to do (after resume skips) */
+    int skipped;          /* already done in the resumed run */
+    int done;             /* results received */
+    int ok, invalid, failed, timeout;
+    int by_class[10];     /* see pl_class_names */
+    double elapsed;       /* seconds since the start */
+    int interrupted;      /* stopped early: wall-clock budget or a signal */
+    long long run_id;
+    int resumed;
+} pl_counts;
+
+/* Names of the classes counted in pl_counts.by_class, in order (count pl_nclass()). */
+const char *pl_class_name(int i);
+int pl_nclass(void);
+
+typedef struct pl_opts {
+    const char *set_path;       /* material set (HDF5) */
+    const char *catalogue_path; /* catalogue (SQLite) */
+    const char *kind;           /* "screen" or "rescreen" */
+    const char *where_sql;      /* rescreen: condition on summary */
+    int mesh;                   /* 0: the diagnosis default */
+    double max_seconds;         /* wall-clock budget of the whole job (0: none) */
+    double material_seconds;    /* budget per material; over it the row is `timeout` (0: none) */
+    int rerun;                  /* start a new run instead of resuming */
+    int batch_rows;             /* catalogue commit batch (0: default) */
+    double batch_seconds;
+    const char *cmdline;        /* recorded in the run row */
+    const char *version;
+    volatile sig_atomic_t *stop_flag; /* set by a signal handler: finish in-flight work and stop */
+    /* Called on rank 0 after every result and about once a second while waiting. */
+    void (*progress)(void *ctx, const pl_counts *c, int final);
+    void *progress_ctx;
+    /* Called on rank 0 before work starts, e.g. to print how many materials were selected. */
+    void (*announce)(void *ctx, const pl_counts *c, const char *kind);
+} pl_opts;
+
+/* Runs the job. Initialises MPI from argc/argv (MPI_Init) and finalises it. On rank 0 *counts
+ * receives the totals; other ranks get their own partial counts. Returns 0 when the job ran (even
+ * if some materials failed: see counts), or a negative BS_E* code when the job itself failed
+ * (catalogue, set, MPI), with err filled on the rank that saw it. */
+int pl_run(int *argc, char ***argv, const pl_opts *opts, pl_counts *counts, int *is_root, bs_err *err);
+
+#endif

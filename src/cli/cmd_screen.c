@@ -1,0 +1,180 @@
+/* `bandsieve screen` and `bandsieve rescreen`: option parsing, signal handling and the progress
+ * display around the pipeline (src/pipeline). */
+#include <getopt.h>
+#include <signal.h>
+#include <stdio.h>
+#include <stdlib.h>
+#include <string.h>
+#include <unistd.h>
+
+#include "bandsieve/config.h"
+#include "bandsieve/pipeline.h"
+#include "cliutil.h"
+#include "commands.h"
+
+/* Set by SIGTERM/SIGINT (a batch scheduler's warning before the kill): finish in-flight work. */
+static volatile sig_atomic_t stop_requested = 0;
+
+static void on_signal(int sig)
+{
+    (void)sig;
+    stop_requested = 1;
+}
+
+typedef struct progress_state {
+    int tty;
+    double last_plain;
+    double plain_every;
+    const char *what;
+} progress_state;
+
+static void format_progress(const pl_counts *c, char *buf, size_t len)
+{
+    double rate = c->elapsed > 0 ? c->done / c->elapsed : 0;
+    int left = c->total - c->done;
+    double eta = rate > 0 ? left / rate : 0;
+    int n = snprintf(buf, len, "%d/%d done", c->done, c->total);
+    if (c->skipped) n += snprintf(buf + n, len - n, " (+%d resumed)", c->skipped);
+    n += snprintf(buf + n, len - n, ", %.2f/s, %s %.0fs | ok %d invalid %d failed %d timeout %d |",
+                  rate, left > 0 ? "left" : "took", left > 0 ? eta : c->elapsed, c->ok, c->invalid,
+                  c->failed, c->timeout);
+    static const char *const abbrev[] = {"triv", "STI", "WTI", "2DTI", "CI", "WSM", "NLSM", "metal", "undet"};
+    for (int i = 0; i < pl_nclass() && i < 9; i++)
+        if (c->by_class[i]) n += snprintf(buf + n, len - n, " %s %d", abbrev[i], c->by_class[i]);
+}
+
+static void show_progress(void *ctx, const pl_counts *c, int final)
+{
+    progress_state *p = ctx;
+    char line[512];
+    format_progress(c, line, sizeof line);
+    if (p->tty) {
+        fprintf(stderr, "\r\033[K%s: %s", p->what, line);
+        if (final) fputc('\n', stderr);
+    } else if (final || c->elapsed - p->last_plain >= p->plain_every) {
+        fprintf(stderr, "%s: [%6.0fs] %s\n", p->what, c->elapsed, line);
+        p->last_plain = c->elapsed;
+    }
+    fflush(stderr);
+}
+
+static void announce(void *ctx, const pl_counts *c, const char *kind)
+{
+    progress_state *p = ctx;
+    if (!strcmp(kind, "rescreen"))
+        fprintf(stderr, "%s: %d materials selected (run %lld)\n", p->what, c->total + c->skipped, c->run_id);
+    else
+        fprintf(stderr, "%s: %d materials to do%s (run %lld%s)\n", p->what, c->total,
+                c->skipped ? " after resume" : "", c->run_id, c->resumed ? ", resumed" : "");
+    if (p->tty) fputc('\n', stderr);
+}
+
+static void screen_help(FILE *out, int rescreen)
+{
+    if (rescreen)
+        fprintf(out, "usage: mpirun -n P bandsieve rescreen SET.h5 -c CAT.sqlite --where \"SQL condition\" [options]\n\n"
+                     "Reruns the materials whose row in the catalogue's summary view matches the condition,\n"
+                     "as a new run at a higher resolution; summary then shows the more resolved result.\n\n"
+                     "  --where COND        condition on the summary view, e.g. \"confidence < 0.7\"\n"
+                     "  --mesh N            k-mesh of the rerun (default 24 in 3D, 60 in 2D)\n");
+    else
+        fprintf(out, "usage: mpirun -n P bandsieve screen SET.h5 -c CAT.sqlite [options]\n\n"
+                     "Diagnoses every material of the set into the catalogue. Rank 0 coordinates and writes\n"
+                     "the catalogue; ranks 1.. compute (P = 1 does everything in one process). Running it\n"
+                     "again on the same catalogue resumes: finished materials are skipped.\n\n"
+                     "  --mesh N            k-mesh per direction (default 36 in 2D, 14 in 3D)\n"
+                     "  --rerun             start a new run instead of resuming the last one\n");
+    fprintf(out, "  -c, --catalogue F   the SQLite catalogue (created if missing)\n"
+                 "  --max-seconds S     wall-clock budget of the job: stop handing out work and\n"
+                 "                      leave the rest for a resumed run (status interrupted)\n"
+                 "  --material-seconds S  budget per material; over it the row is `timeout`\n"
+                 "  --batch N           commit the catalogue every N results (default 64) or 2 s\n"
+                 "  --progress-every S  seconds between progress lines when stderr is not a terminal (30)\n"
+                 "  -h, --help          this text\n\n"
+                 "Exit status: 0 every material ok, 1 some were invalid/failed/timeout or the run was\n"
+                 "interrupted, 2 usage, 3 the job itself failed (set, catalogue, MPI).\n");
+}
+
+static int screen_main(int argc, char **argv, int rescreen)
+{
+    static const struct option longopts[] = {
+        {"catalogue", required_argument, NULL, 'c'}, {"mesh", required_argument, NULL, 'm'},
+        {"max-seconds", required_argument, NULL, 't'}, {"material-seconds", required_argument, NULL, 'T'},
+        {"rerun", no_argument, NULL, 'r'}, {"where", required_argument, NULL, 'w'},
+        {"batch", required_argument, NULL, 'b'}, {"progress-every", required_argument, NULL, 'p'},
+        {"help", no_argument, NULL, 'h'}, {NULL, 0, NULL, 0}};
+    const char *name = rescreen ? "bandsieve rescreen" : "bandsieve screen";
+    pl_opts o;
+    memset(&o, 0, sizeof o);
+    o.kind = rescreen ? "rescreen" : "screen";
+    o.version = BS_VERSION;
+    progress_state ps = {isatty(2), -1e9, 30.0, name};
+    int c;
+    optind = 1;
+    while ((c = getopt_long(argc, argv, "c:h", longopts, NULL)) != -1) {
+        long v;
+        double d;
+        switch (c) {
+        case 'h': screen_help(stdout, rescreen); return 0;
+        case 'c': o.catalogue_path = optarg; break;
+        case 'r': o.rerun = 1; break;
+        case 'w': o.where_sql = optarg; break;
+        case 'm':
+            if (cli_parse_int(optarg, 4, 4096, &v)) { fprintf(stderr, "%s: --mesh expects an integer 4..4096, got '%s'\n", name, optarg); return 2; }
+            o.mesh = (int)v;
+            break;
+        case 'b':
+            if (cli_parse_int(optarg, 1, 1000000, &v)) { fprintf(stderr, "%s: --batch expects a positive integer, got '%s'\n", name, optarg); return 2; }
+            o.batch_rows = (int)v;
+            break;
+        case 't': case 'T': case 'p':
+            if (cli_parse_double(optarg, &d) || d <= 0) { fprintf(stderr, "%s: option expects a positive number, got '%s'\n", name, optarg); return 2; }
+            if (c == 't') o.max_seconds = d;
+            else if (c == 'T') o.material_seconds = d;
+            else ps.plain_every = d;
+            break;
+        default: screen_help(stderr, rescreen); return 2;
+        }
+    }
+    if (optind != argc - 1 || !o.catalogue_path) {
+        fprintf(stderr, "%s: need one SET.h5 and -c CAT.sqlite\n", name);
+        screen_help(stderr, rescreen);
+        return 2;
+    }
+    if (rescreen && (!o.where_sql || !o.where_sql[0])) {
+        fprintf(stderr, "%s: --where is required\n", name);
+        return 2;
+    }
+    if (rescreen && o.mesh == 0) o.mesh = 24;
+    o.set_path = argv[optind];
+    char cmdline[2048] = "bandsieve";
+    for (int i = 0; i < argc; i++) {
+        size_t used = strlen(cmdline);
+        snprintf(cmdline + used, sizeof cmdline - used, " %s", argv[i]);
+    }
+    o.cmdline = cmdline;
+    o.stop_flag = &stop_requested;
+    o.progress = show_progress;
+    o.announce = announce;
+    o.progress_ctx = &ps;
+    signal(SIGTERM, on_signal);
+    signal(SIGINT, on_signal);
+
+    pl_counts counts;
+    int is_root = 1;
+    bs_err err;
+    bs_err_clear(&err);
+    int rc = pl_run(&argc, &argv, &o, &counts, &is_root, &err);
+    if (rc != 0) {
+        fprintf(stderr, "%s: %s\n", name, err.msg);
+        return 3;
+    }
+    if (!is_root) return 0;
+    fprintf(stderr, "%s: run %lld %s: %d done (%d ok, %d invalid, %d failed, %d timeout), %d skipped as "
+                    "already done, %.1f s\n", name, counts.run_id, counts.interrupted ? "interrupted" : "finished",
+            counts.done, counts.ok, counts.invalid, counts.failed, counts.timeout, counts.skipped, counts.elapsed);
+    return counts.interrupted || counts.ok != counts.done ? 1 : 0;
+}
+
+int cmd_screen(int argc, char **argv) { return screen_main(argc, argv, 0); }
+int cmd_rescreen(int argc, char **argv) { return screen_main(argc, argv, 1); }

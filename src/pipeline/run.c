@@ -1,0 +1,419 @@
+/* The screening job under MPI: rank 0 coordinates and alone writes the catalogue; the other ranks
+ * ask for work, compute one material at a time and send back the outcome. The coordinator polls
+ * with MPI_Iprobe and sleeps between polls, because Open MPI's blocking receives spin: with
+ * P = cores + 1 the coordinator must leave its core to a worker. */
+#include "bandsieve/pipeline.h"
+
+#include <mpi.h>
+#include <stdio.h>
+#include <stdlib.h>
+#include <string.h>
+#include <time.h>
+#include <unistd.h>
+
+#include <cjson/cJSON.h>
+
+#include "bandsieve/catalogue.h"
+#include "bandsieve/matset.h"
+#include "work.h"
+
+void openblas_set_num_threads(int num_threads);
+
+enum { TAG_RESULT = 11, TAG_WORK = 12, TAG_STOP = 13 };
+
+/* Worker -> coordinator: this header, then the diagnosis JSON (NUL-terminated) when code == 0.
+ * kind 0 is the first request of a worker (no result yet). Same binary on every rank, so the
+ * struct layout agrees. */
+typedef struct wire_head {
+    int kind;
+    int code;
+    int rank;
+    int job_limited;
+    double seconds;
+    char id[128];
+    char message[512];
+} wire_head;
+
+/* Coordinator -> worker. */
+typedef struct wire_work {
+    int index;
+    int job_limited;     /* the budget below is what remains of the job, not the material budget */
+    double max_seconds;
+} wire_work;
+
+typedef struct coord {
+    const pl_opts *o;
+    MPI_Comm comm;
+    cat_db *cat;
+    ms_set *set;
+    pl_item *items;
+    int nitems, next;
+    int64_t run_id;
+    double t0;
+    double last_tick;
+    pl_counts counts;
+} coord;
+
+static double now(void)
+{
+    struct timespec t;
+    clock_gettime(CLOCK_MONOTONIC, &t);
+    return t.tv_sec + 1e-9 * t.tv_nsec;
+}
+
+static int mpi_check(int code, const char *what, bs_err *err)
+{
+    if (code == MPI_SUCCESS) return 0;
+    char text[MPI_MAX_ERROR_STRING];
+    int len = 0;
+    MPI_Error_string(code, text, &len);
+    return bs_fail(err, BS_EMPI, "%s: %s", what, text);
+}
+
+/* Host names of every rank, gathered to rank 0 and joined with commas (duplicates removed). */
+static int gather_hosts(MPI_Comm comm, int rank, int size, char *out, size_t outlen, bs_err *err)
+{
+    char name[MPI_MAX_PROCESSOR_NAME] = {0};
+    int len = 0;
+    MPI_Get_processor_name(name, &len);
+    char *all = rank == 0 ? calloc((size_t)size, MPI_MAX_PROCESSOR_NAME) : NULL;
+    if (rank == 0 && !all) return bs_fail(err, BS_ENOMEM, "out of memory for host names");
+    int rc = mpi_check(MPI_Gather(name, MPI_MAX_PROCESSOR_NAME, MPI_CHAR, all, MPI_MAX_PROCESSOR_NAME,
+                                  MPI_CHAR, 0, comm), "MPI_Gather of host names", err);
+    if (rank == 0 && rc == 0) {
+        out[0] = '\0';
+        for (int r = 0; r < size; r++) {
+            const char *h = all + (size_t)r * MPI_MAX_PROCESSOR_NAME;
+            int seen = 0;
+            for (int q = 0; q < r; q++) seen |= !strcmp(h, all + (size_t)q * MPI_MAX_PROCESSOR_NAME);
+            if (seen) continue;
+            size_t used = strlen(out);
+            snprintf(out + used, outlen - used, "%s%s", used ? "," : "", h);
+        }
+    }
+    free(all);
+    return rc;
+}
+
+static int settings_json(const pl_opts *o, char *buf, size_t len)
+{
+    cJSON *s = cJSON_CreateObject();
+    cJSON_AddNumberToObject(s, "mesh", o->mesh);
+    cJSON_AddNumberToObject(s, "material_seconds", o->material_seconds);
+    if (o->where_sql) cJSON_AddStringToObject(s, "where", o->where_sql);
+    char *text = cJSON_PrintUnformatted(s);
+    cJSON_Delete(s);
+    if (!text) return -1;
+    snprintf(buf, len, "%s", text);
+    free(text);
+    return 0;
+}
+
+/* Opens set and catalogue, starts or resumes the run, builds the ordered work list. */
+static int coord_setup(coord *c, int ranks, const char *hosts, bs_err *err)
+{
+    const pl_opts *o = c->o;
+    int rc = ms_open(o->set_path, &c->set, err);
+    if (rc == 0) rc = cat_open(o->catalogue_path, CAT_RW, &c->cat, err);
+    if (rc == 0 && (o->batch_rows > 0 || o->batch_seconds > 0))
+        rc = cat_set_batch(c->cat, o->batch_rows > 0 ? o->batch_rows : CAT_BATCH_ROWS,
+                           o->batch_seconds > 0 ? o->batch_seconds : CAT_BATCH_SECONDS, err);
+    if (rc != 0) return rc;
+    char settings[1024];
+    if (settings_json(o, settings, sizeof settings)) return bs_fail(err, BS_ENOMEM, "out of memory");
+    cat_run_info info = {o->kind, settings, o->version, ranks, hosts, o->cmdline, o->set_path};
+    cat_ids sel, done;
+    cat_ids_init(&sel);
+    cat_ids_init(&done);
+    int resumed = 0;
+    if (o->where_sql) rc = cat_select_ids(c->cat, o->where_sql, &sel, err);
+    if (rc == 0) {
+        if (o->rerun) rc = cat_run_begin(c->cat, &info, &c->run_id, err);
+        else rc = cat_run_resume(c->cat, &info, &c->run_id, &resumed, err);
+    }
+    if (rc == 0 && resumed) rc = cat_done_ids(c->cat, c->run_id, &done, err);
+    int nmissing = 0;
+    if (rc == 0)
+        rc = pl_work_list(c->set, o->where_sql ? &sel : NULL, &done, o->mesh, &c->items, &c->nitems,
+                          &nmissing, err);
+    c->counts.run_id = c->run_id;
+    c->counts.resumed = resumed;
+    c->counts.skipped = (int)done.n;
+    c->counts.total = c->nitems;
+    for (int i = 0; rc == 0 && i < c->nitems; i++) {
+        const ms_entry *e = ms_entry_at(c->set, c->items[i].index);
+        cat_material mat = {e->id, NULL, e->dim, e->norb, e->nR, e->nocc, e->spinful, o->set_path, NULL, NULL};
+        rc = cat_material_upsert(c->cat, &mat, err);
+    }
+    if (rc == 0) rc = cat_flush(c->cat, err);
+    cat_ids_clear(&sel);
+    cat_ids_clear(&done);
+    return rc;
+}
+
+/* Records one outcome; a timeout caused by the job's own budget is not recorded, so that a
+ * resumed run does that material again. */
+static int coord_record(coord *c, const pl_outcome *out, int job_limited, bs_err *err)
+{
+    if (out->code == BS_ETIMEOUT && job_limited) {
+        c->counts.interrupted = 1;
+        return 0;
+    }
+    cat_status st = cat_status_from_code(out->code);
+    int rc = cat_result_put_text(c->cat, c->run_id, out->id, st, out->code ? out->message : NULL,
+                                 out->json, out->json ? strlen(out->json) : 0, out->rank, out->seconds, err);
+    if (rc != 0) {
+        /* A result the catalogue refuses (malformed JSON from a bug) must not stop the job:
+         * it becomes a failed row naming the problem. */
+        char msg[700];
+        snprintf(msg, sizeof msg, "catalogue refused the result: %s", err->msg);
+        bs_err_clear(err);
+        rc = cat_result_put_text(c->cat, c->run_id, out->id, CAT_RES_FAILED, msg, NULL, 0, out->rank,
+                                 out->seconds, err);
+        st = CAT_RES_FAILED;
+        if (rc != 0) return rc;
+    }
+    c->counts.done++;
+    if (st == CAT_RES_OK) c->counts.ok++;
+    else if (st == CAT_RES_INVALID) c->counts.invalid++;
+    else if (st == CAT_RES_TIMEOUT) c->counts.timeout++;
+    else c->counts.failed++;
+    if (st == CAT_RES_OK && out->json) {
+        cJSON *j = cJSON_Parse(out->json);
+        int k = pl_class_index(cJSON_GetStringValue(cJSON_GetObjectItem(j, "class")));
+        if (k >= 0) c->counts.by_class[k]++;
+        cJSON_Delete(j);
+    }
+    return 0;
+}
+
+/* The next material and its budget, or 0 when the job should hand out nothing more. */
+static int coord_next(coord *c, wire_work *w)
+{
+    const pl_opts *o = c->o;
+    if (c->next >= c->nitems) return 0;
+    if (o->stop_flag && *o->stop_flag) { c->counts.interrupted = 1; return 0; }
+    double left = o->max_seconds > 0 ? o->max_seconds - (now() - c->t0) : 0;
+    if (o->max_seconds > 0 && left <= 0.5) { c->counts.interrupted = 1; return 0; }
+    w->index = c->items[c->next++].index;
+    w->max_seconds = o->material_seconds;
+    w->job_limited = 0;
+    if (o->max_seconds > 0 && (w->max_seconds <= 0 || left < w->max_seconds)) {
+        w->max_seconds = left;
+        w->job_limited = 1;
+    }
+    return 1;
+}
+
+static void coord_tick(coord *c, int final)
+{
+    c->counts.elapsed = now() - c->t0;
+    if (c->o->progress) c->o->progress(c->o->progress_ctx, &c->counts, final);
+    c->last_tick = now();
+}
+
+/* One process does everything (P = 1). */
+static int run_serial(coord *c, bs_err *err)
+{
+    wire_work w;
+    int rc = 0;
+    while (rc == 0 && coord_next(c, &w)) {
+        pl_outcome out;
+        pl_compute(c->set, w.index, c->o->mesh, w.max_seconds, 0, &out);
+        rc = coord_record(c, &out, w.job_limited, err);
+        pl_outcome_clear(&out);
+        if (rc == 0) rc = cat_flush_if_due(c->cat, err);
+        coord_tick(c, 0);
+    }
+    return rc;
+}
+
+static int recv_outcome(MPI_Comm comm, MPI_Status *st, pl_outcome *out, int *job_limited, int *kind, bs_err *err)
+{
+    int nbytes = 0;
+    int rc = mpi_check(MPI_Get_count(st, MPI_BYTE, &nbytes), "MPI_Get_count", err);
+    if (rc != 0) return rc;
+    char *buf = malloc((size_t)nbytes + 1);
+    if (!buf) return bs_fail(err, BS_ENOMEM, "out of memory for a result of %d bytes", nbytes);
+    rc = mpi_check(MPI_Recv(buf, nbytes, MPI_BYTE, st->MPI_SOURCE, TAG_RESULT, comm, MPI_STATUS_IGNORE),
+                   "MPI_Recv of a result", err);
+    memset(out, 0, sizeof *out);
+    if (rc == 0 && (size_t)nbytes < sizeof(wire_head)) rc = bs_fail(err, BS_EMPI, "short result message (%d bytes)", nbytes);
+    if (rc == 0) {
+        wire_head h;
+        memcpy(&h, buf, sizeof h);
+        *kind = h.kind;
+        *job_limited = h.job_limited;
+        out->code = h.code;
+        out->rank = h.rank;
+        out->seconds = h.seconds;
+        memcpy(out->id, h.id, sizeof out->id);
+        out->id[sizeof out->id - 1] = '\0';
+        memcpy(out->message, h.message, sizeof out->message);
+        out->message[sizeof out->message - 1] = '\0';
+        size_t jlen = (size_t)nbytes - sizeof h;
+        if (h.code == 0 && jlen > 0) {
+            out->json = malloc(jlen + 1);
+            if (!out->json) rc = bs_fail(err, BS_ENOMEM, "out of memory");
+            else { memcpy(out->json, buf + sizeof h, jlen); out->json[jlen] = '\0'; }
+        }
+    }
+    free(buf);
+    return rc;
+}
+
+/* Coordinator loop with worker ranks 1..size-1. */
+static int run_coordinator(coord *c, int size, bs_err *err)
+{
+    int active = size - 1, rc = 0;
+    const struct timespec nap = {0, 2 * 1000 * 1000};
+    while (active > 0) {
+        int flag = 0;
+        MPI_Status st;
+        int mrc = mpi_check(MPI_Iprobe(MPI_ANY_SOURCE, TAG_RESULT, c->comm, &flag, &st), "MPI_Iprobe", err);
+        if (mrc != 0) return mrc;
+        if (!flag) {
+            nanosleep(&nap, NULL);
+            if (rc == 0) rc = cat_flush_if_due(c->cat, err);
+            if (now() - c->last_tick > 1.0) coord_tick(c, 0);
+            continue;
+        }
+        pl_outcome out;
+        int job_limited = 0, kind = 0;
+        mrc = recv_outcome(c->comm, &st, &out, &job_limited, &kind, err);
+        if (mrc != 0) return mrc;
+        if (kind == 1 && rc == 0) rc = coord_record(c, &out, job_limited, err);
+        pl_outcome_clear(&out);
+        wire_work w;
+        /* After a catalogue error nothing more is handed out: results could not be kept. */
+        if (rc == 0 && coord_next(c, &w)) {
+            mrc = mpi_check(MPI_Send(&w, (int)sizeof w, MPI_BYTE, st.MPI_SOURCE, TAG_WORK, c->comm), "MPI_Send of work", err);
+        } else {
+            mrc = mpi_check(MPI_Send(NULL, 0, MPI_BYTE, st.MPI_SOURCE, TAG_STOP, c->comm), "MPI_Send of stop", err);
+            active--;
+        }
+        if (mrc != 0) return mrc;
+        if (kind == 1) coord_tick(c, 0);
+    }
+    return rc;
+}
+
+static int send_outcome(MPI_Comm comm, int kind, const pl_outcome *out, int job_limited, bs_err *err)
+{
+    wire_head h;
+    memset(&h, 0, sizeof h);
+    h.kind = kind;
+    h.code = out ? out->code : 0;
+    h.rank = out ? out->rank : 0;
+    h.job_limited = job_limited;
+    h.seconds = out ? out->seconds : 0;
+    if (out) {
+        memcpy(h.id, out->id, sizeof h.id);
+        memcpy(h.message, out->message, sizeof h.message);
+    }
+    size_t jlen = out && out->json ? strlen(out->json) : 0;
+    if (sizeof h + jlen > (size_t)2147483647) return bs_fail(err, BS_EMPI, "result of %zu bytes too large for one message", jlen);
+    char *buf = malloc(sizeof h + jlen);
+    if (!buf) return bs_fail(err, BS_ENOMEM, "out of memory");
+    memcpy(buf, &h, sizeof h);
+    if (jlen) memcpy(buf + sizeof h, out->json, jlen);
+    int rc = mpi_check(MPI_Send(buf, (int)(sizeof h + jlen), MPI_BYTE, 0, TAG_RESULT, comm), "MPI_Send of a result", err);
+    free(buf);
+    return rc;
+}
+
+/* Worker loop: request, compute, send, until told to stop. Workers open the set read-only. */
+static int run_worker(const pl_opts *o, MPI_Comm comm, int rank, bs_err *err)
+{
+    ms_set *set = NULL;
+    int rc = ms_open(o->set_path, &set, err);
+    /* Even without a readable set the worker takes part in the protocol: it reports each material
+     * it is given as failed, so the coordinator never waits for it. */
+    bs_err open_err = *err;
+    bs_err_clear(err);
+    rc = send_outcome(comm, 0, NULL, 0, err);
+    while (rc == 0) {
+        MPI_Status st;
+        rc = mpi_check(MPI_Probe(0, MPI_ANY_TAG, comm, &st), "MPI_Probe", err);
+        if (rc != 0) break;
+        if (st.MPI_TAG == TAG_STOP) {
+            rc = mpi_check(MPI_Recv(NULL, 0, MPI_BYTE, 0, TAG_STOP, comm, MPI_STATUS_IGNORE), "MPI_Recv of stop", err);
+            break;
+        }
+        wire_work w;
+        rc = mpi_check(MPI_Recv(&w, (int)sizeof w, MPI_BYTE, 0, TAG_WORK, comm, MPI_STATUS_IGNORE), "MPI_Recv of work", err);
+        if (rc != 0) break;
+        pl_outcome out;
+        if (set) {
+            pl_compute(set, w.index, o->mesh, w.max_seconds, rank, &out);
+        } else {
+            memset(&out, 0, sizeof out);
+            out.code = BS_EIO;
+            out.rank = rank;
+            snprintf(out.id, sizeof out.id, "#%d", w.index);
+            snprintf(out.message, sizeof out.message, "worker %d cannot read the set: %.400s", rank, open_err.msg);
+        }
+        rc = send_outcome(comm, 1, &out, w.job_limited, err);
+        pl_outcome_clear(&out);
+    }
+    ms_free(set);
+    return rc;
+}
+
+static void coord_clear(coord *c, bs_err *err)
+{
+    bs_err close_err;
+    bs_err_clear(&close_err);
+    if (cat_close(c->cat, &close_err) != 0 && err->code == 0) *err = close_err;
+    ms_free(c->set);
+    free(c->items);
+}
+
+int pl_run(int *argc, char ***argv, const pl_opts *o, pl_counts *counts, int *is_root, bs_err *err)
+{
+    memset(counts, 0, sizeof *counts);
+    *is_root = 1;
+    int rc = mpi_check(MPI_Init(argc, argv), "MPI_Init", err);
+    if (rc != 0) return rc;
+    MPI_Comm comm = MPI_COMM_WORLD;
+    /* Errors come back as codes (translated by mpi_check), not as an abort. */
+    MPI_Comm_set_errhandler(comm, MPI_ERRORS_RETURN);
+    if (!getenv("OPENBLAS_NUM_THREADS")) openblas_set_num_threads(1);
+    int rank = 0, size = 1;
+    MPI_Comm_rank(comm, &rank);
+    MPI_Comm_size(comm, &size);
+    *is_root = rank == 0;
+    char hosts[2048] = "";
+    rc = gather_hosts(comm, rank, size, hosts, sizeof hosts, err);
+    if (rank != 0) {
+        int setup_ok = 0;
+        if (rc == 0) rc = mpi_check(MPI_Bcast(&setup_ok, 1, MPI_INT, 0, comm), "MPI_Bcast", err);
+        if (rc == 0 && setup_ok) rc = run_worker(o, comm, rank, err);
+        MPI_Finalize();
+        return rc;
+    }
+    coord c;
+    memset(&c, 0, sizeof c);
+    c.o = o;
+    c.comm = comm;
+    c.t0 = now();
+    if (rc == 0) rc = coord_setup(&c, size, hosts, err);
+    int setup_ok = rc == 0;
+    if (size > 1) {
+        int brc = mpi_check(MPI_Bcast(&setup_ok, 1, MPI_INT, 0, comm), "MPI_Bcast", err);
+        if (rc == 0) rc = brc;
+    }
+    if (rc == 0 && o->announce) o->announce(o->progress_ctx, &c.counts, o->kind);
+    if (rc == 0) rc = size > 1 ? run_coordinator(&c, size, err) : run_serial(&c, err);
+    if (setup_ok) {
+        bs_err end_err;
+        bs_err_clear(&end_err);
+        cat_run_status rs = rc != 0 ? CAT_RUN_FAILED : c.counts.interrupted ? CAT_RUN_INTERRUPTED : CAT_RUN_DONE;
+        if (cat_run_end(c.cat, c.run_id, rs, &end_err) != 0 && rc == 0) { *err = end_err; rc = end_err.code; }
+    }
+    coord_tick(&c, 1);
+    *counts = c.counts;
+    coord_clear(&c, err);
+    MPI_Finalize();
+    return rc;
+}

@@ -1,0 +1,41 @@
+/* The pipeline's MPI-free parts: the ordered work list and the computation of one material.
+ * Private to src/pipeline. */
+#ifndef BANDSIEVE_PIPELINE_WORK_H
+#define BANDSIEVE_PIPELINE_WORK_H
+
+#include "bandsieve/catalogue.h"
+#include "bandsieve/err.h"
+#include "bandsieve/matset.h"
+
+typedef struct pl_item {
+    int index;          /* entry index in the set */
+    double cost;        /* estimated cost: per-k cost x k-points */
+} pl_item;
+
+/* Entries of the set to do: all of them (ids NULL) or those listed in ids (rescreen), minus those
+ * in done (may be NULL), largest estimated cost first (ties by id, so the order is reproducible).
+ * *items is owned by the caller (free). *nmissing counts ids not found in the set. */
+int pl_work_list(const ms_set *set, const cat_ids *ids, const cat_ids *done, int mesh,
+                 pl_item **items, int *nitems, int *nmissing, bs_err *err);
+
+/* The outcome of one material, as sent from a worker to the coordinator. */
+typedef struct pl_outcome {
+    char id[128];
+    int code;           /* BS_OK or the error code */
+    double seconds;
+    int rank;
+    char message[512];
+    char *json;         /* diagnosis JSON text (owned), NULL unless code == BS_OK */
+} pl_outcome;
+
+/* Reads entry `index` of set and diagnoses it with mesh and a time budget (0: none), filling out.
+ * Never fails as a whole: every failure becomes out->code and out->message. */
+void pl_compute(const ms_set *set, int index, int mesh, double max_seconds, int rank, pl_outcome *out);
+
+/* Frees out->json. */
+void pl_outcome_clear(pl_outcome *out);
+
+/* Index in pl_class_name order of a class name, or -1. */
+int pl_class_index(const char *cls);
+
+#endif
