@@ -1,0 +1,23 @@
+/* The invented demonstration family: a material set of fictitious compounds, each a built-in
+ * published lattice model with varied parameters (spin-orbit strength, strain-like distortion,
+ * sublattice and inversion-breaking potentials), plus a few deliberately broken entries, so that a
+ * screen meets every class and every status. Nothing in it describes a real material. */
+#ifndef BANDSIEVE_DEMO_H
+#define BANDSIEVE_DEMO_H
+
+#include <stdint.h>
+
+#include "bandsieve/err.h"
+
+/* Writes the demo set of count entries (>= 12; at least 3 broken ones among them) to path,
+ * drawing parameters from a generator seeded with seed (same seed, same set). The set's metadata
+ * say it is invented. Errors from the set writer and the model builder. */
+int demo_write_set(const char *path, int count, uint64_t seed, bs_err *err);
+
+/* The spec (lm_build syntax) and invented formula of demo entry i, for tests and listings:
+ * spec and formula receive at most speclen / formlen bytes; *broken is the kind of damage for a
+ * broken entry (0 none, 1 non-Hermitian, 2 occupied_bands out of range, 3 NaN, 4 unreadable card). */
+void demo_entry(int i, int count, uint64_t seed, char *spec, int speclen, char *formula, int formlen,
+                int *broken);
+
+#endif

@@ -1,0 +1,13 @@
+#!/usr/bin/env bash
+# The whole test suite from a fresh clone: installs what is missing, builds, runs every test through
+# CTest (unit tests, numpy/scipy cross-checks, MPI runs), then rebuilds the unit tests with
+# AddressSanitizer + UndefinedBehaviorSanitizer and runs them again.
+set -euo pipefail
+here="$(cd "$(dirname "$0")/.." && pwd)"
+export OMPI_ALLOW_RUN_AS_ROOT=1 OMPI_ALLOW_RUN_AS_ROOT_CONFIRM=1
+bash "$here/workflows/build.sh"
+ctest --test-dir "$here/build" --output-on-failure -j2 --timeout 900
+BS_BUILD_DIR="$here/build-sanitize" bash "$here/workflows/build.sh" -DBS_SANITIZE=ON
+# Leak checking stays on for our code; UBSan findings are fatal.
+export UBSAN_OPTIONS=halt_on_error=1:print_stacktrace=1
+ctest --test-dir "$here/build-sanitize" --output-on-failure -j2 -L unit --timeout 900
