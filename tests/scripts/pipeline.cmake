@@ -1,0 +1,8 @@
+# End-to-end tests of the screening run under mpirun (tests/scripts/pipeline_test.py).
+foreach(case ranks resume broken query_rescreen)
+  add_test(NAME pipeline_${case}
+           COMMAND ${BS_PYTHON} ${CMAKE_CURRENT_LIST_DIR}/pipeline_test.py $<TARGET_FILE:bandsieve>
+                   ${case} ${CMAKE_BINARY_DIR}/pipeline-work)
+  set_tests_properties(pipeline_${case} PROPERTIES LABELS "pipeline;mpi" TIMEOUT 600
+    ENVIRONMENT "OMPI_ALLOW_RUN_AS_ROOT=1;OMPI_ALLOW_RUN_AS_ROOT_CONFIRM=1")
+endforeach()
