@@ -230,6 +230,14 @@ static void classify_gapless(diag_result *r, int degenerate)
                   "(reduced units)", r->nodal_points, r->nodal_extent);
         return;
     }
+    int nweyl = 0;
+    for (int i = 0; i < r->nnodes; i++) nweyl += r->nodes[i].chirality != 0;
+    if (r->dim == 3 && r->nnodes > 0 && nweyl == 0 && r->chirality_status == DIAG_DONE) {
+        set_class(r, "metal", 0.7, "the gap closes at %d points of zero chirality (Dirac points%s): a semimetal "
+                  "at a transition", r->nnodes, r->inversion && r->time_reversal ? "; inversion with time "
+                  "reversal keeps every band doubly degenerate, so no Weyl node can form" : "");
+        return;
+    }
     if (r->dim == 3 && r->nnodes > 0) {
         double conf = 0.9;
         char extra[160] = "";
@@ -241,7 +249,7 @@ static void classify_gapless(diag_result *r, int degenerate)
             size_t used = strlen(extra);
             snprintf(extra + used, sizeof extra - used, "; other bands overlap the nodes' energy (Fermi pockets)");
         }
-        set_class(r, "Weyl semimetal", conf, "%d Weyl nodes, net chirality %d%s", r->nnodes, r->net_chirality, extra);
+        set_class(r, "Weyl semimetal", conf, "%d Weyl nodes, net chirality %d%s", nweyl, r->net_chirality, extra);
         return;
     }
     if (r->dim == 2 && r->nnodes > 0) {
@@ -447,9 +455,16 @@ cJSON *diag_to_json(const diag_result *r, int with_flows)
     }
     cJSON_AddStringToObject(o, "chern_status", status_name(r->chern_status));
     cJSON *nodes = cJSON_AddArrayToObject(o, "weyl_nodes");
-    for (int i = 0; r->dim == 3 && i < r->nnodes; i++) {
-        /* Touchings on a nodal line carry no chirality; they are not Weyl nodes. */
-        if (r->nodal_line && r->nodes[i].chirality == 0) continue;
+    cJSON *closings = cJSON_CreateArray();
+    for (int i = 0; i < r->nnodes; i++) {
+        /* A touching of zero chirality (a Dirac point, a point of a nodal line, any 2D closing) is
+         * not a Weyl node; it is listed under gap_closings. A 3D node whose flux was not an integer
+         * stays a Weyl-node candidate with chirality 0, and the confidence says so. */
+        int weyl = r->dim == 3 && (r->nodes[i].chirality != 0 || r->chirality_status != DIAG_DONE);
+        if (!weyl) {
+            cJSON_AddItemToArray(closings, cJSON_CreateDoubleArray(r->nodes[i].k, 3));
+            continue;
+        }
         cJSON *n = cJSON_CreateObject();
         cJSON_AddItemToObject(n, "k", cJSON_CreateDoubleArray(r->nodes[i].k, 3));
         cJSON_AddNumberToObject(n, "chirality", r->nodes[i].chirality);
@@ -457,10 +472,7 @@ cJSON *diag_to_json(const diag_result *r, int with_flows)
         cJSON_AddNumberToObject(n, "gap_eV", r->nodes[i].gap_ev);
         cJSON_AddItemToArray(nodes, n);
     }
-    if (r->dim == 2 && r->nnodes > 0) {
-        cJSON *dp = cJSON_AddArrayToObject(o, "gap_closings_2d");
-        for (int i = 0; i < r->nnodes; i++) cJSON_AddItemToArray(dp, cJSON_CreateDoubleArray(r->nodes[i].k, 3));
-    }
+    cJSON_AddItemToObject(o, "gap_closings", closings);
     cJSON_AddNumberToObject(o, "net_chirality", r->net_chirality);
     cJSON_AddBoolToObject(o, "nodal_line", r->nodal_line);
     cJSON_AddNumberToObject(o, "nodal_points", r->nodal_points);

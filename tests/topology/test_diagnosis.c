@@ -1,0 +1,290 @@
+/* End-to-end tests of the diagnosis (diag_run) on the built-in published models: each check names
+ * the published phase boundary or result it reproduces. Class names and indices are exact; gaps are
+ * compared with tolerances stated beside them. */
+#include <setjmp.h>
+#include <stdarg.h>
+#include <stddef.h>
+#include <stdint.h>
+#include <cmocka.h>
+
+#include <math.h>
+#include <stdio.h>
+#include <stdlib.h>
+#include <string.h>
+
+#include "bandsieve/diagnosis.h"
+#include "bandsieve/lattice_models.h"
+#include "bandsieve/transform.h"
+
+static void diagnose(const char *spec, diag_result *r)
+{
+    tb_model *m = NULL;
+    bs_err err;
+    bs_err_clear(&err);
+    int rc = lm_build(spec, &m, &err);
+    if (rc != 0) fail_msg("lm_build(%s): %s", spec, err.msg);
+    diag_opts o = {0};
+    o.seed = 1;
+    diag_result_init(r);
+    rc = diag_run(m, &o, r, &err);
+    if (rc != 0) fail_msg("diag_run(%s): %s", spec, err.msg);
+    tb_model_free(m);
+}
+
+static void expect_class(const char *spec, const char *cls, diag_result *r)
+{
+    diagnose(spec, r);
+    if (strcmp(r->cls, cls) != 0) fail_msg("%s: expected '%s', got '%s' (%s)", spec, cls, r->cls, r->reason);
+}
+
+/* Kane–Mele, lambda_R = 0: 2D TI for lambda_v < 3 sqrt3 lambda_SO, trivial above
+ * (Phys. Rev. Lett. 95, 226801 (2005)). lambda_SO = 0.06: boundary 0.3118; points 0.03 either side. */
+static void test_kane_mele_boundary(void **state)
+{
+    (void)state;
+    diag_result r;
+    expect_class("kane_mele:lambda_SO=0.06,lambda_R=0,lambda_v=0.28", "2D topological insulator", &r);
+    assert_int_equal(r.z2[0], 1);
+    diag_result_clear(&r);
+    expect_class("kane_mele:lambda_SO=0.06,lambda_R=0,lambda_v=0.34", "trivial insulator", &r);
+    assert_int_equal(r.z2[0], 0);
+    /* The gap at K is |lambda_v - 3 sqrt3 lambda_SO| * 2 with lambda_R = 0: 2 * 0.0282 = 0.0565 eV
+     * (same paper); 1e-6 eV is the refinement tolerance in energy. */
+    assert_true(fabs(r.gap_direct_ev - 2 * (0.34 - 3 * sqrt(3) * 0.06)) < 1e-6);
+    diag_result_clear(&r);
+    /* Inversion-free points use the Wannier-centre flow alone; with lambda_v = 0 both methods run. */
+    expect_class("kane_mele:lambda_SO=0.06,lambda_R=0,lambda_v=0", "2D topological insulator", &r);
+    assert_int_equal(r.z2_parity_status, DIAG_DONE);
+    assert_int_equal(r.z2_wcc_status, DIAG_DONE);
+    diag_result_clear(&r);
+    /* Rashba nonzero inside the TI phase: still Z2 = 1 (same paper). */
+    expect_class("kane_mele:lambda_SO=0.06,lambda_R=0.05,lambda_v=0.1", "2D topological insulator", &r);
+    diag_result_clear(&r);
+}
+
+/* BHZ lattice model (Science 314, 1757 (2006)): inverted (0 < M/B < 4) is a 2D TI, normal
+ * (M/B < 0) trivial; a small S_z-breaking coupling keeps Z2 = 1. */
+static void test_bhz(void **state)
+{
+    (void)state;
+    diag_result r;
+    expect_class("bhz:M=1", "2D topological insulator", &r);
+    assert_int_equal(r.z2_parity[0], r.z2_wcc[0]);
+    diag_result_clear(&r);
+    expect_class("bhz:M=-1", "trivial insulator", &r);
+    diag_result_clear(&r);
+    expect_class("bhz:M=1,delta=0.05", "2D topological insulator", &r);
+    assert_int_equal(r.inversion, 0);
+    diag_result_clear(&r);
+    expect_class("bhz:M=1,g=0.3", "2D topological insulator", &r);
+    diag_result_clear(&r);
+}
+
+/* Haldane (Phys. Rev. Lett. 61, 2015 (1988)): |C| = 1 for |M| < 3 sqrt3 |t2 sin phi| with the sign
+ * of C following the sign of phi, C = 0 beyond. t2 = 0.1: boundary 0.5196 at phi = pi/2. */
+static void test_haldane(void **state)
+{
+    (void)state;
+    diag_result a, b, c;
+    expect_class("haldane:M=0,phi=0.5", "Chern insulator", &a);
+    expect_class("haldane:M=0,phi=-0.5", "Chern insulator", &b);
+    assert_int_equal(abs(a.chern), 1);
+    assert_int_equal(a.chern, -b.chern);
+    expect_class("haldane:M=0.45,phi=0.5", "Chern insulator", &c);
+    assert_int_equal(c.chern, a.chern);
+    diag_result_clear(&c);
+    expect_class("haldane:M=0.6,phi=0.5", "trivial insulator", &c);
+    assert_int_equal(c.chern, 0);
+    diag_result_clear(&a);
+    diag_result_clear(&b);
+    diag_result_clear(&c);
+}
+
+/* Fu–Kane–Mele diamond (Phys. Rev. Lett. 98, 106803 (2007)): the two signs of the [111] bond
+ * distortion give 1;111 and 0;111, and parity and Wannier-centre methods agree. */
+static void test_fkm_strong_weak(void **state)
+{
+    (void)state;
+    diag_result r;
+    expect_class("fkm:dt=0.4", "strong topological insulator", &r);
+    int strong[4] = {1, 1, 1, 1}, weak[4] = {0, 1, 1, 1};
+    assert_memory_equal(r.z2, strong, sizeof strong);
+    assert_int_equal(r.z2_parity_status, DIAG_DONE);
+    assert_int_equal(r.z2_wcc_status, DIAG_DONE);
+    assert_memory_equal(r.z2_parity, r.z2_wcc, sizeof strong);
+    diag_result_clear(&r);
+    expect_class("fkm:dt=-0.4", "weak topological insulator", &r);
+    assert_memory_equal(r.z2, weak, sizeof weak);
+    assert_memory_equal(r.z2_parity, r.z2_wcc, sizeof weak);
+    diag_result_clear(&r);
+}
+
+/* The same model swept through the weak-strong transition by dt. With inversion (stag = 0) the gap
+ * closes at one point of the sweep only (dt = 0, where it closes at the X points: Phys. Rev. Lett.
+ * 98, 106803 (2007)); with the inversion-breaking stag = 0.4 a window of Weyl semimetal of finite
+ * width separates the insulators (New J. Phys. 9, 356 (2007); Phys. Rev. B 78, 165313 (2008)), the
+ * nodes come in pairs of opposite chirality and the net chirality is zero at every point
+ * (Nucl. Phys. B 185, 20 (1981)). */
+static void test_fkm_sweep_weyl_window(void **state)
+{
+    (void)state;
+    static const double dts[] = {-0.1, -0.05, 0.0, 0.05, 0.1};
+    int n = (int)(sizeof dts / sizeof dts[0]);
+    int closed_inv = 0, weyl_window = 0;
+    char spec[128];
+    for (int i = 0; i < n; i++) {
+        diag_result r;
+        snprintf(spec, sizeof spec, "fkm:dt=%g,stag=0", dts[i]);
+        diagnose(spec, &r);
+        if (r.gap_direct_ev < 1e-4) {
+            closed_inv++;
+            assert_true(dts[i] == 0.0);
+            assert_string_not_equal(r.cls, "Weyl semimetal");
+        }
+        diag_result_clear(&r);
+
+        snprintf(spec, sizeof spec, "fkm:dt=%g,stag=0.4", dts[i]);
+        diagnose(spec, &r);
+        if (!strcmp(r.cls, "Weyl semimetal")) {
+            weyl_window++;
+            int plus = 0, minus = 0;
+            for (int j = 0; j < r.nnodes; j++) {
+                plus += r.nodes[j].chirality > 0;
+                minus += r.nodes[j].chirality < 0;
+            }
+            assert_int_equal(plus, minus);
+            assert_true(plus >= 2); /* time reversal: sets of at least four nodes */
+        }
+        assert_int_equal(r.net_chirality, 0);
+        if (i == 0) assert_string_equal(r.cls, "weak topological insulator");
+        if (i == n - 1) assert_string_equal(r.cls, "strong topological insulator");
+        diag_result_clear(&r);
+    }
+    assert_int_equal(closed_inv, 1);
+    assert_true(weyl_window >= 2);
+}
+
+/* Minimal Weyl model: nodes at (+-w, 0, 0), chirality -1 at +w and +1 at -w (lattice_models.h,
+ * analytic; chirality = sign det(d d_i / d k_j), common practice). Positions to 1e-6. */
+static void test_weyl_positions(void **state)
+{
+    (void)state;
+    diag_result r;
+    expect_class("weyl:w=0.2", "Weyl semimetal", &r);
+    assert_int_equal(r.nnodes, 2);
+    for (int j = 0; j < 2; j++) {
+        double *k = r.nodes[j].k;
+        double k1 = k[0] > 0.5 ? k[0] - 1 : k[0];
+        double d = fabs(fabs(k1) - 0.2) + fabs(fmod(k[1] + 0.5, 1.0) - 0.5) + fabs(fmod(k[2] + 0.5, 1.0) - 0.5);
+        assert_true(d < 1e-6);
+        assert_int_equal(r.nodes[j].chirality, k1 > 0 ? -1 : +1);
+    }
+    assert_int_equal(r.net_chirality, 0);
+    diag_result_clear(&r);
+}
+
+/* Nodal line (loop cos kx + cos ky = m - 1 at k3 = 0, lattice_models.h), a metal and a wide-gap
+ * insulator (gap 2 delta = 4 eV, analytic, lattice_models.h). */
+static void test_line_metal_insulator(void **state)
+{
+    (void)state;
+    diag_result r;
+    expect_class("nodal_line", "nodal-line semimetal", &r);
+    assert_int_equal(r.nodal_line, 1);
+    diag_result_clear(&r);
+    expect_class("metal", "metal", &r);
+    assert_true(r.gap_indirect_ev < 0);
+    diag_result_clear(&r);
+    expect_class("metal:dim=2", "metal", &r);
+    diag_result_clear(&r);
+    expect_class("atomic", "trivial insulator", &r);
+    assert_true(fabs(r.gap_indirect_ev - 4.0) < 1e-6);
+    assert_true(r.confidence > 0.9);
+    diag_result_clear(&r);
+}
+
+/* splitmix64 for the random permutations and phases (seeded: deterministic). */
+static double uniform(uint64_t *s)
+{
+    uint64_t z = (*s += 0x9E3779B97F4A7C15ULL);
+    z = (z ^ (z >> 30)) * 0xBF58476D1CE4E5B9ULL;
+    z = (z ^ (z >> 27)) * 0x94D049BB133111EBULL;
+    return ((z ^ (z >> 31)) >> 11) * (1.0 / 9007199254740992.0);
+}
+
+/* Invariants do not change under a permutation of the orbitals, a change of their phases, or the
+ * spin layout (common practice: they are properties of the Hamiltonian, not of its basis). */
+static void test_basis_invariance(void **state)
+{
+    (void)state;
+    static const char *specs[] = {"kane_mele:lambda_R=0.05,lambda_v=0.1", "bhz:M=1,delta=0.05",
+                                  "haldane:M=0.2,phi=0.5", "fkm:dt=-0.4", "fkm:dt=0.3,stag=0.2", "weyl"};
+    uint64_t seed = 20261202;
+    for (size_t s = 0; s < sizeof specs / sizeof specs[0]; s++) {
+        tb_model *m = NULL, *p = NULL, *q = NULL, *t = NULL;
+        bs_err err;
+        bs_err_clear(&err);
+        assert_int_equal(lm_build(specs[s], &m, &err), 0);
+        int no = m->nspatial;
+        int perm[16];
+        double phi[16];
+        for (int i = 0; i < no; i++) perm[i] = i;
+        for (int i = no - 1; i > 0; i--) {
+            int j = (int)(uniform(&seed) * (i + 1));
+            int tmp = perm[i]; perm[i] = perm[j]; perm[j] = tmp;
+        }
+        if (no > 1 && perm[0] == 0) { int tmp = perm[0]; perm[0] = perm[1]; perm[1] = tmp; }
+        for (int i = 0; i < no; i++) phi[i] = 2 * M_PI * uniform(&seed);
+        assert_int_equal(tf_permute(m, perm, &p, &err), 0);
+        assert_int_equal(tf_phase(p, phi, &q, &err), 0);
+        if (m->spinful) assert_int_equal(tf_spin_layout(q, TB_SPIN_INTERLEAVED, &t, &err), 0);
+        diag_opts o = {0};
+        o.seed = 1;
+        diag_result a, b;
+        diag_result_init(&a);
+        diag_result_init(&b);
+        assert_int_equal(diag_run(m, &o, &a, &err), 0);
+        assert_int_equal(diag_run(t ? t : q, &o, &b, &err), 0);
+        if (strcmp(a.cls, b.cls) != 0) fail_msg("%s: class %s became %s (%s)", specs[s], a.cls, b.cls, b.reason);
+        assert_memory_equal(a.z2, b.z2, sizeof a.z2);
+        assert_int_equal(a.chern, b.chern);
+        assert_int_equal(a.nnodes, b.nnodes);
+        assert_int_equal(a.net_chirality, b.net_chirality);
+        assert_int_equal(a.inversion, b.inversion);
+        assert_int_equal(a.time_reversal, b.time_reversal);
+        /* Gaps are basis-independent; 1e-6 eV is the refinement tolerance. */
+        assert_true(fabs(a.gap_direct_ev - b.gap_direct_ev) < 1e-6);
+        diag_result_clear(&a);
+        diag_result_clear(&b);
+        tb_model_free(m); tb_model_free(p); tb_model_free(q); tb_model_free(t);
+    }
+}
+
+/* A time budget far too small is a timeout, not a wrong answer. */
+static void test_timeout(void **state)
+{
+    (void)state;
+    tb_model *m = NULL;
+    bs_err err;
+    bs_err_clear(&err);
+    assert_int_equal(lm_build("fkm:dt=0.05,stag=0.4", &m, &err), 0);
+    diag_opts o = {0};
+    o.max_seconds = 1e-6;
+    diag_result r;
+    diag_result_init(&r);
+    assert_int_equal(diag_run(m, &o, &r, &err), BS_ETIMEOUT);
+    diag_result_clear(&r);
+    tb_model_free(m);
+}
+
+int main(void)
+{
+    const struct CMUnitTest tests[] = {
+        cmocka_unit_test(test_kane_mele_boundary), cmocka_unit_test(test_bhz),
+        cmocka_unit_test(test_haldane), cmocka_unit_test(test_fkm_strong_weak),
+        cmocka_unit_test(test_fkm_sweep_weyl_window), cmocka_unit_test(test_weyl_positions),
+        cmocka_unit_test(test_line_metal_insulator), cmocka_unit_test(test_basis_invariance),
+        cmocka_unit_test(test_timeout),
+    };
+    return cmocka_run_group_tests(tests, NULL, NULL);
+}
