@@ -13,6 +13,7 @@ PACKAGES=(
   libcjson-dev
   libcmocka-dev
   python3-numpy python3-scipy
+  chromium
 )
 
 missing=()

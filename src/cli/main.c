@@ -7,8 +7,6 @@
 
 /* Subcommands still being written are weak references, so that the binary links while the
  * layers land one by one; a missing one reports itself instead of failing the whole build. */
-#pragma weak cmd_models
-#pragma weak cmd_demo_set
 
 typedef struct command {
     const char *name;

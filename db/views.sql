@@ -1,0 +1,105 @@
+-- bandsieve catalogue views. Re-created by every cat_open (CAT_RW), so a new program version
+-- brings its views to an old catalogue; documented in db/README.md.
+
+DROP VIEW IF EXISTS failures;
+DROP VIEW IF EXISTS candidates;
+DROP VIEW IF EXISTS summary;
+DROP VIEW IF EXISTS run_progress;
+
+-- One row per material that has any result: its most resolved successful row (highest mesh
+-- among status 'ok', latest run on ties); a material without an 'ok' row shows its latest row.
+CREATE VIEW summary AS
+WITH ranked AS (
+    SELECT r.*,
+           ROW_NUMBER() OVER (
+               PARTITION BY r.material_id
+               ORDER BY (r.status = 'ok') DESC,
+                        CASE WHEN r.status = 'ok' THEN r.mesh END DESC NULLS LAST,
+                        r.run_id DESC,
+                        r.finished DESC) AS pick
+    FROM results r
+)
+SELECT k.material_id,
+       m.formula,
+       m.dimension,
+       k.status,
+       k.class,
+       k.confidence,
+       k.gap_direct_ev,
+       k.gap_indirect_ev,
+       k.z2,
+       k.chern,
+       k.plane_chern,
+       k.n_weyl,
+       k.net_chirality,
+       k.nodal_line,
+       CASE WHEN k.status <> 'ok' THEN NULL
+            WHEN (k.z2 IS NOT NULL AND k.z2 GLOB '*[1-9]*')
+              OR COALESCE(k.chern, 0) <> 0
+              OR (k.plane_chern IS NOT NULL AND k.plane_chern GLOB '*[1-9]*')
+              OR COALESCE(k.n_weyl, 0) > 0
+              OR COALESCE(k.nodal_line, 0) <> 0 THEN 1
+            ELSE 0 END AS nontrivial,
+       k.mesh,
+       k.run_id,
+       k.finished,
+       k.reason,
+       k.message
+FROM ranked k
+LEFT JOIN materials m ON m.material_id = k.material_id
+WHERE k.pick = 1;
+
+-- Materials worth a closer look: topologically nontrivial, or called with confidence below 0.7.
+-- Nontrivial calls of confidence >= 0.7 come first, then the rest; within each group by the
+-- gap (indirect gap, else direct) descending.
+CREATE VIEW candidates AS
+SELECT s.*,
+       CASE WHEN s.nontrivial = 1 AND COALESCE(s.confidence, 0) >= 0.7 THEN 'nontrivial'
+            WHEN s.nontrivial = 1 THEN 'nontrivial, low confidence'
+            ELSE 'low confidence' END AS why
+FROM summary s
+WHERE s.status = 'ok'
+  AND (s.nontrivial = 1 OR s.confidence IS NULL OR s.confidence < 0.7)
+ORDER BY (s.nontrivial = 1 AND COALESCE(s.confidence, 0) >= 0.7) DESC,
+         COALESCE(s.gap_indirect_ev, s.gap_direct_ev) DESC NULLS LAST,
+         s.material_id;
+
+-- Every row that is not 'ok', newest run first, with whether the material has an 'ok' row in
+-- any run (resolved = 1) and where the run came from.
+CREATE VIEW failures AS
+SELECT r.run_id,
+       r.material_id,
+       r.status,
+       r.message,
+       r.rank,
+       r.seconds,
+       r.finished,
+       EXISTS (SELECT 1 FROM results o
+               WHERE o.material_id = r.material_id AND o.status = 'ok') AS resolved,
+       u.kind,
+       u.set_path
+FROM results r
+JOIN runs u ON u.run_id = r.run_id
+WHERE r.status <> 'ok'
+ORDER BY r.run_id DESC, r.material_id;
+
+-- One row per run: its description and how many results of each status it holds.
+CREATE VIEW run_progress AS
+SELECT u.run_id,
+       u.kind,
+       u.status,
+       u.started,
+       u.ended,
+       u.sessions,
+       u.ranks,
+       u.set_path,
+       COUNT(r.material_id) AS results,
+       COALESCE(SUM(r.status = 'ok'), 0) AS ok,
+       COALESCE(SUM(r.status = 'invalid'), 0) AS invalid,
+       COALESCE(SUM(r.status = 'failed'), 0) AS failed,
+       COALESCE(SUM(r.status = 'timeout'), 0) AS timeout,
+       SUM(r.seconds) AS worker_seconds
+FROM runs u
+LEFT JOIN results r ON r.run_id = u.run_id
+GROUP BY u.run_id
+ORDER BY u.run_id;

@@ -1,0 +1,206 @@
+/* The catalogue: one SQLite file (WAL mode) holding runs, materials, one result row per material
+ * per run, Weyl nodes and an index of artifact arrays kept in HDF5 files beside it.
+ * Only the coordinator writes it; writes go into an open transaction that is committed every
+ * `batch_rows` results or `batch_seconds` seconds, so a killed job loses at most one batch.
+ * Schema: db/schema.sql and db/views.sql (embedded at build time), documented in db/README.md.
+ * No MPI here: the pipeline calls these functions from its coordinator rank only. */
+#ifndef BANDSIEVE_CATALOGUE_H
+#define BANDSIEVE_CATALOGUE_H
+
+#include <stddef.h>
+#include <stdint.h>
+
+#include <cjson/cJSON.h>
+
+#include "bandsieve/err.h"
+
+/* Schema version stored in PRAGMA user_version; PRAGMA application_id is CAT_APPLICATION_ID. */
+#define CAT_SCHEMA_VERSION 1
+#define CAT_APPLICATION_ID 0x42534376 /* "BSCv" */
+
+/* Defaults for the commit batching (cat_set_batch). */
+#define CAT_BATCH_ROWS 64
+#define CAT_BATCH_SECONDS 2.0
+
+typedef struct cat_db cat_db; /* an open catalogue (opaque) */
+
+enum { CAT_RO = 0, CAT_RW = 1 }; /* cat_open modes */
+
+/* Status of one result row (column results.status). */
+typedef enum cat_status {
+    CAT_RES_OK = 0,      /* "ok": a diagnosis was made (it may still be of low confidence) */
+    CAT_RES_INVALID = 1, /* "invalid": the input was rejected (bad card, table, sizes) */
+    CAT_RES_FAILED = 2,  /* "failed": a numerical or internal failure for this material */
+    CAT_RES_TIMEOUT = 3  /* "timeout": the per-material time budget was exceeded */
+} cat_status;
+
+/* Status of a run (column runs.status). */
+typedef enum cat_run_status {
+    CAT_RUN_RUNNING = 0,     /* "running": set by cat_run_begin/resume; stays if the job is killed */
+    CAT_RUN_DONE = 1,        /* "done": every material of the run has a row */
+    CAT_RUN_INTERRUPTED = 2, /* "interrupted": stopped early on purpose (wall-clock budget, signal) */
+    CAT_RUN_FAILED = 3       /* "failed": the job itself failed (not one material) */
+} cat_run_status;
+
+/* The status text stored in the catalogue ("ok", ...; "running", ...); NULL for a bad value. */
+const char *cat_status_name(cat_status s);
+const char *cat_run_status_name(cat_run_status s);
+
+/* Maps a worker's error code to a result status: BS_OK -> ok, BS_EPARSE/BS_EINVAL/BS_EIO ->
+ * invalid, BS_ETIMEOUT -> timeout, anything else -> failed. */
+cat_status cat_status_from_code(int bs_code);
+
+/* Opens the catalogue at path (borrowed). CAT_RW creates the file if needed, applies the embedded
+ * schema and views, sets WAL mode, synchronous=NORMAL, foreign keys and a busy timeout; an existing
+ * file must carry our application_id and a user_version we know. CAT_RO opens with
+ * SQLITE_OPEN_READONLY (the file must exist; nothing is ever changed) and checks the same marks.
+ * *out is owned by the caller (cat_close). BS_ESQL with sqlite3_errmsg text, BS_EINVAL for a file
+ * that is not a bandsieve catalogue or has a newer schema. */
+int cat_open(const char *path, int mode, cat_db **out, bs_err *err);
+
+/* Commits pending writes (like cat_flush), closes the artifact file and the database and frees cat.
+ * cat may be NULL. cat is freed even when the final commit fails; the error is returned. */
+int cat_close(cat_db *cat, bs_err *err);
+
+/* Sets the commit batching: commit after rows results (>= 1) or after seconds (> 0) since the
+ * first uncommitted write, whichever comes first. Defaults CAT_BATCH_ROWS, CAT_BATCH_SECONDS. */
+int cat_set_batch(cat_db *cat, int rows, double seconds, bs_err *err);
+
+/* Description of a run, all strings borrowed. settings_json must hold every option that changes
+ * results (mesh, tasks, flags, time budget, and for rescreen the --where condition); it is
+ * stored in canonical form (keys sorted, no spaces), and two runs are compatible for resume
+ * when kind, settings, version and set path are equal. NULL strings store NULL. */
+typedef struct cat_run_info {
+    const char *kind;          /* "screen" or "rescreen" */
+    const char *settings_json; /* a JSON object; NULL is stored as "{}" */
+    const char *version;       /* program version, e.g. BS_VERSION */
+    int ranks;                 /* MPI ranks of this job (communicator size) */
+    const char *hosts;         /* comma-separated host names */
+    const char *cmdline;       /* the command line, joined with spaces */
+    const char *set_path;      /* material set the run reads */
+} cat_run_info;
+
+/* Starts a new run (status running, session 1) and returns its id in *run_id. Used by --rerun
+ * and when nothing can be resumed. Committed at once. BS_EPARSE for bad settings JSON. */
+int cat_run_begin(cat_db *cat, const cat_run_info *info, int64_t *run_id, bs_err *err);
+
+/* Continues the latest compatible run whose status is running or interrupted (a killed or
+ * budget-stopped job), opening a new session in it (ranks, hosts, command line of this job);
+ * when there is none, starts a new run as cat_run_begin does. *resumed is 1 when an old run was
+ * continued, 0 for a new one. The caller then skips the ids from cat_done_ids. Committed at once. */
+int cat_run_resume(cat_db *cat, const cat_run_info *info, int64_t *run_id, int *resumed,
+                   bs_err *err);
+
+/* Commits pending writes, then records status and the end time of the run and of its session. */
+int cat_run_end(cat_db *cat, int64_t run_id, cat_run_status status, bs_err *err);
+
+/* One material as the set's index describes it; strings borrowed. Numbers <= 0 (spinful < 0)
+ * store NULL. */
+typedef struct cat_material {
+    const char *material_id; /* required, at most 127 bytes */
+    const char *formula;
+    int dimension;           /* 2 or 3 */
+    int norb;                /* basis states */
+    int nr;                  /* lattice vectors in the hopping table */
+    int nocc;                /* occupied bands */
+    int spinful;             /* 0 or 1 */
+    const char *set_path;
+    const char *source;      /* provenance note from the card */
+    const char *card_json;   /* the card as JSON text, or NULL */
+} cat_material;
+
+/* Inserts or updates the material row (non-NULL fields replace the stored ones). Batched like
+ * results (counts towards the batch). */
+int cat_material_upsert(cat_db *cat, const cat_material *m, bs_err *err);
+
+/* Records the result of material_id in run_id: status, message (borrowed, may be NULL), the
+ * diagnosis object (borrowed, the JSON of `inspect --json`; may be NULL for non-ok rows, required
+ * for CAT_RES_OK), the worker rank and its wall time in seconds (< 0: take the diagnosis key
+ * "seconds"). Missing keys become NULL columns; a key of the wrong type is BS_EPARSE naming the
+ * key, and a diagnosis "id" different from material_id is BS_EINVAL (nothing is written then).
+ * Weyl nodes go to the nodes table; "wcc_flows" are written to this session's HDF5 artifact file
+ * and indexed in artifacts. A second put for the same (run, material) replaces the first.
+ * The row joins the open transaction, which is committed when the batch is full or due. */
+int cat_result_put(cat_db *cat, int64_t run_id, const char *material_id, cat_status status,
+                   const char *message, const cJSON *diag, int rank, double seconds, bs_err *err);
+
+/* As cat_result_put with the diagnosis as JSON text of len bytes (as received from a worker);
+ * text NULL means no diagnosis. Malformed JSON is BS_EPARSE with the offset of the error. */
+int cat_result_put_text(cat_db *cat, int64_t run_id, const char *material_id, cat_status status,
+                        const char *message, const char *text, size_t len, int rank,
+                        double seconds, bs_err *err);
+
+/* Commits the open transaction now (artifact file flushed first, so a committed row never
+ * points at unwritten data). No-op when nothing is pending. */
+int cat_flush(cat_db *cat, bs_err *err);
+
+/* Commits when the open transaction is older than the batch interval; for the coordinator's idle
+ * loop, so a slow trickle of results is still committed every few seconds. */
+int cat_flush_if_due(cat_db *cat, bs_err *err);
+
+/* Number of result rows written but not yet committed. */
+int cat_pending(const cat_db *cat);
+
+/* A sorted list of material ids; the caller owns it (init before use, clear after). */
+typedef struct cat_ids {
+    size_t n;
+    char **id; /* n strings, sorted by byte value (strcmp order) */
+} cat_ids;
+
+void cat_ids_init(cat_ids *ids);
+void cat_ids_clear(cat_ids *ids);
+/* 1 when id is in ids (binary search), else 0. */
+int cat_ids_contains(const cat_ids *ids, const char *id);
+
+/* The material ids that already have a result row (any status) in run_id: a resumed run skips
+ * them. *ids (initialised by the caller) is replaced. */
+int cat_done_ids(cat_db *cat, int64_t run_id, cat_ids *ids, bs_err *err);
+
+/* The material ids of `SELECT material_id FROM summary WHERE (where_sql)`, for rescreen.
+ * where_sql is one SQL condition; a condition that would write, or that holds a second
+ * statement, is refused (BS_EINVAL); SQL errors are BS_ESQL with sqlite3_errmsg. NULL or ""
+ * selects every material in summary. */
+int cat_select_ids(cat_db *cat, const char *where_sql, cat_ids *ids, bs_err *err);
+
+/* Column types reported to a cat_query callback. */
+enum { CAT_COL_INTEGER = 1, CAT_COL_REAL = 2, CAT_COL_TEXT = 3, CAT_COL_BLOB = 4, CAT_COL_NULL = 5 };
+
+/* One row handed to a cat_query callback; everything is borrowed for the call only. */
+typedef struct cat_row {
+    int ncol;
+    const char *const *name; /* column names */
+    const char *const *text; /* values as text (NULL for SQL NULL); NULL array in the header call */
+    const int *type;         /* CAT_COL_* per value; NULL in the header call */
+    long long index;         /* 0-based row number; -1 for the header call */
+} cat_row;
+
+/* Called once with the header (index -1) and then once per row; returns 0 to go on, or a negative
+ * BS_E* code (filling err) to stop: cat_query then returns that code. */
+typedef int (*cat_row_fn)(void *ctx, const cat_row *row, bs_err *err);
+
+/* Runs exactly one read-only SQL statement (trailing semicolons and blanks allowed). A statement
+ * for which sqlite3_stmt_readonly() is false, ATTACH/DETACH, a PRAGMA that sets a value, or a
+ * second statement is refused with BS_EINVAL before anything runs; SQL errors are BS_ESQL with
+ * the sqlite3_errmsg text. Works on CAT_RO and CAT_RW handles (on RW it still never writes). */
+int cat_query(cat_db *cat, const char *sql, cat_row_fn fn, void *ctx, bs_err *err);
+
+/* Runs PRAGMA integrity_check; BS_ESQL with its first message when the file is damaged. */
+int cat_check(cat_db *cat, bs_err *err);
+
+/* One Wannier-centre flow read back from an artifact (as in diag_flow): the caller owns kpar
+ * (nstring) and wcc (nstring * nband, row-major by string) and frees them with cat_flow_clear. */
+typedef struct cat_flow {
+    int plane, nstring, nband;
+    double *kpar;
+    double *wcc;
+} cat_flow;
+
+void cat_flow_clear(cat_flow *f);
+
+/* Reads the flow of `plane` for (run_id, material_id) through the artifacts table: the HDF5 file
+ * named there (relative to the catalogue's folder) and the dataset path. BS_EINVAL when there is
+ * no such artifact, BS_EHDF5 when the file or datasets cannot be read. */
+int cat_flow_read(cat_db *cat, int64_t run_id, const char *material_id, int plane, cat_flow *out,
+                  bs_err *err);
+
+#endif

@@ -1,0 +1,55 @@
+/* Direct and indirect band gaps at the filling N = nocc (bands N and N+1, 1-based), with the
+ * k-points where they sit: a coarse uniform mesh finds the basins, a local minimiser refines them. */
+#ifndef BANDSIEVE_GAPS_H
+#define BANDSIEVE_GAPS_H
+
+#include "bandsieve/bandpair.h"
+#include "bandsieve/diagnosis.h"
+#include "bandsieve/err.h"
+#include "bandsieve/hk.h"
+#include "bandsieve/model.h"
+
+typedef struct gaps_opts {
+    int mesh;            /* coarse mesh points per reduced direction (0: 16 in 3D, 48 in 2D) */
+    int nrefine;         /* basins refined per quantity, lowest/highest first (0: 4) */
+    double tol_k;        /* refinement stops at this step, reduced units (0: 1e-6) */
+    double deadline;     /* absolute bp_now() seconds (CLOCK_MONOTONIC), 0: none */
+    const bp_mesh *grid; /* optional mesh already evaluated for this model (borrowed; overrides mesh) */
+} gaps_opts;
+
+typedef struct gaps_result {
+    double gap_direct_ev;   /* min_k E_{N+1}(k) - E_N(k) */
+    double gap_indirect_ev; /* min_k E_{N+1} - max_k E_N; <= 0 means the bands overlap */
+    double k_direct[3], k_vbm[3], k_cbm[3]; /* reduced, in [0,1) (k3 = 0 in 2D) */
+    double vbm_ev, cbm_ev;  /* max E_N, min E_{N+1} */
+    double width_ev;        /* max E_{N+1} - min E_N on the mesh: the scale of the two bands */
+    int metallic;           /* gap_indirect_ev < BS_GAP_CLOSED_EV: metal or semimetal at this filling */
+    int closed;             /* gap_direct_ev < BS_GAP_CLOSED_EV: the two bands touch */
+    int mesh;
+    long long nk_evaluated; /* k-points diagonalised by this call */
+    double seconds;         /* wall time of this call */
+} gaps_result;
+
+/* Fills o with the defaults (all zero: mesh and tolerances chosen by gaps_find). */
+void gaps_opts_init(gaps_opts *o);
+
+/* Gaps of m (borrowed) at its filling, using hk (borrowed, built from m). o may be NULL (defaults).
+ * BS_EINVAL for a bad filling or mesh, BS_ETIMEOUT past o->deadline, BS_ENUMERIC from LAPACK. */
+int gaps_find(const tb_model *m, hk_engine *hk, const gaps_opts *o, gaps_result *out, bs_err *err);
+
+/* As gaps_find with an existing evaluator (borrowed), so a caller can share it with nodes_find;
+ * o->deadline is ignored here (the evaluator carries its own). */
+int gaps_find_eval(bp_eval *e, const gaps_opts *o, gaps_result *out, bs_err *err);
+
+struct nodes_result;
+
+/* Lowers g's direct gap (and bounds its band extremes) with touchings found by the node search
+ * (nodes.h), whose refinement starts from more cells than the gap search's few basins: a node's
+ * gap below g->gap_direct_ev replaces it, its two band energies (energy -+ gap/2) bound the VBM and
+ * CBM. Updates metallic and closed. */
+void gaps_merge_nodes(gaps_result *g, const struct nodes_result *r);
+
+/* Copies the gaps and their k-points into d (diagnosis.h) and adds nk_evaluated to d's count. */
+void gaps_to_diag(const gaps_result *g, diag_result *d);
+
+#endif

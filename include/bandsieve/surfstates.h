@@ -1,0 +1,75 @@
+/* Surface states of a slab or ribbon: slab bands with their top and bottom weights, bulk bands
+ * projected onto the surface zone, Fermi-level crossings by top- and bottom-localised states
+ * between two surface TRIMs, and the Kramers (Dirac) points of surface bands in the bulk gap.
+ *
+ * Crossing parity between surface TRIMs Lambda_a and Lambda_b is pi_a pi_b, the product of the
+ * bulk parity products projected onto them (Phys. Rev. Lett. 98, 106803 (2007); in 2D Phys. Rev.
+ * Lett. 95, 226801 (2005)): odd means the surface cannot be made trivial. */
+#ifndef BANDSIEVE_SURFSTATES_H
+#define BANDSIEVE_SURFSTATES_H
+
+#include "bandsieve/err.h"
+#include "bandsieve/slab.h"
+
+typedef struct ss_opts {
+    int nsurf;          /* layers counted as a surface (0: max(2, nlayers / 8)) */
+    double loc_min;     /* w_top - w_bottom above this: top state; below -loc_min: bottom (0: 0.3) */
+    int nk;             /* k samples per segment for crossings (0: 240) */
+    int nperp;          /* k_perp samples for projected bulk bands (0: 48) */
+    double deg_tol_ev;  /* eigenvalues closer than this are one degenerate level (0: 1e-6 eV) */
+} ss_opts;
+
+/* Fills o with the defaults (all zero, which the functions read as the defaults above). */
+void ss_opts_default(ss_opts *o);
+
+typedef struct ss_ctx ss_ctx;
+
+/* Workspace for the surface states of s (borrowed; must outlive the context); opts may be NULL.
+ * The caller owns *out. */
+int ss_create(const slab *s, const ss_opts *opts, ss_ctx **out, bs_err *err);
+
+/* Frees c; accepts NULL. */
+void ss_free(ss_ctx *c);
+
+/* Slab energies (ascending, nstates, eV) at in-plane k', with the weights of each state on the
+ * nsurf top and bottom layers. Within a degenerate level the states are first rotated to
+ * diagonalise P_top - P_bottom, so that a top and a bottom state at one energy (as in an
+ * inversion-symmetric slab) are told apart. w_top / w_bottom may be NULL. */
+int ss_bands(ss_ctx *c, const double kpar[2], double *E, double *w_top, double *w_bottom, bs_err *err);
+
+/* Bulk bands projected onto k': *vmax = largest energy of bulk band nocc - 1 (0-based) and
+ * *cmin = smallest of band nocc over nperp values of k_perp (the rebased bulk's own nocc). */
+int ss_projected_edges(ss_ctx *c, const double kpar[2], double *vmax, double *cmin, bs_err *err);
+
+/* Bulk band edges over an n^dim mesh of the bulk zone (m borrowed): *vbm = max of band nocc - 1,
+ * *cbm = min of band nocc; *cbm < *vbm when there is no global gap. */
+int ss_bulk_edges(const tb_model *m, int mesh, double *vbm, double *cbm, bs_err *err);
+
+/* Counts the crossings of fermi_ev by top- and bottom-localised slab states on the straight
+ * segment from ka to kb (in-plane reduced), sampled at nk points including both ends; a band
+ * crossing is classified by its weights averaged over the two samples around it. Two crossings
+ * in opposite directions between the same two samples cancel and are missed: nk should resolve
+ * the surface bands. n_other receives crossings by states localised on neither surface (may be NULL). */
+int ss_crossings(ss_ctx *c, const double ka[2], const double kb[2], double fermi_ev, int *n_top, int *n_bottom,
+                 int *n_other, bs_err *err);
+
+typedef struct ss_dirac {
+    double k[2];        /* in-plane reduced k' (a surface TRIM) */
+    double energy_ev;
+    int side;           /* SS_TOP or SS_BOTTOM */
+    int degeneracy;     /* surface states of that side in the level (2 for a Kramers pair) */
+} ss_dirac;
+
+enum { SS_TOP = 0, SS_BOTTOM = 1 };
+
+/* Surface Dirac points: at each surface TRIM (4 for a slab, 2 for a ribbon), the degenerate
+ * levels of at least two states localised on one surface that lie inside the projected bulk gap
+ * at that k' (strictly between ss_projected_edges). Without time reversal the surface bands need
+ * not cross at TRIMs, so the list is meaningful for time-reversal-symmetric models. Fills up to
+ * max entries of out, *count the number found (may exceed max). */
+int ss_dirac_points(ss_ctx *c, ss_dirac *out, int max, int *count, bs_err *err);
+
+/* The surface TRIMs: *n (4 or 2) points k'[2*t..2*t+1] = (t % 2, t / 2) / 2 (t / 2 = 0 for a ribbon). */
+void ss_trims(const ss_ctx *c, double k[8], int *n);
+
+#endif

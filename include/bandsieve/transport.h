@@ -1,0 +1,106 @@
+/* Intrinsic anomalous Hall (AHC) and spin Hall (SHC) conductivities from the Berry curvature of
+ * the occupied states, integrated over the Brillouin zone with adaptive cell refinement, for a list
+ * of Fermi energies that share one eigen-decomposition per k-point.
+ *
+ * Conventions (see transport.c for the derivations):
+ * - Berry curvature from the Kubo form, Phys. Rev. Lett. 49, 405 (1982):
+ *   Omega_n^{ab} = -2 Im sum_{m != n} <n|v_a|m><m|v_b|n> / ((E_m - E_n)^2 + eta^2), v = dH/dk
+ *   (Cartesian, eV Angstrom, hbar = 1). This is curl i<u|grad u>, the convention of chern.h.
+ * - sigma_ab = +(e^2/hbar) int d^dk/(2 pi)^d sum_n f_n Omega_n^{ab}. With this sign a 2D insulator
+ *   has sigma_xy = C e^2/h with C the lattice Chern number of chern_plane(p = 4) (for a3 along +z).
+ *   (The form -(e^2/hbar) int f Omega met in the literature goes with the opposite sign of Omega.)
+ * - Spin current j^{s_z}_a = (1/2){s_z, v_a} with s_z = diag(+1, -1) (Pauli, units of hbar/2) from
+ *   tb_state_spin, Phys. Rev. Lett. 92, 126603 (2004); sigma^{s_z}_{xy} = (hbar/2e) x the charge
+ *   formula with j^{s_z}_x in place of v_x: for a model that conserves s_z it is
+ *   (e/4 pi)(C_up - C_down), i.e. +-1 in units of e/(2 pi) in the quantum spin Hall phase of
+ *   Phys. Rev. Lett. 95, 226801 (2005).
+ * - Units: 2D AHC in e^2/h, 2D SHC in e/(2 pi); 3D AHC in S/cm, 3D SHC in (hbar/e) S/cm, with the
+ *   cell volume from the lattice in Angstrom.
+ * - Gauge: by default the velocity includes the orbital positions (position gauge,
+ *   v = dH/dk - i[r, H]); for an insulator the lattice gauge (TR_GAUGE_LATTICE) gives the same
+ *   zone integral although its Berry curvature per k differs; for a metal only the position gauge
+ *   is the physical one (the difference is a Fermi-surface term).
+ * - Occupations: T = 0 step (E_n < E_F) unless smear_ev > 0 (Fermi-Dirac with kT = smear_ev). */
+#ifndef BANDSIEVE_TRANSPORT_H
+#define BANDSIEVE_TRANSPORT_H
+
+#include <cjson/cJSON.h>
+
+#include "bandsieve/err.h"
+#include "bandsieve/model.h"
+
+/* Most Fermi energies in one call (the reference plus the scan). */
+#define TR_MAX_FERMI 101
+
+enum { TR_GAUGE_POSITION = 0, TR_GAUGE_LATTICE = 1 };
+
+/* Where the reference Fermi energy came from. */
+enum { TR_FERMI_GIVEN = 0, TR_FERMI_CARD = 1, TR_FERMI_MIDGAP = 2, TR_FERMI_FILLING = 3 };
+
+/* Settings; tr_opts_default fills the defaults named in brackets. */
+typedef struct tr_opts {
+    int mesh;              /* initial cells per direction [0: 16 in 2D, 8 in 3D] */
+    int max_depth;         /* times a cell may be halved [0: 7 in 2D, 4 in 3D]; -1: never (a
+                              uniform mesh of 2 mesh points per direction with an error estimate) */
+    double tol;            /* target total error estimate, output units [0: 1e-3 e^2/h in 2D,
+                              1 S/cm in 3D] */
+    long long max_kpoints; /* refinement stops past this many H(k) evaluations [2000000] */
+    double eta_ev;         /* broadening: (E_m - E_n)^2 -> (E_m - E_n)^2 + eta^2 [0] */
+    double smear_ev;       /* Fermi-Dirac kT, eV; 0 is the T = 0 step [0] */
+    int has_fermi;         /* fermi_ev below is the reference Fermi energy [0] */
+    double fermi_ev;       /* eV */
+    int nscan;             /* extra Fermi energies E_ref + lo + i (hi - lo)/(nscan - 1) [0] */
+    double scan_lo_ev, scan_hi_ev; /* offsets from the reference, eV [0, 0] */
+    int gauge;             /* TR_GAUGE_* [TR_GAUGE_POSITION] */
+    int want_shc;          /* compute the SHC of spinful models [1] */
+    double deadline;       /* absolute bp_now() seconds; BS_ETIMEOUT past it (0: none) [0] */
+} tr_opts;
+
+void tr_opts_default(tr_opts *o);
+
+/* Result: a plain struct with fixed arrays (it can be copied or sent as bytes). Index 0 of every
+ * array is the reference Fermi energy, 1..nfermi-1 the scan. Errors are the adaptive integration's
+ * estimates (sum over cells of |two-rule difference|), same units as the values. */
+typedef struct tr_result {
+    int dim;                          /* 2 or 3 */
+    int has_shc;                      /* spinful and asked for */
+    int nfermi;
+    int fermi_source;                 /* TR_FERMI_* of index 0 */
+    double fermi_ev[TR_MAX_FERMI];
+    double ahc[TR_MAX_FERMI][3];      /* xy, yz, zx (yz, zx are 0 in 2D) */
+    double ahc_err[TR_MAX_FERMI][3];
+    double shc[TR_MAX_FERMI];         /* sigma^{s_z}_{xy} */
+    double shc_err[TR_MAX_FERMI];
+    char ahc_units[16];               /* "e^2/h" or "S/cm" */
+    char shc_units[16];               /* "e/2pi" or "(hbar/e)S/cm" */
+    long long nk;                     /* H(k) evaluations, including the Fermi-energy pre-pass */
+    long long ncells;                 /* cells of the final partition */
+    int depth;                        /* deepest refinement reached */
+    int converged;                    /* total error estimate <= tol */
+    double tol;                       /* the tolerance used (output units) */
+    double err_total;                 /* the refinement's scalar total error estimate */
+    double min_gap_ev;                /* smallest E_nocc - E_(nocc-1) seen */
+    double eta_ev, smear_ev;
+    int gauge;
+} tr_result;
+
+/* Computes AHC (and SHC for spinful models) of m (borrowed) at the reference Fermi energy and the
+ * scan. The reference is o->fermi_ev when has_fermi; else the card's fermi_ev when m->has_fermi;
+ * else, on the initial mesh's cell centres, midway between the highest band nocc-1 and the lowest
+ * band nocc when they do not overlap, or for a metal the energy halfway between the
+ * (nocc N_k)-th and next lowest eigenvalue (nocc bands' worth of states below it). o may be NULL.
+ * BS_EINVAL for bad options, a model that is not 2D/3D or a 2D lattice not in the xy plane;
+ * BS_ENUMERIC from LAPACK; BS_ENOMEM; BS_ETIMEOUT. */
+int tr_compute(const tb_model *m, const tr_opts *o, tr_result *out, bs_err *err);
+
+/* JSON of r: {"ahc": {"xy", ["yz", "zx",] "units", "fermi_eV", "error"}, ["shc": {"xy_z", "units",
+ * "fermi_eV", "error"},] "scan": [{"fermi_eV", "ahc_xy", ..., "ahc_error", ["shc_xy_z",
+ * "shc_error"]}], "kpoints", "cells", "depth", "converged", "tolerance", "fermi_source", "eta_eV",
+ * "smear_eV", "gauge", "min_gap_eV"}; the "ahc"/"shc" objects hold index 0, their "error" the
+ * largest component error. The caller owns the result (cJSON_Delete); NULL when out of memory. */
+cJSON *tr_to_json(const tr_result *r);
+
+/* Name of a TR_FERMI_* value ("given", "card", "midgap", "filling"). */
+const char *tr_fermi_source_name(int source);
+
+#endif

@@ -1,0 +1,807 @@
+/* The catalogue connection: opening and schema, the batch transaction, runs and sessions,
+ * materials, id lists and read-only queries. Result rows are in cat_result.c, HDF5 artifacts in
+ * cat_artifact.c. */
+#include "cat_internal.h"
+
+#include <ctype.h>
+#include <stdlib.h>
+#include <string.h>
+#include <time.h>
+
+/* Readers (a `query` during a screen) hold the WAL briefly; 10 s covers a checkpoint on a slow
+ * shared file system without hanging a job forever (common practice). */
+#define CAT_BUSY_MS 10000
+
+#define CAT_NOW_SQL "strftime('%Y-%m-%dT%H:%M:%fZ','now')"
+
+static const char *const STATUS_NAMES[] = {"ok", "invalid", "failed", "timeout"};
+static const char *const RUN_STATUS_NAMES[] = {"running", "done", "interrupted", "failed"};
+
+const char *cat_status_name(cat_status s)
+{
+    return (unsigned)s < 4 ? STATUS_NAMES[s] : NULL;
+}
+
+const char *cat_run_status_name(cat_run_status s)
+{
+    return (unsigned)s < 4 ? RUN_STATUS_NAMES[s] : NULL;
+}
+
+cat_status cat_status_from_code(int bs_code)
+{
+    switch (bs_code) {
+    case BS_OK: return CAT_RES_OK;
+    case BS_EPARSE:
+    case BS_EINVAL:
+    case BS_EIO: return CAT_RES_INVALID;
+    case BS_ETIMEOUT: return CAT_RES_TIMEOUT;
+    default: return CAT_RES_FAILED;
+    }
+}
+
+double cat_now(void)
+{
+    struct timespec ts;
+    clock_gettime(CLOCK_MONOTONIC, &ts);
+    return (double)ts.tv_sec + 1e-9 * (double)ts.tv_nsec;
+}
+
+int cat_sql_fail(cat_db *cat, bs_err *err, const char *what)
+{
+    sqlite3 *db = cat ? cat->db : NULL;
+    return bs_fail(err, BS_ESQL, "%s: %s: %s (sqlite code %d)", cat && cat->path ? cat->path : "catalogue",
+                   what, db ? sqlite3_errmsg(db) : "no connection", db ? sqlite3_extended_errcode(db) : 0);
+}
+
+int cat_exec(cat_db *cat, const char *sql, bs_err *err)
+{
+    char *msg = NULL;
+    if (sqlite3_exec(cat->db, sql, NULL, NULL, &msg) == SQLITE_OK) return 0;
+    int rc = bs_fail(err, BS_ESQL, "%s: %s (sqlite code %d)", cat->path, msg ? msg : sqlite3_errmsg(cat->db),
+                     sqlite3_extended_errcode(cat->db));
+    sqlite3_free(msg);
+    return rc;
+}
+
+/* Single-value PRAGMA read. */
+static int pragma_int(cat_db *cat, const char *sql, int *out, bs_err *err)
+{
+    sqlite3_stmt *st = NULL;
+    if (sqlite3_prepare_v2(cat->db, sql, -1, &st, NULL) != SQLITE_OK) return cat_sql_fail(cat, err, sql);
+    int rc = sqlite3_step(st);
+    if (rc == SQLITE_ROW) {
+        *out = sqlite3_column_int(st, 0);
+        rc = 0;
+    } else {
+        rc = cat_sql_fail(cat, err, sql);
+    }
+    sqlite3_finalize(st);
+    return rc;
+}
+
+/* A fresh file gets the schema; an existing one must be ours and of a version we know. */
+static int check_marks(cat_db *cat, int *fresh, bs_err *err)
+{
+    int app = 0, version = 0, ntab = 0;
+    int rc = pragma_int(cat, "PRAGMA application_id", &app, err);
+    if (rc == 0) rc = pragma_int(cat, "PRAGMA user_version", &version, err);
+    if (rc == 0) rc = pragma_int(cat, "SELECT count(*) FROM sqlite_master", &ntab, err);
+    if (rc != 0) return rc;
+    *fresh = (ntab == 0 && app == 0 && version == 0);
+    if (*fresh) return 0;
+    if (app != CAT_APPLICATION_ID)
+        return bs_fail(err, BS_EINVAL, "%s: not a bandsieve catalogue (application_id %d, expected %d)",
+                       cat->path, app, CAT_APPLICATION_ID);
+    if (version > CAT_SCHEMA_VERSION)
+        return bs_fail(err, BS_EINVAL, "%s: catalogue schema version %d is newer than this program's %d",
+                       cat->path, version, CAT_SCHEMA_VERSION);
+    if (version < CAT_SCHEMA_VERSION)
+        return bs_fail(err, BS_EINVAL, "%s: catalogue schema version %d is older than %d and no migration exists",
+                       cat->path, version, CAT_SCHEMA_VERSION);
+    return 0;
+}
+
+/* Schema (fresh files only) and views in one immediate transaction, so two coordinators opening
+ * the same new file cannot both create it. */
+static int apply_schema(cat_db *cat, bs_err *err)
+{
+    int rc = cat_exec(cat, "BEGIN IMMEDIATE", err);
+    if (rc != 0) return rc;
+    int fresh = 0;
+    rc = check_marks(cat, &fresh, err);
+    if (rc == 0 && fresh) {
+        rc = cat_exec(cat, (const char *)cat_sql_schema, err);
+        char marks[128];
+        snprintf(marks, sizeof marks, "PRAGMA application_id = %d; PRAGMA user_version = %d;",
+                 CAT_APPLICATION_ID, CAT_SCHEMA_VERSION);
+        if (rc == 0) rc = cat_exec(cat, marks, err);
+    }
+    if (rc == 0) rc = cat_exec(cat, (const char *)cat_sql_views, err);
+    if (rc == 0) return cat_exec(cat, "COMMIT", err);
+    sqlite3_exec(cat->db, "ROLLBACK", NULL, NULL, NULL);
+    return rc;
+}
+
+static const char *const STMT_SQL[CAT_ST_COUNT] = {
+    [CAT_ST_RESULT] =
+        "INSERT INTO results (run_id, material_id, status, message, class, confidence, reason,"
+        " gap_direct_ev, gap_indirect_ev, k_gap_direct, time_reversal, inversion, z2, z2_parity, z2_wcc,"
+        " z2_status, z2_note, chern, chern_status, plane_chern, n_weyl, net_chirality, nodal_line, mesh,"
+        " diag_seconds, seconds, rank, finished, ahc_x, ahc_y, ahc_z, shc_xy, diagnosis) VALUES ("
+        " :run_id, :material_id, :status, :message, :class, :confidence, :reason,"
+        " :gap_direct_ev, :gap_indirect_ev, :k_gap_direct, :time_reversal, :inversion, :z2, :z2_parity, :z2_wcc,"
+        " :z2_status, :z2_note, :chern, :chern_status, :plane_chern, :n_weyl, :net_chirality, :nodal_line, :mesh,"
+        " :diag_seconds, :seconds, :rank, " CAT_NOW_SQL ", :ahc_x, :ahc_y, :ahc_z, :shc_xy, :diagnosis)",
+    [CAT_ST_EXISTS] = "SELECT 1 FROM results WHERE run_id = ? AND material_id = ?",
+    [CAT_ST_DEL_RESULT] = "DELETE FROM results WHERE run_id = ? AND material_id = ?",
+    [CAT_ST_NODE] = "INSERT INTO nodes (run_id, material_id, node, k1, k2, k3, chirality, energy_ev, gap_ev)"
+                    " VALUES (?, ?, ?, ?, ?, ?, ?, ?, ?)",
+    [CAT_ST_DEL_NODES] = "DELETE FROM nodes WHERE run_id = ? AND material_id = ?",
+    [CAT_ST_DEL_ARTS] = "DELETE FROM artifacts WHERE run_id = ? AND material_id = ?",
+    [CAT_ST_ARTIFACT] = "INSERT INTO artifacts (run_id, material_id, kind, plane, file, h5path, nstring, nband)"
+                        " VALUES (?, ?, ?, ?, ?, ?, ?, ?)",
+    [CAT_ST_MAT_ENSURE] = "INSERT OR IGNORE INTO materials (material_id, updated) VALUES (?, " CAT_NOW_SQL ")",
+    [CAT_ST_MAT_UPSERT] =
+        "INSERT INTO materials (material_id, formula, dimension, norb, nr, nocc, spinful, set_path, source,"
+        " card_json, updated) VALUES (?1, ?2, ?3, ?4, ?5, ?6, ?7, ?8, ?9, ?10, " CAT_NOW_SQL ")"
+        " ON CONFLICT (material_id) DO UPDATE SET formula = COALESCE(excluded.formula, formula),"
+        " dimension = COALESCE(excluded.dimension, dimension), norb = COALESCE(excluded.norb, norb),"
+        " nr = COALESCE(excluded.nr, nr), nocc = COALESCE(excluded.nocc, nocc),"
+        " spinful = COALESCE(excluded.spinful, spinful), set_path = COALESCE(excluded.set_path, set_path),"
+        " source = COALESCE(excluded.source, source), card_json = COALESCE(excluded.card_json, card_json),"
+        " updated = excluded.updated",
+};
+
+static int prepare_all(cat_db *cat, bs_err *err)
+{
+    for (int i = 0; i < CAT_ST_COUNT; i++)
+        if (sqlite3_prepare_v3(cat->db, STMT_SQL[i], -1, SQLITE_PREPARE_PERSISTENT, &cat->st[i], NULL) != SQLITE_OK)
+            return cat_sql_fail(cat, err, "preparing catalogue statements");
+    return 0;
+}
+
+static int configure(cat_db *cat, bs_err *err)
+{
+    if (sqlite3_busy_timeout(cat->db, CAT_BUSY_MS) != SQLITE_OK) return cat_sql_fail(cat, err, "busy timeout");
+    int rc = cat_exec(cat, "PRAGMA foreign_keys = ON", err);
+    if (rc != 0 || cat->mode == CAT_RO) return rc;
+    /* WAL: readers (query) never block the coordinator, and a crash loses only the open
+     * transaction. synchronous=NORMAL is durable across process kills in WAL mode; only a power
+     * loss can drop the last commits, which a resume then redoes (sqlite.org/wal.html). */
+    sqlite3_stmt *st = NULL;
+    if (sqlite3_prepare_v2(cat->db, "PRAGMA journal_mode = WAL", -1, &st, NULL) != SQLITE_OK)
+        return cat_sql_fail(cat, err, "journal_mode");
+    const char *mode = sqlite3_step(st) == SQLITE_ROW ? (const char *)sqlite3_column_text(st, 0) : NULL;
+    if (!mode || strcmp(mode, "wal") != 0)
+        rc = bs_fail(err, BS_ESQL, "%s: cannot switch to WAL mode (journal_mode is %s): %s", cat->path,
+                     mode ? mode : "unknown", sqlite3_errmsg(cat->db));
+    sqlite3_finalize(st);
+    if (rc == 0) rc = cat_exec(cat, "PRAGMA synchronous = NORMAL", err);
+    /* 32 MB of page cache for the writer (the default is 2 MB): the results table and its
+     * indexes of a 10^5-material screen stay in memory, saving a read per insert. */
+    if (rc == 0) rc = cat_exec(cat, "PRAGMA cache_size = -32768", err);
+    return rc;
+}
+
+int cat_open(const char *path, int mode, cat_db **out, bs_err *err)
+{
+    *out = NULL;
+    if (!path || !*path) return bs_fail(err, BS_EINVAL, "catalogue path is empty");
+    if (mode != CAT_RO && mode != CAT_RW) return bs_fail(err, BS_EINVAL, "cat_open: mode %d is not CAT_RO or CAT_RW", mode);
+    cat_db *cat = calloc(1, sizeof *cat);
+    if (!cat) return bs_fail(err, BS_ENOMEM, "cat_open: out of memory");
+    cat->mode = mode;
+    cat->h5 = H5I_INVALID_HID;
+    cat->batch_rows = CAT_BATCH_ROWS;
+    cat->batch_seconds = CAT_BATCH_SECONDS;
+    cat->path = strdup(path);
+    int rc = cat->path ? 0 : bs_fail(err, BS_ENOMEM, "cat_open: out of memory");
+    int flags = mode == CAT_RW ? SQLITE_OPEN_READWRITE | SQLITE_OPEN_CREATE : SQLITE_OPEN_READONLY;
+    if (rc == 0 && sqlite3_open_v2(path, &cat->db, flags, NULL) != SQLITE_OK)
+        rc = cat_sql_fail(cat, err, "cannot open catalogue");
+    if (rc == 0) rc = configure(cat, err);
+    if (rc == 0 && mode == CAT_RW) rc = apply_schema(cat, err);
+    if (rc == 0 && mode == CAT_RO) {
+        int fresh = 0;
+        rc = check_marks(cat, &fresh, err);
+        if (rc == 0 && fresh) rc = bs_fail(err, BS_EINVAL, "%s: empty file, not a bandsieve catalogue", path);
+    }
+    if (rc == 0 && mode == CAT_RW) rc = prepare_all(cat, err);
+    if (rc != 0) {
+        cat_close(cat, NULL);
+        return rc;
+    }
+    *out = cat;
+    return 0;
+}
+
+int cat_close(cat_db *cat, bs_err *err)
+{
+    if (!cat) return 0;
+    int rc = cat->db ? cat_flush(cat, err) : 0;
+    int rc2 = cat_artifact_close(cat, err);
+    if (rc == 0) rc = rc2;
+    for (int i = 0; i < CAT_ST_COUNT; i++) sqlite3_finalize(cat->st[i]);
+    if (cat->db && sqlite3_close(cat->db) != SQLITE_OK && rc == 0)
+        rc = cat_sql_fail(cat, err, "closing the catalogue");
+    free(cat->path);
+    free(cat);
+    return rc;
+}
+
+int cat_set_batch(cat_db *cat, int rows, double seconds, bs_err *err)
+{
+    if (rows < 1 || !(seconds > 0))
+        return bs_fail(err, BS_EINVAL, "cat_set_batch: expected rows >= 1 and seconds > 0, found %d and %g", rows, seconds);
+    cat->batch_rows = rows;
+    cat->batch_seconds = seconds;
+    return 0;
+}
+
+static int need_rw(const cat_db *cat, const char *what, bs_err *err)
+{
+    if (cat->mode == CAT_RW) return 0;
+    return bs_fail(err, BS_EINVAL, "%s: %s needs a catalogue opened for writing", cat->path, what);
+}
+
+int cat_txn_begin(cat_db *cat, bs_err *err)
+{
+    if (cat->in_txn) return 0;
+    int rc = cat_exec(cat, "BEGIN IMMEDIATE", err);
+    if (rc != 0) return rc;
+    cat->in_txn = 1;
+    cat->pending_writes = 0;
+    cat->pending_results = 0;
+    cat->txn_started = cat_now();
+    return 0;
+}
+
+int cat_txn_note(cat_db *cat, int is_result, bs_err *err)
+{
+    cat->pending_writes++;
+    if (is_result) cat->pending_results++;
+    if (cat->pending_writes >= cat->batch_rows) return cat_flush(cat, err);
+    return cat_flush_if_due(cat, err);
+}
+
+int cat_flush(cat_db *cat, bs_err *err)
+{
+    if (!cat->in_txn) return 0;
+    /* Artifact data reaches the disk before the rows that point at it are committed. */
+    int rc = cat_artifact_flush(cat, err);
+    if (rc == 0 && sqlite3_exec(cat->db, "COMMIT", NULL, NULL, NULL) != SQLITE_OK) {
+        rc = cat_sql_fail(cat, err, "commit");
+        bs_err_context(err, "%d result rows lost: ", cat->pending_results);
+    }
+    if (rc != 0 && sqlite3_get_autocommit(cat->db) == 0) sqlite3_exec(cat->db, "ROLLBACK", NULL, NULL, NULL);
+    cat->in_txn = 0;
+    cat->pending_writes = 0;
+    cat->pending_results = 0;
+    return rc;
+}
+
+int cat_flush_if_due(cat_db *cat, bs_err *err)
+{
+    if (cat->in_txn && cat_now() - cat->txn_started >= cat->batch_seconds) return cat_flush(cat, err);
+    return 0;
+}
+
+int cat_pending(const cat_db *cat)
+{
+    return cat->in_txn ? cat->pending_results : 0;
+}
+
+/* ---- runs ---- */
+
+/* Sorts object keys recursively so that equal settings print to equal text. */
+static int key_cmp(const void *a, const void *b)
+{
+    const cJSON *x = *(const cJSON *const *)a, *y = *(const cJSON *const *)b;
+    return strcmp(x->string, y->string);
+}
+
+static int json_sort(cJSON *item)
+{
+    for (cJSON *c = item->child; c; c = c->next)
+        if (json_sort(c) != 0) return -1;
+    if (!cJSON_IsObject(item) || !item->child) return 0;
+    int n = cJSON_GetArraySize(item);
+    cJSON **v = malloc((size_t)n * sizeof *v);
+    if (!v) return -1;
+    int i = 0;
+    for (cJSON *c = item->child; c; c = c->next) v[i++] = c;
+    qsort(v, (size_t)n, sizeof *v, key_cmp);
+    for (i = 0; i < n; i++) {
+        v[i]->prev = i > 0 ? v[i - 1] : v[n - 1]; /* cJSON keeps child->prev at the last item */
+        v[i]->next = i + 1 < n ? v[i + 1] : NULL;
+    }
+    item->child = v[0];
+    free(v);
+    return 0;
+}
+
+static int canonical_settings(const char *text, char **out, bs_err *err)
+{
+    *out = NULL;
+    cJSON *j = cJSON_Parse(text ? text : "{}");
+    if (!j) return bs_fail(err, BS_EPARSE, "run settings: malformed JSON near \"%.40s\"", cJSON_GetErrorPtr() ? cJSON_GetErrorPtr() : "");
+    int rc = 0;
+    if (!cJSON_IsObject(j)) rc = bs_fail(err, BS_EPARSE, "run settings: expected a JSON object");
+    if (rc == 0 && json_sort(j) != 0) rc = bs_fail(err, BS_ENOMEM, "run settings: out of memory");
+    if (rc == 0 && !(*out = cJSON_PrintUnformatted(j))) rc = bs_fail(err, BS_ENOMEM, "run settings: out of memory");
+    cJSON_Delete(j);
+    return rc;
+}
+
+static int check_info(const cat_db *cat, const cat_run_info *info, bs_err *err)
+{
+    int rc = need_rw(cat, "starting a run", err);
+    if (rc != 0) return rc;
+    if (!info || !info->kind || (strcmp(info->kind, "screen") != 0 && strcmp(info->kind, "rescreen") != 0))
+        return bs_fail(err, BS_EINVAL, "run kind: expected \"screen\" or \"rescreen\", found \"%s\"",
+                       info && info->kind ? info->kind : "(null)");
+    return 0;
+}
+
+static void bind_text_or_null(sqlite3_stmt *st, int i, const char *s)
+{
+    if (s) sqlite3_bind_text(st, i, s, -1, SQLITE_TRANSIENT);
+    else sqlite3_bind_null(st, i);
+}
+
+static void bind_int_or_null(sqlite3_stmt *st, int i, int v, int lo)
+{
+    if (v >= lo) sqlite3_bind_int(st, i, v);
+    else sqlite3_bind_null(st, i);
+}
+
+/* Runs a one-off statement with the binds done by the caller, then finalises it. */
+static int step_done(cat_db *cat, sqlite3_stmt *st, const char *what, bs_err *err)
+{
+    int rc = sqlite3_step(st) == SQLITE_DONE ? 0 : cat_sql_fail(cat, err, what);
+    sqlite3_finalize(st);
+    return rc;
+}
+
+static int prepare(cat_db *cat, const char *sql, sqlite3_stmt **st, bs_err *err)
+{
+    if (sqlite3_prepare_v2(cat->db, sql, -1, st, NULL) == SQLITE_OK) return 0;
+    return cat_sql_fail(cat, err, sql);
+}
+
+static int session_insert(cat_db *cat, int64_t run_id, int session, const cat_run_info *info, bs_err *err)
+{
+    sqlite3_stmt *st = NULL;
+    int rc = prepare(cat, "INSERT INTO run_sessions (run_id, session, started, ranks, hosts, cmdline)"
+                          " VALUES (?, ?, " CAT_NOW_SQL ", ?, ?, ?)", &st, err);
+    if (rc != 0) return rc;
+    sqlite3_bind_int64(st, 1, run_id);
+    sqlite3_bind_int(st, 2, session);
+    bind_int_or_null(st, 3, info->ranks, 1);
+    bind_text_or_null(st, 4, info->hosts);
+    bind_text_or_null(st, 5, info->cmdline);
+    rc = step_done(cat, st, "recording the run session", err);
+    if (rc == 0) {
+        cat->cur_run = run_id;
+        cat->cur_session = session;
+    }
+    return rc;
+}
+
+static int run_insert(cat_db *cat, const cat_run_info *info, const char *settings, int64_t *run_id, bs_err *err)
+{
+    sqlite3_stmt *st = NULL;
+    int rc = prepare(cat, "INSERT INTO runs (kind, status, started, version, settings, ranks, hosts, cmdline, set_path)"
+                          " VALUES (?, 'running', " CAT_NOW_SQL ", ?, ?, ?, ?, ?, ?)", &st, err);
+    if (rc != 0) return rc;
+    sqlite3_bind_text(st, 1, info->kind, -1, SQLITE_TRANSIENT);
+    bind_text_or_null(st, 2, info->version);
+    sqlite3_bind_text(st, 3, settings, -1, SQLITE_TRANSIENT);
+    bind_int_or_null(st, 4, info->ranks, 1);
+    bind_text_or_null(st, 5, info->hosts);
+    bind_text_or_null(st, 6, info->cmdline);
+    bind_text_or_null(st, 7, info->set_path);
+    rc = step_done(cat, st, "recording the run", err);
+    if (rc == 0) *run_id = sqlite3_last_insert_rowid(cat->db);
+    if (rc == 0) rc = session_insert(cat, *run_id, 1, info, err);
+    return rc;
+}
+
+/* The latest compatible unfinished run, or 0. */
+static int run_find(cat_db *cat, const cat_run_info *info, const char *settings, int64_t *run_id, int *sessions, bs_err *err)
+{
+    sqlite3_stmt *st = NULL;
+    *run_id = 0;
+    int rc = prepare(cat, "SELECT run_id, sessions FROM runs WHERE kind = ? AND settings = ? AND version IS ?"
+                          " AND set_path IS ? AND status IN ('running', 'interrupted') ORDER BY run_id DESC LIMIT 1",
+                     &st, err);
+    if (rc != 0) return rc;
+    sqlite3_bind_text(st, 1, info->kind, -1, SQLITE_TRANSIENT);
+    sqlite3_bind_text(st, 2, settings, -1, SQLITE_TRANSIENT);
+    bind_text_or_null(st, 3, info->version);
+    bind_text_or_null(st, 4, info->set_path);
+    int s = sqlite3_step(st);
+    if (s == SQLITE_ROW) {
+        *run_id = sqlite3_column_int64(st, 0);
+        *sessions = sqlite3_column_int(st, 1);
+    } else if (s != SQLITE_DONE) {
+        rc = cat_sql_fail(cat, err, "looking for a run to resume");
+    }
+    sqlite3_finalize(st);
+    return rc;
+}
+
+static int run_reopen(cat_db *cat, int64_t run_id, int session, const cat_run_info *info, bs_err *err)
+{
+    sqlite3_stmt *st = NULL;
+    int rc = prepare(cat, "UPDATE runs SET status = 'running', ended = NULL, sessions = ? WHERE run_id = ?", &st, err);
+    if (rc != 0) return rc;
+    sqlite3_bind_int(st, 1, session);
+    sqlite3_bind_int64(st, 2, run_id);
+    rc = step_done(cat, st, "reopening the run", err);
+    if (rc == 0) rc = session_insert(cat, run_id, session, info, err);
+    return rc;
+}
+
+/* Shared body of begin and resume: one immediate transaction after the pending batch. */
+static int run_start(cat_db *cat, const cat_run_info *info, int try_resume, int64_t *run_id, int *resumed, bs_err *err)
+{
+    *run_id = 0;
+    if (resumed) *resumed = 0;
+    int rc = check_info(cat, info, err);
+    char *settings = NULL;
+    if (rc == 0) rc = canonical_settings(info->settings_json, &settings, err);
+    if (rc == 0) rc = cat_flush(cat, err);
+    if (rc == 0) rc = cat_artifact_close(cat, err);
+    if (rc == 0) rc = cat_exec(cat, "BEGIN IMMEDIATE", err);
+    if (rc != 0) {
+        free(settings);
+        return rc;
+    }
+    int64_t id = 0;
+    int sessions = 0;
+    if (try_resume) rc = run_find(cat, info, settings, &id, &sessions, err);
+    if (rc == 0 && id > 0) rc = run_reopen(cat, id, sessions + 1, info, err);
+    else if (rc == 0) rc = run_insert(cat, info, settings, &id, err);
+    free(settings);
+    if (rc == 0) rc = cat_exec(cat, "COMMIT", err);
+    if (rc != 0) {
+        sqlite3_exec(cat->db, "ROLLBACK", NULL, NULL, NULL);
+        cat->cur_run = 0;
+        return rc;
+    }
+    *run_id = id;
+    if (resumed) *resumed = sessions > 0;
+    return 0;
+}
+
+int cat_run_begin(cat_db *cat, const cat_run_info *info, int64_t *run_id, bs_err *err)
+{
+    return run_start(cat, info, 0, run_id, NULL, err);
+}
+
+int cat_run_resume(cat_db *cat, const cat_run_info *info, int64_t *run_id, int *resumed, bs_err *err)
+{
+    return run_start(cat, info, 1, run_id, resumed, err);
+}
+
+int cat_run_end(cat_db *cat, int64_t run_id, cat_run_status status, bs_err *err)
+{
+    int rc = need_rw(cat, "ending a run", err);
+    const char *name = cat_run_status_name(status);
+    if (rc == 0 && (!name || status == CAT_RUN_RUNNING))
+        rc = bs_fail(err, BS_EINVAL, "cat_run_end: status %d is not done, interrupted or failed", (int)status);
+    if (rc == 0) rc = cat_flush(cat, err);
+    if (rc == 0 && cat->h5_run == run_id) rc = cat_artifact_close(cat, err);
+    if (rc != 0) return rc;
+    sqlite3_stmt *st = NULL;
+    rc = prepare(cat, "UPDATE runs SET status = ?, ended = " CAT_NOW_SQL " WHERE run_id = ?", &st, err);
+    if (rc != 0) return rc;
+    sqlite3_bind_text(st, 1, name, -1, SQLITE_STATIC);
+    sqlite3_bind_int64(st, 2, run_id);
+    rc = step_done(cat, st, "ending the run", err);
+    if (rc == 0 && sqlite3_changes(cat->db) != 1)
+        return bs_fail(err, BS_EINVAL, "%s: cat_run_end: no run %lld", cat->path, (long long)run_id);
+    if (rc == 0) rc = prepare(cat, "UPDATE run_sessions SET ended = " CAT_NOW_SQL " WHERE run_id = ?1 AND session ="
+                                   " (SELECT MAX(session) FROM run_sessions WHERE run_id = ?1)", &st, err);
+    if (rc != 0) return rc;
+    sqlite3_bind_int64(st, 1, run_id);
+    rc = step_done(cat, st, "ending the run session", err);
+    if (rc == 0 && cat->cur_run == run_id) cat->cur_run = 0;
+    return rc;
+}
+
+int cat_session_of(cat_db *cat, int64_t run_id, int *session, bs_err *err)
+{
+    if (cat->cur_run == run_id && cat->cur_session > 0) {
+        *session = cat->cur_session;
+        return 0;
+    }
+    sqlite3_stmt *st = NULL;
+    int rc = prepare(cat, "SELECT COALESCE(MAX(session), 1) FROM run_sessions WHERE run_id = ?", &st, err);
+    if (rc != 0) return rc;
+    sqlite3_bind_int64(st, 1, run_id);
+    if (sqlite3_step(st) == SQLITE_ROW) *session = sqlite3_column_int(st, 0);
+    else rc = cat_sql_fail(cat, err, "looking up the run session");
+    sqlite3_finalize(st);
+    return rc;
+}
+
+int cat_session_set_file(cat_db *cat, int64_t run_id, int session, const char *file, bs_err *err)
+{
+    sqlite3_stmt *st = NULL;
+    int rc = prepare(cat, "UPDATE run_sessions SET artifact_file = ? WHERE run_id = ? AND session = ?", &st, err);
+    if (rc != 0) return rc;
+    sqlite3_bind_text(st, 1, file, -1, SQLITE_TRANSIENT);
+    sqlite3_bind_int64(st, 2, run_id);
+    sqlite3_bind_int(st, 3, session);
+    return step_done(cat, st, "recording the artifact file", err);
+}
+
+/* ---- materials ---- */
+
+int cat_material_upsert(cat_db *cat, const cat_material *m, bs_err *err)
+{
+    int rc = need_rw(cat, "cat_material_upsert", err);
+    if (rc != 0) return rc;
+    if (!m || !m->material_id || !*m->material_id || strlen(m->material_id) > 127)
+        return bs_fail(err, BS_EINVAL, "material: expected an id of 1 to 127 bytes");
+    if (m->dimension > 0 && m->dimension != 2 && m->dimension != 3)
+        return bs_fail(err, BS_EINVAL, "material %s: dimension must be 2 or 3, found %d", m->material_id, m->dimension);
+    rc = cat_txn_begin(cat, err);
+    if (rc != 0) return rc;
+    sqlite3_stmt *st = cat->st[CAT_ST_MAT_UPSERT];
+    sqlite3_bind_text(st, 1, m->material_id, -1, SQLITE_TRANSIENT);
+    bind_text_or_null(st, 2, m->formula);
+    bind_int_or_null(st, 3, m->dimension, 1);
+    bind_int_or_null(st, 4, m->norb, 1);
+    bind_int_or_null(st, 5, m->nr, 1);
+    bind_int_or_null(st, 6, m->nocc, 1);
+    bind_int_or_null(st, 7, m->spinful, 0);
+    bind_text_or_null(st, 8, m->set_path);
+    bind_text_or_null(st, 9, m->source);
+    bind_text_or_null(st, 10, m->card_json);
+    int s = sqlite3_step(st);
+    sqlite3_reset(st);
+    sqlite3_clear_bindings(st);
+    if (s != SQLITE_DONE) {
+        rc = cat_sql_fail(cat, err, "writing the material");
+        return bs_err_context(err, "material %s: ", m->material_id);
+    }
+    return cat_txn_note(cat, 0, err);
+}
+
+/* ---- id lists ---- */
+
+void cat_ids_init(cat_ids *ids)
+{
+    ids->n = 0;
+    ids->id = NULL;
+}
+
+void cat_ids_clear(cat_ids *ids)
+{
+    if (!ids) return;
+    for (size_t i = 0; i < ids->n; i++) free(ids->id[i]);
+    free(ids->id);
+    cat_ids_init(ids);
+}
+
+static int str_cmp(const void *a, const void *b)
+{
+    return strcmp(*(char *const *)a, *(char *const *)b);
+}
+
+int cat_ids_contains(const cat_ids *ids, const char *id)
+{
+    if (!ids || ids->n == 0 || !id) return 0;
+    return bsearch(&id, ids->id, ids->n, sizeof *ids->id, str_cmp) != NULL;
+}
+
+typedef struct ids_acc {
+    cat_ids list;
+    size_t cap;
+} ids_acc;
+
+static int ids_add(void *ctx, const cat_row *row, bs_err *err)
+{
+    ids_acc *acc = ctx;
+    if (row->index < 0) return 0;
+    if (!row->text[0]) return 0; /* a NULL id cannot be handed out */
+    if (acc->list.n == acc->cap) {
+        size_t cap = acc->cap ? 2 * acc->cap : 256;
+        char **grown = realloc(acc->list.id, cap * sizeof *grown);
+        if (!grown) return bs_fail(err, BS_ENOMEM, "material id list: out of memory");
+        acc->list.id = grown;
+        acc->cap = cap;
+    }
+    if (!(acc->list.id[acc->list.n] = strdup(row->text[0]))) return bs_fail(err, BS_ENOMEM, "material id list: out of memory");
+    acc->list.n++;
+    return 0;
+}
+
+/* Runs sql (one read-only statement with material ids in column 0, no parameters except an
+ * optional ?1 = run_id) into a sorted, duplicate-free list. */
+static int collect_ids(cat_db *cat, const char *sql, int64_t run_id, cat_ids *ids, bs_err *err);
+
+int cat_done_ids(cat_db *cat, int64_t run_id, cat_ids *ids, bs_err *err)
+{
+    return collect_ids(cat, "SELECT material_id FROM results WHERE run_id = ?1", run_id, ids, err);
+}
+
+int cat_select_ids(cat_db *cat, const char *where_sql, cat_ids *ids, bs_err *err)
+{
+    const char *cond = where_sql && *where_sql ? where_sql : "1";
+    /* Newlines keep a trailing "--" comment in the condition from hiding the closing bracket. */
+    size_t len = strlen(cond) + 64;
+    char *sql = malloc(len);
+    if (!sql) return bs_fail(err, BS_ENOMEM, "cat_select_ids: out of memory");
+    snprintf(sql, len, "SELECT material_id FROM summary WHERE (\n%s\n)", cond);
+    int rc = collect_ids(cat, sql, 0, ids, err);
+    free(sql);
+    if (rc != 0) bs_err_context(err, "--where condition: ");
+    return rc;
+}
+
+/* ---- read-only queries ---- */
+
+/* Pragmas that only take an object name as argument and read; any other pragma with an argument
+ * may set something and is refused. */
+static const char *const READ_PRAGMAS[] = {"table_info", "table_xinfo", "index_list", "index_info",
+                                           "index_xinfo", "foreign_key_list", "integrity_check",
+                                           "quick_check", NULL};
+
+static int query_authorizer(void *ctx, int action, const char *a1, const char *a2, const char *db, const char *trigger)
+{
+    (void)ctx; (void)db; (void)trigger;
+    if (action == SQLITE_ATTACH || action == SQLITE_DETACH) return SQLITE_DENY;
+    if (action == SQLITE_PRAGMA && a2) {
+        for (int i = 0; READ_PRAGMAS[i]; i++)
+            if (sqlite3_stricmp(a1, READ_PRAGMAS[i]) == 0) return SQLITE_OK;
+        return SQLITE_DENY;
+    }
+    return SQLITE_OK;
+}
+
+/* Prepares exactly one statement and refuses anything that could write. */
+static int query_prepare(cat_db *cat, const char *sql, sqlite3_stmt **out, bs_err *err)
+{
+    *out = NULL;
+    sqlite3_stmt *st = NULL;
+    const char *tail = NULL;
+    if (!sql) return bs_fail(err, BS_EINVAL, "query: no SQL given");
+    sqlite3_set_authorizer(cat->db, query_authorizer, NULL);
+    int s = sqlite3_prepare_v2(cat->db, sql, -1, &st, &tail);
+    sqlite3_set_authorizer(cat->db, NULL, NULL);
+    if (s != SQLITE_OK) {
+        if (s == SQLITE_AUTH)
+            return bs_fail(err, BS_EINVAL, "query refused: ATTACH, DETACH and PRAGMAs that set values are not allowed (%s)",
+                           sqlite3_errmsg(cat->db));
+        return cat_sql_fail(cat, err, "query");
+    }
+    if (!st) return bs_fail(err, BS_EINVAL, "query: no SQL statement in \"%.60s\"", sql);
+    int rc = 0;
+    if (!sqlite3_stmt_readonly(st))
+        rc = bs_fail(err, BS_EINVAL, "query refused: the statement would modify the catalogue (only read-only SQL is run): %.80s", sql);
+    while (rc == 0 && tail && *tail) {
+        sqlite3_stmt *more = NULL;
+        const char *next = NULL;
+        if (sqlite3_prepare_v2(cat->db, tail, -1, &more, &next) != SQLITE_OK) {
+            rc = cat_sql_fail(cat, err, "query (after the first statement)");
+        } else if (more) {
+            rc = bs_fail(err, BS_EINVAL, "query refused: one statement at a time, found more after \"%.60s\"", sql);
+        }
+        sqlite3_finalize(more);
+        if (next == tail) break;
+        tail = next;
+    }
+    if (rc != 0) {
+        sqlite3_finalize(st);
+        return rc;
+    }
+    *out = st;
+    return 0;
+}
+
+static int col_type(int t)
+{
+    switch (t) {
+    case SQLITE_INTEGER: return CAT_COL_INTEGER;
+    case SQLITE_FLOAT: return CAT_COL_REAL;
+    case SQLITE_TEXT: return CAT_COL_TEXT;
+    case SQLITE_BLOB: return CAT_COL_BLOB;
+    default: return CAT_COL_NULL;
+    }
+}
+
+/* Steps st, calling fn for the header and each row. */
+static int query_rows(cat_db *cat, sqlite3_stmt *st, cat_row_fn fn, void *ctx, bs_err *err)
+{
+    int ncol = sqlite3_column_count(st);
+    size_t n = ncol > 0 ? (size_t)ncol : 1;
+    const char **name = calloc(n, sizeof *name);
+    const char **text = calloc(n, sizeof *text);
+    int *type = calloc(n, sizeof *type);
+    int rc = name && text && type ? 0 : bs_fail(err, BS_ENOMEM, "query: out of memory");
+    for (int i = 0; rc == 0 && i < ncol; i++) name[i] = sqlite3_column_name(st, i);
+    cat_row row = {ncol, name, NULL, NULL, -1};
+    if (rc == 0) rc = fn(ctx, &row, err);
+    row.text = text;
+    row.type = type;
+    while (rc == 0) {
+        int s = sqlite3_step(st);
+        if (s == SQLITE_DONE) break;
+        if (s != SQLITE_ROW) {
+            rc = cat_sql_fail(cat, err, "query");
+            break;
+        }
+        for (int i = 0; i < ncol; i++) {
+            type[i] = col_type(sqlite3_column_type(st, i));
+            text[i] = type[i] == CAT_COL_NULL ? NULL : (const char *)sqlite3_column_text(st, i);
+        }
+        row.index++;
+        rc = fn(ctx, &row, err);
+    }
+    free(name);
+    free(text);
+    free(type);
+    return rc;
+}
+
+int cat_query(cat_db *cat, const char *sql, cat_row_fn fn, void *ctx, bs_err *err)
+{
+    sqlite3_stmt *st = NULL;
+    int rc = query_prepare(cat, sql, &st, err);
+    if (rc != 0) return rc;
+    rc = query_rows(cat, st, fn, ctx, err);
+    sqlite3_finalize(st);
+    return rc;
+}
+
+static int collect_ids(cat_db *cat, const char *sql, int64_t run_id, cat_ids *ids, bs_err *err)
+{
+    sqlite3_stmt *st = NULL;
+    int rc = query_prepare(cat, sql, &st, err);
+    if (rc != 0) return rc;
+    if (run_id > 0) sqlite3_bind_int64(st, 1, run_id);
+    ids_acc acc = {{0, NULL}, 0};
+    rc = query_rows(cat, st, ids_add, &acc, err);
+    sqlite3_finalize(st);
+    if (rc != 0) {
+        cat_ids_clear(&acc.list);
+        return rc;
+    }
+    qsort(acc.list.id, acc.list.n, sizeof *acc.list.id, str_cmp);
+    size_t k = 0; /* drop duplicates (the same id selected twice) */
+    for (size_t i = 0; i < acc.list.n; i++) {
+        if (k > 0 && strcmp(acc.list.id[k - 1], acc.list.id[i]) == 0) free(acc.list.id[i]);
+        else acc.list.id[k++] = acc.list.id[i];
+    }
+    acc.list.n = k;
+    cat_ids_clear(ids);
+    *ids = acc.list;
+    return 0;
+}
+
+typedef struct check_acc {
+    char first[400];
+    long long nrow;
+} check_acc;
+
+static int check_row(void *ctx, const cat_row *row, bs_err *err)
+{
+    (void)err;
+    check_acc *acc = ctx;
+    if (row->index == 0) snprintf(acc->first, sizeof acc->first, "%s", row->text[0] ? row->text[0] : "(null)");
+    if (row->index >= 0) acc->nrow++;
+    return 0;
+}
+
+int cat_check(cat_db *cat, bs_err *err)
+{
+    check_acc acc = {"", 0};
+    int rc = cat_query(cat, "PRAGMA integrity_check", check_row, &acc, err);
+    if (rc != 0) return rc;
+    if (acc.nrow == 1 && strcmp(acc.first, "ok") == 0) return 0;
+    return bs_fail(err, BS_ESQL, "%s: integrity check failed: %s (%lld messages)", cat->path, acc.first, acc.nrow);
+}

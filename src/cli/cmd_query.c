@@ -1,0 +1,332 @@
+/* `bandsieve query CAT.sqlite "SQL" | --view NAME [--format table|csv|json]`: runs one read-only
+ * statement on a catalogue opened read-only and prints the rows. */
+#include <ctype.h>
+#include <math.h>
+#include <stdio.h>
+#include <stdlib.h>
+#include <string.h>
+
+#include "bandsieve/catalogue.h"
+#include "commands.h"
+
+enum { FMT_TABLE, FMT_CSV, FMT_JSON };
+
+/* Table cells longer than this are cut with "..." (csv and json print everything). */
+#define QUERY_CELL_MAX 60
+
+static void query_usage(FILE *out)
+{
+    fprintf(out,
+            "usage: bandsieve query CAT.sqlite \"SQL\" [--format table|csv|json]\n"
+            "       bandsieve query CAT.sqlite --view NAME [--format table|csv|json]\n\n"
+            "Runs one read-only SQL statement (or SELECT * FROM a view) on a catalogue and prints\n"
+            "the rows. The catalogue is opened read-only, and statements that would change it\n"
+            "(INSERT, UPDATE, DELETE, CREATE, DROP, ATTACH, PRAGMAs that set values) are refused.\n\n"
+            "  --view NAME     one of the catalogue views: summary, candidates, failures, run_progress\n"
+            "  --format FMT    table (default; aligned columns, numbers right-aligned, NULL blank,\n"
+            "                  long text cut at %d characters), csv (RFC 4180, NULL empty, header row)\n"
+            "                  or json (a list of objects, NULL as null)\n"
+            "  -h, --help      this text\n\n"
+            "Tables, columns and views are described in db/README.md.\n",
+            QUERY_CELL_MAX);
+}
+
+/* All rows kept as text for the table layout (widths need every row first). */
+typedef struct q_table {
+    int ncol;
+    char **name;
+    size_t nrow, cap;
+    char **cell;   /* nrow * ncol, NULL for SQL NULL */
+    int *type;     /* nrow * ncol */
+} q_table;
+
+typedef struct q_out {
+    int format;
+    FILE *fp;
+    q_table t;
+    long long nrow; /* rows streamed (csv, json) */
+} q_out;
+
+static void csv_field(FILE *fp, const char *s)
+{
+    if (!s) return;
+    if (!strpbrk(s, ",\"\r\n")) {
+        fputs(s, fp);
+        return;
+    }
+    fputc('"', fp);
+    for (const char *p = s; *p; p++) {
+        if (*p == '"') fputc('"', fp);
+        fputc(*p, fp);
+    }
+    fputc('"', fp);
+}
+
+static void json_string(FILE *fp, const char *s)
+{
+    fputc('"', fp);
+    for (const unsigned char *p = (const unsigned char *)s; *p; p++) {
+        if (*p == '"' || *p == '\\') fprintf(fp, "\\%c", *p);
+        else if (*p == '\n') fputs("\\n", fp);
+        else if (*p == '\t') fputs("\\t", fp);
+        else if (*p == '\r') fputs("\\r", fp);
+        else if (*p < 0x20) fprintf(fp, "\\u%04x", *p);
+        else fputc(*p, fp);
+    }
+    fputc('"', fp);
+}
+
+static void json_value(FILE *fp, const char *s, int type)
+{
+    if (!s || type == CAT_COL_NULL) {
+        fputs("null", fp);
+        return;
+    }
+    if (type == CAT_COL_INTEGER) {
+        fputs(s, fp);
+        return;
+    }
+    if (type == CAT_COL_REAL) {
+        double v = strtod(s, NULL);
+        if (isfinite(v)) fprintf(fp, "%.17g", v);
+        else fputs("null", fp); /* JSON has no infinity */
+        return;
+    }
+    json_string(fp, s);
+}
+
+static int row_stream(q_out *o, const cat_row *row)
+{
+    if (o->format == FMT_CSV) {
+        for (int i = 0; i < row->ncol; i++) {
+            if (i) fputc(',', o->fp);
+            csv_field(o->fp, row->index < 0 ? row->name[i] : row->text[i]);
+        }
+        fputs("\r\n", o->fp);
+        return 0;
+    }
+    if (row->index < 0) return 0;
+    fputs(o->nrow++ == 0 ? "[\n  {" : ",\n  {", o->fp);
+    for (int i = 0; i < row->ncol; i++) {
+        if (i) fputs(", ", o->fp);
+        json_string(o->fp, row->name[i]);
+        fputs(": ", o->fp);
+        json_value(o->fp, row->text[i], row->type[i]);
+    }
+    fputc('}', o->fp);
+    return 0;
+}
+
+static char *dup_or_null(const char *s, int *failed)
+{
+    if (!s) return NULL;
+    char *d = strdup(s);
+    if (!d) *failed = 1;
+    return d;
+}
+
+static int row_keep(q_out *o, const cat_row *row, bs_err *err)
+{
+    q_table *t = &o->t;
+    int failed = 0;
+    if (row->index < 0) {
+        t->ncol = row->ncol;
+        t->name = calloc(row->ncol > 0 ? (size_t)row->ncol : 1, sizeof *t->name);
+        if (!t->name) return bs_fail(err, BS_ENOMEM, "query: out of memory");
+        for (int i = 0; i < row->ncol; i++) t->name[i] = dup_or_null(row->name[i], &failed);
+        return failed ? bs_fail(err, BS_ENOMEM, "query: out of memory") : 0;
+    }
+    if (t->nrow == t->cap) {
+        size_t cap = t->cap ? 2 * t->cap : 64;
+        char **cell = realloc(t->cell, cap * (size_t)t->ncol * sizeof *cell);
+        if (!cell) return bs_fail(err, BS_ENOMEM, "query: out of memory");
+        t->cell = cell;
+        int *type = realloc(t->type, cap * (size_t)t->ncol * sizeof *type);
+        if (!type) return bs_fail(err, BS_ENOMEM, "query: out of memory");
+        t->type = type;
+        t->cap = cap;
+    }
+    for (int i = 0; i < t->ncol; i++) {
+        size_t k = t->nrow * (size_t)t->ncol + (size_t)i;
+        t->type[k] = row->type[i];
+        t->cell[k] = dup_or_null(row->text[i], &failed);
+    }
+    t->nrow++;
+    return failed ? bs_fail(err, BS_ENOMEM, "query: out of memory") : 0;
+}
+
+static int on_row(void *ctx, const cat_row *row, bs_err *err)
+{
+    q_out *o = ctx;
+    if (o->format == FMT_TABLE) return row_keep(o, row, err);
+    return row_stream(o, row);
+}
+
+/* The text a table cell shows: reals to 6 significant digits, one line, at most QUERY_CELL_MAX. */
+static void cell_text(const char *s, int type, char *out, size_t len)
+{
+    if (!s) {
+        out[0] = '\0';
+        return;
+    }
+    if (type == CAT_COL_REAL) {
+        snprintf(out, len, "%.6g", strtod(s, NULL));
+        return;
+    }
+    size_t k = 0;
+    for (const char *p = s; *p && k + 1 < len; p++) out[k++] = (*p == '\n' || *p == '\t' || *p == '\r') ? ' ' : *p;
+    out[k] = '\0';
+    if (k > QUERY_CELL_MAX) snprintf(out + QUERY_CELL_MAX - 3, len - (QUERY_CELL_MAX - 3), "...");
+}
+
+static void table_print(const q_table *t, FILE *fp)
+{
+    size_t *width = calloc(t->ncol > 0 ? (size_t)t->ncol : 1, sizeof *width);
+    char buf[QUERY_CELL_MAX + 8];
+    if (!width) return;
+    for (int i = 0; i < t->ncol; i++) {
+        width[i] = strlen(t->name[i] ? t->name[i] : "");
+        for (size_t r = 0; r < t->nrow; r++) {
+            size_t k = r * (size_t)t->ncol + (size_t)i;
+            cell_text(t->cell[k], t->type[k], buf, sizeof buf);
+            if (strlen(buf) > width[i]) width[i] = strlen(buf);
+        }
+    }
+    for (int i = 0; i < t->ncol; i++) fprintf(fp, "%s%-*s", i ? "  " : "", (int)width[i], t->name[i] ? t->name[i] : "");
+    fputc('\n', fp);
+    for (int i = 0; i < t->ncol; i++) {
+        fputs(i ? "  " : "", fp);
+        for (size_t w = 0; w < width[i]; w++) fputc('-', fp);
+    }
+    fputc('\n', fp);
+    for (size_t r = 0; r < t->nrow; r++) {
+        for (int i = 0; i < t->ncol; i++) {
+            size_t k = r * (size_t)t->ncol + (size_t)i;
+            cell_text(t->cell[k], t->type[k], buf, sizeof buf);
+            int numeric = t->type[k] == CAT_COL_INTEGER || t->type[k] == CAT_COL_REAL;
+            fprintf(fp, numeric ? "%s%*s" : "%s%-*s", i ? "  " : "", (int)width[i], buf);
+        }
+        fputc('\n', fp);
+    }
+    fprintf(fp, "(%zu row%s)\n", t->nrow, t->nrow == 1 ? "" : "s");
+    free(width);
+}
+
+static void table_free(q_table *t)
+{
+    for (int i = 0; t->name && i < t->ncol; i++) free(t->name[i]);
+    for (size_t k = 0; t->cell && k < t->nrow * (size_t)t->ncol; k++) free(t->cell[k]);
+    free(t->name);
+    free(t->cell);
+    free(t->type);
+}
+
+typedef struct view_list {
+    char names[512];
+    int found;
+    const char *want;
+} view_list;
+
+static int on_view(void *ctx, const cat_row *row, bs_err *err)
+{
+    (void)err;
+    view_list *v = ctx;
+    if (row->index < 0 || !row->text[0]) return 0;
+    if (strcmp(row->text[0], v->want) == 0) v->found = 1;
+    size_t len = strlen(v->names);
+    snprintf(v->names + len, sizeof v->names - len, "%s%s", len ? ", " : "", row->text[0]);
+    return 0;
+}
+
+/* "SELECT * FROM NAME" for a view that exists; the name is checked against sqlite_master, so
+ * nothing from the command line is pasted into SQL unchecked. */
+static int view_sql(cat_db *cat, const char *name, char *sql, size_t len, bs_err *err)
+{
+    view_list v = {"", 0, name};
+    int rc = cat_query(cat, "SELECT name FROM sqlite_master WHERE type = 'view' ORDER BY name", on_view, &v, err);
+    if (rc != 0) return rc;
+    if (!v.found) return bs_fail(err, BS_EUSAGE, "no view \"%s\" in the catalogue (views: %s)", name, v.names);
+    snprintf(sql, len, "SELECT * FROM \"%s\"", name);
+    return 0;
+}
+
+typedef struct q_args {
+    const char *path, *sql, *view;
+    int format;
+} q_args;
+
+static int parse_args(int argc, char **argv, q_args *a)
+{
+    a->path = a->sql = a->view = NULL;
+    a->format = FMT_TABLE;
+    for (int i = 1; i < argc; i++) {
+        const char *s = argv[i];
+        if (!strcmp(s, "--view") || !strcmp(s, "--format")) {
+            if (i + 1 >= argc) {
+                fprintf(stderr, "bandsieve query: %s needs a value\n", s);
+                return 2;
+            }
+            const char *v = argv[++i];
+            if (!strcmp(s, "--view")) {
+                a->view = v;
+            } else if (!strcmp(v, "table")) {
+                a->format = FMT_TABLE;
+            } else if (!strcmp(v, "csv")) {
+                a->format = FMT_CSV;
+            } else if (!strcmp(v, "json")) {
+                a->format = FMT_JSON;
+            } else {
+                fprintf(stderr, "bandsieve query: --format must be table, csv or json, not \"%s\"\n", v);
+                return 2;
+            }
+        } else if (s[0] == '-' && s[1] == '-') {
+            fprintf(stderr, "bandsieve query: unknown option %s (bandsieve query --help)\n", s);
+            return 2;
+        } else if (!a->path) {
+            a->path = s;
+        } else if (!a->sql) {
+            a->sql = s;
+        } else {
+            fprintf(stderr, "bandsieve query: one SQL statement only; quote it as one argument\n");
+            return 2;
+        }
+    }
+    if (!a->path || (!a->sql && !a->view) || (a->sql && a->view)) {
+        fprintf(stderr, "bandsieve query: give a catalogue and either \"SQL\" or --view NAME (bandsieve query --help)\n");
+        return 2;
+    }
+    return 0;
+}
+
+int cmd_query(int argc, char **argv)
+{
+    for (int i = 1; i < argc; i++)
+        if (!strcmp(argv[i], "--help") || !strcmp(argv[i], "-h")) {
+            query_usage(stdout);
+            return 0;
+        }
+    q_args a;
+    int status = parse_args(argc, argv, &a);
+    if (status != 0) return status;
+    bs_err err;
+    bs_err_clear(&err);
+    cat_db *cat = NULL;
+    char view[160];
+    int rc = cat_open(a.path, CAT_RO, &cat, &err);
+    const char *sql = a.sql;
+    if (rc == 0 && a.view) {
+        rc = view_sql(cat, a.view, view, sizeof view, &err);
+        sql = view;
+    }
+    q_out o = {a.format, stdout, {0, NULL, 0, 0, NULL, NULL}, 0};
+    if (rc == 0) rc = cat_query(cat, sql, on_row, &o, &err);
+    if (rc == 0 && a.format == FMT_TABLE) table_print(&o.t, stdout);
+    if (rc == 0 && a.format == FMT_JSON) fputs(o.nrow ? "\n]\n" : "[]\n", stdout);
+    table_free(&o.t);
+    cat_close(cat, NULL);
+    if (rc != 0) {
+        fprintf(stderr, "bandsieve query: %s\n", err.msg);
+        return rc == BS_EUSAGE ? 2 : 1;
+    }
+    return 0;
+}

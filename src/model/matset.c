@@ -1,0 +1,664 @@
+/* Material-set HDF5 file: writer (pack, demo-set) and read-only reader (screen workers).
+ * Every HDF5 call runs with HDF5's automatic error printing off (H5E_BEGIN_TRY), since library
+ * code never prints; the deepest HDF5 message is copied into ours instead. */
+#include "bandsieve/matset.h"
+
+#include <errno.h>
+#include <hdf5.h>
+#include <stdarg.h>
+#include <stdio.h>
+#include <stdlib.h>
+#include <string.h>
+#include <unistd.h>
+
+#include "bandsieve/card.h"
+#include "bandsieve/config.h"
+
+#define MS_FORMAT "bandsieve-material-set"
+#define MS_FORMAT_VERSION 1
+#define MS_MAX_ENTRIES 10000000 /* an index larger than this is not ours */
+#define MS_MAX_TEXT 4096        /* description and error texts */
+
+struct ms_set {
+    hid_t file;
+    int writer, closed;
+    char path[4096];
+    char partial[4200];
+    ms_entry *entries;
+    int n, cap;
+    char description[MS_MAX_TEXT];
+    int invented;
+};
+
+static herr_t h5_walk(unsigned n, const H5E_error2_t *e, void *data)
+{
+    (void)n;
+    if (e->desc && *e->desc) snprintf(data, 256, "%s", e->desc);
+    return 0;
+}
+
+/* Fails with BS_EHDF5 and the deepest message on HDF5's error stack. */
+static int h5_fail(bs_err *err, const char *fmt, ...) __attribute__((format(printf, 2, 3)));
+static int h5_fail(bs_err *err, const char *fmt, ...)
+{
+    char what[300], deep[256] = "";
+    va_list ap;
+    va_start(ap, fmt);
+    vsnprintf(what, sizeof what, fmt, ap);
+    va_end(ap);
+    H5Ewalk2(H5E_DEFAULT, H5E_WALK_DOWNWARD, h5_walk, deep);
+    if (deep[0]) return bs_fail(err, BS_EHDF5, "%s (HDF5: %s)", what, deep);
+    return bs_fail(err, BS_EHDF5, "%s", what);
+}
+
+/* ---- attributes ---- */
+
+static int attr_write(hid_t loc, const char *name, hid_t type, const void *v)
+{
+    hid_t sp = H5Screate(H5S_SCALAR);
+    hid_t a = sp < 0 ? -1 : H5Acreate2(loc, name, type, sp, H5P_DEFAULT, H5P_DEFAULT);
+    herr_t st = a < 0 ? -1 : H5Awrite(a, type, v);
+    if (a >= 0) H5Aclose(a);
+    if (sp >= 0) H5Sclose(sp);
+    return st < 0 ? -1 : 0;
+}
+
+static int attr_write_int(hid_t loc, const char *name, int v) { return attr_write(loc, name, H5T_NATIVE_INT, &v); }
+
+static int attr_write_double(hid_t loc, const char *name, double v)
+{
+    return attr_write(loc, name, H5T_NATIVE_DOUBLE, &v);
+}
+
+static int attr_write_str(hid_t loc, const char *name, const char *v)
+{
+    hid_t t = H5Tcopy(H5T_C_S1);
+    if (t < 0) return -1;
+    int rc = H5Tset_size(t, strlen(v) + 1) < 0 || H5Tset_strpad(t, H5T_STR_NULLTERM) < 0 ? -1
+                                                                                           : attr_write(loc, name, t, v);
+    H5Tclose(t);
+    return rc;
+}
+
+/* 0, or -1 when the attribute is missing or not readable as an int. */
+static int attr_read_int(hid_t loc, const char *name, int *v)
+{
+    if (H5Aexists(loc, name) <= 0) return -1;
+    hid_t a = H5Aopen(loc, name, H5P_DEFAULT);
+    if (a < 0) return -1;
+    hid_t sp = H5Aget_space(a);
+    int ok = sp >= 0 && H5Sget_simple_extent_npoints(sp) == 1 && H5Aread(a, H5T_NATIVE_INT, v) >= 0;
+    if (sp >= 0) H5Sclose(sp);
+    H5Aclose(a);
+    return ok ? 0 : -1;
+}
+
+static int attr_read_double(hid_t loc, const char *name, double *v)
+{
+    if (H5Aexists(loc, name) <= 0) return -1;
+    hid_t a = H5Aopen(loc, name, H5P_DEFAULT);
+    if (a < 0) return -1;
+    hid_t sp = H5Aget_space(a);
+    int ok = sp >= 0 && H5Sget_simple_extent_npoints(sp) == 1 && H5Aread(a, H5T_NATIVE_DOUBLE, v) >= 0;
+    if (sp >= 0) H5Sclose(sp);
+    H5Aclose(a);
+    return ok ? 0 : -1;
+}
+
+/* Reads a fixed-length string attribute into dst (capacity cap, truncated, NUL-terminated).
+ * 0, or -1 when missing or not a fixed-length string. */
+static int attr_read_str(hid_t loc, const char *name, char *dst, size_t cap)
+{
+    dst[0] = '\0';
+    if (H5Aexists(loc, name) <= 0) return -1;
+    hid_t a = H5Aopen(loc, name, H5P_DEFAULT);
+    if (a < 0) return -1;
+    hid_t ft = H5Aget_type(a);
+    int rc = -1;
+    if (ft >= 0 && H5Tget_class(ft) == H5T_STRING && H5Tis_variable_str(ft) == 0) {
+        size_t size = H5Tget_size(ft);
+        char *buf = size > 0 && size < (1u << 20) ? calloc(size + 1, 1) : NULL;
+        hid_t mt = H5Tcopy(ft);
+        if (buf && mt >= 0 && H5Aread(a, mt, buf) >= 0) {
+            snprintf(dst, cap, "%s", buf);
+            rc = 0;
+        }
+        if (mt >= 0) H5Tclose(mt);
+        free(buf);
+    }
+    if (ft >= 0) H5Tclose(ft);
+    H5Aclose(a);
+    return rc;
+}
+
+/* ---- datasets ---- */
+
+static int dset_write(hid_t loc, const char *name, hid_t type, int rank, const hsize_t *dims, const void *buf)
+{
+    hid_t sp = H5Screate_simple(rank, dims, NULL);
+    hid_t d = sp < 0 ? -1 : H5Dcreate2(loc, name, type, sp, H5P_DEFAULT, H5P_DEFAULT, H5P_DEFAULT);
+    herr_t st = d < 0 ? -1 : H5Dwrite(d, type, H5S_ALL, H5S_ALL, H5P_DEFAULT, buf);
+    if (d >= 0) H5Dclose(d);
+    if (sp >= 0) H5Sclose(sp);
+    return st < 0 ? -1 : 0;
+}
+
+/* Reads dataset name of exactly the shape dims into buf, checking the shape before reading. */
+static int dset_read(hid_t loc, const char *where, const char *name, hid_t type, int rank, const hsize_t *dims,
+                     void *buf, bs_err *err)
+{
+    if (H5Lexists(loc, name, H5P_DEFAULT) <= 0)
+        return bs_fail(err, BS_EPARSE, "%s/%s: dataset missing", where, name);
+    hid_t d = H5Dopen2(loc, name, H5P_DEFAULT);
+    if (d < 0) return h5_fail(err, "%s/%s: cannot open dataset", where, name);
+    int rc = 0;
+    hid_t sp = H5Dget_space(d);
+    hsize_t got[8] = {0};
+    int r = sp < 0 ? -1 : H5Sget_simple_extent_ndims(sp);
+    if (r != rank || r > 8 || H5Sget_simple_extent_dims(sp, got, NULL) < 0 ||
+        memcmp(got, dims, (size_t)rank * sizeof *dims) != 0) {
+        char want[96] = "", have[96] = "";
+        for (int i = 0; i < rank; i++)
+            snprintf(want + strlen(want), sizeof want - strlen(want), "%s%llu", i ? "," : "",
+                     (unsigned long long)dims[i]);
+        for (int i = 0; i < r && i < 8; i++)
+            snprintf(have + strlen(have), sizeof have - strlen(have), "%s%llu", i ? "," : "",
+                     (unsigned long long)got[i]);
+        rc = bs_fail(err, BS_EPARSE, "%s/%s: shape (%s), expected (%s)", where, name, have, want);
+    } else if (H5Dread(d, type, H5S_ALL, H5S_ALL, H5P_DEFAULT, buf) < 0) {
+        rc = h5_fail(err, "%s/%s: cannot read dataset", where, name);
+    }
+    if (sp >= 0) H5Sclose(sp);
+    H5Dclose(d);
+    return rc;
+}
+
+/* ---- the index table ---- */
+
+static hid_t index_type(void)
+{
+    hid_t t = H5Tcreate(H5T_COMPOUND, sizeof(ms_entry));
+    hid_t s = H5Tcopy(H5T_C_S1);
+    H5Tset_size(s, sizeof(((ms_entry *)0)->id));
+    H5Tset_strpad(s, H5T_STR_NULLTERM);
+    H5Tinsert(t, "id", HOFFSET(ms_entry, id), s);
+    H5Tinsert(t, "dimension", HOFFSET(ms_entry, dim), H5T_NATIVE_INT);
+    H5Tinsert(t, "norb", HOFFSET(ms_entry, norb), H5T_NATIVE_INT);
+    H5Tinsert(t, "nR", HOFFSET(ms_entry, nR), H5T_NATIVE_INT);
+    H5Tinsert(t, "nocc", HOFFSET(ms_entry, nocc), H5T_NATIVE_INT);
+    H5Tinsert(t, "spinful", HOFFSET(ms_entry, spinful), H5T_NATIVE_INT);
+    H5Tinsert(t, "status", HOFFSET(ms_entry, status), H5T_NATIVE_INT);
+    H5Tinsert(t, "cost", HOFFSET(ms_entry, cost), H5T_NATIVE_DOUBLE);
+    H5Tclose(s);
+    return t;
+}
+
+static int index_write(ms_set *s, bs_err *err)
+{
+    hid_t t = index_type();
+    hsize_t dims[1] = {(hsize_t)s->n};
+    hid_t sp = H5Screate_simple(1, dims, NULL);
+    hid_t d = H5Dcreate2(s->file, "index", t, sp, H5P_DEFAULT, H5P_DEFAULT, H5P_DEFAULT);
+    int ok = t >= 0 && sp >= 0 && d >= 0 &&
+             (s->n == 0 || H5Dwrite(d, t, H5S_ALL, H5S_ALL, H5P_DEFAULT, s->entries) >= 0);
+    int rc = ok ? 0 : h5_fail(err, "%s:/index: cannot write the index", s->path);
+    if (d >= 0) H5Dclose(d);
+    if (sp >= 0) H5Sclose(sp);
+    if (t >= 0) H5Tclose(t);
+    return rc;
+}
+
+static int index_read(ms_set *s, bs_err *err)
+{
+    if (H5Lexists(s->file, "index", H5P_DEFAULT) <= 0)
+        return bs_fail(err, BS_EPARSE, "%s:/index: missing (the set was not completed)", s->path);
+    hid_t d = H5Dopen2(s->file, "index", H5P_DEFAULT);
+    if (d < 0) return h5_fail(err, "%s:/index: cannot open", s->path);
+    hid_t sp = H5Dget_space(d), t = index_type();
+    hssize_t n = sp < 0 ? -1 : H5Sget_simple_extent_npoints(sp);
+    int rc = 0;
+    if (sp < 0 || H5Sget_simple_extent_ndims(sp) != 1 || n < 0 || n > MS_MAX_ENTRIES) {
+        rc = bs_fail(err, BS_EPARSE, "%s:/index: expected a list of at most %d entries", s->path, MS_MAX_ENTRIES);
+        goto done;
+    }
+    s->entries = calloc(n > 0 ? (size_t)n : 1, sizeof *s->entries);
+    if (!s->entries) {
+        rc = bs_fail(err, BS_ENOMEM, "%s:/index: out of memory for %lld entries", s->path, (long long)n);
+        goto done;
+    }
+    if (n > 0 && H5Dread(d, t, H5S_ALL, H5S_ALL, H5P_DEFAULT, s->entries) < 0) {
+        rc = h5_fail(err, "%s:/index: cannot read (not a bandsieve index?)", s->path);
+        goto done;
+    }
+    s->n = s->cap = (int)n;
+    for (int i = 0; i < s->n; i++) s->entries[i].id[sizeof s->entries[i].id - 1] = '\0';
+done:
+    H5Tclose(t);
+    if (sp >= 0) H5Sclose(sp);
+    H5Dclose(d);
+    return rc;
+}
+
+/* ---- writer ---- */
+
+static int create_impl(const char *path, ms_set **out, bs_err *err)
+{
+    ms_set *s = calloc(1, sizeof *s);
+    if (!s) return bs_fail(err, BS_ENOMEM, "out of memory for a material set");
+    s->file = -1;
+    s->writer = 1;
+    int rc = 0;
+    if (snprintf(s->path, sizeof s->path, "%s", path) >= (int)sizeof s->path) {
+        rc = bs_fail(err, BS_EINVAL, "%s: path too long", path);
+        goto done;
+    }
+    snprintf(s->partial, sizeof s->partial, "%s.partial", path);
+    s->file = H5Fcreate(s->partial, H5F_ACC_TRUNC, H5P_DEFAULT, H5P_DEFAULT);
+    if (s->file < 0) {
+        rc = h5_fail(err, "%s: cannot create the material set", s->partial);
+        goto done;
+    }
+    hid_t g = H5Gcreate2(s->file, "materials", H5P_DEFAULT, H5P_DEFAULT, H5P_DEFAULT);
+    if (g < 0 || attr_write_str(s->file, "format", MS_FORMAT) < 0 ||
+        attr_write_int(s->file, "format_version", MS_FORMAT_VERSION) < 0 ||
+        attr_write_str(s->file, "written_by", "bandsieve " BS_VERSION) < 0)
+        rc = h5_fail(err, "%s: cannot write the set's header", s->partial);
+    if (g >= 0) H5Gclose(g);
+done:
+    if (rc != 0) ms_free(s);
+    else *out = s;
+    return rc;
+}
+
+int ms_create(const char *path, ms_set **out, bs_err *err)
+{
+    *out = NULL;
+    int rc;
+    H5E_BEGIN_TRY { rc = create_impl(path, out, err); }
+    H5E_END_TRY;
+    return rc;
+}
+
+int ms_set_meta(ms_set *s, const char *description, int invented, bs_err *err)
+{
+    if (!s->writer || s->closed) return bs_fail(err, BS_EINVAL, "%s: not open for writing", s->path);
+    if (strlen(description) >= sizeof s->description)
+        return bs_fail(err, BS_EINVAL, "%s: description longer than %d bytes", s->path, MS_MAX_TEXT - 1);
+    snprintf(s->description, sizeof s->description, "%s", description);
+    s->invented = invented ? 1 : 0;
+    return 0;
+}
+
+static int push_entry(ms_set *s, const ms_entry *e, bs_err *err)
+{
+    if (s->n == s->cap) {
+        int cap = s->cap ? 2 * s->cap : 64;
+        ms_entry *p = realloc(s->entries, (size_t)cap * sizeof *p);
+        if (!p) return bs_fail(err, BS_ENOMEM, "out of memory for the index");
+        s->entries = p;
+        s->cap = cap;
+    }
+    s->entries[s->n++] = *e;
+    return 0;
+}
+
+/* Opens a new group /materials/<id>, refusing bad or duplicate ids. */
+static int new_group(ms_set *s, const char *id, hid_t *g, bs_err *err)
+{
+    *g = -1;
+    if (!s->writer || s->closed) return bs_fail(err, BS_EINVAL, "%s: not open for writing", s->path);
+    if (!card_id_ok(id)) return bs_fail(err, BS_EINVAL, "%s: '%s' is not a valid material id", s->path, id);
+    if (ms_find(s, id) >= 0) return bs_fail(err, BS_EINVAL, "%s: material id '%s' already in the set", s->path, id);
+    char name[160];
+    snprintf(name, sizeof name, "materials/%s", id);
+    *g = H5Gcreate2(s->file, name, H5P_DEFAULT, H5P_DEFAULT, H5P_DEFAULT);
+    if (*g < 0) return h5_fail(err, "%s:/materials/%s: cannot create group", s->path, id);
+    return 0;
+}
+
+static int write_attrs(hid_t g, const tb_model *m, int status)
+{
+    int bad = attr_write_str(g, "id", m->id) < 0 || attr_write_str(g, "formula", m->formula) < 0 ||
+              attr_write_str(g, "source", m->source) < 0 || attr_write_int(g, "status", status) < 0 ||
+              attr_write_int(g, "dimension", m->dim) < 0 || attr_write_int(g, "norb", m->norb) < 0 ||
+              attr_write_int(g, "nspatial", m->nspatial) < 0 || attr_write_int(g, "nR", m->nR) < 0 ||
+              attr_write_int(g, "nocc", m->nocc) < 0 || attr_write_int(g, "spinful", m->spinful) < 0 ||
+              attr_write_int(g, "spin_layout", m->spin_layout) < 0 ||
+              attr_write_int(g, "has_fermi", m->has_fermi) < 0 || attr_write_double(g, "fermi_ev", m->fermi_ev) < 0 ||
+              attr_write_int(g, "has_inversion_op", m->has_inversion_op) < 0;
+    return bad ? -1 : 0;
+}
+
+static int write_arrays(hid_t g, const tb_model *m)
+{
+    hsize_t d33[2] = {3, 3}, dR[2] = {(hsize_t)m->nR, 3}, dn[1] = {(hsize_t)m->nR};
+    hsize_t dH[4] = {(hsize_t)m->nR, (hsize_t)m->norb, (hsize_t)m->norb, 2};
+    hsize_t dpos[2] = {(hsize_t)m->nspatial, 3}, dl[1] = {(hsize_t)m->nspatial};
+    /* C11 lays out double complex as double[2] (real, imaginary): H is written as it lies. */
+    int bad = dset_write(g, "lattice", H5T_NATIVE_DOUBLE, 2, d33, m->lattice) < 0 ||
+              dset_write(g, "R", H5T_NATIVE_INT, 2, dR, m->R) < 0 ||
+              dset_write(g, "deg", H5T_NATIVE_INT, 1, dn, m->deg) < 0 ||
+              dset_write(g, "H", H5T_NATIVE_DOUBLE, 4, dH, m->H) < 0 ||
+              dset_write(g, "orb_pos", H5T_NATIVE_DOUBLE, 2, dpos, m->orb_pos) < 0 ||
+              dset_write(g, "orb_l", H5T_NATIVE_INT, 1, dl, m->orb_l) < 0;
+    if (!bad && m->has_inversion_op) {
+        hsize_t dv[1] = {(hsize_t)m->norb}, dsh[2] = {(hsize_t)m->norb, 3};
+        bad = dset_write(g, "inv_perm", H5T_NATIVE_INT, 1, dv, m->inv_perm) < 0 ||
+              dset_write(g, "inv_sign", H5T_NATIVE_DOUBLE, 1, dv, m->inv_sign) < 0 ||
+              dset_write(g, "inv_shift", H5T_NATIVE_INT, 2, dsh, m->inv_shift) < 0;
+    }
+    return bad ? -1 : 0;
+}
+
+static void entry_of(const tb_model *m, int status, ms_entry *e)
+{
+    memset(e, 0, sizeof *e);
+    snprintf(e->id, sizeof e->id, "%s", m->id);
+    e->dim = m->dim;
+    e->norb = m->norb;
+    e->nR = m->nR;
+    e->nocc = m->nocc;
+    e->spinful = m->spinful;
+    e->status = status;
+    double n = m->norb;
+    e->cost = n * n * n + (double)m->nR * n * n;
+}
+
+static int add_impl(ms_set *s, const tb_model *m, int status, bs_err *err)
+{
+    hid_t g;
+    int rc = new_group(s, m->id, &g, err);
+    if (rc != 0) return rc;
+    if (write_attrs(g, m, status) < 0 || write_arrays(g, m) < 0)
+        rc = h5_fail(err, "%s:/materials/%s: cannot write", s->path, m->id);
+    H5Gclose(g);
+    ms_entry e;
+    entry_of(m, status, &e);
+    if (rc == 0) rc = push_entry(s, &e, err);
+    return rc;
+}
+
+int ms_add(ms_set *s, const tb_model *m, bs_err *err)
+{
+    int rc = tb_model_validate(m, BS_HERMITIAN_TOL_EV, m->id, err);
+    if (rc != 0) return rc;
+    H5E_BEGIN_TRY { rc = add_impl(s, m, MS_STATUS_OK, err); }
+    H5E_END_TRY;
+    return rc;
+}
+
+int ms_add_broken(ms_set *s, const tb_model *m, bs_err *err)
+{
+    int rc;
+    H5E_BEGIN_TRY { rc = add_impl(s, m, MS_STATUS_BROKEN, err); }
+    H5E_END_TRY;
+    return rc;
+}
+
+static int add_error_impl(ms_set *s, const char *id, int code, const char *message, bs_err *err)
+{
+    hid_t g;
+    int rc = new_group(s, id, &g, err);
+    if (rc != 0) return rc;
+    char text[MS_MAX_TEXT];
+    snprintf(text, sizeof text, "%s", message);
+    if (attr_write_str(g, "id", id) < 0 || attr_write_int(g, "status", MS_STATUS_ERROR) < 0 ||
+        attr_write_int(g, "error_code", code) < 0 || attr_write_str(g, "error", text) < 0)
+        rc = h5_fail(err, "%s:/materials/%s: cannot write", s->path, id);
+    H5Gclose(g);
+    ms_entry e;
+    memset(&e, 0, sizeof e);
+    snprintf(e.id, sizeof e.id, "%s", id);
+    e.status = MS_STATUS_ERROR;
+    if (rc == 0) rc = push_entry(s, &e, err);
+    return rc;
+}
+
+int ms_add_error(ms_set *s, const char *id, int code, const char *message, bs_err *err)
+{
+    if (code >= 0) return bs_fail(err, BS_EINVAL, "%s: error entry '%s' needs a negative error code", s->path, id);
+    int rc;
+    H5E_BEGIN_TRY { rc = add_error_impl(s, id, code, message, err); }
+    H5E_END_TRY;
+    return rc;
+}
+
+static int close_impl(ms_set *s, bs_err *err)
+{
+    int rc = 0;
+    if (s->writer) {
+        rc = index_write(s, err);
+        if (rc == 0 && (attr_write_str(s->file, "description", s->description) < 0 ||
+                        attr_write_int(s->file, "invented", s->invented) < 0))
+            rc = h5_fail(err, "%s: cannot write the set's metadata", s->partial);
+    }
+    if (H5Fclose(s->file) < 0 && rc == 0) rc = h5_fail(err, "%s: cannot close", s->writer ? s->partial : s->path);
+    s->file = -1;
+    if (rc == 0 && s->writer && rename(s->partial, s->path) != 0)
+        rc = bs_fail(err, BS_EIO, "%s: cannot rename %s onto it: %s", s->path, s->partial, strerror(errno));
+    return rc;
+}
+
+int ms_close(ms_set *s, bs_err *err)
+{
+    if (s->closed || s->file < 0) return 0;
+    int rc;
+    H5E_BEGIN_TRY { rc = close_impl(s, err); }
+    H5E_END_TRY;
+    s->closed = rc == 0;
+    return rc;
+}
+
+void ms_free(ms_set *s)
+{
+    if (!s) return;
+    if (s->file >= 0) {
+        H5E_BEGIN_TRY { H5Fclose(s->file); }
+        H5E_END_TRY;
+    }
+    if (s->writer && !s->closed && s->partial[0]) unlink(s->partial);
+    free(s->entries);
+    free(s);
+}
+
+/* ---- reader ---- */
+
+static int check_header(ms_set *s, bs_err *err)
+{
+    char format[64];
+    if (attr_read_str(s->file, "format", format, sizeof format) < 0 || strcmp(format, MS_FORMAT) != 0)
+        return bs_fail(err, BS_EPARSE, "%s: an HDF5 file but not a bandsieve material set (no format "
+                       "attribute \"%s\")", s->path, MS_FORMAT);
+    int version = 0;
+    if (attr_read_int(s->file, "format_version", &version) < 0 || version != MS_FORMAT_VERSION)
+        return bs_fail(err, BS_EPARSE, "%s: material-set format version %d, this program reads version %d",
+                       s->path, version, MS_FORMAT_VERSION);
+    attr_read_str(s->file, "description", s->description, sizeof s->description);
+    if (attr_read_int(s->file, "invented", &s->invented) < 0) s->invented = 0;
+    return 0;
+}
+
+static int open_impl(const char *path, ms_set **out, bs_err *err)
+{
+    FILE *probe = fopen(path, "rb");
+    if (!probe) return bs_fail(err, BS_EIO, "%s: cannot open material set: %s", path, strerror(errno));
+    fclose(probe);
+    if (H5Fis_hdf5(path) <= 0)
+        return bs_fail(err, BS_EPARSE, "%s: not an HDF5 file, so not a bandsieve material set", path);
+    ms_set *s = calloc(1, sizeof *s);
+    if (!s) return bs_fail(err, BS_ENOMEM, "out of memory for a material set");
+    s->file = -1;
+    snprintf(s->path, sizeof s->path, "%s", path);
+    int rc = 0;
+    hid_t fapl = H5Pcreate(H5P_FILE_ACCESS);
+#if H5_VERSION_GE(1, 10, 7)
+    /* Readers never modify the file; locks would only fail on file systems without flock
+     * (common on cluster scratch) when many ranks open the set at once. */
+    if (fapl >= 0) H5Pset_file_locking(fapl, 0, 1);
+#endif
+    s->file = fapl < 0 ? -1 : H5Fopen(path, H5F_ACC_RDONLY, fapl);
+    if (fapl >= 0) H5Pclose(fapl);
+    if (s->file < 0) rc = h5_fail(err, "%s: cannot open material set", path);
+    if (rc == 0) rc = check_header(s, err);
+    if (rc == 0) rc = index_read(s, err);
+    if (rc != 0) ms_free(s);
+    else *out = s;
+    return rc;
+}
+
+int ms_open(const char *path, ms_set **out, bs_err *err)
+{
+    *out = NULL;
+    int rc;
+    H5E_BEGIN_TRY { rc = open_impl(path, out, err); }
+    H5E_END_TRY;
+    return rc;
+}
+
+int ms_count(const ms_set *s) { return s->n; }
+
+const ms_entry *ms_entry_at(const ms_set *s, int i) { return i >= 0 && i < s->n ? &s->entries[i] : NULL; }
+
+int ms_find(const ms_set *s, const char *id)
+{
+    for (int i = 0; i < s->n; i++)
+        if (strcmp(s->entries[i].id, id) == 0) return i;
+    return -1;
+}
+
+const char *ms_description(const ms_set *s) { return s->description; }
+int ms_invented(const ms_set *s) { return s->invented; }
+const char *ms_path(const ms_set *s) { return s->path; }
+
+typedef struct ms_sizes {
+    int norb, nspatial, nR, spinful, status;
+} ms_sizes;
+
+/* Sizes from the group's attributes, checked against config.h limits before anything is allocated. */
+static int read_sizes(hid_t g, const char *where, ms_sizes *z, bs_err *err)
+{
+    static const char *const names[] = {"norb", "nspatial", "nR", "spinful"};
+    int *dst[] = {&z->norb, &z->nspatial, &z->nR, &z->spinful};
+    for (int i = 0; i < 4; i++)
+        if (attr_read_int(g, names[i], dst[i]) < 0)
+            return bs_fail(err, BS_EPARSE, "%s: attribute '%s' missing or not an integer", where, names[i]);
+    if (z->norb < 1 || z->norb > BS_MAX_NORB || z->nR < 1 || z->nR > BS_MAX_NR ||
+        (long long)z->nR * z->norb * z->norb > BS_MAX_HR_ELEMENTS)
+        return bs_fail(err, BS_EINVAL, "%s: sizes norb = %d, nR = %d outside the limits", where, z->norb, z->nR);
+    if (z->nspatial != (z->spinful ? z->norb / 2 : z->norb) || (z->spinful && z->norb % 2))
+        return bs_fail(err, BS_EPARSE, "%s: nspatial = %d disagrees with norb = %d (spinful = %d)", where,
+                       z->nspatial, z->norb, z->spinful);
+    return 0;
+}
+
+static int read_model_attrs(hid_t g, const char *where, tb_model *m, bs_err *err)
+{
+    static const char *const names[] = {"dimension", "nocc", "spin_layout", "has_fermi", "has_inversion_op"};
+    int *dst[] = {&m->dim, &m->nocc, &m->spin_layout, &m->has_fermi, &m->has_inversion_op};
+    for (int i = 0; i < 5; i++)
+        if (attr_read_int(g, names[i], dst[i]) < 0)
+            return bs_fail(err, BS_EPARSE, "%s: attribute '%s' missing or not an integer", where, names[i]);
+    if (attr_read_double(g, "fermi_ev", &m->fermi_ev) < 0 || attr_read_str(g, "id", m->id, sizeof m->id) < 0 ||
+        attr_read_str(g, "formula", m->formula, sizeof m->formula) < 0 ||
+        attr_read_str(g, "source", m->source, sizeof m->source) < 0)
+        return bs_fail(err, BS_EPARSE, "%s: attributes fermi_ev, id, formula or source missing", where);
+    int want = m->spinful ? (m->spin_layout == TB_SPIN_BLOCKS || m->spin_layout == TB_SPIN_INTERLEAVED)
+                          : m->spin_layout == TB_SPIN_NONE;
+    if (!want) return bs_fail(err, BS_EPARSE, "%s: spin_layout %d does not fit spinful = %d", where, m->spin_layout,
+                              m->spinful);
+    return 0;
+}
+
+static int read_model_arrays(hid_t g, const char *where, tb_model *m, bs_err *err)
+{
+    hsize_t d33[2] = {3, 3}, dR[2] = {(hsize_t)m->nR, 3}, dn[1] = {(hsize_t)m->nR};
+    hsize_t dH[4] = {(hsize_t)m->nR, (hsize_t)m->norb, (hsize_t)m->norb, 2};
+    hsize_t dpos[2] = {(hsize_t)m->nspatial, 3}, dl[1] = {(hsize_t)m->nspatial};
+    int rc = dset_read(g, where, "lattice", H5T_NATIVE_DOUBLE, 2, d33, m->lattice, err);
+    if (rc == 0) rc = dset_read(g, where, "R", H5T_NATIVE_INT, 2, dR, m->R, err);
+    if (rc == 0) rc = dset_read(g, where, "deg", H5T_NATIVE_INT, 1, dn, m->deg, err);
+    if (rc == 0) rc = dset_read(g, where, "H", H5T_NATIVE_DOUBLE, 4, dH, m->H, err);
+    if (rc == 0) rc = dset_read(g, where, "orb_pos", H5T_NATIVE_DOUBLE, 2, dpos, m->orb_pos, err);
+    if (rc == 0) rc = dset_read(g, where, "orb_l", H5T_NATIVE_INT, 1, dl, m->orb_l, err);
+    if (rc != 0 || !m->has_inversion_op) return rc;
+    size_t n = (size_t)m->norb;
+    m->inv_perm = malloc(n * sizeof *m->inv_perm);
+    m->inv_sign = malloc(n * sizeof *m->inv_sign);
+    m->inv_shift = malloc(n * sizeof *m->inv_shift);
+    if (!m->inv_perm || !m->inv_sign || !m->inv_shift)
+        return bs_fail(err, BS_ENOMEM, "%s: out of memory for the inversion operator", where);
+    hsize_t dv[1] = {n}, dsh[2] = {n, 3};
+    rc = dset_read(g, where, "inv_perm", H5T_NATIVE_INT, 1, dv, m->inv_perm, err);
+    if (rc == 0) rc = dset_read(g, where, "inv_sign", H5T_NATIVE_DOUBLE, 1, dv, m->inv_sign, err);
+    if (rc == 0) rc = dset_read(g, where, "inv_shift", H5T_NATIVE_INT, 2, dsh, m->inv_shift, err);
+    for (size_t i = 0; rc == 0 && i < n; i++)
+        if (m->inv_perm[i] < 0 || m->inv_perm[i] >= m->norb || (m->inv_sign[i] != 1.0 && m->inv_sign[i] != -1.0))
+            rc = bs_fail(err, BS_EINVAL, "%s/inv_perm: state %zu maps to %d with sign %g", where, i + 1,
+                         m->inv_perm[i] + 1, m->inv_sign[i]);
+    return rc;
+}
+
+static int read_stored_error(hid_t g, const char *where, bs_err *err)
+{
+    int code = BS_EINVAL;
+    char text[MS_MAX_TEXT];
+    if (attr_read_int(g, "error_code", &code) < 0 || code >= 0) code = BS_EINVAL;
+    if (attr_read_str(g, "error", text, sizeof text) < 0) snprintf(text, sizeof text, "(no error text stored)");
+    return bs_fail(err, code, "%s: stored as broken: %s", where, text);
+}
+
+static int read_impl(const ms_set *s, const char *id, tb_model **out, bs_err *err)
+{
+    char where[4400], name[160];
+    snprintf(where, sizeof where, "%s:/materials/%s", s->path, id);
+    snprintf(name, sizeof name, "materials/%s", id);
+    if (H5Lexists(s->file, "materials", H5P_DEFAULT) <= 0 || H5Lexists(s->file, name, H5P_DEFAULT) <= 0)
+        return bs_fail(err, BS_EPARSE, "%s: group missing", where);
+    hid_t g = H5Gopen2(s->file, name, H5P_DEFAULT);
+    if (g < 0) return h5_fail(err, "%s: cannot open group", where);
+    tb_model *m = NULL;
+    ms_sizes z;
+    int rc = 0;
+    if (attr_read_int(g, "status", &z.status) < 0) {
+        rc = bs_fail(err, BS_EPARSE, "%s: attribute 'status' missing", where);
+        goto done;
+    }
+    if (z.status == MS_STATUS_ERROR) {
+        rc = read_stored_error(g, where, err);
+        goto done;
+    }
+    if ((rc = read_sizes(g, where, &z, err)) != 0) goto done;
+    if ((rc = tb_model_create(z.norb, z.nR, z.spinful, &m, err)) != 0) goto done;
+    if ((rc = read_model_attrs(g, where, m, err)) != 0) goto done;
+    if (strcmp(m->id, id) != 0) {
+        rc = bs_fail(err, BS_EPARSE, "%s: attribute id is '%s'", where, m->id);
+        goto done;
+    }
+    if ((rc = read_model_arrays(g, where, m, err)) != 0) goto done;
+    if ((rc = tb_model_validate(m, BS_HERMITIAN_TOL_EV, where, err)) != 0) goto done;
+    *out = m;
+    m = NULL;
+done:
+    tb_model_free(m);
+    H5Gclose(g);
+    return rc;
+}
+
+int ms_read_id(const ms_set *s, const char *id, tb_model **out, bs_err *err)
+{
+    *out = NULL;
+    if (s->writer) return bs_fail(err, BS_EINVAL, "%s: open for writing, not reading", s->path);
+    if (s->file < 0) return bs_fail(err, BS_EINVAL, "%s: closed", s->path);
+    if (ms_find(s, id) < 0) return bs_fail(err, BS_EINVAL, "%s: no material '%s' in the set", s->path, id);
+    int rc;
+    H5E_BEGIN_TRY { rc = read_impl(s, id, out, err); }
+    H5E_END_TRY;
+    return rc;
+}
+
+int ms_read(const ms_set *s, int i, tb_model **out, bs_err *err)
+{
+    *out = NULL;
+    if (i < 0 || i >= s->n) return bs_fail(err, BS_EINVAL, "%s: entry %d outside 0..%d", s->path, i, s->n - 1);
+    return ms_read_id(s, s->entries[i].id, out, err);
+}

@@ -1,0 +1,277 @@
+/* Surface-state analysis on a slab: weights, projected bulk bands, Fermi-level crossings between
+ * surface TRIMs and surface Dirac points. */
+#include "bandsieve/surfstates.h"
+
+#include <lapacke.h>
+#include <math.h>
+#include <stdlib.h>
+#include <string.h>
+
+#include "bandsieve/eig.h"
+#include "bandsieve/hk.h"
+
+struct ss_ctx {
+    const slab *s;
+    ss_opts o;
+    int ns;
+    eig_ws *eig;
+    double complex *H;          /* ns x ns: slab H, then its eigenvectors */
+    double complex *D;          /* ns x ns: P_top - P_bottom within a degenerate level */
+    double *Dw;                 /* ns */
+    double complex *V;          /* ns x ns: rotated copy of a level */
+    hk_engine *bulk;            /* rebased bulk, batches of nperp */
+    eig_ws *bulk_eig;
+    double complex *Hb;         /* nperp bulk matrices */
+    double *Eb;                 /* bulk energies, norb */
+    double *kb;                 /* 3 nperp */
+    /* Crossing workspace: energies and weight differences at the previous and current samples. */
+    double *E0, *E1, *L0, *L1, *wt, *wb;
+};
+
+void ss_opts_default(ss_opts *o) { memset(o, 0, sizeof *o); }
+
+static void fill_defaults(ss_opts *o, int nlayers)
+{
+    if (o->nsurf <= 0) o->nsurf = nlayers / 8 > 2 ? nlayers / 8 : 2;
+    if (o->nsurf > nlayers) o->nsurf = nlayers;
+    if (!(o->loc_min > 0)) o->loc_min = 0.3;
+    if (o->nk <= 1) o->nk = 240;
+    if (o->nperp <= 1) o->nperp = 48;
+    if (!(o->deg_tol_ev > 0)) o->deg_tol_ev = 1e-6;
+}
+
+int ss_create(const slab *s, const ss_opts *opts, ss_ctx **out, bs_err *err)
+{
+    *out = NULL;
+    ss_ctx *c = calloc(1, sizeof *c);
+    if (!c) return bs_fail(err, BS_ENOMEM, "out of memory for surface states");
+    c->s = s;
+    if (opts) c->o = *opts;
+    fill_defaults(&c->o, slab_nlayers(s));
+    c->ns = slab_nstates(s);
+    size_t nn = (size_t)c->ns * c->ns;
+    int norb = slab_norb(s), np = c->o.nperp;
+    int rc = eig_create(c->ns, &c->eig, err);
+    if (rc == 0) rc = hk_create(slab_rebased(s), np, &c->bulk, err);
+    if (rc == 0) rc = eig_create(norb, &c->bulk_eig, err);
+    if (rc == 0) {
+        c->H = malloc(nn * sizeof *c->H);
+        c->D = malloc(nn * sizeof *c->D);
+        c->V = malloc(nn * sizeof *c->V);
+        c->Dw = malloc((size_t)c->ns * sizeof *c->Dw);
+        c->Hb = malloc((size_t)np * norb * norb * sizeof *c->Hb);
+        c->Eb = malloc((size_t)norb * sizeof *c->Eb);
+        c->kb = malloc(3 * (size_t)np * sizeof *c->kb);
+        double **arr[] = {&c->E0, &c->E1, &c->L0, &c->L1, &c->wt, &c->wb};
+        int ok = 1;
+        for (size_t i = 0; i < sizeof arr / sizeof arr[0]; i++) ok = ok && (*arr[i] = malloc((size_t)c->ns * sizeof(double)));
+        if (!ok || !c->H || !c->D || !c->V || !c->Dw || !c->Hb || !c->Eb || !c->kb)
+            rc = bs_fail(err, BS_ENOMEM, "out of memory for surface states (%d slab states)", c->ns);
+    }
+    if (rc != 0) ss_free(c);
+    else *out = c;
+    return rc;
+}
+
+void ss_free(ss_ctx *c)
+{
+    if (!c) return;
+    eig_free(c->eig);
+    eig_free(c->bulk_eig);
+    hk_free(c->bulk);
+    void *p[] = {c->H, c->D, c->V, c->Dw, c->Hb, c->Eb, c->kb, c->E0, c->E1, c->L0, c->L1, c->wt, c->wb};
+    for (size_t i = 0; i < sizeof p / sizeof p[0]; i++) free(p[i]);
+    free(c);
+}
+
+/* Weight of a state on the top minus the bottom layers, and the diagonal projector value of
+ * component a: +1 on the top nsurf layers, -1 on the bottom ones, 0 elsewhere (both when they overlap). */
+static double side_sign(const ss_ctx *c, int a)
+{
+    int n = slab_norb(c->s), N = slab_nlayers(c->s), j = a / n, ns = c->o.nsurf;
+    return (j >= N - ns ? 1.0 : 0.0) - (j < ns ? 1.0 : 0.0);
+}
+
+/* Rotates the d degenerate eigenvectors starting at column i0 of c->H so that they diagonalise
+ * P_top - P_bottom (Hermitian d x d), which separates a top from a bottom state of equal energy. */
+static int rotate_level(ss_ctx *c, int i0, int d, bs_err *err)
+{
+    int ns = c->ns;
+    double complex *Vc = c->H + (size_t)i0 * ns;
+    for (int a = 0; a < d; a++)
+        for (int b = 0; b < d; b++) {
+            double complex sum = 0;
+            for (int x = 0; x < ns; x++) sum += conj(Vc[x + (size_t)a * ns]) * side_sign(c, x) * Vc[x + (size_t)b * ns];
+            c->D[a + (size_t)b * d] = sum;
+        }
+    lapack_int info = LAPACKE_zheev(LAPACK_COL_MAJOR, 'V', 'U', d, c->D, d, c->Dw);
+    if (info != 0) return bs_fail(err, BS_ENUMERIC, "surface weights: zheev failed on a %d-fold level (info %d)", d, (int)info);
+    for (int b = 0; b < d; b++)
+        for (int x = 0; x < ns; x++) {
+            double complex sum = 0;
+            for (int a = 0; a < d; a++) sum += Vc[x + (size_t)a * ns] * c->D[a + (size_t)b * d];
+            c->V[x + (size_t)b * ns] = sum;
+        }
+    memcpy(Vc, c->V, (size_t)d * ns * sizeof *Vc);
+    return 0;
+}
+
+int ss_bands(ss_ctx *c, const double kpar[2], double *E, double *w_top, double *w_bottom, bs_err *err)
+{
+    int ns = c->ns;
+    slab_hk(c->s, kpar, c->H);
+    int rc = eig_vectors(c->eig, c->H, E, err);
+    for (int i0 = 0; rc == 0 && i0 < ns;) {
+        int d = 1;
+        while (i0 + d < ns && E[i0 + d] - E[i0 + d - 1] < c->o.deg_tol_ev) d++;
+        if (d > 1) rc = rotate_level(c, i0, d, err);
+        i0 += d;
+    }
+    for (int i = 0; rc == 0 && i < ns; i++) {
+        double t, b;
+        slab_weights(c->s, c->H + (size_t)i * ns, c->o.nsurf, &t, &b);
+        if (w_top) w_top[i] = t;
+        if (w_bottom) w_bottom[i] = b;
+    }
+    return rc;
+}
+
+int ss_projected_edges(ss_ctx *c, const double kpar[2], double *vmax, double *cmin, bs_err *err)
+{
+    const tb_model *m = slab_rebased(c->s);
+    int np = c->o.nperp, norb = m->norb, ax = slab_kdim(c->s);
+    for (int j = 0; j < np; j++) {
+        double *k = c->kb + 3 * j;
+        k[0] = kpar[0];
+        k[1] = ax == 2 ? kpar[1] : 0.0;
+        k[2] = 0.0;
+        k[ax] = (double)j / np;
+    }
+    int rc = hk_build(c->bulk, np, c->kb, c->Hb, err);
+    double v = -INFINITY, cc = INFINITY;
+    for (int j = 0; rc == 0 && j < np; j++) {
+        rc = eig_values(c->bulk_eig, c->Hb + (size_t)j * norb * norb, c->Eb, err);
+        if (rc == 0) { v = fmax(v, c->Eb[m->nocc - 1]); cc = fmin(cc, c->Eb[m->nocc]); }
+    }
+    *vmax = v;
+    *cmin = cc;
+    return rc;
+}
+
+int ss_bulk_edges(const tb_model *m, int mesh, double *vbm, double *cbm, bs_err *err)
+{
+    if (mesh < 1) return bs_fail(err, BS_EINVAL, "bulk edges: mesh %d must be positive", mesh);
+    int n3 = m->dim == 3 ? mesh : 1, norb = m->norb;
+    hk_engine *hk = NULL;
+    eig_ws *ws = NULL;
+    double complex *H = malloc((size_t)mesh * norb * norb * sizeof *H);
+    double *k = malloc(3 * (size_t)mesh * sizeof *k), *E = malloc((size_t)norb * sizeof *E);
+    int rc = (!H || !k || !E) ? bs_fail(err, BS_ENOMEM, "out of memory for bulk band edges") : 0;
+    if (rc == 0) rc = hk_create(m, mesh, &hk, err);
+    if (rc == 0) rc = eig_create(norb, &ws, err);
+    double v = -INFINITY, cc = INFINITY;
+    for (int i3 = 0; rc == 0 && i3 < n3; i3++)
+        for (int i2 = 0; rc == 0 && i2 < mesh; i2++) {
+            for (int i1 = 0; i1 < mesh; i1++) {
+                k[3 * i1] = (double)i1 / mesh;
+                k[3 * i1 + 1] = (double)i2 / mesh;
+                k[3 * i1 + 2] = (double)i3 / mesh;
+            }
+            rc = hk_build(hk, mesh, k, H, err);
+            for (int i1 = 0; rc == 0 && i1 < mesh; i1++) {
+                rc = eig_values(ws, H + (size_t)i1 * norb * norb, E, err);
+                if (rc == 0) { v = fmax(v, E[m->nocc - 1]); cc = fmin(cc, E[m->nocc]); }
+            }
+        }
+    *vbm = v;
+    *cbm = cc;
+    hk_free(hk);
+    eig_free(ws);
+    free(H);
+    free(k);
+    free(E);
+    return rc;
+}
+
+static int below(const double *E, int ns, double ef)
+{
+    int n = 0;
+    while (n < ns && E[n] < ef) n++;
+    return n;
+}
+
+int ss_crossings(ss_ctx *c, const double ka[2], const double kb[2], double fermi_ev, int *n_top, int *n_bottom,
+                 int *n_other, bs_err *err)
+{
+    int ns = c->ns, nk = c->o.nk, top = 0, bot = 0, other = 0, rc = 0;
+    for (int j = 0; j < nk && rc == 0; j++) {
+        double t = (double)j / (nk - 1), k[2] = {ka[0] + t * (kb[0] - ka[0]), ka[1] + t * (kb[1] - ka[1])};
+        rc = ss_bands(c, k, c->E1, c->wt, c->wb, err);
+        if (rc != 0) break;
+        for (int i = 0; i < ns; i++) c->L1[i] = c->wt[i] - c->wb[i];
+        if (j > 0) {
+            /* Sorted bands: the ones whose index lies between the two counts below E_F crossed. */
+            int n0 = below(c->E0, ns, fermi_ev), n1 = below(c->E1, ns, fermi_ev);
+            int lo = n0 < n1 ? n0 : n1, hi = n0 < n1 ? n1 : n0;
+            for (int i = lo; i < hi; i++) {
+                double lam = 0.5 * (c->L0[i] + c->L1[i]);
+                if (lam > c->o.loc_min) top++;
+                else if (lam < -c->o.loc_min) bot++;
+                else other++;
+            }
+        }
+        double *sw = c->E0; c->E0 = c->E1; c->E1 = sw;
+        sw = c->L0; c->L0 = c->L1; c->L1 = sw;
+    }
+    *n_top = top;
+    *n_bottom = bot;
+    if (n_other) *n_other = other;
+    return rc;
+}
+
+void ss_trims(const ss_ctx *c, double k[8], int *n)
+{
+    *n = slab_kdim(c->s) == 2 ? 4 : 2;
+    for (int t = 0; t < *n; t++) {
+        k[2 * t] = 0.5 * (t % 2);
+        k[2 * t + 1] = 0.5 * (t / 2);
+    }
+}
+
+int ss_dirac_points(ss_ctx *c, ss_dirac *out, int max, int *count, bs_err *err)
+{
+    double kt[8];
+    int nt, found = 0, rc = 0, ns = c->ns;
+    ss_trims(c, kt, &nt);
+    for (int t = 0; t < nt && rc == 0; t++) {
+        double vmax, cmin;
+        rc = ss_bands(c, kt + 2 * t, c->E1, c->wt, c->wb, err);
+        if (rc == 0) rc = ss_projected_edges(c, kt + 2 * t, &vmax, &cmin, err);
+        for (int i0 = 0; rc == 0 && i0 < ns;) {
+            int d = 1;
+            while (i0 + d < ns && c->E1[i0 + d] - c->E1[i0 + d - 1] < c->o.deg_tol_ev) d++;
+            double e = c->E1[i0];
+            if (d > 1 && e > vmax && e < cmin)
+                for (int side = 0; side < 2; side++) {
+                    int nside = 0;
+                    for (int i = i0; i < i0 + d; i++) {
+                        double lam = c->wt[i] - c->wb[i];
+                        nside += side == SS_TOP ? lam > c->o.loc_min : lam < -c->o.loc_min;
+                    }
+                    if (nside < 2) continue;
+                    if (found < max) {
+                        ss_dirac *p = &out[found];
+                        p->k[0] = kt[2 * t];
+                        p->k[1] = kt[2 * t + 1];
+                        p->energy_ev = e;
+                        p->side = side;
+                        p->degeneracy = nside;
+                    }
+                    found++;
+                }
+            i0 += d;
+        }
+    }
+    *count = found;
+    return rc;
+}

@@ -1,0 +1,772 @@
+/* Intrinsic anomalous and spin Hall conductivities from the Kubo-form Berry curvature
+ * (Phys. Rev. Lett. 49, 405 (1982); spin current (1/2){s_z, v}: Phys. Rev. Lett. 92, 126603
+ * (2004)), integrated over the zone by adaptive cell refinement. Conventions in transport.h.
+ *
+ * Per k: H(k) and dH/dk_i (reduced) from hk.h, turned into Cartesian velocities
+ * v_c = sum_i (dk_i/dk_c) dH/dk_i with k_i = a_i . k / (2 pi), i.e. dk_i/dk_c = a_i[c] / (2 pi);
+ * in the position gauge the orbital positions add -i (r_a - r_b)_c H_ab (H_pos(k) = W^dagger H W,
+ * W = diag exp(i k.r_a)). One diagonalisation then serves every Fermi energy: with the pair terms
+ * X_nm = Im(<n|v_a|m><m|v_b|n>) / ((E_m - E_n)^2 + eta^2), antisymmetric in (n, m) because both
+ * operators are Hermitian, sum_n f_n Omega_n = -2 sum_{n<m} (f_n - f_m) X_nm: occupied-occupied
+ * pairs cancel exactly, so degenerate occupied bands (Kramers pairs) need no care. */
+#include "bandsieve/transport.h"
+
+#include <cblas.h>
+#include <complex.h>
+#include <math.h>
+#include <stdlib.h>
+#include <string.h>
+
+#include "bandsieve/bandpair.h"
+#include "bandsieve/eig.h"
+#include "bandsieve/hk.h"
+
+/* e^2/hbar = (1.602176634e-19 C)^2 / 1.054571817e-34 J s = 2.434134787e-4 S (CODATA 2018 exact e,
+ * hbar). A 3D integral (1/V) int dk_red Omega has units Angstrom^2 / Angstrom^3 = 1/Angstrom
+ * = 1e8 /cm, so sigma [S/cm] = 2.434134787e-4 * 1e8 * (1/V) int dk_red sum f Omega. */
+#define TR_E2_HBAR_S_ANG_PER_CM 2.434134787e4
+
+/* Pair denominators below this (eV^2) are exact degeneracies split by the Fermi level: the pair's
+ * curvature is undefined there and the pair is dropped (measure zero on the mesh). */
+#define TR_DENOM_MIN 1e-20
+
+#define TR_KBATCH 64
+
+/* Operators: Cartesian v_x, v_y, v_z and the spin current j^{s_z}_x. */
+enum { OP_VX = 0, OP_VY = 1, OP_VZ = 2, OP_JX = 3, NOP = 4 };
+
+/* Components: the pair of operators of each (AHC xy, yz, zx; SHC xy with s_z). */
+static const int comp_ops[4][2] = {{OP_VX, OP_VY}, {OP_VY, OP_VZ}, {OP_VZ, OP_VX}, {OP_JX, OP_VY}};
+
+typedef struct tr_ws {
+    const tb_model *m;
+    int n, dim, nocc;
+    int nahc, has_shc, ncomp;       /* components: nahc AHC, then SHC */
+    int comp[4];                    /* index into comp_ops */
+    int nE, nv;                     /* Fermi energies; values per point = ncomp * nE */
+    int gauge;
+    double eta2, smear;
+    double fermi[TR_MAX_FERMI];
+    double jac[3][3];               /* jac[i][c] = a_i[c] / (2 pi) */
+    double unit[4];                 /* per component: output units per (reduced volume x Omega) */
+    double *spin;                   /* n: +1 up, -1 down */
+    double (*rc)[3];                /* n Cartesian positions, Angstrom */
+    hk_engine *hk;
+    eig_ws *eig;
+    double complex *H, *dH;         /* TR_KBATCH n^2 and 3 TR_KBATCH n^2 */
+    double complex *D, *V, *T;      /* NOP n^2 (orbital basis), NOP n^2 (eigenbasis), n^2 */
+    double *E, *X, *cut, *f;        /* n; ncomp n^2; ncomp (n+1); n */
+    long long nk;
+    double min_gap;
+    double deadline;
+} tr_ws;
+
+void tr_opts_default(tr_opts *o)
+{
+    memset(o, 0, sizeof *o);
+    o->max_kpoints = 2000000;
+    o->gauge = TR_GAUGE_POSITION;
+    o->want_shc = 1;
+}
+
+const char *tr_fermi_source_name(int source)
+{
+    switch (source) {
+    case TR_FERMI_GIVEN: return "given";
+    case TR_FERMI_CARD: return "card";
+    case TR_FERMI_MIDGAP: return "midgap";
+    case TR_FERMI_FILLING: return "filling";
+    default: return "unknown";
+    }
+}
+
+static void ws_free(tr_ws *w)
+{
+    if (!w) return;
+    hk_free(w->hk);
+    eig_free(w->eig);
+    free(w->spin);
+    free(w->rc);
+    free(w->H);
+    free(w->dH);
+    free(w->D);
+    free(w->V);
+    free(w->T);
+    free(w->E);
+    free(w->X);
+    free(w->cut);
+    free(w->f);
+    free(w);
+}
+
+/* Lattice checks and the unit factors. 2D: the zone integral of Omega_xy over reduced k is
+ * A C / (2 pi) for a Chern number C (d^2k = (2 pi)^2 / A dk_red), so sigma_xy / (e^2/h) =
+ * (2 pi / A) int dk_red sum f Omega; the SHC takes hbar/(2e) of the same: (pi / A) in e/(2 pi). */
+static int set_geometry(tr_ws *w, bs_err *err)
+{
+    const double (*a)[3] = w->m->lattice;
+    for (int i = 0; i < 3; i++)
+        for (int c = 0; c < 3; c++) w->jac[i][c] = a[i][c] / (2 * M_PI);
+    if (w->dim == 2) {
+        double scale = fabs(a[0][0]) + fabs(a[0][1]) + fabs(a[1][0]) + fabs(a[1][1]);
+        double area = fabs(a[0][0] * a[1][1] - a[0][1] * a[1][0]);
+        if (fabs(a[0][2]) > 1e-9 * scale || fabs(a[1][2]) > 1e-9 * scale || !(area > 0))
+            return bs_fail(err, BS_EINVAL,
+                           "transport: expected a 2D lattice with a1, a2 in the xy plane, found "
+                           "a1 = (%g, %g, %g), a2 = (%g, %g, %g)", a[0][0], a[0][1], a[0][2], a[1][0],
+                           a[1][1], a[1][2]);
+        w->unit[0] = 2 * M_PI / area; /* component 0: AHC xy; component 1: SHC */
+        w->unit[1] = M_PI / area;
+        return 0;
+    }
+    double vol = fabs(a[0][0] * (a[1][1] * a[2][2] - a[1][2] * a[2][1]) -
+                      a[0][1] * (a[1][0] * a[2][2] - a[1][2] * a[2][0]) +
+                      a[0][2] * (a[1][0] * a[2][1] - a[1][1] * a[2][0]));
+    if (!(vol > 0))
+        return bs_fail(err, BS_EINVAL, "transport: expected a cell volume > 0, found %g A^3", vol);
+    for (int c = 0; c < 3; c++) w->unit[c] = TR_E2_HBAR_S_ANG_PER_CM / vol;
+    w->unit[3] = 0.5 * TR_E2_HBAR_S_ANG_PER_CM / vol;
+    return 0;
+}
+
+static int ws_create(const tb_model *m, const tr_opts *o, tr_ws **out, bs_err *err)
+{
+    *out = NULL;
+    tr_ws *w = calloc(1, sizeof *w);
+    if (!w) return bs_fail(err, BS_ENOMEM, "transport workspace: out of memory");
+    w->m = m;
+    w->n = m->norb;
+    w->dim = m->dim;
+    w->nocc = m->nocc;
+    w->gauge = o->gauge;
+    w->eta2 = o->eta_ev * o->eta_ev;
+    w->smear = o->smear_ev;
+    w->deadline = o->deadline;
+    w->min_gap = HUGE_VAL;
+    w->nahc = m->dim == 3 ? 3 : 1;
+    w->has_shc = m->spinful && o->want_shc;
+    w->ncomp = w->nahc + w->has_shc;
+    for (int c = 0; c < w->nahc; c++) w->comp[c] = c;
+    if (w->has_shc) w->comp[w->nahc] = 3;
+    int rc = set_geometry(w, err);
+    if (rc != 0) goto done;
+    rc = hk_create(m, TR_KBATCH, &w->hk, err);
+    if (rc == 0) rc = eig_create(w->n, &w->eig, err);
+    if (rc != 0) goto done;
+    size_t n = (size_t)w->n, n2 = n * n;
+    w->spin = malloc(n * sizeof *w->spin);
+    w->rc = malloc(n * sizeof *w->rc);
+    w->H = malloc(TR_KBATCH * n2 * sizeof *w->H);
+    w->dH = malloc(3 * TR_KBATCH * n2 * sizeof *w->dH);
+    w->D = malloc(NOP * n2 * sizeof *w->D);
+    w->V = malloc(NOP * n2 * sizeof *w->V);
+    w->T = malloc(n2 * sizeof *w->T);
+    w->E = malloc(n * sizeof *w->E);
+    w->X = malloc(4 * n2 * sizeof *w->X);
+    w->cut = malloc(4 * (n + 1) * sizeof *w->cut);
+    w->f = malloc(n * sizeof *w->f);
+    if (!w->spin || !w->rc || !w->H || !w->dH || !w->D || !w->V || !w->T || !w->E || !w->X ||
+        !w->cut || !w->f) {
+        rc = bs_fail(err, BS_ENOMEM, "transport workspace for %d states: out of memory", w->n);
+        goto done;
+    }
+    for (int s = 0; s < w->n; s++) {
+        /* s_z = diag(+1, -1) in units of hbar/2; the factor 1/2 enters through unit[]. */
+        w->spin[s] = m->spinful ? (tb_state_spin(m, s) == 0 ? 1.0 : -1.0) : 0.0;
+        const double *t = m->orb_pos[tb_state_orbital(m, s)];
+        for (int c = 0; c < 3; c++)
+            w->rc[s][c] = t[0] * m->lattice[0][c] + t[1] * m->lattice[1][c] + t[2] * m->lattice[2][c];
+    }
+    *out = w;
+    w = NULL;
+done:
+    ws_free(w);
+    return rc;
+}
+
+/* Velocities (and the spin current) in the orbital basis, from H and the reduced dH of one k. */
+static void velocities(tr_ws *w, const double complex *H, const double complex *dH)
+{
+    int n = w->n;
+    size_t n2 = (size_t)n * n;
+    int ncart = w->dim == 3 ? 3 : 2;
+    for (int c = 0; c < ncart; c++) {
+        double complex *Dc = w->D + c * n2;
+        for (int b = 0; b < n; b++)
+            for (int a = 0; a < n; a++) {
+                size_t idx = (size_t)a + (size_t)b * n;
+                double complex d = w->jac[0][c] * dH[idx] + w->jac[1][c] * dH[n2 + idx] +
+                                   w->jac[2][c] * dH[2 * n2 + idx];
+                if (w->gauge == TR_GAUGE_POSITION) d -= I * (w->rc[a][c] - w->rc[b][c]) * H[idx];
+                Dc[idx] = d;
+            }
+    }
+    if (!w->has_shc) return;
+    /* (1/2){s_z, v_x} with diagonal s_z: element (a, b) is (s_a + s_b)/2 v_x,ab. */
+    double complex *J = w->D + OP_JX * n2;
+    for (int b = 0; b < n; b++)
+        for (int a = 0; a < n; a++) {
+            size_t idx = (size_t)a + (size_t)b * n;
+            J[idx] = 0.5 * (w->spin[a] + w->spin[b]) * w->D[idx];
+        }
+}
+
+/* U^dagger D_op U into V_op for the operators the components use; U in w->H block. */
+static void to_eigenbasis(tr_ws *w, const double complex *U)
+{
+    int n = w->n;
+    size_t n2 = (size_t)n * n;
+    const double complex one = 1.0, zero = 0.0;
+    int used[NOP] = {0};
+    for (int c = 0; c < w->ncomp; c++) {
+        used[comp_ops[w->comp[c]][0]] = 1;
+        used[comp_ops[w->comp[c]][1]] = 1;
+    }
+    for (int op = 0; op < NOP; op++) {
+        if (!used[op]) continue;
+        cblas_zgemm(CblasColMajor, CblasNoTrans, CblasNoTrans, n, n, n, &one, w->D + op * n2, n, U,
+                    n, &zero, w->T, n);
+        cblas_zgemm(CblasColMajor, CblasConjTrans, CblasNoTrans, n, n, n, &one, U, n, w->T, n,
+                    &zero, w->V + op * n2, n);
+    }
+}
+
+/* Pair terms X_nm (n < m) of every component, and for the T = 0 step the cut sums
+ * S(N) = sum_{n<N<=m} X_nm for N = 0..n, so that sum_n f_n Omega_n = -2 S(N_occ):
+ * S(N+1) = S(N) + sum_{m>N} X_Nm - sum_{n<N} X_nN. */
+static void pair_terms(tr_ws *w)
+{
+    int n = w->n;
+    size_t n2 = (size_t)n * n;
+    for (int c = 0; c < w->ncomp; c++) {
+        const double complex *Va = w->V + comp_ops[w->comp[c]][0] * n2;
+        const double complex *Vb = w->V + comp_ops[w->comp[c]][1] * n2;
+        double *X = w->X + c * n2;
+        for (int q = 0; q < n; q++)
+            for (int p = 0; p < q; p++) {
+                double de = w->E[q] - w->E[p], den = de * de + w->eta2;
+                double complex z = Va[p + (size_t)q * n] * Vb[q + (size_t)p * n];
+                X[p + (size_t)q * n] = den > TR_DENOM_MIN ? cimag(z) / den : 0.0;
+            }
+        double *S = w->cut + c * (n + 1);
+        S[0] = 0;
+        for (int N = 0; N < n; N++) {
+            double s = S[N];
+            for (int q = N + 1; q < n; q++) s += X[N + (size_t)q * n];
+            for (int p = 0; p < N; p++) s -= X[p + (size_t)N * n];
+            S[N + 1] = s;
+        }
+    }
+}
+
+/* Integrand of every component at every Fermi energy, output units per unit reduced volume. */
+static void fermi_values(tr_ws *w, double *val)
+{
+    int n = w->n;
+    size_t n2 = (size_t)n * n;
+    for (int e = 0; e < w->nE; e++) {
+        double ef = w->fermi[e];
+        if (w->smear == 0) {
+            int N = 0;
+            while (N < n && w->E[N] < ef) N++;
+            for (int c = 0; c < w->ncomp; c++)
+                val[c * w->nE + e] = -2.0 * w->unit[c] * w->cut[c * (n + 1) + N];
+            continue;
+        }
+        /* Fermi-Dirac, written with exp of a non-positive argument so it cannot overflow. */
+        for (int p = 0; p < n; p++) {
+            double x = (w->E[p] - ef) / w->smear;
+            w->f[p] = x > 0 ? exp(-x) / (1 + exp(-x)) : 1 / (1 + exp(x));
+        }
+        for (int c = 0; c < w->ncomp; c++) {
+            const double *X = w->X + c * n2;
+            double s = 0;
+            for (int q = 0; q < n; q++)
+                for (int p = 0; p < q; p++) s += (w->f[p] - w->f[q]) * X[p + (size_t)q * n];
+            val[c * w->nE + e] = -2.0 * w->unit[c] * s;
+        }
+    }
+}
+
+/* Values (nv per point) at np reduced points k[3j..]. */
+static int eval_points(tr_ws *w, int np, const double *k, double *val, bs_err *err)
+{
+    int n = w->n;
+    size_t n2 = (size_t)n * n;
+    for (int start = 0; start < np; start += TR_KBATCH) {
+        if (w->deadline > 0 && bp_now() > w->deadline)
+            return bs_fail(err, BS_ETIMEOUT, "transport: time budget exceeded after %lld k-points",
+                           w->nk);
+        int nb = np - start < TR_KBATCH ? np - start : TR_KBATCH;
+        int rc = hk_build_deriv(w->hk, nb, k + 3 * (size_t)start, w->H, w->dH, err);
+        if (rc != 0) return rc;
+        for (int j = 0; j < nb; j++) {
+            double complex *H = w->H + j * n2;
+            velocities(w, H, w->dH + 3 * j * n2);
+            rc = eig_vectors(w->eig, H, w->E, err);
+            if (rc != 0) return rc;
+            double gap = w->E[w->nocc] - w->E[w->nocc - 1];
+            if (gap < w->min_gap) w->min_gap = gap;
+            to_eigenbasis(w, H);
+            pair_terms(w);
+            fermi_values(w, val + (size_t)(start + j) * w->nv);
+        }
+        w->nk += nb;
+    }
+    return 0;
+}
+
+static int cmp_double(const void *a, const void *b)
+{
+    double x = *(const double *)a, y = *(const double *)b;
+    return (x > y) - (x < y);
+}
+
+/* Default reference Fermi energy from the eigenvalues at the n0^d cell centres (transport.h). */
+static int default_fermi(tr_ws *w, int n0, double *ef, int *source, bs_err *err)
+{
+    int n = w->n, nocc = w->nocc;
+    long long npt = w->dim == 3 ? (long long)n0 * n0 * n0 : (long long)n0 * n0;
+    size_t n2 = (size_t)n * n;
+    double *all = malloc((size_t)npt * n * sizeof *all);
+    double *k = malloc(3 * TR_KBATCH * sizeof *k);
+    int rc = 0;
+    if (!all || !k) {
+        rc = bs_fail(err, BS_ENOMEM, "transport: %lld x %d eigenvalues: out of memory", npt, n);
+        goto done;
+    }
+    double vmax = -HUGE_VAL, cmin = HUGE_VAL;
+    for (long long start = 0; start < npt; start += TR_KBATCH) {
+        int nb = npt - start < TR_KBATCH ? (int)(npt - start) : TR_KBATCH;
+        for (int j = 0; j < nb; j++) {
+            long long p = start + j;
+            k[3 * j] = (p % n0 + 0.5) / n0;
+            k[3 * j + 1] = ((p / n0) % n0 + 0.5) / n0;
+            k[3 * j + 2] = w->dim == 3 ? (p / ((long long)n0 * n0) + 0.5) / n0 : 0.0;
+        }
+        rc = hk_build(w->hk, nb, k, w->H, err);
+        if (rc != 0) goto done;
+        for (int j = 0; j < nb; j++) {
+            double *e = all + (size_t)(start + j) * n;
+            rc = eig_values(w->eig, w->H + j * n2, e, err);
+            if (rc != 0) goto done;
+            if (e[nocc - 1] > vmax) vmax = e[nocc - 1];
+            if (e[nocc] < cmin) cmin = e[nocc];
+        }
+        w->nk += nb;
+    }
+    if (cmin > vmax) {
+        *ef = 0.5 * (vmax + cmin);
+        *source = TR_FERMI_MIDGAP;
+    } else {
+        /* Metal: nocc bands' worth of states (nocc npt eigenvalues) below E_F on this mesh. */
+        size_t tot = (size_t)npt * n, idx = (size_t)npt * nocc;
+        qsort(all, tot, sizeof *all, cmp_double);
+        *ef = 0.5 * (all[idx - 1] + all[idx]);
+        *source = TR_FERMI_FILLING;
+    }
+done:
+    free(all);
+    free(k);
+    return rc;
+}
+
+/* ---- adaptive cells ---- */
+
+/* A cube (square in 2D) of reduced side h from corner o; its value and error live in the pools. */
+typedef struct tr_cell {
+    double o[3];
+    double h;
+    int depth;
+    int alive;                 /* 0 once refined */
+    double err;                /* largest component error of the cell, output units */
+} tr_cell;
+
+typedef struct tr_mesh {
+    tr_cell *cell;
+    double *val, *cerr;        /* ncell x nv: two-rule value (finer rule) and |difference| */
+    long long ncell, cap;
+    int *heap;                 /* refinable cells, max-heap on err */
+    long long nheap;
+    double *k, *pv;            /* points and point values of one round */
+    long long kcap;
+} tr_mesh;
+
+static void mesh_clear(tr_mesh *g)
+{
+    free(g->cell);
+    free(g->val);
+    free(g->cerr);
+    free(g->heap);
+    free(g->k);
+    free(g->pv);
+}
+
+static int mesh_reserve(tr_mesh *g, long long ncell, int nv, bs_err *err)
+{
+    if (ncell <= g->cap) return 0;
+    long long cap = g->cap ? g->cap : 1024;
+    while (cap < ncell) cap *= 2;
+    tr_cell *c = realloc(g->cell, (size_t)cap * sizeof *c);
+    if (c) g->cell = c;
+    double *v = c ? realloc(g->val, (size_t)cap * nv * sizeof *v) : NULL;
+    if (v) g->val = v;
+    double *e = v ? realloc(g->cerr, (size_t)cap * nv * sizeof *e) : NULL;
+    if (e) g->cerr = e;
+    int *h = e ? realloc(g->heap, (size_t)cap * sizeof *h) : NULL;
+    if (h) g->heap = h;
+    if (!h) return bs_fail(err, BS_ENOMEM, "transport: %lld cells: out of memory", cap);
+    g->cap = cap;
+    return 0;
+}
+
+static void heap_push(tr_mesh *g, int ci)
+{
+    long long i = g->nheap++;
+    while (i > 0) {
+        long long p = (i - 1) / 2;
+        if (g->cell[g->heap[p]].err >= g->cell[ci].err) break;
+        g->heap[i] = g->heap[p];
+        i = p;
+    }
+    g->heap[i] = ci;
+}
+
+static int heap_pop(tr_mesh *g)
+{
+    int top = g->heap[0], last = g->heap[--g->nheap];
+    long long i = 0;
+    for (;;) {
+        long long l = 2 * i + 1, r = l + 1, b = i;
+        double eb = g->cell[last].err;
+        if (l < g->nheap && g->cell[g->heap[l]].err > eb) b = l, eb = g->cell[g->heap[l]].err;
+        if (r < g->nheap && g->cell[g->heap[r]].err > eb) b = r;
+        if (b == i) break;
+        g->heap[i] = g->heap[b];
+        i = b;
+    }
+    if (g->nheap > 0) g->heap[i] = last;
+    return top;
+}
+
+/* Evaluates cells first..first+count-1 (already placed): rule A is the centre value, rule B the
+ * mean of the 2^d sub-cell centres (the midpoint rule at half the spacing); the cell keeps B and
+ * |B - A| (the error estimate of A, so a conservative one for B), both times the cell's volume. */
+static int eval_cells(tr_ws *w, tr_mesh *g, long long first, long long count, bs_err *err)
+{
+    int d = w->dim, nsub = 1 << d, per = 1 + nsub, nv = w->nv;
+    long long np = count * per;
+    if (np > g->kcap) {
+        double *k = realloc(g->k, 3 * (size_t)np * sizeof *k);
+        if (k) g->k = k;
+        double *pv = k ? realloc(g->pv, (size_t)np * nv * sizeof *pv) : NULL;
+        if (pv) g->pv = pv;
+        if (!pv) return bs_fail(err, BS_ENOMEM, "transport: %lld k-points: out of memory", np);
+        g->kcap = np;
+    }
+    for (long long c = 0; c < count; c++) {
+        const tr_cell *cl = &g->cell[first + c];
+        double *k = g->k + 3 * c * per;
+        for (int i = 0; i < 3; i++) k[i] = i < d ? cl->o[i] + 0.5 * cl->h : 0.0;
+        for (int s = 0; s < nsub; s++)
+            for (int i = 0; i < 3; i++)
+                k[3 * (1 + s) + i] = i < d ? cl->o[i] + (0.25 + 0.5 * ((s >> i) & 1)) * cl->h : 0.0;
+    }
+    int rc = eval_points(w, (int)np, g->k, g->pv, err);
+    if (rc != 0) return rc;
+    for (long long c = 0; c < count; c++) {
+        tr_cell *cl = &g->cell[first + c];
+        double vol = d == 3 ? cl->h * cl->h * cl->h : cl->h * cl->h;
+        const double *pa = g->pv + (size_t)(c * per) * nv;
+        double *val = g->val + (size_t)(first + c) * nv, *ce = g->cerr + (size_t)(first + c) * nv;
+        cl->err = 0;
+        for (int v = 0; v < nv; v++) {
+            double b = 0;
+            for (int s = 0; s < nsub; s++) b += pa[(size_t)(1 + s) * nv + v];
+            b *= vol / nsub;
+            val[v] = b;
+            ce[v] = fabs(b - vol * pa[v]);
+            if (ce[v] > cl->err) cl->err = ce[v];
+        }
+    }
+    return 0;
+}
+
+/* Halving a cell: child s has corner o + (h/2) bits(s). */
+static void place_children(const tr_ws *w, tr_mesh *g, int parent)
+{
+    int d = w->dim, nsub = 1 << d;
+    tr_cell p = g->cell[parent];
+    for (int s = 0; s < nsub; s++) {
+        tr_cell *c = &g->cell[g->ncell++];
+        for (int i = 0; i < 3; i++) c->o[i] = i < d ? p.o[i] + 0.5 * p.h * ((s >> i) & 1) : 0.0;
+        c->h = 0.5 * p.h;
+        c->depth = p.depth + 1;
+        c->alive = 1;
+        c->err = 0;
+    }
+}
+
+/* Globally adaptive refinement: the cells with the largest error estimates are halved, a round of
+ * up to `round` cells at a time (one batch of diagonalisations), until the total estimate is below
+ * tol, the k-point budget is spent, or every cell left over is at the depth limit. */
+static int refine(tr_ws *w, tr_mesh *g, const tr_opts *o, double tol, int max_depth, int *depth,
+                  bs_err *err)
+{
+    int nsub = 1 << w->dim, round = w->dim == 3 ? 32 : 128;
+    double total = 0;
+    for (long long c = 0; c < g->ncell; c++) {
+        total += g->cell[c].err;
+        if (g->cell[c].depth < max_depth) heap_push(g, (int)c);
+    }
+    int *pick = malloc((size_t)round * sizeof *pick);
+    if (!pick) return bs_fail(err, BS_ENOMEM, "transport: refinement list: out of memory");
+    int rc = 0;
+    while (g->nheap > 0 && total > tol && w->nk < o->max_kpoints) {
+        int npick = 0;
+        double left = total;
+        while (g->nheap > 0 && npick < round && left > tol) {
+            int ci = heap_pop(g);
+            pick[npick++] = ci;
+            left -= g->cell[ci].err;
+        }
+        rc = mesh_reserve(g, g->ncell + (long long)npick * nsub, w->nv, err);
+        if (rc != 0) break;
+        long long first = g->ncell;
+        for (int i = 0; i < npick; i++) {
+            place_children(w, g, pick[i]);
+            g->cell[pick[i]].alive = 0;
+            total -= g->cell[pick[i]].err;
+        }
+        rc = eval_cells(w, g, first, g->ncell - first, err);
+        if (rc != 0) break;
+        for (long long c = first; c < g->ncell; c++) {
+            total += g->cell[c].err;
+            if (g->cell[c].depth > *depth) *depth = g->cell[c].depth;
+            if (g->cell[c].depth < max_depth) heap_push(g, (int)c);
+        }
+    }
+    free(pick);
+    return rc;
+}
+
+static int check_inputs(const tb_model *m, const tr_opts *o, bs_err *err)
+{
+    if (m->dim != 2 && m->dim != 3)
+        return bs_fail(err, BS_EINVAL, "transport: expected a 2D or 3D model, found dim %d", m->dim);
+    if (m->nocc < 1 || m->nocc >= m->norb)
+        return bs_fail(err, BS_EINVAL, "transport: expected 1 <= occupied bands < %d, found %d",
+                       m->norb, m->nocc);
+    if (o->mesh < 0 || o->mesh > 1024 || o->max_depth < -1 || o->max_depth > 20)
+        return bs_fail(err, BS_EINVAL,
+                       "transport: expected 0 <= mesh <= 1024 and -1 <= max_depth <= 20, found %d "
+                       "and %d", o->mesh, o->max_depth);
+    if (!(o->tol >= 0) || !isfinite(o->tol) || o->max_kpoints < 1 || !(o->eta_ev >= 0) ||
+        !isfinite(o->eta_ev) || !(o->smear_ev >= 0) || !isfinite(o->smear_ev))
+        return bs_fail(err, BS_EINVAL,
+                       "transport: expected tol >= 0, max_kpoints >= 1, eta >= 0, smearing >= 0, "
+                       "found %g, %lld, %g, %g", o->tol, o->max_kpoints, o->eta_ev, o->smear_ev);
+    if (o->nscan < 0 || o->nscan > TR_MAX_FERMI - 1 || !isfinite(o->scan_lo_ev) ||
+        !isfinite(o->scan_hi_ev) || (o->has_fermi && !isfinite(o->fermi_ev)))
+        return bs_fail(err, BS_EINVAL,
+                       "transport: expected 0 <= nscan <= %d, finite scan limits and Fermi energy, "
+                       "found %d", TR_MAX_FERMI - 1, o->nscan);
+    if (o->gauge != TR_GAUGE_POSITION && o->gauge != TR_GAUGE_LATTICE)
+        return bs_fail(err, BS_EINVAL, "transport: unknown gauge %d", o->gauge);
+    return 0;
+}
+
+/* Reference Fermi energy and the scan into w->fermi. */
+static int set_fermi(tr_ws *w, const tr_opts *o, int n0, tr_result *out, bs_err *err)
+{
+    double ef = 0;
+    int source = TR_FERMI_GIVEN;
+    if (o->has_fermi) {
+        ef = o->fermi_ev;
+    } else if (w->m->has_fermi) {
+        ef = w->m->fermi_ev;
+        source = TR_FERMI_CARD;
+    } else {
+        int rc = default_fermi(w, n0, &ef, &source, err);
+        if (rc != 0) return rc;
+    }
+    w->fermi[0] = ef;
+    for (int i = 0; i < o->nscan; i++) {
+        double t = o->nscan > 1 ? (double)i / (o->nscan - 1) : 0.0;
+        w->fermi[1 + i] = ef + o->scan_lo_ev + t * (o->scan_hi_ev - o->scan_lo_ev);
+    }
+    w->nE = 1 + o->nscan;
+    out->fermi_source = source;
+    return 0;
+}
+
+/* Initial partition: n0^d cells of side 1/n0. */
+static int initial_cells(tr_ws *w, tr_mesh *g, int n0, bs_err *err)
+{
+    long long ncell = w->dim == 3 ? (long long)n0 * n0 * n0 : (long long)n0 * n0;
+    int rc = mesh_reserve(g, ncell, w->nv, err);
+    if (rc != 0) return rc;
+    for (long long c = 0; c < ncell; c++) {
+        tr_cell *cl = &g->cell[c];
+        cl->o[0] = (double)(c % n0) / n0;
+        cl->o[1] = (double)((c / n0) % n0) / n0;
+        cl->o[2] = w->dim == 3 ? (double)(c / ((long long)n0 * n0)) / n0 : 0.0;
+        cl->h = 1.0 / n0;
+        cl->depth = 0;
+        cl->alive = 1;
+    }
+    g->ncell = ncell;
+    return eval_cells(w, g, 0, ncell, err);
+}
+
+/* Sums the cells of the final partition into out (the running totals of refine() drift). */
+static void collect(const tr_ws *w, const tr_mesh *g, tr_result *out)
+{
+    out->err_total = 0;
+    out->ncells = 0;
+    for (long long c = 0; c < g->ncell; c++) {
+        if (!g->cell[c].alive) continue;
+        out->ncells++;
+        out->err_total += g->cell[c].err;
+        const double *val = g->val + (size_t)c * w->nv, *ce = g->cerr + (size_t)c * w->nv;
+        for (int e = 0; e < w->nE; e++) {
+            for (int a = 0; a < w->nahc; a++) {
+                out->ahc[e][a] += val[a * w->nE + e];
+                out->ahc_err[e][a] += ce[a * w->nE + e];
+            }
+            if (w->has_shc) {
+                out->shc[e] += val[w->nahc * w->nE + e];
+                out->shc_err[e] += ce[w->nahc * w->nE + e];
+            }
+        }
+    }
+}
+
+int tr_compute(const tb_model *m, const tr_opts *o, tr_result *out, bs_err *err)
+{
+    tr_opts def;
+    if (!o) {
+        tr_opts_default(&def);
+        o = &def;
+    }
+    memset(out, 0, sizeof *out);
+    int rc = check_inputs(m, o, err);
+    if (rc != 0) return rc;
+    int n0 = o->mesh ? o->mesh : (m->dim == 3 ? 8 : 16);
+    int max_depth = o->max_depth ? (o->max_depth < 0 ? 0 : o->max_depth) : (m->dim == 3 ? 4 : 7);
+    double tol = o->tol > 0 ? o->tol : (m->dim == 3 ? 1.0 : 1e-3);
+    tr_ws *w = NULL;
+    tr_mesh g;
+    memset(&g, 0, sizeof g);
+    rc = ws_create(m, o, &w, err);
+    if (rc != 0) goto done;
+    rc = set_fermi(w, o, n0, out, err);
+    if (rc != 0) goto done;
+    w->nv = w->ncomp * w->nE;
+    rc = initial_cells(w, &g, n0, err);
+    if (rc != 0) goto done;
+    out->depth = 0;
+    rc = refine(w, &g, o, tol, max_depth, &out->depth, err);
+    if (rc != 0) goto done;
+    collect(w, &g, out);
+    out->dim = m->dim;
+    out->has_shc = w->has_shc;
+    out->nfermi = w->nE;
+    memcpy(out->fermi_ev, w->fermi, sizeof(double) * (size_t)w->nE);
+    strcpy(out->ahc_units, m->dim == 3 ? "S/cm" : "e^2/h");
+    strcpy(out->shc_units, w->has_shc ? (m->dim == 3 ? "(hbar/e)S/cm" : "e/2pi") : "");
+    out->nk = w->nk;
+    out->tol = tol;
+    out->converged = out->err_total <= tol;
+    out->min_gap_ev = w->min_gap;
+    out->eta_ev = o->eta_ev;
+    out->smear_ev = o->smear_ev;
+    out->gauge = o->gauge;
+done:
+    mesh_clear(&g);
+    ws_free(w);
+    return rc;
+}
+
+static double max3(const double *v, int n)
+{
+    double x = 0;
+    for (int i = 0; i < n; i++)
+        if (v[i] > x) x = v[i];
+    return x;
+}
+
+static cJSON *scan_json(const tr_result *r)
+{
+    static const char *ahc_key[3] = {"ahc_xy", "ahc_yz", "ahc_zx"};
+    int nahc = r->dim == 3 ? 3 : 1;
+    cJSON *arr = cJSON_CreateArray();
+    for (int e = 0; arr && e < r->nfermi; e++) {
+        cJSON *p = cJSON_CreateObject();
+        if (!p || !cJSON_AddItemToArray(arr, p)) {
+            cJSON_Delete(p);
+            cJSON_Delete(arr);
+            return NULL;
+        }
+        int ok = cJSON_AddNumberToObject(p, "fermi_eV", r->fermi_ev[e]) != NULL;
+        for (int a = 0; a < nahc; a++) ok &= cJSON_AddNumberToObject(p, ahc_key[a], r->ahc[e][a]) != NULL;
+        ok &= cJSON_AddNumberToObject(p, "ahc_error", max3(r->ahc_err[e], nahc)) != NULL;
+        if (r->has_shc) {
+            ok &= cJSON_AddNumberToObject(p, "shc_xy_z", r->shc[e]) != NULL;
+            ok &= cJSON_AddNumberToObject(p, "shc_error", r->shc_err[e]) != NULL;
+        }
+        if (!ok) {
+            cJSON_Delete(arr);
+            return NULL;
+        }
+    }
+    return arr;
+}
+
+cJSON *tr_to_json(const tr_result *r)
+{
+    cJSON *root = cJSON_CreateObject(), *ahc = cJSON_CreateObject(), *shc = NULL;
+    int ok = root && ahc && cJSON_AddItemToObject(root, "ahc", ahc);
+    if (!ok) {
+        cJSON_Delete(ahc);
+        cJSON_Delete(root);
+        return NULL;
+    }
+    int nahc = r->dim == 3 ? 3 : 1;
+    ok &= cJSON_AddNumberToObject(ahc, "xy", r->ahc[0][0]) != NULL;
+    if (nahc == 3) {
+        ok &= cJSON_AddNumberToObject(ahc, "yz", r->ahc[0][1]) != NULL;
+        ok &= cJSON_AddNumberToObject(ahc, "zx", r->ahc[0][2]) != NULL;
+    }
+    ok &= cJSON_AddStringToObject(ahc, "units", r->ahc_units) != NULL;
+    ok &= cJSON_AddNumberToObject(ahc, "fermi_eV", r->fermi_ev[0]) != NULL;
+    ok &= cJSON_AddNumberToObject(ahc, "error", max3(r->ahc_err[0], nahc)) != NULL;
+    if (ok && r->has_shc) {
+        shc = cJSON_AddObjectToObject(root, "shc");
+        ok &= shc != NULL;
+        if (shc) {
+            ok &= cJSON_AddNumberToObject(shc, "xy_z", r->shc[0]) != NULL;
+            ok &= cJSON_AddStringToObject(shc, "units", r->shc_units) != NULL;
+            ok &= cJSON_AddNumberToObject(shc, "fermi_eV", r->fermi_ev[0]) != NULL;
+            ok &= cJSON_AddNumberToObject(shc, "error", r->shc_err[0]) != NULL;
+        }
+    }
+    cJSON *scan = ok ? scan_json(r) : NULL;
+    ok &= scan != NULL && cJSON_AddItemToObject(root, "scan", scan);
+    if (!ok) cJSON_Delete(scan);
+    ok = ok && cJSON_AddNumberToObject(root, "kpoints", (double)r->nk) &&
+         cJSON_AddNumberToObject(root, "cells", (double)r->ncells) &&
+         cJSON_AddNumberToObject(root, "depth", r->depth) &&
+         cJSON_AddBoolToObject(root, "converged", r->converged) &&
+         cJSON_AddNumberToObject(root, "tolerance", r->tol) &&
+         cJSON_AddStringToObject(root, "fermi_source", tr_fermi_source_name(r->fermi_source)) &&
+         cJSON_AddNumberToObject(root, "eta_eV", r->eta_ev) &&
+         cJSON_AddNumberToObject(root, "smear_eV", r->smear_ev) &&
+         cJSON_AddStringToObject(root, "gauge", r->gauge == TR_GAUGE_LATTICE ? "lattice" : "position") &&
+         cJSON_AddNumberToObject(root, "min_gap_eV", r->min_gap_ev);
+    if (!ok) {
+        cJSON_Delete(root);
+        return NULL;
+    }
+    return root;
+}

@@ -1,0 +1,334 @@
+/* Tests of the gap search (gaps.h) and of the band-pair evaluator it stands on (bandpair.h):
+ * analytic gaps of built-in models, a generic insulator against numpy/scipy, errors, timings. */
+#include <setjmp.h>
+#include <stdarg.h>
+#include <stddef.h>
+#include <stdint.h>
+#include <cmocka.h>
+
+#include <math.h>
+#include <stdio.h>
+#include <stdlib.h>
+#include <string.h>
+#include <unistd.h>
+
+#include "bandsieve/bandpair.h"
+#include "bandsieve/config.h"
+#include "bandsieve/eig.h"
+#include "bandsieve/gaps.h"
+#include "bandsieve/hk.h"
+#include "bandsieve/hopfile.h"
+#include "bandsieve/lattice_models.h"
+
+/* cmocka's float comparison is single precision; this one is double. */
+#define assert_close(a, b, tol)                                                                    \
+    do {                                                                                           \
+        double a_ = (a), b_ = (b);                                                                 \
+        if (!(fabs(a_ - b_) <= (tol)))                                                             \
+            fail_msg("%s = %.12g, expected %.12g within %g", #a, a_, b_, (double)(tol));           \
+    } while (0)
+
+#define REF_SCRIPT BS_TEST_DATA "/../topology/gaps_ref.py"
+
+static tb_model *build(const char *spec)
+{
+    tb_model *m = NULL;
+    bs_err err;
+    bs_err_clear(&err);
+    int rc = lm_build(spec, &m, &err);
+    if (rc != 0) fprintf(stderr, "lm_build(%s): %s\n", spec, err.msg);
+    assert_int_equal(rc, 0);
+    return m;
+}
+
+static void run_gaps(const tb_model *m, const gaps_opts *o, gaps_result *g)
+{
+    hk_engine *hk = NULL;
+    bs_err err;
+    bs_err_clear(&err);
+    assert_int_equal(hk_create(m, 128, &hk, &err), 0);
+    int rc = gaps_find(m, hk, o, g, &err);
+    if (rc != 0) fprintf(stderr, "gaps_find: %s\n", err.msg);
+    assert_int_equal(rc, 0);
+    printf("  gaps %-28s mesh %d: direct %.9f indirect %.9f eV, %lld k, %.3f s\n", m->id, g->mesh,
+           g->gap_direct_ev, g->gap_indirect_ev, g->nk_evaluated, g->seconds);
+    hk_free(hk);
+}
+
+/* Deterministic generator for the generic model (no rand(): STYLE.md). */
+static double lcg(uint64_t *s)
+{
+    *s = *s * 6364136223846793005ULL + 1442695040888963407ULL;
+    return (double)(*s >> 11) / 9007199254740992.0 - 0.5;
+}
+
+/* A generic insulator without symmetry: norb states, on-site levels -3 eV (lower half) and +3 eV,
+ * random complex hoppings (real and imaginary parts up to hop/2 eV) to 6 neighbours and their inverses, some degeneracy
+ * weights 2 to exercise the H(R)/deg(R) convention. The gap (about 4 eV) sits at generic k. */
+static tb_model *generic_model(int norb, int dim, uint64_t seed, double hop)
+{
+    static const int half[6][3] = {{1, 0, 0}, {0, 1, 0}, {0, 0, 1}, {1, 1, 0}, {0, 1, 1}, {1, -1, 0}};
+    int nhalf = dim == 3 ? 6 : 3;
+    const int idx2d[3] = {0, 1, 3};
+    tb_model *m = NULL;
+    bs_err err;
+    assert_int_equal(tb_model_create(norb, 1 + 2 * nhalf, 0, &m, &err), 0);
+    m->dim = dim;
+    m->nocc = norb / 2;
+    snprintf(m->id, sizeof m->id, "generic-%d-%dD", norb, dim);
+    uint64_t s = seed;
+    size_t nn = (size_t)norb * norb;
+    for (int a = 0; a < norb; a++) {
+        m->H[a + norb * a] = (a < norb / 2 ? -3.0 : 3.0) + 0.3 * lcg(&s);
+        for (int b = a + 1; b < norb; b++) {
+            double complex z = 0.3 * (lcg(&s) + I * lcg(&s));
+            m->H[a * norb + b] = z;
+            m->H[b * norb + a] = conj(z);
+        }
+    }
+    for (int h = 0; h < nhalf; h++) {
+        const int *R = half[dim == 3 ? h : idx2d[h]];
+        int rp = 1 + 2 * h, rm = rp + 1;
+        for (int i = 0; i < 3; i++) {
+            m->R[rp][i] = R[i];
+            m->R[rm][i] = -R[i];
+        }
+        m->deg[rp] = m->deg[rm] = h % 2 ? 2 : 1;
+        for (int a = 0; a < norb; a++)
+            for (int b = 0; b < norb; b++) {
+                double complex z = hop * (lcg(&s) + I * lcg(&s)) * m->deg[rp];
+                m->H[rp * nn + a * norb + b] = z;
+                m->H[rm * nn + b * norb + a] = conj(z);
+            }
+    }
+    assert_int_equal(tb_model_validate(m, 0.0, "generic", &err), 0);
+    return m;
+}
+
+/* atomic (CsCl-type): E = +-sqrt(delta^2 + |f|^2) with f = 0 on the zone boundary, so the direct and
+ * indirect gaps are both 2|delta| = 4 eV at the defaults (analytic, lattice_models.h). The boundary
+ * holds mesh points (k = 1/2), so only round-off separates the result: tolerance 1e-9 eV. */
+static void test_atomic_gap_analytic(void **state)
+{
+    (void)state;
+    tb_model *m = build("atomic");
+    gaps_result g;
+    run_gaps(m, NULL, &g);
+    assert_close(g.gap_direct_ev, 4.0, 1e-9);
+    assert_close(g.gap_indirect_ev, 4.0, 1e-9);
+    assert_false(g.metallic);
+    assert_false(g.closed);
+    tb_model_free(m);
+}
+
+/* metal: E = -2t sum cos k_i +- s, s = sqrt(delta^2/4 + v^2) (analytic, lattice_models.h). Direct gap
+ * 2s everywhere = 1.0770329614 eV; indirect min E+ - max E- = (-6t + s) - (6t - s) = 2s - 12t (3D),
+ * 2s - 8t (2D): negative, a metal. VBM at (1/2,1/2,1/2), CBM at Gamma, both mesh points: 1e-9 eV. */
+static void test_metal_indirect_negative(void **state)
+{
+    (void)state;
+    double s = sqrt(0.25 + 0.04);
+    const char *specs[2] = {"metal", "metal:dim=2"};
+    const double indirect[2] = {2 * s - 12.0, 2 * s - 8.0};
+    for (int i = 0; i < 2; i++) {
+        tb_model *m = build(specs[i]);
+        gaps_result g;
+        run_gaps(m, NULL, &g);
+        assert_close(g.gap_direct_ev, 2 * s, 1e-9);
+        assert_close(g.gap_indirect_ev, indirect[i], 1e-9);
+        assert_true(g.metallic);
+        assert_false(g.closed);
+        for (int a = 0; a < m->dim; a++) {
+            assert_close(g.k_vbm[a], 0.5, 1e-6);
+            assert_true(bp_kdist(1, &g.k_cbm[a], (double[3]){0, 0, 0}) < 1e-6);
+        }
+        tb_model_free(m);
+    }
+}
+
+/* graphene: E = +-t|1 + e^{ik.a1} + e^{ik.a2}| vanishes at K = (1/3,-1/3), K' (Rev. Mod. Phys. 81,
+ * 109 (2009)): direct gap 0 at K or K' (a cone: the refined gap is linear in the position error, so
+ * below BS_GAP_CLOSED_EV), a semimetal. */
+static void test_graphene_gap_closes_at_K(void **state)
+{
+    (void)state;
+    tb_model *m = build("graphene");
+    gaps_opts o;
+    gaps_opts_init(&o);
+    o.mesh = 20; /* not a multiple of 3: K is not a mesh point and must be found by the refinement */
+    gaps_result g;
+    run_gaps(m, &o, &g);
+    assert_true(g.gap_direct_ev < BS_GAP_CLOSED_EV);
+    assert_true(g.closed);
+    assert_true(g.metallic);
+    const double K[3] = {1.0 / 3, -1.0 / 3, 0}, Kp[3] = {-1.0 / 3, 1.0 / 3, 0};
+    double d = fmin(bp_kdist(2, g.k_direct, K), bp_kdist(2, g.k_direct, Kp));
+    assert_true(d < 1e-5); /* gap 8 eV per reduced unit near K: 1e-4 eV means ~1e-5 */
+    tb_model_free(m);
+}
+
+/* Reads the numpy/scipy reference of the table at path: 3 energies and 3 k-points. */
+static int numpy_reference(const char *path, int nocc, int dim, double ref[12])
+{
+    char cmd[1024];
+    snprintf(cmd, sizeof cmd, "/usr/bin/python3 %s %s %d %d", REF_SCRIPT, path, nocc, dim);
+    FILE *p = popen(cmd, "r");
+    if (!p) return -1;
+    int n = 0;
+    for (int i = 0; i < 12; i++) n += fscanf(p, "%lf", &ref[i]) == 1;
+    int st = pclose(p);
+    return n == 12 && st == 0 ? 0 : -1;
+}
+
+/* A generic wide-gap insulator (no symmetry, extremes at generic k) against numpy: the reference
+ * (tests/topology/gaps_ref.py) scans a 28^dim grid with numpy's eigvalsh and refines with scipy's
+ * Nelder-Mead to 1e-9 in k. Energies agree to 1e-6 eV: both minimisers stop within ~1e-6 in k of a
+ * smooth extremum, where the energy error is quadratic (~1e-10 eV); 1e-6 leaves room for the
+ * reference stopping early. Positions to 1e-4 (a smooth extremum is flat, positions less sharp). */
+static void test_generic_insulator_against_numpy(void **state)
+{
+    (void)state;
+    const int dims[2] = {3, 2};
+    for (int t = 0; t < 2; t++) {
+        tb_model *m = generic_model(4, dims[t], 12345 + t, 0.3);
+        char path[] = "/tmp/bs_gaps_ref_XXXXXX";
+        int fd = mkstemp(path);
+        assert_true(fd >= 0);
+        close(fd);
+        bs_err err;
+        assert_int_equal(hop_write(path, m, "generic insulator for test_gaps", &err), 0);
+        double ref[12];
+        int rc = numpy_reference(path, m->nocc, m->dim, ref);
+        unlink(path);
+        assert_int_equal(rc, 0);
+        gaps_result g;
+        run_gaps(m, NULL, &g);
+        printf("  numpy: direct %.9f vbm %.9f cbm %.9f\n", ref[0], ref[1], ref[2]);
+        assert_true(ref[0] > 2.0); /* wide gap by construction */
+        assert_close(g.gap_direct_ev, ref[0], 1e-6);
+        assert_close(g.vbm_ev, ref[1], 1e-6);
+        assert_close(g.cbm_ev, ref[2], 1e-6);
+        assert_close(g.gap_indirect_ev, ref[2] - ref[1], 2e-6);
+        assert_true(bp_kdist(m->dim, g.k_direct, ref + 3) < 1e-4);
+        assert_true(bp_kdist(m->dim, g.k_vbm, ref + 6) < 1e-4);
+        assert_true(bp_kdist(m->dim, g.k_cbm, ref + 9) < 1e-4);
+        assert_true(g.gap_indirect_ev <= g.gap_direct_ev + 1e-12);
+        assert_false(g.metallic);
+        tb_model_free(m);
+    }
+}
+
+/* bp_bands against a direct diagonalisation (hk_build_direct + all eigenvalues) for a small model
+ * (full-spectrum path) and a 40-state one (two-eigenvalue zheevr path): same eigenvalues to 1e-10 eV
+ * (round-off of two LAPACK drivers on eV-sized matrices, common practice). */
+static void test_band_pair_both_solver_paths(void **state)
+{
+    (void)state;
+    const int sizes[2] = {4, 40};
+    for (int t = 0; t < 2; t++) {
+        tb_model *m = generic_model(sizes[t], 3, 777 + t, 0.7);
+        int n = m->norb;
+        bs_err err;
+        hk_engine *hk = NULL;
+        bp_eval *e = NULL;
+        eig_ws *ws = NULL;
+        assert_int_equal(hk_create(m, 16, &hk, &err), 0);
+        assert_int_equal(bp_create(m, hk, 0.0, &e, &err), 0);
+        assert_int_equal(eig_create(n, &ws, &err), 0);
+        double k[3 * 37], lo[37], hi[37];
+        uint64_t s = 99;
+        for (int i = 0; i < 3 * 37; i++) k[i] = lcg(&s) * 3.0;
+        assert_int_equal(bp_bands(e, 37, k, lo, hi, &err), 0); /* 37 > batch 16: three batches */
+        assert_int_equal(bp_count(e), 37);
+        double complex *H = malloc((size_t)n * n * sizeof *H);
+        double *w = malloc((size_t)n * sizeof *w);
+        for (int j = 0; j < 37; j++) {
+            hk_build_direct(m, k + 3 * j, H);
+            assert_int_equal(eig_values(ws, H, w, &err), 0);
+            assert_close(lo[j], w[m->nocc - 1], 1e-10);
+            assert_close(hi[j], w[m->nocc], 1e-10);
+        }
+        free(H);
+        free(w);
+        eig_free(ws);
+        bp_free(e);
+        hk_free(hk);
+        tb_model_free(m);
+    }
+}
+
+/* Bad input and an expired budget give their error codes and messages. */
+static void test_errors(void **state)
+{
+    (void)state;
+    tb_model *m = build("atomic");
+    hk_engine *hk = NULL;
+    bs_err err;
+    bs_err_clear(&err);
+    assert_int_equal(hk_create(m, 64, &hk, &err), 0);
+    gaps_result g;
+    gaps_opts o;
+    gaps_opts_init(&o);
+    o.mesh = 1;
+    assert_int_equal(gaps_find(m, hk, &o, &g, &err), BS_EINVAL);
+    assert_non_null(strstr(err.msg, "points per direction"));
+
+    bs_err_clear(&err);
+    gaps_opts_init(&o);
+    o.deadline = bp_now() - 1.0; /* already past */
+    assert_int_equal(gaps_find(m, hk, &o, &g, &err), BS_ETIMEOUT);
+    assert_non_null(strstr(err.msg, "time budget"));
+
+    bs_err_clear(&err);
+    int nocc = m->nocc;
+    m->nocc = m->norb; /* no empty band */
+    assert_int_equal(gaps_find(m, hk, NULL, &g, &err), BS_EINVAL);
+    assert_non_null(strstr(err.msg, "filling"));
+    m->nocc = nocc;
+
+    bs_err_clear(&err);
+    tb_model *other = build("graphene"); /* 2 states against an engine for 4 */
+    assert_int_equal(gaps_find(other, hk, NULL, &g, &err), BS_EINVAL);
+    assert_non_null(strstr(err.msg, "states"));
+    tb_model_free(other);
+    hk_free(hk);
+    tb_model_free(m);
+}
+
+/* Timing of the band evaluation at several sizes, printed for the report (no assertion on time:
+ * STYLE.md, deterministic tests). */
+static void test_timing_report(void **state)
+{
+    (void)state;
+    const int sizes[3] = {8, 24, 48};
+    for (int t = 0; t < 3; t++) {
+        tb_model *m = generic_model(sizes[t], 3, 4242 + t, 0.7);
+        bs_err err;
+        hk_engine *hk = NULL;
+        assert_int_equal(hk_create(m, 128, &hk, &err), 0);
+        gaps_opts o;
+        gaps_opts_init(&o);
+        o.mesh = 6;
+        gaps_result g;
+        assert_int_equal(gaps_find(m, hk, &o, &g, &err), 0);
+        printf("  timing: norb %d, %lld k-points in %.3f s (%.1f us per k)\n", m->norb, g.nk_evaluated,
+               g.seconds, 1e6 * g.seconds / (double)g.nk_evaluated);
+        assert_true(g.gap_direct_ev >= 0);
+        hk_free(hk);
+        tb_model_free(m);
+    }
+}
+
+int main(void)
+{
+    const struct CMUnitTest tests[] = {
+        cmocka_unit_test(test_atomic_gap_analytic),
+        cmocka_unit_test(test_metal_indirect_negative),
+        cmocka_unit_test(test_graphene_gap_closes_at_K),
+        cmocka_unit_test(test_generic_insulator_against_numpy),
+        cmocka_unit_test(test_band_pair_both_solver_paths),
+        cmocka_unit_test(test_errors),
+        cmocka_unit_test(test_timing_report),
+    };
+    return cmocka_run_group_tests(tests, NULL, NULL);
+}
