@@ -51,7 +51,7 @@
  *             reversal broken, inversion s_z (from l):
  *             H = t sin ky s_x + t sin kz s_y + [t(cos kx - cos k0) + m(2 - cos ky - cos kz)] s_z,
  *             with k0 = 2 pi w (common practice form). Nodes: sin ky = sin kz = 0 and
- *             t cos kx = t cos k0 - n m, n = 0, 1, 2 (number of ky, kz equal to pi). With
+ *             t cos kx = t cos k0 - 2 n m, n = 0, 1, 2 the number of ky, kz equal to pi. With
  *             |cos k0 - 2m/t| > 1 and |cos k0 - 4m/t| > 1 (true at the defaults) there are exactly two
  *             nodes, at reduced k = (+w, 0, 0) with chirality -sign(t^3 sin k0) and (-w, 0, 0) with
  *             the opposite one; chirality = sign det(d d_i / d k_j) for H = d.s, which is the Berry

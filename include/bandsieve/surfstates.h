@@ -16,7 +16,7 @@ typedef struct ss_opts {
     double loc_min;     /* w_top - w_bottom above this: top state; below -loc_min: bottom (0: 0.3) */
     int nk;             /* k samples per segment for crossings (0: 240) */
     int nperp;          /* k_perp samples for projected bulk bands (0: 48) */
-    double deg_tol_ev;  /* eigenvalues closer than this are one degenerate level (0: 1e-6 eV) */
+    double deg_tol_ev;  /* eigenvalues closer than this are one degenerate level (0: 2e-3 eV) */
 } ss_opts;
 
 /* Fills o with the defaults (all zero, which the functions read as the defaults above). */

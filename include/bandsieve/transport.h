@@ -40,8 +40,10 @@ enum { TR_FERMI_GIVEN = 0, TR_FERMI_CARD = 1, TR_FERMI_MIDGAP = 2, TR_FERMI_FILL
 /* Settings; tr_opts_default fills the defaults named in brackets. */
 typedef struct tr_opts {
     int mesh;              /* initial cells per direction [0: 16 in 2D, 8 in 3D] */
-    int max_depth;         /* times a cell may be halved [0: 7 in 2D, 4 in 3D]; -1: never (a
-                              uniform mesh of 2 mesh points per direction with an error estimate) */
+    int max_depth;         /* times a cell may be halved [0: 12 in 2D, 8 in 3D]; -1: never (a
+                              uniform mesh of 2 mesh points per direction with an error estimate).
+                              Refinement is global (largest errors first), so a deep limit costs
+                              only where the integrand needs it (nodes, Fermi surfaces) */
     double tol;            /* target total error estimate, output units [0: 1e-3 e^2/h in 2D,
                               1 S/cm in 3D] */
     long long max_kpoints; /* refinement stops past this many H(k) evaluations [2000000] */

@@ -73,6 +73,7 @@ static int open_file(cat_db *cat, int64_t run_id, int session, bs_err *err)
     } H5E_END_TRY;
     if (f < 0) return bs_fail(err, BS_EHDF5, "%s: cannot create or open the artifact file (errno %d: %s)", full, errno, strerror(errno));
     cat->h5 = f;
+    cat->h5_dirty = 1;
     cat->h5_run = run_id;
     cat->h5_session = session;
     return cat_session_set_file(cat, run_id, session, cat->h5_name, err);
@@ -113,6 +114,7 @@ int cat_artifact_write(cat_db *cat, int64_t run_id, int session, const char *mat
     if (rc == 0 && (write_dataset(group, "kpar", 1, d1, f->kpar) != 0 || write_dataset(group, "wcc", 2, d2, f->wcc) != 0))
         rc = h5_fail(err, cat->h5_name, "writing the flow datasets");
     if (rc == 0 && write_attr_int(group, "plane", f->plane) != 0) rc = h5_fail(err, cat->h5_name, "writing the plane attribute");
+    cat->h5_dirty = 1;
     if (group >= 0) H5Gclose(group);
     if (lcpl >= 0) H5Pclose(lcpl);
     if (rc != 0) bs_err_context(err, "material %s: ", material_id);
@@ -121,10 +123,12 @@ int cat_artifact_write(cat_db *cat, int64_t run_id, int session, const char *mat
 
 int cat_artifact_flush(cat_db *cat, bs_err *err)
 {
-    if (cat->h5 < 0) return 0;
+    if (cat->h5 < 0 || !cat->h5_dirty) return 0; /* most batches carry no flows */
     herr_t s;
     H5E_BEGIN_TRY { s = H5Fflush(cat->h5, H5F_SCOPE_GLOBAL); } H5E_END_TRY;
-    return s < 0 ? h5_fail(err, cat->h5_name, "flushing the artifact file") : 0;
+    if (s < 0) return h5_fail(err, cat->h5_name, "flushing the artifact file");
+    cat->h5_dirty = 0;
+    return 0;
 }
 
 int cat_artifact_close(cat_db *cat, bs_err *err)

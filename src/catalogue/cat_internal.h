@@ -22,7 +22,7 @@ enum {
     CAT_ST_DEL_NODES,   /* DELETE FROM nodes of one (run, material) */
     CAT_ST_DEL_ARTS,    /* DELETE FROM artifacts of one (run, material) */
     CAT_ST_ARTIFACT,    /* INSERT INTO artifacts */
-    CAT_ST_MAT_ENSURE,  /* INSERT OR IGNORE INTO materials (id only) */
+    CAT_ST_MAT_ENSURE,  /* INSERT OR IGNORE INTO materials (id and sizes from the diagnosis) */
     CAT_ST_MAT_UPSERT,  /* full material upsert */
     CAT_ST_COUNT
 };
@@ -46,6 +46,7 @@ struct cat_db {
     hid_t h5;                /* artifact file being written, or H5I_INVALID_HID */
     int64_t h5_run;
     int h5_session;
+    int h5_dirty;            /* written since the last flush */
     char h5_name[512];       /* its file name relative to the catalogue's folder */
 };
 

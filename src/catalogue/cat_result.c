@@ -439,19 +439,33 @@ static int insert_flows(cat_db *cat, int64_t run_id, const char *mid, const cat_
     return rc;
 }
 
+/* A material seen first in a result gets a row with the sizes the diagnosis reports
+ * ("dimension", "norb", "occupied_bands"); values out of range are left NULL, never an error. */
+static int ensure_material(cat_db *cat, const char *mid, const cJSON *diag, bs_err *err)
+{
+    sqlite3_stmt *st = cat->st[CAT_ST_MAT_ENSURE];
+    sqlite3_bind_text(st, 1, mid, -1, SQLITE_TRANSIENT);
+    static const char *const keys[3] = {"dimension", "norb", "occupied_bands"};
+    for (int i = 0; diag && i < 3; i++) {
+        int v = 0;
+        if (json_int(cJSON_GetObjectItemCaseSensitive(diag, keys[i]), &v) != 0 || v < 1) continue;
+        if (i == 0 && v != 2 && v != 3) continue;
+        sqlite3_bind_int(st, 2 + i, v);
+    }
+    return step_reset(cat, st, "recording the material", err);
+}
+
 /* All statements of one result in the batch transaction: either the whole result (row, nodes,
  * artifacts) is in the batch or none of it. Keys were checked before, so a failure here is an
  * SQLite or HDF5 error; it is undone by deleting what this put wrote. (A savepoint per put would
  * do the same, but SQLite allocates a journal buffer for each one, which cost a third of the
  * write rate in bench_catalogue.) */
-static int write_row(cat_db *cat, int64_t run_id, const char *mid, const node_in *nodes, int nnodes,
-                     const cat_flow_in *flows, int nflows, bs_err *err)
+static int write_row(cat_db *cat, int64_t run_id, const char *mid, const cJSON *diag, const node_in *nodes,
+                     int nnodes, const cat_flow_in *flows, int nflows, bs_err *err)
 {
     int rc = cat_txn_begin(cat, err);
     if (rc != 0) return rc;
-    sqlite3_stmt *ensure = cat->st[CAT_ST_MAT_ENSURE];
-    sqlite3_bind_text(ensure, 1, mid, -1, SQLITE_TRANSIENT);
-    rc = step_reset(cat, ensure, "recording the material", err);
+    rc = ensure_material(cat, mid, diag, err);
     int exists = rc == 0 ? result_exists(cat, run_id, mid, err) : 0;
     if (exists < 0) rc = exists;
     if (rc == 0 && exists) rc = delete_result(cat, run_id, mid, err);
@@ -498,7 +512,7 @@ static int put_impl(cat_db *cat, int64_t run_id, const char *material_id, cat_st
     rc = parse_nodes(&pc, &nodes, &nnodes);
     if (rc == 0) rc = parse_flows(&pc, &flows, &nflows);
     if (rc == 0) rc = bind_row(&pc, run_id, status, message, rank, seconds, nnodes, raw, raw_len, &diag_text);
-    if (rc == 0) rc = write_row(cat, run_id, material_id, nodes, nnodes, flows, nflows, err);
+    if (rc == 0) rc = write_row(cat, run_id, material_id, diag, nodes, nnodes, flows, nflows, err);
     sqlite3_reset(pc.st); /* a failed bind leaves values behind; the next put starts clean */
     sqlite3_clear_bindings(pc.st);
     cJSON_free(diag_text);

@@ -140,7 +140,8 @@ static const char *const STMT_SQL[CAT_ST_COUNT] = {
     [CAT_ST_DEL_ARTS] = "DELETE FROM artifacts WHERE run_id = ? AND material_id = ?",
     [CAT_ST_ARTIFACT] = "INSERT INTO artifacts (run_id, material_id, kind, plane, file, h5path, nstring, nband)"
                         " VALUES (?, ?, ?, ?, ?, ?, ?, ?)",
-    [CAT_ST_MAT_ENSURE] = "INSERT OR IGNORE INTO materials (material_id, updated) VALUES (?, " CAT_NOW_SQL ")",
+    [CAT_ST_MAT_ENSURE] = "INSERT OR IGNORE INTO materials (material_id, dimension, norb, nocc, updated)"
+                          " VALUES (?, ?, ?, ?, " CAT_NOW_SQL ")",
     [CAT_ST_MAT_UPSERT] =
         "INSERT INTO materials (material_id, formula, dimension, norb, nr, nocc, spinful, set_path, source,"
         " card_json, updated) VALUES (?1, ?2, ?3, ?4, ?5, ?6, ?7, ?8, ?9, ?10, " CAT_NOW_SQL ")"

@@ -315,6 +315,23 @@ static int check_hop_fields(hop_reader *r, tb_model *m, int ir, int row, int col
     return 0;
 }
 
+/* The table lists each block column by column; the model stores it row by row. Writing the
+ * values in file order and transposing each block in place afterwards (in tiles, to stay in
+ * cache) avoids a store with a stride of n elements per line, which for n = 256 is a cache and
+ * TLB miss on every line. */
+static void transpose_block(double complex *A, int n)
+{
+    enum { TILE = 32 };
+    for (int i0 = 0; i0 < n; i0 += TILE)
+        for (int j0 = i0; j0 < n; j0 += TILE)
+            for (int i = i0; i < i0 + TILE && i < n; i++)
+                for (int j = (j0 == i0 ? i + 1 : j0); j < j0 + TILE && j < n; j++) {
+                    double complex t = A[(size_t)i * n + j];
+                    A[(size_t)i * n + j] = A[(size_t)j * n + i];
+                    A[(size_t)j * n + i] = t;
+                }
+}
+
 /* The hot loop: N_R*n*n lines, one hopping each. */
 static int read_hoppings(hop_reader *r, tb_model *m, long *first_line, bs_err *err)
 {
@@ -335,8 +352,9 @@ static int read_hoppings(hop_reader *r, tb_model *m, long *first_line, bs_err *e
                 double re = 0.0, im = 0.0;
                 if ((rc = parse_hop_line(r, s, e, v, &re, &im, err)) != 0) return rc;
                 if ((rc = check_hop_fields(r, m, ir, row, col, v, *first_line, err)) != 0) return rc;
-                H[(size_t)row * n + col] = CMPLX(re, im);
+                H[(size_t)col * n + row] = CMPLX(re, im);
             }
+        transpose_block(H, n);
     }
     return 0;
 }

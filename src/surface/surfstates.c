@@ -37,7 +37,7 @@ static void fill_defaults(ss_opts *o, int nlayers)
     if (!(o->loc_min > 0)) o->loc_min = 0.3;
     if (o->nk <= 1) o->nk = 240;
     if (o->nperp <= 1) o->nperp = 48;
-    if (!(o->deg_tol_ev > 0)) o->deg_tol_ev = 1e-6;
+    if (!(o->deg_tol_ev > 0)) o->deg_tol_ev = 2e-3;
 }
 
 int ss_create(const slab *s, const ss_opts *opts, ss_ctx **out, bs_err *err)

@@ -54,7 +54,8 @@ int bp_create(const tb_model *m, hk_engine *hk, double deadline, bp_eval **out, 
     e->H = malloc((size_t)e->batch * e->norb * e->norb * sizeof *e->H);
     e->w = malloc((size_t)e->norb * sizeof *e->w);
     int rc = 0;
-    if (!e->H || !e->w) rc = bs_fail(err, BS_ENOMEM, "bandpair: out of memory for %d matrices", e->batch);
+    if (!e->H || !e->w)
+        rc = bs_fail(err, BS_ENOMEM, "bandpair: out of memory for %d matrices", e->batch);
     if (rc == 0) rc = eig_create(e->norb, &e->ws, err);
     if (rc != 0) {
         bp_free(e);
@@ -121,7 +122,8 @@ int bp_mesh_eval(bp_eval *e, int n, bp_mesh **out, bs_err *err)
     int chunk = e->batch;
     double *k = malloc((size_t)chunk * 3 * sizeof *k);
     int rc = 0;
-    if (!g->lo || !g->hi || !k) rc = bs_fail(err, BS_ENOMEM, "band mesh: out of memory for %d points", g->npts);
+    if (!g->lo || !g->hi || !k)
+        rc = bs_fail(err, BS_ENOMEM, "band mesh: out of memory for %d points", g->npts);
     for (int i0 = 0; rc == 0 && i0 < g->npts; i0 += chunk) {
         int nb = g->npts - i0 < chunk ? g->npts - i0 : chunk;
         for (int j = 0; j < nb; j++) bp_mesh_k(g, i0 + j, k + 3 * j);

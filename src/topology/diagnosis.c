@@ -82,7 +82,10 @@ static int run_gaps(diag_ctx *c, diag_result *r, bs_err *err)
     go.deadline = c->deadline;
     rc = gaps_find_eval(c->bp, &go, &c->gaps, err);
     if (rc != 0) return rc;
+    /* k-points of the shared evaluator are counted once, at the end (bp_count). */
+    long long keep = r->nk_evaluated;
     gaps_to_diag(&c->gaps, r);
+    r->nk_evaluated = keep;
     return 0;
 }
 
@@ -172,12 +175,16 @@ static int run_nodes(diag_ctx *c, diag_result *r, bs_err *err)
     nodes_opts_init(&no);
     no.grid = c->mesh;
     no.deadline = c->deadline;
+    long long before = bp_count(c->bp);
     int rc = nodes_find_eval(c->m, c->bp, &no, &c->nodes, err);
     if (rc != 0) return rc;
+    /* Only the chirality fluxes are outside the shared evaluator's count. */
+    long long flux_nk = c->nodes.nk_evaluated - (bp_count(c->bp) - before);
     r->chirality_status = c->nodes.chirality_status;
     r->nodes_tr_ok = r->time_reversal ? nodes_check_time_reversal(&c->nodes, c->m->dim, 1e-5) : 1;
-    if (c->nodes.degenerate) r->nodal_points = -1;
+    long long keep = r->nk_evaluated;
     nodes_to_diag(&c->nodes, r);
+    r->nk_evaluated = keep + (flux_nk > 0 ? flux_nk : 0);
     return 0;
 }
 
@@ -367,6 +374,7 @@ int diag_run(const tb_model *m, const diag_opts *opts, diag_result *r, bs_err *e
         else classify_insulator(r, kramers);
         append_small_gap_note(r);
     }
+    if (c.bp) r->nk_evaluated += bp_count(c.bp);
     r->seconds = bp_now() - t0;
     nodes_result_clear(&c.nodes);
     bp_mesh_free(c.mesh);

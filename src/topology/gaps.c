@@ -1,5 +1,5 @@
-/* Gap search at the filling: basins on a coarse mesh, each of the best few refined by compass
- * search in reduced coordinates (bandpair.c), the refined extremes reported. */
+/* Gap search at the filling: basins on a coarse mesh, each of the best few refined by a local
+ * minimiser in reduced coordinates (bandpair.c), the refined extremes reported. */
 #include "bandsieve/gaps.h"
 
 #include <stdlib.h>
@@ -48,12 +48,13 @@ int gaps_find_eval(bp_eval *e, const gaps_opts *o, gaps_result *out, bs_err *err
     double t0 = bp_now();
     long long c0 = bp_count(e);
     int dim = bp_dim(e), n = o->mesh > 0 ? o->mesh : (dim == 3 ? 16 : 48);
-    int nbest = o->nrefine > 0 ? o->nrefine : 4;
+    int nbest = o->nrefine > 0 ? o->nrefine : 6;
     double tol_k = o->tol_k > 0 ? o->tol_k : 1e-6;
     bp_mesh *own = NULL;
     const bp_mesh *g = o->grid;
     int rc = 0;
-    if (g && g->dim != dim) return bs_fail(err, BS_EINVAL, "gaps: mesh of dimension %d for a %dD model", g->dim, dim);
+    if (g && g->dim != dim)
+        return bs_fail(err, BS_EINVAL, "gaps: mesh of dimension %d for a %dD model", g->dim, dim);
     if (!g) {
         rc = bp_mesh_eval(e, n, &own, err);
         if (rc != 0) return rc;

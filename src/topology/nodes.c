@@ -359,11 +359,11 @@ int nodes_find_eval(const tb_model *m, bp_eval *e, const nodes_opts *o, nodes_re
     if (rc == 0 && 2 * nclosed > s.g->npts) out->degenerate = 1;
     /* Starts: gap below a fraction of the two bands' width, and in the lower half of the mesh's gap
      * range, so that a gap that does not vary (no point stands out) starts nothing. */
-    double frac = o->start_frac > 0 ? o->start_frac : 0.25, fmax = -INFINITY;
+    double frac = o->start_frac > 0 ? o->start_frac : 0.25, gmax = -INFINITY;
     for (int i = 0; rc == 0 && i < s.g->npts; i++)
-        if (f[i] > fmax) fmax = f[i];
-    double thresh = fmin(frac * (emax - emin), s.min_gap + 0.5 * (fmax - s.min_gap));
-    int flat = fmax - s.min_gap < s.tol_gap; /* round-off variations of a constant gap */
+        if (f[i] > gmax) gmax = f[i];
+    double thresh = fmin(frac * (emax - emin), s.min_gap + 0.5 * (gmax - s.min_gap));
+    int flat = gmax - s.min_gap < s.tol_gap; /* round-off variations of a constant gap */
     if (rc == 0 && !out->degenerate && !flat) rc = run_starts(&s, f, thresh, err);
     if (rc == 0 && !out->degenerate) rc = classify(&s, o, out, err);
     out->min_gap_ev = s.min_gap;
@@ -400,7 +400,7 @@ int nodes_check_time_reversal(const nodes_result *r, int dim, double tol_k)
         minus += a->chirality < 0;
     }
     /* Touchings of zero chirality (Dirac points, e.g. at a time-reversal-invariant momentum with
-     * inversion) are their own images and need no partners. */
+     * inversion, which is its own image) need their -k partner but form no sets of four. */
     if (dim == 3 && ((plus + minus) % 4 != 0 || plus != minus)) return 0;
     return 1;
 }

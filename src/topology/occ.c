@@ -71,6 +71,7 @@ void occ_free(occ_ws *w)
 int occ_norb(const occ_ws *w) { return w->norb; }
 int occ_nband(const occ_ws *w) { return w->nband; }
 long long occ_count(const occ_ws *w) { return w->count; }
+int occ_batch(const occ_ws *w) { return w->batch; }
 
 int occ_states(occ_ws *w, int nk, const double *k, double complex *U, double *gap, bs_err *err)
 {

@@ -21,6 +21,9 @@ void occ_free(occ_ws *w);
 int occ_norb(const occ_ws *w);
 int occ_nband(const occ_ws *w);
 
+/* k-points per internal batch: callers streaming over many points size their buffers to it. */
+int occ_batch(const occ_ws *w);
+
 /* For nk reduced points k[3j..3j+2] (any nk; batched internally): U receives nk column-major
  * norb x nband blocks of orthonormal occupied vectors (block j at U + j*norb*nband), gap[j] =
  * E_nband(k_j) - E_(nband-1)(k_j) in eV (0-based bands). gap may be NULL. BS_ENUMERIC from LAPACK. */

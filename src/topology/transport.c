@@ -32,6 +32,9 @@
 
 #define TR_KBATCH 64
 
+/* Room for cells tied in error with the last one of a refinement round (see refine). */
+#define TR_TIE_EXTRA 64
+
 /* Operators: Cartesian v_x, v_y, v_z and the spin current j^{s_z}_x. */
 enum { OP_VX = 0, OP_VY = 1, OP_VZ = 2, OP_JX = 3, NOP = 4 };
 
@@ -519,7 +522,7 @@ static int refine(tr_ws *w, tr_mesh *g, const tr_opts *o, double tol, int max_de
         total += g->cell[c].err;
         if (g->cell[c].depth < max_depth) heap_push(g, (int)c);
     }
-    int *pick = malloc((size_t)round * sizeof *pick);
+    int *pick = malloc((size_t)(round + TR_TIE_EXTRA) * sizeof *pick);
     if (!pick) return bs_fail(err, BS_ENOMEM, "transport: refinement list: out of memory");
     int rc = 0;
     while (g->nheap > 0 && total > tol && w->nk < o->max_kpoints) {
@@ -529,6 +532,14 @@ static int refine(tr_ws *w, tr_mesh *g, const tr_opts *o, double tol, int max_de
             int ci = heap_pop(g);
             pick[npick++] = ci;
             left -= g->cell[ci].err;
+        }
+        /* Cells tied with the last one picked (images under a symmetry of the model, e.g.
+         * k -> -k) are refined in the same round, so the partition keeps the symmetry and the
+         * cancellations it implies (zero AHC under time reversal) hold to round-off. */
+        while (npick > 0 && npick < round + TR_TIE_EXTRA && g->nheap > 0 &&
+               g->cell[g->heap[0]].err >= g->cell[pick[npick - 1]].err * (1 - 1e-9)) {
+            int ci = heap_pop(g);
+            pick[npick++] = ci;
         }
         rc = mesh_reserve(g, g->ncell + (long long)npick * nsub, w->nv, err);
         if (rc != 0) break;
@@ -653,7 +664,7 @@ int tr_compute(const tb_model *m, const tr_opts *o, tr_result *out, bs_err *err)
     int rc = check_inputs(m, o, err);
     if (rc != 0) return rc;
     int n0 = o->mesh ? o->mesh : (m->dim == 3 ? 8 : 16);
-    int max_depth = o->max_depth ? (o->max_depth < 0 ? 0 : o->max_depth) : (m->dim == 3 ? 4 : 7);
+    int max_depth = o->max_depth ? (o->max_depth < 0 ? 0 : o->max_depth) : (m->dim == 3 ? 8 : 12);
     double tol = o->tol > 0 ? o->tol : (m->dim == 3 ? 1.0 : 1e-3);
     tr_ws *w = NULL;
     tr_mesh g;

@@ -19,8 +19,8 @@
  * The links are multiplied as they are (the eigenphases of the product are the centres; their
  * moduli, slightly below one, carry no information). Replacing each link by its unitary part
  * through an SVD was measured at 1.5 to 2 times the cost of the whole rest of a string for
- * 30..60 occupied bands, for a change in the centres of second order in the spacing, so it is
- * not done. |det M| from an LU factorisation checks that neighbouring k-points are close enough. */
+ * 30..60 occupied bands and changed no index in the tests, so it is not done. |det M| from an
+ * LU factorisation checks that neighbouring k-points are close enough. */
 #include "bandsieve/wilson.h"
 
 #include <cblas.h>
@@ -39,9 +39,10 @@ struct wilson_ws {
     const tb_model *m;
     int norb, nband;
     occ_ws *occ;
-    int cap;                  /* k-points per string the buffers hold */
-    double complex *U;        /* cap x norb x nband */
-    double *k, *gap;          /* 3 cap, cap */
+    int batch;                /* k-points diagonalised at a time (occ_batch) */
+    double complex *U;        /* (batch + 2) x norb x nband: a batch, the first point, the last
+                                 point of the previous batch */
+    double *k, *gap;          /* 3 batch, batch */
     double *tau;              /* norb x 3: reduced position of each basis state's orbital */
     double complex *phase;    /* norb: D(b) of the current string */
     double complex *V;        /* norb x nband */
@@ -111,6 +112,10 @@ int wilson_create(const tb_model *m, int nband, wilson_ws **out, bs_err *err)
     rc = query_lwork(nband, &w->lwork, err);
     if (rc != 0) goto done;
     size_t nn = (size_t)nband * (size_t)nband;
+    w->batch = occ_batch(w->occ);
+    w->U = malloc((size_t)(w->batch + 2) * (size_t)m->norb * (size_t)nband * sizeof *w->U);
+    w->k = malloc(3 * (size_t)w->batch * sizeof *w->k);
+    w->gap = malloc((size_t)w->batch * sizeof *w->gap);
     w->tau = malloc(3 * (size_t)m->norb * sizeof *w->tau);
     w->phase = malloc((size_t)m->norb * sizeof *w->phase);
     w->V = malloc((size_t)m->norb * (size_t)nband * sizeof *w->V);
@@ -122,7 +127,7 @@ int wilson_create(const tb_model *m, int nband, wilson_ws **out, bs_err *err)
     w->ipiv = malloc((size_t)nband * sizeof *w->ipiv);
     w->rwork = malloc(2 * (size_t)nband * sizeof *w->rwork);
     w->work = malloc((size_t)w->lwork * sizeof *w->work);
-    if (!w->tau || !w->phase || !w->V || !w->M || !w->W || !w->T || !w->P || !w->lam ||
+    if (!w->U || !w->k || !w->gap || !w->tau || !w->phase || !w->V || !w->M || !w->W || !w->T || !w->P || !w->lam ||
         !w->ipiv || !w->rwork || !w->work) {
         rc = bs_fail(err, BS_ENOMEM, "Wilson-loop workspace for %d bands: out of memory", nband);
         goto done;
@@ -157,25 +162,6 @@ void wilson_free(wilson_ws *w)
     free(w);
 }
 
-/* Grows the string buffers to nk points (only when a string needs more than any before). */
-static int reserve(wilson_ws *w, int nk, bs_err *err)
-{
-    if (nk <= w->cap) return 0;
-    free(w->U);
-    free(w->k);
-    free(w->gap);
-    w->U = malloc((size_t)nk * (size_t)w->norb * (size_t)w->nband * sizeof *w->U);
-    w->k = malloc(3 * (size_t)nk * sizeof *w->k);
-    w->gap = malloc((size_t)nk * sizeof *w->gap);
-    if (!w->U || !w->k || !w->gap) {
-        w->cap = 0;
-        return bs_fail(err, BS_ENOMEM, "Wilson string of %d points x %d x %d: out of memory", nk,
-                       w->norb, w->nband);
-    }
-    w->cap = nk;
-    return 0;
-}
-
 static int cmp_double(const void *a, const void *b)
 {
     double x = *(const double *)a, y = *(const double *)b;
@@ -206,44 +192,67 @@ static int push_link(wilson_ws *w, double *det_abs, bs_err *err)
     return 0;
 }
 
-/* wilson_string, and the point of the smallest gap into k_gap. */
+/* W <- W (A^dagger D(b) B) for the occupied blocks A = U(k_j), B = U(k_j+1); |det| into *det. */
+static int link(wilson_ws *w, const double complex *A, const double complex *B, double *det,
+                bs_err *err)
+{
+    const double complex one = 1.0, zero = 0.0;
+    int n = w->nband, norb = w->norb;
+    for (int c = 0; c < n; c++)
+        for (int a = 0; a < norb; a++)
+            w->V[a + (size_t)c * norb] = w->phase[a] * B[a + (size_t)c * norb];
+    cblas_zgemm(CblasColMajor, CblasConjTrans, CblasNoTrans, n, n, norb, &one, A, norb, w->V, norb,
+                &zero, w->M, n);
+    return push_link(w, det, err);
+}
+
+/* wilson_string, and the point of the smallest gap into k_gap. The string is streamed a batch of
+ * k-points at a time, so memory does not grow with nk. */
 static int string_eval(wilson_ws *w, int dir, const double k0[3], int nk, double *wcc,
                        double *min_det, double *min_gap_ev, double k_gap[3], bs_err *err)
 {
     if (dir < 0 || dir > 2 || nk < 2)
         return bs_fail(err, BS_EINVAL,
                        "Wilson string: expected direction 0..2 and nk >= 2, found %d, %d", dir, nk);
-    int rc = reserve(w, nk, err);
-    if (rc != 0) return rc;
-    for (int j = 0; j < nk; j++) {
-        memcpy(w->k + 3 * j, k0, 3 * sizeof(double));
-        w->k[3 * j + dir] += (double)j / nk;
-    }
-    rc = occ_states(w->occ, nk, w->k, w->U, w->gap, err);
-    if (rc != 0) return rc;
-    int n = w->nband, norb = w->norb;
+    int n = w->nband, norb = w->norb, rc = 0;
     size_t blk = (size_t)norb * (size_t)n;
+    double complex *first = w->U + (size_t)w->batch * blk, *last = first + blk;
+    const double complex *prev = NULL;
     for (int a = 0; a < norb; a++) w->phase[a] = cexp(-2.0 * M_PI * I * w->tau[3 * a + dir] / nk);
     memset(w->W, 0, (size_t)n * n * sizeof *w->W);
     for (int i = 0; i < n; i++) w->W[i + (size_t)i * n] = 1.0;
-    double dmin = HUGE_VAL, gmin = HUGE_VAL;
-    const double complex one = 1.0, zero = 0.0;
-    for (int j = 0; j < nk; j++) {
-        const double complex *A = w->U + (size_t)j * blk, *B = w->U + (size_t)((j + 1) % nk) * blk;
-        for (int c = 0; c < n; c++)
-            for (int a = 0; a < norb; a++)
-                w->V[a + (size_t)c * norb] = w->phase[a] * B[a + (size_t)c * norb];
-        cblas_zgemm(CblasColMajor, CblasConjTrans, CblasNoTrans, n, n, norb, &one, A, norb, w->V, norb,
-                    &zero, w->M, n);
-        double d = 0;
-        rc = push_link(w, &d, err);
-        if (rc != 0) return rc;
-        if (d < dmin) dmin = d;
-        if (w->gap[j] < gmin) {
-            gmin = w->gap[j];
-            memcpy(k_gap, w->k + 3 * j, 3 * sizeof(double));
+    double dmin = HUGE_VAL, gmin = HUGE_VAL, d = 0;
+    for (int j0 = 0; j0 < nk; j0 += w->batch) {
+        int nb = nk - j0 < w->batch ? nk - j0 : w->batch;
+        for (int j = 0; j < nb; j++) {
+            memcpy(w->k + 3 * j, k0, 3 * sizeof(double));
+            w->k[3 * j + dir] += (double)(j0 + j) / nk;
         }
+        rc = occ_states(w->occ, nb, w->k, w->U, w->gap, err);
+        if (rc != 0) return rc;
+        for (int j = 0; j < nb; j++) {
+            const double complex *cur = w->U + (size_t)j * blk;
+            if (w->gap[j] < gmin) {
+                gmin = w->gap[j];
+                memcpy(k_gap, w->k + 3 * j, 3 * sizeof(double));
+            }
+            if (prev) {
+                rc = link(w, prev, cur, &d, err);
+                if (rc != 0) return rc;
+                if (d < dmin) dmin = d;
+            } else {
+                memcpy(first, cur, blk * sizeof *first);
+            }
+            prev = cur;
+        }
+        /* The next batch overwrites the buffer: keep its last point for the next link. */
+        memcpy(last, prev, blk * sizeof *last);
+        prev = last;
     }
+    /* Closing link back to k0: u(k0 + G) = u(k0) in the lattice gauge; D(b) as on every link. */
+    rc = link(w, prev, first, &d, err);
+    if (rc != 0) return rc;
+    if (d < dmin) dmin = d;
     lapack_complex_double dummy = 0;
     lapack_int info = LAPACKE_zgeev_work(LAPACK_COL_MAJOR, 'N', 'N', n, w->W, n, w->lam, &dummy, 1,
                                          &dummy, 1, w->work, w->lwork, w->rwork);
@@ -400,7 +409,8 @@ static int add_string(plane_run *r, int at, double kb, bs_err *err)
 }
 
 /* The step from string i to i + 1 is unreliable when a centre of either string lies close to
- * the other's gap midpoint (the count could go either way: Phys. Rev. B 83, 235401, Sec. IV). */
+ * the other's gap midpoint: the count could go either way (the convergence concern of
+ * Phys. Rev. B 83, 235401 (2011)); such steps are bisected. */
 static int step_unreliable(const plane_run *r, int i)
 {
     int nb = r->w->nband;

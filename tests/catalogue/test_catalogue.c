@@ -298,6 +298,8 @@ static void test_diag_to_json_and_flows(void **state)
     snprintf(r.cls, sizeof r.cls, "strong topological insulator");
     r.confidence = 0.97;
     r.dim = 3;
+    r.norb = 8;
+    r.nocc = 4;
     r.gap_direct_ev = 0.31;
     r.gap_indirect_ev = 0.25;
     r.time_reversal = 1;
@@ -331,6 +333,9 @@ static void test_diag_to_json_and_flows(void **state)
     dump d;
     q(cat, "SELECT z2, z2_parity, z2_status, chern, plane_chern, chern_status, mesh FROM results", &d);
     assert_string_equal(d.text, "1;011|1;011|done|NULL|0;0;0;0;0;0|done|20\n");
+    /* The material row takes its sizes from the diagnosis when the set index gave none. */
+    q(cat, "SELECT material_id, dimension, norb, nocc FROM materials", &d);
+    assert_string_equal(d.text, "weird/id.1|3|8|4\n");
     /* Flows are kept out of the diagnosis text (they live in the artifact file). */
     assert_int_equal(q_int(cat, "SELECT json_type(diagnosis, '$.wcc_flows') IS NULL FROM results"), 1);
     q(cat, "SELECT kind, plane, file, h5path, nstring, nband FROM artifacts", &d);

@@ -62,9 +62,10 @@ static double lcg(uint64_t *s)
     return (double)(*s >> 11) / 9007199254740992.0 - 0.5;
 }
 
-/* A generic insulator without symmetry: norb states, on-site levels -3 eV (lower half) and +3 eV,
- * random complex hoppings (real and imaginary parts up to hop/2 eV) to 6 neighbours and their inverses, some degeneracy
- * weights 2 to exercise the H(R)/deg(R) convention. The gap (about 4 eV) sits at generic k. */
+/* A generic model without symmetry: norb states, on-site levels -3 eV (lower half) and +3 eV,
+ * random complex hoppings (real and imaginary parts up to hop/2 eV) to 6 neighbours (3 in 2D) and
+ * their inverses, some degeneracy weights 2 to exercise the H(R)/deg(R) convention. With hop = 0.3
+ * and 4 states it is an insulator with a 3-5 eV gap at generic k. */
 static tb_model *generic_model(int norb, int dim, uint64_t seed, double hop)
 {
     static const int half[6][3] = {{1, 0, 0}, {0, 1, 0}, {0, 0, 1}, {1, 1, 0}, {0, 1, 1}, {1, -1, 0}};
