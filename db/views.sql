@@ -10,14 +10,16 @@ DROP VIEW IF EXISTS run_progress;
 -- among status 'ok', latest run on ties); a material without an 'ok' row shows its latest row.
 CREATE VIEW summary AS
 WITH ranked AS (
-    SELECT r.*,
+    -- Only the row id and the ordering keys go through the window sort; the wide columns
+    -- (the diagnosis text) are fetched for the chosen rows only.
+    SELECT rowid AS rid,
            ROW_NUMBER() OVER (
-               PARTITION BY r.material_id
-               ORDER BY (r.status = 'ok') DESC,
-                        CASE WHEN r.status = 'ok' THEN r.mesh END DESC NULLS LAST,
-                        r.run_id DESC,
-                        r.finished DESC) AS pick
-    FROM results r
+               PARTITION BY material_id
+               ORDER BY (status = 'ok') DESC,
+                        CASE WHEN status = 'ok' THEN mesh END DESC NULLS LAST,
+                        run_id DESC,
+                        finished DESC) AS pick
+    FROM results
 )
 SELECT k.material_id,
        m.formula,
@@ -45,9 +47,10 @@ SELECT k.material_id,
        k.finished,
        k.reason,
        k.message
-FROM ranked k
+FROM ranked p
+JOIN results k ON k.rowid = p.rid
 LEFT JOIN materials m ON m.material_id = k.material_id
-WHERE k.pick = 1;
+WHERE p.pick = 1;
 
 -- Materials worth a closer look: topologically nontrivial, or called with confidence below 0.7.
 -- Nontrivial calls of confidence >= 0.7 come first, then the rest; within each group by the

@@ -179,8 +179,9 @@ typedef struct cat_row {
 typedef int (*cat_row_fn)(void *ctx, const cat_row *row, bs_err *err);
 
 /* Runs exactly one read-only SQL statement (trailing semicolons and blanks allowed). A statement
- * for which sqlite3_stmt_readonly() is false, ATTACH/DETACH, a PRAGMA that sets a value, or a
- * second statement is refused with BS_EINVAL before anything runs; SQL errors are BS_ESQL with
+ * for which sqlite3_stmt_readonly() is false, ATTACH/DETACH, transaction control (BEGIN, COMMIT,
+ * SAVEPOINT, ...), a PRAGMA that sets a value, or a second statement is refused with BS_EINVAL
+ * before anything runs; SQL errors are BS_ESQL with
  * the sqlite3_errmsg text. Works on CAT_RO and CAT_RW handles (on RW it still never writes). */
 int cat_query(cat_db *cat, const char *sql, cat_row_fn fn, void *ctx, bs_err *err);
 

@@ -24,6 +24,8 @@ typedef struct diag_opts {
     double max_seconds;     /* wall-clock budget for this material (0: none) */
     int want_flows;         /* keep Wannier-centre flows in the result (artifacts) */
     unsigned long long seed;/* for random verification points */
+    double symmetry_tol;    /* relative residual accepted for a symmetry (0: 1e-6; Wannier fits
+                               that were not symmetrised need ~1e-3) */
 } diag_opts;
 
 typedef struct diag_flow {

@@ -39,9 +39,10 @@ enum { TR_FERMI_GIVEN = 0, TR_FERMI_CARD = 1, TR_FERMI_MIDGAP = 2, TR_FERMI_FILL
 
 /* Settings; tr_opts_default fills the defaults named in brackets. */
 typedef struct tr_opts {
-    int mesh;              /* initial cells per direction [0: 16 in 2D, 8 in 3D] */
-    int max_depth;         /* times a cell may be halved [0: 12 in 2D, 8 in 3D]; -1: never (a
-                              uniform mesh of 2 mesh points per direction with an error estimate).
+    int mesh;              /* initial cells per direction [0: 8 in 2D, 6 in 3D]; each cell is
+                              integrated with a 17-point (2D) or 33-point (3D) cubature pair */
+    int max_depth;         /* times a cell may be halved along each axis [0: 12 in 2D, 8 in 3D];
+                              -1: never (mesh^d cells with the rule pair, no refinement).
                               Refinement is global (largest errors first), so a deep limit costs
                               only where the integrand needs it (nodes, Fermi surfaces) */
     double tol;            /* target total error estimate, output units [0: 1e-3 e^2/h in 2D,
@@ -62,7 +63,8 @@ void tr_opts_default(tr_opts *o);
 
 /* Result: a plain struct with fixed arrays (it can be copied or sent as bytes). Index 0 of every
  * array is the reference Fermi energy, 1..nfermi-1 the scan. Errors are the adaptive integration's
- * estimates (sum over cells of |two-rule difference|), same units as the values. */
+ * estimates (sum over cells of |degree-7 - degree-5 rule|, raised where a cell's two halves do not
+ * add up to it), same units as the values. */
 typedef struct tr_result {
     int dim;                          /* 2 or 3 */
     int has_shc;                      /* spinful and asked for */

@@ -62,14 +62,21 @@ static int open_file(cat_db *cat, int64_t run_id, int session, bs_err *err)
     split_path(cat->path, dir, sizeof dir, &base);
     snprintf(cat->h5_name, sizeof cat->h5_name, "%s.run%lld.s%d.h5", base, (long long)run_id, session);
     snprintf(full, sizeof full, "%s/%s", dir, cat->h5_name);
-    hid_t f = H5I_INVALID_HID;
+    /* No HDF5 file lock: each session file has a single writer by construction (the name holds
+     * the run and session), and flock is missing on some cluster file systems, where a lock
+     * request makes H5Fcreate fail. */
+    hid_t f = H5I_INVALID_HID, fapl = H5I_INVALID_HID;
     H5E_BEGIN_TRY {
-        f = H5Fcreate(full, H5F_ACC_EXCL, H5P_DEFAULT, H5P_DEFAULT);
-        if (f < 0) f = H5Fopen(full, H5F_ACC_RDWR, H5P_DEFAULT); /* this session wrote it before */
+        fapl = H5Pcreate(H5P_FILE_ACCESS);
+        if (fapl >= 0) H5Pset_file_locking(fapl, 0, 1);
+        hid_t access = fapl >= 0 ? fapl : H5P_DEFAULT;
+        f = H5Fcreate(full, H5F_ACC_EXCL, H5P_DEFAULT, access);
+        if (f < 0) f = H5Fopen(full, H5F_ACC_RDWR, access); /* this session wrote it before */
         else if (write_attr_int(f, "run_id", run_id) != 0 || write_attr_int(f, "session", session) != 0) {
             H5Fclose(f);
             f = H5I_INVALID_HID;
         }
+        if (fapl >= 0) H5Pclose(fapl);
     } H5E_END_TRY;
     if (f < 0) return bs_fail(err, BS_EHDF5, "%s: cannot create or open the artifact file (errno %d: %s)", full, errno, strerror(errno));
     cat->h5 = f;
@@ -113,10 +120,14 @@ int cat_artifact_write(cat_db *cat, int64_t run_id, int session, const char *mat
     const hsize_t d1[1] = {(hsize_t)f->nstring}, d2[2] = {(hsize_t)f->nstring, (hsize_t)f->nband};
     if (rc == 0 && (write_dataset(group, "kpar", 1, d1, f->kpar) != 0 || write_dataset(group, "wcc", 2, d2, f->wcc) != 0))
         rc = h5_fail(err, cat->h5_name, "writing the flow datasets");
-    if (rc == 0 && write_attr_int(group, "plane", f->plane) != 0) rc = h5_fail(err, cat->h5_name, "writing the plane attribute");
+    int attr_rc = 0;
+    H5E_BEGIN_TRY {
+        if (rc == 0) attr_rc = write_attr_int(group, "plane", f->plane);
+        if (group >= 0) H5Gclose(group);
+        if (lcpl >= 0) H5Pclose(lcpl);
+    } H5E_END_TRY;
+    if (rc == 0 && attr_rc != 0) rc = h5_fail(err, cat->h5_name, "writing the plane attribute");
     cat->h5_dirty = 1;
-    if (group >= 0) H5Gclose(group);
-    if (lcpl >= 0) H5Pclose(lcpl);
     if (rc != 0) bs_err_context(err, "material %s: ", material_id);
     return rc;
 }

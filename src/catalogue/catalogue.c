@@ -655,7 +655,10 @@ static const char *const READ_PRAGMAS[] = {"table_info", "table_xinfo", "index_l
 static int query_authorizer(void *ctx, int action, const char *a1, const char *a2, const char *db, const char *trigger)
 {
     (void)ctx; (void)db; (void)trigger;
-    if (action == SQLITE_ATTACH || action == SQLITE_DETACH) return SQLITE_DENY;
+    /* ATTACH would open (or create) another file; BEGIN/SAVEPOINT count as read-only for
+     * sqlite3_stmt_readonly but would tangle with the writer's batch transaction. */
+    if (action == SQLITE_ATTACH || action == SQLITE_DETACH || action == SQLITE_TRANSACTION || action == SQLITE_SAVEPOINT)
+        return SQLITE_DENY;
     if (action == SQLITE_PRAGMA && a2) {
         for (int i = 0; READ_PRAGMAS[i]; i++)
             if (sqlite3_stricmp(a1, READ_PRAGMAS[i]) == 0) return SQLITE_OK;
@@ -676,7 +679,8 @@ static int query_prepare(cat_db *cat, const char *sql, sqlite3_stmt **out, bs_er
     sqlite3_set_authorizer(cat->db, NULL, NULL);
     if (s != SQLITE_OK) {
         if (s == SQLITE_AUTH)
-            return bs_fail(err, BS_EINVAL, "query refused: ATTACH, DETACH and PRAGMAs that set values are not allowed (%s)",
+            return bs_fail(err, BS_EINVAL, "query refused: ATTACH, DETACH, transaction control and PRAGMAs that set values"
+                                           " are not allowed (%s)",
                            sqlite3_errmsg(cat->db));
         return cat_sql_fail(cat, err, "query");
     }

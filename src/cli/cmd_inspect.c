@@ -24,6 +24,8 @@ static void inspect_help(FILE *out)
             "  --max-seconds S  give up after S seconds (exit 1, status timeout)\n"
             "  --flows          include the Wannier-centre flows in the JSON (key wcc_flows)\n"
             "  --seed S         seed of the random verification k-points (default 1)\n"
+            "  --symmetry-tol T relative residual accepted when verifying time reversal and\n"
+            "                   inversion on H(k) (default 1e-6; ~1e-3 for unsymmetrised fits)\n"
             "  -h, --help       this text\n");
 }
 
@@ -80,7 +82,7 @@ int cmd_inspect(int argc, char **argv)
     static const struct option longopts[] = {
         {"json", no_argument, NULL, 'j'}, {"mesh", required_argument, NULL, 'm'},
         {"max-seconds", required_argument, NULL, 't'}, {"flows", no_argument, NULL, 'f'},
-        {"seed", required_argument, NULL, 's'}, {"help", no_argument, NULL, 'h'}, {NULL, 0, NULL, 0}};
+        {"seed", required_argument, NULL, 's'}, {"symmetry-tol", required_argument, NULL, 'y'}, {"help", no_argument, NULL, 'h'}, {NULL, 0, NULL, 0}};
     int json = 0, c;
     diag_opts opts = {0};
     opts.seed = 1;
@@ -99,6 +101,10 @@ int cmd_inspect(int argc, char **argv)
         case 't':
             if (cli_parse_double(optarg, &d) || d <= 0) { fprintf(stderr, "bandsieve inspect: --max-seconds expects a positive number, got '%s'\n", optarg); return 2; }
             opts.max_seconds = d;
+            break;
+        case 'y':
+            if (cli_parse_double(optarg, &d) || d <= 0 || d >= 1) { fprintf(stderr, "bandsieve inspect: --symmetry-tol expects a number in (0,1), got '%s'\n", optarg); return 2; }
+            opts.symmetry_tol = d;
             break;
         case 's':
             if (cli_parse_int(optarg, 1, 1L << 30, &v)) { fprintf(stderr, "bandsieve inspect: --seed expects a positive integer, got '%s'\n", optarg); return 2; }

@@ -88,6 +88,8 @@ static void screen_help(FILE *out, int rescreen)
                  "  --max-seconds S     wall-clock budget of the job: stop handing out work and\n"
                  "                      leave the rest for a resumed run (status interrupted)\n"
                  "  --material-seconds S  budget per material; over it the row is `timeout`\n"
+                 "  --symmetry-tol T    relative residual accepted for time reversal and inversion\n"
+                 "                      (default 1e-6; ~1e-3 for fits that were not symmetrised)\n"
                  "  --batch N           commit the catalogue every N results (default 64) or 2 s\n"
                  "  --progress-every S  seconds between progress lines when stderr is not a terminal (30)\n"
                  "  -h, --help          this text\n\n"
@@ -101,7 +103,7 @@ static int screen_main(int argc, char **argv, int rescreen)
         {"catalogue", required_argument, NULL, 'c'}, {"mesh", required_argument, NULL, 'm'},
         {"max-seconds", required_argument, NULL, 't'}, {"material-seconds", required_argument, NULL, 'T'},
         {"rerun", no_argument, NULL, 'r'}, {"where", required_argument, NULL, 'w'},
-        {"batch", required_argument, NULL, 'b'}, {"progress-every", required_argument, NULL, 'p'},
+        {"batch", required_argument, NULL, 'b'}, {"symmetry-tol", required_argument, NULL, 'y'}, {"progress-every", required_argument, NULL, 'p'},
         {"help", no_argument, NULL, 'h'}, {NULL, 0, NULL, 0}};
     const char *name = rescreen ? "bandsieve rescreen" : "bandsieve screen";
     pl_opts o;
@@ -126,6 +128,10 @@ static int screen_main(int argc, char **argv, int rescreen)
         case 'b':
             if (cli_parse_int(optarg, 1, 1000000, &v)) { fprintf(stderr, "%s: --batch expects a positive integer, got '%s'\n", name, optarg); return 2; }
             o.batch_rows = (int)v;
+            break;
+        case 'y':
+            if (cli_parse_double(optarg, &d) || d <= 0 || d >= 1) { fprintf(stderr, "%s: --symmetry-tol expects a number in (0,1), got '%s'\n", name, optarg); return 2; }
+            o.symmetry_tol = d;
             break;
         case 't': case 'T': case 'p':
             if (cli_parse_double(optarg, &d) || d <= 0) { fprintf(stderr, "%s: option expects a positive number, got '%s'\n", name, optarg); return 2; }

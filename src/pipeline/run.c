@@ -100,6 +100,7 @@ static int settings_json(const pl_opts *o, char *buf, size_t len)
     cJSON *s = cJSON_CreateObject();
     cJSON_AddNumberToObject(s, "mesh", o->mesh);
     cJSON_AddNumberToObject(s, "material_seconds", o->material_seconds);
+    if (o->symmetry_tol > 0) cJSON_AddNumberToObject(s, "symmetry_tol", o->symmetry_tol);
     if (o->where_sql) cJSON_AddStringToObject(s, "where", o->where_sql);
     char *text = cJSON_PrintUnformatted(s);
     cJSON_Delete(s);
@@ -219,7 +220,7 @@ static int run_serial(coord *c, bs_err *err)
     int rc = 0;
     while (rc == 0 && coord_next(c, &w)) {
         pl_outcome out;
-        pl_compute(c->set, w.index, c->o->mesh, w.max_seconds, 0, &out);
+        pl_compute(c->set, w.index, c->o->mesh, c->o->symmetry_tol, w.max_seconds, 0, &out);
         rc = coord_record(c, &out, w.job_limited, err);
         pl_outcome_clear(&out);
         if (rc == 0) rc = cat_flush_if_due(c->cat, err);
@@ -345,7 +346,7 @@ static int run_worker(const pl_opts *o, MPI_Comm comm, int rank, bs_err *err)
         if (rc != 0) break;
         pl_outcome out;
         if (set) {
-            pl_compute(set, w.index, o->mesh, w.max_seconds, rank, &out);
+            pl_compute(set, w.index, o->mesh, o->symmetry_tol, w.max_seconds, rank, &out);
         } else {
             memset(&out, 0, sizeof out);
             out.code = BS_EIO;

@@ -84,7 +84,8 @@ static double seconds_now(void)
     return t.tv_sec + 1e-9 * t.tv_nsec;
 }
 
-void pl_compute(const ms_set *set, int index, int mesh, double max_seconds, int rank, pl_outcome *out)
+void pl_compute(const ms_set *set, int index, int mesh, double symmetry_tol, double max_seconds, int rank,
+                pl_outcome *out)
 {
     memset(out, 0, sizeof *out);
     double t0 = seconds_now();
@@ -101,6 +102,7 @@ void pl_compute(const ms_set *set, int index, int mesh, double max_seconds, int 
         o.max_seconds = max_seconds;
         o.want_flows = 1;
         o.seed = 1;
+        o.symmetry_tol = symmetry_tol;
         diag_result r;
         diag_result_init(&r);
         rc = diag_run(m, &o, &r, &err);

@@ -28,9 +28,11 @@ typedef struct pl_outcome {
     char *json;         /* diagnosis JSON text (owned), NULL unless code == BS_OK */
 } pl_outcome;
 
-/* Reads entry `index` of set and diagnoses it with mesh and a time budget (0: none), filling out.
+/* Reads entry `index` of set and diagnoses it with mesh, the symmetry tolerance (0: default) and a
+ * time budget (0: none), filling out.
  * Never fails as a whole: every failure becomes out->code and out->message. */
-void pl_compute(const ms_set *set, int index, int mesh, double max_seconds, int rank, pl_outcome *out);
+void pl_compute(const ms_set *set, int index, int mesh, double symmetry_tol, double max_seconds, int rank,
+                pl_outcome *out);
 
 /* Frees out->json. */
 void pl_outcome_clear(pl_outcome *out);

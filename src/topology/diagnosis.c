@@ -62,6 +62,7 @@ static int run_symmetry(diag_ctx *c, diag_result *r, bs_err *err)
     sym_opts so;
     sym_opts_default(&so);
     if (c->o && c->o->seed) so.seed = c->o->seed;
+    if (c->o && c->o->symmetry_tol > 0) so.tol = c->o->symmetry_tol;
     int rc = sym_detect(c->m, &so, &c->sym, err);
     if (rc != 0) return rc;
     r->time_reversal = c->sym->time_reversal;

@@ -452,6 +452,40 @@ static void test_malformed_diagnosis(void **state)
     tmp_remove(&t);
 }
 
+/* A write made to fail on purpose: a folder squats the artifact file's name, so the flow cannot
+ * be stored; the put reports BS_EHDF5, leaves no partial row behind, and the batch goes on. */
+static void test_artifact_write_failure(void **state)
+{
+    (void)state;
+    tmpdir t;
+    tmp_make(&t);
+    cat_db *cat = open_rw(t.cat);
+    int64_t run = begin(cat, &RUN_A);
+    char squat[256];
+    snprintf(squat, sizeof squat, "%s/cat.sqlite.run%lld.s1.h5", t.dir, (long long)run);
+    assert_int_equal(mkdir(squat, 0700), 0);
+    put_ok(cat, run, "before", "metal", 1, -1, "null", 8);
+    char buf[4096];
+    diag_json(buf, sizeof buf, "flowed", "trivial insulator", 0.9, 0.3, "[0,0,0,0]", 8, 2);
+    snprintf(buf + strlen(buf) - 1, sizeof buf - strlen(buf) + 1,
+             ",\"wcc_flows\":[{\"plane\":0,\"kpar\":[0,0.5],\"wcc\":[[0.1],[0.2]]}]}");
+    bs_err err;
+    bs_err_clear(&err);
+    assert_int_equal(cat_result_put_text(cat, run, "flowed", CAT_RES_OK, NULL, buf, strlen(buf), 0, 1, &err), BS_EHDF5);
+    assert_non_null(strstr(err.msg, "cannot create or open the artifact file"));
+    put_ok(cat, run, "after", "metal", 1, -1, "null", 8);
+    bs_err_clear(&err);
+    assert_int_equal(cat_flush(cat, &err), 0);
+    dump d;
+    q(cat, "SELECT material_id FROM results ORDER BY material_id", &d);
+    assert_string_equal(d.text, "after\nbefore\n");
+    assert_int_equal(q_int(cat, "SELECT count(*) FROM nodes"), 0);
+    assert_int_equal(q_int(cat, "SELECT count(*) FROM artifacts"), 0);
+    close_ok(cat);
+    rmdir(squat);
+    tmp_remove(&t);
+}
+
 /* ---- views ---- */
 
 static void test_summary_most_resolved(void **state)
@@ -789,8 +823,11 @@ static void test_readonly_refusal(void **state)
     cat_db *cat = open_rw(t.cat);
     int64_t run = begin(cat, &RUN_A);
     put_ok(cat, run, "x", "metal", 1, -1, "null", 8);
-    /* The writer's own handle refuses writes through cat_query as well. */
+    /* The writer's own handle refuses writes through cat_query as well, and a transaction
+     * statement cannot disturb its open batch. */
     expect_refused(cat, "DELETE FROM results", "would modify");
+    expect_refused(cat, "COMMIT", "not allowed");
+    assert_int_equal(cat_pending(cat), 1);
     close_ok(cat);
     char *before = NULL, *after = NULL;
     size_t nbefore = 0, nafter = 0;
@@ -810,6 +847,8 @@ static void test_readonly_refusal(void **state)
     expect_refused(cat, "PRAGMA journal_mode = DELETE", "not allowed");
     expect_refused(cat, "ATTACH DATABASE '/tmp/bs_cat_attach.sqlite' AS other", "not allowed");
     expect_refused(cat, "   ;  ", "no SQL statement");
+    expect_refused(cat, "BEGIN IMMEDIATE", "not allowed");
+    expect_refused(cat, "SAVEPOINT s", "not allowed");
     /* Reads still work, trailing semicolons and comments included. */
     dump d;
     q(cat, "SELECT count(*) FROM summary; -- one row", &d);
@@ -930,6 +969,7 @@ int main(void)
         cmocka_unit_test(test_diag_to_json_and_flows),
         cmocka_unit_test(test_missing_keys_and_failures),
         cmocka_unit_test(test_malformed_diagnosis),
+        cmocka_unit_test(test_artifact_write_failure),
         cmocka_unit_test(test_summary_most_resolved),
         cmocka_unit_test(test_candidates_order),
         cmocka_unit_test(test_batching),

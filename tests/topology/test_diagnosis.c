@@ -260,6 +260,34 @@ static void test_basis_invariance(void **state)
     }
 }
 
+/* A fit that breaks inversion slightly (a staggered potential of 1e-5 eV on Kane–Mele, far inside
+ * the TI phase) loses the parity method at the default tolerance and keeps it at a looser one; the
+ * class is the same either way (Phys. Rev. Lett. 95, 226801 (2005): lambda_v << 3 sqrt3 lambda_SO). */
+static void test_symmetry_tolerance(void **state)
+{
+    (void)state;
+    tb_model *m = NULL;
+    bs_err err;
+    bs_err_clear(&err);
+    assert_int_equal(lm_build("kane_mele:lambda_R=0,lambda_v=0.00001", &m, &err), 0);
+    diag_opts o = {0};
+    diag_result strict, loose;
+    diag_result_init(&strict);
+    diag_result_init(&loose);
+    assert_int_equal(diag_run(m, &o, &strict, &err), 0);
+    o.symmetry_tol = 1e-3;
+    assert_int_equal(diag_run(m, &o, &loose, &err), 0);
+    assert_int_equal(strict.inversion, 0);
+    assert_int_equal(strict.z2_parity_status, DIAG_NA);
+    assert_int_equal(loose.inversion, 1);
+    assert_int_equal(loose.z2_parity_status, DIAG_DONE);
+    assert_string_equal(strict.cls, "2D topological insulator");
+    assert_string_equal(loose.cls, "2D topological insulator");
+    diag_result_clear(&strict);
+    diag_result_clear(&loose);
+    tb_model_free(m);
+}
+
 /* A time budget far too small is a timeout, not a wrong answer. */
 static void test_timeout(void **state)
 {
@@ -284,7 +312,7 @@ int main(void)
         cmocka_unit_test(test_haldane), cmocka_unit_test(test_fkm_strong_weak),
         cmocka_unit_test(test_fkm_sweep_weyl_window), cmocka_unit_test(test_weyl_positions),
         cmocka_unit_test(test_line_metal_insulator), cmocka_unit_test(test_basis_invariance),
-        cmocka_unit_test(test_timeout),
+        cmocka_unit_test(test_symmetry_tolerance), cmocka_unit_test(test_timeout),
     };
     return cmocka_run_group_tests(tests, NULL, NULL);
 }

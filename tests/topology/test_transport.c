@@ -289,6 +289,7 @@ static void test_metal_fermi(void **state)
     tr_opts o;
     tr_opts_default(&o);
     o.max_kpoints = 200000;
+    o.mesh = 16;
     tr_result r = run(m, &o);
     assert_int_equal(r.fermi_source, TR_FERMI_FILLING);
     assert_true(fabs(r.ahc[0][0]) <= r.ahc_err[0][0] + 1e-9);
@@ -335,8 +336,9 @@ static void test_json(void **state)
     assert_false(has_key(j, "shc"));
     assert_int_equal(cJSON_GetArraySize(cJSON_GetObjectItemCaseSensitive(j, "scan")), 1);
     assert_true(cJSON_GetObjectItemCaseSensitive(j, "kpoints")->valuedouble == (double)r.nk);
-    /* uniform 8 x 8 midpoint mesh: 16 centres for E_F, 16 x (1 + 4) for the cells */
-    assert_int_equal(r.nk, 16 + 80);
+    /* 4 x 4 cells without refinement: 16 centres for the default E_F, then 17 points per cell
+     * (the 2D cubature pair, transport.c) */
+    assert_int_equal(r.nk, 16 + 16 * 17);
     cJSON_Delete(j);
     tb_model_free(m);
     m = build("fkm");

@@ -96,10 +96,11 @@ static void test_kane_mele_no_rashba(void **state)
     expect_z2("kane_mele:lambda_R=0,lambda_v=0.5", DIAG_DONE, (int[4]){0, 0, 0, 0});
 }
 
-/* Kane-Mele with Rashba: the TI phase survives a small lambda_R (Fig. 1 of Phys. Rev. Lett. 95,
- * 226801 (2005): at lambda_v = 0.1 lambda_SO... the phase boundary moves only slightly); S_z is no
- * longer conserved, so only the Z2 (not a spin Chern number) decides. Defaults lambda_SO = 0.06,
- * lambda_R = 0.05, lambda_v = 0.1 are inside the TI region of that figure. */
+/* Kane-Mele with Rashba: S_z is no longer conserved, so only the Z2 decides. The TI region of
+ * Fig. 1 of Phys. Rev. Lett. 95, 226801 (2005) shrinks as lambda_R grows from the lambda_R = 0
+ * boundary lambda_v / lambda_SO = 3 sqrt3 = 5.2 (the figure read from memory); the defaults,
+ * lambda_v / lambda_SO = 1.7 and lambda_R / lambda_SO = 0.83, are well inside it (Z2 = 1), and
+ * lambda_v / lambda_SO = 10 with the same Rashba is well outside (Z2 = 0). */
 static void test_kane_mele_rashba(void **state)
 {
     (void)state;
