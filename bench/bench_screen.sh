@@ -18,9 +18,9 @@ rate() {
   t0=$(date +%s.%N)
   mpirun -n "$ranks" --oversubscribe "$bin" screen "$work/set.h5" -c "$cat" --mesh "$mesh" >/dev/null 2>&1 || true
   t1=$(date +%s.%N)
-  echo "$count / ($t1 - $t0)" | bc -l
+  awk -v n="$count" -v a="$t0" -v b="$t1" 'BEGIN { print n / (b - a) }'
 }
 r1=$(rate 2)
 r2=$(rate 3)
 printf "materials per second: 1 worker %.2f, 2 workers %.2f, ratio %.2f (count %d, mesh %d)\n" \
-  "$r1" "$r2" "$(echo "$r2 / $r1" | bc -l)" "$count" "$mesh"
+  "$r1" "$r2" "$(awk -v a="$r1" -v b="$r2" 'BEGIN { print b / a }')" "$count" "$mesh"

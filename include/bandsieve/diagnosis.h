@@ -96,4 +96,8 @@ int diag_run(const tb_model *m, const diag_opts *opts, diag_result *r, bs_err *e
  * Flows are included (key "wcc_flows") only when with_flows is set. */
 cJSON *diag_to_json(const diag_result *r, int with_flows);
 
+/* Moves the "ahc" and "shc" objects of tr (the JSON of tr_to_json, owned by the call afterwards)
+ * to the top level of diag and keeps the rest of tr under "transport". */
+void diag_attach_transport(cJSON *diag, cJSON *tr);
+
 #endif

@@ -5,15 +5,17 @@
 
 #include <cjson/cJSON.h>
 
+#include "bandsieve/bandpair.h"
 #include "bandsieve/diagnosis.h"
 #include "bandsieve/source.h"
+#include "bandsieve/transport.h"
 #include "cliutil.h"
 #include "commands.h"
 
 static void inspect_help(FILE *out)
 {
     fprintf(out,
-            "usage: bandsieve inspect SOURCE [--json] [--mesh N] [--max-seconds S] [--flows] [--seed S]\n\n"
+            "usage: bandsieve inspect SOURCE [--json] [--mesh N] [--max-seconds S] [--flows] [--transport]\n\n"
             "Diagnoses one material: gaps, time reversal and inversion, Z2 from parities and from\n"
             "the Wannier-centre flow, Chern numbers, Weyl nodes and nodal lines, and a class with a\n"
             "confidence and a one-line reason.\n"
@@ -26,6 +28,12 @@ static void inspect_help(FILE *out)
             "  --seed S         seed of the random verification k-points (default 1)\n"
             "  --symmetry-tol T relative residual accepted when verifying time reversal and\n"
             "                   inversion on H(k) (default 1e-6; ~1e-3 for unsymmetrised fits)\n"
+            "  --transport      add the intrinsic anomalous Hall (\"ahc\") and, for spinful models,\n"
+            "                   spin Hall (\"shc\") conductivities from the Berry curvature\n"
+            "  --fermi E        Fermi energy for --transport (eV; default: card value, mid-gap,\n"
+            "                   or the filling for a metal)\n"
+            "  --scan LO,HI,N   also N Fermi energies from E+LO to E+HI (eV) in the same pass\n"
+            "  --eta W          broadening of the energy denominators (eV, default 0)\n"
             "  -h, --help       this text\n");
 }
 
@@ -72,6 +80,18 @@ static void print_report(const diag_result *r, const cJSON *j)
             printf("      k = (%+.6f, %+.6f, %+.6f)  chirality %+d  E = %.4f eV\n", r->nodes[i].k[0],
                    r->nodes[i].k[1], r->nodes[i].k[2], r->nodes[i].chirality, r->nodes[i].energy_ev);
     }
+    const cJSON *ahc = cJSON_GetObjectItem(j, "ahc"), *shc = cJSON_GetObjectItem(j, "shc");
+    if (ahc) {
+        printf("  anomalous Hall        xy %.6g", cJSON_GetNumberValue(cJSON_GetObjectItem(ahc, "xy")));
+        if (cJSON_GetObjectItem(ahc, "yz"))
+            printf(", yz %.6g, zx %.6g", cJSON_GetNumberValue(cJSON_GetObjectItem(ahc, "yz")),
+                   cJSON_GetNumberValue(cJSON_GetObjectItem(ahc, "zx")));
+        printf(" %s (error %.2g) at E_F = %.4f eV\n", cJSON_GetStringValue(cJSON_GetObjectItem(ahc, "units")),
+               cJSON_GetNumberValue(cJSON_GetObjectItem(ahc, "error")), cJSON_GetNumberValue(cJSON_GetObjectItem(ahc, "fermi_eV")));
+    }
+    if (shc)
+        printf("  spin Hall (s_z, xy)   %.6g %s (error %.2g)\n", cJSON_GetNumberValue(cJSON_GetObjectItem(shc, "xy_z")),
+               cJSON_GetStringValue(cJSON_GetObjectItem(shc, "units")), cJSON_GetNumberValue(cJSON_GetObjectItem(shc, "error")));
     if (r->nodal_line)
         printf("  nodal line            %d points, extent %.3f (reduced)\n", r->nodal_points, r->nodal_extent);
     printf("  mesh %d, %lld k-points, %.2f s\n", r->mesh, r->nk_evaluated, r->seconds);
@@ -82,8 +102,13 @@ int cmd_inspect(int argc, char **argv)
     static const struct option longopts[] = {
         {"json", no_argument, NULL, 'j'}, {"mesh", required_argument, NULL, 'm'},
         {"max-seconds", required_argument, NULL, 't'}, {"flows", no_argument, NULL, 'f'},
-        {"seed", required_argument, NULL, 's'}, {"symmetry-tol", required_argument, NULL, 'y'}, {"help", no_argument, NULL, 'h'}, {NULL, 0, NULL, 0}};
-    int json = 0, c;
+        {"seed", required_argument, NULL, 's'}, {"symmetry-tol", required_argument, NULL, 'y'},
+        {"transport", no_argument, NULL, 'a'}, {"fermi", required_argument, NULL, 'e'},
+        {"scan", required_argument, NULL, 'n'}, {"eta", required_argument, NULL, 'E'},
+        {"help", no_argument, NULL, 'h'}, {NULL, 0, NULL, 0}};
+    int json = 0, transport = 0, c;
+    tr_opts topts;
+    tr_opts_default(&topts);
     diag_opts opts = {0};
     opts.seed = 1;
     optind = 1;
@@ -102,6 +127,27 @@ int cmd_inspect(int argc, char **argv)
             if (cli_parse_double(optarg, &d) || d <= 0) { fprintf(stderr, "bandsieve inspect: --max-seconds expects a positive number, got '%s'\n", optarg); return 2; }
             opts.max_seconds = d;
             break;
+        case 'a': transport = 1; break;
+        case 'e':
+            if (cli_parse_double(optarg, &d)) { fprintf(stderr, "bandsieve inspect: --fermi expects a number (eV), got '%s'\n", optarg); return 2; }
+            topts.has_fermi = 1;
+            topts.fermi_ev = d;
+            break;
+        case 'E':
+            if (cli_parse_double(optarg, &d) || d < 0) { fprintf(stderr, "bandsieve inspect: --eta expects a non-negative number (eV), got '%s'\n", optarg); return 2; }
+            topts.eta_ev = d;
+            break;
+        case 'n': {
+            double v3[3];
+            if (cli_parse_vec3(optarg, v3) || v3[2] < 2 || v3[2] > TR_MAX_FERMI - 1 || v3[2] != (int)v3[2] || v3[1] <= v3[0]) {
+                fprintf(stderr, "bandsieve inspect: --scan expects LO,HI,N (eV offsets from the Fermi energy, 2 <= N <= %d), got '%s'\n", TR_MAX_FERMI - 1, optarg);
+                return 2;
+            }
+            topts.scan_lo_ev = v3[0];
+            topts.scan_hi_ev = v3[1];
+            topts.nscan = (int)v3[2];
+            break;
+        }
         case 'y':
             if (cli_parse_double(optarg, &d) || d <= 0 || d >= 1) { fprintf(stderr, "bandsieve inspect: --symmetry-tol expects a number in (0,1), got '%s'\n", optarg); return 2; }
             opts.symmetry_tol = d;
@@ -134,12 +180,22 @@ int cmd_inspect(int argc, char **argv)
         status = 1;
     } else {
         cJSON *j = diag_to_json(&r, opts.want_flows);
-        if (json) {
+        if (transport) {
+            tr_result tr;
+            if (opts.max_seconds > 0) topts.deadline = bp_now() + opts.max_seconds;
+            if (tr_compute(m, &topts, &tr, &err) != 0) {
+                fprintf(stderr, "bandsieve inspect: %s: transport: %s (%s)\n", m->id, err.msg, bs_err_name(err.code));
+                status = 1;
+            } else {
+                diag_attach_transport(j, tr_to_json(&tr));
+            }
+        }
+        if (status == 0 && json) {
             char *text = cJSON_PrintUnformatted(j);
             if (text) printf("%s\n", text);
             else status = 1;
             free(text);
-        } else {
+        } else if (status == 0) {
             print_report(&r, j);
         }
         cJSON_Delete(j);

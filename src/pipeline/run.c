@@ -51,6 +51,7 @@ typedef struct coord {
     int64_t run_id;
     double t0;
     double last_tick;
+    pl_task task;
     pl_counts counts;
 } coord;
 
@@ -101,6 +102,7 @@ static int settings_json(const pl_opts *o, char *buf, size_t len)
     cJSON_AddNumberToObject(s, "mesh", o->mesh);
     cJSON_AddNumberToObject(s, "material_seconds", o->material_seconds);
     if (o->symmetry_tol > 0) cJSON_AddNumberToObject(s, "symmetry_tol", o->symmetry_tol);
+    if (o->transport) cJSON_AddBoolToObject(s, "transport", 1);
     if (o->where_sql) cJSON_AddStringToObject(s, "where", o->where_sql);
     char *text = cJSON_PrintUnformatted(s);
     cJSON_Delete(s);
@@ -220,7 +222,7 @@ static int run_serial(coord *c, bs_err *err)
     int rc = 0;
     while (rc == 0 && coord_next(c, &w)) {
         pl_outcome out;
-        pl_compute(c->set, w.index, c->o->mesh, c->o->symmetry_tol, w.max_seconds, 0, &out);
+        pl_compute(c->set, w.index, &c->task, w.max_seconds, 0, &out);
         rc = coord_record(c, &out, w.job_limited, err);
         pl_outcome_clear(&out);
         if (rc == 0) rc = cat_flush_if_due(c->cat, err);
@@ -346,7 +348,8 @@ static int run_worker(const pl_opts *o, MPI_Comm comm, int rank, bs_err *err)
         if (rc != 0) break;
         pl_outcome out;
         if (set) {
-            pl_compute(set, w.index, o->mesh, o->symmetry_tol, w.max_seconds, rank, &out);
+            pl_task task = {o->mesh, o->symmetry_tol, o->transport};
+            pl_compute(set, w.index, &task, w.max_seconds, rank, &out);
         } else {
             memset(&out, 0, sizeof out);
             out.code = BS_EIO;
@@ -398,6 +401,9 @@ int pl_run(int *argc, char ***argv, const pl_opts *o, pl_counts *counts, int *is
     c.o = o;
     c.comm = comm;
     c.t0 = now();
+    c.task.mesh = o->mesh;
+    c.task.symmetry_tol = o->symmetry_tol;
+    c.task.transport = o->transport;
     if (rc == 0) rc = coord_setup(&c, size, hosts, err);
     int setup_ok = rc == 0;
     if (size > 1) {

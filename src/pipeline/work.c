@@ -11,6 +11,7 @@
 
 #include "bandsieve/diagnosis.h"
 #include "bandsieve/pipeline.h"
+#include "bandsieve/transport.h"
 
 static const char *const CLASS_NAMES[] = {
     "trivial insulator", "strong topological insulator", "weak topological insulator",
@@ -84,7 +85,7 @@ static double seconds_now(void)
     return t.tv_sec + 1e-9 * t.tv_nsec;
 }
 
-void pl_compute(const ms_set *set, int index, int mesh, double symmetry_tol, double max_seconds, int rank,
+void pl_compute(const ms_set *set, int index, const pl_task *task, double max_seconds, int rank,
                 pl_outcome *out)
 {
     memset(out, 0, sizeof *out);
@@ -98,19 +99,28 @@ void pl_compute(const ms_set *set, int index, int mesh, double symmetry_tol, dou
     int rc = ms_read(set, index, &m, &err);
     if (rc == 0) {
         diag_opts o = {0};
-        o.mesh = mesh;
+        o.mesh = task->mesh;
         o.max_seconds = max_seconds;
         o.want_flows = 1;
         o.seed = 1;
-        o.symmetry_tol = symmetry_tol;
+        o.symmetry_tol = task->symmetry_tol;
         diag_result r;
         diag_result_init(&r);
         rc = diag_run(m, &o, &r, &err);
         if (rc == 0) {
             cJSON *j = diag_to_json(&r, 1);
-            out->json = j ? cJSON_PrintUnformatted(j) : NULL;
+            if (task->transport) {
+                tr_opts to;
+                tr_opts_default(&to);
+                if (max_seconds > 0) to.deadline = t0 + max_seconds;
+                tr_result tr;
+                rc = tr_compute(m, &to, &tr, &err);
+                if (rc == 0) diag_attach_transport(j, tr_to_json(&tr));
+                else bs_err_context(&err, "transport: ");
+            }
+            out->json = j && rc == 0 ? cJSON_PrintUnformatted(j) : NULL;
             cJSON_Delete(j);
-            if (!out->json) rc = bs_fail(&err, BS_ENOMEM, "out of memory formatting the result");
+            if (rc == 0 && !out->json) rc = bs_fail(&err, BS_ENOMEM, "out of memory formatting the result");
         }
         diag_result_clear(&r);
     }

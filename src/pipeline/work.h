@@ -28,10 +28,16 @@ typedef struct pl_outcome {
     char *json;         /* diagnosis JSON text (owned), NULL unless code == BS_OK */
 } pl_outcome;
 
-/* Reads entry `index` of set and diagnoses it with mesh, the symmetry tolerance (0: default) and a
- * time budget (0: none), filling out.
- * Never fails as a whole: every failure becomes out->code and out->message. */
-void pl_compute(const ms_set *set, int index, int mesh, double symmetry_tol, double max_seconds, int rank,
+/* What every material of a job gets computed with. */
+typedef struct pl_task {
+    int mesh;               /* 0: the diagnosis default */
+    double symmetry_tol;    /* 0: the diagnosis default */
+    int transport;          /* add anomalous and spin Hall conductivities */
+} pl_task;
+
+/* Reads entry `index` of set and diagnoses it as task says within max_seconds (0: no limit),
+ * filling out. Never fails as a whole: every failure becomes out->code and out->message. */
+void pl_compute(const ms_set *set, int index, const pl_task *task, double max_seconds, int rank,
                 pl_outcome *out);
 
 /* Frees out->json. */

@@ -492,3 +492,16 @@ cJSON *diag_to_json(const diag_result *r, int with_flows)
     if (with_flows && r->nflows > 0) cJSON_AddItemToObject(o, "wcc_flows", flows_json(r));
     return o;
 }
+
+void diag_attach_transport(cJSON *diag, cJSON *tr)
+{
+    if (!diag || !tr) {
+        cJSON_Delete(tr);
+        return;
+    }
+    cJSON *ahc = cJSON_DetachItemFromObject(tr, "ahc");
+    cJSON *shc = cJSON_DetachItemFromObject(tr, "shc");
+    if (ahc) cJSON_AddItemToObject(diag, "ahc", ahc);
+    if (shc) cJSON_AddItemToObject(diag, "shc", shc);
+    cJSON_AddItemToObject(diag, "transport", tr);
+}
