@@ -38,6 +38,7 @@ typedef struct diag_flow {
 
 typedef struct diag_result {
     char id[128];
+    char formula[64];       /* from the card, "" when none */
     char cls[40];           /* "trivial insulator", ..., "metal"; "undetermined" when no call */
     double confidence;      /* [0,1] */
     char reason[320];

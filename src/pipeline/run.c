@@ -185,7 +185,15 @@ static int coord_record(coord *c, const pl_outcome *out, int job_limited, bs_err
         cJSON *j = cJSON_Parse(out->json);
         int k = pl_class_index(cJSON_GetStringValue(cJSON_GetObjectItem(j, "class")));
         if (k >= 0) c->counts.by_class[k]++;
+        /* The set's index has no formula; the worker read it from the material itself. */
+        const char *formula = cJSON_GetStringValue(cJSON_GetObjectItem(j, "formula"));
+        int urc = 0;
+        if (formula) {
+            cat_material mat = {out->id, formula, 0, 0, 0, 0, -1, NULL, NULL, NULL};
+            urc = cat_material_upsert(c->cat, &mat, err);
+        }
         cJSON_Delete(j);
+        if (urc != 0) return urc;
     }
     return 0;
 }

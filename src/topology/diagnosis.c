@@ -346,6 +346,7 @@ int diag_run(const tb_model *m, const diag_opts *opts, diag_result *r, bs_err *e
     c.o = opts;
     c.deadline = opts && opts->max_seconds > 0 ? t0 + opts->max_seconds : 0;
     snprintf(r->id, sizeof r->id, "%s", m->id);
+    snprintf(r->formula, sizeof r->formula, "%s", m->formula);
     r->dim = m->dim;
     r->norb = m->norb;
     r->nocc = m->nocc;
@@ -423,6 +424,7 @@ cJSON *diag_to_json(const diag_result *r, int with_flows)
     if (!o) return NULL;
     int nz = r->dim == 2 ? 1 : 4;
     cJSON_AddStringToObject(o, "id", r->id);
+    if (r->formula[0]) cJSON_AddStringToObject(o, "formula", r->formula);
     cJSON_AddStringToObject(o, "class", r->cls);
     cJSON_AddNumberToObject(o, "confidence", r->confidence);
     cJSON_AddStringToObject(o, "reason", r->reason);
