@@ -271,7 +271,7 @@ static int collect(search *s, chern_ws *cw, const int *absorbed, double deadline
     out->line_k = s->nline ? calloc((size_t)s->nline, sizeof *out->line_k) : NULL;
     if ((out->nnodes && !out->nodes) || (s->nline && !out->line_k))
         return bs_fail(err, BS_ENOMEM, "nodes: out of memory for %d touchings", s->nt + s->nline);
-    memcpy(out->line_k, s->line, (size_t)s->nline * sizeof s->line[0]);
+    if (s->nline) memcpy(out->line_k, s->line, (size_t)s->nline * sizeof s->line[0]);
     int in = 0, ambiguous = 0;
     for (int i = 0; i < s->nt; i++) {
         if (absorbed[i]) continue;
