@@ -119,8 +119,8 @@ int main(int argc, char **argv)
     if (rc == 0) rc = one(m, &o, "uniform 32^2 cells (4x finer)", exact);
     for (int n = 64; n <= 1024 && rc == 0; n *= 2) {
         double sec, v = midpoint(m, n, &sec);
-        printf("midpoint %4d^2               sigma_xy %+.8f  |dev| %.2e  est.err    -      k-points %9lld  "
-               "%.3f s\n", n, v, fabs(v - exact), (long long)n * n, sec);
+        printf("midpoint %4d^2               sigma_xy %+.8f  |dev| %.2e  est.err    -      "
+               "k-points %9lld  %.3f s\n", n, v, fabs(v - exact), (long long)n * n, sec);
     }
     tb_model_free(m);
     return rc;

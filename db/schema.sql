@@ -76,10 +76,13 @@ CREATE TABLE results (
     seconds         REAL,
     rank            INTEGER,
     finished        TEXT NOT NULL,
-    ahc_x           REAL,
-    ahc_y           REAL,
-    ahc_z           REAL,
+    ahc_xy          REAL,
+    ahc_yz          REAL,
+    ahc_zx          REAL,
+    ahc_units       TEXT,
     shc_xy          REAL,
+    shc_units       TEXT,
+    transport_fermi_ev REAL,
     diagnosis       TEXT,
     UNIQUE (run_id, material_id)
 );

@@ -1,6 +1,7 @@
 -- bandsieve catalogue views. Re-created by every cat_open (CAT_RW), so a new program version
 -- brings its views to an old catalogue; documented in db/README.md.
 
+DROP VIEW IF EXISTS top_spin_hall;
 DROP VIEW IF EXISTS failures;
 DROP VIEW IF EXISTS candidates;
 DROP VIEW IF EXISTS summary;
@@ -46,7 +47,13 @@ SELECT k.material_id,
        k.run_id,
        k.finished,
        k.reason,
-       k.message
+       k.message,
+       k.ahc_xy,
+       k.ahc_yz,
+       k.ahc_zx,
+       k.ahc_units,
+       k.shc_xy,
+       k.shc_units
 FROM ranked p
 JOIN results k ON k.rowid = p.rid
 LEFT JOIN materials m ON m.material_id = k.material_id
@@ -85,6 +92,38 @@ FROM results r
 JOIN runs u ON u.run_id = r.run_id
 WHERE r.status <> 'ok'
 ORDER BY r.run_id DESC, r.material_id;
+
+-- Materials by the size of their intrinsic spin Hall conductivity: per material the most
+-- resolved 'ok' row that has one (highest mesh, latest run on ties), which need not be the
+-- summary row when the latest run skipped transport. Grouped by units (2D and 3D differ), then
+-- |shc_xy| descending.
+CREATE VIEW top_spin_hall AS
+WITH ranked AS (
+    SELECT rowid AS rid,
+           ROW_NUMBER() OVER (PARTITION BY material_id ORDER BY mesh DESC NULLS LAST, run_id DESC) AS pick
+    FROM results
+    WHERE status = 'ok' AND shc_xy IS NOT NULL
+)
+SELECT r.material_id,
+       m.formula,
+       m.dimension,
+       r.class,
+       r.shc_xy,
+       r.shc_units,
+       r.ahc_xy,
+       r.ahc_yz,
+       r.ahc_zx,
+       r.ahc_units,
+       r.transport_fermi_ev,
+       r.gap_indirect_ev,
+       r.z2,
+       r.mesh,
+       r.run_id
+FROM ranked p
+JOIN results r ON r.rowid = p.rid
+LEFT JOIN materials m ON m.material_id = r.material_id
+WHERE p.pick = 1
+ORDER BY r.shc_units, abs(r.shc_xy) DESC, r.material_id;
 
 -- One row per run: its description and how many results of each status it holds.
 CREATE VIEW run_progress AS

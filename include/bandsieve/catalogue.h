@@ -169,7 +169,8 @@ enum { CAT_COL_INTEGER = 1, CAT_COL_REAL = 2, CAT_COL_TEXT = 3, CAT_COL_BLOB = 4
 typedef struct cat_row {
     int ncol;
     const char *const *name; /* column names */
-    const char *const *text; /* values as text (NULL for SQL NULL); NULL array in the header call */
+    const char *const *text; /* values as text (NULL for SQL NULL); NULL array in the header call.
+                              * Reals are the shortest text that reads back as the same double. */
     const int *type;         /* CAT_COL_* per value; NULL in the header call */
     long long index;         /* 0-based row number; -1 for the header call */
 } cat_row;

@@ -13,7 +13,8 @@
 
 typedef struct ss_opts {
     int nsurf;          /* layers counted as a surface (0: max(2, nlayers / 8)) */
-    double loc_min;     /* w_top - w_bottom above this: top state; below -loc_min: bottom (0: 0.3) */
+    double loc_min;     /* (w_top - w_bottom) / (w_top + w_bottom) above this: a top state; below
+                         * -loc_min: a bottom state (0: 0.5) */
     int nk;             /* k samples per segment for crossings (0: 240) */
     int nperp;          /* k_perp samples for projected bulk bands (0: 48) */
     double deg_tol_ev;  /* eigenvalues closer than this are one degenerate level (0: 2e-3 eV) */
@@ -44,6 +45,12 @@ int ss_projected_edges(ss_ctx *c, const double kpar[2], double *vmax, double *cm
 /* Bulk band edges over an n^dim mesh of the bulk zone (m borrowed): *vbm = max of band nocc - 1,
  * *cbm = min of band nocc; *cbm < *vbm when there is no global gap. */
 int ss_bulk_edges(const tb_model *m, int mesh, double *vbm, double *cbm, bs_err *err);
+
+/* The Fermi level used when none is given: 60% of the way from vbm to cbm, not mid-gap, because
+ * particle-hole-symmetric models (Kane-Mele at lambda_v = 0, Fu-Kane-Mele) put their surface
+ * Kramers points exactly at mid-gap, where a crossing count is ill-defined; without a gap
+ * (cbm <= vbm) the midpoint. */
+double ss_fermi_default(double vbm, double cbm);
 
 /* Counts the crossings of fermi_ev by top- and bottom-localised slab states on the straight
  * segment from ka to kb (in-plane reduced), sampled at nk points including both ends; a band

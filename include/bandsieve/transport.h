@@ -8,7 +8,9 @@
  *   (Cartesian, eV Angstrom, hbar = 1). This is curl i<u|grad u>, the convention of chern.h.
  * - sigma_ab = +(e^2/hbar) int d^dk/(2 pi)^d sum_n f_n Omega_n^{ab}. With this sign a 2D insulator
  *   has sigma_xy = C e^2/h with C the lattice Chern number of chern_plane(p = 4) (for a3 along +z).
- *   (The form -(e^2/hbar) int f Omega met in the literature goes with the opposite sign of Omega.)
+ *   The form -(e^2/hbar) int f Omega, met in the literature with the same Omega, belongs to the
+ *   opposite orientation convention of the Hall response (electron charge -e); we take the sign
+ *   that agrees with chern_plane (checked in test_transport.c).
  * - Spin current j^{s_z}_a = (1/2){s_z, v_a} with s_z = diag(+1, -1) (Pauli, units of hbar/2) from
  *   tb_state_spin, Phys. Rev. Lett. 92, 126603 (2004); sigma^{s_z}_{xy} = (hbar/2e) x the charge
  *   formula with j^{s_z}_x in place of v_x: for a model that conserves s_z it is
@@ -17,10 +19,17 @@
  * - Units: 2D AHC in e^2/h, 2D SHC in e/(2 pi); 3D AHC in S/cm, 3D SHC in (hbar/e) S/cm, with the
  *   cell volume from the lattice in Angstrom.
  * - Gauge: by default the velocity includes the orbital positions (position gauge,
- *   v = dH/dk - i[r, H]); for an insulator the lattice gauge (TR_GAUGE_LATTICE) gives the same
- *   zone integral although its Berry curvature per k differs; for a metal only the position gauge
- *   is the physical one (the difference is a Fermi-surface term).
- * - Occupations: T = 0 step (E_n < E_F) unless smear_ev > 0 (Fermi-Dirac with kT = smear_ev). */
+ *   v = dH/dk - i[r, H], with r the card's orbital positions: the diagonal position operator).
+ *   In the lattice gauge (TR_GAUGE_LATTICE, no positions in the phase) the Berry curvature per k
+ *   differs by the curl of a periodic function, so for an insulator the zone integral is the
+ *   same; for a metal the difference is a Fermi-contour term (zero when the Fermi surface has a
+ *   3-fold or higher rotation symmetry, as in the honeycomb models) and the position gauge is the
+ *   one that goes with the card's positions.
+ * - Occupations: T = 0 step (E_n < E_F) unless smear_ev > 0 (Fermi-Dirac with kT = smear_ev).
+ * - Integration: over reduced k, d^dk/(2 pi)^d = dk_red / V_cell; a uniform mesh of cells, each
+ *   integrated by an embedded degree-7/degree-5 cubature pair (J. Comput. Appl. Math. 6, 295
+ *   (1980)), the cells with the largest error estimates halved first until the total estimate is
+ *   below tol, every cell is at the depth limit, or the k-point budget is spent. */
 #ifndef BANDSIEVE_TRANSPORT_H
 #define BANDSIEVE_TRANSPORT_H
 
@@ -39,8 +48,9 @@ enum { TR_FERMI_GIVEN = 0, TR_FERMI_CARD = 1, TR_FERMI_MIDGAP = 2, TR_FERMI_FILL
 
 /* Settings; tr_opts_default fills the defaults named in brackets. */
 typedef struct tr_opts {
-    int mesh;              /* initial cells per direction [0: 8 in 2D, 6 in 3D]; each cell is
-                              integrated with a 17-point (2D) or 33-point (3D) cubature pair */
+    int mesh;              /* initial cells per direction [0: 8 in 2D, 6 in 3D], at most 1000 in
+                              2D, 100 in 3D; each cell is integrated with a 17-point (2D) or
+                              33-point (3D) cubature pair */
     int max_depth;         /* times a cell may be halved along each axis [0: 12 in 2D, 8 in 3D];
                               -1: never (mesh^d cells with the rule pair, no refinement).
                               Refinement is global (largest errors first), so a deep limit costs
@@ -90,11 +100,13 @@ typedef struct tr_result {
 
 /* Computes AHC (and SHC for spinful models) of m (borrowed) at the reference Fermi energy and the
  * scan. The reference is o->fermi_ev when has_fermi; else the card's fermi_ev when m->has_fermi;
- * else, on the initial mesh's cell centres, midway between the highest band nocc-1 and the lowest
- * band nocc when they do not overlap, or for a metal the energy halfway between the
- * (nocc N_k)-th and next lowest eigenvalue (nocc bands' worth of states below it). o may be NULL.
- * BS_EINVAL for bad options, a model that is not 2D/3D or a 2D lattice not in the xy plane;
- * BS_ENUMERIC from LAPACK; BS_ENOMEM; BS_ETIMEOUT. */
+ * else, from the eigenvalues on a midpoint mesh of max(48, mesh)^2 points in 2D (max(16, mesh)^3
+ * in 3D), midway between the highest band nocc-1 and the lowest band nocc when they do not
+ * overlap (TR_FERMI_MIDGAP), or for a metal halfway between the (nocc N_k)-th and the next lowest
+ * eigenvalue: nocc bands' worth of states below it (TR_FERMI_FILLING). o may be NULL.
+ * Stopping at the depth limit or the budget before tol is not an error: out->converged is 0 and
+ * the errors say how good the values are. BS_EINVAL for bad options, a model that is not 2D/3D or
+ * a 2D lattice not in the xy plane; BS_ENUMERIC from LAPACK; BS_ENOMEM; BS_ETIMEOUT. */
 int tr_compute(const tb_model *m, const tr_opts *o, tr_result *out, bs_err *err);
 
 /* JSON of r: {"ahc": {"xy", ["yz", "zx",] "units", "fermi_eV", "error"}, ["shc": {"xy_z", "units",

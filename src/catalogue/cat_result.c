@@ -174,17 +174,47 @@ static int bind_kvec(const put_ctx *pc, const char *name, const char *key)
     return 0;
 }
 
-/* Anomalous Hall conductivity "ahc": [x, y, z] in S/cm (room kept for transport). */
-static int bind_ahc(const put_ctx *pc)
+/* Number member `key` of the object obj into parameter name; absent or null stays NULL. */
+static int bind_member_num(const put_ctx *pc, const cJSON *obj, const char *key, const char *name, const char *what)
 {
-    const cJSON *v = get(pc, "ahc");
-    double s[3];
-    if (!v) return 0;
-    if (json_vec(v, 3, s) != 0) return key_fail(pc, "ahc", "a list of 3 numbers (S/cm)");
-    sqlite3_bind_double(pc->st, param(pc, ":ahc_x"), s[0]);
-    sqlite3_bind_double(pc->st, param(pc, ":ahc_y"), s[1]);
-    sqlite3_bind_double(pc->st, param(pc, ":ahc_z"), s[2]);
+    const cJSON *v = cJSON_GetObjectItemCaseSensitive(obj, key);
+    if (!v || cJSON_IsNull(v)) return 0;
+    if (!cJSON_IsNumber(v)) return key_fail(pc, what, "an object of numbers and a \"units\" string");
+    sqlite3_bind_double(pc->st, param(pc, name), v->valuedouble);
     return 0;
+}
+
+static int bind_member_str(const put_ctx *pc, const cJSON *obj, const char *key, const char *name, const char *what)
+{
+    const cJSON *v = cJSON_GetObjectItemCaseSensitive(obj, key);
+    if (!v || cJSON_IsNull(v)) return 0;
+    if (!cJSON_IsString(v)) return key_fail(pc, what, "an object of numbers and a \"units\" string");
+    sqlite3_bind_text(pc->st, param(pc, name), v->valuestring, -1, SQLITE_TRANSIENT);
+    return 0;
+}
+
+/* Transport as tr_to_json writes it: "ahc": {"xy", "yz", "zx", "units", "fermi_eV", ...} (yz and zx
+ * only in 3D; units "S/cm" in 3D, "e^2/h" in 2D) and "shc": {"xy_z", "units", "fermi_eV", ...}.
+ * The Fermi level of the ahc object is stored (the shc one is the same level). */
+static int bind_transport(const put_ctx *pc)
+{
+    const cJSON *ahc = get(pc, "ahc"), *shc = get(pc, "shc");
+    int rc = 0;
+    if (ahc && !cJSON_IsObject(ahc)) return key_fail(pc, "ahc", "an object of numbers and a \"units\" string");
+    if (shc && !cJSON_IsObject(shc)) return key_fail(pc, "shc", "an object of numbers and a \"units\" string");
+    if (ahc) {
+        rc = rc ? rc : bind_member_num(pc, ahc, "xy", ":ahc_xy", "ahc");
+        rc = rc ? rc : bind_member_num(pc, ahc, "yz", ":ahc_yz", "ahc");
+        rc = rc ? rc : bind_member_num(pc, ahc, "zx", ":ahc_zx", "ahc");
+        rc = rc ? rc : bind_member_str(pc, ahc, "units", ":ahc_units", "ahc");
+        rc = rc ? rc : bind_member_num(pc, ahc, "fermi_eV", ":transport_fermi_ev", "ahc");
+    }
+    if (shc) {
+        rc = rc ? rc : bind_member_num(pc, shc, "xy_z", ":shc_xy", "shc");
+        rc = rc ? rc : bind_member_str(pc, shc, "units", ":shc_units", "shc");
+        if (!ahc) rc = rc ? rc : bind_member_num(pc, shc, "fermi_eV", ":transport_fermi_ev", "shc");
+    }
+    return rc;
 }
 
 static int parse_node(const put_ctx *pc, const cJSON *o, node_in *nd)
@@ -346,8 +376,7 @@ static int bind_row(const put_ctx *pc, int64_t run_id, cat_status status, const 
     rc = rc ? rc : bind_bool(pc, ":nodal_line", "nodal_line");
     rc = rc ? rc : bind_int(pc, ":mesh", "mesh");
     rc = rc ? rc : bind_num(pc, ":diag_seconds", "seconds");
-    rc = rc ? rc : bind_ahc(pc);
-    rc = rc ? rc : bind_num(pc, ":shc_xy", "shc");
+    rc = rc ? rc : bind_transport(pc);
     if (rc != 0) return rc;
     if (get(pc, "weyl_nodes")) sqlite3_bind_int(st, param(pc, ":n_weyl"), nnodes);
     else if ((rc = bind_int(pc, ":n_weyl", "n_weyl")) != 0) return rc;

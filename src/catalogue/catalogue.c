@@ -127,11 +127,13 @@ static const char *const STMT_SQL[CAT_ST_COUNT] = {
         "INSERT INTO results (run_id, material_id, status, message, class, confidence, reason,"
         " gap_direct_ev, gap_indirect_ev, k_gap_direct, time_reversal, inversion, z2, z2_parity, z2_wcc,"
         " z2_status, z2_note, chern, chern_status, plane_chern, n_weyl, net_chirality, nodal_line, mesh,"
-        " diag_seconds, seconds, rank, finished, ahc_x, ahc_y, ahc_z, shc_xy, diagnosis) VALUES ("
+        " diag_seconds, seconds, rank, finished, ahc_xy, ahc_yz, ahc_zx, ahc_units, shc_xy, shc_units,"
+        " transport_fermi_ev, diagnosis) VALUES ("
         " :run_id, :material_id, :status, :message, :class, :confidence, :reason,"
         " :gap_direct_ev, :gap_indirect_ev, :k_gap_direct, :time_reversal, :inversion, :z2, :z2_parity, :z2_wcc,"
         " :z2_status, :z2_note, :chern, :chern_status, :plane_chern, :n_weyl, :net_chirality, :nodal_line, :mesh,"
-        " :diag_seconds, :seconds, :rank, " CAT_NOW_SQL ", :ahc_x, :ahc_y, :ahc_z, :shc_xy, :diagnosis)",
+        " :diag_seconds, :seconds, :rank, " CAT_NOW_SQL ", :ahc_xy, :ahc_yz, :ahc_zx, :ahc_units, :shc_xy, :shc_units,"
+        " :transport_fermi_ev, :diagnosis)",
     [CAT_ST_EXISTS] = "SELECT 1 FROM results WHERE run_id = ? AND material_id = ?",
     [CAT_ST_DEL_RESULT] = "DELETE FROM results WHERE run_id = ? AND material_id = ?",
     [CAT_ST_NODE] = "INSERT INTO nodes (run_id, material_id, node, k1, k2, k3, chirality, energy_ev, gap_ev)"
@@ -719,6 +721,21 @@ static int col_type(int t)
     }
 }
 
+/* The shortest "%.Ng" text that reads back as exactly v (sqlite3_column_text keeps only 15
+ * digits, which loses the last bits of many doubles), with ".0" added when it looks like an
+ * integer so that the value still reads as a real. */
+static void real_text(double v, char *out, size_t len)
+{
+    for (int digits = 15; digits <= 17; digits++) {
+        snprintf(out, len, "%.*g", digits, v);
+        if (strtod(out, NULL) == v) break;
+    }
+    if (!strpbrk(out, ".eEin")) {
+        size_t k = strlen(out);
+        if (k + 2 < len) memcpy(out + k, ".0", 3);
+    }
+}
+
 /* Steps st, calling fn for the header and each row. */
 static int query_rows(cat_db *cat, sqlite3_stmt *st, cat_row_fn fn, void *ctx, bs_err *err)
 {
@@ -727,7 +744,8 @@ static int query_rows(cat_db *cat, sqlite3_stmt *st, cat_row_fn fn, void *ctx, b
     const char **name = calloc(n, sizeof *name);
     const char **text = calloc(n, sizeof *text);
     int *type = calloc(n, sizeof *type);
-    int rc = name && text && type ? 0 : bs_fail(err, BS_ENOMEM, "query: out of memory");
+    char (*num)[32] = calloc(n, sizeof *num);
+    int rc = name && text && type && num ? 0 : bs_fail(err, BS_ENOMEM, "query: out of memory");
     for (int i = 0; rc == 0 && i < ncol; i++) name[i] = sqlite3_column_name(st, i);
     cat_row row = {ncol, name, NULL, NULL, -1};
     if (rc == 0) rc = fn(ctx, &row, err);
@@ -742,7 +760,12 @@ static int query_rows(cat_db *cat, sqlite3_stmt *st, cat_row_fn fn, void *ctx, b
         }
         for (int i = 0; i < ncol; i++) {
             type[i] = col_type(sqlite3_column_type(st, i));
-            text[i] = type[i] == CAT_COL_NULL ? NULL : (const char *)sqlite3_column_text(st, i);
+            if (type[i] == CAT_COL_REAL) {
+                real_text(sqlite3_column_double(st, i), num[i], sizeof num[i]);
+                text[i] = num[i];
+            } else {
+                text[i] = type[i] == CAT_COL_NULL ? NULL : (const char *)sqlite3_column_text(st, i);
+            }
         }
         row.index++;
         rc = fn(ctx, &row, err);
@@ -750,6 +773,7 @@ static int query_rows(cat_db *cat, sqlite3_stmt *st, cat_row_fn fn, void *ctx, b
     free(name);
     free(text);
     free(type);
+    free(num);
     return rc;
 }
 

@@ -23,7 +23,8 @@ static void query_usage(FILE *out)
             "the rows. The catalogue is opened read-only, and statements that would change it\n"
             "(INSERT, UPDATE, DELETE, CREATE, DROP, ATTACH, BEGIN/COMMIT, PRAGMAs that set values)\n"
             "are refused.\n\n"
-            "  --view NAME     one of the catalogue views: summary, candidates, failures, run_progress\n"
+            "  --view NAME     a catalogue view: summary, candidates, failures, top_spin_hall,\n"
+            "                  run_progress\n"
             "  --format FMT    table (default; aligned columns, numbers right-aligned, NULL blank,\n"
             "                  long text cut at %d characters), csv (RFC 4180, NULL empty, header row)\n"
             "                  or json (a list of objects, NULL as null)\n"
@@ -88,9 +89,9 @@ static void json_value(FILE *fp, const char *s, int type)
         return;
     }
     if (type == CAT_COL_REAL) {
-        double v = strtod(s, NULL);
-        if (isfinite(v)) fprintf(fp, "%.17g", v);
-        else fputs("null", fp); /* JSON has no infinity */
+        /* The text already reads back as the exact double (cat_query); JSON has no infinity. */
+        if (isfinite(strtod(s, NULL))) fputs(s, fp);
+        else fputs("null", fp);
         return;
     }
     json_string(fp, s);

@@ -24,6 +24,7 @@ static const command COMMANDS[] = {
     {"rescreen", cmd_rescreen, "rerun catalogue entries selected by SQL at a higher resolution"},
     {"query", cmd_query, "run a read-only SQL query or a view on a catalogue"},
     {"demo-set", cmd_demo_set, "generate the invented demonstration material set"},
+    {"slab", cmd_slab, "slab or ribbon of one material: surface states, crossings, surface spectra"},
 };
 
 static void usage(FILE *out)

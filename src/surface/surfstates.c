@@ -34,7 +34,7 @@ static void fill_defaults(ss_opts *o, int nlayers)
 {
     if (o->nsurf <= 0) o->nsurf = nlayers / 8 > 2 ? nlayers / 8 : 2;
     if (o->nsurf > nlayers) o->nsurf = nlayers;
-    if (!(o->loc_min > 0)) o->loc_min = 0.3;
+    if (!(o->loc_min > 0)) o->loc_min = 0.5;
     if (o->nk <= 1) o->nk = 240;
     if (o->nperp <= 1) o->nperp = 48;
     if (!(o->deg_tol_ev > 0)) o->deg_tol_ev = 2e-3;
@@ -193,6 +193,19 @@ int ss_bulk_edges(const tb_model *m, int mesh, double *vbm, double *cbm, bs_err 
     return rc;
 }
 
+double ss_fermi_default(double vbm, double cbm)
+{
+    return cbm > vbm ? vbm + 0.6 * (cbm - vbm) : 0.5 * (vbm + cbm);
+}
+
+/* (w_top - w_bottom) / (w_top + w_bottom): relative, because a state in the bulk gap is a surface
+ * state whatever its decay length, and near a bulk gap minimum it reaches deep into the slab, so
+ * its absolute weight on a few layers is small while the asymmetry stays near +-1. */
+static double side_asymmetry(double wt, double wb)
+{
+    return (wt - wb) / (wt + wb + 1e-300);
+}
+
 static int below(const double *E, int ns, double ef)
 {
     int n = 0;
@@ -208,7 +221,7 @@ int ss_crossings(ss_ctx *c, const double ka[2], const double kb[2], double fermi
         double t = (double)j / (nk - 1), k[2] = {ka[0] + t * (kb[0] - ka[0]), ka[1] + t * (kb[1] - ka[1])};
         rc = ss_bands(c, k, c->E1, c->wt, c->wb, err);
         if (rc != 0) break;
-        for (int i = 0; i < ns; i++) c->L1[i] = c->wt[i] - c->wb[i];
+        for (int i = 0; i < ns; i++) c->L1[i] = side_asymmetry(c->wt[i], c->wb[i]);
         if (j > 0) {
             /* Sorted bands: the ones whose index lies between the two counts below E_F crossed. */
             int n0 = below(c->E0, ns, fermi_ev), n1 = below(c->E1, ns, fermi_ev);
@@ -255,7 +268,7 @@ int ss_dirac_points(ss_ctx *c, ss_dirac *out, int max, int *count, bs_err *err)
                 for (int side = 0; side < 2; side++) {
                     int nside = 0;
                     for (int i = i0; i < i0 + d; i++) {
-                        double lam = c->wt[i] - c->wb[i];
+                        double lam = side_asymmetry(c->wt[i], c->wb[i]);
                         nside += side == SS_TOP ? lam > c->o.loc_min : lam < -c->o.loc_min;
                     }
                     if (nside < 2) continue;

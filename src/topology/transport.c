@@ -33,8 +33,15 @@
 
 #define TR_KBATCH 64
 
+/* Midpoint meshes of the default Fermi energy's eigenvalue pass (at least the cell mesh). */
+#define TR_FERMI_MESH_2D 48
+#define TR_FERMI_MESH_3D 16
+
 /* Room for cells tied in error with the last one of a refinement round (see refine). */
 #define TR_TIE_EXTRA 64
+
+/* Initial cells evaluated per call (bounds the point buffers). */
+#define TR_INIT_CHUNK 256
 
 /* Operators: Cartesian v_x, v_y, v_z and the spin current j^{s_z}_x. */
 enum { OP_VX = 0, OP_VY = 1, OP_VZ = 2, OP_JX = 3, NOP = 4 };
@@ -117,8 +124,8 @@ static int set_geometry(tr_ws *w, bs_err *err)
         if (fabs(a[0][2]) > 1e-9 * scale || fabs(a[1][2]) > 1e-9 * scale || !(area > 0))
             return bs_fail(err, BS_EINVAL,
                            "transport: expected a 2D lattice with a1, a2 in the xy plane, found "
-                           "a1 = (%g, %g, %g), a2 = (%g, %g, %g)", a[0][0], a[0][1], a[0][2], a[1][0],
-                           a[1][1], a[1][2]);
+                           "a1 = (%g, %g, %g), a2 = (%g, %g, %g)", a[0][0], a[0][1], a[0][2],
+                           a[1][0], a[1][1], a[1][2]);
         w->unit[0] = 2 * M_PI / area; /* component 0: AHC xy; component 1: SHC */
         w->unit[1] = M_PI / area;
         return 0;
@@ -179,7 +186,8 @@ static int ws_create(const tb_model *m, const tr_opts *o, tr_ws **out, bs_err *e
         w->spin[s] = m->spinful ? (tb_state_spin(m, s) == 0 ? 1.0 : -1.0) : 0.0;
         const double *t = m->orb_pos[tb_state_orbital(m, s)];
         for (int c = 0; c < 3; c++)
-            w->rc[s][c] = t[0] * m->lattice[0][c] + t[1] * m->lattice[1][c] + t[2] * m->lattice[2][c];
+            w->rc[s][c] =
+                t[0] * m->lattice[0][c] + t[1] * m->lattice[1][c] + t[2] * m->lattice[2][c];
     }
     *out = w;
     w = NULL;
@@ -326,7 +334,7 @@ static int cmp_double(const void *a, const void *b)
     return (x > y) - (x < y);
 }
 
-/* Default reference Fermi energy from the eigenvalues at the n0^d cell centres (transport.h). */
+/* Default reference Fermi energy from the eigenvalues on an n0^d midpoint mesh (transport.h). */
 static int default_fermi(tr_ws *w, int n0, double *ef, int *source, bs_err *err)
 {
     int n = w->n, nocc = w->nocc;
@@ -431,7 +439,8 @@ static int mesh_rule(tr_mesh *g, int d, bs_err *err)
     g->npt = (1 << d) + 2 * d * d + 2 * d + 1;
     g->off = calloc((size_t)g->npt, sizeof *g->off);
     g->grp = calloc((size_t)g->npt, sizeof *g->grp);
-    if (!g->off || !g->grp) return bs_fail(err, BS_ENOMEM, "transport: cubature rule: out of memory");
+    if (!g->off || !g->grp)
+        return bs_fail(err, BS_ENOMEM, "transport: cubature rule: out of memory");
     int q = 1;
     for (int grp = 1; grp <= 2; grp++)
         for (int i = 0; i < d; i++)
@@ -515,8 +524,7 @@ static int heap_pop(tr_mesh *g)
 
 /* Axis to halve: the largest fourth difference (summed over components) among the axes below the
  * depth limit; a later axis wins only by a relative 1e-9, so mirror-image cells choose alike. */
-static int split_axis(const tr_mesh *g, int d, int nv, const double *pa, const tr_cell *cl,
-                      int max_depth)
+static int split_axis(int d, int nv, const double *pa, const tr_cell *cl, int max_depth)
 {
     const double ratio = (GM_L2 * GM_L2) / (GM_L3 * GM_L3);
     int best = -1;
@@ -530,7 +538,6 @@ static int split_axis(const tr_mesh *g, int d, int nv, const double *pa, const t
             diff += fabs(p2[v] + m2[v] - 2 * pa[v] - ratio * (p3[v] + m3[v] - 2 * pa[v]));
         if (best < 0 || diff > dbest * (1 + 1e-9)) best = i, dbest = diff;
     }
-    (void)g;
     return best;
 }
 
@@ -540,6 +547,7 @@ static int eval_cells(tr_ws *w, tr_mesh *g, long long first, long long count, in
 {
     int d = w->dim, per = g->npt, nv = w->nv;
     long long np = count * per;
+    if (np > INT_MAX) return bs_fail(err, BS_EINVAL, "transport: %lld points in one round", np);
     if (np > g->kcap) {
         double *k = realloc(g->k, 3 * (size_t)np * sizeof *k);
         if (k) g->k = k;
@@ -554,7 +562,6 @@ static int eval_cells(tr_ws *w, tr_mesh *g, long long first, long long count, in
             for (int i = 0; i < 3; i++)
                 g->k[3 * (c * per + q) + i] = i < d ? cl->c[i] + g->off[q][i] * cl->hw[i] : 0.0;
     }
-    if (np > INT_MAX) return bs_fail(err, BS_EINVAL, "transport: %lld points in one round", np);
     int rc = eval_points(w, (int)np, g->k, g->pv, err);
     if (rc != 0) return rc;
     for (long long c = 0; c < count; c++) {
@@ -575,7 +582,7 @@ static int eval_cells(tr_ws *w, tr_mesh *g, long long first, long long count, in
             ce[v] = vol * fabs(r7 - r5);
             if (ce[v] > cl->err) cl->err = ce[v];
         }
-        cl->split = (signed char)split_axis(g, d, nv, pa, cl, max_depth);
+        cl->split = (signed char)split_axis(d, nv, pa, cl, max_depth);
     }
     return 0;
 }
@@ -672,14 +679,16 @@ static int refine(tr_ws *w, tr_mesh *g, const tr_opts *o, double tol, int max_de
 static int check_inputs(const tb_model *m, const tr_opts *o, bs_err *err)
 {
     if (m->dim != 2 && m->dim != 3)
-        return bs_fail(err, BS_EINVAL, "transport: expected a 2D or 3D model, found dim %d", m->dim);
+        return bs_fail(err, BS_EINVAL, "transport: expected a 2D or 3D model, found dim %d",
+                       m->dim);
     if (m->nocc < 1 || m->nocc >= m->norb)
         return bs_fail(err, BS_EINVAL, "transport: expected 1 <= occupied bands < %d, found %d",
                        m->norb, m->nocc);
-    if (o->mesh < 0 || o->mesh > 1024 || o->max_depth < -1 || o->max_depth > 20)
+    int mesh_max = m->dim == 3 ? 100 : 1000; /* at most 1e6 initial cells */
+    if (o->mesh < 0 || o->mesh > mesh_max || o->max_depth < -1 || o->max_depth > 20)
         return bs_fail(err, BS_EINVAL,
-                       "transport: expected 0 <= mesh <= 1024 and -1 <= max_depth <= 20, found %d "
-                       "and %d", o->mesh, o->max_depth);
+                       "transport: expected 0 <= mesh <= %d and -1 <= max_depth <= 20, found %d "
+                       "and %d", mesh_max, o->mesh, o->max_depth);
     if (!(o->tol >= 0) || !isfinite(o->tol) || o->max_kpoints < 1 || !(o->eta_ev >= 0) ||
         !isfinite(o->eta_ev) || !(o->smear_ev >= 0) || !isfinite(o->smear_ev))
         return bs_fail(err, BS_EINVAL,
@@ -706,7 +715,11 @@ static int set_fermi(tr_ws *w, const tr_opts *o, int n0, tr_result *out, bs_err 
         ef = w->m->fermi_ev;
         source = TR_FERMI_CARD;
     } else {
-        int rc = default_fermi(w, n0, &ef, &source, err);
+        /* A finer mesh than the cells': eigenvalues alone are cheap, and a midgap energy from
+         * sampled band edges is only safe when the sampling does not miss the true edges by
+         * half the gap. */
+        int nf = w->dim == 3 ? TR_FERMI_MESH_3D : TR_FERMI_MESH_2D;
+        int rc = default_fermi(w, n0 > nf ? n0 : nf, &ef, &source, err);
         if (rc != 0) return rc;
     }
     w->fermi[0] = ef;
@@ -737,7 +750,12 @@ static int initial_cells(tr_ws *w, tr_mesh *g, int n0, int max_depth, bs_err *er
         cl->alive = 1;
     }
     g->ncell = ncell;
-    return eval_cells(w, g, 0, ncell, max_depth, err);
+    /* In chunks, so the point buffers stay the size of a refinement round. */
+    for (long long c = 0; c < ncell && rc == 0; c += TR_INIT_CHUNK) {
+        long long nc = ncell - c < TR_INIT_CHUNK ? ncell - c : TR_INIT_CHUNK;
+        rc = eval_cells(w, g, c, nc, max_depth, err);
+    }
+    return rc;
 }
 
 /* Sums the cells of the final partition into out (the running totals of refine() drift). */
@@ -830,7 +848,8 @@ static cJSON *scan_json(const tr_result *r)
             return NULL;
         }
         int ok = cJSON_AddNumberToObject(p, "fermi_eV", r->fermi_ev[e]) != NULL;
-        for (int a = 0; a < nahc; a++) ok &= cJSON_AddNumberToObject(p, ahc_key[a], r->ahc[e][a]) != NULL;
+        for (int a = 0; a < nahc; a++)
+            ok &= cJSON_AddNumberToObject(p, ahc_key[a], r->ahc[e][a]) != NULL;
         ok &= cJSON_AddNumberToObject(p, "ahc_error", max3(r->ahc_err[e], nahc)) != NULL;
         if (r->has_shc) {
             ok &= cJSON_AddNumberToObject(p, "shc_xy_z", r->shc[e]) != NULL;
@@ -883,7 +902,8 @@ cJSON *tr_to_json(const tr_result *r)
          cJSON_AddStringToObject(root, "fermi_source", tr_fermi_source_name(r->fermi_source)) &&
          cJSON_AddNumberToObject(root, "eta_eV", r->eta_ev) &&
          cJSON_AddNumberToObject(root, "smear_eV", r->smear_ev) &&
-         cJSON_AddStringToObject(root, "gauge", r->gauge == TR_GAUGE_LATTICE ? "lattice" : "position") &&
+         cJSON_AddStringToObject(root, "gauge",
+                                 r->gauge == TR_GAUGE_LATTICE ? "lattice" : "position") &&
          cJSON_AddNumberToObject(root, "min_gap_eV", r->min_gap_ev);
     if (!ok) {
         cJSON_Delete(root);

@@ -30,26 +30,44 @@ typedef struct tmpdir {
     char cat[128];
 } tmpdir;
 
+/* Every folder made, so that the group teardown removes those of failed tests too (a failing
+ * cmocka assertion skips the rest of its test). Test-only state. */
+static char made_dirs[64][64];
+static int nmade;
+
 static void tmp_make(tmpdir *t)
 {
     snprintf(t->dir, sizeof t->dir, "/tmp/bs_cat_test_XXXXXX");
     assert_non_null(mkdtemp(t->dir));
     snprintf(t->cat, sizeof t->cat, "%s/cat.sqlite", t->dir);
+    if (nmade < 64) snprintf(made_dirs[nmade++], sizeof made_dirs[0], "%s", t->dir);
 }
 
-static void tmp_remove(tmpdir *t)
+static void dir_remove(const char *dir)
 {
-    DIR *d = opendir(t->dir);
+    DIR *d = opendir(dir);
     if (!d) return;
     struct dirent *e;
     char path[512];
     while ((e = readdir(d)))
         if (strcmp(e->d_name, ".") && strcmp(e->d_name, "..")) {
-            snprintf(path, sizeof path, "%s/%s", t->dir, e->d_name);
-            unlink(path);
+            snprintf(path, sizeof path, "%s/%s", dir, e->d_name);
+            if (unlink(path) != 0) rmdir(path); /* the folder test_artifact_write_failure makes */
         }
     closedir(d);
-    rmdir(t->dir);
+    rmdir(dir);
+}
+
+static void tmp_remove(tmpdir *t)
+{
+    dir_remove(t->dir);
+}
+
+static int remove_all_dirs(void **state)
+{
+    (void)state;
+    for (int i = 0; i < nmade; i++) dir_remove(made_dirs[i]);
+    return 0;
 }
 
 /* All rows of a query as one text: cells joined by '|', rows by '\n', NULL as "NULL". */
@@ -87,6 +105,22 @@ static long long q_int(cat_db *cat, const char *sql)
     q(cat, sql, &d);
     assert_int_equal(d.nrow, 1);
     return atoll(d.text);
+}
+
+/* One double read in binary through a plain read-only connection (no decimal text on the way,
+ * so the comparison is exact: SQLite's own decimal parser is not correctly rounded in every
+ * build). The writer has committed what is read (WAL readers see committed data only). */
+static double raw_double(const char *path, const char *sql)
+{
+    sqlite3 *db = NULL;
+    sqlite3_stmt *st = NULL;
+    assert_int_equal(sqlite3_open_v2(path, &db, SQLITE_OPEN_READONLY, NULL), SQLITE_OK);
+    assert_int_equal(sqlite3_prepare_v2(db, sql, -1, &st, NULL), SQLITE_OK);
+    assert_int_equal(sqlite3_step(st), SQLITE_ROW);
+    double v = sqlite3_column_double(st, 0);
+    sqlite3_finalize(st);
+    sqlite3_close(db);
+    return v;
 }
 
 static cat_db *open_rw(const char *path)
@@ -164,7 +198,7 @@ static void test_schema_applies(void **state)
     dump d;
     q(cat, "SELECT name FROM sqlite_master WHERE type IN ('table', 'view') ORDER BY name", &d);
     assert_string_equal(d.text, "artifacts\ncandidates\nfailures\nmaterials\nnodes\nresults\nrun_progress\n"
-                                "run_sessions\nruns\nsummary\n");
+                                "run_sessions\nruns\nsummary\ntop_spin_hall\n");
     close_ok(cat);
     /* WAL mode is a property of the file: a plain connection sees it. (cat_query refuses even
      * a bare "PRAGMA journal_mode", which sqlite3_stmt_readonly counts as a write.) */
@@ -247,6 +281,11 @@ static void test_put_and_read_back(void **state)
     diag_json(buf, sizeof buf, "mat-2", "strong topological insulator", 0.95, 0.2, "[1,0,0,0]", 12, 0);
     put_text(cat, run, "mat-2", CAT_RES_OK, NULL, buf);
     diag_json(buf, sizeof buf, "mat-3", "2D topological insulator", 0.8, 0.1, "[1]", 24, 0);
+    /* Transport in the shape tr_to_json writes and diag_attach_transport lifts to the top. */
+    snprintf(buf + strlen(buf) - 1, sizeof buf - strlen(buf) + 1,
+             ",\"ahc\":{\"xy\":0.25,\"units\":\"e^2/h\",\"fermi_eV\":0.125,\"error\":1e-6},"
+             "\"shc\":{\"xy_z\":-0.5,\"units\":\"e/2pi\",\"fermi_eV\":0.125,\"error\":1e-6},"
+             "\"transport\":{\"kpoints\":4096}}");
     put_text(cat, run, "mat-3", CAT_RES_OK, NULL, buf);
     assert_int_equal(cat_flush(cat, &err), 0);
 
@@ -259,10 +298,23 @@ static void test_put_and_read_back(void **state)
                         "mat-2|ok|strong topological insulator|1;000|1;000|NULL|0;0;0;0;0;0|0|0|0|1|0|[0,0.5,0]|12|2.0|1.5|3\n"
                         "mat-3|ok|2D topological insulator|1|1|NULL|0;0;0;0;0;0|0|0|0|1|0|[0,0.5,0]|24|2.0|1.5|3\n");
     /* Numbers come back bit for bit (SQLite REAL is an IEEE double). */
-    q(cat, "SELECT confidence = 0.95, gap_indirect_ev = 0.2, gap_direct_ev = 0.2 + 0.05 FROM results WHERE material_id = 'mat-2'", &d);
-    assert_string_equal(d.text, "1|1|1\n");
+    assert_true(raw_double(t.cat, "SELECT confidence FROM results WHERE material_id = 'mat-2'") == 0.95);
+    assert_true(raw_double(t.cat, "SELECT gap_indirect_ev FROM results WHERE material_id = 'mat-2'") == 0.2);
+    assert_true(raw_double(t.cat, "SELECT gap_direct_ev FROM results WHERE material_id = 'mat-2'") == 0.25);
+    q(cat, "SELECT material_id, ahc_xy, ahc_yz, ahc_zx, ahc_units, shc_xy, shc_units, transport_fermi_ev,"
+           " json_extract(diagnosis, '$.transport.kpoints') FROM results WHERE ahc_units IS NOT NULL OR material_id = 'mat-2'"
+           " ORDER BY material_id", &d);
+    assert_string_equal(d.text, "mat-2|NULL|NULL|NULL|NULL|NULL|NULL|NULL|NULL\n"
+                                "mat-3|0.25|NULL|NULL|e^2/h|-0.5|e/2pi|0.125|4096\n");
     q(cat, "SELECT node, k1, k2, k3, chirality, energy_ev, gap_ev FROM nodes ORDER BY node", &d);
-    assert_string_equal(d.text, "0|0.1|0.25|0.0|1|0.01|1.0e-05\n1|0.2|0.25|0.0|-1|0.01|1.0e-05\n");
+    assert_string_equal(d.text, "0|0.1|0.25|0.0|1|0.01|1e-05\n1|0.2|0.25|0.0|-1|0.01|1e-05\n");
+    /* cat_query gives reals as text that reads back exactly: 0.1 + 0.2 needs 17 digits, where
+     * SQLite's own text would stop at 15 ("0.3"). Exact by construction (IEEE round trip). */
+    put_text(cat, run, "mat-4", CAT_RES_OK, NULL, "{\"id\":\"mat-4\",\"gap_direct_eV\":0.30000000000000004}");
+    assert_int_equal(cat_flush(cat, &err), 0);
+    q(cat, "SELECT gap_direct_ev FROM results WHERE material_id = 'mat-4'", &d);
+    assert_string_equal(d.text, "0.30000000000000004\n");
+    assert_true(strtod(d.text, NULL) == 0.1 + 0.2);
     /* The stored diagnosis is the JSON we were given. */
     q(cat, "SELECT json_extract(diagnosis, '$.weyl_nodes[1].chirality'), json_extract(diagnosis, '$.reason')"
            " FROM results WHERE material_id = 'mat-1'", &d);
@@ -270,7 +322,7 @@ static void test_put_and_read_back(void **state)
     q(cat, "SELECT formula, dimension, norb, nr, nocc, spinful FROM materials WHERE material_id = 'mat-1'", &d);
     assert_string_equal(d.text, "Bi2Se3|3|40|300|20|1\n");
     /* A put for an unknown material records the material id. */
-    assert_int_equal(q_int(cat, "SELECT count(*) FROM materials"), 3);
+    assert_int_equal(q_int(cat, "SELECT count(*) FROM materials"), 4);
 
     /* A second put for the same (run, material) replaces the row and its nodes. */
     diag_json(buf, sizeof buf, "mat-1", "Weyl semimetal", 0.9, 0.0, "null", 16, 4);
@@ -421,6 +473,8 @@ static void test_malformed_diagnosis(void **state)
     expect_put_error(cat, run, "m", CAT_RES_OK, "{\"confidence\":\"high\"}", BS_EPARSE, "key \"confidence\"");
     expect_put_error(cat, run, "m", CAT_RES_OK, "{\"weyl_nodes\":[{\"k\":[0,0]}]}", BS_EPARSE, "key \"weyl_nodes\"");
     expect_put_error(cat, run, "m", CAT_RES_OK, "{\"z2_status\":\"maybe\"}", BS_EPARSE, "key \"z2_status\"");
+    expect_put_error(cat, run, "m", CAT_RES_OK, "{\"ahc\":[1,2,3]}", BS_EPARSE, "key \"ahc\"");
+    expect_put_error(cat, run, "m", CAT_RES_OK, "{\"shc\":{\"xy_z\":\"big\"}}", BS_EPARSE, "key \"shc\"");
     expect_put_error(cat, run, "m", CAT_RES_OK,
                      "{\"wcc_flows\":[{\"plane\":1,\"kpar\":[0,0.5],\"wcc\":[[0.1,0.2],[0.3]]}]}", BS_EPARSE,
                      "same number of centres");
@@ -571,6 +625,47 @@ static void test_candidates_order(void **state)
     assert_int_equal(cat_select_ids(cat, NULL, &ids, &err), 0);
     assert_int_equal(ids.n, 8);
     cat_ids_clear(&ids);
+    close_ok(cat);
+    tmp_remove(&t);
+}
+
+/* An invented result with only a spin Hall conductivity (test data). */
+static void put_shc(cat_db *cat, int64_t run, const char *id, int mesh, double shc, const char *units)
+{
+    char buf[512];
+    if (units)
+        snprintf(buf, sizeof buf, "{\"id\":\"%s\",\"class\":\"metal\",\"mesh\":%d,\"shc\":{\"xy_z\":%g,\"units\":\"%s\"}}", id,
+                 mesh, shc, units);
+    else
+        snprintf(buf, sizeof buf, "{\"id\":\"%s\",\"class\":\"metal\",\"mesh\":%d}", id, mesh);
+    put_text(cat, run, id, CAT_RES_OK, NULL, buf);
+}
+
+static void test_top_spin_hall(void **state)
+{
+    (void)state;
+    tmpdir t;
+    tmp_make(&t);
+    cat_db *cat = open_rw(t.cat);
+    int64_t r1 = begin(cat, &RUN_A), r2 = begin(cat, &RUN_A);
+    put_shc(cat, r1, "p", 8, 120.0, "(hbar/e)S/cm");
+    put_shc(cat, r2, "p", 16, 0, NULL);                 /* finer, but without transport */
+    put_shc(cat, r1, "q", 8, -300.0, "(hbar/e)S/cm");    /* sorted by magnitude */
+    put_shc(cat, r1, "r", 8, 50.0, "(hbar/e)S/cm");
+    put_shc(cat, r2, "r", 12, 60.0, "(hbar/e)S/cm");     /* the finer one wins */
+    put_shc(cat, r1, "s", 36, 2.0, "e/2pi");             /* 2D units form their own group */
+    bs_err err;
+    bs_err_clear(&err);
+    assert_int_equal(cat_flush(cat, &err), 0);
+    dump d;
+    q(cat, "SELECT material_id, shc_xy, shc_units, mesh FROM top_spin_hall", &d);
+    assert_string_equal(d.text, "q|-300.0|(hbar/e)S/cm|8\n"
+                                "p|120.0|(hbar/e)S/cm|8\n"
+                                "r|60.0|(hbar/e)S/cm|12\n"
+                                "s|2.0|e/2pi|36\n");
+    /* summary keeps its own rule: p's most resolved row has no transport. */
+    q(cat, "SELECT mesh, shc_xy FROM summary WHERE material_id = 'p'", &d);
+    assert_string_equal(d.text, "16|NULL\n");
     close_ok(cat);
     tmp_remove(&t);
 }
@@ -956,7 +1051,111 @@ static void test_cli_query(void **state)
     out[n] = '\0';
     st = pclose(p);
     assert_int_equal(WEXITSTATUS(st), 2);
-    assert_non_null(strstr(out, "views: candidates, failures, run_progress, summary"));
+    assert_non_null(strstr(out, "views: candidates, failures, run_progress, summary, top_spin_hall"));
+    tmp_remove(&t);
+}
+
+/* Reads the whole output of a command (the caller frees it); NULL when it fails. */
+static char *run_capture(const char *cmd)
+{
+    FILE *p = popen(cmd, "r");
+    if (!p) return NULL;
+    size_t cap = 1 << 16, len = 0, n;
+    char *out = malloc(cap);
+    while (out && (n = fread(out + len, 1, cap - len - 1, p)) > 0) {
+        len += n;
+        if (cap - len < 4096) {
+            char *grown = realloc(out, cap *= 2);
+            if (!grown) free(out);
+            out = grown;
+        }
+    }
+    int st = pclose(p);
+    if (!out || !WIFEXITED(st) || WEXITSTATUS(st) != 0) {
+        free(out);
+        return NULL;
+    }
+    out[len] = '\0';
+    return out;
+}
+
+/* What the real program prints goes in unchanged: `inspect --json --flows --transport` on the
+ * built-in published models, each stored and read back against its own JSON (the expected
+ * values come from the JSON the program printed, not from this layer). */
+static void test_inspect_output_round_trip(void **state)
+{
+    (void)state;
+    static const char *const models[] = {"haldane", "kane_mele", "fkm", "weyl", "nodal_line", "metal", "atomic"};
+    tmpdir t;
+    tmp_make(&t);
+    cat_db *cat = open_rw(t.cat);
+    int64_t run = begin(cat, &RUN_A);
+    bs_err err;
+    for (size_t i = 0; i < sizeof models / sizeof models[0]; i++) {
+        char cmd[512], sql[512];
+        snprintf(cmd, sizeof cmd, "%s inspect model:%s --json --flows --transport", BS_BINARY, models[i]);
+        char *text = run_capture(cmd);
+        if (!text) fail_msg("%s failed", cmd);
+        cJSON *j = cJSON_Parse(text);
+        assert_non_null(j);
+        const char *id = cJSON_GetObjectItem(j, "id")->valuestring;
+        bs_err_clear(&err);
+        if (cat_result_put_text(cat, run, id, CAT_RES_OK, NULL, text, strlen(text), 0, -1, &err) != 0)
+            fail_msg("%s: %s", models[i], err.msg);
+        assert_int_equal(cat_flush(cat, &err), 0);
+        dump d;
+        /* class and z2 in the documented text form */
+        const cJSON *z2 = cJSON_GetObjectItem(j, "z2");
+        char z2_text[16] = "NULL";
+        if (cJSON_GetArraySize(z2) == 1) snprintf(z2_text, sizeof z2_text, "%d", cJSON_GetArrayItem(z2, 0)->valueint);
+        if (cJSON_GetArraySize(z2) == 4)
+            snprintf(z2_text, sizeof z2_text, "%d;%d%d%d", cJSON_GetArrayItem(z2, 0)->valueint, cJSON_GetArrayItem(z2, 1)->valueint,
+                     cJSON_GetArrayItem(z2, 2)->valueint, cJSON_GetArrayItem(z2, 3)->valueint);
+        snprintf(sql, sizeof sql, "SELECT class, COALESCE(z2, 'NULL'), n_weyl, mesh FROM results WHERE material_id = '%s'", id);
+        q(cat, sql, &d);
+        char expect[256];
+        snprintf(expect, sizeof expect, "%s|%s|%d|%d\n", cJSON_GetObjectItem(j, "class")->valuestring, z2_text,
+                 cJSON_GetArraySize(cJSON_GetObjectItem(j, "weyl_nodes")), cJSON_GetObjectItem(j, "mesh")->valueint);
+        assert_string_equal(d.text, expect);
+        /* nodes: the stored chiralities add up to the program's net chirality */
+        snprintf(sql, sizeof sql, "SELECT COALESCE(SUM(chirality), 0) FROM nodes WHERE material_id = '%s'", id);
+        assert_int_equal(q_int(cat, sql), cJSON_GetObjectItem(j, "net_chirality")->valueint);
+        /* transport: the Hall conductivity is stored bit for bit. Read as a double through a
+         * plain connection: SQL text such as "ahc_xy = 0.1234..." would go through SQLite's own
+         * decimal parser, which is not correctly rounded in every build. */
+        const cJSON *ahc = cJSON_GetObjectItem(j, "ahc");
+        sqlite3 *db = NULL;
+        sqlite3_stmt *st = NULL;
+        assert_int_equal(sqlite3_open_v2(t.cat, &db, SQLITE_OPEN_READONLY, NULL), SQLITE_OK);
+        assert_int_equal(sqlite3_prepare_v2(db, "SELECT ahc_xy, ahc_units FROM results WHERE material_id = ?", -1, &st, NULL),
+                         SQLITE_OK);
+        sqlite3_bind_text(st, 1, id, -1, SQLITE_STATIC);
+        assert_int_equal(sqlite3_step(st), SQLITE_ROW);
+        assert_true(sqlite3_column_double(st, 0) == cJSON_GetObjectItem(ahc, "xy")->valuedouble);
+        assert_string_equal((const char *)sqlite3_column_text(st, 1), cJSON_GetObjectItem(ahc, "units")->valuestring);
+        sqlite3_finalize(st);
+        sqlite3_close(db);
+        /* flows: one artifact per plane, each equal to the printed arrays */
+        const cJSON *flows = cJSON_GetObjectItem(j, "wcc_flows");
+        snprintf(sql, sizeof sql, "SELECT count(*) FROM artifacts WHERE material_id = '%s'", id);
+        assert_int_equal(q_int(cat, sql), cJSON_GetArraySize(flows));
+        for (const cJSON *fl = flows ? flows->child : NULL; fl; fl = fl->next) {
+            cat_flow f;
+            if (cat_flow_read(cat, run, id, cJSON_GetObjectItem(fl, "plane")->valueint, &f, &err) != 0) fail_msg("%s", err.msg);
+            const cJSON *kpar = cJSON_GetObjectItem(fl, "kpar"), *wcc = cJSON_GetObjectItem(fl, "wcc");
+            assert_int_equal(f.nstring, cJSON_GetArraySize(kpar));
+            for (int s = 0; s < f.nstring; s++) {
+                assert_true(f.kpar[s] == cJSON_GetArrayItem(kpar, s)->valuedouble);
+                for (int b = 0; b < f.nband; b++)
+                    assert_true(f.wcc[s * f.nband + b] == cJSON_GetArrayItem(cJSON_GetArrayItem(wcc, s), b)->valuedouble);
+            }
+            cat_flow_clear(&f);
+        }
+        cJSON_Delete(j);
+        free(text);
+    }
+    assert_int_equal(q_int(cat, "SELECT count(*) FROM summary WHERE status = 'ok'"), 7);
+    close_ok(cat);
     tmp_remove(&t);
 }
 
@@ -972,11 +1171,13 @@ int main(void)
         cmocka_unit_test(test_artifact_write_failure),
         cmocka_unit_test(test_summary_most_resolved),
         cmocka_unit_test(test_candidates_order),
+        cmocka_unit_test(test_top_spin_hall),
         cmocka_unit_test(test_batching),
         cmocka_unit_test(test_resume_after_sigkill),
         cmocka_unit_test(test_readonly_refusal),
         cmocka_unit_test(test_sql_errors_carry_sqlite_message),
         cmocka_unit_test(test_cli_query),
+        cmocka_unit_test(test_inspect_output_round_trip),
     };
-    return cmocka_run_group_tests(tests, NULL, NULL);
+    return cmocka_run_group_tests(tests, NULL, remove_all_dirs);
 }

@@ -5,5 +5,5 @@ foreach(np 2 4)
   add_test(NAME surface_pzheev_np${np}
            COMMAND ${MPIEXEC_EXECUTABLE} -n ${np} --oversubscribe $<TARGET_FILE:surface_mpi_pzheev>)
   set_tests_properties(surface_pzheev_np${np} PROPERTIES LABELS "script;surface;mpi" TIMEOUT 300
-    ENVIRONMENT "OMPI_ALLOW_RUN_AS_ROOT=1;OMPI_ALLOW_RUN_AS_ROOT_CONFIRM=1;OPENBLAS_NUM_THREADS=1")
+    ENVIRONMENT "OMPI_ALLOW_RUN_AS_ROOT=1;OMPI_ALLOW_RUN_AS_ROOT_CONFIRM=1;OPENBLAS_NUM_THREADS=1;OMPI_MCA_mpi_yield_when_idle=1")
 endforeach()

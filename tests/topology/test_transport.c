@@ -9,10 +9,12 @@
 #include <stdint.h>
 #include <cmocka.h>
 
+#include <complex.h>
 #include <math.h>
 #include <stdio.h>
 #include <stdlib.h>
 #include <string.h>
+#include <unistd.h>
 
 #include "bandsieve/bandpair.h"
 #include "bandsieve/chern.h"
@@ -43,7 +45,8 @@ static tr_result run(const tb_model *m, const tr_opts *o)
     if (rc != 0) fprintf(stderr, "%s: %s\n", m->id, err.msg);
     assert_int_equal(rc, 0);
     printf("  %-44s EF %+.4f ahc", m->id, r.fermi_ev[0]);
-    for (int a = 0; a < (r.dim == 3 ? 3 : 1); a++) printf(" %+.6e(%.1e)", r.ahc[0][a], r.ahc_err[0][a]);
+    for (int a = 0; a < (r.dim == 3 ? 3 : 1); a++)
+        printf(" %+.6e(%.1e)", r.ahc[0][a], r.ahc_err[0][a]);
     if (r.has_shc) printf(" shc %+.6f(%.1e)", r.shc[0], r.shc_err[0]);
     printf(" %s nk %lld cells %lld depth %d conv %d %.2f s\n", r.ahc_units, r.nk, r.ncells, r.depth,
            r.converged, bp_now() - t0);
@@ -278,10 +281,10 @@ static void test_weyl_ahc(void **state)
     tb_model_free(m);
 }
 
-/* Metal default Fermi energy (transport.h): nocc bands' worth of states below it on the initial
- * mesh's cell centres. Reference: an independent count of the eigenvalues below E_F on the same
- * 16 x 16 centres must be nocc N_k = 256 exactly (the default lies between two eigenvalues). The
- * model is real (time-reversal symmetric), so AHC = 0 within its error. */
+/* Metal default Fermi energy (transport.h): nocc bands' worth of states below it on the 48 x 48
+ * midpoint mesh of the eigenvalue pass. Reference: an independent count of the eigenvalues below
+ * E_F on the same mesh must be nocc N_k = 2304 exactly (the default lies between two eigenvalues).
+ * The model is real (time-reversal symmetric), so AHC = 0 within its error. */
 static void test_metal_fermi(void **state)
 {
     (void)state;
@@ -302,20 +305,123 @@ static void test_metal_fermi(void **state)
     double complex H[4];
     double E[2];
     int below = 0;
-    for (int i = 0; i < 16; i++)
-        for (int j = 0; j < 16; j++) {
-            double k[3] = {(i + 0.5) / 16, (j + 0.5) / 16, 0};
+    for (int i = 0; i < 48; i++)
+        for (int j = 0; j < 48; j++) {
+            double k[3] = {(i + 0.5) / 48, (j + 0.5) / 48, 0};
             assert_int_equal(hk_build(hk, 1, k, H, &err), 0);
             assert_int_equal(eig_values(ws, H, E, &err), 0);
             below += (E[0] < r.fermi_ev[0]) + (E[1] < r.fermi_ev[0]);
         }
-    assert_int_equal(below, 256);
+    assert_int_equal(below, 2304);
     hk_free(hk);
     eig_free(ws);
     tb_model_free(m);
 }
 
-static int has_key(const cJSON *o, const char *k) { return cJSON_GetObjectItemCaseSensitive(o, k) != NULL; }
+#define REF_SCRIPT BS_TEST_DATA "/../topology/transport_ref.py"
+
+/* Writes m in the plain layout transport_ref.py reads (its docstring). 0 on success. */
+static int write_ref_model(const tb_model *m, const char *path)
+{
+    FILE *f = fopen(path, "w");
+    if (!f) return -1;
+    int n = m->norb;
+    fprintf(f, "%d %d %d\n", m->dim, n, m->nR);
+    for (int i = 0; i < 3; i++)
+        for (int c = 0; c < 3; c++) fprintf(f, "%.17g ", m->lattice[i][c]);
+    fprintf(f, "\n");
+    for (int s = 0; s < n; s++) {
+        const double *t = m->orb_pos[tb_state_orbital(m, s)];
+        int sz = m->spinful ? (tb_state_spin(m, s) == 0 ? 1 : -1) : 0;
+        fprintf(f, "%.17g %.17g %.17g %d\n", t[0], t[1], t[2], sz);
+    }
+    for (int r = 0; r < m->nR; r++) {
+        fprintf(f, "%d %d %d %d\n", m->R[r][0], m->R[r][1], m->R[r][2], m->deg[r]);
+        for (int q = 0; q < n * n; q++) {
+            double complex h = m->H[(size_t)r * n * n + q];
+            fprintf(f, "%.17g %.17g\n", creal(h), cimag(h));
+        }
+    }
+    return fclose(f) == 0 ? 0 : -1;
+}
+
+/* numpy reference (tests/topology/transport_ref.py): AHC and SHC at E_F with Fermi-Dirac kT on an
+ * n x n midpoint mesh. */
+static void numpy_reference(const tb_model *m, double ef, double kt, int n, double ref[2])
+{
+    char path[] = "/tmp/bs_transport_ref_XXXXXX";
+    int fd = mkstemp(path);
+    assert_true(fd >= 0);
+    close(fd);
+    assert_int_equal(write_ref_model(m, path), 0);
+    char cmd[1024];
+    snprintf(cmd, sizeof cmd, "/usr/bin/python3 %s %s %.17g %.17g %d", REF_SCRIPT, path, ef, kt, n);
+    FILE *p = popen(cmd, "r");
+    assert_non_null(p);
+    int got = fscanf(p, "%lf %lf", &ref[0], &ref[1]);
+    int st = pclose(p);
+    unlink(path);
+    assert_int_equal(got, 2);
+    assert_int_equal(st, 0);
+}
+
+/* Metals against numpy: the Fermi-sea integral with the Fermi level inside a band, where the
+ * orbital positions matter (position gauge). The reference builds H(k) with the positions in the
+ * phase and differentiates it analytically (transport_ref.py), on a 300 x 300 midpoint mesh with
+ * the same Fermi-Dirac smearing kT = 0.1 eV; the smearing makes the integrand smooth on the scale
+ * of 0.01 in reduced k, where the periodic midpoint rule converges exponentially (common practice),
+ * so the reference is good to far below the tolerance. Cases: Haldane M = 0.2 eV at E_F = 1.2 eV
+ * (upper band; Phys. Rev. Lett. 61, 2015 (1988)) and Kane-Mele with Rashba coupling at E_F = 1 eV
+ * (SHC; Phys. Rev. Lett. 95, 226801 (2005)); and the same Haldane metal with one of its three
+ * nearest-neighbour bonds 30% stronger, which breaks the 3-fold symmetry of the Fermi contour, so
+ * that leaving the orbital positions out (lattice gauge) changes the metal's AHC by more than
+ * 1e-2 (observed here, not a published value). Tolerance 5e-4 in e^2/h or e/(2 pi): the integration
+ * is asked for 1e-4 and must cover its deviation; 5e-4 leaves room for the reference. The lattice
+ * gauge value is printed: for a metal it is not the same quantity. */
+static void test_metal_against_numpy(void **state)
+{
+    (void)state;
+    const char *spec[3] = {"haldane:M=0.2", "kane_mele", "haldane:M=0.2"};
+    const double ef[3] = {1.2, 1.0, 1.2};
+    for (int i = 0; i < 3; i++) {
+        tb_model *m = build(spec[i]);
+        if (i == 2) { /* one of the three A-B bonds (the one in R = 0) made 30% stronger */
+            const int R0[3] = {0, 0, 0};
+            int r0 = tb_model_find_R(m, R0);
+            assert_true(r0 >= 0);
+            m->H[(size_t)r0 * 4 + 0 * 2 + 1] *= 1.3;
+            m->H[(size_t)r0 * 4 + 1 * 2 + 0] *= 1.3;
+        }
+        double ref[2];
+        numpy_reference(m, ef[i], 0.1, 300, ref);
+        tr_opts o;
+        tr_opts_default(&o);
+        o.tol = 1e-4;
+        o.has_fermi = 1;
+        o.fermi_ev = ef[i];
+        o.smear_ev = 0.1;
+        tr_result r = run(m, &o);
+        printf("    numpy: ahc %+.6f shc %+.6f\n", ref[0], ref[1]);
+        assert_true(r.converged);
+        assert_true(fabs(r.ahc[0][0] - ref[0]) < 5e-4);
+        assert_true(fabs(r.ahc[0][0] - ref[0]) <= r.ahc_err[0][0] + 1e-4);
+        if (m->spinful) {
+            assert_true(fabs(r.shc[0] - ref[1]) < 5e-4);
+            assert_true(fabs(r.shc[0] - ref[1]) <= r.shc_err[0] + 1e-4);
+        }
+        o.gauge = TR_GAUGE_LATTICE;
+        tr_result lat = run(m, &o);
+        printf("    lattice gauge differs by ahc %.3e shc %.3e\n", lat.ahc[0][0] - r.ahc[0][0],
+               lat.shc[0] - r.shc[0]);
+        if (i == 2) assert_true(fabs(lat.ahc[0][0] - ref[0]) > 1e-2); /* the gauge matters here */
+        tb_model_free(m);
+    }
+}
+
+static int has_key(const cJSON *o, const char *k)
+{
+    return cJSON_GetObjectItemCaseSensitive(o, k) != NULL;
+}
 
 /* JSON layout asked for by the issue: "ahc" {xy[, yz, zx], units, fermi_eV, error}, "shc" {xy_z,
  * units, fermi_eV, error} for spinful models only, and the scan. */
@@ -331,14 +437,15 @@ static void test_json(void **state)
     cJSON *j = tr_to_json(&r);
     assert_non_null(j);
     cJSON *a = cJSON_GetObjectItemCaseSensitive(j, "ahc");
-    assert_true(has_key(a, "xy") && !has_key(a, "yz") && has_key(a, "error") && has_key(a, "fermi_eV"));
+    assert_true(has_key(a, "xy") && !has_key(a, "yz") && has_key(a, "error") &&
+                has_key(a, "fermi_eV"));
     assert_string_equal(cJSON_GetObjectItemCaseSensitive(a, "units")->valuestring, "e^2/h");
     assert_false(has_key(j, "shc"));
     assert_int_equal(cJSON_GetArraySize(cJSON_GetObjectItemCaseSensitive(j, "scan")), 1);
     assert_true(cJSON_GetObjectItemCaseSensitive(j, "kpoints")->valuedouble == (double)r.nk);
-    /* 4 x 4 cells without refinement: 16 centres for the default E_F, then 17 points per cell
-     * (the 2D cubature pair, transport.c) */
-    assert_int_equal(r.nk, 16 + 16 * 17);
+    /* 4 x 4 cells without refinement: 48 x 48 eigenvalue points for the default E_F, then 17
+     * points per cell (the 2D cubature pair, transport.c) */
+    assert_int_equal(r.nk, 48 * 48 + 16 * 17);
     cJSON_Delete(j);
     tb_model_free(m);
     m = build("fkm");
@@ -368,7 +475,11 @@ static void test_bad_input(void **state)
     tr_result r;
     bs_err err;
     tr_opts o;
-    struct { int field; double v; } cases[6] = {{0, -1}, {1, -2}, {2, -1}, {3, 500}, {4, 7}, {5, -0.1}};
+    /* mesh, max_depth, tol, nscan, gauge, eta out of range */
+    struct {
+        int field;
+        double v;
+    } cases[6] = {{0, -1}, {1, -2}, {2, -1}, {3, 500}, {4, 7}, {5, -0.1}};
     for (int i = 0; i < 6; i++) {
         tr_opts_default(&o);
         if (cases[i].field == 0) o.mesh = (int)cases[i].v;
@@ -396,10 +507,16 @@ static void test_bad_input(void **state)
 int main(void)
 {
     const struct CMUnitTest tests[] = {
-        cmocka_unit_test(test_haldane_phase_diagram), cmocka_unit_test(test_gauge_insulator),
-        cmocka_unit_test(test_fermi_scan),            cmocka_unit_test(test_kane_mele_shc),
-        cmocka_unit_test(test_bhz_shc),               cmocka_unit_test(test_time_reversal_zero),
-        cmocka_unit_test(test_weyl_ahc), cmocka_unit_test(test_metal_fermi),           cmocka_unit_test(test_json),
+        cmocka_unit_test(test_haldane_phase_diagram),
+        cmocka_unit_test(test_gauge_insulator),
+        cmocka_unit_test(test_fermi_scan),
+        cmocka_unit_test(test_kane_mele_shc),
+        cmocka_unit_test(test_bhz_shc),
+        cmocka_unit_test(test_time_reversal_zero),
+        cmocka_unit_test(test_weyl_ahc),
+        cmocka_unit_test(test_metal_fermi),
+        cmocka_unit_test(test_metal_against_numpy),
+        cmocka_unit_test(test_json),
         cmocka_unit_test(test_bad_input),
     };
     return cmocka_run_group_tests(tests, NULL, NULL);
