@@ -183,7 +183,11 @@ static int run_nodes(diag_ctx *c, diag_result *r, bs_err *err)
     long long flux_nk = c->nodes.nk_evaluated - (bp_count(c->bp) - before);
     r->chirality_status = c->nodes.chirality_status;
     r->nodes_tr_ok = r->time_reversal ? nodes_check_time_reversal(&c->nodes, c->m->dim, 1e-5) : 1;
+    /* The node search starts from more cells than the gap search's few basins: a node it finds
+     * is the true direct gap. */
+    gaps_merge_nodes(&c->gaps, &c->nodes);
     long long keep = r->nk_evaluated;
+    gaps_to_diag(&c->gaps, r);
     nodes_to_diag(&c->nodes, r);
     r->nk_evaluated = keep + (flux_nk > 0 ? flux_nk : 0);
     return 0;
@@ -355,19 +359,27 @@ int diag_run(const tb_model *m, const diag_opts *opts, diag_result *r, bs_err *e
     int rc = hk_create(m, 64, &c.hk, err);
     if (rc == 0) rc = run_symmetry(&c, r, err);
     if (rc == 0) rc = run_gaps(&c, r, err);
-    int gapless = 0, kramers = 0;
+    int gapless = 0, kramers = 0, searched = 0;
     if (rc == 0) {
         kramers = r->time_reversal && c.sym->tr_squared == -1;
+        /* In 3D a small refined gap may hide Weyl nodes between the gap search's basins: search for
+         * nodes whenever the gap is below 2% of the two bands' width (or closed). */
+        double suspicious = fmax(BS_GAP_CLOSED_EV, 0.02 * c.gaps.width_ev);
+        if (c.gaps.closed || (m->dim == 3 && c.gaps.gap_direct_ev < suspicious)) {
+            rc = run_nodes(&c, r, err);
+            searched = 1;
+        }
+    }
+    if (rc == 0) {
         int direct_open = !c.gaps.closed;
         gapless = c.gaps.closed || c.gaps.metallic;
         if (direct_open && kramers && r->inversion) rc = run_parity(&c, r, err);
         if (rc == 0 && direct_open && kramers) rc = run_wcc(&c, r, err);
         if (rc == 0 && direct_open && !r->time_reversal) rc = run_chern(&c, r, err);
-        if (rc == 0 && c.gaps.closed) rc = run_nodes(&c, r, err);
-        if (rc == 0 && r->wcc_gap_closed && !c.gaps.closed) {
+        if (rc == 0 && r->wcc_gap_closed) {
             /* The strings found a closing that the gap mesh missed: trust the finer probe. */
             gapless = 1;
-            rc = run_nodes(&c, r, err);
+            if (!searched) rc = run_nodes(&c, r, err);
         }
     }
     if (rc == 0) {
