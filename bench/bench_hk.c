@@ -94,13 +94,20 @@ static void bench(int norb, int nk)
     for (int i = 0; i < 3 * nk; i++) k[i] = uniform(&seed);
     hk_build(hk, batch, k, Hsaved, &err);
 
+    /* Three rounds, each mode's best time: the machine is shared, and the minimum is the least
+     * disturbed measurement of each. */
+    double t_diag = 1e30, t_fold = 1e30, t_line = 1e30, t_family = 1e30;
+    hk_engine *plane = NULL, *line = NULL;
+    hk_lines *lines = NULL;
+    double *ks = NULL;
+    for (int round = 0; round < 3; round++) {
     /* Bare diagonalisation: the same matrices, copied in (the copy is part of any use). */
     double t0 = now();
     for (int j = 0; j < nk; j++) {
         memcpy(A, Hsaved + (j % batch) * nn, nn * sizeof *A);
         eig_vectors(ws, A, w, &err);
     }
-    double t_diag = (now() - t0) / nk;
+    double t_diag_r = (now() - t0) / nk;
 
     t0 = now();
     for (int j0 = 0; j0 < nk; j0 += batch) {
@@ -108,16 +115,16 @@ static void bench(int norb, int nk)
         hk_build(hk, nb, k + 3 * j0, H, &err);
         for (int j = 0; j < nb; j++) eig_vectors(ws, H + j * nn, w, &err);
     }
-    double t_fold = (now() - t0) / nk;
+    double t_fold_r = (now() - t0) / nk;
 
     /* Strings of `batch` points along k2 (a Wilson-loop string or a mesh row): each string re-reduces
      * both fixed axes (the worst case: every string on its own plane), then builds its points. */
-    hk_engine *plane = NULL, *line = NULL;
+    plane = NULL; line = NULL;
     if (hk_reduce(hk, 2, 0.0, batch, &plane, &err) || hk_reduce(plane, 0, 0.0, batch, &line, &err)) {
         fprintf(stderr, "%s\n", err.msg);
         exit(1);
     }
-    double *ks = malloc(3 * (size_t)batch * sizeof *ks);
+    ks = malloc(3 * (size_t)batch * sizeof *ks);
     t0 = now();
     int nstring = nk / batch;
     for (int s = 0; s < nstring; s++) {
@@ -128,13 +135,32 @@ static void bench(int norb, int nk)
         hk_build(line, batch, ks, H, &err);
         for (int j = 0; j < batch; j++) eig_vectors(ws, H + j * nn, w, &err);
     }
-    double t_line = (now() - t0) / (nstring * batch);
+    double t_line_r = (now() - t0) / (nstring * batch);
+
+    /* A family of strings on one plane (k3 fixed, strings along k2 at varying k1), through the
+     * line cache that the Wilson-loop and Chern code use. */
+    lines = NULL;
+    if (hk_lines_create(hk, &lines, &err)) { fprintf(stderr, "%s\n", err.msg); exit(1); }
+    t0 = now();
+    for (int s = 0; s < nstring; s++) {
+        for (int j = 0; j < batch; j++) { ks[3 * j] = (double)s / nstring; ks[3 * j + 1] = (double)j / batch; ks[3 * j + 2] = 0.25; }
+        hk_lines_build(lines, batch, ks, H, &err);
+        for (int j = 0; j < batch; j++) eig_vectors(ws, H + j * nn, w, &err);
+    }
+    double t_family_r = (now() - t0) / (nstring * batch);
+    hk_lines_free(lines);
     free(ks);
     hk_free(line);
     hk_free(plane);
+    plane = line = NULL;
 
+        if (t_diag_r < t_diag) t_diag = t_diag_r;
+        if (t_fold_r < t_fold) t_fold = t_fold_r;
+        if (t_line_r < t_line) t_line = t_line_r;
+        if (t_family_r < t_family) t_family = t_family_r;
+    }
     int nk_direct = nk < 64 ? nk : 64;
-    t0 = now();
+    double t0 = now();
     for (int j = 0; j < nk_direct; j++) {
         hk_build_direct(m, k + 3 * j, A);
         eig_vectors(ws, A, w, &err);
@@ -142,8 +168,8 @@ static void bench(int norb, int nk)
     double t_direct = (now() - t0) / nk_direct;
 
     printf("n = %3d  N_R = %d  diag %8.1f us/k | ratios to diag: random k batched %.2f, "
-           "strings of %d (partial sums) %.2f, direct sum %.2f\n",
-           norb, m->nR, 1e6 * t_diag, t_fold / t_diag, batch, t_line / t_diag, t_direct / t_diag);
+           "strings of %d: on one plane %.2f, each on its own plane %.2f; direct sum %.2f\n",
+           norb, m->nR, 1e6 * t_diag, t_fold / t_diag, batch, t_family / t_diag, t_line / t_diag, t_direct / t_diag);
     fflush(stdout);
     free(H); free(A); free(Hsaved); free(w); free(k);
     eig_free(ws);

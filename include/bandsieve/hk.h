@@ -53,6 +53,17 @@ int hk_reduce(const hk_engine *src, int axis, double kval, int max_batch, hk_eng
  * allocating: the column structure depends only on the lattice vectors. */
 int hk_rereduce(hk_engine *dst, const hk_engine *src, double kval, bs_err *err);
 
+/* A cache of partial sums for callers that evaluate k-points in batches along lines (Wilson-loop
+ * strings, mesh rows). hk_lines_build looks at each batch: when its points share two reduced
+ * coordinates, it builds them from a line engine (hk_reduce twice), reusing the plane reduction
+ * while that coordinate stays fixed from batch to batch; otherwise it falls back on hk_build.
+ * Results are those of hk_build to round-off. full is borrowed and must outlive the cache. */
+typedef struct hk_lines hk_lines;
+
+int hk_lines_create(hk_engine *full, hk_lines **out, bs_err *err);
+void hk_lines_free(hk_lines *l);
+int hk_lines_build(hk_lines *l, int nk, const double *k, double complex *H, bs_err *err);
+
 /* Reference implementation: the direct complex sum over every R at one k (for tests and the
  * benchmark's baseline). H as in hk_build with nk = 1. */
 void hk_build_direct(const tb_model *m, const double k[3], double complex *H);

@@ -310,6 +310,104 @@ int hk_build_deriv(hk_engine *e, int nk, const double *k, double complex *H, dou
     return 0;
 }
 
+struct hk_lines {
+    hk_engine *full;
+    hk_engine *plane, *line;   /* NULL until first needed */
+    int plane_axis, line_axis;
+    double plane_val, line_val;
+    int line_fresh;            /* line was reduced from the current plane */
+    double prev[3];            /* constant coordinates of the previous batch (NAN: not constant) */
+};
+
+int hk_lines_create(hk_engine *full, hk_lines **out, bs_err *err)
+{
+    *out = NULL;
+    hk_lines *l = calloc(1, sizeof *l);
+    if (!l) return bs_fail(err, BS_ENOMEM, "out of memory for the line cache");
+    l->full = full;
+    l->plane_axis = l->line_axis = -1;
+    for (int d = 0; d < 3; d++) l->prev[d] = NAN;
+    *out = l;
+    return 0;
+}
+
+void hk_lines_free(hk_lines *l)
+{
+    if (!l) return;
+    hk_free(l->plane);
+    hk_free(l->line);
+    free(l);
+}
+
+/* Makes l->plane the reduction of the full engine at k[axis] = val. */
+static int lines_plane(hk_lines *l, int axis, double val, bs_err *err)
+{
+    if (l->plane && l->plane_axis == axis && l->plane_val == val) return 0;
+    int rc;
+    if (l->plane && l->plane_axis == axis) {
+        rc = hk_rereduce(l->plane, l->full, val, err);
+    } else {
+        hk_free(l->plane);
+        hk_free(l->line);
+        l->plane = l->line = NULL;
+        rc = hk_reduce(l->full, axis, val, l->full->max_batch, &l->plane, err);
+    }
+    l->plane_axis = axis;
+    l->plane_val = val;
+    l->line_fresh = 0;
+    return rc;
+}
+
+static int lines_line(hk_lines *l, int axis, double val, bs_err *err)
+{
+    if (l->line && l->line_fresh && l->line_axis == axis && l->line_val == val) return 0;
+    int rc;
+    if (l->line && l->line_axis == axis) {
+        rc = hk_rereduce(l->line, l->plane, val, err);
+    } else {
+        hk_free(l->line);
+        l->line = NULL;
+        rc = hk_reduce(l->plane, axis, val, l->full->max_batch, &l->line, err);
+    }
+    l->line_axis = axis;
+    l->line_val = val;
+    l->line_fresh = 1;
+    return rc;
+}
+
+int hk_lines_build(hk_lines *l, int nk, const double *k, double complex *H, bs_err *err)
+{
+    double cur[3];
+    int nconst = 0;
+    for (int d = 0; d < 3; d++) {
+        cur[d] = k[d];
+        for (int j = 1; j < nk && !isnan(cur[d]); j++)
+            if (k[3 * j + d] != k[d]) cur[d] = NAN;
+        nconst += !isnan(cur[d]);
+    }
+    /* A reduction costs about two k-points of the full engine: below 8 points it does not pay. */
+    if (nk < 8 || nconst < 2 || l->full->nhalf < 4) {
+        for (int d = 0; d < 3; d++) l->prev[d] = cur[d];
+        return hk_build(l->full, nk, k, H, err);
+    }
+    /* The plane axis: the current one if it still holds, else a coordinate that was also fixed, at
+     * the same value, in the previous batch (the plane of a family of strings), else the first. */
+    int pa = -1;
+    if (l->plane && cur[l->plane_axis] == l->plane_val) pa = l->plane_axis;
+    for (int d = 0; d < 3 && pa < 0; d++)
+        if (!isnan(cur[d]) && cur[d] == l->prev[d]) pa = d;
+    for (int d = 0; d < 3 && pa < 0; d++)
+        if (!isnan(cur[d])) pa = d;
+    int la = -1;
+    for (int d = 0; d < 3; d++)
+        if (d != pa && !isnan(cur[d])) { la = d; break; }
+    for (int d = 0; d < 3; d++) l->prev[d] = cur[d];
+    int rc = lines_plane(l, pa, cur[pa], err);
+    if (rc == 0) rc = lines_line(l, la, cur[la], err);
+    if (rc == 0) rc = hk_build(l->line, nk, k, H, err);
+    return rc;
+}
+
 void hk_build_direct(const tb_model *m, const double k[3], double complex *H)
 {
     int n = m->norb;

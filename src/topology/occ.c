@@ -1,4 +1,5 @@
-/* Occupied Bloch vectors on batches of k-points: one hk_build per batch, then a partial Hermitian
+/* Occupied Bloch vectors on batches of k-points: one H(k) build per batch (from partial sums when
+ * the batch lies on a line, hk_lines_build), then a partial Hermitian
  * eigensolve (eigenvalues and vectors 0..nband) per k-point. */
 #include "occ.h"
 
@@ -15,6 +16,7 @@ enum { OCC_BATCH_ELEMENTS = 64 * 200 * 200, OCC_MAX_BATCH = 64 };
 struct occ_ws {
     int norb, nband, batch;
     hk_engine *hk;
+    hk_lines *lines;       /* partial sums for batches along strings and mesh rows */
     eig_ws *eig;
     double complex *H;     /* batch x norb x norb */
     double complex *Z;     /* norb x (nband + 1) */
@@ -38,6 +40,8 @@ int occ_create(const tb_model *m, int nband, occ_ws **out, bs_err *err)
     w->batch = b < 1 ? 1 : (b > OCC_MAX_BATCH ? OCC_MAX_BATCH : (int)b);
     rc = hk_create(m, w->batch, &w->hk, err);
     if (rc != 0) goto done;
+    rc = hk_lines_create(w->hk, &w->lines, err);
+    if (rc != 0) goto done;
     rc = eig_create(m->norb, &w->eig, err);
     if (rc != 0) goto done;
     w->H = malloc((size_t)w->batch * (size_t)per * sizeof *w->H);
@@ -60,6 +64,7 @@ done:
 void occ_free(occ_ws *w)
 {
     if (!w) return;
+    hk_lines_free(w->lines);
     hk_free(w->hk);
     eig_free(w->eig);
     free(w->H);
@@ -79,7 +84,7 @@ int occ_states(occ_ws *w, int nk, const double *k, double complex *U, double *ga
     size_t ublk = (size_t)w->norb * (size_t)w->nband;
     for (int j0 = 0; j0 < nk; j0 += w->batch) {
         int nb = nk - j0 < w->batch ? nk - j0 : w->batch;
-        int rc = hk_build(w->hk, nb, k + 3 * (size_t)j0, w->H, err);
+        int rc = hk_lines_build(w->lines, nb, k + 3 * (size_t)j0, w->H, err);
         if (rc != 0) return rc;
         for (int j = 0; j < nb; j++) {
             double complex *A = w->H + (size_t)j * per;

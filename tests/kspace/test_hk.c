@@ -171,12 +171,52 @@ static void test_reduced_engines_match_direct_sum(void **state)
     tb_model_free(m);
 }
 
+/* The line cache gives the direct sum for strings on a plane, for a change of plane, and for a
+ * batch that is not a line (fallback to the full engine). */
+static void test_line_cache_matches_direct_sum(void **state)
+{
+    (void)state;
+    int norb = 5, nb = 12;
+    tb_model *m = random_model(norb, 31337);
+    bs_err err;
+    bs_err_clear(&err);
+    hk_engine *full = NULL;
+    hk_lines *lines = NULL;
+    assert_int_equal(hk_create(m, nb, &full, &err), 0);
+    assert_int_equal(hk_lines_create(full, &lines, &err), 0);
+    size_t nn = (size_t)norb * norb;
+    double complex *H = malloc(nb * nn * sizeof *H), *Hd = malloc(nn * sizeof *Hd);
+    double k[36];
+    uint64_t seed = 5;
+    /* Strings along k1 at k3 = 0.5 and several k2 (a Wilson-loop family), then along k2 at k1 = 0,
+     * then random points. */
+    for (int family = 0; family < 3; family++)
+        for (int s = 0; s < 4; s++) {
+            for (int j = 0; j < nb; j++) {
+                double t = (double)j / nb, v = 0.1 * s + 0.05;
+                if (family == 0) { k[3 * j] = t; k[3 * j + 1] = v; k[3 * j + 2] = 0.5; }
+                else if (family == 1) { k[3 * j] = 0.0; k[3 * j + 1] = t; k[3 * j + 2] = v; }
+                else for (int d = 0; d < 3; d++) k[3 * j + d] = uniform(&seed);
+            }
+            assert_int_equal(hk_lines_build(lines, nb, k, H, &err), 0);
+            for (int j = 0; j < nb; j++) {
+                hk_build_direct(m, k + 3 * j, Hd);
+                assert_true(max_diff(H + j * nn, Hd, nn) < 1e-12);
+            }
+        }
+    free(H); free(Hd);
+    hk_lines_free(lines);
+    hk_free(full);
+    tb_model_free(m);
+}
+
 int main(void)
 {
     const struct CMUnitTest tests[] = {
         cmocka_unit_test(test_batched_matches_direct_sum),
         cmocka_unit_test(test_derivative_matches_finite_difference),
         cmocka_unit_test(test_reduced_engines_match_direct_sum),
+        cmocka_unit_test(test_line_cache_matches_direct_sum),
     };
     return cmocka_run_group_tests(tests, NULL, NULL);
 }
