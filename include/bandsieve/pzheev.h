@@ -24,7 +24,7 @@
 
 typedef struct pz_ctx pz_ctx;
 
-/* Grid and workspace for n x n problems with block size nb (0: 64) over comm (duplicated, so
+/* Grid and workspace for n x n problems with block size nb (0: 32) over comm (duplicated, so
  * the caller may free its own handle). The grid is nprow x npcol with nprow the largest divisor
  * of the size not above its square root. The caller owns *out. Collective on comm. */
 int pz_create(MPI_Comm comm, int n, int nb, pz_ctx **out, bs_err *err);

@@ -53,10 +53,11 @@ int ss_bulk_edges(const tb_model *m, int mesh, double *vbm, double *cbm, bs_err 
 double ss_fermi_default(double vbm, double cbm);
 
 /* Counts the crossings of fermi_ev by top- and bottom-localised slab states on the straight
- * segment from ka to kb (in-plane reduced), sampled at nk points including both ends; a band
- * crossing is classified by its weights averaged over the two samples around it. Two crossings
- * in opposite directions between the same two samples cancel and are missed: nk should resolve
- * the surface bands. n_other receives crossings by states localised on neither surface (may be NULL). */
+ * segment from ka to kb (in-plane reduced), sampled at nk points including both ends. Bands are
+ * followed from sample to sample by eigenvector overlap (so a top and a bottom band crossing each
+ * other near E_F are told apart), and a crossing is classified by its weights averaged over the
+ * two samples around it; nk should resolve the surface bands. n_other receives crossings by states localised on neither surface, plus any
+ * change of the count below E_F that the followed bands do not explain (may be NULL). */
 int ss_crossings(ss_ctx *c, const double ka[2], const double kb[2], double fermi_ev, int *n_top, int *n_bottom,
                  int *n_other, bs_err *err);
 

@@ -44,7 +44,8 @@ static void slab_help(FILE *out)
             "  --fermi E           Fermi level in eV (default: 60%% of the way up the bulk gap)\n"
             "  --surface-layers S  cells counted as a surface (default max(2, N/8))\n"
             "  --cut C             termination: orbitals at stacking coordinate [C, C+1) form a cell (default 0)\n"
-            "  --path P            surface path, points k1,k2 (ribbon: k1) joined by ':' (default 00:10:11:00)\n"
+            "  --path P            surface path, points k1,k2 (ribbon: k1) joined by ':'\n"
+            "                      (default 0,0:0.5,0:0.5,0.5:0,0; ribbon 0:0.5:1)\n"
             "  --nk N              samples per path segment (default 60)\n"
             "  --energy E          surface spectral function at E (eV): a map over the zone, and along the path\n"
             "  --window LO,HI      energy-resolved spectral function along the path over LO..HI (eV)\n"
@@ -433,16 +434,31 @@ static void print_text(const slab *s, const slab_args *a, const slab_result *r)
                r->dirac[i].k[0], r->dirac[i].k[1], r->dirac[i].energy_ev);
 }
 
+/* Tick positions and labels ("k1,k2") at the path's vertices. */
+static void path_ticks(const slab *s, const slab_args *a, const slab_result *r, double *xt, char (*lab)[32],
+                       const char **labp)
+{
+    for (int g = 0; g < a->npath; g++) {
+        xt[g] = r->xp[g * (a->nk - 1)];
+        if (slab_kdim(s) == 2) snprintf(lab[g], sizeof lab[g], "%.3g,%.3g", a->path[g][0], a->path[g][1]);
+        else snprintf(lab[g], sizeof lab[g], "%.3g", a->path[g][0]);
+        labp[g] = lab[g];
+    }
+}
+
 static int write_svg(const slab *s, const slab_args *a, const slab_result *r, bs_err *err)
 {
-    char title[256];
+    char title[256], lab[SLAB_MAX_PATH][32];
+    double xt[SLAB_MAX_PATH];
+    const char *labp[SLAB_MAX_PATH];
+    path_ticks(s, a, r, xt, lab, labp);
     const char *side = a->side == SG_TOP ? "top" : "bottom";
     svg_axes ax = {0};
     if (r->awin) {
         snprintf(title, sizeof title, "%s: %s-surface spectral function along the path", a->source, side);
-        ax = (svg_axes){title, "distance along the surface path (1/Angstrom)", "energy (eV)", "A(k,E) (1/eV)",
+        ax = (svg_axes){title, "surface path, k' (reduced) at the vertices", "energy (eV)", "A(k,E) (1/eV)",
                         r->xp[0], r->xp[r->nkp - 1] > r->xp[0] ? r->xp[r->nkp - 1] : r->xp[0] + 1, a->window[0], a->window[1],
-                        0, NULL, NULL};
+                        a->npath, xt, labp};
         return svg_heatmap_file(a->svg, r->nkp, r->ne, r->awin, &ax, 1, err);
     }
     if (r->map) {
@@ -464,9 +480,9 @@ static int write_svg(const slab *s, const slab_args *a, const slab_result *r, bs
         hi = fmax(hi, r->E[i]);
     }
     snprintf(title, sizeof title, "%s: slab bands, colour = top minus bottom weight", a->source);
-    ax = (svg_axes){title, "distance along the surface path (1/Angstrom)", "energy (eV)", "w_top - w_bottom",
+    ax = (svg_axes){title, "surface path, k' (reduced) at the vertices", "energy (eV)", "w_top - w_bottom",
                     r->xp[0], r->xp[r->nkp - 1] > r->xp[0] ? r->xp[r->nkp - 1] : r->xp[0] + 1, lo - 0.05 * (hi - lo + 1e-9),
-                    hi + 0.05 * (hi - lo + 1e-9), 0, NULL, NULL};
+                    hi + 0.05 * (hi - lo + 1e-9), a->npath, xt, labp};
     if (rc == 0) rc = svg_scatter_file(a->svg, (int)tot, x, r->E, c, &ax, err);
     free(x);
     free(c);

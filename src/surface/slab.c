@@ -158,8 +158,11 @@ static void inv_transpose(const int M[3][3], int T[3][3])
         }
 }
 
-/* The rebased bulk: R' = M^{-T} R shifted by the home-layer moves d (H~(R~)_mn = H(R)_mn with
- * R~ = R' - d_n + d_m, which keeps e^{2 pi i k.R} and so the spectrum in the lattice gauge). */
+/* The rebased bulk: R' = M^{-T} R, then orbital o moves into its home layer by d_o = -shift_o e_ax
+ * (tau~ = tau' + d_o), so that H~(R~)_mn = H(R)_mn with R~ = R' - d_n + d_m = R' + (shift_n -
+ * shift_m) e_ax. The bulk spectrum is the same for either sign (a diagonal unitary in the lattice
+ * gauge); only the slab's layer assignment tells them apart, which tests/scripts/surface_cli.py
+ * checks against numpy. */
 static int rebase(const tb_model *bulk, const int M[3][3], int ax, double cut, tb_model **out, bs_err *err)
 {
     int rc = tb_model_copy(bulk, out, err);
@@ -211,7 +214,7 @@ static int rebase(const tb_model *bulk, const int M[3][3], int ax, double cut, t
             for (int b = 0; b < n; b++) {
                 double complex h = bulk->H[(size_t)r * nn + (size_t)a * n + b] / bulk->deg[r];
                 if (h == 0) continue;
-                int off = shift[tb_state_orbital(bulk, a)] - shift[tb_state_orbital(bulk, b)];
+                int off = shift[tb_state_orbital(bulk, b)] - shift[tb_state_orbital(bulk, a)];
                 int *idx = &slot[off + 2 * dmax];
                 if (*idx < 0) {
                     int Rt[3] = {Rp[0], Rp[1], Rp[2]};

@@ -26,7 +26,20 @@ struct ss_ctx {
     double *kb;                 /* 3 nperp */
     /* Crossing workspace: energies and weight differences at the previous and current samples. */
     double *E0, *E1, *L0, *L1, *wt, *wb;
+    double complex *V0;         /* ns x ns eigenvectors at the previous sample */
+    int *match;                 /* 2 SS_MATCH_MARGIN + ns */
+    double *O;                  /* ns x ns overlaps */
 };
+
+/* States matched beyond those whose side of E_F changed: bands that cross E_F in opposite
+ * directions between two samples leave the counts below E_F unchanged, so a few neighbours on
+ * each side are followed as well. */
+#define SS_MATCH_MARGIN 4
+/* A state and its continuation overlap by ~1 - O(dk^2); below one half the samples are too coarse
+ * or the partner lies outside the window (common practice for band tracking). */
+#define SS_MATCH_MIN 0.5
+
+static int ns_match(int ns) { return ns + 2 * SS_MATCH_MARGIN; }
 
 void ss_opts_default(ss_opts *o) { memset(o, 0, sizeof *o); }
 
@@ -56,6 +69,9 @@ int ss_create(const slab *s, const ss_opts *opts, ss_ctx **out, bs_err *err)
     if (rc == 0) rc = eig_create(norb, &c->bulk_eig, err);
     if (rc == 0) {
         c->H = malloc(nn * sizeof *c->H);
+        c->V0 = malloc(nn * sizeof *c->V0);
+        c->O = malloc(nn * sizeof *c->O);
+        c->match = malloc(((size_t)ns_match(c->ns)) * sizeof *c->match);
         c->D = malloc(nn * sizeof *c->D);
         c->V = malloc(nn * sizeof *c->V);
         c->Dw = malloc((size_t)c->ns * sizeof *c->Dw);
@@ -65,7 +81,7 @@ int ss_create(const slab *s, const ss_opts *opts, ss_ctx **out, bs_err *err)
         double **arr[] = {&c->E0, &c->E1, &c->L0, &c->L1, &c->wt, &c->wb};
         int ok = 1;
         for (size_t i = 0; i < sizeof arr / sizeof arr[0]; i++) ok = ok && (*arr[i] = malloc((size_t)c->ns * sizeof(double)));
-        if (!ok || !c->H || !c->D || !c->V || !c->Dw || !c->Hb || !c->Eb || !c->kb)
+        if (!ok || !c->H || !c->V0 || !c->O || !c->match || !c->D || !c->V || !c->Dw || !c->Hb || !c->Eb || !c->kb)
             rc = bs_fail(err, BS_ENOMEM, "out of memory for surface states (%d slab states)", c->ns);
     }
     if (rc != 0) ss_free(c);
@@ -79,7 +95,7 @@ void ss_free(ss_ctx *c)
     eig_free(c->eig);
     eig_free(c->bulk_eig);
     hk_free(c->bulk);
-    void *p[] = {c->H, c->D, c->V, c->Dw, c->Hb, c->Eb, c->kb, c->E0, c->E1, c->L0, c->L1, c->wt, c->wb};
+    void *p[] = {c->V0, c->O, c->match, c->H, c->D, c->V, c->Dw, c->Hb, c->Eb, c->kb, c->E0, c->E1, c->L0, c->L1, c->wt, c->wb};
     for (size_t i = 0; i < sizeof p / sizeof p[0]; i++) free(p[i]);
     free(c);
 }
@@ -213,6 +229,36 @@ static int below(const double *E, int ns, double ef)
     return n;
 }
 
+/* Matches the states with indices lo..hi-1 at the current sample (eigenvectors in c->H) to those
+ * at the previous one (c->V0) by largest overlap |<u_b(k_j)|u_a(k_j+1)>|^2, greedily; match[a - lo]
+ * receives b. In the lattice gauge the Bloch vectors change continuously with k, and a top and a
+ * bottom state have almost no overlap, so two bands that cross each other between the samples
+ * (as the two edges of a ribbon do near E_F) are followed correctly, which sorted indices are not.
+ * Pairs overlapping by less than SS_MATCH_MIN stay unmatched (-1). */
+static void match_states(ss_ctx *c, int lo, int hi, int *match)
+{
+    int ns = c->ns, d = hi - lo;
+    double *O = c->O;
+    for (int a = 0; a < d; a++)
+        for (int b = 0; b < d; b++) {
+            double complex sum = 0;
+            const double complex *u = c->H + (size_t)(lo + a) * ns, *v = c->V0 + (size_t)(lo + b) * ns;
+            for (int x = 0; x < ns; x++) sum += conj(v[x]) * u[x];
+            O[a * d + b] = creal(sum) * creal(sum) + cimag(sum) * cimag(sum);
+        }
+    for (int a = 0; a < d; a++) match[a] = -1;
+    for (int step = 0; step < d; step++) {
+        int ba = -1, bb = -1;
+        double best = SS_MATCH_MIN;
+        for (int a = 0; a < d; a++)
+            for (int b = 0; b < d; b++)
+                if (O[a * d + b] > best) { best = O[a * d + b]; ba = a; bb = b; }
+        if (ba < 0) break;          /* the rest have no clear partner (window edges) */
+        match[ba] = lo + bb;
+        for (int x = 0; x < d; x++) { O[ba * d + x] = -2; O[x * d + bb] = -2; }
+    }
+}
+
 int ss_crossings(ss_ctx *c, const double ka[2], const double kb[2], double fermi_ev, int *n_top, int *n_bottom,
                  int *n_other, bs_err *err)
 {
@@ -223,18 +269,33 @@ int ss_crossings(ss_ctx *c, const double ka[2], const double kb[2], double fermi
         if (rc != 0) break;
         for (int i = 0; i < ns; i++) c->L1[i] = side_asymmetry(c->wt[i], c->wb[i]);
         if (j > 0) {
-            /* Sorted bands: the ones whose index lies between the two counts below E_F crossed. */
+            /* Only states near E_F can have crossed it: the index window around both counts,
+             * widened to whole degenerate levels in both samples. */
             int n0 = below(c->E0, ns, fermi_ev), n1 = below(c->E1, ns, fermi_ev);
-            int lo = n0 < n1 ? n0 : n1, hi = n0 < n1 ? n1 : n0;
-            for (int i = lo; i < hi; i++) {
-                double lam = 0.5 * (c->L0[i] + c->L1[i]);
+            int lo = (n0 < n1 ? n0 : n1) - SS_MATCH_MARGIN, hi = (n0 > n1 ? n0 : n1) + SS_MATCH_MARGIN;
+            if (lo < 0) lo = 0;
+            if (hi > ns) hi = ns;
+            double tol = c->o.deg_tol_ev;
+            while (lo > 0 && (c->E0[lo] - c->E0[lo - 1] < tol || c->E1[lo] - c->E1[lo - 1] < tol)) lo--;
+            while (hi < ns && (c->E0[hi] - c->E0[hi - 1] < tol || c->E1[hi] - c->E1[hi - 1] < tol)) hi++;
+            match_states(c, lo, hi, c->match);
+            int net = 0;
+            for (int a = lo; a < hi; a++) {
+                int b = c->match[a - lo];
+                if (b < 0 || (c->E0[b] < fermi_ev) == (c->E1[a] < fermi_ev)) continue;
+                net += c->E1[a] < fermi_ev ? 1 : -1;
+                double lam = 0.5 * (c->L0[b] + c->L1[a]);
                 if (lam > c->o.loc_min) top++;
                 else if (lam < -c->o.loc_min) bot++;
                 else other++;
             }
+            /* The followed crossings must account for the change of the count below E_F;
+             * what they miss is reported as unresolved. */
+            other += abs(n1 - n0 - net);
         }
         double *sw = c->E0; c->E0 = c->E1; c->E1 = sw;
         sw = c->L0; c->L0 = c->L1; c->L1 = sw;
+        memcpy(c->V0, c->H, (size_t)ns * ns * sizeof *c->V0);
     }
     *n_top = top;
     *n_bottom = bot;
