@@ -1,6 +1,7 @@
 -- bandsieve catalogue views. Re-created by every cat_open (CAT_RW), so a new program version
 -- brings its views to an old catalogue; documented in db/README.md.
 
+DROP VIEW IF EXISTS surfaces;
 DROP VIEW IF EXISTS top_spin_hall;
 DROP VIEW IF EXISTS failures;
 DROP VIEW IF EXISTS candidates;
@@ -145,3 +146,20 @@ FROM runs u
 LEFT JOIN results r ON r.run_id = u.run_id
 GROUP BY u.run_id
 ORDER BY u.run_id;
+
+-- surfaces: the surface evidence of `screen --surfaces` for each material's summary row: the plane,
+-- and the Fermi-level crossings of top- and bottom-surface states between the first two surface
+-- TRIMs (odd: the surface cannot be made trivial), from the stored diagnosis JSON.
+CREATE VIEW surfaces AS
+SELECT s.material_id,
+       s.class,
+       json_extract(r.diagnosis, '$.surface.direction') AS direction,
+       json_extract(r.diagnosis, '$.surface.layers') AS layers,
+       json_extract(r.diagnosis, '$.surface.crossings.top') AS crossings_top,
+       json_extract(r.diagnosis, '$.surface.crossings.bottom') AS crossings_bottom,
+       json_extract(r.diagnosis, '$.surface.crossings.top') % 2 = 1 AS odd_top,
+       json_extract(r.diagnosis, '$.surface.dirac_points_top') AS dirac_points_top,
+       s.run_id
+FROM summary s
+JOIN results r ON r.run_id = s.run_id AND r.material_id = s.material_id
+WHERE json_extract(r.diagnosis, '$.surface') IS NOT NULL;

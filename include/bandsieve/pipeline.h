@@ -36,6 +36,7 @@ typedef struct pl_opts {
     double material_seconds;    /* budget per material; over it the row is `timeout` (0: none) */
     double symmetry_tol;        /* see diag_opts (0: default) */
     int transport;              /* also anomalous and spin Hall conductivities (--transport) */
+    int surfaces;               /* also surface crossings of nontrivial insulators (--surfaces) */
     int rerun;                  /* start a new run instead of resuming */
     int batch_rows;             /* catalogue commit batch (0: default) */
     double batch_seconds;

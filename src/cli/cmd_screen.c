@@ -92,6 +92,8 @@ static void screen_help(FILE *out, int rescreen)
                  "                      (default 1e-6; ~1e-3 for fits that were not symmetrised)\n"
                  "  --transport         also the intrinsic anomalous and spin Hall conductivities\n"
                  "                      (catalogue columns ahc_*, shc_xy; view top_spin_hall)\n"
+                 "  --surfaces          for nontrivial insulators, also the Fermi-level crossings of\n"
+                 "                      surface states on a default plane (view surfaces)\n"
                  "  --batch N           commit the catalogue every N results (default 64) or 2 s\n"
                  "  --progress-every S  seconds between progress lines when stderr is not a terminal (30)\n"
                  "  -h, --help          this text\n\n"
@@ -106,7 +108,7 @@ static int screen_main(int argc, char **argv, int rescreen)
         {"max-seconds", required_argument, NULL, 't'}, {"material-seconds", required_argument, NULL, 'T'},
         {"rerun", no_argument, NULL, 'r'}, {"where", required_argument, NULL, 'w'},
         {"batch", required_argument, NULL, 'b'}, {"symmetry-tol", required_argument, NULL, 'y'},
-        {"transport", no_argument, NULL, 'A'}, {"progress-every", required_argument, NULL, 'p'},
+        {"transport", no_argument, NULL, 'A'}, {"surfaces", no_argument, NULL, 'S'}, {"progress-every", required_argument, NULL, 'p'},
         {"help", no_argument, NULL, 'h'}, {NULL, 0, NULL, 0}};
     const char *name = rescreen ? "bandsieve rescreen" : "bandsieve screen";
     pl_opts o;
@@ -124,6 +126,7 @@ static int screen_main(int argc, char **argv, int rescreen)
         case 'c': o.catalogue_path = optarg; break;
         case 'r': o.rerun = 1; break;
         case 'A': o.transport = 1; break;
+        case 'S': o.surfaces = 1; break;
         case 'w': o.where_sql = optarg; break;
         case 'm':
             if (cli_parse_int(optarg, 4, 4096, &v)) { fprintf(stderr, "%s: --mesh expects an integer 4..4096, got '%s'\n", name, optarg); return 2; }

@@ -103,6 +103,7 @@ static int settings_json(const pl_opts *o, char *buf, size_t len)
     cJSON_AddNumberToObject(s, "material_seconds", o->material_seconds);
     if (o->symmetry_tol > 0) cJSON_AddNumberToObject(s, "symmetry_tol", o->symmetry_tol);
     if (o->transport) cJSON_AddBoolToObject(s, "transport", 1);
+    if (o->surfaces) cJSON_AddBoolToObject(s, "surfaces", 1);
     if (o->where_sql) cJSON_AddStringToObject(s, "where", o->where_sql);
     char *text = cJSON_PrintUnformatted(s);
     cJSON_Delete(s);
@@ -356,7 +357,7 @@ static int run_worker(const pl_opts *o, MPI_Comm comm, int rank, bs_err *err)
         if (rc != 0) break;
         pl_outcome out;
         if (set) {
-            pl_task task = {o->mesh, o->symmetry_tol, o->transport};
+            pl_task task = {o->mesh, o->symmetry_tol, o->transport, o->surfaces};
             pl_compute(set, w.index, &task, w.max_seconds, rank, &out);
         } else {
             memset(&out, 0, sizeof out);
@@ -412,6 +413,7 @@ int pl_run(int *argc, char ***argv, const pl_opts *o, pl_counts *counts, int *is
     c.task.mesh = o->mesh;
     c.task.symmetry_tol = o->symmetry_tol;
     c.task.transport = o->transport;
+    c.task.surfaces = o->surfaces;
     if (rc == 0) rc = coord_setup(&c, size, hosts, err);
     int setup_ok = rc == 0;
     if (size > 1) {

@@ -11,6 +11,7 @@
 
 #include "bandsieve/diagnosis.h"
 #include "bandsieve/pipeline.h"
+#include "bandsieve/surfsummary.h"
 #include "bandsieve/transport.h"
 
 static const char *const CLASS_NAMES[] = {
@@ -78,6 +79,13 @@ int pl_work_list(const ms_set *set, const cat_ids *ids, const cat_ids *done, int
     return 0;
 }
 
+/* Classes whose invariants promise surface or edge states. */
+static int has_surface_states(const char *cls)
+{
+    return !strcmp(cls, "strong topological insulator") || !strcmp(cls, "weak topological insulator") ||
+           !strcmp(cls, "2D topological insulator") || !strcmp(cls, "Chern insulator");
+}
+
 static double seconds_now(void)
 {
     struct timespec t;
@@ -117,6 +125,14 @@ void pl_compute(const ms_set *set, int index, const pl_task *task, double max_se
                 rc = tr_compute(m, &to, &tr, &err);
                 if (rc == 0) diag_attach_transport(j, tr_to_json(&tr));
                 else bs_err_context(&err, "transport: ");
+            }
+            if (rc == 0 && task->surfaces && has_surface_states(r.cls)) {
+                int miller[3];
+                ssum_default_direction(m, miller);
+                ssum_result sr;
+                rc = ssum_compute(m, miller, 0, &sr, &err);
+                if (rc == 0) cJSON_AddItemToObject(j, "surface", ssum_to_json(&sr));
+                else bs_err_context(&err, "surface: ");
             }
             out->json = j && rc == 0 ? cJSON_PrintUnformatted(j) : NULL;
             cJSON_Delete(j);

@@ -33,6 +33,7 @@ typedef struct pl_task {
     int mesh;               /* 0: the diagnosis default */
     double symmetry_tol;    /* 0: the diagnosis default */
     int transport;          /* add anomalous and spin Hall conductivities */
+    int surfaces;           /* add the surface crossings of a default plane for nontrivial insulators */
 } pl_task;
 
 /* Reads entry `index` of set and diagnoses it as task says within max_seconds (0: no limit),

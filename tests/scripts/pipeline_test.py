@@ -197,5 +197,43 @@ def case_query_rescreen():
     print(f"ok: writes refused ({before} bytes unchanged in rows); rescreen of {len(want)} entries wins")
 
 
-{"ranks": case_ranks, "resume": case_resume, "broken": case_broken,
+def case_surfaces_transport():
+    """screen --surfaces --transport stores the extra evidence, and it obeys the published
+    correspondences: a 2D TI ribbon has an odd number of edge crossings per edge (Phys. Rev. Lett.
+    95, 226801 (2005)); a 2D Chern insulator has sigma_xy = C e^2/h (Phys. Rev. Lett. 49, 405
+    (1982)); with time reversal sigma_xy = 0 (common practice)."""
+    d = fresh("surfaces")
+    s = make_set(d, 24, seed=2026)
+    cat = os.path.join(d, "cat.sqlite")
+    run(screen_cmd(2, s, cat, "--surfaces", "--transport"))
+    con = sqlite3.connect(cat)
+    rows = con.execute("SELECT material_id, class, crossings_top, crossings_bottom FROM surfaces").fetchall()
+    want = {m for (m,) in con.execute("SELECT material_id FROM summary WHERE class IN ('strong topological "
+                                      "insulator', 'weak topological insulator', '2D topological insulator', "
+                                      "'Chern insulator')")}
+    hall = con.execute("SELECT s.material_id, s.class, r.chern, r.ahc_xy, r.time_reversal FROM summary s JOIN results r "
+                       "USING (run_id, material_id) WHERE s.status = 'ok' AND r.ahc_xy IS NOT NULL").fetchall()
+    con.close()
+    if {r[0] for r in rows} != want or not want:
+        fail(f"surfaces view rows {sorted(r[0] for r in rows)} != nontrivial insulators {sorted(want)}")
+    n2d = 0
+    for mid, cls, top, bottom in rows:
+        if cls == "2D topological insulator":
+            n2d += 1
+            if top % 2 != 1 or bottom % 2 != 1:
+                fail(f"{mid}: 2D TI ribbon with even edge crossings ({top}, {bottom})")
+    nchern = 0
+    for mid, cls, chern, ahc, tr in hall:
+        if cls == "Chern insulator" and chern is not None:
+            nchern += 1
+            # 1e-2 e^2/h: the adaptive integration's default tolerance is 1e-3 (transport.h).
+            if abs(ahc - chern) > 1e-2:
+                fail(f"{mid}: sigma_xy {ahc} e^2/h, Chern number {chern}")
+        if tr and cls != "metal" and abs(ahc) > 1e-2:
+            fail(f"{mid}: time-reversal-symmetric {cls} with sigma_xy {ahc}")
+    print(f"ok: {len(rows)} surface rows ({n2d} 2D TIs odd), {nchern} Chern insulators with sigma = C, "
+          f"{len(hall)} Hall values")
+
+
+{"ranks": case_ranks, "surfaces_transport": case_surfaces_transport, "resume": case_resume, "broken": case_broken,
  "query_rescreen": case_query_rescreen}[CASE]()
