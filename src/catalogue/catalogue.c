@@ -800,7 +800,7 @@ static int collect_ids(cat_db *cat, const char *sql, int64_t run_id, cat_ids *id
         cat_ids_clear(&acc.list);
         return rc;
     }
-    qsort(acc.list.id, acc.list.n, sizeof *acc.list.id, str_cmp);
+    if (acc.list.n > 1) qsort(acc.list.id, acc.list.n, sizeof *acc.list.id, str_cmp);
     size_t k = 0; /* drop duplicates (the same id selected twice) */
     for (size_t i = 0; i < acc.list.n; i++) {
         if (k > 0 && strcmp(acc.list.id[k - 1], acc.list.id[i]) == 0) free(acc.list.id[i]);
