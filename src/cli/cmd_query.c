@@ -24,7 +24,7 @@ static void query_usage(FILE *out)
             "(INSERT, UPDATE, DELETE, CREATE, DROP, ATTACH, BEGIN/COMMIT, PRAGMAs that set values)\n"
             "are refused.\n\n"
             "  --view NAME     a catalogue view: summary, candidates, failures, top_spin_hall,\n"
-            "                  run_progress\n"
+            "                  surfaces, run_progress\n"
             "  --format FMT    table (default; aligned columns, numbers right-aligned, NULL blank,\n"
             "                  long text cut at %d characters), csv (RFC 4180, NULL empty, header row)\n"
             "                  or json (a list of objects, NULL as null)\n"

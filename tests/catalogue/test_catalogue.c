@@ -198,7 +198,7 @@ static void test_schema_applies(void **state)
     dump d;
     q(cat, "SELECT name FROM sqlite_master WHERE type IN ('table', 'view') ORDER BY name", &d);
     assert_string_equal(d.text, "artifacts\ncandidates\nfailures\nmaterials\nnodes\nresults\nrun_progress\n"
-                                "run_sessions\nruns\nsummary\ntop_spin_hall\n");
+                                "run_sessions\nruns\nsummary\nsurfaces\ntop_spin_hall\n");
     close_ok(cat);
     /* WAL mode is a property of the file: a plain connection sees it. (cat_query refuses even
      * a bare "PRAGMA journal_mode", which sqlite3_stmt_readonly counts as a write.) */
@@ -1051,7 +1051,7 @@ static void test_cli_query(void **state)
     out[n] = '\0';
     st = pclose(p);
     assert_int_equal(WEXITSTATUS(st), 2);
-    assert_non_null(strstr(out, "views: candidates, failures, run_progress, summary, top_spin_hall"));
+    assert_non_null(strstr(out, "views: candidates, failures, run_progress, summary, surfaces, top_spin_hall"));
     tmp_remove(&t);
 }
 
