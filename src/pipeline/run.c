@@ -348,7 +348,14 @@ static int run_worker(const pl_opts *o, MPI_Comm comm, int rank, bs_err *err)
     rc = send_outcome(comm, 0, NULL, 0, err);
     while (rc == 0) {
         MPI_Status st;
-        rc = mpi_check(MPI_Probe(0, MPI_ANY_TAG, comm, &st), "MPI_Probe", err);
+        /* Poll and nap rather than MPI_Probe, which spins: with P = cores + 1 a spinning worker
+         * would take the core the coordinator needs to answer it. */
+        int flag = 0;
+        const struct timespec nap = {0, 200 * 1000};
+        while (rc == 0 && !flag) {
+            rc = mpi_check(MPI_Iprobe(0, MPI_ANY_TAG, comm, &flag, &st), "MPI_Iprobe", err);
+            if (rc == 0 && !flag) nanosleep(&nap, NULL);
+        }
         if (rc != 0) break;
         if (st.MPI_TAG == TAG_STOP) {
             rc = mpi_check(MPI_Recv(NULL, 0, MPI_BYTE, 0, TAG_STOP, comm, MPI_STATUS_IGNORE), "MPI_Recv of stop", err);
