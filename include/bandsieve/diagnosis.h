@@ -21,6 +21,8 @@ typedef struct diag_node {
 
 typedef struct diag_opts {
     int mesh;               /* base k-mesh per reduced direction (0: default) */
+    int mesh_factor;        /* when mesh is 0: the default mesh times this (0 or 1: the default);
+                               a rescreen uses 2 so that 2D and 3D entries are both refined */
     double max_seconds;     /* wall-clock budget for this material (0: none) */
     int want_flows;         /* keep Wannier-centre flows in the result (artifacts) */
     unsigned long long seed;/* for random verification points */

@@ -31,7 +31,8 @@ typedef struct pl_opts {
     const char *catalogue_path; /* catalogue (SQLite) */
     const char *kind;           /* "screen" or "rescreen" */
     const char *where_sql;      /* rescreen: condition on summary */
-    int mesh;                   /* 0: the diagnosis default */
+    int mesh;                   /* 0: the diagnosis default times mesh_factor */
+    int mesh_factor;            /* 0 or 1: the default mesh; rescreen without --mesh uses 2 */
     double max_seconds;         /* wall-clock budget of the whole job (0: none) */
     double material_seconds;    /* budget per material; over it the row is `timeout` (0: none) */
     double symmetry_tol;        /* see diag_opts (0: default) */

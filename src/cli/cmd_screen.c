@@ -76,7 +76,7 @@ static void screen_help(FILE *out, int rescreen)
                      "Reruns the materials whose row in the catalogue's summary view matches the condition,\n"
                      "as a new run at a higher resolution; summary then shows the more resolved result.\n\n"
                      "  --where COND        condition on the summary view, e.g. \"confidence < 0.7\"\n"
-                     "  --mesh N            k-mesh of the rerun (default 24 in 3D, 60 in 2D)\n");
+                     "  --mesh N            k-mesh of the rerun (default twice the screen's: 28 in 3D, 72 in 2D)\n");
     else
         fprintf(out, "usage: mpirun -n P bandsieve screen SET.h5 -c CAT.sqlite [options]\n\n"
                      "Diagnoses every material of the set into the catalogue. Rank 0 coordinates and writes\n"
@@ -158,7 +158,7 @@ static int screen_main(int argc, char **argv, int rescreen)
         fprintf(stderr, "%s: --where is required\n", name);
         return 2;
     }
-    if (rescreen && o.mesh == 0) o.mesh = 24;
+    if (rescreen && o.mesh == 0) o.mesh_factor = 2;
     o.set_path = argv[optind];
     char cmdline[2048] = "bandsieve";
     for (int i = 0; i < argc; i++) {

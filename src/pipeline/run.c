@@ -100,6 +100,7 @@ static int settings_json(const pl_opts *o, char *buf, size_t len)
 {
     cJSON *s = cJSON_CreateObject();
     cJSON_AddNumberToObject(s, "mesh", o->mesh);
+    if (o->mesh_factor > 1) cJSON_AddNumberToObject(s, "mesh_factor", o->mesh_factor);
     cJSON_AddNumberToObject(s, "material_seconds", o->material_seconds);
     if (o->symmetry_tol > 0) cJSON_AddNumberToObject(s, "symmetry_tol", o->symmetry_tol);
     if (o->transport) cJSON_AddBoolToObject(s, "transport", 1);
@@ -138,7 +139,7 @@ static int coord_setup(coord *c, int ranks, const char *hosts, bs_err *err)
     if (rc == 0 && resumed) rc = cat_done_ids(c->cat, c->run_id, &done, err);
     int nmissing = 0;
     if (rc == 0)
-        rc = pl_work_list(c->set, o->where_sql ? &sel : NULL, &done, o->mesh, &c->items, &c->nitems,
+        rc = pl_work_list(c->set, o->where_sql ? &sel : NULL, &done, o->mesh, o->mesh_factor, &c->items, &c->nitems,
                           &nmissing, err);
     c->counts.run_id = c->run_id;
     c->counts.resumed = resumed;
@@ -366,7 +367,7 @@ static int run_worker(const pl_opts *o, MPI_Comm comm, int rank, bs_err *err)
         if (rc != 0) break;
         pl_outcome out;
         if (set) {
-            pl_task task = {o->mesh, o->symmetry_tol, o->transport, o->surfaces};
+            pl_task task = {o->mesh, o->mesh_factor, o->symmetry_tol, o->transport, o->surfaces};
             pl_compute(set, w.index, &task, w.max_seconds, rank, &out);
         } else {
             memset(&out, 0, sizeof out);
@@ -420,6 +421,7 @@ int pl_run(int *argc, char ***argv, const pl_opts *o, pl_counts *counts, int *is
     c.comm = comm;
     c.t0 = now();
     c.task.mesh = o->mesh;
+    c.task.mesh_factor = o->mesh_factor;
     c.task.symmetry_tol = o->symmetry_tol;
     c.task.transport = o->transport;
     c.task.surfaces = o->surfaces;

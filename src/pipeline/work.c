@@ -41,7 +41,7 @@ static int by_cost_desc(const void *a, const void *b)
     return strcmp(x->id, y->id);
 }
 
-int pl_work_list(const ms_set *set, const cat_ids *ids, const cat_ids *done, int mesh,
+int pl_work_list(const ms_set *set, const cat_ids *ids, const cat_ids *done, int mesh, int mesh_factor,
                  pl_item **items, int *nitems, int *nmissing, bs_err *err)
 {
     *items = NULL;
@@ -60,7 +60,7 @@ int pl_work_list(const ms_set *set, const cat_ids *ids, const cat_ids *done, int
         if (ids && !cat_ids_contains(ids, e->id)) continue;
         if (done && cat_ids_contains(done, e->id)) continue;
         /* k-points scale as mesh^dim for the gap and node meshes, the dominant fixed cost. */
-        double m = mesh > 0 ? mesh : (e->dim == 2 ? 36 : 14);
+        double m = mesh > 0 ? mesh : (e->dim == 2 ? 36 : 14) * (mesh_factor > 1 ? mesh_factor : 1);
         keys[k].item.index = i;
         keys[k].item.cost = (e->cost > 0 ? e->cost : 1.0) * pow(m, e->dim > 0 ? e->dim : 3);
         keys[k].id = e->id;
@@ -108,6 +108,7 @@ void pl_compute(const ms_set *set, int index, const pl_task *task, double max_se
     if (rc == 0) {
         diag_opts o = {0};
         o.mesh = task->mesh;
+        o.mesh_factor = task->mesh_factor;
         o.max_seconds = max_seconds;
         o.want_flows = 1;
         o.seed = 1;

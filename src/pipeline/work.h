@@ -15,7 +15,7 @@ typedef struct pl_item {
 /* Entries of the set to do: all of them (ids NULL) or those listed in ids (rescreen), minus those
  * in done (may be NULL), largest estimated cost first (ties by id, so the order is reproducible).
  * *items is owned by the caller (free). *nmissing counts ids not found in the set. */
-int pl_work_list(const ms_set *set, const cat_ids *ids, const cat_ids *done, int mesh,
+int pl_work_list(const ms_set *set, const cat_ids *ids, const cat_ids *done, int mesh, int mesh_factor,
                  pl_item **items, int *nitems, int *nmissing, bs_err *err);
 
 /* The outcome of one material, as sent from a worker to the coordinator. */
@@ -30,7 +30,8 @@ typedef struct pl_outcome {
 
 /* What every material of a job gets computed with. */
 typedef struct pl_task {
-    int mesh;               /* 0: the diagnosis default */
+    int mesh;               /* 0: the diagnosis default times mesh_factor */
+    int mesh_factor;        /* 0 or 1: the default; 2 for a rescreen without --mesh */
     double symmetry_tol;    /* 0: the diagnosis default */
     int transport;          /* add anomalous and spin Hall conductivities */
     int surfaces;           /* add the surface crossings of a default plane for nontrivial insulators */

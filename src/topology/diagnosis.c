@@ -51,10 +51,13 @@ typedef struct diag_ctx {
     nodes_result nodes;
 } diag_ctx;
 
+static double m_default_mesh(const tb_model *m) { return m->dim == 2 ? 36.0 : 14.0; }
+
 static int default_mesh(const tb_model *m, const diag_opts *o)
 {
     if (o && o->mesh > 0) return o->mesh;
-    return m->dim == 2 ? 36 : 14;
+    int factor = o && o->mesh_factor > 1 ? o->mesh_factor : 1;
+    return factor * (m->dim == 2 ? 36 : 14);
 }
 
 static int run_symmetry(diag_ctx *c, diag_result *r, bs_err *err)
@@ -124,6 +127,13 @@ static int run_wcc(diag_ctx *c, diag_result *r, bs_err *err)
     wilson_opts_default(&wo);
     wo.deadline = c->deadline;
     if (r->mesh > wo.nk) wo.nk = r->mesh;
+    /* A finer mesh also buys a finer and longer bisection of the pumping parameter, so that a
+     * rescreen can resolve flows that the default left ambiguous near a transition. */
+    double scale = r->mesh / (m_default_mesh(c->m));
+    if (scale > 1) {
+        wo.min_spacing /= scale * scale;
+        wo.max_strings = (int)(wo.max_strings * scale);
+    }
     rc = wilson_z2_run(w, &wo, &wz, err);
     if (rc == 0) {
         r->nk_evaluated += wz.nk;
@@ -244,10 +254,18 @@ static void classify_gapless(diag_result *r, int degenerate)
     }
     int nweyl = 0;
     for (int i = 0; i < r->nnodes; i++) nweyl += r->nodes[i].chirality != 0;
-    if (r->dim == 3 && r->nnodes > 0 && nweyl == 0 && r->chirality_status == DIAG_DONE) {
-        set_class(r, "metal", 0.7, "the gap closes at %d points of zero chirality (Dirac points%s): a semimetal "
-                  "at a transition", r->nnodes, r->inversion && r->time_reversal ? "; inversion with time "
-                  "reversal keeps every band doubly degenerate, so no Weyl node can form" : "");
+    /* With inversion and time reversal the Berry curvature vanishes (or the bands are Kramers
+     * degenerate) at every k, so no Weyl node can exist (common practice). */
+    int weyl_forbidden = r->inversion && r->time_reversal;
+    if (r->dim == 3 && r->nnodes > 0 && nweyl == 0 && (r->chirality_status == DIAG_DONE || weyl_forbidden)) {
+        set_class(r, "metal", 0.5, "the gap closes at %d points of zero chirality (Dirac points%s): a semimetal, "
+                  "at a phase transition or protected", r->nnodes, weyl_forbidden ? "; inversion with time "
+                  "reversal forbids Weyl nodes" : "");
+        return;
+    }
+    if (r->dim == 3 && r->nnodes > 0 && nweyl == 0) {
+        set_class(r, "undetermined", 0.3, "the gap closes at %d points whose chirality could not be resolved",
+                  r->nnodes);
         return;
     }
     if (r->dim == 3 && r->nnodes > 0) {
@@ -265,7 +283,8 @@ static void classify_gapless(diag_result *r, int degenerate)
         return;
     }
     if (r->dim == 2 && r->nnodes > 0) {
-        set_class(r, "metal", 0.7, "the 2D gap closes at %d points (Dirac semimetal at this filling)", r->nnodes);
+        set_class(r, "metal", 0.5, "the 2D gap closes at %d points: a Dirac semimetal at this filling, at a phase "
+                  "transition or protected", r->nnodes);
         return;
     }
     if (r->gap_direct_ev < BS_GAP_CLOSED_EV) {
