@@ -1,6 +1,7 @@
 /* `bandsieve pack`: reads material cards and writes them into one material set. */
 #include <getopt.h>
 #include <stdio.h>
+#include <sys/stat.h>
 #include <string.h>
 
 #include "bandsieve/card.h"
@@ -10,7 +11,7 @@
 static void pack_help(FILE *out)
 {
     fprintf(out,
-            "usage: bandsieve pack -o SET.h5 [--keep-broken] [--description TEXT] [--invented] CARD.json ...\n\n"
+            "usage: bandsieve pack -o SET.h5 [--keep-broken] [--description TEXT] [--invented] [--force] CARD.json ...\n\n"
             "Reads each material card and its hopping table, validates it (hermiticity, counts,\n"
             "ranges) and stores it in the material set SET.h5 (HDF5; layout in db/material-set.md).\n"
             "A card that fails is reported on stderr with its message; then nothing is written and\n"
@@ -19,6 +20,7 @@ static void pack_help(FILE *out)
             "as invalid.\n\n"
             "  -o, --output SET.h5   the set to write (replaced only when packing succeeds)\n"
             "  --keep-broken         store failing cards as broken entries instead of failing\n"
+            "  --force               replace SET.h5 if it exists (never an input card)\n"
             "  --description TEXT    free-text description stored in the set\n"
             "  --invented            mark the set's data as invented (demonstration data)\n"
             "  -h, --help            this text\n");
@@ -89,10 +91,11 @@ int cmd_pack(int argc, char **argv)
                                          {"keep-broken", no_argument, NULL, 'k'},
                                          {"description", required_argument, NULL, 'd'},
                                          {"invented", no_argument, NULL, 'i'},
+                                         {"force", no_argument, NULL, 'f'},
                                          {"help", no_argument, NULL, 'h'},
                                          {NULL, 0, NULL, 0}};
     const char *output = NULL, *description = "";
-    int keep = 0, invented = 0, c;
+    int keep = 0, invented = 0, force = 0, c;
     optind = 1;
     while ((c = getopt_long(argc, argv, "o:h", opts, NULL)) != -1) {
         switch (c) {
@@ -100,6 +103,7 @@ int cmd_pack(int argc, char **argv)
         case 'k': keep = 1; break;
         case 'd': description = optarg; break;
         case 'i': invented = 1; break;
+        case 'f': force = 1; break;
         case 'h': pack_help(stdout); return 0;
         default: pack_help(stderr); return 2;
         }
@@ -108,6 +112,21 @@ int cmd_pack(int argc, char **argv)
         fprintf(stderr, "bandsieve pack: %s\n", !output ? "-o SET.h5 is required" : "no cards given");
         pack_help(stderr);
         return 2;
+    }
+    /* Never replace an input, and replace an existing file only when asked. */
+    struct stat out_st;
+    if (stat(output, &out_st) == 0) {
+        for (int i = optind; i < argc; i++) {
+            struct stat in_st;
+            if (stat(argv[i], &in_st) == 0 && in_st.st_dev == out_st.st_dev && in_st.st_ino == out_st.st_ino) {
+                fprintf(stderr, "bandsieve pack: output %s is also an input card\n", output);
+                return 2;
+            }
+        }
+        if (!force) {
+            fprintf(stderr, "bandsieve pack: %s exists; pass --force to replace it\n", output);
+            return 2;
+        }
     }
     bs_err err;
     bs_err_clear(&err);

@@ -9,6 +9,9 @@
 #include <stdlib.h>
 #include <string.h>
 #include <time.h>
+#include <errno.h>
+#include <fcntl.h>
+#include <sys/file.h>
 #include <unistd.h>
 
 #include <cjson/cJSON.h>
@@ -53,6 +56,7 @@ typedef struct coord {
     double last_tick;
     pl_task task;
     pl_counts counts;
+    int lock_fd;        /* CAT.sqlite.lock, held with flock for the whole job; -1 when none */
 } coord;
 
 static double now(void)
@@ -114,11 +118,32 @@ static int settings_json(const pl_opts *o, char *buf, size_t len)
     return 0;
 }
 
+/* One writing job per catalogue: a second screen on the same file would resume the same run and
+ * compute everything twice. An exclusive flock on CAT.sqlite.lock, held until the job ends, says
+ * so at once. File systems without flock (some parallel ones) get no protection, silently. */
+static int take_lock(coord *c, bs_err *err)
+{
+    char path[4096];
+    snprintf(path, sizeof path, "%s.lock", c->o->catalogue_path);
+    c->lock_fd = open(path, O_RDWR | O_CREAT | O_CLOEXEC, 0644);
+    if (c->lock_fd < 0) return bs_fail(err, BS_EIO, "%s: cannot create the lock file: %s", path, strerror(errno));
+    if (flock(c->lock_fd, LOCK_EX | LOCK_NB) != 0) {
+        int e = errno;
+        if (e == EWOULDBLOCK)
+            return bs_fail(err, BS_EIO, "%s is being written by another screen or rescreen (%s is locked); "
+                           "wait for it to finish", c->o->catalogue_path, path);
+        close(c->lock_fd);
+        c->lock_fd = -1;
+    }
+    return 0;
+}
+
 /* Opens set and catalogue, starts or resumes the run, builds the ordered work list. */
 static int coord_setup(coord *c, int ranks, const char *hosts, bs_err *err)
 {
     const pl_opts *o = c->o;
-    int rc = ms_open(o->set_path, &c->set, err);
+    int rc = take_lock(c, err);
+    if (rc == 0) rc = ms_open(o->set_path, &c->set, err);
     if (rc == 0) rc = cat_open(o->catalogue_path, CAT_RW, &c->cat, err);
     if (rc == 0 && (o->batch_rows > 0 || o->batch_seconds > 0))
         rc = cat_set_batch(c->cat, o->batch_rows > 0 ? o->batch_rows : CAT_BATCH_ROWS,
@@ -390,6 +415,7 @@ static void coord_clear(coord *c, bs_err *err)
     if (cat_close(c->cat, &close_err) != 0 && err->code == 0) *err = close_err;
     ms_free(c->set);
     free(c->items);
+    if (c->lock_fd >= 0) close(c->lock_fd);
 }
 
 int pl_run(int *argc, char ***argv, const pl_opts *o, pl_counts *counts, int *is_root, bs_err *err)
@@ -419,6 +445,7 @@ int pl_run(int *argc, char ***argv, const pl_opts *o, pl_counts *counts, int *is
     memset(&c, 0, sizeof c);
     c.o = o;
     c.comm = comm;
+    c.lock_fd = -1;
     c.t0 = now();
     c.task.mesh = o->mesh;
     c.task.mesh_factor = o->mesh_factor;
@@ -439,7 +466,7 @@ int pl_run(int *argc, char ***argv, const pl_opts *o, pl_counts *counts, int *is
         cat_run_status rs = rc != 0 ? CAT_RUN_FAILED : c.counts.interrupted ? CAT_RUN_INTERRUPTED : CAT_RUN_DONE;
         if (cat_run_end(c.cat, c.run_id, rs, &end_err) != 0 && rc == 0) { *err = end_err; rc = end_err.code; }
     }
-    coord_tick(&c, 1);
+    if (setup_ok) coord_tick(&c, 1);
     *counts = c.counts;
     coord_clear(&c, err);
     MPI_Finalize();

@@ -194,7 +194,20 @@ def case_query_rescreen():
     con.close()
     if not want or any(got[m] != 48 for m in want):
         fail(f"summary does not show the rescreened mesh for {sorted(want)}: {got}")
-    print(f"ok: writes refused ({before} bytes unchanged in rows); rescreen of {len(want)} entries wins")
+    # Without --mesh a rescreen doubles each dimension's default (3D: 14 -> 28), so it still wins.
+    con = sqlite3.connect(cat)
+    want3 = {row[0] for row in con.execute("SELECT material_id FROM summary s JOIN materials m USING (material_id) "
+                                           "WHERE m.dimension = 3 AND s.status = 'ok'")}
+    con.close()
+    run([BIN, "rescreen", s, "-c", cat, "--where",
+         "status = 'ok' AND material_id IN (SELECT material_id FROM materials WHERE dimension = 3)"])
+    con = sqlite3.connect(cat)
+    got = {row[0]: row[1] for row in con.execute("SELECT material_id, mesh FROM summary")}
+    con.close()
+    if not want3 or any(got[m] != 28 for m in want3):
+        fail(f"a rescreen without --mesh did not win for the 3D entries: {got}")
+    print(f"ok: writes refused ({before} bytes unchanged in rows); rescreens of {len(want)} and {len(want3)} "
+          "entries win")
 
 
 def case_surfaces_transport():
