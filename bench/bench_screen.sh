@@ -17,7 +17,7 @@ rate() {
   local ranks=$1 cat="$work/cat$1.sqlite"
   mpirun -n "$ranks" --oversubscribe "$bin" screen "$work/set.h5" -c "$cat" --mesh "$mesh" 2>"$work/log$1" >/dev/null || true
   local secs
-  secs=$(tail -1 "$work/log$1" | sed -E 's/.* ([0-9.]+) s$/\1/')
+  secs=$(grep -E "^bandsieve screen: run [0-9]+ (finished|interrupted)" "$work/log$1" | sed -E 's/.* ([0-9.]+) s$/\1/')
   awk -v n="$count" -v t="$secs" 'BEGIN { print n / t }'
 }
 r1=$(rate 2)

@@ -52,7 +52,7 @@ int card_read_opts(const char *path, int flags, tb_model **out, bs_err *err);
  * file names and HDF5 group names, hence the restricted alphabet. */
 int card_id_ok(const char *id);
 
-/* Writes m as <dir>/<id>.json with its table <dir>/<id>_hr.dat (the card names the table by its
+/* Writes m as <dir>/<id>.json with its table <dir>/<id>_hop.dat (the card names the table by its
  * relative name, so the folder can be moved). m is borrowed. The card's path is copied to
  * card_path (capacity cap) when card_path is not NULL. Errors: BS_EINVAL (bad id), BS_EIO. */
 int card_write(const tb_model *m, const char *dir, char *card_path, size_t cap, bs_err *err);

@@ -13,6 +13,11 @@
  * 6 decimals, so 1e-5 eV admits round-off and nothing else (common practice). */
 #define BS_HERMITIAN_TOL_EV 1e-5
 
+/* A hopping or on-site energy larger than this (eV) is refused as implausible: tight-binding
+ * elements of real materials are tens of eV at most, and sums of huge values lose the gaps to
+ * round-off (LAPACK fails on values near DBL_MAX). */
+#define BS_MAX_HOPPING_EV 1.0e4
+
 /* A gap below this (eV) counts as closed. */
 #define BS_GAP_CLOSED_EV 1e-4
 

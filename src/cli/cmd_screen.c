@@ -141,7 +141,11 @@ static int screen_main(int argc, char **argv, int rescreen)
             o.symmetry_tol = d;
             break;
         case 't': case 'T': case 'p':
-            if (cli_parse_double(optarg, &d) || d <= 0) { fprintf(stderr, "%s: option expects a positive number, got '%s'\n", name, optarg); return 2; }
+            if (cli_parse_double(optarg, &d) || d <= 0) {
+                fprintf(stderr, "%s: --%s expects a positive number, got '%s'\n", name,
+                        c == 't' ? "max-seconds" : c == 'T' ? "material-seconds" : "progress-every", optarg);
+                return 2;
+            }
             if (c == 't') o.max_seconds = d;
             else if (c == 'T') o.material_seconds = d;
             else ps.plain_every = d;

@@ -9,6 +9,7 @@
 #include <stdio.h>
 #include <stdlib.h>
 #include <string.h>
+#include <sys/stat.h>
 
 #include "bandsieve/config.h"
 #include "bandsieve/hopfile.h"
@@ -136,11 +137,13 @@ static int check_unknown_keys(const card_ctx *c, const cJSON *obj, const char *c
     for (const cJSON *e = obj->child; e; e = e->next) {
         int ok = 0;
         for (const char *const *k = allowed; *k && !ok; k++) ok = strcmp(*k, e->string) == 0;
-        if (!ok) {
-            char label[200];
-            snprintf(label, sizeof label, "%s%s", where, e->string);
-            return fail_key(c, BS_EPARSE, e->string, label, nth, "unknown key (misspelt?)");
-        }
+        char label[200];
+        snprintf(label, sizeof label, "%s%s", where, e->string);
+        if (!ok) return fail_key(c, BS_EPARSE, e->string, label, nth, "unknown key (misspelt?)");
+        /* JSON allows a repeated key and cJSON keeps the first: refuse it rather than guess. */
+        for (const cJSON *f = obj->child; f != e; f = f->next)
+            if (strcmp(f->string, e->string) == 0)
+                return fail_key(c, BS_EPARSE, e->string, label, nth + 1, "key given twice");
     }
     return 0;
 }
@@ -426,6 +429,9 @@ done:
 static int slurp(const char *path, char **text, bs_err *err)
 {
     *text = NULL;
+    struct stat st;
+    if (stat(path, &st) == 0 && !S_ISREG(st.st_mode))
+        return bs_fail(err, BS_EIO, "%s: not a regular file (a card is a JSON file)", path);
     FILE *fp = fopen(path, "rb");
     if (!fp) return bs_fail(err, BS_EIO, "%s: cannot open card: %s", path, strerror(errno));
     int rc = 0;
@@ -547,7 +553,7 @@ int card_write(const tb_model *m, const char *dir, char *card_path, size_t cap, 
 {
     if (!card_id_ok(m->id)) return bs_fail(err, BS_EINVAL, "cannot write a card for the id '%s'", m->id);
     char table[4096], card[4096], table_name[160];
-    snprintf(table_name, sizeof table_name, "%s_hr.dat", m->id);
+    snprintf(table_name, sizeof table_name, "%s_hop.dat", m->id);
     int nt = snprintf(table, sizeof table, "%s/%s", dir, table_name);
     int nc = snprintf(card, sizeof card, "%s/%s.json", dir, m->id);
     if (nt < 0 || nc < 0 || (size_t)nt >= sizeof table || (size_t)nc >= sizeof card)

@@ -167,6 +167,10 @@ int tb_model_validate(const tb_model *m, double tol_ev, const char *where, bs_er
                 if (!isfinite(creal(h)) || !isfinite(cimag(h)))
                     return bs_fail(err, BS_EINVAL, "%s: non-finite hopping at R = (%d,%d,%d), m = %d, n = %d",
                                    where, m->R[r][0], m->R[r][1], m->R[r][2], a + 1, b + 1);
+                if (cabs(h) > BS_MAX_HOPPING_EV)
+                    return bs_fail(err, BS_EINVAL, "%s: hopping of %.3g eV at R = (%d,%d,%d), m = %d, n = %d is "
+                                   "implausible (limit %g eV; wrong units?)", where, cabs(h), m->R[r][0],
+                                   m->R[r][1], m->R[r][2], a + 1, b + 1, BS_MAX_HOPPING_EV);
                 double complex hd = conj(Hm[(size_t)b * n + a]);
                 /* Compare H_R / deg_R: the weights of R and -R may differ only in a broken file. */
                 double d = cabs(h / m->deg[r] - hd / m->deg[rm]);

@@ -105,6 +105,8 @@ void pl_compute(const ms_set *set, int index, const pl_task *task, double max_se
     bs_err_clear(&err);
     tb_model *m = NULL;
     int rc = ms_read(set, index, &m, &err);
+    /* An entry whose HDF5 data cannot be read is bad input (a damaged set), not a failure of ours. */
+    if (rc == BS_EHDF5) rc = BS_EPARSE;
     if (rc == 0) {
         diag_opts o = {0};
         o.mesh = task->mesh;

@@ -147,21 +147,23 @@ static void expect_broken(const char *name, int code, const char *n1, const char
 static void test_broken_cards(void **state)
 {
     (void)state;
-    expect_broken("nonhermitian.json", BS_EINVAL, "nonhermitian.json", "nonhermitian_hr.dat: not Hermitian");
+    expect_broken("nonhermitian.json", BS_EINVAL, "nonhermitian.json", "nonhermitian_hop.dat: not Hermitian");
     expect_broken("missing_minus_R.json", BS_EINVAL, "missing_minus_R.json", "-R missing");
     expect_broken("missing_key.json", BS_EPARSE, "missing_key.json", "missing key 'occupied_bands'");
     expect_broken("mistyped_key.json", BS_EPARSE, "mistyped_key.json:5: key 'dimension'", "found a string");
     expect_broken("nocc_range.json", BS_EINVAL, "nocc_range.json:24: key 'occupied_bands'", "found 2");
-    expect_broken("spinful_odd.json", BS_EINVAL, "spinful_odd.json:23: key 'hoppings'", "odd3_hr.dat:2:");
-    expect_broken("missing_table.json", BS_EIO, "missing_table.json:23: key 'hoppings'", "no_such_table_hr.dat");
+    expect_broken("spinful_odd.json", BS_EINVAL, "spinful_odd.json:23: key 'hoppings'", "odd3_hop.dat:2:");
+    expect_broken("missing_table.json", BS_EIO, "missing_table.json:23: key 'hoppings'", "no_such_table_hop.dat");
     expect_broken("bad_json.json", BS_EPARSE, "bad_json.json:6:", "JSON syntax");
     expect_broken("orbital_count.json", BS_EINVAL, "orbital_count.json:26: key 'orbitals'", "has 2");
     expect_broken("bad_spin_layout.json", BS_EINVAL, "bad_spin_layout.json:47: key 'spin_layout'", "sideways");
     expect_broken("unknown_key.json", BS_EPARSE, "unknown_key.json:47: key 'ocupied_bands'", "unknown key");
+    /* Regression, review of 2026-12-02: a repeated key was accepted and the first one won. */
+    expect_broken("duplicate_key.json", BS_EPARSE, "duplicate_key.json:6: key 'dimension'", "given twice");
     expect_broken("inversion_shift.json", BS_EINVAL, "inversion_shift.json:51: key 'inversion[1]'", "shift");
     expect_broken("orbital_l.json", BS_EINVAL, "orbital_l.json:42: key 'orbitals[2].l'", "found 4");
     expect_broken("lattice_singular.json", BS_EINVAL, "lattice_singular.json:6: key 'lattice'", "dependent");
-    expect_broken("table_truncated.json", BS_EPARSE, "table_truncated.json:23:", "truncated_hr.dat:14:");
+    expect_broken("table_truncated.json", BS_EPARSE, "table_truncated.json:23:", "truncated_hop.dat:14:");
     expect_broken("no_such_card.json", BS_EIO, "no_such_card.json", "cannot open");
 }
 
@@ -195,7 +197,7 @@ static void test_ids_and_write_failures(void **state)
     bs_err_clear(&err);
     /* Fault injection: the output folder does not exist. */
     assert_int_equal(card_write(m, "/nonexistent-folder-bs", NULL, 0, &err), BS_EIO);
-    assert_non_null(strstr(err.msg, "/nonexistent-folder-bs/graphene_gap_hr.dat"));
+    assert_non_null(strstr(err.msg, "/nonexistent-folder-bs/graphene_gap_hop.dat"));
     bs_err_clear(&err);
     snprintf(m->id, sizeof m->id, "bad/id");
     assert_int_equal(card_write(m, tmpdir, NULL, 0, &err), BS_EINVAL);

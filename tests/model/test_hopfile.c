@@ -79,7 +79,7 @@ static void test_good_fixture(void **state)
     bs_err err;
     bs_err_clear(&err);
     tb_model *m = NULL;
-    assert_int_equal(hop_read(BS_TEST_DATA "/good/graphene_gap_hr.dat", 0, &m, &err), 0);
+    assert_int_equal(hop_read(BS_TEST_DATA "/good/graphene_gap_hop.dat", 0, &m, &err), 0);
     assert_int_equal(m->norb, 2);
     assert_int_equal(m->nR, 5);
     /* Values written into the fixture by hand (tests/data/good/README.md): exact decimals. */
@@ -95,7 +95,7 @@ static void test_good_fixture(void **state)
     tb_model_free(m);
 
     bs_err_clear(&err);
-    assert_int_equal(hop_read(BS_TEST_DATA "/good/graphene_spinful_hr.dat", 1, &m, &err), 0);
+    assert_int_equal(hop_read(BS_TEST_DATA "/good/graphene_spinful_hop.dat", 1, &m, &err), 0);
     assert_int_equal(m->norb, 4);
     assert_int_equal(m->nspatial, 2);
     assert_int_equal(m->deg[1], 2);
@@ -110,7 +110,7 @@ static void test_round_trip(void **state)
     bs_err err;
     bs_err_clear(&err);
     char path[320];
-    snprintf(path, sizeof path, "%s/rt_hr.dat", tmpdir);
+    snprintf(path, sizeof path, "%s/rt_hop.dat", tmpdir);
     tb_model *m = random_model(5, 33, 42), *back = NULL;
     assert_int_equal(hop_write(path, m, "round trip\nwith a newline", &err), 0);
     assert_int_equal(hop_read(path, 0, &back, &err), 0);
@@ -121,7 +121,7 @@ static void test_round_trip(void **state)
 
     bs_err_clear(&err);
     tb_model *g = NULL;
-    assert_int_equal(hop_read(BS_TEST_DATA "/good/graphene_spinful_hr.dat", 1, &g, &err), 0);
+    assert_int_equal(hop_read(BS_TEST_DATA "/good/graphene_spinful_hop.dat", 1, &g, &err), 0);
     assert_int_equal(hop_write(path, g, NULL, &err), 0);
     assert_int_equal(hop_read(path, 1, &back, &err), 0);
     expect_same_model(g, back);
@@ -134,7 +134,7 @@ static void test_round_trip(void **state)
 static void check_against_strtod(const char *fmt, uint64_t seed)
 {
     char path[320];
-    snprintf(path, sizeof path, "%s/fmt_hr.dat", tmpdir);
+    snprintf(path, sizeof path, "%s/fmt_hop.dat", tmpdir);
     int n = 4, nR = 25;
     tb_model *m = random_model(n, nR, seed);
     FILE *fp = fopen(path, "w");
@@ -196,19 +196,19 @@ static void expect_broken(const char *name, int spinful, int code, const char *w
 static void test_broken_tables(void **state)
 {
     (void)state;
-    expect_broken("truncated_hr.dat", 0, BS_EPARSE, "truncated_hr.dat:14:", "9 of 20");
-    expect_broken("nonnumeric_hr.dat", 0, BS_EPARSE, "nonnumeric_hr.dat:10:", "-2.7x0000");
-    expect_broken("weights_count_hr.dat", 0, BS_EPARSE, "weights_count_hr.dat:4:", "degeneracy");
-    expect_broken("extra_lines_hr.dat", 0, BS_EPARSE, "extra_lines_hr.dat:21:", "after the last");
-    expect_broken("index_range_hr.dat", 0, BS_EINVAL, "index_range_hr.dat:10:", "outside 1..2");
-    expect_broken("index_order_hr.dat", 0, BS_EPARSE, "index_order_hr.dat:9:", "out of order");
-    expect_broken("nan_hr.dat", 0, BS_EPARSE, "nan_hr.dat:18:", "not finite");
-    expect_broken("absurd_header_hr.dat", 0, BS_EINVAL, "absurd_header_hr.dat:2:", "2000000000");
-    expect_broken("field_count_hr.dat", 0, BS_EPARSE, "field_count_hr.dat:7:", "found 6");
-    expect_broken("deg_zero_hr.dat", 0, BS_EINVAL, "deg_zero_hr.dat:4:", "degeneracy weight 0");
-    expect_broken("duplicate_R_hr.dat", 0, BS_EINVAL, "duplicate_R_hr.dat:9:", "appears twice");
-    expect_broken("odd3_hr.dat", 1, BS_EINVAL, "odd3_hr.dat:2:", "even");
-    expect_broken("no_such_file_hr.dat", 0, BS_EIO, "no_such_file_hr.dat", "cannot open");
+    expect_broken("truncated_hop.dat", 0, BS_EPARSE, "truncated_hop.dat:14:", "9 of 20");
+    expect_broken("nonnumeric_hop.dat", 0, BS_EPARSE, "nonnumeric_hop.dat:10:", "-2.7x0000");
+    expect_broken("weights_count_hop.dat", 0, BS_EPARSE, "weights_count_hop.dat:4:", "degeneracy");
+    expect_broken("extra_lines_hop.dat", 0, BS_EPARSE, "extra_lines_hop.dat:21:", "after the last");
+    expect_broken("index_range_hop.dat", 0, BS_EINVAL, "index_range_hop.dat:10:", "outside 1..2");
+    expect_broken("index_order_hop.dat", 0, BS_EPARSE, "index_order_hop.dat:9:", "out of order");
+    expect_broken("nan_hop.dat", 0, BS_EPARSE, "nan_hop.dat:18:", "not finite");
+    expect_broken("absurd_header_hop.dat", 0, BS_EINVAL, "absurd_header_hop.dat:2:", "2000000000");
+    expect_broken("field_count_hop.dat", 0, BS_EPARSE, "field_count_hop.dat:7:", "found 6");
+    expect_broken("deg_zero_hop.dat", 0, BS_EINVAL, "deg_zero_hop.dat:4:", "degeneracy weight 0");
+    expect_broken("duplicate_R_hop.dat", 0, BS_EINVAL, "duplicate_R_hop.dat:9:", "appears twice");
+    expect_broken("odd3_hop.dat", 1, BS_EINVAL, "odd3_hop.dat:2:", "even");
+    expect_broken("no_such_file_hop.dat", 0, BS_EIO, "no_such_file_hop.dat", "cannot open");
 }
 
 /* Header sizes past config.h limits are refused before allocation, including their product. */
@@ -216,7 +216,7 @@ static void test_absurd_product(void **state)
 {
     (void)state;
     char path[320];
-    snprintf(path, sizeof path, "%s/product_hr.dat", tmpdir);
+    snprintf(path, sizeof path, "%s/product_hop.dat", tmpdir);
     FILE *fp = fopen(path, "w");
     assert_non_null(fp);
     fprintf(fp, "each size below its limit, the product above\n%d\n%d\n", BS_MAX_NORB, BS_MAX_NR);
@@ -225,20 +225,20 @@ static void test_absurd_product(void **state)
     bs_err_clear(&err);
     tb_model *m = NULL;
     assert_int_equal(hop_read(path, 0, &m, &err), BS_EINVAL);
-    assert_non_null(strstr(err.msg, "product_hr.dat:3:"));
+    assert_non_null(strstr(err.msg, "product_hop.dat:3:"));
 
     fp = fopen(path, "w");
     fprintf(fp, "comment\n99999999999999999999\n1\n");
     fclose(fp);
     bs_err_clear(&err);
     assert_int_equal(hop_read(path, 0, &m, &err), BS_EPARSE);
-    assert_non_null(strstr(err.msg, "product_hr.dat:2:"));
+    assert_non_null(strstr(err.msg, "product_hop.dat:2:"));
 
     fp = fopen(path, "w");
     fclose(fp);
     bs_err_clear(&err);
     assert_int_equal(hop_read(path, 0, &m, &err), BS_EPARSE);
-    assert_non_null(strstr(err.msg, "product_hr.dat:1:"));
+    assert_non_null(strstr(err.msg, "product_hop.dat:1:"));
 }
 
 /* Fault injection: an output folder that does not exist, and a device that is always full. */
@@ -248,8 +248,8 @@ static void test_write_failures(void **state)
     tb_model *m = random_model(3, 4, 7);
     bs_err err;
     bs_err_clear(&err);
-    assert_int_equal(hop_write("/nonexistent-folder-bs/x_hr.dat", m, NULL, &err), BS_EIO);
-    assert_non_null(strstr(err.msg, "/nonexistent-folder-bs/x_hr.dat"));
+    assert_int_equal(hop_write("/nonexistent-folder-bs/x_hop.dat", m, NULL, &err), BS_EIO);
+    assert_non_null(strstr(err.msg, "/nonexistent-folder-bs/x_hop.dat"));
     if (access("/dev/full", W_OK) == 0) {
         bs_err_clear(&err);
         assert_int_equal(hop_write("/dev/full", m, NULL, &err), BS_EIO);
