@@ -10,17 +10,29 @@ set -euo pipefail
 [ $# -ge 2 ] || { echo "usage: $0 OUT.sqlite PART.sqlite [PART.sqlite ...]" >&2; exit 2; }
 out=$1; shift
 outdir=$(dirname "$out")
+# Paths go into SQL string literals: double any single quote.
+sqlq() { printf "%s" "$1" | sed "s/'/''/g"; }
 for part in "$@"; do
   [ -f "$part" ] || { echo "merge: $part: no such catalogue" >&2; exit 1; }
   partdir=$(dirname "$part")
+  # Artifact files first: a name already taken by a different file would leave the index pointing
+  # at the wrong arrays, so that stops the merge before anything is written.
+  for f in $(sqlite3 "$part" "SELECT DISTINCT file FROM artifacts"); do
+    [ -f "$partdir/$f" ] || continue
+    if [ -e "$outdir/$f" ] && ! [ "$partdir/$f" -ef "$outdir/$f" ] && ! cmp -s "$partdir/$f" "$outdir/$f"; then
+      echo "merge: $outdir/$f exists and differs from $partdir/$f (two parts with the same catalogue name?);" \
+           "rename one part's catalogue and artifact files first" >&2
+      exit 1
+    fi
+  done
   if [ ! -f "$out" ]; then
-    sqlite3 "$part" "VACUUM INTO '$out'"
+    sqlite3 "$part" "VACUUM INTO '$(sqlq "$out")'"
   else
     vo=$(sqlite3 "$out" "PRAGMA user_version"); vp=$(sqlite3 "$part" "PRAGMA user_version")
     [ "$vo" = "$vp" ] || { echo "merge: $part has schema $vp, $out has $vo" >&2; exit 1; }
     sqlite3 "$out" <<SQL
 PRAGMA foreign_keys = OFF;
-ATTACH '$part' AS p;
+ATTACH '$(sqlq "$part")' AS p;
 BEGIN;
 CREATE TEMP TABLE off AS SELECT COALESCE(MAX(run_id), 0) AS n FROM main.runs;
 INSERT OR REPLACE INTO main.materials SELECT * FROM p.materials;
@@ -44,7 +56,8 @@ PRAGMA main.integrity_check;
 SQL
   fi
   for f in $(sqlite3 "$part" "SELECT DISTINCT file FROM artifacts"); do
-    [ -f "$partdir/$f" ] && [ "$partdir/$f" -ef "$outdir/$f" ] || cp -n "$partdir/$f" "$outdir/$f" 2>/dev/null || true
+    [ -f "$partdir/$f" ] || { echo "merge: warning: artifact $partdir/$f is missing" >&2; continue; }
+    [ "$partdir/$f" -ef "$outdir/$f" ] || [ -e "$outdir/$f" ] || cp "$partdir/$f" "$outdir/$f"
   done
   echo "merge: added $part" >&2
 done
