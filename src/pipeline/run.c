@@ -18,6 +18,7 @@
 
 #include "bandsieve/catalogue.h"
 #include "bandsieve/matset.h"
+#include "journal.h"
 #include "work.h"
 
 void openblas_set_num_threads(int num_threads);
@@ -57,7 +58,11 @@ typedef struct coord {
     pl_task task;
     pl_counts counts;
     int lock_fd;        /* CAT.sqlite.lock, held with flock for the whole job; -1 when none */
+    pl_journal *journal;/* CAT.sqlite.journal: hand-outs and outcomes */
 } coord;
+
+/* Sessions in which a material may take its worker down before it is given up as failed. */
+enum { PL_MAX_STRIKES = 2 };
 
 static double now(void)
 {
@@ -138,6 +143,32 @@ static int take_lock(coord *c, bs_err *err)
     return 0;
 }
 
+/* Materials that earlier sessions of this run handed out and never got back died with their job.
+ * One such loss is retried (the job may have been killed for another reason); after
+ * PL_MAX_STRIKES the material is recorded failed, so that it cannot take down every resume. */
+static int give_up_lost(coord *c, const char *jpath, bs_err *err)
+{
+    char **ids = NULL;
+    int *strikes = NULL, n = 0;
+    int rc = pl_journal_lost(jpath, c->run_id, &ids, &strikes, &n, err);
+    cat_ids done;
+    cat_ids_init(&done);
+    if (rc == 0 && n > 0) rc = cat_done_ids(c->cat, c->run_id, &done, err);
+    for (int i = 0; rc == 0 && i < n; i++) {
+        if (strikes[i] < PL_MAX_STRIKES || cat_ids_contains(&done, ids[i])) continue;
+        char msg[256];
+        snprintf(msg, sizeof msg, "its job died while it was being computed in %d sessions (a worker crash or "
+                 "a kill); not retried again (screen --rerun tries it in a new run)", strikes[i]);
+        rc = cat_result_put_text(c->cat, c->run_id, ids[i], CAT_RES_FAILED, msg, NULL, 0, -1, 0.0, err);
+    }
+    if (rc == 0) rc = cat_flush(c->cat, err);
+    for (int i = 0; i < n; i++) free(ids[i]);
+    free(ids);
+    free(strikes);
+    cat_ids_clear(&done);
+    return rc;
+}
+
 /* Opens set and catalogue, starts or resumes the run, builds the ordered work list. */
 static int coord_setup(coord *c, int ranks, const char *hosts, bs_err *err)
 {
@@ -161,7 +192,11 @@ static int coord_setup(coord *c, int ranks, const char *hosts, bs_err *err)
         if (o->rerun) rc = cat_run_begin(c->cat, &info, &c->run_id, err);
         else rc = cat_run_resume(c->cat, &info, &c->run_id, &resumed, err);
     }
+    char jpath[4096];
+    snprintf(jpath, sizeof jpath, "%s.journal", o->catalogue_path);
+    if (rc == 0 && resumed) rc = give_up_lost(c, jpath, err);
     if (rc == 0 && resumed) rc = cat_done_ids(c->cat, c->run_id, &done, err);
+    if (rc == 0) rc = pl_journal_open(jpath, c->run_id, &c->journal, err);
     int nmissing = 0;
     if (rc == 0)
         rc = pl_work_list(c->set, o->where_sql ? &sel : NULL, &done, o->mesh, o->mesh_factor, &c->items, &c->nitems,
@@ -185,6 +220,9 @@ static int coord_setup(coord *c, int ranks, const char *hosts, bs_err *err)
  * resumed run does that material again. */
 static int coord_record(coord *c, const pl_outcome *out, int job_limited, bs_err *err)
 {
+    bs_err jerr;
+    bs_err_clear(&jerr);
+    if (c->journal) pl_journal_received(c->journal, out->id, &jerr);
     if (out->code == BS_ETIMEOUT && job_limited) {
         c->counts.interrupted = 1;
         return 0;
@@ -234,6 +272,10 @@ static int coord_next(coord *c, wire_work *w)
     double left = o->max_seconds > 0 ? o->max_seconds - (now() - c->t0) : 0;
     if (o->max_seconds > 0 && left <= 0.5) { c->counts.interrupted = 1; return 0; }
     w->index = c->items[c->next++].index;
+    bs_err jerr;
+    bs_err_clear(&jerr);
+    /* A journal that cannot be written loses only the crash bookkeeping, not results. */
+    if (c->journal) pl_journal_handed(c->journal, ms_entry_at(c->set, w->index)->id, &jerr);
     w->max_seconds = o->material_seconds;
     w->job_limited = 0;
     if (o->max_seconds > 0 && (w->max_seconds <= 0 || left < w->max_seconds)) {
@@ -415,6 +457,7 @@ static void coord_clear(coord *c, bs_err *err)
     if (cat_close(c->cat, &close_err) != 0 && err->code == 0) *err = close_err;
     ms_free(c->set);
     free(c->items);
+    pl_journal_close(c->journal);
     if (c->lock_fd >= 0) close(c->lock_fd);
 }
 

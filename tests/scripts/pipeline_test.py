@@ -210,6 +210,57 @@ def case_query_rescreen():
           "entries win")
 
 
+def kill_part_way(cmd, cat, rows):
+    p = subprocess.Popen(cmd, env=ENV, stdout=subprocess.DEVNULL, stderr=subprocess.DEVNULL, start_new_session=True)
+    deadline = time.time() + 120
+    while time.time() < deadline and p.poll() is None:
+        time.sleep(0.2)
+        try:
+            con = sqlite3.connect(f"file:{cat}?mode=ro", uri=True, timeout=1)
+            n = con.execute("SELECT COUNT(*) FROM results").fetchone()[0]
+            con.close()
+        except sqlite3.Error:
+            continue
+        if n >= rows:
+            break
+    if p.poll() is not None:
+        fail("screen finished before it could be killed")
+    os.killpg(p.pid, signal.SIGKILL)
+    subprocess.run(["pkill", "-KILL", "-f", cat])
+    p.wait()
+
+
+def case_crash_journal():
+    """A material that was in flight when its job died in two sessions is recorded failed on the
+    next resume (it would otherwise take every resume down); one loss is retried."""
+    d = fresh("journal")
+    s = make_set(d, 60, seed=11)
+    cat = os.path.join(d, "cat.sqlite")
+    kill_part_way(screen_cmd(1, s, cat, "--mesh", "20", "--batch", "4"), cat, 8)
+    con = sqlite3.connect(cat)
+    done = {m for (m,) in con.execute("SELECT material_id FROM results")}
+    run_id = con.execute("SELECT MAX(run_id) FROM runs").fetchone()[0]
+    con.close()
+    ids = [f"JQ-{i:04d}" for i in range(1, 61) if f"JQ-{i:04d}" not in done]
+    twice, once = ids[-1], ids[-2]
+    # Two earlier sessions that died with `twice` in flight, one with `once` (what a worker crash
+    # under MPI leaves in the journal: handed out, never received).
+    with open(cat + ".journal", "a") as j:
+        j.write(f"H {run_id} crashed.1 {twice}\nH {run_id} crashed.1 {once}\nH {run_id} crashed.2 {twice}\n")
+    run(screen_cmd(1, s, cat, "--mesh", "20"))
+    con = sqlite3.connect(cat)
+    st = dict(con.execute("SELECT material_id, status FROM results").fetchall())
+    msg = con.execute("SELECT message FROM results WHERE material_id = ?", (twice,)).fetchone()[0]
+    con.close()
+    if len(st) != 60:
+        fail(f"{len(st)} rows after resume, want 60")
+    if st[twice] != "failed" or "died" not in (msg or ""):
+        fail(f"{twice} lost in two sessions: status {st[twice]}, message {msg!r}")
+    if st[once] == "failed":
+        fail(f"{once} lost once was not retried")
+    print(f"ok: {twice} (lost twice) recorded failed, {once} (lost once) retried: {st[once]}")
+
+
 def case_surfaces_transport():
     """screen --surfaces --transport stores the extra evidence, and it obeys the published
     correspondences: a 2D TI ribbon has an odd number of edge crossings per edge (Phys. Rev. Lett.
@@ -248,5 +299,5 @@ def case_surfaces_transport():
           f"{len(hall)} Hall values")
 
 
-{"ranks": case_ranks, "surfaces_transport": case_surfaces_transport, "resume": case_resume, "broken": case_broken,
+{"ranks": case_ranks, "crash_journal": case_crash_journal, "surfaces_transport": case_surfaces_transport, "resume": case_resume, "broken": case_broken,
  "query_rescreen": case_query_rescreen}[CASE]()

@@ -1,0 +1,127 @@
+/* The hand-out journal (see journal.h). Lines: "H <run> <session> <id>" when a material is handed
+ * out, "R <run> <session> <id>" when its outcome arrives. */
+#include "journal.h"
+
+#include <errno.h>
+#include <stdlib.h>
+#include <string.h>
+#include <time.h>
+#include <unistd.h>
+
+struct pl_journal {
+    FILE *fp;
+    int64_t run_id;
+    char session[64];
+};
+
+int pl_journal_open(const char *path, int64_t run_id, pl_journal **out, bs_err *err)
+{
+    *out = NULL;
+    pl_journal *j = calloc(1, sizeof *j);
+    if (!j) return bs_fail(err, BS_ENOMEM, "out of memory for the journal");
+    j->fp = fopen(path, "a");
+    if (!j->fp) {
+        free(j);
+        return bs_fail(err, BS_EIO, "%s: cannot open the hand-out journal: %s", path, strerror(errno));
+    }
+    struct timespec t;
+    clock_gettime(CLOCK_REALTIME, &t);
+    /* Unique enough: a job's start time in nanoseconds and its process id. */
+    snprintf(j->session, sizeof j->session, "%lld.%09ld.%ld", (long long)t.tv_sec, t.tv_nsec, (long)getpid());
+    j->run_id = run_id;
+    *out = j;
+    return 0;
+}
+
+static int journal_line(pl_journal *j, char kind, const char *id, bs_err *err)
+{
+    if (fprintf(j->fp, "%c %lld %s %s\n", kind, (long long)j->run_id, j->session, id) < 0 || fflush(j->fp) != 0)
+        return bs_fail(err, BS_EIO, "cannot write the hand-out journal: %s", strerror(errno));
+    return 0;
+}
+
+int pl_journal_handed(pl_journal *j, const char *id, bs_err *err) { return journal_line(j, 'H', id, err); }
+int pl_journal_received(pl_journal *j, const char *id, bs_err *err) { return journal_line(j, 'R', id, err); }
+
+void pl_journal_close(pl_journal *j)
+{
+    if (!j) return;
+    fclose(j->fp);
+    free(j);
+}
+
+/* One (session, id) pair still open. */
+typedef struct open_pair {
+    char session[64];
+    char id[128];
+} open_pair;
+
+typedef struct pair_list {
+    open_pair *p;
+    int n, cap;
+} pair_list;
+
+static int pair_find(const pair_list *l, const char *session, const char *id)
+{
+    for (int i = l->n - 1; i >= 0; i--)
+        if (!strcmp(l->p[i].id, id) && !strcmp(l->p[i].session, session)) return i;
+    return -1;
+}
+
+int pl_journal_lost(const char *path, int64_t run_id, char ***ids, int **strikes, int *n, bs_err *err)
+{
+    *ids = NULL;
+    *strikes = NULL;
+    *n = 0;
+    FILE *fp = fopen(path, "r");
+    if (!fp) return errno == ENOENT ? 0 : bs_fail(err, BS_EIO, "%s: cannot read the journal: %s", path, strerror(errno));
+    pair_list open = {0};
+    char line[512];
+    int rc = 0;
+    while (rc == 0 && fgets(line, sizeof line, fp)) {
+        char kind, session[64], id[128];
+        long long run;
+        if (sscanf(line, "%c %lld %63s %127s", &kind, &run, session, id) != 4 || run != run_id) continue;
+        int at = pair_find(&open, session, id);
+        if (kind == 'H' && at < 0) {
+            if (open.n == open.cap) {
+                int cap = open.cap ? 2 * open.cap : 64;
+                open_pair *p = realloc(open.p, (size_t)cap * sizeof *p);
+                if (!p) { rc = bs_fail(err, BS_ENOMEM, "out of memory reading the journal"); break; }
+                open.p = p;
+                open.cap = cap;
+            }
+            snprintf(open.p[open.n].session, sizeof open.p[open.n].session, "%s", session);
+            snprintf(open.p[open.n].id, sizeof open.p[open.n].id, "%s", id);
+            open.n++;
+        } else if (kind == 'R' && at >= 0) {
+            open.p[at] = open.p[--open.n];
+        }
+    }
+    fclose(fp);
+    /* Count, per id, the sessions that left it open. */
+    char **out_ids = rc == 0 ? calloc((size_t)open.n + 1, sizeof *out_ids) : NULL;
+    int *out_strikes = rc == 0 ? calloc((size_t)open.n + 1, sizeof *out_strikes) : NULL;
+    if (rc == 0 && (!out_ids || !out_strikes)) rc = bs_fail(err, BS_ENOMEM, "out of memory reading the journal");
+    int k = 0;
+    for (int i = 0; rc == 0 && i < open.n; i++) {
+        int found = -1;
+        for (int q = 0; q < k && found < 0; q++)
+            if (!strcmp(out_ids[q], open.p[i].id)) found = q;
+        if (found >= 0) { out_strikes[found]++; continue; }
+        out_ids[k] = strdup(open.p[i].id);
+        if (!out_ids[k]) { rc = bs_fail(err, BS_ENOMEM, "out of memory reading the journal"); break; }
+        out_strikes[k++] = 1;
+    }
+    free(open.p);
+    if (rc != 0) {
+        for (int q = 0; q < k; q++) free(out_ids[q]);
+        free(out_ids);
+        free(out_strikes);
+        return rc;
+    }
+    *ids = out_ids;
+    *strikes = out_strikes;
+    *n = k;
+    return 0;
+}
