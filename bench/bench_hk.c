@@ -77,6 +77,25 @@ static tb_model *make_model(int norb, int npairs, uint64_t seed)
     return m;
 }
 
+/* Diagonalises the nb matrices of H (copied into A first) and returns the seconds taken. */
+static double time_diag(eig_ws *ws, const double complex *H, int nb, int norb, double complex *A, double *w)
+{
+    size_t nn = (size_t)norb * norb;
+    bs_err err;
+    bs_err_clear(&err);
+    double t0 = now();
+    for (int j = 0; j < nb; j++) {
+        memcpy(A, H + j * nn, nn * sizeof *A);
+        eig_vectors(ws, A, w, &err);
+    }
+    return now() - t0;
+}
+
+/* Each mode builds batches of k-points and diagonalises exactly the matrices it built, so the
+ * ratio (build + diagonalise) / diagonalise compares like with like (divide-and-conquer cost
+ * depends a little on the spectrum). Modes: random k (one DGEMM per batch), strings of `batch`
+ * points sharing a plane (a Wilson-loop family, through the line cache), strings each on its own
+ * plane (worst case for the cache), and the direct complex sum over R. Best of three rounds. */
 static void bench(int norb, int nk)
 {
     const int npairs = 500, batch = 32;
@@ -85,93 +104,47 @@ static void bench(int norb, int nk)
     bs_err_clear(&err);
     hk_engine *hk = NULL;
     eig_ws *ws = NULL;
-    if (hk_create(m, batch, &hk, &err) || eig_create(norb, &ws, &err)) { fprintf(stderr, "%s\n", err.msg); exit(1); }
-    size_t nn = (size_t)norb * norb;
-    double complex *H = malloc(batch * nn * sizeof *H), *A = malloc(nn * sizeof *A);
-    double complex *Hsaved = malloc(batch * nn * sizeof *H);
-    double *w = malloc(norb * sizeof *w), *k = malloc(3 * (size_t)nk * sizeof *k);
-    uint64_t seed = 7;
-    for (int i = 0; i < 3 * nk; i++) k[i] = uniform(&seed);
-    hk_build(hk, batch, k, Hsaved, &err);
-
-    /* Three rounds, each mode's best time: the machine is shared, and the minimum is the least
-     * disturbed measurement of each. */
-    double t_diag = 1e30, t_fold = 1e30, t_line = 1e30, t_family = 1e30;
-    hk_engine *plane = NULL, *line = NULL;
     hk_lines *lines = NULL;
-    double *ks = NULL;
-    for (int round = 0; round < 3; round++) {
-    /* Bare diagonalisation: the same matrices, copied in (the copy is part of any use). */
-    double t0 = now();
-    for (int j = 0; j < nk; j++) {
-        memcpy(A, Hsaved + (j % batch) * nn, nn * sizeof *A);
-        eig_vectors(ws, A, w, &err);
-    }
-    double t_diag_r = (now() - t0) / nk;
-
-    t0 = now();
-    for (int j0 = 0; j0 < nk; j0 += batch) {
-        int nb = nk - j0 < batch ? nk - j0 : batch;
-        hk_build(hk, nb, k + 3 * j0, H, &err);
-        for (int j = 0; j < nb; j++) eig_vectors(ws, H + j * nn, w, &err);
-    }
-    double t_fold_r = (now() - t0) / nk;
-
-    /* Strings of `batch` points along k2 (a Wilson-loop string or a mesh row): each string re-reduces
-     * both fixed axes (the worst case: every string on its own plane), then builds its points. */
-    plane = NULL; line = NULL;
-    if (hk_reduce(hk, 2, 0.0, batch, &plane, &err) || hk_reduce(plane, 0, 0.0, batch, &line, &err)) {
+    if (hk_create(m, batch, &hk, &err) || eig_create(norb, &ws, &err) || hk_lines_create(hk, &lines, &err)) {
         fprintf(stderr, "%s\n", err.msg);
         exit(1);
     }
-    ks = malloc(3 * (size_t)batch * sizeof *ks);
-    t0 = now();
-    int nstring = nk / batch;
-    for (int s = 0; s < nstring; s++) {
-        double k1 = k[3 * s], k3 = k[3 * s + 2];
-        hk_rereduce(plane, hk, k3, &err);
-        hk_rereduce(line, plane, k1, &err);
-        for (int j = 0; j < batch; j++) { ks[3 * j] = k1; ks[3 * j + 1] = (double)j / batch; ks[3 * j + 2] = k3; }
-        hk_build(line, batch, ks, H, &err);
-        for (int j = 0; j < batch; j++) eig_vectors(ws, H + j * nn, w, &err);
-    }
-    double t_line_r = (now() - t0) / (nstring * batch);
-
-    /* A family of strings on one plane (k3 fixed, strings along k2 at varying k1), through the
-     * line cache that the Wilson-loop and Chern code use. */
-    lines = NULL;
-    if (hk_lines_create(hk, &lines, &err)) { fprintf(stderr, "%s\n", err.msg); exit(1); }
-    t0 = now();
-    for (int s = 0; s < nstring; s++) {
-        for (int j = 0; j < batch; j++) { ks[3 * j] = (double)s / nstring; ks[3 * j + 1] = (double)j / batch; ks[3 * j + 2] = 0.25; }
-        hk_lines_build(lines, batch, ks, H, &err);
-        for (int j = 0; j < batch; j++) eig_vectors(ws, H + j * nn, w, &err);
-    }
-    double t_family_r = (now() - t0) / (nstring * batch);
-    hk_lines_free(lines);
-    free(ks);
-    hk_free(line);
-    hk_free(plane);
-    plane = line = NULL;
-
-        if (t_diag_r < t_diag) t_diag = t_diag_r;
-        if (t_fold_r < t_fold) t_fold = t_fold_r;
-        if (t_line_r < t_line) t_line = t_line_r;
-        if (t_family_r < t_family) t_family = t_family_r;
-    }
-    int nk_direct = nk < 64 ? nk : 64;
-    double t0 = now();
-    for (int j = 0; j < nk_direct; j++) {
-        hk_build_direct(m, k + 3 * j, A);
-        eig_vectors(ws, A, w, &err);
-    }
-    double t_direct = (now() - t0) / nk_direct;
-
-    printf("n = %3d  N_R = %d  diag %8.1f us/k | ratios to diag: random k batched %.2f, "
-           "strings of %d: on one plane %.2f, each on its own plane %.2f; direct sum %.2f\n",
-           norb, m->nR, 1e6 * t_diag, t_fold / t_diag, batch, t_family / t_diag, t_line / t_diag, t_direct / t_diag);
+    size_t nn = (size_t)norb * norb;
+    double complex *H = malloc(batch * nn * sizeof *H), *A = malloc(nn * sizeof *A);
+    double *w = malloc(norb * sizeof *w), *k = malloc(3 * (size_t)batch * sizeof *k);
+    int nbatch = nk / batch;
+    double build[4] = {1e30, 1e30, 1e30, 1e30}, diag[4] = {1e30, 1e30, 1e30, 1e30};
+    uint64_t seed = 7;
+    for (int round = 0; round < 3; round++)
+        for (int mode = 0; mode < 4; mode++) {
+            double tb = 0, td = 0;
+            int nb_mode = mode == 3 ? (nbatch < 2 ? nbatch : 2) : nbatch;
+            for (int b = 0; b < nb_mode; b++) {
+                double u = uniform(&seed), v = uniform(&seed);
+                for (int j = 0; j < batch; j++) {
+                    double t = (double)j / batch;
+                    if (mode == 0 || mode == 3) for (int d = 0; d < 3; d++) k[3 * j + d] = uniform(&seed);
+                    else if (mode == 1) { k[3 * j] = (double)b / nbatch; k[3 * j + 1] = t; k[3 * j + 2] = 0.25; }
+                    else { k[3 * j] = u; k[3 * j + 1] = t; k[3 * j + 2] = v; }
+                }
+                double t0 = now();
+                if (mode == 0) hk_build(hk, batch, k, H, &err);
+                else if (mode == 3) for (int j = 0; j < batch; j++) hk_build_direct(m, k + 3 * j, H + j * nn);
+                else hk_lines_build(lines, batch, k, H, &err);
+                tb += now() - t0;
+                td += time_diag(ws, H, batch, norb, A, w);
+            }
+            int npts = nb_mode * batch;
+            if (tb / npts < build[mode]) build[mode] = tb / npts;
+            if (td / npts < diag[mode]) diag[mode] = td / npts;
+        }
+    printf("n = %3d  N_R = %d  diag %8.1f us/k | (H(k) + diag) / diag: random k %.2f, strings on one plane "
+           "%.2f, strings each on its own plane %.2f, direct sum %.2f\n",
+           norb, m->nR, 1e6 * diag[0], 1 + build[0] / diag[0], 1 + build[1] / diag[1], 1 + build[2] / diag[2],
+           1 + build[3] / diag[3]);
     fflush(stdout);
-    free(H); free(A); free(Hsaved); free(w); free(k);
+    free(H); free(A); free(w); free(k);
+    hk_lines_free(lines);
     eig_free(ws);
     hk_free(hk);
     tb_model_free(m);
@@ -188,7 +161,7 @@ int main(int argc, char **argv)
     printf("# cost per k-point relative to the bare zheevd (values and vectors), one thread\n");
     for (int i = 0; i < ns; i++) {
         int n = sizes[i];
-        int nk = n <= 16 ? 4096 : n <= 64 ? 512 : 64;
+        int nk = n <= 16 ? 4096 : n <= 64 ? 512 : 128;
         bench(n, nk);
     }
     return 0;
