@@ -18,6 +18,7 @@
 struct bp_eval {
     const tb_model *m;
     hk_engine *hk;
+    hk_lines *lines;    /* partial sums for batches along mesh rows */
     eig_ws *ws;
     int norb, nocc, dim, batch, use_range;
     double deadline;
@@ -57,6 +58,7 @@ int bp_create(const tb_model *m, hk_engine *hk, double deadline, bp_eval **out, 
     if (!e->H || !e->w)
         rc = bs_fail(err, BS_ENOMEM, "bandpair: out of memory for %d matrices", e->batch);
     if (rc == 0) rc = eig_create(e->norb, &e->ws, err);
+    if (rc == 0) rc = hk_lines_create(e->hk, &e->lines, err);
     if (rc != 0) {
         bp_free(e);
         return rc;
@@ -68,6 +70,7 @@ int bp_create(const tb_model *m, hk_engine *hk, double deadline, bp_eval **out, 
 void bp_free(bp_eval *e)
 {
     if (!e) return;
+    hk_lines_free(e->lines);
     eig_free(e->ws);
     free(e->H);
     free(e->w);
@@ -85,7 +88,7 @@ int bp_bands(bp_eval *e, int nk, const double *k, double *lo, double *hi, bs_err
             return bs_fail(err, BS_ETIMEOUT, "band search: time budget exceeded after %lld k-points",
                            e->count);
         int nb = nk - j0 < e->batch ? nk - j0 : e->batch;
-        int rc = hk_build(e->hk, nb, k + 3 * (size_t)j0, e->H, err);
+        int rc = hk_lines_build(e->lines, nb, k + 3 * (size_t)j0, e->H, err);
         if (rc != 0) return rc;
         for (int j = 0; j < nb; j++) {
             double complex *A = e->H + j * nn;
@@ -124,11 +127,14 @@ int bp_mesh_eval(bp_eval *e, int n, bp_mesh **out, bs_err *err)
     int rc = 0;
     if (!g->lo || !g->hi || !k)
         rc = bs_fail(err, BS_ENOMEM, "band mesh: out of memory for %d points", g->npts);
-    for (int i0 = 0; rc == 0 && i0 < g->npts; i0 += chunk) {
-        int nb = g->npts - i0 < chunk ? g->npts - i0 : chunk;
-        for (int j = 0; j < nb; j++) bp_mesh_k(g, i0 + j, k + 3 * j);
-        rc = bp_bands(e, nb, k, g->lo + i0, g->hi + i0, err);
-    }
+    /* Row by row (k1 varies fastest): each call's points share k2 and k3, so the H(k) build runs
+     * from partial sums along the row (hk_lines_build). */
+    for (int r0 = 0; rc == 0 && r0 < g->npts; r0 += n)
+        for (int i0 = r0; rc == 0 && i0 < r0 + n; i0 += chunk) {
+            int nb = r0 + n - i0 < chunk ? r0 + n - i0 : chunk;
+            for (int j = 0; j < nb; j++) bp_mesh_k(g, i0 + j, k + 3 * j);
+            rc = bp_bands(e, nb, k, g->lo + i0, g->hi + i0, err);
+        }
     free(k);
     if (rc != 0) {
         bp_mesh_free(g);
