@@ -159,6 +159,10 @@ int cmd_inspect(int argc, char **argv)
         default: inspect_help(stderr); return 2;
         }
     }
+    if (!transport && (topts.has_fermi || topts.nscan > 0 || topts.eta_ev > 0)) {
+        fprintf(stderr, "bandsieve inspect: --fermi, --scan and --eta apply to --transport only\n");
+        return 2;
+    }
     if (optind != argc - 1) {
         fprintf(stderr, "bandsieve inspect: need exactly one SOURCE\n");
         inspect_help(stderr);
