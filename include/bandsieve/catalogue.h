@@ -156,6 +156,11 @@ int cat_ids_contains(const cat_ids *ids, const char *id);
  * them. *ids (initialised by the caller) is replaced. */
 int cat_done_ids(cat_db *cat, int64_t run_id, cat_ids *ids, bs_err *err);
 
+/* The material ids that have a result row in any finished (status done) run compatible with info
+ * (same kind, settings, version and set path): a new screen with the same settings skips them,
+ * so running `screen` again after it finished does nothing new (--rerun does not call this). */
+int cat_finished_ids(cat_db *cat, const cat_run_info *info, cat_ids *ids, bs_err *err);
+
 /* The material ids of `SELECT material_id FROM summary WHERE (where_sql)`, for rescreen.
  * where_sql is one SQL condition; a condition that would write, or that holds a second
  * statement, is refused (BS_EINVAL); SQL errors are BS_ESQL with sqlite3_errmsg. NULL or ""

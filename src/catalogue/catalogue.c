@@ -632,6 +632,45 @@ int cat_done_ids(cat_db *cat, int64_t run_id, cat_ids *ids, bs_err *err)
     return collect_ids(cat, "SELECT material_id FROM results WHERE run_id = ?1", run_id, ids, err);
 }
 
+int cat_finished_ids(cat_db *cat, const cat_run_info *info, cat_ids *ids, bs_err *err)
+{
+    char *settings = NULL;
+    int rc = canonical_settings(info->settings_json, &settings, err);
+    if (rc != 0) return rc;
+    sqlite3_stmt *st = NULL;
+    rc = prepare(cat, "SELECT DISTINCT r.material_id FROM results r JOIN runs u ON u.run_id = r.run_id"
+                      " WHERE u.kind = ? AND u.settings = ? AND u.version IS ? AND u.set_path IS ?"
+                      " AND u.status = 'done' ORDER BY r.material_id", &st, err);
+    if (rc != 0) { free(settings); return rc; }
+    sqlite3_bind_text(st, 1, info->kind, -1, SQLITE_TRANSIENT);
+    sqlite3_bind_text(st, 2, settings, -1, SQLITE_TRANSIENT);
+    bind_text_or_null(st, 3, info->version);
+    bind_text_or_null(st, 4, info->set_path);
+    cat_ids acc = {0, NULL};
+    size_t cap = 0;
+    int s;
+    while (rc == 0 && (s = sqlite3_step(st)) == SQLITE_ROW) {
+        const char *id = (const char *)sqlite3_column_text(st, 0);
+        if (!id) continue;
+        if (acc.n == cap) {
+            cap = cap ? 2 * cap : 64;
+            char **p = realloc(acc.id, cap * sizeof *p);
+            if (!p) { rc = bs_fail(err, BS_ENOMEM, "out of memory for finished ids"); break; }
+            acc.id = p;
+        }
+        if (!(acc.id[acc.n] = strdup(id))) { rc = bs_fail(err, BS_ENOMEM, "out of memory for finished ids"); break; }
+        acc.n++;
+    }
+    if (rc == 0 && s != SQLITE_DONE) rc = cat_sql_fail(cat, err, "listing finished materials");
+    sqlite3_finalize(st);
+    free(settings);
+    if (rc != 0) { cat_ids_clear(&acc); return rc; }
+    /* ORDER BY uses SQLite's BINARY collation, the same byte order as strcmp. */
+    cat_ids_clear(ids);
+    *ids = acc;
+    return 0;
+}
+
 int cat_select_ids(cat_db *cat, const char *where_sql, cat_ids *ids, bs_err *err)
 {
     const char *cond = where_sql && *where_sql ? where_sql : "1";

@@ -67,7 +67,7 @@ static void models_help(FILE *out)
 int cmd_models(int argc, char **argv)
 {
     if (argc > 1 && (!strcmp(argv[1], "--help") || !strcmp(argv[1], "-h"))) { models_help(stdout); return 0; }
-    if (argc > 2) { models_help(stderr); return 2; }
+    if (argc > 2 || (argc == 2 && argv[1][0] == '-')) { models_help(stderr); return 2; }
     int n = 0;
     const lm_info *all = lm_catalogue(&n);
     int shown = 0;

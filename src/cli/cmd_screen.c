@@ -64,8 +64,8 @@ static void announce(void *ctx, const pl_counts *c, const char *kind)
     if (!strcmp(kind, "rescreen"))
         fprintf(stderr, "%s: %d materials selected (run %lld)\n", p->what, c->total + c->skipped, c->run_id);
     else
-        fprintf(stderr, "%s: %d materials to do%s (run %lld%s)\n", p->what, c->total,
-                c->skipped ? " after resume" : "", c->run_id, c->resumed ? ", resumed" : "");
+        fprintf(stderr, "%s: %d materials to do, %d already done (run %lld%s)\n", p->what, c->total,
+                c->skipped, c->run_id, c->resumed ? ", resumed" : "");
     if (p->tty) fputc('\n', stderr);
 }
 
@@ -83,7 +83,9 @@ static void screen_help(FILE *out, int rescreen)
                      "the catalogue; ranks 1.. compute (P = 1 does everything in one process). Running it\n"
                      "again on the same catalogue resumes: finished materials are skipped.\n\n"
                      "  --mesh N            k-mesh per direction (default 36 in 2D, 14 in 3D)\n"
-                     "  --rerun             start a new run instead of resuming the last one\n");
+                     "  --rerun             start a new run and redo every material (otherwise a screen\n"
+                     "                      resumes an unfinished run and skips what finished runs\n"
+                     "                      with the same settings already did)\n");
     fprintf(out, "  -c, --catalogue F   the SQLite catalogue (created if missing)\n"
                  "  --max-seconds S     wall-clock budget of the job: stop handing out work and\n"
                  "                      leave the rest for a resumed run (status interrupted)\n"
@@ -163,7 +165,9 @@ static int screen_main(int argc, char **argv, int rescreen)
         return 2;
     }
     if (rescreen && o.mesh == 0) o.mesh_factor = 2;
-    o.set_path = argv[optind];
+    /* Runs are matched for resume by the set's path: record it in one canonical spelling. */
+    char set_real[4096];
+    o.set_path = realpath(argv[optind], set_real) ? set_real : argv[optind];
     char cmdline[2048] = "bandsieve";
     for (int i = 0; i < argc; i++) {
         size_t used = strlen(cmdline);

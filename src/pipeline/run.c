@@ -196,6 +196,9 @@ static int coord_setup(coord *c, int ranks, const char *hosts, bs_err *err)
     snprintf(jpath, sizeof jpath, "%s.journal", o->catalogue_path);
     if (rc == 0 && resumed) rc = give_up_lost(c, jpath, err);
     if (rc == 0 && resumed) rc = cat_done_ids(c->cat, c->run_id, &done, err);
+    /* Not resuming (the last compatible run had finished): skip what finished runs with the same
+     * settings already did, so a repeated screen only adds new entries; --rerun does them all. */
+    if (rc == 0 && !resumed && !o->rerun) rc = cat_finished_ids(c->cat, &info, &done, err);
     if (rc == 0) rc = pl_journal_open(jpath, c->run_id, &c->journal, err);
     int nmissing = 0;
     if (rc == 0)

@@ -155,6 +155,13 @@ def case_broken():
             fail(f"message of {mid} does not name where: {msg!r}")
     if "4 invalid" not in r.stderr:
         fail("the closing summary line does not count the invalid rows:\n" + r.stderr)
+    # Screening the finished catalogue again (the set named another way) does nothing new.
+    r = run(screen_cmd(1, os.path.join(d, ".", "set.h5"), cat))
+    con = sqlite3.connect(cat)
+    n_after = con.execute("SELECT COUNT(*) FROM results").fetchone()[0]
+    con.close()
+    if n_after != 100 or "0 materials to do, 100 already done" not in r.stderr:
+        fail(f"a repeated screen redid work ({n_after} rows):\n" + r.stderr)
     print("ok: 4 broken entries gave 4 invalid rows with messages; 96 ok")
 
 
@@ -247,7 +254,8 @@ def case_crash_journal():
     # under MPI leaves in the journal: handed out, never received).
     with open(cat + ".journal", "a") as j:
         j.write(f"H {run_id} crashed.1 {twice}\nH {run_id} crashed.1 {once}\nH {run_id} crashed.2 {twice}\n")
-    run(screen_cmd(1, s, cat, "--mesh", "20"))
+    # The set named another way (./) must still find the run to resume.
+    run(screen_cmd(1, os.path.join(d, ".", "set.h5"), cat, "--mesh", "20"))
     con = sqlite3.connect(cat)
     st = dict(con.execute("SELECT material_id, status FROM results").fetchall())
     msg = con.execute("SELECT message FROM results WHERE material_id = ?", (twice,)).fetchone()[0]
