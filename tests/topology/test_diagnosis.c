@@ -62,6 +62,32 @@ static void test_kane_mele_boundary(void **state)
     diag_result_clear(&r);
 }
 
+/* Close to the boundary (lambda_v = 0.30, gap 23 meV, still Z2 = 1 by the same paper) the default
+ * mesh may leave the flow ambiguous: the diagnosis must then say undetermined, never trivial, and
+ * a finer mesh (what rescreen does) must resolve it. Regression, review of 2026-12-02. */
+static void test_kane_mele_near_boundary_refuses_to_guess(void **state)
+{
+    (void)state;
+    tb_model *m = NULL;
+    bs_err err;
+    bs_err_clear(&err);
+    assert_int_equal(lm_build("kane_mele:lambda_SO=0.06,lambda_R=0,lambda_v=0.30", &m, &err), 0);
+    diag_opts o = {0};
+    diag_result r;
+    diag_result_init(&r);
+    assert_int_equal(diag_run(m, &o, &r, &err), 0);
+    if (strcmp(r.cls, "2D topological insulator") != 0) {
+        assert_string_equal(r.cls, "undetermined");
+        assert_true(r.confidence < 0.5);
+    }
+    diag_result_clear(&r);
+    o.mesh = 72;
+    assert_int_equal(diag_run(m, &o, &r, &err), 0);
+    assert_string_equal(r.cls, "2D topological insulator");
+    diag_result_clear(&r);
+    tb_model_free(m);
+}
+
 /* BHZ lattice model (Science 314, 1757 (2006)): inverted (0 < M/B < 4) is a 2D TI, normal
  * (M/B < 0) trivial; a small S_z-breaking coupling keeps Z2 = 1. */
 static void test_bhz(void **state)
@@ -308,7 +334,8 @@ static void test_timeout(void **state)
 int main(void)
 {
     const struct CMUnitTest tests[] = {
-        cmocka_unit_test(test_kane_mele_boundary), cmocka_unit_test(test_bhz),
+        cmocka_unit_test(test_kane_mele_boundary), cmocka_unit_test(test_kane_mele_near_boundary_refuses_to_guess),
+        cmocka_unit_test(test_bhz),
         cmocka_unit_test(test_haldane), cmocka_unit_test(test_fkm_strong_weak),
         cmocka_unit_test(test_fkm_sweep_weyl_window), cmocka_unit_test(test_weyl_positions),
         cmocka_unit_test(test_line_metal_insulator), cmocka_unit_test(test_basis_invariance),
