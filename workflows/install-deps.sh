@@ -14,6 +14,7 @@ PACKAGES=(
   libcmocka-dev
   python3-numpy python3-scipy
   chromium
+  procps
 )
 
 missing=()
