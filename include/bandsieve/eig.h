@@ -8,8 +8,23 @@
 
 typedef struct eig_ws eig_ws;
 
+/* A distributed solver the caller plugs in (the pipeline's ScaLAPACK groups): for n >= min_n the
+ * workspace hands its problems to these callbacks instead of LAPACK. They are collective on the
+ * caller's group, so every member must make the same calls in the same order. vectors overwrites
+ * A with the eigenvectors as eig_vectors does; range fills w[iu-il+1] and Z (may be NULL). */
+typedef struct eig_dist {
+    int min_n;
+    void *ctx;
+    int (*values)(void *ctx, int n, double complex *A, double *w, bs_err *err);
+    int (*vectors)(void *ctx, int n, double complex *A, double *w, bs_err *err);
+    int (*range)(void *ctx, int n, double complex *A, int il, int iu, double *w, double complex *Z, bs_err *err);
+} eig_dist;
+
 /* Workspace for n x n Hermitian problems. The caller owns *out. */
 int eig_create(int n, eig_ws **out, bs_err *err);
+
+/* As eig_create, with a distributed solver (borrowed; may be NULL) for sizes >= dist->min_n. */
+int eig_create_dist(int n, const eig_dist *dist, eig_ws **out, bs_err *err);
 
 /* Frees w; accepts NULL. */
 void eig_free(eig_ws *w);

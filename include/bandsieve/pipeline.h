@@ -38,6 +38,9 @@ typedef struct pl_opts {
     double symmetry_tol;        /* see diag_opts (0: default) */
     int transport;              /* also anomalous and spin Hall conductivities (--transport) */
     int surfaces;               /* also surface crossings of nontrivial insulators (--surfaces) */
+    int group_size;             /* >= 2: the last group_size ranks form a group that diagonalises
+                                   materials of at least group_min_states states together */
+    int group_min_states;       /* 0: PZ_DEFAULT_THRESHOLD */
     int rerun;                  /* start a new run instead of resuming */
     int batch_rows;             /* catalogue commit batch (0: default) */
     double batch_seconds;

@@ -96,6 +96,9 @@ static void screen_help(FILE *out, int rescreen)
                  "                      (catalogue columns ahc_*, shc_xy; view top_spin_hall)\n"
                  "  --surfaces          for nontrivial insulators, also the Fermi-level crossings of\n"
                  "                      surface states on a default plane (view surfaces)\n"
+                 "  --group-size G      the last G ranks form a group that diagonalises materials of\n"
+                 "                      at least --group-min-states states (default 800) together\n"
+                 "                      with ScaLAPACK; smaller ones go to the single ranks\n"
                  "  --batch N           commit the catalogue every N results (default 64) or 2 s\n"
                  "  --progress-every S  seconds between progress lines when stderr is not a terminal (30)\n"
                  "  -h, --help          this text\n\n"
@@ -110,7 +113,8 @@ static int screen_main(int argc, char **argv, int rescreen)
         {"max-seconds", required_argument, NULL, 't'}, {"material-seconds", required_argument, NULL, 'T'},
         {"rerun", no_argument, NULL, 'r'}, {"where", required_argument, NULL, 'w'},
         {"batch", required_argument, NULL, 'b'}, {"symmetry-tol", required_argument, NULL, 'y'},
-        {"transport", no_argument, NULL, 'A'}, {"surfaces", no_argument, NULL, 'S'}, {"progress-every", required_argument, NULL, 'p'},
+        {"transport", no_argument, NULL, 'A'}, {"surfaces", no_argument, NULL, 'S'},
+        {"group-size", required_argument, NULL, 'g'}, {"group-min-states", required_argument, NULL, 'G'}, {"progress-every", required_argument, NULL, 'p'},
         {"help", no_argument, NULL, 'h'}, {NULL, 0, NULL, 0}};
     const char *name = rescreen ? "bandsieve rescreen" : "bandsieve screen";
     pl_opts o;
@@ -129,6 +133,15 @@ static int screen_main(int argc, char **argv, int rescreen)
         case 'r': o.rerun = 1; break;
         case 'A': o.transport = 1; break;
         case 'S': o.surfaces = 1; break;
+        case 'g': case 'G':
+            if (cli_parse_int(optarg, c == 'g' ? 2 : 2, 1 << 20, &v)) {
+                fprintf(stderr, "%s: --%s expects an integer >= 2, got '%s'\n", name,
+                        c == 'g' ? "group-size" : "group-min-states", optarg);
+                return 2;
+            }
+            if (c == 'g') o.group_size = (int)v;
+            else o.group_min_states = (int)v;
+            break;
         case 'w': o.where_sql = optarg; break;
         case 'm':
             if (cli_parse_int(optarg, 4, 4096, &v)) { fprintf(stderr, "%s: --mesh expects an integer 4..4096, got '%s'\n", name, optarg); return 2; }

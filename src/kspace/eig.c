@@ -11,6 +11,7 @@ struct eig_ws {
     lapack_int *iwork;
     lapack_int *isuppz;
     double *wtmp;       /* n values for zheevr, which may write past the requested range */
+    const eig_dist *dist; /* distributed solver for this size, or NULL */
     lapack_int lwork, lrwork, liwork;
 };
 
@@ -71,6 +72,13 @@ done:
     return rc;
 }
 
+int eig_create_dist(int n, const eig_dist *dist, eig_ws **out, bs_err *err)
+{
+    int rc = eig_create(n, out, err);
+    if (rc == 0 && dist && n >= dist->min_n) (*out)->dist = dist;
+    return rc;
+}
+
 void eig_free(eig_ws *w)
 {
     if (!w) return;
@@ -94,11 +102,13 @@ static int solve_all(eig_ws *ws, char jobz, double complex *A, double *w, bs_err
 
 int eig_values(eig_ws *ws, double complex *A, double *w, bs_err *err)
 {
+    if (ws->dist) return ws->dist->values(ws->dist->ctx, ws->n, A, w, err);
     return solve_all(ws, 'N', A, w, err);
 }
 
 int eig_vectors(eig_ws *ws, double complex *A, double *w, bs_err *err)
 {
+    if (ws->dist) return ws->dist->vectors(ws->dist->ctx, ws->n, A, w, err);
     return solve_all(ws, 'V', A, w, err);
 }
 
@@ -107,6 +117,7 @@ int eig_range(eig_ws *ws, double complex *A, int il, int iu, double *w, double c
     int n = ws->n;
     if (il < 0 || iu >= n || il > iu)
         return bs_fail(err, BS_EINVAL, "eigenvalue range %d..%d outside 0..%d", il, iu, n - 1);
+    if (ws->dist) return ws->dist->range(ws->dist->ctx, n, A, il, iu, w, Z, err);
     lapack_int m = 0;
     lapack_complex_double dummy;
     double *wt = ws->wtmp;

@@ -18,6 +18,7 @@
 
 #include "bandsieve/catalogue.h"
 #include "bandsieve/matset.h"
+#include "group.h"
 #include "journal.h"
 #include "work.h"
 
@@ -41,6 +42,7 @@ typedef struct wire_head {
 /* Coordinator -> worker. */
 typedef struct wire_work {
     int index;
+    int group;           /* compute as the rank group (lockstep, distributed eigensolver) */
     int job_limited;     /* the budget below is what remains of the job, not the material budget */
     double max_seconds;
 } wire_work;
@@ -52,6 +54,10 @@ typedef struct coord {
     ms_set *set;
     pl_item *items;
     int nitems, next;
+    unsigned char *taken;   /* nitems: handed out */
+    int next_large, next_small; /* cursors of the group's and the single workers' queues */
+    int leader;             /* world rank of the group leader, -1 without a group */
+    int nworkers;           /* ranks that ask the coordinator for work (group members do not) */
     int64_t run_id;
     double t0;
     double last_tick;
@@ -208,6 +214,8 @@ static int coord_setup(coord *c, int ranks, const char *hosts, bs_err *err)
     c->counts.resumed = resumed;
     c->counts.skipped = (int)done.n;
     c->counts.total = c->nitems;
+    c->taken = calloc((size_t)c->nitems + 1, 1);
+    if (rc == 0 && !c->taken) rc = bs_fail(err, BS_ENOMEM, "out of memory for the work list");
     for (int i = 0; rc == 0 && i < c->nitems; i++) {
         const ms_entry *e = ms_entry_at(c->set, c->items[i].index);
         cat_material mat = {e->id, NULL, e->dim, e->norb, e->nR, e->nocc, e->spinful, o->set_path, NULL, NULL};
@@ -266,15 +274,44 @@ static int coord_record(coord *c, const pl_outcome *out, int job_limited, bs_err
     return 0;
 }
 
-/* The next material and its budget, or 0 when the job should hand out nothing more. */
-static int coord_next(coord *c, wire_work *w)
+/* Whether item i is for the group: at least group_min_states states. */
+static int item_large(const coord *c, int i)
+{
+    int min = c->o->group_min_states > 0 ? c->o->group_min_states : 800;
+    return ms_entry_at(c->set, c->items[i].index)->norb >= min;
+}
+
+/* The next item for a requester: the group leader takes the largest remaining large item, else a
+ * small one that it computes alone; single workers take small items only while a group exists
+ * (large ones wait for it); without a group, items go in order. -1 when none is left. */
+static int pick_item(coord *c, int from_leader)
+{
+    int has_group = c->leader >= 0;
+    if (!has_group) {
+        while (c->next < c->nitems && c->taken[c->next]) c->next++;
+        return c->next < c->nitems ? c->next : -1;
+    }
+    if (from_leader) {
+        while (c->next_large < c->nitems && (c->taken[c->next_large] || !item_large(c, c->next_large))) c->next_large++;
+        if (c->next_large < c->nitems) return c->next_large;
+    }
+    while (c->next_small < c->nitems && (c->taken[c->next_small] || item_large(c, c->next_small))) c->next_small++;
+    return c->next_small < c->nitems ? c->next_small : -1;
+}
+
+/* The next material and its budget for rank `from`, or 0 when it should get nothing more. */
+static int coord_next(coord *c, int from, wire_work *w)
 {
     const pl_opts *o = c->o;
-    if (c->next >= c->nitems) return 0;
     if (o->stop_flag && *o->stop_flag) { c->counts.interrupted = 1; return 0; }
     double left = o->max_seconds > 0 ? o->max_seconds - (now() - c->t0) : 0;
     if (o->max_seconds > 0 && left <= 0.5) { c->counts.interrupted = 1; return 0; }
-    w->index = c->items[c->next++].index;
+    int from_leader = c->leader >= 0 && from == c->leader;
+    int i = pick_item(c, from_leader);
+    if (i < 0) return 0;
+    c->taken[i] = 1;
+    w->index = c->items[i].index;
+    w->group = from_leader && item_large(c, i);
     bs_err jerr;
     bs_err_clear(&jerr);
     /* A journal that cannot be written loses only the crash bookkeeping, not results. */
@@ -300,7 +337,7 @@ static int run_serial(coord *c, bs_err *err)
 {
     wire_work w;
     int rc = 0;
-    while (rc == 0 && coord_next(c, &w)) {
+    while (rc == 0 && coord_next(c, 0, &w)) {
         pl_outcome out;
         pl_compute(c->set, w.index, &c->task, w.max_seconds, 0, &out);
         rc = coord_record(c, &out, w.job_limited, err);
@@ -348,7 +385,7 @@ static int recv_outcome(MPI_Comm comm, MPI_Status *st, pl_outcome *out, int *job
 /* Coordinator loop with worker ranks 1..size-1. */
 static int run_coordinator(coord *c, int size, bs_err *err)
 {
-    int active = size - 1, rc = 0;
+    int active = c->nworkers, rc = 0;
     /* 0.5 ms: a few microseconds of work per wake-up (under 1% of a core) against a latency that
      * stays small beside materials of milliseconds. */
     const struct timespec nap = {0, 500 * 1000};
@@ -371,7 +408,7 @@ static int run_coordinator(coord *c, int size, bs_err *err)
         pl_outcome_clear(&out);
         wire_work w;
         /* After a catalogue error nothing more is handed out: results could not be kept. */
-        if (rc == 0 && coord_next(c, &w)) {
+        if (rc == 0 && coord_next(c, st.MPI_SOURCE, &w)) {
             mrc = mpi_check(MPI_Send(&w, (int)sizeof w, MPI_BYTE, st.MPI_SOURCE, TAG_WORK, c->comm), "MPI_Send of work", err);
         } else {
             mrc = mpi_check(MPI_Send(NULL, 0, MPI_BYTE, st.MPI_SOURCE, TAG_STOP, c->comm), "MPI_Send of stop", err);
@@ -407,8 +444,29 @@ static int send_outcome(MPI_Comm comm, int kind, const pl_outcome *out, int job_
     return rc;
 }
 
-/* Worker loop: request, compute, send, until told to stop. Workers open the set read-only. */
-static int run_worker(const pl_opts *o, MPI_Comm comm, int rank, bs_err *err)
+/* What a group leader tells its members: stop, or compute entry `index` together. */
+typedef struct group_cmd {
+    int cmd;            /* 0 stop, 1 compute */
+    int index;
+} group_cmd;
+
+/* Broadcast from the leader (group rank 0), waiting by polling and napping rather than spinning. */
+static int group_bcast(MPI_Comm g, group_cmd *cmd, bs_err *err)
+{
+    MPI_Request req;
+    int rc = mpi_check(MPI_Ibcast(cmd, (int)sizeof *cmd, MPI_BYTE, 0, g, &req), "MPI_Ibcast", err);
+    const struct timespec nap = {0, 200 * 1000};
+    int done = 0;
+    while (rc == 0 && !done) {
+        rc = mpi_check(MPI_Test(&req, &done, MPI_STATUS_IGNORE), "MPI_Test", err);
+        if (rc == 0 && !done) nanosleep(&nap, NULL);
+    }
+    return rc;
+}
+
+/* Worker loop: request, compute, send, until told to stop. Workers open the set read-only.
+ * A group leader (gcomm not MPI_COMM_NULL) also drives its members for group work. */
+static int run_worker(const pl_opts *o, MPI_Comm comm, MPI_Comm gcomm, pl_group *group, int rank, bs_err *err)
 {
     ms_set *set = NULL;
     int rc = ms_open(o->set_path, &set, err);
@@ -436,8 +494,14 @@ static int run_worker(const pl_opts *o, MPI_Comm comm, int rank, bs_err *err)
         rc = mpi_check(MPI_Recv(&w, (int)sizeof w, MPI_BYTE, 0, TAG_WORK, comm, MPI_STATUS_IGNORE), "MPI_Recv of work", err);
         if (rc != 0) break;
         pl_outcome out;
+        pl_task task = {o->mesh, o->mesh_factor, o->symmetry_tol, o->transport, o->surfaces, NULL};
+        if (w.group && gcomm != MPI_COMM_NULL) {
+            group_cmd cmd = {1, w.index};
+            rc = group_bcast(gcomm, &cmd, err);
+            if (rc != 0) break;
+            task.dist = pl_group_solver(group);
+        }
         if (set) {
-            pl_task task = {o->mesh, o->mesh_factor, o->symmetry_tol, o->transport, o->surfaces};
             pl_compute(set, w.index, &task, w.max_seconds, rank, &out);
         } else {
             memset(&out, 0, sizeof out);
@@ -448,6 +512,37 @@ static int run_worker(const pl_opts *o, MPI_Comm comm, int rank, bs_err *err)
         }
         rc = send_outcome(comm, 1, &out, w.job_limited, err);
         pl_outcome_clear(&out);
+    }
+    if (gcomm != MPI_COMM_NULL) {
+        group_cmd cmd = {0, 0};
+        bs_err gerr;
+        bs_err_clear(&gerr);
+        int grc = group_bcast(gcomm, &cmd, &gerr);
+        if (rc == 0 && grc != 0) { *err = gerr; rc = grc; }
+    }
+    ms_free(set);
+    return rc;
+}
+
+/* A group member other than the leader: compute in lockstep whatever the leader announces; the
+ * leader alone reports the outcome. */
+static int run_member(const pl_opts *o, MPI_Comm gcomm, pl_group *group, int rank, bs_err *err)
+{
+    ms_set *set = NULL;
+    int rc = ms_open(o->set_path, &set, err);
+    if (rc != 0) set = NULL;
+    bs_err_clear(err);
+    rc = 0;
+    while (rc == 0) {
+        group_cmd cmd;
+        rc = group_bcast(gcomm, &cmd, err);
+        if (rc != 0 || cmd.cmd == 0) break;
+        pl_task task = {o->mesh, o->mesh_factor, o->symmetry_tol, o->transport, o->surfaces, pl_group_solver(group)};
+        pl_outcome out;
+        if (set) {
+            pl_compute(set, cmd.index, &task, 0, rank, &out);
+            pl_outcome_clear(&out);
+        }
     }
     ms_free(set);
     return rc;
@@ -460,6 +555,7 @@ static void coord_clear(coord *c, bs_err *err)
     if (cat_close(c->cat, &close_err) != 0 && err->code == 0) *err = close_err;
     ms_free(c->set);
     free(c->items);
+    free(c->taken);
     pl_journal_close(c->journal);
     if (c->lock_fd >= 0) close(c->lock_fd);
 }
@@ -480,10 +576,25 @@ int pl_run(int *argc, char ***argv, const pl_opts *o, pl_counts *counts, int *is
     *is_root = rank == 0;
     char hosts[2048] = "";
     rc = gather_hosts(comm, rank, size, hosts, sizeof hosts, err);
+    /* The rank group: the last group_size ranks, when at least one rank is left besides rank 0
+     * (P = 1 + G also works: the group then takes small materials too, its leader alone). */
+    int gsize = o->group_size >= 2 && size - 1 >= o->group_size ? o->group_size : 0;
+    int leader = gsize ? size - gsize : -1;
+    int in_group = gsize && rank >= leader;
+    MPI_Comm gcomm = MPI_COMM_NULL;
+    if (rc == 0 && gsize)
+        rc = mpi_check(MPI_Comm_split(comm, in_group ? 1 : MPI_UNDEFINED, rank, &gcomm), "MPI_Comm_split", err);
     if (rank != 0) {
         int setup_ok = 0;
+        pl_group *group = NULL;
         if (rc == 0) rc = mpi_check(MPI_Bcast(&setup_ok, 1, MPI_INT, 0, comm), "MPI_Bcast", err);
-        if (rc == 0 && setup_ok) rc = run_worker(o, comm, rank, err);
+        if (rc == 0 && in_group) rc = pl_group_create(gcomm, o->group_min_states, &group, err);
+        if (rc == 0 && setup_ok) {
+            if (in_group && rank != leader) rc = run_member(o, gcomm, group, rank, err);
+            else rc = run_worker(o, comm, in_group ? gcomm : MPI_COMM_NULL, group, rank, err);
+        }
+        pl_group_free(group);
+        if (gcomm != MPI_COMM_NULL) MPI_Comm_free(&gcomm);
         MPI_Finalize();
         return rc;
     }
@@ -492,6 +603,8 @@ int pl_run(int *argc, char ***argv, const pl_opts *o, pl_counts *counts, int *is
     c.o = o;
     c.comm = comm;
     c.lock_fd = -1;
+    c.leader = leader;
+    c.nworkers = size - 1 - (gsize ? gsize - 1 : 0);
     c.t0 = now();
     c.task.mesh = o->mesh;
     c.task.mesh_factor = o->mesh_factor;

@@ -107,6 +107,10 @@ void pl_compute(const ms_set *set, int index, const pl_task *task, double max_se
     int rc = ms_read(set, index, &m, &err);
     /* An entry whose HDF5 data cannot be read is bad input (a damaged set), not a failure of ours. */
     if (rc == BS_EHDF5) rc = BS_EPARSE;
+    if (rc == 0 && task->dist) {
+        m->eig_dist = task->dist;
+        max_seconds = 0;
+    }
     if (rc == 0) {
         diag_opts o = {0};
         o.mesh = task->mesh;

@@ -35,10 +35,12 @@ typedef struct pl_task {
     double symmetry_tol;    /* 0: the diagnosis default */
     int transport;          /* add anomalous and spin Hall conductivities */
     int surfaces;           /* add the surface crossings of a default plane for nontrivial insulators */
+    const struct eig_dist *dist; /* group members: the shared distributed solver, else NULL */
 } pl_task;
 
 /* Reads entry `index` of set and diagnoses it as task says within max_seconds (0: no limit),
- * filling out. Never fails as a whole: every failure becomes out->code and out->message. */
+ * filling out. With task->dist the members of a group run this in lockstep (same calls in the same
+ * order), so the time budget is not applied: a deadline would stop them at different points. Never fails as a whole: every failure becomes out->code and out->message. */
 void pl_compute(const ms_set *set, int index, const pl_task *task, double max_seconds, int rank,
                 pl_outcome *out);
 

@@ -57,7 +57,7 @@ int bp_create(const tb_model *m, hk_engine *hk, double deadline, bp_eval **out, 
     int rc = 0;
     if (!e->H || !e->w)
         rc = bs_fail(err, BS_ENOMEM, "bandpair: out of memory for %d matrices", e->batch);
-    if (rc == 0) rc = eig_create(e->norb, &e->ws, err);
+    if (rc == 0) rc = eig_create_dist(e->norb, m->eig_dist, &e->ws, err);
     if (rc == 0) rc = hk_lines_create(e->hk, &e->lines, err);
     if (rc != 0) {
         bp_free(e);

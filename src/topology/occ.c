@@ -42,7 +42,7 @@ int occ_create(const tb_model *m, int nband, occ_ws **out, bs_err *err)
     if (rc != 0) goto done;
     rc = hk_lines_create(w->hk, &w->lines, err);
     if (rc != 0) goto done;
-    rc = eig_create(m->norb, &w->eig, err);
+    rc = eig_create_dist(m->norb, m->eig_dist, &w->eig, err);
     if (rc != 0) goto done;
     w->H = malloc((size_t)w->batch * (size_t)per * sizeof *w->H);
     w->Z = malloc((size_t)m->norb * (size_t)(nband + 1) * sizeof *w->Z);

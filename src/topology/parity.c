@@ -52,7 +52,7 @@ static int ws_create(const tb_model *m, par_ws *ws, bs_err *err)
     ws->n = n;
     ws->nocc = no;
     int rc = hk_create(m, 1, &ws->hk, err);
-    if (rc == 0) rc = eig_create(n, &ws->eig_n, err);
+    if (rc == 0) rc = eig_create_dist(n, m->eig_dist, &ws->eig_n, err);
     if (rc == 0) rc = eig_create(no, &ws->eig_occ, err);
     if (rc != 0) return rc;
     ws->H = malloc((size_t)n * n * sizeof *ws->H);
