@@ -12,6 +12,7 @@
 #include "bandsieve/slab.h"
 #include "bandsieve/source.h"
 #include "bandsieve/surfgreen.h"
+#include "bandsieve/arrays.h"
 #include "bandsieve/surfstates.h"
 #include "bandsieve/svgplot.h"
 #include "cliutil.h"
@@ -20,7 +21,7 @@
 #define SLAB_MAX_PATH 32
 
 typedef struct slab_args {
-    const char *source, *svg;
+    const char *source, *svg, *arrays;
     int miller[3], nmiller, layers, nsurf, nk, mesh, json, side, has_fermi, has_energy, has_window;
     int between[2];             /* surface TRIM indices t = n1 + 2 n2 */
     int npath;
@@ -54,6 +55,8 @@ static void slab_help(FILE *out)
             "  --side top|bottom   surface for the spectral function (default top)\n"
             "  --json              print one JSON object\n"
             "  --svg FILE          plot: the --window path map, else the --energy map, else the slab bands\n"
+            "  --arrays FILE.h5    write the computed arrays (path, bands and weights, spectral map and\n"
+            "                      path spectra) as HDF5 datasets, for an artifacts folder\n"
             "  -h, --help          this text\n",
             20000);
 }
@@ -131,7 +134,8 @@ static int parse_args(int argc, char **argv, slab_args *a, const char **between,
         {"energy", required_argument, NULL, 'e'}, {"window", required_argument, NULL, 'w'},
         {"eta", required_argument, NULL, 't'}, {"mesh", required_argument, NULL, 'm'},
         {"side", required_argument, NULL, 'S'}, {"json", no_argument, NULL, 'j'},
-        {"svg", required_argument, NULL, 'g'}, {"help", no_argument, NULL, 'h'}, {NULL, 0, NULL, 0}};
+        {"svg", required_argument, NULL, 'g'}, {"arrays", required_argument, NULL, 'A'},
+        {"help", no_argument, NULL, 'h'}, {NULL, 0, NULL, 0}};
     long v;
     double wv[3];
     int c;
@@ -189,6 +193,7 @@ static int parse_args(int argc, char **argv, slab_args *a, const char **between,
             break;
         case 'j': a->json = 1; break;
         case 'g': a->svg = optarg; break;
+        case 'A': a->arrays = optarg; break;
         default: slab_help(stderr); return 2;
         }
     }
@@ -332,7 +337,7 @@ static int analyse(const slab *s, const tb_model *m, const slab_args *a, slab_re
         if (r->dirac[i].energy_ev > r->vbm && r->dirac[i].energy_ev < r->cbm) r->dirac[keep++] = r->dirac[i];
     if (rc == 0) r->ndirac = keep;
     if (rc == 0) rc = sample_path(s, a, r, err);
-    if (rc == 0 && (a->json || (a->svg && !a->has_energy && !a->has_window))) rc = compute_bands(c, slab_nstates(s), r, err);
+    if (rc == 0 && (a->json || a->arrays || (a->svg && !a->has_energy && !a->has_window))) rc = compute_bands(c, slab_nstates(s), r, err);
     ss_free(c);
     if (rc == 0 && (a->has_energy || a->has_window)) rc = compute_spectral(s, a, r, err);
     return rc;
@@ -489,6 +494,23 @@ static int write_svg(const slab *s, const slab_args *a, const slab_result *r, bs
     return rc;
 }
 
+/* The computed arrays (path, bands and weights, spectral map and path spectra) into an HDF5 file. */
+static int write_arrays(const slab *s, const tb_model *m, const slab_args *a, const slab_result *r, bs_err *err)
+{
+    int ns = slab_nstates(s), n2 = slab_kdim(s) == 2 ? a->mesh : 1;
+    ar_array arr[] = {
+        {"path_k", r->kp, 2, {r->nkp, 2}, "in-plane reduced k of the path samples"},
+        {"path_distance", r->xp, 1, {r->nkp, 0}, "distance along the path (1/Angstrom)"},
+        {"bands", r->E, 2, {r->nkp, ns}, "slab energies (eV) per path sample"},
+        {"weight_top", r->wt, 2, {r->nkp, ns}, "weight of each state on the top layers"},
+        {"weight_bottom", r->wb, 2, {r->nkp, ns}, "weight of each state on the bottom layers"},
+        {"spectral_map", r->map, 2, {a->mesh, n2}, "surface spectral function at --energy over the surface zone"},
+        {"spectral_path_energy", r->apath, 1, {r->nkp, 0}, "surface spectral function at --energy along the path"},
+        {"spectral_path_window", r->awin, 2, {r->nkp, r->ne}, "surface spectral function along the path over --window"},
+    };
+    return ar_write(a->arrays, m->id, arr, (int)(sizeof arr / sizeof arr[0]), err);
+}
+
 int cmd_slab(int argc, char **argv)
 {
     slab_args a;
@@ -515,6 +537,10 @@ int cmd_slab(int argc, char **argv)
     status = 1;
     if (slab_create(m, a.miller, a.layers, a.cut, &s, &err) != 0 || analyse(s, m, &a, &r, &err) != 0 ||
         (a.svg && write_svg(s, &a, &r, &err) != 0)) {
+        fprintf(stderr, "bandsieve slab: %s: %s\n", m->id, err.msg);
+        goto done;
+    }
+    if (a.arrays && write_arrays(s, m, &a, &r, &err) != 0) {
         fprintf(stderr, "bandsieve slab: %s: %s\n", m->id, err.msg);
         goto done;
     }
