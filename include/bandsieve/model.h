@@ -75,4 +75,7 @@ int tb_model_validate(const tb_model *m, double tol_ev, const char *where, bs_er
 /* Reciprocal lattice vectors b_i (rows, 1/Angstrom, with the 2 pi) from m->lattice. */
 void tb_model_reciprocal(const tb_model *m, double b[3][3]);
 
+/* The same for lattice rows a (Angstrom): b_i . a_j = 2 pi delta_ij. */
+void tb_lattice_reciprocal(const double a[3][3], double b[3][3]);
+
 #endif

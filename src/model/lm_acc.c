@@ -25,17 +25,11 @@ int lm_acc_init(lm_acc *acc, int nspatial, int spinful, int layout, const double
     acc->norb = spinful ? 2 * nspatial : nspatial;
     acc->layout = layout;
     memcpy(acc->lattice, lattice, sizeof acc->lattice);
-    const double (*a)[3] = acc->lattice;
-    double cross[3][3];
-    for (int i = 0; i < 3; i++) {
-        const double *u = a[(i + 1) % 3], *v = a[(i + 2) % 3];
-        cross[i][0] = u[1] * v[2] - u[2] * v[1];
-        cross[i][1] = u[2] * v[0] - u[0] * v[2];
-        cross[i][2] = u[0] * v[1] - u[1] * v[0];
-    }
-    double vol = a[0][0] * cross[0][0] + a[0][1] * cross[0][1] + a[0][2] * cross[0][2];
+    /* Reduced coordinates of a Cartesian vector r: r . b_i / (2 pi). */
+    double b[3][3];
+    tb_lattice_reciprocal((const double(*)[3])acc->lattice, b);
     for (int i = 0; i < 3; i++)
-        for (int d = 0; d < 3; d++) acc->to_reduced[i][d] = cross[i][d] / vol;
+        for (int d = 0; d < 3; d++) acc->to_reduced[i][d] = b[i][d] / (2.0 * M_PI);
     acc->pos = calloc((size_t)nspatial, sizeof *acc->pos);
     acc->orb_l = calloc((size_t)nspatial, sizeof *acc->orb_l);
     if (!acc->pos || !acc->orb_l) {

@@ -186,7 +186,11 @@ int tb_model_validate(const tb_model *m, double tol_ev, const char *where, bs_er
 
 void tb_model_reciprocal(const tb_model *m, double b[3][3])
 {
-    const double (*a)[3] = m->lattice;
+    tb_lattice_reciprocal((const double(*)[3])m->lattice, b);
+}
+
+void tb_lattice_reciprocal(const double a[3][3], double b[3][3])
+{
     double cross[3][3];
     for (int i = 0; i < 3; i++) {
         const double *u = a[(i + 1) % 3], *v = a[(i + 2) % 3];
