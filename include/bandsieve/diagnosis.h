@@ -87,6 +87,9 @@ typedef struct diag_result {
     long long nk_evaluated; /* k-points diagonalised, for cost reporting */
 } diag_result;
 
+/* The default k-mesh per direction for a model of dimension dim (36 in 2D, 14 in 3D). */
+int diag_default_mesh(int dim);
+
 /* Initialises r to an empty result (NA everywhere); diag_result_clear frees what it owns. */
 void diag_result_init(diag_result *r);
 void diag_result_clear(diag_result *r);

@@ -14,6 +14,16 @@
 #include <stdlib.h>
 #include <string.h>
 
+/* The half set: R > 0 in lexicographic order, so that R and -R never both belong to it. */
+static int is_half_d(const double R[3])
+{
+    if (R[0] != 0) return R[0] > 0;
+    if (R[1] != 0) return R[1] > 0;
+    return R[2] > 0;
+}
+
+static int is_half(const int R[3]) { return is_half_d((const double[3]){R[0], R[1], R[2]}); }
+
 struct hk_engine {
     int norb;
     int npair;          /* norb (norb + 1) / 2 upper-triangle elements */
@@ -33,12 +43,6 @@ struct hk_engine {
     double *src_Rax;    /* the source vectors' component along axis (0 for the constant) */
 };
 
-static int is_half(const int R[3])
-{
-    if (R[0] != 0) return R[0] > 0;
-    if (R[1] != 0) return R[1] > 0;
-    return R[2] > 0;
-}
 
 /* Hermitian-symmetrised hopping block for R (divided by its weight): averages H_R with
  * H_{-R}^dagger when both are present so that round-off in a table cannot make H(k) non-Hermitian. */
@@ -136,12 +140,6 @@ static int half_index(hk_engine *dst, const double R[3])
     return h;
 }
 
-static int is_half_d(const double R[3])
-{
-    if (R[0] != 0) return R[0] > 0;
-    if (R[1] != 0) return R[1] > 0;
-    return R[2] > 0;
-}
 
 int hk_reduce(const hk_engine *src, int axis, double kval, int max_batch, hk_engine **out, bs_err *err)
 {

@@ -18,6 +18,7 @@
 
 #include "bandsieve/catalogue.h"
 #include "bandsieve/matset.h"
+#include "bandsieve/pzheev.h"
 #include "group.h"
 #include "journal.h"
 #include "work.h"
@@ -239,16 +240,20 @@ static int coord_record(coord *c, const pl_outcome *out, int job_limited, bs_err
         return 0;
     }
     cat_status st = cat_status_from_code(out->code);
-    int rc = cat_result_put_text(c->cat, c->run_id, out->id, st, out->code ? out->message : NULL,
-                                 out->json, out->json ? strlen(out->json) : 0, out->rank, out->seconds, err);
+    /* Parsed once here: the catalogue, the class counts and the formula all read this object. */
+    cJSON *j = out->json ? cJSON_Parse(out->json) : NULL;
+    int rc = out->json && !j ? bs_fail(err, BS_EPARSE, "malformed diagnosis JSON from rank %d", out->rank)
+                             : cat_result_put(c->cat, c->run_id, out->id, st, out->code ? out->message : NULL, j,
+                                              out->rank, out->seconds, err);
     if (rc != 0) {
         /* A result the catalogue refuses (malformed JSON from a bug) must not stop the job:
          * it becomes a failed row naming the problem. */
         char msg[700];
         snprintf(msg, sizeof msg, "catalogue refused the result: %s", err->msg);
         bs_err_clear(err);
-        rc = cat_result_put_text(c->cat, c->run_id, out->id, CAT_RES_FAILED, msg, NULL, 0, out->rank,
-                                 out->seconds, err);
+        cJSON_Delete(j);
+        j = NULL;
+        rc = cat_result_put(c->cat, c->run_id, out->id, CAT_RES_FAILED, msg, NULL, out->rank, out->seconds, err);
         st = CAT_RES_FAILED;
         if (rc != 0) return rc;
     }
@@ -257,27 +262,24 @@ static int coord_record(coord *c, const pl_outcome *out, int job_limited, bs_err
     else if (st == CAT_RES_INVALID) c->counts.invalid++;
     else if (st == CAT_RES_TIMEOUT) c->counts.timeout++;
     else c->counts.failed++;
-    if (st == CAT_RES_OK && out->json) {
-        cJSON *j = cJSON_Parse(out->json);
+    if (st == CAT_RES_OK && j) {
         int k = pl_class_index(cJSON_GetStringValue(cJSON_GetObjectItem(j, "class")));
         if (k >= 0) c->counts.by_class[k]++;
         /* The set's index has no formula; the worker read it from the material itself. */
         const char *formula = cJSON_GetStringValue(cJSON_GetObjectItem(j, "formula"));
-        int urc = 0;
         if (formula) {
             cat_material mat = {out->id, formula, 0, 0, 0, 0, -1, NULL, NULL, NULL};
-            urc = cat_material_upsert(c->cat, &mat, err);
+            rc = cat_material_upsert(c->cat, &mat, err);
         }
-        cJSON_Delete(j);
-        if (urc != 0) return urc;
     }
-    return 0;
+    cJSON_Delete(j);
+    return rc;
 }
 
 /* Whether item i is for the group: at least group_min_states states. */
 static int item_large(const coord *c, int i)
 {
-    int min = c->o->group_min_states > 0 ? c->o->group_min_states : 800;
+    int min = c->o->group_min_states > 0 ? c->o->group_min_states : PZ_DEFAULT_THRESHOLD;
     return ms_entry_at(c->set, c->items[i].index)->norb >= min;
 }
 

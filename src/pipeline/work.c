@@ -60,7 +60,7 @@ int pl_work_list(const ms_set *set, const cat_ids *ids, const cat_ids *done, int
         if (ids && !cat_ids_contains(ids, e->id)) continue;
         if (done && cat_ids_contains(done, e->id)) continue;
         /* k-points scale as mesh^dim for the gap and node meshes, the dominant fixed cost. */
-        double m = mesh > 0 ? mesh : (e->dim == 2 ? 36 : 14) * (mesh_factor > 1 ? mesh_factor : 1);
+        double m = mesh > 0 ? mesh : diag_default_mesh(e->dim) * (mesh_factor > 1 ? mesh_factor : 1);
         keys[k].item.index = i;
         keys[k].item.cost = (e->cost > 0 ? e->cost : 1.0) * pow(m, e->dim > 0 ? e->dim : 3);
         keys[k].id = e->id;

@@ -51,13 +51,13 @@ typedef struct diag_ctx {
     nodes_result nodes;
 } diag_ctx;
 
-static double m_default_mesh(const tb_model *m) { return m->dim == 2 ? 36.0 : 14.0; }
+int diag_default_mesh(int dim) { return dim == 2 ? 36 : 14; }
 
 static int default_mesh(const tb_model *m, const diag_opts *o)
 {
     if (o && o->mesh > 0) return o->mesh;
     int factor = o && o->mesh_factor > 1 ? o->mesh_factor : 1;
-    return factor * (m->dim == 2 ? 36 : 14);
+    return factor * diag_default_mesh(m->dim);
 }
 
 static int run_symmetry(diag_ctx *c, diag_result *r, bs_err *err)
@@ -129,7 +129,7 @@ static int run_wcc(diag_ctx *c, diag_result *r, bs_err *err)
     if (r->mesh > wo.nk) wo.nk = r->mesh;
     /* A finer mesh also buys a finer and longer bisection of the pumping parameter, so that a
      * rescreen can resolve flows that the default left ambiguous near a transition. */
-    double scale = r->mesh / (m_default_mesh(c->m));
+    double scale = r->mesh / (double)diag_default_mesh(c->m->dim);
     if (scale > 1) {
         wo.min_spacing /= scale * scale;
         wo.max_strings = (int)(wo.max_strings * scale);

@@ -6,6 +6,8 @@
 #include <stdint.h>
 #include <cmocka.h>
 
+#include "testutil.h"
+
 #include <stdio.h>
 #include <stdlib.h>
 #include <string.h>
@@ -19,16 +21,13 @@ static char tmpdir[256];
 static int setup(void **state)
 {
     (void)state;
-    snprintf(tmpdir, sizeof tmpdir, "/tmp/bs_test_pack_XXXXXX");
-    return mkdtemp(tmpdir) ? 0 : -1;
+    return bs_test_tmpdir(tmpdir, sizeof tmpdir, "pack");
 }
 
 static int teardown(void **state)
 {
     (void)state;
-    char cmd[300];
-    snprintf(cmd, sizeof cmd, "rm -rf '%s'", tmpdir);
-    return system(cmd) == 0 ? 0 : -1;
+    return bs_test_rmtree(tmpdir);
 }
 
 /* Runs the binary with args (shell words), stdout and stderr to files; returns the exit status. */

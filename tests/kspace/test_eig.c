@@ -6,6 +6,8 @@
 #include <stdint.h>
 #include <cmocka.h>
 
+#include "testutil.h"
+
 #include <complex.h>
 #include <math.h>
 #include <stdlib.h>
@@ -13,20 +15,11 @@
 
 #include "bandsieve/eig.h"
 
-static double uniform(uint64_t *s)
-{
-    uint64_t z = (*s += 0x9E3779B97F4A7C15ULL);
-    z = (z ^ (z >> 30)) * 0xBF58476D1CE4E5B9ULL;
-    z = (z ^ (z >> 27)) * 0x94D049BB133111EBULL;
-    z ^= z >> 31;
-    return (z >> 11) * (1.0 / 9007199254740992.0);
-}
-
 static void random_hermitian(int n, uint64_t seed, double complex *A)
 {
     for (int j = 0; j < n; j++)
         for (int i = 0; i <= j; i++) {
-            double complex v = (uniform(&seed) - 0.5) + (i == j ? 0 : I * (uniform(&seed) - 0.5));
+            double complex v = (bs_test_uniform(&seed) - 0.5) + (i == j ? 0 : I * (bs_test_uniform(&seed) - 0.5));
             A[i + j * n] = v;
             A[j + i * n] = conj(v);
         }

@@ -7,22 +7,14 @@
 #include <stdint.h>
 #include <cmocka.h>
 
+#include "testutil.h"
+
 #include <complex.h>
 #include <math.h>
 #include <stdlib.h>
 
 #include "bandsieve/hk.h"
 #include "bandsieve/model.h"
-
-/* Deterministic generator (splitmix64), seeded: common practice. */
-static double uniform(uint64_t *s)
-{
-    uint64_t z = (*s += 0x9E3779B97F4A7C15ULL);
-    z = (z ^ (z >> 30)) * 0xBF58476D1CE4E5B9ULL;
-    z = (z ^ (z >> 27)) * 0x94D049BB133111EBULL;
-    z ^= z >> 31;
-    return (z >> 11) * (1.0 / 9007199254740992.0);
-}
 
 /* A random Hermitian model with R in [-2,2]^3 (all 125 vectors), weights 1..3 and H(-R) = H(R)^dagger. */
 static tb_model *random_model(int norb, uint64_t seed)
@@ -46,7 +38,7 @@ static tb_model *random_model(int norb, uint64_t seed)
         if (rm < r) continue;
         for (int i = 0; i < norb; i++)
             for (int j = 0; j < norb; j++) {
-                double complex h = (uniform(&seed) - 0.5) + I * (uniform(&seed) - 0.5);
+                double complex h = (bs_test_uniform(&seed) - 0.5) + I * (bs_test_uniform(&seed) - 0.5);
                 m->H[r * nn + (size_t)i * norb + j] = h;
                 m->H[rm * nn + (size_t)j * norb + i] = conj(h);
             }
@@ -80,7 +72,7 @@ static void test_batched_matches_direct_sum(void **state)
     assert_int_equal(hk_create(m, 16, &e, &err), 0);
     uint64_t seed = 99;
     double *k = malloc(3 * nk * sizeof *k);
-    for (int i = 0; i < 3 * nk; i++) k[i] = uniform(&seed) * 2 - 0.5;
+    for (int i = 0; i < 3 * nk; i++) k[i] = bs_test_uniform(&seed) * 2 - 0.5;
     size_t nn = (size_t)norb * norb;
     double complex *H = malloc(16 * nn * sizeof *H), *Hd = malloc(nn * sizeof *Hd);
     for (int j0 = 0; j0 < nk; j0 += 16) {
@@ -196,7 +188,7 @@ static void test_line_cache_matches_direct_sum(void **state)
                 double t = (double)j / nb, v = 0.1 * s + 0.05;
                 if (family == 0) { k[3 * j] = t; k[3 * j + 1] = v; k[3 * j + 2] = 0.5; }
                 else if (family == 1) { k[3 * j] = 0.0; k[3 * j + 1] = t; k[3 * j + 2] = v; }
-                else for (int d = 0; d < 3; d++) k[3 * j + d] = uniform(&seed);
+                else for (int d = 0; d < 3; d++) k[3 * j + d] = bs_test_uniform(&seed);
             }
             assert_int_equal(hk_lines_build(lines, nb, k, H, &err), 0);
             for (int j = 0; j < nb; j++) {

@@ -6,6 +6,8 @@
 #include <stdint.h>
 #include <cmocka.h>
 
+#include "testutil.h"
+
 #include <complex.h>
 #include <math.h>
 #include <stdio.h>
@@ -20,16 +22,13 @@ static char tmpdir[256];
 static int setup(void **state)
 {
     (void)state;
-    snprintf(tmpdir, sizeof tmpdir, "/tmp/bs_test_card_XXXXXX");
-    return mkdtemp(tmpdir) ? 0 : -1;
+    return bs_test_tmpdir(tmpdir, sizeof tmpdir, "card");
 }
 
 static int teardown(void **state)
 {
     (void)state;
-    char cmd[300];
-    snprintf(cmd, sizeof cmd, "rm -rf '%s'", tmpdir);
-    return system(cmd) == 0 ? 0 : -1;
+    return bs_test_rmtree(tmpdir);
 }
 
 static tb_model *read_ok(const char *path)
@@ -82,33 +81,6 @@ static void test_good_spinful_inversion(void **state)
     tb_model_free(m);
 }
 
-static void expect_same(const tb_model *a, const tb_model *b)
-{
-    assert_string_equal(a->id, b->id);
-    assert_string_equal(a->formula, b->formula);
-    assert_string_equal(a->source, b->source);
-    assert_int_equal(a->dim, b->dim);
-    assert_memory_equal(a->lattice, b->lattice, sizeof a->lattice);
-    assert_int_equal(a->norb, b->norb);
-    assert_int_equal(a->spinful, b->spinful);
-    assert_int_equal(a->spin_layout, b->spin_layout);
-    assert_int_equal(a->nocc, b->nocc);
-    assert_int_equal(a->has_fermi, b->has_fermi);
-    assert_true(a->fermi_ev == b->fermi_ev);
-    assert_memory_equal(a->orb_pos, b->orb_pos, (size_t)a->nspatial * sizeof *a->orb_pos);
-    assert_memory_equal(a->orb_l, b->orb_l, (size_t)a->nspatial * sizeof *a->orb_l);
-    assert_int_equal(a->nR, b->nR);
-    assert_memory_equal(a->R, b->R, (size_t)a->nR * sizeof *a->R);
-    assert_memory_equal(a->deg, b->deg, (size_t)a->nR * sizeof *a->deg);
-    assert_memory_equal(a->H, b->H, (size_t)a->nR * a->norb * a->norb * sizeof *a->H);
-    assert_int_equal(a->has_inversion_op, b->has_inversion_op);
-    if (a->has_inversion_op) {
-        assert_memory_equal(a->inv_perm, b->inv_perm, (size_t)a->norb * sizeof *a->inv_perm);
-        assert_memory_equal(a->inv_sign, b->inv_sign, (size_t)a->norb * sizeof *a->inv_sign);
-        assert_memory_equal(a->inv_shift, b->inv_shift, (size_t)a->norb * sizeof *a->inv_shift);
-    }
-}
-
 static void test_round_trip(void **state)
 {
     (void)state;
@@ -123,7 +95,7 @@ static void test_round_trip(void **state)
         bs_err_clear(&err);
         assert_int_equal(card_write(m, tmpdir, path, sizeof path, &err), 0);
         tb_model *back = read_ok(path);
-        expect_same(m, back);
+        bs_test_expect_same_model(m, back);
         tb_model_free(back);
         tb_model_free(m);
     }

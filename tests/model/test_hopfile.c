@@ -7,6 +7,8 @@
 #include <stdint.h>
 #include <cmocka.h>
 
+#include "testutil.h"
+
 #include <complex.h>
 #include <math.h>
 #include <stdio.h>
@@ -23,25 +25,13 @@ static char tmpdir[256];
 static int setup(void **state)
 {
     (void)state;
-    snprintf(tmpdir, sizeof tmpdir, "/tmp/bs_test_hopfile_XXXXXX");
-    return mkdtemp(tmpdir) ? 0 : -1;
+    return bs_test_tmpdir(tmpdir, sizeof tmpdir, "hopfile");
 }
 
 static int teardown(void **state)
 {
     (void)state;
-    char cmd[300];
-    snprintf(cmd, sizeof cmd, "rm -rf '%s'", tmpdir);
-    return system(cmd) == 0 ? 0 : -1;
-}
-
-static double uniform(uint64_t *s) /* splitmix64, seeded: common practice */
-{
-    uint64_t z = (*s += 0x9E3779B97F4A7C15ULL);
-    z = (z ^ (z >> 30)) * 0xBF58476D1CE4E5B9ULL;
-    z = (z ^ (z >> 27)) * 0x94D049BB133111EBULL;
-    z ^= z >> 31;
-    return (z >> 11) * (1.0 / 9007199254740992.0);
+    return bs_test_rmtree(tmpdir);
 }
 
 /* A random model (not Hermitian: the table layer does not care) with norb states and nR vectors. */
@@ -58,8 +48,8 @@ static tb_model *random_model(int norb, int nR, uint64_t seed)
         m->deg[r] = 1 + r % 4;
     }
     for (size_t i = 0; i < (size_t)nR * norb * norb; i++) {
-        double re = (uniform(&seed) - 0.5) * pow(10.0, (int)(uniform(&seed) * 12) - 6);
-        m->H[i] = CMPLX(re, uniform(&seed) - 0.5);
+        double re = (bs_test_uniform(&seed) - 0.5) * pow(10.0, (int)(bs_test_uniform(&seed) * 12) - 6);
+        m->H[i] = CMPLX(re, bs_test_uniform(&seed) - 0.5);
     }
     return m;
 }

@@ -7,6 +7,8 @@
 #include <stdint.h>
 #include <cmocka.h>
 
+#include "testutil.h"
+
 #include <complex.h>
 #include <hdf5.h>
 #include <math.h>
@@ -25,25 +27,13 @@ static char tmpdir[256];
 static int setup(void **state)
 {
     (void)state;
-    snprintf(tmpdir, sizeof tmpdir, "/tmp/bs_test_matset_XXXXXX");
-    return mkdtemp(tmpdir) ? 0 : -1;
+    return bs_test_tmpdir(tmpdir, sizeof tmpdir, "matset");
 }
 
 static int teardown(void **state)
 {
     (void)state;
-    char cmd[300];
-    snprintf(cmd, sizeof cmd, "rm -rf '%s'", tmpdir);
-    return system(cmd) == 0 ? 0 : -1;
-}
-
-static double uniform(uint64_t *s) /* splitmix64, seeded: common practice */
-{
-    uint64_t z = (*s += 0x9E3779B97F4A7C15ULL);
-    z = (z ^ (z >> 30)) * 0xBF58476D1CE4E5B9ULL;
-    z = (z ^ (z >> 27)) * 0x94D049BB133111EBULL;
-    z ^= z >> 31;
-    return (z >> 11) * (1.0 / 9007199254740992.0);
+    return bs_test_rmtree(tmpdir);
 }
 
 /* A random Hermitian spinful 3D model, 3 orbitals (6 states), R in {-1,0,1}^3, interleaved. */
@@ -58,8 +48,8 @@ static tb_model *random_model(const char *id, uint64_t seed)
     m->spin_layout = TB_SPIN_INTERLEAVED;
     m->nocc = 2;
     for (int i = 0; i < 3; i++) {
-        for (int d = 0; d < 3; d++) m->lattice[i][d] = (i == d ? 4.0 : 0.0) + uniform(&seed) * 0.1;
-        for (int d = 0; d < 3; d++) m->orb_pos[i][d] = uniform(&seed);
+        for (int d = 0; d < 3; d++) m->lattice[i][d] = (i == d ? 4.0 : 0.0) + bs_test_uniform(&seed) * 0.1;
+        for (int d = 0; d < 3; d++) m->orb_pos[i][d] = bs_test_uniform(&seed);
         m->orb_l[i] = i;
     }
     int n = 6, r = 0;
@@ -74,7 +64,7 @@ static tb_model *random_model(const char *id, uint64_t seed)
         if (mr < r) continue;
         for (int i = 0; i < n; i++)
             for (int j = 0; j < n; j++) {
-                double complex h = CMPLX(uniform(&seed) - 0.5, uniform(&seed) - 0.5);
+                double complex h = CMPLX(bs_test_uniform(&seed) - 0.5, bs_test_uniform(&seed) - 0.5);
                 if (r == mr && i == j) h = creal(h);
                 if (r == mr && j < i) continue;
                 m->H[((size_t)r * n + i) * n + j] = h;
@@ -82,34 +72,6 @@ static tb_model *random_model(const char *id, uint64_t seed)
             }
     }
     return m;
-}
-
-static void expect_same(const tb_model *a, const tb_model *b)
-{
-    assert_string_equal(a->id, b->id);
-    assert_string_equal(a->formula, b->formula);
-    assert_string_equal(a->source, b->source);
-    assert_int_equal(a->dim, b->dim);
-    assert_memory_equal(a->lattice, b->lattice, sizeof a->lattice);
-    assert_int_equal(a->norb, b->norb);
-    assert_int_equal(a->nspatial, b->nspatial);
-    assert_int_equal(a->spinful, b->spinful);
-    assert_int_equal(a->spin_layout, b->spin_layout);
-    assert_int_equal(a->nocc, b->nocc);
-    assert_int_equal(a->has_fermi, b->has_fermi);
-    assert_true(a->fermi_ev == b->fermi_ev);
-    assert_memory_equal(a->orb_pos, b->orb_pos, (size_t)a->nspatial * sizeof *a->orb_pos);
-    assert_memory_equal(a->orb_l, b->orb_l, (size_t)a->nspatial * sizeof *a->orb_l);
-    assert_int_equal(a->nR, b->nR);
-    assert_memory_equal(a->R, b->R, (size_t)a->nR * sizeof *a->R);
-    assert_memory_equal(a->deg, b->deg, (size_t)a->nR * sizeof *a->deg);
-    assert_memory_equal(a->H, b->H, (size_t)a->nR * a->norb * a->norb * sizeof *a->H);
-    assert_int_equal(a->has_inversion_op, b->has_inversion_op);
-    if (a->has_inversion_op) {
-        assert_memory_equal(a->inv_perm, b->inv_perm, (size_t)a->norb * sizeof *a->inv_perm);
-        assert_memory_equal(a->inv_sign, b->inv_sign, (size_t)a->norb * sizeof *a->inv_sign);
-        assert_memory_equal(a->inv_shift, b->inv_shift, (size_t)a->norb * sizeof *a->inv_shift);
-    }
 }
 
 static tb_model *load_card(const char *path, int flags)
@@ -178,7 +140,7 @@ static void test_round_trip(void **state)
         assert_true(e->cost == n * n * n + models[i]->nR * n * n); /* the documented estimate */
         tb_model *back = NULL;
         if (ms_read(s, i, &back, &err) != 0) fail_msg("%s", err.msg);
-        expect_same(models[i], back);
+        bs_test_expect_same_model(models[i], back);
         tb_model_free(back);
     }
     assert_int_equal(ms_entry_at(s, 4)->status, MS_STATUS_BROKEN);

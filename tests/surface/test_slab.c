@@ -7,6 +7,8 @@
 #include <stdint.h>
 #include <cmocka.h>
 
+#include "testutil.h"
+
 #include <complex.h>
 #include <math.h>
 #include <stdlib.h>
@@ -16,16 +18,6 @@
 #include "bandsieve/hk.h"
 #include "bandsieve/lattice_models.h"
 #include "bandsieve/slab.h"
-
-static tb_model *build(const char *spec)
-{
-    tb_model *m = NULL;
-    bs_err err;
-    bs_err_clear(&err);
-    int rc = lm_build(spec, &m, &err);
-    if (rc != 0) fail_msg("%s: %s", spec, err.msg);
-    return m;
-}
 
 static int det3(int M[3][3])
 {
@@ -41,7 +33,7 @@ static void test_basis_properties(void **state)
     static const int planes[][3] = {{1, 1, 1}, {0, 0, 1}, {1, 1, 0}, {1, 0, 0}, {1, -1, 2}, {2, 1, 3}, {-3, 2, 5}, {0, 1, 1}};
     const char *specs[] = {"fkm", "weyl"};
     for (int s = 0; s < 2; s++) {
-        tb_model *m = build(specs[s]);
+        tb_model *m = bs_test_build(specs[s]);
         for (size_t p = 0; p < sizeof planes / sizeof planes[0]; p++) {
             int M[3][3];
             bs_err err;
@@ -63,7 +55,7 @@ static void test_basis_properties(void **state)
 static void test_basis_ribbon(void **state)
 {
     (void)state;
-    tb_model *m = build("kane_mele");
+    tb_model *m = bs_test_build("kane_mele");
     int M[3][3], G[3] = {0, 1, 0};
     bs_err err;
     bs_err_clear(&err);
@@ -99,7 +91,7 @@ static void eigenvalues_bulk(const tb_model *m, const double k[3], double *E)
 static void test_rebased_spectrum(void **state)
 {
     (void)state;
-    tb_model *m = build("fkm:dt=0.3,stag=0.2");
+    tb_model *m = bs_test_build("fkm:dt=0.3,stag=0.2");
     static const double ks[3][3] = {{0.1, 0.27, -0.33}, {0.5, 0.0, 0.25}, {0.41, -0.12, 0.07}};
     static const int planes[3][3] = {{1, 1, 1}, {1, 1, 0}, {2, 1, 3}};
     static const double cuts[3] = {0.0, 0.4, -0.7};
@@ -138,7 +130,7 @@ static void test_slab_blocks_weyl(void **state)
 {
     (void)state;
     double t = 1.3, mm = 0.8, w = 0.2;
-    tb_model *m = build("weyl:t=1.3,m=0.8,w=0.2");
+    tb_model *m = bs_test_build("weyl:t=1.3,m=0.8,w=0.2");
     slab *s = NULL;
     bs_err err;
     bs_err_clear(&err);
@@ -174,7 +166,7 @@ static void test_slab_blocks_weyl(void **state)
 static void test_weights(void **state)
 {
     (void)state;
-    tb_model *m = build("weyl");
+    tb_model *m = bs_test_build("weyl");
     slab *s = NULL;
     bs_err err;
     bs_err_clear(&err);
@@ -196,7 +188,7 @@ static void test_weights(void **state)
 static void test_bad_input(void **state)
 {
     (void)state;
-    tb_model *m3 = build("fkm"), *m2 = build("kane_mele");
+    tb_model *m3 = bs_test_build("fkm"), *m2 = bs_test_build("kane_mele");
     slab *s = NULL;
     bs_err err;
     struct { tb_model *m; int G[3]; int N; const char *msg; } cases[] = {

@@ -8,6 +8,8 @@
 #include <stdint.h>
 #include <cmocka.h>
 
+#include "testutil.h"
+
 #include <complex.h>
 #include <math.h>
 #include <stdio.h>
@@ -29,17 +31,6 @@
 /* Residual of an exact symmetry: sums of O(10) terms of O(1) eV in double precision leave
  * ~1e-15 relative; 1e-12 leaves room and is still six orders below the detection tolerance. */
 #define EXACT_TOL 1e-12
-
-static tb_model *build(const char *spec)
-{
-    tb_model *m = NULL;
-    bs_err err;
-    bs_err_clear(&err);
-    int rc = lm_build(spec, &m, &err);
-    if (rc != 0) fprintf(stderr, "lm_build(%s): %s\n", spec, err.msg);
-    assert_int_equal(rc, 0);
-    return m;
-}
 
 static sym_info *detect(const tb_model *m, unsigned long long seed)
 {
@@ -105,7 +96,7 @@ static void test_published_models(void **state)
 {
     (void)state;
     for (size_t i = 0; i < sizeof cases / sizeof cases[0]; i++) {
-        tb_model *m = build(cases[i].spec);
+        tb_model *m = bs_test_build(cases[i].spec);
         sym_info *s = detect(m, 7 + i);
         if (s->time_reversal != cases[i].tr || s->inversion != cases[i].inv)
             fail_msg("%s (%s): TR %d (res %.3g) INV %d (res %.3g), expected %d %d; note: %s",
@@ -140,7 +131,7 @@ static void test_published_models(void **state)
 static void test_graphene_matrix_by_hand(void **state)
 {
     (void)state;
-    tb_model *m = build("graphene");
+    tb_model *m = bs_test_build("graphene");
     sym_info *s = detect(m, 3);
     assert_int_equal(s->inversion, 1);
     assert_int_equal(s->inv_source, SYM_INV_POSITIONS);
@@ -193,7 +184,7 @@ static void check_matrix(const tb_model *m, const sym_info *s, const double k[3]
 static void test_fkm_bond_centre_and_matrix(void **state)
 {
     (void)state;
-    tb_model *m = build("fkm");
+    tb_model *m = bs_test_build("fkm");
     sym_info *s = detect(m, 11);
     assert_int_equal(s->inversion, 1);
     for (int d = 0; d < 3; d++) assert_close(s->inv_centre[d], 0.125, 1e-12);
@@ -201,7 +192,7 @@ static void test_fkm_bond_centre_and_matrix(void **state)
     check_matrix(m, s, k);
     sym_info_free(s);
 
-    tb_model *g = build("bhz:g=0.3");
+    tb_model *g = bs_test_build("bhz:g=0.3");
     s = detect(g, 12);
     double k2[3] = {0.21, 0.38, 0.0};
     check_matrix(g, s, k2);
@@ -278,7 +269,7 @@ static void test_basis_invariance(void **state)
 {
     (void)state;
     for (size_t i = 0; i < sizeof cases / sizeof cases[0]; i++) {
-        tb_model *m = build(cases[i].spec);
+        tb_model *m = bs_test_build(cases[i].spec);
         for (int trial = 0; trial < 2; trial++) {
             tb_model *q = scramble(m, 100 * i + trial, trial ? TB_SPIN_INTERLEAVED : TB_SPIN_BLOCKS);
             sym_info *s = detect(q, 5 + trial);
@@ -323,7 +314,7 @@ static void test_card_operator(void **state)
     const int shift[2][3] = {{-1, -1, 0}, {-1, -1, 0}};
     const int swap[2] = {1, 0};
     const double minus[2] = {-1, -1};
-    tb_model *m = build("graphene");
+    tb_model *m = bs_test_build("graphene");
     set_card_operator(m, swap, minus, shift);
     sym_info *s = detect(m, 1);
     assert_int_equal(s->inversion, 1);
@@ -335,7 +326,7 @@ static void test_card_operator(void **state)
     /* Identity map on graphene: P H P = H(-k) fails (H_AB(k) != H_AB(-k)), positions rescue. */
     const int ident[2] = {0, 1};
     const int zero[2][3] = {{0, 0, 0}, {0, 0, 0}};
-    m = build("graphene");
+    m = bs_test_build("graphene");
     set_card_operator(m, ident, minus, zero);
     s = detect(m, 1);
     assert_int_equal(s->inversion, 1);
@@ -346,7 +337,7 @@ static void test_card_operator(void **state)
 
     /* Malformed: signs -1, +1 on partners square to -1. */
     const double mixed[2] = {-1, 1};
-    m = build("graphene");
+    m = bs_test_build("graphene");
     set_card_operator(m, swap, mixed, shift);
     bs_err err;
     bs_err_clear(&err);
@@ -358,7 +349,7 @@ static void test_card_operator(void **state)
 
     /* Malformed: a target outside the basis. */
     const int bad[2] = {1, 5};
-    m = build("graphene");
+    m = bs_test_build("graphene");
     set_card_operator(m, bad, minus, shift);
     bs_err_clear(&err);
     assert_int_equal(sym_detect(m, NULL, &s, &err), BS_EINVAL);
@@ -371,7 +362,7 @@ static void test_card_operator(void **state)
 static void test_no_candidate(void **state)
 {
     (void)state;
-    tb_model *m = build("graphene");
+    tb_model *m = bs_test_build("graphene");
     m->orb_l[0] = 0;
     sym_info *s = detect(m, 2);
     assert_int_equal(s->inversion, 0);
@@ -389,7 +380,7 @@ static void test_no_candidate(void **state)
 static void test_seed_reproducible(void **state)
 {
     (void)state;
-    tb_model *m = build("kane_mele:lambda_v=0.1,lambda_R=0");
+    tb_model *m = bs_test_build("kane_mele:lambda_v=0.1,lambda_R=0");
     sym_info *a = detect(m, 42), *b = detect(m, 42);
     assert_true(a->inv_residual == b->inv_residual);
     assert_true(a->tr_residual == b->tr_residual);

@@ -8,6 +8,8 @@
 #include <stdint.h>
 #include <cmocka.h>
 
+#include "testutil.h"
+
 #include <complex.h>
 #include <math.h>
 #include <stdio.h>
@@ -22,33 +24,6 @@
 #include "bandsieve/hk.h"
 #include "bandsieve/lattice_models.h"
 #include "bandsieve/transform.h"
-
-static tb_model *build(const char *spec)
-{
-    tb_model *m = NULL;
-    bs_err err;
-    bs_err_clear(&err);
-    int rc = lm_build(spec, &m, &err);
-    if (rc != 0) fprintf(stderr, "%s: %s\n", spec, err.msg);
-    assert_int_equal(rc, 0);
-    return m;
-}
-
-/* Random orbital phases (radians) for m from a seeded generator; where m carries an explicit
- * inversion operator, partners get the same phase up to a random multiple of pi, as tf_phase
- * requires (the operator's signs must stay real). */
-static void random_phases(const tb_model *m, unsigned long long *seed, double *phi)
-{
-    for (int o = 0; o < m->nspatial; o++) {
-        *seed = *seed * 6364136223846793005ULL + 1442695040888963407ULL;
-        phi[o] = 2 * M_PI * (double)(*seed >> 11) / 9007199254740992.0;
-    }
-    if (!m->has_inversion_op) return;
-    for (int o = 0; o < m->nspatial; o++) {
-        int j = tb_state_orbital(m, m->inv_perm[tb_state_index(m, o, 0)]);
-        if (j > o) phi[j] = phi[o] + ((*seed >> (o % 60)) & 1 ? M_PI : 0.0);
-    }
-}
 
 /* Chern number of plane p of m at the defaults, printing the cost. */
 static chern_value plane_value(const tb_model *m, int p, const chern_opts *o)
@@ -141,7 +116,7 @@ static void test_haldane_chern_sign(void **state)
     const char *spec[3] = {"haldane:phi=0.5,M=0", "haldane:phi=-0.5,M=0", "haldane:phi=0.5,M=0.3"};
     const int expect[3] = {-1, 1, -1};
     for (int i = 0; i < 3; i++) {
-        tb_model *m = build(spec[i]);
+        tb_model *m = bs_test_build(spec[i]);
         chern_value v = plane_value(m, 4, NULL);
         assert_int_equal(v.status, DIAG_DONE);
         assert_int_equal(v.chern, expect[i]);
@@ -162,7 +137,7 @@ static void test_haldane_trivial(void **state)
                            "haldane:phi=0.1666666667,M=0.2"};
     const int expect[4] = {0, 0, 0, -1};
     for (int i = 0; i < 4; i++) {
-        tb_model *m = build(spec[i]);
+        tb_model *m = bs_test_build(spec[i]);
         chern_value v = plane_value(m, 4, NULL);
         assert_int_equal(v.status, DIAG_DONE);
         assert_int_equal(v.chern, expect[i]);
@@ -175,12 +150,12 @@ static void test_haldane_trivial(void **state)
 static void test_time_reversal_zero(void **state)
 {
     (void)state;
-    tb_model *m = build("kane_mele");
+    tb_model *m = bs_test_build("kane_mele");
     chern_value v = plane_value(m, 4, NULL);
     assert_int_equal(v.status, DIAG_DONE);
     assert_int_equal(v.chern, 0);
     tb_model_free(m);
-    m = build("atomic");
+    m = bs_test_build("atomic");
     for (int p = 0; p < 6; p++) {
         v = plane_value(m, p, NULL);
         assert_int_equal(v.status, DIAG_DONE);
@@ -197,7 +172,7 @@ static void test_time_reversal_zero(void **state)
 static void test_weyl_chirality(void **state)
 {
     (void)state;
-    tb_model *m = build("weyl");
+    tb_model *m = bs_test_build("weyl");
     const double kp[3] = {0.25, 0, 0}, km[3] = {-0.25, 0, 0}, kr[3] = {0.5, 0.5, 0.5};
     const double off[3] = {0.27, 0.013, -0.02}; /* off-centre cube, still enclosing +1/4 */
     chern_value v = cube_value(m, kp, 0.05);
@@ -227,7 +202,7 @@ static void test_weyl_chirality(void **state)
 static void test_weyl_planes(void **state)
 {
     (void)state;
-    tb_model *m = build("weyl");
+    tb_model *m = bs_test_build("weyl");
     chern_value c0 = plane_value(m, 0, NULL), c1 = plane_value(m, 1, NULL);
     assert_int_equal(c0.status, DIAG_DONE);
     assert_int_equal(c1.status, DIAG_DONE);
@@ -252,7 +227,7 @@ static void test_weyl_planes(void **state)
 static void test_refinement(void **state)
 {
     (void)state;
-    tb_model *m = build("haldane:M=0.45"); /* gap 0.14 eV near K: curvature concentrated there */
+    tb_model *m = bs_test_build("haldane:M=0.45"); /* gap 0.14 eV near K: curvature concentrated there */
     chern_opts o;
     chern_opts_default(&o, 0);
     o.fmax = 0.3; /* max |F| is 0.80 at the default mesh 24: refinement must go to 96 */
@@ -279,13 +254,13 @@ static void test_basis_invariance(void **state)
     unsigned long long seed = 12345;
     const char *spec[2] = {"haldane:M=0.2", "weyl"};
     for (int s = 0; s < 2; s++) {
-        tb_model *m = build(spec[s]), *p = NULL, *q = NULL;
+        tb_model *m = bs_test_build(spec[s]), *p = NULL, *q = NULL;
         int ns = m->nspatial;
         int perm[2] = {1, 0};
         double phi[2];
         assert_int_equal(ns, 2);
         assert_int_equal(tf_permute(m, perm, &p, &err), 0);
-        random_phases(p, &seed, phi);
+        bs_test_random_phases(p, &seed, phi);
         if (tf_phase(p, phi, &q, &err) != 0) fprintf(stderr, "%s\n", err.msg);
         assert_non_null(q);
         if (m->dim == 2) {
@@ -310,7 +285,7 @@ static void test_errors(void **state)
 {
     (void)state;
     bs_err err;
-    tb_model *m2 = build("haldane"), *m3 = build("weyl");
+    tb_model *m2 = bs_test_build("haldane"), *m3 = bs_test_build("weyl");
     chern_ws *w = NULL;
     bs_err_clear(&err);
     assert_int_equal(chern_create(m2, 0, &w, &err), BS_EINVAL);

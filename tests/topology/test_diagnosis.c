@@ -7,6 +7,8 @@
 #include <stdint.h>
 #include <cmocka.h>
 
+#include "testutil.h"
+
 #include <math.h>
 #include <stdio.h>
 #include <stdlib.h>
@@ -229,15 +231,6 @@ static void test_line_metal_insulator(void **state)
     diag_result_clear(&r);
 }
 
-/* splitmix64 for the random permutations and phases (seeded: deterministic). */
-static double uniform(uint64_t *s)
-{
-    uint64_t z = (*s += 0x9E3779B97F4A7C15ULL);
-    z = (z ^ (z >> 30)) * 0xBF58476D1CE4E5B9ULL;
-    z = (z ^ (z >> 27)) * 0x94D049BB133111EBULL;
-    return ((z ^ (z >> 31)) >> 11) * (1.0 / 9007199254740992.0);
-}
-
 /* Invariants do not change under a permutation of the orbitals, a change of their phases, or the
  * spin layout (common practice: they are properties of the Hamiltonian, not of its basis). */
 static void test_basis_invariance(void **state)
@@ -256,11 +249,11 @@ static void test_basis_invariance(void **state)
         double phi[16];
         for (int i = 0; i < no; i++) perm[i] = i;
         for (int i = no - 1; i > 0; i--) {
-            int j = (int)(uniform(&seed) * (i + 1));
+            int j = (int)(bs_test_uniform(&seed) * (i + 1));
             int tmp = perm[i]; perm[i] = perm[j]; perm[j] = tmp;
         }
         if (no > 1 && perm[0] == 0) { int tmp = perm[0]; perm[0] = perm[1]; perm[1] = tmp; }
-        for (int i = 0; i < no; i++) phi[i] = 2 * M_PI * uniform(&seed);
+        for (int i = 0; i < no; i++) phi[i] = 2 * M_PI * bs_test_uniform(&seed);
         assert_int_equal(tf_permute(m, perm, &p, &err), 0);
         assert_int_equal(tf_phase(p, phi, &q, &err), 0);
         if (m->spinful) assert_int_equal(tf_spin_layout(q, TB_SPIN_INTERLEAVED, &t, &err), 0);

@@ -6,6 +6,8 @@
 #include <stdint.h>
 #include <cmocka.h>
 
+#include "testutil.h"
+
 #include <math.h>
 #include <stdio.h>
 #include <stdlib.h>
@@ -29,17 +31,6 @@
     } while (0)
 
 #define REF_SCRIPT BS_TEST_DATA "/../topology/gaps_ref.py"
-
-static tb_model *build(const char *spec)
-{
-    tb_model *m = NULL;
-    bs_err err;
-    bs_err_clear(&err);
-    int rc = lm_build(spec, &m, &err);
-    if (rc != 0) fprintf(stderr, "lm_build(%s): %s\n", spec, err.msg);
-    assert_int_equal(rc, 0);
-    return m;
-}
 
 static void run_gaps(const tb_model *m, const gaps_opts *o, gaps_result *g)
 {
@@ -112,7 +103,7 @@ static tb_model *generic_model(int norb, int dim, uint64_t seed, double hop)
 static void test_atomic_gap_analytic(void **state)
 {
     (void)state;
-    tb_model *m = build("atomic");
+    tb_model *m = bs_test_build("atomic");
     gaps_result g;
     run_gaps(m, NULL, &g);
     assert_close(g.gap_direct_ev, 4.0, 1e-9);
@@ -132,7 +123,7 @@ static void test_metal_indirect_negative(void **state)
     const char *specs[2] = {"metal", "metal:dim=2"};
     const double indirect[2] = {2 * s - 12.0, 2 * s - 8.0};
     for (int i = 0; i < 2; i++) {
-        tb_model *m = build(specs[i]);
+        tb_model *m = bs_test_build(specs[i]);
         gaps_result g;
         run_gaps(m, NULL, &g);
         assert_close(g.gap_direct_ev, 2 * s, 1e-9);
@@ -153,7 +144,7 @@ static void test_metal_indirect_negative(void **state)
 static void test_graphene_gap_closes_at_K(void **state)
 {
     (void)state;
-    tb_model *m = build("graphene");
+    tb_model *m = bs_test_build("graphene");
     gaps_opts o;
     gaps_opts_init(&o);
     o.mesh = 20; /* not a multiple of 3: K is not a mesh point and must be found by the refinement */
@@ -262,7 +253,7 @@ static void test_band_pair_both_solver_paths(void **state)
 static void test_errors(void **state)
 {
     (void)state;
-    tb_model *m = build("atomic");
+    tb_model *m = bs_test_build("atomic");
     hk_engine *hk = NULL;
     bs_err err;
     bs_err_clear(&err);
@@ -288,7 +279,7 @@ static void test_errors(void **state)
     m->nocc = nocc;
 
     bs_err_clear(&err);
-    tb_model *other = build("graphene"); /* 2 states against an engine for 4 */
+    tb_model *other = bs_test_build("graphene"); /* 2 states against an engine for 4 */
     assert_int_equal(gaps_find(other, hk, NULL, &g, &err), BS_EINVAL);
     assert_non_null(strstr(err.msg, "states"));
     tb_model_free(other);

@@ -8,6 +8,8 @@
 #include <stdint.h>
 #include <cmocka.h>
 
+#include "testutil.h"
+
 #include <math.h>
 #include <stdio.h>
 #include <stdlib.h>
@@ -17,17 +19,6 @@
 #include "bandsieve/parity.h"
 #include "bandsieve/symmetry.h"
 #include "bandsieve/transform.h"
-
-static tb_model *build(const char *spec)
-{
-    tb_model *m = NULL;
-    bs_err err;
-    bs_err_clear(&err);
-    int rc = lm_build(spec, &m, &err);
-    if (rc != 0) fprintf(stderr, "lm_build(%s): %s\n", spec, err.msg);
-    assert_int_equal(rc, 0);
-    return m;
-}
 
 static sym_info *detect(const tb_model *m)
 {
@@ -54,7 +45,7 @@ static void parity_of(const tb_model *m, par_result *r)
 /* Checks the status and, when done, the formatted indices ("1", "1;111"). */
 static void expect_z2(const char *spec, int status, const char *z2, const char *source)
 {
-    tb_model *m = build(spec);
+    tb_model *m = bs_test_build(spec);
     par_result r;
     parity_of(m, &r);
     char got[16];
@@ -88,7 +79,7 @@ static void test_kane_mele(void **state)
      * potential breaks inversion, so the parity criterion must decline (PRB 76, 045302). */
     expect_z2("kane_mele:lambda_v=0.2,lambda_R=0", PAR_NA, NULL, "inversion broken, TI side");
     expect_z2("kane_mele:lambda_v=0.45,lambda_R=0", PAR_NA, NULL, "inversion broken, trivial side");
-    tb_model *m = build("kane_mele:lambda_v=0.45,lambda_R=0");
+    tb_model *m = bs_test_build("kane_mele:lambda_v=0.45,lambda_R=0");
     par_result r;
     parity_of(m, &r);
     assert_non_null(strstr(r.reason, "no inversion"));
@@ -110,7 +101,7 @@ static void test_bhz(void **state)
     expect_z2("bhz:M=0", PAR_GAP_CLOSED, NULL, "critical M = 0 at Gamma");
     expect_z2("bhz:M=4", PAR_GAP_CLOSED, NULL, "critical M/B = 4 at X, Y");
     expect_z2("bhz:delta=0.2", PAR_NA, NULL, "inversion broken");
-    tb_model *m = build("bhz:M=0");
+    tb_model *m = bs_test_build("bhz:M=0");
     par_result r;
     parity_of(m, &r);
     assert_non_null(strstr(r.reason, "gap closed at TRIM (0,0,0)"));
@@ -148,7 +139,7 @@ static void test_spinless_not_applicable(void **state)
     (void)state;
     expect_z2("graphene", PAR_NA, NULL, "spinless");
     expect_z2("haldane:phi=0", PAR_NA, NULL, "spinless, TR");
-    tb_model *m = build("graphene");
+    tb_model *m = bs_test_build("graphene");
     par_result r;
     parity_of(m, &r);
     assert_non_null(strstr(r.reason, "spinless"));
@@ -167,8 +158,8 @@ static void test_spinless_not_applicable(void **state)
 static void test_ambiguous_and_errors(void **state)
 {
     (void)state;
-    tb_model *good = build("kane_mele:lambda_v=0,lambda_R=0");
-    tb_model *bad = build("kane_mele:lambda_v=0.3,lambda_R=0");
+    tb_model *good = bs_test_build("kane_mele:lambda_v=0,lambda_R=0");
+    tb_model *bad = bs_test_build("kane_mele:lambda_v=0.3,lambda_R=0");
     sym_info *s = detect(good);
     par_result r;
     bs_err err;
@@ -178,8 +169,8 @@ static void test_ambiguous_and_errors(void **state)
     assert_non_null(strstr(r.reason, "off +-1"));
     assert_true(r.max_dev > 1e-3);
 
-    tb_model *big = build("fkm");
-    tb_model *other = build("graphene");
+    tb_model *big = bs_test_build("fkm");
+    tb_model *other = bs_test_build("graphene");
     sym_info *s2 = detect(other);
     bs_err_clear(&err);
     assert_int_equal(par_z2(big, s2, NULL, &r, &err), BS_EINVAL);
@@ -243,7 +234,7 @@ static void test_basis_invariance(void **state)
     const char *specs[] = {"kane_mele:lambda_v=0,lambda_R=0", "bhz:M=1,g=0.3", "bhz:M=-1",
                            "fkm:dt=0.4", "fkm:dt=-0.4", "atomic:dim=3"};
     for (size_t i = 0; i < sizeof specs / sizeof specs[0]; i++) {
-        tb_model *m = build(specs[i]);
+        tb_model *m = bs_test_build(specs[i]);
         par_result ref;
         parity_of(m, &ref);
         assert_int_equal(ref.status, PAR_DONE);
@@ -322,7 +313,7 @@ static void test_direct_sums(void **state)
         {"bhz:M=1", "bhz:M=-1", "1"},
     };
     for (size_t i = 0; i < sizeof pairs / sizeof pairs[0]; i++) {
-        tb_model *a = build(pairs[i][0]), *b = build(pairs[i][1]);
+        tb_model *a = bs_test_build(pairs[i][0]), *b = bs_test_build(pairs[i][1]);
         tb_model *m = direct_sum(a, b);
         for (int variant = 0; variant < 2; variant++) {
             tb_model *q = m;
@@ -359,7 +350,7 @@ static void test_direct_sums(void **state)
 static void test_card_operator(void **state)
 {
     (void)state;
-    tb_model *m = build("bhz:M=1");
+    tb_model *m = bs_test_build("bhz:M=1");
     int n = m->norb;
     m->has_inversion_op = 1;
     m->inv_perm = malloc((size_t)n * sizeof *m->inv_perm);

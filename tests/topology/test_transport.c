@@ -9,6 +9,8 @@
 #include <stdint.h>
 #include <cmocka.h>
 
+#include "testutil.h"
+
 #include <complex.h>
 #include <math.h>
 #include <stdio.h>
@@ -23,17 +25,6 @@
 #include "bandsieve/hk.h"
 #include "bandsieve/lattice_models.h"
 #include "bandsieve/transport.h"
-
-static tb_model *build(const char *spec)
-{
-    tb_model *m = NULL;
-    bs_err err;
-    bs_err_clear(&err);
-    int rc = lm_build(spec, &m, &err);
-    if (rc != 0) fprintf(stderr, "%s: %s\n", spec, err.msg);
-    assert_int_equal(rc, 0);
-    return m;
-}
 
 static tr_result run(const tb_model *m, const tr_opts *o)
 {
@@ -85,7 +76,7 @@ static void test_haldane_phase_diagram(void **state)
     tr_opts_default(&o);
     o.tol = 2e-4;
     for (int i = 0; i < 8; i++) {
-        tb_model *m = build(spec[i]);
+        tb_model *m = bs_test_build(spec[i]);
         int c = plane_chern(m, 4);
         assert_int_equal(abs(c), topological[i]);
         tr_result r = run(m, &o);
@@ -106,7 +97,7 @@ static void test_haldane_phase_diagram(void **state)
 static void test_gauge_insulator(void **state)
 {
     (void)state;
-    tb_model *m = build("haldane:M=0.3");
+    tb_model *m = bs_test_build("haldane:M=0.3");
     tr_opts o;
     tr_opts_default(&o);
     o.tol = 2e-4;
@@ -127,7 +118,7 @@ static void test_gauge_insulator(void **state)
 static void test_fermi_scan(void **state)
 {
     (void)state;
-    tb_model *m = build("haldane:M=0");
+    tb_model *m = bs_test_build("haldane:M=0");
     tr_opts o;
     tr_opts_default(&o);
     o.tol = 2e-4;
@@ -170,25 +161,25 @@ static void test_fermi_scan(void **state)
 static void test_kane_mele_shc(void **state)
 {
     (void)state;
-    tb_model *h = build("haldane:t1=1,t2=0.06,phi=0.5,M=0.1");
+    tb_model *h = bs_test_build("haldane:t1=1,t2=0.06,phi=0.5,M=0.1");
     int c_up = plane_chern(h, 4);
     tb_model_free(h);
     assert_int_equal(abs(c_up), 1);
     tr_opts o;
     tr_opts_default(&o);
     o.tol = 5e-4;
-    tb_model *m = build("kane_mele:lambda_R=0,lambda_v=0.1");
+    tb_model *m = bs_test_build("kane_mele:lambda_R=0,lambda_v=0.1");
     tr_result r = run(m, &o);
     assert_string_equal(r.shc_units, "e/2pi");
     assert_true(r.has_shc && r.converged);
     assert_true(fabs(r.shc[0] - c_up) < 1e-3);
     assert_true(fabs(r.ahc[0][0]) <= r.ahc_err[0][0] + 1e-9);
     tb_model_free(m);
-    m = build("kane_mele:lambda_R=0,lambda_v=0.5");
+    m = bs_test_build("kane_mele:lambda_R=0,lambda_v=0.5");
     r = run(m, &o);
     assert_true(fabs(r.shc[0]) < 1e-3);
     tb_model_free(m);
-    m = build("kane_mele:lambda_R=0.05,lambda_v=0.1");
+    m = bs_test_build("kane_mele:lambda_R=0.05,lambda_v=0.1");
     r = run(m, &o);
     double dev = fabs(r.shc[0] - c_up);
     printf("    lambda_R = 0.05: departure %.4e, error %.1e\n", dev, r.shc_err[0]);
@@ -207,12 +198,12 @@ static void test_bhz_shc(void **state)
     tr_opts o;
     tr_opts_default(&o);
     o.tol = 5e-4;
-    tb_model *m = build("bhz");
+    tb_model *m = bs_test_build("bhz");
     tr_result r = run(m, &o);
     assert_true(fabs(fabs(r.shc[0]) - 1) < 1e-3);
     assert_true(fabs(r.ahc[0][0]) <= r.ahc_err[0][0] + 1e-9);
     tb_model_free(m);
-    m = build("bhz:M=-1");
+    m = bs_test_build("bhz:M=-1");
     r = run(m, &o);
     assert_true(fabs(r.shc[0]) < 1e-3);
     tb_model_free(m);
@@ -234,7 +225,7 @@ static void test_time_reversal_zero(void **state)
     tr_opts o;
     tr_opts_default(&o);
     for (int i = 0; i < 3; i++) {
-        tb_model *m = build(spec[i]);
+        tb_model *m = bs_test_build(spec[i]);
         if (m->dim == 3) o.tol = 20;
         tr_result r = run(m, &o);
         for (int a = 0; a < (r.dim == 3 ? 3 : 1); a++) {
@@ -263,7 +254,7 @@ static void test_time_reversal_zero(void **state)
 static void test_weyl_ahc(void **state)
 {
     (void)state;
-    tb_model *m = build("weyl:w=0.2");
+    tb_model *m = bs_test_build("weyl:w=0.2");
     int c = plane_chern(m, 1);
     assert_int_equal(abs(c), 1);
     assert_int_equal(plane_chern(m, 0), 0); /* the k1 = 0 plane lies between the nodes */
@@ -288,7 +279,7 @@ static void test_weyl_ahc(void **state)
 static void test_metal_fermi(void **state)
 {
     (void)state;
-    tb_model *m = build("metal:dim=2");
+    tb_model *m = bs_test_build("metal:dim=2");
     tr_opts o;
     tr_opts_default(&o);
     o.max_kpoints = 200000;
@@ -384,7 +375,7 @@ static void test_metal_against_numpy(void **state)
     const char *spec[3] = {"haldane:M=0.2", "kane_mele", "haldane:M=0.2"};
     const double ef[3] = {1.2, 1.0, 1.2};
     for (int i = 0; i < 3; i++) {
-        tb_model *m = build(spec[i]);
+        tb_model *m = bs_test_build(spec[i]);
         if (i == 2) { /* one of the three A-B bonds (the one in R = 0) made 30% stronger */
             const int R0[3] = {0, 0, 0};
             int r0 = tb_model_find_R(m, R0);
@@ -432,7 +423,7 @@ static void test_json(void **state)
     tr_opts_default(&o);
     o.mesh = 4;
     o.max_depth = -1;
-    tb_model *m = build("haldane");
+    tb_model *m = bs_test_build("haldane");
     tr_result r = run(m, &o);
     cJSON *j = tr_to_json(&r);
     assert_non_null(j);
@@ -448,7 +439,7 @@ static void test_json(void **state)
     assert_int_equal(r.nk, 48 * 48 + 16 * 17);
     cJSON_Delete(j);
     tb_model_free(m);
-    m = build("fkm");
+    m = bs_test_build("fkm");
     o.nscan = 3;
     o.scan_lo_ev = -0.1;
     o.scan_hi_ev = 0.1;
@@ -471,7 +462,7 @@ static void test_json(void **state)
 static void test_bad_input(void **state)
 {
     (void)state;
-    tb_model *m = build("haldane");
+    tb_model *m = bs_test_build("haldane");
     tr_result r;
     bs_err err;
     tr_opts o;

@@ -8,6 +8,8 @@
 #include <stdint.h>
 #include <cmocka.h>
 
+#include "testutil.h"
+
 #include <math.h>
 #include <stdio.h>
 #include <stdlib.h>
@@ -25,33 +27,6 @@ static double now(void)
     struct timespec ts;
     clock_gettime(CLOCK_MONOTONIC, &ts);
     return (double)ts.tv_sec + 1e-9 * (double)ts.tv_nsec;
-}
-
-static tb_model *build(const char *spec)
-{
-    tb_model *m = NULL;
-    bs_err err;
-    bs_err_clear(&err);
-    int rc = lm_build(spec, &m, &err);
-    if (rc != 0) fprintf(stderr, "%s: %s\n", spec, err.msg);
-    assert_int_equal(rc, 0);
-    return m;
-}
-
-/* Random orbital phases (radians) for m from a seeded generator; where m carries an explicit
- * inversion operator, partners get the same phase up to a random multiple of pi, as tf_phase
- * requires (the operator's signs must stay real). */
-static void random_phases(const tb_model *m, unsigned long long *seed, double *phi)
-{
-    for (int o = 0; o < m->nspatial; o++) {
-        *seed = *seed * 6364136223846793005ULL + 1442695040888963407ULL;
-        phi[o] = 2 * M_PI * (double)(*seed >> 11) / 9007199254740992.0;
-    }
-    if (!m->has_inversion_op) return;
-    for (int o = 0; o < m->nspatial; o++) {
-        int j = tb_state_orbital(m, m->inv_perm[tb_state_index(m, o, 0)]);
-        if (j > o) phi[j] = phi[o] + ((*seed >> (o % 60)) & 1 ? M_PI : 0.0);
-    }
 }
 
 /* Runs the whole Z2 of a model at the default resolution, printing the cost; the caller clears. */
@@ -74,7 +49,7 @@ static void run_z2(const tb_model *m, const wilson_opts *o, wilson_z2 *r)
 
 static void expect_z2(const char *spec, int status, const int z2[4])
 {
-    tb_model *m = build(spec);
+    tb_model *m = bs_test_build(spec);
     wilson_z2 r;
     run_z2(m, NULL, &r);
     assert_int_equal(r.status, status);
@@ -142,7 +117,7 @@ static void test_atomic_centres(void **state)
     (void)state;
     const char *spec[2] = {"atomic", "atomic:dim=2"};
     for (int s = 0; s < 2; s++) {
-        tb_model *m = build(spec[s]);
+        tb_model *m = bs_test_build(spec[s]);
         wilson_z2 r;
         run_z2(m, NULL, &r);
         assert_int_equal(r.status, DIAG_DONE);
@@ -164,7 +139,7 @@ static void test_atomic_centres(void **state)
 static void test_gap_closing(void **state)
 {
     (void)state;
-    tb_model *m = build("kane_mele:lambda_R=0,lambda_v=0.311769145362398");
+    tb_model *m = bs_test_build("kane_mele:lambda_R=0,lambda_v=0.311769145362398");
     wilson_opts o;
     wilson_opts_default(&o);
     o.nstring = 4;
@@ -192,7 +167,7 @@ static void test_gap_closing(void **state)
 static void test_no_time_reversal(void **state)
 {
     (void)state;
-    tb_model *m = build("haldane");
+    tb_model *m = bs_test_build("haldane");
     wilson_z2 r;
     run_z2(m, NULL, &r);
     assert_int_equal(r.status, DIAG_AMBIGUOUS);
@@ -200,7 +175,7 @@ static void test_no_time_reversal(void **state)
     wilson_z2_clear(&r);
     tb_model_free(m);
 
-    m = build("kane_mele");
+    m = bs_test_build("kane_mele");
     int r0 = tb_model_find_R(m, (int[3]){0, 0, 0});
     assert_true(r0 >= 0);
     for (int i = 0; i < m->norb; i++)
@@ -218,7 +193,7 @@ static void test_no_time_reversal(void **state)
 static void test_budget(void **state)
 {
     (void)state;
-    tb_model *m = build("kane_mele");
+    tb_model *m = bs_test_build("kane_mele");
     wilson_opts o;
     wilson_opts_default(&o);
     o.nstring = 3;
@@ -236,7 +211,7 @@ static void test_budget(void **state)
     wilson_z2_clear(&r);
     tb_model_free(m);
 
-    m = build("atomic:dim=2");
+    m = bs_test_build("atomic:dim=2");
     wilson_opts_default(&o);
     o.nk = 4;
     o.max_nk = 4;
@@ -265,13 +240,13 @@ static void test_basis_invariance(void **state)
     bs_err err;
     bs_err_clear(&err);
     for (int s = 0; s < 3; s++) {
-        tb_model *m = build(spec[s]), *a = NULL, *b = NULL, *c = NULL;
+        tb_model *m = bs_test_build(spec[s]), *a = NULL, *b = NULL, *c = NULL;
         int perm[2] = {1, 0};
         double phi[2];
         assert_int_equal(m->nspatial, 2);
         assert_int_equal(tf_spin_layout(m, TB_SPIN_INTERLEAVED, &a, &err), 0);
         assert_int_equal(tf_permute(a, perm, &b, &err), 0);
-        random_phases(b, &seed, phi);
+        bs_test_random_phases(b, &seed, phi);
         if (tf_phase(b, phi, &c, &err) != 0) fprintf(stderr, "%s\n", err.msg);
         assert_non_null(c);
         wilson_z2 r0, r1;
@@ -302,7 +277,7 @@ static void test_basis_invariance(void **state)
 static void test_take_flows(void **state)
 {
     (void)state;
-    tb_model *m = build("fkm:dt=-0.4");
+    tb_model *m = bs_test_build("fkm:dt=-0.4");
     wilson_z2 r;
     run_z2(m, NULL, &r);
     diag_flow *f = NULL;
@@ -377,7 +352,7 @@ static void test_centres_against_numpy(void **state)
     const int dir[4] = {0, 1, 0, 1}, nk[4] = {24, 24, 24, 150};
     const double k0[4][3] = {{0, 0.3, 0}, {0.1, 0, 0.37}, {0, 0.21, 0}, {0.13, 0, 0}};
     for (int s = 0; s < 4; s++) {
-        tb_model *m = build(spec[s]);
+        tb_model *m = bs_test_build(spec[s]);
         wilson_ws *w = NULL;
         bs_err err;
         bs_err_clear(&err);
@@ -399,7 +374,7 @@ static void test_centres_against_numpy(void **state)
 static void test_errors(void **state)
 {
     (void)state;
-    tb_model *m = build("kane_mele"), *m3 = build("fkm");
+    tb_model *m = bs_test_build("kane_mele"), *m3 = bs_test_build("fkm");
     wilson_ws *w = NULL;
     bs_err err;
     bs_err_clear(&err);
