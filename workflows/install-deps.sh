@@ -11,6 +11,7 @@ PACKAGES=(
   libhdf5-dev hdf5-tools
   libsqlite3-dev sqlite3
   libcjson-dev
+  libsymspg-dev
   libcmocka-dev
   python3-numpy python3-scipy
   chromium
