@@ -49,3 +49,32 @@ int cz_mirror_chern(const tb_model *m, const cry_info *c, cz_mirror *pl, int mes
                     bs_err *err);
 
 #endif
+
+/* What a gap closing at k between bands lower and lower+1 becomes, from the little group of k and
+ * the symmetry eigenvalues of the two bands (counting of conditions: a two-band crossing needs three
+ * real conditions; a symmetry whose eigenvalues differ on the two bands removes the coupling
+ * between them where it holds). Common practice; New J. Phys. 9, 356 (2007) for the generic and
+ * the two-fold-axis cases, Sci. Adv. 3, e1602680 (2017) (reference from memory) for the general
+ * classification without inversion. */
+enum {
+    CZ_PRED_GENERIC_WEYL = 1, /* no protecting symmetry: Weyl nodes created in pairs */
+    CZ_PRED_AXIS_WEYL = 2,    /* on a rotation axis, different eigenvalues: a Weyl pair on the axis */
+    CZ_PRED_REPEL = 3,        /* on a rotation axis, equal eigenvalues: the bands repel there */
+    CZ_PRED_NODAL_LINE = 4,   /* on a mirror plane, different eigenvalues: a nodal line in it */
+    CZ_PRED_INVERSION = 5     /* inversion in the little group: parity exchange at this point */
+};
+
+typedef struct cz_prediction {
+    int kind;               /* CZ_PRED_* */
+    int op;                 /* the operation that decided it, -1 for none */
+    double complex ev_lower, ev_upper; /* its eigenvalues on the two bands */
+    char text[200];         /* one line for people */
+} cz_prediction;
+
+/* Prediction for bands lower, lower+1 (0-based) of m at k. Both bands must be non-degenerate at
+ * k (BS_EINVAL otherwise: a multiplet needs its own representation analysis). */
+int cz_predict_closing(const tb_model *m, const cry_info *c, const double k[3], int lower, cz_prediction *out,
+                       bs_err *err);
+
+/* Name of a CZ_PRED_* ("Weyl pair", ...). */
+const char *cz_prediction_name(int kind);

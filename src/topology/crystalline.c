@@ -303,3 +303,84 @@ int cz_mirror_chern(const tb_model *m, const cry_info *c, cz_mirror *pl, int mes
     }
     return 0;
 }
+
+const char *cz_prediction_name(int kind)
+{
+    switch (kind) {
+    case CZ_PRED_GENERIC_WEYL: return "Weyl pairs at generic k";
+    case CZ_PRED_AXIS_WEYL: return "Weyl pair on the axis";
+    case CZ_PRED_REPEL: return "level repulsion on the axis";
+    case CZ_PRED_NODAL_LINE: return "nodal line in the mirror plane";
+    case CZ_PRED_INVERSION: return "parity exchange (band inversion)";
+    default: return "unknown";
+    }
+}
+
+/* Eigenvalues of op on two single bands; differ when they are apart by more than 1e-3 (the
+ * eigenvalues are roots of unity, at least 2 sin(pi/6) = 1 apart when distinct). */
+static int eigen_pair(const tb_model *m, const cry_info *c, int op, const double k[3], int lower,
+                      double complex *lo, double complex *up, int *differ, bs_err *err)
+{
+    int rc = cry_band_eigenvalues(m, c, op, k, lower, 1, lo, err);
+    if (rc == 0) rc = cry_band_eigenvalues(m, c, op, k, lower + 1, 1, up, err);
+    if (rc == 0) *differ = cabs(*lo - *up) > 1e-3;
+    return rc;
+}
+
+int cz_predict_closing(const tb_model *m, const cry_info *c, const double k[3], int lower, cz_prediction *out,
+                       bs_err *err)
+{
+    memset(out, 0, sizeof *out);
+    out->op = -1;
+    if (lower < 0 || lower + 1 >= m->norb) return bs_fail(err, BS_EINVAL, "band %d outside the basis", lower + 1);
+    int *lg = malloc((size_t)cry_nops(c) * sizeof *lg);
+    if (!lg) return bs_fail(err, BS_ENOMEM, "out of memory");
+    int nl = cry_little_group(c, k, lg), rc = 0;
+    int rot_equal = -1, mirror_diff = -1, inv = -1;
+    double complex elo[3] = {0}, eup[3] = {0};
+    for (int i = 0; i < nl && rc == 0; i++) {
+        const cry_op *op = cry_get_op(c, lg[i]);
+        int proper_rot = strcmp(op->kind, "2") == 0 || strcmp(op->kind, "3") == 0 || strcmp(op->kind, "4") == 0 ||
+                         strcmp(op->kind, "6") == 0;
+        int mirror = strcmp(op->kind, "m") == 0, inversion = strcmp(op->kind, "-1") == 0;
+        if (!proper_rot && !mirror && !inversion) continue;
+        double complex lo, up;
+        int differ = 0;
+        rc = eigen_pair(m, c, lg[i], k, lower, &lo, &up, &differ, err);
+        if (rc != 0) break;
+        if (proper_rot && differ) {
+            out->kind = CZ_PRED_AXIS_WEYL;
+            out->op = lg[i], out->ev_lower = lo, out->ev_upper = up;
+            snprintf(out->text, sizeof out->text,
+                     "on a %s-fold axis, eigenvalues %.2f%+.2fi and %.2f%+.2fi differ: a Weyl pair is created on the axis",
+                     op->kind, creal(lo), cimag(lo), creal(up), cimag(up));
+            free(lg);
+            return 0;
+        }
+        if (proper_rot && rot_equal < 0) rot_equal = lg[i], elo[0] = lo, eup[0] = up;
+        if (mirror && differ && mirror_diff < 0) mirror_diff = lg[i], elo[1] = lo, eup[1] = up;
+        if (inversion && differ) inv = lg[i], elo[2] = lo, eup[2] = up;
+    }
+    free(lg);
+    if (rc != 0) return rc;
+    if (inv >= 0) {
+        out->kind = CZ_PRED_INVERSION, out->op = inv, out->ev_lower = elo[2], out->ev_upper = eup[2];
+        snprintf(out->text, sizeof out->text, "inversion-invariant point, parities %+.0f and %+.0f: a parity exchange",
+                 creal(elo[2]), creal(eup[2]));
+    } else if (rot_equal >= 0) {
+        out->kind = CZ_PRED_REPEL, out->op = rot_equal, out->ev_lower = elo[0], out->ev_upper = eup[0];
+        snprintf(out->text, sizeof out->text,
+                 "on a %s-fold axis with equal eigenvalues %.2f%+.2fi: the bands repel there; a closing can only "
+                 "happen off the axis",
+                 cry_get_op(c, rot_equal)->kind, creal(elo[0]), cimag(elo[0]));
+    } else if (mirror_diff >= 0) {
+        out->kind = CZ_PRED_NODAL_LINE, out->op = mirror_diff, out->ev_lower = elo[1], out->ev_upper = eup[1];
+        snprintf(out->text, sizeof out->text,
+                 "on a mirror plane, eigenvalues %.2f%+.2fi and %.2f%+.2fi differ: a nodal line in the plane",
+                 creal(elo[1]), cimag(elo[1]), creal(eup[1]), cimag(eup[1]));
+    } else {
+        out->kind = CZ_PRED_GENERIC_WEYL;
+        snprintf(out->text, sizeof out->text, "no protecting symmetry at this k: Weyl nodes are created in pairs");
+    }
+    return 0;
+}

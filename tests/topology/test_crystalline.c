@@ -11,6 +11,8 @@
 
 #include "bandsieve/crystalline.h"
 #include "bandsieve/hk.h"
+#include "bandsieve/nodes.h"
+#include "bandsieve/realharm.h"
 #include "bandsieve/parity.h"
 #include "bandsieve/symmetry.h"
 #include "testutil.h"
@@ -201,11 +203,140 @@ static void test_mirror_chern(void **state)
     tb_model_free(m);
 }
 
+
+/* Two-band spinless models with time reversal (real H(R)), a two-fold axis along z and no
+ * inversion, on the simple cubic lattice (3 Angstrom). Diagonal: d(k) = m - 2t (cos kx + cos ky +
+ * cos kz) + 2u cos 2kz on the s orbital, -d(k) on the p orbital; with t = u = 1 the band
+ * difference along the kz axis is smallest at the generic cos kz = 1/4, so the gap first closes
+ * there as m falls below 6.25 (a hand calculation: d = m - 4 - 2 cos kz + 2 cos 2kz, minimum -2.25).
+ *   axis_equal = 1: orbitals s and pz, coupling h = 2 i lambda sin kz + gamma (a polar term):
+ *     C2z eigenvalues +1, +1; h != 0 on the axis.
+ *   axis_equal = 0: orbitals s and px, coupling h = 2 i lambda sin kx + gamma sin ky sin kz:
+ *     C2z eigenvalues +1, -1; h = 0 on the axis; the gamma term is even in k, so it breaks
+ *     inversion (P = diag(1, -1) needs h odd) and keeps C2z and time reversal. */
+static tb_model *c2_model(int axis_equal, double mass)
+{
+    const double t = 1.0, u = 1.0, lambda = 0.5, gamma = 0.4;
+    int Rs[64][3], nR = 0;
+    for (int x = -1; x <= 1; x++)
+        for (int y = -1; y <= 1; y++)
+            for (int z = -2; z <= 2; z++) Rs[nR][0] = x, Rs[nR][1] = y, Rs[nR][2] = z, nR++;
+    tb_model *m = NULL;
+    bs_err err;
+    bs_err_clear(&err);
+    if (tb_model_create(2, nR, 0, &m, &err) != 0) fail_msg("%s", err.msg);
+    for (int i = 0; i < 3; i++) m->lattice[i][i] = 3.0;
+    m->orb_l[0] = 0, m->orb_l[1] = 1;
+    m->nocc = 1;
+    for (int r = 0; r < nR; r++) {
+        int x = Rs[r][0], y = Rs[r][1], z = Rs[r][2];
+        memcpy(m->R[r], Rs[r], sizeof m->R[r]);
+        double complex *H = m->H + (size_t)r * 4;
+        int ax = abs(x) + abs(y) + abs(z);
+        double d = 0;
+        if (ax == 0) d = mass;
+        if (ax == 1) d = -t;
+        if (x == 0 && y == 0 && abs(z) == 2) d = u;
+        H[0] = d, H[3] = -d;
+        double complex sp = 0, ps = 0;
+        if (axis_equal) {
+            if (ax == 0) sp = ps = gamma;
+            if (x == 0 && y == 0 && abs(z) == 1) sp = lambda * z, ps = -lambda * z;
+        } else {
+            if (abs(x) == 1 && y == 0 && z == 0) sp = lambda * x, ps = -lambda * x;
+            if (x == 0 && abs(y) == 1 && abs(z) == 1) sp = ps = -gamma * y * z / 4.0;
+        }
+        H[0 * 2 + 1] = sp; /* model.h layout: H[m * norb + n] = <m,0|H|n,R> */
+        H[1 * 2 + 0] = ps;
+    }
+    return m;
+}
+
+static int find_c2z(const cry_info *c)
+{
+    for (int i = 0; i < cry_nops(c); i++) {
+        const cry_op *op = cry_get_op(c, i);
+        if (op->verified && !strcmp(op->kind, "2") && fabs(fabs(op->axis[2]) - 1) < 1e-9) return i;
+    }
+    return -1;
+}
+
+/* The C2 rule (New J. Phys. 9, 356 (2007)): predicted at the axis point where the gap is smallest
+ * just before the closing, and found by the node search just after it. Different C2 eigenvalues:
+ * Weyl nodes on the axis, in pairs of opposite chirality (a multiple of 4 with time reversal);
+ * equal: the axis stays gapped. */
+static void test_c2_closing_rule(void **state)
+{
+    const double kz0 = acos(0.25) / (2 * M_PI);
+    for (int equal = 0; equal <= 1; equal++) {
+        const int shell[2] = {0, rh_index(1, equal ? "pz" : "px")};
+        tb_model *before = c2_model(equal, 6.4), *after = c2_model(equal, 6.0);
+        bs_err err;
+        bs_err_clear(&err);
+        assert_int_equal(tb_model_validate(before, 1e-12, "c2", &err), 0);
+        cry_opts o;
+        cry_opts_default(&o);
+        o.shell_index = shell;
+        cry_info *c = NULL;
+        assert_int_equal(cry_detect(before, &o, &c, &err), 0);
+        assert_true(find_c2z(c) >= 0);
+        const double k[3] = {0, 0, kz0};
+        cz_prediction pred;
+        assert_int_equal(cz_predict_closing(before, c, k, 0, &pred, &err), 0);
+        print_message("%s: %s\n", equal ? "s+pz" : "s+px", pred.text);
+        assert_int_equal(pred.kind, equal ? CZ_PRED_REPEL : CZ_PRED_AXIS_WEYL);
+        cry_info_free(c);
+
+        /* found: the smallest gap on the axis after the sweep, and the nodes */
+        double complex H[4];
+        double axis_gap = INFINITY;
+        for (int i = 0; i <= 2000; i++) {
+            double kk[3] = {0, 0, i / 2000.0};
+            hk_build_direct(after, kk, H);
+            double a = creal(H[0]), dd = creal(H[3]);
+            double g = sqrt((a - dd) * (a - dd) + 4 * cabs(H[2]) * cabs(H[2])); /* H column-major */
+            axis_gap = fmin(axis_gap, g);
+        }
+        hk_engine *e = NULL;
+        assert_int_equal(hk_create(after, 64, &e, &err), 0);
+        nodes_result nr;
+        nodes_result_init(&nr);
+        assert_int_equal(nodes_find(after, e, NULL, &nr, &err), 0);
+        int on_axis = 0, plus = 0, minus = 0;
+        for (int i = 0; i < nr.nnodes; i++) {
+            const double *kn = nr.nodes[i].k;
+            double dx = kn[0] - round(kn[0]), dy = kn[1] - round(kn[1]);
+            if (fabs(dx) < 1e-5 && fabs(dy) < 1e-5) {
+                on_axis++;
+                plus += nr.nodes[i].chirality > 0;
+                minus += nr.nodes[i].chirality < 0;
+            }
+        }
+        print_message("  axis gap after %.3g eV, %d nodes (%d on the axis: %d +, %d -), net %d\n", axis_gap,
+                      nr.nnodes, on_axis, plus, minus, nr.net_chirality);
+        if (equal) {
+            assert_true(axis_gap > 0.1); /* 2 gamma = 0.8 eV at the crossing of the diagonals */
+            assert_int_equal(on_axis, 0);
+        } else {
+            assert_true(axis_gap < 1e-6);
+            assert_int_equal(on_axis, 4);
+            assert_int_equal(plus, 2);
+            assert_int_equal(minus, 2);
+        }
+        assert_int_equal(nr.net_chirality, 0);
+        nodes_result_clear(&nr);
+        hk_free(e);
+        tb_model_free(before);
+        tb_model_free(after);
+    }
+}
+
 int main(void)
 {
     const struct CMUnitTest tests[] = {
         cmocka_unit_test(test_z4),
         cmocka_unit_test(test_mirror_chern),
+        cmocka_unit_test(test_c2_closing_rule),
     };
     return cmocka_run_group_tests(tests, NULL, NULL);
 }
