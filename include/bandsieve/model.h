@@ -32,6 +32,8 @@ typedef struct tb_model {
     int spin_layout;        /* TB_SPIN_* */
     double (*orb_pos)[3];   /* nspatial reduced positions */
     int *orb_l;             /* nspatial angular momenta 0..3 */
+    int *orb_shape;         /* nspatial indices within the shell (tb_shape_name), or NULL: the
+                               card named no shapes and the default order applies */
     int nocc;               /* occupied bands (1..norb-1) */
     int has_fermi;
     double fermi_ev;
@@ -71,6 +73,13 @@ int tb_state_index(const tb_model *m, int o, int s);
  * hermiticity H(-R) = H(R)^dagger within tol_ev (also requires -R present for every R).
  * `where` names the source (file path) for the message. */
 int tb_model_validate(const tb_model *m, double tol_ev, const char *where, bs_err *err);
+
+/* Real orbital shapes by angular momentum, in our documented default order (by m: 0, +1, -1, +2,
+ * -2, +3, -3): s; pz px py; dz2 dxz dyz dx2-y2 dxy; fz3 fxz2 fyz2 fz(x2-y2) fxyz fx(x2-3y2)
+ * fy(3x2-y2). tb_shape_name gives the name of index idx of l (NULL out of range), tb_shape_index
+ * the index of a name for l (-1 when it is not a shape of that l). */
+const char *tb_shape_name(int l, int idx);
+int tb_shape_index(int l, const char *name);
 
 /* Reciprocal lattice vectors b_i (rows, 1/Angstrom, with the 2 pi) from m->lattice. */
 void tb_model_reciprocal(const tb_model *m, double b[3][3]);

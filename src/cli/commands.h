@@ -13,5 +13,6 @@ int cmd_query(int argc, char **argv);
 int cmd_demo_set(int argc, char **argv);
 int cmd_models(int argc, char **argv);
 int cmd_slab(int argc, char **argv);
+int cmd_symmetry(int argc, char **argv);
 
 #endif

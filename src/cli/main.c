@@ -25,6 +25,7 @@ static const command COMMANDS[] = {
     {"query", cmd_query, "run a read-only SQL query or a view on a catalogue"},
     {"demo-set", cmd_demo_set, "generate the invented demonstration material set"},
     {"slab", cmd_slab, "slab or ribbon of one material: surface states, crossings, surface spectra"},
+    {"symmetry", cmd_symmetry, "crystal symmetry of one material: space group, kept operations, eigenvalues"},
 };
 
 static void usage(FILE *out)

@@ -257,7 +257,7 @@ static int read_head(const card_ctx *c, const cJSON *root, card_head *h)
 
 static int read_orbitals(const card_ctx *c, const cJSON *root, tb_model *m)
 {
-    static const char *const orb_keys[] = {"position", "l", "label", NULL};
+    static const char *const orb_keys[] = {"position", "l", "label", "shape", NULL};
     const cJSON *orb = cJSON_GetObjectItemCaseSensitive(root, "orbitals");
     int i = 0, rc = 0;
     char label[64];
@@ -279,6 +279,21 @@ static int read_orbitals(const card_ctx *c, const cJSON *root, tb_model *m)
         if (l->valuedouble < 0 || l->valuedouble > 3)
             return fail_key(c, BS_EINVAL, "l", label, i, "expected 0..3, found %d", (int)l->valuedouble);
         m->orb_l[i] = (int)l->valuedouble;
+        const cJSON *shape = cJSON_GetObjectItemCaseSensitive(o, "shape");
+        if (!shape) continue;
+        snprintf(label, sizeof label, "orbitals[%d].shape", i + 1);
+        int idx = cJSON_IsString(shape) ? tb_shape_index(m->orb_l[i], shape->valuestring) : -1;
+        if (idx < 0)
+            return fail_key(c, BS_EINVAL, "shape", label, i, "expected a shape of l = %d (%s%s%s...), found %s",
+                            m->orb_l[i], tb_shape_name(m->orb_l[i], 0),
+                            m->orb_l[i] > 0 ? ", " : "", m->orb_l[i] > 0 ? tb_shape_name(m->orb_l[i], 1) : "",
+                            cJSON_IsString(shape) ? shape->valuestring : json_type(shape));
+        if (!m->orb_shape) {
+            m->orb_shape = malloc((size_t)m->nspatial * sizeof *m->orb_shape);
+            if (!m->orb_shape) return bs_fail(c->err, BS_ENOMEM, "out of memory (orbital shapes)");
+            for (int q = 0; q < m->nspatial; q++) m->orb_shape[q] = -1;
+        }
+        m->orb_shape[i] = idx;
     }
     return rc;
 }
@@ -533,6 +548,8 @@ static cJSON *card_json(const tb_model *m, const char *table_name)
         cJSON *o = cJSON_CreateObject();
         cJSON_AddItemToObject(o, "position", json_vec(m->orb_pos[i], 3));
         cJSON_AddNumberToObject(o, "l", m->orb_l[i]);
+        if (m->orb_shape && m->orb_shape[i] >= 0)
+            cJSON_AddStringToObject(o, "shape", tb_shape_name(m->orb_l[i], m->orb_shape[i]));
         cJSON_AddItemToArray(orb, o);
     }
     if (m->has_inversion_op) {

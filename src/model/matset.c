@@ -342,7 +342,8 @@ static int write_arrays(hid_t g, const tb_model *m)
               dset_write(g, "deg", H5T_NATIVE_INT, 1, dn, m->deg) < 0 ||
               dset_write(g, "H", H5T_NATIVE_DOUBLE, 4, dH, m->H) < 0 ||
               dset_write(g, "orb_pos", H5T_NATIVE_DOUBLE, 2, dpos, m->orb_pos) < 0 ||
-              dset_write(g, "orb_l", H5T_NATIVE_INT, 1, dl, m->orb_l) < 0;
+              dset_write(g, "orb_l", H5T_NATIVE_INT, 1, dl, m->orb_l) < 0 ||
+              (m->orb_shape && dset_write(g, "orb_shape", H5T_NATIVE_INT, 1, dl, m->orb_shape) < 0);
     if (!bad && m->has_inversion_op) {
         hsize_t dv[1] = {(hsize_t)m->norb}, dsh[2] = {(hsize_t)m->norb, 3};
         bad = dset_write(g, "inv_perm", H5T_NATIVE_INT, 1, dv, m->inv_perm) < 0 ||
@@ -582,6 +583,15 @@ static int read_model_arrays(hid_t g, const char *where, tb_model *m, bs_err *er
     if (rc == 0) rc = dset_read(g, where, "H", H5T_NATIVE_DOUBLE, 4, dH, m->H, err);
     if (rc == 0) rc = dset_read(g, where, "orb_pos", H5T_NATIVE_DOUBLE, 2, dpos, m->orb_pos, err);
     if (rc == 0) rc = dset_read(g, where, "orb_l", H5T_NATIVE_INT, 1, dl, m->orb_l, err);
+    if (rc == 0 && H5Lexists(g, "orb_shape", H5P_DEFAULT) > 0) { /* optional: cards that name shapes */
+        m->orb_shape = malloc((size_t)m->nspatial * sizeof *m->orb_shape);
+        if (!m->orb_shape) return bs_fail(err, BS_ENOMEM, "%s: out of memory for orbital shapes", where);
+        rc = dset_read(g, where, "orb_shape", H5T_NATIVE_INT, 1, dl, m->orb_shape, err);
+        for (int i = 0; rc == 0 && i < m->nspatial; i++)
+            if (m->orb_shape[i] < -1 || m->orb_shape[i] > 2 * m->orb_l[i])
+                rc = bs_fail(err, BS_EINVAL, "%s/orb_shape: orbital %d has shape index %d for l = %d", where, i + 1,
+                             m->orb_shape[i], m->orb_l[i]);
+    }
     if (rc != 0 || !m->has_inversion_op) return rc;
     size_t n = (size_t)m->norb;
     m->inv_perm = malloc(n * sizeof *m->inv_perm);

@@ -48,6 +48,7 @@ void tb_model_free(tb_model *m)
     if (!m) return;
     free(m->orb_pos);
     free(m->orb_l);
+    free(m->orb_shape);
     free(m->R);
     free(m->deg);
     free(m->H);
@@ -83,11 +84,12 @@ int tb_model_copy(const tb_model *m, tb_model **out, bs_err *err)
     memcpy(c->R, m->R, (size_t)m->nR * sizeof *m->R);
     memcpy(c->deg, m->deg, (size_t)m->nR * sizeof *m->deg);
     memcpy(c->H, m->H, (size_t)m->nR * m->norb * m->norb * sizeof *m->H);
-    c->inv_perm = NULL; c->inv_sign = NULL; c->inv_shift = NULL;
+    c->inv_perm = NULL; c->inv_sign = NULL; c->inv_shift = NULL; c->orb_shape = NULL;
     size_t n = (size_t)m->norb;
     if (dup_array((void **)&c->inv_perm, m->inv_perm, n * sizeof *m->inv_perm) ||
         dup_array((void **)&c->inv_sign, m->inv_sign, n * sizeof *m->inv_sign) ||
-        dup_array((void **)&c->inv_shift, m->inv_shift, n * sizeof *m->inv_shift)) {
+        dup_array((void **)&c->inv_shift, m->inv_shift, n * sizeof *m->inv_shift) ||
+        dup_array((void **)&c->orb_shape, m->orb_shape, (size_t)m->nspatial * sizeof *m->orb_shape)) {
         tb_model_free(c);
         return bs_fail(err, BS_ENOMEM, "out of memory copying a model");
     }
@@ -201,4 +203,25 @@ void tb_lattice_reciprocal(const double a[3][3], double b[3][3])
     double vol = a[0][0] * cross[0][0] + a[0][1] * cross[0][1] + a[0][2] * cross[0][2];
     for (int i = 0; i < 3; i++)
         for (int d = 0; d < 3; d++) b[i][d] = 2.0 * M_PI * cross[i][d] / vol;
+}
+
+static const char *const tb_shapes[4][7] = {
+    {"s"},
+    {"pz", "px", "py"},
+    {"dz2", "dxz", "dyz", "dx2-y2", "dxy"},
+    {"fz3", "fxz2", "fyz2", "fz(x2-y2)", "fxyz", "fx(x2-3y2)", "fy(3x2-y2)"},
+};
+
+const char *tb_shape_name(int l, int idx)
+{
+    if (l < 0 || l > 3 || idx < 0 || idx > 2 * l) return NULL;
+    return tb_shapes[l][idx];
+}
+
+int tb_shape_index(int l, const char *name)
+{
+    if (l < 0 || l > 3 || !name) return -1;
+    for (int i = 0; i <= 2 * l; i++)
+        if (strcmp(tb_shapes[l][i], name) == 0) return i;
+    return -1;
 }

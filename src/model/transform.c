@@ -69,6 +69,7 @@ int tf_permute(const tb_model *m, const int *perm, tb_model **out, bs_err *err)
     for (int k = 0; k < m->nspatial; k++) {
         memcpy(c->orb_pos[k], m->orb_pos[perm[k]], sizeof c->orb_pos[k]);
         c->orb_l[k] = m->orb_l[perm[k]];
+        if (c->orb_shape) c->orb_shape[k] = m->orb_shape[perm[k]];
     }
     *out = c;
     return 0;

@@ -2,30 +2,15 @@
  * SU(2) spin rotation. Conventions: include/bandsieve/realharm.h. */
 #include "bandsieve/realharm.h"
 
+#include "bandsieve/model.h"
+
 #include <lapacke.h>
 #include <math.h>
 #include <string.h>
 
-static const char *const rh_names[RH_LMAX + 1][7] = {
-    {"s"},
-    {"pz", "px", "py"},
-    {"dz2", "dxz", "dyz", "dx2-y2", "dxy"},
-    {"fz3", "fxz2", "fyz2", "fz(x2-y2)", "fxyz", "fx(x2-3y2)", "fy(3x2-y2)"},
-};
+const char *rh_name(int l, int idx) { return tb_shape_name(l, idx); }
 
-const char *rh_name(int l, int idx)
-{
-    if (l < 0 || l > RH_LMAX || idx < 0 || idx > 2 * l) return NULL;
-    return rh_names[l][idx];
-}
-
-int rh_index(int l, const char *name)
-{
-    if (l < 0 || l > RH_LMAX || !name) return -1;
-    for (int i = 0; i <= 2 * l; i++)
-        if (strcmp(rh_names[l][i], name) == 0) return i;
-    return -1;
-}
+int rh_index(int l, const char *name) { return tb_shape_index(l, name); }
 
 /* m of shell index idx: 0, +1, -1, +2, -2, ... */
 static int idx_to_m(int idx) { return idx == 0 ? 0 : (idx % 2 ? (idx + 1) / 2 : -(idx / 2)); }
