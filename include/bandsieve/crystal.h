@@ -31,7 +31,8 @@ typedef struct cry_opts {
     double tol;             /* largest relative residual of a verified operation (0: 1e-6) */
     int nk;                 /* random k-points for the check (0: 4) */
     unsigned long long seed;
-    const int *shell_index; /* nspatial indices within their shell (realharm.h order), or NULL */
+    const int *shell_index; /* nspatial indices within their shell (realharm.h order), or NULL:
+                               the model's orb_shape, or the default order without it */
 } cry_opts;
 
 typedef struct cry_op {

@@ -90,6 +90,16 @@ static const lm_param ME_PARAMS[ME_N] = {
     [ME_A] = LM_LATT(1.0),
 };
 
+static const lm_param RS_PARAMS[RS_N] = {
+    [RS_M] = {"m", 1.65, "sublattice mass (eV): +m on site 1, -m on site 2; m > 0 inverted (crystalline insulator), m < 0 trivial", 0, LM_ANY},
+    [RS_T12] = {"t12", 0.9, "nearest-neighbour sigma hopping between the sublattices (eV)", 0, LM_ANY},
+    [RS_T11] = {"t11", 0.5, "second-neighbour sigma hopping (eV): t11 on site 1, -t11 on site 2", 0, LM_ANY},
+    [RS_L1] = {"lambda1", -0.7, "spin-orbit coupling on site 1 (eV)", 0, LM_ANY},
+    [RS_L2] = {"lambda2", 0.3, "spin-orbit coupling on site 2 (eV)", 0, LM_ANY},
+    [RS_A] = LM_LATT(6.3),
+    [RS_LAYOUT] = LM_LAYOUT,
+};
+
 typedef int (*lm_builder)(const double *p, const char *spec, tb_model **out, bs_err *err);
 
 static const lm_info LM_MODELS[] = {
@@ -114,11 +124,14 @@ static const lm_info LM_MODELS[] = {
      "common practice form", 0, 1, "trivial insulator, gap 2 delta = 4 eV", AT_N, AT_PARAMS},
     {"metal", NULL, "two overlapping bands at half filling", "common practice form", 0, 0,
      "metal (bands overlap, Fermi surface)", ME_N, ME_PARAMS},
+    {"rocksalt_tci", NULL, "rock-salt p-orbital model of a topological crystalline insulator, spinful",
+     "Nat. Commun. 3, 982 (2012) (parameters from memory)", 3, 1,
+     "topological crystalline insulator: Z2 = 0;000, |mirror Chern| = 2 on {110}", RS_N, RS_PARAMS},
 };
 
 static const lm_builder LM_BUILDERS[] = {
     lm_build_graphene, lm_build_haldane, lm_build_kane_mele, lm_build_bhz, lm_build_fkm,
-    lm_build_weyl, lm_build_nodal_line, lm_build_atomic, lm_build_metal,
+    lm_build_weyl, lm_build_nodal_line, lm_build_atomic, lm_build_metal, lm_build_rocksalt_tci,
 };
 
 #define LM_COUNT ((int)(sizeof LM_MODELS / sizeof LM_MODELS[0]))

@@ -405,7 +405,7 @@ int cry_detect(const tb_model *m, const cry_opts *opts_in, cry_info **out, bs_er
     if (!c) return bs_fail(err, BS_ENOMEM, "out of memory (crystal symmetry)");
     c->m = m;
     int rc = find_sites(c, m, o.site_tol_ang) ? bs_fail(err, BS_ENOMEM, "out of memory (sites)") : 0;
-    if (rc == 0) rc = assign_shells(c, m, o.shell_index, err);
+    if (rc == 0) rc = assign_shells(c, m, o.shell_index ? o.shell_index : m->orb_shape, err);
     if (rc == 0) rc = call_spglib(c, m, o.symprec_ang, err);
     if (rc == 0) rc = build_representations(c, err);
     if (rc != 0) goto done;

@@ -265,6 +265,53 @@ static int find_c2z(const cry_info *c)
  * just before the closing, and found by the node search just after it. Different C2 eigenvalues:
  * Weyl nodes on the axis, in pairs of opposite chirality (a multiple of 4 with time reversal);
  * equal: the axis stays gapped. */
+/* The rock-salt model of Nat. Commun. 3, 982 (2012): band inversion at the four L points, so the
+ * Z2 indices are trivial and kappa = 0, while the six {110} mirror planes carry mirror Chern number
+ * 2 in magnitude (the paper's n_M = -2 for SnTe) and the three {100} mirrors 0; with the mass
+ * reversed (no inversion) every mirror Chern number is 0. */
+static void test_rocksalt_tci(void **state)
+{
+    for (int inverted = 1; inverted >= 0; inverted--) {
+        tb_model *m = bs_test_build(inverted ? "rocksalt_tci" : "rocksalt_tci:m=-1.65");
+        par_result pr;
+        assert_int_equal(kappa_of(m, &pr), 0);
+        assert_int_equal(pr.status, PAR_DONE);
+        for (int i = 0; i < 4; i++) assert_int_equal(pr.z2[i], 0);
+        cry_info *c = NULL;
+        bs_err err;
+        bs_err_clear(&err);
+        assert_int_equal(cry_detect(m, NULL, &c, &err), 0);
+        /* both sites carry a p shell, so from positions alone they are one species and the
+         * structure is simple cubic of half the edge (Pm-3m, 221, with the translation by
+         * (1/2,1/2,1/2) among spglib's 96 operations); the Hamiltonian keeps the 48 of Fm-3m */
+        assert_int_equal(cry_spacegroup(c), 221);
+        assert_int_equal(cry_nops(c), 96);
+        assert_int_equal(cry_nverified(c), 48);
+        int n110 = 0, n100 = 0;
+        for (int i = 0; i < cry_nops(c); i++) {
+            const cry_op *op = cry_get_op(c, i);
+            if (!op->verified || strcmp(op->kind, "m")) continue;
+            cz_mirror pl[2];
+            assert_true(cz_mirror_planes(c, i, pl, &err) >= 1);
+            assert_int_equal(cz_mirror_chern(m, c, &pl[0], 16, 1e-6, &err), 0);
+            assert_int_equal(pl[0].status, CZ_DONE);
+            int zeros = 0;
+            for (int x = 0; x < 3; x++) zeros += fabs(op->axis[x]) < 1e-9;
+            if (zeros == 1) { /* {110} normal */
+                assert_int_equal(abs(pl[0].mirror_chern), inverted ? 2 : 0);
+                n110++;
+            } else {
+                assert_int_equal(pl[0].mirror_chern, 0);
+                n100++;
+            }
+        }
+        assert_int_equal(n110, 6);
+        assert_int_equal(n100, 3);
+        cry_info_free(c);
+        tb_model_free(m);
+    }
+}
+
 static void test_c2_closing_rule(void **state)
 {
     const double kz0 = acos(0.25) / (2 * M_PI);
@@ -337,6 +384,7 @@ int main(void)
         cmocka_unit_test(test_z4),
         cmocka_unit_test(test_mirror_chern),
         cmocka_unit_test(test_c2_closing_rule),
+        cmocka_unit_test(test_rocksalt_tci),
     };
     return cmocka_run_group_tests(tests, NULL, NULL);
 }
