@@ -179,6 +179,53 @@ def fkm(p):
     return lat, h
 
 
+def rocksalt_tci(p):
+    """Nat. Commun. 3, 982 (2012), its minimal SnTe-class model (parameters and mass sign from
+    memory, as in the C code): p orbitals with spin on the rock-salt sublattices, sigma bonds only
+    (t d d^T), t12 to the six nearest neighbours along the cube axes, +-t11 to the twelve second
+    neighbours along the face diagonals, mass +m / -m, and on-site i lambda (c+ x c).s. Basis as in
+    the C code at layout 0: (site, orbital) = (1,x) (1,y) (1,z) (2,x) (2,y) (2,z), spin up then down.
+    Neighbours are found by a search over lattice points within a radius, not enumerated."""
+    a = p["a"]
+    lat = a / 2 * np.array([[0, 1, 1], [1, 0, 1], [1, 1, 0]], dtype=float)
+    tau = [np.zeros(3), a / 2 * np.ones(3)]
+    lam = [p["lambda1"], p["lambda2"]]
+    eps = np.zeros((3, 3, 3))
+    for i, j, k in ((0, 1, 2), (1, 2, 0), (2, 0, 1)):
+        eps[i, j, k], eps[j, i, k] = 1, -1
+    cells = [np.array(c) @ lat for c in np.ndindex(5, 5, 5)]
+    cells = [c - 2 * (lat[0] + lat[1] + lat[2]) for c in cells]
+
+    def h(k):
+        H = np.zeros((12, 12), dtype=complex)
+        for j in (0, 1):
+            for s in (0, 1):
+                for o in range(3):
+                    H[6 * s + 3 * j + o, 6 * s + 3 * j + o] += p["m"] * (1 if j == 0 else -1)
+            for x in range(3):
+                for y in range(3):
+                    soc = 1j * lam[j] * sum(eps[x, y, z] * SIGMA[z] for z in range(3))
+                    for s1 in (0, 1):
+                        for s2 in (0, 1):
+                            H[6 * s1 + 3 * j + x, 6 * s2 + 3 * j + y] += soc[s1, s2]
+        for jd in (0, 1):
+            for js in (0, 1):
+                for c in cells:
+                    d = c + tau[js] - tau[jd]          # source minus destination
+                    dist = np.linalg.norm(d)
+                    if jd != js and abs(dist - a / 2) < 1e-6:
+                        t = p["t12"]
+                    elif jd == js and abs(dist - a / np.sqrt(2)) < 1e-6:
+                        t = p["t11"] if jd == 0 else -p["t11"]
+                    else:
+                        continue
+                    T = t * np.outer(d, d) / dist**2 * np.exp(1j * k @ d)
+                    for s in (0, 1):
+                        H[6 * s + 3 * jd:6 * s + 3 * jd + 3, 6 * s + 3 * js:6 * s + 3 * js + 3] += T
+        return H
+    return lat, h
+
+
 def weyl(p):
     """t sin ky s_x + t sin kz s_y + [t(cos kx - cos k0) + m(2 - cos ky - cos kz)] s_z."""
     a = p["a"]
@@ -239,6 +286,8 @@ DEFAULTS = {
     "atomic": (atomic, {"delta": 2.0, "t": 0.1, "dim": 3, "a": 1.0, "layout": 0}),
     "trivial": (atomic, {"delta": 2.0, "t": 0.1, "dim": 3, "a": 1.0, "layout": 0}),
     "metal": (metal, {"t": 1.0, "delta": 1.0, "v": 0.2, "dim": 3, "a": 1.0}),
+    "rocksalt_tci": (rocksalt_tci, {"m": 1.65, "t12": 0.9, "t11": 0.5, "lambda1": -0.7, "lambda2": 0.3,
+                                    "a": 6.3, "layout": 0}),
 }
 
 # Defaults and variants that switch on every optional term (and the interleaved layout).
@@ -253,6 +302,7 @@ SPECS = [
     "nodal_line", "nodal_line:t=1.2,m=1.5,tz=0.6",
     "atomic", "trivial:dim=2,t=0.3,delta=1,layout=1",
     "metal", "metal:dim=2,t=0.5,delta=0.3,v=0.1",
+    "rocksalt_tci", "rocksalt_tci:m=-1.2,t12=0.7,t11=0.3,lambda1=0.4,lambda2=-0.2,layout=1",
 ]
 
 
