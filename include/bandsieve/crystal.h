@@ -84,4 +84,17 @@ int cry_little_group(const cry_info *c, const double k[3], int *ops);
 int cry_band_eigenvalues(const tb_model *m, const cry_info *c, int op, const double k[3], int lo,
                          int nband, double complex *ev, bs_err *err);
 
+/* Real-space action of operation op on a Hamiltonian: (g.H)(q) = V(W^T q) H(W^T q) V(W^T q)^+,
+ * so that g.H = H exactly when g is a symmetry. With h(R) = H(R)/deg(R),
+ *   (g.h)_ab(W R - L_i + L_j) += D_ai h_ij(R) conj(D_bj).
+ * cry_breaking_ev: an upper bound on max_k ||H(k) - (g.H)(k)||_2, the sum over R of the Frobenius
+ * norms of h(R) - (g.h)(R) (Frobenius >= spectral norm; triangle inequality over R), in eV. */
+int cry_breaking_ev(const tb_model *m, const cry_info *c, int op, double *bound_ev, bs_err *err);
+
+/* The average of g.H over the operations ops[0..nops-1] (which must form a group: every product
+ * of two of them among them, the identity included), a new model with deg = 1 on the union of the
+ * lattice vectors reached. Exactly symmetric under those operations up to round-off; for exact
+ * symmetries it equals H. The caller owns *out. */
+int cry_symmetrise(const tb_model *m, const cry_info *c, const int *ops, int nops, tb_model **out, bs_err *err);
+
 #endif

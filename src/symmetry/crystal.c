@@ -511,3 +511,181 @@ int cry_band_eigenvalues(const tb_model *m, const cry_info *c, int iop, const do
     free(w);
     return rc;
 }
+
+/* A growing list of lattice vectors with their h(R) blocks, found by linear probing on a hash of R. */
+typedef struct rmap {
+    int n, cap, norb, hcap;
+    int (*R)[3];
+    double complex *h;      /* cap * norb * norb, row-major <a|h|b> */
+    int *slot;              /* hcap entries: index into R, or -1 */
+} rmap;
+
+static unsigned rhash(const int R[3])
+{
+    unsigned h = 2166136261u;
+    for (int i = 0; i < 3; i++) h = (h ^ (unsigned)(R[i] + 1024)) * 16777619u;
+    return h;
+}
+
+static int rmap_init(rmap *r, int norb, int cap)
+{
+    memset(r, 0, sizeof *r);
+    r->norb = norb;
+    r->cap = cap;
+    r->hcap = 1;
+    while (r->hcap < 4 * cap) r->hcap *= 2;
+    r->R = malloc((size_t)cap * sizeof *r->R);
+    r->h = calloc((size_t)cap * norb * norb, sizeof *r->h);
+    r->slot = malloc((size_t)r->hcap * sizeof *r->slot);
+    if (!r->R || !r->h || !r->slot) return -1;
+    for (int i = 0; i < r->hcap; i++) r->slot[i] = -1;
+    return 0;
+}
+
+static void rmap_clear(rmap *r)
+{
+    free(r->R);
+    free(r->h);
+    free(r->slot);
+    memset(r, 0, sizeof *r);
+}
+
+/* Block of R, added when new; NULL when full (the caller sized it). */
+static double complex *rmap_block(rmap *r, const int R[3])
+{
+    unsigned h = rhash(R) & (unsigned)(r->hcap - 1);
+    while (r->slot[h] >= 0) {
+        const int *q = r->R[r->slot[h]];
+        if (q[0] == R[0] && q[1] == R[1] && q[2] == R[2]) return r->h + (size_t)r->slot[h] * r->norb * r->norb;
+        h = (h + 1) & (unsigned)(r->hcap - 1);
+    }
+    if (r->n == r->cap) return NULL;
+    r->slot[h] = r->n;
+    memcpy(r->R[r->n], R, sizeof r->R[0]);
+    return r->h + (size_t)r->n++ * r->norb * r->norb;
+}
+
+/* The state-space matrix D of op (norb x norb, column-major, k = 0 part) and each state's L. */
+static int op_state_matrix(const cry_info *c, int iop, double complex *D, int (*Ls)[3], bs_err *err)
+{
+    const tb_model *m = c->m;
+    const double zero[3] = {0, 0, 0};
+    int rc = cry_op_matrix(c, iop, zero, D, err);
+    if (rc != 0) return rc;
+    for (int a = 0; a < m->norb; a++) {
+        int s = c->site[tb_state_orbital(m, a)];
+        memcpy(Ls[a], c->L[iop * c->nsites + s], sizeof Ls[a]);
+    }
+    return 0;
+}
+
+/* Adds weight * (g.h) into out. */
+static int apply_op(const tb_model *m, const cry_info *c, int iop, double weight, rmap *out, bs_err *err)
+{
+    int n = m->norb;
+    double complex *D = malloc((size_t)n * n * sizeof *D);
+    int (*Ls)[3] = malloc((size_t)n * sizeof *Ls);
+    int rc = (!D || !Ls) ? bs_fail(err, BS_ENOMEM, "out of memory (symmetrisation)") : 0;
+    if (rc == 0) rc = op_state_matrix(c, iop, D, Ls, err);
+    const cry_op *op = &c->ops[iop];
+    for (int r = 0; rc == 0 && r < m->nR; r++) {
+        int WR[3];
+        for (int i = 0; i < 3; i++) WR[i] = op->W[i][0] * m->R[r][0] + op->W[i][1] * m->R[r][1] + op->W[i][2] * m->R[r][2];
+        const double complex *h = m->H + (size_t)r * n * n;
+        double inv_deg = 1.0 / m->deg[r];
+        for (int i = 0; i < n && rc == 0; i++)
+            for (int j = 0; j < n; j++) {
+                double complex hij = h[(size_t)i * n + j] * inv_deg;
+                if (hij == 0.0) continue;
+                int Rp[3];
+                for (int x = 0; x < 3; x++) Rp[x] = WR[x] - Ls[i][x] + Ls[j][x];
+                double complex *blk = rmap_block(out, Rp);
+                if (!blk) {
+                    rc = bs_fail(err, BS_ENOMEM, "symmetrisation: lattice-vector table full");
+                    break;
+                }
+                /* D is column-major: D[a + i n] = D_ai; only the image shells are nonzero */
+                for (int a = 0; a < n; a++) {
+                    double complex dai = D[a + (size_t)i * n];
+                    if (dai == 0.0) continue;
+                    for (int b = 0; b < n; b++) {
+                        double complex dbj = D[b + (size_t)j * n];
+                        if (dbj != 0.0) blk[(size_t)a * n + b] += weight * dai * hij * conj(dbj);
+                    }
+                }
+            }
+    }
+    free(D);
+    free(Ls);
+    return rc;
+}
+
+int cry_breaking_ev(const tb_model *m, const cry_info *c, int iop, double *bound_ev, bs_err *err)
+{
+    int n = m->norb;
+    rmap gm;
+    *bound_ev = 0.0;
+    if (rmap_init(&gm, n, 2 * m->nR + 8) != 0) {
+        rmap_clear(&gm);
+        return bs_fail(err, BS_ENOMEM, "out of memory (symmetry breaking)");
+    }
+    int rc = apply_op(m, c, iop, 1.0, &gm, err);
+    /* subtract h itself on every R of either set: sum of Frobenius norms of the difference */
+    for (int r = 0; rc == 0 && r < m->nR; r++) {
+        double complex *blk = rmap_block(&gm, m->R[r]);
+        if (!blk) {
+            rc = bs_fail(err, BS_ENOMEM, "symmetry breaking: lattice-vector table full");
+            break;
+        }
+        for (size_t e = 0; e < (size_t)n * n; e++) blk[e] -= m->H[(size_t)r * n * n + e] / m->deg[r];
+    }
+    for (int r = 0; rc == 0 && r < gm.n; r++) {
+        double f = 0.0;
+        for (size_t e = 0; e < (size_t)n * n; e++) {
+            double complex v = gm.h[(size_t)r * n * n + e];
+            f += creal(v) * creal(v) + cimag(v) * cimag(v);
+        }
+        *bound_ev += sqrt(f);
+    }
+    rmap_clear(&gm);
+    return rc;
+}
+
+int cry_symmetrise(const tb_model *m, const cry_info *c, const int *ops, int nops, tb_model **out, bs_err *err)
+{
+    *out = NULL;
+    if (nops < 1) return bs_fail(err, BS_EINVAL, "symmetrisation needs at least one operation");
+    int n = m->norb;
+    rmap acc;
+    if (rmap_init(&acc, n, (nops + 1) * m->nR + 8) != 0) {
+        rmap_clear(&acc);
+        return bs_fail(err, BS_ENOMEM, "out of memory (symmetrisation)");
+    }
+    int rc = 0;
+    for (int i = 0; i < nops && rc == 0; i++) rc = apply_op(m, c, ops[i], 1.0 / nops, &acc, err);
+    tb_model *s = NULL;
+    if (rc == 0) rc = tb_model_copy(m, &s, err);
+    if (rc == 0) {
+        /* new arrays for the grown set of lattice vectors */
+        int (*R)[3] = malloc((size_t)acc.n * sizeof *R);
+        int *deg = malloc((size_t)acc.n * sizeof *deg);
+        double complex *H = malloc((size_t)acc.n * n * n * sizeof *H);
+        if (!R || !deg || !H) {
+            free(R), free(deg), free(H);
+            rc = bs_fail(err, BS_ENOMEM, "out of memory (symmetrised model)");
+        } else {
+            memcpy(R, acc.R, (size_t)acc.n * sizeof *R);
+            memcpy(H, acc.h, (size_t)acc.n * n * n * sizeof *H);
+            for (int r = 0; r < acc.n; r++) deg[r] = 1;
+            free(s->R), free(s->deg), free(s->H);
+            s->R = R, s->deg = deg, s->H = H, s->nR = acc.n;
+        }
+    }
+    rmap_clear(&acc);
+    if (rc != 0) {
+        tb_model_free(s);
+        return rc;
+    }
+    *out = s;
+    return 0;
+}

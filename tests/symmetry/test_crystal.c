@@ -11,6 +11,8 @@
 #include <string.h>
 
 #include "bandsieve/crystal.h"
+#include "bandsieve/hk.h"
+#include <lapacke.h>
 #include "bandsieve/realharm.h"
 #include "bandsieve/transform.h"
 #include "testutil.h"
@@ -225,12 +227,107 @@ static void test_permuted_orbitals(void **state)
     tb_model_free(m);
 }
 
+/* Random Hermitian noise of relative size eps on every H(R), keeping H(-R) = H(R)^+ (what a
+ * Wannier fit does to a symmetric Hamiltonian; common practice for these tests). */
+static void add_noise(tb_model *m, double eps, uint64_t seed)
+{
+    int n = m->norb;
+    double hmax = 0;
+    for (size_t e = 0; e < (size_t)m->nR * n * n; e++) hmax = fmax(hmax, cabs(m->H[e]));
+    for (int r = 0; r < m->nR; r++) {
+        int neg[3] = {-m->R[r][0], -m->R[r][1], -m->R[r][2]};
+        int q = tb_model_find_R(m, neg);
+        if (q < r) continue;
+        for (int a = 0; a < n; a++)
+            for (int b = 0; b < n; b++) {
+                if (q == r && b < a) continue;
+                double complex z = eps * hmax * ((2 * bs_test_uniform(&seed) - 1) + I * (2 * bs_test_uniform(&seed) - 1));
+                if (q == r && a == b) z = creal(z);
+                m->H[((size_t)r * n + a) * n + b] += z * m->deg[r];
+                if (q != r || a != b) m->H[((size_t)q * n + b) * n + a] += conj(z) * m->deg[q];
+            }
+    }
+}
+
+static double max_band_shift(const tb_model *a, const tb_model *b)
+{
+    int n = a->norb;
+    double complex *H = malloc((size_t)n * n * sizeof *H);
+    double *wa = malloc((size_t)n * sizeof *wa), *wb = malloc((size_t)n * sizeof *wb), worst = 0;
+    uint64_t s = 77;
+    for (int q = 0; q < 8; q++) {
+        double k[3] = {bs_test_uniform(&s), bs_test_uniform(&s), bs_test_uniform(&s)};
+        hk_build_direct(a, k, H);
+        LAPACKE_zheevd(LAPACK_COL_MAJOR, 'N', 'U', n, H, n, wa);
+        hk_build_direct(b, k, H);
+        LAPACKE_zheevd(LAPACK_COL_MAJOR, 'N', 'U', n, H, n, wb);
+        for (int i = 0; i < n; i++) worst = fmax(worst, fabs(wa[i] - wb[i]));
+    }
+    free(H), free(wa), free(wb);
+    return worst;
+}
+
+/* Symmetrisation: averaging over the operations a noisy fit keeps approximately restores them to
+ * round-off, moves no band by more than the breaking bound (Weyl's inequality for Hermitian
+ * perturbations; common practice in numerical linear algebra), and leaves an exact model as it is. */
+static void test_symmetrise_noisy(void **state)
+{
+    tb_model *clean = bs_test_build("fkm:dt=0.4"), *noisy = NULL;
+    bs_err err;
+    bs_err_clear(&err);
+    assert_int_equal(tb_model_copy(clean, &noisy, &err), 0);
+    add_noise(noisy, 1e-3, 99);
+    cry_info *c = detect(noisy, NULL);
+    assert_int_equal(cry_nverified(c), 1); /* only the identity survives at round-off */
+    int ops[48], nops = 0;
+    double worst_bound = 0;
+    for (int i = 0; i < cry_nops(c); i++) {
+        double bound;
+        assert_int_equal(cry_breaking_ev(noisy, c, i, &bound, &err), 0);
+        /* the 12 operations of D3d have relative residuals ~1e-2 from the noise, the others ~0.14
+         * from the distortion (dt = 0.4 against t = 1): 0.05 separates them */
+        if (cry_get_op(c, i)->residual < 0.05) {
+            ops[nops++] = i;
+            worst_bound = fmax(worst_bound, bound);
+        }
+    }
+    assert_int_equal(nops, 12); /* D3d of the [111]-distorted model */
+    tb_model *sym = NULL;
+    assert_int_equal(cry_symmetrise(noisy, c, ops, nops, &sym, &err), 0);
+    cry_info *cs = detect(sym, NULL);
+    assert_int_equal(cry_nverified(cs), 12);
+    double shift = max_band_shift(noisy, sym);
+    print_message("noise 1e-3: breaking bound %.3g eV, band shift after symmetrising %.3g eV\n", worst_bound, shift);
+    assert_true(shift <= worst_bound);
+    assert_true(shift > 0);
+    cry_info_free(cs);
+    cry_info_free(c);
+
+    /* an exact model: symmetrising over its own group changes nothing */
+    c = detect(clean, NULL);
+    nops = 0;
+    for (int i = 0; i < cry_nops(c); i++)
+        if (cry_get_op(c, i)->verified) ops[nops++] = i;
+    tb_model *same = NULL;
+    assert_int_equal(cry_symmetrise(clean, c, ops, nops, &same, &err), 0);
+    assert_true(max_band_shift(clean, same) < 1e-12);
+    double bound;
+    assert_int_equal(cry_breaking_ev(clean, c, ops[nops - 1], &bound, &err), 0);
+    assert_true(bound < 1e-12);
+    cry_info_free(c);
+    tb_model_free(same);
+    tb_model_free(sym);
+    tb_model_free(noisy);
+    tb_model_free(clean);
+}
+
 int main(void)
 {
     const struct CMUnitTest tests[] = {
         cmocka_unit_test(test_fkm_full_group),     cmocka_unit_test(test_fkm_lowered_groups),
         cmocka_unit_test(test_graphene),           cmocka_unit_test(test_sp3_cubic),
         cmocka_unit_test(test_eigenvalues_at_gamma), cmocka_unit_test(test_permuted_orbitals),
+        cmocka_unit_test(test_symmetrise_noisy),
     };
     return cmocka_run_group_tests(tests, NULL, NULL);
 }
