@@ -1,0 +1,6 @@
+# `inspect --json` and the catalogue rows against the reference recorded before the result struct
+# and its JSON module replaced the hand-written serialisers (tests/data/reference/result.json).
+add_test(NAME result_reference
+         COMMAND ${BS_PYTHON} ${CMAKE_CURRENT_LIST_DIR}/result_reference.py $<TARGET_FILE:bandsieve>
+                 ${CMAKE_CURRENT_BINARY_DIR}/result_reference)
+set_tests_properties(result_reference PROPERTIES LABELS "script;catalogue" TIMEOUT 300)
