@@ -73,15 +73,15 @@ def screen(binary, work, name, count, *flags):
     for view in ("summary", "candidates", "failures", "top_spin_hall", "surfaces"):
         out["view_" + view] = rows(con, f"SELECT * FROM {view} ORDER BY 1, 2")
     con.close()
+    # The set's path is the work folder's: stored as SET.h5 wherever a message or view shows it.
+    for table in out.values():
+        for r in table:
+            for k, v in r.items():
+                if isinstance(v, str):
+                    r[k] = v.replace(set_path, "SET.h5")
     for r in out["results"]:
-        if r.get("message"):
-            r["message"] = r["message"].replace(set_path, "SET.h5")
         if r.get("diagnosis"):
             r["diagnosis"] = json.loads(r["diagnosis"])
-    for r in out["view_failures"]:
-        for k, v in r.items():
-            if isinstance(v, str):
-                r[k] = v.replace(set_path, "SET.h5")
     return out
 
 
