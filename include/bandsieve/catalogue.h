@@ -10,9 +10,8 @@
 #include <stddef.h>
 #include <stdint.h>
 
-#include <cjson/cJSON.h>
-
 #include "bandsieve/err.h"
+#include "bandsieve/result.h"
 
 /* Schema version stored in PRAGMA user_version; PRAGMA application_id is CAT_APPLICATION_ID. */
 #define CAT_SCHEMA_VERSION 1
@@ -114,18 +113,19 @@ typedef struct cat_material {
 int cat_material_upsert(cat_db *cat, const cat_material *m, bs_err *err);
 
 /* Records the result of material_id in run_id: status, message (borrowed, may be NULL), the
- * diagnosis object (borrowed, the JSON of `inspect --json`; may be NULL for non-ok rows, required
- * for CAT_RES_OK), the worker rank and its wall time in seconds (< 0: take the diagnosis key
- * "seconds"). Missing keys become NULL columns; a key of the wrong type is BS_EPARSE naming the
- * key, and a diagnosis "id" different from material_id is BS_EINVAL (nothing is written then).
- * Weyl nodes go to the nodes table; "wcc_flows" are written to this session's HDF5 artifact file
- * and indexed in artifacts. A second put for the same (run, material) replaces the first.
- * The row joins the open transaction, which is committed when the batch is full or due. */
+ * diagnosis (borrowed; may be NULL for non-ok rows, required for CAT_RES_OK), the worker rank and
+ * its wall time in seconds (< 0: take the diagnosis's own). The columns are read from the struct,
+ * the diagnosis column is its JSON form without flows (result_json.h); Weyl nodes go to the nodes
+ * table; flows are written to this session's HDF5 artifact file and indexed in artifacts. A
+ * diagnosis whose id is set and differs from material_id is BS_EINVAL (nothing is written then).
+ * A second put for the same (run, material) replaces the first. The row joins the open
+ * transaction, which is committed when the batch is full or due. */
 int cat_result_put(cat_db *cat, int64_t run_id, const char *material_id, cat_status status,
-                   const char *message, const cJSON *diag, int rank, double seconds, bs_err *err);
+                   const char *message, const res_diag *diag, int rank, double seconds, bs_err *err);
 
-/* As cat_result_put with the diagnosis as JSON text of len bytes (as received from a worker);
- * text NULL means no diagnosis. Malformed JSON is BS_EPARSE with the offset of the error. */
+/* As cat_result_put with the diagnosis as JSON text of len bytes, read with res_from_text (keys
+ * that are missing take the values of an empty result); text NULL means no diagnosis. Malformed
+ * JSON is BS_EPARSE with the offset of the error, a key of the wrong type BS_EPARSE naming it. */
 int cat_result_put_text(cat_db *cat, int64_t run_id, const char *material_id, cat_status status,
                         const char *message, const char *text, size_t len, int rank,
                         double seconds, bs_err *err);
@@ -194,7 +194,7 @@ int cat_query(cat_db *cat, const char *sql, cat_row_fn fn, void *ctx, bs_err *er
 /* Runs PRAGMA integrity_check; BS_ESQL with its first message when the file is damaged. */
 int cat_check(cat_db *cat, bs_err *err);
 
-/* One Wannier-centre flow read back from an artifact (as in diag_flow): the caller owns kpar
+/* One Wannier-centre flow read back from an artifact (as in res_flow): the caller owns kpar
  * (nstring) and wcc (nstring * nband, row-major by string) and frees them with cat_flow_clear. */
 typedef struct cat_flow {
     int plane, nstring, nband;

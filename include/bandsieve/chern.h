@@ -28,11 +28,11 @@ typedef struct chern_opts {
 /* Defaults for a plane (surface = 0) or for chern_surface_flux (surface = 1). */
 void chern_opts_default(chern_opts *o, int surface);
 
-/* One Chern number (plane) or one flux (surface). status is DIAG_DONE when every plaquette has
- * |F| <= fmax and the gap stays open; DIAG_AMBIGUOUS with a reason otherwise (gap_closed tells the
+/* One Chern number (plane) or one flux (surface). status is RES_DONE when every plaquette has
+ * |F| <= fmax and the gap stays open; RES_AMBIGUOUS with a reason otherwise (gap_closed tells the
  * gap apart from a too coarse mesh). */
 typedef struct chern_value {
-    int status;           /* DIAG_DONE or DIAG_AMBIGUOUS */
+    int status;           /* RES_DONE or RES_AMBIGUOUS */
     int chern;            /* nearest integer to flux */
     double flux;          /* Berry flux / (2 pi); an integer up to round-off by construction */
     double max_f;         /* largest |F| of a plaquette, rad */
@@ -52,7 +52,7 @@ int chern_create(const tb_model *m, int nband, chern_ws **out, bs_err *err);
 void chern_free(chern_ws *ws);
 
 /* Chern number of the lowest nband bands on plane p (0..5: k1=0, k1=1/2, k2=0, k2=1/2, k3=0,
- * k3=1/2, as diag_flow.plane; a 2D model takes only p = 4, the whole zone). The plane spanned by
+ * k3=1/2, as res_flow.plane; a 2D model takes only p = 4, the whole zone). The plane spanned by
  * (k_a, k_b) with a = (i+1)%3, b = (i+2)%3 for the fixed k_i, oriented by e_a x e_b = e_i: for
  * p = 4 the usual C of the (k1, k2) zone. The mesh is doubled while some |F| > fmax, up to
  * max_mesh. o may be NULL (defaults). BS_EINVAL on a bad plane, BS_ETIMEOUT, BS_ENUMERIC. */

@@ -4,10 +4,10 @@
 #define BANDSIEVE_GAPS_H
 
 #include "bandsieve/bandpair.h"
-#include "bandsieve/diagnosis.h"
 #include "bandsieve/err.h"
 #include "bandsieve/hk.h"
 #include "bandsieve/model.h"
+#include "bandsieve/result.h"
 
 typedef struct gaps_opts {
     int mesh;            /* coarse mesh points per reduced direction (0: 16 in 3D, 48 in 2D) */
@@ -48,8 +48,5 @@ struct nodes_result;
  * gap below g->gap_direct_ev replaces it, its two band energies (energy -+ gap/2) bound the VBM and
  * CBM. Updates metallic and closed. */
 void gaps_merge_nodes(gaps_result *g, const struct nodes_result *r);
-
-/* Copies the gaps and their k-points into d (diagnosis.h) and adds nk_evaluated to d's count. */
-void gaps_to_diag(const gaps_result *g, diag_result *d);
 
 #endif

@@ -10,15 +10,15 @@
  * while the gap stays closed; a long enough trace is a line.
  *
  * In 2D a touching point is not a Weyl node (no closed surface surrounds a point of a plane): such
- * points are reported as nodes with chirality 0 and chirality_status DIAG_NA. */
+ * points are reported as nodes with chirality 0 and chirality_status RES_NA. */
 #ifndef BANDSIEVE_NODES_H
 #define BANDSIEVE_NODES_H
 
 #include "bandsieve/bandpair.h"
-#include "bandsieve/diagnosis.h"
 #include "bandsieve/err.h"
 #include "bandsieve/hk.h"
 #include "bandsieve/model.h"
+#include "bandsieve/result.h"
 
 typedef struct nodes_opts {
     int mesh;             /* coarse mesh per reduced direction (0: 16 in 3D, 48 in 2D) */
@@ -36,10 +36,10 @@ typedef struct nodes_opts {
 
 typedef struct nodes_result {
     int nnodes;
-    diag_node *nodes;     /* owned: isolated touchings (Weyl nodes in 3D, Dirac points in 2D) */
+    res_node *nodes;     /* owned: isolated touchings (Weyl nodes in 3D, Dirac points in 2D) */
     int net_chirality;    /* sum of the chiralities; zero by Nucl. Phys. B 185, 20 (1981) */
-    int chirality_status; /* DIAG_DONE: every 3D node got an integer flux; DIAG_AMBIGUOUS: some did
-                             not (chirality 0 there); DIAG_NA: 2D, none found, or skipped */
+    int chirality_status; /* RES_DONE: every 3D node got an integer flux; RES_AMBIGUOUS: some did
+                             not (chirality 0 there); RES_NA: 2D, none found, or skipped */
     int nodal_line;       /* 1 when the touchings form a continuous curve (3D) */
     int nodal_points;     /* distinct touchings on lines */
     double (*line_k)[3];  /* owned: those touchings, reduced in [0,1) */
@@ -76,9 +76,5 @@ int nodes_find_eval(const tb_model *m, bp_eval *e, const nodes_opts *o, nodes_re
  * the nodes of nonzero chirality come in sets of four (a multiple of 4, as many + as -); 0 otherwise.
  * Nodes of chirality 0 (Dirac points) only need their -k partner. */
 int nodes_check_time_reversal(const nodes_result *r, int dim, double tol_k);
-
-/* Moves the nodes and line summary into d (diagnosis.h): d->nodes takes ownership (any previous
- * d->nodes is freed), r keeps the line points. */
-void nodes_to_diag(nodes_result *r, diag_result *d);
 
 #endif

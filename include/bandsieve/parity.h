@@ -10,7 +10,7 @@
 #include "bandsieve/model.h"
 #include "bandsieve/symmetry.h"
 
-/* Status values, numerically equal to DIAG_NA / DIAG_DONE / DIAG_AMBIGUOUS of diagnosis.h where
+/* Status values, numerically equal to RES_NA / RES_DONE / RES_AMBIGUOUS of diagnosis.h where
  * they mean the same; PAR_GAP_CLOSED is an ambiguous result whose cause is a gap closing. */
 enum { PAR_NA = 0, PAR_DONE = 1, PAR_AMBIGUOUS = 2, PAR_GAP_CLOSED = 4 };
 

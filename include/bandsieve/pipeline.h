@@ -7,7 +7,11 @@
 
 #include <signal.h>
 
+#include "bandsieve/diagnosis.h"
 #include "bandsieve/err.h"
+#include "bandsieve/model.h"
+#include "bandsieve/result.h"
+#include "bandsieve/transport.h"
 
 /* Counts shown by the progress callback and returned at the end. */
 typedef struct pl_counts {
@@ -15,16 +19,27 @@ typedef struct pl_counts {
     int skipped;          /* already done in the resumed run */
     int done;             /* results received */
     int ok, invalid, failed, timeout;
-    int by_class[10];     /* see pl_class_names */
+    int by_class[RES_NCLASS]; /* per res_class */
     double elapsed;       /* seconds since the start */
     int interrupted;      /* stopped early: wall-clock budget or a signal */
     long long run_id;
     int resumed;
 } pl_counts;
 
-/* Names of the classes counted in pl_counts.by_class, in order (count pl_nclass()). */
-const char *pl_class_name(int i);
-int pl_nclass(void);
+/* What one material's diagnosis includes besides the topology. */
+typedef struct pl_diag_opts {
+    diag_opts diag;
+    int transport;              /* anomalous and spin Hall conductivities with tr below */
+    tr_opts tr;                 /* tr.deadline is set from diag.max_seconds when that is > 0 */
+    int surfaces;               /* surface crossings of a default plane, for classes that promise
+                                   surface or edge states */
+} pl_diag_opts;
+
+/* Diagnoses m (borrowed) into r (res_init by the caller): diag_run, then transport and the surface
+ * summary as o asks, each under the same time budget. The one path of `inspect` and of every
+ * worker of `screen`. Errors of diag_run, tr_compute ("transport: ...") and ssum_compute
+ * ("surface: ..."); r holds what was done before the error. */
+int pl_diagnose(const tb_model *m, const pl_diag_opts *o, res_diag *r, bs_err *err);
 
 typedef struct pl_opts {
     const char *set_path;       /* material set (HDF5) */

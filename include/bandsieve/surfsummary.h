@@ -6,21 +6,12 @@
 #ifndef BANDSIEVE_SURFSUMMARY_H
 #define BANDSIEVE_SURFSUMMARY_H
 
-#include <cjson/cJSON.h>
-
 #include "bandsieve/err.h"
 #include "bandsieve/model.h"
+#include "bandsieve/result.h"
 
-typedef struct ssum_result {
-    int miller[3];
-    int layers;
-    int kdim;               /* 2 for a slab, 1 for a ribbon */
-    double fermi_ev;        /* where crossings were counted (see ss_fermi_default) */
-    double vbm_ev, cbm_ev;  /* bulk band edges at the filling */
-    double ka[2], kb[2];    /* the two surface TRIMs (in-plane reduced) */
-    int n_top, n_bottom, n_other;
-    int ndirac_top;         /* top-surface Dirac points inside the bulk gap */
-} ssum_result;
+/* The summary: res_surface of result.h. */
+typedef res_surface ssum_result;
 
 /* The default plane of m: (0,0,1) of its own lattice in 3D, the (1,0) edge in 2D. */
 void ssum_default_direction(const tb_model *m, int miller[3]);
@@ -28,9 +19,5 @@ void ssum_default_direction(const tb_model *m, int miller[3]);
 /* Builds the slab of nlayers cells (0: 20 in 3D, 32 in 2D) of m (borrowed) for miller and counts
  * the crossings and Dirac points. Errors of the slab builder and eigensolver. */
 int ssum_compute(const tb_model *m, const int miller[3], int nlayers, ssum_result *out, bs_err *err);
-
-/* {"direction": [...], "layers", "fermi_eV", "crossings": {"top", "bottom", "other"},
- * "between": [[...], [...]], "dirac_points_top"}; the caller owns it. */
-cJSON *ssum_to_json(const ssum_result *r);
 
 #endif

@@ -33,18 +33,22 @@
 #ifndef BANDSIEVE_TRANSPORT_H
 #define BANDSIEVE_TRANSPORT_H
 
-#include <cjson/cJSON.h>
-
 #include "bandsieve/err.h"
 #include "bandsieve/model.h"
+#include "bandsieve/result.h"
 
 /* Most Fermi energies in one call (the reference plus the scan). */
-#define TR_MAX_FERMI 101
+#define TR_MAX_FERMI RES_MAX_FERMI
 
-enum { TR_GAUGE_POSITION = 0, TR_GAUGE_LATTICE = 1 };
+enum { TR_GAUGE_POSITION = RES_GAUGE_POSITION, TR_GAUGE_LATTICE = RES_GAUGE_LATTICE };
 
 /* Where the reference Fermi energy came from. */
-enum { TR_FERMI_GIVEN = 0, TR_FERMI_CARD = 1, TR_FERMI_MIDGAP = 2, TR_FERMI_FILLING = 3 };
+enum {
+    TR_FERMI_GIVEN = RES_FERMI_GIVEN,
+    TR_FERMI_CARD = RES_FERMI_CARD,
+    TR_FERMI_MIDGAP = RES_FERMI_MIDGAP,
+    TR_FERMI_FILLING = RES_FERMI_FILLING
+};
 
 /* Settings; tr_opts_default fills the defaults named in brackets. */
 typedef struct tr_opts {
@@ -71,32 +75,11 @@ typedef struct tr_opts {
 
 void tr_opts_default(tr_opts *o);
 
-/* Result: a plain struct with fixed arrays (it can be copied or sent as bytes). Index 0 of every
- * array is the reference Fermi energy, 1..nfermi-1 the scan. Errors are the adaptive integration's
- * estimates (sum over cells of |degree-7 - degree-5 rule|, raised where a cell's two halves do not
- * add up to it), same units as the values. */
-typedef struct tr_result {
-    int dim;                          /* 2 or 3 */
-    int has_shc;                      /* spinful and asked for */
-    int nfermi;
-    int fermi_source;                 /* TR_FERMI_* of index 0 */
-    double fermi_ev[TR_MAX_FERMI];
-    double ahc[TR_MAX_FERMI][3];      /* xy, yz, zx (yz, zx are 0 in 2D) */
-    double ahc_err[TR_MAX_FERMI][3];
-    double shc[TR_MAX_FERMI];         /* sigma^{s_z}_{xy} */
-    double shc_err[TR_MAX_FERMI];
-    char ahc_units[16];               /* "e^2/h" or "S/cm" */
-    char shc_units[16];               /* "e/2pi" or "(hbar/e)S/cm" */
-    long long nk;                     /* H(k) evaluations, including the Fermi-energy pre-pass */
-    long long ncells;                 /* cells of the final partition */
-    int depth;                        /* deepest refinement reached */
-    int converged;                    /* total error estimate <= tol */
-    double tol;                       /* the tolerance used (output units) */
-    double err_total;                 /* the refinement's scalar total error estimate */
-    double min_gap_ev;                /* smallest E_nocc - E_(nocc-1) seen */
-    double eta_ev, smear_ev;
-    int gauge;
-} tr_result;
+/* Result: res_transport of result.h (a plain struct with fixed arrays; it can be copied or sent as
+ * bytes). Index 0 of every array is the reference Fermi energy, 1..nfermi-1 the scan. Errors are the
+ * adaptive integration's estimates (sum over cells of |degree-7 - degree-5 rule|, raised where a
+ * cell's two halves do not add up to it), same units as the values. */
+typedef res_transport tr_result;
 
 /* Computes AHC (and SHC for spinful models) of m (borrowed) at the reference Fermi energy and the
  * scan. The reference is o->fermi_ev when has_fermi; else the card's fermi_ev when m->has_fermi;
@@ -108,15 +91,5 @@ typedef struct tr_result {
  * the errors say how good the values are. BS_EINVAL for bad options, a model that is not 2D/3D or
  * a 2D lattice not in the xy plane; BS_ENUMERIC from LAPACK; BS_ENOMEM; BS_ETIMEOUT. */
 int tr_compute(const tb_model *m, const tr_opts *o, tr_result *out, bs_err *err);
-
-/* JSON of r: {"ahc": {"xy", ["yz", "zx",] "units", "fermi_eV", "error"}, ["shc": {"xy_z", "units",
- * "fermi_eV", "error"},] "scan": [{"fermi_eV", "ahc_xy", ..., "ahc_error", ["shc_xy_z",
- * "shc_error"]}], "kpoints", "cells", "depth", "converged", "tolerance", "fermi_source", "eta_eV",
- * "smear_eV", "gauge", "min_gap_eV"}; the "ahc"/"shc" objects hold index 0, their "error" the
- * largest component error. The caller owns the result (cJSON_Delete); NULL when out of memory. */
-cJSON *tr_to_json(const tr_result *r);
-
-/* Name of a TR_FERMI_* value ("given", "card", "midgap", "filling"). */
-const char *tr_fermi_source_name(int source);
 
 #endif

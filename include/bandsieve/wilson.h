@@ -1,15 +1,15 @@
 /* Hybrid Wannier charge centres from Wilson loops and the Z2 index from their flow
  * (Phys. Rev. B 83, 235401 (2011); Phys. Rev. B 84, 075119 (2011)), with adaptive strings.
  *
- * A plane p (numbered as diag_flow.plane: k_i = 0 or 1/2, i = p / 2) is swept by closed strings
+ * A plane p (numbered as res_flow.plane: k_i = 0 or 1/2, i = p / 2) is swept by closed strings
  * along k_a, a = (i + 1) % 3, at values of the pumping parameter k_b, b = (i + 2) % 3, from 0 to
  * 1/2. A 2D model has the one plane p = 4 (k3 = 0): strings along k1, pumped along k2. */
 #ifndef BANDSIEVE_WILSON_H
 #define BANDSIEVE_WILSON_H
 
-#include "bandsieve/diagnosis.h"
 #include "bandsieve/err.h"
 #include "bandsieve/model.h"
+#include "bandsieve/result.h"
 
 typedef struct wilson_ws wilson_ws;
 
@@ -34,9 +34,9 @@ typedef struct wilson_opts {
 void wilson_opts_default(wilson_opts *o);
 
 /* The flow and Z2 index of one plane.
- * status DIAG_DONE: z2 is the index. DIAG_AMBIGUOUS: the refinement budget ran out (reason says
+ * status RES_DONE: z2 is the index. RES_AMBIGUOUS: the refinement budget ran out (reason says
  * where), or the centres at the time-reversal-invariant lines do not pair up (no time reversal).
- * DIAG_NA with gap_closed = 1: the occupied bands touch the next one on a string (semimetal or
+ * RES_NA with gap_closed = 1: the occupied bands touch the next one on a string (semimetal or
  * metal at this filling); no Z2 is defined. The flow holds what was computed either way. */
 typedef struct wilson_plane {
     int plane;
@@ -48,7 +48,7 @@ typedef struct wilson_plane {
     double min_det;       /* smallest |det| of a link overlap */
     int max_nk;           /* most k-points a string needed */
     long long nk;         /* k-points diagonalised */
-    diag_flow flow;       /* owned (wilson_plane_clear): kpar ascending, wcc sorted per string */
+    res_flow flow;       /* owned (wilson_plane_clear): kpar ascending, wcc sorted per string */
     char reason[160];
 } wilson_plane;
 
@@ -57,8 +57,8 @@ void wilson_plane_clear(wilson_plane *p);
 
 /* The indices of a model. 2D: z2[0] = nu from plane 4. 3D: z2 = {nu0, nu1, nu2, nu3} with
  * nu_i = Z2(k_i = 1/2) and nu0 = Z2(k_i = 0) + Z2(k_i = 1/2) mod 2, required to agree for
- * i = 1, 2, 3 (else AMBIGUOUS). status: DIAG_DONE, DIAG_AMBIGUOUS (a plane was, or the three nu0
- * disagree; reason says which) or DIAG_NA with gap_closed (a plane's gap closes). */
+ * i = 1, 2, 3 (else AMBIGUOUS). status: RES_DONE, RES_AMBIGUOUS (a plane was, or the three nu0
+ * disagree; reason says which) or RES_NA with gap_closed (a plane's gap closes). */
 typedef struct wilson_z2 {
     int status;
     int z2[4];
@@ -94,8 +94,8 @@ int wilson_plane_z2(wilson_ws *w, int p, const wilson_opts *o, wilson_plane *out
  * computed even when one is ambiguous, so the flows can be inspected. */
 int wilson_z2_run(wilson_ws *w, const wilson_opts *o, wilson_z2 *out, bs_err *err);
 
-/* Moves the flows of r into a new array *flows of *nflows diag_flow (malloc'd, as are their
- * kpar and wcc: diag_result_clear frees them), leaving r's planes without flows. */
-int wilson_z2_take_flows(wilson_z2 *r, diag_flow **flows, int *nflows, bs_err *err);
+/* Moves the flows of r into a new array *flows of *nflows res_flow (malloc'd, as are their
+ * kpar and wcc: res_clear frees them), leaving r's planes without flows. */
+int wilson_z2_take_flows(wilson_z2 *r, res_flow **flows, int *nflows, bs_err *err);
 
 #endif

@@ -99,7 +99,7 @@ static int write_dataset(hid_t group, const char *name, int rank, const hsize_t 
     return rc;
 }
 
-int cat_artifact_write(cat_db *cat, int64_t run_id, int session, const char *material_id, const cat_flow_in *f,
+int cat_artifact_write(cat_db *cat, int64_t run_id, int session, const char *material_id, const res_flow *f,
                        char *file, size_t file_len, char *h5path, size_t h5path_len, bs_err *err)
 {
     int rc = open_file(cat, run_id, session, err);

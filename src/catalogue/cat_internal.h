@@ -70,16 +70,11 @@ int cat_txn_note(cat_db *cat, int is_result, bs_err *err);
 int cat_session_of(cat_db *cat, int64_t run_id, int *session, bs_err *err);
 
 /* One parsed Wannier-centre flow of a diagnosis, validated before anything is written. */
-typedef struct cat_flow_in {
-    int plane, nstring, nband;
-    double *kpar; /* owned */
-    double *wcc;  /* owned, nstring * nband */
-} cat_flow_in;
 
 /* Writes the flow of material_id into the artifact file of (run_id, session), opening or creating
  * it first, and returns the file name and dataset group in file/h5path (caller's buffers). */
 int cat_artifact_write(cat_db *cat, int64_t run_id, int session, const char *material_id,
-                       const cat_flow_in *f, char *file, size_t file_len, char *h5path,
+                       const res_flow *f, char *file, size_t file_len, char *h5path,
                        size_t h5path_len, bs_err *err);
 
 /* Flushes the open artifact file to disk (before each commit); no-op when none is open. */

@@ -3,6 +3,8 @@
  * cat_artifact.c. */
 #include "cat_internal.h"
 
+#include <cjson/cJSON.h>
+
 #include <ctype.h>
 #include <stdlib.h>
 #include <string.h>

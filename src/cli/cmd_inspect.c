@@ -2,20 +2,19 @@
 #include <getopt.h>
 #include <stdio.h>
 #include <stdlib.h>
+#include <string.h>
 
-#include <cjson/cJSON.h>
-
-#include "bandsieve/bandpair.h"
-#include "bandsieve/diagnosis.h"
+#include "bandsieve/pipeline.h"
+#include "bandsieve/result_json.h"
 #include "bandsieve/source.h"
-#include "bandsieve/transport.h"
 #include "cliutil.h"
 #include "commands.h"
 
 static void inspect_help(FILE *out)
 {
     fprintf(out,
-            "usage: bandsieve inspect SOURCE [--json] [--mesh N] [--max-seconds S] [--flows] [--transport]\n\n"
+            "usage: bandsieve inspect SOURCE [--json] [--mesh N] [--max-seconds S] [--flows] [--transport]\n"
+            "                         [--surfaces]\n\n"
             "Diagnoses one material: gaps, time reversal and inversion, Z2 from parities and from\n"
             "the Wannier-centre flow, Chern numbers, Weyl nodes and nodal lines, and a class with a\n"
             "confidence and a one-line reason.\n"
@@ -34,43 +33,67 @@ static void inspect_help(FILE *out)
             "                   or the filling for a metal)\n"
             "  --scan LO,HI,N   also N Fermi energies from E+LO to E+HI (eV) in the same pass\n"
             "  --eta W          broadening of the energy denominators (eV, default 0)\n"
+            "  --surfaces       for classes that promise surface or edge states, the Fermi-level\n"
+            "                   crossings of surface states on a default plane (key surface),\n"
+            "                   as screen --surfaces stores them\n"
             "  -h, --help       this text\n");
 }
 
-static void print_indices(const char *label, const cJSON *list)
+/* An index list as written in papers: "1" in 2D, "1;111" in 3D; "-" when its method was not done. */
+static void print_indices(const char *label, res_status status, const int *v, int dim)
 {
     printf("  %-22s", label);
-    if (!cJSON_IsArray(list)) { printf("-\n"); return; }
-    int n = cJSON_GetArraySize(list);
-    for (int i = 0; i < n; i++) printf(i == 1 ? ";%d" : "%d", cJSON_GetArrayItem(list, i)->valueint);
+    if (status != RES_DONE) {
+        printf("-\n");
+        return;
+    }
+    for (int i = 0; i < (dim == 2 ? 1 : 4); i++) printf(i == 1 ? ";%d" : "%d", v[i]);
     printf("\n");
 }
 
-static void print_report(const diag_result *r, const cJSON *j)
+static void print_transport(const res_transport *t)
+{
+    double err = 0;
+    for (int a = 0; a < (t->dim == 3 ? 3 : 1); a++)
+        if (t->ahc_err[0][a] > err) err = t->ahc_err[0][a];
+    printf("  anomalous Hall        xy %.6g", t->ahc[0][0]);
+    if (t->dim == 3) printf(", yz %.6g, zx %.6g", t->ahc[0][1], t->ahc[0][2]);
+    printf(" %s (error %.2g) at E_F = %.4f eV\n", t->ahc_units, err, t->fermi_ev[0]);
+    if (t->has_shc) printf("  spin Hall (s_z, xy)   %.6g %s (error %.2g)\n", t->shc[0], t->shc_units, t->shc_err[0]);
+}
+
+static void print_surface(const res_surface *s)
+{
+    printf("  surface (%d %d", s->miller[0], s->miller[1]);
+    if (s->kdim == 2) printf(" %d", s->miller[2]);
+    printf("), %d layers: crossings at E = %.4f eV top %d, bottom %d, other %d; %d Dirac points in the gap\n",
+           s->layers, s->fermi_ev, s->n_top, s->n_bottom, s->n_other, s->ndirac_top);
+}
+
+static void print_report(const res_diag *r)
 {
     printf("%s  (%dD, %d states, %d occupied)\n", r->id, r->dim, r->norb, r->nocc);
-    printf("  class                 %s   (confidence %.2f)\n", r->cls, r->confidence);
+    printf("  class                 %s   (confidence %.2f)\n", res_class_name(r->cls), r->confidence);
     printf("  why                   %s\n", r->reason);
     printf("  direct gap            %.6f eV at k = (%.4f, %.4f, %.4f)\n", r->gap_direct_ev,
            r->k_gap_direct[0], r->k_gap_direct[1], r->k_gap_direct[2]);
     printf("  indirect gap          %.6f eV\n", r->gap_indirect_ev);
     printf("  time reversal         %s (residual %.2g)\n", r->time_reversal ? "yes" : "no", r->tr_residual);
     printf("  inversion             %s (residual %.2g)\n", r->inversion ? "yes" : "no", r->inv_residual);
-    print_indices("Z2", cJSON_GetObjectItem(j, "z2"));
-    print_indices("Z2 from parities", cJSON_GetObjectItem(j, "z2_parity"));
-    print_indices("Z2 from WCC flow", cJSON_GetObjectItem(j, "z2_wcc"));
+    print_indices("Z2", r->z2_status, r->z2, r->dim);
+    print_indices("Z2 from parities", r->z2_parity_status, r->z2_parity, r->dim);
+    print_indices("Z2 from WCC flow", r->z2_wcc_status, r->z2_wcc, r->dim);
     if (r->z2_note[0]) printf("  Z2 note               %s\n", r->z2_note);
     if (r->ntrim > 0) {
         printf("  parity products       ");
         for (int t = 0; t < r->ntrim; t++) printf("%c", r->par_delta[t] > 0 ? '+' : '-');
         printf("   (TRIM n1 + 2 n2 + 4 n3 order)\n");
     }
-    const cJSON *ch = cJSON_GetObjectItem(j, "chern");
-    if (cJSON_IsNumber(ch)) printf("  Chern number          %d\n", ch->valueint);
-    const cJSON *pc = cJSON_GetObjectItem(j, "plane_chern");
-    if (cJSON_IsArray(pc)) {
+    int chern = 0;
+    if (res_chern_shown(r, &chern)) printf("  Chern number          %d\n", chern);
+    if (res_plane_chern_shown(r)) {
         printf("  plane Chern numbers   ");
-        for (int p = 0; p < 6; p++) printf("%d ", cJSON_GetArrayItem(pc, p)->valueint);
+        for (int p = 0; p < 6; p++) printf("%d ", r->plane_chern[p]);
         printf(" (k1=0, k1=1/2, k2=0, k2=1/2, k3=0, k3=1/2)\n");
     }
     if (r->nnodes > 0) {
@@ -80,18 +103,8 @@ static void print_report(const diag_result *r, const cJSON *j)
             printf("      k = (%+.6f, %+.6f, %+.6f)  chirality %+d  E = %.4f eV\n", r->nodes[i].k[0],
                    r->nodes[i].k[1], r->nodes[i].k[2], r->nodes[i].chirality, r->nodes[i].energy_ev);
     }
-    const cJSON *ahc = cJSON_GetObjectItem(j, "ahc"), *shc = cJSON_GetObjectItem(j, "shc");
-    if (ahc) {
-        printf("  anomalous Hall        xy %.6g", cJSON_GetNumberValue(cJSON_GetObjectItem(ahc, "xy")));
-        if (cJSON_GetObjectItem(ahc, "yz"))
-            printf(", yz %.6g, zx %.6g", cJSON_GetNumberValue(cJSON_GetObjectItem(ahc, "yz")),
-                   cJSON_GetNumberValue(cJSON_GetObjectItem(ahc, "zx")));
-        printf(" %s (error %.2g) at E_F = %.4f eV\n", cJSON_GetStringValue(cJSON_GetObjectItem(ahc, "units")),
-               cJSON_GetNumberValue(cJSON_GetObjectItem(ahc, "error")), cJSON_GetNumberValue(cJSON_GetObjectItem(ahc, "fermi_eV")));
-    }
-    if (shc)
-        printf("  spin Hall (s_z, xy)   %.6g %s (error %.2g)\n", cJSON_GetNumberValue(cJSON_GetObjectItem(shc, "xy_z")),
-               cJSON_GetStringValue(cJSON_GetObjectItem(shc, "units")), cJSON_GetNumberValue(cJSON_GetObjectItem(shc, "error")));
+    if (r->has_transport) print_transport(&r->transport);
+    if (r->has_surface) print_surface(&r->surface);
     if (r->nodal_line)
         printf("  nodal line            %d points, extent %.3f (reduced)\n", r->nodal_points, r->nodal_extent);
     printf("  mesh %d, %lld k-points, %.2f s\n", r->mesh, r->nk_evaluated, r->seconds);
@@ -105,12 +118,15 @@ int cmd_inspect(int argc, char **argv)
         {"seed", required_argument, NULL, 's'}, {"symmetry-tol", required_argument, NULL, 'y'},
         {"transport", no_argument, NULL, 'a'}, {"fermi", required_argument, NULL, 'e'},
         {"scan", required_argument, NULL, 'n'}, {"eta", required_argument, NULL, 'E'},
+        {"surfaces", no_argument, NULL, 'S'},
         {"help", no_argument, NULL, 'h'}, {NULL, 0, NULL, 0}};
-    int json = 0, transport = 0, c;
-    tr_opts topts;
-    tr_opts_default(&topts);
-    diag_opts opts = {0};
-    opts.seed = 1;
+    int json = 0, c;
+    pl_diag_opts po;
+    memset(&po, 0, sizeof po);
+    tr_opts_default(&po.tr);
+    tr_opts *topts = &po.tr;
+    diag_opts *opts = &po.diag;
+    opts->seed = 1;
     optind = 1;
     while ((c = getopt_long(argc, argv, "h", longopts, NULL)) != -1) {
         long v;
@@ -118,24 +134,25 @@ int cmd_inspect(int argc, char **argv)
         switch (c) {
         case 'h': inspect_help(stdout); return 0;
         case 'j': json = 1; break;
-        case 'f': opts.want_flows = 1; break;
+        case 'f': opts->want_flows = 1; break;
         case 'm':
             if (cli_parse_int(optarg, 4, 4096, &v)) { fprintf(stderr, "bandsieve inspect: --mesh expects an integer 4..4096, got '%s'\n", optarg); return 2; }
-            opts.mesh = (int)v;
+            opts->mesh = (int)v;
             break;
         case 't':
             if (cli_parse_double(optarg, &d) || d <= 0) { fprintf(stderr, "bandsieve inspect: --max-seconds expects a positive number, got '%s'\n", optarg); return 2; }
-            opts.max_seconds = d;
+            opts->max_seconds = d;
             break;
-        case 'a': transport = 1; break;
+        case 'a': po.transport = 1; break;
+        case 'S': po.surfaces = 1; break;
         case 'e':
             if (cli_parse_double(optarg, &d)) { fprintf(stderr, "bandsieve inspect: --fermi expects a number (eV), got '%s'\n", optarg); return 2; }
-            topts.has_fermi = 1;
-            topts.fermi_ev = d;
+            topts->has_fermi = 1;
+            topts->fermi_ev = d;
             break;
         case 'E':
             if (cli_parse_double(optarg, &d) || d < 0) { fprintf(stderr, "bandsieve inspect: --eta expects a non-negative number (eV), got '%s'\n", optarg); return 2; }
-            topts.eta_ev = d;
+            topts->eta_ev = d;
             break;
         case 'n': {
             double v3[3];
@@ -143,23 +160,23 @@ int cmd_inspect(int argc, char **argv)
                 fprintf(stderr, "bandsieve inspect: --scan expects LO,HI,N (eV offsets from the Fermi energy, 2 <= N <= %d), got '%s'\n", TR_MAX_FERMI - 1, optarg);
                 return 2;
             }
-            topts.scan_lo_ev = v3[0];
-            topts.scan_hi_ev = v3[1];
-            topts.nscan = (int)v3[2];
+            topts->scan_lo_ev = v3[0];
+            topts->scan_hi_ev = v3[1];
+            topts->nscan = (int)v3[2];
             break;
         }
         case 'y':
             if (cli_parse_double(optarg, &d) || d <= 0 || d >= 1) { fprintf(stderr, "bandsieve inspect: --symmetry-tol expects a number in (0,1), got '%s'\n", optarg); return 2; }
-            opts.symmetry_tol = d;
+            opts->symmetry_tol = d;
             break;
         case 's':
             if (cli_parse_int(optarg, 1, 1L << 30, &v)) { fprintf(stderr, "bandsieve inspect: --seed expects a positive integer, got '%s'\n", optarg); return 2; }
-            opts.seed = (unsigned long long)v;
+            opts->seed = (unsigned long long)v;
             break;
         default: inspect_help(stderr); return 2;
         }
     }
-    if (!transport && (topts.has_fermi || topts.nscan > 0 || topts.eta_ev > 0)) {
+    if (!po.transport && (topts->has_fermi || topts->nscan > 0 || topts->eta_ev > 0)) {
         fprintf(stderr, "bandsieve inspect: --fermi, --scan and --eta apply to --transport only\n");
         return 2;
     }
@@ -175,36 +192,21 @@ int cmd_inspect(int argc, char **argv)
         fprintf(stderr, "bandsieve inspect: %s\n", err.msg);
         return 1;
     }
-    diag_result r;
-    diag_result_init(&r);
-    int rc = diag_run(m, &opts, &r, &err);
+    res_diag r;
+    res_init(&r);
     int status = 0;
-    if (rc != 0) {
-        fprintf(stderr, "bandsieve inspect: %s: %s (%s)\n", m->id, err.msg, bs_err_name(rc));
+    if (pl_diagnose(m, &po, &r, &err) != 0) {
+        fprintf(stderr, "bandsieve inspect: %s: %s (%s)\n", m->id, err.msg, bs_err_name(err.code));
         status = 1;
+    } else if (json) {
+        char *text = res_to_text(&r, opts->want_flows);
+        if (text) printf("%s\n", text);
+        else status = 1;
+        cJSON_free(text);
     } else {
-        cJSON *j = diag_to_json(&r, opts.want_flows);
-        if (transport) {
-            tr_result tr;
-            if (opts.max_seconds > 0) topts.deadline = bp_now() + opts.max_seconds;
-            if (tr_compute(m, &topts, &tr, &err) != 0) {
-                fprintf(stderr, "bandsieve inspect: %s: transport: %s (%s)\n", m->id, err.msg, bs_err_name(err.code));
-                status = 1;
-            } else {
-                diag_attach_transport(j, tr_to_json(&tr));
-            }
-        }
-        if (status == 0 && json) {
-            char *text = cJSON_PrintUnformatted(j);
-            if (text) printf("%s\n", text);
-            else status = 1;
-            free(text);
-        } else if (status == 0) {
-            print_report(&r, j);
-        }
-        cJSON_Delete(j);
+        print_report(&r);
     }
-    diag_result_clear(&r);
+    res_clear(&r);
     tb_model_free(m);
     return status;
 }

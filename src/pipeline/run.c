@@ -18,6 +18,7 @@
 
 #include "bandsieve/catalogue.h"
 #include "bandsieve/matset.h"
+#include "bandsieve/result_json.h"
 #include "bandsieve/pzheev.h"
 #include "group.h"
 #include "journal.h"
@@ -240,39 +241,40 @@ static int coord_record(coord *c, const pl_outcome *out, int job_limited, bs_err
         return 0;
     }
     cat_status st = cat_status_from_code(out->code);
-    /* Parsed once here: the catalogue, the class counts and the formula all read this object. */
-    cJSON *j = out->json ? cJSON_Parse(out->json) : NULL;
-    int rc = out->json && !j ? bs_fail(err, BS_EPARSE, "malformed diagnosis JSON from rank %d", out->rank)
-                             : cat_result_put(c->cat, c->run_id, out->id, st, out->code ? out->message : NULL, j,
-                                              out->rank, out->seconds, err);
+    /* Read once here into the struct: the catalogue, the class counts and the formula all use it. */
+    res_diag r;
+    res_init(&r);
+    int has = out->json != NULL;
+    int rc = has ? res_from_text(out->json, strlen(out->json), &r, err) : 0;
+    if (rc != 0) bs_err_context(err, "from rank %d: ", out->rank);
+    else rc = cat_result_put(c->cat, c->run_id, out->id, st, out->code ? out->message : NULL, has ? &r : NULL,
+                             out->rank, out->seconds, err);
     if (rc != 0) {
         /* A result the catalogue refuses (malformed JSON from a bug) must not stop the job:
          * it becomes a failed row naming the problem. */
         char msg[700];
         snprintf(msg, sizeof msg, "catalogue refused the result: %s", err->msg);
         bs_err_clear(err);
-        cJSON_Delete(j);
-        j = NULL;
+        has = 0;
         rc = cat_result_put(c->cat, c->run_id, out->id, CAT_RES_FAILED, msg, NULL, out->rank, out->seconds, err);
         st = CAT_RES_FAILED;
-        if (rc != 0) return rc;
     }
-    c->counts.done++;
-    if (st == CAT_RES_OK) c->counts.ok++;
-    else if (st == CAT_RES_INVALID) c->counts.invalid++;
-    else if (st == CAT_RES_TIMEOUT) c->counts.timeout++;
-    else c->counts.failed++;
-    if (st == CAT_RES_OK && j) {
-        int k = pl_class_index(cJSON_GetStringValue(cJSON_GetObjectItem(j, "class")));
-        if (k >= 0) c->counts.by_class[k]++;
+    if (rc == 0) {
+        c->counts.done++;
+        if (st == CAT_RES_OK) c->counts.ok++;
+        else if (st == CAT_RES_INVALID) c->counts.invalid++;
+        else if (st == CAT_RES_TIMEOUT) c->counts.timeout++;
+        else c->counts.failed++;
+    }
+    if (rc == 0 && st == CAT_RES_OK && has) {
+        c->counts.by_class[r.cls]++;
         /* The set's index has no formula; the worker read it from the material itself. */
-        const char *formula = cJSON_GetStringValue(cJSON_GetObjectItem(j, "formula"));
-        if (formula) {
-            cat_material mat = {out->id, formula, 0, 0, 0, 0, -1, NULL, NULL, NULL};
+        if (r.formula[0]) {
+            cat_material mat = {out->id, r.formula, 0, 0, 0, 0, -1, NULL, NULL, NULL};
             rc = cat_material_upsert(c->cat, &mat, err);
         }
     }
-    cJSON_Delete(j);
+    res_clear(&r);
     return rc;
 }
 

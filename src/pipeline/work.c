@@ -5,29 +5,14 @@
 #include <stdio.h>
 #include <stdlib.h>
 #include <string.h>
-#include <time.h>
 
-#include <cjson/cJSON.h>
-
+#include "bandsieve/bandpair.h"
 #include "bandsieve/diagnosis.h"
 #include "bandsieve/pipeline.h"
+#include "bandsieve/result_json.h"
+#include "bandsieve/surfsummary.h"
 #include "bandsieve/surfsummary.h"
 #include "bandsieve/transport.h"
-
-static const char *const CLASS_NAMES[] = {
-    "trivial insulator", "strong topological insulator", "weak topological insulator",
-    "2D topological insulator", "Chern insulator", "Weyl semimetal", "nodal-line semimetal",
-    "metal", "undetermined"};
-
-int pl_nclass(void) { return (int)(sizeof CLASS_NAMES / sizeof CLASS_NAMES[0]); }
-const char *pl_class_name(int i) { return i >= 0 && i < pl_nclass() ? CLASS_NAMES[i] : NULL; }
-
-int pl_class_index(const char *cls)
-{
-    for (int i = 0; cls && i < pl_nclass(); i++)
-        if (!strcmp(cls, CLASS_NAMES[i])) return i;
-    return -1;
-}
 
 typedef struct sort_key {
     pl_item item;
@@ -79,25 +64,32 @@ int pl_work_list(const ms_set *set, const cat_ids *ids, const cat_ids *done, int
     return 0;
 }
 
-/* Classes whose invariants promise surface or edge states. */
-static int has_surface_states(const char *cls)
+int pl_diagnose(const tb_model *m, const pl_diag_opts *o, res_diag *r, bs_err *err)
 {
-    return !strcmp(cls, "strong topological insulator") || !strcmp(cls, "weak topological insulator") ||
-           !strcmp(cls, "2D topological insulator") || !strcmp(cls, "Chern insulator");
-}
-
-static double seconds_now(void)
-{
-    struct timespec t;
-    clock_gettime(CLOCK_MONOTONIC, &t);
-    return t.tv_sec + 1e-9 * t.tv_nsec;
+    double t0 = bp_now();
+    int rc = diag_run(m, &o->diag, r, err);
+    if (rc == 0 && o->transport) {
+        tr_opts to = o->tr;
+        if (o->diag.max_seconds > 0) to.deadline = t0 + o->diag.max_seconds;
+        rc = tr_compute(m, &to, &r->transport, err);
+        if (rc == 0) r->has_transport = 1;
+        else bs_err_context(err, "transport: ");
+    }
+    if (rc == 0 && o->surfaces && res_class_has_surface_states(r->cls)) {
+        int miller[3];
+        ssum_default_direction(m, miller);
+        rc = ssum_compute(m, miller, 0, &r->surface, err);
+        if (rc == 0) r->has_surface = 1;
+        else bs_err_context(err, "surface: ");
+    }
+    return rc;
 }
 
 void pl_compute(const ms_set *set, int index, const pl_task *task, double max_seconds, int rank,
                 pl_outcome *out)
 {
     memset(out, 0, sizeof *out);
-    double t0 = seconds_now();
+    double t0 = bp_now();
     const ms_entry *e = ms_entry_at(set, index);
     snprintf(out->id, sizeof out->id, "%s", e->id);
     out->rank = rank;
@@ -112,45 +104,30 @@ void pl_compute(const ms_set *set, int index, const pl_task *task, double max_se
         max_seconds = 0;
     }
     if (rc == 0) {
-        diag_opts o = {0};
-        o.mesh = task->mesh;
-        o.mesh_factor = task->mesh_factor;
-        o.max_seconds = max_seconds;
-        o.want_flows = 1;
-        o.seed = 1;
-        o.symmetry_tol = task->symmetry_tol;
-        diag_result r;
-        diag_result_init(&r);
-        rc = diag_run(m, &o, &r, &err);
+        pl_diag_opts o;
+        memset(&o, 0, sizeof o);
+        o.diag.mesh = task->mesh;
+        o.diag.mesh_factor = task->mesh_factor;
+        o.diag.max_seconds = max_seconds;
+        o.diag.want_flows = 1;
+        o.diag.seed = 1;
+        o.diag.symmetry_tol = task->symmetry_tol;
+        o.transport = task->transport;
+        tr_opts_default(&o.tr);
+        o.surfaces = task->surfaces;
+        res_diag r;
+        res_init(&r);
+        rc = pl_diagnose(m, &o, &r, &err);
         if (rc == 0) {
-            cJSON *j = diag_to_json(&r, 1);
-            if (task->transport) {
-                tr_opts to;
-                tr_opts_default(&to);
-                if (max_seconds > 0) to.deadline = t0 + max_seconds;
-                tr_result tr;
-                rc = tr_compute(m, &to, &tr, &err);
-                if (rc == 0) diag_attach_transport(j, tr_to_json(&tr));
-                else bs_err_context(&err, "transport: ");
-            }
-            if (rc == 0 && task->surfaces && has_surface_states(r.cls)) {
-                int miller[3];
-                ssum_default_direction(m, miller);
-                ssum_result sr;
-                rc = ssum_compute(m, miller, 0, &sr, &err);
-                if (rc == 0) cJSON_AddItemToObject(j, "surface", ssum_to_json(&sr));
-                else bs_err_context(&err, "surface: ");
-            }
-            out->json = j && rc == 0 ? cJSON_PrintUnformatted(j) : NULL;
-            cJSON_Delete(j);
-            if (rc == 0 && !out->json) rc = bs_fail(&err, BS_ENOMEM, "out of memory formatting the result");
+            out->json = res_to_text(&r, 1);
+            if (!out->json) rc = bs_fail(&err, BS_ENOMEM, "out of memory formatting the result");
         }
-        diag_result_clear(&r);
+        res_clear(&r);
     }
     out->code = rc;
     if (rc != 0) snprintf(out->message, sizeof out->message, "%s", err.msg);
     tb_model_free(m);
-    out->seconds = seconds_now() - t0;
+    out->seconds = bp_now() - t0;
 }
 
 void pl_outcome_clear(pl_outcome *out)

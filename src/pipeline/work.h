@@ -47,7 +47,4 @@ void pl_compute(const ms_set *set, int index, const pl_task *task, double max_se
 /* Frees out->json. */
 void pl_outcome_clear(pl_outcome *out);
 
-/* Index in pl_class_name order of a class name, or -1. */
-int pl_class_index(const char *cls);
-
 #endif

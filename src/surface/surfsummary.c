@@ -46,21 +46,3 @@ int ssum_compute(const tb_model *m, const int miller[3], int nlayers, ssum_resul
     slab_free(s);
     return rc;
 }
-
-cJSON *ssum_to_json(const ssum_result *r)
-{
-    cJSON *o = cJSON_CreateObject();
-    if (!o) return NULL;
-    cJSON_AddItemToObject(o, "direction", cJSON_CreateIntArray(r->miller, r->kdim == 1 ? 2 : 3));
-    cJSON_AddNumberToObject(o, "layers", r->layers);
-    cJSON_AddNumberToObject(o, "fermi_eV", r->fermi_ev);
-    cJSON *cr = cJSON_AddObjectToObject(o, "crossings");
-    cJSON_AddNumberToObject(cr, "top", r->n_top);
-    cJSON_AddNumberToObject(cr, "bottom", r->n_bottom);
-    cJSON_AddNumberToObject(cr, "other", r->n_other);
-    cJSON *bt = cJSON_AddArrayToObject(o, "between");
-    cJSON_AddItemToArray(bt, cJSON_CreateDoubleArray(r->ka, r->kdim));
-    cJSON_AddItemToArray(bt, cJSON_CreateDoubleArray(r->kb, r->kdim));
-    cJSON_AddNumberToObject(o, "dirac_points_top", r->ndirac_top);
-    return o;
-}

@@ -19,7 +19,7 @@
 
 #include "bandsieve/bandpair.h"
 #include "bandsieve/config.h"
-#include "bandsieve/diagnosis.h"
+#include "bandsieve/result.h"
 #include "occ.h"
 
 /* A link whose |det| falls below this is a subspace rotated almost orthogonally in one step: its
@@ -232,17 +232,17 @@ static int judge(const sheet_acc *a, double sign, const chern_opts *o, int mesh,
     v->nk = nk;
     if (a->min_gap < o->gap_tol_ev) {
         v->gap_closed = 1;
-        v->status = DIAG_AMBIGUOUS;
+        v->status = RES_AMBIGUOUS;
         snprintf(v->reason, sizeof v->reason,
                  "direct gap %.2e eV below %.1e eV at k = (%.4f, %.4f, %.4f): bands touch", a->min_gap,
                  o->gap_tol_ev, a->k_min_gap[0], a->k_min_gap[1], a->k_min_gap[2]);
         return 0;
     }
     if (a->bad_links == 0 && a->max_f <= o->fmax) {
-        v->status = DIAG_DONE;
+        v->status = RES_DONE;
         return 0;
     }
-    v->status = DIAG_AMBIGUOUS;
+    v->status = RES_AMBIGUOUS;
     if (a->bad_links)
         snprintf(v->reason, sizeof v->reason, "%d nearly orthogonal link overlaps at mesh %d",
                  a->bad_links, mesh);

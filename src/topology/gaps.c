@@ -120,20 +120,10 @@ int gaps_find(const tb_model *m, hk_engine *hk, const gaps_opts *o, gaps_result 
     return rc;
 }
 
-void gaps_to_diag(const gaps_result *g, diag_result *d)
-{
-    d->gap_direct_ev = g->gap_direct_ev;
-    d->gap_indirect_ev = g->gap_indirect_ev;
-    memcpy(d->k_gap_direct, g->k_direct, sizeof d->k_gap_direct);
-    memcpy(d->k_vbm, g->k_vbm, sizeof d->k_vbm);
-    memcpy(d->k_cbm, g->k_cbm, sizeof d->k_cbm);
-    d->nk_evaluated += g->nk_evaluated;
-}
-
 void gaps_merge_nodes(gaps_result *g, const nodes_result *r)
 {
     for (int i = 0; i < r->nnodes; i++) {
-        const diag_node *d = &r->nodes[i];
+        const res_node *d = &r->nodes[i];
         double lo = d->energy_ev - 0.5 * d->gap_ev, hi = d->energy_ev + 0.5 * d->gap_ev;
         if (d->gap_ev < g->gap_direct_ev) {
             g->gap_direct_ev = d->gap_ev;

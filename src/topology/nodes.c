@@ -35,7 +35,7 @@ void nodes_opts_init(nodes_opts *o) { memset(o, 0, sizeof *o); }
 void nodes_result_init(nodes_result *r)
 {
     memset(r, 0, sizeof *r);
-    r->chirality_status = DIAG_NA;
+    r->chirality_status = RES_NA;
     r->min_gap_ev = INFINITY;
 }
 
@@ -251,7 +251,7 @@ static int flux_at(const search *s, chern_ws *cw, int i, double deadline, chern_
         int rc = chern_surface_flux(cw, s->t[i].k, h, &co, v, err);
         if (rc != 0) return rc;
         *nk += v->nk;
-        if (v->status == DIAG_DONE) break;
+        if (v->status == RES_DONE) break;
     }
     return 0;
 }
@@ -275,7 +275,7 @@ static int collect(search *s, chern_ws *cw, const int *absorbed, double deadline
     int in = 0, ambiguous = 0;
     for (int i = 0; i < s->nt; i++) {
         if (absorbed[i]) continue;
-        diag_node *d = &out->nodes[in++];
+        res_node *d = &out->nodes[in++];
         memcpy(d->k, s->t[i].k, sizeof d->k);
         d->energy_ev = 0.5 * (s->t[i].lo + s->t[i].hi);
         d->gap_ev = s->t[i].hi - s->t[i].lo;
@@ -284,11 +284,11 @@ static int collect(search *s, chern_ws *cw, const int *absorbed, double deadline
         chern_value v;
         int rc = flux_at(s, cw, i, deadline, &v, &out->nk_evaluated, err);
         if (rc != 0) return rc;
-        if (v.status == DIAG_DONE) d->chirality = v.chern;
+        if (v.status == RES_DONE) d->chirality = v.chern;
         else ambiguous = 1;
         out->net_chirality += d->chirality;
     }
-    if (cw && out->nnodes) out->chirality_status = ambiguous ? DIAG_AMBIGUOUS : DIAG_DONE;
+    if (cw && out->nnodes) out->chirality_status = ambiguous ? RES_AMBIGUOUS : RES_DONE;
     out->nodal_line = s->nline > 0;
     for (int i = 0; i < s->nline; i++)
         for (int j = i + 1; j < s->nline; j++) {
@@ -390,7 +390,7 @@ int nodes_check_time_reversal(const nodes_result *r, int dim, double tol_k)
 {
     int plus = 0, minus = 0;
     for (int i = 0; i < r->nnodes; i++) {
-        const diag_node *a = &r->nodes[i];
+        const res_node *a = &r->nodes[i];
         double mk[3] = {-a->k[0], -a->k[1], -a->k[2]};
         int found = 0;
         for (int j = 0; j < r->nnodes && !found; j++)
@@ -403,18 +403,4 @@ int nodes_check_time_reversal(const nodes_result *r, int dim, double tol_k)
      * inversion, which is its own image) need their -k partner but form no sets of four. */
     if (dim == 3 && ((plus + minus) % 4 != 0 || plus != minus)) return 0;
     return 1;
-}
-
-void nodes_to_diag(nodes_result *r, diag_result *d)
-{
-    free(d->nodes);
-    d->nnodes = r->nnodes;
-    d->nodes = r->nodes;
-    r->nodes = NULL;
-    r->nnodes = 0;
-    d->net_chirality = r->net_chirality;
-    d->nodal_line = r->nodal_line;
-    d->nodal_points = r->nodal_points;
-    d->nodal_extent = r->nodal_extent;
-    d->nk_evaluated += r->nk_evaluated;
 }

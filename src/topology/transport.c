@@ -80,17 +80,6 @@ void tr_opts_default(tr_opts *o)
     o->want_shc = 1;
 }
 
-const char *tr_fermi_source_name(int source)
-{
-    switch (source) {
-    case TR_FERMI_GIVEN: return "given";
-    case TR_FERMI_CARD: return "card";
-    case TR_FERMI_MIDGAP: return "midgap";
-    case TR_FERMI_FILLING: return "filling";
-    default: return "unknown";
-    }
-}
-
 static void ws_free(tr_ws *w)
 {
     if (!w) return;
@@ -825,89 +814,4 @@ done:
     mesh_clear(&g);
     ws_free(w);
     return rc;
-}
-
-static double max3(const double *v, int n)
-{
-    double x = 0;
-    for (int i = 0; i < n; i++)
-        if (v[i] > x) x = v[i];
-    return x;
-}
-
-static cJSON *scan_json(const tr_result *r)
-{
-    static const char *ahc_key[3] = {"ahc_xy", "ahc_yz", "ahc_zx"};
-    int nahc = r->dim == 3 ? 3 : 1;
-    cJSON *arr = cJSON_CreateArray();
-    for (int e = 0; arr && e < r->nfermi; e++) {
-        cJSON *p = cJSON_CreateObject();
-        if (!p || !cJSON_AddItemToArray(arr, p)) {
-            cJSON_Delete(p);
-            cJSON_Delete(arr);
-            return NULL;
-        }
-        int ok = cJSON_AddNumberToObject(p, "fermi_eV", r->fermi_ev[e]) != NULL;
-        for (int a = 0; a < nahc; a++)
-            ok &= cJSON_AddNumberToObject(p, ahc_key[a], r->ahc[e][a]) != NULL;
-        ok &= cJSON_AddNumberToObject(p, "ahc_error", max3(r->ahc_err[e], nahc)) != NULL;
-        if (r->has_shc) {
-            ok &= cJSON_AddNumberToObject(p, "shc_xy_z", r->shc[e]) != NULL;
-            ok &= cJSON_AddNumberToObject(p, "shc_error", r->shc_err[e]) != NULL;
-        }
-        if (!ok) {
-            cJSON_Delete(arr);
-            return NULL;
-        }
-    }
-    return arr;
-}
-
-cJSON *tr_to_json(const tr_result *r)
-{
-    cJSON *root = cJSON_CreateObject(), *ahc = cJSON_CreateObject(), *shc = NULL;
-    int ok = root && ahc && cJSON_AddItemToObject(root, "ahc", ahc);
-    if (!ok) {
-        cJSON_Delete(ahc);
-        cJSON_Delete(root);
-        return NULL;
-    }
-    int nahc = r->dim == 3 ? 3 : 1;
-    ok &= cJSON_AddNumberToObject(ahc, "xy", r->ahc[0][0]) != NULL;
-    if (nahc == 3) {
-        ok &= cJSON_AddNumberToObject(ahc, "yz", r->ahc[0][1]) != NULL;
-        ok &= cJSON_AddNumberToObject(ahc, "zx", r->ahc[0][2]) != NULL;
-    }
-    ok &= cJSON_AddStringToObject(ahc, "units", r->ahc_units) != NULL;
-    ok &= cJSON_AddNumberToObject(ahc, "fermi_eV", r->fermi_ev[0]) != NULL;
-    ok &= cJSON_AddNumberToObject(ahc, "error", max3(r->ahc_err[0], nahc)) != NULL;
-    if (ok && r->has_shc) {
-        shc = cJSON_AddObjectToObject(root, "shc");
-        ok &= shc != NULL;
-        if (shc) {
-            ok &= cJSON_AddNumberToObject(shc, "xy_z", r->shc[0]) != NULL;
-            ok &= cJSON_AddStringToObject(shc, "units", r->shc_units) != NULL;
-            ok &= cJSON_AddNumberToObject(shc, "fermi_eV", r->fermi_ev[0]) != NULL;
-            ok &= cJSON_AddNumberToObject(shc, "error", r->shc_err[0]) != NULL;
-        }
-    }
-    cJSON *scan = ok ? scan_json(r) : NULL;
-    ok &= scan != NULL && cJSON_AddItemToObject(root, "scan", scan);
-    if (!ok) cJSON_Delete(scan);
-    ok = ok && cJSON_AddNumberToObject(root, "kpoints", (double)r->nk) &&
-         cJSON_AddNumberToObject(root, "cells", (double)r->ncells) &&
-         cJSON_AddNumberToObject(root, "depth", r->depth) &&
-         cJSON_AddBoolToObject(root, "converged", r->converged) &&
-         cJSON_AddNumberToObject(root, "tolerance", r->tol) &&
-         cJSON_AddStringToObject(root, "fermi_source", tr_fermi_source_name(r->fermi_source)) &&
-         cJSON_AddNumberToObject(root, "eta_eV", r->eta_ev) &&
-         cJSON_AddNumberToObject(root, "smear_eV", r->smear_ev) &&
-         cJSON_AddStringToObject(root, "gauge",
-                                 r->gauge == TR_GAUGE_LATTICE ? "lattice" : "position") &&
-         cJSON_AddNumberToObject(root, "min_gap_eV", r->min_gap_ev);
-    if (!ok) {
-        cJSON_Delete(root);
-        return NULL;
-    }
-    return root;
 }

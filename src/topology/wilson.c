@@ -469,7 +469,7 @@ static void judge_plane(plane_run *r)
     for (int i = 0; i + 1 < r->n; i++)
         parity ^= arc_count(r->z[i], r->z[i + 1], r->wcc + (size_t)(i + 1) * nb, nb) & 1;
     out->z2 = parity;
-    out->status = DIAG_AMBIGUOUS;
+    out->status = RES_AMBIGUOUS;
     if (nb % 2) {
         snprintf(out->reason, sizeof out->reason,
                  "%d occupied bands, an odd number: no Kramers pairs, so no Z2 (time reversal broken)",
@@ -495,7 +495,7 @@ static void judge_plane(plane_run *r)
                  r->o->det_min, r->det_fail_kb, r->nk);
         return;
     }
-    out->status = DIAG_DONE;
+    out->status = RES_DONE;
 }
 
 int wilson_plane_z2(wilson_ws *w, int p, const wilson_opts *o, wilson_plane *out, bs_err *err)
@@ -536,7 +536,7 @@ int wilson_plane_z2(wilson_ws *w, int p, const wilson_opts *o, wilson_plane *out
     if (rc == 1) {
         rc = 0;
         out->gap_closed = 1;
-        out->status = DIAG_NA;
+        out->status = RES_NA;
         snprintf(out->reason, sizeof out->reason,
                  "direct gap %.2e eV below %.1e eV at k = (%.4f, %.4f, %.4f): no Z2 "
                  "(semimetal or metal)",
@@ -570,21 +570,21 @@ int wilson_z2_run(wilson_ws *w, const wilson_opts *o, wilson_z2 *out, bs_err *er
     }
     out->seconds = bp_now() - t0;
     if (rc != 0) return rc;
-    out->status = DIAG_DONE;
+    out->status = RES_DONE;
     for (int i = 0; i < out->nplane; i++) {
         const wilson_plane *pl = &out->planes[i];
-        if (pl->status == DIAG_DONE) continue;
+        if (pl->status == RES_DONE) continue;
         /* A closing outranks an ambiguity: it says the question itself does not apply. */
         if (pl->gap_closed && !out->gap_closed) {
             out->gap_closed = 1;
-            out->status = DIAG_NA;
+            out->status = RES_NA;
             snprintf(out->reason, sizeof out->reason, "plane %d: %s", pl->plane, pl->reason);
-        } else if (out->status == DIAG_DONE) {
-            out->status = DIAG_AMBIGUOUS;
+        } else if (out->status == RES_DONE) {
+            out->status = RES_AMBIGUOUS;
             snprintf(out->reason, sizeof out->reason, "plane %d: %s", pl->plane, pl->reason);
         }
     }
-    if (out->status != DIAG_DONE) return 0;
+    if (out->status != RES_DONE) return 0;
     if (dim == 2) {
         out->z2[0] = out->planes[0].z2;
         return 0;
@@ -596,25 +596,25 @@ int wilson_z2_run(wilson_ws *w, const wilson_opts *o, wilson_z2 *out, bs_err *er
     out->z2[0] = nu0[0];
     for (int i = 0; i < 3; i++) out->z2[i + 1] = out->planes[2 * i + 1].z2;
     if (nu0[0] != nu0[1] || nu0[0] != nu0[2]) {
-        out->status = DIAG_AMBIGUOUS;
+        out->status = RES_AMBIGUOUS;
         snprintf(out->reason, sizeof out->reason,
                  "nu0 from the k1, k2, k3 plane pairs disagree: %d, %d, %d", nu0[0], nu0[1], nu0[2]);
     }
     return 0;
 }
 
-int wilson_z2_take_flows(wilson_z2 *r, diag_flow **flows, int *nflows, bs_err *err)
+int wilson_z2_take_flows(wilson_z2 *r, res_flow **flows, int *nflows, bs_err *err)
 {
     *flows = NULL;
     *nflows = 0;
     int n = 0;
     for (int i = 0; i < r->nplane; i++) n += r->planes[i].flow.kpar != NULL;
     if (n == 0) return 0;
-    diag_flow *f = calloc((size_t)n, sizeof *f);
+    res_flow *f = calloc((size_t)n, sizeof *f);
     if (!f) return bs_fail(err, BS_ENOMEM, "Wannier-centre flows: out of memory");
     int j = 0;
     for (int i = 0; i < r->nplane; i++) {
-        diag_flow *src = &r->planes[i].flow;
+        res_flow *src = &r->planes[i].flow;
         if (!src->kpar) continue;
         f[j++] = *src;
         memset(src, 0, sizeof *src);

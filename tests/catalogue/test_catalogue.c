@@ -18,10 +18,11 @@
 #include <time.h>
 #include <unistd.h>
 
+#include <cjson/cJSON.h>
 #include <sqlite3.h>
 
 #include "bandsieve/catalogue.h"
-#include "bandsieve/diagnosis.h"
+#include "bandsieve/result.h"
 
 /* ---- helpers ---- */
 
@@ -160,13 +161,15 @@ static void diag_json(char *buf, size_t len, const char *id, const char *cls, do
     for (int i = 0; i < nnodes; i++)
         k += (size_t)snprintf(nodes + k, sizeof nodes - k, "%s{\"k\":[%g,0.25,0],\"chirality\":%d,\"energy_eV\":0.01,\"gap_eV\":1e-5}",
                               i ? "," : "", 0.1 * (i + 1), i % 2 ? -1 : 1);
+    /* A list of one index is a 2D material; the status says done exactly when there is a list. */
+    int dim = strchr(z2, ',') || !strcmp(z2, "null") ? 3 : 2;
     snprintf(buf, len,
-             "{\"id\":\"%s\",\"class\":\"%s\",\"confidence\":%g,\"reason\":\"invented\",\"gap_direct_eV\":%g,"
-             "\"gap_indirect_eV\":%g,\"k_gap_direct\":[0,0.5,0],\"time_reversal\":true,\"inversion\":false,"
-             "\"z2\":%s,\"z2_parity\":null,\"z2_wcc\":%s,\"z2_status\":\"done\",\"chern\":null,"
+             "{\"id\":\"%s\",\"class\":\"%s\",\"confidence\":%g,\"reason\":\"invented\",\"dimension\":%d,"
+             "\"gap_direct_eV\":%g,\"gap_indirect_eV\":%g,\"k_gap_direct\":[0,0.5,0],\"time_reversal\":true,"
+             "\"inversion\":false,\"z2\":%s,\"z2_parity\":null,\"z2_wcc\":%s,\"z2_status\":\"%s\",\"chern\":null,"
              "\"plane_chern\":[0,0,0,0,0,0],\"weyl_nodes\":[%s],\"net_chirality\":0,\"nodal_line\":false,"
              "\"mesh\":%d,\"seconds\":1.5}",
-             id, cls, conf, gap + 0.05, gap, z2, z2, nodes, mesh);
+             id, cls, conf, dim, gap + 0.05, gap, z2, z2, strcmp(z2, "null") ? "done" : "not applicable", nodes, mesh);
 }
 
 static void put_text(cat_db *cat, int64_t run, const char *id, cat_status st, const char *msg, const char *json)
@@ -290,13 +293,14 @@ static void test_put_and_read_back(void **state)
     assert_int_equal(cat_flush(cat, &err), 0);
 
     dump d;
-    /* z2 text forms of the contract: "1;000" in 3D, "1" in 2D, NULL where the list is null. */
+    /* z2 text forms of the contract: "1;000" in 3D, "1" in 2D, NULL where the list is null; plane
+     * Chern numbers only in 3D. */
     q(cat, "SELECT material_id, status, class, z2, z2_wcc, z2_parity, plane_chern, n_weyl, net_chirality, nodal_line,"
            " time_reversal, inversion, k_gap_direct, mesh, seconds, diag_seconds, rank FROM results ORDER BY material_id", &d);
     assert_string_equal(d.text,
                         "mat-1|ok|Weyl semimetal|NULL|NULL|NULL|0;0;0;0;0;0|2|0|0|1|0|[0,0.5,0]|16|2.0|1.5|3\n"
                         "mat-2|ok|strong topological insulator|1;000|1;000|NULL|0;0;0;0;0;0|0|0|0|1|0|[0,0.5,0]|12|2.0|1.5|3\n"
-                        "mat-3|ok|2D topological insulator|1|1|NULL|0;0;0;0;0;0|0|0|0|1|0|[0,0.5,0]|24|2.0|1.5|3\n");
+                        "mat-3|ok|2D topological insulator|1|1|NULL|NULL|0|0|0|1|0|[0,0.5,0]|24|2.0|1.5|3\n");
     /* Numbers come back bit for bit (SQLite REAL is an IEEE double). */
     assert_true(raw_double(t.cat, "SELECT confidence FROM results WHERE material_id = 'mat-2'") == 0.95);
     assert_true(raw_double(t.cat, "SELECT gap_indirect_ev FROM results WHERE material_id = 'mat-2'") == 0.2);
@@ -335,19 +339,19 @@ static void test_put_and_read_back(void **state)
     tmp_remove(&t);
 }
 
-/* The writer takes what the topology layer prints: a result built by hand, through diag_to_json,
- * with its Wannier-centre flow stored in HDF5 and read back exactly. */
-static void test_diag_to_json_and_flows(void **state)
+/* The writer takes the result struct: one built by hand, with its Wannier-centre flow stored in
+ * HDF5 and read back exactly. */
+static void test_struct_and_flows(void **state)
 {
     (void)state;
     tmpdir t;
     tmp_make(&t);
     cat_db *cat = open_rw(t.cat);
     int64_t run = begin(cat, &RUN_A);
-    diag_result r;
-    diag_result_init(&r);
+    res_diag r;
+    res_init(&r);
     snprintf(r.id, sizeof r.id, "weird/id.1");
-    snprintf(r.cls, sizeof r.cls, "strong topological insulator");
+    r.cls = RES_STRONG_TI;
     r.confidence = 0.97;
     r.dim = 3;
     r.norb = 8;
@@ -356,28 +360,25 @@ static void test_diag_to_json_and_flows(void **state)
     r.gap_indirect_ev = 0.25;
     r.time_reversal = 1;
     r.inversion = 1;
-    r.z2_status = r.z2_parity_status = r.z2_wcc_status = DIAG_DONE;
+    r.z2_status = r.z2_parity_status = r.z2_wcc_status = RES_DONE;
     const int nu[4] = {1, 0, 1, 1};
     memcpy(r.z2, nu, sizeof nu);
     memcpy(r.z2_parity, nu, sizeof nu);
     memcpy(r.z2_wcc, nu, sizeof nu);
-    r.chern_status = DIAG_DONE;
+    r.chern_status = RES_DONE;
     r.mesh = 20;
     r.nflows = 1;
     r.flows = calloc(1, sizeof *r.flows);
     assert_non_null(r.flows);
-    r.flows[0] = (diag_flow){4, 3, 2, malloc(3 * sizeof(double)), malloc(6 * sizeof(double))};
+    r.flows[0] = (res_flow){4, 3, 2, malloc(3 * sizeof(double)), malloc(6 * sizeof(double))};
     for (int s = 0; s < 3; s++) {
         r.flows[0].kpar[s] = 0.25 * s;
         for (int b = 0; b < 2; b++) r.flows[0].wcc[s * 2 + b] = 0.1 * s + 0.3 * b + 1.0 / 3.0;
     }
-    cJSON *j = diag_to_json(&r, 1);
-    assert_non_null(j);
     bs_err err;
     bs_err_clear(&err);
-    int rc = cat_result_put(cat, run, "weird/id.1", CAT_RES_OK, NULL, j, 1, -1.0, &err);
+    int rc = cat_result_put(cat, run, "weird/id.1", CAT_RES_OK, NULL, &r, 1, -1.0, &err);
     if (rc != 0) fail_msg("%s", err.msg);
-    cJSON_Delete(j);
     close_ok(cat);
 
     cat = NULL;
@@ -406,7 +407,7 @@ static void test_diag_to_json_and_flows(void **state)
     bs_err_clear(&err);
     assert_int_equal(cat_flow_read(cat, run, "weird/id.1", 0, &f, &err), BS_EINVAL);
     assert_non_null(strstr(err.msg, "no Wannier-centre flow of plane 0"));
-    diag_result_clear(&r);
+    res_clear(&r);
     close_ok(cat);
     tmp_remove(&t);
 }
@@ -420,7 +421,8 @@ static void test_missing_keys_and_failures(void **state)
     int64_t run = begin(cat, &RUN_A);
     bs_err err;
     bs_err_clear(&err);
-    /* Missing keys become NULL columns. */
+    /* Keys missing from a diagnosis take the values of an empty result (res_init): the columns that
+     * the JSON form leaves null (indices, Chern numbers) stay NULL, the others hold zeros. */
     put_text(cat, run, "sparse", CAT_RES_OK, NULL, "{\"id\":\"sparse\",\"class\":\"metal\"}");
     /* An invalid row has no diagnosis at all. */
     put_text(cat, run, "broken", CAT_RES_INVALID, "cards/broken.json:3: expected 7 fields, found 5", NULL);
@@ -431,7 +433,7 @@ static void test_missing_keys_and_failures(void **state)
            " FROM results ORDER BY material_id", &d);
     assert_string_equal(d.text, "broken|invalid|NULL|NULL|NULL|NULL|NULL|NULL|1|cards/broken.json:3: expected 7 fields, found 5\n"
                                 "slow|timeout|NULL|NULL|NULL|NULL|NULL|NULL|1|time budget of 60 s exceeded\n"
-                                "sparse|ok|metal|NULL|NULL|NULL|NULL|NULL|0|NULL\n");
+                                "sparse|ok|metal|0.0|NULL|NULL|0|0|0|NULL\n");
     /* failures lists the non-ok rows with their messages; none is resolved yet. */
     q(cat, "SELECT material_id, status, message, resolved FROM failures ORDER BY material_id", &d);
     assert_string_equal(d.text, "broken|invalid|cards/broken.json:3: expected 7 fields, found 5|0\n"
@@ -1165,7 +1167,7 @@ int main(void)
         cmocka_unit_test(test_schema_applies),
         cmocka_unit_test(test_open_refuses_foreign_files),
         cmocka_unit_test(test_put_and_read_back),
-        cmocka_unit_test(test_diag_to_json_and_flows),
+        cmocka_unit_test(test_struct_and_flows),
         cmocka_unit_test(test_missing_keys_and_failures),
         cmocka_unit_test(test_malformed_diagnosis),
         cmocka_unit_test(test_artifact_write_failure),

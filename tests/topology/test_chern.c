@@ -118,7 +118,7 @@ static void test_haldane_chern_sign(void **state)
     for (int i = 0; i < 3; i++) {
         tb_model *m = bs_test_build(spec[i]);
         chern_value v = plane_value(m, 4, NULL);
-        assert_int_equal(v.status, DIAG_DONE);
+        assert_int_equal(v.status, RES_DONE);
         assert_int_equal(v.chern, expect[i]);
         assert_true(fabs(v.flux - v.chern) < 1e-9); /* integer to round-off by construction */
         double kubo = kubo_chern(m, 48);
@@ -139,7 +139,7 @@ static void test_haldane_trivial(void **state)
     for (int i = 0; i < 4; i++) {
         tb_model *m = bs_test_build(spec[i]);
         chern_value v = plane_value(m, 4, NULL);
-        assert_int_equal(v.status, DIAG_DONE);
+        assert_int_equal(v.status, RES_DONE);
         assert_int_equal(v.chern, expect[i]);
         tb_model_free(m);
     }
@@ -152,13 +152,13 @@ static void test_time_reversal_zero(void **state)
     (void)state;
     tb_model *m = bs_test_build("kane_mele");
     chern_value v = plane_value(m, 4, NULL);
-    assert_int_equal(v.status, DIAG_DONE);
+    assert_int_equal(v.status, RES_DONE);
     assert_int_equal(v.chern, 0);
     tb_model_free(m);
     m = bs_test_build("atomic");
     for (int p = 0; p < 6; p++) {
         v = plane_value(m, p, NULL);
-        assert_int_equal(v.status, DIAG_DONE);
+        assert_int_equal(v.status, RES_DONE);
         assert_int_equal(v.chern, 0);
     }
     tb_model_free(m);
@@ -176,22 +176,22 @@ static void test_weyl_chirality(void **state)
     const double kp[3] = {0.25, 0, 0}, km[3] = {-0.25, 0, 0}, kr[3] = {0.5, 0.5, 0.5};
     const double off[3] = {0.27, 0.013, -0.02}; /* off-centre cube, still enclosing +1/4 */
     chern_value v = cube_value(m, kp, 0.05);
-    assert_int_equal(v.status, DIAG_DONE);
+    assert_int_equal(v.status, RES_DONE);
     assert_int_equal(v.chern, -1);
     assert_true(fabs(v.flux + 1) < 1e-9);
     v = cube_value(m, km, 0.05);
-    assert_int_equal(v.status, DIAG_DONE);
+    assert_int_equal(v.status, RES_DONE);
     assert_int_equal(v.chern, 1);
     v = cube_value(m, off, 0.05);
-    assert_int_equal(v.status, DIAG_DONE);
+    assert_int_equal(v.status, RES_DONE);
     assert_int_equal(v.chern, -1);
     v = cube_value(m, kr, 0.05);
-    assert_int_equal(v.status, DIAG_DONE);
+    assert_int_equal(v.status, RES_DONE);
     assert_int_equal(v.chern, 0);
     /* A large cube between the nodes (|k1| <= 0.2, 0.05 from each): no charge inside. */
     const double k0[3] = {0, 0, 0};
     v = cube_value(m, k0, 0.2);
-    assert_int_equal(v.status, DIAG_DONE);
+    assert_int_equal(v.status, RES_DONE);
     assert_int_equal(v.chern, 0);
     tb_model_free(m);
 }
@@ -204,12 +204,12 @@ static void test_weyl_planes(void **state)
     (void)state;
     tb_model *m = bs_test_build("weyl");
     chern_value c0 = plane_value(m, 0, NULL), c1 = plane_value(m, 1, NULL);
-    assert_int_equal(c0.status, DIAG_DONE);
-    assert_int_equal(c1.status, DIAG_DONE);
+    assert_int_equal(c0.status, RES_DONE);
+    assert_int_equal(c1.status, RES_DONE);
     assert_int_equal(c1.chern - c0.chern, -1);
     for (int p = 2; p <= 4; p += 2) {
         chern_value v = plane_value(m, p, NULL);
-        assert_int_equal(v.status, DIAG_AMBIGUOUS);
+        assert_int_equal(v.status, RES_AMBIGUOUS);
         assert_int_equal(v.gap_closed, 1);
         assert_true(v.min_gap_ev < 1e-4);
         assert_true(strstr(v.reason, "gap") != NULL);
@@ -217,7 +217,7 @@ static void test_weyl_planes(void **state)
     /* A cube whose face passes through the node: reported as a closing. */
     const double k0[3] = {0.2, 0, 0};
     chern_value v = cube_value(m, k0, 0.05);
-    assert_int_equal(v.status, DIAG_AMBIGUOUS);
+    assert_int_equal(v.status, RES_AMBIGUOUS);
     assert_int_equal(v.gap_closed, 1);
     tb_model_free(m);
 }
@@ -232,13 +232,13 @@ static void test_refinement(void **state)
     chern_opts_default(&o, 0);
     o.fmax = 0.3; /* max |F| is 0.80 at the default mesh 24: refinement must go to 96 */
     chern_value v = plane_value(m, 4, &o);
-    assert_int_equal(v.status, DIAG_DONE);
+    assert_int_equal(v.status, RES_DONE);
     assert_true(v.mesh > o.mesh);
     assert_true(v.max_f <= 0.3);
     assert_int_equal(v.chern, -1); /* 0.45 < 0.520: Chern phase, Phys. Rev. Lett. 61, 2015 (1988) */
     o.max_mesh = o.mesh;
     v = plane_value(m, 4, &o);
-    assert_int_equal(v.status, DIAG_AMBIGUOUS);
+    assert_int_equal(v.status, RES_AMBIGUOUS);
     assert_int_equal(v.gap_closed, 0);
     assert_true(strstr(v.reason, "max |F|") != NULL);
     tb_model_free(m);
@@ -265,13 +265,13 @@ static void test_basis_invariance(void **state)
         assert_non_null(q);
         if (m->dim == 2) {
             chern_value a = plane_value(m, 4, NULL), b = plane_value(q, 4, NULL);
-            assert_int_equal(b.status, DIAG_DONE);
+            assert_int_equal(b.status, RES_DONE);
             assert_int_equal(a.chern, b.chern);
             assert_true(fabs(a.flux - b.flux) < 1e-9);
         } else {
             const double k0[3] = {0.25, 0, 0};
             chern_value a = cube_value(m, k0, 0.05), b = cube_value(q, k0, 0.05);
-            assert_int_equal(b.status, DIAG_DONE);
+            assert_int_equal(b.status, RES_DONE);
             assert_int_equal(a.chern, b.chern);
         }
         tb_model_free(m);

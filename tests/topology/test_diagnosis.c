@@ -18,7 +18,7 @@
 #include "bandsieve/lattice_models.h"
 #include "bandsieve/transform.h"
 
-static void diagnose(const char *spec, diag_result *r)
+static void diagnose(const char *spec, res_diag *r)
 {
     tb_model *m = NULL;
     bs_err err;
@@ -27,16 +27,16 @@ static void diagnose(const char *spec, diag_result *r)
     if (rc != 0) fail_msg("lm_build(%s): %s", spec, err.msg);
     diag_opts o = {0};
     o.seed = 1;
-    diag_result_init(r);
+    res_init(r);
     rc = diag_run(m, &o, r, &err);
     if (rc != 0) fail_msg("diag_run(%s): %s", spec, err.msg);
     tb_model_free(m);
 }
 
-static void expect_class(const char *spec, const char *cls, diag_result *r)
+static void expect_class(const char *spec, const char *cls, res_diag *r)
 {
     diagnose(spec, r);
-    if (strcmp(r->cls, cls) != 0) fail_msg("%s: expected '%s', got '%s' (%s)", spec, cls, r->cls, r->reason);
+    if (strcmp(res_class_name(r->cls), cls) != 0) fail_msg("%s: expected '%s', got '%s' (%s)", spec, cls, res_class_name(r->cls), r->reason);
 }
 
 /* Kane–Mele, lambda_R = 0: 2D TI for lambda_v < 3 sqrt3 lambda_SO, trivial above
@@ -44,24 +44,24 @@ static void expect_class(const char *spec, const char *cls, diag_result *r)
 static void test_kane_mele_boundary(void **state)
 {
     (void)state;
-    diag_result r;
+    res_diag r;
     expect_class("kane_mele:lambda_SO=0.06,lambda_R=0,lambda_v=0.28", "2D topological insulator", &r);
     assert_int_equal(r.z2[0], 1);
-    diag_result_clear(&r);
+    res_clear(&r);
     expect_class("kane_mele:lambda_SO=0.06,lambda_R=0,lambda_v=0.34", "trivial insulator", &r);
     assert_int_equal(r.z2[0], 0);
     /* The gap at K is |lambda_v - 3 sqrt3 lambda_SO| * 2 with lambda_R = 0: 2 * 0.0282 = 0.0565 eV
      * (same paper); 1e-6 eV is the refinement tolerance in energy. */
     assert_true(fabs(r.gap_direct_ev - 2 * (0.34 - 3 * sqrt(3) * 0.06)) < 1e-6);
-    diag_result_clear(&r);
+    res_clear(&r);
     /* Inversion-free points use the Wannier-centre flow alone; with lambda_v = 0 both methods run. */
     expect_class("kane_mele:lambda_SO=0.06,lambda_R=0,lambda_v=0", "2D topological insulator", &r);
-    assert_int_equal(r.z2_parity_status, DIAG_DONE);
-    assert_int_equal(r.z2_wcc_status, DIAG_DONE);
-    diag_result_clear(&r);
+    assert_int_equal(r.z2_parity_status, RES_DONE);
+    assert_int_equal(r.z2_wcc_status, RES_DONE);
+    res_clear(&r);
     /* Rashba nonzero inside the TI phase: still Z2 = 1 (same paper). */
     expect_class("kane_mele:lambda_SO=0.06,lambda_R=0.05,lambda_v=0.1", "2D topological insulator", &r);
-    diag_result_clear(&r);
+    res_clear(&r);
 }
 
 /* Close to the boundary (lambda_v = 0.30, gap 23 meV, still Z2 = 1 by the same paper) the default
@@ -75,18 +75,18 @@ static void test_kane_mele_near_boundary_refuses_to_guess(void **state)
     bs_err_clear(&err);
     assert_int_equal(lm_build("kane_mele:lambda_SO=0.06,lambda_R=0,lambda_v=0.30", &m, &err), 0);
     diag_opts o = {0};
-    diag_result r;
-    diag_result_init(&r);
+    res_diag r;
+    res_init(&r);
     assert_int_equal(diag_run(m, &o, &r, &err), 0);
-    if (strcmp(r.cls, "2D topological insulator") != 0) {
-        assert_string_equal(r.cls, "undetermined");
+    if (strcmp(res_class_name(r.cls), "2D topological insulator") != 0) {
+        assert_string_equal(res_class_name(r.cls), "undetermined");
         assert_true(r.confidence < 0.5);
     }
-    diag_result_clear(&r);
+    res_clear(&r);
     o.mesh = 72;
     assert_int_equal(diag_run(m, &o, &r, &err), 0);
-    assert_string_equal(r.cls, "2D topological insulator");
-    diag_result_clear(&r);
+    assert_string_equal(res_class_name(r.cls), "2D topological insulator");
+    res_clear(&r);
     tb_model_free(m);
 }
 
@@ -95,17 +95,17 @@ static void test_kane_mele_near_boundary_refuses_to_guess(void **state)
 static void test_bhz(void **state)
 {
     (void)state;
-    diag_result r;
+    res_diag r;
     expect_class("bhz:M=1", "2D topological insulator", &r);
     assert_int_equal(r.z2_parity[0], r.z2_wcc[0]);
-    diag_result_clear(&r);
+    res_clear(&r);
     expect_class("bhz:M=-1", "trivial insulator", &r);
-    diag_result_clear(&r);
+    res_clear(&r);
     expect_class("bhz:M=1,delta=0.05", "2D topological insulator", &r);
     assert_int_equal(r.inversion, 0);
-    diag_result_clear(&r);
+    res_clear(&r);
     expect_class("bhz:M=1,g=0.3", "2D topological insulator", &r);
-    diag_result_clear(&r);
+    res_clear(&r);
 }
 
 /* Haldane (Phys. Rev. Lett. 61, 2015 (1988)): |C| = 1 for |M| < 3 sqrt3 |t2 sin phi| with the sign
@@ -113,19 +113,19 @@ static void test_bhz(void **state)
 static void test_haldane(void **state)
 {
     (void)state;
-    diag_result a, b, c;
+    res_diag a, b, c;
     expect_class("haldane:M=0,phi=0.5", "Chern insulator", &a);
     expect_class("haldane:M=0,phi=-0.5", "Chern insulator", &b);
     assert_int_equal(abs(a.chern), 1);
     assert_int_equal(a.chern, -b.chern);
     expect_class("haldane:M=0.45,phi=0.5", "Chern insulator", &c);
     assert_int_equal(c.chern, a.chern);
-    diag_result_clear(&c);
+    res_clear(&c);
     expect_class("haldane:M=0.6,phi=0.5", "trivial insulator", &c);
     assert_int_equal(c.chern, 0);
-    diag_result_clear(&a);
-    diag_result_clear(&b);
-    diag_result_clear(&c);
+    res_clear(&a);
+    res_clear(&b);
+    res_clear(&c);
 }
 
 /* Fu–Kane–Mele diamond (Phys. Rev. Lett. 98, 106803 (2007)): the two signs of the [111] bond
@@ -133,18 +133,18 @@ static void test_haldane(void **state)
 static void test_fkm_strong_weak(void **state)
 {
     (void)state;
-    diag_result r;
+    res_diag r;
     expect_class("fkm:dt=0.4", "strong topological insulator", &r);
     int strong[4] = {1, 1, 1, 1}, weak[4] = {0, 1, 1, 1};
     assert_memory_equal(r.z2, strong, sizeof strong);
-    assert_int_equal(r.z2_parity_status, DIAG_DONE);
-    assert_int_equal(r.z2_wcc_status, DIAG_DONE);
+    assert_int_equal(r.z2_parity_status, RES_DONE);
+    assert_int_equal(r.z2_wcc_status, RES_DONE);
     assert_memory_equal(r.z2_parity, r.z2_wcc, sizeof strong);
-    diag_result_clear(&r);
+    res_clear(&r);
     expect_class("fkm:dt=-0.4", "weak topological insulator", &r);
     assert_memory_equal(r.z2, weak, sizeof weak);
     assert_memory_equal(r.z2_parity, r.z2_wcc, sizeof weak);
-    diag_result_clear(&r);
+    res_clear(&r);
 }
 
 /* The same model swept through the weak-strong transition by dt. With inversion (stag = 0) the gap
@@ -161,19 +161,19 @@ static void test_fkm_sweep_weyl_window(void **state)
     int closed_inv = 0, weyl_window = 0;
     char spec[128];
     for (int i = 0; i < n; i++) {
-        diag_result r;
+        res_diag r;
         snprintf(spec, sizeof spec, "fkm:dt=%g,stag=0", dts[i]);
         diagnose(spec, &r);
         if (r.gap_direct_ev < 1e-4) {
             closed_inv++;
             assert_true(dts[i] == 0.0);
-            assert_string_not_equal(r.cls, "Weyl semimetal");
+            assert_string_not_equal(res_class_name(r.cls), "Weyl semimetal");
         }
-        diag_result_clear(&r);
+        res_clear(&r);
 
         snprintf(spec, sizeof spec, "fkm:dt=%g,stag=0.4", dts[i]);
         diagnose(spec, &r);
-        if (!strcmp(r.cls, "Weyl semimetal")) {
+        if (!strcmp(res_class_name(r.cls), "Weyl semimetal")) {
             weyl_window++;
             int plus = 0, minus = 0;
             for (int j = 0; j < r.nnodes; j++) {
@@ -184,9 +184,9 @@ static void test_fkm_sweep_weyl_window(void **state)
             assert_true(plus >= 2); /* time reversal: sets of at least four nodes */
         }
         assert_int_equal(r.net_chirality, 0);
-        if (i == 0) assert_string_equal(r.cls, "weak topological insulator");
-        if (i == n - 1) assert_string_equal(r.cls, "strong topological insulator");
-        diag_result_clear(&r);
+        if (i == 0) assert_string_equal(res_class_name(r.cls), "weak topological insulator");
+        if (i == n - 1) assert_string_equal(res_class_name(r.cls), "strong topological insulator");
+        res_clear(&r);
     }
     assert_int_equal(closed_inv, 1);
     assert_true(weyl_window >= 2);
@@ -197,7 +197,7 @@ static void test_fkm_sweep_weyl_window(void **state)
 static void test_weyl_positions(void **state)
 {
     (void)state;
-    diag_result r;
+    res_diag r;
     expect_class("weyl:w=0.2", "Weyl semimetal", &r);
     assert_int_equal(r.nnodes, 2);
     for (int j = 0; j < 2; j++) {
@@ -208,7 +208,7 @@ static void test_weyl_positions(void **state)
         assert_int_equal(r.nodes[j].chirality, k1 > 0 ? -1 : +1);
     }
     assert_int_equal(r.net_chirality, 0);
-    diag_result_clear(&r);
+    res_clear(&r);
 }
 
 /* Nodal line (loop cos kx + cos ky = m - 1 at k3 = 0, lattice_models.h), a metal and a wide-gap
@@ -216,19 +216,19 @@ static void test_weyl_positions(void **state)
 static void test_line_metal_insulator(void **state)
 {
     (void)state;
-    diag_result r;
+    res_diag r;
     expect_class("nodal_line", "nodal-line semimetal", &r);
     assert_int_equal(r.nodal_line, 1);
-    diag_result_clear(&r);
+    res_clear(&r);
     expect_class("metal", "metal", &r);
     assert_true(r.gap_indirect_ev < 0);
-    diag_result_clear(&r);
+    res_clear(&r);
     expect_class("metal:dim=2", "metal", &r);
-    diag_result_clear(&r);
+    res_clear(&r);
     expect_class("atomic", "trivial insulator", &r);
     assert_true(fabs(r.gap_indirect_ev - 4.0) < 1e-6);
     assert_true(r.confidence > 0.9);
-    diag_result_clear(&r);
+    res_clear(&r);
 }
 
 /* Invariants do not change under a permutation of the orbitals, a change of their phases, or the
@@ -259,12 +259,12 @@ static void test_basis_invariance(void **state)
         if (m->spinful) assert_int_equal(tf_spin_layout(q, TB_SPIN_INTERLEAVED, &t, &err), 0);
         diag_opts o = {0};
         o.seed = 1;
-        diag_result a, b;
-        diag_result_init(&a);
-        diag_result_init(&b);
+        res_diag a, b;
+        res_init(&a);
+        res_init(&b);
         assert_int_equal(diag_run(m, &o, &a, &err), 0);
         assert_int_equal(diag_run(t ? t : q, &o, &b, &err), 0);
-        if (strcmp(a.cls, b.cls) != 0) fail_msg("%s: class %s became %s (%s)", specs[s], a.cls, b.cls, b.reason);
+        if (strcmp(res_class_name(a.cls), res_class_name(b.cls)) != 0) fail_msg("%s: class %s became %s (%s)", specs[s], res_class_name(a.cls), res_class_name(b.cls), b.reason);
         assert_memory_equal(a.z2, b.z2, sizeof a.z2);
         assert_int_equal(a.chern, b.chern);
         assert_int_equal(a.nnodes, b.nnodes);
@@ -273,8 +273,8 @@ static void test_basis_invariance(void **state)
         assert_int_equal(a.time_reversal, b.time_reversal);
         /* Gaps are basis-independent; 1e-6 eV is the refinement tolerance. */
         assert_true(fabs(a.gap_direct_ev - b.gap_direct_ev) < 1e-6);
-        diag_result_clear(&a);
-        diag_result_clear(&b);
+        res_clear(&a);
+        res_clear(&b);
         tb_model_free(m); tb_model_free(p); tb_model_free(q); tb_model_free(t);
     }
 }
@@ -290,20 +290,20 @@ static void test_symmetry_tolerance(void **state)
     bs_err_clear(&err);
     assert_int_equal(lm_build("kane_mele:lambda_R=0,lambda_v=0.00001", &m, &err), 0);
     diag_opts o = {0};
-    diag_result strict, loose;
-    diag_result_init(&strict);
-    diag_result_init(&loose);
+    res_diag strict, loose;
+    res_init(&strict);
+    res_init(&loose);
     assert_int_equal(diag_run(m, &o, &strict, &err), 0);
     o.symmetry_tol = 1e-3;
     assert_int_equal(diag_run(m, &o, &loose, &err), 0);
     assert_int_equal(strict.inversion, 0);
-    assert_int_equal(strict.z2_parity_status, DIAG_NA);
+    assert_int_equal(strict.z2_parity_status, RES_NA);
     assert_int_equal(loose.inversion, 1);
-    assert_int_equal(loose.z2_parity_status, DIAG_DONE);
-    assert_string_equal(strict.cls, "2D topological insulator");
-    assert_string_equal(loose.cls, "2D topological insulator");
-    diag_result_clear(&strict);
-    diag_result_clear(&loose);
+    assert_int_equal(loose.z2_parity_status, RES_DONE);
+    assert_string_equal(res_class_name(strict.cls), "2D topological insulator");
+    assert_string_equal(res_class_name(loose.cls), "2D topological insulator");
+    res_clear(&strict);
+    res_clear(&loose);
     tb_model_free(m);
 }
 
@@ -317,10 +317,10 @@ static void test_timeout(void **state)
     assert_int_equal(lm_build("fkm:dt=0.05,stag=0.4", &m, &err), 0);
     diag_opts o = {0};
     o.max_seconds = 1e-6;
-    diag_result r;
-    diag_result_init(&r);
+    res_diag r;
+    res_init(&r);
     assert_int_equal(diag_run(m, &o, &r, &err), BS_ETIMEOUT);
-    diag_result_clear(&r);
+    res_clear(&r);
     tb_model_free(m);
 }
 

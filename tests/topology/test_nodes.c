@@ -88,7 +88,7 @@ static void test_weyl_nodes_analytic(void **state)
         run x;
         run_spec(specs[c], 0, &x);
         assert_int_equal(x.r.nnodes, 2);
-        assert_int_equal(x.r.chirality_status, DIAG_DONE);
+        assert_int_equal(x.r.chirality_status, RES_DONE);
         assert_false(x.r.nodal_line);
         int expect = -(int)copysign(1.0, t[c] * t[c] * t[c] * sin(2 * M_PI * w[c]));
         const double kp[3] = {w[c], 0, 0}, km[3] = {-w[c], 0, 0};
@@ -158,7 +158,7 @@ static void test_graphene_dirac_points(void **state)
     assert_true(i >= 0 && j >= 0 && i != j);
     assert_int_equal(x.r.nodes[i].chirality, 0);
     assert_int_equal(x.r.nodes[j].chirality, 0);
-    assert_int_equal(x.r.chirality_status, DIAG_NA);
+    assert_int_equal(x.r.chirality_status, RES_NA);
     assert_false(x.r.nodal_line);
     assert_true(nodes_check_time_reversal(&x.r, 2, 1e-5)); /* K and K' are each other's -k */
     run_free(&x);
@@ -193,7 +193,7 @@ static void test_fkm_inversion_symmetric_sweep(void **state)
                 assert_true(n >= 0);
                 assert_int_equal(x.r.nodes[n].chirality, 0);
             }
-            assert_int_equal(x.r.chirality_status, DIAG_DONE);
+            assert_int_equal(x.r.chirality_status, RES_DONE);
             assert_true(nodes_check_time_reversal(&x.r, 3, 1e-5));
         }
         assert_int_equal(x.r.net_chirality, 0);
@@ -247,7 +247,7 @@ static void test_fkm_weyl_window(void **state)
         } else {
             assert_true(x.r.nnodes >= 4);
             assert_int_equal(x.r.nnodes % 4, 0);
-            assert_int_equal(x.r.chirality_status, DIAG_DONE);
+            assert_int_equal(x.r.chirality_status, RES_DONE);
             assert_true(nodes_check_time_reversal(&x.r, 3, 1e-5));
             for (int i = 0; i < x.r.nnodes; i++) {
                 assert_true(abs(x.r.nodes[i].chirality) == 1);
@@ -287,7 +287,7 @@ static void test_no_nodes_without_touching(void **state)
         assert_false(x.r.degenerate);
         assert_int_equal(x.r.nstarts, 0);
         assert_true(x.r.min_gap_ev > 1.0);
-        assert_int_equal(x.r.chirality_status, DIAG_NA);
+        assert_int_equal(x.r.chirality_status, RES_NA);
         run_free(&x);
     }
 }
@@ -298,7 +298,7 @@ static void test_no_nodes_without_touching(void **state)
 static void test_time_reversal_check(void **state)
 {
     (void)state;
-    diag_node q[4] = {{{0.1, 0.2, 0.3}, 1, 0, 0}, {{0.9, 0.8, 0.7}, 1, 0, 0},
+    res_node q[4] = {{{0.1, 0.2, 0.3}, 1, 0, 0}, {{0.9, 0.8, 0.7}, 1, 0, 0},
                       {{0.4, 0.1, 0.2}, -1, 0, 0}, {{0.6, 0.9, 0.8}, -1, 0, 0}};
     nodes_result r;
     nodes_result_init(&r);
@@ -318,8 +318,7 @@ static void test_time_reversal_check(void **state)
     assert_true(nodes_check_time_reversal(&r, 3, 1e-6));
 }
 
-/* A mesh shared with the gap search gives the same nodes without evaluating it again, and
- * nodes_to_diag hands the nodes over. */
+/* A mesh shared with the gap search gives the same nodes without evaluating it again. */
 static void test_shared_mesh_and_diag(void **state)
 {
     (void)state;
@@ -345,16 +344,9 @@ static void test_shared_mesh_and_diag(void **state)
     assert_int_equal(nodes_find_eval(m, e, &o, &r, &err), 0);
     assert_int_equal(r.nnodes, 2);
     assert_int_equal(r.mesh, 16);
-    diag_result d;
-    memset(&d, 0, sizeof d);
-    gaps_to_diag(&gr, &d);
-    nodes_to_diag(&r, &d);
-    assert_int_equal(d.nnodes, 2);
-    assert_non_null(d.nodes);
-    assert_null(r.nodes);
-    assert_int_equal(d.net_chirality, 0);
-    assert_true(d.gap_direct_ev < BS_GAP_CLOSED_EV);
-    free(d.nodes);
+    assert_int_equal(r.net_chirality, 0);
+    gaps_merge_nodes(&gr, &r);
+    assert_true(gr.gap_direct_ev < BS_GAP_CLOSED_EV);
     nodes_result_clear(&r);
     bp_mesh_free(g);
     bp_free(e);

@@ -53,7 +53,7 @@ static void expect_z2(const char *spec, int status, const int z2[4])
     wilson_z2 r;
     run_z2(m, NULL, &r);
     assert_int_equal(r.status, status);
-    if (status == DIAG_DONE) {
+    if (status == RES_DONE) {
         int n = m->dim == 2 ? 1 : 4;
         for (int i = 0; i < n; i++) assert_int_equal(r.z2[i], z2[i]);
     }
@@ -67,8 +67,8 @@ static void expect_z2(const char *spec, int status, const int z2[4])
 static void test_kane_mele_no_rashba(void **state)
 {
     (void)state;
-    expect_z2("kane_mele:lambda_R=0,lambda_v=0.1", DIAG_DONE, (int[4]){1, 0, 0, 0});
-    expect_z2("kane_mele:lambda_R=0,lambda_v=0.5", DIAG_DONE, (int[4]){0, 0, 0, 0});
+    expect_z2("kane_mele:lambda_R=0,lambda_v=0.1", RES_DONE, (int[4]){1, 0, 0, 0});
+    expect_z2("kane_mele:lambda_R=0,lambda_v=0.5", RES_DONE, (int[4]){0, 0, 0, 0});
 }
 
 /* Kane-Mele with Rashba: S_z is no longer conserved, so only the Z2 decides. The TI region of
@@ -79,8 +79,8 @@ static void test_kane_mele_no_rashba(void **state)
 static void test_kane_mele_rashba(void **state)
 {
     (void)state;
-    expect_z2("kane_mele", DIAG_DONE, (int[4]){1, 0, 0, 0});
-    expect_z2("kane_mele:lambda_R=0.05,lambda_v=0.6", DIAG_DONE, (int[4]){0, 0, 0, 0});
+    expect_z2("kane_mele", RES_DONE, (int[4]){1, 0, 0, 0});
+    expect_z2("kane_mele:lambda_R=0.05,lambda_v=0.6", RES_DONE, (int[4]){0, 0, 0, 0});
 }
 
 /* BHZ: Z2 = 1 for 0 < M/B < 8 except the closings at 0, 4, 8; trivial for M/B < 0 (Science 314,
@@ -89,11 +89,11 @@ static void test_kane_mele_rashba(void **state)
 static void test_bhz(void **state)
 {
     (void)state;
-    expect_z2("bhz:M=1", DIAG_DONE, (int[4]){1, 0, 0, 0});
-    expect_z2("bhz:M=-1", DIAG_DONE, (int[4]){0, 0, 0, 0});
-    expect_z2("bhz:M=1,g=0.3", DIAG_DONE, (int[4]){1, 0, 0, 0});
-    expect_z2("bhz:M=1,delta=0.2", DIAG_DONE, (int[4]){1, 0, 0, 0});
-    expect_z2("bhz:M=-1,delta=0.2", DIAG_DONE, (int[4]){0, 0, 0, 0});
+    expect_z2("bhz:M=1", RES_DONE, (int[4]){1, 0, 0, 0});
+    expect_z2("bhz:M=-1", RES_DONE, (int[4]){0, 0, 0, 0});
+    expect_z2("bhz:M=1,g=0.3", RES_DONE, (int[4]){1, 0, 0, 0});
+    expect_z2("bhz:M=1,delta=0.2", RES_DONE, (int[4]){1, 0, 0, 0});
+    expect_z2("bhz:M=-1,delta=0.2", RES_DONE, (int[4]){0, 0, 0, 0});
 }
 
 /* Fu-Kane-Mele diamond: dt > 0 strong TI 1;111, dt < 0 weak TI 0;111 (Phys. Rev. Lett. 98, 106803
@@ -102,8 +102,8 @@ static void test_bhz(void **state)
 static void test_fkm(void **state)
 {
     (void)state;
-    expect_z2("fkm:dt=0.4", DIAG_DONE, (int[4]){1, 1, 1, 1});
-    expect_z2("fkm:dt=-0.4", DIAG_DONE, (int[4]){0, 1, 1, 1});
+    expect_z2("fkm:dt=0.4", RES_DONE, (int[4]){1, 1, 1, 1});
+    expect_z2("fkm:dt=-0.4", RES_DONE, (int[4]){0, 1, 1, 1});
 }
 
 /* Orbital positions enter the centres: in the atomic limit (lattice_models.h: B sites at
@@ -120,10 +120,10 @@ static void test_atomic_centres(void **state)
         tb_model *m = bs_test_build(spec[s]);
         wilson_z2 r;
         run_z2(m, NULL, &r);
-        assert_int_equal(r.status, DIAG_DONE);
+        assert_int_equal(r.status, RES_DONE);
         for (int i = 0; i < 4; i++) assert_int_equal(r.z2[i], 0);
         for (int p = 0; p < r.nplane; p++) {
-            const diag_flow *f = &r.planes[p].flow;
+            const res_flow *f = &r.planes[p].flow;
             assert_true(f->nstring >= 11);
             for (int j = 0; j < f->nstring * f->nband; j++) assert_true(fabs(f->wcc[j] - 0.5) < 1e-9);
         }
@@ -145,7 +145,7 @@ static void test_gap_closing(void **state)
     o.nstring = 4;
     wilson_z2 r;
     run_z2(m, &o, &r);
-    assert_int_equal(r.status, DIAG_NA);
+    assert_int_equal(r.status, RES_NA);
     assert_int_equal(r.gap_closed, 1);
     assert_true(r.planes[0].min_gap_ev < 1e-4);
     assert_true(fabs(r.planes[0].k_gap[0] - 2.0 / 3) < 1e-9);
@@ -153,7 +153,7 @@ static void test_gap_closing(void **state)
     assert_non_null(strstr(r.reason, "gap"));
     wilson_z2_clear(&r);
     run_z2(m, NULL, &r);
-    assert_int_not_equal(r.status, DIAG_DONE);
+    assert_int_not_equal(r.status, RES_DONE);
     assert_true(strlen(r.reason) > 0);
     wilson_z2_clear(&r);
     tb_model_free(m);
@@ -170,7 +170,7 @@ static void test_no_time_reversal(void **state)
     tb_model *m = bs_test_build("haldane");
     wilson_z2 r;
     run_z2(m, NULL, &r);
-    assert_int_equal(r.status, DIAG_AMBIGUOUS);
+    assert_int_equal(r.status, RES_AMBIGUOUS);
     assert_non_null(strstr(r.reason, "odd"));
     wilson_z2_clear(&r);
     tb_model_free(m);
@@ -181,7 +181,7 @@ static void test_no_time_reversal(void **state)
     for (int i = 0; i < m->norb; i++)
         m->H[((size_t)r0 * m->norb + i) * m->norb + i] += tb_state_spin(m, i) ? -0.1 : 0.1;
     run_z2(m, NULL, &r);
-    assert_int_equal(r.status, DIAG_AMBIGUOUS);
+    assert_int_equal(r.status, RES_AMBIGUOUS);
     assert_non_null(strstr(r.reason, "Kramers"));
     wilson_z2_clear(&r);
     tb_model_free(m);
@@ -200,12 +200,12 @@ static void test_budget(void **state)
     o.max_strings = 3;
     wilson_z2 r;
     run_z2(m, &o, &r);
-    assert_int_equal(r.status, DIAG_AMBIGUOUS);
+    assert_int_equal(r.status, RES_AMBIGUOUS);
     assert_non_null(strstr(r.reason, "midpoint"));
     wilson_z2_clear(&r);
     o.max_strings = 64;
     run_z2(m, &o, &r);
-    assert_int_equal(r.status, DIAG_DONE);
+    assert_int_equal(r.status, RES_DONE);
     assert_int_equal(r.z2[0], 1);
     assert_true(r.planes[0].flow.nstring > 3);
     wilson_z2_clear(&r);
@@ -217,12 +217,12 @@ static void test_budget(void **state)
     o.max_nk = 4;
     o.det_min = 0.9999;
     run_z2(m, &o, &r);
-    assert_int_equal(r.status, DIAG_AMBIGUOUS);
+    assert_int_equal(r.status, RES_AMBIGUOUS);
     assert_non_null(strstr(r.reason, "det"));
     wilson_z2_clear(&r);
     o.max_nk = 256;
     run_z2(m, &o, &r);
-    assert_int_equal(r.status, DIAG_DONE);
+    assert_int_equal(r.status, RES_DONE);
     assert_true(r.planes[0].max_nk > 4);
     assert_true(r.planes[0].min_det >= 0.9999);
     wilson_z2_clear(&r);
@@ -252,11 +252,11 @@ static void test_basis_invariance(void **state)
         wilson_z2 r0, r1;
         run_z2(m, NULL, &r0);
         run_z2(c, NULL, &r1);
-        assert_int_equal(r0.status, DIAG_DONE);
-        assert_int_equal(r1.status, DIAG_DONE);
+        assert_int_equal(r0.status, RES_DONE);
+        assert_int_equal(r1.status, RES_DONE);
         for (int i = 0; i < 4; i++) assert_int_equal(r0.z2[i], r1.z2[i]);
         for (int p = 0; p < r0.nplane; p++) {
-            const diag_flow *f0 = &r0.planes[p].flow, *f1 = &r1.planes[p].flow;
+            const res_flow *f0 = &r0.planes[p].flow, *f1 = &r1.planes[p].flow;
             assert_int_equal(f0->nstring, f1->nstring);
             for (int j = 0; j < f0->nstring * f0->nband; j++) {
                 double d = fabs(f0->wcc[j] - f1->wcc[j]);
@@ -280,7 +280,7 @@ static void test_take_flows(void **state)
     tb_model *m = bs_test_build("fkm:dt=-0.4");
     wilson_z2 r;
     run_z2(m, NULL, &r);
-    diag_flow *f = NULL;
+    res_flow *f = NULL;
     int nf = 0;
     bs_err err;
     bs_err_clear(&err);

@@ -1,0 +1,179 @@
+/* The result of diagnosing one material, as every layer shares it: the method modules of topology
+ * fill their parts, the diagnosis assembles it, result_json.h turns it into JSON and back, and the
+ * catalogue and the command line read it. Plain data with fixed arrays except the nodes and flows.
+ * The layer sits below topology and catalogue and includes no other header (no cJSON, MPI or
+ * SQLite). */
+#ifndef BANDSIEVE_RESULT_H
+#define BANDSIEVE_RESULT_H
+
+/* Status of an index computed by one method. */
+typedef enum res_status { RES_NA = 0, RES_DONE = 1, RES_AMBIGUOUS = 2, RES_DISAGREE = 3 } res_status;
+
+/* The class of a material; names in res_class_name. The order is the one of the progress counts. */
+typedef enum res_class {
+    RES_TRIVIAL = 0,
+    RES_STRONG_TI,
+    RES_WEAK_TI,
+    RES_2D_TI,
+    RES_CHERN_INSULATOR,
+    RES_WEYL,
+    RES_NODAL_LINE,
+    RES_METAL,
+    RES_UNDETERMINED,
+    RES_NCLASS
+} res_class;
+
+/* "not applicable", "done", "ambiguous", "disagree"; "unknown" for a bad value. */
+const char *res_status_name(res_status s);
+/* The status of a name (also "na" and "0".."3" are not accepted here), or -1. */
+int res_status_parse(const char *name);
+/* "trivial insulator", ..., "undetermined"; NULL for a bad value. */
+const char *res_class_name(res_class c);
+/* The class of a name, or -1. */
+int res_class_parse(const char *name);
+/* 1 for the insulating classes (trivial, strong, weak, 2D topological, Chern). */
+int res_class_is_insulator(res_class c);
+/* 1 for the classes whose invariants promise surface or edge states. */
+int res_class_has_surface_states(res_class c);
+
+typedef struct res_node {
+    double k[3];        /* reduced coordinates, in [0,1) */
+    int chirality;      /* +1 / -1, 0 when the flux was not an integer */
+    double energy_ev;   /* mean of the two touching bands */
+    double gap_ev;      /* refined direct gap at the node */
+} res_node;
+
+typedef struct res_flow {
+    int plane;              /* 0..5: k1=0, k1=1/2, k2=0, k2=1/2, k3=0, k3=1/2 (2D: plane 4 = whole zone) */
+    int nstring;            /* strings from the TRIM line to the half-way line */
+    int nband;              /* occupied bands */
+    double *kpar;           /* nstring pumping parameters in [0, 1/2] */
+    double *wcc;            /* nstring * nband centres in [0,1), sorted per string */
+} res_flow;
+
+/* Most Fermi energies of one transport result (the reference plus the scan). */
+#define RES_MAX_FERMI 101
+
+/* Where the reference Fermi energy of a transport result came from. */
+typedef enum res_fermi_source {
+    RES_FERMI_GIVEN = 0, RES_FERMI_CARD = 1, RES_FERMI_MIDGAP = 2, RES_FERMI_FILLING = 3
+} res_fermi_source;
+
+/* Velocity gauge of a transport result (see transport.h). */
+typedef enum res_gauge { RES_GAUGE_POSITION = 0, RES_GAUGE_LATTICE = 1 } res_gauge;
+
+/* "given", "card", "midgap", "filling"; "unknown" for a bad value. */
+const char *res_fermi_source_name(int source);
+/* "position", "lattice". */
+const char *res_gauge_name(int gauge);
+
+/* Anomalous and spin Hall conductivities (transport.h computes them; its tr_result is this type).
+ * Index 0 of every array is the reference Fermi energy, 1..nfermi-1 the scan. Errors are the
+ * adaptive integration's estimates, same units as the values. */
+typedef struct res_transport {
+    int dim;                          /* 2 or 3 */
+    int has_shc;                      /* spinful and asked for */
+    int nfermi;
+    int fermi_source;                 /* RES_FERMI_* of index 0 */
+    double fermi_ev[RES_MAX_FERMI];
+    double ahc[RES_MAX_FERMI][3];     /* xy, yz, zx (yz, zx are 0 in 2D) */
+    double ahc_err[RES_MAX_FERMI][3];
+    double shc[RES_MAX_FERMI];        /* sigma^{s_z}_{xy} */
+    double shc_err[RES_MAX_FERMI];
+    char ahc_units[16];               /* "e^2/h" or "S/cm" */
+    char shc_units[16];               /* "e/2pi" or "(hbar/e)S/cm" */
+    long long nk;                     /* H(k) evaluations, including the Fermi-energy pre-pass */
+    long long ncells;                 /* cells of the final partition */
+    int depth;                        /* deepest refinement reached */
+    int converged;                    /* total error estimate <= tol */
+    double tol;                       /* the tolerance used (output units) */
+    double err_total;                 /* the refinement's scalar total error estimate */
+    double min_gap_ev;                /* smallest E_nocc - E_(nocc-1) seen */
+    double eta_ev, smear_ev;
+    int gauge;                        /* RES_GAUGE_* */
+} res_transport;
+
+/* Surface evidence for one lattice plane (surfsummary.h computes it; its ssum_result is this). */
+typedef struct res_surface {
+    int miller[3];
+    int layers;
+    int kdim;               /* 2 for a slab, 1 for a ribbon */
+    double fermi_ev;        /* where crossings were counted */
+    double vbm_ev, cbm_ev;  /* bulk band edges at the filling */
+    double ka[2], kb[2];    /* the two surface TRIMs (in-plane reduced) */
+    int n_top, n_bottom, n_other;
+    int ndirac_top;         /* top-surface Dirac points inside the bulk gap */
+} res_surface;
+
+/* The diagnosis of one material. */
+typedef struct res_diag {
+    char id[128];
+    char formula[64];       /* from the card, "" when none */
+    res_class cls;          /* RES_UNDETERMINED when no call was made */
+    double confidence;      /* [0,1] */
+    char reason[320];
+    int dim;
+    int norb, nocc;
+
+    double gap_direct_ev, gap_indirect_ev;
+    double k_gap_direct[3];
+    double k_vbm[3], k_cbm[3];
+
+    int time_reversal, inversion;
+    double tr_residual, inv_residual;
+
+    res_status z2_status;   /* of the combined z2 */
+    int z2[4];              /* 2D: z2[0] = nu; 3D: nu0, nu1, nu2, nu3 */
+    res_status z2_parity_status;
+    int z2_parity[4];
+    res_status z2_wcc_status;
+    int z2_wcc[4];
+    char z2_note[240];      /* why an index is ambiguous or the methods disagree */
+    int ntrim;              /* 4 or 8 when parities were computed, else 0 */
+    int par_delta[8];       /* product of one parity per Kramers pair at TRIM n1 + 2 n2 + 4 n3 */
+    int par_nodd[8];        /* occupied states of odd parity there */
+    int wcc_gap_closed;     /* a Wilson-loop string met a gap closing */
+    res_status chirality_status; /* of the node chiralities */
+    int nodes_tr_ok;        /* with time reversal: nodes in time-reversed sets of four */
+
+    res_status chern_status;
+    int chern;              /* 2D Chern number */
+    int plane_chern[6];     /* 3D planes as in res_flow.plane, when chern_status == RES_DONE */
+
+    int nnodes;
+    res_node *nodes;        /* owned */
+    int net_chirality;
+    int nodal_line;
+    int nodal_points;
+    double nodal_extent;    /* largest distance between gap-closing points, reduced units */
+
+    int nflows;
+    res_flow *flows;        /* owned, when the flows were asked for */
+
+    int has_transport;      /* transport below was computed */
+    res_transport transport;
+    int has_surface;        /* surface below was computed */
+    res_surface surface;
+
+    int mesh;
+    double seconds;
+    long long nk_evaluated; /* k-points diagonalised, for cost reporting */
+} res_diag;
+
+/* The 2D Chern number as shown (JSON "chern", column chern): 1 with *c when it was computed, or is
+ * zero by time reversal with an open gap (common practice); 0 when it is not shown (3D, or none). */
+int res_chern_shown(const res_diag *r, int *c);
+/* 1 when the six plane Chern numbers are shown (3D, computed). */
+int res_plane_chern_shown(const res_diag *r);
+/* 1 when node i of r is listed as a Weyl node (3D, with a chirality, or one that could not be
+ * resolved), 0 for a gap closing of zero chirality (a Dirac point, a point of a line, any 2D one). */
+int res_node_is_weyl(const res_diag *r, int i);
+
+/* Initialises r to an empty result (NA everywhere, class undetermined, indices -1). */
+void res_init(res_diag *r);
+/* Frees the nodes and flows r owns and initialises it again; accepts NULL. */
+void res_clear(res_diag *r);
+/* Frees the flows alone (the catalogue keeps them in artifact files, not in rows). */
+void res_clear_flows(res_diag *r);
+
+#endif
