@@ -4,6 +4,7 @@
 #ifndef BANDSIEVE_BANDPAIR_H
 #define BANDSIEVE_BANDPAIR_H
 
+#include "bandsieve/eig.h"
 #include "bandsieve/err.h"
 #include "bandsieve/hk.h"
 #include "bandsieve/model.h"
@@ -18,6 +19,13 @@ double bp_now(void);
  * BS_ETIMEOUT (0: none). The caller owns *out. BS_EINVAL when hk's size is not m->norb or
  * m->nocc is outside 1..norb-1. */
 int bp_create(const tb_model *m, hk_engine *hk, double deadline, bp_eval **out, bs_err *err);
+
+/* As bp_create, diagonalising with dist (borrowed, must outlive the evaluator; NULL: LAPACK). */
+int bp_create_dist(const tb_model *m, hk_engine *hk, const eig_dist *dist, double deadline, bp_eval **out,
+                   bs_err *err);
+
+/* The solver the evaluator was created with (NULL: LAPACK), for modules that share its model. */
+const eig_dist *bp_solver(const bp_eval *e);
 
 /* Frees e; accepts NULL. */
 void bp_free(bp_eval *e);

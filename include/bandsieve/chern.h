@@ -10,6 +10,7 @@
 #ifndef BANDSIEVE_CHERN_H
 #define BANDSIEVE_CHERN_H
 
+#include "bandsieve/eig.h"
 #include "bandsieve/err.h"
 #include "bandsieve/model.h"
 
@@ -47,6 +48,9 @@ typedef struct chern_value {
 /* Workspace for the lowest nband bands (1 <= nband < m->norb) of m (borrowed; it must outlive the
  * workspace). The caller owns *out (chern_free). BS_EINVAL on a bad nband. */
 int chern_create(const tb_model *m, int nband, chern_ws **out, bs_err *err);
+
+/* As chern_create, diagonalising with dist (borrowed; NULL: LAPACK), e.g. a rank group's solver. */
+int chern_create_dist(const tb_model *m, int nband, const eig_dist *dist, chern_ws **out, bs_err *err);
 
 /* Frees ws; accepts NULL. */
 void chern_free(chern_ws *ws);

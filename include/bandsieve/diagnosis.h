@@ -4,6 +4,7 @@
 #ifndef BANDSIEVE_DIAGNOSIS_H
 #define BANDSIEVE_DIAGNOSIS_H
 
+#include "bandsieve/eig.h"
 #include "bandsieve/err.h"
 #include "bandsieve/model.h"
 #include "bandsieve/result.h"
@@ -17,6 +18,8 @@ typedef struct diag_opts {
     unsigned long long seed;/* for random verification points */
     double symmetry_tol;    /* relative residual accepted for a symmetry (0: 1e-6; Wannier fits
                                that were not symmetrised need ~1e-3) */
+    const eig_dist *dist;   /* distributed eigensolver for large matrices (a rank group's, whose
+                               members then run the diagnosis in lockstep); borrowed; NULL: LAPACK */
 } diag_opts;
 
 /* The default k-mesh per direction for a model of dimension dim (36 in 2D, 14 in 3D). */

@@ -45,9 +45,6 @@ typedef struct tb_model {
     int (*R)[3];            /* nR lattice vectors */
     int *deg;               /* nR degeneracy weights (>= 1) */
     double complex *H;      /* nR * norb * norb, eV */
-    /* Execution hint, not data: a distributed eigensolver (eig.h) that the numerical modules use
-     * for this model's matrices; borrowed, NULL except on the ranks of a pipeline group. */
-    const struct eig_dist *eig_dist;
 } tb_model;
 
 /* Allocates a model for norb states, nspatial orbitals and nR lattice vectors, all arrays zeroed.

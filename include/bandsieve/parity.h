@@ -6,6 +6,7 @@
 #ifndef BANDSIEVE_PARITY_H
 #define BANDSIEVE_PARITY_H
 
+#include "bandsieve/eig.h"
 #include "bandsieve/err.h"
 #include "bandsieve/model.h"
 #include "bandsieve/symmetry.h"
@@ -17,6 +18,7 @@ enum { PAR_NA = 0, PAR_DONE = 1, PAR_AMBIGUOUS = 2, PAR_GAP_CLOSED = 4 };
 typedef struct par_opts {
     double gap_tol_ev;      /* E_{N+1} - E_N at a TRIM at or below this is closed (0: BS_GAP_CLOSED_EV) */
     double parity_tol;      /* largest accepted |xi - (+-1)| of a parity eigenvalue (0: 1e-3) */
+    const eig_dist *dist;   /* distributed eigensolver for large matrices (borrowed; NULL: LAPACK) */
 } par_opts;
 
 typedef struct par_result {

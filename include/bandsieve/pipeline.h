@@ -1,11 +1,13 @@
 /* The screening run: an MPI coordinator (rank 0) hands materials one at a time to worker ranks,
  * which read them from the set, diagnose them and send back compact results; the coordinator alone
- * writes the catalogue. With one rank everything runs in that process. MPI stays inside
- * src/pipeline: this header does not include <mpi.h>. */
+ * writes the catalogue. With one rank everything runs in that process. The run takes the
+ * communicator it works on, so this header includes <mpi.h>; the command initialises MPI. */
 #ifndef BANDSIEVE_PIPELINE_H
 #define BANDSIEVE_PIPELINE_H
 
 #include <signal.h>
+
+#include <mpi.h>
 
 #include "bandsieve/diagnosis.h"
 #include "bandsieve/err.h"
@@ -69,10 +71,11 @@ typedef struct pl_opts {
     void (*announce)(void *ctx, const pl_counts *c, const char *kind);
 } pl_opts;
 
-/* Runs the job. Initialises MPI from argc/argv (MPI_Init) and finalises it. On rank 0 *counts
- * receives the totals; other ranks get their own partial counts. Returns 0 when the job ran (even
- * if some materials failed: see counts), or a negative BS_E* code when the job itself failed
- * (catalogue, set, MPI), with err filled on the rank that saw it. */
-int pl_run(int *argc, char ***argv, const pl_opts *opts, pl_counts *counts, int *is_root, bs_err *err);
+/* Runs the job on the ranks of comm (borrowed; MPI is initialised and finalised by the caller):
+ * rank 0 of comm coordinates and writes the catalogue. On rank 0 *counts receives the totals; other
+ * ranks get their own partial counts. Returns 0 when the job ran (even if some materials failed:
+ * see counts), or a negative BS_E* code when the job itself failed (catalogue, set, MPI), with err
+ * filled on the rank that saw it. Collective on comm. */
+int pl_run(MPI_Comm comm, const pl_opts *opts, pl_counts *counts, int *is_root, bs_err *err);
 
 #endif

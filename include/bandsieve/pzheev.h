@@ -1,7 +1,8 @@
 /* Distributed Hermitian eigensolver: ScaLAPACK (pzheevr, pzheevd) on a BLACS grid over a given
  * MPI communicator, with the contract of eig.h (eig_values / eig_range / eig_vectors), and a
- * dispatcher that keeps small problems on LAPACK. This is the one module outside src/pipeline/
- * that includes <mpi.h>, because ScaLAPACK needs a communicator (STYLE.md).
+ * dispatcher that keeps small problems on LAPACK. It lives in src/pipeline beside the rank groups
+ * that use it (ScaLAPACK needs a communicator); the numerical layers see it only through the
+ * eig_dist callbacks of eig.h, passed in their options.
  *
  * The matrix is full, column-major, on rank `root` only (root >= 0) or the same on every rank
  * (root = PZ_ALL). Results (eigenvalues, and eigenvectors when asked) come back on every rank
@@ -32,9 +33,7 @@ int pz_create(MPI_Comm comm, int n, int nb, pz_ctx **out, bs_err *err);
 /* Frees c and its BLACS grid; accepts NULL. Collective on the context's communicator. */
 void pz_free(pz_ctx *c);
 
-/* Matrix size, ranks, and grid shape. */
-int pz_n(const pz_ctx *c);
-int pz_size(const pz_ctx *c);
+/* Grid shape. */
 void pz_grid(const pz_ctx *c, int *nprow, int *npcol);
 
 /* All eigenvalues (ascending, w[n] on every rank) by pzheevr. A is read, not destroyed. */

@@ -33,6 +33,7 @@
 #ifndef BANDSIEVE_TRANSPORT_H
 #define BANDSIEVE_TRANSPORT_H
 
+#include "bandsieve/eig.h"
 #include "bandsieve/err.h"
 #include "bandsieve/model.h"
 #include "bandsieve/result.h"
@@ -71,6 +72,8 @@ typedef struct tr_opts {
     int gauge;             /* TR_GAUGE_* [TR_GAUGE_POSITION] */
     int want_shc;          /* compute the SHC of spinful models [1] */
     double deadline;       /* absolute bp_now() seconds; BS_ETIMEOUT past it (0: none) [0] */
+    const eig_dist *dist;  /* distributed eigensolver for large matrices (a rank group's; borrowed)
+                              [NULL: LAPACK] */
 } tr_opts;
 
 void tr_opts_default(tr_opts *o);

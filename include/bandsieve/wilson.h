@@ -7,6 +7,7 @@
 #ifndef BANDSIEVE_WILSON_H
 #define BANDSIEVE_WILSON_H
 
+#include "bandsieve/eig.h"
 #include "bandsieve/err.h"
 #include "bandsieve/model.h"
 #include "bandsieve/result.h"
@@ -75,6 +76,9 @@ void wilson_z2_clear(wilson_z2 *r);
 /* Workspace for the lowest nband bands of m (borrowed; must outlive it), 1 <= nband < norb.
  * The caller owns *out (wilson_free). BS_EINVAL on a bad nband, BS_ENOMEM. */
 int wilson_create(const tb_model *m, int nband, wilson_ws **out, bs_err *err);
+
+/* As wilson_create, diagonalising with dist (borrowed; NULL: LAPACK), e.g. a rank group's solver. */
+int wilson_create_dist(const tb_model *m, int nband, const eig_dist *dist, wilson_ws **out, bs_err *err);
 
 /* Frees w; accepts NULL. */
 void wilson_free(wilson_ws *w);

@@ -198,7 +198,12 @@ static int screen_main(int argc, char **argv, int rescreen)
     int is_root = 1;
     bs_err err;
     bs_err_clear(&err);
-    int rc = pl_run(&argc, &argv, &o, &counts, &is_root, &err);
+    if (MPI_Init(&argc, &argv) != MPI_SUCCESS) {
+        fprintf(stderr, "%s: MPI_Init failed\n", name);
+        return 3;
+    }
+    int rc = pl_run(MPI_COMM_WORLD, &o, &counts, &is_root, &err);
+    MPI_Finalize();
     if (rc != 0) {
         fprintf(stderr, "%s: %s\n", name, err.msg);
         return 3;

@@ -564,14 +564,15 @@ static void coord_clear(coord *c, bs_err *err)
     if (c->lock_fd >= 0) close(c->lock_fd);
 }
 
-int pl_run(int *argc, char ***argv, const pl_opts *o, pl_counts *counts, int *is_root, bs_err *err)
+int pl_run(MPI_Comm user_comm, const pl_opts *o, pl_counts *counts, int *is_root, bs_err *err)
 {
     memset(counts, 0, sizeof *counts);
     *is_root = 1;
-    int rc = mpi_check(MPI_Init(argc, argv), "MPI_Init", err);
+    /* A communicator of our own, whose errors come back as codes (translated by mpi_check), not
+     * as an abort; the caller's keeps its own handler. */
+    MPI_Comm comm = MPI_COMM_NULL;
+    int rc = mpi_check(MPI_Comm_dup(user_comm, &comm), "MPI_Comm_dup", err);
     if (rc != 0) return rc;
-    MPI_Comm comm = MPI_COMM_WORLD;
-    /* Errors come back as codes (translated by mpi_check), not as an abort. */
     MPI_Comm_set_errhandler(comm, MPI_ERRORS_RETURN);
     if (!getenv("OPENBLAS_NUM_THREADS")) openblas_set_num_threads(1);
     int rank = 0, size = 1;
@@ -599,7 +600,7 @@ int pl_run(int *argc, char ***argv, const pl_opts *o, pl_counts *counts, int *is
         }
         pl_group_free(group);
         if (gcomm != MPI_COMM_NULL) MPI_Comm_free(&gcomm);
-        MPI_Finalize();
+        MPI_Comm_free(&comm);
         return rc;
     }
     coord c;
@@ -632,6 +633,7 @@ int pl_run(int *argc, char ***argv, const pl_opts *o, pl_counts *counts, int *is
     if (setup_ok) coord_tick(&c, 1);
     *counts = c.counts;
     coord_clear(&c, err);
-    MPI_Finalize();
+    if (gcomm != MPI_COMM_NULL) MPI_Comm_free(&gcomm);
+    MPI_Comm_free(&comm);
     return rc;
 }

@@ -99,10 +99,8 @@ void pl_compute(const ms_set *set, int index, const pl_task *task, double max_se
     int rc = ms_read(set, index, &m, &err);
     /* An entry whose HDF5 data cannot be read is bad input (a damaged set), not a failure of ours. */
     if (rc == BS_EHDF5) rc = BS_EPARSE;
-    if (rc == 0 && task->dist) {
-        m->eig_dist = task->dist;
-        max_seconds = 0;
-    }
+    /* Group members run in lockstep: a deadline would stop them at different points. */
+    if (task->dist) max_seconds = 0;
     if (rc == 0) {
         pl_diag_opts o;
         memset(&o, 0, sizeof o);
@@ -112,8 +110,10 @@ void pl_compute(const ms_set *set, int index, const pl_task *task, double max_se
         o.diag.want_flows = 1;
         o.diag.seed = 1;
         o.diag.symmetry_tol = task->symmetry_tol;
+        o.diag.dist = task->dist;
         o.transport = task->transport;
         tr_opts_default(&o.tr);
+        o.tr.dist = task->dist;
         o.surfaces = task->surfaces;
         res_diag r;
         res_init(&r);

@@ -22,6 +22,7 @@ struct bp_eval {
     eig_ws *ws;
     int norb, nocc, dim, batch, use_range;
     double deadline;
+    const eig_dist *dist; /* borrowed, NULL: LAPACK */
     double complex *H;  /* batch * norb^2 */
     double *w;          /* norb */
     long long count;
@@ -35,6 +36,14 @@ double bp_now(void)
 }
 
 int bp_create(const tb_model *m, hk_engine *hk, double deadline, bp_eval **out, bs_err *err)
+{
+    return bp_create_dist(m, hk, NULL, deadline, out, err);
+}
+
+const eig_dist *bp_solver(const bp_eval *e) { return e->dist; }
+
+int bp_create_dist(const tb_model *m, hk_engine *hk, const eig_dist *dist, double deadline, bp_eval **out,
+                   bs_err *err)
 {
     *out = NULL;
     if (!m || !hk) return bs_fail(err, BS_EINVAL, "bandpair: model and H(k) engine are required");
@@ -52,12 +61,13 @@ int bp_create(const tb_model *m, hk_engine *hk, double deadline, bp_eval **out, 
     e->batch = hk_max_batch(hk);
     e->use_range = m->norb >= BP_RANGE_MIN_NORB;
     e->deadline = deadline;
+    e->dist = dist;
     e->H = malloc((size_t)e->batch * e->norb * e->norb * sizeof *e->H);
     e->w = malloc((size_t)e->norb * sizeof *e->w);
     int rc = 0;
     if (!e->H || !e->w)
         rc = bs_fail(err, BS_ENOMEM, "bandpair: out of memory for %d matrices", e->batch);
-    if (rc == 0) rc = eig_create_dist(e->norb, m->eig_dist, &e->ws, err);
+    if (rc == 0) rc = eig_create_dist(e->norb, dist, &e->ws, err);
     if (rc == 0) rc = hk_lines_create(e->hk, &e->lines, err);
     if (rc != 0) {
         bp_free(e);

@@ -58,7 +58,7 @@ static int run_symmetry(diag_ctx *c, res_diag *r, bs_err *err)
 
 static int run_gaps(diag_ctx *c, res_diag *r, bs_err *err)
 {
-    int rc = bp_create(c->m, c->hk, c->deadline, &c->bp, err);
+    int rc = bp_create_dist(c->m, c->hk, c->o ? c->o->dist : NULL, c->deadline, &c->bp, err);
     if (rc == 0) rc = bp_mesh_eval(c->bp, r->mesh, &c->mesh, err);
     if (rc != 0) return rc;
     gaps_opts go;
@@ -73,8 +73,11 @@ static int run_gaps(diag_ctx *c, res_diag *r, bs_err *err)
 /* Parity Z2 (with inversion) into r. */
 static int run_parity(diag_ctx *c, res_diag *r, bs_err *err)
 {
+    par_opts po;
+    par_opts_default(&po);
+    po.dist = c->o ? c->o->dist : NULL;
     par_result pr;
-    int rc = par_z2(c->m, c->sym, NULL, &pr, err);
+    int rc = par_z2(c->m, c->sym, &po, &pr, err);
     if (rc != 0) return rc;
     if (pr.status == PAR_NA) return 0;
     r->ntrim = pr.ntrim;
@@ -98,7 +101,7 @@ static int run_wcc(diag_ctx *c, res_diag *r, bs_err *err)
     wilson_ws *w = NULL;
     wilson_z2 wz;
     memset(&wz, 0, sizeof wz);
-    int rc = wilson_create(c->m, c->m->nocc, &w, err);
+    int rc = wilson_create_dist(c->m, c->m->nocc, c->o ? c->o->dist : NULL, &w, err);
     if (rc != 0) return rc;
     wilson_opts wo;
     wilson_opts_default(&wo);
@@ -135,7 +138,7 @@ static int run_wcc(diag_ctx *c, res_diag *r, bs_err *err)
 static int run_chern(diag_ctx *c, res_diag *r, bs_err *err)
 {
     chern_ws *cw = NULL;
-    int rc = chern_create(c->m, c->m->nocc, &cw, err);
+    int rc = chern_create_dist(c->m, c->m->nocc, c->o ? c->o->dist : NULL, &cw, err);
     if (rc != 0) return rc;
     chern_opts co;
     chern_opts_default(&co, 0);

@@ -308,7 +308,7 @@ static int classify(search *s, const nodes_opts *o, nodes_result *out, bs_err *e
     int isolated = 0;
     for (int i = 0; rc == 0 && i < s->nt; i++) isolated += !absorbed[i];
     if (rc == 0 && isolated && s->dim == 3 && !o->skip_chirality)
-        rc = chern_create(s->m, s->m->nocc, &cw, err);
+        rc = chern_create_dist(s->m, s->m->nocc, bp_solver(s->e), &cw, err);
     if (rc == 0) rc = collect(s, cw, absorbed, o->deadline, out, err);
     chern_free(cw);
     free(absorbed);

@@ -25,7 +25,7 @@ struct occ_ws {
     long long count;
 };
 
-int occ_create(const tb_model *m, int nband, occ_ws **out, bs_err *err)
+int occ_create(const tb_model *m, int nband, const eig_dist *dist, occ_ws **out, bs_err *err)
 {
     *out = NULL;
     if (nband < 1 || nband >= m->norb)
@@ -42,7 +42,7 @@ int occ_create(const tb_model *m, int nband, occ_ws **out, bs_err *err)
     if (rc != 0) goto done;
     rc = hk_lines_create(w->hk, &w->lines, err);
     if (rc != 0) goto done;
-    rc = eig_create_dist(m->norb, m->eig_dist, &w->eig, err);
+    rc = eig_create_dist(m->norb, dist, &w->eig, err);
     if (rc != 0) goto done;
     w->H = malloc((size_t)w->batch * (size_t)per * sizeof *w->H);
     w->Z = malloc((size_t)m->norb * (size_t)(nband + 1) * sizeof *w->Z);

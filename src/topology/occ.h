@@ -6,14 +6,16 @@
 
 #include <complex.h>
 
+#include "bandsieve/eig.h"
 #include "bandsieve/err.h"
 #include "bandsieve/model.h"
 
 typedef struct occ_ws occ_ws;
 
-/* Workspace for bands 0..nband-1 of m (borrowed; must outlive the workspace), 1 <= nband < norb.
- * The caller owns *out. BS_EINVAL on a bad nband, BS_ENOMEM. */
-int occ_create(const tb_model *m, int nband, occ_ws **out, bs_err *err);
+/* Workspace for bands 0..nband-1 of m (borrowed; must outlive the workspace), 1 <= nband < norb,
+ * diagonalised by dist (borrowed; NULL: LAPACK). The caller owns *out. BS_EINVAL on a bad nband,
+ * BS_ENOMEM. */
+int occ_create(const tb_model *m, int nband, const eig_dist *dist, occ_ws **out, bs_err *err);
 
 /* Frees w; accepts NULL. */
 void occ_free(occ_ws *w);

@@ -14,6 +14,7 @@
 
 void par_opts_default(par_opts *o)
 {
+    memset(o, 0, sizeof *o);
     o->gap_tol_ev = BS_GAP_CLOSED_EV;
     /* The eigenvalues of P on an invariant subspace are exactly +-1; a symmetry broken by a
      * relative amount eps mixes the subspace by an angle ~eps ||H||/gap, which moves them only at
@@ -45,14 +46,14 @@ static void ws_free(par_ws *ws)
     free(ws->w);
 }
 
-static int ws_create(const tb_model *m, par_ws *ws, bs_err *err)
+static int ws_create(const tb_model *m, const eig_dist *dist, par_ws *ws, bs_err *err)
 {
     memset(ws, 0, sizeof *ws);
     int n = m->norb, no = m->nocc;
     ws->n = n;
     ws->nocc = no;
     int rc = hk_create(m, 1, &ws->hk, err);
-    if (rc == 0) rc = eig_create_dist(n, m->eig_dist, &ws->eig_n, err);
+    if (rc == 0) rc = eig_create_dist(n, dist, &ws->eig_n, err);
     if (rc == 0) rc = eig_create(no, &ws->eig_occ, err);
     if (rc != 0) return rc;
     ws->H = malloc((size_t)n * n * sizeof *ws->H);
@@ -175,6 +176,7 @@ int par_z2(const tb_model *m, const sym_info *s, const par_opts *opts, par_resul
     par_opts_default(&o);
     if (opts && opts->gap_tol_ev > 0) o.gap_tol_ev = opts->gap_tol_ev;
     if (opts && opts->parity_tol > 0) o.parity_tol = opts->parity_tol;
+    if (opts) o.dist = opts->dist;
     result_init(m, out);
     if (s->norb != m->norb)
         return bs_fail(err, BS_EINVAL, "parity: symmetry record for %d states, model has %d", s->norb, m->norb);
@@ -190,7 +192,7 @@ int par_z2(const tb_model *m, const sym_info *s, const par_opts *opts, par_resul
                  "Kramers partners need not share their parity");
     }
     par_ws ws;
-    int rc = ws_create(m, &ws, err);
+    int rc = ws_create(m, o.dist, &ws, err);
     for (int t = 0; t < out->ntrim && rc == 0; t++) rc = one_trim(&ws, s, &o, kramers, t, out, err);
     ws_free(&ws);
     if (rc != 0) return rc;

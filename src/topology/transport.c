@@ -151,7 +151,7 @@ static int ws_create(const tb_model *m, const tr_opts *o, tr_ws **out, bs_err *e
     int rc = set_geometry(w, err);
     if (rc != 0) goto done;
     rc = hk_create(m, TR_KBATCH, &w->hk, err);
-    if (rc == 0) rc = eig_create_dist(w->n, m->eig_dist, &w->eig, err);
+    if (rc == 0) rc = eig_create_dist(w->n, o->dist, &w->eig, err);
     if (rc != 0) goto done;
     size_t n = (size_t)w->n, n2 = n * n;
     w->spin = malloc(n * sizeof *w->spin);

@@ -1,4 +1,4 @@
-/* ScaLAPACK wrapper against LAPACK, run under mpirun at 2 and 4 ranks (tests/scripts/surface_pzheev.cmake).
+/* ScaLAPACK wrapper against LAPACK, run under mpirun at 2 and 4 ranks (tests/scripts/pipeline_pzheev.cmake).
  * Plain C (cmocka does not know about ranks): each check prints and the exit status is the number
  * of failed checks on this rank, reduced over the communicator. */
 #include <math.h>

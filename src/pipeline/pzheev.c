@@ -158,8 +158,6 @@ void pz_free(pz_ctx *c)
     free(c);
 }
 
-int pz_n(const pz_ctx *c) { return c->n; }
-int pz_size(const pz_ctx *c) { return c->size; }
 void pz_grid(const pz_ctx *c, int *nprow, int *npcol) { *nprow = c->nprow; *npcol = c->npcol; }
 
 /* Global index of local index l in a dimension with nb blocks cycled over np processes. */
