@@ -16,6 +16,7 @@ PACKAGES=(
   python3-numpy python3-scipy
   chromium
   procps
+  clang-format
 )
 
 missing=()

@@ -1,10 +1,13 @@
 #!/usr/bin/env bash
-# The whole test suite from a fresh clone: installs what is missing, builds, runs every test through
-# CTest (unit tests, numpy/scipy cross-checks, MPI runs), then rebuilds the unit tests with
-# AddressSanitizer + UndefinedBehaviorSanitizer and runs them again.
+# The whole test suite from a fresh clone: checks the layering (workflows/check-layers.sh), installs
+# what is missing, builds, runs every test through CTest (unit tests, numpy/scipy cross-checks, MPI
+# runs), then rebuilds the unit tests with AddressSanitizer + UndefinedBehaviorSanitizer and runs
+# them again.
 set -euo pipefail
 here="$(cd "$(dirname "$0")/.." && pwd)"
 export OMPI_ALLOW_RUN_AS_ROOT=1 OMPI_ALLOW_RUN_AS_ROOT_CONFIRM=1
+# Layering first: a file that includes a higher layer fails before anything is built.
+bash "$here/workflows/check-layers.sh"
 bash "$here/workflows/build.sh"
 ctest --test-dir "$here/build" --output-on-failure -j2 --timeout 900
 BS_BUILD_DIR="$here/build-sanitize" bash "$here/workflows/build.sh" -DBS_SANITIZE=ON
