@@ -13,6 +13,7 @@
 #include <stdlib.h>
 
 #include "bandsieve/bandpair.h"
+#include "bandsieve/clock.h"
 #include "bandsieve/eig.h"
 #include "bandsieve/hk.h"
 #include "bandsieve/lattice_models.h"
@@ -25,13 +26,13 @@ static int one(const tb_model *m, const tr_opts *o, const char *label, double ex
     tr_result r;
     bs_err err;
     bs_err_clear(&err);
-    double t0 = bp_now();
+    double t0 = bs_now();
     if (tr_compute(m, o, &r, &err) != 0) {
         fprintf(stderr, "%s\n", err.msg);
         return 1;
     }
     printf("%-28s sigma_xy %+.8f  |dev| %.2e  est.err %.2e  k-points %9lld  %.3f s\n", label,
-           r.ahc[0][0], fabs(r.ahc[0][0] - exact), r.ahc_err[0][0], r.nk, bp_now() - t0);
+           r.ahc[0][0], fabs(r.ahc[0][0] - exact), r.ahc_err[0][0], r.nk, bs_now() - t0);
     return 0;
 }
 
@@ -39,7 +40,7 @@ static int one(const tb_model *m, const tr_opts *o, const char *label, double ex
  * (E_m - E_n)^2 on the N x N midpoint mesh; v from the reduced derivatives as in transport.c. */
 static double midpoint(const tb_model *m, int N, double *seconds)
 {
-    double t0 = bp_now();
+    double t0 = bs_now();
     int n = m->norb, nocc = m->nocc;
     hk_engine *hk = NULL;
     eig_ws *ws = NULL;
@@ -84,7 +85,7 @@ static double midpoint(const tb_model *m, int N, double *seconds)
     free(E);
     hk_free(hk);
     eig_free(ws);
-    *seconds = bp_now() - t0;
+    *seconds = bs_now() - t0;
     return 2 * M_PI / area * total / ((double)N * N);
 }
 

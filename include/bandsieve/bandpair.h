@@ -4,6 +4,7 @@
 #ifndef BANDSIEVE_BANDPAIR_H
 #define BANDSIEVE_BANDPAIR_H
 
+#include "bandsieve/clock.h"
 #include "bandsieve/eig.h"
 #include "bandsieve/err.h"
 #include "bandsieve/hk.h"
@@ -11,11 +12,9 @@
 
 typedef struct bp_eval bp_eval;
 
-/* Seconds of CLOCK_MONOTONIC; deadlines throughout this layer are absolute values of this clock. */
-double bp_now(void);
-
 /* Evaluator of bands nocc-1 and nocc (0-based) of m (borrowed) through hk (borrowed; both must
- * outlive the evaluator). deadline: absolute bp_now() seconds after which bp_bands fails with
+ * outlive the evaluator). deadline: absolute bs_now() seconds (clock.h; deadlines throughout this
+ * layer are absolute values of that clock) after which bp_bands fails with
  * BS_ETIMEOUT (0: none). The caller owns *out. BS_EINVAL when hk's size is not m->norb or
  * m->nocc is outside 1..norb-1. */
 int bp_create(const tb_model *m, hk_engine *hk, double deadline, bp_eval **out, bs_err *err);

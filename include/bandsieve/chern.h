@@ -23,7 +23,7 @@ typedef struct chern_opts {
     double fmax;          /* largest |F| per plaquette (rad) accepted; refine above [1.0] */
     double gap_tol_ev;    /* direct gap (band nband-1 to nband) below this counts as closed
                              [BS_GAP_CLOSED_EV] */
-    double deadline;      /* absolute bp_now() seconds; BS_ETIMEOUT past it (0: none) [0] */
+    double deadline;      /* absolute bs_now() seconds; BS_ETIMEOUT past it (0: none) [0] */
 } chern_opts;
 
 /* Defaults for a plane (surface = 0) or for chern_surface_flux (surface = 1). */

@@ -26,7 +26,8 @@ typedef struct bs_err {
 void bs_err_clear(bs_err *e);
 
 /* Fills e with code and a printf-style message unless e already holds an error (the first,
- * deepest message is kept); returns code. e may be NULL. */
+ * deepest message is kept). Returns the code e holds afterwards: code, or the earlier error's
+ * code when there was one. e may be NULL (then code is returned). */
 int bs_fail(bs_err *e, int code, const char *fmt, ...) __attribute__((format(printf, 3, 4)));
 
 /* Prepends context ("material X: ") to the message in e; returns e->code. */

@@ -13,7 +13,7 @@ typedef struct gaps_opts {
     int mesh;            /* coarse mesh points per reduced direction (0: 16 in 3D, 48 in 2D) */
     int nrefine;         /* basins refined per quantity, lowest/highest first (0: 6) */
     double tol_k;        /* refinement stops at this step, reduced units (0: 1e-6) */
-    double deadline;     /* absolute bp_now() seconds (CLOCK_MONOTONIC), 0: none */
+    double deadline;     /* absolute bs_now() seconds (CLOCK_MONOTONIC), 0: none */
     const bp_mesh *grid; /* optional mesh already evaluated for this model (borrowed; overrides mesh) */
 } gaps_opts;
 

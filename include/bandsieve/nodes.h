@@ -31,7 +31,7 @@ typedef struct nodes_opts {
     double merge_dist;    /* touchings closer than this (modulo 1) are one (0: 1e-4) */
     int min_line_points;  /* a traced curve of at least this many closed-gap points is a line (0: 8) */
     int skip_chirality;   /* do not compute chiralities (3D) */
-    double deadline;      /* absolute bp_now() seconds (CLOCK_MONOTONIC), 0: none */
+    double deadline;      /* absolute bs_now() seconds (CLOCK_MONOTONIC), 0: none */
 } nodes_opts;
 
 typedef struct nodes_result {

@@ -71,7 +71,7 @@ typedef struct tr_opts {
     double scan_lo_ev, scan_hi_ev; /* offsets from the reference, eV [0, 0] */
     int gauge;             /* TR_GAUGE_* [TR_GAUGE_POSITION] */
     int want_shc;          /* compute the SHC of spinful models [1] */
-    double deadline;       /* absolute bp_now() seconds; BS_ETIMEOUT past it (0: none) [0] */
+    double deadline;       /* absolute bs_now() seconds; BS_ETIMEOUT past it (0: none) [0] */
     const eig_dist *dist;  /* distributed eigensolver for large matrices (a rank group's; borrowed)
                               [NULL: LAPACK] */
 } tr_opts;

@@ -29,7 +29,7 @@ typedef struct wilson_opts {
     double kramers_tol;   /* centres at k_b = 0, 1/2 must pair up within this [1e-3] */
     double gap_tol_ev;    /* direct gap (band nband-1 to nband) below this is a closing
                              [BS_GAP_CLOSED_EV] */
-    double deadline;      /* absolute bp_now() seconds; BS_ETIMEOUT past it (0: none) [0] */
+    double deadline;      /* absolute bs_now() seconds; BS_ETIMEOUT past it (0: none) [0] */
 } wilson_opts;
 
 void wilson_opts_default(wilson_opts *o);

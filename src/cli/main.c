@@ -5,9 +5,6 @@
 #include "bandsieve/config.h"
 #include "commands.h"
 
-/* Subcommands still being written are weak references, so that the binary links while the
- * layers land one by one; a missing one reports itself instead of failing the whole build. */
-
 typedef struct command {
     const char *name;
     int (*run)(int argc, char **argv);

@@ -17,6 +17,7 @@
 #include <cjson/cJSON.h>
 
 #include "bandsieve/catalogue.h"
+#include "bandsieve/clock.h"
 #include "bandsieve/matset.h"
 #include "bandsieve/result_json.h"
 #include "bandsieve/pzheev.h"
@@ -71,13 +72,6 @@ typedef struct coord {
 
 /* Sessions in which a material may take its worker down before it is given up as failed. */
 enum { PL_MAX_STRIKES = 2 };
-
-static double now(void)
-{
-    struct timespec t;
-    clock_gettime(CLOCK_MONOTONIC, &t);
-    return t.tv_sec + 1e-9 * t.tv_nsec;
-}
 
 static int mpi_check(int code, const char *what, bs_err *err)
 {
@@ -308,7 +302,7 @@ static int coord_next(coord *c, int from, wire_work *w)
 {
     const pl_opts *o = c->o;
     if (o->stop_flag && *o->stop_flag) { c->counts.interrupted = 1; return 0; }
-    double left = o->max_seconds > 0 ? o->max_seconds - (now() - c->t0) : 0;
+    double left = o->max_seconds > 0 ? o->max_seconds - (bs_now() - c->t0) : 0;
     if (o->max_seconds > 0 && left <= 0.5) { c->counts.interrupted = 1; return 0; }
     int from_leader = c->leader >= 0 && from == c->leader;
     int i = pick_item(c, from_leader);
@@ -331,9 +325,9 @@ static int coord_next(coord *c, int from, wire_work *w)
 
 static void coord_tick(coord *c, int final)
 {
-    c->counts.elapsed = now() - c->t0;
+    c->counts.elapsed = bs_now() - c->t0;
     if (c->o->progress) c->o->progress(c->o->progress_ctx, &c->counts, final);
-    c->last_tick = now();
+    c->last_tick = bs_now();
 }
 
 /* One process does everything (P = 1). */
@@ -401,7 +395,7 @@ static int run_coordinator(coord *c, int size, bs_err *err)
         if (!flag) {
             nanosleep(&nap, NULL);
             if (rc == 0) rc = cat_flush_if_due(c->cat, err);
-            if (now() - c->last_tick > 1.0) coord_tick(c, 0);
+            if (bs_now() - c->last_tick > 1.0) coord_tick(c, 0);
             continue;
         }
         pl_outcome out;
@@ -610,7 +604,7 @@ int pl_run(MPI_Comm user_comm, const pl_opts *o, pl_counts *counts, int *is_root
     c.lock_fd = -1;
     c.leader = leader;
     c.nworkers = size - 1 - (gsize ? gsize - 1 : 0);
-    c.t0 = now();
+    c.t0 = bs_now();
     c.task.mesh = o->mesh;
     c.task.mesh_factor = o->mesh_factor;
     c.task.symmetry_tol = o->symmetry_tol;

@@ -6,11 +6,10 @@
 #include <stdlib.h>
 #include <string.h>
 
-#include "bandsieve/bandpair.h"
+#include "bandsieve/clock.h"
 #include "bandsieve/diagnosis.h"
 #include "bandsieve/pipeline.h"
 #include "bandsieve/result_json.h"
-#include "bandsieve/surfsummary.h"
 #include "bandsieve/surfsummary.h"
 #include "bandsieve/transport.h"
 
@@ -66,7 +65,7 @@ int pl_work_list(const ms_set *set, const cat_ids *ids, const cat_ids *done, int
 
 int pl_diagnose(const tb_model *m, const pl_diag_opts *o, res_diag *r, bs_err *err)
 {
-    double t0 = bp_now();
+    double t0 = bs_now();
     int rc = diag_run(m, &o->diag, r, err);
     if (rc == 0 && o->transport) {
         tr_opts to = o->tr;
@@ -89,7 +88,7 @@ void pl_compute(const ms_set *set, int index, const pl_task *task, double max_se
                 pl_outcome *out)
 {
     memset(out, 0, sizeof *out);
-    double t0 = bp_now();
+    double t0 = bs_now();
     const ms_entry *e = ms_entry_at(set, index);
     snprintf(out->id, sizeof out->id, "%s", e->id);
     out->rank = rank;
@@ -127,7 +126,7 @@ void pl_compute(const ms_set *set, int index, const pl_task *task, double max_se
     out->code = rc;
     if (rc != 0) snprintf(out->message, sizeof out->message, "%s", err.msg);
     tb_model_free(m);
-    out->seconds = bp_now() - t0;
+    out->seconds = bs_now() - t0;
 }
 
 void pl_outcome_clear(pl_outcome *out)

@@ -344,11 +344,13 @@ static int r_nodes(const cJSON *o, res_diag *r, bs_err *err)
     r->nodes = calloc((size_t)cap, sizeof *r->nodes);
     if (!r->nodes) return bs_fail(err, BS_ENOMEM, "out of memory for %d nodes", cap);
     int zero_weyl = 0;
+    bs_err inner;
+    bs_err_clear(&inner);
     for (const cJSON *x = w ? w->child : NULL; x; x = x->next) {
         res_node n = {{0, 0, 0}, 0, 0, 0};
         if (!cJSON_IsObject(x) || json_vec(cJSON_GetObjectItemCaseSensitive(x, "k"), 3, n.k) != 0 ||
-            read_int(x, "chirality", &n.chirality, err) || read_num(x, "energy_eV", &n.energy_ev, err) ||
-            read_num(x, "gap_eV", &n.gap_ev, err))
+            read_int(x, "chirality", &n.chirality, &inner) || read_num(x, "energy_eV", &n.energy_ev, &inner) ||
+            read_num(x, "gap_eV", &n.gap_ev, &inner))
             return key_fail(err, "weyl_nodes", expected);
         zero_weyl |= n.chirality == 0;
         add_node(r, &n, cap);

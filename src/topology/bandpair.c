@@ -8,6 +8,7 @@
 #include <string.h>
 #include <time.h>
 
+#include "bandsieve/clock.h"
 #include "bandsieve/eig.h"
 
 /* Below this size the full zheevd spectrum is cheaper than zheevr for two eigenvalues. Measured
@@ -27,13 +28,6 @@ struct bp_eval {
     double *w;          /* norb */
     long long count;
 };
-
-double bp_now(void)
-{
-    struct timespec ts;
-    clock_gettime(CLOCK_MONOTONIC, &ts);
-    return (double)ts.tv_sec + 1e-9 * (double)ts.tv_nsec;
-}
 
 int bp_create(const tb_model *m, hk_engine *hk, double deadline, bp_eval **out, bs_err *err)
 {
@@ -94,7 +88,7 @@ int bp_bands(bp_eval *e, int nk, const double *k, double *lo, double *hi, bs_err
 {
     size_t nn = (size_t)e->norb * e->norb;
     for (int j0 = 0; j0 < nk; j0 += e->batch) {
-        if (e->deadline > 0 && bp_now() > e->deadline)
+        if (e->deadline > 0 && bs_now() > e->deadline)
             return bs_fail(err, BS_ETIMEOUT, "band search: time budget exceeded after %lld k-points",
                            e->count);
         int nb = nk - j0 < e->batch ? nk - j0 : e->batch;

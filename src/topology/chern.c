@@ -18,6 +18,7 @@
 #include <string.h>
 
 #include "bandsieve/bandpair.h"
+#include "bandsieve/clock.h"
 #include "bandsieve/config.h"
 #include "bandsieve/result.h"
 #include "occ.h"
@@ -188,7 +189,7 @@ static int sheet(chern_ws *w, const double o[3], const double da[3], const doubl
     if (rc != 0) return rc;
     int nrow = periodic ? np : np - 1, ncol = periodic ? np : np - 1;
     for (int t = 0; t < nrow; t++) {
-        if (deadline > 0 && bp_now() > deadline)
+        if (deadline > 0 && bs_now() > deadline)
             return bs_fail(err, BS_ETIMEOUT, "Chern mesh %d: time budget exceeded at row %d", np, t);
         if (t + 1 < np) {
             rc = eval_row(w, o, da, db, t + 1, np, periodic, cur, la_cur, acc, err);

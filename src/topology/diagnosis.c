@@ -11,6 +11,7 @@
 
 #include "bandsieve/bandpair.h"
 #include "bandsieve/chern.h"
+#include "bandsieve/clock.h"
 #include "bandsieve/config.h"
 #include "bandsieve/gaps.h"
 #include "bandsieve/hk.h"
@@ -364,7 +365,7 @@ static void append_small_gap_note(res_diag *r)
 
 int diag_run(const tb_model *m, const diag_opts *opts, res_diag *r, bs_err *err)
 {
-    double t0 = bp_now();
+    double t0 = bs_now();
     diag_ctx c;
     memset(&c, 0, sizeof c);
     nodes_result_init(&c.nodes);
@@ -412,7 +413,7 @@ int diag_run(const tb_model *m, const diag_opts *opts, res_diag *r, bs_err *err)
         append_small_gap_note(r);
     }
     if (c.bp) r->nk_evaluated += bp_count(c.bp);
-    r->seconds = bp_now() - t0;
+    r->seconds = bs_now() - t0;
     nodes_result_clear(&c.nodes);
     bp_mesh_free(c.mesh);
     bp_free(c.bp);

@@ -5,6 +5,7 @@
 #include <stdlib.h>
 #include <string.h>
 
+#include "bandsieve/clock.h"
 #include "bandsieve/config.h"
 #include "bandsieve/nodes.h"
 
@@ -45,7 +46,7 @@ int gaps_find_eval(bp_eval *e, const gaps_opts *o, gaps_result *out, bs_err *err
         o = &d;
     }
     memset(out, 0, sizeof *out);
-    double t0 = bp_now();
+    double t0 = bs_now();
     long long c0 = bp_count(e);
     int dim = bp_dim(e), n = o->mesh > 0 ? o->mesh : (dim == 3 ? 16 : 48);
     int nbest = o->nrefine > 0 ? o->nrefine : 6;
@@ -106,7 +107,7 @@ int gaps_find_eval(bp_eval *e, const gaps_opts *o, gaps_result *out, bs_err *err
     out->closed = out->gap_direct_ev < BS_GAP_CLOSED_EV;
     out->mesh = g->n;
     out->nk_evaluated = bp_count(e) - c0;
-    out->seconds = bp_now() - t0;
+    out->seconds = bs_now() - t0;
     bp_mesh_free(own);
     return rc;
 }

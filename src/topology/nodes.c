@@ -8,6 +8,7 @@
 #include <string.h>
 
 #include "bandsieve/chern.h"
+#include "bandsieve/clock.h"
 #include "bandsieve/config.h"
 
 typedef struct touch {
@@ -323,7 +324,7 @@ int nodes_find_eval(const tb_model *m, bp_eval *e, const nodes_opts *o, nodes_re
         o = &defaults;
     }
     nodes_result_clear(out);
-    double t0 = bp_now();
+    double t0 = bs_now();
     long long c0 = bp_count(e);
     search s = {.m = m, .e = e, .dim = bp_dim(e)};
     s.cap = o->max_starts > 0 ? o->max_starts : 96;
@@ -369,7 +370,7 @@ int nodes_find_eval(const tb_model *m, bp_eval *e, const nodes_opts *o, nodes_re
     out->min_gap_ev = s.min_gap;
     out->nstarts = s.nstarts;
     out->nk_evaluated += bp_count(e) - c0;
-    out->seconds = bp_now() - t0;
+    out->seconds = bs_now() - t0;
     free(f);
     free(s.t);
     free(s.line);

@@ -73,8 +73,6 @@ void occ_free(occ_ws *w)
     free(w);
 }
 
-int occ_norb(const occ_ws *w) { return w->norb; }
-int occ_nband(const occ_ws *w) { return w->nband; }
 long long occ_count(const occ_ws *w) { return w->count; }
 int occ_batch(const occ_ws *w) { return w->batch; }
 

@@ -20,9 +20,6 @@ int occ_create(const tb_model *m, int nband, const eig_dist *dist, occ_ws **out,
 /* Frees w; accepts NULL. */
 void occ_free(occ_ws *w);
 
-int occ_norb(const occ_ws *w);
-int occ_nband(const occ_ws *w);
-
 /* k-points per internal batch: callers streaming over many points size their buffers to it. */
 int occ_batch(const occ_ws *w);
 

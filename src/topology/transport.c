@@ -19,6 +19,7 @@
 #include <string.h>
 
 #include "bandsieve/bandpair.h"
+#include "bandsieve/clock.h"
 #include "bandsieve/eig.h"
 #include "bandsieve/hk.h"
 
@@ -295,7 +296,7 @@ static int eval_points(tr_ws *w, int np, const double *k, double *val, bs_err *e
     int n = w->n;
     size_t n2 = (size_t)n * n;
     for (int start = 0; start < np; start += TR_KBATCH) {
-        if (w->deadline > 0 && bp_now() > w->deadline)
+        if (w->deadline > 0 && bs_now() > w->deadline)
             return bs_fail(err, BS_ETIMEOUT, "transport: time budget exceeded after %lld k-points",
                            w->nk);
         int nb = np - start < TR_KBATCH ? np - start : TR_KBATCH;

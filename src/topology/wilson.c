@@ -32,6 +32,7 @@
 #include <string.h>
 
 #include "bandsieve/bandpair.h"
+#include "bandsieve/clock.h"
 #include "bandsieve/config.h"
 #include "occ.h"
 
@@ -373,7 +374,7 @@ static int add_string(plane_run *r, int at, double kb, bs_err *err)
     wilson_ws *w = r->w;
     const wilson_opts *o = r->o;
     int nb = w->nband;
-    if (o->deadline > 0 && bp_now() > o->deadline)
+    if (o->deadline > 0 && bs_now() > o->deadline)
         return bs_fail(err, BS_ETIMEOUT,
                        "Wilson loops of plane %d: time budget exceeded after %d strings",
                        r->out->plane, r->n);
@@ -565,7 +566,7 @@ done:
 int wilson_z2_run(wilson_ws *w, const wilson_opts *o, wilson_z2 *out, bs_err *err)
 {
     memset(out, 0, sizeof *out);
-    double t0 = bp_now();
+    double t0 = bs_now();
     int dim = w->m->dim;
     out->nplane = dim == 2 ? 1 : 6;
     int rc = 0;
@@ -573,7 +574,7 @@ int wilson_z2_run(wilson_ws *w, const wilson_opts *o, wilson_z2 *out, bs_err *er
         rc = wilson_plane_z2(w, dim == 2 ? 4 : i, o, &out->planes[i], err);
         out->nk += out->planes[i].nk;
     }
-    out->seconds = bp_now() - t0;
+    out->seconds = bs_now() - t0;
     if (rc != 0) return rc;
     out->status = RES_DONE;
     for (int i = 0; i < out->nplane; i++) {

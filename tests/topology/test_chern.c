@@ -19,6 +19,7 @@
 
 #include "bandsieve/bandpair.h"
 #include "bandsieve/chern.h"
+#include "bandsieve/clock.h"
 #include "bandsieve/diagnosis.h"
 #include "bandsieve/eig.h"
 #include "bandsieve/hk.h"
@@ -33,12 +34,12 @@ static chern_value plane_value(const tb_model *m, int p, const chern_opts *o)
     bs_err_clear(&err);
     assert_int_equal(chern_create(m, m->nocc, &w, &err), 0);
     chern_value v;
-    double t0 = bp_now();
+    double t0 = bs_now();
     int rc = chern_plane(w, p, o, &v, &err);
     if (rc != 0) fprintf(stderr, "%s: %s\n", m->id, err.msg);
     assert_int_equal(rc, 0);
     printf("  %-34s plane %d status %d C %2d flux %+.10f max|F| %.3f mesh %d %5lld k %.4f s %s\n",
-           m->id, p, v.status, v.chern, v.flux, v.max_f, v.mesh, v.nk, bp_now() - t0, v.reason);
+           m->id, p, v.status, v.chern, v.flux, v.max_f, v.mesh, v.nk, bs_now() - t0, v.reason);
     chern_free(w);
     return v;
 }
@@ -50,12 +51,12 @@ static chern_value cube_value(const tb_model *m, const double k0[3], double h)
     bs_err_clear(&err);
     assert_int_equal(chern_create(m, m->nocc, &w, &err), 0);
     chern_value v;
-    double t0 = bp_now();
+    double t0 = bs_now();
     int rc = chern_surface_flux(w, k0, h, NULL, &v, &err);
     if (rc != 0) fprintf(stderr, "%s: %s\n", m->id, err.msg);
     assert_int_equal(rc, 0);
     printf("  %-34s cube (%.3f,%.3f,%.3f) h %.3f status %d flux %+.10f mesh %d %4lld k %.4f s %s\n",
-           m->id, k0[0], k0[1], k0[2], h, v.status, v.flux, v.mesh, v.nk, bp_now() - t0, v.reason);
+           m->id, k0[0], k0[1], k0[2], h, v.status, v.flux, v.mesh, v.nk, bs_now() - t0, v.reason);
     chern_free(w);
     return v;
 }
@@ -308,7 +309,7 @@ static void test_errors(void **state)
     assert_int_equal(chern_plane(w, 4, &o, &v, &err), BS_EINVAL);
     bs_err_clear(&err);
     chern_opts_default(&o, 0);
-    o.deadline = bp_now() - 1.0;
+    o.deadline = bs_now() - 1.0;
     assert_int_equal(chern_plane(w, 4, &o, &v, &err), BS_ETIMEOUT);
     chern_free(w);
     bs_err_clear(&err);

@@ -13,6 +13,7 @@
 #include <string.h>
 
 #include "bandsieve/bandpair.h"
+#include "bandsieve/clock.h"
 #include "bandsieve/config.h"
 #include "bandsieve/gaps.h"
 #include "bandsieve/hk.h"
@@ -366,7 +367,7 @@ static void test_errors(void **state)
     assert_int_equal(hk_create(m, 64, &hk, &err), 0);
     nodes_opts o;
     nodes_opts_init(&o);
-    o.deadline = bp_now() - 1.0;
+    o.deadline = bs_now() - 1.0;
     nodes_result r;
     nodes_result_init(&r);
     assert_int_equal(nodes_find(m, hk, &o, &r, &err), BS_ETIMEOUT);

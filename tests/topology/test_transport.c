@@ -20,6 +20,7 @@
 
 #include "bandsieve/bandpair.h"
 #include "bandsieve/chern.h"
+#include "bandsieve/clock.h"
 #include "bandsieve/diagnosis.h"
 #include "bandsieve/eig.h"
 #include "bandsieve/hk.h"
@@ -31,7 +32,7 @@ static tr_result run(const tb_model *m, const tr_opts *o)
     tr_result r;
     bs_err err;
     bs_err_clear(&err);
-    double t0 = bp_now();
+    double t0 = bs_now();
     int rc = tr_compute(m, o, &r, &err);
     if (rc != 0) fprintf(stderr, "%s: %s\n", m->id, err.msg);
     assert_int_equal(rc, 0);
@@ -40,7 +41,7 @@ static tr_result run(const tb_model *m, const tr_opts *o)
         printf(" %+.6e(%.1e)", r.ahc[0][a], r.ahc_err[0][a]);
     if (r.has_shc) printf(" shc %+.6f(%.1e)", r.shc[0], r.shc_err[0]);
     printf(" %s nk %lld cells %lld depth %d conv %d %.2f s\n", r.ahc_units, r.nk, r.ncells, r.depth,
-           r.converged, bp_now() - t0);
+           r.converged, bs_now() - t0);
     return r;
 }
 
@@ -470,7 +471,7 @@ static void test_bad_input(void **state)
     assert_int_equal(tr_compute(m, &o, &r, &err), BS_EINVAL);
     assert_true(strstr(err.msg, "xy plane") != NULL);
     m->lattice[0][2] = 0;
-    o.deadline = bp_now() - 1;
+    o.deadline = bs_now() - 1;
     bs_err_clear(&err);
     assert_int_equal(tr_compute(m, &o, &r, &err), BS_ETIMEOUT);
     tb_model_free(m);

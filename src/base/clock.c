@@ -1,0 +1,11 @@
+/* The one clock of the program (clock.h). */
+#include "bandsieve/clock.h"
+
+#include <time.h>
+
+double bs_now(void)
+{
+    struct timespec ts;
+    clock_gettime(CLOCK_MONOTONIC, &ts);
+    return (double)ts.tv_sec + 1e-9 * (double)ts.tv_nsec;
+}
