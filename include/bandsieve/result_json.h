@@ -33,4 +33,20 @@ int res_from_json(const cJSON *o, res_diag *r, bs_err *err);
  * allowed. BS_EPARSE with the byte offset for malformed text or bytes after the object. */
 int res_from_text(const char *text, size_t len, res_diag *r, bs_err *err);
 
+/* One value of a results column. */
+typedef enum res_value_type { RES_VALUE_INT, RES_VALUE_REAL, RES_VALUE_TEXT } res_value_type;
+typedef struct res_value {
+    res_value_type type;
+    long long i;
+    double x;
+    const char *text;   /* borrowed from r or a static name table */
+} res_value;
+
+/* Calls fn(ctx, column, value) for every scalar key of the JSON form that has a catalogue column
+ * (its name in the key table), in table order; stops at the first nonzero return and returns it.
+ * The structured keys (index lists, Chern numbers, nodes, transport) are the catalogue's to bind.
+ * A new scalar field with a column is then one struct member, one key-table row and one line of
+ * db/schema.sql. */
+int res_for_each_column(const res_diag *r, int (*fn)(void *ctx, const char *column, const res_value *v), void *ctx);
+
 #endif

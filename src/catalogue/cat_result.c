@@ -82,36 +82,42 @@ static void bind_transport(const put_ctx *pc)
     }
 }
 
-/* The diagnosis columns of one result. */
-static void bind_diag(const put_ctx *pc)
+/* One scalar column named in the result's key table: bound to the parameter ":column". A name
+ * the statement does not have is our own bug (schema and key table disagree). */
+static int bind_column(void *ctx, const char *column, const res_value *v)
+{
+    const put_ctx *pc = ctx;
+    char name[64];
+    snprintf(name, sizeof name, ":%s", column);
+    int i = param(pc, name);
+    if (i == 0) return bs_fail(pc->err, BS_EINVAL, "results has no column \"%s\" (schema and key table disagree)", column);
+    if (v->type == RES_VALUE_INT) sqlite3_bind_int64(pc->st, i, v->i);
+    else if (v->type == RES_VALUE_REAL) sqlite3_bind_double(pc->st, i, v->x);
+    else sqlite3_bind_text(pc->st, i, v->text, -1, SQLITE_TRANSIENT);
+    return 0;
+}
+
+/* The diagnosis columns of one result: the scalar ones through the key table, then those the
+ * catalogue writes in a form of its own. */
+static int bind_diag(const put_ctx *pc)
 {
     const res_diag *r = pc->diag;
-    bind_text(pc, ":class", res_class_name(r->cls));
-    bind_num(pc, ":confidence", r->confidence);
-    bind_text(pc, ":reason", r->reason);
-    bind_num(pc, ":gap_direct_ev", r->gap_direct_ev);
-    bind_num(pc, ":gap_indirect_ev", r->gap_indirect_ev);
+    put_ctx ctx = *pc;
+    int rc = res_for_each_column(r, bind_column, &ctx);
+    if (rc != 0) return rc;
     /* A JSON list text, so that json_extract(k_gap_direct, '$[0]') reads one component. */
     char k[96];
     snprintf(k, sizeof k, "[%.10g,%.10g,%.10g]", r->k_gap_direct[0], r->k_gap_direct[1], r->k_gap_direct[2]);
     bind_text(pc, ":k_gap_direct", k);
-    bind_int(pc, ":time_reversal", r->time_reversal != 0);
-    bind_int(pc, ":inversion", r->inversion != 0);
     bind_z2(pc, ":z2", r->z2_status, r->z2);
     bind_z2(pc, ":z2_parity", r->z2_parity_status, r->z2_parity);
     bind_z2(pc, ":z2_wcc", r->z2_wcc_status, r->z2_wcc);
-    bind_text(pc, ":z2_status", res_status_name(r->z2_status));
-    bind_text(pc, ":z2_note", r->z2_note);
     bind_chern(pc);
-    bind_text(pc, ":chern_status", res_status_name(r->chern_status));
     int nweyl = 0;
     for (int i = 0; i < r->nnodes; i++) nweyl += res_node_is_weyl(r, i);
     bind_int(pc, ":n_weyl", nweyl);
-    bind_int(pc, ":net_chirality", r->net_chirality);
-    bind_int(pc, ":nodal_line", r->nodal_line != 0);
-    bind_int(pc, ":mesh", r->mesh);
-    bind_num(pc, ":diag_seconds", r->seconds);
     bind_transport(pc);
+    return 0;
 }
 
 /* Binds every results column from the arguments and the diagnosis; the diagnosis column is the
@@ -129,7 +135,8 @@ static int bind_row(const put_ctx *pc, int64_t run_id, cat_status status, const 
     if (seconds >= 0) bind_num(pc, ":seconds", seconds);
     else if (pc->diag) bind_num(pc, ":seconds", pc->diag->seconds);
     if (!pc->diag) return 0;
-    bind_diag(pc);
+    int rc = bind_diag(pc);
+    if (rc != 0) return rc;
     *diag_text = res_to_text(pc->diag, 0);
     if (!*diag_text) return bs_fail(pc->err, BS_ENOMEM, "material %s: out of memory printing the diagnosis", pc->mid);
     sqlite3_bind_text(st, param(pc, ":diagnosis"), *diag_text, -1, SQLITE_STATIC);

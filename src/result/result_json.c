@@ -29,6 +29,7 @@ typedef struct key_row {
     const char *name;
     key_kind kind;
     size_t off, size; /* of the member (0 for KEY_SPECIAL) */
+    const char *column; /* catalogue column holding the same value (results table), or NULL */
     /* KEY_SPECIAL: adds the key(s) of this row; 0, or -1 when out of memory. */
     int (*write)(cJSON *o, const res_diag *r, int with_flows);
     /* KEY_SPECIAL: reads the key(s) of this row from o into r; 0 or BS_EPARSE/BS_ENOMEM. */
@@ -491,44 +492,45 @@ static int r_surface(const cJSON *o, res_diag *r, bs_err *err)
     return 0;
 }
 
-/* Every key of the diagnosis object, in the order written. */
+/* Every key of the diagnosis object, in the order written, with the results column that holds the
+ * same value where there is one (the structured keys' columns are bound by the catalogue). */
 static const key_row KEYS[] = {
-    {"id", KEY_STR, AT(id), NULL, NULL},
-    {"formula", KEY_STR_NONEMPTY, AT(formula), NULL, NULL},
-    {"class", KEY_CLASS, AT(cls), NULL, NULL},
-    {"confidence", KEY_NUM, AT(confidence), NULL, NULL},
-    {"reason", KEY_STR, AT(reason), NULL, NULL},
-    {"dimension", KEY_INT, AT(dim), NULL, NULL},
-    {"norb", KEY_INT, AT(norb), NULL, NULL},
-    {"occupied_bands", KEY_INT, AT(nocc), NULL, NULL},
-    {"gap_direct_eV", KEY_NUM, AT(gap_direct_ev), NULL, NULL},
-    {"gap_indirect_eV", KEY_NUM, AT(gap_indirect_ev), NULL, NULL},
-    {"k_gap_direct", KEY_VEC3, AT(k_gap_direct), NULL, NULL},
-    {"k_vbm", KEY_VEC3, AT(k_vbm), NULL, NULL},
-    {"k_cbm", KEY_VEC3, AT(k_cbm), NULL, NULL},
-    {"time_reversal", KEY_BOOL, AT(time_reversal), NULL, NULL},
-    {"inversion", KEY_BOOL, AT(inversion), NULL, NULL},
-    {"time_reversal_residual", KEY_NUM, AT(tr_residual), NULL, NULL},
-    {"inversion_residual", KEY_NUM, AT(inv_residual), NULL, NULL},
-    {"z2", KEY_SPECIAL, 0, 0, w_z2, r_z2},
-    {"z2_parity", KEY_SPECIAL, 0, 0, w_z2_parity, r_z2_parity},
-    {"z2_wcc", KEY_SPECIAL, 0, 0, w_z2_wcc, r_z2_wcc},
-    {"z2_status", KEY_STATUS, AT(z2_status), NULL, NULL},
-    {"z2_note", KEY_STR, AT(z2_note), NULL, NULL},
-    {"parities", KEY_SPECIAL, 0, 0, w_parities, r_parities},
-    {"chern", KEY_SPECIAL, 0, 0, w_chern, r_chern}, /* and plane_chern */
-    {"chern_status", KEY_STATUS, AT(chern_status), NULL, NULL},
-    {"weyl_nodes", KEY_SPECIAL, 0, 0, w_nodes, r_nodes}, /* and gap_closings */
-    {"net_chirality", KEY_INT, AT(net_chirality), NULL, NULL},
-    {"nodal_line", KEY_BOOL, AT(nodal_line), NULL, NULL},
-    {"nodal_points", KEY_INT, AT(nodal_points), NULL, NULL},
-    {"nodal_extent", KEY_NUM, AT(nodal_extent), NULL, NULL},
-    {"mesh", KEY_INT, AT(mesh), NULL, NULL},
-    {"seconds", KEY_NUM, AT(seconds), NULL, NULL},
-    {"k_points", KEY_LLONG, AT(nk_evaluated), NULL, NULL},
-    {"wcc_flows", KEY_SPECIAL, 0, 0, w_flows, r_flows},
-    {"ahc", KEY_SPECIAL, 0, 0, w_transport, r_transport}, /* and shc, transport */
-    {"surface", KEY_SPECIAL, 0, 0, w_surface, r_surface},
+    {"id", KEY_STR, AT(id), NULL, NULL, NULL},
+    {"formula", KEY_STR_NONEMPTY, AT(formula), NULL, NULL, NULL},
+    {"class", KEY_CLASS, AT(cls), "class", NULL, NULL},
+    {"confidence", KEY_NUM, AT(confidence), "confidence", NULL, NULL},
+    {"reason", KEY_STR, AT(reason), "reason", NULL, NULL},
+    {"dimension", KEY_INT, AT(dim), NULL, NULL, NULL},
+    {"norb", KEY_INT, AT(norb), NULL, NULL, NULL},
+    {"occupied_bands", KEY_INT, AT(nocc), NULL, NULL, NULL},
+    {"gap_direct_eV", KEY_NUM, AT(gap_direct_ev), "gap_direct_ev", NULL, NULL},
+    {"gap_indirect_eV", KEY_NUM, AT(gap_indirect_ev), "gap_indirect_ev", NULL, NULL},
+    {"k_gap_direct", KEY_VEC3, AT(k_gap_direct), NULL, NULL, NULL},
+    {"k_vbm", KEY_VEC3, AT(k_vbm), NULL, NULL, NULL},
+    {"k_cbm", KEY_VEC3, AT(k_cbm), NULL, NULL, NULL},
+    {"time_reversal", KEY_BOOL, AT(time_reversal), "time_reversal", NULL, NULL},
+    {"inversion", KEY_BOOL, AT(inversion), "inversion", NULL, NULL},
+    {"time_reversal_residual", KEY_NUM, AT(tr_residual), NULL, NULL, NULL},
+    {"inversion_residual", KEY_NUM, AT(inv_residual), NULL, NULL, NULL},
+    {"z2", KEY_SPECIAL, 0, 0, NULL, w_z2, r_z2},
+    {"z2_parity", KEY_SPECIAL, 0, 0, NULL, w_z2_parity, r_z2_parity},
+    {"z2_wcc", KEY_SPECIAL, 0, 0, NULL, w_z2_wcc, r_z2_wcc},
+    {"z2_status", KEY_STATUS, AT(z2_status), "z2_status", NULL, NULL},
+    {"z2_note", KEY_STR, AT(z2_note), "z2_note", NULL, NULL},
+    {"parities", KEY_SPECIAL, 0, 0, NULL, w_parities, r_parities},
+    {"chern", KEY_SPECIAL, 0, 0, NULL, w_chern, r_chern}, /* and plane_chern */
+    {"chern_status", KEY_STATUS, AT(chern_status), "chern_status", NULL, NULL},
+    {"weyl_nodes", KEY_SPECIAL, 0, 0, NULL, w_nodes, r_nodes}, /* and gap_closings */
+    {"net_chirality", KEY_INT, AT(net_chirality), "net_chirality", NULL, NULL},
+    {"nodal_line", KEY_BOOL, AT(nodal_line), "nodal_line", NULL, NULL},
+    {"nodal_points", KEY_INT, AT(nodal_points), NULL, NULL, NULL},
+    {"nodal_extent", KEY_NUM, AT(nodal_extent), NULL, NULL, NULL},
+    {"mesh", KEY_INT, AT(mesh), "mesh", NULL, NULL},
+    {"seconds", KEY_NUM, AT(seconds), "diag_seconds", NULL, NULL},
+    {"k_points", KEY_LLONG, AT(nk_evaluated), NULL, NULL, NULL},
+    {"wcc_flows", KEY_SPECIAL, 0, 0, NULL, w_flows, r_flows},
+    {"ahc", KEY_SPECIAL, 0, 0, NULL, w_transport, r_transport}, /* and shc, transport */
+    {"surface", KEY_SPECIAL, 0, 0, NULL, w_surface, r_surface},
 };
 
 static int write_row(cJSON *o, const key_row *k, const res_diag *r, int with_flows)
@@ -646,4 +648,29 @@ int res_from_text(const char *text, size_t len, res_diag *r, bs_err *err)
     int rc = res_from_json(o, r, err);
     cJSON_Delete(o);
     return rc;
+}
+
+int res_for_each_column(const res_diag *r, int (*fn)(void *ctx, const char *column, const res_value *v), void *ctx)
+{
+    for (size_t i = 0; i < sizeof KEYS / sizeof KEYS[0]; i++) {
+        const key_row *k = &KEYS[i];
+        if (!k->column) continue;
+        const char *base = (const char *)r + k->off;
+        res_value v = {RES_VALUE_INT, 0, 0, NULL};
+        switch (k->kind) {
+        case KEY_STR:
+        case KEY_STR_NONEMPTY: v.type = RES_VALUE_TEXT; v.text = base; break;
+        case KEY_INT:
+        case KEY_BOOL: v.i = *(const int *)base; break;
+        case KEY_LLONG: v.i = *(const long long *)base; break;
+        case KEY_NUM: v.type = RES_VALUE_REAL; v.x = *(const double *)base; break;
+        case KEY_CLASS: v.type = RES_VALUE_TEXT; v.text = res_class_name(*(const res_class *)base); break;
+        case KEY_STATUS: v.type = RES_VALUE_TEXT; v.text = res_status_name(*(const res_status *)base); break;
+        default: continue; /* structured keys have no column of their own here */
+        }
+        if (k->kind == KEY_BOOL) v.i = v.i != 0;
+        int rc = fn(ctx, k->column, &v);
+        if (rc != 0) return rc;
+    }
+    return 0;
 }

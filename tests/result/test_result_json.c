@@ -169,6 +169,34 @@ static void test_chern_rule(void **state)
     assert_true(res_plane_chern_shown(&r));
 }
 
+typedef struct col_seen {
+    int n, class_ok, tr_ok;
+} col_seen;
+
+static int see_column(void *ctx, const char *column, const res_value *v)
+{
+    col_seen *c = ctx;
+    c->n++;
+    if (!strcmp(column, "class")) c->class_ok = v->type == RES_VALUE_TEXT && !strcmp(v->text, "Weyl semimetal");
+    if (!strcmp(column, "time_reversal")) c->tr_ok = v->type == RES_VALUE_INT && v->i == 1;
+    return 0;
+}
+
+/* The scalar columns come from the key table with the values the JSON form shows. */
+static void test_columns(void **state)
+{
+    (void)state;
+    res_diag r;
+    res_init(&r);
+    r.cls = RES_WEYL;
+    r.time_reversal = 5; /* any nonzero flag is stored as 1 */
+    col_seen c = {0, 0, 0};
+    assert_int_equal(res_for_each_column(&r, see_column, &c), 0);
+    assert_true(c.class_ok);
+    assert_true(c.tr_ok);
+    assert_int_equal(c.n, 14);
+}
+
 static void expect_read_error(const char *json, const char *needle)
 {
     res_diag r;
@@ -203,7 +231,7 @@ int main(void)
 {
     const struct CMUnitTest tests[] = {
         cmocka_unit_test(test_name_tables),  cmocka_unit_test(test_round_trip_models), cmocka_unit_test(test_layout),
-        cmocka_unit_test(test_chern_rule),   cmocka_unit_test(test_read_errors),
+        cmocka_unit_test(test_chern_rule),   cmocka_unit_test(test_columns),   cmocka_unit_test(test_read_errors),
     };
     return cmocka_run_group_tests(tests, NULL, NULL);
 }
