@@ -64,10 +64,12 @@ static void print_transport(const res_transport *t)
 
 static void print_surface(const res_surface *s)
 {
-    printf("  surface (%d %d", s->miller[0], s->miller[1]);
+    /* A 2D material's slab is a ribbon: its surfaces are edges. */
+    printf("  %s (%d %d", s->kdim == 1 ? "edge" : "surface", s->miller[0], s->miller[1]);
     if (s->kdim == 2) printf(" %d", s->miller[2]);
-    printf("), %d layers: crossings at E = %.4f eV top %d, bottom %d, other %d; %d Dirac points in the gap\n",
-           s->layers, s->fermi_ev, s->n_top, s->n_bottom, s->n_other, s->ndirac_top);
+    printf("), %d %s: crossings at E = %.4f eV top %d, bottom %d, other %d; %d Dirac points in the gap\n",
+           s->layers, s->kdim == 1 ? "cells wide" : "layers", s->fermi_ev, s->n_top, s->n_bottom, s->n_other,
+           s->ndirac_top);
 }
 
 static void print_report(const res_diag *r)
