@@ -42,7 +42,8 @@ SELECT k.material_id,
               OR COALESCE(k.chern, 0) <> 0
               OR (k.plane_chern IS NOT NULL AND k.plane_chern GLOB '*[1-9]*')
               OR COALESCE(k.n_weyl, 0) > 0
-              OR COALESCE(k.nodal_line, 0) <> 0 THEN 1
+              OR COALESCE(k.nodal_line, 0) <> 0
+              OR k.class = 'topological crystalline insulator' THEN 1
             ELSE 0 END AS nontrivial,
        k.mesh,
        k.run_id,

@@ -95,6 +95,9 @@ int cry_breaking_ev(const tb_model *m, const cry_info *c, int op, double *bound_
  * of two of them among them, the identity included), a new model with deg = 1 on the union of the
  * lattice vectors reached. Exactly symmetric under those operations up to round-off; for exact
  * symmetries it equals H. The caller owns *out. */
+/* 1 when the operations ops[0..nops-1] are closed under composition (modulo lattice translations). */
+int cry_is_group(const cry_info *c, const int *ops, int nops);
+
 int cry_symmetrise(const tb_model *m, const cry_info *c, const int *ops, int nops, tb_model **out, bs_err *err);
 
 #endif

@@ -20,6 +20,7 @@ typedef enum res_class {
     RES_NODAL_LINE,
     RES_METAL,
     RES_UNDETERMINED,
+    RES_TCI,                /* topological crystalline insulator: Z2 trivial, a mirror Chern number not */
     RES_NCLASS
 } res_class;
 
@@ -154,6 +155,15 @@ typedef struct res_diag {
     res_transport transport;
     int has_surface;        /* surface below was computed */
     res_surface surface;
+
+    int spacegroup;         /* space group of the orbital sites (spglib), 0 when none was found */
+    int symmetry_ops;       /* crystal operations the Hamiltonian keeps (or keeps approximately,
+                               see crystal_symmetrised), the order of its point group */
+    int crystal_symmetrised;/* the kept operations were restored by averaging a noisy fit */
+    double crystal_breaking_ev; /* largest breaking bound of an operation restored by averaging */
+    int z4;                 /* Z4 indicator kappa from the parities (3D), -1 when not computed */
+    res_status mirror_chern_status; /* of the mirror Chern numbers (computed for Z2-trivial insulators) */
+    int mirror_chern;       /* the mirror Chern number of largest magnitude over the kept mirrors */
 
     int mesh;
     double seconds;

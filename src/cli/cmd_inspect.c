@@ -91,6 +91,13 @@ static void print_report(const res_diag *r)
         for (int t = 0; t < r->ntrim; t++) printf("%c", r->par_delta[t] > 0 ? '+' : '-');
         printf("   (TRIM n1 + 2 n2 + 4 n3 order)\n");
     }
+    if (r->spacegroup > 0)
+        printf("  crystal symmetry      sites in space group %d, %d operations kept%s\n", r->spacegroup, r->symmetry_ops,
+               r->crystal_symmetrised ? " (restored by averaging a noisy fit)" : "");
+    if (r->crystal_symmetrised) printf("  crystal breaking      <= %.3g eV (bound)\n", r->crystal_breaking_ev);
+    if (r->z4 >= 0) printf("  Z4 indicator          %d\n", r->z4);
+    if (r->mirror_chern_status != RES_NA)
+        printf("  mirror Chern number   %d (%s)\n", r->mirror_chern, res_status_name(r->mirror_chern_status));
     int chern = 0;
     if (res_chern_shown(r, &chern)) printf("  Chern number          %d\n", chern);
     if (res_plane_chern_shown(r)) {

@@ -38,7 +38,7 @@ static void format_progress(const pl_counts *c, char *buf, size_t len)
     n += snprintf(buf + n, len - n, ", %.2f/s, %s %.0fs | ok %d invalid %d failed %d timeout %d |",
                   rate, left > 0 ? "left" : "took", left > 0 ? eta : c->elapsed, c->ok, c->invalid,
                   c->failed, c->timeout);
-    static const char *const abbrev[RES_NCLASS] = {"triv", "STI", "WTI", "2DTI", "CI", "WSM", "NLSM", "metal", "undet"};
+    static const char *const abbrev[RES_NCLASS] = {"triv", "STI", "WTI", "2DTI", "CI", "WSM", "NLSM", "metal", "undet", "TCI"};
     for (int i = 0; i < RES_NCLASS; i++)
         if (c->by_class[i]) n += snprintf(buf + n, len - n, " %s %d", abbrev[i], c->by_class[i]);
 }

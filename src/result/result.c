@@ -17,7 +17,8 @@ static const char *const CLASS_NAMES[RES_NCLASS] = {
     [RES_WEYL] = "Weyl semimetal",
     [RES_NODAL_LINE] = "nodal-line semimetal",
     [RES_METAL] = "metal",
-    [RES_UNDETERMINED] = "undetermined"};
+    [RES_UNDETERMINED] = "undetermined",
+    [RES_TCI] = "topological crystalline insulator"};
 
 static const char *const FERMI_SOURCE_NAMES[] = {"given", "card", "midgap", "filling"};
 static const char *const GAUGE_NAMES[] = {"position", "lattice"};
@@ -49,12 +50,12 @@ int res_class_parse(const char *name)
 int res_class_is_insulator(res_class c)
 {
     return c == RES_TRIVIAL || c == RES_STRONG_TI || c == RES_WEAK_TI || c == RES_2D_TI ||
-           c == RES_CHERN_INSULATOR;
+           c == RES_CHERN_INSULATOR || c == RES_TCI;
 }
 
 int res_class_has_surface_states(res_class c)
 {
-    return c == RES_STRONG_TI || c == RES_WEAK_TI || c == RES_2D_TI || c == RES_CHERN_INSULATOR;
+    return c == RES_STRONG_TI || c == RES_WEAK_TI || c == RES_2D_TI || c == RES_CHERN_INSULATOR || c == RES_TCI;
 }
 
 const char *res_fermi_source_name(int source)
@@ -93,6 +94,7 @@ void res_init(res_diag *r)
 {
     memset(r, 0, sizeof *r);
     r->cls = RES_UNDETERMINED;
+    r->z4 = -1;
     for (int i = 0; i < 4; i++) r->z2[i] = r->z2_parity[i] = r->z2_wcc[i] = -1;
 }
 

@@ -16,6 +16,7 @@ typedef enum key_kind {
     KEY_STR,        /* char array, always written */
     KEY_STR_NONEMPTY, /* char array, written only when not empty */
     KEY_INT,
+    KEY_INT_OPT,    /* int, -1 written as null (not computed) */
     KEY_LLONG,
     KEY_NUM,
     KEY_BOOL,
@@ -525,6 +526,13 @@ static const key_row KEYS[] = {
     {"nodal_line", KEY_BOOL, AT(nodal_line), "nodal_line", NULL, NULL},
     {"nodal_points", KEY_INT, AT(nodal_points), NULL, NULL, NULL},
     {"nodal_extent", KEY_NUM, AT(nodal_extent), NULL, NULL, NULL},
+    {"spacegroup", KEY_INT, AT(spacegroup), NULL, NULL, NULL},
+    {"symmetry_ops", KEY_INT, AT(symmetry_ops), NULL, NULL, NULL},
+    {"crystal_symmetrised", KEY_BOOL, AT(crystal_symmetrised), NULL, NULL, NULL},
+    {"crystal_breaking_eV", KEY_NUM, AT(crystal_breaking_ev), NULL, NULL, NULL},
+    {"z4", KEY_INT_OPT, AT(z4), NULL, NULL, NULL},
+    {"mirror_chern", KEY_INT, AT(mirror_chern), NULL, NULL, NULL},
+    {"mirror_chern_status", KEY_STATUS, AT(mirror_chern_status), NULL, NULL, NULL},
     {"mesh", KEY_INT, AT(mesh), "mesh", NULL, NULL},
     {"seconds", KEY_NUM, AT(seconds), "diag_seconds", NULL, NULL},
     {"k_points", KEY_LLONG, AT(nk_evaluated), NULL, NULL, NULL},
@@ -540,6 +548,9 @@ static int write_row(cJSON *o, const key_row *k, const res_diag *r, int with_flo
     case KEY_STR: return cJSON_AddStringToObject(o, k->name, base) ? 0 : -1;
     case KEY_STR_NONEMPTY: return !*base || cJSON_AddStringToObject(o, k->name, base) ? 0 : -1;
     case KEY_INT: return cJSON_AddNumberToObject(o, k->name, *(const int *)base) ? 0 : -1;
+    case KEY_INT_OPT:
+        if (*(const int *)base == -1) return cJSON_AddNullToObject(o, k->name) ? 0 : -1;
+        return cJSON_AddNumberToObject(o, k->name, *(const int *)base) ? 0 : -1;
     case KEY_LLONG: return cJSON_AddNumberToObject(o, k->name, (double)*(const long long *)base) ? 0 : -1;
     case KEY_NUM: return cJSON_AddNumberToObject(o, k->name, *(const double *)base) ? 0 : -1;
     case KEY_BOOL: return cJSON_AddBoolToObject(o, k->name, *(const int *)base) ? 0 : -1;
@@ -583,6 +594,14 @@ static int read_row(const cJSON *o, const key_row *k, res_diag *r, bs_err *err)
     case KEY_STR:
     case KEY_STR_NONEMPTY: return read_str(o, k->name, base, k->size, err);
     case KEY_INT: return read_int(o, k->name, (int *)base, err);
+    case KEY_INT_OPT: {
+        const cJSON *v = member(o, k->name);
+        if (v && cJSON_IsNull(v)) {
+            *(int *)base = -1;
+            return 0;
+        }
+        return read_int(o, k->name, (int *)base, err);
+    }
     case KEY_LLONG: {
         double v = 0;
         int rc = read_num(o, k->name, &v, err);
@@ -662,6 +681,10 @@ int res_for_each_column(const res_diag *r, int (*fn)(void *ctx, const char *colu
         case KEY_STR_NONEMPTY: v.type = RES_VALUE_TEXT; v.text = base; break;
         case KEY_INT:
         case KEY_BOOL: v.i = *(const int *)base; break;
+        case KEY_INT_OPT:
+            v.i = *(const int *)base;
+            if (v.i == -1) v.type = RES_VALUE_TEXT, v.text = NULL; /* bound as NULL */
+            break;
         case KEY_LLONG: v.i = *(const long long *)base; break;
         case KEY_NUM: v.type = RES_VALUE_REAL; v.x = *(const double *)base; break;
         case KEY_CLASS: v.type = RES_VALUE_TEXT; v.text = res_class_name(*(const res_class *)base); break;

@@ -689,3 +689,33 @@ int cry_symmetrise(const tb_model *m, const cry_info *c, const int *ops, int nop
     *out = s;
     return 0;
 }
+
+int cry_is_group(const cry_info *c, const int *ops, int nops)
+{
+    for (int a = 0; a < nops; a++)
+        for (int b = 0; b < nops; b++) {
+            const cry_op *x = &c->ops[ops[a]], *y = &c->ops[ops[b]];
+            int W[3][3];
+            double t[3];
+            for (int i = 0; i < 3; i++) {
+                t[i] = x->t[i];
+                for (int j = 0; j < 3; j++) {
+                    W[i][j] = 0;
+                    for (int q = 0; q < 3; q++) W[i][j] += x->W[i][q] * y->W[q][j];
+                    t[i] += x->W[i][j] * y->t[j];
+                }
+            }
+            int found = 0;
+            for (int q = 0; q < nops && !found; q++) {
+                const cry_op *z = &c->ops[ops[q]];
+                int same = memcmp(W, z->W, sizeof W) == 0;
+                for (int i = 0; i < 3 && same; i++) {
+                    double d = t[i] - z->t[i];
+                    same = fabs(d - round(d)) < 1e-5;
+                }
+                found = same;
+            }
+            if (!found) return 0;
+        }
+    return 1;
+}

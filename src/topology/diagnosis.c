@@ -13,6 +13,8 @@
 #include "bandsieve/chern.h"
 #include "bandsieve/clock.h"
 #include "bandsieve/config.h"
+#include "bandsieve/crystal.h"
+#include "bandsieve/crystalline.h"
 #include "bandsieve/gaps.h"
 #include "bandsieve/hk.h"
 #include "bandsieve/nodes.h"
@@ -29,6 +31,7 @@ typedef struct diag_ctx {
     bp_eval *bp;
     bp_mesh *mesh;
     sym_info *sym;
+    int z4;                 /* from the parity counts, -1 when not computed */
     gaps_result gaps;
     nodes_result nodes;
 } diag_ctx;
@@ -86,6 +89,9 @@ static int run_parity(diag_ctx *c, res_diag *r, bs_err *err)
         r->par_delta[t] = pr.delta[t];
         r->par_nodd[t] = pr.nodd[t];
     }
+    bs_err z4err;
+    bs_err_clear(&z4err);
+    if (pr.status == PAR_DONE && c->m->dim == 3 && cz_z4(&pr, &c->z4, &z4err) != 0) c->z4 = -1;
     if (pr.status == PAR_DONE) {
         r->z2_parity_status = RES_DONE;
         memcpy(r->z2_parity, pr.z2, sizeof pr.z2);
@@ -354,6 +360,150 @@ static void classify_insulator(res_diag *r, int kramers)
     else set_class(r, RES_TRIVIAL, conf, "Z2 = 0;000 (%s)", how);
 }
 
+/* Crystal symmetry (crystal.h): the space group of the sites and the operations H keeps. On a
+ * noisy fit, operations whose breaking bound is below a quarter of the direct gap (so that the
+ * averaged Hamiltonian is connected to H without closing the gap: Weyl's inequality) and that close
+ * into a group with the kept ones are restored by averaging over that group. For a Z2-trivial
+ * insulator with Kramers pairs, the mirror Chern numbers of the kept mirrors follow
+ * (crystalline.h): a nonzero one makes it a topological crystalline insulator. Failures of this
+ * optional evidence (a structure spglib cannot read) leave the fields empty, not the result. */
+enum { CRYSTAL_MIRROR_MESH = 16 };
+#define CRYSTAL_APPROX_RESIDUAL 0.05 /* relative residual of an operation a fit breaks only by noise */
+#define CRYSTAL_APPROX_GAP_FRACTION 0.25
+
+static int restore_approximate(const tb_model *m, cry_info *ci, double gap_ev, res_diag *r, tb_model **sym_out,
+                               cry_info **ci_out, bs_err *err)
+{
+    *sym_out = NULL;
+    *ci_out = NULL;
+    int n = cry_nops(ci), nuse = 0, napprox = 0;
+    int *use = malloc((size_t)n * sizeof *use);
+    if (!use) return bs_fail(err, BS_ENOMEM, "out of memory (crystal symmetry)");
+    double worst = 0.0;
+    int rc = 0;
+    for (int i = 0; i < n && rc == 0; i++) {
+        const cry_op *op = cry_get_op(ci, i);
+        if (op->verified) {
+            use[nuse++] = i;
+            continue;
+        }
+        if (op->residual < 0 || op->residual > CRYSTAL_APPROX_RESIDUAL) continue;
+        double bound = 0.0;
+        rc = cry_breaking_ev(m, ci, i, &bound, err);
+        if (rc == 0 && bound < CRYSTAL_APPROX_GAP_FRACTION * gap_ev) {
+            use[nuse++] = i;
+            napprox++;
+            worst = fmax(worst, bound);
+        }
+    }
+    if (rc == 0 && napprox > 0 && cry_is_group(ci, use, nuse)) {
+        rc = cry_symmetrise(m, ci, use, nuse, sym_out, err);
+        cry_opts o;
+        cry_opts_default(&o);
+        if (rc == 0) rc = cry_detect(*sym_out, &o, ci_out, err);
+        if (rc == 0) {
+            r->crystal_symmetrised = 1;
+            r->crystal_breaking_ev = worst;
+        }
+    }
+    free(use);
+    return rc;
+}
+
+/* 1 when a kept operation carries the normal of mirror a onto +-the normal of mirror b: the two
+ * mirrors are conjugate, and their mirror Chern numbers agree in magnitude. */
+static int conjugate_mirrors(const cry_info *ci, const cry_op *a, const cry_op *b)
+{
+    for (int g = 0; g < cry_nops(ci); g++) {
+        const cry_op *op = cry_get_op(ci, g);
+        if (!op->verified) continue;
+        double v[3], dot = 0;
+        for (int i = 0; i < 3; i++) {
+            v[i] = op->Rc[i][0] * a->axis[0] + op->Rc[i][1] * a->axis[1] + op->Rc[i][2] * a->axis[2];
+            dot += v[i] * b->axis[i];
+        }
+        if (fabs(fabs(dot) - 1.0) < 1e-6) return 1;
+    }
+    return 0;
+}
+
+static int mirror_cherns(const tb_model *m, const cry_info *ci, res_diag *r, bs_err *err)
+{
+    int best = 0, ndone = 0, nambiguous = 0, rc = 0;
+    double best_normal[3] = {0, 0, 0};
+    for (int i = 0; i < cry_nops(ci) && rc == 0; i++) {
+        const cry_op *op = cry_get_op(ci, i);
+        if (!op->verified || strcmp(op->kind, "m") != 0) continue;
+        int seen = 0; /* one mirror per conjugacy class: the others repeat its numbers */
+        for (int j = 0; j < i && !seen; j++) {
+            const cry_op *q = cry_get_op(ci, j);
+            seen = q->verified && !strcmp(q->kind, "m") && conjugate_mirrors(ci, q, op);
+        }
+        if (seen) continue;
+        /* in 2D only the mirror of the plane itself leaves the whole zone invariant; a vertical
+         * mirror's invariant set is a line, which carries no Chern number */
+        if (m->dim == 2 && !(op->W[0][0] == 1 && op->W[1][1] == 1 && op->W[0][1] == 0 && op->W[1][0] == 0)) continue;
+        cz_mirror pl[2];
+        int np = cz_mirror_planes(ci, i, pl, err);
+        if (np < 0) return np;
+        if (m->dim == 2) np = 1; /* k3 is not a coordinate of a 2D zone */
+        for (int p = 0; p < np && rc == 0; p++) {
+            rc = cz_mirror_chern(m, ci, &pl[p], CRYSTAL_MIRROR_MESH, BS_GAP_CLOSED_EV, err);
+            if (rc != 0) break;
+            r->nk_evaluated += (long long)pl[p].mesh * pl[p].mesh;
+            if (pl[p].status != CZ_DONE) {
+                nambiguous++;
+                continue;
+            }
+            ndone++;
+            if (abs(pl[p].mirror_chern) > abs(best)) {
+                best = pl[p].mirror_chern;
+                memcpy(best_normal, pl[p].normal, sizeof best_normal);
+            }
+        }
+    }
+    if (rc != 0 || ndone + nambiguous == 0) return rc;
+    r->mirror_chern = best;
+    r->mirror_chern_status = nambiguous ? RES_AMBIGUOUS : RES_DONE;
+    if (best != 0) {
+        double conf = r->confidence * (nambiguous ? 0.8 : 1.0);
+        set_class(r, RES_TCI, conf, "Z2 trivial, mirror Chern number %d on the mirror plane normal to (%.3f, %.3f, %.3f)%s",
+                  best, best_normal[0], best_normal[1], best_normal[2],
+                  r->crystal_symmetrised ? "; crystal symmetry restored by averaging a noisy fit" : "");
+    } else if (nambiguous) {
+        size_t used = strlen(r->reason);
+        snprintf(r->reason + used, sizeof r->reason - used, "; %d mirror Chern number%s undetermined", nambiguous,
+                 nambiguous > 1 ? "s" : "");
+    }
+    return 0;
+}
+
+static int run_crystal(diag_ctx *c, res_diag *r, int kramers, bs_err *err)
+{
+    r->z4 = c->z4;
+    cry_opts o;
+    cry_opts_default(&o);
+    cry_info *ci = NULL, *ci_sym = NULL;
+    tb_model *msym = NULL;
+    bs_err local;
+    bs_err_clear(&local);
+    if (cry_detect(c->m, &o, &ci, &local) != 0) return local.code == BS_ENOMEM ? bs_fail(err, BS_ENOMEM, "%s", local.msg) : 0;
+    r->spacegroup = cry_spacegroup(ci);
+    r->symmetry_ops = cry_nverified(ci);
+    int rc = 0, insulator = res_class_is_insulator(r->cls) && r->gap_direct_ev > BS_GAP_CLOSED_EV;
+    if (insulator) rc = restore_approximate(c->m, ci, r->gap_direct_ev, r, &msym, &ci_sym, err);
+    if (rc == 0 && ci_sym) r->symmetry_ops = cry_nverified(ci_sym);
+    int z2_trivial = r->z2_status == RES_DONE && !r->z2[0] && (r->dim == 2 || (!r->z2[1] && !r->z2[2] && !r->z2[3]));
+    if (rc == 0 && insulator && kramers && r->cls == RES_TRIVIAL && z2_trivial) {
+        if (c->deadline > 0 && bs_now() > c->deadline) rc = bs_fail(err, BS_ETIMEOUT, "time budget exceeded");
+        else rc = mirror_cherns(msym ? msym : c->m, ci_sym ? ci_sym : ci, r, err);
+    }
+    cry_info_free(ci_sym);
+    tb_model_free(msym);
+    cry_info_free(ci);
+    return rc;
+}
+
 static void append_small_gap_note(res_diag *r)
 {
     if (!res_class_is_insulator(r->cls)) return;
@@ -371,6 +521,7 @@ int diag_run(const tb_model *m, const diag_opts *opts, res_diag *r, bs_err *err)
     nodes_result_init(&c.nodes);
     c.m = m;
     c.o = opts;
+    c.z4 = -1;
     c.deadline = opts && opts->max_seconds > 0 ? t0 + opts->max_seconds : 0;
     snprintf(r->id, sizeof r->id, "%s", m->id);
     snprintf(r->formula, sizeof r->formula, "%s", m->formula);
@@ -410,6 +561,7 @@ int diag_run(const tb_model *m, const diag_opts *opts, res_diag *r, bs_err *err)
         combine_z2(r);
         if (gapless) classify_gapless(r, c.nodes.degenerate);
         else classify_insulator(r, kramers);
+        rc = run_crystal(&c, r, kramers, err);
         append_small_gap_note(r);
     }
     if (c.bp) r->nk_evaluated += bp_count(c.bp);

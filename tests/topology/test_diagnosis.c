@@ -324,6 +324,33 @@ static void test_timeout(void **state)
     tb_model_free(m);
 }
 
+/* Crystalline insulator: the rock-salt model of Nat. Commun. 3, 982 (2012) has trivial Z2 and
+ * |mirror Chern| = 2 on the {110} mirrors, so it is labelled a topological crystalline insulator;
+ * with the mass reversed it is trivial; Fu–Kane–Mele phases keep their labels (Phys. Rev. Lett. 98,
+ * 106803 (2007)) and carry Z4 = 1 (strong, Phys. Rev. X 8, 031070 (2018)), the space group of the
+ * diamond structure (227) and, distorted along [111], the 12 operations of D3d. */
+static void test_crystalline_classes(void **state)
+{
+    res_diag r;
+    expect_class("rocksalt_tci", "topological crystalline insulator", &r);
+    assert_int_equal(abs(r.mirror_chern), 2);
+    assert_int_equal(r.mirror_chern_status, RES_DONE);
+    assert_int_equal(r.z4, 0);
+    assert_int_equal(r.symmetry_ops, 48);
+    res_clear(&r);
+    expect_class("rocksalt_tci:m=-1.65", "trivial insulator", &r);
+    assert_int_equal(r.mirror_chern, 0);
+    res_clear(&r);
+    expect_class("fkm", "strong topological insulator", &r);
+    assert_int_equal(r.z4 % 2, 1);
+    assert_int_equal(r.spacegroup, 227);
+    assert_int_equal(r.symmetry_ops, 12);
+    res_clear(&r);
+    expect_class("fkm:dt=-0.4", "weak topological insulator", &r);
+    assert_int_equal(r.z4 % 2, 0);
+    res_clear(&r);
+}
+
 int main(void)
 {
     const struct CMUnitTest tests[] = {
@@ -333,6 +360,7 @@ int main(void)
         cmocka_unit_test(test_fkm_sweep_weyl_window), cmocka_unit_test(test_weyl_positions),
         cmocka_unit_test(test_line_metal_insulator), cmocka_unit_test(test_basis_invariance),
         cmocka_unit_test(test_symmetry_tolerance), cmocka_unit_test(test_timeout),
+        cmocka_unit_test(test_crystalline_classes),
     };
     return cmocka_run_group_tests(tests, NULL, NULL);
 }
