@@ -164,6 +164,9 @@ typedef struct res_diag {
     int z4;                 /* Z4 indicator kappa from the parities (3D), -1 when not computed */
     res_status mirror_chern_status; /* of the mirror Chern numbers (computed for Z2-trivial insulators) */
     int mirror_chern;       /* the mirror Chern number of largest magnitude over the kept mirrors */
+    char gap_symmetry[240]; /* at the direct-gap point: the little group's eigenvalues on the two
+                               bands at the gap and what a closing there would become ("" when
+                               the bands are degenerate there or nothing was found) */
 
     int mesh;
     double seconds;

@@ -95,6 +95,7 @@ static void print_report(const res_diag *r)
         printf("  crystal symmetry      sites in space group %d, %d operations kept%s\n", r->spacegroup, r->symmetry_ops,
                r->crystal_symmetrised ? " (restored by averaging a noisy fit)" : "");
     if (r->crystal_symmetrised) printf("  crystal breaking      <= %.3g eV (bound)\n", r->crystal_breaking_ev);
+    if (r->gap_symmetry[0]) printf("  at the gap point      %s\n", r->gap_symmetry);
     if (r->z4 >= 0) printf("  Z4 indicator          %d\n", r->z4);
     if (r->mirror_chern_status != RES_NA)
         printf("  mirror Chern number   %d (%s)\n", r->mirror_chern, res_status_name(r->mirror_chern_status));

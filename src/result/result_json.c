@@ -533,6 +533,7 @@ static const key_row KEYS[] = {
     {"z4", KEY_INT_OPT, AT(z4), NULL, NULL, NULL},
     {"mirror_chern", KEY_INT, AT(mirror_chern), NULL, NULL, NULL},
     {"mirror_chern_status", KEY_STATUS, AT(mirror_chern_status), NULL, NULL, NULL},
+    {"gap_point_symmetry", KEY_STR_NONEMPTY, AT(gap_symmetry), NULL, NULL, NULL},
     {"mesh", KEY_INT, AT(mesh), "mesh", NULL, NULL},
     {"seconds", KEY_NUM, AT(seconds), "diag_seconds", NULL, NULL},
     {"k_points", KEY_LLONG, AT(nk_evaluated), NULL, NULL, NULL},

@@ -10,6 +10,7 @@
 #include <string.h>
 
 #include "bandsieve/hk.h"
+#include "bandsieve/model.h"
 
 int cz_z4(const par_result *p, int *kappa, bs_err *err)
 {
@@ -323,6 +324,10 @@ static int eigen_pair(const tb_model *m, const cry_info *c, int op, const double
 {
     int rc = cry_band_eigenvalues(m, c, op, k, lower, 1, lo, err);
     if (rc == 0) rc = cry_band_eigenvalues(m, c, op, k, lower + 1, 1, up, err);
+    /* a single band's eigenvalue has modulus 1; less means the band is part of a multiplet that the
+     * operation mixes (a degeneracy the energy test missed) */
+    if (rc == 0 && (fabs(cabs(*lo) - 1) > 1e-3 || fabs(cabs(*up) - 1) > 1e-3))
+        rc = bs_fail(err, BS_EINVAL, "bands %d, %d are degenerate with others at this k", lower + 1, lower + 2);
     if (rc == 0) *differ = cabs(*lo - *up) > 1e-3;
     return rc;
 }
@@ -333,6 +338,23 @@ int cz_predict_closing(const tb_model *m, const cry_info *c, const double k[3], 
     memset(out, 0, sizeof *out);
     out->op = -1;
     if (lower < 0 || lower + 1 >= m->norb) return bs_fail(err, BS_EINVAL, "band %d outside the basis", lower + 1);
+    {
+        /* both bands must be single: a Kramers or symmetry multiplet needs its own analysis */
+        int n = m->norb;
+        double complex *H = malloc((size_t)n * n * sizeof *H);
+        double *w = malloc((size_t)n * sizeof *w);
+        int bad = !H || !w;
+        if (!bad) {
+            hk_build_direct(m, k, H);
+            bad = LAPACKE_zheevd(LAPACK_COL_MAJOR, 'N', 'U', n, H, n, w) != 0;
+        }
+        int degenerate = !bad && ((lower > 0 && w[lower] - w[lower - 1] < 1e-6) ||
+                                  (lower + 2 < n && w[lower + 2] - w[lower + 1] < 1e-6));
+        free(H);
+        free(w);
+        if (bad) return bs_fail(err, BS_ENUMERIC, "bands at k could not be computed");
+        if (degenerate) return bs_fail(err, BS_EINVAL, "bands %d, %d are degenerate with others at this k", lower + 1, lower + 2);
+    }
     int *lg = malloc((size_t)cry_nops(c) * sizeof *lg);
     if (!lg) return bs_fail(err, BS_ENOMEM, "out of memory");
     int nl = cry_little_group(c, k, lg), rc = 0;
@@ -351,9 +373,15 @@ int cz_predict_closing(const tb_model *m, const cry_info *c, const double k[3], 
         if (proper_rot && differ) {
             out->kind = CZ_PRED_AXIS_WEYL;
             out->op = lg[i], out->ev_lower = lo, out->ev_upper = up;
-            snprintf(out->text, sizeof out->text,
-                     "on a %s-fold axis, eigenvalues %.2f%+.2fi and %.2f%+.2fi differ: a Weyl pair is created on the axis",
-                     op->kind, creal(lo), cimag(lo), creal(up), cimag(up));
+            if (m->dim == 2) /* a rotation about the normal leaves isolated points of a 2D zone */
+                snprintf(out->text, sizeof out->text,
+                         "%s-fold point, eigenvalues %.2f%+.2fi and %.2f%+.2fi differ: the bands can cross here at "
+                         "one parameter value (a 2D Dirac point)",
+                         op->kind, creal(lo), cimag(lo), creal(up), cimag(up));
+            else
+                snprintf(out->text, sizeof out->text,
+                         "on a %s-fold axis, eigenvalues %.2f%+.2fi and %.2f%+.2fi differ: a Weyl pair is created on the axis",
+                         op->kind, creal(lo), cimag(lo), creal(up), cimag(up));
             free(lg);
             return 0;
         }

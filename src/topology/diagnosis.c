@@ -478,6 +478,24 @@ static int mirror_cherns(const tb_model *m, const cry_info *ci, res_diag *r, bs_
     return 0;
 }
 
+/* The little group at the direct-gap point, its eigenvalues on the two bands at the gap, and the
+ * prediction of crystalline.h for a closing there, as one line of evidence. Skipped when either
+ * band is degenerate at that point (a multiplet needs its own analysis). */
+static void gap_point_symmetry(const tb_model *m, const cry_info *ci, res_diag *r)
+{
+    cz_prediction pred;
+    bs_err local;
+    bs_err_clear(&local);
+    if (m->nocc < 1 || m->nocc >= m->norb) return;
+    if (cz_predict_closing(m, ci, r->k_gap_direct, m->nocc - 1, &pred, &local) != 0) return;
+    int *lg = malloc((size_t)cry_nops(ci) * sizeof *lg);
+    if (!lg) return;
+    int nl = cry_little_group(ci, r->k_gap_direct, lg);
+    snprintf(r->gap_symmetry, sizeof r->gap_symmetry, "little group of %d operation%s; %s", nl, nl == 1 ? "" : "s",
+             pred.text);
+    free(lg);
+}
+
 static int run_crystal(diag_ctx *c, res_diag *r, int kramers, bs_err *err)
 {
     r->z4 = c->z4;
@@ -493,6 +511,7 @@ static int run_crystal(diag_ctx *c, res_diag *r, int kramers, bs_err *err)
     int rc = 0, insulator = res_class_is_insulator(r->cls) && r->gap_direct_ev > BS_GAP_CLOSED_EV;
     if (insulator) rc = restore_approximate(c->m, ci, r->gap_direct_ev, r, &msym, &ci_sym, err);
     if (rc == 0 && ci_sym) r->symmetry_ops = cry_nverified(ci_sym);
+    if (rc == 0 && r->gap_direct_ev > BS_GAP_CLOSED_EV) gap_point_symmetry(msym ? msym : c->m, ci_sym ? ci_sym : ci, r);
     int z2_trivial = r->z2_status == RES_DONE && !r->z2[0] && (r->dim == 2 || (!r->z2[1] && !r->z2[2] && !r->z2[3]));
     if (rc == 0 && insulator && kramers && r->cls == RES_TRIVIAL && z2_trivial) {
         if (c->deadline > 0 && bs_now() > c->deadline) rc = bs_fail(err, BS_ETIMEOUT, "time budget exceeded");
