@@ -1,4 +1,5 @@
--- bandsieve catalogue schema, version 1 (PRAGMA user_version = 1).
+-- bandsieve catalogue schema, version 2 (PRAGMA user_version = 2). Version 1 files are brought
+-- to version 2 by cat_open (catalogue.c, MIGRATE_1_2: the same columns added with ALTER TABLE).
 -- Applied by cat_open (CAT_RW) to a new file in one transaction; embedded in the program at
 -- build time. Every table and column is documented in db/README.md.
 -- Timestamps are UTC text, ISO 8601 with milliseconds ('2026-12-02T00:31:07.123Z').
@@ -16,7 +17,9 @@ CREATE TABLE runs (
     hosts       TEXT,
     cmdline     TEXT,
     set_path    TEXT,
-    sessions    INTEGER NOT NULL DEFAULT 1
+    sessions    INTEGER NOT NULL DEFAULT 1,
+    set_content TEXT,
+    rerun       INTEGER NOT NULL DEFAULT 0
 );
 
 CREATE INDEX runs_resume ON runs (kind, status);
@@ -44,7 +47,12 @@ CREATE TABLE materials (
     set_path    TEXT,
     source      TEXT,
     card_json   TEXT,
-    updated     TEXT NOT NULL
+    updated     TEXT NOT NULL,
+    content     TEXT,
+    set_content TEXT,
+    comment     TEXT,
+    orbital_labels TEXT,
+    meta        TEXT
 );
 
 CREATE TABLE results (
@@ -84,10 +92,22 @@ CREATE TABLE results (
     shc_units       TEXT,
     transport_fermi_ev REAL,
     diagnosis       TEXT,
+    content         TEXT,
+    z2_nu0          INTEGER GENERATED ALWAYS AS (CASE WHEN z2 GLOB '[01]' OR z2 GLOB '[01];[01][01][01]' THEN CAST(substr(z2, 1, 1) AS INTEGER) END) VIRTUAL,
+    z2_nu1          INTEGER GENERATED ALWAYS AS (CASE WHEN z2 GLOB '[01];[01][01][01]' THEN CAST(substr(z2, 3, 1) AS INTEGER) END) VIRTUAL,
+    z2_nu2          INTEGER GENERATED ALWAYS AS (CASE WHEN z2 GLOB '[01];[01][01][01]' THEN CAST(substr(z2, 4, 1) AS INTEGER) END) VIRTUAL,
+    z2_nu3          INTEGER GENERATED ALWAYS AS (CASE WHEN z2 GLOB '[01];[01][01][01]' THEN CAST(substr(z2, 5, 1) AS INTEGER) END) VIRTUAL,
+    chern_k1_0      INTEGER GENERATED ALWAYS AS (CASE WHEN json_valid('[' || replace(plane_chern, ';', ',') || ']') THEN json_extract('[' || replace(plane_chern, ';', ',') || ']', '$[0]') END) VIRTUAL,
+    chern_k1_half   INTEGER GENERATED ALWAYS AS (CASE WHEN json_valid('[' || replace(plane_chern, ';', ',') || ']') THEN json_extract('[' || replace(plane_chern, ';', ',') || ']', '$[1]') END) VIRTUAL,
+    chern_k2_0      INTEGER GENERATED ALWAYS AS (CASE WHEN json_valid('[' || replace(plane_chern, ';', ',') || ']') THEN json_extract('[' || replace(plane_chern, ';', ',') || ']', '$[2]') END) VIRTUAL,
+    chern_k2_half   INTEGER GENERATED ALWAYS AS (CASE WHEN json_valid('[' || replace(plane_chern, ';', ',') || ']') THEN json_extract('[' || replace(plane_chern, ';', ',') || ']', '$[3]') END) VIRTUAL,
+    chern_k3_0      INTEGER GENERATED ALWAYS AS (CASE WHEN json_valid('[' || replace(plane_chern, ';', ',') || ']') THEN json_extract('[' || replace(plane_chern, ';', ',') || ']', '$[4]') END) VIRTUAL,
+    chern_k3_half   INTEGER GENERATED ALWAYS AS (CASE WHEN json_valid('[' || replace(plane_chern, ';', ',') || ']') THEN json_extract('[' || replace(plane_chern, ';', ',') || ']', '$[5]') END) VIRTUAL,
     UNIQUE (run_id, material_id)
 );
 
 CREATE INDEX results_material ON results (material_id, status);
+CREATE INDEX results_content ON results (material_id, content);
 
 CREATE TABLE nodes (
     run_id      INTEGER NOT NULL,

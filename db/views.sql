@@ -1,6 +1,7 @@
 -- bandsieve catalogue views. Re-created by every cat_open (CAT_RW), so a new program version
 -- brings its views to an old catalogue; documented in db/README.md.
 
+DROP VIEW IF EXISTS conflicts;
 DROP VIEW IF EXISTS surfaces;
 DROP VIEW IF EXISTS top_spin_hall;
 DROP VIEW IF EXISTS failures;
@@ -8,20 +9,26 @@ DROP VIEW IF EXISTS candidates;
 DROP VIEW IF EXISTS summary;
 DROP VIEW IF EXISTS run_progress;
 
--- One row per material that has any result: its most resolved successful row (highest mesh
--- among status 'ok', latest run on ties); a material without an 'ok' row shows its latest row.
+-- One row per material that has any result: among the rows about its current content (the
+-- content hash last read from a set, materials.content), the most resolved successful row
+-- (highest mesh among status 'ok', latest run on ties), else the latest row. Only when no row is
+-- about the current content does an older content's row show, with current = 0 (to be redone).
+-- contents > 1 says results of other contents exist for this id (view conflicts lists them).
 CREATE VIEW summary AS
 WITH ranked AS (
     -- Only the row id and the ordering keys go through the window sort; the wide columns
     -- (the diagnosis text) are fetched for the chosen rows only.
-    SELECT rowid AS rid,
+    SELECT r.rowid AS rid,
+           (r.content IS m.content) AS current,
            ROW_NUMBER() OVER (
-               PARTITION BY material_id
-               ORDER BY (status = 'ok') DESC,
-                        CASE WHEN status = 'ok' THEN mesh END DESC NULLS LAST,
-                        run_id DESC,
-                        finished DESC) AS pick
-    FROM results
+               PARTITION BY r.material_id
+               ORDER BY (r.content IS m.content) DESC,
+                        (r.status = 'ok') DESC,
+                        CASE WHEN r.status = 'ok' THEN r.mesh END DESC NULLS LAST,
+                        r.run_id DESC,
+                        r.finished DESC) AS pick
+    FROM results r
+    LEFT JOIN materials m ON m.material_id = r.material_id
 )
 SELECT k.material_id,
        m.formula,
@@ -55,7 +62,11 @@ SELECT k.material_id,
        k.ahc_zx,
        k.ahc_units,
        k.shc_xy,
-       k.shc_units
+       k.shc_units,
+       k.content,
+       p.current,
+       (SELECT COUNT(DISTINCT COALESCE(o.content, '')) FROM results o
+        WHERE o.material_id = k.material_id) AS contents
 FROM ranked p
 JOIN results k ON k.rowid = p.rid
 LEFT JOIN materials m ON m.material_id = k.material_id
@@ -77,11 +88,24 @@ ORDER BY (s.nontrivial = 1 AND COALESCE(s.confidence, 0) >= 0.7) DESC,
          s.material_id;
 
 -- Every row that is not 'ok', newest run first, with whether the material has an 'ok' row in
--- any run (resolved = 1) and where the run came from.
+-- any run (resolved = 1) and where the run came from. The first column, cause, is the message
+-- with the set's path dropped and a leading "materials/<id>[/dataset]: " location moved to the
+-- end in brackets, so what went wrong comes first: "not Hermitian: ... [materials/JQ-0013]".
 CREATE VIEW failures AS
-SELECT r.run_id,
+WITH rel AS (
+    SELECT r.rowid AS rid,
+           CASE WHEN instr(r.message, ':/materials/') > 0
+                THEN substr(r.message, instr(r.message, ':/materials/') + 2)
+                ELSE r.message END AS msg
+    FROM results r
+    WHERE r.status <> 'ok'
+)
+SELECT CASE WHEN x.msg LIKE 'materials/%' AND instr(x.msg, ': ') > 0
+            THEN substr(x.msg, instr(x.msg, ': ') + 2) || ' [' || substr(x.msg, 1, instr(x.msg, ': ') - 1) || ']'
+            ELSE x.msg END AS cause,
        r.material_id,
        r.status,
+       r.run_id,
        r.message,
        r.rank,
        r.seconds,
@@ -90,9 +114,9 @@ SELECT r.run_id,
                WHERE o.material_id = r.material_id AND o.status = 'ok') AS resolved,
        u.kind,
        u.set_path
-FROM results r
+FROM rel x
+JOIN results r ON r.rowid = x.rid
 JOIN runs u ON u.run_id = r.run_id
-WHERE r.status <> 'ok'
 ORDER BY r.run_id DESC, r.material_id;
 
 -- Materials by the size of their intrinsic spin Hall conductivity: per material the most
@@ -164,3 +188,21 @@ SELECT s.material_id,
 FROM summary s
 JOIN results r ON r.run_id = s.run_id AND r.material_id = s.material_id
 WHERE json_extract(r.diagnosis, '$.surface') IS NOT NULL;
+
+-- conflicts: ids that have results about more than one content (a repacked entry, or two sets
+-- that use the same id for different materials), one row per (id, content): whether it is the
+-- current content, how many rows, the best ok mesh, the latest run and that run's set path.
+CREATE VIEW conflicts AS
+SELECT r.material_id,
+       r.content,
+       (r.content IS m.content) AS current,
+       COUNT(*) AS results,
+       MAX(CASE WHEN r.status = 'ok' THEN r.mesh END) AS best_mesh,
+       MAX(r.run_id) AS last_run_id,
+       (SELECT u.set_path FROM runs u WHERE u.run_id = MAX(r.run_id)) AS set_path
+FROM results r
+LEFT JOIN materials m ON m.material_id = r.material_id
+WHERE r.material_id IN (SELECT material_id FROM results
+                        GROUP BY material_id HAVING COUNT(DISTINCT COALESCE(content, '')) > 1)
+GROUP BY r.material_id, r.content
+ORDER BY r.material_id, current DESC, last_run_id DESC;

@@ -6,14 +6,22 @@
  *   dimension        2 or 3
  *   lattice          [[a1],[a2],[a3]]: three rows of three numbers, Cartesian, Angstrom
  *   hoppings         path of the hopping table, relative to the card's folder unless absolute
- *   occupied_bands   integer, 1..norb-1
+ *   occupied_bands   integer, 1..norb-1; or instead
+ *   electrons        integer: electrons in the Wannier subspace (the table's bands). Spinful: one
+ *                    per band, occupied_bands = electrons. Spinless: the model stands for two
+ *                    spin-degenerate copies, two per band, occupied_bands = electrons / 2 (an odd
+ *                    count is refused). Exactly one of the two keys.
  *   spinful          boolean
- *   spin_layout      "blocks" | "interleaved"; required when spinful, rejected otherwise
+ *   spin_layout      "blocks" | "interleaved"; required when spinful; on a spinless card accepted,
+ *                    ignored, and reported as a note
  *   orbitals         [{"position": [3 reduced], "l": 0..3, "label": optional string}, ...], one per
  *                    spatial orbital; the table holds (spinful ? 2 : 1) * len(orbitals) states
  *   formula          optional string (< 64 characters)
  *   source           optional string (< 256 characters)
  *   fermi_energy_eV  optional number
+ *   meta             optional object, free-form (any keys and values), stored as given with the
+ *                    card; the place for extra information, since unknown top-level keys are
+ *                    refused (with a "did you mean" suggestion for near misses)
  *   inversion        optional explicit inversion operator, one entry per basis state i (in table
  *                    order): {"maps_to": j (1-based state), "sign": +1|-1, "shift": [3 integers]}.
  *                    Meaning: P c+_{i,R} P^-1 = sign_i c+_{j,-R+shift_i}, i.e. the state i at
@@ -47,6 +55,11 @@ int card_read(const char *path, tb_model **out, bs_err *err);
 
 /* As card_read; flags is 0 or CARD_NO_VALIDATE. */
 int card_read_opts(const char *path, int flags, tb_model **out, bs_err *err);
+
+/* As card_read_opts, and fills notes (capacity cap; may be NULL) with lines
+ * "card.json:LINE: key 'K': ..." about things accepted but worth saying (a spin_layout on a
+ * spinless card); "" when there are none. The model's card_json holds the card as read. */
+int card_read_notes(const char *path, int flags, tb_model **out, char *notes, size_t cap, bs_err *err);
 
 /* 1 when id is acceptable as a material id (see the id key above), else 0. Material ids become
  * file names and HDF5 group names, hence the restricted alphabet. */

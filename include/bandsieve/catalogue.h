@@ -14,7 +14,7 @@
 #include "bandsieve/result.h"
 
 /* Schema version stored in PRAGMA user_version; PRAGMA application_id is CAT_APPLICATION_ID. */
-#define CAT_SCHEMA_VERSION 1
+#define CAT_SCHEMA_VERSION 2
 #define CAT_APPLICATION_ID 0x42534376 /* "BSCv" */
 
 /* Defaults for the commit batching (cat_set_batch). */
@@ -66,9 +66,11 @@ int cat_close(cat_db *cat, bs_err *err);
 int cat_set_batch(cat_db *cat, int rows, double seconds, bs_err *err);
 
 /* Description of a run, all strings borrowed. settings_json must hold every option that changes
- * results (mesh, tasks, flags, time budget, and for rescreen the --where condition); it is
- * stored in canonical form (keys sorted, no spaces), and two runs are compatible for resume
- * when kind, settings, version and set path are equal. NULL strings store NULL. */
+ * results (mesh, tasks, flags, per-material budget, and for rescreen the --where condition), in
+ * normalised form (an explicit default written as the default; options that cannot change a
+ * result left out); it is stored in canonical form (keys sorted, no spaces). Two runs are
+ * compatible for resume when kind, settings, version and the set's content hash are equal (the
+ * set path when set_content is NULL). NULL strings store NULL. */
 typedef struct cat_run_info {
     const char *kind;          /* "screen" or "rescreen" */
     const char *settings_json; /* a JSON object; NULL is stored as "{}" */
@@ -77,6 +79,8 @@ typedef struct cat_run_info {
     const char *hosts;         /* comma-separated host names */
     const char *cmdline;       /* the command line, joined with spaces */
     const char *set_path;      /* material set the run reads */
+    const char *set_content;   /* the set's content hash (ms_set_content), or NULL */
+    int rerun;                 /* 1: started by --rerun (recorded in runs.rerun) */
 } cat_run_info;
 
 /* Starts a new run (status running, session 1) and returns its id in *run_id. Used by --rerun
@@ -89,6 +93,22 @@ int cat_run_begin(cat_db *cat, const cat_run_info *info, int64_t *run_id, bs_err
  * continued, 0 for a new one. The caller then skips the ids from cat_done_ids. Committed at once. */
 int cat_run_resume(cat_db *cat, const cat_run_info *info, int64_t *run_id, int *resumed,
                    bs_err *err);
+
+/* For --rerun: continues the latest compatible unfinished run only when an earlier --rerun started
+ * it (so a resubmitted job script containing --rerun finishes its run instead of starting over each
+ * time); otherwise starts a new run. *resumed as for cat_run_resume. */
+int cat_run_rerun(cat_db *cat, const cat_run_info *info, int64_t *run_id, int *resumed, bs_err *err);
+
+/* What a run is, for telling the user what was resumed. */
+typedef struct cat_run_state {
+    char started[40];       /* UTC text */
+    int sessions;           /* jobs so far, this one included */
+    int rerun;              /* started by --rerun */
+    long long nresults;     /* rows it holds */
+    char set_path[1024];    /* the set path of its first session */
+} cat_run_state;
+
+int cat_run_get(cat_db *cat, int64_t run_id, cat_run_state *out, bs_err *err);
 
 /* Commits pending writes, then records status and the end time of the run and of its session. */
 int cat_run_end(cat_db *cat, int64_t run_id, cat_run_status status, bs_err *err);
@@ -106,6 +126,11 @@ typedef struct cat_material {
     const char *set_path;
     const char *source;      /* provenance note from the card */
     const char *card_json;   /* the card as JSON text, or NULL */
+    const char *content;     /* the entry's content hash (content.h) in the set it is read from */
+    const char *set_content; /* that set's content hash */
+    const char *comment;     /* the card's comment */
+    const char *orbital_labels; /* JSON list of the orbitals' labels (null where none) */
+    const char *meta;        /* the card's meta object as JSON */
 } cat_material;
 
 /* Inserts or updates the material row (non-NULL fields replace the stored ones). Batched like
@@ -156,10 +181,18 @@ int cat_ids_contains(const cat_ids *ids, const char *id);
  * them. *ids (initialised by the caller) is replaced. */
 int cat_done_ids(cat_db *cat, int64_t run_id, cat_ids *ids, bs_err *err);
 
-/* The material ids that have a result row in any finished (status done) run compatible with info
- * (same kind, settings, version and set path): a new screen with the same settings skips them,
- * so running `screen` again after it finished does nothing new (--rerun does not call this). */
+/* The material ids that have a result row about their current content (materials.content) in any
+ * run with the same kind, settings and version, whatever the set's path: a new screen skips them,
+ * so running `screen` again does only entries that are new or whose content changed (--rerun does
+ * not call this). Call after the materials' content has been recorded (cat_material_upsert). */
 int cat_finished_ids(cat_db *cat, const cat_run_info *info, cat_ids *ids, bs_err *err);
+
+/* *stale = 1 when the material row is missing, has another content than `content`, or lacks its
+ * card: its provenance should be (re)written from the set. */
+int cat_material_stale(cat_db *cat, const char *material_id, const char *content, int *stale, bs_err *err);
+
+/* The highest mesh among the `ok` rows of the material's current content, 0 when it has none. */
+int cat_best_mesh(cat_db *cat, const char *material_id, int *mesh, bs_err *err);
 
 /* The material ids of `SELECT material_id FROM summary WHERE (where_sql)`, for rescreen.
  * where_sql is one SQL condition; a condition that would write, or that holds a second

@@ -23,6 +23,8 @@ typedef struct ms_entry {
     char id[128];
     int dim, norb, nR, nocc, spinful, status;
     double cost;
+    char content[65];   /* content hash (content.h), "" in sets written before it existed:
+                           ms_content computes it then */
 } ms_entry;
 
 /* Creates a set for writing at path. Everything goes to "<path>.partial" until ms_close renames
@@ -46,6 +48,11 @@ int ms_add_broken(ms_set *s, const tb_model *m, bs_err *err);
 /* Adds an entry holding only an error (code, message; borrowed) for a material whose card could
  * not be read; reading it returns that code and message. id must pass card_id_ok. */
 int ms_add_error(ms_set *s, const char *id, int code, const char *message, bs_err *err);
+
+/* Copies entry i of src (an open reader; borrowed) into the writer dst as it is stored (all
+ * datasets and attributes, status and content hash; the hash is computed when src lacks it).
+ * Used by pack to append to an existing set. Errors: BS_EINVAL (duplicate id), BS_EHDF5. */
+int ms_copy_entry(ms_set *dst, const ms_set *src, int i, bs_err *err);
 
 /* Writer: writes the index and metadata, closes the file and renames it onto the final path.
  * Reader: closes the file. The set must still be freed. Errors: BS_EHDF5, BS_EIO. */
@@ -74,6 +81,21 @@ int ms_find(const ms_set *s, const char *id);
  * for MS_STATUS_ERROR entries, BS_EINVAL for an unknown id or index, BS_EHDF5. Reader only. */
 int ms_read(const ms_set *s, int i, tb_model **out, bs_err *err);
 int ms_read_id(const ms_set *s, const char *id, tb_model **out, bs_err *err);
+
+/* The content hash of entry i (64 hexadecimal characters and a NUL) into hex: the stored one,
+ * or for sets written before hashes were stored, computed by reading the entry (unvalidated;
+ * an error entry hashes its stored message). Reader only; BS_EHDF5/BS_EPARSE when the entry
+ * cannot be read at all. */
+int ms_content(const ms_set *s, int i, char hex[65], bs_err *err);
+
+/* The whole set's content hash: SHA-256 of the lines "<id> <content hash>\n" in id order, so it
+ * does not depend on the file's path, name or entry order. Reader only; errors as ms_content. */
+int ms_set_content(const ms_set *s, char hex[65], bs_err *err);
+
+/* The card of entry i as JSON text (what the card held, comment, labels and meta included); the
+ * caller owns *json (free). *json is NULL when the entry stores no card (sets written before
+ * cards were kept, built-in models, error entries). Reader only. */
+int ms_read_card(const ms_set *s, int i, char **json, bs_err *err);
 
 /* The description ("" when none), the invented flag, and the path the set was opened with. */
 const char *ms_description(const ms_set *s);

@@ -45,6 +45,10 @@ typedef struct tb_model {
     int (*R)[3];            /* nR lattice vectors */
     int *deg;               /* nR degeneracy weights (>= 1) */
     double complex *H;      /* nR * norb * norb, eV */
+    /* Provenance, not data: the material card as read (compact JSON text: every key including
+     * comment, orbital labels and meta), owned, NULL when the model did not come from a card.
+     * It does not enter the content hash (content.h). */
+    char *card_json;
 } tb_model;
 
 /* Allocates a model for norb states, nspatial orbitals and nR lattice vectors, all arrays zeroed.

@@ -26,6 +26,9 @@ typedef struct pl_counts {
     int interrupted;      /* stopped early: wall-clock budget or a signal */
     long long run_id;
     int resumed;
+    int missing;          /* rescreen: selected ids that the set does not hold */
+    char missing_ids[256];/* the first few of them, comma-separated */
+    char note[768];       /* what was resumed, or why --rerun resumed; "" when nothing to say */
 } pl_counts;
 
 /* What one material's diagnosis includes besides the topology. */
@@ -48,8 +51,10 @@ typedef struct pl_opts {
     const char *catalogue_path; /* catalogue (SQLite) */
     const char *kind;           /* "screen" or "rescreen" */
     const char *where_sql;      /* rescreen: condition on summary */
-    int mesh;                   /* 0: the diagnosis default times mesh_factor */
-    int mesh_factor;            /* 0 or 1: the default mesh; rescreen without --mesh uses 2 */
+    int mesh;                   /* 0: the diagnosis default times mesh_factor; a rescreen without
+                                   a mesh doubles each entry's best mesh instead */
+    int mesh_factor;            /* 0 or 1: the default mesh; 2: the default doubled (a rescreen's
+                                   entries without an ok result of their content) */
     double max_seconds;         /* wall-clock budget of the whole job (0: none) */
     double material_seconds;    /* budget per material; over it the row is `timeout` (0: none) */
     double symmetry_tol;        /* see diag_opts (0: default) */
@@ -58,7 +63,8 @@ typedef struct pl_opts {
     int group_size;             /* >= 2: the last group_size ranks form a group that diagonalises
                                    materials of at least group_min_states states together */
     int group_min_states;       /* 0: PZ_DEFAULT_THRESHOLD */
-    int rerun;                  /* start a new run instead of resuming */
+    int rerun;                  /* start a new run instead of resuming (an unfinished run that
+                                   an earlier --rerun started is resumed, with a note) */
     int batch_rows;             /* catalogue commit batch (0: default) */
     double batch_seconds;
     const char *cmdline;        /* recorded in the run row */

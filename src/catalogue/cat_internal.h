@@ -30,6 +30,7 @@ enum {
 struct cat_db {
     sqlite3 *db;
     int mode;                /* CAT_RO / CAT_RW */
+    int from_version;        /* schema version found at open (migrated when older) */
     char *path;              /* catalogue file, as given */
     sqlite3_stmt *st[CAT_ST_COUNT];
 

@@ -97,11 +97,42 @@ static int check_marks(cat_db *cat, int *fresh, bs_err *err)
     if (version > CAT_SCHEMA_VERSION)
         return bs_fail(err, BS_EINVAL, "%s: catalogue schema version %d is newer than this program's %d",
                        cat->path, version, CAT_SCHEMA_VERSION);
-    if (version < CAT_SCHEMA_VERSION)
-        return bs_fail(err, BS_EINVAL, "%s: catalogue schema version %d is older than %d and no migration exists",
-                       cat->path, version, CAT_SCHEMA_VERSION);
+    if (version < 1)
+        return bs_fail(err, BS_EINVAL, "%s: catalogue schema version %d is older than 1 and no migration exists",
+                       cat->path, version);
+    cat->from_version = version;
     return 0;
 }
+
+/* Version 1 -> 2: content identity, provenance and integer invariant columns (db/schema.sql has
+ * the same columns for new files; test_catalogue compares the two). Added columns are NULL (or
+ * their default) in old rows; a result row without a content hash matches a material whose
+ * current content is unknown too. */
+static const char MIGRATE_1_2[] =
+    "ALTER TABLE runs ADD COLUMN set_content TEXT;"
+    "ALTER TABLE runs ADD COLUMN rerun INTEGER NOT NULL DEFAULT 0;"
+    "ALTER TABLE materials ADD COLUMN content TEXT;"
+    "ALTER TABLE materials ADD COLUMN set_content TEXT;"
+    "ALTER TABLE materials ADD COLUMN comment TEXT;"
+    "ALTER TABLE materials ADD COLUMN orbital_labels TEXT;"
+    "ALTER TABLE materials ADD COLUMN meta TEXT;"
+    "ALTER TABLE results ADD COLUMN content TEXT;"
+    "ALTER TABLE results ADD COLUMN z2_nu0 INTEGER GENERATED ALWAYS AS (CASE WHEN z2 GLOB '[01]' OR z2 GLOB "
+    "'[01];[01][01][01]' THEN CAST(substr(z2, 1, 1) AS INTEGER) END) VIRTUAL;"
+    "ALTER TABLE results ADD COLUMN z2_nu1 INTEGER GENERATED ALWAYS AS (CASE WHEN z2 GLOB '[01];[01][01][01]' "
+    "THEN CAST(substr(z2, 3, 1) AS INTEGER) END) VIRTUAL;"
+    "ALTER TABLE results ADD COLUMN z2_nu2 INTEGER GENERATED ALWAYS AS (CASE WHEN z2 GLOB '[01];[01][01][01]' "
+    "THEN CAST(substr(z2, 4, 1) AS INTEGER) END) VIRTUAL;"
+    "ALTER TABLE results ADD COLUMN z2_nu3 INTEGER GENERATED ALWAYS AS (CASE WHEN z2 GLOB '[01];[01][01][01]' "
+    "THEN CAST(substr(z2, 5, 1) AS INTEGER) END) VIRTUAL;"
+#define PLANE_COL(name, k) \
+    "ALTER TABLE results ADD COLUMN " name " INTEGER GENERATED ALWAYS AS (CASE WHEN json_valid('[' || " \
+    "replace(plane_chern, ';', ',') || ']') THEN json_extract('[' || replace(plane_chern, ';', ',') || ']', '$[" k "]') END) VIRTUAL;"
+    PLANE_COL("chern_k1_0", "0") PLANE_COL("chern_k1_half", "1") PLANE_COL("chern_k2_0", "2")
+    PLANE_COL("chern_k2_half", "3") PLANE_COL("chern_k3_0", "4") PLANE_COL("chern_k3_half", "5")
+#undef PLANE_COL
+    "CREATE INDEX results_content ON results (material_id, content);"
+    "PRAGMA user_version = 2;";
 
 /* Schema (fresh files only) and views in one immediate transaction, so two coordinators opening
  * the same new file cannot both create it. */
@@ -117,6 +148,9 @@ static int apply_schema(cat_db *cat, bs_err *err)
         snprintf(marks, sizeof marks, "PRAGMA application_id = %d; PRAGMA user_version = %d;",
                  CAT_APPLICATION_ID, CAT_SCHEMA_VERSION);
         if (rc == 0) rc = cat_exec(cat, marks, err);
+    } else if (rc == 0 && cat->from_version == 1) {
+        rc = cat_exec(cat, MIGRATE_1_2, err);
+        if (rc != 0) bs_err_context(err, "migrating the catalogue from schema version 1 to 2: ");
     }
     if (rc == 0) rc = cat_exec(cat, (const char *)cat_sql_views, err);
     if (rc == 0) return cat_exec(cat, "COMMIT", err);
@@ -130,12 +164,15 @@ static const char *const STMT_SQL[CAT_ST_COUNT] = {
         " gap_direct_ev, gap_indirect_ev, k_gap_direct, time_reversal, inversion, z2, z2_parity, z2_wcc,"
         " z2_status, z2_note, chern, chern_status, plane_chern, n_weyl, net_chirality, nodal_line, mesh,"
         " diag_seconds, seconds, rank, finished, ahc_xy, ahc_yz, ahc_zx, ahc_units, shc_xy, shc_units,"
-        " transport_fermi_ev, diagnosis) VALUES ("
+        " transport_fermi_ev, diagnosis, content) VALUES ("
         " :run_id, :material_id, :status, :message, :class, :confidence, :reason,"
         " :gap_direct_ev, :gap_indirect_ev, :k_gap_direct, :time_reversal, :inversion, :z2, :z2_parity, :z2_wcc,"
         " :z2_status, :z2_note, :chern, :chern_status, :plane_chern, :n_weyl, :net_chirality, :nodal_line, :mesh,"
         " :diag_seconds, :seconds, :rank, " CAT_NOW_SQL ", :ahc_xy, :ahc_yz, :ahc_zx, :ahc_units, :shc_xy, :shc_units,"
-        " :transport_fermi_ev, :diagnosis)",
+        " :transport_fermi_ev, :diagnosis,"
+        /* The content the row is about: the coordinator records each entry's content in materials
+         * before handing it out (pl coord_setup), so the current one is the one computed. */
+        " (SELECT content FROM materials WHERE material_id = :material_id))",
     [CAT_ST_EXISTS] = "SELECT 1 FROM results WHERE run_id = ? AND material_id = ?",
     [CAT_ST_DEL_RESULT] = "DELETE FROM results WHERE run_id = ? AND material_id = ?",
     [CAT_ST_NODE] = "INSERT INTO nodes (run_id, material_id, node, k1, k2, k3, chirality, energy_ev, gap_ev)"
@@ -148,12 +185,16 @@ static const char *const STMT_SQL[CAT_ST_COUNT] = {
                           " VALUES (?, ?, ?, ?, " CAT_NOW_SQL ")",
     [CAT_ST_MAT_UPSERT] =
         "INSERT INTO materials (material_id, formula, dimension, norb, nr, nocc, spinful, set_path, source,"
-        " card_json, updated) VALUES (?1, ?2, ?3, ?4, ?5, ?6, ?7, ?8, ?9, ?10, " CAT_NOW_SQL ")"
+        " card_json, updated, content, set_content, comment, orbital_labels, meta)"
+        " VALUES (?1, ?2, ?3, ?4, ?5, ?6, ?7, ?8, ?9, ?10, " CAT_NOW_SQL ", ?11, ?12, ?13, ?14, ?15)"
         " ON CONFLICT (material_id) DO UPDATE SET formula = COALESCE(excluded.formula, formula),"
         " dimension = COALESCE(excluded.dimension, dimension), norb = COALESCE(excluded.norb, norb),"
         " nr = COALESCE(excluded.nr, nr), nocc = COALESCE(excluded.nocc, nocc),"
         " spinful = COALESCE(excluded.spinful, spinful), set_path = COALESCE(excluded.set_path, set_path),"
         " source = COALESCE(excluded.source, source), card_json = COALESCE(excluded.card_json, card_json),"
+        " content = COALESCE(excluded.content, content), set_content = COALESCE(excluded.set_content, set_content),"
+        " comment = COALESCE(excluded.comment, comment),"
+        " orbital_labels = COALESCE(excluded.orbital_labels, orbital_labels), meta = COALESCE(excluded.meta, meta),"
         " updated = excluded.updated",
 };
 
@@ -396,8 +437,8 @@ static int session_insert(cat_db *cat, int64_t run_id, int session, const cat_ru
 static int run_insert(cat_db *cat, const cat_run_info *info, const char *settings, int64_t *run_id, bs_err *err)
 {
     sqlite3_stmt *st = NULL;
-    int rc = prepare(cat, "INSERT INTO runs (kind, status, started, version, settings, ranks, hosts, cmdline, set_path)"
-                          " VALUES (?, 'running', " CAT_NOW_SQL ", ?, ?, ?, ?, ?, ?)", &st, err);
+    int rc = prepare(cat, "INSERT INTO runs (kind, status, started, version, settings, ranks, hosts, cmdline, set_path,"
+                          " set_content, rerun) VALUES (?, 'running', " CAT_NOW_SQL ", ?, ?, ?, ?, ?, ?, ?, ?)", &st, err);
     if (rc != 0) return rc;
     sqlite3_bind_text(st, 1, info->kind, -1, SQLITE_TRANSIENT);
     bind_text_or_null(st, 2, info->version);
@@ -406,29 +447,38 @@ static int run_insert(cat_db *cat, const cat_run_info *info, const char *setting
     bind_text_or_null(st, 5, info->hosts);
     bind_text_or_null(st, 6, info->cmdline);
     bind_text_or_null(st, 7, info->set_path);
+    bind_text_or_null(st, 8, info->set_content);
+    sqlite3_bind_int(st, 9, info->rerun ? 1 : 0);
     rc = step_done(cat, st, "recording the run", err);
     if (rc == 0) *run_id = sqlite3_last_insert_rowid(cat->db);
     if (rc == 0) rc = session_insert(cat, *run_id, 1, info, err);
     return rc;
 }
 
-/* The latest compatible unfinished run, or 0. */
-static int run_find(cat_db *cat, const cat_run_info *info, const char *settings, int64_t *run_id, int *sessions, bs_err *err)
+/* The latest compatible unfinished run, or 0: same kind, settings and version, and the same set,
+ * by content hash when info has one (a set staged at another path is the same set), else by path. */
+static int run_find(cat_db *cat, const cat_run_info *info, const char *settings, int64_t *run_id, int *sessions,
+                    int *rerun, bs_err *err)
 {
     sqlite3_stmt *st = NULL;
     *run_id = 0;
-    int rc = prepare(cat, "SELECT run_id, sessions FROM runs WHERE kind = ? AND settings = ? AND version IS ?"
-                          " AND set_path IS ? AND status IN ('running', 'interrupted') ORDER BY run_id DESC LIMIT 1",
+    *rerun = 0;
+    int rc = prepare(cat, info->set_content
+                              ? "SELECT run_id, sessions, rerun FROM runs WHERE kind = ? AND settings = ? AND version IS ?"
+                                " AND set_content = ? AND status IN ('running', 'interrupted') ORDER BY run_id DESC LIMIT 1"
+                              : "SELECT run_id, sessions, rerun FROM runs WHERE kind = ? AND settings = ? AND version IS ?"
+                                " AND set_path IS ? AND status IN ('running', 'interrupted') ORDER BY run_id DESC LIMIT 1",
                      &st, err);
     if (rc != 0) return rc;
     sqlite3_bind_text(st, 1, info->kind, -1, SQLITE_TRANSIENT);
     sqlite3_bind_text(st, 2, settings, -1, SQLITE_TRANSIENT);
     bind_text_or_null(st, 3, info->version);
-    bind_text_or_null(st, 4, info->set_path);
+    bind_text_or_null(st, 4, info->set_content ? info->set_content : info->set_path);
     int s = sqlite3_step(st);
     if (s == SQLITE_ROW) {
         *run_id = sqlite3_column_int64(st, 0);
         *sessions = sqlite3_column_int(st, 1);
+        *rerun = sqlite3_column_int(st, 2);
     } else if (s != SQLITE_DONE) {
         rc = cat_sql_fail(cat, err, "looking for a run to resume");
     }
@@ -448,7 +498,9 @@ static int run_reopen(cat_db *cat, int64_t run_id, int session, const cat_run_in
     return rc;
 }
 
-/* Shared body of begin and resume: one immediate transaction after the pending batch. */
+/* Shared body of begin and resume: one immediate transaction after the pending batch.
+ * try_resume 0: always a new run; 1: resume any compatible unfinished run; 2 (--rerun): resume
+ * only one that an earlier --rerun started. */
 static int run_start(cat_db *cat, const cat_run_info *info, int try_resume, int64_t *run_id, int *resumed, bs_err *err)
 {
     *run_id = 0;
@@ -464,8 +516,9 @@ static int run_start(cat_db *cat, const cat_run_info *info, int try_resume, int6
         return rc;
     }
     int64_t id = 0;
-    int sessions = 0;
-    if (try_resume) rc = run_find(cat, info, settings, &id, &sessions, err);
+    int sessions = 0, was_rerun = 0;
+    if (try_resume) rc = run_find(cat, info, settings, &id, &sessions, &was_rerun, err);
+    if (rc == 0 && id > 0 && try_resume == 2 && !was_rerun) id = 0, sessions = 0;
     if (rc == 0 && id > 0) rc = run_reopen(cat, id, sessions + 1, info, err);
     else if (rc == 0) rc = run_insert(cat, info, settings, &id, err);
     free(settings);
@@ -488,6 +541,32 @@ int cat_run_begin(cat_db *cat, const cat_run_info *info, int64_t *run_id, bs_err
 int cat_run_resume(cat_db *cat, const cat_run_info *info, int64_t *run_id, int *resumed, bs_err *err)
 {
     return run_start(cat, info, 1, run_id, resumed, err);
+}
+
+int cat_run_rerun(cat_db *cat, const cat_run_info *info, int64_t *run_id, int *resumed, bs_err *err)
+{
+    return run_start(cat, info, 2, run_id, resumed, err);
+}
+
+int cat_run_get(cat_db *cat, int64_t run_id, cat_run_state *out, bs_err *err)
+{
+    memset(out, 0, sizeof *out);
+    sqlite3_stmt *st = NULL;
+    int rc = prepare(cat, "SELECT started, sessions, rerun, (SELECT COUNT(*) FROM results r WHERE r.run_id = u.run_id),"
+                          " COALESCE(set_path, '') FROM runs u WHERE run_id = ?", &st, err);
+    if (rc != 0) return rc;
+    sqlite3_bind_int64(st, 1, run_id);
+    if (sqlite3_step(st) == SQLITE_ROW) {
+        snprintf(out->started, sizeof out->started, "%s", (const char *)sqlite3_column_text(st, 0));
+        out->sessions = sqlite3_column_int(st, 1);
+        out->rerun = sqlite3_column_int(st, 2);
+        out->nresults = sqlite3_column_int64(st, 3);
+        snprintf(out->set_path, sizeof out->set_path, "%s", (const char *)sqlite3_column_text(st, 4));
+    } else {
+        rc = bs_fail(err, BS_EINVAL, "%s: no run %lld", cat->path, (long long)run_id);
+    }
+    sqlite3_finalize(st);
+    return rc;
 }
 
 int cat_run_end(cat_db *cat, int64_t run_id, cat_run_status status, bs_err *err)
@@ -566,6 +645,11 @@ int cat_material_upsert(cat_db *cat, const cat_material *m, bs_err *err)
     bind_text_or_null(st, 8, m->set_path);
     bind_text_or_null(st, 9, m->source);
     bind_text_or_null(st, 10, m->card_json);
+    bind_text_or_null(st, 11, m->content);
+    bind_text_or_null(st, 12, m->set_content);
+    bind_text_or_null(st, 13, m->comment);
+    bind_text_or_null(st, 14, m->orbital_labels);
+    bind_text_or_null(st, 15, m->meta);
     int s = sqlite3_step(st);
     sqlite3_reset(st);
     sqlite3_clear_bindings(st);
@@ -640,14 +724,16 @@ int cat_finished_ids(cat_db *cat, const cat_run_info *info, cat_ids *ids, bs_err
     int rc = canonical_settings(info->settings_json, &settings, err);
     if (rc != 0) return rc;
     sqlite3_stmt *st = NULL;
+    /* A row counts when it is about the material's current content: a repacked entry with a new
+     * table has a new hash and is done again; the set's path plays no part. */
     rc = prepare(cat, "SELECT DISTINCT r.material_id FROM results r JOIN runs u ON u.run_id = r.run_id"
-                      " WHERE u.kind = ? AND u.settings = ? AND u.version IS ? AND u.set_path IS ?"
-                      " AND u.status = 'done' ORDER BY r.material_id", &st, err);
+                      " JOIN materials m ON m.material_id = r.material_id"
+                      " WHERE u.kind = ? AND u.settings = ? AND u.version IS ? AND r.content IS m.content"
+                      " ORDER BY r.material_id", &st, err);
     if (rc != 0) { free(settings); return rc; }
     sqlite3_bind_text(st, 1, info->kind, -1, SQLITE_TRANSIENT);
     sqlite3_bind_text(st, 2, settings, -1, SQLITE_TRANSIENT);
     bind_text_or_null(st, 3, info->version);
-    bind_text_or_null(st, 4, info->set_path);
     cat_ids acc = {0, NULL};
     size_t cap = 0;
     int s;
@@ -671,6 +757,35 @@ int cat_finished_ids(cat_db *cat, const cat_run_info *info, cat_ids *ids, bs_err
     cat_ids_clear(ids);
     *ids = acc;
     return 0;
+}
+
+int cat_material_stale(cat_db *cat, const char *material_id, const char *content, int *stale, bs_err *err)
+{
+    *stale = 1;
+    sqlite3_stmt *st = NULL;
+    int rc = prepare(cat, "SELECT content IS ?2 AND card_json IS NOT NULL FROM materials WHERE material_id = ?1", &st, err);
+    if (rc != 0) return rc;
+    sqlite3_bind_text(st, 1, material_id, -1, SQLITE_TRANSIENT);
+    bind_text_or_null(st, 2, content);
+    int s = sqlite3_step(st);
+    if (s == SQLITE_ROW) *stale = !sqlite3_column_int(st, 0);
+    else if (s != SQLITE_DONE) rc = cat_sql_fail(cat, err, "reading a material's content");
+    sqlite3_finalize(st);
+    return rc;
+}
+
+int cat_best_mesh(cat_db *cat, const char *material_id, int *mesh, bs_err *err)
+{
+    *mesh = 0;
+    sqlite3_stmt *st = NULL;
+    int rc = prepare(cat, "SELECT MAX(r.mesh) FROM results r JOIN materials m ON m.material_id = r.material_id"
+                          " WHERE r.material_id = ? AND r.status = 'ok' AND r.content IS m.content", &st, err);
+    if (rc != 0) return rc;
+    sqlite3_bind_text(st, 1, material_id, -1, SQLITE_TRANSIENT);
+    if (sqlite3_step(st) == SQLITE_ROW) *mesh = sqlite3_column_int(st, 0);
+    else rc = cat_sql_fail(cat, err, "reading the best mesh");
+    sqlite3_finalize(st);
+    return rc;
 }
 
 int cat_select_ids(cat_db *cat, const char *where_sql, cat_ids *ids, bs_err *err)

@@ -61,6 +61,10 @@ static void show_progress(void *ctx, const pl_counts *c, int final)
 static void announce(void *ctx, const pl_counts *c, const char *kind)
 {
     progress_state *p = ctx;
+    if (c->missing > 0)
+        fprintf(stderr, "%s: warning: %d selected material%s not in the set, left out: %s%s\n", p->what, c->missing,
+                c->missing == 1 ? " is" : "s are", c->missing_ids, c->missing > 5 ? ", ..." : "");
+    if (c->note[0]) fprintf(stderr, "%s: %s\n", p->what, c->note);
     if (!strcmp(kind, "rescreen"))
         fprintf(stderr, "%s: %d materials selected (run %lld)\n", p->what, c->total + c->skipped, c->run_id);
     else
@@ -76,16 +80,21 @@ static void screen_help(FILE *out, int rescreen)
                      "Reruns the materials whose row in the catalogue's summary view matches the condition,\n"
                      "as a new run at a higher resolution; summary then shows the more resolved result.\n\n"
                      "  --where COND        condition on the summary view, e.g. \"confidence < 0.7\"\n"
-                     "  --mesh N            k-mesh of the rerun (default twice the screen's: 28 in 3D, 72 in 2D)\n");
+                     "  --mesh N            k-mesh of the rerun (default: twice the mesh of each material's\n"
+                     "                      best result, so the rerun is always finer; twice the default mesh\n"
+                     "                      for a material without an ok result)\n"
+                     "  --rerun             start a new run even when the same rescreen was done before\n");
     else
         fprintf(out, "usage: mpirun -n P bandsieve screen SET.h5 -c CAT.sqlite [options]\n\n"
                      "Diagnoses every material of the set into the catalogue. Rank 0 coordinates and writes\n"
                      "the catalogue; ranks 1.. compute (P = 1 does everything in one process). Running it\n"
-                     "again on the same catalogue resumes: finished materials are skipped.\n\n"
+                     "again on the same catalogue resumes: materials whose content already has a result\n"
+                     "with the same settings are skipped, whatever the set's path; changed ones are redone.\n\n"
                      "  --mesh N            k-mesh per direction (default 36 in 2D, 14 in 3D)\n"
                      "  --rerun             start a new run and redo every material (otherwise a screen\n"
-                     "                      resumes an unfinished run and skips what finished runs\n"
-                     "                      with the same settings already did)\n");
+                     "                      resumes an unfinished run and skips what earlier runs with\n"
+                     "                      the same settings already did); an unfinished run that an\n"
+                     "                      earlier --rerun started is resumed, with a note\n");
     fprintf(out, "  -c, --catalogue F   the SQLite catalogue (created if missing)\n"
                  "  --max-seconds S     wall-clock budget of the job: stop handing out work and\n"
                  "                      leave the rest for a resumed run (status interrupted)\n"
@@ -178,7 +187,7 @@ static int screen_main(int argc, char **argv, int rescreen)
         return 2;
     }
     if (rescreen && o.mesh == 0) o.mesh_factor = 2;
-    /* Runs are matched for resume by the set's path: record it in one canonical spelling. */
+    /* Runs are matched by the set's content; the path is recorded in one canonical spelling. */
     char set_real[4096];
     o.set_path = realpath(argv[optind], set_real) ? set_real : argv[optind];
     char cmdline[2048] = "bandsieve";

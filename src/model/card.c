@@ -17,11 +17,25 @@
 #define CARD_MAX_BYTES (64L << 20) /* a card with an inversion operator for 20000 states is ~2 MB */
 #define CARD_POS_TOL 1e-4          /* reduced; positions are printed to 5-6 digits (common practice) */
 
+static int key_line(const char *text, const char *key, int nth);
+
 typedef struct card_ctx {
     const char *path;
     const char *text;
     bs_err *err;
+    char *notes;        /* where notes go (may be NULL), capacity notes_cap */
+    size_t notes_cap;
 } card_ctx;
+
+/* Appends one line to the caller's notes: something accepted but worth saying. */
+static void add_note(const card_ctx *c, const char *key, const char *what)
+{
+    if (!c->notes || c->notes_cap == 0) return;
+    size_t used = strlen(c->notes);
+    int line = key_line(c->text, key, 0);
+    if (line > 0) snprintf(c->notes + used, c->notes_cap - used, "%s:%d: key '%s': %s\n", c->path, line, key, what);
+    else snprintf(c->notes + used, c->notes_cap - used, "%s: key '%s': %s\n", c->path, key, what);
+}
 
 /* Line of the nth (0-based) occurrence of "key" followed by ':' in the text, or 0. */
 static int key_line(const char *text, const char *key, int nth)
@@ -128,8 +142,46 @@ static int get_vector(const card_ctx *c, const cJSON *j, const char *key, const 
 }
 
 static const char *const card_keys[] = {"id", "dimension", "lattice", "hoppings", "occupied_bands",
-                                        "spinful", "spin_layout", "orbitals", "formula", "source",
-                                        "fermi_energy_eV", "inversion", "comment", NULL};
+                                        "electrons", "spinful", "spin_layout", "orbitals", "formula",
+                                        "source", "fermi_energy_eV", "inversion", "comment", "meta", NULL};
+
+/* Edit distance (insertions, deletions, substitutions, and swaps of neighbours) between two
+ * short keys, capped at 9: enough to suggest the key a typo was meant to be. */
+static int key_distance(const char *a, const char *b)
+{
+    size_t na = strlen(a), nb = strlen(b);
+    if (na > 40 || nb > 40) return 9;
+    int d[41][41];
+    for (size_t i = 0; i <= na; i++) d[i][0] = (int)i;
+    for (size_t j = 0; j <= nb; j++) d[0][j] = (int)j;
+    for (size_t i = 1; i <= na; i++)
+        for (size_t j = 1; j <= nb; j++) {
+            int sub = d[i - 1][j - 1] + (a[i - 1] != b[j - 1]);
+            int del = d[i - 1][j] + 1, ins = d[i][j - 1] + 1;
+            int best = sub < del ? sub : del;
+            best = best < ins ? best : ins;
+            if (i > 1 && j > 1 && a[i - 1] == b[j - 2] && a[i - 2] == b[j - 1] && d[i - 2][j - 2] + 1 < best)
+                best = d[i - 2][j - 2] + 1;
+            d[i][j] = best;
+        }
+    return d[na][nb] < 9 ? d[na][nb] : 9;
+}
+
+/* The allowed key nearest to key when it is close enough to be a typo (distance <= 2, and less
+ * than half the key's length), else NULL. */
+static const char *suggest_key(const char *key, const char *const *allowed)
+{
+    const char *best = NULL;
+    int bestd = 3;
+    for (const char *const *k = allowed; *k; k++) {
+        int dist = key_distance(key, *k);
+        if (dist < bestd && 2 * (size_t)dist < strlen(*k)) {
+            bestd = dist;
+            best = *k;
+        }
+    }
+    return best;
+}
 
 static int check_unknown_keys(const card_ctx *c, const cJSON *obj, const char *const *allowed,
                               const char *where, int nth)
@@ -139,7 +191,11 @@ static int check_unknown_keys(const card_ctx *c, const cJSON *obj, const char *c
         for (const char *const *k = allowed; *k && !ok; k++) ok = strcmp(*k, e->string) == 0;
         char label[200];
         snprintf(label, sizeof label, "%s%s", where, e->string);
-        if (!ok) return fail_key(c, BS_EPARSE, e->string, label, nth, "unknown key (misspelt?)");
+        if (!ok) {
+            const char *near = suggest_key(e->string, allowed);
+            if (near) return fail_key(c, BS_EPARSE, e->string, label, nth, "unknown key; did you mean '%s%s'?", where, near);
+            return fail_key(c, BS_EPARSE, e->string, label, nth, "unknown key (extra information goes in the object 'meta')");
+        }
         /* JSON allows a repeated key and cJSON keeps the first: refuse it rather than guess. */
         for (const cJSON *f = obj->child; f != e; f = f->next)
             if (strcmp(f->string, e->string) == 0)
@@ -200,8 +256,9 @@ static int read_spin(const card_ctx *c, const cJSON *root, card_head *h)
     h->spinful = cJSON_IsTrue(j);
     const cJSON *lay = cJSON_GetObjectItemCaseSensitive(root, "spin_layout");
     if (!h->spinful) {
-        if (lay)
-            return fail_key(c, BS_EINVAL, "spin_layout", "spin_layout", 0, "given for a spinless model");
+        /* Cards are often made from one template: a layout on a spinless card says nothing wrong,
+         * it just has no states to order. Accepted and ignored, with a note. */
+        if (lay) add_note(c, "spin_layout", "ignored: the model is spinless (one state per orbital)");
         h->layout = TB_SPIN_NONE;
         return 0;
     }
@@ -229,6 +286,33 @@ static int table_path(const card_ctx *c, const char *name, char *dst, size_t cap
     return 0;
 }
 
+/* The filling: "occupied_bands", or "electrons", the electron count of the Wannier subspace (the
+ * bands of the table, not the crystal's total). A spinful band holds one electron; a spinless model
+ * stands for two spin-degenerate copies, so each of its bands holds two and the count must be even
+ * (an odd count half-fills a band: a metal by counting, which we do not guess into a filling). */
+static int read_filling(const card_ctx *c, const cJSON *root, card_head *h)
+{
+    const cJSON *ob = cJSON_GetObjectItemCaseSensitive(root, "occupied_bands");
+    const cJSON *el = cJSON_GetObjectItemCaseSensitive(root, "electrons");
+    if (ob && el)
+        return fail_key(c, BS_EPARSE, "electrons", "electrons", 0, "give either 'occupied_bands' or 'electrons', not both");
+    if (!el) return get_int(c, root, "occupied_bands", &h->nocc);
+    if (!json_is_int(el))
+        return fail_key(c, BS_EPARSE, "electrons", "electrons", 0, "expected an integer, found %s", json_type(el));
+    int ne = (int)el->valuedouble;
+    if (ne < 1)
+        return fail_key(c, BS_EINVAL, "electrons", "electrons", 0, "expected a positive count, found %d", ne);
+    if (h->spinful) {
+        h->nocc = ne;
+        return 0;
+    }
+    if (ne % 2)
+        return fail_key(c, BS_EINVAL, "electrons", "electrons", 0, "%d electrons in a spinless model (2 per band) "
+                        "leave a band half filled; give 'occupied_bands' or a spinful model", ne);
+    h->nocc = ne / 2;
+    return 0;
+}
+
 static int read_head(const card_ctx *c, const cJSON *root, card_head *h)
 {
     int rc = check_unknown_keys(c, root, card_keys, "", 0);
@@ -244,8 +328,8 @@ static int read_head(const card_ctx *c, const cJSON *root, card_head *h)
     if (rc == 0) rc = get_string(c, root, "hoppings", 1, name, sizeof name);
     if (rc == 0 && !name[0]) rc = fail_key(c, BS_EINVAL, "hoppings", "hoppings", 0, "empty path");
     if (rc == 0) rc = table_path(c, name, h->table, sizeof h->table);
-    if (rc == 0) rc = get_int(c, root, "occupied_bands", &h->nocc);
     if (rc == 0) rc = read_spin(c, root, h);
+    if (rc == 0) rc = read_filling(c, root, h);
     const cJSON *orb = NULL;
     if (rc == 0) rc = get_key(c, root, "orbitals", 1, &orb);
     if (rc == 0 && (!cJSON_IsArray(orb) || cJSON_GetArraySize(orb) < 1))
@@ -395,6 +479,12 @@ static int read_optional(const card_ctx *c, const cJSON *root, tb_model *m)
     const cJSON *cm = cJSON_GetObjectItemCaseSensitive(root, "comment");
     if (rc == 0 && cm && !cJSON_IsString(cm))
         return fail_key(c, BS_EPARSE, "comment", "comment", 0, "expected a string, found %s", json_type(cm));
+    const cJSON *meta = cJSON_GetObjectItemCaseSensitive(root, "meta");
+    if (rc == 0 && meta && !cJSON_IsObject(meta))
+        return fail_key(c, BS_EPARSE, "meta", "meta", 0, "expected an object, found %s", json_type(meta));
+    /* The whole card is kept as provenance (set dataset "card", catalogue materials.card_json). */
+    if (rc == 0 && !(m->card_json = cJSON_PrintUnformatted(root)))
+        return bs_fail(c->err, BS_ENOMEM, "%s: out of memory", c->path);
     return rc;
 }
 
@@ -499,16 +589,17 @@ static int json_parse(const card_ctx *c, cJSON **root)
     return bs_fail(c->err, BS_EPARSE, "%s:%d: JSON syntax error near '%s'", c->path, line, near);
 }
 
-int card_read_opts(const char *path, int flags, tb_model **out, bs_err *err)
+int card_read_notes(const char *path, int flags, tb_model **out, char *notes, size_t cap, bs_err *err)
 {
     *out = NULL;
+    if (notes && cap) notes[0] = '\0';
     char *text = NULL;
     cJSON *root = NULL;
     card_head *h = calloc(1, sizeof *h);
     if (!h) return bs_fail(err, BS_ENOMEM, "%s: out of memory", path);
     int rc = slurp(path, &text, err);
     if (rc != 0) goto done;
-    card_ctx c = {path, text, err};
+    card_ctx c = {path, text, err, notes, cap};
     if ((rc = json_parse(&c, &root)) != 0) goto done;
     if ((rc = read_head(&c, root, h)) != 0) goto done;
     rc = build_model(&c, root, h, flags, out);
@@ -517,6 +608,11 @@ done:
     free(text);
     free(h);
     return rc;
+}
+
+int card_read_opts(const char *path, int flags, tb_model **out, bs_err *err)
+{
+    return card_read_notes(path, flags, out, NULL, 0, err);
 }
 
 int card_read(const char *path, tb_model **out, bs_err *err) { return card_read_opts(path, 0, out, err); }

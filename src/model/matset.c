@@ -13,6 +13,7 @@
 
 #include "bandsieve/card.h"
 #include "bandsieve/config.h"
+#include "bandsieve/content.h"
 
 #define MS_FORMAT "bandsieve-material-set"
 #define MS_FORMAT_VERSION 1
@@ -175,7 +176,9 @@ static int dset_read(hid_t loc, const char *where, const char *name, hid_t type,
 
 /* ---- the index table ---- */
 
-static hid_t index_type(void)
+/* The index's compound type; with_content 0 gives the type of sets written before content
+ * hashes were stored (their index lacks the member "content"). */
+static hid_t index_type_v(int with_content)
 {
     hid_t t = H5Tcreate(H5T_COMPOUND, sizeof(ms_entry));
     hid_t s = H5Tcopy(H5T_C_S1);
@@ -190,8 +193,17 @@ static hid_t index_type(void)
     H5Tinsert(t, "status", HOFFSET(ms_entry, status), H5T_NATIVE_INT);
     H5Tinsert(t, "cost", HOFFSET(ms_entry, cost), H5T_NATIVE_DOUBLE);
     H5Tclose(s);
+    if (with_content) {
+        hid_t c = H5Tcopy(H5T_C_S1);
+        H5Tset_size(c, sizeof(((ms_entry *)0)->content));
+        H5Tset_strpad(c, H5T_STR_NULLTERM);
+        H5Tinsert(t, "content", HOFFSET(ms_entry, content), c);
+        H5Tclose(c);
+    }
     return t;
 }
+
+static hid_t index_type(void) { return index_type_v(1); }
 
 static int index_write(ms_set *s, bs_err *err)
 {
@@ -214,7 +226,12 @@ static int index_read(ms_set *s, bs_err *err)
         return bs_fail(err, BS_EPARSE, "%s:/index: missing (the set was not completed)", s->path);
     hid_t d = H5Dopen2(s->file, "index", H5P_DEFAULT);
     if (d < 0) return h5_fail(err, "%s:/index: cannot open", s->path);
-    hid_t sp = H5Dget_space(d), t = index_type();
+    /* Sets from before content hashes have no "content" member: read them with the old type
+     * (ms_content computes the hash on demand). */
+    hid_t ft = H5Dget_type(d);
+    int has_content = ft >= 0 && H5Tget_class(ft) == H5T_COMPOUND && H5Tget_member_index(ft, "content") >= 0;
+    if (ft >= 0) H5Tclose(ft);
+    hid_t sp = H5Dget_space(d), t = index_type_v(has_content);
     hssize_t n = sp < 0 ? -1 : H5Sget_simple_extent_npoints(sp);
     int rc = 0;
     if (sp < 0 || H5Sget_simple_extent_ndims(sp) != 1 || n < 0 || n > MS_MAX_ENTRIES) {
@@ -231,7 +248,10 @@ static int index_read(ms_set *s, bs_err *err)
         goto done;
     }
     s->n = s->cap = (int)n;
-    for (int i = 0; i < s->n; i++) s->entries[i].id[sizeof s->entries[i].id - 1] = '\0';
+    for (int i = 0; i < s->n; i++) {
+        s->entries[i].id[sizeof s->entries[i].id - 1] = '\0';
+        s->entries[i].content[sizeof s->entries[i].content - 1] = '\0';
+    }
 done:
     H5Tclose(t);
     if (sp >= 0) H5Sclose(sp);
@@ -331,6 +351,25 @@ static int write_attrs(hid_t g, const tb_model *m, int status)
     return bad ? -1 : 0;
 }
 
+/* The card text as a scalar fixed-length string dataset "card" (an attribute would be limited to
+ * 64 kB, and cards with an inversion operator are larger). */
+static int write_card(hid_t g, const char *json)
+{
+    if (!json) return 0;
+    hid_t t = H5Tcopy(H5T_C_S1);
+    if (t < 0) return -1;
+    int rc = -1;
+    if (H5Tset_size(t, strlen(json) + 1) >= 0 && H5Tset_strpad(t, H5T_STR_NULLTERM) >= 0) {
+        hid_t sp = H5Screate(H5S_SCALAR);
+        hid_t d = sp < 0 ? -1 : H5Dcreate2(g, "card", t, sp, H5P_DEFAULT, H5P_DEFAULT, H5P_DEFAULT);
+        rc = d >= 0 && H5Dwrite(d, t, H5S_ALL, H5S_ALL, H5P_DEFAULT, json) >= 0 ? 0 : -1;
+        if (d >= 0) H5Dclose(d);
+        if (sp >= 0) H5Sclose(sp);
+    }
+    H5Tclose(t);
+    return rc;
+}
+
 static int write_arrays(hid_t g, const tb_model *m)
 {
     hsize_t d33[2] = {3, 3}, dR[2] = {(hsize_t)m->nR, 3}, dn[1] = {(hsize_t)m->nR};
@@ -365,6 +404,21 @@ static void entry_of(const tb_model *m, int status, ms_entry *e)
     e->status = status;
     double n = m->norb;
     e->cost = n * n * n + (double)m->nR * n * n;
+    tb_content_hash(m, e->content);
+}
+
+/* Content hash of an error entry: its message stands for its content. */
+static void error_content(const char *id, int code, const char *message, char hex[65])
+{
+    bs_sha256 h;
+    bs_sha256_init(&h);
+    char head[200];
+    snprintf(head, sizeof head, "bandsieve-error-1 %s %d ", id, code);
+    bs_sha256_update(&h, head, strlen(head));
+    bs_sha256_update(&h, message, strlen(message));
+    unsigned char d[BS_SHA256_BYTES];
+    bs_sha256_final(&h, d);
+    bs_sha256_hex(d, hex);
 }
 
 static int add_impl(ms_set *s, const tb_model *m, int status, bs_err *err)
@@ -372,7 +426,7 @@ static int add_impl(ms_set *s, const tb_model *m, int status, bs_err *err)
     hid_t g;
     int rc = new_group(s, m->id, &g, err);
     if (rc != 0) return rc;
-    if (write_attrs(g, m, status) < 0 || write_arrays(g, m) < 0)
+    if (write_attrs(g, m, status) < 0 || write_arrays(g, m) < 0 || write_card(g, m->card_json) < 0)
         rc = h5_fail(err, "%s:/materials/%s: cannot write", s->path, m->id);
     H5Gclose(g);
     ms_entry e;
@@ -413,6 +467,7 @@ static int add_error_impl(ms_set *s, const char *id, int code, const char *messa
     memset(&e, 0, sizeof e);
     snprintf(e.id, sizeof e.id, "%s", id);
     e.status = MS_STATUS_ERROR;
+    error_content(id, code, text, e.content);
     if (rc == 0) rc = push_entry(s, &e, err);
     return rc;
 }
@@ -619,7 +674,8 @@ static int read_stored_error(hid_t g, const char *where, bs_err *err)
     return bs_fail(err, code, "%s: stored as broken: %s", where, text);
 }
 
-static int read_impl(const ms_set *s, const char *id, tb_model **out, bs_err *err)
+/* Reads the entry named id; validate 0 skips tb_model_validate (for hashing broken entries). */
+static int read_impl(const ms_set *s, const char *id, int validate, tb_model **out, bs_err *err)
 {
     char where[4400], name[160];
     snprintf(where, sizeof where, "%s:/materials/%s", s->path, id);
@@ -647,7 +703,7 @@ static int read_impl(const ms_set *s, const char *id, tb_model **out, bs_err *er
         goto done;
     }
     if ((rc = read_model_arrays(g, where, m, err)) != 0) goto done;
-    if ((rc = tb_model_validate(m, BS_HERMITIAN_TOL_EV, where, err)) != 0) goto done;
+    if (validate && (rc = tb_model_validate(m, BS_HERMITIAN_TOL_EV, where, err)) != 0) goto done;
     *out = m;
     m = NULL;
 done:
@@ -663,7 +719,7 @@ int ms_read_id(const ms_set *s, const char *id, tb_model **out, bs_err *err)
     if (s->file < 0) return bs_fail(err, BS_EINVAL, "%s: closed", s->path);
     if (ms_find(s, id) < 0) return bs_fail(err, BS_EINVAL, "%s: no material '%s' in the set", s->path, id);
     int rc;
-    H5E_BEGIN_TRY { rc = read_impl(s, id, out, err); }
+    H5E_BEGIN_TRY { rc = read_impl(s, id, 1, out, err); }
     H5E_END_TRY;
     return rc;
 }
@@ -674,7 +730,142 @@ int ms_read(const ms_set *s, int i, tb_model **out, bs_err *err)
     if (i < 0 || i >= s->n) return bs_fail(err, BS_EINVAL, "%s: entry %d outside 0..%d", s->path, i, s->n - 1);
     if (s->writer || s->file < 0) return bs_fail(err, BS_EINVAL, "%s: not open for reading", s->path);
     int rc;
-    H5E_BEGIN_TRY { rc = read_impl(s, s->entries[i].id, out, err); }
+    H5E_BEGIN_TRY { rc = read_impl(s, s->entries[i].id, 1, out, err); }
+    H5E_END_TRY;
+    return rc;
+}
+
+/* ---- content hashes, cards, copies ---- */
+
+static int content_impl(const ms_set *s, int i, char hex[65], bs_err *err)
+{
+    const ms_entry *e = &s->entries[i];
+    if (e->status == MS_STATUS_ERROR) {
+        char name[160], where[4400], text[MS_MAX_TEXT];
+        int code = BS_EINVAL;
+        snprintf(name, sizeof name, "materials/%s", e->id);
+        snprintf(where, sizeof where, "%s:/materials/%s", s->path, e->id);
+        hid_t g = H5Lexists(s->file, name, H5P_DEFAULT) > 0 ? H5Gopen2(s->file, name, H5P_DEFAULT) : -1;
+        if (g < 0) return bs_fail(err, BS_EPARSE, "%s: group missing", where);
+        if (attr_read_int(g, "error_code", &code) < 0) code = BS_EINVAL;
+        if (attr_read_str(g, "error", text, sizeof text) < 0) text[0] = '\0';
+        H5Gclose(g);
+        error_content(e->id, code, text, hex);
+        return 0;
+    }
+    tb_model *m = NULL;
+    int rc = read_impl(s, e->id, 0, &m, err);
+    if (rc == 0) tb_content_hash(m, hex);
+    tb_model_free(m);
+    return rc;
+}
+
+int ms_content(const ms_set *s, int i, char hex[65], bs_err *err)
+{
+    hex[0] = '\0';
+    if (i < 0 || i >= s->n) return bs_fail(err, BS_EINVAL, "%s: entry %d outside 0..%d", s->path, i, s->n - 1);
+    if (s->entries[i].content[0]) {
+        memcpy(hex, s->entries[i].content, 65);
+        return 0;
+    }
+    if (s->writer || s->file < 0) return bs_fail(err, BS_EINVAL, "%s: not open for reading", s->path);
+    int rc;
+    H5E_BEGIN_TRY { rc = content_impl(s, i, hex, err); }
+    H5E_END_TRY;
+    /* Computed once per open set: the index is ours, and the hash cannot change while it is open. */
+    if (rc == 0) memcpy(((ms_set *)s)->entries[i].content, hex, 65);
+    return rc;
+}
+
+static int by_entry_id(const void *a, const void *b)
+{
+    const ms_entry *x = *(const ms_entry *const *)a, *y = *(const ms_entry *const *)b;
+    return strcmp(x->id, y->id);
+}
+
+int ms_set_content(const ms_set *s, char hex[65], bs_err *err)
+{
+    hex[0] = '\0';
+    const ms_entry **order = malloc(((size_t)s->n + 1) * sizeof *order);
+    if (!order) return bs_fail(err, BS_ENOMEM, "%s: out of memory", s->path);
+    int rc = 0;
+    for (int i = 0; i < s->n && rc == 0; i++) {
+        char h[65];
+        rc = ms_content(s, i, h, err);
+        order[i] = &s->entries[i];
+    }
+    if (rc == 0) {
+        qsort(order, (size_t)s->n, sizeof *order, by_entry_id);
+        bs_sha256 sh;
+        bs_sha256_init(&sh);
+        for (int i = 0; i < s->n; i++) {
+            bs_sha256_update(&sh, order[i]->id, strlen(order[i]->id));
+            bs_sha256_update(&sh, " ", 1);
+            bs_sha256_update(&sh, order[i]->content, 64);
+            bs_sha256_update(&sh, "\n", 1);
+        }
+        unsigned char d[BS_SHA256_BYTES];
+        bs_sha256_final(&sh, d);
+        bs_sha256_hex(d, hex);
+    }
+    free(order);
+    return rc;
+}
+
+static int read_card_impl(const ms_set *s, const char *id, char **json, bs_err *err)
+{
+    char name[200];
+    snprintf(name, sizeof name, "materials/%s/card", id);
+    if (H5Lexists(s->file, "materials", H5P_DEFAULT) <= 0) return 0;
+    char grp[160];
+    snprintf(grp, sizeof grp, "materials/%s", id);
+    if (H5Lexists(s->file, grp, H5P_DEFAULT) <= 0 || H5Lexists(s->file, name, H5P_DEFAULT) <= 0) return 0;
+    hid_t d = H5Dopen2(s->file, name, H5P_DEFAULT);
+    if (d < 0) return h5_fail(err, "%s:/%s: cannot open", s->path, name);
+    hid_t ft = H5Dget_type(d);
+    int rc = 0;
+    size_t size = ft >= 0 && H5Tget_class(ft) == H5T_STRING && !H5Tis_variable_str(ft) ? H5Tget_size(ft) : 0;
+    char *buf = size > 0 && size <= (size_t)(64L << 20) ? calloc(size + 1, 1) : NULL;
+    if (!buf) rc = bs_fail(err, BS_EPARSE, "%s:/%s: expected a fixed-length string", s->path, name);
+    else if (H5Dread(d, ft, H5S_ALL, H5S_ALL, H5P_DEFAULT, buf) < 0) rc = h5_fail(err, "%s:/%s: cannot read", s->path, name);
+    if (ft >= 0) H5Tclose(ft);
+    H5Dclose(d);
+    if (rc == 0) *json = buf;
+    else free(buf);
+    return rc;
+}
+
+int ms_read_card(const ms_set *s, int i, char **json, bs_err *err)
+{
+    *json = NULL;
+    if (i < 0 || i >= s->n) return bs_fail(err, BS_EINVAL, "%s: entry %d outside 0..%d", s->path, i, s->n - 1);
+    if (s->writer || s->file < 0) return bs_fail(err, BS_EINVAL, "%s: not open for reading", s->path);
+    int rc;
+    H5E_BEGIN_TRY { rc = read_card_impl(s, s->entries[i].id, json, err); }
+    H5E_END_TRY;
+    return rc;
+}
+
+static int copy_impl(ms_set *dst, const ms_set *src, int i, bs_err *err)
+{
+    ms_entry e = src->entries[i];
+    if (!dst->writer || dst->closed) return bs_fail(err, BS_EINVAL, "%s: not open for writing", dst->path);
+    char name[160];
+    snprintf(name, sizeof name, "materials/%s", e.id);
+    if (H5Lexists(dst->file, name, H5P_DEFAULT) > 0)
+        return bs_fail(err, BS_EINVAL, "%s: material id '%s' already in the set", dst->path, e.id);
+    if (H5Ocopy(src->file, name, dst->file, name, H5P_DEFAULT, H5P_DEFAULT) < 0)
+        return h5_fail(err, "%s:/%s: cannot copy into %s", src->path, name, dst->partial);
+    return push_entry(dst, &e, err);
+}
+
+int ms_copy_entry(ms_set *dst, const ms_set *src, int i, bs_err *err)
+{
+    if (i < 0 || i >= src->n) return bs_fail(err, BS_EINVAL, "%s: entry %d outside 0..%d", src->path, i, src->n - 1);
+    char hex[65];
+    int rc = ms_content(src, i, hex, err);
+    if (rc != 0) return rc;
+    H5E_BEGIN_TRY { rc = copy_impl(dst, src, i, err); }
     H5E_END_TRY;
     return rc;
 }

@@ -55,6 +55,7 @@ void tb_model_free(tb_model *m)
     free(m->inv_perm);
     free(m->inv_sign);
     free(m->inv_shift);
+    free(m->card_json);
     free(m);
 }
 
@@ -84,9 +85,10 @@ int tb_model_copy(const tb_model *m, tb_model **out, bs_err *err)
     memcpy(c->R, m->R, (size_t)m->nR * sizeof *m->R);
     memcpy(c->deg, m->deg, (size_t)m->nR * sizeof *m->deg);
     memcpy(c->H, m->H, (size_t)m->nR * m->norb * m->norb * sizeof *m->H);
-    c->inv_perm = NULL; c->inv_sign = NULL; c->inv_shift = NULL; c->orb_shape = NULL;
+    c->inv_perm = NULL; c->inv_sign = NULL; c->inv_shift = NULL; c->orb_shape = NULL; c->card_json = NULL;
     size_t n = (size_t)m->norb;
-    if (dup_array((void **)&c->inv_perm, m->inv_perm, n * sizeof *m->inv_perm) ||
+    if (dup_array((void **)&c->card_json, m->card_json, m->card_json ? strlen(m->card_json) + 1 : 0) ||
+        dup_array((void **)&c->inv_perm, m->inv_perm, n * sizeof *m->inv_perm) ||
         dup_array((void **)&c->inv_sign, m->inv_sign, n * sizeof *m->inv_sign) ||
         dup_array((void **)&c->inv_shift, m->inv_shift, n * sizeof *m->inv_shift) ||
         dup_array((void **)&c->orb_shape, m->orb_shape, (size_t)m->nspatial * sizeof *m->orb_shape)) {

@@ -5,6 +5,7 @@
 #include "bandsieve/pipeline.h"
 
 #include <mpi.h>
+#include <math.h>
 #include <stdio.h>
 #include <stdlib.h>
 #include <string.h>
@@ -29,6 +30,10 @@ void openblas_set_num_threads(int num_threads);
 
 enum { TAG_RESULT = 11, TAG_WORK = 12, TAG_STOP = 13 };
 
+/* The diagnosis default of symmetry_tol (diagnosis.h: 0 means 1e-6); an explicit 1e-6 is the same
+ * setting. */
+#define PL_DEFAULT_SYMMETRY_TOL 1e-6
+
 /* Worker -> coordinator: this header, then the diagnosis JSON (NUL-terminated) when code == 0.
  * kind 0 is the first request of a worker (no result yet). Same binary on every rank, so the
  * struct layout agrees. */
@@ -45,6 +50,7 @@ typedef struct wire_head {
 /* Coordinator -> worker. */
 typedef struct wire_work {
     int index;
+    int mesh;            /* this entry's k-mesh, 0: the job's */
     int group;           /* compute as the rank group (lockstep, distributed eigensolver) */
     int job_limited;     /* the budget below is what remains of the job, not the material budget */
     double max_seconds;
@@ -107,22 +113,38 @@ static int gather_hosts(MPI_Comm comm, int rank, int size, char *out, size_t out
     return rc;
 }
 
-static int settings_json(const pl_opts *o, char *buf, size_t len)
+/* The settings that decide results, normalised so that equal work matches: the mesh each
+ * dimension present in the set gets (an explicit default equals the default; for a rescreen
+ * without --mesh, the rule "double each entry's best"), the per-material budget when given, a
+ * symmetry tolerance other than the default, the extra tasks and the rescreen condition. Options
+ * that cannot change a result (job budget, progress interval, batching, rank groups) are left out,
+ * so a batch script that adds them still resumes a hand-started run. */
+static int settings_json(const pl_opts *o, const ms_set *set, char *buf, size_t len)
 {
+    int has_dim[4] = {0};
+    for (int i = 0; i < ms_count(set); i++) {
+        int d = ms_entry_at(set, i)->dim;
+        if (d == 2 || d == 3) has_dim[d] = 1;
+    }
     cJSON *s = cJSON_CreateObject();
-    cJSON_AddNumberToObject(s, "mesh", o->mesh);
-    if (o->mesh_factor > 1) cJSON_AddNumberToObject(s, "mesh_factor", o->mesh_factor);
-    cJSON_AddNumberToObject(s, "material_seconds", o->material_seconds);
-    if (o->symmetry_tol > 0) cJSON_AddNumberToObject(s, "symmetry_tol", o->symmetry_tol);
+    if (!strcmp(o->kind, "rescreen") && o->mesh == 0) {
+        cJSON_AddStringToObject(s, "mesh", "twice the best");
+    } else {
+        if (has_dim[2]) cJSON_AddNumberToObject(s, "mesh_2d", pl_entry_mesh(2, o->mesh, o->mesh_factor));
+        if (has_dim[3]) cJSON_AddNumberToObject(s, "mesh_3d", pl_entry_mesh(3, o->mesh, o->mesh_factor));
+    }
+    if (o->material_seconds > 0) cJSON_AddNumberToObject(s, "material_seconds", o->material_seconds);
+    if (o->symmetry_tol > 0 && o->symmetry_tol != PL_DEFAULT_SYMMETRY_TOL)
+        cJSON_AddNumberToObject(s, "symmetry_tol", o->symmetry_tol);
     if (o->transport) cJSON_AddBoolToObject(s, "transport", 1);
     if (o->surfaces) cJSON_AddBoolToObject(s, "surfaces", 1);
     if (o->where_sql) cJSON_AddStringToObject(s, "where", o->where_sql);
     char *text = cJSON_PrintUnformatted(s);
     cJSON_Delete(s);
     if (!text) return -1;
-    snprintf(buf, len, "%s", text);
+    int n = snprintf(buf, len, "%s", text);
     free(text);
-    return 0;
+    return n < 0 || (size_t)n >= len ? -1 : 0;
 }
 
 /* One writing job per catalogue: a second screen on the same file would resume the same run and
@@ -171,6 +193,119 @@ static int give_up_lost(coord *c, const char *jpath, bs_err *err)
     return rc;
 }
 
+/* The card's comment, orbital labels (a JSON list, null for an orbital without one) and meta
+ * object, as text owned by the caller (free); NULL where the card has none. */
+static void card_extras(const char *card_json, char **comment, char **labels, char **meta)
+{
+    *comment = *labels = *meta = NULL;
+    cJSON *j = card_json ? cJSON_Parse(card_json) : NULL;
+    if (!j) return;
+    const char *cm = cJSON_GetStringValue(cJSON_GetObjectItemCaseSensitive(j, "comment"));
+    if (cm) *comment = strdup(cm);
+    const cJSON *orb = cJSON_GetObjectItemCaseSensitive(j, "orbitals");
+    int any = 0;
+    cJSON *list = cJSON_CreateArray();
+    for (const cJSON *o = cJSON_IsArray(orb) ? orb->child : NULL; o && list; o = o->next) {
+        const char *l = cJSON_GetStringValue(cJSON_GetObjectItemCaseSensitive(o, "label"));
+        cJSON_AddItemToArray(list, l ? cJSON_CreateString(l) : cJSON_CreateNull());
+        any |= l != NULL;
+    }
+    if (any && list) *labels = cJSON_PrintUnformatted(list);
+    cJSON_Delete(list);
+    const cJSON *meta_obj = cJSON_GetObjectItemCaseSensitive(j, "meta");
+    if (meta_obj) *meta = cJSON_PrintUnformatted(meta_obj);
+    cJSON_Delete(j);
+}
+
+/* Records what the set says about entry i: sizes, its content hash (so result rows carry it) and,
+ * when the row is missing or about another content, the provenance from the stored card. */
+static int record_material(coord *c, int i, const char *set_content, bs_err *err)
+{
+    const ms_entry *e = ms_entry_at(c->set, i);
+    char content[65];
+    int stale = 1;
+    int rc = ms_content(c->set, i, content, err);
+    if (rc == 0) rc = cat_material_stale(c->cat, e->id, content, &stale, err);
+    if (rc != 0) return rc;
+    char *card = NULL, *comment = NULL, *labels = NULL, *meta = NULL;
+    const char *formula = NULL, *source = NULL;
+    cJSON *j = NULL;
+    if (stale) {
+        bs_err cerr;
+        bs_err_clear(&cerr);
+        /* A card that cannot be read costs its provenance, not the run. */
+        if (ms_read_card(c->set, i, &card, &cerr) != 0) card = NULL;
+        card_extras(card, &comment, &labels, &meta);
+        j = card ? cJSON_Parse(card) : NULL;
+        formula = cJSON_GetStringValue(cJSON_GetObjectItemCaseSensitive(j, "formula"));
+        source = cJSON_GetStringValue(cJSON_GetObjectItemCaseSensitive(j, "source"));
+    }
+    cat_material mat = {.material_id = e->id, .formula = formula, .dimension = e->dim, .norb = e->norb,
+                        .nr = e->nR, .nocc = e->nocc, .spinful = e->spinful, .set_path = c->o->set_path,
+                        .source = source, .card_json = card, .content = content, .set_content = set_content,
+                        .comment = comment, .orbital_labels = labels, .meta = meta};
+    rc = cat_material_upsert(c->cat, &mat, err);
+    cJSON_Delete(j);
+    free(card);
+    free(comment);
+    free(labels);
+    free(meta);
+    return rc;
+}
+
+/* Rescreen without --mesh: each entry at twice the mesh of its best ok result of the current
+ * content (never at a coarser or equal one); an entry without one at twice the default. */
+static int double_best_meshes(coord *c, bs_err *err)
+{
+    for (int i = 0; i < c->nitems; i++) {
+        const ms_entry *e = ms_entry_at(c->set, c->items[i].index);
+        int best = 0;
+        int rc = cat_best_mesh(c->cat, e->id, &best, err);
+        if (rc != 0) return rc;
+        int base = best > 0 ? best : pl_entry_mesh(e->dim, 0, 1);
+        c->items[i].mesh = 2 * base;
+        /* Costs grow as mesh^dim: keep the list in its cost order with the real meshes. */
+        c->items[i].cost *= pow(2.0 * base / pl_entry_mesh(e->dim, 0, 2), e->dim > 0 ? e->dim : 3);
+    }
+    return 0;
+}
+
+static int by_item_cost(const void *a, const void *b)
+{
+    const pl_item *x = a, *y = b;
+    if (x->cost != y->cost) return x->cost < y->cost ? 1 : -1;
+    return x->index - y->index;
+}
+
+/* The selected ids the set does not hold: counted and the first few named for the announcement. */
+static void note_missing(coord *c, const cat_ids *sel)
+{
+    for (size_t i = 0; i < sel->n; i++) {
+        if (ms_find(c->set, sel->id[i]) >= 0) continue;
+        if (c->counts.missing++ < 5) {
+            size_t used = strlen(c->counts.missing_ids);
+            snprintf(c->counts.missing_ids + used, sizeof c->counts.missing_ids - used, "%s%s", used ? ", " : "",
+                     sel->id[i]);
+        }
+    }
+}
+
+static void note_resumed(coord *c, int rerun_asked, bs_err *err)
+{
+    cat_run_state rs;
+    if (cat_run_get(c->cat, c->run_id, &rs, err) != 0) {
+        bs_err_clear(err);
+        return;
+    }
+    int n = snprintf(c->counts.note, sizeof c->counts.note, "resuming run %lld (started %s%s, session %d, %lld "
+                     "results so far, set first read from %s)", (long long)c->run_id, rs.started,
+                     rs.rerun ? " by --rerun" : "", rs.sessions, rs.nresults, rs.set_path);
+    if (rerun_asked && n > 0 && (size_t)n < sizeof c->counts.note)
+        snprintf(c->counts.note + n, sizeof c->counts.note - (size_t)n,
+                 "; --rerun resumes the unfinished run it started instead of starting over, and starts a "
+                 "new run once that one has finished");
+}
+
 /* Opens set and catalogue, starts or resumes the run, builds the ordered work list. */
 static int coord_setup(coord *c, int ranks, const char *hosts, bs_err *err)
 {
@@ -182,41 +317,51 @@ static int coord_setup(coord *c, int ranks, const char *hosts, bs_err *err)
         rc = cat_set_batch(c->cat, o->batch_rows > 0 ? o->batch_rows : CAT_BATCH_ROWS,
                            o->batch_seconds > 0 ? o->batch_seconds : CAT_BATCH_SECONDS, err);
     if (rc != 0) return rc;
-    char settings[1024];
-    if (settings_json(o, settings, sizeof settings)) return bs_fail(err, BS_ENOMEM, "out of memory");
-    cat_run_info info = {o->kind, settings, o->version, ranks, hosts, o->cmdline, o->set_path};
+    char settings[2048], set_content[65];
+    if (settings_json(o, c->set, settings, sizeof settings)) return bs_fail(err, BS_ENOMEM, "run settings too long");
+    rc = ms_set_content(c->set, set_content, err);
+    if (rc != 0) return rc;
+    cat_run_info info = {.kind = o->kind, .settings_json = settings, .version = o->version, .ranks = ranks,
+                         .hosts = hosts, .cmdline = o->cmdline, .set_path = o->set_path,
+                         .set_content = set_content, .rerun = o->rerun};
     cat_ids sel, done;
     cat_ids_init(&sel);
     cat_ids_init(&done);
     int resumed = 0;
+    /* The selection reads summary before this set's contents are recorded: it sees what the
+     * user saw when writing the condition. */
     if (o->where_sql) rc = cat_select_ids(c->cat, o->where_sql, &sel, err);
+    if (rc == 0 && o->where_sql) note_missing(c, &sel);
+    for (int i = 0; rc == 0 && i < ms_count(c->set); i++)
+        if (!o->where_sql || cat_ids_contains(&sel, ms_entry_at(c->set, i)->id)) rc = record_material(c, i, set_content, err);
+    if (rc == 0) rc = cat_flush(c->cat, err);
     if (rc == 0) {
-        if (o->rerun) rc = cat_run_begin(c->cat, &info, &c->run_id, err);
+        if (o->rerun) rc = cat_run_rerun(c->cat, &info, &c->run_id, &resumed, err);
         else rc = cat_run_resume(c->cat, &info, &c->run_id, &resumed, err);
     }
     char jpath[4096];
     snprintf(jpath, sizeof jpath, "%s.journal", o->catalogue_path);
+    if (rc == 0 && resumed) note_resumed(c, o->rerun, err);
     if (rc == 0 && resumed) rc = give_up_lost(c, jpath, err);
     if (rc == 0 && resumed) rc = cat_done_ids(c->cat, c->run_id, &done, err);
-    /* Not resuming (the last compatible run had finished): skip what finished runs with the same
-     * settings already did, so a repeated screen only adds new entries; --rerun does them all. */
+    /* A new run skips every entry whose current content already has a row from a run with the
+     * same settings (any set path, any run status); --rerun does them all. */
     if (rc == 0 && !resumed && !o->rerun) rc = cat_finished_ids(c->cat, &info, &done, err);
     if (rc == 0) rc = pl_journal_open(jpath, c->run_id, &c->journal, err);
     int nmissing = 0;
     if (rc == 0)
         rc = pl_work_list(c->set, o->where_sql ? &sel : NULL, &done, o->mesh, o->mesh_factor, &c->items, &c->nitems,
                           &nmissing, err);
+    if (rc == 0 && !strcmp(o->kind, "rescreen") && o->mesh == 0) {
+        rc = double_best_meshes(c, err);
+        if (rc == 0) qsort(c->items, (size_t)c->nitems, sizeof *c->items, by_item_cost);
+    }
     c->counts.run_id = c->run_id;
     c->counts.resumed = resumed;
     c->counts.skipped = (int)done.n;
     c->counts.total = c->nitems;
     c->taken = calloc((size_t)c->nitems + 1, 1);
     if (rc == 0 && !c->taken) rc = bs_fail(err, BS_ENOMEM, "out of memory for the work list");
-    for (int i = 0; rc == 0 && i < c->nitems; i++) {
-        const ms_entry *e = ms_entry_at(c->set, c->items[i].index);
-        cat_material mat = {e->id, NULL, e->dim, e->norb, e->nR, e->nocc, e->spinful, o->set_path, NULL, NULL};
-        rc = cat_material_upsert(c->cat, &mat, err);
-    }
     if (rc == 0) rc = cat_flush(c->cat, err);
     cat_ids_clear(&sel);
     cat_ids_clear(&done);
@@ -264,7 +409,7 @@ static int coord_record(coord *c, const pl_outcome *out, int job_limited, bs_err
         c->counts.by_class[r.cls]++;
         /* The set's index has no formula; the worker read it from the material itself. */
         if (r.formula[0]) {
-            cat_material mat = {out->id, r.formula, 0, 0, 0, 0, -1, NULL, NULL, NULL};
+            cat_material mat = {.material_id = out->id, .formula = r.formula, .spinful = -1};
             rc = cat_material_upsert(c->cat, &mat, err);
         }
     }
@@ -309,6 +454,7 @@ static int coord_next(coord *c, int from, wire_work *w)
     if (i < 0) return 0;
     c->taken[i] = 1;
     w->index = c->items[i].index;
+    w->mesh = c->items[i].mesh;
     w->group = from_leader && item_large(c, i);
     bs_err jerr;
     bs_err_clear(&jerr);
@@ -337,7 +483,9 @@ static int run_serial(coord *c, bs_err *err)
     int rc = 0;
     while (rc == 0 && coord_next(c, 0, &w)) {
         pl_outcome out;
-        pl_compute(c->set, w.index, &c->task, w.max_seconds, 0, &out);
+        pl_task task = c->task;
+        if (w.mesh > 0) task.mesh = w.mesh;
+        pl_compute(c->set, w.index, &task, w.max_seconds, 0, &out);
         rc = coord_record(c, &out, w.job_limited, err);
         pl_outcome_clear(&out);
         if (rc == 0) rc = cat_flush_if_due(c->cat, err);
@@ -446,6 +594,7 @@ static int send_outcome(MPI_Comm comm, int kind, const pl_outcome *out, int job_
 typedef struct group_cmd {
     int cmd;            /* 0 stop, 1 compute */
     int index;
+    int mesh;           /* the entry's k-mesh, 0: the job's */
 } group_cmd;
 
 /* Broadcast from the leader (group rank 0), waiting by polling and napping rather than spinning. */
@@ -492,9 +641,9 @@ static int run_worker(const pl_opts *o, MPI_Comm comm, MPI_Comm gcomm, pl_group 
         rc = mpi_check(MPI_Recv(&w, (int)sizeof w, MPI_BYTE, 0, TAG_WORK, comm, MPI_STATUS_IGNORE), "MPI_Recv of work", err);
         if (rc != 0) break;
         pl_outcome out;
-        pl_task task = {o->mesh, o->mesh_factor, o->symmetry_tol, o->transport, o->surfaces, NULL};
+        pl_task task = {w.mesh > 0 ? w.mesh : o->mesh, o->mesh_factor, o->symmetry_tol, o->transport, o->surfaces, NULL};
         if (w.group && gcomm != MPI_COMM_NULL) {
-            group_cmd cmd = {1, w.index};
+            group_cmd cmd = {1, w.index, w.mesh};
             rc = group_bcast(gcomm, &cmd, err);
             if (rc != 0) break;
             task.dist = pl_group_solver(group);
@@ -512,7 +661,7 @@ static int run_worker(const pl_opts *o, MPI_Comm comm, MPI_Comm gcomm, pl_group 
         pl_outcome_clear(&out);
     }
     if (gcomm != MPI_COMM_NULL) {
-        group_cmd cmd = {0, 0};
+        group_cmd cmd = {0, 0, 0};
         bs_err gerr;
         bs_err_clear(&gerr);
         int grc = group_bcast(gcomm, &cmd, &gerr);
@@ -535,7 +684,8 @@ static int run_member(const pl_opts *o, MPI_Comm gcomm, pl_group *group, int ran
         group_cmd cmd;
         rc = group_bcast(gcomm, &cmd, err);
         if (rc != 0 || cmd.cmd == 0) break;
-        pl_task task = {o->mesh, o->mesh_factor, o->symmetry_tol, o->transport, o->surfaces, pl_group_solver(group)};
+        pl_task task = {cmd.mesh > 0 ? cmd.mesh : o->mesh, o->mesh_factor, o->symmetry_tol, o->transport, o->surfaces,
+                        pl_group_solver(group)};
         pl_outcome out;
         if (set) {
             pl_compute(set, cmd.index, &task, 0, rank, &out);

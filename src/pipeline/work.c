@@ -13,6 +13,11 @@
 #include "bandsieve/surfsummary.h"
 #include "bandsieve/transport.h"
 
+int pl_entry_mesh(int dim, int mesh, int mesh_factor)
+{
+    return mesh > 0 ? mesh : diag_default_mesh(dim > 0 ? dim : 3) * (mesh_factor > 1 ? mesh_factor : 1);
+}
+
 typedef struct sort_key {
     pl_item item;
     const char *id;
@@ -44,8 +49,9 @@ int pl_work_list(const ms_set *set, const cat_ids *ids, const cat_ids *done, int
         if (ids && !cat_ids_contains(ids, e->id)) continue;
         if (done && cat_ids_contains(done, e->id)) continue;
         /* k-points scale as mesh^dim for the gap and node meshes, the dominant fixed cost. */
-        double m = mesh > 0 ? mesh : diag_default_mesh(e->dim) * (mesh_factor > 1 ? mesh_factor : 1);
+        double m = pl_entry_mesh(e->dim, mesh, mesh_factor);
         keys[k].item.index = i;
+        keys[k].item.mesh = 0;
         keys[k].item.cost = (e->cost > 0 ? e->cost : 1.0) * pow(m, e->dim > 0 ? e->dim : 3);
         keys[k].id = e->id;
         k++;

@@ -10,6 +10,7 @@
 typedef struct pl_item {
     int index;          /* entry index in the set */
     double cost;        /* estimated cost: per-k cost x k-points */
+    int mesh;           /* this entry's k-mesh, 0: the task's (a rescreen doubles each best mesh) */
 } pl_item;
 
 /* Entries of the set to do: all of them (ids NULL) or those listed in ids (rescreen), minus those
@@ -17,6 +18,10 @@ typedef struct pl_item {
  * *items is owned by the caller (free). *nmissing counts ids not found in the set. */
 int pl_work_list(const ms_set *set, const cat_ids *ids, const cat_ids *done, int mesh, int mesh_factor,
                  pl_item **items, int *nitems, int *nmissing, bs_err *err);
+
+/* The k-mesh a screen uses for an entry of dimension dim: mesh when > 0, else the diagnosis
+ * default times mesh_factor (when > 1). */
+int pl_entry_mesh(int dim, int mesh, int mesh_factor);
 
 /* The outcome of one material, as sent from a worker to the coordinator. */
 typedef struct pl_outcome {
