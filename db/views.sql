@@ -193,16 +193,25 @@ WHERE json_extract(r.diagnosis, '$.surface') IS NOT NULL;
 -- that use the same id for different materials), one row per (id, content): whether it is the
 -- current content, how many rows, the best ok mesh, the latest run and that run's set path.
 CREATE VIEW conflicts AS
-SELECT r.material_id,
-       r.content,
-       (r.content IS m.content) AS current,
-       COUNT(*) AS results,
-       MAX(CASE WHEN r.status = 'ok' THEN r.mesh END) AS best_mesh,
-       MAX(r.run_id) AS last_run_id,
-       (SELECT u.set_path FROM runs u WHERE u.run_id = MAX(r.run_id)) AS set_path
-FROM results r
-LEFT JOIN materials m ON m.material_id = r.material_id
-WHERE r.material_id IN (SELECT material_id FROM results
-                        GROUP BY material_id HAVING COUNT(DISTINCT COALESCE(content, '')) > 1)
-GROUP BY r.material_id, r.content
-ORDER BY r.material_id, current DESC, last_run_id DESC;
+WITH per AS (
+    SELECT r.material_id,
+           r.content,
+           COUNT(*) AS results,
+           MAX(CASE WHEN r.status = 'ok' THEN r.mesh END) AS best_mesh,
+           MAX(r.run_id) AS last_run_id
+    FROM results r
+    WHERE r.material_id IN (SELECT material_id FROM results
+                            GROUP BY material_id HAVING COUNT(DISTINCT COALESCE(content, '')) > 1)
+    GROUP BY r.material_id, r.content
+)
+SELECT p.material_id,
+       p.content,
+       (p.content IS m.content) AS current,
+       p.results,
+       p.best_mesh,
+       p.last_run_id,
+       u.set_path
+FROM per p
+LEFT JOIN materials m ON m.material_id = p.material_id
+LEFT JOIN runs u ON u.run_id = p.last_run_id
+ORDER BY p.material_id, current DESC, p.last_run_id DESC;

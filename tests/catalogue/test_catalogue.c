@@ -200,7 +200,7 @@ static void test_schema_applies(void **state)
     assert_int_equal(q_int(cat, "PRAGMA application_id"), CAT_APPLICATION_ID);
     dump d;
     q(cat, "SELECT name FROM sqlite_master WHERE type IN ('table', 'view') ORDER BY name", &d);
-    assert_string_equal(d.text, "artifacts\ncandidates\nfailures\nmaterials\nnodes\nresults\nrun_progress\n"
+    assert_string_equal(d.text, "artifacts\ncandidates\nconflicts\nfailures\nmaterials\nnodes\nresults\nrun_progress\n"
                                 "run_sessions\nruns\nsummary\nsurfaces\ntop_spin_hall\n");
     close_ok(cat);
     /* WAL mode is a property of the file: a plain connection sees it. (cat_query refuses even
@@ -1053,7 +1053,7 @@ static void test_cli_query(void **state)
     out[n] = '\0';
     st = pclose(p);
     assert_int_equal(WEXITSTATUS(st), 2);
-    assert_non_null(strstr(out, "views: candidates, failures, run_progress, summary, surfaces, top_spin_hall"));
+    assert_non_null(strstr(out, "views: candidates, conflicts, failures, run_progress, summary, surfaces, top_spin_hall"));
     tmp_remove(&t);
 }
 
