@@ -77,6 +77,17 @@ typedef struct pl_opts {
     void (*announce)(void *ctx, const pl_counts *c, const char *kind);
 } pl_opts;
 
+/* The scheduler's cost model, MPI-free, shared with `bandsieve check`: the estimated work of one
+ * material of dimension dim with norb states and nR lattice vectors at its k-mesh (mesh > 0, else
+ * the diagnosis default times mesh_factor): (norb^3 + nR norb^2) per k-point (diagonalisation
+ * plus Fourier sum, flops up to a constant) times mesh^dim k-points. */
+double pl_cost(int dim, int norb, int nR, int mesh, int mesh_factor);
+
+/* The time the coordinator's hand-out (largest first, to whichever worker is free) needs for
+ * costs[0..n-1] on nworkers workers, in cost units: the longest worker's total. costs is sorted
+ * in place (descending). 0 for n = 0. */
+double pl_makespan(double *costs, int n, int nworkers);
+
 /* Runs the job on the ranks of comm (borrowed; MPI is initialised and finalised by the caller):
  * rank 0 of comm coordinates and writes the catalogue. On rank 0 *counts receives the totals; other
  * ranks get their own partial counts. Returns 0 when the job ran (even if some materials failed:

@@ -99,3 +99,60 @@ int cardlist_is_hdf5(const char *path)
     fclose(fp);
     return n == 8 && memcmp(buf, sig, 8) == 0;
 }
+
+/* A string set with an index per key (open addressing, FNV-1a): ids and contents seen so far, so
+ * that duplicates are found in linear time for sets of 10^5 cards. */
+
+static size_t str_hash(const char *s)
+{
+    size_t h = 1469598103934665603ULL;
+    for (; *s; s++) h = (h ^ (unsigned char)*s) * 1099511628211ULL;
+    return h;
+}
+
+int cli_strmap_get(const cli_strmap *m, const char *key)
+{
+    if (!m->cap) return -1;
+    for (size_t i = str_hash(key) & (m->cap - 1);; i = (i + 1) & (m->cap - 1)) {
+        if (!m->key[i]) return -1;
+        if (!strcmp(m->key[i], key)) return m->val[i];
+    }
+}
+
+int cli_strmap_put(cli_strmap *m, const char *key, int val)
+{
+    if (2 * (m->n + 1) > m->cap) {
+        cli_strmap g = {NULL, NULL, m->cap ? 2 * m->cap : 1024, 0};
+        g.key = calloc(g.cap, sizeof *g.key);
+        g.val = calloc(g.cap, sizeof *g.val);
+        if (!g.key || !g.val) { free(g.key); free(g.val); return -1; }
+        for (size_t i = 0; i < m->cap; i++)
+            if (m->key[i]) {
+                size_t j = str_hash(m->key[i]) & (g.cap - 1);
+                while (g.key[j]) j = (j + 1) & (g.cap - 1);
+                g.key[j] = m->key[i];
+                g.val[j] = m->val[i];
+                g.n++;
+            }
+        free(m->key);
+        free(m->val);
+        *m = g;
+    }
+    size_t i = str_hash(key) & (m->cap - 1);
+    while (m->key[i] && strcmp(m->key[i], key)) i = (i + 1) & (m->cap - 1);
+    if (!m->key[i]) {
+        if (!(m->key[i] = strdup(key))) return -1;
+        m->n++;
+    }
+    m->val[i] = val;
+    return 0;
+}
+
+void cli_strmap_clear(cli_strmap *m)
+{
+    for (size_t i = 0; i < m->cap; i++) free(m->key[i]);
+    free(m->key);
+    free(m->val);
+    memset(m, 0, sizeof *m);
+}
+

@@ -26,4 +26,18 @@ int cardlist_add_file(cardlist *l, const char *list_path, bs_err *err);
 /* 1 when path names an HDF5 file (by its signature), else 0: check accepts sets as inputs. */
 int cardlist_is_hdf5(const char *path);
 
+/* A string set with an index per key (open addressing, FNV-1a), for finding repeated ids and
+ * contents among 10^5 cards in linear time. Zero-initialise; the caller owns it (cli_strmap_clear). */
+typedef struct cli_strmap {
+    char **key;
+    int *val;
+    size_t cap, n;
+} cli_strmap;
+
+/* The value stored under key, or -1. */
+int cli_strmap_get(const cli_strmap *m, const char *key);
+/* Stores val under key (replacing); 0 or -1 when out of memory. */
+int cli_strmap_put(cli_strmap *m, const char *key, int val);
+void cli_strmap_clear(cli_strmap *m);
+
 #endif

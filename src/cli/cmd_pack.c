@@ -64,67 +64,6 @@ static void stem_id(const char *path, char *id, size_t cap)
     if (n == 0) id[1] = '\0';
 }
 
-/* A string set with an index per key (open addressing, FNV-1a): ids and contents seen so far, so
- * that duplicates are found in linear time for sets of 10^5 cards. */
-typedef struct strmap {
-    char **key;
-    int *val;
-    size_t cap, n;
-} strmap;
-
-static size_t str_hash(const char *s)
-{
-    size_t h = 1469598103934665603ULL;
-    for (; *s; s++) h = (h ^ (unsigned char)*s) * 1099511628211ULL;
-    return h;
-}
-
-static int strmap_get(const strmap *m, const char *key)
-{
-    if (!m->cap) return -1;
-    for (size_t i = str_hash(key) & (m->cap - 1);; i = (i + 1) & (m->cap - 1)) {
-        if (!m->key[i]) return -1;
-        if (!strcmp(m->key[i], key)) return m->val[i];
-    }
-}
-
-static int strmap_put(strmap *m, const char *key, int val)
-{
-    if (2 * (m->n + 1) > m->cap) {
-        strmap g = {NULL, NULL, m->cap ? 2 * m->cap : 1024, 0};
-        g.key = calloc(g.cap, sizeof *g.key);
-        g.val = calloc(g.cap, sizeof *g.val);
-        if (!g.key || !g.val) { free(g.key); free(g.val); return -1; }
-        for (size_t i = 0; i < m->cap; i++)
-            if (m->key[i]) {
-                size_t j = str_hash(m->key[i]) & (g.cap - 1);
-                while (g.key[j]) j = (j + 1) & (g.cap - 1);
-                g.key[j] = m->key[i];
-                g.val[j] = m->val[i];
-                g.n++;
-            }
-        free(m->key);
-        free(m->val);
-        *m = g;
-    }
-    size_t i = str_hash(key) & (m->cap - 1);
-    while (m->key[i] && strcmp(m->key[i], key)) i = (i + 1) & (m->cap - 1);
-    if (!m->key[i]) {
-        if (!(m->key[i] = strdup(key))) return -1;
-        m->n++;
-    }
-    m->val[i] = val;
-    return 0;
-}
-
-static void strmap_clear(strmap *m)
-{
-    for (size_t i = 0; i < m->cap; i++) free(m->key[i]);
-    free(m->key);
-    free(m->val);
-    memset(m, 0, sizeof *m);
-}
-
 /* The "id" of a card, read without its table (for deciding which old entries are replaced);
  * "" when the card cannot be parsed (it then fails properly later). */
 static void peek_id(const char *path, char *id, size_t cap)
@@ -149,8 +88,8 @@ typedef struct pack_state {
     ms_set *set;          /* the writer */
     const ms_set *old;    /* the existing set, or NULL */
     int keep, force;
-    strmap ids;           /* ids written from the inputs -> input number */
-    strmap contents;      /* contents written -> input number */
+    cli_strmap ids;           /* ids written from the inputs -> input number */
+    cli_strmap contents;      /* contents written -> input number */
     const cardlist *cards;
     int failed, conflicts, nbroken, added, replaced, unchanged, dup_ids, dup_contents;
 } pack_state;
@@ -181,7 +120,7 @@ static int keep_broken(pack_state *ps, const char *card, const bs_err *why)
 static int decide(pack_state *ps, int k, const tb_model *m, const char *content)
 {
     const char *card = ps->cards->path[k];
-    int prev = strmap_get(&ps->ids, m->id);
+    int prev = cli_strmap_get(&ps->ids, m->id);
     if (prev >= 0) {
         ps->dup_ids++;
         char other[65];
@@ -201,7 +140,7 @@ static int decide(pack_state *ps, int k, const tb_model *m, const char *content)
                 ps->cards->path[prev]);
         return -1;
     }
-    int same = strmap_get(&ps->contents, content);
+    int same = cli_strmap_get(&ps->contents, content);
     if (same >= 0) {
         ps->dup_contents++;
         fprintf(stderr, "bandsieve pack: note: %s ('%s') has the same content as %s\n", card, m->id,
@@ -246,7 +185,7 @@ static void pack_one(pack_state *ps, int k)
         int d = decide(ps, k, m, content);
         if (d < 0) ps->conflicts++;
         if (d > 0) rc = ms_add(ps->set, m, &err);
-        if (d > 0 && rc == 0 && (strmap_put(&ps->ids, m->id, k) || strmap_put(&ps->contents, content, k)))
+        if (d > 0 && rc == 0 && (cli_strmap_put(&ps->ids, m->id, k) || cli_strmap_put(&ps->contents, content, k)))
             rc = bs_fail(&err, BS_ENOMEM, "out of memory");
     }
     tb_model_free(m);
@@ -263,20 +202,20 @@ static void pack_one(pack_state *ps, int k)
 /* Copies the old set's entries that no input replaces. */
 static int copy_old(pack_state *ps, int *nkept, bs_err *err)
 {
-    strmap incoming = {0};
+    cli_strmap incoming = {0};
     int rc = 0;
     for (size_t k = 0; rc == 0 && k < ps->cards->n; k++) {
         char id[128];
         peek_id(ps->cards->path[k], id, sizeof id);
-        if (id[0] && strmap_put(&incoming, id, (int)k)) rc = bs_fail(err, BS_ENOMEM, "out of memory");
+        if (id[0] && cli_strmap_put(&incoming, id, (int)k)) rc = bs_fail(err, BS_ENOMEM, "out of memory");
     }
     *nkept = 0;
     for (int i = 0; rc == 0 && i < ms_count(ps->old); i++) {
-        if (strmap_get(&incoming, ms_entry_at(ps->old, i)->id) >= 0) continue;
+        if (cli_strmap_get(&incoming, ms_entry_at(ps->old, i)->id) >= 0) continue;
         rc = ms_copy_entry(ps->set, ps->old, i, err);
         if (rc == 0) (*nkept)++;
     }
-    strmap_clear(&incoming);
+    cli_strmap_clear(&incoming);
     return rc;
 }
 
@@ -383,8 +322,8 @@ int cmd_pack(int argc, char **argv)
                "%d repeated id(s), %d repeated content(s)\n", output, ms_count(set), ps.added, ps.replaced,
                ps.unchanged, nkept, ps.nbroken, ps.dup_ids, ps.dup_contents);
     ms_free(set);
-    strmap_clear(&ps.ids);
-    strmap_clear(&ps.contents);
+    cli_strmap_clear(&ps.ids);
+    cli_strmap_clear(&ps.contents);
     cardlist_clear(&cards);
     return status;
 }

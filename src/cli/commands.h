@@ -4,6 +4,7 @@
 #define BANDSIEVE_CLI_COMMANDS_H
 
 int cmd_pack(int argc, char **argv);
+int cmd_check(int argc, char **argv);
 int cmd_list(int argc, char **argv);
 int cmd_bands(int argc, char **argv);
 int cmd_inspect(int argc, char **argv);

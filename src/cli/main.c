@@ -13,6 +13,7 @@ typedef struct command {
 
 static const command COMMANDS[] = {
     {"pack", cmd_pack, "import material cards into a material set (HDF5)"},
+    {"check", cmd_check, "validate cards, folders or sets without computing; estimate a screen's cost"},
     {"list", cmd_list, "list what a material set holds"},
     {"models", cmd_models, "list the built-in published lattice models and their parameters"},
     {"bands", cmd_bands, "band energies of one material at given k-points"},

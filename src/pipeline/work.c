@@ -18,6 +18,41 @@ int pl_entry_mesh(int dim, int mesh, int mesh_factor)
     return mesh > 0 ? mesh : diag_default_mesh(dim > 0 ? dim : 3) * (mesh_factor > 1 ? mesh_factor : 1);
 }
 
+double pl_cost(int dim, int norb, int nR, int mesh, int mesh_factor)
+{
+    double n = norb;
+    /* k-points scale as mesh^dim for the gap and node meshes, the dominant fixed cost. */
+    return (n * n * n + (double)nR * n * n) * pow(pl_entry_mesh(dim, mesh, mesh_factor), dim > 0 ? dim : 3);
+}
+
+static int by_double_desc(const void *a, const void *b)
+{
+    double x = *(const double *)a, y = *(const double *)b;
+    return x < y ? 1 : x > y ? -1 : 0;
+}
+
+double pl_makespan(double *costs, int n, int nworkers)
+{
+    if (n <= 0) return 0;
+    if (nworkers < 1) nworkers = 1;
+    qsort(costs, (size_t)n, sizeof *costs, by_double_desc);
+    double *load = calloc((size_t)nworkers, sizeof *load);
+    if (!load) return 0;
+    /* Largest first to the least-loaded worker: what the coordinator's queue does when every
+     * worker asks again as soon as it is done. */
+    for (int i = 0; i < n; i++) {
+        int w = 0;
+        for (int j = 1; j < nworkers; j++)
+            if (load[j] < load[w]) w = j;
+        load[w] += costs[i];
+    }
+    double worst = 0;
+    for (int j = 0; j < nworkers; j++)
+        if (load[j] > worst) worst = load[j];
+    free(load);
+    return worst;
+}
+
 typedef struct sort_key {
     pl_item item;
     const char *id;
@@ -49,10 +84,10 @@ int pl_work_list(const ms_set *set, const cat_ids *ids, const cat_ids *done, int
         if (ids && !cat_ids_contains(ids, e->id)) continue;
         if (done && cat_ids_contains(done, e->id)) continue;
         /* k-points scale as mesh^dim for the gap and node meshes, the dominant fixed cost. */
-        double m = pl_entry_mesh(e->dim, mesh, mesh_factor);
         keys[k].item.index = i;
         keys[k].item.mesh = 0;
-        keys[k].item.cost = (e->cost > 0 ? e->cost : 1.0) * pow(m, e->dim > 0 ? e->dim : 3);
+        keys[k].item.cost = e->cost > 0 ? pl_cost(e->dim, e->norb, e->nR, mesh, mesh_factor)
+                                        : pow(pl_entry_mesh(e->dim, mesh, mesh_factor), e->dim > 0 ? e->dim : 3);
         keys[k].id = e->id;
         k++;
     }
