@@ -5,6 +5,9 @@ The catalogue is read back with Python's own sqlite3 module (an independent SQLi
 checks do not go through our query code. Usage: pipeline_test.py BINARY CASE WORKDIR
 CASE is one of: ranks, resume, broken, query_rescreen.
 """
+import cmath
+import json
+import math
 import os
 import shutil
 import signal
@@ -153,6 +156,7 @@ def case_broken():
     for mid, _, msg in bad:
         if not msg or (s not in msg and "cards/" not in msg):
             fail(f"message of {mid} does not name where: {msg!r}")
+    check_failures_view(cat, s)
     if "4 invalid" not in r.stderr:
         fail("the closing summary line does not count the invalid rows:\n" + r.stderr)
     # Screening the finished catalogue again (the set named another way) does nothing new.
@@ -337,5 +341,227 @@ def case_surfaces_transport():
           f"{len(hall)} Hall values")
 
 
-{"ranks": case_ranks, "crash_journal": case_crash_journal, "groups": case_groups, "surfaces_transport": case_surfaces_transport, "resume": case_resume, "broken": case_broken,
+# ---- content identity, provenance, growing sets (issue 12) ----
+
+def haldane_card(folder, mid, mass, t2=0.2, phi=math.pi / 2, comment=None, meta=None, electrons=False):
+    """Writes a card and table of the Haldane model (Phys. Rev. Lett. 61, 2015 (1988)): honeycomb,
+    nearest-neighbour t1 = 1 eV, complex next-nearest t2 e^{+-i phi}, staggered mass +-M. It is a
+    Chern insulator (C = +-1) for |M| < 3 sqrt(3) |t2 sin phi| = 1.04 eV here and trivial beyond."""
+    h = {}
+
+    def add(R, m, n, v):
+        h[(R, m, n)] = h.get((R, m, n), 0) + v
+        mR = (-R[0], -R[1], 0)
+        if (R, m, n) != (mR, n, m):
+            h[(mR, n, m)] = h.get((mR, n, m), 0) + v.conjugate()
+
+    add((0, 0, 0), 1, 1, complex(mass, 0))
+    add((0, 0, 0), 2, 2, complex(-mass, 0))
+    for R in ((0, 0, 0), (-1, 0, 0), (0, -1, 0)):
+        add(R, 1, 2, complex(-1.0, 0))
+    # d1 = a1, d2 = a2 - a1, d3 = -a2: 120 degrees apart; phase +phi on A, -phi on B along them.
+    for d in ((1, 0, 0), (-1, 1, 0), (0, -1, 0)):
+        add(d, 1, 1, t2 * cmath.exp(1j * phi))
+        add(d, 2, 2, t2 * cmath.exp(-1j * phi))
+    Rs = sorted({k[0] for k in h})
+    lines = [f"Haldane model M={mass} t2={t2} phi={phi} (test data)", "2", str(len(Rs)),
+             " ".join("1" for _ in Rs)]
+    for R in Rs:
+        for n in (1, 2):
+            for m in (1, 2):
+                v = h.get((R, m, n), 0j)
+                lines.append(f"{R[0]} {R[1]} {R[2]} {m} {n} {v.real:.12f} {v.imag:.12f}")
+    table = os.path.join(folder, f"{mid}_hop.dat")
+    with open(table, "w") as f:
+        f.write("\n".join(lines) + "\n")
+    card = {"id": mid, "dimension": 2, "formula": "C2", "source": "Haldane model, test data",
+            "lattice": [[1, 0, 0], [0.5, math.sqrt(3) / 2, 0], [0, 0, 10]],
+            "hoppings": f"{mid}_hop.dat", "spinful": False,
+            "orbitals": [{"position": [1 / 3, 1 / 3, 0], "l": 1, "label": "A pz"},
+                         {"position": [2 / 3, 2 / 3, 0], "l": 1, "label": "B pz"}]}
+    if electrons:
+        card["electrons"] = 2
+    else:
+        card["occupied_bands"] = 1
+    if comment:
+        card["comment"] = comment
+    if meta:
+        card["meta"] = meta
+    path = os.path.join(folder, f"{mid}.json")
+    with open(path, "w") as f:
+        json.dump(card, f, indent=1)
+    return path
+
+
+def haldane_folder(d, masses):
+    cards = os.path.join(d, "cards")
+    os.makedirs(cards, exist_ok=True)
+    for mid, mass in masses.items():
+        haldane_card(cards, mid, mass, comment=f"mass {mass} eV", meta={"family": "haldane", "M": mass})
+    return cards
+
+
+def q(cat, sql, *args):
+    con = sqlite3.connect(cat)
+    rows = con.execute(sql, args).fetchall()
+    con.close()
+    return rows
+
+
+def case_identity():
+    """Content identity under mpirun at 1 and 2 ranks: a repacked entry with a changed table is
+    redone (exactly that one) and summary shows its new answer although an older, finer result
+    exists; a set staged at another path and an explicit default mesh resume the same run; a
+    resubmitted --rerun resumes its own run with a note; rescreen doubles each best mesh and warns
+    about selected ids missing from the set; the failures view shows the cause first."""
+    # |M| = 2 > 1.04: trivial; |M| = 0.1 < 1.04: Chern insulator (Phys. Rev. Lett. 61, 2015 (1988)).
+    masses = {"h1": 2.0, "h2": 0.1, "h3": -2.5, "h4": 0.3}
+    for ranks in (1, 2):
+        d = fresh(f"identity{ranks}")
+        cards = haldane_folder(d, masses)
+        s = os.path.join(d, "set.h5")
+        run([BIN, "pack", "-o", s, cards])
+        cat = os.path.join(d, "cat.sqlite")
+        run(screen_cmd(ranks, s, cat))
+        cls = dict(q(cat, "SELECT material_id, class FROM summary"))
+        if cls != {"h1": "trivial insulator", "h2": "Chern insulator", "h3": "trivial insulator",
+                   "h4": "Chern insulator"}:
+            fail(f"Haldane classes {cls}")
+        prov = q(cat, "SELECT source, comment, orbital_labels, json_extract(meta, '$.M'), formula, "
+                      "json_extract(card_json, '$.hoppings'), length(content), length(set_content) "
+                      "FROM materials WHERE material_id = 'h2'")[0]
+        if prov != ("Haldane model, test data", "mass 0.1 eV", '["A pz","B pz"]', 0.1, "C2", "h2_hop.dat", 64, 64):
+            fail(f"provenance of h2 in materials: {prov}")
+        # A finer rescreen of h1 that a stale summary would prefer.
+        run((["mpirun", "-n", str(ranks), "--oversubscribe"] if ranks > 1 else []) +
+            [BIN, "rescreen", s, "-c", cat, "--where", "material_id = 'h1'", "--mesh", "60"])
+        if q(cat, "SELECT mesh FROM summary WHERE material_id = 'h1'") != [(60,)]:
+            fail("the rescreen at mesh 60 does not show in summary")
+        # Change h1's table (M = 0.1: now a Chern insulator) and repack.
+        haldane_card(cards, "h1", 0.1, comment="mass lowered")
+        r = run([BIN, "pack", "-o", s, os.path.join(cards, "h1.json")], check=False)
+        if r.returncode != 1 or "--force" not in r.stderr:
+            fail(f"a changed entry was replaced without --force ({r.returncode}):\n{r.stderr}")
+        r = run([BIN, "pack", "-o", s, "--force", os.path.join(cards, "h1.json")])
+        if "1 replaced" not in r.stdout or "3 kept" not in r.stdout:
+            fail("pack --force did not replace h1 and keep the rest:\n" + r.stdout)
+        nrows = q(cat, "SELECT COUNT(*) FROM results")[0][0]
+        r = run(screen_cmd(ranks, s, cat))
+        new = q(cat, "SELECT material_id FROM results WHERE run_id = (SELECT MAX(run_id) FROM runs)")
+        if new != [("h1",)] or q(cat, "SELECT COUNT(*) FROM results")[0][0] != nrows + 1:
+            fail(f"a repeated screen after the repack redid {new}, want exactly h1:\n{r.stderr}")
+        row = q(cat, "SELECT class, mesh, current, contents FROM summary WHERE material_id = 'h1'")
+        if row != [("Chern insulator", 36, 1, 2)]:
+            fail(f"summary of the repacked h1: {row} (want the new Chern insulator at mesh 36)")
+        if q(cat, "SELECT comment FROM materials WHERE material_id = 'h1'") != [("mass lowered",)]:
+            fail("the repacked card's comment did not reach materials")
+        if len(q(cat, "SELECT * FROM conflicts WHERE material_id = 'h1'")) != 2:
+            fail("conflicts does not list the two contents of h1")
+
+        # A set staged at another path, with the default mesh written out, resumes the same run.
+        cat2 = os.path.join(d, "cat2.sqlite")
+        stage = os.path.join(d, "scratch", "job42")
+        os.makedirs(stage)
+        staged = os.path.join(stage, "copy.h5")
+        shutil.copy(s, staged)
+        run(screen_cmd(ranks, staged, cat2, "--max-seconds", "0.5"))
+        first = q(cat2, "SELECT run_id, status FROM runs")
+        if len(first) != 1 or first[0][1] != "interrupted":
+            fail(f"the budget-stopped screen left runs {first}")
+        r = run(screen_cmd(ranks, s, cat2, "--mesh", "36", "--progress-every", "5"))
+        if f"resuming run {first[0][0]}" not in r.stderr:
+            fail("the staged set with an explicit default mesh did not resume:\n" + r.stderr)
+        if q(cat2, "SELECT COUNT(*), COUNT(DISTINCT run_id) FROM results") != [(4, 1)] or \
+                len(q(cat2, "SELECT * FROM runs")) != 1:
+            fail("resume did not finish the one run with 4 rows")
+
+        # --rerun in a resubmitted job: the second submission resumes the run the first started.
+        run(screen_cmd(ranks, s, cat2, "--rerun", "--max-seconds", "0.5"))
+        rid = q(cat2, "SELECT MAX(run_id) FROM runs")[0][0]
+        r = run(screen_cmd(ranks, s, cat2, "--rerun"))
+        if f"resuming run {rid}" not in r.stderr or "--rerun resumes" not in r.stderr:
+            fail("a resubmitted --rerun did not resume its own run with a note:\n" + r.stderr)
+        if q(cat2, "SELECT COUNT(*) FROM results WHERE run_id = ?", rid) != [(4,)]:
+            fail("the resumed --rerun run does not hold all 4 rows")
+
+        # Rescreen doubles each entry's best mesh: after a screen at 50, 100 (never 72 or less).
+        run(screen_cmd(ranks, s, cat2, "--mesh", "50"))
+        run((["mpirun", "-n", str(ranks), "--oversubscribe"] if ranks > 1 else []) +
+            [BIN, "rescreen", s, "-c", cat2, "--where", "material_id IN ('h2', 'h3')"])
+        meshes = dict(q(cat2, "SELECT material_id, mesh FROM summary"))
+        if meshes != {"h1": 50, "h2": 100, "h3": 100, "h4": 50}:
+            fail(f"rescreen without --mesh: summary meshes {meshes}, want h2 and h3 at 2 x 50")
+
+        # Ids the selection names but the set lacks are warned about, with their names.
+        small = os.path.join(d, "small.h5")
+        run([BIN, "pack", "-o", small, os.path.join(cards, "h1.json"), os.path.join(cards, "h2.json")])
+        r = run((["mpirun", "-n", str(ranks), "--oversubscribe"] if ranks > 1 else []) +
+                [BIN, "rescreen", small, "-c", cat2, "--where", "1", "--mesh", "40"])
+        if "2 selected materials are not in the set" not in r.stderr or "h3, h4" not in r.stderr:
+            fail("rescreen did not warn about h3 and h4 missing from the set:\n" + r.stderr)
+        print(f"ok ({ranks} rank(s)): repack redid only h1 and summary shows its new class; staged path and "
+              "explicit default mesh resumed; --rerun resumed its run; rescreen doubled 50 -> 100; missing ids warned")
+
+
+def check_failures_view(cat, set_path):
+    """The failures view's cause comes first, without the set's path, readable in 60 characters."""
+    rows = q(cat, "SELECT cause, material_id FROM failures")
+    if not rows:
+        fail("no failures rows")
+    for cause, mid in rows:
+        head = cause[:60]
+        if set_path in cause or os.path.dirname(set_path) in head or len(head.strip()) < 20:
+            fail(f"failures.cause of {mid} does not start with the cause: {cause!r}")
+        words = ("Hermitian", "occupied_bands", "non-finite", "broken")
+        if not any(w in head for w in words):
+            fail(f"the first 60 characters of failures.cause of {mid} name no cause: {head!r}")
+
+
+def case_pack_check():
+    """pack adds to a set from folders and list files and reports repeats; check validates without
+    computing, names problems (a misspelt key with a suggestion), accepts a spin_layout on a
+    spinless card with a note and estimates a screen's cost."""
+    d = fresh("packcheck")
+    cards = haldane_folder(d, {"p1": 2.0, "p2": 0.1})
+    s = os.path.join(d, "set.h5")
+    run([BIN, "pack", "-o", s, cards])
+    more = os.path.join(d, "more")
+    os.makedirs(more)
+    haldane_card(more, "p3", -2.0, electrons=True)
+    haldane_card(more, "p1", 2.0)  # same content as the packed p1
+    with open(os.path.join(d, "list.txt"), "w") as f:
+        f.write("# cards to add\nmore/p3.json\n\nmore/p1.json\n")
+    r = run([BIN, "pack", "-o", s, "--list", os.path.join(d, "list.txt"), os.path.join(more, "p3.json")])
+    if r.returncode != 0 or "3 material(s)" not in r.stdout or "1 repeated id" not in r.stdout:
+        fail(f"append from a list file ({r.returncode}):\n{r.stdout}\n{r.stderr}")
+    if "already given by" not in r.stderr:
+        fail("pack did not report the repeated card:\n" + r.stderr)
+    lst = run([BIN, "list", s]).stdout
+    if not all(m in lst for m in ("p1", "p2", "p3")):
+        fail("list does not show the appended set:\n" + lst)
+    # check: a misspelt key is refused with a suggestion, spin_layout on a spinless card is a note.
+    bad = os.path.join(d, "bad")
+    os.makedirs(bad)
+    p = haldane_card(bad, "b1", 2.0)
+    card = json.load(open(p))
+    card["occupied_band"] = card.pop("occupied_bands")
+    json.dump(card, open(p, "w"))
+    p = haldane_card(bad, "b2", 2.0)
+    card = json.load(open(p))
+    card["spin_layout"] = "blocks"
+    json.dump(card, open(p, "w"))
+    r = run([BIN, "check", bad, s, "--ranks", "3"], check=False)
+    if r.returncode != 1 or "did you mean 'occupied_bands'" not in r.stdout:
+        fail(f"check did not suggest the key ({r.returncode}):\n{r.stdout}\n{r.stderr}")
+    if "spin_layout" not in r.stdout or "ignored" not in r.stdout:
+        fail("check did not note the spin_layout of a spinless card:\n" + r.stdout)
+    if "4 valid, 1 invalid" not in r.stdout or "2 computing" not in r.stdout:
+        fail("check's counts or cost estimate are missing:\n" + r.stdout)
+    if run([BIN, "check", "--help"]).returncode != 0:
+        fail("check --help failed")
+    print("ok: pack appended from a list file and reported the repeat; check found the misspelt key, "
+          "noted the spin_layout and estimated the cost")
+
+
+{"identity": case_identity, "pack_check": case_pack_check, "ranks": case_ranks, "crash_journal": case_crash_journal, "groups": case_groups, "surfaces_transport": case_surfaces_transport, "resume": case_resume, "broken": case_broken,
  "query_rescreen": case_query_rescreen}[CASE]()
