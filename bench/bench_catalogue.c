@@ -72,7 +72,7 @@ int main(int argc, char **argv)
     bs_err_clear(&err);
     cat_db *cat = NULL;
     int64_t run = 0;
-    const cat_run_info info = {"screen", "{\"mesh\":8}", "bench", 1, "localhost", "bench_catalogue", "bench.h5"};
+    const cat_run_info info = {"screen", "{\"mesh\":8}", "bench", 1, "localhost", "bench_catalogue", "bench.h5", NULL, 0};
     if (cat_open(path, CAT_RW, &cat, &err) != 0 || cat_run_begin(cat, &info, &run, &err) != 0) {
         fprintf(stderr, "bench_catalogue: %s\n", err.msg);
         return 1;

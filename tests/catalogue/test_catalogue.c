@@ -141,7 +141,7 @@ static void close_ok(cat_db *cat)
 }
 
 static const cat_run_info RUN_A = {"screen", "{\"mesh\": 8, \"tasks\": [\"z2\", \"chern\"]}", "0.1.0", 2, "node1",
-                                   "bandsieve screen set.h5 -c cat.sqlite", "set.h5"};
+                                   "bandsieve screen set.h5 -c cat.sqlite", "set.h5", NULL, 0};
 
 static int64_t begin(cat_db *cat, const cat_run_info *info)
 {
@@ -275,7 +275,7 @@ static void test_put_and_read_back(void **state)
     int64_t run = begin(cat, &RUN_A);
     bs_err err;
     bs_err_clear(&err);
-    cat_material mat = {"mat-1", "Bi2Se3", 3, 40, 300, 20, 1, "set.h5", "invented", NULL};
+    cat_material mat = {"mat-1", "Bi2Se3", 3, 40, 300, 20, 1, "set.h5", "invented", NULL, NULL, NULL, NULL, NULL, NULL};
     assert_int_equal(cat_material_upsert(cat, &mat, &err), 0);
 
     char buf[4096];
