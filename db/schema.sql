@@ -107,7 +107,6 @@ CREATE TABLE results (
 );
 
 CREATE INDEX results_material ON results (material_id, status);
-CREATE INDEX results_content ON results (material_id, content);
 
 CREATE TABLE nodes (
     run_id      INTEGER NOT NULL,

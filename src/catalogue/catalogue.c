@@ -131,7 +131,6 @@ static const char MIGRATE_1_2[] =
     PLANE_COL("chern_k1_0", "0") PLANE_COL("chern_k1_half", "1") PLANE_COL("chern_k2_0", "2")
     PLANE_COL("chern_k2_half", "3") PLANE_COL("chern_k3_0", "4") PLANE_COL("chern_k3_half", "5")
 #undef PLANE_COL
-    "CREATE INDEX results_content ON results (material_id, content);"
     "PRAGMA user_version = 2;";
 
 /* Schema (fresh files only) and views in one immediate transaction, so two coordinators opening
