@@ -15,7 +15,8 @@ static void list_help(FILE *out)
             "Prints what a material set holds, one line per material: id, dimension, basis states,\n"
             "lattice vectors, occupied bands, spin, status (ok; broken: stored unvalidated or only\n"
             "as an error, screened as invalid) and the estimated cost per k-point (norb^3 + nR norb^2).\n\n"
-            "  --json      one JSON object: path, description, invented, count, materials[]\n"
+            "  --json      one JSON object: path, description, invented, count, content (the set's\n"
+            "              content hash), materials[] (with each entry's content hash)\n"
             "  -h, --help  this text\n");
 }
 
@@ -43,6 +44,10 @@ static int list_json(const ms_set *set)
     cJSON_AddStringToObject(root, "description", ms_description(set));
     cJSON_AddBoolToObject(root, "invented", ms_invented(set));
     cJSON_AddNumberToObject(root, "count", ms_count(set));
+    char set_content[65];
+    bs_err err;
+    bs_err_clear(&err);
+    if (ms_set_content(set, set_content, &err) == 0) cJSON_AddStringToObject(root, "content", set_content);
     cJSON *list = cJSON_AddArrayToObject(root, "materials");
     for (int i = 0; i < ms_count(set); i++) {
         const ms_entry *e = ms_entry_at(set, i);
@@ -55,6 +60,7 @@ static int list_json(const ms_set *set)
         cJSON_AddBoolToObject(o, "spinful", e->spinful);
         cJSON_AddStringToObject(o, "status", status_name(e->status));
         cJSON_AddNumberToObject(o, "cost", e->cost);
+        if (e->content[0]) cJSON_AddStringToObject(o, "content", e->content);
         cJSON_AddItemToArray(list, o);
     }
     char *text = cJSON_Print(root);
