@@ -187,8 +187,8 @@ int cat_done_ids(cat_db *cat, int64_t run_id, cat_ids *ids, bs_err *err);
  * not call this). Call after the materials' content has been recorded (cat_material_upsert). */
 int cat_finished_ids(cat_db *cat, const cat_run_info *info, cat_ids *ids, bs_err *err);
 
-/* *stale = 1 when the material row is missing, has another content than `content`, or lacks its
- * card: its provenance should be (re)written from the set. */
+/* *stale = 1 when the material row is missing or has another content than `content` (or none):
+ * its provenance should be (re)written from the set. */
 int cat_material_stale(cat_db *cat, const char *material_id, const char *content, int *stale, bs_err *err);
 
 /* The highest mesh among the `ok` rows of the material's current content, 0 when it has none. */

@@ -762,7 +762,7 @@ int cat_material_stale(cat_db *cat, const char *material_id, const char *content
 {
     *stale = 1;
     sqlite3_stmt *st = NULL;
-    int rc = prepare(cat, "SELECT content IS ?2 AND card_json IS NOT NULL FROM materials WHERE material_id = ?1", &st, err);
+    int rc = prepare(cat, "SELECT content IS ?2 FROM materials WHERE material_id = ?1", &st, err);
     if (rc != 0) return rc;
     sqlite3_bind_text(st, 1, material_id, -1, SQLITE_TRANSIENT);
     bind_text_or_null(st, 2, content);

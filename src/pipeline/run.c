@@ -313,9 +313,6 @@ static int coord_setup(coord *c, int ranks, const char *hosts, bs_err *err)
     int rc = take_lock(c, err);
     if (rc == 0) rc = ms_open(o->set_path, &c->set, err);
     if (rc == 0) rc = cat_open(o->catalogue_path, CAT_RW, &c->cat, err);
-    if (rc == 0 && (o->batch_rows > 0 || o->batch_seconds > 0))
-        rc = cat_set_batch(c->cat, o->batch_rows > 0 ? o->batch_rows : CAT_BATCH_ROWS,
-                           o->batch_seconds > 0 ? o->batch_seconds : CAT_BATCH_SECONDS, err);
     if (rc != 0) return rc;
     char settings[2048], set_content[65];
     if (settings_json(o, c->set, settings, sizeof settings)) return bs_fail(err, BS_ENOMEM, "run settings too long");
@@ -332,9 +329,15 @@ static int coord_setup(coord *c, int ranks, const char *hosts, bs_err *err)
      * user saw when writing the condition. */
     if (o->where_sql) rc = cat_select_ids(c->cat, o->where_sql, &sel, err);
     if (rc == 0 && o->where_sql) note_missing(c, &sel);
+    /* The material rows go in one transaction (a commit per batch of 64 would cost a sync each,
+     * seconds for 10^5 entries); the result batching is restored after. */
+    if (rc == 0) rc = cat_set_batch(c->cat, 1 << 30, 1e9, err);
     for (int i = 0; rc == 0 && i < ms_count(c->set); i++)
         if (!o->where_sql || cat_ids_contains(&sel, ms_entry_at(c->set, i)->id)) rc = record_material(c, i, set_content, err);
     if (rc == 0) rc = cat_flush(c->cat, err);
+    if (rc == 0)
+        rc = cat_set_batch(c->cat, o->batch_rows > 0 ? o->batch_rows : CAT_BATCH_ROWS,
+                           o->batch_seconds > 0 ? o->batch_seconds : CAT_BATCH_SECONDS, err);
     if (rc == 0) {
         if (o->rerun) rc = cat_run_rerun(c->cat, &info, &c->run_id, &resumed, err);
         else rc = cat_run_resume(c->cat, &info, &c->run_id, &resumed, err);
