@@ -227,6 +227,9 @@ static int record_material(coord *c, int i, const char *set_content, bs_err *err
     int rc = ms_content(c->set, i, content, err);
     if (rc == 0) rc = cat_material_stale(c->cat, e->id, content, &stale, err);
     if (rc != 0) return rc;
+    /* --rerun redoes everything, so its few extra reads refresh cards edited without a change of
+     * content (a new comment or meta). */
+    if (c->o->rerun) stale = 1;
     char *card = NULL, *comment = NULL, *labels = NULL, *meta = NULL;
     const char *formula = NULL, *source = NULL;
     cJSON *j = NULL;
