@@ -157,6 +157,7 @@ def case_broken():
         if not msg or (s not in msg and "cards/" not in msg):
             fail(f"message of {mid} does not name where: {msg!r}")
     check_failures_view(cat, s)
+    check_integer_invariants(cat)
     if "4 invalid" not in r.stderr:
         fail("the closing summary line does not count the invalid rows:\n" + r.stderr)
     # Screening the finished catalogue again (the set named another way) does nothing new.
@@ -515,6 +516,22 @@ def check_failures_view(cat, set_path):
         words = ("Hermitian", "occupied_bands", "non-finite", "broken")
         if not any(w in head for w in words):
             fail(f"the first 60 characters of failures.cause of {mid} name no cause: {head!r}")
+
+
+def check_integer_invariants(cat):
+    """z2_nu0..z2_nu3 and the plane Chern columns repeat the text columns as integers (parsed
+    here independently of the SQL that generates them)."""
+    rows = q(cat, "SELECT material_id, z2, z2_nu0, z2_nu1, z2_nu2, z2_nu3 FROM results WHERE z2 IS NOT NULL")
+    if not rows:
+        fail("no Z2 indices to compare")
+    for mid, z2, *nu in rows:
+        want = [int(z2[0])] + ([int(c) for c in z2[2:5]] if ";" in z2 else [None] * 3)
+        if nu != want:
+            fail(f"{mid}: z2 {z2!r} but integer columns {nu}")
+    for mid, text, *c in q(cat, "SELECT material_id, plane_chern, chern_k1_0, chern_k1_half, chern_k2_0, "
+                                "chern_k2_half, chern_k3_0, chern_k3_half FROM results WHERE plane_chern IS NOT NULL"):
+        if c != [int(v) for v in text.split(";")]:
+            fail(f"{mid}: plane_chern {text!r} but integer columns {c}")
 
 
 def case_pack_check():
