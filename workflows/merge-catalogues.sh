@@ -30,6 +30,8 @@ for part in "$@"; do
   else
     vo=$(sqlite3 "$out" "PRAGMA user_version"); vp=$(sqlite3 "$part" "PRAGMA user_version")
     [ "$vo" = "$vp" ] || { echo "merge: $part has schema $vp, $out has $vo" >&2; exit 1; }
+    # The stored columns of results (its generated integer columns cannot be inserted into).
+    rcols=$(sqlite3 "$out" "SELECT group_concat(name, ', ') FROM pragma_table_xinfo('results') WHERE hidden = 0")
     sqlite3 "$out" <<SQL
 PRAGMA foreign_keys = OFF;
 ATTACH '$(sqlq "$part")' AS p;
@@ -44,7 +46,7 @@ UPDATE t_sessions SET run_id = run_id + (SELECT n FROM off);
 INSERT INTO main.run_sessions SELECT * FROM t_sessions;
 CREATE TEMP TABLE t_results AS SELECT * FROM p.results;
 UPDATE t_results SET run_id = run_id + (SELECT n FROM off);
-INSERT INTO main.results SELECT * FROM t_results;
+INSERT INTO main.results ($rcols) SELECT $rcols FROM t_results;
 CREATE TEMP TABLE t_nodes AS SELECT * FROM p.nodes;
 UPDATE t_nodes SET run_id = run_id + (SELECT n FROM off);
 INSERT INTO main.nodes SELECT * FROM t_nodes;
