@@ -131,10 +131,14 @@ typedef struct cat_material {
     const char *comment;     /* the card's comment */
     const char *orbital_labels; /* JSON list of the orbitals' labels (null where none) */
     const char *meta;        /* the card's meta object as JSON */
+    int provenance;          /* 1: formula, source, card_json, comment, orbital_labels and meta
+                                replace the stored ones as a whole (NULL clears); 0: only non-NULL
+                                fields replace */
 } cat_material;
 
-/* Inserts or updates the material row (non-NULL fields replace the stored ones). Batched like
- * results (counts towards the batch). */
+/* Inserts or updates the material row (non-NULL fields replace the stored ones; with provenance
+ * set, the provenance fields are replaced together). Batched like results (counts towards the
+ * batch). */
 int cat_material_upsert(cat_db *cat, const cat_material *m, bs_err *err);
 
 /* Records the result of material_id in run_id: status, message (borrowed, may be NULL), the

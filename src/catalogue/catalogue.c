@@ -186,14 +186,20 @@ static const char *const STMT_SQL[CAT_ST_COUNT] = {
         "INSERT INTO materials (material_id, formula, dimension, norb, nr, nocc, spinful, set_path, source,"
         " card_json, updated, content, set_content, comment, orbital_labels, meta)"
         " VALUES (?1, ?2, ?3, ?4, ?5, ?6, ?7, ?8, ?9, ?10, " CAT_NOW_SQL ", ?11, ?12, ?13, ?14, ?15)"
-        " ON CONFLICT (material_id) DO UPDATE SET formula = COALESCE(excluded.formula, formula),"
+        /* ?16 = 1: the provenance fields (formula, source, card, comment, labels, meta) are replaced
+         * as a whole, NULLs included, so a new content never keeps the old content's comment. */
+        " ON CONFLICT (material_id) DO UPDATE SET"
+        " formula = CASE WHEN ?16 THEN excluded.formula ELSE COALESCE(excluded.formula, formula) END,"
         " dimension = COALESCE(excluded.dimension, dimension), norb = COALESCE(excluded.norb, norb),"
         " nr = COALESCE(excluded.nr, nr), nocc = COALESCE(excluded.nocc, nocc),"
         " spinful = COALESCE(excluded.spinful, spinful), set_path = COALESCE(excluded.set_path, set_path),"
-        " source = COALESCE(excluded.source, source), card_json = COALESCE(excluded.card_json, card_json),"
+        " source = CASE WHEN ?16 THEN excluded.source ELSE COALESCE(excluded.source, source) END,"
+        " card_json = CASE WHEN ?16 THEN excluded.card_json ELSE COALESCE(excluded.card_json, card_json) END,"
         " content = COALESCE(excluded.content, content), set_content = COALESCE(excluded.set_content, set_content),"
-        " comment = COALESCE(excluded.comment, comment),"
-        " orbital_labels = COALESCE(excluded.orbital_labels, orbital_labels), meta = COALESCE(excluded.meta, meta),"
+        " comment = CASE WHEN ?16 THEN excluded.comment ELSE COALESCE(excluded.comment, comment) END,"
+        " orbital_labels = CASE WHEN ?16 THEN excluded.orbital_labels"
+        " ELSE COALESCE(excluded.orbital_labels, orbital_labels) END,"
+        " meta = CASE WHEN ?16 THEN excluded.meta ELSE COALESCE(excluded.meta, meta) END,"
         " updated = excluded.updated",
 };
 
@@ -649,6 +655,7 @@ int cat_material_upsert(cat_db *cat, const cat_material *m, bs_err *err)
     bind_text_or_null(st, 13, m->comment);
     bind_text_or_null(st, 14, m->orbital_labels);
     bind_text_or_null(st, 15, m->meta);
+    sqlite3_bind_int(st, 16, m->provenance ? 1 : 0);
     int s = sqlite3_step(st);
     sqlite3_reset(st);
     sqlite3_clear_bindings(st);

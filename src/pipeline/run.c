@@ -246,7 +246,7 @@ static int record_material(coord *c, int i, const char *set_content, bs_err *err
     cat_material mat = {.material_id = e->id, .formula = formula, .dimension = e->dim, .norb = e->norb,
                         .nr = e->nR, .nocc = e->nocc, .spinful = e->spinful, .set_path = c->o->set_path,
                         .source = source, .card_json = card, .content = content, .set_content = set_content,
-                        .comment = comment, .orbital_labels = labels, .meta = meta};
+                        .comment = comment, .orbital_labels = labels, .meta = meta, .provenance = stale};
     rc = cat_material_upsert(c->cat, &mat, err);
     cJSON_Delete(j);
     free(card);

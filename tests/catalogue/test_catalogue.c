@@ -275,7 +275,7 @@ static void test_put_and_read_back(void **state)
     int64_t run = begin(cat, &RUN_A);
     bs_err err;
     bs_err_clear(&err);
-    cat_material mat = {"mat-1", "Bi2Se3", 3, 40, 300, 20, 1, "set.h5", "invented", NULL, NULL, NULL, NULL, NULL, NULL};
+    cat_material mat = {"mat-1", "Bi2Se3", 3, 40, 300, 20, 1, "set.h5", "invented", NULL, NULL, NULL, NULL, NULL, NULL, 0};
     assert_int_equal(cat_material_upsert(cat, &mat, &err), 0);
 
     char buf[4096];

@@ -454,8 +454,10 @@ def case_identity():
         row = q(cat, "SELECT class, mesh, current, contents FROM summary WHERE material_id = 'h1'")
         if row != [("Chern insulator", 36, 1, 2)]:
             fail(f"summary of the repacked h1: {row} (want the new Chern insulator at mesh 36)")
-        if q(cat, "SELECT comment FROM materials WHERE material_id = 'h1'") != [("mass lowered",)]:
-            fail("the repacked card's comment did not reach materials")
+        # The new card has a comment and no meta: the old content's meta must not linger.
+        if q(cat, "SELECT comment, meta FROM materials WHERE material_id = 'h1'") != [("mass lowered", None)]:
+            fail("materials does not hold exactly the repacked card's provenance: "
+                 f"{q(cat, 'SELECT comment, meta FROM materials WHERE material_id = ?', 'h1')}")
         if len(q(cat, "SELECT * FROM conflicts WHERE material_id = 'h1'")) != 2:
             fail("conflicts does not list the two contents of h1")
 
