@@ -4,7 +4,8 @@
  * (-0.0 written as +0.0, since both give the same H(k)):
  *
  *   the tag "bandsieve-content-1"; dimension; lattice (9 numbers); norb, nspatial, spinful,
- *   spin_layout; occupied bands; orbital positions (nspatial x 3) and angular momenta; has_fermi and
+ *   spin_layout; occupied bands; orbital positions (nspatial x 3) and angular momenta; when the
+ *   card names orbital shapes, the tag "orbital-shapes" and each orbital's shape index; has_fermi and
  *   the Fermi energy (0 when absent; transport is evaluated there); has_inversion_op and, when set,
  *   the operator (perm, sign, shift per state); nR; then per lattice vector R (3 integers), its
  *   weight and H(R) (norb x norb complex, row-major).

@@ -38,6 +38,13 @@ static void put_model_head(bs_sha256 *s, const tb_model *m)
         for (int d = 0; d < 3; d++) put_f64(s, m->orb_pos[o][d]);
         put_i64(s, m->orb_l[o]);
     }
+    /* Orbital shapes fix the symmetry representations (crystalline invariants); a model without
+     * them hashes as before, one with them adds a marked block. */
+    if (m->orb_shape) {
+        static const char mark[] = "orbital-shapes";
+        bs_sha256_update(s, mark, sizeof mark);
+        for (int o = 0; o < m->nspatial; o++) put_i64(s, m->orb_shape[o]);
+    }
     put_i64(s, m->has_fermi);
     put_f64(s, m->has_fermi ? m->fermi_ev : 0.0);
     put_i64(s, m->has_inversion_op);

@@ -109,6 +109,16 @@ static void test_hash_covers_the_answer_only(void **state)
     m->lattice[2][2] *= 1.5;
     tb_content_hash(m, h1);
     assert_string_not_equal(h0, h1);
+    m->lattice[2][2] /= 1.5;
+    /* Orbital shapes (symmetry representations) count when given, and which shape matters. */
+    char h2[65];
+    m->orb_shape = calloc((size_t)m->nspatial, sizeof *m->orb_shape);
+    assert_non_null(m->orb_shape);
+    tb_content_hash(m, h1);
+    assert_string_not_equal(h0, h1);
+    m->orb_shape[0] = -1;
+    tb_content_hash(m, h2);
+    assert_string_not_equal(h1, h2);
     tb_model_free(m);
 }
 
