@@ -83,13 +83,15 @@ static void material(cat_db *cat, const char *id, const char *content)
     if (cat_material_upsert(cat, &m, &err) != 0) fail_msg("upsert: %s", err.msg);
 }
 
-/* An invented diagnosis with the given class, mesh, Z2 text (JSON list or null) and plane Chern list. */
+/* An invented diagnosis with the given class, mesh, Z2 (JSON list or null) and plane Chern list;
+ * 2D when the Z2 list has one entry. */
 static void put(cat_db *cat, int64_t run, const char *id, const char *cls, int mesh, const char *z2, const char *planes)
 {
     char json[1024];
+    int dim = z2[0] == '[' && !strchr(z2, ',') ? 2 : 3;
     snprintf(json, sizeof json,
              "{\"id\":\"%s\",\"class\":\"%s\",\"confidence\":0.9,\"z2\":%s,\"plane_chern\":%s,\"mesh\":%d,"
-             "\"dimension\":3,\"norb\":4,\"occupied_bands\":2}", id, cls, z2, planes, mesh);
+             "\"dimension\":%d,\"norb\":4,\"occupied_bands\":2}", id, cls, z2, planes, mesh, dim);
     bs_err err;
     bs_err_clear(&err);
     if (cat_result_put_text(cat, run, id, CAT_RES_OK, NULL, json, strlen(json), 1, 1.0, &err) != 0)
