@@ -33,6 +33,11 @@ int bs_fail(bs_err *e, int code, const char *fmt, ...) __attribute__((format(pri
 /* Prepends context ("material X: ") to the message in e; returns e->code. */
 int bs_err_context(bs_err *e, const char *fmt, ...) __attribute__((format(printf, 2, 3)));
 
+/* Fault injection for tests: 1 when the environment variable `var` is set to `key` or to "*",
+ * else 0. Used only at a few storage writes (named in the README's reliability section), so that
+ * tests can make exactly one material's write fail as a full disk would. */
+int bs_fault_hit(const char *var, const char *key);
+
 /* Short name of a code ("parse", "io", ...). */
 const char *bs_err_name(int code);
 

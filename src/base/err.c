@@ -3,6 +3,7 @@
 
 #include <stdarg.h>
 #include <stdio.h>
+#include <stdlib.h>
 #include <string.h>
 
 void bs_err_clear(bs_err *e)
@@ -56,4 +57,10 @@ const char *bs_err_name(int code)
     case BS_EUSAGE: return "usage";
     default: return "unknown";
     }
+}
+
+int bs_fault_hit(const char *var, const char *key)
+{
+    const char *v = getenv(var);
+    return v && key && (strcmp(v, "*") == 0 || strcmp(v, key) == 0);
 }

@@ -41,6 +41,28 @@ static int h5_fail(bs_err *err, const char *file, const char *what)
     return bs_fail(err, BS_EHDF5, "%s: %s failed", file, what);
 }
 
+/* The full path of the open artifact file (beside the catalogue). */
+static void artifact_path(const cat_db *cat, char *out, size_t len)
+{
+    char dir[512];
+    const char *base = NULL;
+    split_path(cat->path, dir, sizeof dir, &base);
+    snprintf(out, len, "%s/%s", dir, cat->h5_name);
+}
+
+/* A write to the artifact file failed (errnum: errno just after the failing call): the message
+ * names the file and the cause (disk full, permissions), and the file is marked broken, so that
+ * neither a flush nor a close reaches HDF5 again. A failed H5Fclose leaves the file half torn
+ * down; closing it a second time (also from the library's exit handler) crashed in HDF5 1.10,
+ * which is why main() disables that handler. */
+static int storage_fail(cat_db *cat, int errnum, const char *what, bs_err *err)
+{
+    char full[1100], cause[256];
+    artifact_path(cat, full, sizeof full);
+    cat->h5_broken = 1;
+    return bs_fail(err, BS_EHDF5, "%s: %s failed: %s", full, what, cat_io_cause(full, errnum, cause, sizeof cause));
+}
+
 static int write_attr_int(hid_t loc, const char *name, long long value)
 {
     hid_t space = H5Screate(H5S_SCALAR);
@@ -78,8 +100,14 @@ static int open_file(cat_db *cat, int64_t run_id, int session, bs_err *err)
         }
         if (fapl >= 0) H5Pclose(fapl);
     } H5E_END_TRY;
-    if (f < 0) return bs_fail(err, BS_EHDF5, "%s: cannot create or open the artifact file (errno %d: %s)", full, errno, strerror(errno));
+    if (f < 0) {
+        char cause[256];
+        int errnum = errno;
+        return bs_fail(err, BS_EHDF5, "%s: cannot create or open the artifact file: %s", full,
+                       cat_io_cause(full, errnum == EISDIR ? EISDIR : errnum, cause, sizeof cause));
+    }
     cat->h5 = f;
+    cat->h5_broken = 0;
     cat->h5_dirty = 1;
     cat->h5_run = run_id;
     cat->h5_session = session;
@@ -103,6 +131,11 @@ int cat_artifact_write(cat_db *cat, int64_t run_id, int session, const char *mat
                        char *file, size_t file_len, char *h5path, size_t h5path_len, bs_err *err)
 {
     int rc = open_file(cat, run_id, session, err);
+    if (rc == 0 && cat->h5_broken) rc = bs_fail(err, BS_EHDF5, "%s: an earlier write to this artifact file failed", cat->h5_name);
+    if (rc == 0 && bs_fault_hit("BS_FAULT_ARTIFACT_WRITE", material_id)) {
+        errno = ENOSPC; /* injected by a test: the next write behaves as on a full disk */
+        rc = storage_fail(cat, ENOSPC, "writing the flow datasets (injected fault)", err);
+    }
     if (rc != 0) return rc;
     char enc[400];
     encode_name(material_id, enc, sizeof enc);
@@ -116,17 +149,17 @@ int cat_artifact_write(cat_db *cat, int64_t run_id, int session, const char *mat
             group = H5Gcreate2(cat->h5, h5path, lcpl, H5P_DEFAULT, H5P_DEFAULT);
     } H5E_END_TRY;
     /* H5Lexists on "/a/b" fails quietly when "/a" is missing; that is the fresh case. */
-    if (group < 0) rc = h5_fail(err, cat->h5_name, "creating the flow group");
+    if (group < 0) rc = storage_fail(cat, errno, "creating the flow group", err);
     const hsize_t d1[1] = {(hsize_t)f->nstring}, d2[2] = {(hsize_t)f->nstring, (hsize_t)f->nband};
     if (rc == 0 && (write_dataset(group, "kpar", 1, d1, f->kpar) != 0 || write_dataset(group, "wcc", 2, d2, f->wcc) != 0))
-        rc = h5_fail(err, cat->h5_name, "writing the flow datasets");
+        rc = storage_fail(cat, errno, "writing the flow datasets", err);
     int attr_rc = 0;
     H5E_BEGIN_TRY {
         if (rc == 0) attr_rc = write_attr_int(group, "plane", f->plane);
         if (group >= 0) H5Gclose(group);
         if (lcpl >= 0) H5Pclose(lcpl);
     } H5E_END_TRY;
-    if (rc == 0 && attr_rc != 0) rc = h5_fail(err, cat->h5_name, "writing the plane attribute");
+    if (rc == 0 && attr_rc != 0) rc = storage_fail(cat, errno, "writing the plane attribute", err);
     cat->h5_dirty = 1;
     if (rc != 0) bs_err_context(err, "material %s: ", material_id);
     return rc;
@@ -134,10 +167,13 @@ int cat_artifact_write(cat_db *cat, int64_t run_id, int session, const char *mat
 
 int cat_artifact_flush(cat_db *cat, bs_err *err)
 {
-    if (cat->h5 < 0 || !cat->h5_dirty) return 0; /* most batches carry no flows */
+    if (cat->h5 < 0) return 0;
+    if (cat->h5_broken) return bs_fail(err, BS_EHDF5, "%s: an earlier write to this artifact file failed", cat->h5_name);
+    if (!cat->h5_dirty) return 0; /* most batches carry no flows */
     herr_t s;
+    errno = 0;
     H5E_BEGIN_TRY { s = H5Fflush(cat->h5, H5F_SCOPE_GLOBAL); } H5E_END_TRY;
-    if (s < 0) return h5_fail(err, cat->h5_name, "flushing the artifact file");
+    if (s < 0) return storage_fail(cat, errno, "flushing the artifact file", err);
     cat->h5_dirty = 0;
     return 0;
 }
@@ -145,12 +181,23 @@ int cat_artifact_flush(cat_db *cat, bs_err *err)
 int cat_artifact_close(cat_db *cat, bs_err *err)
 {
     if (cat->h5 < 0) return 0;
-    herr_t s;
-    H5E_BEGIN_TRY { s = H5Fclose(cat->h5); } H5E_END_TRY;
+    herr_t s = -1;
+    int broken = cat->h5_broken, errnum = 0;
+    /* A broken file is dropped, not closed: its close would try the failed writes again and
+     * leave the handle half freed (one descriptor stays open until the process ends). */
+    if (!broken) {
+        errno = 0;
+        H5E_BEGIN_TRY { s = H5Fclose(cat->h5); } H5E_END_TRY;
+        errnum = errno;
+    }
+    int rc = 0;
+    if (broken) rc = bs_fail(err, BS_EHDF5, "%s: an earlier write to this artifact file failed", cat->h5_name);
+    else if (s < 0) rc = storage_fail(cat, errnum, "closing the artifact file", err);
     cat->h5 = H5I_INVALID_HID;
+    cat->h5_broken = 0;
     cat->h5_run = 0;
     cat->h5_session = 0;
-    return s < 0 ? h5_fail(err, cat->h5_name, "closing the artifact file") : 0;
+    return rc;
 }
 
 void cat_flow_clear(cat_flow *f)

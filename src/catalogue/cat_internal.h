@@ -48,6 +48,7 @@ struct cat_db {
     int64_t h5_run;
     int h5_session;
     int h5_dirty;            /* written since the last flush */
+    int h5_broken;           /* a write or flush failed: never flushed or closed again */
     char h5_name[512];       /* its file name relative to the catalogue's folder */
 };
 
@@ -56,6 +57,11 @@ double cat_now(void);
 
 /* sqlite3 failure: fills err with "what: sqlite3_errmsg (code)" and returns BS_ESQL. */
 int cat_sql_fail(cat_db *cat, bs_err *err, const char *what);
+
+/* Why a write to path may have failed, for messages: "disk full (N bytes free in DIR)",
+ * "permission denied", ... from errnum (0 when unknown) and the state of path's folder. Writes
+ * into buf and returns it. */
+const char *cat_io_cause(const char *path, int errnum, char *buf, size_t len);
 
 /* Runs SQL text without results; BS_ESQL with the message on failure. */
 int cat_exec(cat_db *cat, const char *sql, bs_err *err);

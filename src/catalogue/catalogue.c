@@ -6,9 +6,13 @@
 #include <cjson/cJSON.h>
 
 #include <ctype.h>
+#include <errno.h>
+#include <stdio.h>
 #include <stdlib.h>
 #include <string.h>
+#include <sys/statvfs.h>
 #include <time.h>
+#include <unistd.h>
 
 /* Readers (a `query` during a screen) hold the WAL briefly; 10 s covers a checkpoint on a slow
  * shared file system without hanging a job forever (common practice). */
@@ -48,17 +52,57 @@ double cat_now(void)
     return (double)ts.tv_sec + 1e-9 * (double)ts.tv_nsec;
 }
 
+/* Below this many free bytes a folder's file system counts as full: HDF5 and SQLite write in
+ * pages of a few kB, so a failed write with less than this left was almost surely for space. */
+#define CAT_FULL_BYTES (64 * 1024)
+
+const char *cat_io_cause(const char *path, int errnum, char *buf, size_t len)
+{
+    char dir[1024];
+    const char *slash = path ? strrchr(path, '/') : NULL;
+    if (!slash) snprintf(dir, sizeof dir, ".");
+    else snprintf(dir, sizeof dir, "%.*s", (int)(slash - path > 0 ? slash - path : 1), path);
+    struct statvfs vfs;
+    int have_vfs = statvfs(dir, &vfs) == 0;
+    unsigned long long free_bytes = have_vfs ? (unsigned long long)vfs.f_bavail * vfs.f_frsize : 0;
+    if (errnum == ENOSPC || errnum == EDQUOT || (have_vfs && free_bytes < CAT_FULL_BYTES))
+        snprintf(buf, len, "disk full (%llu bytes free on the file system of %s)", free_bytes, dir);
+    else if (errnum == EACCES || errnum == EPERM || access(dir, W_OK) != 0)
+        snprintf(buf, len, "permission denied (folder %s%s)", dir, access(dir, W_OK) != 0 ? " is not writable" : "");
+    else if (errnum == EROFS)
+        snprintf(buf, len, "read-only file system (%s)", dir);
+    else if (errnum != 0)
+        snprintf(buf, len, "%s", strerror(errnum));
+    else
+        snprintf(buf, len, "I/O error (no cause reported)");
+    return buf;
+}
+
 int cat_sql_fail(cat_db *cat, bs_err *err, const char *what)
 {
     sqlite3 *db = cat ? cat->db : NULL;
-    return bs_fail(err, BS_ESQL, "%s: %s: %s (sqlite code %d)", cat && cat->path ? cat->path : "catalogue",
-                   what, db ? sqlite3_errmsg(db) : "no connection", db ? sqlite3_extended_errcode(db) : 0);
+    const char *path = cat && cat->path ? cat->path : "catalogue";
+    int code = db ? sqlite3_extended_errcode(db) : 0;
+    int primary = code & 0xff;
+    if (primary == SQLITE_FULL || primary == SQLITE_IOERR || primary == SQLITE_CANTOPEN || primary == SQLITE_READONLY ||
+        primary == SQLITE_PERM) {
+        /* Storage faults name their cause: the user's fix (free space, permissions) differs. */
+        char cause[256];
+        cat_io_cause(path, sqlite3_system_errno(db), cause, sizeof cause);
+        return bs_fail(err, BS_ESQL, "%s: %s: %s: %s (sqlite code %d)", path, what, cause, sqlite3_errmsg(db), code);
+    }
+    return bs_fail(err, BS_ESQL, "%s: %s: %s (sqlite code %d)", path, what, db ? sqlite3_errmsg(db) : "no connection", code);
 }
 
 int cat_exec(cat_db *cat, const char *sql, bs_err *err)
 {
     char *msg = NULL;
     if (sqlite3_exec(cat->db, sql, NULL, NULL, &msg) == SQLITE_OK) return 0;
+    int primary = sqlite3_errcode(cat->db);
+    if (primary == SQLITE_FULL || primary == SQLITE_IOERR || primary == SQLITE_CANTOPEN || primary == SQLITE_READONLY) {
+        sqlite3_free(msg);
+        return cat_sql_fail(cat, err, "writing");
+    }
     int rc = bs_fail(err, BS_ESQL, "%s: %s (sqlite code %d)", cat->path, msg ? msg : sqlite3_errmsg(cat->db),
                      sqlite3_extended_errcode(cat->db));
     sqlite3_free(msg);

@@ -1,4 +1,5 @@
 /* bandsieve entry point: dispatches to the subcommands of src/cli/commands.h. */
+#include <hdf5.h>
 #include <stdio.h>
 #include <string.h>
 
@@ -38,6 +39,11 @@ static void usage(FILE *out)
 
 int main(int argc, char **argv)
 {
+    /* Every HDF5 file is closed by the code that opened it. The library's exit handler would close
+     * whatever is left once more, including an artifact file whose close failed on a full disk,
+     * and that second close crashed inside HDF5 (issue 15). It must be switched off before the
+     * library's first use. */
+    H5dont_atexit();
     if (argc < 2) {
         usage(stderr);
         return 2;

@@ -374,6 +374,13 @@ static int coord_setup(coord *c, int ranks, const char *hosts, bs_err *err)
     return rc;
 }
 
+/* Whether a catalogue error is a fault of its storage (the SQLite file or an artifact file could
+ * not be written) rather than of the result: such a result is left to a resumed run. */
+static int is_storage_fault(int code)
+{
+    return code == BS_ESQL || code == BS_EHDF5 || code == BS_EIO || code == BS_ENOMEM;
+}
+
 /* Records one outcome; a timeout caused by the job's own budget is not recorded, so that a
  * resumed run does that material again. */
 static int coord_record(coord *c, const pl_outcome *out, int job_limited, bs_err *err)
@@ -394,6 +401,13 @@ static int coord_record(coord *c, const pl_outcome *out, int job_limited, bs_err
     if (rc != 0) bs_err_context(err, "from rank %d: ", out->rank);
     else rc = cat_result_put(c->cat, c->run_id, out->id, st, out->code ? out->message : NULL, has ? &r : NULL,
                              out->rank, out->seconds, err);
+    if (rc != 0 && is_storage_fault(rc)) {
+        /* The result is fine but cannot be stored (disk full, unwritable artifact file): it is
+         * not recorded at all, so a resumed run computes it again, and the job stops. */
+        res_clear(&r);
+        bs_err_context(err, "material %s was computed but not stored (a resumed run redoes it): ", out->id);
+        return rc;
+    }
     if (rc != 0) {
         /* A result the catalogue refuses (malformed JSON from a bug) must not stop the job:
          * it becomes a failed row naming the problem. */
@@ -557,6 +571,12 @@ static int run_coordinator(coord *c, int size, bs_err *err)
         mrc = recv_outcome(c->comm, &st, &out, &job_limited, &kind, err);
         if (mrc != 0) return mrc;
         if (kind == 1 && rc == 0) rc = coord_record(c, &out, job_limited, err);
+        else if (kind == 1 && c->journal) {
+            /* After a storage fault results are dropped, not lost: no strike against them. */
+            bs_err jerr;
+            bs_err_clear(&jerr);
+            pl_journal_received(c->journal, out.id, &jerr);
+        }
         pl_outcome_clear(&out);
         wire_work w;
         /* After a catalogue error nothing more is handed out: results could not be kept. */
@@ -777,7 +797,10 @@ int pl_run(MPI_Comm user_comm, const pl_opts *o, pl_counts *counts, int *is_root
     if (setup_ok) {
         bs_err end_err;
         bs_err_clear(&end_err);
-        cat_run_status rs = rc != 0 ? CAT_RUN_FAILED : c.counts.interrupted ? CAT_RUN_INTERRUPTED : CAT_RUN_DONE;
+        /* A storage fault (disk full, unwritable artifacts) leaves the run interrupted, so that
+         * the same command resumes it once the fault is fixed; other job failures end it failed. */
+        cat_run_status rs = rc != 0 ? (is_storage_fault(rc) ? CAT_RUN_INTERRUPTED : CAT_RUN_FAILED)
+                          : c.counts.interrupted ? CAT_RUN_INTERRUPTED : CAT_RUN_DONE;
         if (cat_run_end(c.cat, c.run_id, rs, &end_err) != 0 && rc == 0) { *err = end_err; rc = end_err.code; }
     }
     if (setup_ok) coord_tick(&c, 1);

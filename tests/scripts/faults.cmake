@@ -1,0 +1,9 @@
+# Fault tests (issue 15): full disk, unwritable artifacts, corrupt sets, queries, validation,
+# memory budgets, random kills (tests/scripts/faults_test.py).
+foreach(case disk_full artifact_unwritable)
+  add_test(NAME faults_${case}
+           COMMAND ${BS_PYTHON} ${CMAKE_CURRENT_LIST_DIR}/faults_test.py $<TARGET_FILE:bandsieve>
+                   ${case} ${CMAKE_BINARY_DIR}/faults-work)
+  set_tests_properties(faults_${case} PROPERTIES LABELS "faults" TIMEOUT 600
+    ENVIRONMENT "OMPI_ALLOW_RUN_AS_ROOT=1;OMPI_ALLOW_RUN_AS_ROOT_CONFIRM=1")
+endforeach()
