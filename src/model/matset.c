@@ -9,6 +9,7 @@
 #include <stdio.h>
 #include <stdlib.h>
 #include <string.h>
+#include <strings.h>
 #include <unistd.h>
 
 #include "bandsieve/card.h"
@@ -38,7 +39,9 @@ static herr_t h5_walk(unsigned n, const H5E_error2_t *e, void *data)
     return 0;
 }
 
-/* Fails with BS_EHDF5 and the deepest message on HDF5's error stack. */
+/* Fails with BS_EHDF5 and the deepest message on HDF5's error stack. A checksum mismatch (the
+ * Fletcher32 filter on the datasets or the metadata checksums of the file format) says the entry is
+ * corrupt, in those words, so that a row and a user can tell damage from a bug. */
 static int h5_fail(bs_err *err, const char *fmt, ...) __attribute__((format(printf, 2, 3)));
 static int h5_fail(bs_err *err, const char *fmt, ...)
 {
@@ -48,8 +51,28 @@ static int h5_fail(bs_err *err, const char *fmt, ...)
     vsnprintf(what, sizeof what, fmt, ap);
     va_end(ap);
     H5Ewalk2(H5E_DEFAULT, H5E_WALK_DOWNWARD, h5_walk, deep);
+    int corrupt = 0;
+    for (const char *p = deep; *p && !corrupt; p++) corrupt = strncasecmp(p, "checksum", 8) == 0;
+    if (corrupt) return bs_fail(err, BS_EPARSE, "%s: the file is corrupt (HDF5: %s)", what, deep);
     if (deep[0]) return bs_fail(err, BS_EHDF5, "%s (HDF5: %s)", what, deep);
     return bs_fail(err, BS_EHDF5, "%s", what);
+}
+
+/* A read failed with `code` and the message: unless HDF5's error stack shows a checksum mismatch
+ * (damaged metadata looks like a missing attribute or group), then the entry is corrupt. */
+static int read_fail(bs_err *err, int code, const char *fmt, ...) __attribute__((format(printf, 3, 4)));
+static int read_fail(bs_err *err, int code, const char *fmt, ...)
+{
+    char what[600], deep[256] = "";
+    va_list ap;
+    va_start(ap, fmt);
+    vsnprintf(what, sizeof what, fmt, ap);
+    va_end(ap);
+    H5Ewalk2(H5E_DEFAULT, H5E_WALK_DOWNWARD, h5_walk, deep);
+    for (const char *p = deep; *p; p++)
+        if (strncasecmp(p, "checksum", 8) == 0 || strncasecmp(p, "signature", 9) == 0)
+            return bs_fail(err, BS_EPARSE, "%s: the file is corrupt (HDF5: %s)", what, deep);
+    return bs_fail(err, code, "%s", what);
 }
 
 /* ---- attributes ---- */
@@ -81,27 +104,45 @@ static int attr_write_str(hid_t loc, const char *name, const char *v)
     return rc;
 }
 
-/* 0, or -1 when the attribute is missing or not readable as an int. */
-static int attr_read_int(hid_t loc, const char *name, int *v)
+/* Opens attribute name of loc when it holds one value of type class cls and a size of at most
+ * max_size bytes; -1 otherwise. What libhdf5 must decode for a scalar is then a few bytes, so a
+ * damaged attribute is refused here instead of being converted. */
+static hid_t attr_open_checked(hid_t loc, const char *name, H5T_class_t cls, size_t max_size)
 {
     if (H5Aexists(loc, name) <= 0) return -1;
     hid_t a = H5Aopen(loc, name, H5P_DEFAULT);
     if (a < 0) return -1;
-    hid_t sp = H5Aget_space(a);
-    int ok = sp >= 0 && H5Sget_simple_extent_npoints(sp) == 1 && H5Aread(a, H5T_NATIVE_INT, v) >= 0;
+    hid_t sp = H5Aget_space(a), ft = H5Aget_type(a);
+    int ok = sp >= 0 && ft >= 0 && H5Sget_simple_extent_npoints(sp) == 1 && H5Tget_class(ft) == cls &&
+             H5Tget_size(ft) > 0 && H5Tget_size(ft) <= max_size;
+    if (ok && cls == H5T_STRING) ok = H5Tis_variable_str(ft) == 0;
+    if (ft >= 0) H5Tclose(ft);
     if (sp >= 0) H5Sclose(sp);
+    if (!ok) {
+        H5Aclose(a);
+        return -1;
+    }
+    return a;
+}
+
+/* 0, or -1 when the attribute is missing or not one integer of at most 8 bytes. */
+static int attr_read_int(hid_t loc, const char *name, int *v)
+{
+    hid_t a = attr_open_checked(loc, name, H5T_INTEGER, 8);
+    if (a < 0) return -1;
+    long long wide = 0;
+    int ok = H5Aread(a, H5T_NATIVE_LLONG, &wide) >= 0 && wide >= -2147483647LL && wide <= 2147483647LL;
     H5Aclose(a);
+    if (ok) *v = (int)wide;
     return ok ? 0 : -1;
 }
 
+/* 0, or -1 when the attribute is missing or not one float of 4 or 8 bytes. */
 static int attr_read_double(hid_t loc, const char *name, double *v)
 {
-    if (H5Aexists(loc, name) <= 0) return -1;
-    hid_t a = H5Aopen(loc, name, H5P_DEFAULT);
+    hid_t a = attr_open_checked(loc, name, H5T_FLOAT, 8);
     if (a < 0) return -1;
-    hid_t sp = H5Aget_space(a);
-    int ok = sp >= 0 && H5Sget_simple_extent_npoints(sp) == 1 && H5Aread(a, H5T_NATIVE_DOUBLE, v) >= 0;
-    if (sp >= 0) H5Sclose(sp);
+    int ok = H5Aread(a, H5T_NATIVE_DOUBLE, v) >= 0;
     H5Aclose(a);
     return ok ? 0 : -1;
 }
@@ -111,14 +152,13 @@ static int attr_read_double(hid_t loc, const char *name, double *v)
 static int attr_read_str(hid_t loc, const char *name, char *dst, size_t cap)
 {
     dst[0] = '\0';
-    if (H5Aexists(loc, name) <= 0) return -1;
-    hid_t a = H5Aopen(loc, name, H5P_DEFAULT);
+    hid_t a = attr_open_checked(loc, name, H5T_STRING, MS_MAX_TEXT + 1);
     if (a < 0) return -1;
     hid_t ft = H5Aget_type(a);
     int rc = -1;
-    if (ft >= 0 && H5Tget_class(ft) == H5T_STRING && H5Tis_variable_str(ft) == 0) {
+    if (ft >= 0) {
         size_t size = H5Tget_size(ft);
-        char *buf = size > 0 && size < (1u << 20) ? calloc(size + 1, 1) : NULL;
+        char *buf = calloc(size + 1, 1);
         hid_t mt = H5Tcopy(ft);
         if (buf && mt >= 0 && H5Aread(a, mt, buf) >= 0) {
             snprintf(dst, cap, "%s", buf);
@@ -134,12 +174,40 @@ static int attr_read_str(hid_t loc, const char *name, char *dst, size_t cap)
 
 /* ---- datasets ---- */
 
+/* Bytes per chunk of a stored dataset: each chunk carries its own Fletcher32 checksum, and a
+ * reader decodes one chunk at a time; 1 MiB keeps both small (common practice for HDF5 chunks). */
+#define MS_CHUNK_BYTES (1u << 20)
+
+/* Dataset creation properties: chunks along the first dimension of at most MS_CHUNK_BYTES, with
+ * HDF5's Fletcher32 checksum filter, so that a flipped bit in the numbers is found on reading
+ * instead of changing a material's answer. H5P_DEFAULT for empty datasets (nothing to check). */
+static hid_t checked_dcpl(int rank, const hsize_t *dims, size_t elem_size)
+{
+    hsize_t chunk[8], row = elem_size;
+    for (int i = 0; i < rank; i++) {
+        if (dims[i] == 0) return H5P_DEFAULT;
+        chunk[i] = dims[i];
+        if (i > 0) row *= dims[i];
+    }
+    hsize_t rows = row < MS_CHUNK_BYTES ? MS_CHUNK_BYTES / row : 1;
+    if (chunk[0] > rows) chunk[0] = rows;
+    hid_t p = H5Pcreate(H5P_DATASET_CREATE);
+    if (p < 0) return -1;
+    if (H5Pset_chunk(p, rank, chunk) < 0 || H5Pset_fletcher32(p) < 0) {
+        H5Pclose(p);
+        return -1;
+    }
+    return p;
+}
+
 static int dset_write(hid_t loc, const char *name, hid_t type, int rank, const hsize_t *dims, const void *buf)
 {
     hid_t sp = H5Screate_simple(rank, dims, NULL);
-    hid_t d = sp < 0 ? -1 : H5Dcreate2(loc, name, type, sp, H5P_DEFAULT, H5P_DEFAULT, H5P_DEFAULT);
+    hid_t dcpl = rank <= 8 ? checked_dcpl(rank, dims, H5Tget_size(type)) : -1;
+    hid_t d = sp < 0 || dcpl < 0 ? -1 : H5Dcreate2(loc, name, type, sp, H5P_DEFAULT, dcpl, H5P_DEFAULT);
     herr_t st = d < 0 ? -1 : H5Dwrite(d, type, H5S_ALL, H5S_ALL, H5P_DEFAULT, buf);
     if (d >= 0) H5Dclose(d);
+    if (dcpl >= 0 && dcpl != H5P_DEFAULT) H5Pclose(dcpl);
     if (sp >= 0) H5Sclose(sp);
     return st < 0 ? -1 : 0;
 }
@@ -149,7 +217,7 @@ static int dset_read(hid_t loc, const char *where, const char *name, hid_t type,
                      void *buf, bs_err *err)
 {
     if (H5Lexists(loc, name, H5P_DEFAULT) <= 0)
-        return bs_fail(err, BS_EPARSE, "%s/%s: dataset missing", where, name);
+        return read_fail(err, BS_EPARSE, "%s/%s: dataset missing", where, name);
     hid_t d = H5Dopen2(loc, name, H5P_DEFAULT);
     if (d < 0) return h5_fail(err, "%s/%s: cannot open dataset", where, name);
     int rc = 0;
@@ -210,7 +278,9 @@ static int index_write(ms_set *s, bs_err *err)
     hid_t t = index_type();
     hsize_t dims[1] = {(hsize_t)s->n};
     hid_t sp = H5Screate_simple(1, dims, NULL);
-    hid_t d = H5Dcreate2(s->file, "index", t, sp, H5P_DEFAULT, H5P_DEFAULT, H5P_DEFAULT);
+    hid_t dcpl = checked_dcpl(1, dims, sizeof(ms_entry));
+    hid_t d = dcpl < 0 ? -1 : H5Dcreate2(s->file, "index", t, sp, H5P_DEFAULT, dcpl, H5P_DEFAULT);
+    if (dcpl >= 0 && dcpl != H5P_DEFAULT) H5Pclose(dcpl);
     int ok = t >= 0 && sp >= 0 && d >= 0 &&
              (s->n == 0 || H5Dwrite(d, t, H5S_ALL, H5S_ALL, H5P_DEFAULT, s->entries) >= 0);
     int rc = ok ? 0 : h5_fail(err, "%s:/index: cannot write the index", s->path);
@@ -223,7 +293,7 @@ static int index_write(ms_set *s, bs_err *err)
 static int index_read(ms_set *s, bs_err *err)
 {
     if (H5Lexists(s->file, "index", H5P_DEFAULT) <= 0)
-        return bs_fail(err, BS_EPARSE, "%s:/index: missing (the set was not completed)", s->path);
+        return read_fail(err, BS_EPARSE, "%s:/index: missing (the set was not completed)", s->path);
     hid_t d = H5Dopen2(s->file, "index", H5P_DEFAULT);
     if (d < 0) return h5_fail(err, "%s:/index: cannot open", s->path);
     /* Sets from before content hashes have no "content" member: read them with the old type
@@ -273,7 +343,16 @@ static int create_impl(const char *path, ms_set **out, bs_err *err)
         goto done;
     }
     snprintf(s->partial, sizeof s->partial, "%s.partial", path);
-    s->file = H5Fcreate(s->partial, H5F_ACC_TRUNC, H5P_DEFAULT, H5P_DEFAULT);
+    /* File format of HDF5 1.8 and later: the superblock, object headers (with the attributes)
+     * and B-trees carry checksums, so damaged metadata is refused by the library instead of
+     * being decoded (a flipped byte in an attribute message overran a heap buffer). */
+    hid_t fapl = H5Pcreate(H5P_FILE_ACCESS);
+    if (fapl >= 0 && H5Pset_libver_bounds(fapl, H5F_LIBVER_V18, H5F_LIBVER_LATEST) < 0) {
+        H5Pclose(fapl);
+        fapl = -1;
+    }
+    s->file = fapl < 0 ? -1 : H5Fcreate(s->partial, H5F_ACC_TRUNC, H5P_DEFAULT, fapl);
+    if (fapl >= 0) H5Pclose(fapl);
     if (s->file < 0) {
         rc = h5_fail(err, "%s: cannot create the material set", s->partial);
         goto done;
@@ -525,7 +604,7 @@ static int check_header(ms_set *s, bs_err *err)
 {
     char format[64];
     if (attr_read_str(s->file, "format", format, sizeof format) < 0 || strcmp(format, MS_FORMAT) != 0)
-        return bs_fail(err, BS_EPARSE, "%s: an HDF5 file but not a bandsieve material set (no format "
+        return read_fail(err, BS_EPARSE, "%s: an HDF5 file but not a bandsieve material set (no format "
                        "attribute \"%s\")", s->path, MS_FORMAT);
     int version = 0;
     if (attr_read_int(s->file, "format_version", &version) < 0 || version != MS_FORMAT_VERSION)
@@ -599,7 +678,7 @@ static int read_sizes(hid_t g, const char *where, ms_sizes *z, bs_err *err)
     int *dst[] = {&z->norb, &z->nspatial, &z->nR, &z->spinful};
     for (int i = 0; i < 4; i++)
         if (attr_read_int(g, names[i], dst[i]) < 0)
-            return bs_fail(err, BS_EPARSE, "%s: attribute '%s' missing or not an integer", where, names[i]);
+            return read_fail(err, BS_EPARSE, "%s: attribute '%s' missing or not an integer", where, names[i]);
     if (z->norb < 1 || z->norb > BS_MAX_NORB || z->nR < 1 || z->nR > BS_MAX_NR ||
         (long long)z->nR * z->norb * z->norb > BS_MAX_HR_ELEMENTS)
         return bs_fail(err, BS_EINVAL, "%s: sizes norb = %d, nR = %d outside the limits", where, z->norb, z->nR);
@@ -615,11 +694,11 @@ static int read_model_attrs(hid_t g, const char *where, tb_model *m, bs_err *err
     int *dst[] = {&m->dim, &m->nocc, &m->spin_layout, &m->has_fermi, &m->has_inversion_op};
     for (int i = 0; i < 5; i++)
         if (attr_read_int(g, names[i], dst[i]) < 0)
-            return bs_fail(err, BS_EPARSE, "%s: attribute '%s' missing or not an integer", where, names[i]);
+            return read_fail(err, BS_EPARSE, "%s: attribute '%s' missing or not an integer", where, names[i]);
     if (attr_read_double(g, "fermi_ev", &m->fermi_ev) < 0 || attr_read_str(g, "id", m->id, sizeof m->id) < 0 ||
         attr_read_str(g, "formula", m->formula, sizeof m->formula) < 0 ||
         attr_read_str(g, "source", m->source, sizeof m->source) < 0)
-        return bs_fail(err, BS_EPARSE, "%s: attributes fermi_ev, id, formula or source missing", where);
+        return read_fail(err, BS_EPARSE, "%s: attributes fermi_ev, id, formula or source missing", where);
     int want = m->spinful ? (m->spin_layout == TB_SPIN_BLOCKS || m->spin_layout == TB_SPIN_INTERLEAVED)
                           : m->spin_layout == TB_SPIN_NONE;
     if (!want) return bs_fail(err, BS_EPARSE, "%s: spin_layout %d does not fit spinful = %d", where, m->spin_layout,
@@ -681,14 +760,14 @@ static int read_impl(const ms_set *s, const char *id, int validate, tb_model **o
     snprintf(where, sizeof where, "%s:/materials/%s", s->path, id);
     snprintf(name, sizeof name, "materials/%s", id);
     if (H5Lexists(s->file, "materials", H5P_DEFAULT) <= 0 || H5Lexists(s->file, name, H5P_DEFAULT) <= 0)
-        return bs_fail(err, BS_EPARSE, "%s: group missing", where);
+        return read_fail(err, BS_EPARSE, "%s: group missing", where);
     hid_t g = H5Gopen2(s->file, name, H5P_DEFAULT);
     if (g < 0) return h5_fail(err, "%s: cannot open group", where);
     tb_model *m = NULL;
     ms_sizes z;
     int rc = 0;
     if (attr_read_int(g, "status", &z.status) < 0) {
-        rc = bs_fail(err, BS_EPARSE, "%s: attribute 'status' missing", where);
+        rc = read_fail(err, BS_EPARSE, "%s: attribute 'status' missing", where);
         goto done;
     }
     if (z.status == MS_STATUS_ERROR) {

@@ -210,6 +210,94 @@ def case_artifact_unwritable():
     print(f"ok: injected write fault on {victim}: not recorded, run interrupted, resume matches")
 
 
+def case_corrupt_set():
+    """Issue 15 (3), 2026-12-02: one corrupt byte in a set crashed `inspect` inside libhdf5, and in
+    1 of 28 bit-flipped files a material's answer changed silently. Now every single-byte change
+    of a set either leaves each entry's band energies exactly as before or makes reading that
+    entry fail with a message (no crash, no silent change): the datasets carry HDF5's Fletcher32
+    checksum and the metadata the format's own checksums. Also: a screen of a set with one
+    corrupted entry records that entry as `invalid` with "corrupt" in its message and the others
+    as in a one-shot run of the intact set."""
+    d = fresh("flips")
+    s = make_set(d, 12, seed=3)
+    ids = ["JQ-0001", "JQ-0004", "JQ-0009", "JQ-0012"]
+    k = "0.13,0.27,0.31"
+
+    def bands(path, mid):
+        return run([BIN, "bands", f"{path}:{mid}", "--k", k])
+
+    ref = {}
+    for mid in ids:
+        p = bands(s, mid)
+        if p.returncode != 0:
+            fail(f"bands of the intact {mid}: {p.stderr}")
+        ref[mid] = p.stdout
+    data = open(s, "rb").read()
+
+    def raw_range(mid, name):
+        """Where dataset /materials/mid/name lies in the file: h5dump writes its raw bytes, which
+        are then found in the file (the datasets are not compressed)."""
+        out = os.path.join(d, "raw.bin")
+        subprocess.run(["h5dump", "-d", f"/materials/{mid}/{name}", "-b", "LE", "-o", out, s],
+                       capture_output=True)
+        raw = open(out, "rb").read()
+        at = data.find(raw)
+        if not raw or at < 0:
+            fail(f"cannot locate /materials/{mid}/{name} in the file")
+        return at, len(raw)
+
+    ranges = [raw_range(mid, name) for mid in ids for name in ("H", "deg")]
+    rng = random.Random(15)
+    counts = {"same": 0, "refused": 0}
+    flipped = os.path.join(d, "flipped.h5")
+
+    def write_flipped(pos, bit):
+        bad = bytearray(data)
+        bad[pos] ^= 1 << bit
+        with open(flipped, "wb") as f:
+            f.write(bad)
+
+    # Half the flips anywhere in the file (metadata, index, attributes), half inside the
+    # hopping data and weights, where an unchecked flip changes an answer.
+    for trial in range(120):
+        if trial % 2:
+            at, n = ranges[rng.randrange(len(ranges))]
+            pos = at + rng.randrange(n)
+        else:
+            pos = rng.randrange(len(data))
+        write_flipped(pos, rng.randrange(8))
+        for mid in ids:
+            p = bands(flipped, mid)
+            check_no_crash(p, f"bands after flipping byte {pos}")
+            if p.returncode == 0 and p.stdout != ref[mid]:
+                fail(f"byte {pos} flipped: {mid} changed silently:\n{ref[mid]}\n{p.stdout}")
+            counts["same" if p.returncode == 0 else "refused"] += 1
+    if counts["refused"] == 0:
+        fail("no flipped byte was noticed: the test did not reach the data")
+    print(f"ok: 120 single-bit flips x {len(ids)} entries: {counts['same']} reads unchanged, "
+          f"{counts['refused']} refused with a message, 0 silent changes, 0 crashes")
+
+    # One entry's hopping data damaged (the real part of its first on-site energy): the screen
+    # costs that entry only, and its row says the file is corrupt.
+    ref_rows = one_shot(s, d)
+    at, _ = raw_range("JQ-0004", "H")
+    bad = at + 6
+    write_flipped(bad, 3)
+    cat = os.path.join(d, "cat.sqlite")
+    p = screen(flipped, cat)
+    check_no_crash(p, "screen of the damaged set")
+    con = sqlite3.connect(cat)
+    row = con.execute("SELECT status, message FROM results WHERE material_id = 'JQ-0004'").fetchone()
+    con.close()
+    if not row or row[0] != "invalid" or "the file is corrupt" not in (row[1] or ""):
+        fail(f"damaged JQ-0004 recorded as {row}")
+    got = [r for r in summary(cat) if r[0] != "JQ-0004"]
+    want = [r for r in ref_rows if r[0] != "JQ-0004"]
+    if got != want:
+        fail("the other entries of the damaged set differ from the intact set's screen")
+    print(f"ok: byte {bad} flipped in JQ-0004: row invalid ({row[1][:120]}), {len(got)} other rows as in the intact set")
+
+
 CASES = {name[5:]: fn for name, fn in globals().items() if name.startswith("case_")}
 
 if __name__ == "__main__":
