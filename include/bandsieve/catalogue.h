@@ -7,6 +7,7 @@
 #ifndef BANDSIEVE_CATALOGUE_H
 #define BANDSIEVE_CATALOGUE_H
 
+#include <signal.h>
 #include <stddef.h>
 #include <stdint.h>
 
@@ -52,10 +53,19 @@ cat_status cat_status_from_code(int bs_code);
 /* Opens the catalogue at path (borrowed). CAT_RW creates the file if needed, applies the embedded
  * schema and views, sets WAL mode, synchronous=NORMAL, foreign keys and a busy timeout; an existing
  * file must carry our application_id and a user_version we know. CAT_RO opens with
- * SQLITE_OPEN_READONLY (the file must exist; nothing is ever changed) and checks the same marks.
+ * SQLITE_OPEN_READONLY (the file must exist; nothing is ever changed) and checks the same marks;
+ * where the folder cannot be written and the -shm file is missing (read-only storage), it opens
+ * the file as immutable, and refuses when a -wal file would then be ignored. CAT_RW runs
+ * PRAGMA quick_check on an existing file and refuses a damaged one (BS_EINVAL, naming the file).
  * *out is owned by the caller (cat_close). BS_ESQL with sqlite3_errmsg text, BS_EINVAL for a file
  * that is not a bandsieve catalogue or has a newer schema. */
 int cat_open(const char *path, int mode, cat_db **out, bs_err *err);
+
+/* Bounds every later query on cat (cat_query, cat_select_ids, the id lists): SQLite's progress
+ * handler stops a statement once *stop_flag (borrowed, may be NULL) is set by a signal handler or
+ * once max_seconds (0: no limit) have passed since this call; the query then fails with BS_ETIMEOUT
+ * and a message saying which. cat_set_limits(cat, NULL, 0) removes the bounds. */
+void cat_set_limits(cat_db *cat, volatile sig_atomic_t *stop_flag, double max_seconds);
 
 /* Commits pending writes (like cat_flush), closes the artifact file and the database and frees cat.
  * cat may be NULL. cat is freed even when the final commit fails; the error is returned. */

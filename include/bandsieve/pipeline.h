@@ -51,6 +51,7 @@ typedef struct pl_opts {
     const char *catalogue_path; /* catalogue (SQLite) */
     const char *kind;           /* "screen" or "rescreen" */
     const char *where_sql;      /* rescreen: condition on summary */
+    double where_seconds;       /* rescreen: time limit of the --where selection (0: none) */
     int mesh;                   /* 0: the diagnosis default times mesh_factor; a rescreen without
                                    a mesh doubles each entry's best mesh instead */
     int mesh_factor;            /* 0 or 1: the default mesh; 2: the default doubled (a rescreen's

@@ -44,6 +44,11 @@ struct cat_db {
     int64_t cur_run;         /* run and session opened on this handle (0: none) */
     int cur_session;
 
+    volatile sig_atomic_t *stop_flag; /* cat_set_limits: borrowed, may be NULL */
+    double deadline;         /* monotonic seconds after which queries stop (0: none) */
+    double limit_seconds;    /* the limit, for the message */
+    int stopped;             /* why the progress handler stopped the last statement: 1 signal, 2 time */
+
     hid_t h5;                /* artifact file being written, or H5I_INVALID_HID */
     int64_t h5_run;
     int h5_session;

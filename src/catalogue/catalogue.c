@@ -10,6 +10,7 @@
 #include <stdio.h>
 #include <stdlib.h>
 #include <string.h>
+#include <sys/stat.h>
 #include <sys/statvfs.h>
 #include <time.h>
 #include <unistd.h>
@@ -84,6 +85,10 @@ int cat_sql_fail(cat_db *cat, bs_err *err, const char *what)
     const char *path = cat && cat->path ? cat->path : "catalogue";
     int code = db ? sqlite3_extended_errcode(db) : 0;
     int primary = code & 0xff;
+    if (primary == SQLITE_INTERRUPT && cat && cat->stopped == 1)
+        return bs_fail(err, BS_ETIMEOUT, "%s: %s: stopped by a signal (SIGTERM or SIGINT)", path, what);
+    if (primary == SQLITE_INTERRUPT && cat && cat->stopped == 2)
+        return bs_fail(err, BS_ETIMEOUT, "%s: %s: stopped at the time limit of %g s", path, what, cat->limit_seconds);
     if (primary == SQLITE_FULL || primary == SQLITE_IOERR || primary == SQLITE_CANTOPEN || primary == SQLITE_READONLY ||
         primary == SQLITE_PERM) {
         /* Storage faults name their cause: the user's fix (free space, permissions) differs. */
@@ -255,6 +260,84 @@ static int prepare_all(cat_db *cat, bs_err *err)
     return 0;
 }
 
+/* SQLite's progress handler: nonzero stops the running statement with SQLITE_INTERRUPT. */
+static int on_progress(void *ctx)
+{
+    cat_db *cat = ctx;
+    if (cat->stop_flag && *cat->stop_flag) cat->stopped = 1;
+    else if (cat->deadline > 0 && cat_now() > cat->deadline) cat->stopped = 2;
+    return cat->stopped != 0;
+}
+
+/* Virtual-machine steps between checks: about a millisecond of work, so a signal or the time
+ * limit is honoured at once while costing nothing measurable (common practice). */
+#define CAT_PROGRESS_STEPS 10000
+
+void cat_set_limits(cat_db *cat, volatile sig_atomic_t *stop_flag, double max_seconds)
+{
+    cat->stop_flag = stop_flag;
+    cat->limit_seconds = max_seconds;
+    cat->deadline = max_seconds > 0 ? cat_now() + max_seconds : 0;
+    cat->stopped = 0;
+    int on = stop_flag || max_seconds > 0;
+    sqlite3_progress_handler(cat->db, on ? CAT_PROGRESS_STEPS : 0, on ? on_progress : NULL, on ? cat : NULL);
+}
+
+/* PRAGMA quick_check: O(N) over the file, but without the index-content comparison of
+ * integrity_check; a damaged catalogue is refused before a job writes into it. */
+static int check_damage(cat_db *cat, bs_err *err)
+{
+    sqlite3_stmt *st = NULL;
+    if (sqlite3_prepare_v2(cat->db, "PRAGMA quick_check(5)", -1, &st, NULL) != SQLITE_OK)
+        return bs_fail(err, BS_EINVAL, "%s: the catalogue is damaged: %s (sqlite code %d); restore a copy, or "
+                       "recover the rows with the sqlite3 shell's .recover", cat->path, sqlite3_errmsg(cat->db),
+                       sqlite3_extended_errcode(cat->db));
+    char first[300] = "";
+    int s = sqlite3_step(st);
+    if (s == SQLITE_ROW) snprintf(first, sizeof first, "%s", (const char *)sqlite3_column_text(st, 0));
+    else snprintf(first, sizeof first, "%s (sqlite code %d)", sqlite3_errmsg(cat->db), sqlite3_extended_errcode(cat->db));
+    sqlite3_finalize(st);
+    if (s == SQLITE_ROW && strcmp(first, "ok") == 0) return 0;
+    return bs_fail(err, BS_EINVAL, "%s: the catalogue is damaged (quick_check: %s); restore a copy, or recover "
+                   "the rows with the sqlite3 shell's .recover", cat->path, first);
+}
+
+/* Whether a read-only open needs SQLite's immutable mode: a WAL catalogue is read through its
+ * -shm file, which SQLite must create when it is missing; on storage that cannot be written
+ * (a read-only mount, a folder without write permission) that fails with SQLITE_CANTOPEN. 1 to
+ * open immutable, 0 for a normal open, or BS_EINVAL when a -wal file with content would be ignored. */
+static int needs_immutable(const char *path, bs_err *err)
+{
+    char dir[4096], side[4200];
+    const char *slash = strrchr(path, '/');
+    if (!slash) snprintf(dir, sizeof dir, ".");
+    else snprintf(dir, sizeof dir, "%.*s", (int)(slash - path > 0 ? slash - path : 1), path);
+    snprintf(side, sizeof side, "%s-shm", path);
+    if (access(side, F_OK) == 0 || access(dir, W_OK) == 0) return 0;
+    snprintf(side, sizeof side, "%s-wal", path);
+    struct stat stw;
+    if (stat(side, &stw) == 0 && stw.st_size > 0)
+        return bs_fail(err, BS_EINVAL, "%s: cannot be read on storage that cannot be written: %s holds commits "
+                       "not yet in the main file, and %s-shm is missing; copy the three files to a writable folder",
+                       path, side, path);
+    return 1;
+}
+
+/* "file:" URI of path with '%', '?' and '#' escaped, for sqlite3_open_v2 with SQLITE_OPEN_URI. */
+static char *immutable_uri(const char *path)
+{
+    size_t len = strlen(path);
+    char *uri = malloc(3 * len + 32);
+    if (!uri) return NULL;
+    char *o = uri + sprintf(uri, "file:");
+    for (const char *p = path; *p; p++) {
+        if (*p == '%' || *p == '?' || *p == '#') o += sprintf(o, "%%%02X", (unsigned char)*p);
+        else *o++ = *p;
+    }
+    sprintf(o, "?immutable=1");
+    return uri;
+}
+
 static int configure(cat_db *cat, bs_err *err)
 {
     if (sqlite3_busy_timeout(cat->db, CAT_BUSY_MS) != SQLITE_OK) return cat_sql_fail(cat, err, "busy timeout");
@@ -292,9 +375,19 @@ int cat_open(const char *path, int mode, cat_db **out, bs_err *err)
     cat->path = strdup(path);
     int rc = cat->path ? 0 : bs_fail(err, BS_ENOMEM, "cat_open: out of memory");
     int flags = mode == CAT_RW ? SQLITE_OPEN_READWRITE | SQLITE_OPEN_CREATE : SQLITE_OPEN_READONLY;
-    if (rc == 0 && sqlite3_open_v2(path, &cat->db, flags, NULL) != SQLITE_OK)
+    int immutable = rc == 0 && mode == CAT_RO ? needs_immutable(path, err) : 0;
+    if (immutable < 0) rc = immutable;
+    char *uri = immutable > 0 ? immutable_uri(path) : NULL;
+    if (immutable > 0 && !uri) rc = bs_fail(err, BS_ENOMEM, "cat_open: out of memory");
+    if (rc == 0 && sqlite3_open_v2(uri ? uri : path, &cat->db, flags | (uri ? SQLITE_OPEN_URI : 0), NULL) != SQLITE_OK)
         rc = cat_sql_fail(cat, err, "cannot open catalogue");
+    free(uri);
     if (rc == 0) rc = configure(cat, err);
+    if (rc == 0 && mode == CAT_RW) {
+        int fresh = 0;
+        rc = check_marks(cat, &fresh, err);
+        if (rc == 0 && !fresh) rc = check_damage(cat, err);
+    }
     if (rc == 0 && mode == CAT_RW) rc = apply_schema(cat, err);
     if (rc == 0 && mode == CAT_RO) {
         int fresh = 0;

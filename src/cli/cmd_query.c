@@ -2,6 +2,7 @@
  * statement on a catalogue opened read-only and prints the rows. */
 #include <ctype.h>
 #include <math.h>
+#include <signal.h>
 #include <stdio.h>
 #include <stdlib.h>
 #include <string.h>
@@ -10,6 +11,15 @@
 #include "commands.h"
 
 enum { FMT_TABLE, FMT_CSV, FMT_JSON };
+
+/* Set by SIGTERM/SIGINT: the running statement stops at SQLite's next progress check. */
+static volatile sig_atomic_t query_stop = 0;
+
+static void on_query_signal(int sig)
+{
+    (void)sig;
+    query_stop = 1;
+}
 
 /* Table cells longer than this are cut with "..." (csv and json print everything). */
 #define QUERY_CELL_MAX 60
@@ -25,6 +35,8 @@ static void query_usage(FILE *out)
             "are refused.\n\n"
             "  --view NAME     a catalogue view: summary, candidates, failures, top_spin_hall,\n"
             "                  surfaces, run_progress\n"
+            "  --timeout S     stop the statement after S seconds (exit status 1); SIGTERM and\n"
+            "                  SIGINT stop it at once in any case\n"
             "  --format FMT    table (default; aligned columns, numbers right-aligned, NULL blank,\n"
             "                  long text cut at %d characters), csv (RFC 4180, NULL empty, header row)\n"
             "                  or json (a list of objects, NULL as null)\n"
@@ -255,15 +267,25 @@ static int view_sql(cat_db *cat, const char *name, char *sql, size_t len, bs_err
 typedef struct q_args {
     const char *path, *sql, *view;
     int format;
+    double timeout;
 } q_args;
 
 static int parse_args(int argc, char **argv, q_args *a)
 {
     a->path = a->sql = a->view = NULL;
     a->format = FMT_TABLE;
+    a->timeout = 0;
     for (int i = 1; i < argc; i++) {
         const char *s = argv[i];
-        if (!strcmp(s, "--view") || !strcmp(s, "--format")) {
+        if (!strcmp(s, "--timeout")) {
+            char *end = NULL;
+            a->timeout = i + 1 < argc ? strtod(argv[i + 1], &end) : -1;
+            if (i + 1 >= argc || !end || *end || !(a->timeout > 0) || !isfinite(a->timeout)) {
+                fprintf(stderr, "bandsieve query: --timeout expects a positive number of seconds\n");
+                return 2;
+            }
+            i++;
+        } else if (!strcmp(s, "--view") || !strcmp(s, "--format")) {
             if (i + 1 >= argc) {
                 fprintf(stderr, "bandsieve query: %s needs a value\n", s);
                 return 2;
@@ -314,7 +336,10 @@ int cmd_query(int argc, char **argv)
     bs_err_clear(&err);
     cat_db *cat = NULL;
     char view[160];
+    signal(SIGTERM, on_query_signal);
+    signal(SIGINT, on_query_signal);
     int rc = cat_open(a.path, CAT_RO, &cat, &err);
+    if (rc == 0) cat_set_limits(cat, &query_stop, a.timeout);
     const char *sql = a.sql;
     if (rc == 0 && a.view) {
         rc = view_sql(cat, a.view, view, sizeof view, &err);

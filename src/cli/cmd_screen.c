@@ -80,6 +80,8 @@ static void screen_help(FILE *out, int rescreen)
                      "Reruns the materials whose row in the catalogue's summary view matches the condition,\n"
                      "as a new run at a higher resolution; summary then shows the more resolved result.\n\n"
                      "  --where COND        condition on the summary view, e.g. \"confidence < 0.7\"\n"
+                     "  --where-timeout S   stop selecting after S seconds (exit status 3); SIGTERM and\n"
+                     "                      SIGINT stop the selection at once in any case\n"
                      "  --mesh N            k-mesh of the rerun (default: twice the mesh of each material's\n"
                      "                      best result, so the rerun is always finer; twice the default mesh\n"
                      "                      for a material without an ok result)\n"
@@ -121,6 +123,7 @@ static int screen_main(int argc, char **argv, int rescreen)
         {"catalogue", required_argument, NULL, 'c'}, {"mesh", required_argument, NULL, 'm'},
         {"max-seconds", required_argument, NULL, 't'}, {"material-seconds", required_argument, NULL, 'T'},
         {"rerun", no_argument, NULL, 'r'}, {"where", required_argument, NULL, 'w'},
+        {"where-timeout", required_argument, NULL, 'W'},
         {"batch", required_argument, NULL, 'b'}, {"symmetry-tol", required_argument, NULL, 'y'},
         {"transport", no_argument, NULL, 'A'}, {"surfaces", no_argument, NULL, 'S'},
         {"group-size", required_argument, NULL, 'g'}, {"group-min-states", required_argument, NULL, 'G'}, {"progress-every", required_argument, NULL, 'p'},
@@ -164,13 +167,15 @@ static int screen_main(int argc, char **argv, int rescreen)
             if (cli_parse_double(optarg, &d) || d <= 0 || d >= 1) { fprintf(stderr, "%s: --symmetry-tol expects a number in (0,1), got '%s'\n", name, optarg); return 2; }
             o.symmetry_tol = d;
             break;
-        case 't': case 'T': case 'p':
+        case 't': case 'T': case 'p': case 'W':
             if (cli_parse_double(optarg, &d) || d <= 0) {
                 fprintf(stderr, "%s: --%s expects a positive number, got '%s'\n", name,
-                        c == 't' ? "max-seconds" : c == 'T' ? "material-seconds" : "progress-every", optarg);
+                        c == 't' ? "max-seconds" : c == 'T' ? "material-seconds" : c == 'W' ? "where-timeout"
+                                                                                    : "progress-every", optarg);
                 return 2;
             }
-            if (c == 't') o.max_seconds = d;
+            if (c == 'W') o.where_seconds = d;
+            else if (c == 't') o.max_seconds = d;
             else if (c == 'T') o.material_seconds = d;
             else ps.plain_every = d;
             break;
@@ -190,11 +195,16 @@ static int screen_main(int argc, char **argv, int rescreen)
     /* Runs are matched by the set's content; the path is recorded in one canonical spelling. */
     char set_real[4096];
     o.set_path = realpath(argv[optind], set_real) ? set_real : argv[optind];
-    char cmdline[2048] = "bandsieve";
-    for (int i = 0; i < argc; i++) {
-        size_t used = strlen(cmdline);
-        snprintf(cmdline + used, sizeof cmdline - used, " %s", argv[i]);
+    /* The command line is recorded whole (a --where condition can be long). */
+    size_t cmd_len = sizeof "bandsieve";
+    for (int i = 0; i < argc; i++) cmd_len += strlen(argv[i]) + 1;
+    char *cmdline = malloc(cmd_len);
+    if (!cmdline) {
+        fprintf(stderr, "%s: out of memory\n", name);
+        return 3;
     }
+    size_t used = (size_t)snprintf(cmdline, cmd_len, "bandsieve");
+    for (int i = 0; i < argc; i++) used += (size_t)snprintf(cmdline + used, cmd_len - used, " %s", argv[i]);
     o.cmdline = cmdline;
     o.stop_flag = &stop_requested;
     o.progress = show_progress;
@@ -209,10 +219,12 @@ static int screen_main(int argc, char **argv, int rescreen)
     bs_err_clear(&err);
     if (MPI_Init(&argc, &argv) != MPI_SUCCESS) {
         fprintf(stderr, "%s: MPI_Init failed\n", name);
+        free(cmdline);
         return 3;
     }
     int rc = pl_run(MPI_COMM_WORLD, &o, &counts, &is_root, &err);
     MPI_Finalize();
+    free(cmdline);
     if (rc != 0) {
         fprintf(stderr, "%s: %s\n", name, err.msg);
         return 3;

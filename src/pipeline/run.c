@@ -118,8 +118,9 @@ static int gather_hosts(MPI_Comm comm, int rank, int size, char *out, size_t out
  * without --mesh, the rule "double each entry's best"), the per-material budget when given, a
  * symmetry tolerance other than the default, the extra tasks and the rescreen condition. Options
  * that cannot change a result (job budget, progress interval, batching, rank groups) are left out,
- * so a batch script that adds them still resumes a hand-started run. */
-static int settings_json(const pl_opts *o, const ms_set *set, char *buf, size_t len)
+ * so a batch script that adds them still resumes a hand-started run. The JSON text is owned by the
+ * caller (free); NULL when out of memory. The --where condition is stored whole, however long. */
+static char *settings_json(const pl_opts *o, const ms_set *set)
 {
     int has_dim[4] = {0};
     for (int i = 0; i < ms_count(set); i++) {
@@ -127,6 +128,7 @@ static int settings_json(const pl_opts *o, const ms_set *set, char *buf, size_t 
         if (d == 2 || d == 3) has_dim[d] = 1;
     }
     cJSON *s = cJSON_CreateObject();
+    if (!s) return NULL;
     if (!strcmp(o->kind, "rescreen") && o->mesh == 0) {
         cJSON_AddStringToObject(s, "mesh", "twice the best");
     } else {
@@ -141,10 +143,7 @@ static int settings_json(const pl_opts *o, const ms_set *set, char *buf, size_t 
     if (o->where_sql) cJSON_AddStringToObject(s, "where", o->where_sql);
     char *text = cJSON_PrintUnformatted(s);
     cJSON_Delete(s);
-    if (!text) return -1;
-    int n = snprintf(buf, len, "%s", text);
-    free(text);
-    return n < 0 || (size_t)n >= len ? -1 : 0;
+    return text;
 }
 
 /* One writing job per catalogue: a second screen on the same file would resume the same run and
@@ -317,10 +316,13 @@ static int coord_setup(coord *c, int ranks, const char *hosts, bs_err *err)
     if (rc == 0) rc = ms_open(o->set_path, &c->set, err);
     if (rc == 0) rc = cat_open(o->catalogue_path, CAT_RW, &c->cat, err);
     if (rc != 0) return rc;
-    char settings[2048], set_content[65];
-    if (settings_json(o, c->set, settings, sizeof settings)) return bs_fail(err, BS_ENOMEM, "run settings too long");
+    char *settings = settings_json(o, c->set), set_content[65];
+    if (!settings) return bs_fail(err, BS_ENOMEM, "out of memory");
     rc = ms_set_content(c->set, set_content, err);
-    if (rc != 0) return rc;
+    if (rc != 0) {
+        free(settings);
+        return rc;
+    }
     cat_run_info info = {.kind = o->kind, .settings_json = settings, .version = o->version, .ranks = ranks,
                          .hosts = hosts, .cmdline = o->cmdline, .set_path = o->set_path,
                          .set_content = set_content, .rerun = o->rerun};
@@ -329,8 +331,13 @@ static int coord_setup(coord *c, int ranks, const char *hosts, bs_err *err)
     cat_ids_init(&done);
     int resumed = 0;
     /* The selection reads summary before this set's contents are recorded: it sees what the
-     * user saw when writing the condition. */
-    if (o->where_sql) rc = cat_select_ids(c->cat, o->where_sql, &sel, err);
+     * user saw when writing the condition. A runaway condition (a recursive CTE) must not hold the
+     * catalogue past a signal. */
+    if (o->where_sql) {
+        cat_set_limits(c->cat, o->stop_flag, o->where_seconds);
+        rc = cat_select_ids(c->cat, o->where_sql, &sel, err);
+        cat_set_limits(c->cat, NULL, 0);
+    }
     if (rc == 0 && o->where_sql) note_missing(c, &sel);
     /* The material rows go in one transaction (a commit per batch of 64 would cost a sync each,
      * seconds for 10^5 entries); the result batching is restored after. */
@@ -371,6 +378,7 @@ static int coord_setup(coord *c, int ranks, const char *hosts, bs_err *err)
     if (rc == 0) rc = cat_flush(c->cat, err);
     cat_ids_clear(&sel);
     cat_ids_clear(&done);
+    free(settings);
     return rc;
 }
 

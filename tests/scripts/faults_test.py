@@ -298,6 +298,123 @@ def case_corrupt_set():
     print(f"ok: byte {bad} flipped in JQ-0004: row invalid ({row[1][:120]}), {len(got)} other rows as in the intact set")
 
 
+RUNAWAY = "WITH RECURSIVE c(x) AS (SELECT 1 UNION ALL SELECT x + 1 FROM c) SELECT count(*) FROM c"
+
+
+def wait_or_kill(proc, seconds, what):
+    """Liveness, not speed: a process that honours a signal ends long before this generous bound."""
+    try:
+        return proc.wait(timeout=seconds)
+    except subprocess.TimeoutExpired:
+        proc.kill()
+        proc.wait()
+        fail(f"{what}: still running {seconds} s later (killed)")
+
+
+def case_queries():
+    """Issue 15 (4, 6), 2026-12-02: a runaway --where or query ignored SIGTERM and SIGINT (a
+    recursive CTE held the catalogue 11 minutes); a --where over ~1000 characters was cut in a
+    fixed buffer ("malformed JSON"); query failed on read-only storage when the -shm file was
+    missing (SQLite code 14); a catalogue failing integrity_check was opened without a word."""
+    d = fresh("queries")
+    s = make_set(d, 16)
+    cat = os.path.join(d, "cat.sqlite")
+    p = screen(s, cat)
+    if p.returncode not in (0, 1):
+        fail(f"screen: {p.stderr}")
+    # A runaway query stops at SIGTERM and at SIGINT, and at --timeout.
+    for sig in (signal.SIGTERM, signal.SIGINT):
+        proc = subprocess.Popen([BIN, "query", cat, RUNAWAY], env=ENV, stdout=subprocess.PIPE,
+                                stderr=subprocess.PIPE, text=True)
+        time.sleep(1.0)
+        proc.send_signal(sig)
+        rc = wait_or_kill(proc, 30, f"runaway query after {sig.name}")
+        err = proc.stderr.read()
+        if rc != 1 or "signal" not in err:
+            fail(f"runaway query after {sig.name}: exit {rc}, {err}")
+    p = run([BIN, "query", cat, RUNAWAY, "--timeout", "0.5"], timeout=60)
+    if p.returncode != 1 or "time limit" not in p.stderr:
+        fail(f"query --timeout: exit {p.returncode}, {p.stderr}")
+    # The same for rescreen --where: SIGTERM during the selection, and --where-timeout.
+    where = "material_id IN (WITH RECURSIVE c(x) AS (SELECT 1 UNION ALL SELECT x + 1 FROM c) SELECT x FROM c)"
+    proc = subprocess.Popen([BIN, "rescreen", s, "-c", cat, "--where", where], env=ENV,
+                            stdout=subprocess.PIPE, stderr=subprocess.PIPE, text=True)
+    time.sleep(1.0)
+    proc.send_signal(signal.SIGTERM)
+    rc = wait_or_kill(proc, 30, "runaway rescreen --where after SIGTERM")
+    err = proc.stderr.read()
+    if rc != 3 or "signal" not in err:
+        fail(f"runaway --where after SIGTERM: exit {rc}, {err}")
+    p = run([BIN, "rescreen", s, "-c", cat, "--where", where, "--where-timeout", "0.5"], timeout=60)
+    if p.returncode != 3 or "time limit" not in p.stderr:
+        fail(f"rescreen --where-timeout: exit {p.returncode}, {p.stderr}")
+    print("ok: runaway query and --where stop at SIGTERM, SIGINT and their time limits")
+
+    # A --where of more than 2000 characters selects what it says.
+    con = sqlite3.connect(cat)
+    ok_ids = [r[0] for r in con.execute("SELECT material_id FROM summary WHERE status = 'ok' ORDER BY 1")]
+    con.close()
+    long_where = " OR ".join(f"material_id = 'NOPE-{i:04d}'" for i in range(90)) + f" OR material_id = '{ok_ids[0]}'"
+    p = run([BIN, "rescreen", s, "-c", cat, "--where", long_where])
+    if p.returncode not in (0, 1) or "1 materials selected" not in p.stderr:
+        fail(f"rescreen with a --where of {len(long_where)} characters: exit {p.returncode}: {p.stderr[-300:]}")
+    con = sqlite3.connect(cat)
+    stored = con.execute("SELECT json_extract(settings, '$.where') FROM runs WHERE kind = 'rescreen'").fetchone()[0]
+    con.close()
+    if stored != long_where:
+        fail("the --where condition stored in runs.settings differs from the one given")
+    print(f"ok: a --where of {len(long_where)} characters selects 1 material and is stored whole")
+
+    # Read-only storage without the -shm file: query still reads (immutable mode).
+    ro = os.path.join(d, "ro")
+    os.makedirs(ro)
+    shutil.copy(cat, os.path.join(ro, "cat.sqlite"))
+    if try_mount_tmpfs(ro, 4096):
+        shutil.copy(cat, os.path.join(ro, "cat.sqlite"))
+        subprocess.run(["mount", "-o", "remount,ro", ro], check=True)
+        try:
+            p = run([BIN, "query", os.path.join(ro, "cat.sqlite"), "SELECT count(*) AS n FROM summary", "--format", "csv"])
+        finally:
+            subprocess.run(["umount", ro])
+        if p.returncode != 0 or p.stdout.split()[-1] != "16":
+            fail(f"query on a read-only mount without -shm: exit {p.returncode}: {p.stdout} {p.stderr}")
+        print("ok: query on a read-only mount without a -shm file reads the 16 rows")
+    elif os.geteuid() != 0:
+        os.chmod(ro, 0o555)
+        p = run([BIN, "query", os.path.join(ro, "cat.sqlite"), "SELECT count(*) AS n FROM summary", "--format", "csv"])
+        os.chmod(ro, 0o755)
+        if p.returncode != 0 or p.stdout.split()[-1] != "16":
+            fail(f"query in a folder without write permission: exit {p.returncode}: {p.stderr}")
+        print("ok: query in a folder without write permission reads the 16 rows")
+    else:
+        print("note: neither a read-only mount nor a non-root user: the read-only check was not run")
+
+    # A damaged catalogue: one page overwritten. quick_check finds it; screen refuses it.
+    dmg = os.path.join(d, "damaged.sqlite")
+    shutil.copy(cat, dmg)
+    con = sqlite3.connect(dmg)
+    page = con.execute("PRAGMA page_size").fetchone()[0]
+    npages = con.execute("PRAGMA page_count").fetchone()[0]
+    con.close()
+    with open(dmg, "r+b") as f:
+        f.seek(page * (npages // 2) + 8)
+        f.write(random.Random(4).randbytes(page - 16))
+    con = sqlite3.connect(dmg)
+    try:
+        verdict = con.execute("PRAGMA quick_check").fetchone()[0]
+    except sqlite3.DatabaseError as e:
+        verdict = str(e)
+    con.close()
+    if verdict == "ok":
+        fail("the overwritten page was not noticed by Python's sqlite3 quick_check either")
+    p = screen(s, dmg)
+    check_no_crash(p, "screen of a damaged catalogue")
+    if p.returncode != 3 or "damaged" not in p.stderr or dmg not in p.stderr:
+        fail(f"screen of a damaged catalogue: exit {p.returncode}: {p.stderr[-300:]}")
+    print(f"ok: a damaged catalogue (page {npages // 2} of {npages} overwritten; Python's quick_check: "
+          f"{verdict[:60]}) is refused: {p.stderr.strip().splitlines()[-1][:140]}")
+
+
 CASES = {name[5:]: fn for name, fn in globals().items() if name.startswith("case_")}
 
 if __name__ == "__main__":
