@@ -67,6 +67,10 @@ int cat_open(const char *path, int mode, cat_db **out, bs_err *err);
  * and a message saying which. cat_set_limits(cat, NULL, 0) removes the bounds. */
 void cat_set_limits(cat_db *cat, volatile sig_atomic_t *stop_flag, double max_seconds);
 
+/* Removes run_id and its sessions when it has no result rows (a new run that found nothing to do),
+ * so that repeating a finished screen leaves no empty runs behind. BS_EINVAL when it has results. */
+int cat_run_discard(cat_db *cat, int64_t run_id, bs_err *err);
+
 /* Commits pending writes (like cat_flush), closes the artifact file and the database and frees cat.
  * cat may be NULL. cat is freed even when the final commit fails; the error is returned. */
 int cat_close(cat_db *cat, bs_err *err);

@@ -18,6 +18,23 @@
  * round-off (LAPACK fails on values near DBL_MAX). */
 #define BS_MAX_HOPPING_EV 1.0e4
 
+/* Lattice vectors outside [BS_MIN_LATTICE_A, BS_MAX_LATTICE_A] Angstrom are refused: bonds are an
+ * Angstrom or more, and supercells with vacuum reach a few hundred; a vector of 1e300 (which made
+ * the cell volume infinite) or 1e-300 is a units mistake or damage (common practice). */
+#define BS_MIN_LATTICE_A 1.0e-2
+#define BS_MAX_LATTICE_A 1.0e4
+
+/* Reduced orbital positions farther than this from the home cell are refused: Wannier centres lie
+ * within a cell or two of it (common practice); the limit only catches damage. */
+#define BS_MAX_REDUCED_POS 100.0
+
+/* A Fermi energy of magnitude above BS_MAX_HOPPING_EV (eV) cannot lie among the bands. */
+
+/* Largest coarse k-mesh per direction: a 3D mesh of 256^3 is 1.7e7 k-points, a 2D one of 4096^2 the
+ * same; the diagnosis refuses more, so the command line does too (screen, rescreen, inspect). */
+#define BS_MAX_MESH_2D 4096
+#define BS_MAX_MESH_3D 256
+
 /* A gap below this (eV) counts as closed. */
 #define BS_GAP_CLOSED_EV 1e-4
 

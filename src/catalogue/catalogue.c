@@ -737,6 +737,37 @@ int cat_run_end(cat_db *cat, int64_t run_id, cat_run_status status, bs_err *err)
     return rc;
 }
 
+int cat_run_discard(cat_db *cat, int64_t run_id, bs_err *err)
+{
+    int rc = need_rw(cat, "discarding a run", err);
+    if (rc == 0) rc = cat_flush(cat, err);
+    if (rc == 0) rc = cat_exec(cat, "BEGIN IMMEDIATE", err);
+    if (rc != 0) return rc;
+    sqlite3_stmt *st = NULL;
+    rc = prepare(cat, "SELECT count(*) FROM results WHERE run_id = ?", &st, err);
+    if (rc == 0) {
+        sqlite3_bind_int64(st, 1, run_id);
+        if (sqlite3_step(st) != SQLITE_ROW) rc = cat_sql_fail(cat, err, "counting a run's results");
+        else if (sqlite3_column_int64(st, 0) > 0)
+            rc = bs_fail(err, BS_EINVAL, "%s: run %lld has results and is kept", cat->path, (long long)run_id);
+        sqlite3_finalize(st);
+    }
+    static const char *const del[] = {"DELETE FROM run_sessions WHERE run_id = ?", "DELETE FROM runs WHERE run_id = ?"};
+    for (int i = 0; rc == 0 && i < 2; i++) {
+        rc = prepare(cat, del[i], &st, err);
+        if (rc != 0) break;
+        sqlite3_bind_int64(st, 1, run_id);
+        rc = step_done(cat, st, "discarding an empty run", err);
+    }
+    if (rc == 0) rc = cat_exec(cat, "COMMIT", err);
+    if (rc != 0) {
+        sqlite3_exec(cat->db, "ROLLBACK", NULL, NULL, NULL);
+        return rc;
+    }
+    if (cat->cur_run == run_id) cat->cur_run = 0;
+    return 0;
+}
+
 int cat_session_of(cat_db *cat, int64_t run_id, int *session, bs_err *err)
 {
     if (cat->cur_run == run_id && cat->cur_session > 0) {

@@ -1,5 +1,6 @@
 /* `bandsieve bands`: band energies of one material at the reduced k-points given. */
 #include <getopt.h>
+#include <math.h>
 #include <stdio.h>
 #include <stdlib.h>
 #include <string.h>
@@ -11,6 +12,9 @@
 #include "bandsieve/source.h"
 #include "cliutil.h"
 #include "commands.h"
+
+/* Largest accepted magnitude of a reduced k component (see the check in cmd_bands). */
+#define BANDS_MAX_K 1.0e6
 
 static void bands_help(FILE *out)
 {
@@ -101,6 +105,15 @@ int cmd_bands(int argc, char **argv)
             status = 2;
             goto done;
         }
+        /* Reduced coordinates repeat with period 1; past BANDS_MAX_K the phase 2 pi k.R keeps
+         * fewer than ten correct digits (doubles hold 16), and at 1e308 it is not even finite. */
+        for (int d = 0; d < 3; d++)
+            if (fabs(k[3 * nk + d]) > BANDS_MAX_K) {
+                fprintf(stderr, "bandsieve bands: --k %s: component %d is outside +-%g (reduced coordinates "
+                                "repeat with period 1)\n", optarg, d + 1, BANDS_MAX_K);
+                status = 2;
+                goto done;
+            }
         nk++;
     }
     if (optind != argc - 1 || nk == 0) {

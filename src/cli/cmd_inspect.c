@@ -4,6 +4,7 @@
 #include <stdlib.h>
 #include <string.h>
 
+#include "bandsieve/config.h"
 #include "bandsieve/pipeline.h"
 #include "bandsieve/result_json.h"
 #include "bandsieve/source.h"
@@ -201,6 +202,13 @@ int cmd_inspect(int argc, char **argv)
     if (src_load(argv[optind], &m, &err) != 0) {
         fprintf(stderr, "bandsieve inspect: %s\n", err.msg);
         return 1;
+    }
+    int max_mesh = m->dim == 3 ? BS_MAX_MESH_3D : BS_MAX_MESH_2D;
+    if (opts->mesh > max_mesh) {
+        fprintf(stderr, "bandsieve inspect: --mesh %d is above %d, the largest mesh for a %dD material\n", opts->mesh,
+                max_mesh, m->dim);
+        tb_model_free(m);
+        return 2;
     }
     res_diag r;
     res_init(&r);

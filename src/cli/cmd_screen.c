@@ -65,7 +65,10 @@ static void announce(void *ctx, const pl_counts *c, const char *kind)
         fprintf(stderr, "%s: warning: %d selected material%s not in the set, left out: %s%s\n", p->what, c->missing,
                 c->missing == 1 ? " is" : "s are", c->missing_ids, c->missing > 5 ? ", ..." : "");
     if (c->note[0]) fprintf(stderr, "%s: %s\n", p->what, c->note);
-    if (!strcmp(kind, "rescreen"))
+    if (c->run_id == 0)
+        fprintf(stderr, "%s: 0 materials to do, %d already done (nothing new, so no run is added)\n", p->what,
+                c->skipped);
+    else if (!strcmp(kind, "rescreen"))
         fprintf(stderr, "%s: %d materials selected (run %lld)\n", p->what, c->total + c->skipped, c->run_id);
     else
         fprintf(stderr, "%s: %d materials to do, %d already done (run %lld%s)\n", p->what, c->total,
@@ -92,7 +95,9 @@ static void screen_help(FILE *out, int rescreen)
                      "the catalogue; ranks 1.. compute (P = 1 does everything in one process). Running it\n"
                      "again on the same catalogue resumes: materials whose content already has a result\n"
                      "with the same settings are skipped, whatever the set's path; changed ones are redone.\n\n"
-                     "  --mesh N            k-mesh per direction (default 36 in 2D, 14 in 3D)\n"
+                     "  --mesh N            k-mesh per direction (default 36 in 2D, 14 in 3D; at most 4096\n"
+                     "                      in 2D and 256 in 3D: a larger one is refused when the set\n"
+                     "                      holds 3D materials)\n"
                      "  --rerun             start a new run and redo every material (otherwise a screen\n"
                      "                      resumes an unfinished run and skips what earlier runs with\n"
                      "                      the same settings already did); an unfinished run that an\n"
@@ -227,9 +232,10 @@ static int screen_main(int argc, char **argv, int rescreen)
     free(cmdline);
     if (rc != 0) {
         fprintf(stderr, "%s: %s\n", name, err.msg);
-        return 3;
+        return rc == BS_EUSAGE ? 2 : 3;
     }
     if (!is_root) return 0;
+    if (counts.run_id == 0) return 0;
     fprintf(stderr, "%s: run %lld %s: %d done (%d ok, %d invalid, %d failed, %d timeout), %d skipped as "
                     "already done, %.1f s\n", name, counts.run_id, counts.interrupted ? "interrupted" : "finished",
             counts.done, counts.ok, counts.invalid, counts.failed, counts.timeout, counts.skipped, counts.elapsed);

@@ -236,6 +236,12 @@ static int read_lattice(const card_ctx *c, const cJSON *root, double lat[3][3])
     int i = 0;
     for (const cJSON *row = j->child; row; row = row->next, i++)
         if ((rc = get_vector(c, row, "lattice", "lattice", 0, 3, 0, lat[i])) != 0) return rc;
+    for (i = 0; i < 3; i++) {
+        double len = sqrt(lat[i][0] * lat[i][0] + lat[i][1] * lat[i][1] + lat[i][2] * lat[i][2]);
+        if (!(len >= BS_MIN_LATTICE_A && len <= BS_MAX_LATTICE_A))
+            return fail_key(c, BS_EINVAL, "lattice", "lattice", 0, "row %d has length %g A, outside %g..%g A", i + 1,
+                            len, BS_MIN_LATTICE_A, BS_MAX_LATTICE_A);
+    }
     double det = lat[0][0] * (lat[1][1] * lat[2][2] - lat[1][2] * lat[2][1]) -
                  lat[0][1] * (lat[1][0] * lat[2][2] - lat[1][2] * lat[2][0]) +
                  lat[0][2] * (lat[1][0] * lat[2][1] - lat[1][1] * lat[2][0]);
@@ -473,6 +479,9 @@ static int read_optional(const card_ctx *c, const cJSON *root, tb_model *m)
         if (!cJSON_IsNumber(ef))
             return fail_key(c, BS_EPARSE, "fermi_energy_eV", "fermi_energy_eV", 0, "expected a number, found %s",
                             json_type(ef));
+        if (!isfinite(ef->valuedouble) || fabs(ef->valuedouble) > BS_MAX_HOPPING_EV)
+            return fail_key(c, BS_EINVAL, "fermi_energy_eV", "fermi_energy_eV", 0,
+                            "%g eV is outside +-%g eV (not finite or wrong units)", ef->valuedouble, BS_MAX_HOPPING_EV);
         m->has_fermi = 1;
         m->fermi_ev = ef->valuedouble;
     }

@@ -4,11 +4,14 @@
 #include "bandsieve/hopfile.h"
 
 #include <errno.h>
+#include <fcntl.h>
 #include <math.h>
 #include <stdint.h>
 #include <stdio.h>
 #include <stdlib.h>
 #include <string.h>
+#include <sys/stat.h>
+#include <unistd.h>
 
 #include "bandsieve/config.h"
 
@@ -410,8 +413,21 @@ int hop_read(const char *path, int spinful, tb_model **out, bs_err *err)
     hop_reader r = {.path = path};
     tb_model *m = NULL;
     int rc = 0;
-    r.fp = fopen(path, "rb");
-    if (!r.fp) return bs_fail(err, BS_EIO, "%s: cannot open hopping table: %s", path, strerror(errno));
+    /* O_NONBLOCK: opening a FIFO for reading would otherwise wait for a writer forever; the
+     * table must be a regular file (its size bounds what is read). */
+    int fd = open(path, O_RDONLY | O_NONBLOCK | O_CLOEXEC);
+    if (fd < 0) return bs_fail(err, BS_EIO, "%s: cannot open hopping table: %s", path, strerror(errno));
+    struct stat st;
+    if (fstat(fd, &st) != 0 || !S_ISREG(st.st_mode)) {
+        close(fd);
+        return bs_fail(err, BS_EIO, "%s: the hopping table is not a regular file (a FIFO, device or folder)", path);
+    }
+    fcntl(fd, F_SETFL, fcntl(fd, F_GETFL) & ~O_NONBLOCK);
+    r.fp = fdopen(fd, "rb");
+    if (!r.fp) {
+        close(fd);
+        return bs_fail(err, BS_EIO, "%s: cannot open hopping table: %s", path, strerror(errno));
+    }
     r.buf = malloc(HOP_BUF_BYTES);
     if (!r.buf) {
         rc = bs_fail(err, BS_ENOMEM, "%s: out of memory for the read buffer", path);

@@ -136,13 +136,25 @@ static int validate_header(const tb_model *m, const char *where, bs_err *err)
             return bs_fail(err, BS_EINVAL, "%s: orbital %d has l = %d, expected 0..3", where, i + 1,
                            m->orb_l[i]);
         for (int d = 0; d < 3; d++)
-            if (!isfinite(m->orb_pos[i][d]))
-                return bs_fail(err, BS_EINVAL, "%s: orbital %d has a non-finite position", where, i + 1);
+            if (!isfinite(m->orb_pos[i][d]) || fabs(m->orb_pos[i][d]) > BS_MAX_REDUCED_POS)
+                return bs_fail(err, BS_EINVAL, "%s: orbitals[%d].position[%d] = %g is not a reduced coordinate "
+                               "within %g of the home cell", where, i + 1, d + 1, m->orb_pos[i][d], BS_MAX_REDUCED_POS);
     }
-    for (int a = 0; a < 3; a++)
-        for (int b = 0; b < 3; b++)
-            if (!isfinite(m->lattice[a][b]))
-                return bs_fail(err, BS_EINVAL, "%s: lattice vector %d is not finite", where, a + 1);
+    for (int a = 0; a < 3; a++) {
+        double len2 = 0;
+        for (int b = 0; b < 3; b++) {
+            if (!isfinite(m->lattice[a][b]) || fabs(m->lattice[a][b]) > BS_MAX_LATTICE_A)
+                return bs_fail(err, BS_EINVAL, "%s: lattice row %d element %d = %g A is outside +-%g A", where, a + 1,
+                               b + 1, m->lattice[a][b], BS_MAX_LATTICE_A);
+            len2 += m->lattice[a][b] * m->lattice[a][b];
+        }
+        if (!(sqrt(len2) >= BS_MIN_LATTICE_A))
+            return bs_fail(err, BS_EINVAL, "%s: lattice row %d has length %g A, below %g A", where, a + 1, sqrt(len2),
+                           BS_MIN_LATTICE_A);
+    }
+    if (m->has_fermi && (!isfinite(m->fermi_ev) || fabs(m->fermi_ev) > BS_MAX_HOPPING_EV))
+        return bs_fail(err, BS_EINVAL, "%s: fermi_energy_eV = %g is outside +-%g eV", where, m->fermi_ev,
+                       BS_MAX_HOPPING_EV);
     return 0;
 }
 

@@ -19,6 +19,7 @@
 
 #include "bandsieve/catalogue.h"
 #include "bandsieve/clock.h"
+#include "bandsieve/config.h"
 #include "bandsieve/matset.h"
 #include "bandsieve/result_json.h"
 #include "bandsieve/pzheev.h"
@@ -74,6 +75,7 @@ typedef struct coord {
     pl_counts counts;
     int lock_fd;        /* CAT.sqlite.lock, held with flock for the whole job; -1 when none */
     pl_journal *journal;/* CAT.sqlite.journal: hand-outs and outcomes */
+    int discarded;      /* the new run had nothing to do and was removed again */
 } coord;
 
 /* Sessions in which a material may take its worker down before it is given up as failed. */
@@ -272,40 +274,20 @@ static int double_best_meshes(coord *c, bs_err *err)
     return 0;
 }
 
-static int by_item_cost(const void *a, const void *b)
+/* A --mesh above what the diagnosis accepts for a dimension present in the set is a usage error
+ * of the whole job, refused before the catalogue is touched: otherwise every entry of that
+ * dimension would become a permanent invalid row. */
+static int check_mesh(coord *c, bs_err *err)
 {
-    const pl_item *x = a, *y = b;
-    if (x->cost != y->cost) return x->cost < y->cost ? 1 : -1;
-    return x->index - y->index;
-}
-
-/* The selected ids the set does not hold: counted and the first few named for the announcement. */
-static void note_missing(coord *c, const cat_ids *sel)
-{
-    for (size_t i = 0; i < sel->n; i++) {
-        if (ms_find(c->set, sel->id[i]) >= 0) continue;
-        if (c->counts.missing++ < 5) {
-            size_t used = strlen(c->counts.missing_ids);
-            snprintf(c->counts.missing_ids + used, sizeof c->counts.missing_ids - used, "%s%s", used ? ", " : "",
-                     sel->id[i]);
-        }
+    if (c->o->mesh <= 0) return 0;
+    for (int i = 0; i < ms_count(c->set); i++) {
+        const ms_entry *e = ms_entry_at(c->set, i);
+        int max = e->dim == 3 ? BS_MAX_MESH_3D : BS_MAX_MESH_2D;
+        if ((e->dim == 2 || e->dim == 3) && c->o->mesh > max)
+            return bs_fail(err, BS_EUSAGE, "--mesh %d is above %d, the largest mesh for %dD materials such as %s "
+                           "(screen 2D and 3D materials separately, or use a smaller mesh)", c->o->mesh, max, e->dim, e->id);
     }
-}
-
-static void note_resumed(coord *c, int rerun_asked, bs_err *err)
-{
-    cat_run_state rs;
-    if (cat_run_get(c->cat, c->run_id, &rs, err) != 0) {
-        bs_err_clear(err);
-        return;
-    }
-    int n = snprintf(c->counts.note, sizeof c->counts.note, "resuming run %lld (started %s%s, session %d, %lld "
-                     "results so far, set first read from %s)", (long long)c->run_id, rs.started,
-                     rs.rerun ? " by --rerun" : "", rs.sessions, rs.nresults, rs.set_path);
-    if (rerun_asked && n > 0 && (size_t)n < sizeof c->counts.note)
-        snprintf(c->counts.note + n, sizeof c->counts.note - (size_t)n,
-                 "; --rerun resumes the unfinished run it started instead of starting over, and starts a "
-                 "new run once that one has finished");
+    return 0;
 }
 
 /* Opens set and catalogue, starts or resumes the run, builds the ordered work list. */
@@ -314,6 +296,7 @@ static int coord_setup(coord *c, int ranks, const char *hosts, bs_err *err)
     const pl_opts *o = c->o;
     int rc = take_lock(c, err);
     if (rc == 0) rc = ms_open(o->set_path, &c->set, err);
+    if (rc == 0) rc = check_mesh(c, err);
     if (rc == 0) rc = cat_open(o->catalogue_path, CAT_RW, &c->cat, err);
     if (rc != 0) return rc;
     char *settings = settings_json(o, c->set), set_content[65];
@@ -370,6 +353,12 @@ static int coord_setup(coord *c, int ranks, const char *hosts, bs_err *err)
         if (rc == 0) qsort(c->items, (size_t)c->nitems, sizeof *c->items, by_item_cost);
     }
     c->counts.run_id = c->run_id;
+    /* A new run with nothing to do (a repeated screen of a finished set) leaves no trace. */
+    if (rc == 0 && !resumed && c->nitems == 0) {
+        rc = cat_run_discard(c->cat, c->run_id, err);
+        if (rc == 0) c->discarded = 1;
+    }
+    c->counts.run_id = c->discarded ? 0 : c->run_id;
     c->counts.resumed = resumed;
     c->counts.skipped = (int)done.n;
     c->counts.total = c->nitems;
@@ -802,7 +791,7 @@ int pl_run(MPI_Comm user_comm, const pl_opts *o, pl_counts *counts, int *is_root
     }
     if (rc == 0 && o->announce) o->announce(o->progress_ctx, &c.counts, o->kind);
     if (rc == 0) rc = size > 1 ? run_coordinator(&c, size, err) : run_serial(&c, err);
-    if (setup_ok) {
+    if (setup_ok && !c.discarded) {
         bs_err end_err;
         bs_err_clear(&end_err);
         /* A storage fault (disk full, unwritable artifacts) leaves the run interrupted, so that

@@ -1,5 +1,6 @@
 /* The two bands at the filling on batches of k, uniform meshes of them, and a derivative-free
  * trust-region minimiser on quadratic fits, shared by the gap and node searches. */
+#include "bandsieve/config.h"
 #include "bandsieve/bandpair.h"
 
 #include <lapacke.h>
@@ -116,9 +117,9 @@ int bp_bands(bp_eval *e, int nk, const double *k, double *lo, double *hi, bs_err
 int bp_mesh_eval(bp_eval *e, int n, bp_mesh **out, bs_err *err)
 {
     *out = NULL;
-    if (n < 2 || n > (e->dim == 3 ? 256 : 4096))
+    if (n < 2 || n > (e->dim == 3 ? BS_MAX_MESH_3D : BS_MAX_MESH_2D))
         return bs_fail(err, BS_EINVAL, "band mesh: %d points per direction outside 2..%d", n,
-                       e->dim == 3 ? 256 : 4096);
+                       e->dim == 3 ? BS_MAX_MESH_3D : BS_MAX_MESH_2D);
     bp_mesh *g = calloc(1, sizeof *g);
     if (!g) return bs_fail(err, BS_ENOMEM, "band mesh: out of memory");
     g->dim = e->dim;

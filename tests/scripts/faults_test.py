@@ -415,6 +415,97 @@ def case_queries():
           f"{verdict[:60]}) is refused: {p.stderr.strip().splitlines()[-1][:140]}")
 
 
+GOOD = os.path.join(os.path.dirname(os.path.abspath(__file__)), "..", "data", "good")
+
+
+def card_variant(d, name, edit, table=None):
+    """A copy of the graphene_gap test fixture with edit(card) applied; the table is copied too
+    unless table (a path) replaces it."""
+    import json
+    card = json.load(open(os.path.join(GOOD, "graphene_gap.json")))
+    edit(card)
+    hop = os.path.join(d, f"{name}_hop.dat")
+    if table is None:
+        shutil.copy(os.path.join(GOOD, "graphene_gap_hop.dat"), hop)
+        card["hoppings"] = os.path.basename(hop)
+    else:
+        card["hoppings"] = os.path.relpath(table, d)
+    card["id"] = name
+    path = os.path.join(d, f"{name}.json")
+    text = json.dumps(card)
+    # JSON has no infinity: 1e999 is written as text and read as overflow by the card reader.
+    text = text.replace("123456789e300", "1e999")
+    open(path, "w").write(text)
+    return path
+
+
+def case_validation():
+    """Issue 15 (6), 2026-12-02: the card accepted fermi_energy_eV 1e999, lattice rows of 1e300
+    and a FIFO as the table (it hung); --k 1e308 reported "zheevd failed"; --mesh up to 4096 was
+    accepted although 3D allows 256, making every 3D entry a permanent invalid row; every
+    repeated screen that did nothing added an empty run. Each is now refused up front with the
+    key or option named (or, for the repeated screen, leaves the runs table as it was)."""
+    d = fresh("validation")
+    cases = {
+        "fermi_inf": (lambda c: c.__setitem__("fermi_energy_eV", 123456789e300), "fermi_energy_eV"),
+        "fermi_huge": (lambda c: c.__setitem__("fermi_energy_eV", 1e6), "fermi_energy_eV"),
+        "lattice_huge": (lambda c: c["lattice"].__setitem__(0, [1e300, 0, 0]), "lattice"),
+        "lattice_tiny": (lambda c: c["lattice"].__setitem__(2, [0, 0, 1e-300]), "lattice"),
+        "position_far": (lambda c: c["orbitals"][0].__setitem__("position", [1e12, 0, 0]), "position"),
+    }
+    for name, (edit, key) in cases.items():
+        card = card_variant(d, name, edit)
+        p = run([BIN, "pack", "-o", os.path.join(d, f"{name}.h5"), card], timeout=60)
+        check_no_crash(p, f"pack {name}")
+        if p.returncode != 1 or key not in p.stderr:
+            fail(f"card {name}: expected a refusal naming {key}, got exit {p.returncode}: {p.stderr}")
+        p = run([BIN, "bands", card, "--k", "0.1,0.2"], timeout=60)
+        if p.returncode == 0 or key not in p.stderr:
+            fail(f"bands of card {name}: expected a refusal naming {key}, got exit {p.returncode}: {p.stderr}")
+    print(f"ok: {len(cases)} hostile cards refused with the key named (pack and bands)")
+
+    fifo = os.path.join(d, "table.fifo")
+    os.mkfifo(fifo)
+    card = card_variant(d, "fifo_table", lambda c: None, table=fifo)
+    try:
+        p = run([BIN, "pack", "-o", os.path.join(d, "fifo.h5"), card], timeout=60)
+    except subprocess.TimeoutExpired:
+        fail("pack with a FIFO as the hopping table still waits for a writer after 60 s")
+    if p.returncode != 1 or "not a regular file" not in p.stderr:
+        fail(f"FIFO as table: exit {p.returncode}: {p.stderr}")
+    print("ok: a FIFO as the hopping table is refused at once")
+
+    good = os.path.join(GOOD, "graphene_gap.json")
+    p = run([BIN, "bands", good, "--k", "1e308,0,0"])
+    if p.returncode != 2 or "--k" not in p.stderr:
+        fail(f"bands --k 1e308: exit {p.returncode}: {p.stderr}")
+    p = run([BIN, "bands", good, "--k", "0.25,0.5"])
+    if p.returncode != 0:
+        fail(f"bands at an ordinary k: {p.stderr}")
+    print("ok: --k 1e308 refused as usage (exit 2)")
+
+    s = make_set(d, 16)
+    cat = os.path.join(d, "cat.sqlite")
+    p = screen(s, cat, "--mesh", "300")
+    if p.returncode != 2 or "--mesh" not in p.stderr or os.path.exists(cat) and statuses(cat)[0]:
+        fail(f"screen --mesh 300 of a set with 3D entries: exit {p.returncode}: {p.stderr[-300:]}")
+    p = run([BIN, "inspect", f"{s}:JQ-0002", "--mesh", "300"])
+    if p.returncode != 2 or "--mesh" not in p.stderr:
+        fail(f"inspect --mesh 300 of a 3D entry: exit {p.returncode}: {p.stderr}")
+    print("ok: --mesh 300 refused at the command line for 3D (screen and inspect), nothing recorded")
+
+    for i in range(3):
+        p = screen(s, cat)
+        if p.returncode not in (0, 1):
+            fail(f"screen {i + 1}: {p.stderr[-300:]}")
+    con = sqlite3.connect(cat)
+    nruns = con.execute("SELECT count(*) FROM runs").fetchone()[0]
+    con.close()
+    if nruns != 1:
+        fail(f"three screens of the same set left {nruns} runs, expected 1")
+    print("ok: repeating a finished screen twice adds no run")
+
+
 CASES = {name[5:]: fn for name, fn in globals().items() if name.startswith("case_")}
 
 if __name__ == "__main__":
