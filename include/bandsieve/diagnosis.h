@@ -25,6 +25,17 @@ typedef struct diag_opts {
 /* The default k-mesh per direction for a model of dimension dim (36 in 2D, 14 in 3D). */
 int diag_default_mesh(int dim);
 
+/* k-points per H(k) batch of the diagnosis for norb states: 64 for small materials, fewer above
+ * 200 states, so that the batch tables hold about 64 x 200^2 elements whatever the size. */
+int diag_batch(int norb);
+
+/* Estimated peak memory (bytes) of diagnosing a material of dimension dim with norb states, nR
+ * lattice vectors, nocc occupied bands on a coarse mesh of `mesh` points per direction: H(R) and
+ * the H(k) coefficient tables, the batch tables, the eigensolver's workspace, the mesh arrays and
+ * the occupied states of the Wilson strings. An estimate (checked against measured peaks in
+ * tests/scripts/faults_test.py), used to refuse a material before it runs out of memory. */
+double diag_memory_bytes(int dim, int norb, int nR, int nocc, int mesh);
+
 /* Runs the whole diagnosis of m (borrowed) into r (res_init by the caller; transport and surface
  * are left to the caller, see pl_diagnose).
  * BS_ETIMEOUT when opts->max_seconds is exceeded; BS_ENUMERIC on a LAPACK failure. */

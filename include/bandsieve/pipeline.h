@@ -57,6 +57,8 @@ typedef struct pl_opts {
     int mesh_factor;            /* 0 or 1: the default mesh; 2: the default doubled (a rescreen's
                                    entries without an ok result of their content) */
     double max_seconds;         /* wall-clock budget of the whole job (0: none) */
+    double material_memory;     /* bytes one material may use (diag_memory_bytes); 0: the node's
+                                   physical memory divided by the ranks on that node */
     double material_seconds;    /* budget per material; over it the row is `timeout` (0: none) */
     double symmetry_tol;        /* see diag_opts (0: default) */
     int transport;              /* also anomalous and spin Hall conductivities (--transport) */

@@ -76,6 +76,23 @@ static void announce(void *ctx, const pl_counts *c, const char *kind)
     if (p->tty) fputc('\n', stderr);
 }
 
+/* "4G", "500M", "64k" (powers of 1024) or a plain number of bytes; 0 or -1. */
+static int parse_bytes(const char *text, double *out)
+{
+    char *end = NULL;
+    double v = strtod(text, &end);
+    if (end == text || !(v > 0) || v > 1e18) return -1;
+    double unit = 1;
+    if (*end == 'k' || *end == 'K') unit = 1024.0, end++;
+    else if (*end == 'm' || *end == 'M') unit = 1024.0 * 1024, end++;
+    else if (*end == 'g' || *end == 'G') unit = 1024.0 * 1024 * 1024, end++;
+    else if (*end == 't' || *end == 'T') unit = 1024.0 * 1024 * 1024 * 1024, end++;
+    if (*end == 'B' || *end == 'b') end++;
+    if (*end) return -1;
+    *out = v * unit;
+    return 0;
+}
+
 static void screen_help(FILE *out, int rescreen)
 {
     if (rescreen)
@@ -106,6 +123,9 @@ static void screen_help(FILE *out, int rescreen)
                  "  --max-seconds S     wall-clock budget of the job: stop handing out work and\n"
                  "                      leave the rest for a resumed run (status interrupted)\n"
                  "  --material-seconds S  budget per material; over it the row is `timeout`\n"
+                 "  --material-memory M   memory one material may use (e.g. 4G; default: the node's\n"
+                 "                      memory divided by the ranks on it); an entry whose estimate\n"
+                 "                      is larger gets an `invalid` row saying so, before any work\n"
                  "  --symmetry-tol T    relative residual accepted for time reversal and inversion\n"
                  "                      (default 1e-6; ~1e-3 for fits that were not symmetrised)\n"
                  "  --transport         also the intrinsic anomalous and spin Hall conductivities\n"
@@ -128,7 +148,7 @@ static int screen_main(int argc, char **argv, int rescreen)
         {"catalogue", required_argument, NULL, 'c'}, {"mesh", required_argument, NULL, 'm'},
         {"max-seconds", required_argument, NULL, 't'}, {"material-seconds", required_argument, NULL, 'T'},
         {"rerun", no_argument, NULL, 'r'}, {"where", required_argument, NULL, 'w'},
-        {"where-timeout", required_argument, NULL, 'W'},
+        {"where-timeout", required_argument, NULL, 'W'}, {"material-memory", required_argument, NULL, 'M'},
         {"batch", required_argument, NULL, 'b'}, {"symmetry-tol", required_argument, NULL, 'y'},
         {"transport", no_argument, NULL, 'A'}, {"surfaces", no_argument, NULL, 'S'},
         {"group-size", required_argument, NULL, 'g'}, {"group-min-states", required_argument, NULL, 'G'}, {"progress-every", required_argument, NULL, 'p'},
@@ -160,6 +180,13 @@ static int screen_main(int argc, char **argv, int rescreen)
             else o.group_min_states = (int)v;
             break;
         case 'w': o.where_sql = optarg; break;
+        case 'M':
+            if (parse_bytes(optarg, &o.material_memory)) {
+                fprintf(stderr, "%s: --material-memory expects a size such as 4G, 500M or 2e9 (bytes), got '%s'\n",
+                        name, optarg);
+                return 2;
+            }
+            break;
         case 'm':
             if (cli_parse_int(optarg, 4, 4096, &v)) { fprintf(stderr, "%s: --mesh expects an integer 4..4096, got '%s'\n", name, optarg); return 2; }
             o.mesh = (int)v;

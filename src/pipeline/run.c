@@ -20,6 +20,7 @@
 #include "bandsieve/catalogue.h"
 #include "bandsieve/clock.h"
 #include "bandsieve/config.h"
+#include "bandsieve/diagnosis.h"
 #include "bandsieve/matset.h"
 #include "bandsieve/result_json.h"
 #include "bandsieve/pzheev.h"
@@ -76,6 +77,7 @@ typedef struct coord {
     int lock_fd;        /* CAT.sqlite.lock, held with flock for the whole job; -1 when none */
     pl_journal *journal;/* CAT.sqlite.journal: hand-outs and outcomes */
     int discarded;      /* the new run had nothing to do and was removed again */
+    double memory_budget; /* bytes per material (per rank; a group has group_size times it) */
 } coord;
 
 /* Sessions in which a material may take its worker down before it is given up as failed. */
@@ -290,6 +292,8 @@ static int check_mesh(coord *c, bs_err *err)
     return 0;
 }
 
+static int refuse_over_budget(coord *c, bs_err *err);
+
 /* Opens set and catalogue, starts or resumes the run, builds the ordered work list. */
 static int coord_setup(coord *c, int ranks, const char *hosts, bs_err *err)
 {
@@ -365,6 +369,7 @@ static int coord_setup(coord *c, int ranks, const char *hosts, bs_err *err)
     c->taken = calloc((size_t)c->nitems + 1, 1);
     if (rc == 0 && !c->taken) rc = bs_fail(err, BS_ENOMEM, "out of memory for the work list");
     if (rc == 0) rc = cat_flush(c->cat, err);
+    if (rc == 0) rc = refuse_over_budget(c, err);
     cat_ids_clear(&sel);
     cat_ids_clear(&done);
     free(settings);
@@ -376,6 +381,35 @@ static int coord_setup(coord *c, int ranks, const char *hosts, bs_err *err)
 static int is_storage_fault(int code)
 {
     return code == BS_ESQL || code == BS_EHDF5 || code == BS_EIO || code == BS_ENOMEM;
+}
+
+static int item_large(const coord *c, int i);
+
+/* Entries whose estimated memory exceeds the budget are recorded `invalid` with the estimate
+ * and the budget before any work starts, instead of running a rank out of memory (which would kill
+ * the whole job). A rank group gets group_size times the budget for the entries it takes. */
+static int refuse_over_budget(coord *c, bs_err *err)
+{
+    const pl_opts *o = c->o;
+    int rc = 0;
+    for (int i = 0; rc == 0 && c->memory_budget > 0 && i < c->nitems; i++) {
+        const ms_entry *e = ms_entry_at(c->set, c->items[i].index);
+        if (e->status != MS_STATUS_OK || (e->dim != 2 && e->dim != 3)) continue;
+        int mesh = o->mesh > 0 ? o->mesh : (o->mesh_factor > 1 ? o->mesh_factor : 1) * diag_default_mesh(e->dim);
+        double need = diag_memory_bytes(e->dim, e->norb, e->nR, e->nocc, mesh);
+        double budget = c->memory_budget * (c->leader >= 0 && item_large(c, i) ? o->group_size : 1);
+        if (!(need > budget)) continue;
+        char msg[400];
+        snprintf(msg, sizeof msg, "needs an estimated %.1f MB (%d states, %d lattice vectors, mesh %d), above the "
+                 "per-material memory budget of %.1f MB; screen it with a larger --material-memory (fewer ranks per "
+                 "node) or in a rank group (--group-size)", need / 1e6, e->norb, e->nR, mesh, budget / 1e6);
+        rc = cat_result_put_text(c->cat, c->run_id, e->id, CAT_RES_INVALID, msg, NULL, 0, 0, 0.0, err);
+        c->taken[i] = 1;
+        c->counts.done++;
+        c->counts.invalid++;
+    }
+    if (rc == 0) rc = cat_flush(c->cat, err);
+    return rc;
 }
 
 /* Records one outcome; a timeout caused by the job's own budget is not recorded, so that a
@@ -731,6 +765,20 @@ static void coord_clear(coord *c, bs_err *err)
     if (c->lock_fd >= 0) close(c->lock_fd);
 }
 
+/* The node's physical memory divided by the ranks on this node (0 when unknown: no limit). */
+static double node_share(MPI_Comm comm)
+{
+    MPI_Comm node = MPI_COMM_NULL;
+    int local = 1;
+    if (MPI_Comm_split_type(comm, MPI_COMM_TYPE_SHARED, 0, MPI_INFO_NULL, &node) == MPI_SUCCESS) {
+        MPI_Comm_size(node, &local);
+        MPI_Comm_free(&node);
+    }
+    long pages = sysconf(_SC_PHYS_PAGES), page = sysconf(_SC_PAGE_SIZE);
+    if (pages <= 0 || page <= 0) return 0;
+    return (double)pages * (double)page / (local > 0 ? local : 1);
+}
+
 int pl_run(MPI_Comm user_comm, const pl_opts *o, pl_counts *counts, int *is_root, bs_err *err)
 {
     memset(counts, 0, sizeof *counts);
@@ -748,6 +796,7 @@ int pl_run(MPI_Comm user_comm, const pl_opts *o, pl_counts *counts, int *is_root
     *is_root = rank == 0;
     char hosts[2048] = "";
     rc = gather_hosts(comm, rank, size, hosts, sizeof hosts, err);
+    double share = node_share(comm); /* collective: every rank calls it */
     /* The rank group: the last group_size ranks, when at least one rank is left besides rank 0
      * (P = 1 + G also works: the group then takes small materials too, its leader alone). */
     int gsize = o->group_size >= 2 && size - 1 >= o->group_size ? o->group_size : 0;
@@ -776,6 +825,7 @@ int pl_run(MPI_Comm user_comm, const pl_opts *o, pl_counts *counts, int *is_root
     c.comm = comm;
     c.lock_fd = -1;
     c.leader = leader;
+    c.memory_budget = o->material_memory > 0 ? o->material_memory : share;
     c.nworkers = size - 1 - (gsize ? gsize - 1 : 0);
     c.t0 = bs_now();
     c.task.mesh = o->mesh;

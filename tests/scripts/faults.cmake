@@ -1,6 +1,6 @@
 # Fault tests (issue 15): full disk, unwritable artifacts, corrupt sets, queries, validation,
 # memory budgets, random kills (tests/scripts/faults_test.py).
-foreach(case disk_full artifact_unwritable corrupt_set queries validation)
+foreach(case disk_full artifact_unwritable corrupt_set queries validation memory)
   add_test(NAME faults_${case}
            COMMAND ${BS_PYTHON} ${CMAKE_CURRENT_LIST_DIR}/faults_test.py $<TARGET_FILE:bandsieve>
                    ${case} ${CMAKE_BINARY_DIR}/faults-work)

@@ -506,6 +506,86 @@ def case_validation():
     print("ok: repeating a finished screen twice adds no run")
 
 
+def random_insulator(d, n, name, seed):
+    """An invented 2D model of n states: on-site energies -5 eV (first half) and +5 eV, weak random
+    Hermitian couplings, so it is an insulator at half filling and fast to diagnose."""
+    rng = random.Random(seed)
+    H0 = [[0j] * n for _ in range(n)]
+    H1 = [[complex(rng.gauss(0, 0.05), rng.gauss(0, 0.05)) for _ in range(n)] for _ in range(n)]
+    for a in range(n):
+        H0[a][a] = -5.0 if a < n // 2 else 5.0
+        for b in range(a + 1, n):
+            h = complex(rng.gauss(0, 0.05), rng.gauss(0, 0.05))
+            H0[a][b], H0[b][a] = h, h.conjugate()
+    mats = {(0, 0, 0): H0, (1, 0, 0): H1, (-1, 0, 0): [[H1[b][a].conjugate() for b in range(n)] for a in range(n)]}
+    lines = ["invented random insulator (test data)", str(n), "3", "1 1 1"]
+    for R, M in mats.items():
+        for b in range(n):
+            for a in range(n):
+                lines.append(f"{R[0]} {R[1]} {R[2]} {a + 1} {b + 1} {M[a][b].real:.8f} {M[a][b].imag:.8f}")
+    open(os.path.join(d, f"{name}_hop.dat"), "w").write("\n".join(lines) + "\n")
+    import json
+    card = {"id": name, "dimension": 2, "lattice": [[3, 0, 0], [0, 3, 0], [0, 0, 20]],
+            "hoppings": f"{name}_hop.dat", "occupied_bands": n // 2, "spinful": False,
+            "orbitals": [{"position": [rng.random(), rng.random(), 0], "l": 0} for _ in range(n)]}
+    path = os.path.join(d, f"{name}.json")
+    json.dump(card, open(path, "w"))
+    return path
+
+
+def peak_rss_kb(args):
+    """Peak resident memory of a child process (the kernel's accounting, via wait4)."""
+    proc = subprocess.Popen(args, env=ENV, stdout=subprocess.DEVNULL, stderr=subprocess.PIPE)
+    _, status, usage = os.wait4(proc.pid, 0)
+    if status != 0:
+        fail(f"{' '.join(args)} exited with status {status}")
+    return usage.ru_maxrss
+
+
+def case_memory():
+    """Issue 15 (5), 2026-12-02: memory grew as ~2 kB x n^2 per material and an entry too large
+    for its rank's memory ran it out of memory. Now a per-material estimate is checked against a
+    budget (--material-memory) before work starts: an entry over it gets an `invalid` row that
+    gives the estimate and the budget, the others are computed as usual. The estimate is checked
+    against the kernel's measured peak of `inspect` on an invented 64-state insulator."""
+    d = fresh("memory")
+    card = random_insulator(d, 64, "RI-64", 11)
+    small = os.path.join(GOOD, "graphene_gap.json")
+    base_kb = peak_rss_kb([BIN, "inspect", small])
+    big_kb = peak_rss_kb([BIN, "inspect", card])
+    measured = (big_kb - base_kb) * 1024
+    # The estimate of diag_memory_bytes for this material, as the screen reports it.
+    s = os.path.join(d, "set.h5")
+    p = run([BIN, "pack", "-o", s, card, small])
+    if p.returncode != 0:
+        fail(f"pack: {p.stderr}")
+    cat = os.path.join(d, "cat.sqlite")
+    p = screen(s, cat, "--material-memory", "1M")
+    check_no_crash(p, "screen with a 1 MB budget")
+    con = sqlite3.connect(cat)
+    rows = dict(con.execute("SELECT material_id, status || ': ' || COALESCE(message, '') FROM results"))
+    con.close()
+    big = rows.get("RI-64", "")
+    if not big.startswith("invalid: needs an estimated") or "--material-memory" not in big:
+        fail(f"RI-64 over a 1 MB budget recorded as {big!r}")
+    if not rows.get("graphene_gap", "").startswith("ok"):
+        fail(f"graphene_gap within budget recorded as {rows.get('graphene_gap')!r}")
+    estimate = float(big.split("estimated ")[1].split(" MB")[0]) * 1e6
+    if estimate < measured:
+        fail(f"the estimate {estimate / 1e6:.1f} MB is below the measured peak {measured / 1e6:.1f} MB")
+    if estimate > 20 * max(measured, 1e6):
+        fail(f"the estimate {estimate / 1e6:.1f} MB is over 20 times the measured {measured / 1e6:.1f} MB")
+    cat2 = os.path.join(d, "cat2.sqlite")
+    p = screen(s, cat2, "--material-memory", "4G")
+    con = sqlite3.connect(cat2)
+    n_ok = con.execute("SELECT count(*) FROM results WHERE status = 'ok'").fetchone()[0]
+    con.close()
+    if n_ok != 2:
+        fail(f"with a 4 GB budget {n_ok} of 2 entries are ok: {p.stderr[-300:]}")
+    print(f"ok: RI-64 estimate {estimate / 1e6:.1f} MB vs measured peak {measured / 1e6:.1f} MB above the "
+          f"baseline ({base_kb} kB); refused at 1 MB with its row, computed at 4 GB")
+
+
 CASES = {name[5:]: fn for name, fn in globals().items() if name.startswith("case_")}
 
 if __name__ == "__main__":
