@@ -17,6 +17,7 @@ PACKAGES=(
   chromium
   procps
   clang-format
+  clang libclang-rt-dev
 )
 
 missing=()
