@@ -184,8 +184,9 @@ static int give_up_lost(coord *c, const char *jpath, bs_err *err)
     for (int i = 0; rc == 0 && i < n; i++) {
         if (strikes[i] < PL_MAX_STRIKES || cat_ids_contains(&done, ids[i])) continue;
         char msg[256];
-        snprintf(msg, sizeof msg, "its job died while it was being computed in %d sessions (a worker crash or "
-                 "a kill); not retried again (screen --rerun tries it in a new run)", strikes[i]);
+        snprintf(msg, sizeof msg, "its job died while it was being computed in %d sessions (a worker crash, for "
+                 "instance on a corrupt entry, or a kill); not retried again (screen --rerun tries it in a new run)",
+                 strikes[i]);
         rc = cat_result_put_text(c->cat, c->run_id, ids[i], CAT_RES_FAILED, msg, NULL, 0, -1, 0.0, err);
     }
     if (rc == 0) rc = cat_flush(c->cat, err);
