@@ -104,7 +104,7 @@ static int open_file(cat_db *cat, int64_t run_id, int session, bs_err *err)
         char cause[256];
         int errnum = errno;
         return bs_fail(err, BS_EHDF5, "%s: cannot create or open the artifact file: %s", full,
-                       cat_io_cause(full, errnum == EISDIR ? EISDIR : errnum, cause, sizeof cause));
+                       cat_io_cause(full, errnum, cause, sizeof cause));
     }
     cat->h5 = f;
     cat->h5_broken = 0;
@@ -132,10 +132,9 @@ int cat_artifact_write(cat_db *cat, int64_t run_id, int session, const char *mat
 {
     int rc = open_file(cat, run_id, session, err);
     if (rc == 0 && cat->h5_broken) rc = bs_fail(err, BS_EHDF5, "%s: an earlier write to this artifact file failed", cat->h5_name);
-    if (rc == 0 && bs_fault_hit("BS_FAULT_ARTIFACT_WRITE", material_id)) {
-        errno = ENOSPC; /* injected by a test: the next write behaves as on a full disk */
+    /* Injected by a test: this material's write fails as on a full disk. */
+    if (rc == 0 && bs_fault_hit("BS_FAULT_ARTIFACT_WRITE", material_id))
         rc = storage_fail(cat, ENOSPC, "writing the flow datasets (injected fault)", err);
-    }
     if (rc != 0) return rc;
     char enc[400];
     encode_name(material_id, enc, sizeof enc);
