@@ -62,11 +62,7 @@ int main(int argc, char **argv)
                 fprintf(stderr, "bandsieve: command '%s' is not built into this binary\n", argv[1]);
                 return 2;
             }
-            int status = COMMANDS[i].run(argc - 1, argv + 1);
-            /* The library's state is freed here instead, unless a file is still open: that is
-             * only ever a file whose close failed, which must not be closed again. */
-            if (H5Fget_obj_count((hid_t)H5F_OBJ_ALL, H5F_OBJ_ALL) == 0) H5close();
-            return status;
+            return COMMANDS[i].run(argc - 1, argv + 1);
         }
     fprintf(stderr, "bandsieve: unknown command '%s' (bandsieve --help lists them)\n", argv[1]);
     return 2;
