@@ -293,6 +293,42 @@ static int check_mesh(coord *c, bs_err *err)
     return 0;
 }
 
+static int by_item_cost(const void *a, const void *b)
+{
+    const pl_item *x = a, *y = b;
+    if (x->cost != y->cost) return x->cost < y->cost ? 1 : -1;
+    return x->index - y->index;
+}
+
+/* The selected ids the set does not hold: counted and the first few named for the announcement. */
+static void note_missing(coord *c, const cat_ids *sel)
+{
+    for (size_t i = 0; i < sel->n; i++) {
+        if (ms_find(c->set, sel->id[i]) >= 0) continue;
+        if (c->counts.missing++ < 5) {
+            size_t used = strlen(c->counts.missing_ids);
+            snprintf(c->counts.missing_ids + used, sizeof c->counts.missing_ids - used, "%s%s", used ? ", " : "",
+                     sel->id[i]);
+        }
+    }
+}
+
+static void note_resumed(coord *c, int rerun_asked, bs_err *err)
+{
+    cat_run_state rs;
+    if (cat_run_get(c->cat, c->run_id, &rs, err) != 0) {
+        bs_err_clear(err);
+        return;
+    }
+    int n = snprintf(c->counts.note, sizeof c->counts.note, "resuming run %lld (started %s%s, session %d, %lld "
+                     "results so far, set first read from %s)", (long long)c->run_id, rs.started,
+                     rs.rerun ? " by --rerun" : "", rs.sessions, rs.nresults, rs.set_path);
+    if (rerun_asked && n > 0 && (size_t)n < sizeof c->counts.note)
+        snprintf(c->counts.note + n, sizeof c->counts.note - (size_t)n,
+                 "; --rerun resumes the unfinished run it started instead of starting over, and starts a "
+                 "new run once that one has finished");
+}
+
 static int refuse_over_budget(coord *c, bs_err *err);
 
 /* Opens set and catalogue, starts or resumes the run, builds the ordered work list. */
