@@ -13,7 +13,7 @@
 #include "bandsieve/eig.h"
 #include "bandsieve/hk.h"
 
-void openblas_set_num_threads(int num_threads);
+void openblas_set_num_threads(int num_threads) __attribute__((weak)); /* OpenBLAS only */
 
 static double now(void)
 {
@@ -152,7 +152,7 @@ static void bench(int norb, int nk)
 
 int main(int argc, char **argv)
 {
-    openblas_set_num_threads(1);
+    if (openblas_set_num_threads) openblas_set_num_threads(1);
     int sizes[8] = {16, 64, 256}, ns = 3;
     if (argc > 1) {
         ns = 0;

@@ -19,7 +19,7 @@
 #include "bandsieve/lattice_models.h"
 #include "bandsieve/transport.h"
 
-void openblas_set_num_threads(int num_threads);
+void openblas_set_num_threads(int num_threads) __attribute__((weak)); /* OpenBLAS only */
 
 static int one(const tb_model *m, const tr_opts *o, const char *label, double exact)
 {
@@ -91,7 +91,7 @@ static double midpoint(const tb_model *m, int N, double *seconds)
 
 int main(int argc, char **argv)
 {
-    openblas_set_num_threads(1);
+    if (openblas_set_num_threads) openblas_set_num_threads(1);
     const char *spec = argc > 1 ? argv[1] : "haldane:t2=0.1,phi=0.5,M=0.5";
     double tol = argc > 2 ? atof(argv[2]) : 1e-3;
     tb_model *m = NULL;

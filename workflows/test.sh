@@ -1,8 +1,10 @@
 #!/usr/bin/env bash
 # The whole test suite from a fresh clone: checks the layering (workflows/check-layers.sh), installs
 # what is missing, builds, runs every test through CTest (unit tests, numpy/scipy cross-checks, MPI
-# runs), then rebuilds the unit tests with AddressSanitizer + UndefinedBehaviorSanitizer and runs
-# them again.
+# runs), rebuilds the unit tests with AddressSanitizer + UndefinedBehaviorSanitizer and runs them
+# again, and finally follows README.md's "Building on a cluster" example literally: a build against
+# Debian's reference BLAS/LAPACK (a second implementation) with explicit CMake variables and no
+# apt-get, running the unit tests.
 set -euo pipefail
 here="$(cd "$(dirname "$0")/.." && pwd)"
 export OMPI_ALLOW_RUN_AS_ROOT=1 OMPI_ALLOW_RUN_AS_ROOT_CONFIRM=1
@@ -14,3 +16,4 @@ BS_BUILD_DIR="$here/build-sanitize" bash "$here/workflows/build.sh" -DBS_SANITIZ
 # Leak checking stays on for our code; UBSan findings are fatal.
 export UBSAN_OPTIONS=halt_on_error=1:print_stacktrace=1
 ctest --test-dir "$here/build-sanitize" --output-on-failure -j2 -L unit --timeout 900
+bash "$here/tests/scripts/cluster_build.sh"
