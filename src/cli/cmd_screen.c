@@ -12,21 +12,53 @@
 #include "cliutil.h"
 #include "commands.h"
 
+/* Exit statuses of screen and rescreen (documented in --help and README.md). A run that
+ * completed exits 0 whatever its entries' statuses: a batch system then marks the job done, and
+ * the counts are in the last line and the catalogue. */
+enum {
+    SCREEN_EXIT_DONE = 0,        /* the run completed */
+    SCREEN_EXIT_STRICT = 1,      /* --strict: the run completed, some entries are not ok */
+    SCREEN_EXIT_USAGE = 2,       /* bad arguments; rescreen of a catalogue that does not exist */
+    SCREEN_EXIT_JOB = 3,         /* the job itself failed: set, catalogue, MPI */
+    SCREEN_EXIT_INTERRUPTED = 4, /* stopped early (signal or --max-seconds): run it again to resume */
+};
+
 /* Set by SIGTERM/SIGINT (a batch scheduler's warning before the kill): finish in-flight work. */
 static volatile sig_atomic_t stop_requested = 0;
+static volatile sig_atomic_t stop_signal = 0;
 
 static void on_signal(int sig)
 {
-    (void)sig;
+    stop_signal = sig;
     stop_requested = 1;
 }
 
+/* Plain progress lines (stderr not a terminal, as under mpirun or in a batch log): at 5, 10 and
+ * 20 s, so a short job shows it is moving, then every 30 s; --progress-every S: every S seconds. */
 typedef struct progress_state {
     int tty;
-    double last_plain;
-    double plain_every;
+    double next_plain;
+    double plain_every;   /* 0: the default schedule */
     const char *what;
 } progress_state;
+
+static double next_plain_after(const progress_state *p, double elapsed)
+{
+    if (p->plain_every > 0) return elapsed + p->plain_every;
+    static const double early[] = {5, 10, 20};
+    for (size_t i = 0; i < sizeof early / sizeof early[0]; i++)
+        if (elapsed < early[i]) return early[i];
+    return 30.0 * (double)((long)(elapsed / 30.0) + 1);
+}
+
+static void format_classes(const pl_counts *c, char *buf, size_t len)
+{
+    static const char *const abbrev[RES_NCLASS] = {"triv", "STI", "WTI", "2DTI", "CI", "WSM", "NLSM", "metal", "undet", "TCI"};
+    size_t n = 0;
+    buf[0] = '\0';
+    for (int i = 0; i < RES_NCLASS && n < len; i++)
+        if (c->by_class[i]) n += (size_t)snprintf(buf + n, len - n, " %s %d", abbrev[i], c->by_class[i]);
+}
 
 static void format_progress(const pl_counts *c, char *buf, size_t len)
 {
@@ -38,22 +70,23 @@ static void format_progress(const pl_counts *c, char *buf, size_t len)
     n += snprintf(buf + n, len - n, ", %.2f/s, %s %.0fs | ok %d invalid %d failed %d timeout %d |",
                   rate, left > 0 ? "left" : "took", left > 0 ? eta : c->elapsed, c->ok, c->invalid,
                   c->failed, c->timeout);
-    static const char *const abbrev[RES_NCLASS] = {"triv", "STI", "WTI", "2DTI", "CI", "WSM", "NLSM", "metal", "undet", "TCI"};
-    for (int i = 0; i < RES_NCLASS; i++)
-        if (c->by_class[i]) n += snprintf(buf + n, len - n, " %s %d", abbrev[i], c->by_class[i]);
+    if (n > 0 && (size_t)n < len) format_classes(c, buf + n, len - (size_t)n);
 }
 
 static void show_progress(void *ctx, const pl_counts *c, int final)
 {
     progress_state *p = ctx;
     char line[512];
-    format_progress(c, line, sizeof line);
-    if (p->tty) {
+    /* The final counts go once, in the command's last line (screen_main), not here. */
+    if (final) {
+        if (p->tty) fputs("\r\033[K", stderr);
+    } else if (p->tty) {
+        format_progress(c, line, sizeof line);
         fprintf(stderr, "\r\033[K%s: %s", p->what, line);
-        if (final) fputc('\n', stderr);
-    } else if (final || c->elapsed - p->last_plain >= p->plain_every) {
+    } else if (c->elapsed >= p->next_plain) {
+        format_progress(c, line, sizeof line);
         fprintf(stderr, "%s: [%6.0fs] %s\n", p->what, c->elapsed, line);
-        p->last_plain = c->elapsed;
+        p->next_plain = next_plain_after(p, c->elapsed);
     }
     fflush(stderr);
 }
@@ -136,10 +169,42 @@ static void screen_help(FILE *out, int rescreen)
                  "                      at least --group-min-states states (default 800) together\n"
                  "                      with ScaLAPACK; smaller ones go to the single ranks\n"
                  "  --batch N           commit the catalogue every N results (default 64) or 2 s\n"
-                 "  --progress-every S  seconds between progress lines when stderr is not a terminal (30)\n"
+                 "  --progress-every S  seconds between progress lines when stderr is not a terminal\n"
+                 "                      (default: at 5, 10 and 20 s, then every 30 s)\n"
+                 "  --strict            exit 1 when any material is not ok (invalid, failed, timeout)\n"
                  "  -h, --help          this text\n\n"
-                 "Exit status: 0 every material ok, 1 some were invalid/failed/timeout or the run was\n"
-                 "interrupted, 2 usage, 3 the job itself failed (set, catalogue, MPI).\n");
+                 "Exit status: 0 the run completed, whatever the materials' statuses (counted in the\n"
+                 "last line and the catalogue); 1 with --strict, some material is not ok; 2 usage%s;\n"
+                 "3 the job itself failed (set, catalogue, MPI); 4 interrupted by a signal or by\n"
+                 "--max-seconds: run the same command again to resume.\n",
+            rescreen ? " or no such catalogue" : "");
+}
+
+/* The one last line of a job (rank 0): the run's outcome and counts, and for an interrupted run
+ * how to resume. Returns the exit status. */
+static int final_line(const char *name, const pl_counts *c, const pl_opts *o, int strict)
+{
+    char classes[256];
+    format_classes(c, classes, sizeof classes);
+    int not_ok = c->done - c->ok;
+    fprintf(stderr, "%s: run %lld %s: %d done (%d ok, %d invalid, %d failed, %d timeout), %d skipped as "
+                    "already done, %.1f s |%s\n", name, c->run_id, c->interrupted ? "interrupted" : "finished",
+            c->done, c->ok, c->invalid, c->failed, c->timeout, c->skipped, c->elapsed, classes[0] ? classes : " -");
+    if (c->interrupted) {
+        char why[96];
+        if (stop_signal) snprintf(why, sizeof why, "by signal %d (%s)", (int)stop_signal,
+                                  stop_signal == SIGTERM ? "SIGTERM" : stop_signal == SIGINT ? "SIGINT" : "signal");
+        else snprintf(why, sizeof why, "by the --max-seconds budget of %g s", o->max_seconds);
+        fprintf(stderr, "%s: stopped %s with %d material(s) left; to resume, run the same command again%s "
+                        "(exit status %d)\n", name, why, c->total - c->done, o->rerun ? " without --rerun" : "",
+                SCREEN_EXIT_INTERRUPTED);
+        return SCREEN_EXIT_INTERRUPTED;
+    }
+    if (strict && not_ok > 0) {
+        fprintf(stderr, "%s: --strict: %d material(s) not ok (exit status %d)\n", name, not_ok, SCREEN_EXIT_STRICT);
+        return SCREEN_EXIT_STRICT;
+    }
+    return SCREEN_EXIT_DONE;
 }
 
 static int screen_main(int argc, char **argv, int rescreen)
@@ -151,14 +216,15 @@ static int screen_main(int argc, char **argv, int rescreen)
         {"where-timeout", required_argument, NULL, 'W'}, {"material-memory", required_argument, NULL, 'M'},
         {"batch", required_argument, NULL, 'b'}, {"symmetry-tol", required_argument, NULL, 'y'},
         {"transport", no_argument, NULL, 'A'}, {"surfaces", no_argument, NULL, 'S'},
-        {"group-size", required_argument, NULL, 'g'}, {"group-min-states", required_argument, NULL, 'G'}, {"progress-every", required_argument, NULL, 'p'},
+        {"group-size", required_argument, NULL, 'g'}, {"group-min-states", required_argument, NULL, 'G'}, {"progress-every", required_argument, NULL, 'p'}, {"strict", no_argument, NULL, 's'},
         {"help", no_argument, NULL, 'h'}, {NULL, 0, NULL, 0}};
     const char *name = rescreen ? "bandsieve rescreen" : "bandsieve screen";
     pl_opts o;
     memset(&o, 0, sizeof o);
     o.kind = rescreen ? "rescreen" : "screen";
     o.version = BS_VERSION;
-    progress_state ps = {isatty(2), -1e9, 30.0, name};
+    progress_state ps = {isatty(2), 0, 0, name};
+    int strict = 0;
     int c;
     optind = 1;
     while ((c = getopt_long(argc, argv, "c:h", longopts, NULL)) != -1) {
@@ -168,6 +234,7 @@ static int screen_main(int argc, char **argv, int rescreen)
         case 'h': screen_help(stdout, rescreen); return 0;
         case 'c': o.catalogue_path = optarg; break;
         case 'r': o.rerun = 1; break;
+        case 's': strict = 1; break;
         case 'A': o.transport = 1; break;
         case 'S': o.surfaces = 1; break;
         case 'g': case 'G':
@@ -224,6 +291,7 @@ static int screen_main(int argc, char **argv, int rescreen)
         return 2;
     }
     if (rescreen && o.mesh == 0) o.mesh_factor = 2;
+    ps.next_plain = next_plain_after(&ps, 0);
     /* Runs are matched by the set's content; the path is recorded in one canonical spelling. */
     char set_real[4096];
     o.set_path = realpath(argv[optind], set_real) ? set_real : argv[optind];
@@ -252,21 +320,32 @@ static int screen_main(int argc, char **argv, int rescreen)
     if (MPI_Init(&argc, &argv) != MPI_SUCCESS) {
         fprintf(stderr, "%s: MPI_Init failed\n", name);
         free(cmdline);
-        return 3;
+        return SCREEN_EXIT_JOB;
+    }
+    /* rescreen needs an existing catalogue (opening creates one): rank 0 looks, and every rank
+     * follows its answer, so that all of them stop together. */
+    int rank = 0, missing = 0;
+    MPI_Comm_rank(MPI_COMM_WORLD, &rank);
+    if (rescreen && rank == 0) missing = access(o.catalogue_path, F_OK) != 0;
+    if (rescreen) MPI_Bcast(&missing, 1, MPI_INT, 0, MPI_COMM_WORLD);
+    if (missing) {
+        if (rank == 0)
+            fprintf(stderr, "%s: %s: no such catalogue (rescreen reruns entries of an existing catalogue; "
+                            "`screen` creates one)\n", name, o.catalogue_path);
+        MPI_Finalize();
+        free(cmdline);
+        return SCREEN_EXIT_USAGE;
     }
     int rc = pl_run(MPI_COMM_WORLD, &o, &counts, &is_root, &err);
     MPI_Finalize();
     free(cmdline);
     if (rc != 0) {
         fprintf(stderr, "%s: %s\n", name, err.msg);
-        return rc == BS_EUSAGE ? 2 : 3;
+        return rc == BS_EUSAGE ? SCREEN_EXIT_USAGE : SCREEN_EXIT_JOB;
     }
-    if (!is_root) return 0;
-    if (counts.run_id == 0) return 0;
-    fprintf(stderr, "%s: run %lld %s: %d done (%d ok, %d invalid, %d failed, %d timeout), %d skipped as "
-                    "already done, %.1f s\n", name, counts.run_id, counts.interrupted ? "interrupted" : "finished",
-            counts.done, counts.ok, counts.invalid, counts.failed, counts.timeout, counts.skipped, counts.elapsed);
-    return counts.interrupted || counts.ok != counts.done ? 1 : 0;
+    if (!is_root) return SCREEN_EXIT_DONE;
+    if (counts.run_id == 0) return SCREEN_EXIT_DONE; /* nothing to do: no run was added */
+    return final_line(name, &counts, &o, strict);
 }
 
 int cmd_screen(int argc, char **argv) { return screen_main(argc, argv, 0); }

@@ -13,6 +13,7 @@
 #include <errno.h>
 #include <fcntl.h>
 #include <sys/file.h>
+#include <sys/stat.h>
 #include <unistd.h>
 
 #include <cjson/cJSON.h>
@@ -78,6 +79,8 @@ typedef struct coord {
     pl_task task;
     pl_counts counts;
     int lock_fd;        /* CAT.sqlite.lock, held with flock for the whole job; -1 when none */
+    int lock_held;      /* this job holds the lock: it removes the file at the end */
+    char lock_path[4096];
     pl_journal *journal;/* CAT.sqlite.journal: hand-outs and outcomes */
     int discarded;      /* the new run had nothing to do and was removed again */
     double memory_budget; /* bytes per material (per rank; a group has group_size times it) */
@@ -155,22 +158,45 @@ static char *settings_json(const pl_opts *o, const ms_set *set)
 
 /* One writing job per catalogue: a second screen on the same file would resume the same run and
  * compute everything twice. An exclusive flock on CAT.sqlite.lock, held until the job ends, says
- * so at once. File systems without flock (some parallel ones) get no protection, silently. */
+ * so at once. File systems without flock (some parallel ones) get no protection, silently. The
+ * job removes the file when it ends (release_lock), still holding the lock; so a job that opened
+ * the file just before may hold a lock on a removed file, which it sees by comparing the inode
+ * of its descriptor with the path's, and then tries again on the new file. A killed job leaves
+ * the file, which is harmless: the kernel released its lock. */
 static int take_lock(coord *c, bs_err *err)
 {
-    char path[4096];
-    snprintf(path, sizeof path, "%s.lock", c->o->catalogue_path);
-    c->lock_fd = open(path, O_RDWR | O_CREAT | O_CLOEXEC, 0644);
-    if (c->lock_fd < 0) return bs_fail(err, BS_EIO, "%s: cannot create the lock file: %s", path, strerror(errno));
-    if (flock(c->lock_fd, LOCK_EX | LOCK_NB) != 0) {
-        int e = errno;
-        if (e == EWOULDBLOCK)
-            return bs_fail(err, BS_EIO, "%s is being written by another screen or rescreen (%s is locked); "
-                           "wait for it to finish", c->o->catalogue_path, path);
-        close(c->lock_fd);
-        c->lock_fd = -1;
+    char *path = c->lock_path;
+    snprintf(path, sizeof c->lock_path, "%s.lock", c->o->catalogue_path);
+    for (int attempt = 0; attempt < 5; attempt++) {
+        int fd = open(path, O_RDWR | O_CREAT | O_CLOEXEC, 0644);
+        if (fd < 0) return bs_fail(err, BS_EIO, "%s: cannot create the lock file: %s", path, strerror(errno));
+        if (flock(fd, LOCK_EX | LOCK_NB) != 0) {
+            int e = errno;
+            close(fd);
+            if (e == EWOULDBLOCK)
+                return bs_fail(err, BS_EIO, "%s is being written by another screen or rescreen (%s is locked); "
+                               "wait for it to finish", c->o->catalogue_path, path);
+            return 0;
+        }
+        struct stat held, at_path;
+        if (fstat(fd, &held) == 0 && stat(path, &at_path) == 0 && held.st_dev == at_path.st_dev &&
+            held.st_ino == at_path.st_ino) {
+            c->lock_fd = fd;
+            c->lock_held = 1;
+            return 0;
+        }
+        close(fd);
     }
-    return 0;
+    return bs_fail(err, BS_EIO, "%s: the lock file keeps being replaced by other jobs", path);
+}
+
+/* Removes the lock file while the lock is still held, then releases it. */
+static void release_lock(coord *c)
+{
+    if (c->lock_held) unlink(c->lock_path);
+    if (c->lock_fd >= 0) close(c->lock_fd);
+    c->lock_held = 0;
+    c->lock_fd = -1;
 }
 
 /* Materials that earlier sessions of this run handed out and never got back died with their job.
@@ -802,7 +828,7 @@ static void coord_clear(coord *c, bs_err *err)
     free(c->items);
     free(c->taken);
     pl_journal_close(c->journal);
-    if (c->lock_fd >= 0) close(c->lock_fd);
+    release_lock(c);
 }
 
 /* The node's physical memory divided by the ranks on this node (0 when unknown: no limit). */
