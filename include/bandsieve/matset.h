@@ -27,6 +27,9 @@ typedef struct ms_entry {
                            ms_content computes it then */
 } ms_entry;
 
+/* Suffix of the file a set is written to before it takes its name (see ms_create). */
+#define MS_PARTIAL_SUFFIX ".partial"
+
 /* Creates a set for writing at path. Everything goes to "<path>.partial" until ms_close renames
  * it onto path, so a failed pack never leaves a half-written set under the final name.
  * The caller owns *out (ms_close, then ms_free). Errors: BS_EHDF5, BS_EIO, BS_ENOMEM. */

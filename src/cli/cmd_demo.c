@@ -2,21 +2,24 @@
 #include <getopt.h>
 #include <stdio.h>
 #include <string.h>
+#include <unistd.h>
 
 #include "bandsieve/demo.h"
 #include "bandsieve/lattice_models.h"
+#include "bandsieve/matset.h"
 #include "cliutil.h"
 #include "commands.h"
 
 static void demo_help(FILE *out)
 {
-    fprintf(out, "usage: bandsieve demo-set -o SET.h5 [--count N] [--seed S]\n\n"
+    fprintf(out, "usage: bandsieve demo-set -o SET.h5 [--count N] [--seed S] [--force]\n\n"
                  "Writes the INVENTED demonstration set: fictitious compounds (the Jo-Qu family), each a\n"
                  "built-in published lattice model with drawn parameters, plus a few broken entries, so a\n"
                  "screen meets every class and status. Not real materials.\n\n"
                  "  -o, --output F  the set to write\n"
                  "  --count N       entries (default 300, at least 12)\n"
                  "  --seed S        generator seed (default 2026): same seed, same set\n"
+                 "  --force         replace SET.h5 if it exists (otherwise an existing file is refused)\n"
                  "  -h, --help      this text\n");
 }
 
@@ -24,15 +27,16 @@ int cmd_demo_set(int argc, char **argv)
 {
     static const struct option longopts[] = {
         {"output", required_argument, NULL, 'o'}, {"count", required_argument, NULL, 'n'},
-        {"seed", required_argument, NULL, 's'}, {"help", no_argument, NULL, 'h'}, {NULL, 0, NULL, 0}};
+        {"seed", required_argument, NULL, 's'}, {"force", no_argument, NULL, 'f'}, {"help", no_argument, NULL, 'h'}, {NULL, 0, NULL, 0}};
     const char *path = NULL;
     long count = 300, seed = 2026;
-    int c;
+    int force = 0, c;
     optind = 1;
     while ((c = getopt_long(argc, argv, "o:h", longopts, NULL)) != -1) {
         switch (c) {
         case 'h': demo_help(stdout); return 0;
         case 'o': path = optarg; break;
+        case 'f': force = 1; break;
         case 'n':
             if (cli_parse_int(optarg, 12, 1000000, &count)) { fprintf(stderr, "bandsieve demo-set: --count expects 12..1000000, got '%s'\n", optarg); return 2; }
             break;
@@ -47,6 +51,14 @@ int cmd_demo_set(int argc, char **argv)
         demo_help(stderr);
         return 2;
     }
+    if (!force && access(path, F_OK) == 0) {
+        fprintf(stderr, "bandsieve demo-set: %s exists; pass --force to replace it\n", path);
+        return 2;
+    }
+    /* The set is written to PATH.partial and renamed at the end; a signal removes the partial file. */
+    char partial[4300];
+    snprintf(partial, sizeof partial, "%s" MS_PARTIAL_SUFFIX, path);
+    cli_remove_on_signal(partial);
     bs_err err;
     bs_err_clear(&err);
     if (demo_write_set(path, (int)count, (uint64_t)seed, &err) != 0) {

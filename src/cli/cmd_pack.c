@@ -13,6 +13,7 @@
 #include "bandsieve/content.h"
 #include "bandsieve/matset.h"
 #include "cardlist.h"
+#include "cliutil.h"
 #include "commands.h"
 
 static void pack_help(FILE *out)
@@ -293,6 +294,10 @@ int cmd_pack(int argc, char **argv)
             status = 1;
         }
     }
+    /* The set is written to SET.h5.partial and renamed at the end; a signal removes the partial file. */
+    char partial[4300];
+    snprintf(partial, sizeof partial, "%s" MS_PARTIAL_SUFFIX, output);
+    if (status == 0) cli_remove_on_signal(partial);
     if (status == 0 && (ms_create(output, &set, &err) != 0 ||
                         ms_set_meta(set, description ? description : old ? ms_description(old) : "",
                                     invented || (old && ms_invented(old)), &err) != 0)) {

@@ -193,7 +193,8 @@ static int final_line(const char *name, const pl_counts *c, const pl_opts *o, in
     if (c->interrupted) {
         char why[96];
         if (stop_signal) snprintf(why, sizeof why, "by signal %d (%s)", (int)stop_signal,
-                                  stop_signal == SIGTERM ? "SIGTERM" : stop_signal == SIGINT ? "SIGINT" : "signal");
+                                  stop_signal == SIGTERM ? "SIGTERM" : stop_signal == SIGINT ? "SIGINT" :
+                                  stop_signal == SIGUSR1 ? "SIGUSR1" : "signal");
         else snprintf(why, sizeof why, "by the --max-seconds budget of %g s", o->max_seconds);
         fprintf(stderr, "%s: stopped %s with %d material(s) left; to resume, run the same command again%s "
                         "(exit status %d)\n", name, why, c->total - c->done, o->rerun ? " without --rerun" : "",
@@ -310,8 +311,11 @@ static int screen_main(int argc, char **argv, int rescreen)
     o.progress = show_progress;
     o.announce = announce;
     o.progress_ctx = &ps;
+    /* SIGUSR1 too: Open MPI's mpirun forwards it to the ranks, whereas on SIGTERM it ends them
+     * itself; Slurm can send it ahead of the time limit (#SBATCH --signal=USR1@300). */
     signal(SIGTERM, on_signal);
     signal(SIGINT, on_signal);
+    signal(SIGUSR1, on_signal);
 
     pl_counts counts;
     int is_root = 1;

@@ -342,7 +342,7 @@ static int create_impl(const char *path, ms_set **out, bs_err *err)
         rc = bs_fail(err, BS_EINVAL, "%s: path too long", path);
         goto done;
     }
-    snprintf(s->partial, sizeof s->partial, "%s.partial", path);
+    snprintf(s->partial, sizeof s->partial, "%s" MS_PARTIAL_SUFFIX, path);
     /* File format of HDF5 1.8 and later: the superblock, object headers (with the attributes)
      * and B-trees carry checksums, so damaged metadata is refused by the library instead of
      * being decoded (a flipped byte in an attribute message overran a heap buffer). */
