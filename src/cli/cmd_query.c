@@ -21,7 +21,8 @@ static void on_query_signal(int sig)
     query_stop = 1;
 }
 
-/* Table cells longer than this are cut with "..." (csv and json print everything). */
+/* Text columns of a table are at most this wide; longer cells wrap onto further lines of the
+ * row, so a message is never cut (csv and json print every cell on one line). */
 #define QUERY_CELL_MAX 60
 
 static void query_usage(FILE *out)
@@ -38,7 +39,8 @@ static void query_usage(FILE *out)
             "  --timeout S     stop the statement after S seconds (exit status 1); SIGTERM and\n"
             "                  SIGINT stop it at once in any case\n"
             "  --format FMT    table (default; aligned columns, numbers right-aligned, NULL blank,\n"
-            "                  long text cut at %d characters), csv (RFC 4180, NULL empty, header row)\n"
+            "                  text wrapped at %d characters, times in seconds), csv (RFC 4180, NULL\n"
+            "                  empty, header row)\n"
             "                  or json (a list of objects, NULL as null)\n"
             "  -h, --help      this text\n\n"
             "Tables, columns and views are described in db/README.md.\n",
@@ -176,35 +178,112 @@ static int on_row(void *ctx, const cat_row *row, bs_err *err)
     return row_stream(o, row);
 }
 
-/* The text a table cell shows: reals to 6 significant digits, one line, at most QUERY_CELL_MAX. */
-static void cell_text(const char *s, int type, char *out, size_t len)
+/* Whether a column holds a duration in seconds (results.seconds, diag_seconds, worker_seconds). */
+static int is_seconds_column(const char *name)
 {
-    if (!s) {
-        out[0] = '\0';
+    size_t n = name ? strlen(name) : 0;
+    return n >= 7 && strcmp(name + n - 7, "seconds") == 0;
+}
+
+/* A duration in fixed notation with three significant digits (0.0000720, 0.0523, 12.3, 4521):
+ * always readable as seconds, never in exponent form. */
+static void seconds_text(double t, char *out, size_t len)
+{
+    if (t == 0 || !isfinite(t)) {
+        snprintf(out, len, "%g", t);
         return;
     }
+    int mag = (int)floor(log10(fabs(t)));
+    int decimals = mag >= 2 ? 0 : 2 - mag;
+    if (decimals > 12) decimals = 12;
+    snprintf(out, len, "%.*f", decimals, t);
+}
+
+/* The text a table cell shows (the caller frees it; NULL when out of memory): reals to 6
+ * significant digits, durations by seconds_text, text on one line (line breaks become spaces). */
+static char *cell_text(const char *s, int type, const char *column)
+{
+    char num[64];
+    if (!s) return strdup("");
     if (type == CAT_COL_REAL) {
-        snprintf(out, len, "%.6g", strtod(s, NULL));
-        return;
+        double v = strtod(s, NULL);
+        if (is_seconds_column(column)) seconds_text(v, num, sizeof num);
+        else snprintf(num, sizeof num, "%.6g", v);
+        return strdup(num);
     }
-    size_t k = 0;
-    for (const char *p = s; *p && k + 1 < len; p++) out[k++] = (*p == '\n' || *p == '\t' || *p == '\r') ? ' ' : *p;
-    out[k] = '\0';
-    if (k > QUERY_CELL_MAX) snprintf(out + QUERY_CELL_MAX - 3, len - (QUERY_CELL_MAX - 3), "...");
+    char *out = strdup(s);
+    for (char *p = out; p && *p; p++)
+        if (*p == '\n' || *p == '\t' || *p == '\r') *p = ' ';
+    return out;
+}
+
+/* The next line of at most width bytes of the text at *pos: broken at the last space that fits,
+ * else at width (never inside a UTF-8 sequence); *pos moves past it and the spaces after it.
+ * Returns the line's length. */
+static size_t wrap_next(const char **pos, size_t width)
+{
+    const char *p = *pos;
+    size_t n = strlen(p);
+    if (n <= width) {
+        *pos = p + n;
+        return n;
+    }
+    size_t cut = width;
+    while (cut > 0 && p[cut] != ' ') cut--;
+    if (cut == 0) {
+        cut = width;
+        while (cut > 1 && ((unsigned char)p[cut] & 0xC0) == 0x80) cut--;
+    }
+    *pos = p + cut;
+    while (**pos == ' ') (*pos)++;
+    return cut;
+}
+
+/* One row of shown cells; text longer than its column continues on further lines. */
+static void table_row(FILE *fp, int ncol, char **shown, const int *type, const size_t *width)
+{
+    const char **pos = malloc((size_t)(ncol > 0 ? ncol : 1) * sizeof *pos);
+    if (!pos) return;
+    for (int i = 0; i < ncol; i++) pos[i] = shown[i] ? shown[i] : "";
+    for (int more = 1; more;) {
+        more = 0;
+        size_t pending = 0;   /* padding owed; written only before further text, so no line ends in blanks */
+        for (int i = 0; i < ncol; i++) {
+            const char *from = pos[i];
+            size_t len = wrap_next(&pos[i], width[i]);
+            int numeric = type[i] == CAT_COL_INTEGER || type[i] == CAT_COL_REAL;
+            pending += (i ? 2 : 0) + (numeric ? width[i] - len : 0);
+            if (len) {
+                fprintf(fp, "%*s%.*s", (int)pending, "", (int)len, from);
+                pending = 0;
+            }
+            if (!numeric) pending += width[i] - len;
+            if (*pos[i]) more = 1;
+        }
+        fputc('\n', fp);
+    }
+    free(pos);
 }
 
 static void table_print(const q_table *t, FILE *fp)
 {
+    size_t ncell = t->nrow * (size_t)t->ncol;
     size_t *width = calloc(t->ncol > 0 ? (size_t)t->ncol : 1, sizeof *width);
-    char buf[QUERY_CELL_MAX + 8];
-    if (!width) return;
+    char **shown = calloc(ncell ? ncell : 1, sizeof *shown);
+    if (!width || !shown) goto done;
+    for (size_t k = 0; k < ncell; k++) {
+        shown[k] = cell_text(t->cell[k], t->type[k], t->name[k % (size_t)t->ncol]);
+        if (!shown[k]) goto done;
+    }
     for (int i = 0; i < t->ncol; i++) {
-        width[i] = strlen(t->name[i] ? t->name[i] : "");
+        size_t head = strlen(t->name[i] ? t->name[i] : ""), longest = 0;
         for (size_t r = 0; r < t->nrow; r++) {
-            size_t k = r * (size_t)t->ncol + (size_t)i;
-            cell_text(t->cell[k], t->type[k], buf, sizeof buf);
-            if (strlen(buf) > width[i]) width[i] = strlen(buf);
+            size_t len = strlen(shown[r * (size_t)t->ncol + (size_t)i]);
+            if (len > longest) longest = len;
         }
+        if (longest > QUERY_CELL_MAX) longest = QUERY_CELL_MAX;
+        width[i] = head > longest ? head : longest;
+        if (width[i] == 0) width[i] = 1;
     }
     for (int i = 0; i < t->ncol; i++) fprintf(fp, "%s%-*s", i ? "  " : "", (int)width[i], t->name[i] ? t->name[i] : "");
     fputc('\n', fp);
@@ -213,16 +292,12 @@ static void table_print(const q_table *t, FILE *fp)
         for (size_t w = 0; w < width[i]; w++) fputc('-', fp);
     }
     fputc('\n', fp);
-    for (size_t r = 0; r < t->nrow; r++) {
-        for (int i = 0; i < t->ncol; i++) {
-            size_t k = r * (size_t)t->ncol + (size_t)i;
-            cell_text(t->cell[k], t->type[k], buf, sizeof buf);
-            int numeric = t->type[k] == CAT_COL_INTEGER || t->type[k] == CAT_COL_REAL;
-            fprintf(fp, numeric ? "%s%*s" : "%s%-*s", i ? "  " : "", (int)width[i], buf);
-        }
-        fputc('\n', fp);
-    }
+    for (size_t r = 0; r < t->nrow; r++)
+        table_row(fp, t->ncol, shown + r * (size_t)t->ncol, t->type + r * (size_t)t->ncol, width);
     fprintf(fp, "(%zu row%s)\n", t->nrow, t->nrow == 1 ? "" : "s");
+done:
+    for (size_t k = 0; shown && k < ncell; k++) free(shown[k]);
+    free(shown);
     free(width);
 }
 

@@ -163,6 +163,33 @@ def case_broken():
     check_integer_invariants(cat)
     if "4 invalid" not in r.stderr:
         fail("the closing summary line does not count the invalid rows:\n" + r.stderr)
+    # The table format wraps long messages instead of cutting them: the message column of each
+    # row, read back across its continuation lines, holds the whole message.
+    table = run([BIN, "query", cat, "SELECT material_id, message FROM failures ORDER BY material_id"]).stdout
+    lines = table.splitlines()
+    col = lines[1].index("  -") + 2         # the message column starts after the id column's dashes
+    got, current = {}, None
+    for line in lines[2:]:
+        if line.startswith("("):
+            break
+        if line[:col].strip():
+            current = line[:col].strip()
+            got[current] = []
+        got[current].append(line[col:])
+    for mid, _, msg in bad:
+        if "".join("".join(got.get(mid, [])).split()) != "".join(msg.split()):
+            fail(f"failures table does not show the whole message of {mid}:\n{table}")
+        if any(len(piece.rstrip()) > 60 for piece in got[mid]):
+            fail(f"a message line is wider than the 60-character column:\n{table}")
+    # Durations print in seconds, fixed notation, three significant digits (no 7.2e-05).
+    con = sqlite3.connect(cat)
+    secs = [x for (x,) in con.execute("SELECT seconds FROM results ORDER BY seconds LIMIT 5")]
+    con.close()
+    lines = run([BIN, "query", cat, "SELECT seconds FROM results ORDER BY seconds LIMIT 5"]).stdout.splitlines()[2:7]
+    for want, line in zip(secs, lines):
+        text = line.strip()
+        if "e" in text.lower() or abs(float(text) - want) > 0.005 * want:
+            fail(f"seconds {want} shown as {text!r}")
     # Screening the finished catalogue again (the set named another way) does nothing new.
     r = run(screen_cmd(1, os.path.join(d, ".", "set.h5"), cat))
     con = sqlite3.connect(cat)
