@@ -196,9 +196,8 @@ static int final_line(const char *name, const pl_counts *c, const pl_opts *o, in
                                   stop_signal == SIGTERM ? "SIGTERM" : stop_signal == SIGINT ? "SIGINT" :
                                   stop_signal == SIGUSR1 ? "SIGUSR1" : "signal");
         else snprintf(why, sizeof why, "by the --max-seconds budget of %g s", o->max_seconds);
-        fprintf(stderr, "%s: stopped %s with %d material(s) left; to resume, run the same command again%s "
-                        "(exit status %d)\n", name, why, c->total - c->done, o->rerun ? " without --rerun" : "",
-                SCREEN_EXIT_INTERRUPTED);
+        fprintf(stderr, "%s: stopped %s with %d material(s) left; to resume, run the same command again "
+                        "(exit status %d)\n", name, why, c->total - c->done, SCREEN_EXIT_INTERRUPTED);
         return SCREEN_EXIT_INTERRUPTED;
     }
     if (strict && not_ok > 0) {

@@ -497,7 +497,8 @@ def case_identity():
         os.makedirs(stage)
         staged = os.path.join(stage, "copy.h5")
         shutil.copy(s, staged)
-        run(screen_cmd(ranks, staged, cat2, "--max-seconds", "0.5"))
+        if run(screen_cmd(ranks, staged, cat2, "--max-seconds", "0.5"), check=False).returncode != 4:
+            fail("a budget-stopped screen must exit 4 (interrupted)")
         first = q(cat2, "SELECT run_id, status FROM runs")
         if len(first) != 1 or first[0][1] != "interrupted":
             fail(f"the budget-stopped screen left runs {first}")
@@ -509,7 +510,8 @@ def case_identity():
             fail("resume did not finish the one run with 4 rows")
 
         # --rerun in a resubmitted job: the second submission resumes the run the first started.
-        run(screen_cmd(ranks, s, cat2, "--rerun", "--max-seconds", "0.5"))
+        if run(screen_cmd(ranks, s, cat2, "--rerun", "--max-seconds", "0.5"), check=False).returncode != 4:
+            fail("a budget-stopped --rerun screen must exit 4 (interrupted)")
         rid = q(cat2, "SELECT MAX(run_id) FROM runs")[0][0]
         r = run(screen_cmd(ranks, s, cat2, "--rerun"))
         if f"resuming run {rid}" not in r.stderr or "--rerun resumes" not in r.stderr:
