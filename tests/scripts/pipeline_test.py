@@ -783,26 +783,27 @@ def case_leftovers():
             fail(f"demo-set ended before its .partial file could be interrupted ({sig.name})")
         p.send_signal(sig)
         p.wait(timeout=60)
-        # pack: blocked reading a hopping table from a named pipe, after it created its .partial file.
-        fifo = os.path.join(d, f"hop-{sig.name}.dat")
-        os.mkfifo(fifo)
+        # pack: a folder of many cards (a hopping table on a named pipe is refused at once since
+        # tables must be regular files), long enough to be caught while writing its .partial file.
+        cards = os.path.join(d, f"cards-{sig.name}")
+        os.makedirs(cards)
         with open(os.path.join(DATA, "good", "graphene_gap.json")) as f:
             card = json.load(f)
-        card["hoppings"] = os.path.basename(fifo)
-        card_path = os.path.join(d, f"card-{sig.name}.json")
-        with open(card_path, "w") as f:
-            json.dump(card, f)
+        table = os.path.join(DATA, "good", card["hoppings"])
+        for i in range(3000):
+            card["id"] = f"copy-{i:05d}"
+            card["hoppings"] = table
+            with open(os.path.join(cards, f"c{i:05d}.json"), "w") as f:
+                json.dump(card, f)
         packed = os.path.join(d, f"pack-{sig.name}.h5")
-        q = subprocess.Popen([BIN, "pack", "-o", packed, card_path], env=ENV, stdout=subprocess.DEVNULL,
+        q = subprocess.Popen([BIN, "pack", "-o", packed, cards], env=ENV, stdout=subprocess.DEVNULL,
                              stderr=subprocess.DEVNULL, preexec_fn=_default_signals)
         if not _wait_for(packed + ".partial", q):
             q.kill()
             fail(f"pack did not create its .partial file ({sig.name})")
-        time.sleep(0.2)   # let it block in open() of the pipe
         q.send_signal(sig)
         q.wait(timeout=60)
-        os.unlink(fifo)
-        os.unlink(card_path)
+        shutil.rmtree(cards)
         if p.returncode != -sig or q.returncode != -sig:
             fail(f"{sig.name}: demo-set/pack did not end by the signal ({p.returncode}, {q.returncode})")
     left = sorted(f for f in os.listdir(d) if f != "set.h5")
