@@ -1,5 +1,6 @@
--- bandsieve catalogue schema, version 2 (PRAGMA user_version = 2). Version 1 files are brought
--- to version 2 by cat_open (catalogue.c, MIGRATE_1_2: the same columns added with ALTER TABLE).
+-- bandsieve catalogue schema, version 3 (PRAGMA user_version = 3). Version 1 and 2 files are
+-- brought to version 3 by cat_open (catalogue.c, MIGRATE_1_2 and MIGRATE_2_3: the same columns
+-- added with ALTER TABLE).
 -- Applied by cat_open (CAT_RW) to a new file in one transaction; embedded in the program at
 -- build time. Every table and column is documented in db/README.md.
 -- Timestamps are UTC text, ISO 8601 with milliseconds ('2026-12-02T00:31:07.123Z').
@@ -103,6 +104,16 @@ CREATE TABLE results (
     chern_k2_half   INTEGER GENERATED ALWAYS AS (CASE WHEN json_valid('[' || replace(plane_chern, ';', ',') || ']') THEN json_extract('[' || replace(plane_chern, ';', ',') || ']', '$[3]') END) VIRTUAL,
     chern_k3_0      INTEGER GENERATED ALWAYS AS (CASE WHEN json_valid('[' || replace(plane_chern, ';', ',') || ']') THEN json_extract('[' || replace(plane_chern, ';', ',') || ']', '$[4]') END) VIRTUAL,
     chern_k3_half   INTEGER GENERATED ALWAYS AS (CASE WHEN json_valid('[' || replace(plane_chern, ';', ',') || ']') THEN json_extract('[' || replace(plane_chern, ';', ',') || ']', '$[5]') END) VIRTUAL,
+    magnetism       TEXT,
+    tr_verdict      TEXT,
+    inv_verdict     TEXT,
+    tr_breaking_ev  REAL,
+    inv_breaking_ev REAL,
+    symmetrised     INTEGER,
+    restored        TEXT,
+    breaking_ev     REAL,
+    breaking_bound  TEXT,
+    symmetry_margin REAL,
     UNIQUE (run_id, material_id)
 );
 

@@ -66,7 +66,15 @@ SELECT k.material_id,
        k.content,
        p.current,
        (SELECT COUNT(DISTINCT COALESCE(o.content, '')) FROM results o
-        WHERE o.material_id = k.material_id) AS contents
+        WHERE o.material_id = k.material_id) AS contents,
+       k.magnetism,
+       k.tr_verdict,
+       k.inv_verdict,
+       k.symmetrised,
+       k.restored,
+       k.breaking_ev,
+       k.breaking_bound,
+       k.symmetry_margin
 FROM ranked p
 JOIN results k ON k.rowid = p.rid
 LEFT JOIN materials m ON m.material_id = k.material_id

@@ -84,6 +84,7 @@ static inline void bs_test_expect_same_model(const tb_model *a, const tb_model *
     assert_memory_equal(a->R, b->R, (size_t)a->nR * sizeof *a->R);
     assert_memory_equal(a->deg, b->deg, (size_t)a->nR * sizeof *a->deg);
     assert_memory_equal(a->H, b->H, (size_t)a->nR * a->norb * a->norb * sizeof *a->H);
+    assert_int_equal(a->magnetism, b->magnetism);
     assert_int_equal(a->has_inversion_op, b->has_inversion_op);
     if (a->has_inversion_op) {
         assert_memory_equal(a->inv_perm, b->inv_perm, (size_t)a->norb * sizeof *a->inv_perm);

@@ -22,6 +22,9 @@
  *   meta             optional object, free-form (any keys and values), stored as given with the
  *                    card; the place for extra information, since unknown top-level keys are
  *                    refused (with a "did you mean" suggestion for near misses)
+ *   magnetism        optional "none" | "magnetic" | "unknown" (default): the user's statement about
+ *                    the compound; "none" makes time reversal hold whatever the fit's breaking
+ *                    (it is symmetrised away and reported), "magnetic" makes it broken (no Z2)
  *   inversion        optional explicit inversion operator, one entry per basis state i (in table
  *                    order): {"maps_to": j (1-based state), "sign": +1|-1, "shift": [3 integers]}.
  *                    Meaning: P c+_{i,R} P^-1 = sign_i c+_{j,-R+shift_i}, i.e. the state i at

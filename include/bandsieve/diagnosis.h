@@ -16,8 +16,10 @@ typedef struct diag_opts {
     double max_seconds;     /* wall-clock budget for this material (0: none) */
     int want_flows;         /* keep Wannier-centre flows in the result (artifacts) */
     unsigned long long seed;/* for random verification points */
-    double symmetry_tol;    /* relative residual accepted for a symmetry (0: 1e-6; Wannier fits
-                               that were not symmetrised need ~1e-3) */
+    double symmetry_tol;    /* relative residual under which a symmetry is exact (0: 1e-6); larger
+                               breakings are measured in eV and judged against the gap */
+    double pos_tol_ang;     /* Angstrom tolerance of the inversion map from orbital centres (0: 0.05) */
+    int magnetism;          /* 0: the card's statement; 1 + TB_MAG_* overrides it for this run */
     const eig_dist *dist;   /* distributed eigensolver for large matrices (a rank group's, whose
                                members then run the diagnosis in lockstep); borrowed; NULL: LAPACK */
 } diag_opts;

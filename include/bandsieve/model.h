@@ -10,6 +10,11 @@
 
 enum { TB_SPIN_NONE = 0, TB_SPIN_BLOCKS = 1, TB_SPIN_INTERLEAVED = 2 };
 
+/* What the user states about the compound's magnetism (card key "magnetism"): unknown (detect
+ * time reversal from H), none (time reversal holds; its breaking in H is fit error), magnetic
+ * (time reversal is broken; no Z2 index). */
+enum { TB_MAG_UNKNOWN = 0, TB_MAG_NONE = 1, TB_MAG_MAGNETIC = 2 };
+
 /* The model is a plain struct because every numerical layer reads its arrays directly;
  * it is created and freed only through tb_model_create/tb_model_free.
  *
@@ -37,6 +42,7 @@ typedef struct tb_model {
     int nocc;               /* occupied bands (1..norb-1) */
     int has_fermi;
     double fermi_ev;
+    int magnetism;          /* TB_MAG_*: the card's statement, TB_MAG_UNKNOWN when it makes none */
     int has_inversion_op;   /* the card gave an explicit inversion operator */
     int *inv_perm;          /* norb: state i maps to state inv_perm[i] ... */
     double *inv_sign;       /* ... with factor inv_sign[i] (+1/-1); inv_shift below */
@@ -81,6 +87,11 @@ int tb_model_validate(const tb_model *m, double tol_ev, const char *where, bs_er
  * the index of a name for l (-1 when it is not a shape of that l). */
 const char *tb_shape_name(int l, int idx);
 int tb_shape_index(int l, const char *name);
+
+/* "unknown", "none" or "magnetic" for a TB_MAG_* value; tb_magnetism_parse is its inverse and
+ * returns -1 for any other text. */
+const char *tb_magnetism_name(int mag);
+int tb_magnetism_parse(const char *text);
 
 /* Reciprocal lattice vectors b_i (rows, 1/Angstrom, with the 2 pi) from m->lattice. */
 void tb_model_reciprocal(const tb_model *m, double b[3][3]);

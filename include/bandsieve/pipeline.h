@@ -61,6 +61,8 @@ typedef struct pl_opts {
                                    physical memory divided by the ranks on that node */
     double material_seconds;    /* budget per material; over it the row is `timeout` (0: none) */
     double symmetry_tol;        /* see diag_opts (0: default) */
+    int magnetism;              /* see diag_opts: 0 the cards' statements, 1 + TB_MAG_* for every material */
+    double pos_tol_ang;         /* see diag_opts (0: default) */
     int transport;              /* also anomalous and spin Hall conductivities (--transport) */
     int surfaces;               /* also surface crossings of nontrivial insulators (--surfaces) */
     int group_size;             /* >= 2: the last group_size ranks form a group that diagonalises

@@ -6,6 +6,16 @@
 #ifndef BANDSIEVE_RESULT_H
 #define BANDSIEVE_RESULT_H
 
+/* Verdict on one symmetry (symfit.h decides it): exact (round-off), approximate (breaking below
+ * the gap: restored by averaging), broken; NA when no operator exists (no inversion map). */
+typedef enum res_verdict { RES_SYM_NA = -1, RES_SYM_EXACT = 0, RES_SYM_APPROX = 1, RES_SYM_BROKEN = 2 } res_verdict;
+/* Bits of res_diag.restored. */
+enum { RES_RESTORED_TR = 1, RES_RESTORED_INV = 2 };
+/* "exact", "approximate", "broken", "not applicable". */
+const char *res_verdict_name(res_verdict v);
+/* The verdict of a name, or -2. */
+int res_verdict_parse(const char *name);
+
 /* Status of an index computed by one method. */
 typedef enum res_status { RES_NA = 0, RES_DONE = 1, RES_AMBIGUOUS = 2, RES_DISAGREE = 3 } res_status;
 
@@ -120,8 +130,18 @@ typedef struct res_diag {
     double k_gap_direct[3];
     double k_vbm[3], k_cbm[3];
 
-    int time_reversal, inversion;
+    int time_reversal, inversion;   /* treated as symmetries: exact, or approximate and restored */
     double tr_residual, inv_residual;
+    char magnetism[12];     /* the statement used: "none", "magnetic", "unknown" */
+    res_verdict tr_verdict, inv_verdict;
+    double tr_break_ev, tr_break_lower_ev;   /* breaking bounds in eV (symfit.h); 0 when exact */
+    double inv_break_ev, inv_break_lower_ev; /* -1 when there is no inversion map */
+    int restored;           /* RES_RESTORED_TR | RES_RESTORED_INV restored by averaging */
+    int symmetrised;        /* restored != 0 */
+    char restored_names[32];/* "time_reversal", "inversion", "time_reversal,inversion" or "" */
+    double breaking_ev;     /* 2 x estimate of max_k ||H - H_s||: the delta of the margin (0: none) */
+    char breaking_bound[16];/* which estimate: "upper bound" or "mesh x 1.5" */
+    double margin;          /* direct gap / breaking_ev when symmetrised, else INFINITY (JSON null) */
 
     res_status z2_status;   /* of the combined z2 */
     int z2[4];              /* 2D: z2[0] = nu; 3D: nu0, nu1, nu2, nu3 */

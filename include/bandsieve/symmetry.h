@@ -35,6 +35,9 @@ typedef struct sym_opts {
     unsigned long long seed;/* seed of the generator that draws them */
     double tol;             /* largest accepted relative residual (0: 1e-6, see sym_info) */
     double pos_tol;         /* reduced-coordinate tolerance when matching positions (0: 1e-3) */
+    double pos_tol_ang;     /* Cartesian tolerance in Angstrom when matching positions (0: 0.05);
+                               two positions match when either tolerance accepts them */
+    int skip_inversion;     /* 1: time reversal only (inversion fields stay empty) */
 } sym_opts;
 
 /* What sym_detect found. Residuals are relative: the largest, over the random k-points, of
@@ -65,7 +68,7 @@ typedef struct sym_info {
     char note[200];         /* why a candidate was rejected (empty when everything was found) */
 } sym_info;
 
-/* Fills o with the defaults (nk 6, seed 1, tol 1e-6, pos_tol 1e-3). */
+/* Fills o with the defaults (nk 6, seed 1, tol 1e-6, pos_tol 1e-3, pos_tol_ang 0.05). */
 void sym_opts_default(sym_opts *o);
 
 /* Detects time reversal and inversion of m (borrowed). opts may be NULL (defaults).

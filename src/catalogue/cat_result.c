@@ -92,6 +92,7 @@ static int bind_column(void *ctx, const char *column, const res_value *v)
     int i = param(pc, name);
     if (i == 0) return bs_fail(pc->err, BS_EINVAL, "results has no column \"%s\" (schema and key table disagree)", column);
     if (v->type == RES_VALUE_INT) sqlite3_bind_int64(pc->st, i, v->i);
+    else if (v->type == RES_VALUE_REAL && !isfinite(v->x)) sqlite3_bind_null(pc->st, i); /* as JSON's null */
     else if (v->type == RES_VALUE_REAL) sqlite3_bind_double(pc->st, i, v->x);
     else sqlite3_bind_text(pc->st, i, v->text, -1, SQLITE_TRANSIENT);
     return 0;

@@ -182,6 +182,20 @@ static const char MIGRATE_1_2[] =
 #undef PLANE_COL
     "PRAGMA user_version = 2;";
 
+/* Version 2 -> 3: the approximate-symmetry columns of results (db/schema.sql), NULL in old rows. */
+static const char MIGRATE_2_3[] =
+    "ALTER TABLE results ADD COLUMN magnetism TEXT;"
+    "ALTER TABLE results ADD COLUMN tr_verdict TEXT;"
+    "ALTER TABLE results ADD COLUMN inv_verdict TEXT;"
+    "ALTER TABLE results ADD COLUMN tr_breaking_ev REAL;"
+    "ALTER TABLE results ADD COLUMN inv_breaking_ev REAL;"
+    "ALTER TABLE results ADD COLUMN symmetrised INTEGER;"
+    "ALTER TABLE results ADD COLUMN restored TEXT;"
+    "ALTER TABLE results ADD COLUMN breaking_ev REAL;"
+    "ALTER TABLE results ADD COLUMN breaking_bound TEXT;"
+    "ALTER TABLE results ADD COLUMN symmetry_margin REAL;"
+    "PRAGMA user_version = 3;";
+
 /* Schema (fresh files only) and views in one immediate transaction, so two coordinators opening
  * the same new file cannot both create it. */
 static int apply_schema(cat_db *cat, bs_err *err)
@@ -200,6 +214,10 @@ static int apply_schema(cat_db *cat, bs_err *err)
         rc = cat_exec(cat, MIGRATE_1_2, err);
         if (rc != 0) bs_err_context(err, "migrating the catalogue from schema version 1 to 2: ");
     }
+    if (rc == 0 && !fresh && (cat->from_version == 1 || cat->from_version == 2)) {
+        rc = cat_exec(cat, MIGRATE_2_3, err);
+        if (rc != 0) bs_err_context(err, "migrating the catalogue from schema version 2 to 3: ");
+    }
     if (rc == 0) rc = cat_exec(cat, (const char *)cat_sql_views, err);
     if (rc == 0) return cat_exec(cat, "COMMIT", err);
     sqlite3_exec(cat->db, "ROLLBACK", NULL, NULL, NULL);
@@ -212,7 +230,8 @@ static const char *const STMT_SQL[CAT_ST_COUNT] = {
         " gap_direct_ev, gap_indirect_ev, k_gap_direct, time_reversal, inversion, z2, z2_parity, z2_wcc,"
         " z2_status, z2_note, chern, chern_status, plane_chern, n_weyl, net_chirality, nodal_line, mesh,"
         " diag_seconds, seconds, rank, finished, ahc_xy, ahc_yz, ahc_zx, ahc_units, shc_xy, shc_units,"
-        " transport_fermi_ev, diagnosis, content) VALUES ("
+        " transport_fermi_ev, diagnosis, content, magnetism, tr_verdict, inv_verdict, tr_breaking_ev, inv_breaking_ev,"
+        " symmetrised, restored, breaking_ev, breaking_bound, symmetry_margin) VALUES ("
         " :run_id, :material_id, :status, :message, :class, :confidence, :reason,"
         " :gap_direct_ev, :gap_indirect_ev, :k_gap_direct, :time_reversal, :inversion, :z2, :z2_parity, :z2_wcc,"
         " :z2_status, :z2_note, :chern, :chern_status, :plane_chern, :n_weyl, :net_chirality, :nodal_line, :mesh,"
@@ -220,7 +239,9 @@ static const char *const STMT_SQL[CAT_ST_COUNT] = {
         " :transport_fermi_ev, :diagnosis,"
         /* The content the row is about: the coordinator records each entry's content in materials
          * before handing it out (pl coord_setup), so the current one is the one computed. */
-        " (SELECT content FROM materials WHERE material_id = :material_id))",
+        " (SELECT content FROM materials WHERE material_id = :material_id),"
+        " :magnetism, :tr_verdict, :inv_verdict, :tr_breaking_ev, :inv_breaking_ev,"
+        " :symmetrised, :restored, :breaking_ev, :breaking_bound, :symmetry_margin)",
     [CAT_ST_EXISTS] = "SELECT 1 FROM results WHERE run_id = ? AND material_id = ?",
     [CAT_ST_DEL_RESULT] = "DELETE FROM results WHERE run_id = ? AND material_id = ?",
     [CAT_ST_NODE] = "INSERT INTO nodes (run_id, material_id, node, k1, k2, k3, chirality, energy_ev, gap_ev)"

@@ -15,7 +15,7 @@ static void inspect_help(FILE *out)
 {
     fprintf(out,
             "usage: bandsieve inspect SOURCE [--json] [--mesh N] [--max-seconds S] [--flows] [--transport]\n"
-            "                         [--surfaces]\n\n"
+            "                         [--surfaces] [--magnetism M] [--position-tol A] [--symmetry-tol T] [--seed S]\n\n"
             "Diagnoses one material: gaps, time reversal and inversion, Z2 from parities and from\n"
             "the Wannier-centre flow, Chern numbers, Weyl nodes and nodal lines, and a class with a\n"
             "confidence and a one-line reason.\n"
@@ -26,8 +26,13 @@ static void inspect_help(FILE *out)
             "  --max-seconds S  give up after S seconds (exit 1, status timeout)\n"
             "  --flows          include the Wannier-centre flows in the JSON (key wcc_flows)\n"
             "  --seed S         seed of the random verification k-points (default 1)\n"
-            "  --symmetry-tol T relative residual accepted when verifying time reversal and\n"
-            "                   inversion on H(k) (default 1e-6; ~1e-3 for unsymmetrised fits)\n"
+            "  --symmetry-tol T relative residual under which time reversal and inversion are exact\n"
+            "                   (default 1e-6); larger breakings are measured in eV against the gap:\n"
+            "                   approximate ones are restored by averaging, broken ones are not\n"
+            "  --magnetism M    none | magnetic | unknown: overrides the card's \"magnetism\" (none:\n"
+            "                   time reversal holds, its breaking is fit error; magnetic: no Z2)\n"
+            "  --position-tol A Angstrom tolerance of the inversion map from orbital centres\n"
+            "                   (default 0.05)\n"
             "  --transport      add the intrinsic anomalous Hall (\"ahc\") and, for spinful models,\n"
             "                   spin Hall (\"shc\") conductivities from the Berry curvature\n"
             "  --fermi E        Fermi energy for --transport (eV; default: card value, mid-gap,\n"
@@ -73,6 +78,19 @@ static void print_surface(const res_surface *s)
            s->ndirac_top);
 }
 
+/* One symmetry: its verdict, the breaking bounds when measured, the relative residual. */
+static void print_symmetry(const char *name, res_verdict verdict, double upper, double lower, double residual,
+                           int restored)
+{
+    printf("  %-22s%s", name, res_verdict_name(verdict));
+    if (verdict == RES_SYM_APPROX || verdict == RES_SYM_BROKEN)
+        printf(": breaking <= %.3g eV (>= %.3g eV on the mesh), residual %.2g%s", upper, lower, residual,
+               restored ? "; restored" : "");
+    else if (verdict == RES_SYM_EXACT)
+        printf(" (residual %.2g)", residual);
+    printf("\n");
+}
+
 static void print_report(const res_diag *r)
 {
     printf("%s  (%dD, %d states, %d occupied)\n", r->id, r->dim, r->norb, r->nocc);
@@ -81,8 +99,14 @@ static void print_report(const res_diag *r)
     printf("  direct gap            %.6f eV at k = (%.4f, %.4f, %.4f)\n", r->gap_direct_ev,
            r->k_gap_direct[0], r->k_gap_direct[1], r->k_gap_direct[2]);
     printf("  indirect gap          %.6f eV\n", r->gap_indirect_ev);
-    printf("  time reversal         %s (residual %.2g)\n", r->time_reversal ? "yes" : "no", r->tr_residual);
-    printf("  inversion             %s (residual %.2g)\n", r->inversion ? "yes" : "no", r->inv_residual);
+    print_symmetry("time reversal", r->tr_verdict, r->tr_break_ev, r->tr_break_lower_ev, r->tr_residual,
+                   r->restored & RES_RESTORED_TR);
+    print_symmetry("inversion", r->inv_verdict, r->inv_break_ev, r->inv_break_lower_ev, r->inv_residual,
+                   r->restored & RES_RESTORED_INV);
+    printf("  magnetism             %s\n", r->magnetism);
+    if (r->restored)
+        printf("  symmetrised           yes: breaking %.3g eV (%s), margin %.3g (direct gap / breaking)\n",
+               r->breaking_ev, r->breaking_bound, r->margin);
     print_indices("Z2", r->z2_status, r->z2, r->dim);
     print_indices("Z2 from parities", r->z2_parity_status, r->z2_parity, r->dim);
     print_indices("Z2 from WCC flow", r->z2_wcc_status, r->z2_wcc, r->dim);
@@ -130,6 +154,7 @@ int cmd_inspect(int argc, char **argv)
         {"transport", no_argument, NULL, 'a'}, {"fermi", required_argument, NULL, 'e'},
         {"scan", required_argument, NULL, 'n'}, {"eta", required_argument, NULL, 'E'},
         {"surfaces", no_argument, NULL, 'S'},
+        {"magnetism", required_argument, NULL, 'M'}, {"position-tol", required_argument, NULL, 'P'},
         {"help", no_argument, NULL, 'h'}, {NULL, 0, NULL, 0}};
     int json = 0, c;
     pl_diag_opts po;
@@ -179,6 +204,16 @@ int cmd_inspect(int argc, char **argv)
         case 'y':
             if (cli_parse_double(optarg, &d) || d <= 0 || d >= 1) { fprintf(stderr, "bandsieve inspect: --symmetry-tol expects a number in (0,1), got '%s'\n", optarg); return 2; }
             opts->symmetry_tol = d;
+            break;
+        case 'M': {
+            int mag = tb_magnetism_parse(optarg);
+            if (mag < 0) { fprintf(stderr, "bandsieve inspect: --magnetism expects none, magnetic or unknown, got '%s'\n", optarg); return 2; }
+            opts->magnetism = 1 + mag;
+            break;
+        }
+        case 'P':
+            if (cli_parse_double(optarg, &d) || d <= 0 || d >= 1) { fprintf(stderr, "bandsieve inspect: --position-tol expects Angstrom in (0,1), got '%s'\n", optarg); return 2; }
+            opts->pos_tol_ang = d;
             break;
         case 's':
             if (cli_parse_int(optarg, 1, 1L << 30, &v)) { fprintf(stderr, "bandsieve inspect: --seed expects a positive integer, got '%s'\n", optarg); return 2; }

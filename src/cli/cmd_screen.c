@@ -7,6 +7,7 @@
 #include <string.h>
 #include <unistd.h>
 
+#include "bandsieve/model.h"
 #include "bandsieve/config.h"
 #include "bandsieve/pipeline.h"
 #include "cliutil.h"
@@ -159,8 +160,12 @@ static void screen_help(FILE *out, int rescreen)
                  "  --material-memory M   memory one material may use (e.g. 4G; default: the node's\n"
                  "                      memory divided by the ranks on it); an entry whose estimate\n"
                  "                      is larger gets an `invalid` row saying so, before any work\n"
-                 "  --symmetry-tol T    relative residual accepted for time reversal and inversion\n"
-                 "                      (default 1e-6; ~1e-3 for fits that were not symmetrised)\n"
+                 "  --symmetry-tol T    relative residual under which time reversal and inversion are\n"
+                 "                      exact (default 1e-6); larger breakings are judged in eV\n"
+                 "                      against the gap (approximate: restored; broken: not)\n"
+                 "  --magnetism M       none | magnetic | unknown for every material, overriding the\n"
+                 "                      cards' \"magnetism\" key (default: each card's statement)\n"
+                 "  --position-tol A    Angstrom tolerance of the inversion map (default 0.05)\n"
                  "  --transport         also the intrinsic anomalous and spin Hall conductivities\n"
                  "                      (catalogue columns ahc_*, shc_xy; view top_spin_hall)\n"
                  "  --surfaces          for nontrivial insulators, also the Fermi-level crossings of\n"
@@ -215,6 +220,7 @@ static int screen_main(int argc, char **argv, int rescreen)
         {"rerun", no_argument, NULL, 'r'}, {"where", required_argument, NULL, 'w'},
         {"where-timeout", required_argument, NULL, 'W'}, {"material-memory", required_argument, NULL, 'M'},
         {"batch", required_argument, NULL, 'b'}, {"symmetry-tol", required_argument, NULL, 'y'},
+        {"magnetism", required_argument, NULL, 'N'}, {"position-tol", required_argument, NULL, 'P'},
         {"transport", no_argument, NULL, 'A'}, {"surfaces", no_argument, NULL, 'S'},
         {"group-size", required_argument, NULL, 'g'}, {"group-min-states", required_argument, NULL, 'G'}, {"progress-every", required_argument, NULL, 'p'}, {"strict", no_argument, NULL, 's'},
         {"help", no_argument, NULL, 'h'}, {NULL, 0, NULL, 0}};
@@ -261,6 +267,16 @@ static int screen_main(int argc, char **argv, int rescreen)
         case 'b':
             if (cli_parse_int(optarg, 1, 1000000, &v)) { fprintf(stderr, "%s: --batch expects a positive integer, got '%s'\n", name, optarg); return 2; }
             o.batch_rows = (int)v;
+            break;
+        case 'N': {
+            int mag = tb_magnetism_parse(optarg);
+            if (mag < 0) { fprintf(stderr, "%s: --magnetism expects none, magnetic or unknown, got '%s'\n", name, optarg); return 2; }
+            o.magnetism = 1 + mag;
+            break;
+        }
+        case 'P':
+            if (cli_parse_double(optarg, &d) || d <= 0 || d >= 1) { fprintf(stderr, "%s: --position-tol expects Angstrom in (0,1), got '%s'\n", name, optarg); return 2; }
+            o.pos_tol_ang = d;
             break;
         case 'y':
             if (cli_parse_double(optarg, &d) || d <= 0 || d >= 1) { fprintf(stderr, "%s: --symmetry-tol expects a number in (0,1), got '%s'\n", name, optarg); return 2; }

@@ -143,7 +143,7 @@ static int get_vector(const card_ctx *c, const cJSON *j, const char *key, const 
 
 static const char *const card_keys[] = {"id", "dimension", "lattice", "hoppings", "occupied_bands",
                                         "electrons", "spinful", "spin_layout", "orbitals", "formula",
-                                        "source", "fermi_energy_eV", "inversion", "comment", "meta", NULL};
+                                        "source", "fermi_energy_eV", "inversion", "magnetism", "comment", "meta", NULL};
 
 /* Edit distance (insertions, deletions, substitutions, and swaps of neighbours) between two
  * short keys, capped at 9: enough to suggest the key a typo was meant to be. */
@@ -485,6 +485,15 @@ static int read_optional(const card_ctx *c, const cJSON *root, tb_model *m)
         m->has_fermi = 1;
         m->fermi_ev = ef->valuedouble;
     }
+    const cJSON *mag = cJSON_GetObjectItemCaseSensitive(root, "magnetism");
+    if (rc == 0 && mag) {
+        int v = cJSON_IsString(mag) ? tb_magnetism_parse(mag->valuestring) : -1;
+        if (v < 0)
+            return fail_key(c, cJSON_IsString(mag) ? BS_EINVAL : BS_EPARSE, "magnetism", "magnetism", 0,
+                            "expected \"none\", \"magnetic\" or \"unknown\", found %s",
+                            cJSON_IsString(mag) ? "another string" : json_type(mag));
+        m->magnetism = v;
+    }
     const cJSON *cm = cJSON_GetObjectItemCaseSensitive(root, "comment");
     if (rc == 0 && cm && !cJSON_IsString(cm))
         return fail_key(c, BS_EPARSE, "comment", "comment", 0, "expected a string, found %s", json_type(cm));
@@ -648,6 +657,7 @@ static cJSON *card_json(const tb_model *m, const char *table_name)
     if (m->spinful)
         cJSON_AddStringToObject(root, "spin_layout", m->spin_layout == TB_SPIN_INTERLEAVED ? "interleaved" : "blocks");
     if (m->has_fermi) cJSON_AddNumberToObject(root, "fermi_energy_eV", m->fermi_ev);
+    if (m->magnetism != TB_MAG_UNKNOWN) cJSON_AddStringToObject(root, "magnetism", tb_magnetism_name(m->magnetism));
     cJSON *orb = cJSON_AddArrayToObject(root, "orbitals");
     for (int i = 0; orb && i < m->nspatial; i++) {
         cJSON *o = cJSON_CreateObject();

@@ -6,6 +6,7 @@
 #include <stdio.h>
 #include <string.h>
 
+#include "bandsieve/fitnoise.h"
 #include "bandsieve/lattice_models.h"
 #include "bandsieve/matset.h"
 
@@ -73,7 +74,7 @@ static void draw_spec(demo_rng *g, char *spec, int len)
 static int nbroken(int count) { return count / 50 > 4 ? count / 50 : 4; }
 
 void demo_entry(int i, int count, uint64_t seed, char *spec, int speclen, char *formula, int formlen,
-                int *broken)
+                int *broken, double *noise_rel, uint64_t *noise_seed)
 {
     demo_rng g = {mix(seed ^ (0x51ED2701ULL * (uint64_t)(i + 1)))};
     invent_formula(&g, formula, formlen);
@@ -81,6 +82,39 @@ void demo_entry(int i, int count, uint64_t seed, char *spec, int speclen, char *
     /* The broken entries are spread through the set, one of each kind in turn. */
     int nb = nbroken(count), stride = count / nb;
     *broken = (i % stride == stride / 2 && i / stride < nb) ? 1 + (i / stride) % 4 : 0;
+    /* Invented fit noise, drawn after the spec so that the specs of the set do not change. */
+    double u = uniform(&g, 0, 1), e = uniform(&g, -4, -3);
+    *noise_rel = !*broken && u < 0.25 ? pow(10.0, e) : 0.0;
+    g.state = mix(g.state);
+    *noise_seed = g.state;
+}
+
+int demo_model(int i, int count, uint64_t seed, tb_model **out, bs_err *err)
+{
+    *out = NULL;
+    char spec[256], formula[32];
+    int broken = 0;
+    double noise = 0;
+    uint64_t nseed = 0;
+    demo_entry(i, count, seed, spec, sizeof spec, formula, sizeof formula, &broken, &noise, &nseed);
+    tb_model *m = NULL;
+    int rc = lm_build(spec, &m, err);
+    if (rc != 0) return rc;
+    if (noise > 0) {
+        tb_model *noisy = NULL;
+        rc = fitnoise_apply(m, noise, nseed, &noisy, err);
+        tb_model_free(m);
+        if (rc != 0) return rc;
+        m = noisy;
+        snprintf(m->source, sizeof m->source, "invented demo entry with invented fit noise %.1e; model %.180s",
+                 noise, spec);
+    } else {
+        snprintf(m->source, sizeof m->source, "invented demo entry; model %.200s", spec);
+    }
+    snprintf(m->id, sizeof m->id, "JQ-%04d", i + 1);
+    snprintf(m->formula, sizeof m->formula, "%s", formula);
+    *out = m;
+    return 0;
 }
 
 /* Damages a valid model the way a bad fit or a bad export would. */
@@ -106,13 +140,16 @@ int demo_write_set(const char *path, int count, uint64_t seed, bs_err *err)
     if (rc != 0) return rc;
     char desc[512];
     snprintf(desc, sizeof desc, "INVENTED demonstration family (the fictitious Jo-Qu compounds, seed %llu, %d "
-             "entries): built-in published lattice models with drawn parameters and a few deliberately "
-             "broken entries. Not real materials.", (unsigned long long)seed, count);
+             "entries): built-in published lattice models with drawn parameters, invented fit noise (1e-4 to "
+             "1e-3 of the largest hopping) on about a quarter of them, and a few deliberately broken entries. "
+             "Not real materials.", (unsigned long long)seed, count);
     rc = ms_set_meta(set, desc, 1, err);
     for (int i = 0; rc == 0 && i < count; i++) {
         char spec[256], formula[32], id[64];
         int broken = 0;
-        demo_entry(i, count, seed, spec, sizeof spec, formula, sizeof formula, &broken);
+        double noise = 0;
+        uint64_t nseed = 0;
+        demo_entry(i, count, seed, spec, sizeof spec, formula, sizeof formula, &broken, &noise, &nseed);
         snprintf(id, sizeof id, "JQ-%04d", i + 1);
         if (broken == 4) {
             char msg[256];
@@ -122,11 +159,8 @@ int demo_write_set(const char *path, int count, uint64_t seed, bs_err *err)
             continue;
         }
         tb_model *m = NULL;
-        rc = lm_build(spec, &m, err);
+        rc = demo_model(i, count, seed, &m, err);
         if (rc != 0) break;
-        snprintf(m->id, sizeof m->id, "%s", id);
-        snprintf(m->formula, sizeof m->formula, "%s", formula);
-        snprintf(m->source, sizeof m->source, "invented demo entry; model %.200s", spec);
         if (broken) {
             damage(m, broken);
             rc = ms_add_broken(set, m, err);

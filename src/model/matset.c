@@ -426,7 +426,8 @@ static int write_attrs(hid_t g, const tb_model *m, int status)
               attr_write_int(g, "nocc", m->nocc) < 0 || attr_write_int(g, "spinful", m->spinful) < 0 ||
               attr_write_int(g, "spin_layout", m->spin_layout) < 0 ||
               attr_write_int(g, "has_fermi", m->has_fermi) < 0 || attr_write_double(g, "fermi_ev", m->fermi_ev) < 0 ||
-              attr_write_int(g, "has_inversion_op", m->has_inversion_op) < 0;
+              attr_write_int(g, "has_inversion_op", m->has_inversion_op) < 0 ||
+              attr_write_int(g, "magnetism", m->magnetism) < 0;
     return bad ? -1 : 0;
 }
 
@@ -699,6 +700,10 @@ static int read_model_attrs(hid_t g, const char *where, tb_model *m, bs_err *err
         attr_read_str(g, "formula", m->formula, sizeof m->formula) < 0 ||
         attr_read_str(g, "source", m->source, sizeof m->source) < 0)
         return read_fail(err, BS_EPARSE, "%s: attributes fermi_ev, id, formula or source missing", where);
+    /* Sets written before the key existed have no magnetism attribute: the statement is unknown. */
+    if (attr_read_int(g, "magnetism", &m->magnetism) < 0) m->magnetism = TB_MAG_UNKNOWN;
+    if (m->magnetism < TB_MAG_UNKNOWN || m->magnetism > TB_MAG_MAGNETIC)
+        return read_fail(err, BS_EPARSE, "%s: attribute 'magnetism' is %d, expected 0..2", where, m->magnetism);
     int want = m->spinful ? (m->spin_layout == TB_SPIN_BLOCKS || m->spin_layout == TB_SPIN_INTERLEAVED)
                           : m->spin_layout == TB_SPIN_NONE;
     if (!want) return bs_fail(err, BS_EPARSE, "%s: spin_layout %d does not fit spinful = %d", where, m->spin_layout,

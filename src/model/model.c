@@ -239,3 +239,17 @@ int tb_shape_index(int l, const char *name)
         if (strcmp(tb_shapes[l][i], name) == 0) return i;
     return -1;
 }
+
+const char *tb_magnetism_name(int mag)
+{
+    return mag == TB_MAG_NONE ? "none" : mag == TB_MAG_MAGNETIC ? "magnetic" : "unknown";
+}
+
+int tb_magnetism_parse(const char *text)
+{
+    if (!text) return -1;
+    if (strcmp(text, "unknown") == 0) return TB_MAG_UNKNOWN;
+    if (strcmp(text, "none") == 0) return TB_MAG_NONE;
+    if (strcmp(text, "magnetic") == 0) return TB_MAG_MAGNETIC;
+    return -1;
+}

@@ -123,6 +123,13 @@ static int gather_hosts(MPI_Comm comm, int rank, int size, char *out, size_t out
     return rc;
 }
 
+/* The per-material settings of a job. */
+static pl_task task_of(const pl_opts *o, const struct eig_dist *dist)
+{
+    pl_task t = {o->mesh, o->mesh_factor, o->symmetry_tol, o->transport, o->surfaces, dist, o->magnetism, o->pos_tol_ang};
+    return t;
+}
+
 /* The settings that decide results, normalised so that equal work matches: the mesh each
  * dimension present in the set gets (an explicit default equals the default; for a rescreen
  * without --mesh, the rule "double each entry's best"), the per-material budget when given, a
@@ -148,6 +155,8 @@ static char *settings_json(const pl_opts *o, const ms_set *set)
     if (o->material_seconds > 0) cJSON_AddNumberToObject(s, "material_seconds", o->material_seconds);
     if (o->symmetry_tol > 0 && o->symmetry_tol != PL_DEFAULT_SYMMETRY_TOL)
         cJSON_AddNumberToObject(s, "symmetry_tol", o->symmetry_tol);
+    if (o->magnetism > 0) cJSON_AddStringToObject(s, "magnetism", tb_magnetism_name(o->magnetism - 1));
+    if (o->pos_tol_ang > 0) cJSON_AddNumberToObject(s, "position_tol_A", o->pos_tol_ang);
     if (o->transport) cJSON_AddBoolToObject(s, "transport", 1);
     if (o->surfaces) cJSON_AddBoolToObject(s, "surfaces", 1);
     if (o->where_sql) cJSON_AddStringToObject(s, "where", o->where_sql);
@@ -764,7 +773,8 @@ static int run_worker(const pl_opts *o, MPI_Comm comm, MPI_Comm gcomm, pl_group 
         rc = mpi_check(MPI_Recv(&w, (int)sizeof w, MPI_BYTE, 0, TAG_WORK, comm, MPI_STATUS_IGNORE), "MPI_Recv of work", err);
         if (rc != 0) break;
         pl_outcome out;
-        pl_task task = {w.mesh > 0 ? w.mesh : o->mesh, o->mesh_factor, o->symmetry_tol, o->transport, o->surfaces, NULL};
+        pl_task task = task_of(o, NULL);
+        if (w.mesh > 0) task.mesh = w.mesh;
         if (w.group && gcomm != MPI_COMM_NULL) {
             group_cmd cmd = {1, w.index, w.mesh};
             rc = group_bcast(gcomm, &cmd, err);
@@ -807,8 +817,8 @@ static int run_member(const pl_opts *o, MPI_Comm gcomm, pl_group *group, int ran
         group_cmd cmd;
         rc = group_bcast(gcomm, &cmd, err);
         if (rc != 0 || cmd.cmd == 0) break;
-        pl_task task = {cmd.mesh > 0 ? cmd.mesh : o->mesh, o->mesh_factor, o->symmetry_tol, o->transport, o->surfaces,
-                        pl_group_solver(group)};
+        pl_task task = task_of(o, pl_group_solver(group));
+        if (cmd.mesh > 0) task.mesh = cmd.mesh;
         pl_outcome out;
         if (set) {
             pl_compute(set, cmd.index, &task, 0, rank, &out);
@@ -894,11 +904,7 @@ int pl_run(MPI_Comm user_comm, const pl_opts *o, pl_counts *counts, int *is_root
     c.memory_budget = o->material_memory > 0 ? o->material_memory : share;
     c.nworkers = size - 1 - (gsize ? gsize - 1 : 0);
     c.t0 = bs_now();
-    c.task.mesh = o->mesh;
-    c.task.mesh_factor = o->mesh_factor;
-    c.task.symmetry_tol = o->symmetry_tol;
-    c.task.transport = o->transport;
-    c.task.surfaces = o->surfaces;
+    c.task = task_of(o, NULL);
     if (rc == 0) rc = coord_setup(&c, size, hosts, err);
     int setup_ok = rc == 0;
     if (size > 1) {

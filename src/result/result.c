@@ -4,6 +4,8 @@
 #include <stdlib.h>
 
 #include "bandsieve/config.h"
+#include <math.h>
+#include <stdio.h>
 #include <string.h>
 
 static const char *const STATUS_NAMES[] = {"not applicable", "done", "ambiguous", "disagree"};
@@ -96,6 +98,27 @@ void res_init(res_diag *r)
     r->cls = RES_UNDETERMINED;
     r->z4 = -1;
     for (int i = 0; i < 4; i++) r->z2[i] = r->z2_parity[i] = r->z2_wcc[i] = -1;
+    r->tr_verdict = r->inv_verdict = RES_SYM_NA;
+    r->inv_break_ev = r->inv_break_lower_ev = -1;
+    r->margin = INFINITY;
+    snprintf(r->magnetism, sizeof r->magnetism, "unknown");
+}
+
+const char *res_verdict_name(res_verdict v)
+{
+    switch (v) {
+    case RES_SYM_EXACT: return "exact";
+    case RES_SYM_APPROX: return "approximate";
+    case RES_SYM_BROKEN: return "broken";
+    default: return "not applicable";
+    }
+}
+
+int res_verdict_parse(const char *name)
+{
+    for (int v = RES_SYM_NA; v <= RES_SYM_BROKEN; v++)
+        if (name && strcmp(name, res_verdict_name((res_verdict)v)) == 0) return v;
+    return -2;
 }
 
 void res_clear_flows(res_diag *r)

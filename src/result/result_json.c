@@ -23,6 +23,7 @@ typedef enum key_kind {
     KEY_VEC3,       /* double[3] */
     KEY_CLASS,      /* res_class by name */
     KEY_STATUS,     /* res_status by name */
+    KEY_VERDICT,    /* res_verdict by name */
     KEY_SPECIAL     /* written by the row's own function */
 } key_kind;
 
@@ -513,6 +514,18 @@ static const key_row KEYS[] = {
     {"inversion", KEY_BOOL, AT(inversion), "inversion", NULL, NULL},
     {"time_reversal_residual", KEY_NUM, AT(tr_residual), NULL, NULL, NULL},
     {"inversion_residual", KEY_NUM, AT(inv_residual), NULL, NULL, NULL},
+    {"magnetism", KEY_STR, AT(magnetism), "magnetism", NULL, NULL},
+    {"time_reversal_verdict", KEY_VERDICT, AT(tr_verdict), "tr_verdict", NULL, NULL},
+    {"inversion_verdict", KEY_VERDICT, AT(inv_verdict), "inv_verdict", NULL, NULL},
+    {"time_reversal_breaking_eV", KEY_NUM, AT(tr_break_ev), "tr_breaking_ev", NULL, NULL},
+    {"time_reversal_breaking_lower_eV", KEY_NUM, AT(tr_break_lower_ev), NULL, NULL, NULL},
+    {"inversion_breaking_eV", KEY_NUM, AT(inv_break_ev), "inv_breaking_ev", NULL, NULL},
+    {"inversion_breaking_lower_eV", KEY_NUM, AT(inv_break_lower_ev), NULL, NULL, NULL},
+    {"symmetrised", KEY_BOOL, AT(symmetrised), "symmetrised", NULL, NULL},
+    {"restored", KEY_STR, AT(restored_names), "restored", NULL, NULL},
+    {"breaking_eV", KEY_NUM, AT(breaking_ev), "breaking_ev", NULL, NULL},
+    {"breaking_bound", KEY_STR, AT(breaking_bound), "breaking_bound", NULL, NULL},
+    {"symmetry_margin", KEY_NUM, AT(margin), "symmetry_margin", NULL, NULL},
     {"z2", KEY_SPECIAL, 0, 0, NULL, w_z2, r_z2},
     {"z2_parity", KEY_SPECIAL, 0, 0, NULL, w_z2_parity, r_z2_parity},
     {"z2_wcc", KEY_SPECIAL, 0, 0, NULL, w_z2_wcc, r_z2_wcc},
@@ -564,6 +577,7 @@ static int write_row(cJSON *o, const key_row *k, const res_diag *r, int with_flo
         return cJSON_AddStringToObject(o, k->name, name ? name : res_class_name(RES_UNDETERMINED)) ? 0 : -1;
     }
     case KEY_STATUS: return cJSON_AddStringToObject(o, k->name, res_status_name(*(const res_status *)base)) ? 0 : -1;
+    case KEY_VERDICT: return cJSON_AddStringToObject(o, k->name, res_verdict_name(*(const res_verdict *)base)) ? 0 : -1;
     case KEY_SPECIAL: return k->write(o, r, with_flows);
     }
     return -1;
@@ -630,6 +644,14 @@ static int read_row(const cJSON *o, const key_row *k, res_diag *r, bs_err *err)
         if (v) *(res_status *)base = (res_status)st;
         return 0;
     }
+    case KEY_VERDICT: {
+        const cJSON *v = member(o, k->name);
+        int vd = v && cJSON_IsString(v) ? res_verdict_parse(v->valuestring) : -2;
+        if (v && vd < -1)
+            return key_fail(err, k->name, "one of \"exact\", \"approximate\", \"broken\", \"not applicable\"");
+        if (v) *(res_verdict *)base = (res_verdict)vd;
+        return 0;
+    }
     case KEY_SPECIAL: return k->read(o, r, err);
     }
     return BS_EINVAL;
@@ -690,6 +712,7 @@ int res_for_each_column(const res_diag *r, int (*fn)(void *ctx, const char *colu
         case KEY_NUM: v.type = RES_VALUE_REAL; v.x = *(const double *)base; break;
         case KEY_CLASS: v.type = RES_VALUE_TEXT; v.text = res_class_name(*(const res_class *)base); break;
         case KEY_STATUS: v.type = RES_VALUE_TEXT; v.text = res_status_name(*(const res_status *)base); break;
+        case KEY_VERDICT: v.type = RES_VALUE_TEXT; v.text = res_verdict_name(*(const res_verdict *)base); break;
         default: continue; /* structured keys have no column of their own here */
         }
         if (k->kind == KEY_BOOL) v.i = v.i != 0;

@@ -65,6 +65,11 @@ void sym_opts_default(sym_opts *o)
     /* 1e-3 reduced (a few mAngstrom): centres of unsymmetrised Wannier fits sit this far off their
      * sites (common practice); a match only proposes a map, and H(k) decides. */
     o->pos_tol = 1e-3;
+    /* 0.05 Angstrom: centres of Wannier functions that were not symmetrised sit up to a few
+     * hundredths of an Angstrom off their atoms (common practice); the reduced tolerance alone
+     * would depend on the cell size. */
+    o->pos_tol_ang = 0.05;
+    o->skip_inversion = 0;
 }
 
 static void opts_resolve(const sym_opts *in, sym_opts *o)
@@ -75,6 +80,8 @@ static void opts_resolve(const sym_opts *in, sym_opts *o)
     o->seed = in->seed;
     if (in->tol > 0) o->tol = in->tol;
     if (in->pos_tol > 0) o->pos_tol = in->pos_tol;
+    if (in->pos_tol_ang > 0) o->pos_tol_ang = in->pos_tol_ang;
+    o->skip_inversion = in->skip_inversion;
 }
 
 static double complex op_phase(const sym_op *op, int i, const double k[3])
@@ -270,21 +277,41 @@ static int build_tr(const tb_model *m, sym_op *op)
     return 0;
 }
 
+/* Tolerance for matching orbital positions: within `red` in every reduced coordinate, or within
+ * `ang` Angstrom in Cartesian distance (lattice rows `lat`), whichever is looser. */
+typedef struct site_tol {
+    double red, ang;
+    const double (*lat)[3];
+} site_tol;
+
 /* Same site modulo a lattice vector in the periodic directions, equal in the others. */
-static int same_site(const double *x, const double *y, int dim, double tol, int shift[3])
+static int same_site(const double *x, const double *y, int dim, const site_tol *tol, int shift[3])
 {
+    double rem[3];
+    int r[3], red_ok = 1;
     for (int d = 0; d < 3; d++) {
         double diff = x[d] - y[d];
-        double r = d < dim ? nearbyint(diff) : 0.0;
-        if (fabs(diff - r) > tol) return 0;
-        if (shift) shift[d] = (int)r;
+        double ri = d < dim ? nearbyint(diff) : 0.0;
+        r[d] = (int)ri;
+        rem[d] = diff - ri;
+        if (fabs(rem[d]) > tol->red) red_ok = 0;
     }
+    if (!red_ok) {
+        double cart2 = 0;
+        for (int j = 0; j < 3; j++) {
+            double cj = 0;
+            for (int d = 0; d < 3; d++) cj += rem[d] * tol->lat[d][j];
+            cart2 += cj * cj;
+        }
+        if (!(sqrt(cart2) <= tol->ang)) return 0;
+    }
+    if (shift) memcpy(shift, r, sizeof r);
     return 1;
 }
 
 /* rank[a]: how many earlier orbitals share a's site and l; used to pair the j-th orbital of a
  * shell at tau with the j-th orbital of the same shell at the image site (order of appearance). */
-static void shell_ranks(const tb_model *m, double tol, int *rank, int *size)
+static void shell_ranks(const tb_model *m, const site_tol *tol, int *rank, int *size)
 {
     int ns = m->nspatial;
     for (int a = 0; a < ns; a++) {
@@ -302,7 +329,7 @@ static void shell_ranks(const tb_model *m, double tol, int *rank, int *size)
 /* Spatial map for inversion about centre c: orbital a at tau_a goes to the orbital b of the same
  * l and shell rank at 2c - tau_a (mod lattice), with parity (-1)^l. 1 on success, 0 when some
  * orbital has no image or the map is not a bijection. */
-static int match_positions(const tb_model *m, const double c[3], double tol, const int *rank,
+static int match_positions(const tb_model *m, const double c[3], const site_tol *tol, const int *rank,
                            const int *size, int *sperm, int (*sshift)[3], int *used)
 {
     int ns = m->nspatial;
@@ -406,15 +433,16 @@ static int consider(sym_ctx *c, sym_info *s, sym_op *op, int source, const doubl
 }
 
 /* 2c equal modulo lattice vectors (in the periodic directions): centres giving the same verdict. */
-static int same_centre2(const double *c2a, const double *c2b, int dim, double tol)
+static int same_centre2(const double *c2a, const double *c2b, int dim, const site_tol *tol)
 {
-    return same_site(c2a, c2b, dim, tol, NULL);
+    site_tol twice = {2 * tol->red, 2 * tol->ang, tol->lat};
+    return same_site(c2a, c2b, dim, &twice, NULL);
 }
 
 /* Centres tried: the origin, then (tau_0 + tau_j)/2 for every j sharing orbital 0's l, skipping
  * centres equivalent to one already tried (c and c + L/2 are centres together, because inversion
  * about c + L/2 is inversion about c followed by the translation L). */
-static int inversion_from_positions(sym_ctx *c, sym_info *s, double pos_tol, bs_err *err)
+static int inversion_from_positions(sym_ctx *c, sym_info *s, const site_tol *pos_tol, bs_err *err)
 {
     const tb_model *m = c->m;
     int ns = m->nspatial, rc = 0, matched = 0;
@@ -439,7 +467,7 @@ static int inversion_from_positions(sym_ctx *c, sym_info *s, double pos_tol, bs_
             }
         }
         int seen = 0;
-        for (int t = 0; t < ntried && !seen; t++) seen = same_centre2(tried[t], c2, m->dim, 2 * pos_tol);
+        for (int t = 0; t < ntried && !seen; t++) seen = same_centre2(tried[t], c2, m->dim, pos_tol);
         if (seen) continue;
         memcpy(tried[ntried++], c2, sizeof c2);
         if (!match_positions(m, centre, pos_tol, rank, size, sperm, sshift, used)) continue;
@@ -468,7 +496,7 @@ done:
     return rc;
 }
 
-static int detect_inversion(sym_ctx *c, sym_info *s, double pos_tol, bs_err *err)
+static int detect_inversion(sym_ctx *c, sym_info *s, const site_tol *pos_tol, bs_err *err)
 {
     if (c->m->has_inversion_op) {
         sym_op op = {0};
@@ -572,7 +600,8 @@ int sym_detect(const tb_model *m, const sym_opts *opts, sym_info **out, bs_err *
     if (rc != 0) goto done;
     draw_kpoints(&c, o.seed);
     rc = detect_tr(&c, s, err);
-    if (rc == 0) rc = detect_inversion(&c, s, o.pos_tol, err);
+    site_tol st = {o.pos_tol, o.pos_tol_ang, (const double (*)[3])m->lattice};
+    if (rc == 0 && !o.skip_inversion) rc = detect_inversion(&c, s, &st, err);
     if (rc == 0 && s->time_reversal && s->inversion) s->inv_commutes_tr = inversion_commutes(s);
     if (rc == 0) {
         *out = s;

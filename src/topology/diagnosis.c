@@ -19,6 +19,7 @@
 #include "bandsieve/hk.h"
 #include "bandsieve/nodes.h"
 #include "bandsieve/parity.h"
+#include "bandsieve/symfit.h"
 #include "bandsieve/symmetry.h"
 #include "bandsieve/wilson.h"
 
@@ -32,6 +33,13 @@ typedef struct diag_ctx {
     bp_mesh *mesh;
     sym_info *sym;
     int z4;                 /* from the parity counts, -1 when not computed */
+    tb_model *ms;           /* the symmetrised model (owned), NULL when nothing was restored */
+    const tb_model *zm;     /* model of the symmetry-protected quantities: ms, or m */
+    symfit_break trb, invb;
+    int tr_exact, inv_exact;/* what sym_detect found on H itself */
+    int mag;                /* TB_MAG_* statement used: the card's, or the run's override */
+    int tr_physical;        /* time reversal broken for real: the card says so, or the breaking
+                               reaches the gap even at its lower bound, or a Chern number is nonzero */
     gaps_result gaps;
     nodes_result nodes;
 } diag_ctx;
@@ -68,19 +76,214 @@ static int default_mesh(const tb_model *m, const diag_opts *o)
     return factor * diag_default_mesh(m->dim);
 }
 
+/* A spin layout is questioned whenever time reversal is not exact (a wrong layout can leave a
+ * small residual: 0.04 for the diamond model read as spinless, whose spin-orbit coupling is weak
+ * against its hopping). Another layout is named when its relative residual is at most
+ * DIAG_LAYOUT_PASS (fit errors of 1e-2 of the largest hopping give ~0.04) and at most
+ * DIAG_LAYOUT_RATIO times the card's (so that fit noise on top of a wrong layout, which raises
+ * both, still points to the right one, and a magnetic model that happens to fit another layout
+ * less badly, as the Haldane model read as spinful does at 0.08 against 0.42, is not refused). */
+#define DIAG_LAYOUT_PASS 0.05
+#define DIAG_LAYOUT_RATIO 0.3
+
+static const char *layout_name(int spinful, int layout)
+{
+    if (!spinful) return "spinless";
+    return layout == TB_SPIN_INTERLEAVED ? "interleaved" : "blocks";
+}
+
+/* A copy of m read with another spin layout (TB_SPIN_NONE: spinless); positions of the new
+ * orbitals are those of the states they come from. Only time reversal is checked on it. */
+static int relayout(const tb_model *m, int layout, tb_model **out, bs_err *err)
+{
+    tb_model *c = NULL;
+    int rc = tb_model_copy(m, &c, err);
+    if (rc != 0) return rc;
+    int ns = layout == TB_SPIN_NONE ? m->norb : m->norb / 2;
+    double (*pos)[3] = malloc((size_t)ns * sizeof *pos);
+    int *l = malloc((size_t)ns * sizeof *l);
+    if (!pos || !l) {
+        free(pos); free(l); tb_model_free(c);
+        return bs_fail(err, BS_ENOMEM, "out of memory checking the spin layout");
+    }
+    c->spinful = layout != TB_SPIN_NONE;
+    c->spin_layout = layout;
+    c->nspatial = ns;
+    for (int o = 0; o < ns; o++) {
+        int state = tb_state_index(c, o, 0);
+        int src = m->spinful ? tb_state_orbital(m, state) : state;
+        memcpy(pos[o], m->orb_pos[src], sizeof pos[o]);
+        l[o] = m->orb_l[src];
+    }
+    free(c->orb_pos); free(c->orb_l); free(c->orb_shape);
+    c->orb_pos = pos;
+    c->orb_l = l;
+    c->orb_shape = NULL;
+    free(c->inv_perm); free(c->inv_sign); free(c->inv_shift);
+    c->inv_perm = NULL; c->inv_sign = NULL; c->inv_shift = NULL;
+    c->has_inversion_op = 0;
+    *out = c;
+    return 0;
+}
+
+/* 1 when no hopping couples opposite spins in m's layout (a collinear model without spin-orbit
+ * coupling): such a table passes spinless time reversal whatever its magnetism, so "spinless"
+ * is no evidence of a wrong card for it. */
+static int spin_diagonal(const tb_model *m)
+{
+    size_t n = (size_t)m->norb;
+    for (int r = 0; r < m->nR; r++)
+        for (size_t a = 0; a < n; a++)
+            for (size_t b = 0; b < n; b++)
+                if (tb_state_spin(m, (int)a) != tb_state_spin(m, (int)b) && m->H[(r * n + a) * n + b] != 0) return 0;
+    return 1;
+}
+
+/* Wrong spin layout: when time reversal is not exact, the other layouts are tried; one that passes
+ * makes the entry invalid (BS_EINVAL) with a message naming the layout the table looks like. */
+static int check_spin_layout(diag_ctx *c, const sym_opts *so, bs_err *err)
+{
+    const tb_model *m = c->m;
+    if (c->sym->time_reversal) return 0;
+    sym_opts tro = *so;
+    tro.skip_inversion = 1;
+    int alts[2], nalt = 0;
+    if (m->spinful) {
+        alts[nalt++] = m->spin_layout == TB_SPIN_BLOCKS ? TB_SPIN_INTERLEAVED : TB_SPIN_BLOCKS;
+        if (!spin_diagonal(m)) alts[nalt++] = TB_SPIN_NONE;
+    } else if (m->norb % 2 == 0) {
+        alts[nalt++] = TB_SPIN_BLOCKS;
+        alts[nalt++] = TB_SPIN_INTERLEAVED;
+    }
+    for (int i = 0; i < nalt; i++) {
+        tb_model *alt = NULL;
+        sym_info *s = NULL;
+        int rc = relayout(m, alts[i], &alt, err);
+        if (rc == 0) rc = sym_detect(alt, &tro, &s, err);
+        double res = s ? s->tr_residual : 1.0;
+        sym_info_free(s);
+        tb_model_free(alt);
+        if (rc != 0) return rc;
+        if (res <= DIAG_LAYOUT_PASS && res <= DIAG_LAYOUT_RATIO * c->sym->tr_residual)
+            return bs_fail(err, BS_EINVAL, "time reversal fails with the card's spin layout (%s: residual %.2g) "
+                           "but holds for %s (residual %.2g): the table looks %s; correct the card's spinful / "
+                           "spin_layout, or state \"magnetism\": \"magnetic\" if the compound breaks time reversal",
+                           layout_name(m->spinful, m->spin_layout), c->sym->tr_residual,
+                           layout_name(alts[i] != TB_SPIN_NONE, alts[i]), res,
+                           layout_name(alts[i] != TB_SPIN_NONE, alts[i]));
+    }
+    return 0;
+}
+
 static int run_symmetry(diag_ctx *c, res_diag *r, bs_err *err)
 {
     sym_opts so;
     sym_opts_default(&so);
     if (c->o && c->o->seed) so.seed = c->o->seed;
     if (c->o && c->o->symmetry_tol > 0) so.tol = c->o->symmetry_tol;
+    if (c->o && c->o->pos_tol_ang > 0) so.pos_tol_ang = c->o->pos_tol_ang;
     int rc = sym_detect(c->m, &so, &c->sym, err);
     if (rc != 0) return rc;
-    r->time_reversal = c->sym->time_reversal;
-    r->inversion = c->sym->inversion;
+    c->mag = c->o && c->o->magnetism > 0 ? c->o->magnetism - 1 : c->m->magnetism;
+    snprintf(r->magnetism, sizeof r->magnetism, "%s", tb_magnetism_name(c->mag));
+    if (c->mag != TB_MAG_MAGNETIC) rc = check_spin_layout(c, &so, err);
+    if (rc != 0) return rc;
+    r->time_reversal = c->tr_exact = c->sym->time_reversal;
+    r->inversion = c->inv_exact = c->sym->inversion;
     r->tr_residual = c->sym->tr_residual;
     r->inv_residual = c->sym->inv_residual;
     return 0;
+}
+
+/* 2 max_k ||H - H_s|| for the average over `which`: at most the sum of the breakings of the
+ * operations that are not exact (H - H_s = [(H - gH) + ...]/4 over the group, and
+ * H - P Theta H = (H - P H) + P (H - Theta H)), each taken as symfit_estimate; *bound names the
+ * estimate. This spares a third pass over the k mesh. */
+static double restored_breaking(const diag_ctx *c, int which, const char **bound)
+{
+    const char *b1 = "upper bound", *b2 = "upper bound";
+    double d = 0;
+    if ((which & SYMFIT_TR) && !c->tr_exact) d += symfit_estimate(&c->trb, &b1);
+    if ((which & SYMFIT_INV) && !c->inv_exact) d += symfit_estimate(&c->invb, &b2);
+    *bound = strcmp(b1, "upper bound") != 0 ? b1 : b2;
+    return d;
+}
+
+/* Restores the symmetries in `which` by averaging (symfit.h) into c->ms, and records the distance
+ * and the margin. Inversion whose map does not commute with time reversal's is dropped (noted). */
+static int restore(diag_ctx *c, res_diag *r, int which, bs_err *err)
+{
+    tb_model_free(c->ms);
+    c->ms = NULL;
+    int rc = symfit_symmetrise(c->m, c->sym, which, NULL, &c->ms, NULL, err);
+    if (rc == BS_EINVAL && which == (SYMFIT_TR | SYMFIT_INV)) {
+        bs_err_clear(err);
+        which = SYMFIT_TR;
+        r->inversion = c->sym->inversion = 0;
+        rc = symfit_symmetrise(c->m, c->sym, which, NULL, &c->ms, NULL, err);
+    }
+    if (rc != 0) return rc;
+    if (which & SYMFIT_TR) c->sym->time_reversal = 1;
+    if (which & SYMFIT_INV) c->sym->inversion = 1;
+    r->restored = which & ~((r->tr_verdict == RES_SYM_EXACT ? SYMFIT_TR : 0) |
+                            (r->inv_verdict == RES_SYM_EXACT ? SYMFIT_INV : 0));
+    r->symmetrised = r->restored != 0;
+    snprintf(r->restored_names, sizeof r->restored_names, "%s%s%s", r->restored & SYMFIT_TR ? "time_reversal" : "",
+             r->restored == (SYMFIT_TR | SYMFIT_INV) ? "," : "", r->restored & SYMFIT_INV ? "inversion" : "");
+    /* 2 max ||H - H_s|| is the breaking that the margin compares with the gap (symfit.h). */
+    const char *bound = NULL;
+    r->breaking_ev = restored_breaking(c, which, &bound);
+    snprintf(r->breaking_bound, sizeof r->breaking_bound, "%s", bound);
+    r->margin = r->breaking_ev > 0 ? c->gaps.gap_direct_ev / r->breaking_ev : INFINITY;
+    c->zm = c->ms;
+    return 0;
+}
+
+/* Breaking of the symmetries that are not exact, their verdicts against the direct gap (the
+ * bandwidth of the two bands when gapless), and the restoring of the approximate ones for a
+ * gapped material. The margin uses H's direct gap: Weyl's inequality bounds the gap along the
+ * straight path from H to H_s by either end's gap minus 2 max ||H - H_s||, and H's gap is the one
+ * the gap search measured (symmetry-free quantities come from H). */
+static int run_breaking(diag_ctx *c, res_diag *r, int gapless, bs_err *err)
+{
+    sym_info *s = c->sym;
+    double scale = gapless ? c->gaps.width_ev : c->gaps.gap_direct_ev;
+    int rc = 0;
+    c->trb = (symfit_break){.available = 1};
+    c->invb = (symfit_break){.available = s->inv_source != SYM_INV_NONE};
+    if (!s->time_reversal) rc = symfit_measure(c->m, s, SYMFIT_TR, NULL, &c->trb, err);
+    if (rc == 0 && !s->inversion) rc = symfit_measure(c->m, s, SYMFIT_INV, NULL, &c->invb, err);
+    if (rc != 0) return rc;
+    r->tr_break_ev = c->trb.upper_ev;
+    r->tr_break_lower_ev = c->trb.lower_ev;
+    if (c->invb.available) {
+        r->inv_break_ev = c->invb.upper_ev;
+        r->inv_break_lower_ev = c->invb.lower_ev;
+    }
+    r->tr_verdict = (res_verdict)symfit_verdict(s->time_reversal, &c->trb, scale);
+    r->inv_verdict = (res_verdict)symfit_verdict(s->inversion, &c->invb, scale);
+    int mag = c->mag;
+    /* Physical against the direct gap, zero when gapless: there any coherent breaking is real
+     * (the time-reversal-broken Weyl model's, say), however it compares with the bandwidth. */
+    double gap = gapless ? 0.0 : scale;
+    c->tr_physical = mag == TB_MAG_MAGNETIC ||
+                     (mag == TB_MAG_UNKNOWN && r->tr_verdict != RES_SYM_EXACT && symfit_physical(&c->trb, gap));
+    /* A physical breaking is a broken symmetry whatever the margin would allow. */
+    if (c->tr_physical && r->tr_verdict == RES_SYM_APPROX && mag != TB_MAG_NONE) r->tr_verdict = RES_SYM_BROKEN;
+    if (r->inv_verdict == RES_SYM_APPROX && symfit_physical(&c->invb, gap)) r->inv_verdict = RES_SYM_BROKEN;
+    int tr_holds = mag != TB_MAG_MAGNETIC && (r->tr_verdict == RES_SYM_EXACT || mag == TB_MAG_NONE ||
+                                              (r->tr_verdict == RES_SYM_APPROX && !c->tr_physical));
+    /* Inversion only adds the parity method (the flow needs time reversal alone), so it is
+     * restored only with a safe margin of its own rather than thinning the margin of the class. */
+    int inv_holds = r->inv_verdict == RES_SYM_EXACT ||
+                    (r->inv_verdict == RES_SYM_APPROX && scale >= SYMFIT_MARGIN_SAFE * symfit_estimate(&c->invb, NULL));
+    r->time_reversal = tr_holds;
+    r->inversion = inv_holds;
+    if (gapless || !tr_holds) return 0;
+    /* Averaging over the whole group {1, Theta, P, P Theta} keeps an exact partner exact. */
+    int which = 0;
+    if (!s->time_reversal || (inv_holds && !s->inversion)) which = SYMFIT_TR | (inv_holds ? SYMFIT_INV : 0);
+    return which ? restore(c, r, which, err) : 0;
 }
 
 static int run_gaps(diag_ctx *c, res_diag *r, bs_err *err)
@@ -104,7 +307,7 @@ static int run_parity(diag_ctx *c, res_diag *r, bs_err *err)
     par_opts_default(&po);
     po.dist = c->o ? c->o->dist : NULL;
     par_result pr;
-    int rc = par_z2(c->m, c->sym, &po, &pr, err);
+    int rc = par_z2(c->zm, c->sym, &po, &pr, err);
     if (rc != 0) return rc;
     if (pr.status == PAR_NA) return 0;
     r->ntrim = pr.ntrim;
@@ -131,7 +334,10 @@ static int run_wcc(diag_ctx *c, res_diag *r, bs_err *err)
     wilson_ws *w = NULL;
     wilson_z2 wz;
     memset(&wz, 0, sizeof wz);
-    int rc = wilson_create_dist(c->m, c->m->nocc, c->o ? c->o->dist : NULL, &w, err);
+    /* The flow needs time reversal only: with time reversal exact it is computed on H itself, so
+     * that restoring inversion (for the parities) leaves it untouched. */
+    const tb_model *wm = c->tr_exact ? c->m : c->zm;
+    int rc = wilson_create_dist(wm, c->m->nocc, c->o ? c->o->dist : NULL, &w, err);
     if (rc != 0) return rc;
     wilson_opts wo;
     wilson_opts_default(&wo);
@@ -227,7 +433,7 @@ static int run_nodes(diag_ctx *c, res_diag *r, bs_err *err)
     /* Only the chirality fluxes are outside the shared evaluator's count. */
     long long flux_nk = c->nodes.nk_evaluated - (bp_count(c->bp) - before);
     r->chirality_status = c->nodes.chirality_status;
-    r->nodes_tr_ok = r->time_reversal ? nodes_check_time_reversal(&c->nodes, c->m->dim, 1e-5) : 1;
+    r->nodes_tr_ok = c->tr_exact ? nodes_check_time_reversal(&c->nodes, c->m->dim, 1e-5) : 1;
     /* The node search starts from more cells than the gap search's few basins: a node it finds
      * is the true direct gap. */
     gaps_merge_nodes(&c->gaps, &c->nodes);
@@ -273,7 +479,7 @@ static void set_class(res_diag *r, res_class cls, double conf, const char *fmt, 
     va_end(ap);
 }
 
-static void classify_gapless(res_diag *r, int degenerate)
+static void classify_gapless(res_diag *r, int degenerate, int tr_exact, int inv_exact)
 {
     if (degenerate) {
         set_class(r, RES_METAL, 0.8, "the filling of %d bands splits degenerate bands over most of the zone",
@@ -289,7 +495,7 @@ static void classify_gapless(res_diag *r, int degenerate)
     for (int i = 0; i < r->nnodes; i++) nweyl += r->nodes[i].chirality != 0;
     /* With inversion and time reversal the Berry curvature vanishes (or the bands are Kramers
      * degenerate) at every k, so no Weyl node can exist (common practice). */
-    int weyl_forbidden = r->inversion && r->time_reversal;
+    int weyl_forbidden = inv_exact && tr_exact;
     if (r->dim == 3 && r->nnodes > 0 && nweyl == 0 && (r->chirality_status == RES_DONE || weyl_forbidden)) {
         set_class(r, RES_METAL, 0.5, "the gap closes at %d points of zero chirality (Dirac points%s): a semimetal, "
                   "at a phase transition or protected", r->nnodes, weyl_forbidden ? "; inversion with time "
@@ -329,29 +535,103 @@ static void classify_gapless(res_diag *r, int degenerate)
               "bands at the filling overlap in energy: indirect gap %.4g eV", r->gap_indirect_ev);
 }
 
-static void classify_insulator(res_diag *r, int kramers)
+/* What the classification needs to know about the symmetry call besides r. */
+typedef struct sym_call {
+    int tr_physical;        /* diag_ctx.tr_physical */
+    int both_readings;      /* time reversal neither approximate nor physically broken: r's Z2 (if
+                               any) is the reading of the time-reversal-restored model */
+    int spinful;            /* the model has Kramers pairs when time reversal holds */
+    double tr_fit_ev;       /* upper bound of a fit-like (incoherent, symfit.h) time-reversal
+                               breaking when the card does not say magnetic, else 0 */
+} sym_call;
+
+static void classify_no_tr(res_diag *r, const sym_call *sc, double small)
+{
+    if (r->chern_status == RES_NA) {
+        set_class(r, RES_UNDETERMINED, 0.2, "no time reversal and no Chern number computed");
+        return;
+    }
+    int any = 0;
+    for (int p = 0; p < (r->dim == 2 ? 0 : 6); p++) any |= r->plane_chern[p] != 0;
+    if (r->dim == 2) any = r->chern != 0;
+    double conf = (r->chern_status == RES_DONE ? 0.95 : 0.5) * small;
+    if (any && sc->tr_fit_ev > 0) {
+        /* A Chern number of H is exact for H, but a gap smaller than a fit-like (incoherent)
+         * breaking of time reversal says little about the material the fit describes. */
+        conf *= symfit_confidence_factor(r->gap_direct_ev / sc->tr_fit_ev);
+    }
+    if (any) {
+        if (r->dim == 2)
+            set_class(r, RES_CHERN_INSULATOR, conf, "time reversal broken, Chern number %d", r->chern);
+        else
+            set_class(r, RES_CHERN_INSULATOR, conf, "time reversal broken, plane Chern numbers %d,%d,%d,%d,%d,%d",
+                      r->plane_chern[0], r->plane_chern[1], r->plane_chern[2], r->plane_chern[3],
+                      r->plane_chern[4], r->plane_chern[5]);
+        return;
+    }
+    const char *planes = r->dim == 3 ? "s of all six planes" : "";
+    if (sc->tr_physical) {
+        if (strcmp(r->magnetism, "magnetic") == 0)
+            set_class(r, RES_TRIVIAL, conf * (r->dim == 3 ? 0.9 : 1.0),
+                      "time reversal broken (the card says magnetic), Chern number%s zero", planes);
+        else
+            set_class(r, RES_TRIVIAL, conf * (r->dim == 3 ? 0.9 : 1.0),
+                      "time reversal broken by %.3g eV (at least %.3g eV), %.2g x the direct gap: physical; Chern "
+                      "number%s zero", r->tr_break_ev, r->tr_break_lower_ev, r->tr_break_lower_ev / r->gap_direct_ev,
+                      planes);
+        return;
+    }
+    /* Between the regimes: the breaking may be fit error or physical. Both readings are given;
+     * a label only where they agree (spinless: no Z2 either way; or a trivial restored Z2). */
+    if (!sc->both_readings && sc->spinful) {
+        set_class(r, RES_UNDETERMINED, 0.2, "time reversal broken by %.3g eV (at least %.3g eV) against a direct gap of "
+                  "%.3g eV: fit error or physical, and the Chern number%s could not be settled", r->tr_break_ev,
+                  r->tr_break_lower_ev, r->gap_direct_ev, planes);
+        return;
+    }
+    if (!sc->both_readings) {
+        set_class(r, RES_TRIVIAL, 0.6 * small, "time reversal broken by %.3g eV (at least %.3g eV) against "
+                  "a direct gap of %.3g eV: fit error or physical, the Chern number%s zero and no Z2 index "
+                  "(spinless) make it trivial either way", r->tr_break_ev, r->tr_break_lower_ev, r->gap_direct_ev, planes);
+        return;
+    }
+    char reading[96] = "the Z2 of the restored model could not be determined";
+    int done = r->z2_status == RES_DONE;
+    int trivial = done && r->z2[0] == 0 && (r->dim == 2 || !(r->z2[1] || r->z2[2] || r->z2[3]));
+    if (done && r->dim == 2)
+        snprintf(reading, sizeof reading, "Z2 = %d of the restored model (%s)", r->z2[0],
+                 r->z2[0] ? "2D topological insulator" : "trivial insulator");
+    else if (done)
+        snprintf(reading, sizeof reading, "Z2 = %d;%d%d%d of the restored model%s", r->z2[0], r->z2[1], r->z2[2],
+                 r->z2[3], trivial ? " (trivial)" : "");
+    set_class(r, trivial ? RES_TRIVIAL : RES_UNDETERMINED, trivial ? 0.6 * small : 0.3,
+              "time reversal broken by %.3g eV (at least %.3g eV) against a direct gap of %.3g eV: if fit error, "
+              "%s; if physical, Chern number%s zero (trivial); state \"magnetism\" on the card to decide",
+              r->tr_break_ev, r->tr_break_lower_ev, r->gap_direct_ev, reading, planes);
+}
+
+static int any_chern(const res_diag *r)
+{
+    if (r->chern_status == RES_NA) return 0;
+    if (r->dim == 2) return r->chern != 0;
+    for (int p = 0; p < 6; p++)
+        if (r->plane_chern[p] != 0) return 1;
+    return 0;
+}
+
+static void classify_insulator(res_diag *r, int kramers, const sym_call *sc)
 {
     double small = r->gap_indirect_ev < 5e-3 ? 0.7 : 1.0;
     if (!r->time_reversal) {
-        if (r->chern_status == RES_NA) {
-            set_class(r, RES_UNDETERMINED, 0.2, "no time reversal and no Chern number computed");
-            return;
-        }
-        int any = 0;
-        for (int p = 0; p < (r->dim == 2 ? 0 : 6); p++) any |= r->plane_chern[p] != 0;
-        if (r->dim == 2) any = r->chern != 0;
-        double conf = (r->chern_status == RES_DONE ? 0.95 : 0.5) * small;
-        if (any) {
-            if (r->dim == 2)
-                set_class(r, RES_CHERN_INSULATOR, conf, "time reversal broken, Chern number %d", r->chern);
-            else
-                set_class(r, RES_CHERN_INSULATOR, conf, "time reversal broken, plane Chern numbers %d,%d,%d,%d,%d,%d",
-                          r->plane_chern[0], r->plane_chern[1], r->plane_chern[2], r->plane_chern[3],
-                          r->plane_chern[4], r->plane_chern[5]);
-        } else {
-            set_class(r, RES_TRIVIAL, conf * (r->dim == 3 ? 0.9 : 1.0),
-                      "time reversal broken, Chern number%s zero", r->dim == 3 ? "s of all six planes" : "");
-        }
+        classify_no_tr(r, sc, small);
+        return;
+    }
+    if (any_chern(r)) {
+        /* A nonzero Chern number of H is symmetry-free: the restored time reversal was not there. */
+        double f = sc->tr_fit_ev > 0 ? symfit_confidence_factor(r->gap_direct_ev / sc->tr_fit_ev) : 1.0;
+        set_class(r, RES_CHERN_INSULATOR, (r->chern_status == RES_DONE ? 0.9 : 0.5) * small * f,
+                  "Chern number%s nonzero although time reversal looked approximate (breaking %.3g eV)",
+                  r->dim == 3 ? "s of some planes" : "", r->tr_break_ev);
         return;
     }
     if (!kramers) {
@@ -546,6 +826,101 @@ static int run_crystal(diag_ctx *c, res_diag *r, int kramers, bs_err *err)
     return rc;
 }
 
+static void append_reason(res_diag *r, const char *fmt, ...) __attribute__((format(printf, 2, 3)));
+
+static void append_reason(res_diag *r, const char *fmt, ...)
+{
+    size_t used = strlen(r->reason);
+    va_list ap;
+    va_start(ap, fmt);
+    vsnprintf(r->reason + used, sizeof r->reason - used, fmt, ap);
+    va_end(ap);
+}
+
+/* A class built on restored symmetries: its confidence falls with the margin (symfit.h), and the
+ * reason says what was restored and how thin the margin is. */
+static void apply_margin(res_diag *r)
+{
+    if (!r->restored || !r->time_reversal) return;
+    const char *what = r->restored == (SYMFIT_TR | SYMFIT_INV) ? "time reversal and inversion" :
+                       r->restored == SYMFIT_TR ? "time reversal" : "inversion";
+    /* Only inversion restored and the flow done on H with exact time reversal: the class does not
+     * rest on the restored symmetry (a parity disagreement would have made it undetermined). */
+    if (!(r->restored == SYMFIT_INV && r->z2_wcc_status == RES_DONE))
+        r->confidence *= symfit_confidence_factor(r->margin);
+    append_reason(r, "; %s restored: breaking %.2g eV against the direct gap %.3g eV (margin %.3g%s)", what,
+                  r->breaking_ev, r->gap_direct_ev, r->margin,
+                  r->margin < SYMFIT_MARGIN_SAFE ? ", thin: the symmetric reading is not certain" : "");
+    if (strcmp(r->magnetism, "none") == 0 && (r->restored & SYMFIT_TR) && r->margin < SYMFIT_MARGIN_SAFE)
+        append_reason(r, "; the card says non-magnetic, but the time-reversal breaking is not small against the gap");
+}
+
+/* A fit whose fit-like symmetry breaking reaches this relative residual (||gH - H|| / ||H|| at
+ * random k; 5% of the Hamiltonian) gets margin 1 for its gapless call; ordinary fits (1e-3) are
+ * untouched. Our choice, stated in the reason. */
+#define DIAG_FIT_RESIDUAL 0.05
+
+static int incoherent(const symfit_break *b)
+{
+    return b->available && b->upper_ev > 0 && b->lower_ev < SYMFIT_COHERENT_RATIO * b->upper_ev;
+}
+
+/* A gapless call on a fit whose symmetry breaking is fit-like (incoherent, symfit.h) and not small
+ * against the band overlap may be an artefact of the fit: restoring those symmetries can open the
+ * gap. When it does, the call's confidence falls with gap(H_s) / breaking as a restored class's
+ * does with its margin, and the reason says so. A coherent (physical) breaking, a real Weyl
+ * model's, is left alone. The extra gap search runs only in that case. */
+static int check_gapless_artefact(diag_ctx *c, res_diag *r, bs_err *err)
+{
+    int which = 0;
+    double fit = 0;
+    if (!c->tr_exact && c->mag != TB_MAG_MAGNETIC && incoherent(&c->trb)) {
+        which |= SYMFIT_TR;
+        fit = symfit_estimate(&c->trb, NULL);
+    }
+    if (!c->inv_exact && incoherent(&c->invb)) {
+        which |= SYMFIT_INV;
+        fit = fmax(fit, symfit_estimate(&c->invb, NULL));
+    }
+    if (!which || !(r->gap_direct_ev < BS_GAP_CLOSED_EV || -r->gap_indirect_ev < 10 * SYMFIT_MARGIN_SAFE * fit))
+        return 0;
+    tb_model *ms = NULL;
+    hk_engine *hk = NULL;
+    const char *bound;
+    int rc = symfit_symmetrise(c->m, c->sym, which, NULL, &ms, NULL, err);
+    double moved = 0.5 * restored_breaking(c, which, &bound);
+    if (rc == BS_EINVAL) { /* maps that do not commute: nothing to compare with */
+        bs_err_clear(err);
+        return 0;
+    }
+    gaps_result g;
+    gaps_opts go;
+    gaps_opts_init(&go);
+    go.deadline = c->deadline;
+    if (rc == 0) rc = hk_create(ms, 64, &hk, err);
+    if (rc == 0) rc = gaps_find(ms, hk, &go, &g, err);
+    if (rc == 0) r->nk_evaluated += g.nk_evaluated;
+    if (rc == 0 && !g.closed && !g.metallic && moved > 0) {
+        double margin = g.gap_direct_ev / (2 * moved);
+        r->confidence *= symfit_confidence_factor(margin);
+        append_reason(r, "; restoring the fit-like symmetry breaking (%.2g eV) opens a gap of %.3g eV: possibly an "
+                      "artefact of the fit", 2 * moved, g.gap_direct_ev);
+    } else if (rc == 0) {
+        /* Gapless either way: the call stands unless the fit's error is a sizeable part of H
+         * itself (its relative residual against DIAG_FIT_RESIDUAL, margin counted as for a gap). */
+        double rho = fmax(which & SYMFIT_TR ? r->tr_residual : 0, which & SYMFIT_INV ? r->inv_residual : 0);
+        double margin = rho > 0 ? DIAG_FIT_RESIDUAL / rho : INFINITY;
+        if (margin < 10 * SYMFIT_MARGIN_SAFE) {
+            r->confidence *= symfit_confidence_factor(margin);
+            append_reason(r, "; the fit breaks its symmetries by %.2g of H (relative residual): features of the "
+                          "gapless bands may not be resolved", rho);
+        }
+    }
+    hk_free(hk);
+    tb_model_free(ms);
+    return rc;
+}
+
 static void append_small_gap_note(res_diag *r)
 {
     if (!res_class_is_insulator(r->cls)) return;
@@ -572,13 +947,13 @@ int diag_run(const tb_model *m, const diag_opts *opts, res_diag *r, bs_err *err)
     r->nocc = m->nocc;
     r->mesh = default_mesh(m, opts);
 
+    c.zm = m;
     /* Batches shrink for large materials, so that memory grows as n^2 x (batch), not 64 n^2. */
     int rc = hk_create(m, diag_batch(m->norb), &c.hk, err);
     if (rc == 0) rc = run_symmetry(&c, r, err);
     if (rc == 0) rc = run_gaps(&c, r, err);
-    int gapless = 0, kramers = 0, searched = 0;
+    int gapless = 0, kramers = 0, searched = 0, direct_open = 0;
     if (rc == 0) {
-        kramers = r->time_reversal && c.sym->tr_squared == -1;
         /* In 3D a small refined gap may hide Weyl nodes between the gap search's basins: search for
          * nodes whenever the gap is below 2% of the two bands' width (or closed). */
         double suspicious = fmax(BS_GAP_CLOSED_EV, 0.02 * c.gaps.width_ev);
@@ -588,11 +963,34 @@ int diag_run(const tb_model *m, const diag_opts *opts, res_diag *r, bs_err *err)
         }
     }
     if (rc == 0) {
-        int direct_open = !c.gaps.closed;
+        direct_open = !c.gaps.closed;
         gapless = c.gaps.closed || c.gaps.metallic;
+        rc = run_breaking(&c, r, !direct_open, err);
+    }
+    sym_call sc = {0, 0, m->spinful, 0};
+    if (rc == 0) {
+        /* Symmetry-protected quantities on c.zm (the restored model when one was built), the
+         * symmetry-free ones (gaps, nodes, Chern numbers) on m as given. */
+        kramers = r->time_reversal && c.sym->tr_squared == -1;
         if (direct_open && kramers && r->inversion) rc = run_parity(&c, r, err);
         if (rc == 0 && direct_open && kramers) rc = run_wcc(&c, r, err);
-        if (rc == 0 && direct_open && !r->time_reversal) rc = run_chern(&c, r, err);
+        /* A thin margin is checked against the symmetry-free Chern number, which must vanish if
+         * the restored time reversal describes H. */
+        int thin = (r->restored & SYMFIT_TR) && r->margin < SYMFIT_MARGIN_SAFE;
+        if (rc == 0 && direct_open && (!r->time_reversal || thin)) rc = run_chern(&c, r, err);
+        sc.tr_physical = c.tr_physical;
+        if (!c.tr_exact && c.mag != TB_MAG_MAGNETIC && c.trb.lower_ev < SYMFIT_COHERENT_RATIO * c.trb.upper_ev)
+            sc.tr_fit_ev = symfit_estimate(&c.trb, NULL);
+        if (rc == 0 && direct_open && !r->time_reversal && !c.tr_physical && m->spinful &&
+            r->chern_status == RES_DONE && !any_chern(r)) {
+            /* Between the regimes: the reading "fit error" needs the Z2 of the restored model. */
+            rc = restore(&c, r, SYMFIT_TR | (r->inversion ? SYMFIT_INV : 0), err);
+            if (rc == 0 && c.sym->tr_squared == -1) {
+                sc.both_readings = 1;
+                if (r->inversion) rc = run_parity(&c, r, err);
+                if (rc == 0) rc = run_wcc(&c, r, err);
+            }
+        }
         if (rc == 0 && r->wcc_gap_closed) {
             /* The strings found a closing that the gap mesh missed: trust the finer probe. */
             gapless = 1;
@@ -602,9 +1000,11 @@ int diag_run(const tb_model *m, const diag_opts *opts, res_diag *r, bs_err *err)
     take_gaps(&c.gaps, r);
     if (rc == 0) {
         combine_z2(r);
-        if (gapless) classify_gapless(r, c.nodes.degenerate);
-        else classify_insulator(r, kramers);
-        rc = run_crystal(&c, r, kramers, err);
+        if (gapless) classify_gapless(r, c.nodes.degenerate, c.tr_exact, c.inv_exact);
+        else classify_insulator(r, kramers, &sc);
+        apply_margin(r);
+        if (gapless) rc = check_gapless_artefact(&c, r, err);
+        if (rc == 0) rc = run_crystal(&c, r, kramers, err);
         append_small_gap_note(r);
     }
     if (c.bp) r->nk_evaluated += bp_count(c.bp);
@@ -613,6 +1013,7 @@ int diag_run(const tb_model *m, const diag_opts *opts, res_diag *r, bs_err *err)
     bp_mesh_free(c.mesh);
     bp_free(c.bp);
     sym_info_free(c.sym);
+    tb_model_free(c.ms);
     hk_free(c.hk);
     return rc;
 }

@@ -264,6 +264,54 @@ static void test_open_refuses_foreign_files(void **state)
     tmp_remove(&t);
 }
 
+/* A version-2 catalogue (before the approximate-symmetry columns) is migrated when opened for
+ * writing: the columns appear, old rows keep NULL there, and new rows fill them. */
+static void test_migrate_v2(void **state)
+{
+    (void)state;
+    tmpdir t;
+    tmp_make(&t);
+    cat_db *cat = open_rw(t.cat);
+    int64_t run = begin(cat, &RUN_A);
+    put_ok(cat, run, "old", "trivial insulator", 0.9, 1.0, "[0,0,0,0]", 8);
+    close_ok(cat);
+    sqlite3 *db = NULL;
+    assert_int_equal(sqlite3_open(t.cat, &db), SQLITE_OK);
+    static const char *const cols[] = {"magnetism", "tr_verdict", "inv_verdict", "tr_breaking_ev", "inv_breaking_ev",
+                                       "symmetrised", "restored", "breaking_ev", "breaking_bound", "symmetry_margin"};
+    assert_int_equal(sqlite3_exec(db, "DROP VIEW IF EXISTS conflicts; DROP VIEW candidates; DROP VIEW top_spin_hall; DROP VIEW surfaces; DROP VIEW summary;",
+                                  NULL, NULL, NULL), SQLITE_OK);
+    for (size_t i = 0; i < sizeof cols / sizeof cols[0]; i++) {
+        char sql[128];
+        snprintf(sql, sizeof sql, "ALTER TABLE results DROP COLUMN %s", cols[i]);
+        if (sqlite3_exec(db, sql, NULL, NULL, NULL) != SQLITE_OK) fail_msg("%s: %s", sql, sqlite3_errmsg(db));
+    }
+    assert_int_equal(sqlite3_exec(db, "PRAGMA user_version = 2", NULL, NULL, NULL), SQLITE_OK);
+    sqlite3_close(db);
+    bs_err err;
+    bs_err_clear(&err);
+    cat = NULL;
+    assert_int_equal(cat_open(t.cat, CAT_RO, &cat, &err), 0); /* read as it is */
+    assert_int_equal(q_int(cat, "PRAGMA user_version"), 2);
+    close_ok(cat);
+    cat = open_rw(t.cat);
+    assert_int_equal(q_int(cat, "PRAGMA user_version"), CAT_SCHEMA_VERSION);
+    char buf[2048];
+    snprintf(buf, sizeof buf, "{\"id\":\"new\",\"class\":\"strong topological insulator\",\"confidence\":0.9,"
+             "\"reason\":\"invented\",\"gap_direct_eV\":0.5,\"magnetism\":\"none\",\"time_reversal_verdict\":\"approximate\","
+             "\"inversion_verdict\":\"exact\",\"time_reversal_breaking_eV\":0.01,\"inversion_breaking_eV\":0,"
+             "\"symmetrised\":true,\"restored\":\"time_reversal\",\"breaking_eV\":0.01,"
+             "\"breaking_bound\":\"mesh x 1.5\",\"symmetry_margin\":50,\"mesh\":8}");
+    put_text(cat, run, "new", CAT_RES_OK, NULL, buf);
+    assert_int_equal(cat_flush(cat, &err), 0);
+    dump d;
+    q(cat, "SELECT material_id, COALESCE(magnetism, 'NULL'), COALESCE(tr_verdict, 'NULL'), COALESCE(restored, 'NULL'), "
+           "COALESCE(symmetry_margin, 'NULL') FROM summary ORDER BY material_id", &d);
+    assert_string_equal(d.text, "new|none|approximate|time_reversal|50.0\nold|NULL|NULL|NULL|NULL\n");
+    close_ok(cat);
+    tmp_remove(&t);
+}
+
 /* ---- results ---- */
 
 static void test_put_and_read_back(void **state)
@@ -1119,6 +1167,13 @@ static void test_inspect_output_round_trip(void **state)
         snprintf(expect, sizeof expect, "%s|%s|%d|%d\n", cJSON_GetObjectItem(j, "class")->valuestring, z2_text,
                  cJSON_GetArraySize(cJSON_GetObjectItem(j, "weyl_nodes")), cJSON_GetObjectItem(j, "mesh")->valueint);
         assert_string_equal(d.text, expect);
+        /* the symmetry verdicts and the statement, as the program wrote them */
+        snprintf(sql, sizeof sql, "SELECT tr_verdict, inv_verdict, magnetism, symmetrised FROM results WHERE material_id = '%s'", id);
+        q(cat, sql, &d);
+        snprintf(expect, sizeof expect, "%s|%s|%s|%d\n", cJSON_GetObjectItem(j, "time_reversal_verdict")->valuestring,
+                 cJSON_GetObjectItem(j, "inversion_verdict")->valuestring, cJSON_GetObjectItem(j, "magnetism")->valuestring,
+                 cJSON_IsTrue(cJSON_GetObjectItem(j, "symmetrised")));
+        assert_string_equal(d.text, expect);
         /* nodes: the stored chiralities add up to the program's net chirality */
         snprintf(sql, sizeof sql, "SELECT COALESCE(SUM(chirality), 0) FROM nodes WHERE material_id = '%s'", id);
         assert_int_equal(q_int(cat, sql), cJSON_GetObjectItem(j, "net_chirality")->valueint);
@@ -1165,7 +1220,7 @@ int main(void)
 {
     const struct CMUnitTest tests[] = {
         cmocka_unit_test(test_schema_applies),
-        cmocka_unit_test(test_open_refuses_foreign_files),
+        cmocka_unit_test(test_open_refuses_foreign_files), cmocka_unit_test(test_migrate_v2),
         cmocka_unit_test(test_put_and_read_back),
         cmocka_unit_test(test_struct_and_flows),
         cmocka_unit_test(test_missing_keys_and_failures),

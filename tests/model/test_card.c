@@ -90,6 +90,7 @@ static void test_round_trip(void **state)
         /* Values no decimal text holds exactly, so that the round trip is exercised at 17 digits. */
         m->lattice[0][1] = 1.0 / 3.0;
         m->fermi_ev = M_PI;
+        m->magnetism = c == 0 ? TB_MAG_NONE : TB_MAG_MAGNETIC;
         char path[512];
         bs_err err;
         bs_err_clear(&err);
@@ -136,6 +137,7 @@ static void test_broken_cards(void **state)
     expect_broken("orbital_l.json", BS_EINVAL, "orbital_l.json:42: key 'orbitals[2].l'", "found 4");
     expect_broken("lattice_singular.json", BS_EINVAL, "lattice_singular.json:6: key 'lattice'", "dependent");
     expect_broken("table_truncated.json", BS_EPARSE, "table_truncated.json:23:", "truncated_hop.dat:14:");
+    expect_broken("bad_magnetism.json", BS_EINVAL, "bad_magnetism.json:47: key 'magnetism'", "another string");
     expect_broken("no_such_card.json", BS_EIO, "no_such_card.json", "cannot open");
 }
 

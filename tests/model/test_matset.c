@@ -90,6 +90,8 @@ static void write_set(const char *path, tb_model **models)
     models[1] = load_card(BS_TEST_DATA "/good/graphene_spinful.json", 0);
     models[2] = random_model("random-1", 11);
     models[3] = random_model("random-2", 12);
+    models[1]->magnetism = TB_MAG_NONE; /* the statement survives the set (stored as an attribute) */
+    models[3]->magnetism = TB_MAG_MAGNETIC;
     tb_model *broken = load_card(BS_TEST_DATA "/broken/nonhermitian.json", CARD_NO_VALIDATE);
     bs_err err;
     bs_err_clear(&err);

@@ -248,8 +248,26 @@ def case_query_rescreen():
     con.close()
     if not want3 or any(got[m] != 28 for m in want3):
         fail(f"a rescreen without --mesh did not win for the 3D entries: {got}")
+    # The demo's entries with invented fit noise (the only ones whose time reversal is approximate:
+    # the clean models have it exact or broken for real) are restored by averaging where gapped; a
+    # rescreen stating "magnetic" for them gives no Z2 and records the statement.
+    con = sqlite3.connect(cat)
+    rows = con.execute("SELECT material_id, symmetrised FROM summary WHERE status = 'ok' "
+                       "AND tr_verdict = 'approximate'").fetchall()
+    con.close()
+    noisy = {mid for mid, _ in rows}
+    if not noisy or not any(sym == 1 for _, sym in rows):
+        fail(f"no demo entry with approximate time reversal was symmetrised: {rows}")
+    where = "material_id IN (" + ",".join(f"'{m}'" for m in sorted(noisy)) + ")"
+    run(["mpirun", "-n", "2", "--oversubscribe", BIN, "rescreen", s, "-c", cat, "--magnetism", "magnetic",
+         "--where", where])
+    con = sqlite3.connect(cat)
+    rows = con.execute("SELECT material_id, magnetism, z2, symmetrised FROM summary WHERE " + where).fetchall()
+    con.close()
+    if any(mag != "magnetic" or z2 is not None or sym != 0 for _, mag, z2, sym in rows):
+        fail(f"rescreen --magnetism magnetic: {rows}")
     print(f"ok: writes refused ({before} bytes unchanged in rows); rescreens of {len(want)} and {len(want3)} "
-          "entries win")
+          f"entries win; {len(noisy)} noisy entries measured, restated as magnetic by a rescreen")
 
 
 def kill_part_way(cmd, cat, rows):
@@ -338,7 +356,8 @@ def case_surfaces_transport():
     """screen --surfaces --transport stores the extra evidence, and it obeys the published
     correspondences: a 2D TI ribbon has an odd number of edge crossings per edge (Phys. Rev. Lett.
     95, 226801 (2005)); a 2D Chern insulator has sigma_xy = C e^2/h (Phys. Rev. Lett. 49, 405
-    (1982)); with time reversal sigma_xy = 0 (common practice)."""
+    (1982)); with exact time reversal sigma_xy = 0 (common practice; an approximate one, a noisy
+    fit's, leaves a sigma_xy of the noise's order)."""
     d = fresh("surfaces")
     s = make_set(d, 24, seed=2026)
     cat = os.path.join(d, "cat.sqlite")
@@ -348,7 +367,7 @@ def case_surfaces_transport():
     want = {m for (m,) in con.execute("SELECT material_id FROM summary WHERE class IN ('strong topological "
                                       "insulator', 'weak topological insulator', '2D topological insulator', "
                                       "'Chern insulator')")}
-    hall = con.execute("SELECT s.material_id, s.class, r.chern, r.ahc_xy, r.time_reversal FROM summary s JOIN results r "
+    hall = con.execute("SELECT s.material_id, s.class, r.chern, r.ahc_xy, r.tr_verdict = 'exact' FROM summary s JOIN results r "
                        "USING (run_id, material_id) WHERE s.status = 'ok' AND r.ahc_xy IS NOT NULL").fetchall()
     con.close()
     if {r[0] for r in rows} != want or not want:

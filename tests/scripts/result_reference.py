@@ -151,7 +151,7 @@ def main():
     compare(ref, new, "", errors)
     if errors:
         print(f"FAIL: {len(errors)} differences from the reference; the first ones:")
-        for e in errors[:40]:
+        for e in errors[:int(os.environ.get("BS_REF_SHOW", "40"))]:
             print("  ", e)
         sys.exit(1)
     print("ok:", len(ref["inspect"]), "inspect outputs and",

@@ -15,6 +15,7 @@
 #include <string.h>
 
 #include "bandsieve/diagnosis.h"
+#include "bandsieve/symfit.h"
 #include "bandsieve/lattice_models.h"
 #include "bandsieve/transform.h"
 
@@ -101,8 +102,13 @@ static void test_bhz(void **state)
     res_clear(&r);
     expect_class("bhz:M=-1", "trivial insulator", &r);
     res_clear(&r);
+    /* delta breaks inversion by 2 delta = 0.1 eV (||delta s_y tau_y - P(.)P|| = 2 delta), far below
+     * the gap: inversion is approximate, restored by averaging, and the parities agree. */
     expect_class("bhz:M=1,delta=0.05", "2D topological insulator", &r);
-    assert_int_equal(r.inversion, 0);
+    assert_int_equal(r.inv_verdict, RES_SYM_APPROX);
+    assert_true(fabs(r.inv_break_lower_ev - 0.1) < 1e-9);
+    assert_int_equal(r.restored, RES_RESTORED_INV); /* time reversal was exact, not restored */
+    assert_int_equal(r.z2_parity_status, RES_DONE);
     res_clear(&r);
     expect_class("bhz:M=1,g=0.3", "2D topological insulator", &r);
     res_clear(&r);
@@ -280,8 +286,9 @@ static void test_basis_invariance(void **state)
 }
 
 /* A fit that breaks inversion slightly (a staggered potential of 1e-5 eV on Kane–Mele, far inside
- * the TI phase) loses the parity method at the default tolerance and keeps it at a looser one; the
- * class is the same either way (Phys. Rev. Lett. 95, 226801 (2005): lambda_v << 3 sqrt3 lambda_SO). */
+ * the TI phase): at the default tolerance inversion is approximate (breaking 2e-5 eV against a gap
+ * of ~0.3 eV) and restored, at a looser one exact; the parity method applies and the class is the
+ * same either way (Phys. Rev. Lett. 95, 226801 (2005): lambda_v << 3 sqrt3 lambda_SO). */
 static void test_symmetry_tolerance(void **state)
 {
     (void)state;
@@ -296,8 +303,12 @@ static void test_symmetry_tolerance(void **state)
     assert_int_equal(diag_run(m, &o, &strict, &err), 0);
     o.symmetry_tol = 1e-3;
     assert_int_equal(diag_run(m, &o, &loose, &err), 0);
-    assert_int_equal(strict.inversion, 0);
-    assert_int_equal(strict.z2_parity_status, RES_NA);
+    assert_int_equal(strict.inversion, 1);
+    assert_int_equal(strict.inv_verdict, RES_SYM_APPROX);
+    assert_true(strict.restored & RES_RESTORED_INV);
+    assert_int_equal(strict.z2_parity_status, RES_DONE);
+    assert_int_equal(loose.inv_verdict, RES_SYM_EXACT);
+    assert_int_equal(loose.restored, 0);
     assert_int_equal(loose.inversion, 1);
     assert_int_equal(loose.z2_parity_status, RES_DONE);
     assert_string_equal(res_class_name(strict.cls), "2D topological insulator");
