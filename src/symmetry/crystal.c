@@ -550,7 +550,34 @@ static void rmap_clear(rmap *r)
     memset(r, 0, sizeof *r);
 }
 
-/* Block of R, added when new; NULL when full (the caller sized it). */
+/* Doubles the capacity of r and rebuilds its slots; -1 when out of memory. */
+static int rmap_grow(rmap *r)
+{
+    int cap = 2 * r->cap, hcap = 2 * r->hcap;
+    size_t blk = (size_t)r->norb * r->norb;
+    int(*R)[3] = realloc(r->R, (size_t)cap * sizeof *R);
+    if (!R) return -1;
+    r->R = R;
+    double complex *h = realloc(r->h, (size_t)cap * blk * sizeof *h);
+    if (!h) return -1;
+    memset(h + (size_t)r->cap * blk, 0, (size_t)(cap - r->cap) * blk * sizeof *h);
+    r->h = h;
+    int *slot = malloc((size_t)hcap * sizeof *slot);
+    if (!slot) return -1;
+    for (int i = 0; i < hcap; i++) slot[i] = -1;
+    for (int q = 0; q < r->n; q++) {
+        unsigned k = rhash(r->R[q]) & (unsigned)(hcap - 1);
+        while (slot[k] >= 0) k = (k + 1) & (unsigned)(hcap - 1);
+        slot[k] = q;
+    }
+    free(r->slot);
+    r->slot = slot;
+    r->cap = cap;
+    r->hcap = hcap;
+    return 0;
+}
+
+/* Block of R, added when new (the table grows as needed); NULL when out of memory. */
 static double complex *rmap_block(rmap *r, const int R[3])
 {
     unsigned h = rhash(R) & (unsigned)(r->hcap - 1);
@@ -559,7 +586,10 @@ static double complex *rmap_block(rmap *r, const int R[3])
         if (q[0] == R[0] && q[1] == R[1] && q[2] == R[2]) return r->h + (size_t)r->slot[h] * r->norb * r->norb;
         h = (h + 1) & (unsigned)(r->hcap - 1);
     }
-    if (r->n == r->cap) return NULL;
+    if (r->n == r->cap) {
+        if (rmap_grow(r) != 0) return NULL;
+        return rmap_block(r, R);
+    }
     r->slot[h] = r->n;
     memcpy(r->R[r->n], R, sizeof r->R[0]);
     return r->h + (size_t)r->n++ * r->norb * r->norb;
@@ -601,7 +631,7 @@ static int apply_op(const tb_model *m, const cry_info *c, int iop, double weight
                 for (int x = 0; x < 3; x++) Rp[x] = WR[x] - Ls[i][x] + Ls[j][x];
                 double complex *blk = rmap_block(out, Rp);
                 if (!blk) {
-                    rc = bs_fail(err, BS_ENOMEM, "symmetrisation: lattice-vector table full");
+                    rc = bs_fail(err, BS_ENOMEM, "out of memory (symmetrisation)");
                     break;
                 }
                 /* D is column-major: D[a + i n] = D_ai; only the image shells are nonzero */
@@ -634,7 +664,7 @@ int cry_breaking_ev(const tb_model *m, const cry_info *c, int iop, double *bound
     for (int r = 0; rc == 0 && r < m->nR; r++) {
         double complex *blk = rmap_block(&gm, m->R[r]);
         if (!blk) {
-            rc = bs_fail(err, BS_ENOMEM, "symmetry breaking: lattice-vector table full");
+            rc = bs_fail(err, BS_ENOMEM, "out of memory (symmetry breaking)");
             break;
         }
         for (size_t e = 0; e < (size_t)n * n; e++) blk[e] -= m->H[(size_t)r * n * n + e] / m->deg[r];
