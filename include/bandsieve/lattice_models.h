@@ -76,6 +76,13 @@
  *             E = -2t sum cos k_i +- sqrt(delta^2/4 + v^2): both bands 12t (8t) wide and only
  *             2 sqrt(delta^2/4 + v^2) apart, so they overlap and the Fermi level crosses both.
  *             Defaults t = 1, delta = 1, v = 0.2: metal (direct gap 1.08 eV, indirect gap negative).
+ * rashba      square lattice, one s orbital at the origin, spinful, 1 of 2 bands filled:
+ *             H = -2t (cos kx + cos ky) + lambda_R (s_x sin ky - s_y sin kx), the lattice form of the
+ *             Rashba electron gas of Phys. Rev. Lett. 92, 126603 (2004). Bands
+ *             -2t (cos kx + cos ky) +- lambda_R sqrt(sin^2 kx + sin^2 ky); bottom -4t - lambda_R^2/(4t)
+ *             near Gamma. Defaults t = 1, lambda_R = 0.05: a metal whose intrinsic spin Hall
+ *             conductivity is e/8pi whenever both bands are occupied near the band bottom (the
+ *             source's continuum result, independent of lambda_R and the density).
  *
  * The references above are cited for the Hamiltonians; the phase statements are analytic results of
  * those papers (or, where marked, of the lattice forms chosen here). */

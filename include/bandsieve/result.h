@@ -73,6 +73,12 @@ typedef enum res_fermi_source {
 /* Velocity gauge of a transport result (see transport.h). */
 typedef enum res_gauge { RES_GAUGE_POSITION = 0, RES_GAUGE_LATTICE = 1 } res_gauge;
 
+/* What stopped a transport integration before its tolerance was met. */
+typedef enum res_limit { RES_LIMIT_NONE = 0, RES_LIMIT_BUDGET = 1, RES_LIMIT_DEPTH = 2 } res_limit;
+
+/* "none", "k-point budget", "depth limit"; "unknown" for a bad value. */
+const char *res_limit_name(int limit);
+
 /* "given", "card", "midgap", "filling"; "unknown" for a bad value. */
 const char *res_fermi_source_name(int source);
 /* "position", "lattice". */
@@ -96,10 +102,20 @@ typedef struct res_transport {
     long long nk;                     /* H(k) evaluations, including the Fermi-energy pre-pass */
     long long ncells;                 /* cells of the final partition */
     int depth;                        /* deepest refinement reached */
-    int converged;                    /* total error estimate <= tol */
+    int converged;                    /* total error estimate <= tol (unresolved Fermi cells included) */
+    int limit;                        /* RES_LIMIT_*: what stopped it when not converged */
     double tol;                       /* the tolerance used (output units) */
     double err_total;                 /* the refinement's scalar total error estimate */
     double min_gap_ev;                /* smallest E_nocc - E_(nocc-1) seen */
+    /* Fermi surface (cells whose band window may hold one of the Fermi energies, transport.c):
+     * the smallest distance in energy from a crossing band to the nearest other band there (the
+     * split between two Fermi sheets, eV), the same over the band velocity (the sheets' distance
+     * in reduced k: the smallest feature), the finest such cell's width (reduced k), and the cells
+     * left unresolved (at the depth limit or when the budget ended; where all their points saw a
+     * zero integrand, their error is raised to their volume times the largest integrand seen).
+     * HUGE_VAL where there is no such cell. */
+    long long fs_cells, fs_open;
+    double fs_split_ev, fs_feature, fs_finest_cell;
     double eta_ev, smear_ev;
     int gauge;                        /* RES_GAUGE_* */
 } res_transport;

@@ -43,6 +43,9 @@
 
 enum { TR_GAUGE_POSITION = RES_GAUGE_POSITION, TR_GAUGE_LATTICE = RES_GAUGE_LATTICE };
 
+/* What stopped the refinement before the tolerance was met. */
+enum { TR_LIMIT_NONE = RES_LIMIT_NONE, TR_LIMIT_BUDGET = RES_LIMIT_BUDGET, TR_LIMIT_DEPTH = RES_LIMIT_DEPTH };
+
 /* Where the reference Fermi energy came from. */
 enum {
     TR_FERMI_GIVEN = RES_FERMI_GIVEN,

@@ -100,6 +100,13 @@ static const lm_param RS_PARAMS[RS_N] = {
     [RS_LAYOUT] = LM_LAYOUT,
 };
 
+static const lm_param RA_PARAMS[RA_N] = {
+    [RA_T] = {"t", 1.0, "nearest-neighbour hopping (eV), dispersion -2t (cos kx + cos ky)", 0, LM_ANY},
+    [RA_LR] = {"lambda_R", 0.05, "Rashba coupling (eV), lambda_R (s_x sin ky - s_y sin kx)", 0, LM_ANY},
+    [RA_A] = LM_LATT(1.0),
+    [RA_LAYOUT] = LM_LAYOUT,
+};
+
 typedef int (*lm_builder)(const double *p, const char *spec, tb_model **out, bs_err *err);
 
 static const lm_info LM_MODELS[] = {
@@ -127,11 +134,15 @@ static const lm_info LM_MODELS[] = {
     {"rocksalt_tci", NULL, "rock-salt p-orbital model of a topological crystalline insulator, spinful",
      "Nat. Commun. 3, 982 (2012) (parameters from memory)", 3, 1,
      "topological crystalline insulator: Z2 = 0;000, |mirror Chern| = 2 on {110}", RS_N, RS_PARAMS},
+    {"rashba", NULL, "square-lattice two-dimensional electron gas with Rashba spin-orbit coupling",
+     "Phys. Rev. Lett. 92, 126603 (2004)", 2, 1,
+     "metal; spin Hall conductivity e/8pi with both spin-split bands occupied", RA_N, RA_PARAMS},
 };
 
 static const lm_builder LM_BUILDERS[] = {
     lm_build_graphene, lm_build_haldane, lm_build_kane_mele, lm_build_bhz, lm_build_fkm,
     lm_build_weyl, lm_build_nodal_line, lm_build_atomic, lm_build_metal, lm_build_rocksalt_tci,
+    lm_build_rashba,
 };
 
 #define LM_COUNT ((int)(sizeof LM_MODELS / sizeof LM_MODELS[0]))

@@ -82,6 +82,7 @@ int lm_build_nodal_line(const double *p, const char *spec, tb_model **out, bs_er
 int lm_build_atomic(const double *p, const char *spec, tb_model **out, bs_err *err);
 int lm_build_metal(const double *p, const char *spec, tb_model **out, bs_err *err);
 int lm_build_rocksalt_tci(const double *p, const char *spec, tb_model **out, bs_err *err);
+int lm_build_rashba(const double *p, const char *spec, tb_model **out, bs_err *err);
 
 /* Parameter indices, in catalogue order. */
 enum { GR_T, GR_A, GR_N };
@@ -94,5 +95,6 @@ enum { NL_T, NL_M, NL_TZ, NL_A, NL_N };
 enum { AT_DELTA, AT_T, AT_DIM, AT_A, AT_LAYOUT, AT_N };
 enum { ME_T, ME_DELTA, ME_V, ME_DIM, ME_A, ME_N };
 enum { RS_M, RS_T12, RS_T11, RS_L1, RS_L2, RS_A, RS_LAYOUT, RS_N };
+enum { RA_T, RA_LR, RA_A, RA_LAYOUT, RA_N };
 
 #endif

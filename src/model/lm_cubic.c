@@ -11,6 +11,8 @@ static const char WEYL_REF[] = "two-band Weyl semimetal on a cubic lattice (comm
 static const char NODAL_REF[] = "two-band nodal-line semimetal on a cubic lattice (common practice form)";
 static const char ATOMIC_REF[] = "two-sublattice atomic-limit insulator (common practice form)";
 static const char METAL_REF[] = "two-band cubic-lattice metal (common practice form)";
+static const char RASHBA_REF[] = "Rashba two-dimensional electron gas, square-lattice form of the "
+                                 "continuum model of Phys. Rev. Lett. 92, 126603 (2004)";
 
 #define PAULI(i) (&lm_pauli[i][0][0])
 
@@ -133,6 +135,25 @@ int lm_build_metal(const double *p, const char *spec, tb_model **out, bs_err *er
     const int *axes[3] = {R_X, R_Y, R_Z};
     for (int i = 0; i < dim; i++) lm_acc_matrix(&acc, axes[i], -p[ME_T], NULL, PAULI(0));
     rc = lm_acc_finish(&acc, dim, 1, spec, "two-band metal model", METAL_REF, out);
+done:
+    lm_acc_clear(&acc);
+    return rc;
+}
+
+int lm_build_rashba(const double *p, const char *spec, tb_model **out, bs_err *err)
+{
+    lm_acc acc;
+    int rc = cubic_init(&acc, 2, p[RA_A], 1, 1, (int)p[RA_LAYOUT], err);
+    if (rc != 0) goto done;
+    /* -2t (cos kx + cos ky) + lambda_R (s_x sin ky - s_y sin kx): near k = 0 the continuum
+     * p^2/2m + (lambda/hbar)(s_x p_y - s_y p_x) of the source with 1/2m = t a^2, lambda = lambda_R a.
+     * Time reversal (i s_y K) holds; inversion is broken by the odd sines. */
+    const double complex one[1] = {1.0};
+    lm_acc_matrix(&acc, R_X, -p[RA_T], lm_pauli[0], one);
+    lm_acc_matrix(&acc, R_Y, -p[RA_T], lm_pauli[0], one);
+    lm_acc_matrix(&acc, R_Y, p[RA_LR] / (2.0 * I), lm_pauli[1], one);
+    lm_acc_matrix(&acc, R_X, -p[RA_LR] / (2.0 * I), lm_pauli[2], one);
+    rc = lm_acc_finish(&acc, 2, 1, spec, "Rashba electron gas model", RASHBA_REF, out);
 done:
     lm_acc_clear(&acc);
     return rc;

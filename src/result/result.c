@@ -65,6 +65,16 @@ const char *res_fermi_source_name(int source)
     return source >= 0 && source < 4 ? FERMI_SOURCE_NAMES[source] : "unknown";
 }
 
+const char *res_limit_name(int limit)
+{
+    switch (limit) {
+    case RES_LIMIT_NONE: return "none";
+    case RES_LIMIT_BUDGET: return "k-point budget";
+    case RES_LIMIT_DEPTH: return "depth limit";
+    default: return "unknown";
+    }
+}
+
 const char *res_gauge_name(int gauge)
 {
     return GAUGE_NAMES[gauge == RES_GAUGE_LATTICE];

@@ -177,6 +177,16 @@ static int w_transport(cJSON *o, const res_diag *r, int f)
              cJSON_AddNumberToObject(tr, "eta_eV", t->eta_ev) && cJSON_AddNumberToObject(tr, "smear_eV", t->smear_ev) &&
              cJSON_AddStringToObject(tr, "gauge", res_gauge_name(t->gauge)) &&
              cJSON_AddNumberToObject(tr, "min_gap_eV", t->min_gap_ev);
+    /* What limits the result: the Fermi-surface cells (transport.c); null where there were none. */
+    cJSON *fs = ok ? cJSON_AddObjectToObject(tr, "fermi_surface") : NULL;
+    ok = fs && cJSON_AddNumberToObject(fs, "cells", (double)t->fs_cells) &&
+         cJSON_AddNumberToObject(fs, "unresolved_cells", (double)t->fs_open) &&
+         cJSON_AddStringToObject(fs, "limited_by", res_limit_name(t->limit));
+    const char *fkey[3] = {"smallest_split_eV", "smallest_feature", "finest_cell"};
+    const double fval[3] = {t->fs_split_ev, t->fs_feature, t->fs_finest_cell};
+    for (int i = 0; ok && i < 3; i++)
+        ok = isfinite(fval[i]) ? cJSON_AddNumberToObject(fs, fkey[i], fval[i]) != NULL
+                               : cJSON_AddNullToObject(fs, fkey[i]) != NULL;
     return ok ? 0 : -1;
 }
 
@@ -467,6 +477,22 @@ static int r_transport(const cJSON *o, res_diag *r, bs_err *err)
     for (int i = 0; i < 4; i++)
         if (!strcmp(source, res_fermi_source_name(i))) t->fermi_source = i;
     t->gauge = !strcmp(gauge, res_gauge_name(RES_GAUGE_LATTICE)) ? RES_GAUGE_LATTICE : RES_GAUGE_POSITION;
+    t->fs_split_ev = t->fs_feature = t->fs_finest_cell = HUGE_VAL;
+    const cJSON *fs = member(tr, "fermi_surface");
+    if (fs) {
+        char limit[24] = "";
+        double cells = 0, open = 0;
+        bad |= !cJSON_IsObject(fs) || read_num(fs, "cells", &cells, &inner) ||
+               read_num(fs, "unresolved_cells", &open, &inner) || read_str(fs, "limited_by", limit, sizeof limit, &inner) ||
+               read_num(fs, "smallest_split_eV", &t->fs_split_ev, &inner) ||
+               read_num(fs, "smallest_feature", &t->fs_feature, &inner) ||
+               read_num(fs, "finest_cell", &t->fs_finest_cell, &inner);
+        if (bad) return key_fail(err, "transport", "a \"fermi_surface\" object of numbers and a \"limited_by\" name");
+        t->fs_cells = (long long)cells;
+        t->fs_open = (long long)open;
+        for (int i = 0; i < 3; i++)
+            if (!strcmp(limit, res_limit_name(i))) t->limit = i;
+    }
     r->has_transport = 1;
     return 0;
 }

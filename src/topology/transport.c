@@ -44,6 +44,26 @@
 /* Initial cells evaluated per call (bounds the point buffers). */
 #define TR_INIT_CHUNK 256
 
+/* Fermi-surface cells. Every point of a cell lies within hw_i / 2 along each axis of one of the
+ * rule's points (the offsets 0, L2, L5, L3 and the pairs cover the box in that sense, in 2D and
+ * 3D), so a band's energy over the cell lies within [min E_q - M, max E_q + M] over the points q,
+ * M = sum_i max|dE/dk_i| hw_i / 2, with the largest reduced band velocity at the points standing in
+ * for the maximum over the cell and TR_FS_SAFETY widening M for what lies between them. A cell
+ * whose window may hold a Fermi energy is refined, whatever its sampled integrand, until the
+ * window is below TR_FS_FRAC of the band's distance to its nearest other band at those points
+ * (the split between two Fermi sheets, e.g. the Rashba shell: a cell is then narrower than the
+ * shell), but not below TR_FS_FLOOR_EV (or the smearing): splits smaller than that are reported,
+ * not resolved.
+ * Bands closer than TR_DEGEN_EV are one degenerate level (their pair terms cancel or are dropped). */
+#define TR_FS_SAFETY 1.5
+#define TR_FS_FRAC 0.5
+#define TR_FS_FLOOR_EV 1e-3
+#define TR_DEGEN_EV 1e-6
+
+/* Heap key of a Fermi-surface cell that is not yet resolved: above any error estimate, larger
+ * cells first. */
+#define TR_FS_KEY 1e100
+
 /* Operators: Cartesian v_x, v_y, v_z and the spin current j^{s_z}_x. */
 enum { OP_VX = 0, OP_VY = 1, OP_VZ = 2, OP_JX = 3, NOP = 4 };
 
@@ -60,6 +80,7 @@ typedef struct tr_ws {
     double eta2, smear;
     double fermi[TR_MAX_FERMI];
     double jac[3][3];               /* jac[i][c] = a_i[c] / (2 pi) */
+    double jinv[3][3];              /* jinv[c][i] = dk_c / dk_i (Cartesian per reduced) */
     double unit[4];                 /* per component: output units per (reduced volume x Omega) */
     double *spin;                   /* n: +1 up, -1 down */
     double (*rc)[3];                /* n Cartesian positions, Angstrom */
@@ -118,6 +139,11 @@ static int set_geometry(tr_ws *w, bs_err *err)
                            a[1][0], a[1][1], a[1][2]);
         w->unit[0] = 2 * M_PI / area; /* component 0: AHC xy; component 1: SHC */
         w->unit[1] = M_PI / area;
+        double det = w->jac[0][0] * w->jac[1][1] - w->jac[0][1] * w->jac[1][0];
+        w->jinv[0][0] = w->jac[1][1] / det;
+        w->jinv[0][1] = -w->jac[1][0] / det;
+        w->jinv[1][0] = -w->jac[0][1] / det;
+        w->jinv[1][1] = w->jac[0][0] / det;
         return 0;
     }
     double vol = fabs(a[0][0] * (a[1][1] * a[2][2] - a[1][2] * a[2][1]) -
@@ -127,6 +153,14 @@ static int set_geometry(tr_ws *w, bs_err *err)
         return bs_fail(err, BS_EINVAL, "transport: expected a cell volume > 0, found %g A^3", vol);
     for (int c = 0; c < 3; c++) w->unit[c] = TR_E2_HBAR_S_ANG_PER_CM / vol;
     w->unit[3] = 0.5 * TR_E2_HBAR_S_ANG_PER_CM / vol;
+    /* Inverse of jac by cofactors: jinv[c][i] = cof(jac)[i][c] / det. */
+    double (*J)[3] = w->jac, det = 0;
+    for (int c = 0; c < 3; c++) det += J[0][c] * (J[1][(c + 1) % 3] * J[2][(c + 2) % 3] - J[1][(c + 2) % 3] * J[2][(c + 1) % 3]);
+    for (int i = 0; i < 3; i++)
+        for (int c = 0; c < 3; c++) {
+            int i1 = (i + 1) % 3, i2 = (i + 2) % 3, c1 = (c + 1) % 3, c2 = (c + 2) % 3;
+            w->jinv[c][i] = (J[i1][c1] * J[i2][c2] - J[i1][c2] * J[i2][c1]) / det;
+        }
     return 0;
 }
 
@@ -290,8 +324,26 @@ static void fermi_values(tr_ws *w, double *val)
     }
 }
 
-/* Values (nv per point) at np reduced points k[3j..]. */
-static int eval_points(tr_ws *w, int np, const double *k, double *val, bs_err *err)
+/* Band energies and reduced band velocities |dE_n/dk_i| (from the diagonal of the Cartesian
+ * velocities in the eigenbasis, dE/dk_i = sum_c v_c dk_c/dk_i) of one point into b: n x (1 + dim). */
+static void band_data(const tr_ws *w, double *b)
+{
+    int n = w->n, d = w->dim;
+    size_t n2 = (size_t)n * n;
+    for (int p = 0; p < n; p++) {
+        double *o = b + (size_t)p * (1 + d);
+        o[0] = w->E[p];
+        for (int i = 0; i < d; i++) {
+            double g = 0;
+            for (int c = 0; c < d; c++) g += creal(w->V[c * n2 + (size_t)p * (n + 1)]) * w->jinv[c][i];
+            o[1 + i] = fabs(g);
+        }
+    }
+}
+
+/* Values (nv per point) at np reduced points k[3j..]; band data (band_data, n (1 + dim) per point)
+ * into band unless NULL. */
+static int eval_points(tr_ws *w, int np, const double *k, double *val, double *band, bs_err *err)
 {
     int n = w->n;
     size_t n2 = (size_t)n * n;
@@ -312,6 +364,7 @@ static int eval_points(tr_ws *w, int np, const double *k, double *val, bs_err *e
             to_eigenbasis(w, H);
             pair_terms(w);
             fermi_values(w, val + (size_t)(start + j) * w->nv);
+            if (band) band_data(w, band + (size_t)(start + j) * w->n * (1 + w->dim));
         }
         w->nk += nb;
     }
@@ -392,9 +445,16 @@ typedef struct tr_cell {
     double c[3], hw[3];
     unsigned char level[3];    /* halvings along each axis */
     signed char split;         /* axis to halve next, -1 when every axis is at the depth limit */
+    signed char fs;            /* FS_NONE, FS_RESOLVED, FS_OPEN (may hold a Fermi crossing) */
     int alive;                 /* 0 once refined */
     double err;                /* largest component error of the cell, output units */
+    double key;                /* heap key: err, or above every err while fs == FS_OPEN */
+    double fs_split;           /* FS cells: smallest distance (eV) of a crossing band to another */
+    double fs_feature;         /* FS cells: that distance over the band velocity, reduced k */
+    double pmax;               /* largest |integrand| at the cell's points (any component) */
 } tr_cell;
+
+enum { FS_NONE = 0, FS_RESOLVED = 1, FS_OPEN = 2 };
 
 typedef struct tr_mesh {
     tr_cell *cell;
@@ -402,7 +462,8 @@ typedef struct tr_mesh {
     long long ncell, cap;
     int *heap;                 /* refinable cells, max-heap on err */
     long long nheap;
-    double *k, *pv;            /* points and point values of one round */
+    double *k, *pv, *pb;       /* points, point values and band data of one round */
+    double *vscale;            /* nv: largest |integrand| seen at any point (per unit volume) */
     long long kcap;
     int npt;                   /* points per cell */
     double (*off)[3];          /* npt offsets in units of hw */
@@ -418,6 +479,8 @@ static void mesh_clear(tr_mesh *g)
     free(g->heap);
     free(g->k);
     free(g->pv);
+    free(g->pb);
+    free(g->vscale);
     free(g->off);
     free(g->grp);
 }
@@ -488,7 +551,7 @@ static void heap_push(tr_mesh *g, int ci)
     long long i = g->nheap++;
     while (i > 0) {
         long long p = (i - 1) / 2;
-        if (g->cell[g->heap[p]].err >= g->cell[ci].err) break;
+        if (g->cell[g->heap[p]].key >= g->cell[ci].key) break;
         g->heap[i] = g->heap[p];
         i = p;
     }
@@ -501,9 +564,9 @@ static int heap_pop(tr_mesh *g)
     long long i = 0;
     for (;;) {
         long long l = 2 * i + 1, r = l + 1, b = i;
-        double eb = g->cell[last].err;
-        if (l < g->nheap && g->cell[g->heap[l]].err > eb) b = l, eb = g->cell[g->heap[l]].err;
-        if (r < g->nheap && g->cell[g->heap[r]].err > eb) b = r;
+        double eb = g->cell[last].key;
+        if (l < g->nheap && g->cell[g->heap[l]].key > eb) b = l, eb = g->cell[g->heap[l]].key;
+        if (r < g->nheap && g->cell[g->heap[r]].key > eb) b = r;
         if (b == i) break;
         g->heap[i] = g->heap[b];
         i = b;
@@ -531,6 +594,72 @@ static int split_axis(int d, int nv, const double *pa, const tr_cell *cl, int ma
     return best;
 }
 
+/* Distance from band p to the nearest band that is not degenerate with it, at one point (n bands
+ * of band data b, stride st); HUGE_VAL when there is none. */
+static double band_split(const double *b, int n, int st, int p)
+{
+    double e = b[(size_t)p * st], best = HUGE_VAL;
+    for (int q = p + 1; q < n; q++)
+        if (b[(size_t)q * st] - e > TR_DEGEN_EV) {
+            best = b[(size_t)q * st] - e;
+            break;
+        }
+    for (int q = p - 1; q >= 0; q--)
+        if (e - b[(size_t)q * st] > TR_DEGEN_EV) {
+            if (e - b[(size_t)q * st] < best) best = e - b[(size_t)q * st];
+            break;
+        }
+    return best;
+}
+
+/* Fermi-surface status of a cell from the band data pb of its npt points (centre first): see
+ * TR_FS_SAFETY. Sets cl->fs, fs_split and fs_feature; an open cell is halved along the axis that
+ * adds most to its energy window (the integrand may be zero at every point, so its differences
+ * cannot choose), among the axes below max_depth. */
+static void fermi_cell(const tr_ws *w, const double *pb, int npt, int max_depth, tr_cell *cl)
+{
+    double axis_w[3] = {0, 0, 0};
+    int n = w->n, d = w->dim, st = 1 + d;
+    double floor_ev = w->smear > TR_FS_FLOOR_EV ? w->smear : TR_FS_FLOOR_EV;
+    cl->fs = FS_NONE;
+    cl->fs_split = HUGE_VAL;
+    cl->fs_feature = HUGE_VAL;
+    for (int p = 0; p < n; p++) {
+        double lo = pb[(size_t)p * st], hi = lo, gmax[3] = {0, 0, 0};
+        for (int q = 0; q < npt; q++) {
+            const double *b = pb + ((size_t)q * n + p) * st;
+            lo = fmin(lo, b[0]);
+            hi = fmax(hi, b[0]);
+            for (int i = 0; i < d; i++) gmax[i] = fmax(gmax[i], b[1 + i]);
+        }
+        double M = 0, gnorm = 0;
+        for (int i = 0; i < d; i++) {
+            M += gmax[i] * cl->hw[i];
+            gnorm += gmax[i] * gmax[i];
+        }
+        M *= 0.5 * TR_FS_SAFETY;
+        lo -= M;
+        hi += M;
+        int crosses = 0;
+        for (int e = 0; e < w->nE && !crosses; e++) crosses = w->fermi[e] >= lo && w->fermi[e] <= hi;
+        if (!crosses) continue;
+        double split = HUGE_VAL;
+        for (int q = 0; q < npt; q++) split = fmin(split, band_split(pb + (size_t)q * n * st, n, st, p));
+        double eres = fmax(TR_FS_FRAC * split, floor_ev);
+        int open = hi - lo >= eres;
+        if (open || cl->fs == FS_NONE) cl->fs = open ? FS_OPEN : FS_RESOLVED;
+        if (open)
+            for (int i = 0; i < d; i++) axis_w[i] = fmax(axis_w[i], gmax[i] * cl->hw[i]);
+        cl->fs_split = fmin(cl->fs_split, split);
+        if (gnorm > 0) cl->fs_feature = fmin(cl->fs_feature, split / sqrt(gnorm));
+    }
+    if (cl->fs != FS_OPEN || cl->split < 0) return;
+    int best = -1;
+    for (int i = 0; i < d; i++)
+        if (cl->level[i] < max_depth && (best < 0 || axis_w[i] > axis_w[best] * (1 + 1e-9))) best = i;
+    cl->split = (signed char)best;
+}
+
 /* Evaluates cells first..first+count-1 (already placed): value, error and the next split axis. */
 static int eval_cells(tr_ws *w, tr_mesh *g, long long first, long long count, int max_depth,
                       bs_err *err)
@@ -538,13 +667,20 @@ static int eval_cells(tr_ws *w, tr_mesh *g, long long first, long long count, in
     int d = w->dim, per = g->npt, nv = w->nv;
     long long np = count * per;
     if (np > INT_MAX) return bs_fail(err, BS_EINVAL, "transport: %lld points in one round", np);
+    size_t nb = (size_t)w->n * (1 + d);
     if (np > g->kcap) {
         double *k = realloc(g->k, 3 * (size_t)np * sizeof *k);
         if (k) g->k = k;
         double *pv = k ? realloc(g->pv, (size_t)np * nv * sizeof *pv) : NULL;
         if (pv) g->pv = pv;
-        if (!pv) return bs_fail(err, BS_ENOMEM, "transport: %lld k-points: out of memory", np);
+        double *pb = pv ? realloc(g->pb, (size_t)np * nb * sizeof *pb) : NULL;
+        if (pb) g->pb = pb;
+        if (!pb) return bs_fail(err, BS_ENOMEM, "transport: %lld k-points: out of memory", np);
         g->kcap = np;
+    }
+    if (!g->vscale) {
+        g->vscale = calloc((size_t)nv, sizeof *g->vscale);
+        if (!g->vscale) return bs_fail(err, BS_ENOMEM, "transport: out of memory");
     }
     for (long long c = 0; c < count; c++) {
         const tr_cell *cl = &g->cell[first + c];
@@ -552,8 +688,10 @@ static int eval_cells(tr_ws *w, tr_mesh *g, long long first, long long count, in
             for (int i = 0; i < 3; i++)
                 g->k[3 * (c * per + q) + i] = i < d ? cl->c[i] + g->off[q][i] * cl->hw[i] : 0.0;
     }
-    int rc = eval_points(w, (int)np, g->k, g->pv, err);
+    int rc = eval_points(w, (int)np, g->k, g->pv, g->pb, err);
     if (rc != 0) return rc;
+    for (long long q = 0; q < np * nv; q++)
+        if (fabs(g->pv[q]) > g->vscale[q % nv]) g->vscale[q % nv] = fabs(g->pv[q]);
     for (long long c = 0; c < count; c++) {
         tr_cell *cl = &g->cell[first + c];
         double vol = 1;
@@ -561,6 +699,8 @@ static int eval_cells(tr_ws *w, tr_mesh *g, long long first, long long count, in
         const double *pa = g->pv + (size_t)(c * per) * nv;
         double *val = g->val + (size_t)(first + c) * nv, *ce = g->cerr + (size_t)(first + c) * nv;
         cl->err = 0;
+        cl->pmax = 0;
+        for (long long q = 0; q < (long long)per * nv; q++) cl->pmax = fmax(cl->pmax, fabs(pa[q]));
         for (int v = 0; v < nv; v++) {
             double r7 = 0, r5 = 0;
             for (int q = 0; q < per; q++) {
@@ -573,6 +713,8 @@ static int eval_cells(tr_ws *w, tr_mesh *g, long long first, long long count, in
             if (ce[v] > cl->err) cl->err = ce[v];
         }
         cl->split = (signed char)split_axis(d, nv, pa, cl, max_depth);
+        fermi_cell(w, g->pb + (size_t)(c * per) * nb, per, max_depth, cl);
+        cl->key = cl->fs == FS_OPEN ? TR_FS_KEY * vol : cl->err;
     }
     return 0;
 }
@@ -610,38 +752,51 @@ static void check_children(tr_ws *w, tr_mesh *g, int parent, long long child)
         if (e1[v] > g->cell[child].err) g->cell[child].err = e1[v];
         if (e2[v] > g->cell[child + 1].err) g->cell[child + 1].err = e2[v];
     }
+    for (int i = 0; i < 2; i++) {
+        tr_cell *c = &g->cell[child + i];
+        if (c->fs != FS_OPEN) c->key = c->err;
+    }
 }
 
 /* Globally adaptive refinement: the cells with the largest error estimates are halved, a round of
  * up to `round` cells at a time (one batch of diagonalisations), until the total estimate is below
- * tol, the k-point budget is spent, or every cell left over is at the depth limit. */
+ * tol and no refinable cell may hold an unresolved Fermi crossing (those go first, whatever their
+ * estimate: a zero estimate there only means no point fell between two Fermi sheets), the k-point
+ * budget is spent, or every cell left over is at the depth limit. */
 static int refine(tr_ws *w, tr_mesh *g, const tr_opts *o, double tol, int max_depth, int *depth,
                   bs_err *err)
 {
     int round = w->dim == 3 ? 64 : 128;
     double total = 0;
+    long long nopen = 0; /* refinable cells with an unresolved Fermi crossing */
     for (long long c = 0; c < g->ncell; c++) {
         total += g->cell[c].err;
-        if (g->cell[c].split >= 0) heap_push(g, (int)c);
+        if (g->cell[c].split >= 0) {
+            heap_push(g, (int)c);
+            nopen += g->cell[c].fs == FS_OPEN;
+        }
     }
     int *pick = malloc((size_t)(round + TR_TIE_EXTRA) * sizeof *pick);
     if (!pick) return bs_fail(err, BS_ENOMEM, "transport: refinement list: out of memory");
     int rc = 0;
-    while (g->nheap > 0 && total > tol && w->nk < o->max_kpoints) {
+    while (g->nheap > 0 && (total > tol || nopen > 0) && w->nk < o->max_kpoints) {
         int npick = 0;
         double left = total;
-        while (g->nheap > 0 && npick < round && left > tol) {
+        while (g->nheap > 0 && npick < round &&
+               (left > tol || g->cell[g->heap[0]].fs == FS_OPEN)) {
             int ci = heap_pop(g);
             pick[npick++] = ci;
             left -= g->cell[ci].err;
+            nopen -= g->cell[ci].fs == FS_OPEN;
         }
         /* Cells tied with the last one picked (images under a symmetry of the model, e.g.
          * k -> -k) are refined in the same round, so the partition keeps the symmetry and the
          * cancellations it implies (zero AHC under time reversal) hold to round-off. */
         while (npick > 0 && npick < round + TR_TIE_EXTRA && g->nheap > 0 &&
-               g->cell[g->heap[0]].err >= g->cell[pick[npick - 1]].err * (1 - 1e-9)) {
+               g->cell[g->heap[0]].key >= g->cell[pick[npick - 1]].key * (1 - 1e-9)) {
             int ci = heap_pop(g);
             pick[npick++] = ci;
+            nopen -= g->cell[ci].fs == FS_OPEN;
         }
         rc = mesh_reserve(g, g->ncell + 2LL * npick, w->nv, err);
         if (rc != 0) break;
@@ -659,7 +814,10 @@ static int refine(tr_ws *w, tr_mesh *g, const tr_opts *o, double tol, int max_de
             total += cl->err;
             for (int i = 0; i < w->dim; i++)
                 if (cl->level[i] > *depth) *depth = cl->level[i];
-            if (cl->split >= 0) heap_push(g, (int)c);
+            if (cl->split >= 0) {
+                heap_push(g, (int)c);
+                nopen += cl->fs == FS_OPEN;
+            }
         }
     }
     free(pick);
@@ -748,26 +906,58 @@ static int initial_cells(tr_ws *w, tr_mesh *g, int n0, int max_depth, bs_err *er
     return rc;
 }
 
-/* Sums the cells of the final partition into out (the running totals of refine() drift). */
+/* Sums the cells of the final partition into out (the running totals of refine() drift). A cell
+ * left with an unresolved Fermi crossing (depth limit or budget) whose points all saw a zero
+ * integrand (to 1e-9 of the largest seen) has an error estimate of zero that means nothing: it is
+ * raised to the cell's volume times the largest integrand seen anywhere. Where its points did see
+ * the integrand (a Weyl node at the Fermi level, a sheet crossed by some points), the rule pair's
+ * estimate stands. */
 static void collect(const tr_ws *w, const tr_mesh *g, tr_result *out)
 {
     out->err_total = 0;
     out->ncells = 0;
+    out->fs_split_ev = HUGE_VAL;
+    out->fs_feature = HUGE_VAL;
+    out->fs_finest_cell = HUGE_VAL;
+    double vmax = 0;
+    for (int v = 0; v < w->nv; v++) vmax = fmax(vmax, g->vscale[v]);
     for (long long c = 0; c < g->ncell; c++) {
-        if (!g->cell[c].alive) continue;
+        const tr_cell *cl = &g->cell[c];
+        if (!cl->alive) continue;
         out->ncells++;
-        out->err_total += g->cell[c].err;
+        double vol = 1, width = 0;
+        for (int i = 0; i < w->dim; i++) {
+            vol *= 2 * cl->hw[i];
+            width = fmax(width, 2 * cl->hw[i]);
+        }
+        if (cl->fs != FS_NONE) {
+            out->fs_cells++;
+            out->fs_split_ev = fmin(out->fs_split_ev, cl->fs_split);
+            out->fs_feature = fmin(out->fs_feature, cl->fs_feature);
+            out->fs_finest_cell = fmin(out->fs_finest_cell, width);
+        }
+        int open = cl->fs == FS_OPEN;
+        out->fs_open += open;
         const double *val = g->val + (size_t)c * w->nv, *ce = g->cerr + (size_t)c * w->nv;
+        int blind = open && !(cl->pmax > 1e-9 * vmax);
+        double cell_err = 0;
         for (int e = 0; e < w->nE; e++) {
             for (int a = 0; a < w->nahc; a++) {
-                out->ahc[e][a] += val[a * w->nE + e];
-                out->ahc_err[e][a] += ce[a * w->nE + e];
+                int v = a * w->nE + e;
+                double ev = blind ? fmax(ce[v], vol * g->vscale[v]) : ce[v];
+                out->ahc[e][a] += val[v];
+                out->ahc_err[e][a] += ev;
+                cell_err = fmax(cell_err, ev);
             }
             if (w->has_shc) {
-                out->shc[e] += val[w->nahc * w->nE + e];
-                out->shc_err[e] += ce[w->nahc * w->nE + e];
+                int v = w->nahc * w->nE + e;
+                double ev = blind ? fmax(ce[v], vol * g->vscale[v]) : ce[v];
+                out->shc[e] += val[v];
+                out->shc_err[e] += ev;
+                cell_err = fmax(cell_err, ev);
             }
         }
+        out->err_total += fmax(cl->err, cell_err);
     }
 }
 
@@ -807,6 +997,8 @@ int tr_compute(const tb_model *m, const tr_opts *o, tr_result *out, bs_err *err)
     out->nk = w->nk;
     out->tol = tol;
     out->converged = out->err_total <= tol;
+    out->limit = out->converged ? TR_LIMIT_NONE
+                 : w->nk >= o->max_kpoints ? TR_LIMIT_BUDGET : TR_LIMIT_DEPTH;
     out->min_gap_ev = w->min_gap;
     out->eta_ev = o->eta_ev;
     out->smear_ev = o->smear_ev;

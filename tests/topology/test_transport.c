@@ -25,6 +25,7 @@
 #include "bandsieve/eig.h"
 #include "bandsieve/hk.h"
 #include "bandsieve/lattice_models.h"
+#include "bandsieve/result_json.h"
 #include "bandsieve/transport.h"
 
 static tr_result run(const tb_model *m, const tr_opts *o)
@@ -273,6 +274,83 @@ static void test_weyl_ahc(void **state)
     tb_model_free(m);
 }
 
+/* Rashba electron gas (built-in model rashba, t = 1 eV, lambda_R = 0.05 eV): the intrinsic spin
+ * Hall conductivity is e/8pi = 0.25 e/(2 pi) whenever both spin-split bands are occupied,
+ * independent of lambda_R and the density (Phys. Rev. Lett. 92, 126603 (2004)); the lattice
+ * correction is small near the band bottom (-4t - lambda_R^2/4t = -4.000625 eV). The integrand
+ * lives only in the thin shell between the two Fermi circles (k_F ~ 0.14 rad, shell ~ 0.05 rad at
+ * -3.98 eV): before the cubature was seeded from the Fermi surface, -3.98, -3.95 and -3.9 eV gave
+ * exactly 0 with error 0 and the convergence flag set (regression, 2026-12-02). Tolerance 2% (the
+ * issue's); the integration is asked for 2e-3 e/(2 pi), under 1%. */
+static void test_rashba_shc_regression_20261202(void **state)
+{
+    (void)state;
+    tb_model *m = bs_test_build("rashba");
+    const double ef[6] = {-3.98, -3.95, -3.9, -3.85, -3.8, -3.7};
+    tr_opts o;
+    tr_opts_default(&o);
+    o.tol = 2e-3;
+    o.has_fermi = 1;
+    for (int i = 0; i < 6; i++) {
+        o.fermi_ev = ef[i];
+        tr_result r = run(m, &o);
+        assert_true(r.has_shc);
+        assert_true(r.converged);
+        assert_true(r.fs_cells > 0);
+        assert_true(fabs(fabs(r.shc[0]) - 0.25) < 0.02 * 0.25);
+        assert_true(r.shc_err[0] > 0); /* an estimate of zero with a Fermi surface inside is the bug */
+        assert_true(fabs(fabs(r.shc[0]) - 0.25) <= r.shc_err[0] + 0.005);
+    }
+    /* The scan across the band bottom: -4.05 .. -3.95 eV in steps of 0.02 around the reference
+     * -4.00 eV (where the bands touch at Gamma: not checked). Below -4.000625 eV there are no states:
+     * exactly 0 (no cell can hold a crossing, an error of 0 is right there); from -3.99 eV both bands
+     * are occupied: e/8pi within 2%. */
+    o.fermi_ev = -4.0;
+    o.nscan = 6;
+    o.scan_lo_ev = -0.05;
+    o.scan_hi_ev = 0.05;
+    o.tol = 5e-3;
+    tr_result r = run(m, &o);
+    assert_int_equal(r.nfermi, 7);
+    assert_true(r.converged);
+    for (int e = 1; e < r.nfermi; e++) {
+        printf("    scan EF %+.3f shc %+.5f (%.1e)\n", r.fermi_ev[e], r.shc[e], r.shc_err[e]);
+        if (r.fermi_ev[e] < -4.001) {
+            assert_true(r.shc[e] == 0.0);
+        } else if (r.fermi_ev[e] > -3.995) {
+            assert_true(fabs(fabs(r.shc[e]) - 0.25) < 0.02 * 0.25);
+        }
+    }
+    /* The Fermi-surface report survives the result's JSON both ways (result_json.h). */
+    res_diag d;
+    res_init(&d);
+    d.dim = 2;
+    d.has_transport = 1;
+    d.transport = r;
+    cJSON *j = res_to_json(&d, 0);
+    assert_non_null(cJSON_GetObjectItem(cJSON_GetObjectItem(j, "transport"), "fermi_surface"));
+    res_diag back;
+    res_init(&back);
+    bs_err jerr;
+    assert_int_equal(res_from_json(j, &back, &jerr), 0);
+    assert_true(back.transport.fs_cells == r.fs_cells && back.transport.fs_open == r.fs_open);
+    assert_true(fabs(back.transport.fs_split_ev - r.fs_split_ev) <= 1e-12 * r.fs_split_ev);
+    cJSON_Delete(j);
+    res_clear(&back);
+    /* A budget too small to reach the shell at -3.98 eV: not converged, the budget named as the
+     * limit, Fermi cells left open, and an error that covers the true e/8pi. */
+    o.nscan = 0;
+    o.fermi_ev = -3.98;
+    o.tol = 2e-3;
+    o.max_kpoints = 3000;
+    r = run(m, &o);
+    assert_false(r.converged);
+    assert_int_equal(r.limit, TR_LIMIT_BUDGET);
+    assert_true(r.fs_open > 0);
+    assert_true(fabs(fabs(r.shc[0]) - 0.25) <= r.shc_err[0]);
+    tb_model_free(m);
+}
+
 /* Metal default Fermi energy (transport.h): nocc bands' worth of states below it on the 48 x 48
  * midpoint mesh of the eigenvalue pass. Reference: an independent count of the eigenvalues below
  * E_F on the same mesh must be nocc N_k = 2304 exactly (the default lies between two eigenvalues).
@@ -488,6 +566,7 @@ int main(void)
         cmocka_unit_test(test_time_reversal_zero),
         cmocka_unit_test(test_weyl_ahc),
         cmocka_unit_test(test_metal_fermi),
+        cmocka_unit_test(test_rashba_shc_regression_20261202),
         cmocka_unit_test(test_metal_against_numpy),
         cmocka_unit_test(test_counts),
         cmocka_unit_test(test_bad_input),
