@@ -145,6 +145,7 @@ typedef struct res_diag {
     double gap_direct_ev, gap_indirect_ev;
     double k_gap_direct[3];
     double k_vbm[3], k_cbm[3];
+    double vbm_ev, cbm_ev;  /* max E_N and min E_{N+1} (eV): gap_indirect_ev = cbm_ev - vbm_ev */
 
     int time_reversal, inversion;   /* treated as symmetries: exact, or approximate and restored */
     double tr_residual, inv_residual;
@@ -217,6 +218,9 @@ int res_plane_chern_shown(const res_diag *r);
 /* 1 when node i of r is listed as a Weyl node (3D, with a chirality, or one that could not be
  * resolved), 0 for a gap closing of zero chirality (a Dirac point, a point of a line, any 2D one). */
 int res_node_is_weyl(const res_diag *r, int i);
+/* The number of nodes of r for which res_node_is_weyl holds: the one count behind the reason, the
+ * JSON list, the text output and the catalogue. */
+int res_weyl_count(const res_diag *r);
 
 /* Initialises r to an empty result (NA everywhere, class undetermined, indices -1). */
 void res_init(res_diag *r);

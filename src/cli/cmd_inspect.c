@@ -132,8 +132,12 @@ static void print_report(const res_diag *r)
         printf(" (k1=0, k1=1/2, k2=0, k2=1/2, k3=0, k3=1/2)\n");
     }
     if (r->nnodes > 0) {
-        printf("  %s %d (net chirality %d)\n", r->dim == 3 ? "Weyl nodes           " : "2D gap closings      ",
-               r->nnodes, r->net_chirality);
+        int nweyl = res_weyl_count(r);
+        if (r->dim == 3)
+            printf("  Weyl nodes            %d (net chirality %d); other gap closings %d\n", nweyl,
+                   r->net_chirality, r->nnodes - nweyl);
+        else
+            printf("  2D gap closings       %d\n", r->nnodes);
         for (int i = 0; i < r->nnodes; i++)
             printf("      k = (%+.6f, %+.6f, %+.6f)  chirality %+d  E = %.4f eV\n", r->nodes[i].k[0],
                    r->nodes[i].k[1], r->nodes[i].k[2], r->nodes[i].chirality, r->nodes[i].energy_ev);

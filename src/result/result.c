@@ -102,6 +102,13 @@ int res_node_is_weyl(const res_diag *r, int i)
     return r->dim == 3 && (r->nodes[i].chirality != 0 || r->chirality_status != RES_DONE);
 }
 
+int res_weyl_count(const res_diag *r)
+{
+    int n = 0;
+    for (int i = 0; i < r->nnodes; i++) n += res_node_is_weyl(r, i);
+    return n;
+}
+
 void res_init(res_diag *r)
 {
     memset(r, 0, sizeof *r);

@@ -404,6 +404,8 @@ static void take_gaps(const gaps_result *g, res_diag *r)
     memcpy(r->k_gap_direct, g->k_direct, sizeof r->k_gap_direct);
     memcpy(r->k_vbm, g->k_vbm, sizeof r->k_vbm);
     memcpy(r->k_cbm, g->k_cbm, sizeof r->k_cbm);
+    r->vbm_ev = g->vbm_ev;
+    r->cbm_ev = g->cbm_ev;
 }
 
 /* Moves the nodes and the line summary of n into r: r takes the node array, n keeps the line
@@ -479,6 +481,35 @@ static void set_class(res_diag *r, res_class cls, double conf, const char *fmt, 
     va_end(ap);
 }
 
+/* Bands at the filling that overlap in energy by more than this (eV) have Fermi pockets: the
+ * nodes of a Weyl semimetal sit at (or within this of) one Fermi level with no other Fermi surface
+ * (Phys. Rev. B 83, 205101 (2011)); 10 meV is about kT at 120 K, our choice of "near". */
+#define DIAG_POCKET_EV 0.01
+
+/* A metal with Fermi pockets: the class is metal whatever touchings it has; the touchings between
+ * bands N and N+1 (all of them inside the overlap window [cbm, vbm], so near any Fermi level of
+ * this filling) are listed as evidence. */
+static void classify_pocket_metal(res_diag *r)
+{
+    int nweyl = res_weyl_count(r), nother = r->nnodes - nweyl;
+    char ev[160] = "";
+    if (nweyl > 0)
+        snprintf(ev, sizeof ev, "; evidence: %d Weyl node%s (net chirality %d) within the overlap window",
+                 nweyl, nweyl == 1 ? "" : "s", r->net_chirality);
+    if (nother > 0) {
+        size_t used = strlen(ev);
+        snprintf(ev + used, sizeof ev - used, "%s%d other gap closing%s", used ? ", " : "; evidence: ",
+                 nother, nother == 1 ? "" : "s");
+    }
+    if (r->nodal_line) {
+        size_t used = strlen(ev);
+        snprintf(ev + used, sizeof ev - used, "%sa nodal line", used ? ", " : "; evidence: ");
+    }
+    set_class(r, RES_METAL, r->gap_indirect_ev < -2 * DIAG_POCKET_EV ? 0.95 : 0.7,
+              "Fermi pockets: bands at the filling overlap in energy (indirect gap %.4g eV)%s",
+              r->gap_indirect_ev, ev);
+}
+
 static void classify_gapless(res_diag *r, int degenerate, int tr_exact, int inv_exact)
 {
     if (degenerate) {
@@ -486,23 +517,27 @@ static void classify_gapless(res_diag *r, int degenerate, int tr_exact, int inv_
                   r->nocc);
         return;
     }
+    if (r->gap_indirect_ev < -DIAG_POCKET_EV) {
+        classify_pocket_metal(r);
+        return;
+    }
     if (r->dim == 3 && r->nodal_line) {
         set_class(r, RES_NODAL_LINE, 0.8, "the gap closes on a curve: %d touching points over %.3g "
                   "(reduced units)", r->nodal_points, r->nodal_extent);
         return;
     }
-    int nweyl = 0;
-    for (int i = 0; i < r->nnodes; i++) nweyl += r->nodes[i].chirality != 0;
+    int nweyl = res_weyl_count(r), nchiral = 0;
+    for (int i = 0; i < r->nnodes; i++) nchiral += r->nodes[i].chirality != 0;
     /* With inversion and time reversal the Berry curvature vanishes (or the bands are Kramers
      * degenerate) at every k, so no Weyl node can exist (common practice). */
     int weyl_forbidden = inv_exact && tr_exact;
-    if (r->dim == 3 && r->nnodes > 0 && nweyl == 0 && (r->chirality_status == RES_DONE || weyl_forbidden)) {
+    if (r->dim == 3 && r->nnodes > 0 && nchiral == 0 && (r->chirality_status == RES_DONE || weyl_forbidden)) {
         set_class(r, RES_METAL, 0.5, "the gap closes at %d points of zero chirality (Dirac points%s): a semimetal, "
                   "at a phase transition or protected", r->nnodes, weyl_forbidden ? "; inversion with time "
                   "reversal forbids Weyl nodes" : "");
         return;
     }
-    if (r->dim == 3 && r->nnodes > 0 && nweyl == 0) {
+    if (r->dim == 3 && r->nnodes > 0 && nchiral == 0) {
         set_class(r, RES_UNDETERMINED, 0.3, "the gap closes at %d points whose chirality could not be resolved",
                   r->nnodes);
         return;
@@ -516,7 +551,7 @@ static void classify_gapless(res_diag *r, int degenerate, int tr_exact, int inv_
         if (r->gap_indirect_ev < -BS_GAP_CLOSED_EV) {
             conf *= 0.8;
             size_t used = strlen(extra);
-            snprintf(extra + used, sizeof extra - used, "; other bands overlap the nodes' energy (Fermi pockets)");
+            snprintf(extra + used, sizeof extra - used, "; shallow pockets: the bands overlap by %.2g eV", -r->gap_indirect_ev);
         }
         set_class(r, RES_WEYL, conf, "%d Weyl nodes, net chirality %d%s", nweyl, r->net_chirality, extra);
         return;

@@ -9,6 +9,7 @@
 
 #include "testutil.h"
 
+#include <complex.h>
 #include <math.h>
 #include <stdio.h>
 #include <stdlib.h>
@@ -17,6 +18,7 @@
 #include "bandsieve/diagnosis.h"
 #include "bandsieve/symfit.h"
 #include "bandsieve/lattice_models.h"
+#include "bandsieve/result_json.h"
 #include "bandsieve/transform.h"
 
 static void diagnose(const char *spec, res_diag *r)
@@ -237,6 +239,83 @@ static void test_line_metal_insulator(void **state)
     res_clear(&r);
 }
 
+/* A random 32-state 3D metal without symmetry: on-site levels spread over +-1.5 eV and random
+ * complex hoppings up to 0.4 eV to 6 neighbours and their inverses, half filled, so bands 16 and 17
+ * overlap by far more than they are apart. Touchings of bands 16 and 17 are generic in 3D without
+ * symmetry, but with Fermi pockets the material is a metal and the nodes are evidence, not the
+ * class: a Weyl semimetal has its nodes at the Fermi level and no other Fermi surface (Phys. Rev. B
+ * 83, 205101 (2011)). Regression (2026-12-02): such a metal came out "Weyl semimetal" with node
+ * counts that differed between the reason, the JSON and the text output. */
+static tb_model *random_metal(int norb, uint64_t seed)
+{
+    static const int half[6][3] = {{1, 0, 0}, {0, 1, 0}, {0, 0, 1}, {1, 1, 0}, {0, 1, 1}, {1, 0, 1}};
+    tb_model *m = NULL;
+    bs_err err;
+    assert_int_equal(tb_model_create(norb, 13, 0, &m, &err), 0);
+    m->dim = 3;
+    m->nocc = norb / 2;
+    for (int i = 0; i < 3; i++) m->lattice[i][i] = 3.0;
+    snprintf(m->id, sizeof m->id, "random-metal-%d", norb);
+    uint64_t s = seed;
+    size_t nn = (size_t)norb * norb;
+    for (int a = 0; a < norb; a++) {
+        m->H[a + norb * a] = 3.0 * (bs_test_uniform(&s) - 0.5);
+        for (int b = a + 1; b < norb; b++) {
+            double complex z = 0.2 * (bs_test_uniform(&s) - 0.5 + I * (bs_test_uniform(&s) - 0.5));
+            m->H[a * norb + b] = z;
+            m->H[b * norb + a] = conj(z);
+        }
+    }
+    for (int h = 0; h < 6; h++) {
+        int rp = 1 + 2 * h, rm = rp + 1;
+        for (int i = 0; i < 3; i++) {
+            m->R[rp][i] = half[h][i];
+            m->R[rm][i] = -half[h][i];
+        }
+        m->deg[rp] = m->deg[rm] = 1;
+        for (int a = 0; a < norb; a++)
+            for (int b = 0; b < norb; b++) {
+                double complex z = 0.8 * (bs_test_uniform(&s) - 0.5 + I * (bs_test_uniform(&s) - 0.5));
+                m->H[rp * nn + a * norb + b] = z;
+                m->H[rm * nn + b * norb + a] = conj(z);
+            }
+    }
+    assert_int_equal(tb_model_validate(m, 0.0, "random metal", &err), 0);
+    return m;
+}
+
+static void test_metal_is_not_weyl_regression_20261202(void **state)
+{
+    (void)state;
+    tb_model *m = random_metal(32, 20261202);
+    diag_opts o = {0};
+    o.seed = 1;
+    res_diag r;
+    res_init(&r);
+    bs_err err;
+    bs_err_clear(&err);
+    assert_int_equal(diag_run(m, &o, &r, &err), 0);
+    printf("  %s: %s (%.2f) %s; %d touchings, %d Weyl, %.2f s\n", m->id, res_class_name(r.cls), r.confidence,
+           r.reason, r.nnodes, res_weyl_count(&r), r.seconds);
+    assert_true(r.gap_indirect_ev < -0.1); /* large pockets by construction */
+    assert_int_equal(r.cls, RES_METAL);
+    assert_true(r.confidence >= 0.9);
+    assert_non_null(strstr(r.reason, "Fermi pockets"));
+    /* One node count: the reason's (when it gives one) and the JSON list's are res_weyl_count. */
+    int nweyl = res_weyl_count(&r);
+    cJSON *j = res_to_json(&r, 0);
+    assert_int_equal(cJSON_GetArraySize(cJSON_GetObjectItem(j, "weyl_nodes")), nweyl);
+    assert_int_equal(cJSON_GetArraySize(cJSON_GetObjectItem(j, "gap_closings")), r.nnodes - nweyl);
+    if (nweyl > 0) {
+        char want[64];
+        snprintf(want, sizeof want, "%d Weyl node", nweyl);
+        assert_non_null(strstr(r.reason, want));
+    }
+    cJSON_Delete(j);
+    res_clear(&r);
+    tb_model_free(m);
+}
+
 /* Invariants do not change under a permutation of the orbitals, a change of their phases, or the
  * spin layout (common practice: they are properties of the Hamiltonian, not of its basis). */
 static void test_basis_invariance(void **state)
@@ -370,6 +449,7 @@ int main(void)
         cmocka_unit_test(test_haldane), cmocka_unit_test(test_fkm_strong_weak),
         cmocka_unit_test(test_fkm_sweep_weyl_window), cmocka_unit_test(test_weyl_positions),
         cmocka_unit_test(test_line_metal_insulator), cmocka_unit_test(test_basis_invariance),
+        cmocka_unit_test(test_metal_is_not_weyl_regression_20261202),
         cmocka_unit_test(test_symmetry_tolerance), cmocka_unit_test(test_timeout),
         cmocka_unit_test(test_crystalline_classes),
     };
