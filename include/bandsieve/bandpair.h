@@ -39,14 +39,20 @@ long long bp_count(const bp_eval *e);
 /* Dimension (2 or 3) of e's model. */
 int bp_dim(const bp_eval *e);
 
-/* A uniform mesh n^dim of k = (i1/n, i2/n, i3/n) with both bands; index i1 + n*(i2 + n*i3). */
+/* A uniform mesh n^dim of k = ((i1 + o1)/n, (i2 + o2)/n, (i3 + o3)/n) with both bands, o the offset
+ * in mesh steps (zero unless made by bp_mesh_eval_offset); index i1 + n*(i2 + n*i3). */
 typedef struct bp_mesh {
     int dim, n, npts;
+    double off[3];      /* offset in mesh steps */
     double *lo, *hi;    /* npts each, eV */
 } bp_mesh;
 
 /* Evaluates the mesh of n per direction (n >= 2). The caller owns *out (bp_mesh_free). */
 int bp_mesh_eval(bp_eval *e, int n, bp_mesh **out, bs_err *err);
+
+/* As bp_mesh_eval for the mesh displaced by off[0..dim-1] mesh steps (e.g. 1/2: the points midway
+ * between those of the unshifted mesh). */
+int bp_mesh_eval_offset(bp_eval *e, int n, const double off[3], bp_mesh **out, bs_err *err);
 
 /* Frees g; accepts NULL. */
 void bp_mesh_free(bp_mesh *g);

@@ -1,5 +1,7 @@
 /* Direct and indirect band gaps at the filling N = nocc (bands N and N+1, 1-based), with the
- * k-points where they sit: a coarse uniform mesh finds the basins, a local minimiser refines them. */
+ * k-points where they sit: a coarse uniform mesh finds the basins, a local minimiser refines every
+ * basin that could hold the extreme, and meshes displaced by half a step check that nothing was
+ * missed between the points. */
 #ifndef BANDSIEVE_GAPS_H
 #define BANDSIEVE_GAPS_H
 
@@ -9,9 +11,23 @@
 #include "bandsieve/model.h"
 #include "bandsieve/result.h"
 
+/* Convergence tolerance of the gaps between mesh levels (eV) and the resolution floor. */
+#define GAPS_CONV_TOL_EV 1e-4
+
+/* An indirect gap whose size is below this many resolutions is called with low confidence
+ * ("possible semimetal" / "possible insulator"). */
+#define GAPS_UNSURE_FACTOR 3.0
+
 typedef struct gaps_opts {
     int mesh;            /* coarse mesh points per reduced direction (0: 16 in 3D, 48 in 2D) */
-    int nrefine;         /* basins refined per quantity, lowest/highest first (0: 6) */
+    int nrefine;         /* most basins refined per quantity and mesh level (0: 48), the most
+                            promising first: only basins whose mesh value, less the variation to
+                            their neighbours, is below the best value found so far */
+    int levels;          /* most mesh levels: the coarse mesh, then meshes displaced by half a step
+                            (different displacements, their union the mesh of twice the density),
+                            until one level changes no gap by more than conv_tol_ev (0: 3; 1: no
+                            check) */
+    double conv_tol_ev;  /* (0: GAPS_CONV_TOL_EV) */
     double tol_k;        /* refinement stops at this step, reduced units (0: 1e-6) */
     double deadline;     /* absolute bs_now() seconds (CLOCK_MONOTONIC), 0: none */
     const bp_mesh *grid; /* optional mesh already evaluated for this model (borrowed; overrides mesh) */
@@ -26,6 +42,11 @@ typedef struct gaps_result {
     int metallic;           /* gap_indirect_ev < BS_GAP_CLOSED_EV: metal or semimetal at this filling */
     int closed;             /* gap_direct_ev < BS_GAP_CLOSED_EV: the two bands touch */
     int mesh;
+    int levels;             /* mesh levels evaluated (1: the coarse mesh only) */
+    int converged;          /* the last level changed no gap by more than the tolerance */
+    double resolution_ev;   /* what the gaps may still be off by: the last level's change, at
+                               least the tolerance (so larger when not converged) */
+    int nbasins;            /* local refinements run, all quantities and levels */
     long long nk_evaluated; /* k-points diagonalised by this call */
     double seconds;         /* wall time of this call */
 } gaps_result;
@@ -48,5 +69,9 @@ struct nodes_result;
  * gap below g->gap_direct_ev replaces it, its two band energies (energy -+ gap/2) bound the VBM and
  * CBM. Updates metallic and closed. */
 void gaps_merge_nodes(gaps_result *g, const struct nodes_result *r);
+
+/* Whether an indirect gap g (eV) is too small against the search's resolution to tell an
+ * insulator from a semimetal: |g| < GAPS_UNSURE_FACTOR * resolution. */
+int gaps_unsure(double gap_indirect_ev, double resolution_ev);
 
 #endif

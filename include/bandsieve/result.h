@@ -146,6 +146,9 @@ typedef struct res_diag {
     double k_gap_direct[3];
     double k_vbm[3], k_cbm[3];
     double vbm_ev, cbm_ev;  /* max E_N and min E_{N+1} (eV): gap_indirect_ev = cbm_ev - vbm_ev */
+    double gap_resolution_ev; /* what the gaps may still be off by (gaps.h resolution_ev; HUGE_VAL
+                                 when no check was possible) */
+    int gap_converged;      /* a displaced mesh changed no gap beyond GAPS_CONV_TOL_EV */
 
     int time_reversal, inversion;   /* treated as symmetries: exact, or approximate and restored */
     double tr_residual, inv_residual;

@@ -190,6 +190,15 @@ static int w_transport(cJSON *o, const res_diag *r, int f)
     return ok ? 0 : -1;
 }
 
+/* The gap search's resolution; null when no convergence check was possible (HUGE_VAL). */
+static int w_gap_resolution(cJSON *o, const res_diag *r, int f)
+{
+    (void)f;
+    if (isfinite(r->gap_resolution_ev))
+        return cJSON_AddNumberToObject(o, "gap_resolution_eV", r->gap_resolution_ev) ? 0 : -1;
+    return cJSON_AddNullToObject(o, "gap_resolution_eV") ? 0 : -1;
+}
+
 static int w_surface(cJSON *o, const res_diag *r, int f)
 {
     if (!r->has_surface) return 0;
@@ -420,6 +429,13 @@ static int r_flows(const cJSON *o, res_diag *r, bs_err *err)
     return 0;
 }
 
+/* Null or missing: no check was possible (HUGE_VAL). */
+static int r_gap_resolution(const cJSON *o, res_diag *r, bs_err *err)
+{
+    r->gap_resolution_ev = HUGE_VAL;
+    return read_num(o, "gap_resolution_eV", &r->gap_resolution_ev, err);
+}
+
 /* The reference values are read from "ahc" and "shc", the scan and details from "transport"; a
  * scan entry's "ahc_error" (the largest component error) becomes the xy error. */
 static int r_transport(const cJSON *o, res_diag *r, bs_err *err)
@@ -536,6 +552,8 @@ static const key_row KEYS[] = {
     {"k_gap_direct", KEY_VEC3, AT(k_gap_direct), NULL, NULL, NULL},
     {"k_vbm", KEY_VEC3, AT(k_vbm), NULL, NULL, NULL},
     {"k_cbm", KEY_VEC3, AT(k_cbm), NULL, NULL, NULL},
+    {"gap_resolution_eV", KEY_SPECIAL, 0, 0, NULL, w_gap_resolution, r_gap_resolution},
+    {"gap_converged", KEY_BOOL, AT(gap_converged), NULL, NULL, NULL},
     {"time_reversal", KEY_BOOL, AT(time_reversal), "time_reversal", NULL, NULL},
     {"inversion", KEY_BOOL, AT(inversion), "inversion", NULL, NULL},
     {"time_reversal_residual", KEY_NUM, AT(tr_residual), NULL, NULL, NULL},

@@ -116,6 +116,12 @@ int bp_bands(bp_eval *e, int nk, const double *k, double *lo, double *hi, bs_err
 
 int bp_mesh_eval(bp_eval *e, int n, bp_mesh **out, bs_err *err)
 {
+    const double zero[3] = {0, 0, 0};
+    return bp_mesh_eval_offset(e, n, zero, out, err);
+}
+
+int bp_mesh_eval_offset(bp_eval *e, int n, const double off[3], bp_mesh **out, bs_err *err)
+{
     *out = NULL;
     if (n < 2 || n > (e->dim == 3 ? BS_MAX_MESH_3D : BS_MAX_MESH_2D))
         return bs_fail(err, BS_EINVAL, "band mesh: %d points per direction outside 2..%d", n,
@@ -125,6 +131,7 @@ int bp_mesh_eval(bp_eval *e, int n, bp_mesh **out, bs_err *err)
     g->dim = e->dim;
     g->n = n;
     g->npts = e->dim == 3 ? n * n * n : n * n;
+    for (int a = 0; a < 3; a++) g->off[a] = a < e->dim ? off[a] : 0.0;
     g->lo = malloc((size_t)g->npts * sizeof *g->lo);
     g->hi = malloc((size_t)g->npts * sizeof *g->hi);
     int chunk = e->batch;
@@ -160,9 +167,9 @@ void bp_mesh_free(bp_mesh *g)
 void bp_mesh_k(const bp_mesh *g, int idx, double k[3])
 {
     int n = g->n;
-    k[0] = (double)(idx % n) / n;
-    k[1] = (double)((idx / n) % n) / n;
-    k[2] = g->dim == 3 ? (double)(idx / (n * n)) / n : 0.0;
+    k[0] = (idx % n + g->off[0]) / n;
+    k[1] = ((idx / n) % n + g->off[1]) / n;
+    k[2] = g->dim == 3 ? (idx / (n * n) + g->off[2]) / n : 0.0;
 }
 
 int bp_mesh_shift(const bp_mesh *g, int idx, const int d[3])

@@ -406,6 +406,8 @@ static void take_gaps(const gaps_result *g, res_diag *r)
     memcpy(r->k_cbm, g->k_cbm, sizeof r->k_cbm);
     r->vbm_ev = g->vbm_ev;
     r->cbm_ev = g->cbm_ev;
+    r->gap_resolution_ev = g->resolution_ev;
+    r->gap_converged = g->converged;
 }
 
 /* Moves the nodes and the line summary of n into r: r takes the node array, n keeps the line
@@ -956,6 +958,21 @@ static int check_gapless_artefact(diag_ctx *c, res_diag *r, bs_err *err)
     return rc;
 }
 
+/* Insulator or semimetal by the sign of the indirect gap; where the gap is small against the gap
+ * search's resolution (gaps.h), the class stands with a low confidence and the other reading. */
+static void append_unsure_gap(res_diag *r)
+{
+    if (!gaps_unsure(r->gap_indirect_ev, r->gap_resolution_ev)) return;
+    const char *other = res_class_is_insulator(r->cls) ? "possible semimetal"
+                        : r->cls == RES_METAL ? "possible insulator" : NULL;
+    if (!other || r->gap_direct_ev < BS_GAP_CLOSED_EV) return;
+    if (r->confidence > 0.4) r->confidence = 0.4;
+    size_t used = strlen(r->reason);
+    snprintf(r->reason + used, sizeof r->reason - used, "; %s: indirect gap %.2g eV within %.0f times the gap "
+             "search's resolution %.2g eV%s", other, r->gap_indirect_ev, GAPS_UNSURE_FACTOR, r->gap_resolution_ev,
+             r->gap_converged ? "" : " (not converged)");
+}
+
 static void append_small_gap_note(res_diag *r)
 {
     if (!res_class_is_insulator(r->cls)) return;
@@ -1041,6 +1058,7 @@ int diag_run(const tb_model *m, const diag_opts *opts, res_diag *r, bs_err *err)
         if (gapless) rc = check_gapless_artefact(&c, r, err);
         if (rc == 0) rc = run_crystal(&c, r, kramers, err);
         append_small_gap_note(r);
+        append_unsure_gap(r);
     }
     if (c.bp) r->nk_evaluated += bp_count(c.bp);
     r->seconds = bs_now() - t0;

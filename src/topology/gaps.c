@@ -1,7 +1,10 @@
-/* Gap search at the filling: basins on a coarse mesh, each of the best few refined by a local
- * minimiser in reduced coordinates (bandpair.c), the refined extremes reported. */
+/* Gap search at the filling: basins on a coarse mesh, every one that could hold an extreme refined
+ * by a local minimiser in reduced coordinates (bandpair.c), for the direct gap, the valence maximum
+ * and the conduction minimum separately; then meshes displaced by half a step, until a level
+ * changes nothing beyond the tolerance or the level budget is spent. */
 #include "bandsieve/gaps.h"
 
+#include <math.h>
 #include <stdlib.h>
 #include <string.h>
 
@@ -9,31 +12,134 @@
 #include "bandsieve/config.h"
 #include "bandsieve/nodes.h"
 
+/* How far below its mesh value a basin's extreme can lie, in units of the largest variation to
+ * the mesh neighbours: along a line through a local mesh minimum, a cone v|x| whose apex lies
+ * half a step away drops by v h / 2 while the far neighbour rises by v h (the worst case: 1/2);
+ * a parabola drops by at most 1/8 of that neighbour difference. */
+#define GAPS_REACH 0.5
+
+/* Mesh displacements of the levels after the first, in half steps: the body centre first (the
+ * points farthest from the coarse mesh), then the face and edge centres; in 2D only those in the
+ * plane. Together with the coarse mesh they make the mesh of twice the density. */
+static const double LEVEL_OFF[8][3] = {{0, 0, 0},       {0.5, 0.5, 0.5}, {0.5, 0, 0},
+                                       {0, 0.5, 0},     {0.5, 0.5, 0},   {0, 0, 0.5},
+                                       {0.5, 0, 0.5},   {0, 0.5, 0.5}};
+static const int LEVEL_2D[4] = {0, 4, 2, 3};
+
 void gaps_opts_init(gaps_opts *o) { memset(o, 0, sizeof *o); }
 
-/* Refines the nbest local minima of f on g for quantity `what`; keeps the lowest refined value
- * (which, being reached from a mesh point, is never above that point's value) in *best, kbest. */
-static int refine_basins(bp_eval *e, const bp_mesh *g, const double *f, int what, int nbest,
-                         double tol_k, double *best, double kbest[3], double band[2], bs_err *err)
+int gaps_unsure(double gap_indirect_ev, double resolution_ev)
 {
-    int *idx = malloc((size_t)nbest * sizeof *idx);
-    if (!idx) return bs_fail(err, BS_ENOMEM, "gaps: out of memory");
-    int nmin = bp_mesh_minima(g, f, nbest, idx), rc = 0;
-    *best = f[idx[0]];
-    bp_mesh_k(g, idx[0], kbest);
-    band[0] = g->lo[idx[0]];
-    band[1] = g->hi[idx[0]];
-    for (int i = 0; i < nmin && rc == 0; i++) {
-        double k0[3], k[3], v, lo, hi;
-        bp_mesh_k(g, idx[i], k0);
-        rc = bp_minimise(e, what, k0, 1.0 / g->n, tol_k, k, &v, &lo, &hi, err);
-        if (rc == 0 && v < *best) {
-            *best = v;
-            memcpy(kbest, k, sizeof k);
-            band[0] = lo;
-            band[1] = hi;
+    return fabs(gap_indirect_ev) < GAPS_UNSURE_FACTOR * resolution_ev;
+}
+
+/* The best point found so far for each quantity, all three minimised: 0 the direct gap
+ * E_{N+1} - E_N, 1 -E_N, 2 E_{N+1} (the order of BP_GAP, BP_NEG_LOWER, BP_UPPER). */
+typedef struct gaps_best {
+    double v[3], k[3][3];
+} gaps_best;
+
+/* Every evaluated point bounds all three extremes. */
+static void best_update(gaps_best *b, const double k[3], double lo, double hi)
+{
+    const double f[3] = {hi - lo, -lo, hi};
+    for (int q = 0; q < 3; q++)
+        if (f[q] < b->v[q]) {
+            b->v[q] = f[q];
+            memcpy(b->k[q], k, sizeof b->k[q]);
         }
+}
+
+/* End points of refinements (per quantity), so a start inside an explored basin is skipped. */
+typedef struct gaps_ends {
+    int n, cap;
+    double (*k)[3];
+    double *v;
+} gaps_ends;
+
+static int ends_add(gaps_ends *s, const double k[3], double v, bs_err *err)
+{
+    if (s->n == s->cap) {
+        int cap = s->cap ? 2 * s->cap : 64;
+        double(*nk)[3] = realloc(s->k, (size_t)cap * sizeof *nk);
+        if (nk) s->k = nk;
+        double *nv = nk ? realloc(s->v, (size_t)cap * sizeof *nv) : NULL;
+        if (nv) s->v = nv;
+        if (!nv) return bs_fail(err, BS_ENOMEM, "gaps: out of memory");
+        s->cap = cap;
     }
+    memcpy(s->k[s->n], k, sizeof s->k[0]);
+    s->v[s->n++] = v;
+    return 0;
+}
+
+/* A start at mesh value f0 within one and a half mesh steps of an end point no higher than f0 is
+ * in a basin already refined. */
+static int explored(const gaps_ends *s, int dim, const double k0[3], double f0, double step)
+{
+    for (int i = 0; i < s->n; i++)
+        if (s->v[i] <= f0 && bp_kdist(dim, k0, s->k[i]) < 1.5 * step) return 1;
+    return 0;
+}
+
+/* Largest |f(j) - f(i)| over the 3^dim - 1 mesh neighbours j of i. */
+static double neighbour_variation(const bp_mesh *g, const double *f, int i)
+{
+    int lim3 = g->dim == 3 ? 1 : 0;
+    double d = 0;
+    for (int a = -1; a <= 1; a++)
+        for (int b = -1; b <= 1; b++)
+            for (int c = -lim3; c <= lim3; c++) {
+                int sh[3] = {a, b, c};
+                d = fmax(d, fabs(f[bp_mesh_shift(g, i, sh)] - f[i]));
+            }
+    return d;
+}
+
+/* Refines, for quantity q, every local minimum of the mesh values f that could go below the best
+ * value found so far by more than tol (its mesh value less GAPS_REACH times its neighbour
+ * variation), lowest first, at most nmax of them, skipping explored basins. Work array idx (npts)
+ * from the caller. */
+static int refine_quantity(bp_eval *e, const bp_mesh *g, const double *f, int *idx, int q, int nmax,
+                           double tol_k, double tol, gaps_best *b, gaps_ends *ends, int *nrun,
+                           bs_err *err)
+{
+    int nmin = bp_mesh_minima(g, f, g->npts, idx), done = 0, rc = 0;
+    double step = 1.0 / g->n;
+    for (int j = 0; j < nmin && done < nmax && rc == 0; j++) {
+        int i = idx[j];
+        if (f[i] - GAPS_REACH * neighbour_variation(g, f, i) >= b->v[q] - tol) continue;
+        double k0[3], k[3], v, lo, hi;
+        bp_mesh_k(g, i, k0);
+        if (explored(ends, g->dim, k0, f[i], step)) continue;
+        rc = bp_minimise(e, q, k0, step, tol_k, k, &v, &lo, &hi, err);
+        if (rc == 0) rc = ends_add(ends, k, v, err);
+        if (rc == 0) best_update(b, k, lo, hi);
+        done++;
+    }
+    *nrun += done;
+    return rc;
+}
+
+/* One mesh level: every mesh point bounds the extremes, then the three quantities are refined. */
+static int search_mesh(bp_eval *e, const bp_mesh *g, int nmax, double tol_k, double tol, gaps_best *b,
+                       gaps_ends ends[3], int *nrun, bs_err *err)
+{
+    double *f = malloc((size_t)g->npts * sizeof *f);
+    int *idx = malloc((size_t)g->npts * sizeof *idx);
+    int rc = 0;
+    if (!f || !idx) rc = bs_fail(err, BS_ENOMEM, "gaps: out of memory for %d points", g->npts);
+    for (int i = 0; rc == 0 && i < g->npts; i++) {
+        double k[3];
+        bp_mesh_k(g, i, k);
+        best_update(b, k, g->lo[i], g->hi[i]);
+    }
+    for (int q = 0; rc == 0 && q < 3; q++) {
+        for (int i = 0; i < g->npts; i++)
+            f[i] = q == 0 ? g->hi[i] - g->lo[i] : q == 1 ? -g->lo[i] : g->hi[i];
+        rc = refine_quantity(e, g, f, idx, q, nmax, tol_k, tol, b, &ends[q], nrun, err);
+    }
+    free(f);
     free(idx);
     return rc;
 }
@@ -49,58 +155,65 @@ int gaps_find_eval(bp_eval *e, const gaps_opts *o, gaps_result *out, bs_err *err
     double t0 = bs_now();
     long long c0 = bp_count(e);
     int dim = bp_dim(e), n = o->mesh > 0 ? o->mesh : (dim == 3 ? 16 : 48);
-    int nbest = o->nrefine > 0 ? o->nrefine : 6;
+    int nmax = o->nrefine > 0 ? o->nrefine : 48;
+    int maxlev = o->levels > 0 ? o->levels : 3;
+    if (maxlev > (dim == 3 ? 8 : 4)) maxlev = dim == 3 ? 8 : 4;
     double tol_k = o->tol_k > 0 ? o->tol_k : 1e-6;
+    double tol = o->conv_tol_ev > 0 ? o->conv_tol_ev : GAPS_CONV_TOL_EV;
     bp_mesh *own = NULL;
     const bp_mesh *g = o->grid;
-    int rc = 0;
     if (g && g->dim != dim)
         return bs_fail(err, BS_EINVAL, "gaps: mesh of dimension %d for a %dD model", g->dim, dim);
+    int rc = 0;
     if (!g) {
         rc = bp_mesh_eval(e, n, &own, err);
         if (rc != 0) return rc;
         g = own;
     }
-    double *f = malloc((size_t)g->npts * sizeof *f);
-    if (!f) {
-        bp_mesh_free(own);
-        return bs_fail(err, BS_ENOMEM, "gaps: out of memory");
-    }
     double emin = g->lo[0], emax = g->hi[0];
     for (int i = 0; i < g->npts; i++) {
-        f[i] = g->hi[i] - g->lo[i];
-        if (g->lo[i] < emin) emin = g->lo[i];
-        if (g->hi[i] > emax) emax = g->hi[i];
+        emin = fmin(emin, g->lo[i]);
+        emax = fmax(emax, g->hi[i]);
     }
-    double bd[2], bv[2], bc[2], v = 0;
-    rc = refine_basins(e, g, f, BP_GAP, nbest, tol_k, &out->gap_direct_ev, out->k_direct, bd, err);
-    for (int i = 0; rc == 0 && i < g->npts; i++) f[i] = -g->lo[i];
-    if (rc == 0) rc = refine_basins(e, g, f, BP_NEG_LOWER, nbest, tol_k, &v, out->k_vbm, bv, err);
-    out->vbm_ev = -v;
-    for (int i = 0; rc == 0 && i < g->npts; i++) f[i] = g->hi[i];
-    if (rc == 0) rc = refine_basins(e, g, f, BP_UPPER, nbest, tol_k, &out->cbm_ev, out->k_cbm, bc, err);
-    free(f);
-    /* Every evaluated point bounds the extremes: the refined direct-gap point and the band-extreme
-     * points each give E_N and E_{N+1} values, so the extremes use all of them. */
-    if (rc == 0) {
-        const double *kk[3] = {out->k_direct, out->k_vbm, out->k_cbm};
-        const double *bb[3] = {bd, bv, bc};
-        double kv[3], kc[3];
-        memcpy(kv, out->k_vbm, sizeof kv);
-        memcpy(kc, out->k_cbm, sizeof kc);
-        for (int i = 0; i < 3; i++) {
-            if (bb[i][0] > out->vbm_ev) {
-                out->vbm_ev = bb[i][0];
-                memcpy(kv, kk[i], sizeof kv);
-            }
-            if (bb[i][1] < out->cbm_ev) {
-                out->cbm_ev = bb[i][1];
-                memcpy(kc, kk[i], sizeof kc);
-            }
+    gaps_best b = {{INFINITY, INFINITY, INFINITY}, {{0}}};
+    gaps_ends ends[3];
+    memset(ends, 0, sizeof ends);
+    rc = search_mesh(e, g, nmax, tol_k, tol, &b, ends, &out->nbasins, err);
+    out->levels = 1;
+    double change = INFINITY;
+    /* Each further level is the coarse mesh displaced by half a step: a basin that fell between
+     * the coarse points shows there. The gaps only go down; the change of the largest is the
+     * level's change. */
+    while (rc == 0 && out->levels < maxlev) {
+        double before[3];
+        memcpy(before, b.v, sizeof before);
+        const double *off = LEVEL_OFF[dim == 3 ? out->levels : LEVEL_2D[out->levels]];
+        bp_mesh *h = NULL;
+        rc = bp_mesh_eval_offset(e, g->n, off, &h, err);
+        if (rc == 0) rc = search_mesh(e, h, nmax, tol_k, tol, &b, ends, &out->nbasins, err);
+        bp_mesh_free(h);
+        out->levels++;
+        change = 0;
+        for (int q = 0; q < 3; q++) change = fmax(change, before[q] - b.v[q]);
+        if (change <= tol) break;
+    }
+    for (int q = 0; q < 3; q++) {
+        free(ends[q].k);
+        free(ends[q].v);
+    }
+    for (int q = 0; q < 3; q++)
+        for (int a = 0; a < 3; a++) {
+            double x = a < dim ? b.k[q][a] - floor(b.k[q][a]) : 0.0;
+            b.k[q][a] = x >= 1.0 ? 0.0 : x;
         }
-        memcpy(out->k_vbm, kv, sizeof kv);
-        memcpy(out->k_cbm, kc, sizeof kc);
-    }
+    out->gap_direct_ev = b.v[0];
+    out->vbm_ev = -b.v[1];
+    out->cbm_ev = b.v[2];
+    memcpy(out->k_direct, b.k[0], sizeof out->k_direct);
+    memcpy(out->k_vbm, b.k[1], sizeof out->k_vbm);
+    memcpy(out->k_cbm, b.k[2], sizeof out->k_cbm);
+    out->converged = change <= tol;
+    out->resolution_ev = isfinite(change) ? fmax(change, tol) : INFINITY;
     out->gap_indirect_ev = out->cbm_ev - out->vbm_ev;
     out->width_ev = emax - emin;
     out->metallic = out->gap_indirect_ev < BS_GAP_CLOSED_EV;
