@@ -45,7 +45,8 @@ typedef struct gaps_result {
     int levels;             /* mesh levels evaluated (1: the coarse mesh only) */
     int converged;          /* the last level changed no gap by more than the tolerance */
     double resolution_ev;   /* what the gaps may still be off by: the last level's change, at
-                               least the tolerance (so larger when not converged) */
+                               least the tolerance (so larger when not converged); INFINITY when
+                               no check was made (one level, or a mesh below 4 points) */
     int nbasins;            /* local refinements run, all quantities and levels */
     long long nk_evaluated; /* k-points diagonalised by this call */
     double seconds;         /* wall time of this call */
