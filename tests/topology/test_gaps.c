@@ -251,17 +251,24 @@ static double kdist_pm(const double k[3], const double kref[3])
  * Nelder-Mead from every grid extremum within 0.3 eV of the best. The gap search must find the
  * same extremes with its default coarse mesh, to 1e-5 eV (both refine smooth extremes to ~1e-6 in
  * k; 1e-5 eV leaves room for a stop a little early on these flat, 20-meV-scale bands) and the
- * positions to 1e-3 (up to k -> -k). The semimetal's indirect gap must be negative. */
+ * positions to 1e-3 (up to k -> -k). The semimetal's indirect gap must be negative. A third
+ * parameter set ("basins", indirect gap -10 meV, valence maximum at Gamma) has a direct gap with
+ * many competing minima: refining only the six best basins of a 10^3 or 14^3 mesh gave 72.6 meV
+ * where the minimum is 48.2 meV at a general k (regression, 2026-12-02); it is checked at both. */
 static void test_sp3_edges_at_general_k(void **state)
 {
     (void)state;
-    const char *variants[2] = {"semimetal", "insulator"};
-    for (int v = 0; v < 2; v++) {
+    const char *variants[4] = {"semimetal", "insulator", "basins", "basins"};
+    const int meshes[4] = {0, 0, 10, 14};
+    for (int v = 0; v < 4; v++) {
         char dir[256];
         double ref[12];
         tb_model *m = sp3_model(variants[v], dir, sizeof dir, ref);
+        gaps_opts o;
+        gaps_opts_init(&o);
+        o.mesh = meshes[v];
         gaps_result g;
-        run_gaps(m, NULL, &g);
+        run_gaps(m, &o, &g);
         printf("  numpy: direct %.9f vbm %.9f cbm %.9f indirect %.9f\n", ref[0], ref[1], ref[2],
                ref[2] - ref[1]);
         printf("  ours:  direct %.9f vbm %.9f cbm %.9f resolution %.2g eV, %s\n", g.gap_direct_ev,
@@ -273,7 +280,7 @@ static void test_sp3_edges_at_general_k(void **state)
         assert_true(kdist_pm(g.k_vbm, ref + 6) < 1e-3);
         assert_true(kdist_pm(g.k_cbm, ref + 9) < 1e-3);
         assert_true(g.converged);
-        assert_int_equal(g.metallic, v == 0);
+        assert_int_equal(g.metallic, v != 1);
         bs_test_rmtree(dir);
         tb_model_free(m);
     }
