@@ -512,14 +512,20 @@ static void classify_pocket_metal(res_diag *r)
               r->gap_indirect_ev, ev);
 }
 
-static void classify_gapless(res_diag *r, int degenerate, int tr_exact, int inv_exact)
+/* Fermi pockets are an overlap beyond DIAG_POCKET_EV and beyond this fraction of the two bands'
+ * width: a fit's error of a few tens of meV on bands eV wide moves Weyl nodes apart in energy without
+ * making the material a metal in the sense of the classification (our choice; the reason says
+ * "shallow pockets" and the confidence falls). */
+#define DIAG_POCKET_WIDTH_FRACTION 0.02
+
+static void classify_gapless(res_diag *r, int degenerate, int tr_exact, int inv_exact, double width_ev)
 {
     if (degenerate) {
         set_class(r, RES_METAL, 0.8, "the filling of %d bands splits degenerate bands over most of the zone",
                   r->nocc);
         return;
     }
-    if (r->gap_indirect_ev < -DIAG_POCKET_EV) {
+    if (r->gap_indirect_ev < -fmax(DIAG_POCKET_EV, DIAG_POCKET_WIDTH_FRACTION * width_ev)) {
         classify_pocket_metal(r);
         return;
     }
@@ -947,7 +953,9 @@ static int check_gapless_artefact(diag_ctx *c, res_diag *r, bs_err *err)
          * itself (its relative residual against DIAG_FIT_RESIDUAL, margin counted as for a gap). */
         double rho = fmax(which & SYMFIT_TR ? r->tr_residual : 0, which & SYMFIT_INV ? r->inv_residual : 0);
         double margin = rho > 0 ? DIAG_FIT_RESIDUAL / rho : INFINITY;
-        if (margin < 10 * SYMFIT_MARGIN_SAFE) {
+        /* A residual of the order of H itself (ten times DIAG_FIT_RESIDUAL) is no fit error: the
+         * material lacks the symmetry (a random metal), and the gapless call does not rest on it. */
+        if (rho < 10 * DIAG_FIT_RESIDUAL && margin < 10 * SYMFIT_MARGIN_SAFE) {
             r->confidence *= symfit_confidence_factor(margin);
             append_reason(r, "; the fit breaks its symmetries by %.2g of H (relative residual): features of the "
                           "gapless bands may not be resolved", rho);
@@ -1052,7 +1060,7 @@ int diag_run(const tb_model *m, const diag_opts *opts, res_diag *r, bs_err *err)
     take_gaps(&c.gaps, r);
     if (rc == 0) {
         combine_z2(r);
-        if (gapless) classify_gapless(r, c.nodes.degenerate, c.tr_exact, c.inv_exact);
+        if (gapless) classify_gapless(r, c.nodes.degenerate, c.tr_exact, c.inv_exact, c.gaps.width_ev);
         else classify_insulator(r, kramers, &sc);
         apply_margin(r);
         if (gapless) rc = check_gapless_artefact(&c, r, err);
