@@ -15,5 +15,6 @@ int cmd_demo_set(int argc, char **argv);
 int cmd_models(int argc, char **argv);
 int cmd_slab(int argc, char **argv);
 int cmd_symmetry(int argc, char **argv);
+int cmd_path(int argc, char **argv);
 
 #endif

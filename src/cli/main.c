@@ -25,6 +25,7 @@ static const command COMMANDS[] = {
     {"demo-set", cmd_demo_set, "generate the invented demonstration material set"},
     {"slab", cmd_slab, "slab or ribbon of one material: surface states, crossings, surface spectra"},
     {"symmetry", cmd_symmetry, "crystal symmetry of one material: space group, kept operations, eigenvalues"},
+    {"path", cmd_path, "follow a material along a parameter: gap closings, phases, Weyl-node tracks"},
 };
 
 static void usage(FILE *out)
