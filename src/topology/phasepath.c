@@ -162,7 +162,7 @@ static int interpolate(const pp_source *s, int seg, double t, tb_model **out, bs
     if (rc != 0) return rc;
     snprintf(m->id, sizeof m->id, "%.56s~%.56s@%.6g", a->id, b->id, t);
     snprintf(m->formula, sizeof m->formula, "%s", a->formula);
-    snprintf(m->source, sizeof m->source, "linear interpolation between %.100s and %.100s (virtual-crystal model)",
+    snprintf(m->source, sizeof m->source, "interpolated between %.90s and %.90s (virtual crystal)",
              a->id, b->id);
     m->dim = a->dim;
     m->spin_layout = a->spin_layout;
