@@ -61,6 +61,14 @@ void slab_coupling(const slab *s, const double kpar[2], int r, double complex *o
 /* Slab Hamiltonian at in-plane k': H (nstates x nstates, column-major, eV) is overwritten. */
 void slab_hk(const slab *s, const double kpar[2], double complex *H);
 
+/* The slab of a 3D bulk as a 2D tight-binding model (a film): lattice rows a'1, a'2 (the plane) and
+ * a third vector normal to the plane, long enough to hold the film plus 20 Angstrom; film spatial
+ * orbital j*nspatial + o is bulk orbital o in layer j, in the bulk's spin convention brought to
+ * TB_SPIN_BLOCKS (spinful) order; filling nlayers * bulk nocc. H(R) for in-plane R = (R'1, R'2, 0)
+ * holds the layer blocks, so H(k) equals slab_hk at k' = (k1, k2) up to the state order. The caller
+ * owns *out. BS_EINVAL for a ribbon (2D bulk), BS_ENOMEM. */
+int slab_film_model(const slab *s, const tb_model *bulk, tb_model **out, bs_err *err);
+
 /* Weights of the normalised slab state v (nstates components) on the nsurf top and bottom layers
  * (nsurf clipped to nlayers). */
 void slab_weights(const slab *s, const double complex *v, int nsurf, double *w_top, double *w_bottom);

@@ -3,6 +3,7 @@
 #include "bandsieve/slab.h"
 
 #include <math.h>
+#include <stdio.h>
 #include <stdlib.h>
 #include <string.h>
 
@@ -365,4 +366,101 @@ void slab_weights(const slab *s, const double complex *v, int nsurf, double *w_t
         }
     *w_top = top;
     *w_bottom = bot;
+}
+
+/* Film index of bulk state i (orbital o, spin sp) in layer j, in TB_SPIN_BLOCKS order. */
+static int film_state(const tb_model *bulk, int nlayers, int j, int i)
+{
+    int o = tb_state_orbital(bulk, i), sp = tb_state_spin(bulk, i);
+    return sp * nlayers * bulk->nspatial + j * bulk->nspatial + o;
+}
+
+int slab_film_model(const slab *s, const tb_model *bulk, tb_model **out, bs_err *err)
+{
+    *out = NULL;
+    if (s->kdim != 2) return bs_fail(err, BS_EINVAL, "film: needs a 3D bulk (a 2D bulk gives a ribbon)");
+    const tb_model *m = s->rebased;
+    int n = s->norb, N = s->nlayers, nf = n * N, L = s->range;
+    /* distinct in-plane R' */
+    int (*Rp)[2] = malloc((size_t)m->nR * sizeof *Rp), nRp = 0;
+    if (!Rp) return bs_fail(err, BS_ENOMEM, "out of memory for a film");
+    for (int r = 0; r < m->nR; r++) {
+        int seen = 0;
+        for (int q = 0; q < nRp && !seen; q++) seen = Rp[q][0] == m->R[r][0] && Rp[q][1] == m->R[r][1];
+        if (!seen) { Rp[nRp][0] = m->R[r][0]; Rp[nRp][1] = m->R[r][1]; nRp++; }
+    }
+    tb_model *f = NULL;
+    int rc = tb_model_create(nf, nRp, bulk->spinful, &f, err);
+    if (rc != 0) { free(Rp); return rc; }
+    snprintf(f->id, sizeof f->id, "%.80s film (%d,%d,%d)x%d", bulk->id, s->M[2][0], s->M[2][1], s->M[2][2], N);
+    snprintf(f->formula, sizeof f->formula, "%s", bulk->formula);
+    snprintf(f->source, sizeof f->source, "film of %d layers cut from %.200s", N, bulk->id);
+    f->dim = 2;
+    f->nocc = N * bulk->nocc;
+    f->spin_layout = bulk->spinful ? TB_SPIN_BLOCKS : TB_SPIN_NONE;
+    /* lattice: the two in-plane rows, and the unit normal times the film thickness plus vacuum */
+    const double (*a)[3] = (const double (*)[3])m->lattice;
+    double nrm[3] = {a[0][1] * a[1][2] - a[0][2] * a[1][1], a[0][2] * a[1][0] - a[0][0] * a[1][2],
+                     a[0][0] * a[1][1] - a[0][1] * a[1][0]};
+    double ln = sqrt(nrm[0] * nrm[0] + nrm[1] * nrm[1] + nrm[2] * nrm[2]);
+    for (int c = 0; c < 3; c++) nrm[c] /= ln;
+    double spacing = fabs(a[2][0] * nrm[0] + a[2][1] * nrm[1] + a[2][2] * nrm[2]);
+    double height = N * spacing + 20.0;
+    for (int c = 0; c < 3; c++) {
+        f->lattice[0][c] = a[0][c];
+        f->lattice[1][c] = a[1][c];
+        f->lattice[2][c] = nrm[c] * height;
+    }
+    /* positions: Cartesian in the rebased cell, then reduced in the film cell */
+    double inv[3][3], (*lat)[3] = f->lattice;
+    double det = lat[0][0] * (lat[1][1] * lat[2][2] - lat[1][2] * lat[2][1]) -
+                 lat[0][1] * (lat[1][0] * lat[2][2] - lat[1][2] * lat[2][0]) +
+                 lat[0][2] * (lat[1][0] * lat[2][1] - lat[1][1] * lat[2][0]);
+    /* inv = (lat^T)^{-1}: reduced x solves x^T lat = r^T */
+    for (int i = 0; i < 3; i++)
+        for (int j = 0; j < 3; j++) {
+            int i1 = (j + 1) % 3, i2 = (j + 2) % 3, j1 = (i + 1) % 3, j2 = (i + 2) % 3;
+            inv[i][j] = (lat[i1][j1] * lat[i2][j2] - lat[i1][j2] * lat[i2][j1]) / det;
+        }
+    for (int j = 0; j < N; j++)
+        for (int o = 0; o < m->nspatial; o++) {
+            double red[3] = {m->orb_pos[o][0], m->orb_pos[o][1], m->orb_pos[o][2] + j}, r[3] = {0, 0, 0};
+            for (int c = 0; c < 3; c++)
+                for (int q = 0; q < 3; q++) r[c] += red[q] * a[q][c];
+            int fo = j * m->nspatial + o;
+            for (int q = 0; q < 3; q++) {
+                double x = 0;
+                for (int c = 0; c < 3; c++) x += r[c] * inv[q][c];
+                f->orb_pos[fo][q] = x;
+            }
+            f->orb_l[fo] = m->orb_l[o];
+        }
+    size_t nn = (size_t)n * n, nfn = (size_t)nf * nf;
+    for (int q = 0; q < nRp; q++) {
+        f->R[q][0] = Rp[q][0];
+        f->R[q][1] = Rp[q][1];
+        f->R[q][2] = 0;
+        f->deg[q] = 1;
+    }
+    for (int r = 0; r < m->nR; r++) {
+        int q = 0;
+        while (Rp[q][0] != m->R[r][0] || Rp[q][1] != m->R[r][1]) q++;
+        int dz = m->R[r][2];
+        if (dz < -L || dz > L) continue;
+        const double complex *h = m->H + (size_t)r * nn;
+        double complex *hf = f->H + (size_t)q * nfn;
+        for (int j = 0; j < N; j++) {
+            int jp = j + dz;
+            if (jp < 0 || jp >= N) continue;
+            for (int x = 0; x < n; x++)
+                for (int y = 0; y < n; y++) {
+                    double complex v = h[(size_t)x * n + y] / m->deg[r];
+                    if (v == 0) continue;
+                    hf[(size_t)film_state(bulk, N, j, x) * nf + film_state(bulk, N, jp, y)] += v;
+                }
+        }
+    }
+    free(Rp);
+    *out = f;
+    return 0;
 }
