@@ -25,6 +25,12 @@ typedef struct ms_entry {
     double cost;
     char content[65];   /* content hash (content.h), "" in sets written before it existed:
                            ms_content computes it then */
+    /* Family membership, from the card (tb_model.has_family ...) and stored in /families; not
+     * part of the /index table. */
+    int has_family;
+    char family[64], family_param[32], family_unit[16];
+    double family_value;
+    unsigned long long basis; /* writer only: hash of the basis (orbitals' l, spin layout) */
 } ms_entry;
 
 /* Suffix of the file a set is written to before it takes its name (see ms_create). */
@@ -74,6 +80,10 @@ int ms_open(const char *path, ms_set **out, bs_err *err);
 /* Number of entries, and entry i (0 <= i < count; borrowed, valid until ms_free). */
 int ms_count(const ms_set *s);
 const ms_entry *ms_entry_at(const ms_set *s, int i);
+
+/* Families of the set: the distinct family names in order of first appearance (names[i] borrowed
+ * from the entries, valid until ms_free), at most cap of them; returns the count. */
+int ms_families(const ms_set *s, const char **names, int cap);
 
 /* Index of the entry with this id, or -1. */
 int ms_find(const ms_set *s, const char *id);

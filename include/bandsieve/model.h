@@ -55,6 +55,14 @@ typedef struct tb_model {
      * comment, orbital labels and meta), owned, NULL when the model did not come from a card.
      * It does not enter the content hash (content.h). */
     char *card_json;
+    /* Family membership (card key "family"): the material sits at family_value of parameter
+     * family_param (unit family_unit) along the path of family `family`. Members of one family
+     * share the basis (phasepath.h). has_family is 0 when the card gives none. */
+    int has_family;
+    char family[64];
+    char family_param[32];
+    char family_unit[16];
+    double family_value;
 } tb_model;
 
 /* Allocates a model for norb states, nspatial orbitals and nR lattice vectors, all arrays zeroed.

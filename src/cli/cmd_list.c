@@ -15,8 +15,10 @@ static void list_help(FILE *out)
             "Prints what a material set holds, one line per material: id, dimension, basis states,\n"
             "lattice vectors, occupied bands, spin, status (ok; broken: stored unvalidated or only\n"
             "as an error, screened as invalid) and the estimated cost per k-point (norb^3 + nR norb^2).\n\n"
+            "Families (cards with a \"family\" key) are listed after the materials: name, parameter,\n"
+            "unit, members and the range of values; `bandsieve path --family NAME SET.h5` follows one.\n\n"
             "  --json      one JSON object: path, description, invented, count, content (the set's\n"
-            "              content hash), materials[] (with each entry's content hash)\n"
+            "              content hash), materials[] (with each entry's content hash), families[]\n"
             "  -h, --help  this text\n");
 }
 
@@ -34,6 +36,36 @@ static void list_table(const ms_set *set)
         const ms_entry *e = ms_entry_at(set, i);
         printf("%-32s %3d %6d %7d %5d %4s %-7s %12.4g\n", e->id, e->dim, e->norb, e->nR, e->nocc,
                e->spinful ? "yes" : "no", status_name(e->status), e->cost);
+    }
+}
+
+/* Members of family `name`: count and value range. */
+static void family_stats(const ms_set *set, const char *name, int *n, double *lo, double *hi, const ms_entry **first)
+{
+    *n = 0;
+    *first = NULL;
+    for (int i = 0; i < ms_count(set); i++) {
+        const ms_entry *e = ms_entry_at(set, i);
+        if (!e->has_family || strcmp(e->family, name) != 0) continue;
+        if (*n == 0 || e->family_value < *lo) *lo = e->family_value;
+        if (*n == 0 || e->family_value > *hi) *hi = e->family_value;
+        if (!*first) *first = e;
+        (*n)++;
+    }
+}
+
+static void list_families(const ms_set *set)
+{
+    const char *names[256];
+    int nf = ms_families(set, names, 256);
+    if (nf == 0) return;
+    printf("\nfamilies\n%-24s %-16s %-8s %7s  %s\n", "family", "parameter", "unit", "members", "values");
+    for (int f = 0; f < nf; f++) {
+        int n;
+        double lo = 0, hi = 0;
+        const ms_entry *e;
+        family_stats(set, names[f], &n, &lo, &hi, &e);
+        printf("%-24s %-16s %-8s %7d  %g .. %g\n", names[f], e->family_param, e->family_unit, n, lo, hi);
     }
 }
 
@@ -61,7 +93,31 @@ static int list_json(const ms_set *set)
         cJSON_AddStringToObject(o, "status", status_name(e->status));
         cJSON_AddNumberToObject(o, "cost", e->cost);
         if (e->content[0]) cJSON_AddStringToObject(o, "content", e->content);
+        if (e->has_family) {
+            cJSON *f = cJSON_AddObjectToObject(o, "family");
+            cJSON_AddStringToObject(f, "name", e->family);
+            cJSON_AddStringToObject(f, "parameter", e->family_param);
+            cJSON_AddStringToObject(f, "unit", e->family_unit);
+            cJSON_AddNumberToObject(f, "value", e->family_value);
+        }
         cJSON_AddItemToArray(list, o);
+    }
+    const char *names[256];
+    int nf = ms_families(set, names, 256);
+    cJSON *fams = cJSON_AddArrayToObject(root, "families");
+    for (int f = 0; f < nf; f++) {
+        int n;
+        double lo = 0, hi = 0;
+        const ms_entry *e;
+        family_stats(set, names[f], &n, &lo, &hi, &e);
+        cJSON *o = cJSON_CreateObject();
+        cJSON_AddStringToObject(o, "name", names[f]);
+        cJSON_AddStringToObject(o, "parameter", e->family_param);
+        cJSON_AddStringToObject(o, "unit", e->family_unit);
+        cJSON_AddNumberToObject(o, "members", n);
+        cJSON_AddNumberToObject(o, "from", lo);
+        cJSON_AddNumberToObject(o, "to", hi);
+        cJSON_AddItemToArray(fams, o);
     }
     char *text = cJSON_Print(root);
     cJSON_Delete(root);
@@ -101,7 +157,10 @@ int cmd_list(int argc, char **argv)
     }
     int rc = 0;
     if (json) rc = list_json(set);
-    else list_table(set);
+    else {
+        list_table(set);
+        list_families(set);
+    }
     ms_free(set);
     return rc;
 }

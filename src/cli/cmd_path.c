@@ -195,7 +195,7 @@ cJSON *path_to_json(const pp_result *r, const char *source, const char *unit, in
     return j;
 }
 
-static void print_path(const pp_result *r, const char *source, const char *unit, int members)
+void path_print(const pp_result *r, const char *source, const char *unit, int members)
 {
     const char *u = unit && unit[0] ? unit : "";
     printf("path of %s over %s = %g..%g %s (%dD)\n", source, r->param, r->x_lo, r->x_hi, u, r->dim);
@@ -399,7 +399,7 @@ int cmd_path(int argc, char **argv)
             free(text);
             cJSON_Delete(j);
         } else {
-            print_path(&r, label, unit, members);
+            path_print(&r, label, unit, members);
         }
     }
     pp_result_clear(&r);

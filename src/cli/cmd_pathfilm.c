@@ -9,6 +9,7 @@
 #include <cjson/cJSON.h>
 
 #include "bandsieve/diagnosis.h"
+#include "bandsieve/matset.h"
 #include "bandsieve/slab.h"
 #include "bandsieve/source.h"
 #include "cliutil.h"
@@ -129,9 +130,96 @@ int path_films(const char *source, const double miller_d[3], const char *layers,
     return status;
 }
 
+typedef struct member_ref {
+    int index;
+    double value;
+} member_ref;
+
+static int cmp_member(const void *a, const void *b)
+{
+    double x = ((const member_ref *)a)->value, y = ((const member_ref *)b)->value;
+    return (x > y) - (x < y);
+}
+
 int path_family(const char *set_path, const char *family, const pp_opts *o, int json)
 {
-    fprintf(stderr, "bandsieve path: families in material sets are not supported by this build (%s, %s)\n",
-            set_path, family);
-    return 2;
+    bs_err err;
+    bs_err_clear(&err);
+    ms_set *set = NULL;
+    if (ms_open(set_path, &set, &err) != 0) {
+        fprintf(stderr, "bandsieve path: %s\n", err.msg);
+        return 1;
+    }
+    int n = 0, status = 0;
+    member_ref *refs = calloc((size_t)ms_count(set) + 1, sizeof *refs);
+    tb_model **ms = calloc((size_t)ms_count(set) + 1, sizeof *ms);
+    double *vals = calloc((size_t)ms_count(set) + 1, sizeof *vals);
+    const ms_entry *first = NULL;
+    if (!refs || !ms || !vals) { fprintf(stderr, "bandsieve path: out of memory\n"); status = 1; goto done; }
+    for (int i = 0; i < ms_count(set); i++) {
+        const ms_entry *e = ms_entry_at(set, i);
+        if (!e->has_family || strcmp(e->family, family) != 0) continue;
+        if (!first) first = e;
+        refs[n].index = i;
+        refs[n].value = e->family_value;
+        n++;
+    }
+    if (n < 2) {
+        fprintf(stderr, "bandsieve path: %s: family '%s' has %d member(s); a path needs two or more "
+                "(bandsieve list %s)\n", set_path, family, n, set_path);
+        status = 2;
+        goto done;
+    }
+    qsort(refs, (size_t)n, sizeof *refs, cmp_member);
+    for (int i = 0; i < n && status == 0; i++) {
+        vals[i] = refs[i].value;
+        if (ms_read(set, refs[i].index, &ms[i], &err) != 0) {
+            fprintf(stderr, "bandsieve path: %s\n", err.msg);
+            status = 1;
+        }
+    }
+    pp_source *src = NULL;
+    pp_result r;
+    pp_result_init(&r);
+    if (status == 0 && pp_source_members((const tb_model *const *)ms, vals, n, &src, &err) != 0) {
+        fprintf(stderr, "bandsieve path: %s: family %s: %s\n", set_path, family, err.msg);
+        status = 1;
+    }
+    if (status == 0 && pp_run(src, first->family_param, vals[0], vals[n - 1], o, &r, &err) != 0) {
+        fprintf(stderr, "bandsieve path: family %s: %s (%s)\n", family, err.msg, bs_err_name(err.code));
+        status = 1;
+    }
+    if (status == 0) {
+        char label[400];
+        snprintf(label, sizeof label, "%s family %s (%d members)", set_path, family, n);
+        if (json) {
+            cJSON *j = path_to_json(&r, label, first->family_unit, 1);
+            cJSON *mem = cJSON_AddArrayToObject(cJSON_GetObjectItem(j, "path"), "members");
+            for (int i = 0; i < n; i++) {
+                cJSON *m = cJSON_CreateObject();
+                cJSON_AddStringToObject(m, "id", ms[i]->id);
+                cJSON_AddNumberToObject(m, "value", vals[i]);
+                cJSON_AddItemToArray(mem, m);
+            }
+            char *text = cJSON_PrintUnformatted(j);
+            if (text) printf("%s\n", text);
+            free(text);
+            cJSON_Delete(j);
+        } else {
+            printf("members:");
+            for (int i = 0; i < n; i++) printf(" %s (%g %s)", ms[i]->id, vals[i], first->family_unit);
+            printf("\n");
+            path_print(&r, label, first->family_unit, 1);
+        }
+    }
+    pp_result_clear(&r);
+    pp_source_free(src);
+done:
+    if (ms)
+        for (int i = 0; i < n; i++) tb_model_free(ms[i]);
+    free(ms);
+    free(vals);
+    free(refs);
+    ms_free(set);
+    return status;
 }

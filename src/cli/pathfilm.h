@@ -13,4 +13,7 @@ int path_family(const char *set_path, const char *family, const pp_opts *o, int 
 /* The JSON object of a path (cmd_path.c); the caller owns it. */
 cJSON *path_to_json(const pp_result *r, const char *source, const char *unit, int members);
 
+/* The readable report of a path on stdout (cmd_path.c). */
+void path_print(const pp_result *r, const char *source, const char *unit, int members);
+
 #endif

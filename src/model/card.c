@@ -143,7 +143,8 @@ static int get_vector(const card_ctx *c, const cJSON *j, const char *key, const 
 
 static const char *const card_keys[] = {"id", "dimension", "lattice", "hoppings", "occupied_bands",
                                         "electrons", "spinful", "spin_layout", "orbitals", "formula",
-                                        "source", "fermi_energy_eV", "inversion", "magnetism", "comment", "meta", NULL};
+                                        "source", "fermi_energy_eV", "inversion", "magnetism", "comment", "meta", "family", NULL};
+static const char *const family_keys[] = {"name", "parameter", "unit", "value", NULL};
 
 /* Edit distance (insertions, deletions, substitutions, and swaps of neighbours) between two
  * short keys, capped at 9: enough to suggest the key a typo was meant to be. */
@@ -470,6 +471,32 @@ static int read_inversion(const card_ctx *c, const cJSON *root, tb_model *m)
     return rc;
 }
 
+/* "family": {"name": ..., "parameter": ..., "unit": ..., "value": ...}; unit is optional. */
+static int read_family(const card_ctx *c, const cJSON *root, tb_model *m)
+{
+    const cJSON *f = cJSON_GetObjectItemCaseSensitive(root, "family");
+    if (!f) return 0;
+    if (!cJSON_IsObject(f))
+        return fail_key(c, BS_EPARSE, "family", "family", 0, "expected an object {name, parameter, unit, value}, "
+                        "found %s", json_type(f));
+    int rc = check_unknown_keys(c, f, family_keys, "family.", 0);
+    if (rc == 0) rc = get_string(c, f, "name", 1, m->family, sizeof m->family);
+    if (rc == 0) rc = get_string(c, f, "parameter", 1, m->family_param, sizeof m->family_param);
+    if (rc == 0) rc = get_string(c, f, "unit", 0, m->family_unit, sizeof m->family_unit);
+    if (rc != 0) return rc;
+    if (!card_id_ok(m->family))
+        return fail_key(c, BS_EINVAL, "name", "family.name", 0, "'%s': expected 1-63 characters from [A-Za-z0-9_.+-]",
+                        m->family);
+    if (!m->family_param[0]) return fail_key(c, BS_EINVAL, "parameter", "family.parameter", 0, "empty");
+    const cJSON *v = cJSON_GetObjectItemCaseSensitive(f, "value");
+    if (!v) return bs_fail(c->err, BS_EPARSE, "%s: missing key 'family.value'", c->path);
+    if (!cJSON_IsNumber(v) || !isfinite(v->valuedouble))
+        return fail_key(c, BS_EPARSE, "value", "family.value", 0, "expected a finite number, found %s", json_type(v));
+    m->family_value = v->valuedouble;
+    m->has_family = 1;
+    return 0;
+}
+
 static int read_optional(const card_ctx *c, const cJSON *root, tb_model *m)
 {
     int rc = get_string(c, root, "formula", 0, m->formula, sizeof m->formula);
@@ -534,6 +561,7 @@ static int build_model(const card_ctx *c, const cJSON *root, const card_head *h,
     m->spin_layout = h->layout;
     if ((rc = read_orbitals(c, root, m)) != 0) goto done;
     if ((rc = read_optional(c, root, m)) != 0) goto done;
+    if ((rc = read_family(c, root, m)) != 0) goto done;
     if ((rc = read_inversion(c, root, m)) != 0) goto done;
     if (!(flags & CARD_NO_VALIDATE)) {
         rc = tb_model_validate(m, BS_HERMITIAN_TOL_EV, h->table, c->err);
@@ -658,6 +686,13 @@ static cJSON *card_json(const tb_model *m, const char *table_name)
         cJSON_AddStringToObject(root, "spin_layout", m->spin_layout == TB_SPIN_INTERLEAVED ? "interleaved" : "blocks");
     if (m->has_fermi) cJSON_AddNumberToObject(root, "fermi_energy_eV", m->fermi_ev);
     if (m->magnetism != TB_MAG_UNKNOWN) cJSON_AddStringToObject(root, "magnetism", tb_magnetism_name(m->magnetism));
+    if (m->has_family) {
+        cJSON *f = cJSON_AddObjectToObject(root, "family");
+        cJSON_AddStringToObject(f, "name", m->family);
+        cJSON_AddStringToObject(f, "parameter", m->family_param);
+        if (m->family_unit[0]) cJSON_AddStringToObject(f, "unit", m->family_unit);
+        cJSON_AddNumberToObject(f, "value", m->family_value);
+    }
     cJSON *orb = cJSON_AddArrayToObject(root, "orbitals");
     for (int i = 0; orb && i < m->nspatial; i++) {
         cJSON *o = cJSON_CreateObject();

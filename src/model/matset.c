@@ -428,6 +428,10 @@ static int write_attrs(hid_t g, const tb_model *m, int status)
               attr_write_int(g, "has_fermi", m->has_fermi) < 0 || attr_write_double(g, "fermi_ev", m->fermi_ev) < 0 ||
               attr_write_int(g, "has_inversion_op", m->has_inversion_op) < 0 ||
               attr_write_int(g, "magnetism", m->magnetism) < 0;
+    if (!bad && m->has_family)
+        bad = attr_write_str(g, "family", m->family) < 0 || attr_write_str(g, "family_parameter", m->family_param) < 0 ||
+              attr_write_str(g, "family_unit", m->family_unit) < 0 ||
+              attr_write_double(g, "family_value", m->family_value) < 0;
     return bad ? -1 : 0;
 }
 
@@ -485,6 +489,19 @@ static void entry_of(const tb_model *m, int status, ms_entry *e)
     double n = m->norb;
     e->cost = n * n * n + (double)m->nR * n * n;
     tb_content_hash(m, e->content);
+    if (m->has_family) {
+        e->has_family = 1;
+        snprintf(e->family, sizeof e->family, "%s", m->family);
+        snprintf(e->family_param, sizeof e->family_param, "%s", m->family_param);
+        snprintf(e->family_unit, sizeof e->family_unit, "%s", m->family_unit);
+        e->family_value = m->family_value;
+    }
+    /* FNV-1a over what interpolation between members needs to agree on */
+    unsigned long long h = 1469598103934665603ULL;
+    int key[6] = {m->dim, m->norb, m->nspatial, m->spinful, m->spin_layout, m->nocc};
+    for (int i = 0; i < 6; i++) { h ^= (unsigned long long)(unsigned)key[i]; h *= 1099511628211ULL; }
+    for (int o = 0; o < m->nspatial && m->orb_l; o++) { h ^= (unsigned long long)(unsigned)m->orb_l[o]; h *= 1099511628211ULL; }
+    e->basis = h;
 }
 
 /* Content hash of an error entry: its message stands for its content. */
@@ -501,10 +518,34 @@ static void error_content(const char *id, int code, const char *message, char he
     bs_sha256_hex(d, hex);
 }
 
+/* A family member must share the basis of the family's first member and take a new value. */
+static int family_check(const ms_set *s, const ms_entry *e, bs_err *err)
+{
+    if (!e->has_family) return 0;
+    for (int i = 0; i < s->n; i++) {
+        const ms_entry *o = &s->entries[i];
+        if (!o->has_family || strcmp(o->family, e->family) != 0) continue;
+        if (strcmp(o->family_param, e->family_param) != 0)
+            return bs_fail(err, BS_EINVAL, "%s: members '%s' and '%s' of family %s give different parameters "
+                           "('%s', '%s')", s->path, o->id, e->id, e->family, o->family_param, e->family_param);
+        if (o->basis != e->basis)
+            return bs_fail(err, BS_EINVAL, "%s: members '%s' and '%s' of family %s do not share a basis (states, "
+                           "orbitals and their l, spin layout, filling)", s->path, o->id, e->id, e->family);
+        if (o->family_value == e->family_value)
+            return bs_fail(err, BS_EINVAL, "%s: members '%s' and '%s' of family %s sit at the same value %g",
+                           s->path, o->id, e->id, e->family, e->family_value);
+    }
+    return 0;
+}
+
 static int add_impl(ms_set *s, const tb_model *m, int status, bs_err *err)
 {
     hid_t g;
-    int rc = new_group(s, m->id, &g, err);
+    ms_entry pre;
+    entry_of(m, status, &pre);
+    int rc = family_check(s, &pre, err);
+    if (rc != 0) return rc;
+    rc = new_group(s, m->id, &g, err);
     if (rc != 0) return rc;
     if (write_attrs(g, m, status) < 0 || write_arrays(g, m) < 0 || write_card(g, m->card_json) < 0)
         rc = h5_fail(err, "%s:/materials/%s: cannot write", s->path, m->id);
@@ -561,11 +602,128 @@ int ms_add_error(ms_set *s, const char *id, int code, const char *message, bs_er
     return rc;
 }
 
+/* ---- /families: one row per family member ---- */
+
+typedef struct ms_family_row {
+    char id[128];
+    char family[64];
+    char parameter[32];
+    char unit[16];
+    double value;
+} ms_family_row;
+
+static hid_t family_type(void)
+{
+    hid_t t = H5Tcreate(H5T_COMPOUND, sizeof(ms_family_row));
+    const char *names[4] = {"id", "family", "parameter", "unit"};
+    size_t off[4] = {HOFFSET(ms_family_row, id), HOFFSET(ms_family_row, family), HOFFSET(ms_family_row, parameter),
+                     HOFFSET(ms_family_row, unit)};
+    size_t len[4] = {128, 64, 32, 16};
+    for (int i = 0; i < 4; i++) {
+        hid_t st = H5Tcopy(H5T_C_S1);
+        H5Tset_size(st, len[i]);
+        H5Tset_strpad(st, H5T_STR_NULLTERM);
+        H5Tinsert(t, names[i], off[i], st);
+        H5Tclose(st);
+    }
+    H5Tinsert(t, "value", HOFFSET(ms_family_row, value), H5T_NATIVE_DOUBLE);
+    return t;
+}
+
+static int families_write(ms_set *s, bs_err *err)
+{
+    int n = 0;
+    for (int i = 0; i < s->n; i++) n += s->entries[i].has_family;
+    if (n == 0) return 0;
+    ms_family_row *rows = calloc((size_t)n, sizeof *rows);
+    if (!rows) return bs_fail(err, BS_ENOMEM, "%s:/families: out of memory", s->path);
+    n = 0;
+    for (int i = 0; i < s->n; i++) {
+        const ms_entry *e = &s->entries[i];
+        if (!e->has_family) continue;
+        snprintf(rows[n].id, sizeof rows[n].id, "%s", e->id);
+        snprintf(rows[n].family, sizeof rows[n].family, "%s", e->family);
+        snprintf(rows[n].parameter, sizeof rows[n].parameter, "%s", e->family_param);
+        snprintf(rows[n].unit, sizeof rows[n].unit, "%s", e->family_unit);
+        rows[n].value = e->family_value;
+        n++;
+    }
+    hid_t t = family_type();
+    hsize_t dims[1] = {(hsize_t)n};
+    hid_t sp = H5Screate_simple(1, dims, NULL);
+    hid_t d = H5Dcreate2(s->file, "families", t, sp, H5P_DEFAULT, H5P_DEFAULT, H5P_DEFAULT);
+    int ok = t >= 0 && sp >= 0 && d >= 0 && H5Dwrite(d, t, H5S_ALL, H5S_ALL, H5P_DEFAULT, rows) >= 0;
+    int rc = ok ? 0 : h5_fail(err, "%s:/families: cannot write", s->path);
+    if (d >= 0) H5Dclose(d);
+    if (sp >= 0) H5Sclose(sp);
+    if (t >= 0) H5Tclose(t);
+    free(rows);
+    return rc;
+}
+
+/* Optional: sets that hold no family have no /families. */
+static int families_read(ms_set *s, bs_err *err)
+{
+    if (H5Lexists(s->file, "families", H5P_DEFAULT) <= 0) return 0;
+    hid_t d = H5Dopen2(s->file, "families", H5P_DEFAULT);
+    if (d < 0) return h5_fail(err, "%s:/families: cannot open", s->path);
+    hid_t sp = H5Dget_space(d), t = family_type();
+    hssize_t n = sp < 0 ? -1 : H5Sget_simple_extent_npoints(sp);
+    ms_family_row *rows = NULL;
+    int rc = 0;
+    if (sp < 0 || H5Sget_simple_extent_ndims(sp) != 1 || n < 0 || n > MS_MAX_ENTRIES) {
+        rc = bs_fail(err, BS_EPARSE, "%s:/families: expected a list of at most %d rows", s->path, MS_MAX_ENTRIES);
+        goto done;
+    }
+    rows = calloc(n > 0 ? (size_t)n : 1, sizeof *rows);
+    if (!rows) { rc = bs_fail(err, BS_ENOMEM, "%s:/families: out of memory", s->path); goto done; }
+    if (n > 0 && H5Dread(d, t, H5S_ALL, H5S_ALL, H5P_DEFAULT, rows) < 0) {
+        rc = h5_fail(err, "%s:/families: cannot read", s->path);
+        goto done;
+    }
+    for (hssize_t r = 0; r < n; r++) {
+        rows[r].id[sizeof rows[r].id - 1] = rows[r].family[sizeof rows[r].family - 1] = '\0';
+        rows[r].parameter[sizeof rows[r].parameter - 1] = rows[r].unit[sizeof rows[r].unit - 1] = '\0';
+        int i = ms_find(s, rows[r].id);
+        if (i < 0) {
+            rc = bs_fail(err, BS_EPARSE, "%s:/families: row %lld names '%s', which is not in /index", s->path,
+                         (long long)r, rows[r].id);
+            goto done;
+        }
+        ms_entry *e = &s->entries[i];
+        e->has_family = 1;
+        snprintf(e->family, sizeof e->family, "%s", rows[r].family);
+        snprintf(e->family_param, sizeof e->family_param, "%s", rows[r].parameter);
+        snprintf(e->family_unit, sizeof e->family_unit, "%s", rows[r].unit);
+        e->family_value = rows[r].value;
+    }
+done:
+    free(rows);
+    H5Tclose(t);
+    if (sp >= 0) H5Sclose(sp);
+    H5Dclose(d);
+    return rc;
+}
+
+int ms_families(const ms_set *s, const char **names, int cap)
+{
+    int n = 0;
+    for (int i = 0; i < s->n; i++) {
+        const ms_entry *e = &s->entries[i];
+        if (!e->has_family) continue;
+        int seen = 0;
+        for (int j = 0; j < n && !seen; j++) seen = strcmp(names[j], e->family) == 0;
+        if (!seen && n < cap) names[n++] = e->family;
+    }
+    return n;
+}
+
 static int close_impl(ms_set *s, bs_err *err)
 {
     int rc = 0;
     if (s->writer) {
         rc = index_write(s, err);
+        if (rc == 0) rc = families_write(s, err);
         if (rc == 0 && (attr_write_str(s->file, "description", s->description) < 0 ||
                         attr_write_int(s->file, "invented", s->invented) < 0))
             rc = h5_fail(err, "%s: cannot write the set's metadata", s->partial);
@@ -639,6 +797,7 @@ static int open_impl(const char *path, ms_set **out, bs_err *err)
     if (s->file < 0) rc = h5_fail(err, "%s: cannot open material set", path);
     if (rc == 0) rc = check_header(s, err);
     if (rc == 0) rc = index_read(s, err);
+    if (rc == 0) rc = families_read(s, err);
     if (rc != 0) ms_free(s);
     else *out = s;
     return rc;
@@ -704,6 +863,15 @@ static int read_model_attrs(hid_t g, const char *where, tb_model *m, bs_err *err
     if (attr_read_int(g, "magnetism", &m->magnetism) < 0) m->magnetism = TB_MAG_UNKNOWN;
     if (m->magnetism < TB_MAG_UNKNOWN || m->magnetism > TB_MAG_MAGNETIC)
         return read_fail(err, BS_EPARSE, "%s: attribute 'magnetism' is %d, expected 0..2", where, m->magnetism);
+    if (H5Aexists(g, "family") > 0) {
+        if (attr_read_str(g, "family", m->family, sizeof m->family) < 0 ||
+            attr_read_str(g, "family_parameter", m->family_param, sizeof m->family_param) < 0 ||
+            attr_read_str(g, "family_unit", m->family_unit, sizeof m->family_unit) < 0 ||
+            attr_read_double(g, "family_value", &m->family_value) < 0)
+            return read_fail(err, BS_EPARSE, "%s: family attributes incomplete (family, family_parameter, family_unit, "
+                           "family_value)", where);
+        m->has_family = 1;
+    }
     int want = m->spinful ? (m->spin_layout == TB_SPIN_BLOCKS || m->spin_layout == TB_SPIN_INTERLEAVED)
                           : m->spin_layout == TB_SPIN_NONE;
     if (!want) return bs_fail(err, BS_EPARSE, "%s: spin_layout %d does not fit spinful = %d", where, m->spin_layout,
