@@ -113,6 +113,7 @@ typedef struct pp_result {
     int dim;
     double x_lo, x_hi;
     char param[64];
+    double tol_x;         /* the tolerance the closings were refined to */
     int nsamples;
     double *xs, *gaps;    /* nsamples each, owned */
     int nclosing;
@@ -146,5 +147,18 @@ int pp_gap(const tb_model *m, int mesh, double *gap_ev, double k[3], bs_err *err
 void pp_kpoint_label(const tb_model *m, const double k[3], char *buf, int len, int *trim);
 
 const char *pp_event_name(int kind);
+
+/* Classes of a phase map: the diagnosis classes, "critical point" (a grid point within tol_x of a
+ * single-value closing) and "undetermined" for anything else. */
+enum { PP_CLASS_UNDETERMINED = 0, PP_CLASS_CRITICAL = 9, PP_NCLASS = 10 };
+const char *pp_class_name(int i);
+int pp_class_index(const char *cls);
+
+/* One row of a phase map: the path of s over [x_lo, x_hi] with its samples on the nx grid points
+ * x_lo + (x_hi - x_lo) i / (nx - 1); cls[i] is the class of the interval holding grid point i
+ * (PP_CLASS_CRITICAL within tol_x of a single-value closing), gap[i] the direct gap there. r
+ * (initialised by the caller) receives the path. nx >= 3. */
+int pp_map_row(const pp_source *s, const char *param, double x_lo, double x_hi, int nx, const pp_opts *o,
+               int *cls, double *gap, pp_result *r, bs_err *err);
 
 #endif

@@ -133,6 +133,7 @@ cJSON *path_to_json(const pp_result *r, const char *source, const char *unit, in
         cJSON_AddNumberToObject(o, "x", c->x);
         cJSON_AddNumberToObject(o, "x_lo", c->x_lo);
         cJSON_AddNumberToObject(o, "x_hi", c->x_hi);
+        cJSON_AddNumberToObject(o, "tolerance", r->tol_x);
         cJSON_AddNumberToObject(o, "gap_eV", c->gap_ev);
         cJSON *ks = cJSON_AddArrayToObject(o, "k");
         for (int q = 0; q < c->nk; q++) {
@@ -220,7 +221,7 @@ void path_print(const pp_result *r, const char *source, const char *unit, int me
         const pp_closing *c = &r->closings[i];
         printf("  %s\n", c->text);
         if (c->point) printf("      critical value %.8g, closed on [%.8g, %.8g], gap %.2g eV\n", c->x, c->x_lo, c->x_hi, c->gap_ev);
-        else printf("      edges %.8g and %.8g (each to %.1g)\n", c->x_lo, c->x_hi, 0.5 * (c->x_hi - c->x_lo) > 0 ? 1e-5 : 0);
+        else printf("      edges %.8g and %.8g (each to %.1g)\n", c->x_lo, c->x_hi, r->tol_x);
         for (int q = 0; q < c->nk; q++)
             printf("      k = (%.5f, %.5f, %.5f) %s%s\n", c->k[q][0], c->k[q][1], c->k[q][2],
                    c->at_trim[q] ? "TRIM " : "", c->k_label[q]);

@@ -16,5 +16,6 @@ int cmd_models(int argc, char **argv);
 int cmd_slab(int argc, char **argv);
 int cmd_symmetry(int argc, char **argv);
 int cmd_path(int argc, char **argv);
+int cmd_phasemap(int argc, char **argv);
 
 #endif

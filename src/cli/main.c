@@ -26,6 +26,7 @@ static const command COMMANDS[] = {
     {"slab", cmd_slab, "slab or ribbon of one material: surface states, crossings, surface spectra"},
     {"symmetry", cmd_symmetry, "crystal symmetry of one material: space group, kept operations, eigenvalues"},
     {"path", cmd_path, "follow a material along a parameter: gap closings, phases, Weyl-node tracks"},
+    {"phasemap", cmd_phasemap, "classes on a grid of two parameters of a built-in model (run under mpirun)"},
 };
 
 static void usage(FILE *out)

@@ -850,6 +850,7 @@ int pp_run(const pp_source *s, const char *param, double x_lo, double x_hi, cons
     if (o.track_steps <= 0) o.track_steps = 24;
     if (!(x_hi > x_lo)) return bs_fail(err, BS_EINVAL, "path range %g..%g is empty", x_lo, x_hi);
     snprintf(r->param, sizeof r->param, "%s", param);
+    r->tol_x = o.tol_x;
     r->x_lo = x_lo;
     r->x_hi = x_hi;
     gapfn f = {s, &o, 0};
@@ -1009,4 +1010,46 @@ done:
     r->gap_evals = f.nevals;
     r->seconds = bp_now() - t0;
     return rc;
+}
+
+static const char *const PP_CLASSES[PP_NCLASS] = {
+    "undetermined", "trivial insulator", "strong topological insulator", "weak topological insulator",
+    "2D topological insulator", "Chern insulator", "Weyl semimetal", "nodal-line semimetal", "metal",
+    "critical point"};
+
+const char *pp_class_name(int i) { return i >= 0 && i < PP_NCLASS ? PP_CLASSES[i] : "?"; }
+
+int pp_class_index(const char *cls)
+{
+    for (int i = 0; i < PP_NCLASS; i++)
+        if (strcmp(cls, PP_CLASSES[i]) == 0) return i;
+    return PP_CLASS_UNDETERMINED;
+}
+
+int pp_map_row(const pp_source *s, const char *param, double x_lo, double x_hi, int nx, const pp_opts *o,
+               int *cls, double *gap, pp_result *r, bs_err *err)
+{
+    if (nx < 3) return bs_fail(err, BS_EINVAL, "phase map: at least 3 points per row, got %d", nx);
+    pp_opts oo;
+    if (o) oo = *o;
+    else pp_opts_init(&oo);
+    oo.nsamples = nx;
+    int rc = pp_run(s, param, x_lo, x_hi, &oo, r, err);
+    if (rc != 0) return rc;
+    for (int i = 0; i < nx; i++) {
+        double x = r->xs[i];
+        gap[i] = r->gaps[i];
+        cls[i] = PP_CLASS_UNDETERMINED;
+        for (int c = 0; c < r->nclosing; c++)
+            if (r->closings[c].point && fabs(x - r->closings[c].x) <= r->tol_x) cls[i] = PP_CLASS_CRITICAL;
+        if (cls[i] == PP_CLASS_CRITICAL) continue;
+        for (int v = 0; v < r->ninterval; v++) {
+            const pp_interval *iv = &r->intervals[v];
+            if (x >= iv->x_lo - 1e-12 && x <= iv->x_hi + 1e-12) {
+                cls[i] = pp_class_index(iv->diag.cls);
+                if (!iv->gapless) break; /* an edge shared with a gapless interval goes to the gapped side */
+            }
+        }
+    }
+    return 0;
 }
