@@ -203,7 +203,7 @@ void path_print(const pp_result *r, const char *source, const char *unit, int me
     if (members)
         printf("  between members H(R) is interpolated linearly (virtual-crystal idea); for a pressure or\n"
                "  strain series this is a model of the path, not a calculation at each point\n");
-    printf("phase intervals\n");
+    printf("phase intervals (direct gap open or closed)\n");
     for (int i = 0; i < r->ninterval; i++) {
         const pp_interval *in = &r->intervals[i];
         char inv[64] = "";
@@ -213,7 +213,7 @@ void path_print(const pp_result *r, const char *source, const char *unit, int me
         else if (d->chern_status == DIAG_DONE && d->dim == 2) snprintf(inv, sizeof inv, "C = %d", d->chern);
         else if (d->nnodes > 0) snprintf(inv, sizeof inv, "%d nodes", d->nnodes);
         printf("  [%+.6f, %+.6f] %s  %-30s %-14s gap %.4g eV at %s = %.4g (confidence %.2f)\n", in->x_lo, in->x_hi,
-               in->gapless ? "gapless" : "gapped ", d->cls, inv, in->gap_ev, r->param, in->x_rep, d->confidence);
+               in->gapless ? "closed" : "open  ", d->cls, inv, in->gap_ev, r->param, in->x_rep, d->confidence);
     }
     printf("transitions\n");
     if (r->nclosing == 0) printf("  none: the gap stays open along the path\n");

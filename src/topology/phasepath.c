@@ -789,14 +789,17 @@ static int run_tracks(const pp_source *s, const pp_opts *o, pp_result *r, int iv
         int n = 0;
         for (int i = 0; i < ntr; i++) if (born_step[i] == step) ids[n++] = first_track + i;
         double x = step == 0 ? in->x_lo : in->x_lo + step * h;
-        if (n > 0 && pair_events(r, ecap, ids, n, 1, PP_EV_CREATED, x, iv) != 0) rc = BS_ENOMEM;
+        /* nodes present where the path starts were not created on it */
+        int at_start = step == 0 && in->x_lo <= r->x_lo;
+        if (n > 0 && !at_start && pair_events(r, ecap, ids, n, 1, PP_EV_CREATED, x, iv) != 0) rc = BS_ENOMEM;
         n = 0;
         for (int i = 0; i < ntr; i++) {
             int d = died_step[i] < 0 ? nsteps : died_step[i];
             if (d == step + 1) ids[n++] = first_track + i;
         }
         x = step == nsteps - 1 ? in->x_hi : in->x_lo + (step + 1) * h;
-        if (rc == 0 && n > 0 && pair_events(r, ecap, ids, n, 0, PP_EV_ANNIHILATED, x, iv) != 0) rc = BS_ENOMEM;
+        int at_end = step == nsteps - 1 && in->x_hi >= r->x_hi;
+        if (rc == 0 && n > 0 && !at_end && pair_events(r, ecap, ids, n, 0, PP_EV_ANNIHILATED, x, iv) != 0) rc = BS_ENOMEM;
     }
     if (rc == BS_ENOMEM) bs_fail(err, BS_ENOMEM, "out of memory for node events");
     free(ids);
