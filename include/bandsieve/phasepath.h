@@ -52,7 +52,7 @@ typedef struct pp_opts {
     int nsamples;         /* uniform samples of the gap (0: 41) */
     double tol_x;         /* tolerance on closing positions and interval edges (0: 1e-5) */
     double closed_ev;     /* a refined direct gap below this is closed (0: 1e-6 eV) */
-    int gap_mesh;         /* k-mesh of the gap function (0: the gap search's default) */
+    int gap_mesh;         /* k-mesh of the gap scan and node search (0: diag_default_mesh) */
     int track_steps;      /* continuation steps across a gapless interval (0: 24) */
     int no_tracks;        /* skip the node tracks */
     diag_opts diag;       /* for the diagnoses of the intervals */

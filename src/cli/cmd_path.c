@@ -43,7 +43,7 @@ static void path_help(FILE *out)
             "  --samples N          uniform gap samples (default 41)\n"
             "  --tol T              tolerance on closing positions and edges (default 1e-5)\n"
             "  --closed-ev E        a refined direct gap below E counts as closed (default 1e-6)\n"
-            "  --mesh N             k-mesh of the gap scan (default 16 in 3D, 48 in 2D)\n"
+            "  --mesh N             k-mesh of the gap scan (default 14 in 3D, 36 in 2D)\n"
             "  --track-steps N      continuation steps across a gapless interval (default 24)\n"
             "  --no-tracks          skip the Weyl-node tracks\n"
             "  --direction h,k,l    film: Miller indices of the plane\n"

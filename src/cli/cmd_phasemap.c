@@ -26,7 +26,7 @@ static void phasemap_help(FILE *out)
             "  -o, --output FILE  HDF5 output (required)\n"
             "  --svg FILE         also a simple SVG of the classes (a stopgap picture)\n"
             "  --tol T            tolerance on closings and edges in x (default 1e-4)\n"
-            "  --mesh N           k-mesh of the gap scan (default 16 in 3D, 48 in 2D)\n"
+            "  --mesh N           k-mesh of the gap scan (default 14 in 3D, 36 in 2D)\n"
             "  --closed-ev E      a refined gap below E is closed (default 1e-6)\n"
             "  --quiet            no map on stdout\n"
             "  -h, --help         this text\n");

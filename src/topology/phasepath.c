@@ -671,7 +671,7 @@ static int run_tracks(const pp_source *s, const pp_opts *o, pp_result *r, int iv
     int first_track = r->ntrack;
     int *alive = NULL, nalive = 0, *born_step = NULL, *died_step = NULL;
     int rc = 0;
-    int base_mesh = o->gap_mesh > 0 ? o->gap_mesh : 16;
+    int base_mesh = o->gap_mesh;
     for (int step = 0; step < nsteps && rc == 0; step++) {
         double x = in->x_lo + (step + 0.5) * h;
         tb_model *m = NULL;
@@ -863,15 +863,16 @@ int pp_run(const pp_source *s, const char *param, double x_lo, double x_hi, cons
     r->gaps = malloc((size_t)n * sizeof *r->gaps);
     double (*ks)[3] = malloc((size_t)n * sizeof *ks);
     if (!r->xs || !r->gaps || !ks) { free(ks); return bs_fail(err, BS_ENOMEM, "out of memory for path samples"); }
+    {
+        tb_model *m0 = NULL;
+        rc = pp_source_model(s, x_lo, &m0, err);
+        if (rc == 0) r->dim = m0->dim;
+        tb_model_free(m0);
+    }
+    if (o.gap_mesh <= 0) o.gap_mesh = diag_default_mesh(r->dim);
     for (int j = 0; j < n && rc == 0; j++) {
         r->xs[j] = x_lo + (x_hi - x_lo) * j / (n - 1);
         rc = gap_at(&f, r->xs[j], &r->gaps[j], ks[j], err);
-    }
-    {
-        tb_model *m0 = NULL;
-        if (rc == 0) rc = pp_source_model(s, x_lo, &m0, err);
-        if (rc == 0) r->dim = m0->dim;
-        tb_model_free(m0);
     }
     /* runs of closed samples */
     for (int j = 0; j < n && rc == 0; j++) {
