@@ -10,7 +10,7 @@ out="${BS_DEMO_DIR:-$here/demo-out}"
 mkdir -p "$out"
 # Open MPI refuses to start as root unless told; harmless otherwise.
 export OMPI_ALLOW_RUN_AS_ROOT=1 OMPI_ALLOW_RUN_AS_ROOT_CONFIRM=1
-[ -f "$out/jq-demo.h5" ] || "$bin" demo-set -o "$out/jq-demo.h5" --count 300 --seed 2026
+[ -f "$out/jq-demo.h5" ] || "$bin" demo-set -o "$out/jq-demo.h5" --count 300 --seed 2026 --families
 # Two ranks: a coordinator and one worker (P = cores + 1 also works: the coordinator sleeps).
 # It exits 0 although a few invented entries are broken on purpose: they are counted, not fatal.
 mpirun -n 2 --oversubscribe "$bin" screen "$out/jq-demo.h5" -c "$out/jq-demo.sqlite"
@@ -23,3 +23,8 @@ echo "== candidates (first 25; all with: $bin query $out/jq-demo.sqlite --view c
 echo
 echo "== entries that could not be screened"
 "$bin" query "$out/jq-demo.sqlite" --view failures
+echo
+echo "== transitions along the invented families (bandsieve path --family; H(R) interpolated between members)"
+for fam in Jo2Qu-pressure JaQi1-xQox; do
+  "$bin" path --family "$fam" "$out/jq-demo.h5" --samples 21 --track-steps 8 | sed -n '/^transitions/,/^Weyl-node/p' || true
+done

@@ -16,6 +16,11 @@
  * say it is invented. Errors from the set writer and the model builder. */
 int demo_write_set(const char *path, int count, uint64_t seed, bs_err *err);
 
+/* As demo_write_set; with families set, also 7 entries in two invented families (card key
+ * "family"): Jo2Qu-pressure (5 members, 0..8 GPa) and the alloy JaQi1-xQox (end members at x = 0
+ * and 1), ids JQF-*. */
+int demo_write_set_families(const char *path, int count, uint64_t seed, int families, bs_err *err);
+
 /* The spec (lm_build syntax) and invented formula of demo entry i, for tests and listings:
  * spec and formula receive at most speclen / formlen bytes; *broken is the kind of damage for a
  * broken entry (0 none, 1 non-Hermitian, 2 occupied_bands out of range, 3 NaN, 4 unreadable card);

@@ -12,7 +12,7 @@
 
 static void demo_help(FILE *out)
 {
-    fprintf(out, "usage: bandsieve demo-set -o SET.h5 [--count N] [--seed S] [--force]\n\n"
+    fprintf(out, "usage: bandsieve demo-set -o SET.h5 [--count N] [--seed S] [--force] [--families]\n\n"
                  "Writes the INVENTED demonstration set: fictitious compounds (the Jo-Qu family), each a\n"
                  "built-in published lattice model with drawn parameters, plus a few broken entries, so a\n"
                  "screen meets every class and status. Not real materials.\n\n"
@@ -20,6 +20,9 @@ static void demo_help(FILE *out)
                  "  --count N       entries (default 300, at least 12)\n"
                  "  --seed S        generator seed (default 2026): same seed, same set\n"
                  "  --force         replace SET.h5 if it exists (otherwise an existing file is refused)\n"
+                 "  --families      also two invented families (bandsieve list shows them): a pressure\n"
+                 "                  series Jo2Qu-pressure (0..8 GPa) and an alloy JaQi1-xQox (x = 0, 1),\n"
+                 "                  7 more entries (ids JQF-*) for bandsieve path --family\n"
                  "  -h, --help      this text\n");
 }
 
@@ -27,7 +30,9 @@ int cmd_demo_set(int argc, char **argv)
 {
     static const struct option longopts[] = {
         {"output", required_argument, NULL, 'o'}, {"count", required_argument, NULL, 'n'},
-        {"seed", required_argument, NULL, 's'}, {"force", no_argument, NULL, 'f'}, {"help", no_argument, NULL, 'h'}, {NULL, 0, NULL, 0}};
+        {"seed", required_argument, NULL, 's'}, {"force", no_argument, NULL, 'f'},
+        {"families", no_argument, NULL, 'F'}, {"help", no_argument, NULL, 'h'}, {NULL, 0, NULL, 0}};
+    int families = 0;
     const char *path = NULL;
     long count = 300, seed = 2026;
     int force = 0, c;
@@ -37,6 +42,7 @@ int cmd_demo_set(int argc, char **argv)
         case 'h': demo_help(stdout); return 0;
         case 'o': path = optarg; break;
         case 'f': force = 1; break;
+        case 'F': families = 1; break;
         case 'n':
             if (cli_parse_int(optarg, 12, 1000000, &count)) { fprintf(stderr, "bandsieve demo-set: --count expects 12..1000000, got '%s'\n", optarg); return 2; }
             break;
@@ -61,11 +67,12 @@ int cmd_demo_set(int argc, char **argv)
     cli_remove_on_signal(partial);
     bs_err err;
     bs_err_clear(&err);
-    if (demo_write_set(path, (int)count, (uint64_t)seed, &err) != 0) {
+    if (demo_write_set_families(path, (int)count, (uint64_t)seed, families, &err) != 0) {
         fprintf(stderr, "bandsieve demo-set: %s\n", err.msg);
         return 1;
     }
-    fprintf(stderr, "bandsieve demo-set: wrote %ld invented entries to %s\n", count, path);
+    fprintf(stderr, "bandsieve demo-set: wrote %ld invented entries%s to %s\n", count,
+            families ? " and 7 in two invented families" : "", path);
     return 0;
 }
 

@@ -224,7 +224,7 @@ void path_print(const pp_result *r, const char *source, const char *unit, int me
         else printf("      edges %.8g and %.8g (each to %.1g)\n", c->x_lo, c->x_hi, r->tol_x);
         for (int q = 0; q < c->nk; q++)
             printf("      k = (%.5f, %.5f, %.5f) %s%s\n", c->k[q][0], c->k[q][1], c->k[q][2],
-                   c->at_trim[q] ? "TRIM " : "", c->k_label[q]);
+                   c->at_trim[q] ? "TRIM " : "", c->k_label[q][0] == '(' && !c->at_trim[q] ? "" : c->k_label[q]);
         if (c->parity_checked)
             printf("      parity exchange at the closing TRIMs: %s\n", c->parity_exchange ? "yes" : "no");
     }

@@ -207,7 +207,8 @@ int path_family(const char *set_path, const char *family, const pp_opts *o, int 
             cJSON_Delete(j);
         } else {
             printf("members:");
-            for (int i = 0; i < n; i++) printf(" %s (%g %s)", ms[i]->id, vals[i], first->family_unit);
+            for (int i = 0; i < n; i++)
+                printf(" %s (%g%s%s)", ms[i]->id, vals[i], first->family_unit[0] ? " " : "", first->family_unit);
             printf("\n");
             path_print(&r, label, first->family_unit, 1);
         }

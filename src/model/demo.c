@@ -132,7 +132,60 @@ static void damage(tb_model *m, int kind)
     }
 }
 
+/* Invented families appended by demo_write_set_families: a pressure series of one invented
+ * diamond-lattice compound (Fu-Kane-Mele model, Phys. Rev. Lett. 98, 106803 (2007), whose [111]
+ * bond hopping is made to grow with pressure, with a small inversion-breaking staggered potential,
+ * so the path crosses a Weyl phase) and a two-end-member alloy of honeycomb compounds (Kane-Mele
+ * model, Phys. Rev. Lett. 95, 226801 (2005), with the staggered potential across the 3 sqrt3
+ * lambda_SO boundary). The numbers are invented; only the models are published. */
+static int add_families(ms_set *set, bs_err *err)
+{
+    static const double pressure[] = {0, 2, 4, 6, 8};
+    int rc = 0;
+    for (int i = 0; rc == 0 && i < 5; i++) {
+        char spec[128];
+        snprintf(spec, sizeof spec, "fkm:dt=%.4f,stag=0.15", -0.3 + 0.075 * pressure[i]);
+        tb_model *m = NULL;
+        rc = lm_build(spec, &m, err);
+        if (rc != 0) break;
+        snprintf(m->id, sizeof m->id, "JQF-Jo2Qu-%.0fGPa", pressure[i]);
+        snprintf(m->formula, sizeof m->formula, "Jo2Qu");
+        snprintf(m->source, sizeof m->source, "invented pressure series (demo); model %.200s", spec);
+        m->has_family = 1;
+        snprintf(m->family, sizeof m->family, "Jo2Qu-pressure");
+        snprintf(m->family_param, sizeof m->family_param, "pressure");
+        snprintf(m->family_unit, sizeof m->family_unit, "GPa");
+        m->family_value = pressure[i];
+        rc = ms_add(set, m, err);
+        tb_model_free(m);
+    }
+    static const char *const ends[2] = {"JaQi", "JaQo"};
+    static const double lv[2] = {0.1, 0.5};
+    for (int i = 0; rc == 0 && i < 2; i++) {
+        char spec[128];
+        snprintf(spec, sizeof spec, "kane_mele:lambda_SO=0.06,lambda_R=0,lambda_v=%.2f", lv[i]);
+        tb_model *m = NULL;
+        rc = lm_build(spec, &m, err);
+        if (rc != 0) break;
+        snprintf(m->id, sizeof m->id, "JQF-%s", ends[i]);
+        snprintf(m->formula, sizeof m->formula, "%s", ends[i]);
+        snprintf(m->source, sizeof m->source, "invented alloy end member (demo); model %.200s", spec);
+        m->has_family = 1;
+        snprintf(m->family, sizeof m->family, "JaQi1-xQox");
+        snprintf(m->family_param, sizeof m->family_param, "x");
+        m->family_value = i;
+        rc = ms_add(set, m, err);
+        tb_model_free(m);
+    }
+    return rc;
+}
+
 int demo_write_set(const char *path, int count, uint64_t seed, bs_err *err)
+{
+    return demo_write_set_families(path, count, seed, 0, err);
+}
+
+int demo_write_set_families(const char *path, int count, uint64_t seed, int families, bs_err *err)
 {
     if (count < 12) return bs_fail(err, BS_EINVAL, "demo set needs at least 12 entries, asked for %d", count);
     ms_set *set = NULL;
@@ -169,6 +222,7 @@ int demo_write_set(const char *path, int count, uint64_t seed, bs_err *err)
         }
         tb_model_free(m);
     }
+    if (rc == 0 && families) rc = add_families(set, err);
     if (rc == 0) rc = ms_close(set, err);
     ms_free(set);
     return rc;
