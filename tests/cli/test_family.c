@@ -139,12 +139,43 @@ static void test_mixed_basis_refused(void **state)
     assert_non_null(strstr(err, "basis"));
 }
 
+/* `path` with members on the command line: BHZ hoppings are linear in M, so members at M = -1
+ * (value 0) and M = 1 (value 1) put the closing at Gamma (M = 0, Science 314, 1757 (2006)) at
+ * value 0.5; the output says the interpolation is a model of the path. Usage errors exit 2. */
+static void test_path_cli(void **state)
+{
+    (void)state;
+    assert_int_equal(run("path --help"), 0);
+    assert_non_null(strstr(slurp("out"), "usage: bandsieve path"));
+    assert_int_equal(run("phasemap --help"), 0);
+    assert_non_null(strstr(slurp("out"), "usage:"));
+    assert_int_equal(run("path model:bhz:M=-1 model:bhz:M=1 --values 0,1 --samples 11 --name x"), 0);
+    char *out = slurp("out");
+    assert_non_null(strstr(out, "model of the path"));
+    assert_non_null(strstr(out, "band inversion at Gamma"));
+    assert_int_equal(run("path model:bhz:M=-1 model:bhz:M=1 --values 0,1 --samples 11 --json"), 0);
+    cJSON *j = cJSON_Parse(slurp("out"));
+    assert_non_null(j);
+    cJSON *cl = cJSON_GetObjectItem(j, "closings");
+    assert_int_equal(cJSON_GetArraySize(cl), 1);
+    assert_true(fabs(cJSON_GetObjectItem(cJSON_GetArrayItem(cl, 0), "x")->valuedouble - 0.5) < 1e-4);
+    cJSON_Delete(j);
+    assert_int_equal(run("path model:bhz --param M=1..0"), 2);
+    assert_int_equal(run("path model:bhz --param nope=0..1"), 2);
+    assert_non_null(strstr(slurp("err"), "no parameter 'nope'"));
+    assert_int_equal(run("path model:bhz model:fkm --values 0"), 2);
+    assert_int_equal(run("path model:bhz model:fkm --values 0,1"), 1);
+    assert_non_null(strstr(slurp("err"), "do not share a basis"));
+    assert_int_equal(run("phasemap model:fkm --x dt=-0.1..0.1:2 --y stag=0..0.1:2 -o m.h5"), 2);
+}
+
 int main(void)
 {
     const struct CMUnitTest tests[] = {
         cmocka_unit_test_setup_teardown(test_card_round_trip, setup, teardown),
         cmocka_unit_test_setup_teardown(test_pack_list_path, setup, teardown),
         cmocka_unit_test_setup_teardown(test_mixed_basis_refused, setup, teardown),
+        cmocka_unit_test_setup_teardown(test_path_cli, setup, teardown),
     };
     return cmocka_run_group_tests(tests, NULL, NULL);
 }
