@@ -77,6 +77,10 @@ typedef struct pp_closing {
     int parity_exchange;  /* occupied odd-parity counts differ at the closing TRIMs */
     int trim_changed[8];  /* TRIMs (n1 + 2 n2 + 4 n3) whose odd count differs between the sides */
     int before, after;    /* indices of the intervals on either side */
+    int predicted;        /* prediction holds what the symmetry eigenvalues of the two bands at the
+                             first touching k, just before the closing, say it becomes (crystalline.h);
+                             0 when no prediction could be made (degenerate bands, no symmetry found) */
+    char prediction[200];
     char kind[48];        /* "band inversion", "gap closing", "Weyl phase", "nodal line", "metal" */
     char text[240];       /* one line: "band inversion at X (3 TRIMs) at dt = 0.0000" */
 } pp_closing;

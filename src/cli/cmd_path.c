@@ -144,6 +144,8 @@ cJSON *path_to_json(const pp_result *r, const char *source, const char *unit, in
             cJSON_AddItemToArray(ks, kk);
         }
         cJSON_AddBoolToObject(o, "at_trims", c->all_at_trims);
+        if (c->predicted) cJSON_AddStringToObject(o, "symmetry_prediction", c->prediction);
+        else cJSON_AddNullToObject(o, "symmetry_prediction");
         if (c->parity_checked) {
             cJSON_AddBoolToObject(o, "parity_exchange", c->parity_exchange);
             cJSON *tc = cJSON_AddArrayToObject(o, "trims_parity_changed");
@@ -225,6 +227,7 @@ void path_print(const pp_result *r, const char *source, const char *unit, int me
         for (int q = 0; q < c->nk; q++)
             printf("      k = (%.5f, %.5f, %.5f) %s%s\n", c->k[q][0], c->k[q][1], c->k[q][2],
                    c->at_trim[q] ? "TRIM " : "", c->k_label[q][0] == '(' && !c->at_trim[q] ? "" : c->k_label[q]);
+        if (c->predicted) printf("      symmetry prediction: %s\n", c->prediction);
         if (c->parity_checked)
             printf("      parity exchange at the closing TRIMs: %s\n", c->parity_exchange ? "yes" : "no");
     }

@@ -11,6 +11,8 @@
 
 #include "bandsieve/bandpair.h"
 #include "bandsieve/config.h"
+#include "bandsieve/crystal.h"
+#include "bandsieve/crystalline.h"
 #include "bandsieve/gaps.h"
 #include "bandsieve/hk.h"
 #include "bandsieve/lattice_models.h"
@@ -499,6 +501,26 @@ static int closing_kpoints(const pp_source *s, const pp_opts *o, double x, doubl
     hk_free(hk);
     tb_model_free(m);
     return rc;
+}
+
+/* The symmetry prediction (cz_predict_closing) for closing c from the model at xp, just outside
+ * the closed region, at the first touching k. Failures only leave c->predicted at 0. */
+static void predict(const pp_source *s, double xp, pp_closing *c)
+{
+    tb_model *m = NULL;
+    cry_info *ci = NULL;
+    bs_err e;
+    bs_err_clear(&e);
+    if (c->nk < 1 || pp_source_model(s, xp, &m, &e) != 0) return;
+    cry_opts co;
+    cry_opts_default(&co);
+    cz_prediction pr;
+    if (cry_detect(m, &co, &ci, &e) == 0 && cz_predict_closing(m, ci, c->k[0], m->nocc - 1, &pr, &e) == 0) {
+        c->predicted = 1;
+        snprintf(c->prediction, sizeof c->prediction, "%s", pr.text);
+    }
+    cry_info_free(ci);
+    tb_model_free(m);
 }
 
 static int trim_index(const double k[3])
@@ -996,6 +1018,16 @@ int pp_run(const pp_source *s, const char *param, double x_lo, double x_hi, cons
         double g;
         rc = gap_at(&f, xk, &g, kh, err);
         if (rc == 0) rc = closing_kpoints(s, &o, xk, g, kh, c, err);
+        if (rc == 0) {
+            double xp = (c->point ? c->x : c->x_lo) - 20 * o.tol_x;
+            if (xp <= x_lo) xp = (c->point ? c->x : c->x_hi) + 20 * o.tol_x;
+            /* The prediction counts conditions for a 3D two-band crossing of non-degenerate bands:
+             * not for 2D, and not where inversion with time reversal makes every band a Kramers
+             * pair (the bands at the filling are then degenerate with their partners). */
+            const pp_interval *side = c->before >= 0 ? &r->intervals[c->before] : c->after >= 0 ? &r->intervals[c->after] : NULL;
+            int kramers_everywhere = side && side->diag.inversion && side->diag.time_reversal;
+            if (xp > x_lo && xp < x_hi && r->dim == 3 && !kramers_everywhere) predict(s, xp, c);
+        }
         if (rc == 0) describe(r, c, param);
     }
     /* Weyl-node tracks through the gapless intervals of a 3D path */

@@ -136,6 +136,8 @@ def check(binary, stag):
     assert len(cl) == 1
     assert not cl[0]["at_trims"], "the closing should be away from the TRIMs"
     assert all(not k["trim"] for k in cl[0]["k"])
+    # the symmetry eigenvalues at the first touching predict Weyl pairs (crystalline.h)
+    assert cl[0]["symmetry_prediction"] and "Weyl" in cl[0]["symmetry_prediction"], cl[0]["symmetry_prediction"]
     side = [iv for iv in p["intervals"] if not iv["gapless"]]
     assert len(side) == 2
     z_lo, z_hi = side[0]["invariants"]["z2"], side[1]["invariants"]["z2"]
