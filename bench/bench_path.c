@@ -46,13 +46,13 @@ int main(int argc, char **argv)
         for (int i = 0; i < n; i++) {
             double x = cases[c].lo + (cases[c].hi - cases[c].lo) * i / (n - 1);
             tb_model *m = NULL;
-            diag_result d;
-            diag_result_init(&d);
+            res_diag d;
+            res_init(&d);
             if (pp_source_model(s, x, &m, &err) != 0 || diag_run(m, &o.diag, &d, &err) != 0) {
                 fprintf(stderr, "%s\n", err.msg);
                 return 1;
             }
-            diag_result_clear(&d);
+            res_clear(&d);
             tb_model_free(m);
         }
         double t_each = (double)clock() / CLOCKS_PER_SEC - t0;

@@ -89,7 +89,7 @@ typedef struct pp_interval {
     double x_lo, x_hi, x_rep;
     int gapless;
     double gap_ev;        /* g(x_rep) */
-    diag_result diag;     /* owned: diag_run at x_rep */
+    res_diag diag;     /* owned: diag_run at x_rep */
     int diag_rc;          /* 0 or the error of diag_run (then diag.cls is "undetermined") */
 } pp_interval;
 

@@ -9,6 +9,7 @@
 
 #include "bandsieve/diagnosis.h"
 #include "bandsieve/phasepath.h"
+#include "bandsieve/result_json.h"
 #include "bandsieve/source.h"
 #include "cliutil.h"
 #include "commands.h"
@@ -72,18 +73,18 @@ static cJSON *kvec(const double k[3])
     return cJSON_CreateDoubleArray(v, 3);
 }
 
-static cJSON *invariants_json(const diag_result *d)
+static cJSON *invariants_json(const res_diag *d)
 {
     cJSON *o = cJSON_CreateObject();
-    if (d->z2_status == DIAG_DONE) {
+    if (d->z2_status == RES_DONE) {
         int n = d->dim == 2 ? 1 : 4;
         cJSON_AddItemToObject(o, "z2", cJSON_CreateIntArray(d->z2, n));
     } else {
         cJSON_AddNullToObject(o, "z2");
     }
-    if (d->chern_status == DIAG_DONE && d->dim == 2) cJSON_AddNumberToObject(o, "chern", d->chern);
+    if (d->chern_status == RES_DONE && d->dim == 2) cJSON_AddNumberToObject(o, "chern", d->chern);
     else cJSON_AddNullToObject(o, "chern");
-    if (d->chern_status == DIAG_DONE && d->dim == 3)
+    if (d->chern_status == RES_DONE && d->dim == 3)
         cJSON_AddItemToObject(o, "plane_chern", cJSON_CreateIntArray(d->plane_chern, 6));
     cJSON_AddNumberToObject(o, "n_weyl", d->nnodes);
     return o;
@@ -117,10 +118,10 @@ cJSON *path_to_json(const pp_result *r, const char *source, const char *unit, in
         cJSON_AddBoolToObject(o, "gapless", in->gapless);
         cJSON_AddNumberToObject(o, "x_diagnosed", in->x_rep);
         cJSON_AddNumberToObject(o, "gap_direct_eV", in->gap_ev);
-        cJSON_AddStringToObject(o, "class", in->diag.cls);
+        cJSON_AddStringToObject(o, "class", res_class_name(in->diag.cls));
         cJSON_AddNumberToObject(o, "confidence", in->diag.confidence);
         cJSON_AddItemToObject(o, "invariants", invariants_json(&in->diag));
-        cJSON_AddItemToObject(o, "diagnosis", diag_to_json(&in->diag, 0));
+        cJSON_AddItemToObject(o, "diagnosis", res_to_json(&in->diag, 0));
         cJSON_AddItemToArray(iv, o);
     }
     cJSON *cl = cJSON_AddArrayToObject(j, "closings");
@@ -209,13 +210,13 @@ void path_print(const pp_result *r, const char *source, const char *unit, int me
     for (int i = 0; i < r->ninterval; i++) {
         const pp_interval *in = &r->intervals[i];
         char inv[64] = "";
-        const diag_result *d = &in->diag;
-        if (d->z2_status == DIAG_DONE && d->dim == 2) snprintf(inv, sizeof inv, "Z2 = %d", d->z2[0]);
-        else if (d->z2_status == DIAG_DONE) snprintf(inv, sizeof inv, "Z2 = %d;%d%d%d", d->z2[0], d->z2[1], d->z2[2], d->z2[3]);
-        else if (d->chern_status == DIAG_DONE && d->dim == 2) snprintf(inv, sizeof inv, "C = %d", d->chern);
+        const res_diag *d = &in->diag;
+        if (d->z2_status == RES_DONE && d->dim == 2) snprintf(inv, sizeof inv, "Z2 = %d", d->z2[0]);
+        else if (d->z2_status == RES_DONE) snprintf(inv, sizeof inv, "Z2 = %d;%d%d%d", d->z2[0], d->z2[1], d->z2[2], d->z2[3]);
+        else if (d->chern_status == RES_DONE && d->dim == 2) snprintf(inv, sizeof inv, "C = %d", d->chern);
         else if (d->nnodes > 0) snprintf(inv, sizeof inv, "%d nodes", d->nnodes);
         printf("  [%+.6f, %+.6f] %s  %-30s %-14s gap %.4g eV at %s = %.4g (confidence %.2f)\n", in->x_lo, in->x_hi,
-               in->gapless ? "closed" : "open  ", d->cls, inv, in->gap_ev, r->param, in->x_rep, d->confidence);
+               in->gapless ? "closed" : "open  ", res_class_name(d->cls), inv, in->gap_ev, r->param, in->x_rep, d->confidence);
     }
     printf("transitions\n");
     if (r->nclosing == 0) printf("  none: the gap stays open along the path\n");

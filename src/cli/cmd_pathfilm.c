@@ -73,8 +73,8 @@ int path_films(const char *source, const double miller_d[3], const char *layers,
     for (long n = lo; n <= hi && status == 0; n++) {
         slab *s = NULL;
         tb_model *f = NULL;
-        diag_result d;
-        diag_result_init(&d);
+        res_diag d;
+        res_init(&d);
         int rc = slab_create(bulk, miller, (int)n, 0.0, &s, &err);
         if (rc == 0) rc = slab_film_model(s, bulk, &f, &err);
         if (rc == 0) rc = diag_run(f, &o->diag, &d, &err);
@@ -82,37 +82,37 @@ int path_films(const char *source, const double miller_d[3], const char *layers,
             fprintf(stderr, "bandsieve path: film of %ld layers: %s (%s)\n", n, err.msg, bs_err_name(rc));
             status = 1;
         } else {
-            int z2 = d.z2_status == DIAG_DONE ? d.z2[0] : -1;
+            int z2 = d.z2_status == RES_DONE ? d.z2[0] : -1;
             cJSON *e = cJSON_CreateObject();
             cJSON_AddNumberToObject(e, "layers", (double)n);
             cJSON_AddNumberToObject(e, "states", f->norb);
             cJSON_AddNumberToObject(e, "gap_direct_eV", d.gap_direct_ev);
             cJSON_AddNumberToObject(e, "gap_indirect_eV", d.gap_indirect_ev);
-            cJSON_AddStringToObject(e, "class", d.cls);
+            cJSON_AddStringToObject(e, "class", res_class_name(d.cls));
             cJSON_AddNumberToObject(e, "confidence", d.confidence);
             if (z2 >= 0) cJSON_AddNumberToObject(e, "z2", z2);
             else cJSON_AddNullToObject(e, "z2");
-            if (d.chern_status == DIAG_DONE) cJSON_AddNumberToObject(e, "chern", d.chern);
+            if (d.chern_status == RES_DONE) cJSON_AddNumberToObject(e, "chern", d.chern);
             else cJSON_AddNullToObject(e, "chern");
             cJSON_AddStringToObject(e, "reason", d.reason);
             cJSON_AddItemToArray(films, e);
-            if (prev_cls[0] && (strcmp(prev_cls, d.cls) != 0 || prev_z2 != z2)) {
+            if (prev_cls[0] && (strcmp(prev_cls, res_class_name(d.cls)) != 0 || prev_z2 != z2)) {
                 char text[200];
-                snprintf(text, sizeof text, "%ld -> %ld layers: %s -> %s", prev_n, n, prev_cls, d.cls);
+                snprintf(text, sizeof text, "%ld -> %ld layers: %s -> %s", prev_n, n, prev_cls, res_class_name(d.cls));
                 cJSON_AddItemToArray(trans, cJSON_CreateString(text));
             }
-            snprintf(prev_cls, sizeof prev_cls, "%s", d.cls);
+            snprintf(prev_cls, sizeof prev_cls, "%s", res_class_name(d.cls));
             prev_z2 = z2;
             prev_n = n;
             if (!json) {
                 char zs[16] = "-", cs[16] = "-";
                 if (z2 >= 0) snprintf(zs, sizeof zs, "%d", z2);
-                if (d.chern_status == DIAG_DONE) snprintf(cs, sizeof cs, "%d", d.chern);
-                printf("  %6ld  %6d  %-11.6f  %-28s %-4s %-6s %.2f\n", n, f->norb, d.gap_direct_ev, d.cls, zs, cs,
+                if (d.chern_status == RES_DONE) snprintf(cs, sizeof cs, "%d", d.chern);
+                printf("  %6ld  %6d  %-11.6f  %-28s %-4s %-6s %.2f\n", n, f->norb, d.gap_direct_ev, res_class_name(d.cls), zs, cs,
                        d.confidence);
             }
         }
-        diag_result_clear(&d);
+        res_clear(&d);
         tb_model_free(f);
         slab_free(s);
     }

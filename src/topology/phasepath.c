@@ -10,6 +10,7 @@
 #include <string.h>
 
 #include "bandsieve/bandpair.h"
+#include "bandsieve/clock.h"
 #include "bandsieve/config.h"
 #include "bandsieve/crystal.h"
 #include "bandsieve/crystalline.h"
@@ -399,7 +400,7 @@ void pp_result_clear(pp_result *r)
     free(r->xs);
     free(r->gaps);
     free(r->closings);
-    for (int i = 0; i < r->ninterval; i++) diag_result_clear(&r->intervals[i].diag);
+    for (int i = 0; i < r->ninterval; i++) res_clear(&r->intervals[i].diag);
     free(r->intervals);
     for (int i = 0; i < r->ntrack; i++) {
         free(r->tracks[i].x);
@@ -530,10 +531,10 @@ static int trim_index(const double k[3])
     return t;
 }
 
-static void z2_text(const diag_result *d, char *buf, int len)
+static void z2_text(const res_diag *d, char *buf, int len)
 {
-    if (d->z2_status != DIAG_DONE) {
-        if (d->chern_status == DIAG_DONE && !d->time_reversal && d->dim == 2) snprintf(buf, len, "C = %d", d->chern);
+    if (d->z2_status != RES_DONE) {
+        if (d->chern_status == RES_DONE && !d->time_reversal && d->dim == 2) snprintf(buf, len, "C = %d", d->chern);
         else snprintf(buf, len, "-");
         return;
     }
@@ -579,7 +580,8 @@ static void describe(pp_result *r, pp_closing *c, const char *param)
         char zb[32], za[32];
         z2_text(&b->diag, zb, sizeof zb);
         z2_text(&a->diag, za, sizeof za);
-        snprintf(sides, sizeof sides, "; %s (%s) -> %s (%s)", b->diag.cls, zb, a->diag.cls, za);
+        snprintf(sides, sizeof sides, "; %s (%s) -> %s (%s)", res_class_name(b->diag.cls), zb,
+                 res_class_name(a->diag.cls), za);
     }
     if (c->point) {
         if (c->all_at_trims && c->parity_exchange) snprintf(c->kind, sizeof c->kind, "band inversion");
@@ -593,9 +595,9 @@ static void describe(pp_result *r, pp_closing *c, const char *param)
         const pp_interval *g = NULL;
         for (int i = 0; i < r->ninterval; i++)
             if (r->intervals[i].gapless && fabs(r->intervals[i].x_lo - c->x_lo) < 1e-12) g = &r->intervals[i];
-        const char *cls = g ? g->diag.cls : "";
-        if (strstr(cls, "Weyl")) snprintf(c->kind, sizeof c->kind, "Weyl phase");
-        else if (strstr(cls, "nodal")) snprintf(c->kind, sizeof c->kind, "nodal line");
+        res_class cls = g ? g->diag.cls : RES_UNDETERMINED;
+        if (cls == RES_WEYL) snprintf(c->kind, sizeof c->kind, "Weyl phase");
+        else if (cls == RES_NODAL_LINE) snprintf(c->kind, sizeof c->kind, "nodal line");
         else snprintf(c->kind, sizeof c->kind, "metal");
         snprintf(c->text, sizeof c->text, "%s from %s = %.6g to %.6g%s", c->kind, param, c->x_lo, c->x_hi, sides);
     }
@@ -707,9 +709,9 @@ static int run_tracks(const pp_source *s, const pp_opts *o, pp_result *r, int iv
         if (rc == 0) rc = bp_create(m, hk, 0, &bp, err);
         if (rc == 0) rc = find_nodes(m, bp, base_mesh, &nr, err);
         /* Net chirality must vanish (Nucl. Phys. B 185, 20 (1981)): otherwise refine the k search. */
-        if (rc == 0 && (nr.net_chirality != 0 || nr.chirality_status != DIAG_DONE) && nr.nnodes > 0) {
+        if (rc == 0 && (nr.net_chirality != 0 || nr.chirality_status != RES_DONE) && nr.nnodes > 0) {
             rc = find_nodes(m, bp, 2 * base_mesh, &nr, err);
-            if (rc == 0 && (nr.net_chirality != 0 || nr.chirality_status != DIAG_DONE)) {
+            if (rc == 0 && (nr.net_chirality != 0 || nr.chirality_status != RES_DONE)) {
                 if (add_event(r, ecap, PP_EV_NET, x, NULL, -1, -1, iv) != 0) rc = BS_ENOMEM;
                 r->confidence *= 0.6;
             }
@@ -843,7 +845,7 @@ static int cmp_event(const void *a, const void *b)
 static int diagnose(const pp_source *s, const pp_opts *o, pp_interval *iv, pp_result *r, bs_err *err)
 {
     tb_model *m = NULL;
-    diag_result_init(&iv->diag);
+    res_init(&iv->diag);
     int rc = pp_source_model(s, iv->x_rep, &m, err);
     if (rc == 0) {
         double k[3];
@@ -864,7 +866,7 @@ static int diagnose(const pp_source *s, const pp_opts *o, pp_interval *iv, pp_re
 int pp_run(const pp_source *s, const char *param, double x_lo, double x_hi, const pp_opts *opts,
            pp_result *r, bs_err *err)
 {
-    double t0 = bp_now();
+    double t0 = bs_now();
     pp_opts o;
     if (opts) o = *opts;
     else pp_opts_init(&o);
@@ -1004,7 +1006,7 @@ int pp_run(const pp_source *s, const char *param, double x_lo, double x_hi, cons
             }
         }
     }
-    for (int i = 0; i < r->ninterval; i++) diag_result_init(&r->intervals[i].diag);
+    for (int i = 0; i < r->ninterval; i++) res_init(&r->intervals[i].diag);
     for (int i = 0; i < r->ninterval && rc == 0; i++) {
         pp_interval *iv = &r->intervals[i];
         iv->x_rep = 0.5 * (iv->x_lo + iv->x_hi);
@@ -1034,7 +1036,7 @@ int pp_run(const pp_source *s, const char *param, double x_lo, double x_hi, cons
     for (int i = 0; i < r->ninterval && rc == 0 && !o.no_tracks; i++) {
         pp_interval *iv = &r->intervals[i];
         if (!iv->gapless || r->dim != 3) continue;
-        int weylish = strstr(iv->diag.cls, "Weyl") != NULL || iv->diag.nnodes > 0;
+        int weylish = iv->diag.cls == RES_WEYL || iv->diag.nnodes > 0;
         if (!weylish) continue;
         rc = run_tracks(s, &o, r, i, &tcap, &ecap, err);
     }
@@ -1044,7 +1046,7 @@ int pp_run(const pp_source *s, const char *param, double x_lo, double x_hi, cons
                     "strain series this is a model of the path, not a calculation at each point");
 done:
     r->gap_evals = f.nevals;
-    r->seconds = bp_now() - t0;
+    r->seconds = bs_now() - t0;
     return rc;
 }
 
@@ -1082,7 +1084,7 @@ int pp_map_row(const pp_source *s, const char *param, double x_lo, double x_hi, 
         for (int v = 0; v < r->ninterval; v++) {
             const pp_interval *iv = &r->intervals[v];
             if (x >= iv->x_lo - 1e-12 && x <= iv->x_hi + 1e-12) {
-                cls[i] = pp_class_index(iv->diag.cls);
+                cls[i] = pp_class_index(res_class_name(iv->diag.cls));
                 if (!iv->gapless) break; /* an edge shared with a gapless interval goes to the gapped side */
             }
         }

@@ -58,9 +58,9 @@ static void test_fkm_inversion(void **state)
     assert_true(c->parity_exchange);
     assert_string_equal(c->kind, "band inversion");
     assert_int_equal(r.ninterval, 2);
-    const diag_result *b = &r.intervals[0].diag, *a = &r.intervals[1].diag;
-    assert_int_equal(b->z2_status, DIAG_DONE);
-    assert_int_equal(a->z2_status, DIAG_DONE);
+    const res_diag *b = &r.intervals[0].diag, *a = &r.intervals[1].diag;
+    assert_int_equal(b->z2_status, RES_DONE);
+    assert_int_equal(a->z2_status, RES_DONE);
     assert_int_equal(b->z2[0], 0);
     assert_int_equal(a->z2[0], 1);
     for (int i = 0; i < r.ninterval; i++) assert_false(r.intervals[i].gapless);
@@ -123,9 +123,9 @@ static void test_haldane(void **state)
         assert_int_equal(c->nk, 1);
         nk += count_label(c, "K");
         nkp += count_label(c, "K'");
-        const diag_result *b = &r.intervals[c->before].diag, *a = &r.intervals[c->after].diag;
-        assert_int_equal(b->chern_status, DIAG_DONE);
-        assert_int_equal(a->chern_status, DIAG_DONE);
+        const res_diag *b = &r.intervals[c->before].diag, *a = &r.intervals[c->after].diag;
+        assert_int_equal(b->chern_status, RES_DONE);
+        assert_int_equal(a->chern_status, RES_DONE);
         assert_int_equal(abs(a->chern - b->chern), 1);
     }
     assert_int_equal(nk, 1);
