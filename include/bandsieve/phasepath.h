@@ -154,7 +154,7 @@ const char *pp_event_name(int kind);
 
 /* Classes of a phase map: the diagnosis classes, "critical point" (a grid point within tol_x of a
  * single-value closing) and "undetermined" for anything else. */
-enum { PP_CLASS_UNDETERMINED = 0, PP_CLASS_CRITICAL = 9, PP_NCLASS = 10 };
+enum { PP_CLASS_UNDETERMINED = 0, PP_CLASS_CRITICAL = 9, PP_NCLASS = 11 };
 const char *pp_class_name(int i);
 int pp_class_index(const char *cls);
 

@@ -49,9 +49,10 @@ static int parse_axis(const char *text, char *key, size_t cap, double *lo, doubl
     return *hi >= *lo ? 0 : -1;
 }
 
-static const char CLASS_CHAR[PP_NCLASS] = {'?', 'o', 'S', 'w', 'Q', 'C', 'W', 'N', 'm', '*'};
+static const char CLASS_CHAR[PP_NCLASS] = {'?', 'o', 'S', 'w', 'Q', 'C', 'W', 'N', 'm', '*', 'T'};
 static const char *const CLASS_COLOUR[PP_NCLASS] = {"#bbbbbb", "#f2f2f2", "#1f5fa8", "#7fb3e6", "#3c8d5a",
-                                                    "#d9a400", "#c0392b", "#8e44ad", "#555555", "#000000"};
+                                                    "#d9a400", "#c0392b", "#8e44ad", "#555555", "#000000",
+                                                    "#2aa198"};
 
 static void print_map(const pm_map *m, const pm_spec *s)
 {

@@ -1053,7 +1053,7 @@ done:
 static const char *const PP_CLASSES[PP_NCLASS] = {
     "undetermined", "trivial insulator", "strong topological insulator", "weak topological insulator",
     "2D topological insulator", "Chern insulator", "Weyl semimetal", "nodal-line semimetal", "metal",
-    "critical point"};
+    "critical point", "topological crystalline insulator"};
 
 const char *pp_class_name(int i) { return i >= 0 && i < PP_NCLASS ? PP_CLASSES[i] : "?"; }
 
