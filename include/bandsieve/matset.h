@@ -85,7 +85,8 @@ const ms_entry *ms_entry_at(const ms_set *s, int i);
  * from the entries, valid until ms_free), at most cap of them; returns the count. */
 int ms_families(const ms_set *s, const char **names, int cap);
 
-/* Index of the entry with this id, or -1. */
+/* Index of the entry with this id, or -1. O(log n) on an opened set (a sorted index built by
+ * ms_open); a set being written scans its entries. */
 int ms_find(const ms_set *s, const char *id);
 
 /* Reads entry i (or the one named id) into a new validated model; the caller owns *out.

@@ -3,6 +3,7 @@
 #include <stdio.h>
 #include <string.h>
 
+#include "bandsieve/blas_threads.h"
 #include "bandsieve/config.h"
 #include "commands.h"
 
@@ -58,6 +59,11 @@ int main(int argc, char **argv)
         printf("bandsieve %s\n", BS_VERSION);
         return 0;
     }
+    /* One BLAS thread per process unless asked otherwise (README, "BLAS threads"): before any
+     * command, so every solve of every command and rank runs under the same setting. */
+    const char *bad = NULL;
+    blas_threads_init(&bad);
+    if (bad) fprintf(stderr, "bandsieve: BS_BLAS_THREADS='%s' is not a thread count of 1 or more; using 1\n", bad);
     for (size_t i = 0; i < sizeof COMMANDS / sizeof COMMANDS[0]; i++)
         if (!strcmp(argv[1], COMMANDS[i].name)) {
             if (!COMMANDS[i].run) {

@@ -28,6 +28,7 @@ struct ms_set {
     char partial[4200];
     ms_entry *entries;
     int n, cap;
+    int *by_id;         /* reader: entry indices in strcmp order of their ids, for ms_find */
     char description[MS_MAX_TEXT];
     int invented;
 };
@@ -290,6 +291,36 @@ static int index_write(ms_set *s, bs_err *err)
     return rc;
 }
 
+/* ms_find by binary search: a rescreen looks up every selected id, so a scan per id would make
+ * its set-up quadratic (half an hour at 10^6 ids). qsort has no context argument, hence the
+ * (index, id) pairs. */
+typedef struct id_key {
+    const char *id;
+    int index;
+} id_key;
+
+static int id_key_cmp(const void *a, const void *b)
+{
+    const id_key *x = a, *y = b;
+    int c = strcmp(x->id, y->id);
+    return c ? c : (x->index > y->index) - (x->index < y->index);
+}
+
+static int sort_ids(ms_set *s, bs_err *err)
+{
+    id_key *keys = malloc(((size_t)s->n + 1) * sizeof *keys);
+    s->by_id = malloc(((size_t)s->n + 1) * sizeof *s->by_id);
+    if (!keys || !s->by_id) {
+        free(keys);
+        return bs_fail(err, BS_ENOMEM, "%s:/index: out of memory for the id order", s->path);
+    }
+    for (int i = 0; i < s->n; i++) keys[i] = (id_key){s->entries[i].id, i};
+    qsort(keys, (size_t)s->n, sizeof *keys, id_key_cmp);
+    for (int i = 0; i < s->n; i++) s->by_id[i] = keys[i].index;
+    free(keys);
+    return 0;
+}
+
 static int index_read(ms_set *s, bs_err *err)
 {
     if (H5Lexists(s->file, "index", H5P_DEFAULT) <= 0)
@@ -322,6 +353,7 @@ static int index_read(ms_set *s, bs_err *err)
         s->entries[i].id[sizeof s->entries[i].id - 1] = '\0';
         s->entries[i].content[sizeof s->entries[i].content - 1] = '\0';
     }
+    rc = sort_ids(s, err);
 done:
     H5Tclose(t);
     if (sp >= 0) H5Sclose(sp);
@@ -754,6 +786,7 @@ void ms_free(ms_set *s)
     }
     if (s->writer && !s->closed && s->partial[0]) unlink(s->partial);
     free(s->entries);
+    free(s->by_id);
     free(s);
 }
 
@@ -818,9 +851,20 @@ const ms_entry *ms_entry_at(const ms_set *s, int i) { return i >= 0 && i < s->n 
 
 int ms_find(const ms_set *s, const char *id)
 {
-    for (int i = 0; i < s->n; i++)
-        if (strcmp(s->entries[i].id, id) == 0) return i;
-    return -1;
+    if (!s->by_id) {
+        /* A set being written (pack) has no order yet; it only looks up ids of its own it just added. */
+        for (int i = 0; i < s->n; i++)
+            if (strcmp(s->entries[i].id, id) == 0) return i;
+        return -1;
+    }
+    /* The first of equal ids, as the scan found (ids are unique in a set pack wrote). */
+    int lo = 0, hi = s->n;
+    while (lo < hi) {
+        int mid = lo + (hi - lo) / 2;
+        if (strcmp(s->entries[s->by_id[mid]].id, id) < 0) lo = mid + 1;
+        else hi = mid;
+    }
+    return lo < s->n && strcmp(s->entries[s->by_id[lo]].id, id) == 0 ? s->by_id[lo] : -1;
 }
 
 const char *ms_description(const ms_set *s) { return s->description; }

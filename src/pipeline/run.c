@@ -29,11 +29,6 @@
 #include "journal.h"
 #include "work.h"
 
-/* OpenBLAS's thread control, when the BLAS linked is OpenBLAS: a weak reference, so that a build
- * against MKL, BLIS or the reference BLAS links too (they read MKL_NUM_THREADS, BLIS_NUM_THREADS,
- * OMP_NUM_THREADS from the environment; README.md, "Building on a cluster"). */
-void openblas_set_num_threads(int num_threads) __attribute__((weak));
-
 enum { TAG_RESULT = 11, TAG_WORK = 12, TAG_STOP = 13 };
 
 /* The diagnosis default of symmetry_tol (diagnosis.h: 0 means 1e-6); an explicit 1e-6 is the same
@@ -865,7 +860,6 @@ int pl_run(MPI_Comm user_comm, const pl_opts *o, pl_counts *counts, int *is_root
     int rc = mpi_check(MPI_Comm_dup(user_comm, &comm), "MPI_Comm_dup", err);
     if (rc != 0) return rc;
     MPI_Comm_set_errhandler(comm, MPI_ERRORS_RETURN);
-    if (openblas_set_num_threads && !getenv("OPENBLAS_NUM_THREADS")) openblas_set_num_threads(1);
     int rank = 0, size = 1;
     MPI_Comm_rank(comm, &rank);
     MPI_Comm_size(comm, &size);
