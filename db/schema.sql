@@ -117,7 +117,7 @@ CREATE TABLE results (
     UNIQUE (run_id, material_id)
 );
 
-CREATE INDEX results_material ON results (material_id, status);
+-- The indexes the views rely on are created by views.sql (results_pick, results_failed, ...).
 
 CREATE TABLE nodes (
     run_id      INTEGER NOT NULL,

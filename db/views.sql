@@ -9,27 +9,30 @@ DROP VIEW IF EXISTS candidates;
 DROP VIEW IF EXISTS summary;
 DROP VIEW IF EXISTS run_progress;
 
+-- Access paths of the views (db/README.md, "Query plans"). Created here rather than in schema.sql
+-- so that cat_open brings them to catalogues made by an older version too.
+-- results_pick: one material's rows with the keys that choose its summary row, so the choice
+-- reads the index only (covering); it supersedes the (material_id, status) index of version 1.
+CREATE INDEX IF NOT EXISTS results_pick ON results (material_id, status, mesh, run_id, content);
+DROP INDEX IF EXISTS results_material;
+-- results_failed: the rows that are not 'ok' (a few percent), in the failures view's order.
+CREATE INDEX IF NOT EXISTS results_failed ON results (run_id, material_id) WHERE status <> 'ok';
+-- results_run: the per-run counts of run_progress from the index alone (covering).
+CREATE INDEX IF NOT EXISTS results_run ON results (run_id, status, seconds);
+-- results_shc: the rows top_spin_hall ranks, and the keys it ranks them by.
+CREATE INDEX IF NOT EXISTS results_shc ON results (material_id, mesh, run_id)
+    WHERE status = 'ok' AND shc_xy IS NOT NULL;
+
 -- One row per material that has any result: among the rows about its current content (the
 -- content hash last read from a set, materials.content), the most resolved successful row
 -- (highest mesh among status 'ok', latest run on ties), else the latest row. Only when no row is
 -- about the current content does an older content's row show, with current = 0 (to be redone).
 -- contents > 1 says results of other contents exist for this id (view conflicts lists them).
+-- The row is chosen by a correlated subquery over that material's rows (results_pick) rather
+-- than a window over the whole table, so a filter on the view reaches the base table: one
+-- material costs an index look-up and the whole view is linear in the rows returned.
+-- (run_id, material_id) is unique, so run_id settles every tie.
 CREATE VIEW summary AS
-WITH ranked AS (
-    -- Only the row id and the ordering keys go through the window sort; the wide columns
-    -- (the diagnosis text) are fetched for the chosen rows only.
-    SELECT r.rowid AS rid,
-           (r.content IS m.content) AS current,
-           ROW_NUMBER() OVER (
-               PARTITION BY r.material_id
-               ORDER BY (r.content IS m.content) DESC,
-                        (r.status = 'ok') DESC,
-                        CASE WHEN r.status = 'ok' THEN r.mesh END DESC NULLS LAST,
-                        r.run_id DESC,
-                        r.finished DESC) AS pick
-    FROM results r
-    LEFT JOIN materials m ON m.material_id = r.material_id
-)
 SELECT k.material_id,
        m.formula,
        m.dimension,
@@ -64,9 +67,13 @@ SELECT k.material_id,
        k.shc_xy,
        k.shc_units,
        k.content,
-       p.current,
-       (SELECT COUNT(DISTINCT COALESCE(o.content, '')) FROM results o
-        WHERE o.material_id = k.material_id) AS contents,
+       (k.content IS m.content) AS current,
+       -- Counted only where another content exists (rare); else 1 without a temporary b-tree.
+       CASE WHEN EXISTS (SELECT 1 FROM results o
+                         WHERE o.material_id = k.material_id AND o.content IS NOT k.content)
+            THEN (SELECT COUNT(DISTINCT COALESCE(o.content, '')) FROM results o
+                  WHERE o.material_id = k.material_id)
+            ELSE 1 END AS contents,
        k.magnetism,
        k.tr_verdict,
        k.inv_verdict,
@@ -75,10 +82,25 @@ SELECT k.material_id,
        k.breaking_ev,
        k.breaking_bound,
        k.symmetry_margin
-FROM ranked p
-JOIN results k ON k.rowid = p.rid
+FROM results k
 LEFT JOIN materials m ON m.material_id = k.material_id
-WHERE p.pick = 1;
+-- SQLite refuses outer columns in a subquery's ORDER BY, so "current content first" is two
+-- subqueries: the best row of the current content, else (COALESCE evaluates it only then) the
+-- best row of any content.
+WHERE k.rowid = COALESCE(
+        (SELECT o.rowid FROM results o
+         WHERE o.material_id = k.material_id AND o.content IS m.content
+         ORDER BY (o.status = 'ok') DESC,
+                  CASE WHEN o.status = 'ok' THEN o.mesh END DESC NULLS LAST,
+                  o.run_id DESC
+         LIMIT 1),
+        (SELECT o.rowid FROM results o
+         WHERE o.material_id = k.material_id
+         ORDER BY (o.status = 'ok') DESC,
+                  CASE WHEN o.status = 'ok' THEN o.mesh END DESC NULLS LAST,
+                  o.run_id DESC
+         LIMIT 1))
+ORDER BY k.material_id;
 
 -- Materials worth a closer look: topologically nontrivial, or called with confidence below 0.7.
 -- Nontrivial calls of confidence >= 0.7 come first, then the rest; within each group by the
@@ -101,7 +123,9 @@ ORDER BY (s.nontrivial = 1 AND COALESCE(s.confidence, 0) >= 0.7) DESC,
 -- end in brackets, so what went wrong comes first: "not Hermitian: ... [materials/JQ-0013]".
 CREATE VIEW failures AS
 WITH rel AS (
-    SELECT r.rowid AS rid,
+    -- The failed rows themselves (not their row ids joined back to results), so the scan reads
+    -- the partial index results_failed, already in the order below.
+    SELECT r.run_id, r.material_id, r.status, r.message, r.rank, r.seconds, r.finished,
            CASE WHEN instr(r.message, ':/materials/') > 0
                 THEN substr(r.message, instr(r.message, ':/materials/') + 2)
                 ELSE r.message END AS msg
@@ -111,33 +135,26 @@ WITH rel AS (
 SELECT CASE WHEN x.msg LIKE 'materials/%' AND instr(x.msg, ': ') > 0
             THEN substr(x.msg, instr(x.msg, ': ') + 2) || ' [' || substr(x.msg, 1, instr(x.msg, ': ') - 1) || ']'
             ELSE x.msg END AS cause,
-       r.material_id,
-       r.status,
-       r.run_id,
-       r.message,
-       r.rank,
-       r.seconds,
-       r.finished,
+       x.material_id,
+       x.status,
+       x.run_id,
+       x.message,
+       x.rank,
+       x.seconds,
+       x.finished,
        EXISTS (SELECT 1 FROM results o
-               WHERE o.material_id = r.material_id AND o.status = 'ok') AS resolved,
+               WHERE o.material_id = x.material_id AND o.status = 'ok') AS resolved,
        u.kind,
        u.set_path
 FROM rel x
-JOIN results r ON r.rowid = x.rid
-JOIN runs u ON u.run_id = r.run_id
-ORDER BY r.run_id DESC, r.material_id;
+JOIN runs u ON u.run_id = x.run_id
+ORDER BY x.run_id DESC, x.material_id;
 
 -- Materials by the size of their intrinsic spin Hall conductivity: per material the most
 -- resolved 'ok' row that has one (highest mesh, latest run on ties), which need not be the
 -- summary row when the latest run skipped transport. Grouped by units (2D and 3D differ), then
 -- |shc_xy| descending.
 CREATE VIEW top_spin_hall AS
-WITH ranked AS (
-    SELECT rowid AS rid,
-           ROW_NUMBER() OVER (PARTITION BY material_id ORDER BY mesh DESC NULLS LAST, run_id DESC) AS pick
-    FROM results
-    WHERE status = 'ok' AND shc_xy IS NOT NULL
-)
 SELECT r.material_id,
        m.formula,
        m.dimension,
@@ -153,10 +170,13 @@ SELECT r.material_id,
        r.z2,
        r.mesh,
        r.run_id
-FROM ranked p
-JOIN results r ON r.rowid = p.rid
+FROM results r
 LEFT JOIN materials m ON m.material_id = r.material_id
-WHERE p.pick = 1
+WHERE r.status = 'ok' AND r.shc_xy IS NOT NULL
+  AND r.rowid = (SELECT o.rowid FROM results o
+                 WHERE o.material_id = r.material_id AND o.status = 'ok' AND o.shc_xy IS NOT NULL
+                 ORDER BY o.mesh DESC NULLS LAST, o.run_id DESC
+                 LIMIT 1)
 ORDER BY r.shc_units, abs(r.shc_xy) DESC, r.material_id;
 
 -- One row per run: its description and how many results of each status it holds.
@@ -169,7 +189,7 @@ SELECT u.run_id,
        u.sessions,
        u.ranks,
        u.set_path,
-       COUNT(r.material_id) AS results,
+       COUNT(r.run_id) AS results,
        COALESCE(SUM(r.status = 'ok'), 0) AS ok,
        COALESCE(SUM(r.status = 'invalid'), 0) AS invalid,
        COALESCE(SUM(r.status = 'failed'), 0) AS failed,
