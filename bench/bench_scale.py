@@ -243,8 +243,12 @@ def inspect_cpu(binary, card, repeat, threads=None):
 
 
 def fit_exponent(points):
-    (n1, t1), (n2, t2) = points[-2], points[-1]
-    return math.log(t2 / t1) / math.log(n2 / n1)
+    """Least-squares slope of log t against log n over the last three sizes (two if fewer)."""
+    p = points[-3:]
+    xs = [math.log(n) for n, _ in p]
+    ys = [math.log(t) for _, t in p]
+    mx, my = sum(xs) / len(xs), sum(ys) / len(ys)
+    return sum((x - mx) * (y - my) for x, y in zip(xs, ys)) / sum((x - mx) ** 2 for x in xs)
 
 
 def main():
@@ -294,7 +298,7 @@ def main():
             p = pts[tag]
             e = fit_exponent(p) if len(p) >= 2 else float("nan")
             at = p[-1][1] * (a.n / p[-1][0]) ** e if p[-1][0] != a.n else p[-1][1]
-            print(f"rescreen set-up exponent {tag}: {e:.2f} (last two sizes); at {a.n} ids "
+            print(f"rescreen set-up exponent {tag}: {e:.2f} (fit over the last three sizes); at {a.n} ids "
                   f"{'measured' if p[-1][0] == a.n else 'extrapolated'} {at:.3g} s; at 1e7 "
                   f"extrapolated {at * (1e7 / a.n) ** e:.3g} s", flush=True)
             vals.append((tag, at))

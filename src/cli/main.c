@@ -38,6 +38,8 @@ static void usage(FILE *out)
     for (size_t i = 0; i < sizeof COMMANDS / sizeof COMMANDS[0]; i++)
         fprintf(out, "  %-10s %s\n", COMMANDS[i].name, COMMANDS[i].summary);
     fprintf(out, "\nSOURCE arguments are a card (path.json), SET.h5:ID, or model:NAME[:key=val,...].\n");
+    fprintf(out, "Every command runs its linear algebra on one BLAS thread; BS_BLAS_THREADS=N (or the\n"
+                 "BLAS library's own variable, e.g. OPENBLAS_NUM_THREADS) changes that.\n");
 }
 
 int main(int argc, char **argv)
