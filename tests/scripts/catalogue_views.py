@@ -2,8 +2,8 @@
 """The catalogue views at scale, checked without timing anything:
 
 1. summary and top_spin_hall pick, for every material, the row that their definition in
-   db/README.md names (summary: status 'ok' first, then the highest mesh among ok rows, NULL
-   meshes last, then the latest run; top_spin_hall: among ok rows with shc_xy, highest mesh then
+   db/README.md names (summary: rows about the material's current content first, then status
+   'ok', then the highest mesh among ok rows, NULL meshes last, then the latest run; top_spin_hall: among ok rows with shc_xy, highest mesh then
    latest run). The rule is applied here in Python to a few thousand invented rows (several runs
    per material, every status, NULL meshes, ties) and compared with the views row by row.
 2. The query plans that keep one material and the whole views cheap at 10^6 rows (db/README.md,
@@ -41,29 +41,33 @@ def fill(con, rng, nmat, nrun):
                     "'2026-01-01T00:00:00.000Z', '{}')",
                     [(100 + r, "screen" if r == 0 else "rescreen") for r in range(nrun)])
     rows = []
+    current = {}
     for i in range(nmat):
         mid = f"m{i:05d}"
+        # Content hashes (invented): the material's current one, and rows about it or another.
+        current[mid] = rng.choice(["c1", "c2", None]) if i % 7 else None
         if i % 7:
-            con.execute("INSERT INTO materials (material_id, updated) VALUES (?, '2026')", (mid,))
+            con.execute("INSERT INTO materials (material_id, updated, content) VALUES (?, '2026', ?)",
+                        (mid, current[mid]))
         for r in rng.sample(range(nrun), rng.randint(1, nrun)):
             status = rng.choice(["ok", "ok", "ok", "failed", "timeout", "invalid"])
             mesh = rng.choice([None, 8, 14, 14, 28])
             shc = rng.choice([None, rng.uniform(-1, 1)]) if status == "ok" else None
             rows.append((100 + r, mid, status, mesh, shc, "x" if shc is not None else None,
-                         f"2026-01-0{1 + r}T00:00:00.000Z", rng.random()))
+                         f"2026-01-0{1 + r}T00:00:00.000Z", rng.random(), rng.choice(["c1", "c2", None])))
     rng.shuffle(rows)  # insertion order must not matter
     con.executemany("INSERT INTO results (run_id, material_id, status, mesh, shc_xy, shc_units, finished, "
-                    "confidence) VALUES (?, ?, ?, ?, ?, ?, ?, ?)", rows)
+                    "confidence, content) VALUES (?, ?, ?, ?, ?, ?, ?, ?, ?)", rows)
     con.commit()
-    return rows
+    return rows, current
 
 
-def expected_summary(rows):
+def expected_summary(rows, current):
     best = {}
     for r in rows:
-        run, mid, status, mesh = r[0], r[1], r[2], r[3]
+        run, mid, status, mesh, content = r[0], r[1], r[2], r[3], r[8]
         ok = status == "ok"
-        key = (ok, ok and mesh is not None, (mesh or 0) if ok else 0, run)
+        key = (content == current[mid], ok, ok and mesh is not None, (mesh or 0) if ok else 0, run)
         if mid not in best or key > best[mid][0]:
             best[mid] = (key, run)
     return {mid: v[1] for mid, v in best.items()}
@@ -89,10 +93,10 @@ def main():
     binary, work = sys.argv[1], sys.argv[2]
     cat = make_catalogue(binary, work)
     con = sqlite3.connect(cat)
-    rows = fill(con, random.Random(16), 2000, 4)
+    rows, current = fill(con, random.Random(16), 2000, 4)
     errors = []
     got = {mid: run for mid, run in con.execute("SELECT material_id, run_id FROM summary")}
-    want = expected_summary(rows)
+    want = expected_summary(rows, current)
     if got != want:
         bad = sorted(m for m in set(got) | set(want) if got.get(m) != want.get(m))
         errors.append(f"summary picks differ for {len(bad)} materials, e.g. {bad[:3]}: "
