@@ -24,6 +24,8 @@ enum {
     CAT_ST_ARTIFACT,    /* INSERT INTO artifacts */
     CAT_ST_MAT_ENSURE,  /* INSERT OR IGNORE INTO materials (id and sizes from the diagnosis) */
     CAT_ST_MAT_UPSERT,  /* full material upsert */
+    CAT_ST_MAT_STALE,   /* is a material's recorded content another than the given one */
+    CAT_ST_BEST_MESH,   /* highest ok mesh of a material's current content */
     CAT_ST_COUNT
 };
 
