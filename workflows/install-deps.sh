@@ -17,6 +17,8 @@ PACKAGES=(
   libcmocka-dev
   python3-numpy python3-scipy
   chromium
+  libplplot-dev plplot-driver-cairo
+  poppler-utils
   procps
   clang-format
   clang libclang-rt-dev

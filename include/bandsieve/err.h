@@ -14,7 +14,8 @@ enum {
     BS_ESQL = -7,     /* SQLite call failed */
     BS_EMPI = -8,     /* MPI call failed */
     BS_ETIMEOUT = -9, /* time budget exceeded */
-    BS_EUSAGE = -10   /* bad command-line usage */
+    BS_EUSAGE = -10,  /* bad command-line usage */
+    BS_EUNSUPPORTED = -11 /* the binary was built without what is asked (e.g. figures without PLplot) */
 };
 
 typedef struct bs_err {

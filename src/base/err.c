@@ -55,6 +55,7 @@ const char *bs_err_name(int code)
     case BS_EMPI: return "mpi";
     case BS_ETIMEOUT: return "timeout";
     case BS_EUSAGE: return "usage";
+    case BS_EUNSUPPORTED: return "unsupported";
     default: return "unknown";
     }
 }

@@ -17,5 +17,7 @@ int cmd_slab(int argc, char **argv);
 int cmd_symmetry(int argc, char **argv);
 int cmd_path(int argc, char **argv);
 int cmd_phasemap(int argc, char **argv);
+int cmd_plot(int argc, char **argv);
+int cmd_report(int argc, char **argv);
 
 #endif

@@ -28,6 +28,7 @@ static const command COMMANDS[] = {
     {"symmetry", cmd_symmetry, "crystal symmetry of one material: space group, kept operations, eigenvalues"},
     {"path", cmd_path, "follow a material along a parameter: gap closings, phases, Weyl-node tracks"},
     {"phasemap", cmd_phasemap, "classes on a grid of two parameters of a built-in model (run under mpirun)"},
+    {"plot", cmd_plot, "one figure of one material: bands, flows, Berry curvature, Weyl nodes"},
 };
 
 static void usage(FILE *out)
