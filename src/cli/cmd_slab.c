@@ -14,9 +14,9 @@
 #include "bandsieve/surfgreen.h"
 #include "bandsieve/arrays.h"
 #include "bandsieve/surfstates.h"
-#include "bandsieve/svgplot.h"
 #include "cliutil.h"
 #include "commands.h"
+#include "figures.h"
 
 #define SLAB_MAX_PATH 32
 
@@ -54,7 +54,9 @@ static void slab_help(FILE *out)
             "  --mesh M            map resolution M x M (default 60)\n"
             "  --side top|bottom   surface for the spectral function (default top)\n"
             "  --json              print one JSON object\n"
-            "  --svg FILE          plot: the --window path map, else the --energy map, else the slab bands\n"
+            "  --figure FILE       figure (.svg, .png or .pdf): the --window path map, else the --energy\n"
+            "                      map, else the slab bands with top (up triangles) and bottom (down)\n"
+            "                      surface weights; --svg FILE is the same option\n"
             "  --arrays FILE.h5    write the computed arrays (path, bands and weights, spectral map and\n"
             "                      path spectra) as HDF5 datasets, for an artifacts folder\n"
             "  -h, --help          this text\n",
@@ -134,7 +136,7 @@ static int parse_args(int argc, char **argv, slab_args *a, const char **between,
         {"energy", required_argument, NULL, 'e'}, {"window", required_argument, NULL, 'w'},
         {"eta", required_argument, NULL, 't'}, {"mesh", required_argument, NULL, 'm'},
         {"side", required_argument, NULL, 'S'}, {"json", no_argument, NULL, 'j'},
-        {"svg", required_argument, NULL, 'g'}, {"arrays", required_argument, NULL, 'A'},
+        {"svg", required_argument, NULL, 'g'}, {"figure", required_argument, NULL, 'g'}, {"arrays", required_argument, NULL, 'A'},
         {"help", no_argument, NULL, 'h'}, {NULL, 0, NULL, 0}};
     long v;
     double wv[3];
@@ -451,47 +453,32 @@ static void path_ticks(const slab *s, const slab_args *a, const slab_result *r, 
     }
 }
 
-static int write_svg(const slab *s, const slab_args *a, const slab_result *r, bs_err *err)
+/* The figure (through the plot module): the --window path map, else the --energy map, else the
+ * slab bands with the top and bottom weights of every state. */
+static int write_figure(const slab *s, const slab_args *a, const slab_result *r, bs_err *err)
 {
     char title[256], lab[SLAB_MAX_PATH][32];
     double xt[SLAB_MAX_PATH];
     const char *labp[SLAB_MAX_PATH];
     path_ticks(s, a, r, xt, lab, labp);
     const char *side = a->side == SG_TOP ? "top" : "bottom";
-    svg_axes ax = {0};
+    double x1 = r->xp[r->nkp - 1] > r->xp[0] ? r->xp[r->nkp - 1] : r->xp[0] + 1;
     if (r->awin) {
         snprintf(title, sizeof title, "%s: %s-surface spectral function along the path", a->source, side);
-        ax = (svg_axes){title, "surface path, k' (reduced) at the vertices", "energy (eV)", "A(k,E) (1/eV)",
-                        r->xp[0], r->xp[r->nkp - 1] > r->xp[0] ? r->xp[r->nkp - 1] : r->xp[0] + 1, a->window[0], a->window[1],
-                        a->npath, xt, labp};
-        return svg_heatmap_file(a->svg, r->nkp, r->ne, r->awin, &ax, 1, err);
+        return fig_heatmap(a->svg, title, "surface path, k' (reduced) at the vertices", "energy (eV)", "A(k,E) (1/eV)",
+                           r->nkp, r->ne, r->awin, r->xp[0], x1, a->window[0], a->window[1], 1, a->npath, xt, labp, err);
     }
     if (r->map) {
         snprintf(title, sizeof title, "%s: %s-surface spectral function at E = %.3f eV", a->source, side, a->energy);
         int n2 = slab_kdim(s) == 2 ? a->mesh : 1;
-        ax = (svg_axes){title, "k'1 (reduced)", slab_kdim(s) == 2 ? "k'2 (reduced)" : "(ribbon)", "A(k,E) (1/eV)",
-                        -0.5, 0.5, -0.5, 0.5, 0, NULL, NULL};
-        return svg_heatmap_file(a->svg, a->mesh, n2, r->map, &ax, 1, err);
+        return fig_heatmap(a->svg, title, "k'1 (reduced)", slab_kdim(s) == 2 ? "k'2 (reduced)" : "(ribbon)",
+                           "A(k,E) (1/eV)", a->mesh, n2, r->map, -0.5, 0.5, -0.5, 0.5, 1, 0, NULL, NULL, err);
     }
-    int ns = slab_nstates(s);
-    size_t tot = (size_t)r->nkp * ns;
-    double *x = malloc(tot * sizeof *x), *c = malloc(tot * sizeof *c);
-    int rc = (!x || !c) ? bs_fail(err, BS_ENOMEM, "out of memory for the plot") : 0;
-    double lo = INFINITY, hi = -INFINITY;
-    for (size_t i = 0; rc == 0 && i < tot; i++) {
-        x[i] = r->xp[i / ns];
-        c[i] = r->wt[i] - r->wb[i];
-        lo = fmin(lo, r->E[i]);
-        hi = fmax(hi, r->E[i]);
-    }
-    snprintf(title, sizeof title, "%s: slab bands, colour = top minus bottom weight", a->source);
-    ax = (svg_axes){title, "surface path, k' (reduced) at the vertices", "energy (eV)", "w_top - w_bottom",
-                    r->xp[0], r->xp[r->nkp - 1] > r->xp[0] ? r->xp[r->nkp - 1] : r->xp[0] + 1, lo - 0.05 * (hi - lo + 1e-9),
-                    hi + 0.05 * (hi - lo + 1e-9), a->npath, xt, labp};
-    if (rc == 0) rc = svg_scatter_file(a->svg, (int)tot, x, r->E, c, &ax, err);
-    free(x);
-    free(c);
-    return rc;
+    snprintf(title, sizeof title, "%s: %s %d,%d,%d, %d cells", a->source, slab_kdim(s) == 2 ? "slab" : "ribbon",
+             a->miller[0], a->miller[1], a->miller[2], a->layers);
+    fig_slab_data d = {r->nkp, slab_nstates(s), r->xp, r->E, r->wt, r->wb, r->vbm, r->cbm, r->fermi,
+                       a->npath, xt, labp};
+    return fig_slab_bands(a->svg, title, &d, NULL, err);
 }
 
 /* The computed arrays (path, bands and weights, spectral map and path spectra) into an HDF5 file. */
@@ -536,7 +523,7 @@ int cmd_slab(int argc, char **argv)
     if ((status = finish_args(&a, m->dim - 1, between, path)) != 0) goto done;
     status = 1;
     if (slab_create(m, a.miller, a.layers, a.cut, &s, &err) != 0 || analyse(s, m, &a, &r, &err) != 0 ||
-        (a.svg && write_svg(s, &a, &r, &err) != 0)) {
+        (a.svg && write_figure(s, &a, &r, &err) != 0)) {
         fprintf(stderr, "bandsieve slab: %s: %s\n", m->id, err.msg);
         goto done;
     }

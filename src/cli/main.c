@@ -29,6 +29,7 @@ static const command COMMANDS[] = {
     {"path", cmd_path, "follow a material along a parameter: gap closings, phases, Weyl-node tracks"},
     {"phasemap", cmd_phasemap, "classes on a grid of two parameters of a built-in model (run under mpirun)"},
     {"plot", cmd_plot, "one figure of one material: bands, flows, Berry curvature, Weyl nodes"},
+    {"report", cmd_report, "self-contained HTML report of a material or of the best candidates"},
 };
 
 static void usage(FILE *out)
