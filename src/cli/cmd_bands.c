@@ -35,7 +35,8 @@ static void bands_help(FILE *out)
             "  --points N   samples along the path (default 200)\n"
             "  --fermi E    Fermi level in eV (default: the card's, else mid-gap on the path)\n"
             "  --json       print {\"k\": [[...]], \"energies_eV\": [[...]]}; with --path also\n"
-            "               \"x\", \"labels\", \"path\", \"lattice_type\", \"gap\", \"fermi_eV\"\n"
+            "               \"x\", \"labels\", \"path\", \"path_points\", \"lattice_type\",\n"
+            "               \"reciprocal_vectors\" (rows, 1/A), \"gap\", \"fermi_eV\"\n"
             "  -h, --help   this text\n");
 }
 
@@ -114,6 +115,10 @@ static int print_path_json(const tb_model *m, const band_path *bp)
     cJSON_AddStringToObject(root, "id", m->id);
     cJSON_AddStringToObject(root, "lattice_type", bp->path.lattice);
     cJSON_AddStringToObject(root, "path", desc);
+    double b[3][3];
+    tb_model_reciprocal(m, b);
+    cJSON *rv = cJSON_AddArrayToObject(root, "reciprocal_vectors");
+    for (int i = 0; i < 3; i++) cJSON_AddItemToArray(rv, cJSON_CreateDoubleArray(b[i], 3));
     cJSON *pts = cJSON_AddArrayToObject(root, "path_points");
     for (int v = 0; v < bp->path.npoint; v++) {
         cJSON *o = cJSON_CreateObject();
