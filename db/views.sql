@@ -202,7 +202,9 @@ ORDER BY u.run_id;
 
 -- surfaces: the surface evidence of `screen --surfaces` for each material's summary row: the plane,
 -- and the Fermi-level crossings of top- and bottom-surface states between the first two surface
--- TRIMs (odd: the surface cannot be made trivial), from the stored diagnosis JSON.
+-- TRIMs (odd: the surface cannot be made trivial), from the stored diagnosis JSON; surface_status
+-- says whether the counts of every TRIM pair have the parity the bulk parities require
+-- ('consistent'), could not be made to ('inconclusive', with surface_reason), or were not checked.
 CREATE VIEW surfaces AS
 SELECT s.material_id,
        s.class,
@@ -212,6 +214,8 @@ SELECT s.material_id,
        json_extract(r.diagnosis, '$.surface.crossings.bottom') AS crossings_bottom,
        json_extract(r.diagnosis, '$.surface.crossings.top') % 2 = 1 AS odd_top,
        json_extract(r.diagnosis, '$.surface.dirac_points_top') AS dirac_points_top,
+       json_extract(r.diagnosis, '$.surface.status') AS surface_status,
+       json_extract(r.diagnosis, '$.surface.reason') AS surface_reason,
        s.run_id
 FROM summary s
 JOIN results r ON r.run_id = s.run_id AND r.material_id = s.material_id

@@ -120,6 +120,20 @@ typedef struct res_transport {
     int gauge;                        /* RES_GAUGE_* */
 } res_transport;
 
+/* Verdict on a plane's crossing counts against the bulk (surfsummary.h). */
+typedef enum res_surface_status {
+    RES_SURF_UNCHECKED = 0,     /* no parities or Z2 indices to check against */
+    RES_SURF_CONSISTENT = 1,    /* every pair of surface TRIMs has the parity the bulk requires */
+    RES_SURF_INCONCLUSIVE = 2   /* a pair still disagrees at the thickest slab tried, or no bulk gap */
+} res_surface_status;
+
+/* Crossings between two surface TRIMs a and b, and what the bulk requires. */
+typedef struct res_surface_pair {
+    int a, b;               /* surface TRIM indices t = n1 + 2 n2 (k' = (n1, n2) / 2) */
+    int n_top, n_bottom, n_other;
+    int expected_odd;       /* 1: pi_a pi_b = -1, odd count required; 0: even; -1: unknown */
+} res_surface_pair;
+
 /* Surface evidence for one lattice plane (surfsummary.h computes it; its ssum_result is this). */
 typedef struct res_surface {
     int miller[3];
@@ -128,8 +142,14 @@ typedef struct res_surface {
     double fermi_ev;        /* where crossings were counted */
     double vbm_ev, cbm_ev;  /* bulk band edges at the filling */
     double ka[2], kb[2];    /* the two surface TRIMs (in-plane reduced) */
-    int n_top, n_bottom, n_other;
-    int ndirac_top;         /* top-surface Dirac points inside the bulk gap */
+    int n_top, n_bottom, n_other;   /* between the first two surface TRIMs (ka, kb) */
+    int ndirac_top;         /* two-fold top-surface Dirac points inside the bulk gap by a margin */
+    int ntrim;              /* surface TRIMs: 4 (slab) or 2 (ribbon); 0 in results stored before */
+    int surface_parity[4];  /* pi_a = product of the bulk deltas projecting onto TRIM a; 0 unknown */
+    int npair;
+    res_surface_pair pair[6]; /* every pair a < b, at the last slab thickness tried */
+    res_surface_status status;
+    char reason[360];
 } res_surface;
 
 /* The diagnosis of one material. */

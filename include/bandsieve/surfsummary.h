@@ -9,15 +9,41 @@
 #include "bandsieve/err.h"
 #include "bandsieve/model.h"
 #include "bandsieve/result.h"
+#include "bandsieve/surfstates.h"
 
-/* The summary: res_surface of result.h. */
+/* The summary: res_surface of result.h, with its pairs and verdict. */
 typedef res_surface ssum_result;
+typedef res_surface_pair ssum_pair;
+enum { SSUM_UNCHECKED = RES_SURF_UNCHECKED, SSUM_CONSISTENT = RES_SURF_CONSISTENT, SSUM_INCONCLUSIVE = RES_SURF_INCONCLUSIVE };
+
+/* A surface Dirac point worth the name: a two-fold (Kramers) level of surface-localised states
+ * inside the bulk gap by a margin of max(5% of the gap, 2 meV), so band-edge artefacts (a level
+ * touching the bulk continuum, or a many-fold degenerate level of a flat band) are not counted. */
+int ssum_dirac_ok(const ss_dirac *d, double vbm_ev, double cbm_ev);
 
 /* The default plane of m: (0,0,1) of its own lattice in 3D, the (1,0) edge in 2D. */
 void ssum_default_direction(const tb_model *m, int miller[3]);
 
+/* What the bulk says about the surface: its parity products per TRIM (with inversion) and/or its
+ * Z2 indices (from either method); any may be NULL. */
+typedef struct ssum_bulk {
+    const int *par_delta;   /* ntrim values as diag_result.par_delta, or NULL */
+    int ntrim;
+    const int *z2;          /* {nu} in 2D, {nu0, nu1, nu2, nu3} in 3D, or NULL */
+} ssum_bulk;
+
 /* Builds the slab of nlayers cells (0: 20 in 3D, 32 in 2D) of m (borrowed) for miller and counts
- * the crossings and Dirac points. Errors of the slab builder and eigensolver. */
-int ssum_compute(const tb_model *m, const int miller[3], int nlayers, ssum_result *out, bs_err *err);
+ * the crossings between every pair of surface TRIMs and the Dirac points. With the bulk parities,
+ * or else the Z2 indices, each count is checked against the parity it must have, pi_a pi_b
+ * (Phys. Rev. Lett. 98, 106803 (2007)): from the parities directly; from the indices as the
+ * product of delta over the four bulk TRIMs projecting onto a and b, a plane of TRIMs whose
+ * product the indices give. A strong TI without an odd number of in-gap top Dirac points also
+ * grows the slab (its surfaces may hybridise), and the reason says when none appears. A
+ * disagreement (a slab too
+ * thin: its two surfaces hybridise) doubles the layers up to max_layers (0: 4 x the start,
+ * capped by the state limit), and what still disagrees is SSUM_INCONCLUSIVE with the reason.
+ * Errors of the slab builder and eigensolver. */
+int ssum_compute(const tb_model *m, const int miller[3], int nlayers, int max_layers, const ssum_bulk *bulk,
+                 ssum_result *out, bs_err *err);
 
 #endif

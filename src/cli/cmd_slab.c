@@ -14,11 +14,19 @@
 #include "bandsieve/surfgreen.h"
 #include "bandsieve/arrays.h"
 #include "bandsieve/surfstates.h"
+#include "bandsieve/surfsummary.h"
 #include "cliutil.h"
 #include "commands.h"
 #include "figures.h"
 
 #define SLAB_MAX_PATH 32
+
+/* Said when no Dirac point is found: the slab alone cannot tell a trivial surface from two
+ * surfaces that still hybridise; the bulk parities can (screen --surfaces checks them). */
+#define THIN_NOTE                                                                                          \
+    "no surface Dirac point at this thickness: a trivial surface, or, for a strong or 2D TI, a slab too " \
+    "thin whose two surfaces still hybridise (add --layers; screen --surfaces grows the slab and checks " \
+    "the counts against the bulk parities)"
 
 typedef struct slab_args {
     const char *source, *svg, *arrays;
@@ -332,11 +340,12 @@ static int analyse(const slab *s, const tb_model *m, const slab_args *a, slab_re
                           &r->n_other, err);
     }
     if (rc == 0) rc = ss_dirac_points(c, r->dirac, 16, &r->ndirac, err);
-    /* Dirac points are kept only inside the global bulk gap (a projected gap alone admits the
-     * trivial edge states of, e.g., a zigzag ribbon far below the Fermi level). */
+    /* Dirac points are kept only inside the global bulk gap by a margin and two-fold (a projected
+     * gap alone admits the trivial edge states of, e.g., a zigzag ribbon far below the Fermi level,
+     * and a level at a bulk band edge is an artefact of the continuum, not a Dirac point). */
     int keep = 0;
     for (int i = 0; rc == 0 && i < r->ndirac && i < 16; i++)
-        if (r->dirac[i].energy_ev > r->vbm && r->dirac[i].energy_ev < r->cbm) r->dirac[keep++] = r->dirac[i];
+        if (ssum_dirac_ok(&r->dirac[i], r->vbm, r->cbm)) r->dirac[keep++] = r->dirac[i];
     if (rc == 0) r->ndirac = keep;
     if (rc == 0) rc = sample_path(s, a, r, err);
     if (rc == 0 && (a->json || a->arrays || (a->svg && !a->has_energy && !a->has_window))) rc = compute_bands(c, slab_nstates(s), r, err);
@@ -391,6 +400,7 @@ static int print_json(const slab *s, const slab_args *a, const slab_result *r)
     for (int i = 0; i < 2; i++) cJSON_AddItemToArray(bt, cJSON_CreateDoubleArray(kt + 2 * a->between[i], kdim));
     cJSON_AddItemToObject(root, "surface_dirac_points", dirac_json(r, SS_TOP, kdim));
     cJSON_AddItemToObject(root, "bottom_dirac_points", dirac_json(r, SS_BOTTOM, kdim));
+    if (r->ndirac == 0 && r->cbm > r->vbm) cJSON_AddStringToObject(root, "note", THIN_NOTE);
     cJSON *path = cJSON_AddObjectToObject(root, "path");
     cJSON_AddItemToObject(path, "k", rows_json(r->kp, r->nkp, 2));
     cJSON_AddItemToObject(path, "distance", cJSON_CreateDoubleArray(r->xp, r->nkp));
@@ -439,6 +449,7 @@ static void print_text(const slab *s, const slab_args *a, const slab_result *r)
     for (int i = 0; i < r->ndirac; i++)
         printf("surface Dirac point (%s): k' = (%.3f, %.3f), E = %.6f eV\n", r->dirac[i].side == SS_TOP ? "top" : "bottom",
                r->dirac[i].k[0], r->dirac[i].k[1], r->dirac[i].energy_ev);
+    if (r->ndirac == 0 && r->cbm > r->vbm) printf("note: %s\n", THIN_NOTE);
 }
 
 /* Tick positions and labels ("k1,k2") at the path's vertices. */

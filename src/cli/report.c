@@ -426,12 +426,31 @@ static void section_surface(sbuf *b, const cJSON *d)
     const cJSON *s = cJSON_GetObjectItemCaseSensitive(d, "surface");
     if (!s) return;
     sb_printf(b, "<h2>Surface</h2>\n<p>Stored surface evidence (screen --surfaces): Fermi-level crossings of surface "
-                 "states between two surface TRIMs; their parity follows the bulk parities (Phys. Rev. Lett. 98, "
-                 "106803 (2007)).</p>\n<table>\n");
+                 "states between pairs of surface TRIMs, each beside the parity the bulk parities require, "
+                 "&pi;<sub>a</sub>&pi;<sub>b</sub> (Phys. Rev. Lett. 98, 106803 (2007)).</p>\n<table>\n");
     char v[512];
     for (const cJSON *x = s->child; x; x = x->next) {
+        if (x->string && strcmp(x->string, "pairs") == 0) continue;
         value_text(x, v, sizeof v);
         row(b, x->string ? x->string : "?", v);
+    }
+    sb_printf(b, "</table>\n");
+    const cJSON *pairs = cJSON_GetObjectItemCaseSensitive(s, "pairs"), *p;
+    if (!cJSON_IsArray(pairs) || cJSON_GetArraySize(pairs) == 0) return;
+    sb_printf(b, "<table><tr><th>between</th><th>top crossings</th><th>bottom crossings</th><th>required</th>"
+                 "<th>agrees</th></tr>\n");
+    cJSON_ArrayForEach(p, pairs)
+    {
+        char bt[64], top[32], bot[32], exp[32], ag[32];
+        value_text(cJSON_GetObjectItemCaseSensitive(p, "between"), bt, sizeof bt);
+        value_text(cJSON_GetObjectItemCaseSensitive(p, "top"), top, sizeof top);
+        value_text(cJSON_GetObjectItemCaseSensitive(p, "bottom"), bot, sizeof bot);
+        const cJSON *e = cJSON_GetObjectItemCaseSensitive(p, "expected_odd");
+        snprintf(exp, sizeof exp, "%s", cJSON_IsBool(e) ? (cJSON_IsTrue(e) ? "odd" : "even") : "unknown");
+        value_text(cJSON_GetObjectItemCaseSensitive(p, "agrees"), ag, sizeof ag);
+        sb_printf(b, "<tr><td>");
+        sb_esc(b, bt);
+        sb_printf(b, "</td><td>%s</td><td>%s</td><td>%s</td><td>%s</td></tr>\n", top, bot, exp, ag);
     }
     sb_printf(b, "</table>\n");
 }

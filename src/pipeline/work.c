@@ -118,7 +118,9 @@ int pl_diagnose(const tb_model *m, const pl_diag_opts *o, res_diag *r, bs_err *e
     if (rc == 0 && o->surfaces && res_class_has_surface_states(r->cls)) {
         int miller[3];
         ssum_default_direction(m, miller);
-        rc = ssum_compute(m, miller, 0, &r->surface, err);
+        /* The expected crossing parities come from the parities, else from the Z2 indices. */
+        ssum_bulk bulk = {r->ntrim ? r->par_delta : NULL, r->ntrim, r->z2_status == RES_DONE ? r->z2 : NULL};
+        rc = ssum_compute(m, miller, 0, 0, &bulk, &r->surface, err);
         if (rc == 0) r->has_surface = 1;
         else bs_err_context(err, "surface: ");
     }

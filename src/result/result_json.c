@@ -198,6 +198,9 @@ static int w_gap_resolution(cJSON *o, const res_diag *r, int f)
         return cJSON_AddNumberToObject(o, "gap_resolution_eV", r->gap_resolution_ev) ? 0 : -1;
     return cJSON_AddNullToObject(o, "gap_resolution_eV") ? 0 : -1;
 }
+/* Names of res_surface_status, and of the surface TRIMs (slab: n1 n2; ribbon: n1). */
+static const char *const SURF_STATUS[3] = {"unchecked", "consistent", "inconclusive"};
+static const char *const SURF_TRIM[2][4] = {{"00", "10", "01", "11"}, {"0", "1", "?", "?"}};
 
 static int w_surface(cJSON *o, const res_diag *r, int f)
 {
@@ -212,7 +215,27 @@ static int w_surface(cJSON *o, const res_diag *r, int f)
              (bt = cJSON_AddArrayToObject(x, "between")) &&
              cJSON_AddItemToArray(bt, cJSON_CreateDoubleArray(s->ka, s->kdim)) &&
              cJSON_AddItemToArray(bt, cJSON_CreateDoubleArray(s->kb, s->kdim)) &&
-             cJSON_AddNumberToObject(x, "dirac_points_top", s->ndirac_top);
+             cJSON_AddNumberToObject(x, "dirac_points_top", s->ndirac_top) &&
+             cJSON_AddStringToObject(x, "status", SURF_STATUS[s->status]) &&
+             cJSON_AddStringToObject(x, "reason", s->reason);
+    cJSON *sp = ok ? cJSON_AddArrayToObject(x, "surface_parities") : NULL, *pairs = NULL;
+    ok = ok && sp && (pairs = cJSON_AddArrayToObject(x, "pairs"));
+    for (int t = 0; ok && t < s->ntrim; t++)
+        ok = cJSON_AddItemToArray(sp, s->surface_parity[t] ? cJSON_CreateNumber(s->surface_parity[t])
+                                                           : cJSON_CreateNull());
+    for (int i = 0; ok && i < s->npair; i++) {
+        const res_surface_pair *p = &s->pair[i];
+        cJSON *q = cJSON_CreateObject();
+        const char *ab[2] = {SURF_TRIM[s->kdim == 1][p->a & 3], SURF_TRIM[s->kdim == 1][p->b & 3]};
+        ok = q && cJSON_AddItemToArray(pairs, q) && cJSON_AddItemToObject(q, "between", cJSON_CreateStringArray(ab, 2)) &&
+             cJSON_AddNumberToObject(q, "top", p->n_top) && cJSON_AddNumberToObject(q, "bottom", p->n_bottom) &&
+             cJSON_AddNumberToObject(q, "other", p->n_other);
+        if (ok && p->expected_odd < 0)
+            ok = cJSON_AddNullToObject(q, "expected_odd") && cJSON_AddNullToObject(q, "agrees");
+        else if (ok)
+            ok = cJSON_AddBoolToObject(q, "expected_odd", p->expected_odd) &&
+                 cJSON_AddBoolToObject(q, "agrees", (p->n_top % 2 == 1) == p->expected_odd);
+    }
     return ok ? 0 : -1;
 }
 
@@ -513,6 +536,45 @@ static int r_transport(const cJSON *o, res_diag *r, bs_err *err)
     return 0;
 }
 
+/* The crossing check of a surface object (absent in results stored before it existed: unchecked). */
+static int read_surface_check(const cJSON *x, res_surface *s)
+{
+    bs_err inner;
+    bs_err_clear(&inner);
+    char st[16] = "";
+    if (read_str(x, "status", st, sizeof st, &inner) || read_str(x, "reason", s->reason, sizeof s->reason, &inner))
+        return -1;
+    for (int i = 0; i < 3; i++)
+        if (!strcmp(st, SURF_STATUS[i])) s->status = (res_surface_status)i;
+    const cJSON *sp = member(x, "surface_parities"), *pairs = member(x, "pairs");
+    int nt = cJSON_IsArray(sp) ? cJSON_GetArraySize(sp) : 0, np = cJSON_IsArray(pairs) ? cJSON_GetArraySize(pairs) : 0;
+    if (nt > 4 || np > 6 || (sp && !cJSON_IsArray(sp)) || (pairs && !cJSON_IsArray(pairs))) return -1;
+    s->ntrim = nt;
+    for (int t = 0; t < nt; t++) {
+        const cJSON *v = cJSON_GetArrayItem(sp, t);
+        if (!cJSON_IsNull(v) && json_int(v, &s->surface_parity[t]) != 0) return -1;
+    }
+    s->npair = np;
+    for (int i = 0; i < np; i++) {
+        const cJSON *q = cJSON_GetArrayItem(pairs, i), *bt = member(q, "between"), *e = member(q, "expected_odd");
+        res_surface_pair *p = &s->pair[i];
+        if (!cJSON_IsArray(bt) || cJSON_GetArraySize(bt) != 2) return -1;
+        for (int j = 0; j < 2; j++) {
+            const cJSON *nm = cJSON_GetArrayItem(bt, j);
+            int *dst = j ? &p->b : &p->a;
+            *dst = -1;
+            for (int t = 0; t < 4 && cJSON_IsString(nm); t++)
+                if (!strcmp(nm->valuestring, SURF_TRIM[s->kdim == 1][t])) *dst = t;
+            if (*dst < 0) return -1;
+        }
+        p->expected_odd = e ? cJSON_IsTrue(e) : -1;
+        if (read_int(q, "top", &p->n_top, &inner) || read_int(q, "bottom", &p->n_bottom, &inner) ||
+            read_int(q, "other", &p->n_other, &inner))
+            return -1;
+    }
+    return 0;
+}
+
 static int r_surface(const cJSON *o, res_diag *r, bs_err *err)
 {
     const cJSON *x = member(o, "surface");
@@ -532,6 +594,8 @@ static int r_surface(const cJSON *o, res_diag *r, bs_err *err)
         read_int(cr, "bottom", &s->n_bottom, &inner) || read_int(cr, "other", &s->n_other, &inner) ||
         read_int(x, "dirac_points_top", &s->ndirac_top, &inner))
         return key_fail(err, "surface", expected);
+    if (read_surface_check(x, s) != 0)
+        return key_fail(err, "surface", "\"status\", \"reason\", \"surface_parities\" and \"pairs\" as written");
     r->has_surface = 1;
     return 0;
 }
