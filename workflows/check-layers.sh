@@ -6,7 +6,7 @@
 # Layers, lowest first (a file may include its own layer and lower ranks, never an equal rank of
 # another layer):
 #   0 base   1 model, result   2 kspace   3 symmetry   4 topology, surface   5 catalogue
-#   6 pipeline   7 cli
+#   6 pipeline, plot (figures: includes only base; PLplot lives here alone)   7 cli
 # The layer of include/bandsieve/NAME.h is the folder of src/*/NAME.c, or the table below for the
 # headers that have no source of their own.
 set -euo pipefail
@@ -14,7 +14,7 @@ here="$(cd "$(dirname "$0")/.." && pwd)"
 cd "$here"
 
 declare -A rank=([base]=0 [model]=1 [result]=1 [kspace]=2 [symmetry]=3 [topology]=4 [surface]=4
-                 [catalogue]=5 [pipeline]=6 [cli]=7)
+                 [catalogue]=5 [pipeline]=6 [plot]=6 [cli]=7)
 declare -A header_layer=([config]=base [pipeline]=pipeline)
 # Layers whose code is numerics only: no cJSON, MPI or SQLite, and not the JSON form of a result.
 numeric="model kspace symmetry topology surface"

@@ -14,7 +14,6 @@
 /* The summary: res_surface of result.h, with its pairs and verdict. */
 typedef res_surface ssum_result;
 typedef res_surface_pair ssum_pair;
-enum { SSUM_UNCHECKED = RES_SURF_UNCHECKED, SSUM_CONSISTENT = RES_SURF_CONSISTENT, SSUM_INCONCLUSIVE = RES_SURF_INCONCLUSIVE };
 
 /* A surface Dirac point worth the name: a two-fold (Kramers) level of surface-localised states
  * inside the bulk gap by a margin of max(5% of the gap, 2 meV), so band-edge artefacts (a level
@@ -41,7 +40,7 @@ typedef struct ssum_bulk {
  * grows the slab (its surfaces may hybridise), and the reason says when none appears. A
  * disagreement (a slab too
  * thin: its two surfaces hybridise) doubles the layers up to max_layers (0: 4 x the start,
- * capped by the state limit), and what still disagrees is SSUM_INCONCLUSIVE with the reason.
+ * capped by the state limit), and what still disagrees is RES_SURF_INCONCLUSIVE with the reason.
  * Errors of the slab builder and eigensolver. */
 int ssum_compute(const tb_model *m, const int miller[3], int nlayers, int max_layers, const ssum_bulk *bulk,
                  ssum_result *out, bs_err *err);

@@ -104,11 +104,11 @@ static int draw_diagnosis(const tb_model *m, const plot_args *a, cJSON *data, bs
     o.seed = 1;
     o.mesh = (int)a->mesh;
     o.want_flows = strcmp(a->kind, "flow") == 0;
-    diag_result r;
-    diag_result_init(&r);
+    res_diag r;
+    res_init(&r);
     int rc = diag_run(m, &o, &r, err);
     char title[200];
-    snprintf(title, sizeof title, "%s (%s)", m->id, r.cls);
+    snprintf(title, sizeof title, "%s (%s)", m->id, res_class_name(r.cls));
     if (rc == 0 && o.want_flows) {
         if (r.nflows == 0) rc = bs_fail(err, BS_EINVAL, "%s: no Wannier-centre flow (%s)", m->id, r.reason);
         else rc = fig_flows(a->out, title, r.nflows, r.flows, data, err);
@@ -120,8 +120,8 @@ static int draw_diagnosis(const tb_model *m, const plot_args *a, cJSON *data, bs
         if (rc == 0) rc = fig_nodes(a->out, title, r.nnodes, (const double(*)[3])k, ch, (int)a->project - 1, data, err);
         free(k), free(ch);
     }
-    if (data && rc == 0) cJSON_AddStringToObject(data, "class", r.cls);
-    diag_result_clear(&r);
+    if (data && rc == 0) cJSON_AddStringToObject(data, "class", res_class_name(r.cls));
+    res_clear(&r);
     return rc;
 }
 

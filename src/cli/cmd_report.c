@@ -14,6 +14,7 @@
 #include "bandsieve/catalogue.h"
 #include "bandsieve/config.h"
 #include "bandsieve/diagnosis.h"
+#include "bandsieve/result_json.h"
 #include "bandsieve/source.h"
 #include "cliutil.h"
 #include "commands.h"
@@ -66,15 +67,15 @@ static void tmpdir_remove(tmpdir *t)
 static int report_source(const char *source, const char *out, int mesh, bs_err *err)
 {
     tb_model *m = NULL;
-    diag_result r;
-    diag_result_init(&r);
+    res_diag r;
+    res_init(&r);
     cJSON *j = NULL, *prov = cJSON_CreateObject();
     tmpdir t = {{0}};
     int rc = src_load(source, &m, err);
     diag_opts o = {0};
     o.seed = 1, o.mesh = mesh, o.want_flows = 1;
     if (rc == 0) rc = diag_run(m, &o, &r, err);
-    if (rc == 0 && !(j = diag_to_json(&r, 0))) rc = bs_fail(err, BS_ENOMEM, "out of memory");
+    if (rc == 0 && !(j = res_to_json(&r, 0))) rc = bs_fail(err, BS_ENOMEM, "out of memory");
     if (rc == 0) rc = tmpdir_make(&t, err);
     if (rc == 0) {
         cJSON_AddStringToObject(prov, "source", source);
@@ -88,7 +89,7 @@ static int report_source(const char *source, const char *out, int mesh, bs_err *
     }
     cJSON_Delete(j);
     cJSON_Delete(prov);
-    diag_result_clear(&r);
+    res_clear(&r);
     tb_model_free(m);
     return rc;
 }
@@ -130,7 +131,7 @@ static int report_catalogue_one(cat_db *cat, const char *cat_path, const char *i
     cJSON *sum = cJSON_CreateObject(), *res = cJSON_CreateObject(), *run = cJSON_CreateObject();
     cJSON *mat = cJSON_CreateObject(), *diag = NULL, *prov = cJSON_CreateObject();
     tb_model *m = NULL;
-    diag_flow flows[6];
+    res_flow flows[6];
     int nflow = 0;
     tmpdir t = {{0}};
     snprintf(sql, sizeof sql, "SELECT run_id FROM summary WHERE material_id = %s", q);
@@ -168,7 +169,7 @@ static int report_catalogue_one(cat_db *cat, const char *cat_path, const char *i
             cat_flow_clear(&f);
             continue;
         }
-        flows[nflow++] = (diag_flow){f.plane, f.nstring, f.nband, f.kpar, f.wcc};
+        flows[nflow++] = (res_flow){f.plane, f.nstring, f.nband, f.kpar, f.wcc};
     }
     if (rc == 0 && set) {
         char src[1200];

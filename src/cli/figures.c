@@ -104,7 +104,7 @@ static const char *plane_name(int p, int dim)
     return dim == 2 ? "2D zone" : names[p < 0 || p > 5 ? 0 : p];
 }
 
-int fig_flows(const char *path, const char *title, int nflow, const diag_flow *flows, cJSON *data, bs_err *err)
+int fig_flows(const char *path, const char *title, int nflow, const res_flow *flows, cJSON *data, bs_err *err)
 {
     if (nflow < 1) return bs_fail(err, BS_EINVAL, "no Wannier-centre flows to draw (run inspect with --flows)");
     int dim = nflow == 1 && flows[0].plane == 4 ? 2 : 3;
@@ -113,7 +113,7 @@ int fig_flows(const char *path, const char *title, int nflow, const diag_flow *f
     int rc = plot_open(path, nx == 1 ? 800 : 1350, ny == 1 ? 600 : 900, nx, ny, &f, err);
     cJSON *planes = data ? cJSON_AddArrayToObject(data, "planes") : NULL;
     for (int p = 0; rc == 0 && p < nflow; p++) {
-        const diag_flow *fl = &flows[p];
+        const res_flow *fl = &flows[p];
         char ttl[160], xl[64], yl[64];
         int a = (fl->plane / 2 + 1) % 3, b = (fl->plane / 2 + 2) % 3;
         if (dim == 2) a = 0, b = 1;

@@ -18,7 +18,7 @@ int fig_bands(const char *path, const char *title, const band_path *bp, cJSON *d
 
 /* Wannier-centre flows, one panel per plane (2D: one), centres against the pumping parameter,
  * with the line through the largest gap of each string (Phys. Rev. B 84, 075119 (2011)). */
-int fig_flows(const char *path, const char *title, int nflow, const diag_flow *flows, cJSON *data, bs_err *err);
+int fig_flows(const char *path, const char *title, int nflow, const res_flow *flows, cJSON *data, bs_err *err);
 
 /* Midpoint of the largest gap between consecutive centres of one string (circularly), in [0,1). */
 double fig_largest_gap_mid(int n, const double *wcc);

@@ -311,7 +311,7 @@ static void section_parities(sbuf *b, const cJSON *d)
     sb_printf(b, "</table>\n");
 }
 
-int rep_flow_crossings(const diag_flow *f)
+int rep_flow_crossings(const res_flow *f)
 {
     int count = 0;
     for (int s = 0; s + 1 < f->nstring; s++) {

@@ -15,7 +15,7 @@ typedef struct rep_input {
     const cJSON *diag;          /* the diagnosis object (inspect --json / results.diagnosis) */
     const tb_model *model;      /* NULL: figures that need H(k) are listed as not available */
     int nflow;
-    const diag_flow *flows;     /* stored or computed Wannier-centre flows; may be NULL */
+    const res_flow *flows;     /* stored or computed Wannier-centre flows; may be NULL */
     const char *flow_note;      /* why there are no flows, when nflow is 0; may be NULL */
     const cJSON *provenance;    /* object of name -> value rows; may be NULL */
 } rep_input;
@@ -26,6 +26,6 @@ int rep_write(const rep_input *in, const char *out_path, const char *tmpdir, bs_
 
 /* Centres of consecutive strings jumping over the largest-gap line, counted as in Phys. Rev. B
  * 84, 075119 (2011): its parity is the plane's Z2 index. */
-int rep_flow_crossings(const diag_flow *f);
+int rep_flow_crossings(const res_flow *f);
 
 #endif

@@ -53,8 +53,8 @@ static void assert_honest(const ssum_result *sr)
     int agree = 1;
     for (int i = 0; i < sr->npair; i++)
         agree &= (sr->pair[i].n_top % 2 == 1) == sr->pair[i].expected_odd;
-    if (sr->status == SSUM_CONSISTENT) assert_true(agree);
-    else assert_int_equal(sr->status, SSUM_INCONCLUSIVE);
+    if (sr->status == RES_SURF_CONSISTENT) assert_true(agree);
+    else assert_int_equal(sr->status, RES_SURF_INCONCLUSIVE);
     assert_true(sr->reason[0] != '\0');
 }
 
@@ -72,7 +72,7 @@ static void test_fkm_12_layers(void **state)
     assert_true(any_odd(&sr));
     assert_honest(&sr);
     assert_true(sr.layers > 12 && sr.layers <= 48);
-    if (sr.status == SSUM_CONSISTENT) assert_int_equal(sr.ndirac_top % 2, 1);
+    if (sr.status == RES_SURF_CONSISTENT) assert_int_equal(sr.ndirac_top % 2, 1);
     else assert_non_null(strstr(sr.reason, "layers"));
     surface_of("fkm", G, 12, 12, &sr);
     assert_int_equal(sr.ndirac_top, 0);
@@ -89,13 +89,13 @@ static void test_ribbons(void **state)
     surface_of("kane_mele:lambda_v=0,lambda_R=0", G, 0, 0, &sr);
     assert_int_equal(sr.npair, 1);
     assert_int_equal(sr.pair[0].expected_odd, 1);
-    assert_int_equal(sr.status, SSUM_CONSISTENT);
+    assert_int_equal(sr.status, RES_SURF_CONSISTENT);
     surface_of("bhz", G, 0, 0, &sr);
     assert_int_equal(sr.pair[0].expected_odd, 1);
-    assert_int_equal(sr.status, SSUM_CONSISTENT);
+    assert_int_equal(sr.status, RES_SURF_CONSISTENT);
     surface_of("bhz:M=-1", G, 0, 0, &sr);
     assert_int_equal(sr.pair[0].expected_odd, 0);
-    assert_int_equal(sr.status, SSUM_CONSISTENT);
+    assert_int_equal(sr.status, RES_SURF_CONSISTENT);
 }
 
 /* The expected parities from the Z2 indices equal those from the parities, pair by pair: the
@@ -128,7 +128,7 @@ static void test_unchecked(void **state)
     bs_err_clear(&err);
     const int G[3] = {1, 0, 0};
     assert_int_equal(ssum_compute(m, G, 16, 0, NULL, &sr, &err), 0);
-    assert_int_equal(sr.status, SSUM_UNCHECKED);
+    assert_int_equal(sr.status, RES_SURF_UNCHECKED);
     assert_int_equal(sr.pair[0].expected_odd, -1);
     tb_model_free(m);
 }
