@@ -76,6 +76,8 @@ static void print_surface(const res_surface *s)
     printf("), %d %s: crossings at E = %.4f eV top %d, bottom %d, other %d; %d Dirac points in the gap\n",
            s->layers, s->kdim == 1 ? "cells wide" : "layers", s->fermi_ev, s->n_top, s->n_bottom, s->n_other,
            s->ndirac_top);
+    static const char *const status[3] = {"unchecked", "consistent", "inconclusive"};
+    if (s->reason[0]) printf("  surface check         %s: %s\n", status[s->status], s->reason);
 }
 
 /* One symmetry: its verdict, the breaking bounds when measured, the relative residual. */
