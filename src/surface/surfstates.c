@@ -4,6 +4,7 @@
 
 #include <lapacke.h>
 #include <math.h>
+#include <stdio.h>
 #include <stdlib.h>
 #include <string.h>
 
@@ -120,7 +121,7 @@ static int rotate_level(ss_ctx *c, int i0, int d, bs_err *err)
             for (int x = 0; x < ns; x++) sum += conj(Vc[x + (size_t)a * ns]) * side_sign(c, x) * Vc[x + (size_t)b * ns];
             c->D[a + (size_t)b * d] = sum;
         }
-    lapack_int info = LAPACKE_zheev(LAPACK_COL_MAJOR, 'V', 'U', d, c->D, d, c->Dw);
+    lapack_int info = LAPACKE_zheevd(LAPACK_COL_MAJOR, 'V', 'U', d, c->D, d, c->Dw);
     if (info != 0) return bs_fail(err, BS_ENUMERIC, "surface weights: zheev failed on a %d-fold level (info %d)", d, (int)info);
     for (int b = 0; b < d; b++)
         for (int x = 0; x < ns; x++) {
