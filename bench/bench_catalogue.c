@@ -26,25 +26,33 @@ static size_t make_diag(char *buf, size_t len, const char *id, long i)
         buf, len,
         "{\"id\":\"%s\",\"class\":\"%s\",\"confidence\":%.3f,\"reason\":\"invented benchmark entry\","
         "\"dimension\":3,\"norb\":16,\"occupied_bands\":8,\"gap_direct_eV\":%.6f,\"gap_indirect_eV\":%.6f,"
-        "\"k_gap_direct\":[0.5,0,0],\"k_vbm\":[0,0,0],\"k_cbm\":[0.5,0,0],\"time_reversal\":true,\"inversion\":%s,"
-        "\"z2\":[%d,0,0,0],\"z2_parity\":[%d,0,0,0],\"z2_wcc\":[%d,0,0,0],\"z2_status\":\"done\",\"z2_note\":\"\","
+        "\"k_gap_direct\":[0.5,0,0],\"k_vbm\":[0,0,0],\"k_cbm\":[0.5,0,0],\"time_reversal\":true,"
+        "\"inversion\":%s,"
+        "\"z2\":[%d,0,0,0],\"z2_parity\":[%d,0,0,0],\"z2_wcc\":[%d,0,0,0],\"z2_status\":\"done\",\"z2_note\":"
+        "\"\","
         "\"chern\":null,\"plane_chern\":[0,0,0,0,0,0],\"chern_status\":\"done\",\"weyl_nodes\":[%s],"
-        "\"net_chirality\":0,\"nodal_line\":false,\"nodal_points\":0,\"nodal_extent\":0,\"mesh\":%d,\"seconds\":%.3f,"
+        "\"net_chirality\":0,\"nodal_line\":false,\"nodal_points\":0,\"nodal_extent\":0,\"mesh\":%d,"
+        "\"seconds\":%.3f,"
         "\"k_points\":4096",
-        id, weyl ? "Weyl semimetal" : i % 3 ? "trivial insulator" : "strong topological insulator",
-        0.5 + 0.5 * (double)(i % 97) / 97.0, 0.001 * (double)(i % 500), 0.0008 * (double)(i % 500), i % 2 ? "true" : "false",
-        i % 3 == 0, i % 3 == 0, i % 3 == 0,
+        id,
+        weyl    ? "Weyl semimetal"
+        : i % 3 ? "trivial insulator"
+                : "strong topological insulator",
+        0.5 + 0.5 * (double)(i % 97) / 97.0, 0.001 * (double)(i % 500), 0.0008 * (double)(i % 500),
+        i % 2 ? "true" : "false", i % 3 == 0, i % 3 == 0, i % 3 == 0,
         weyl ? "{\"k\":[0.1,0.2,0.3],\"chirality\":1,\"energy_eV\":0.01,\"gap_eV\":1e-6},"
                "{\"k\":[0.9,0.8,0.7],\"chirality\":-1,\"energy_eV\":0.01,\"gap_eV\":1e-6}"
              : "",
         8 + 4 * (int)(i % 3), 0.1 * (double)(i % 50));
     if (flow) {
         k += (size_t)snprintf(buf + k, len - k, ",\"wcc_flows\":[{\"plane\":0,\"kpar\":[");
-        for (int s = 0; s < 32; s++) k += (size_t)snprintf(buf + k, len - k, "%s%.6f", s ? "," : "", s / 62.0);
+        for (int s = 0; s < 32; s++)
+            k += (size_t)snprintf(buf + k, len - k, "%s%.6f", s ? "," : "", s / 62.0);
         k += (size_t)snprintf(buf + k, len - k, "],\"wcc\":[");
         for (int s = 0; s < 32; s++) {
             k += (size_t)snprintf(buf + k, len - k, "%s[", s ? "," : "");
-            for (int b = 0; b < 8; b++) k += (size_t)snprintf(buf + k, len - k, "%s%.6f", b ? "," : "", (b + 0.01 * s) / 8.0);
+            for (int b = 0; b < 8; b++)
+                k += (size_t)snprintf(buf + k, len - k, "%s%.6f", b ? "," : "", (b + 0.01 * s) / 8.0);
             k += (size_t)snprintf(buf + k, len - k, "]");
         }
         k += (size_t)snprintf(buf + k, len - k, "]}]");
@@ -72,7 +80,8 @@ int main(int argc, char **argv)
     bs_err_clear(&err);
     cat_db *cat = NULL;
     int64_t run = 0;
-    const cat_run_info info = {"screen", "{\"mesh\":8}", "bench", 1, "localhost", "bench_catalogue", "bench.h5", NULL, 0};
+    const cat_run_info info = {"screen",          "{\"mesh\":8}", "bench", 1, "localhost",
+                               "bench_catalogue", "bench.h5",     NULL,    0};
     if (cat_open(path, CAT_RW, &cat, &err) != 0 || cat_run_begin(cat, &info, &run, &err) != 0) {
         fprintf(stderr, "bench_catalogue: %s\n", err.msg);
         return 1;
@@ -96,7 +105,8 @@ int main(int argc, char **argv)
     for (long i = 0; i < n; i++) {
         char id[32];
         snprintf(id, sizeof id, "bench-%06ld", i);
-        if (cat_result_put_text(cat, run, id, CAT_RES_OK, NULL, text[i], len[i], (int)(i % 64), 1.0, &err) != 0) {
+        if (cat_result_put_text(cat, run, id, CAT_RES_OK, NULL, text[i], len[i], (int)(i % 64), 1.0, &err) !=
+            0) {
             fprintf(stderr, "bench_catalogue: %s\n", err.msg);
             return 1;
         }
@@ -116,11 +126,14 @@ int main(int argc, char **argv)
     double t2 = now();
     cat_close(cat, NULL);
     /* CPU time is shown beside wall time because a shared machine inflates the latter. */
-    printf("bench_catalogue: %ld results (%.1f MB of JSON, batches of %d) in %.2f s wall, %.2f s CPU: %.0f rows/s"
-           " (%.0f rows per CPU second)\n", n, (double)bytes / 1e6, CAT_BATCH_ROWS, t1 - t0, cpu, (double)n / (t1 - t0),
-           (double)n / cpu);
-    printf("bench_catalogue: summary (%ld rows) + candidates (%ld rows) views in %.2f s\n", rows, cand, t2 - t1);
-    for (long i = 0; i < n; i++) free(text[i]);
+    printf("bench_catalogue: %ld results (%.1f MB of JSON, batches of %d) in %.2f s wall, %.2f s CPU: %.0f "
+           "rows/s"
+           " (%.0f rows per CPU second)\n",
+           n, (double)bytes / 1e6, CAT_BATCH_ROWS, t1 - t0, cpu, (double)n / (t1 - t0), (double)n / cpu);
+    printf("bench_catalogue: summary (%ld rows) + candidates (%ld rows) views in %.2f s\n", rows, cand,
+           t2 - t1);
+    for (long i = 0; i < n; i++)
+        free(text[i]);
     free(text);
     free(len);
     free(buf);

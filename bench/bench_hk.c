@@ -42,18 +42,24 @@ static int cmp_norm(const void *a, const void *b)
 static tb_model *make_model(int norb, int npairs, uint64_t seed)
 {
     int box = 8, cap = 0;
-    int (*half)[3] = malloc((size_t)(2 * box + 1) * (2 * box + 1) * (2 * box + 1) * sizeof *half);
+    int(*half)[3] = malloc((size_t)(2 * box + 1) * (2 * box + 1) * (2 * box + 1) * sizeof *half);
     for (int a = -box; a <= box; a++)
         for (int b = -box; b <= box; b++)
             for (int c = -box; c <= box; c++)
                 if (a > 0 || (a == 0 && (b > 0 || (b == 0 && c > 0)))) {
-                    half[cap][0] = a; half[cap][1] = b; half[cap][2] = c; cap++;
+                    half[cap][0] = a;
+                    half[cap][1] = b;
+                    half[cap][2] = c;
+                    cap++;
                 }
     qsort(half, cap, sizeof *half, cmp_norm);
     tb_model *m = NULL;
     bs_err err;
     bs_err_clear(&err);
-    if (tb_model_create(norb, 1 + 2 * npairs, 0, &m, &err) != 0) { fprintf(stderr, "%s\n", err.msg); exit(1); }
+    if (tb_model_create(norb, 1 + 2 * npairs, 0, &m, &err) != 0) {
+        fprintf(stderr, "%s\n", err.msg);
+        exit(1);
+    }
     size_t nn = (size_t)norb * norb;
     for (int i = 0; i < norb; i++)
         for (int j = i; j < norb; j++) {
@@ -63,9 +69,12 @@ static tb_model *make_model(int norb, int npairs, uint64_t seed)
         }
     for (int p = 0; p < npairs; p++) {
         int r = 1 + 2 * p, rm = r + 1;
-        for (int d = 0; d < 3; d++) { m->R[r][d] = half[p][d]; m->R[rm][d] = -half[p][d]; }
-        double scale = exp(-0.3 * sqrt(half[p][0] * half[p][0] +
-                                       half[p][1] * half[p][1] + half[p][2] * half[p][2]));
+        for (int d = 0; d < 3; d++) {
+            m->R[r][d] = half[p][d];
+            m->R[rm][d] = -half[p][d];
+        }
+        double scale =
+            exp(-0.3 * sqrt(half[p][0] * half[p][0] + half[p][1] * half[p][1] + half[p][2] * half[p][2]));
         for (size_t q = 0; q < nn; q++) {
             double complex v = scale * ((uniform(&seed) - 0.5) + I * (uniform(&seed) - 0.5));
             size_t i = q / norb, j = q % norb;
@@ -123,14 +132,27 @@ static void bench(int norb, int nk)
                 double u = uniform(&seed), v = uniform(&seed);
                 for (int j = 0; j < batch; j++) {
                     double t = (double)j / batch;
-                    if (mode == 0 || mode == 3) for (int d = 0; d < 3; d++) k[3 * j + d] = uniform(&seed);
-                    else if (mode == 1) { k[3 * j] = (double)b / nbatch; k[3 * j + 1] = t; k[3 * j + 2] = 0.25; }
-                    else { k[3 * j] = u; k[3 * j + 1] = t; k[3 * j + 2] = v; }
+                    if (mode == 0 || mode == 3)
+                        for (int d = 0; d < 3; d++)
+                            k[3 * j + d] = uniform(&seed);
+                    else if (mode == 1) {
+                        k[3 * j] = (double)b / nbatch;
+                        k[3 * j + 1] = t;
+                        k[3 * j + 2] = 0.25;
+                    } else {
+                        k[3 * j] = u;
+                        k[3 * j + 1] = t;
+                        k[3 * j + 2] = v;
+                    }
                 }
                 double t0 = now();
-                if (mode == 0) hk_build(hk, batch, k, H, &err);
-                else if (mode == 3) for (int j = 0; j < batch; j++) hk_build_direct(m, k + 3 * j, H + j * nn);
-                else hk_lines_build(lines, batch, k, H, &err);
+                if (mode == 0)
+                    hk_build(hk, batch, k, H, &err);
+                else if (mode == 3)
+                    for (int j = 0; j < batch; j++)
+                        hk_build_direct(m, k + 3 * j, H + j * nn);
+                else
+                    hk_lines_build(lines, batch, k, H, &err);
                 tb += now() - t0;
                 td += time_diag(ws, H, batch, norb, A, w);
             }
@@ -143,7 +165,10 @@ static void bench(int norb, int nk)
            norb, m->nR, 1e6 * diag[0], 1 + build[0] / diag[0], 1 + build[1] / diag[1], 1 + build[2] / diag[2],
            1 + build[3] / diag[3]);
     fflush(stdout);
-    free(H); free(A); free(w); free(k);
+    free(H);
+    free(A);
+    free(w);
+    free(k);
     hk_lines_free(lines);
     eig_free(ws);
     hk_free(hk);
@@ -156,7 +181,8 @@ int main(int argc, char **argv)
     int sizes[8] = {16, 64, 256}, ns = 3;
     if (argc > 1) {
         ns = 0;
-        for (int i = 1; i < argc && ns < 8; i++) sizes[ns++] = atoi(argv[i]);
+        for (int i = 1; i < argc && ns < 8; i++)
+            sizes[ns++] = atoi(argv[i]);
     }
     printf("# cost per k-point relative to the bare zheevd (values and vectors), one thread\n");
     for (int i = 0; i < ns; i++) {

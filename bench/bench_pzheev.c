@@ -22,7 +22,8 @@ int main(int argc, char **argv)
     int rank, size;
     MPI_Comm_rank(MPI_COMM_WORLD, &rank);
     MPI_Comm_size(MPI_COMM_WORLD, &size);
-    int n_req = argc > 1 ? atoi(argv[1]) : 2000, reps = argc > 2 ? atoi(argv[2]) : 3, nb = argc > 3 ? atoi(argv[3]) : 0;
+    int n_req = argc > 1 ? atoi(argv[1]) : 2000, reps = argc > 2 ? atoi(argv[2]) : 3,
+        nb = argc > 3 ? atoi(argv[3]) : 0;
     if (n_req < 4 || reps < 1) {
         if (rank == 0) fprintf(stderr, "usage: bench_pzheev [n >= 4] [repeats >= 1] [block size]\n");
         MPI_Finalize();
@@ -47,50 +48,75 @@ int main(int argc, char **argv)
     double complex *Z = malloc((size_t)n * n * sizeof *Z);
     if (rank == 0) {
         eig_ws *ws = NULL;
-        if (eig_create(n, &ws, &err)) { fprintf(stderr, "%s\n", err.msg); MPI_Abort(MPI_COMM_WORLD, 1); }
+        if (eig_create(n, &ws, &err)) {
+            fprintf(stderr, "%s\n", err.msg);
+            MPI_Abort(MPI_COMM_WORLD, 1);
+        }
         for (int r = 0; r < reps; r++) {
             memcpy(A, H, (size_t)n * n * sizeof *A);
             double t0 = MPI_Wtime();
-            if (eig_values(ws, A, w0, &err)) { fprintf(stderr, "%s\n", err.msg); MPI_Abort(MPI_COMM_WORLD, 1); }
+            if (eig_values(ws, A, w0, &err)) {
+                fprintf(stderr, "%s\n", err.msg);
+                MPI_Abort(MPI_COMM_WORLD, 1);
+            }
             t_lapack = fmin(t_lapack, MPI_Wtime() - t0);
             memcpy(A, H, (size_t)n * n * sizeof *A);
             t0 = MPI_Wtime();
-            if (eig_vectors(ws, A, w0, &err)) { fprintf(stderr, "%s\n", err.msg); MPI_Abort(MPI_COMM_WORLD, 1); }
+            if (eig_vectors(ws, A, w0, &err)) {
+                fprintf(stderr, "%s\n", err.msg);
+                MPI_Abort(MPI_COMM_WORLD, 1);
+            }
             tv_lapack = fmin(tv_lapack, MPI_Wtime() - t0);
         }
         eig_free(ws);
     }
     pz_ctx *pz = NULL;
-    if (pz_create(MPI_COMM_WORLD, n, nb, &pz, &err)) { fprintf(stderr, "%s\n", err.msg); MPI_Abort(MPI_COMM_WORLD, 1); }
+    if (pz_create(MPI_COMM_WORLD, n, nb, &pz, &err)) {
+        fprintf(stderr, "%s\n", err.msg);
+        MPI_Abort(MPI_COMM_WORLD, 1);
+    }
     for (int r = 0; r < reps; r++) {
         MPI_Barrier(MPI_COMM_WORLD);
         double t0 = MPI_Wtime();
-        if (pz_values(pz, 0, H, w1, &err)) { fprintf(stderr, "%s\n", err.msg); MPI_Abort(MPI_COMM_WORLD, 1); }
+        if (pz_values(pz, 0, H, w1, &err)) {
+            fprintf(stderr, "%s\n", err.msg);
+            MPI_Abort(MPI_COMM_WORLD, 1);
+        }
         double dt = MPI_Wtime() - t0, dmax;
         MPI_Allreduce(&dt, &dmax, 1, MPI_DOUBLE, MPI_MAX, MPI_COMM_WORLD);
         t_pz = fmin(t_pz, dmax);
         MPI_Barrier(MPI_COMM_WORLD);
         t0 = MPI_Wtime();
-        if (pz_vectors(pz, 0, H, w1, Z, &err)) { fprintf(stderr, "%s\n", err.msg); MPI_Abort(MPI_COMM_WORLD, 1); }
+        if (pz_vectors(pz, 0, H, w1, Z, &err)) {
+            fprintf(stderr, "%s\n", err.msg);
+            MPI_Abort(MPI_COMM_WORLD, 1);
+        }
         dt = MPI_Wtime() - t0;
         MPI_Allreduce(&dt, &dmax, 1, MPI_DOUBLE, MPI_MAX, MPI_COMM_WORLD);
         tv_pz = fmin(tv_pz, dmax);
     }
     if (rank == 0) {
         double d = 0;
-        for (int i = 0; i < n; i++) d = fmax(d, fabs(w0[i] - w1[i]));
+        for (int i = 0; i < n; i++)
+            d = fmax(d, fabs(w0[i] - w1[i]));
         int pr, pc;
         pz_grid(pz, &pr, &pc);
         printf("n = %d, best of %d: LAPACK zheevd (1 rank) %.3f s, ScaLAPACK pzheevr (%d ranks, %dx%d grid, "
                "broadcast included) %.3f s, speed-up %.2f, max |dE| %.2e eV\n",
                n, reps, t_lapack, size, pr, pc, t_pz, t_lapack / t_pz, d);
-        printf("n = %d, with vectors: LAPACK zheevd %.3f s, ScaLAPACK pzheevd (vectors gathered on rank 0) %.3f s, "
-               "speed-up %.2f\n", n, tv_lapack, tv_pz, tv_lapack / tv_pz);
+        printf("n = %d, with vectors: LAPACK zheevd %.3f s, ScaLAPACK pzheevd (vectors gathered on rank 0) "
+               "%.3f s, "
+               "speed-up %.2f\n",
+               n, tv_lapack, tv_pz, tv_lapack / tv_pz);
     }
     pz_free(pz);
     slab_free(s);
     tb_model_free(m);
-    free(H); free(A); free(Z); free(w0); free(w1);
+    free(H);
+    free(A);
+    free(Z);
+    free(w0);
+    free(w1);
     MPI_Finalize();
     return 0;
 }

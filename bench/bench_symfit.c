@@ -49,7 +49,8 @@ static tb_model *supercell(const tb_model *m, int n)
     int nc = n * n * n, ns = m->nspatial, norb = m->norb * nc;
     int span = 0;
     for (int r = 0; r < m->nR; r++)
-        for (int d = 0; d < 3; d++) span = abs(m->R[r][d]) > span ? abs(m->R[r][d]) : span;
+        for (int d = 0; d < 3; d++)
+            span = abs(m->R[r][d]) > span ? abs(m->R[r][d]) : span;
     int w = span / n + 2, side = 2 * w + 1, nR = side * side * side;
     tb_model *s = NULL;
     bs_err err;
@@ -59,11 +60,13 @@ static tb_model *supercell(const tb_model *m, int n)
     s->nocc = m->nocc * nc;
     snprintf(s->id, sizeof s->id, "fkm-supercell-%d", n);
     for (int i = 0; i < 3; i++)
-        for (int j = 0; j < 3; j++) s->lattice[i][j] = n * m->lattice[i][j];
+        for (int j = 0; j < 3; j++)
+            s->lattice[i][j] = n * m->lattice[i][j];
     for (int c = 0; c < nc; c++)
         for (int o = 0; o < ns; o++) {
             int cv[3] = {c % n, (c / n) % n, c / (n * n)};
-            for (int d = 0; d < 3; d++) s->orb_pos[c * ns + o][d] = (m->orb_pos[o][d] + cv[d]) / n;
+            for (int d = 0; d < 3; d++)
+                s->orb_pos[c * ns + o][d] = (m->orb_pos[o][d] + cv[d]) / n;
             s->orb_l[c * ns + o] = m->orb_l[o];
         }
     int k = 0;
@@ -71,25 +74,30 @@ static tb_model *supercell(const tb_model *m, int n)
     for (int x = -w; x <= w; x++)
         for (int y = -w; y <= w; y++)
             for (int z = -w; z <= w; z++, k++) {
-                s->R[k][0] = x; s->R[k][1] = y; s->R[k][2] = z;
+                s->R[k][0] = x;
+                s->R[k][1] = y;
+                s->R[k][2] = z;
                 for (int a = 0; a < norb; a++)
                     for (int b = 0; b < norb; b++) {
                         int oa = tb_state_orbital(s, a), ob = tb_state_orbital(s, b);
                         int ca = oa / ns, cb = ob / ns;
-                        int va[3] = {ca % n, (ca / n) % n, ca / (n * n)}, vb[3] = {cb % n, (cb / n) % n, cb / (n * n)};
+                        int va[3] = {ca % n, (ca / n) % n, ca / (n * n)},
+                            vb[3] = {cb % n, (cb / n) % n, cb / (n * n)};
                         int R[3] = {n * x + vb[0] - va[0], n * y + vb[1] - va[1], n * z + vb[2] - va[2]};
                         int r = find_R(m, R);
                         if (r < 0) continue;
                         int sa = tb_state_index(m, oa % ns, tb_state_spin(s, a));
                         int sb = tb_state_index(m, ob % ns, tb_state_spin(s, b));
-                        s->H[k * n2 + (size_t)a * norb + b] = m->H[r * m2 + (size_t)sa * m->norb + sb] / m->deg[r];
+                        s->H[k * n2 + (size_t)a * norb + b] =
+                            m->H[r * m2 + (size_t)sa * m->norb + sb] / m->deg[r];
                     }
             }
     /* Drop the lattice vectors that hold nothing. */
     int keep = 0;
     for (int r = 0; r < nR; r++) {
         int any = 0;
-        for (size_t i = 0; i < n2 && !any; i++) any = s->H[r * n2 + i] != 0;
+        for (size_t i = 0; i < n2 && !any; i++)
+            any = s->H[r * n2 + i] != 0;
         if (!any) continue;
         if (keep != r) {
             memcpy(s->R[keep], s->R[r], sizeof s->R[0]);
@@ -119,7 +127,8 @@ static void sweep(unsigned long long seed)
     tb_model *clean = NULL;
     bs_err err;
     if (lm_build("fkm", &clean, &err) != 0) die("fkm", &err);
-    printf("| noise (of largest hopping) | breaking (eV) | direct gap (eV) | margin | class | confidence |\n");
+    printf(
+        "| noise (of largest hopping) | breaking (eV) | direct gap (eV) | margin | class | confidence |\n");
     printf("|---|---|---|---|---|---|\n");
     for (int e = -6; e <= -1; e++) {
         tb_model *m = NULL;
@@ -129,10 +138,12 @@ static void sweep(unsigned long long seed)
         double breaking = r.restored ? r.breaking_ev : fmax(r.tr_break_ev, r.inv_break_ev);
         const char *bound = r.restored ? r.breaking_bound : "upper bound";
         char margin[32];
-        if (r.restored) snprintf(margin, sizeof margin, "%.3g", r.margin);
-        else snprintf(margin, sizeof margin, "%s", r.gap_direct_ev > 1e-4 ? "(not restored)" : "0 (gapless)");
-        printf("| 1e%d | %.3g (%s) | %.3g | %s | %s | %.2f |\n", e, breaking, bound, r.gap_direct_ev, margin, res_class_name(r.cls),
-               r.confidence);
+        if (r.restored)
+            snprintf(margin, sizeof margin, "%.3g", r.margin);
+        else
+            snprintf(margin, sizeof margin, "%s", r.gap_direct_ev > 1e-4 ? "(not restored)" : "0 (gapless)");
+        printf("| 1e%d | %.3g (%s) | %.3g | %s | %s | %.2f |\n", e, breaking, bound, r.gap_direct_ev, margin,
+               res_class_name(r.cls), r.confidence);
         res_clear(&r);
         tb_model_free(m);
     }
@@ -168,10 +179,10 @@ static void cost(unsigned long long seed, int n)
         sym_info_free(a);
     }
     double t_sym = now() - t0;
-    printf("\ncost on %s + fit noise 1e-3: %d states, %d lattice vectors; class %s (%.2f), margin %.3g\n", big->id,
-           m->norb, m->nR, res_class_name(r.cls), r.confidence, r.margin);
-    printf("diagnosis %.3f s, breaking measure + symmetrisation + layout check %.3f s: ratio %.4f\n", t_diag, t_sym,
-           t_sym / t_diag);
+    printf("\ncost on %s + fit noise 1e-3: %d states, %d lattice vectors; class %s (%.2f), margin %.3g\n",
+           big->id, m->norb, m->nR, res_class_name(r.cls), r.confidence, r.margin);
+    printf("diagnosis %.3f s, breaking measure + symmetrisation + layout check %.3f s: ratio %.4f\n", t_diag,
+           t_sym, t_sym / t_diag);
     res_clear(&r);
     sym_info_free(s);
     tb_model_free(hs);

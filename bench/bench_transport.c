@@ -31,8 +31,8 @@ static int one(const tb_model *m, const tr_opts *o, const char *label, double ex
         fprintf(stderr, "%s\n", err.msg);
         return 1;
     }
-    printf("%-28s sigma_xy %+.8f  |dev| %.2e  est.err %.2e  k-points %9lld  %.3f s\n", label,
-           r.ahc[0][0], fabs(r.ahc[0][0] - exact), r.ahc_err[0][0], r.nk, bs_now() - t0);
+    printf("%-28s sigma_xy %+.8f  |dev| %.2e  est.err %.2e  k-points %9lld  %.3f s\n", label, r.ahc[0][0],
+           fabs(r.ahc[0][0] - exact), r.ahc_err[0][0], r.nk, bs_now() - t0);
     return 0;
 }
 
@@ -53,7 +53,7 @@ static double midpoint(const tb_model *m, int N, double *seconds)
         fprintf(stderr, "midpoint: setup failed %s\n", err.msg);
         exit(1);
     }
-    const double (*a)[3] = m->lattice;
+    const double(*a)[3] = m->lattice;
     double area = fabs(a[0][0] * a[1][1] - a[0][1] * a[1][0]), total = 0;
     for (int i = 0; i < N; i++)
         for (int j = 0; j < N; j++) {
@@ -121,7 +121,8 @@ int main(int argc, char **argv)
     for (int n = 64; n <= 1024 && rc == 0; n *= 2) {
         double sec, v = midpoint(m, n, &sec);
         printf("midpoint %4d^2               sigma_xy %+.8f  |dev| %.2e  est.err    -      "
-               "k-points %9lld  %.3f s\n", n, v, fabs(v - exact), (long long)n * n, sec);
+               "k-points %9lld  %.3f s\n",
+               n, v, fabs(v - exact), (long long)n * n, sec);
     }
     tb_model_free(m);
     return rc;

@@ -24,7 +24,8 @@ static inline int bs_noise_find(int (*R)[3], int n, const int r[3])
 /* The noisy copy of m (fitnoise_apply: relative size rel of the largest hopping, tails on the next
  * shell) into *out (caller frees). *bound_ev (may be NULL) receives sum_R symfit_norm_bound of the
  * noise at R: an upper bound of max_k ||noise(k)||_2. 0, or -1 on failure. */
-static inline int bs_noise_model(const tb_model *m, double rel, uint64_t seed, tb_model **out, double *bound_ev)
+static inline int bs_noise_model(const tb_model *m, double rel, uint64_t seed, tb_model **out,
+                                 double *bound_ev)
 {
     bs_err err;
     if (fitnoise_apply(m, rel, seed, out, &err) != 0) return -1;
@@ -35,7 +36,8 @@ static inline int bs_noise_model(const tb_model *m, double rel, uint64_t seed, t
     double bound = 0;
     for (int r = 0; r < c->nR; r++) {
         int q = bs_noise_find(m->R, m->nR, c->R[r]);
-        for (size_t i = 0; i < n2; i++) d[i] = c->H[r * n2 + i] - (q >= 0 ? m->H[q * n2 + i] / m->deg[q] : 0);
+        for (size_t i = 0; i < n2; i++)
+            d[i] = c->H[r * n2 + i] - (q >= 0 ? m->H[q * n2 + i] / m->deg[q] : 0);
         bound += symfit_norm_bound(c->norb, d);
     }
     free(d);

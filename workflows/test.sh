@@ -1,6 +1,6 @@
 #!/usr/bin/env bash
 # The whole test suite from a fresh clone: checks the layering (workflows/check-layers.sh), installs
-# what is missing, builds, runs every test through CTest (unit tests, numpy/scipy cross-checks, MPI
+# what is missing, builds, checks the formatting (workflows/check-format.sh), runs every test through CTest (unit tests, numpy/scipy cross-checks, MPI
 # runs), rebuilds the unit tests with AddressSanitizer + UndefinedBehaviorSanitizer and runs them
 # again, and finally follows README.md's "Building on a cluster" example literally: a build against
 # Debian's reference BLAS/LAPACK (a second implementation) with explicit CMake variables and no
@@ -11,6 +11,8 @@ export OMPI_ALLOW_RUN_AS_ROOT=1 OMPI_ALLOW_RUN_AS_ROOT_CONFIRM=1
 # Layering first: a file that includes a higher layer fails before anything is built.
 bash "$here/workflows/check-layers.sh"
 bash "$here/workflows/build.sh"
+# Layout: every C file as the tree's .clang-format lays it out (clang-format comes with the deps).
+bash "$here/workflows/check-format.sh"
 ctest --test-dir "$here/build" --output-on-failure -j2 --timeout 900
 BS_BUILD_DIR="$here/build-sanitize" bash "$here/workflows/build.sh" -DBS_SANITIZE=ON
 # Leak checking stays on for our code; UBSan findings are fatal.

@@ -6,11 +6,11 @@
 #include "bandsieve/err.h"
 
 typedef struct ar_array {
-    const char *name;     /* dataset path, e.g. "spectral_map" */
-    const double *data;   /* borrowed, row-major */
-    int rank;             /* 1 or 2 */
+    const char *name;   /* dataset path, e.g. "spectral_map" */
+    const double *data; /* borrowed, row-major */
+    int rank;           /* 1 or 2 */
     long long dims[2];
-    const char *note;     /* stored as the dataset's "description" attribute, may be NULL */
+    const char *note; /* stored as the dataset's "description" attribute, may be NULL */
 } ar_array;
 
 /* Creates (truncates) path and writes the n arrays that have data; a file-level attribute

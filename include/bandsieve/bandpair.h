@@ -43,8 +43,8 @@ int bp_dim(const bp_eval *e);
  * in mesh steps (zero unless made by bp_mesh_eval_offset); index i1 + n*(i2 + n*i3). */
 typedef struct bp_mesh {
     int dim, n, npts;
-    double off[3];      /* offset in mesh steps */
-    double *lo, *hi;    /* npts each, eV */
+    double off[3];   /* offset in mesh steps */
+    double *lo, *hi; /* npts each, eV */
 } bp_mesh;
 
 /* Evaluates the mesh of n per direction (n >= 2). The caller owns *out (bp_mesh_free). */

@@ -8,12 +8,12 @@
 #include "bandsieve/model.h"
 
 typedef struct berry_map {
-    int axis_a, axis_b;     /* reduced directions spanning the plane (a: first index) */
-    int n;                  /* plaquettes per direction */
-    double *omega;          /* n * n, Berry curvature in Angstrom^2 at plaquette (ia, ib): omega[ia * n + ib] */
-    double flux;            /* sum of F over the plane / (2 pi): the Chern number up to round-off */
-    double max_f;           /* largest |F| of a plaquette (rad); above ~1 the mesh is too coarse */
-    double min_gap_ev;      /* smallest direct gap at the filling on the grid */
+    int axis_a, axis_b; /* reduced directions spanning the plane (a: first index) */
+    int n;              /* plaquettes per direction */
+    double *omega;      /* n * n, Berry curvature in Angstrom^2 at plaquette (ia, ib): omega[ia * n + ib] */
+    double flux;        /* sum of F over the plane / (2 pi): the Chern number up to round-off */
+    double max_f;       /* largest |F| of a plaquette (rad); above ~1 the mesh is too coarse */
+    double min_gap_ev;  /* smallest direct gap at the filling on the grid */
 } berry_map;
 
 /* The map of the lowest nband bands of m (borrowed) on the plane k_fixed_axis = kfixed (reduced),

@@ -19,7 +19,7 @@
 #define CAT_APPLICATION_ID 0x42534376 /* "BSCv" */
 
 /* Defaults for the commit batching (cat_set_batch). */
-#define CAT_BATCH_ROWS 64
+#define CAT_BATCH_ROWS    64
 #define CAT_BATCH_SECONDS 2.0
 
 typedef struct cat_db cat_db; /* an open catalogue (opaque) */
@@ -105,8 +105,7 @@ int cat_run_begin(cat_db *cat, const cat_run_info *info, int64_t *run_id, bs_err
  * budget-stopped job), opening a new session in it (ranks, hosts, command line of this job);
  * when there is none, starts a new run as cat_run_begin does. *resumed is 1 when an old run was
  * continued, 0 for a new one. The caller then skips the ids from cat_done_ids. Committed at once. */
-int cat_run_resume(cat_db *cat, const cat_run_info *info, int64_t *run_id, int *resumed,
-                   bs_err *err);
+int cat_run_resume(cat_db *cat, const cat_run_info *info, int64_t *run_id, int *resumed, bs_err *err);
 
 /* For --rerun: continues the latest compatible unfinished run only when an earlier --rerun started
  * it (so a resubmitted job script containing --rerun finishes its run instead of starting over each
@@ -115,11 +114,11 @@ int cat_run_rerun(cat_db *cat, const cat_run_info *info, int64_t *run_id, int *r
 
 /* What a run is, for telling the user what was resumed. */
 typedef struct cat_run_state {
-    char started[40];       /* UTC text */
-    int sessions;           /* jobs so far, this one included */
-    int rerun;              /* started by --rerun */
-    long long nresults;     /* rows it holds */
-    char set_path[1024];    /* the set path of its first session */
+    char started[40];    /* UTC text */
+    int sessions;        /* jobs so far, this one included */
+    int rerun;           /* started by --rerun */
+    long long nresults;  /* rows it holds */
+    char set_path[1024]; /* the set path of its first session */
 } cat_run_state;
 
 int cat_run_get(cat_db *cat, int64_t run_id, cat_run_state *out, bs_err *err);
@@ -132,22 +131,22 @@ int cat_run_end(cat_db *cat, int64_t run_id, cat_run_status status, bs_err *err)
 typedef struct cat_material {
     const char *material_id; /* required, at most 127 bytes */
     const char *formula;
-    int dimension;           /* 2 or 3 */
-    int norb;                /* basis states */
-    int nr;                  /* lattice vectors in the hopping table */
-    int nocc;                /* occupied bands */
-    int spinful;             /* 0 or 1 */
+    int dimension; /* 2 or 3 */
+    int norb;      /* basis states */
+    int nr;        /* lattice vectors in the hopping table */
+    int nocc;      /* occupied bands */
+    int spinful;   /* 0 or 1 */
     const char *set_path;
-    const char *source;      /* provenance note from the card */
-    const char *card_json;   /* the card as JSON text, or NULL */
-    const char *content;     /* the entry's content hash (content.h) in the set it is read from */
-    const char *set_content; /* that set's content hash */
-    const char *comment;     /* the card's comment */
+    const char *source;         /* provenance note from the card */
+    const char *card_json;      /* the card as JSON text, or NULL */
+    const char *content;        /* the entry's content hash (content.h) in the set it is read from */
+    const char *set_content;    /* that set's content hash */
+    const char *comment;        /* the card's comment */
     const char *orbital_labels; /* JSON list of the orbitals' labels (null where none) */
-    const char *meta;        /* the card's meta object as JSON */
-    int provenance;          /* 1: formula, source, card_json, comment, orbital_labels and meta
-                                replace the stored ones as a whole (NULL clears); 0: only non-NULL
-                                fields replace */
+    const char *meta;           /* the card's meta object as JSON */
+    int provenance;             /* 1: formula, source, card_json, comment, orbital_labels and meta
+                                   replace the stored ones as a whole (NULL clears); 0: only non-NULL
+                                   fields replace */
 } cat_material;
 
 /* Inserts or updates the material row (non-NULL fields replace the stored ones; with provenance
@@ -170,8 +169,8 @@ int cat_result_put(cat_db *cat, int64_t run_id, const char *material_id, cat_sta
  * that are missing take the values of an empty result); text NULL means no diagnosis. Malformed
  * JSON is BS_EPARSE with the offset of the error, a key of the wrong type BS_EPARSE naming it. */
 int cat_result_put_text(cat_db *cat, int64_t run_id, const char *material_id, cat_status status,
-                        const char *message, const char *text, size_t len, int rank,
-                        double seconds, bs_err *err);
+                        const char *message, const char *text, size_t len, int rank, double seconds,
+                        bs_err *err);
 
 /* Commits the open transaction now (artifact file flushed first, so a committed row never
  * points at unwritten data). No-op when nothing is pending. */

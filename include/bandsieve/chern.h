@@ -18,12 +18,12 @@ typedef struct chern_ws chern_ws;
 
 /* Settings; chern_opts_default fills the defaults named in brackets. */
 typedef struct chern_opts {
-    int mesh;             /* plaquettes per direction of a plane [24]; per cube edge [6] for the flux */
-    int max_mesh;         /* refinement stops past this many per direction [4 * mesh] */
-    double fmax;          /* largest |F| per plaquette (rad) accepted; refine above [1.0] */
-    double gap_tol_ev;    /* direct gap (band nband-1 to nband) below this counts as closed
-                             [BS_GAP_CLOSED_EV] */
-    double deadline;      /* absolute bs_now() seconds; BS_ETIMEOUT past it (0: none) [0] */
+    int mesh;          /* plaquettes per direction of a plane [24]; per cube edge [6] for the flux */
+    int max_mesh;      /* refinement stops past this many per direction [4 * mesh] */
+    double fmax;       /* largest |F| per plaquette (rad) accepted; refine above [1.0] */
+    double gap_tol_ev; /* direct gap (band nband-1 to nband) below this counts as closed
+                          [BS_GAP_CLOSED_EV] */
+    double deadline;   /* absolute bs_now() seconds; BS_ETIMEOUT past it (0: none) [0] */
 } chern_opts;
 
 /* Defaults for a plane (surface = 0) or for chern_surface_flux (surface = 1). */
@@ -33,16 +33,16 @@ void chern_opts_default(chern_opts *o, int surface);
  * |F| <= fmax and the gap stays open; RES_AMBIGUOUS with a reason otherwise (gap_closed tells the
  * gap apart from a too coarse mesh). */
 typedef struct chern_value {
-    int status;           /* RES_DONE or RES_AMBIGUOUS */
-    int chern;            /* nearest integer to flux */
-    double flux;          /* Berry flux / (2 pi); an integer up to round-off by construction */
-    double max_f;         /* largest |F| of a plaquette, rad */
-    double min_gap_ev;    /* smallest direct gap E_nband - E_(nband-1) seen, eV */
-    int gap_closed;       /* min_gap_ev < gap_tol_ev somewhere */
-    double k_min_gap[3];  /* reduced point of min_gap_ev */
-    int mesh;             /* mesh of the last evaluation */
-    long long nk;         /* k-points diagonalised for this value */
-    char reason[160];     /* why AMBIGUOUS; empty when DONE */
+    int status;          /* RES_DONE or RES_AMBIGUOUS */
+    int chern;           /* nearest integer to flux */
+    double flux;         /* Berry flux / (2 pi); an integer up to round-off by construction */
+    double max_f;        /* largest |F| of a plaquette, rad */
+    double min_gap_ev;   /* smallest direct gap E_nband - E_(nband-1) seen, eV */
+    int gap_closed;      /* min_gap_ev < gap_tol_ev somewhere */
+    double k_min_gap[3]; /* reduced point of min_gap_ev */
+    int mesh;            /* mesh of the last evaluation */
+    long long nk;        /* k-points diagonalised for this value */
+    char reason[160];    /* why AMBIGUOUS; empty when DONE */
 } chern_value;
 
 /* Workspace for the lowest nband bands (1 <= nband < m->norb) of m (borrowed; it must outlive the
@@ -68,7 +68,7 @@ int chern_plane(chern_ws *ws, int p, const chern_opts *o, chern_value *out, bs_e
  * between bands nband-1 and nband this is its chirality (+1 or -1), around a gapped point 0.
  * Only for 3D models (BS_EINVAL otherwise). When the cube's surface itself touches a gap closing,
  * the value is AMBIGUOUS with gap_closed set: shrink or move the cube. o may be NULL (defaults). */
-int chern_surface_flux(chern_ws *ws, const double k0[3], double h, const chern_opts *o,
-                       chern_value *out, bs_err *err);
+int chern_surface_flux(chern_ws *ws, const double k0[3], double h, const chern_opts *o, chern_value *out,
+                       bs_err *err);
 
 #endif

@@ -5,8 +5,8 @@
 #define BS_VERSION "0.1.0"
 
 /* Input limits: a header asking for more is rejected before anything is allocated. */
-#define BS_MAX_NORB 20000      /* basis states per material */
-#define BS_MAX_NR 200000       /* lattice vectors in a hopping table */
+#define BS_MAX_NORB        20000       /* basis states per material */
+#define BS_MAX_NR          200000      /* lattice vectors in a hopping table */
 #define BS_MAX_HR_ELEMENTS 400000000LL /* nR * norb^2 complex numbers (6.4 GB) */
 
 /* |H(-R) - H(R)^dagger| above this (eV) makes a table non-Hermitian. Wannier fits print

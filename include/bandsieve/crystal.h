@@ -25,24 +25,24 @@
 #include "bandsieve/model.h"
 
 typedef struct cry_opts {
-    double site_tol_ang;    /* orbital centres closer than this are one site (0: 0.05 Angstrom:
-                               Wannier centres sit up to a few hundredths of an Angstrom off) */
-    double symprec_ang;     /* spglib's distance tolerance (0: 0.05 Angstrom) */
-    double tol;             /* largest relative residual of a verified operation (0: 1e-6) */
-    int nk;                 /* random k-points for the check (0: 4) */
+    double site_tol_ang; /* orbital centres closer than this are one site (0: 0.05 Angstrom:
+                            Wannier centres sit up to a few hundredths of an Angstrom off) */
+    double symprec_ang;  /* spglib's distance tolerance (0: 0.05 Angstrom) */
+    double tol;          /* largest relative residual of a verified operation (0: 1e-6) */
+    int nk;              /* random k-points for the check (0: 4) */
     unsigned long long seed;
     const int *shell_index; /* nspatial indices within their shell (realharm.h order), or NULL:
                                the model's orb_shape, or the default order without it */
 } cry_opts;
 
 typedef struct cry_op {
-    int W[3][3];            /* reduced rotation (acts on positions) */
-    double t[3];            /* reduced translation */
-    double Rc[3][3];        /* Cartesian orthogonal matrix */
-    char kind[4];           /* "1", "-1", "2", "m", "3", "-3", "4", "-4", "6", "-6" */
-    double axis[3];         /* Cartesian axis of the proper part (mirror: its normal); 0 for 1, -1 */
-    int verified;           /* 1 when H(k) passed the check */
-    double residual;        /* largest relative residual over the check's k-points */
+    int W[3][3];     /* reduced rotation (acts on positions) */
+    double t[3];     /* reduced translation */
+    double Rc[3][3]; /* Cartesian orthogonal matrix */
+    char kind[4];    /* "1", "-1", "2", "m", "3", "-3", "4", "-4", "6", "-6" */
+    double axis[3];  /* Cartesian axis of the proper part (mirror: its normal); 0 for 1, -1 */
+    int verified;    /* 1 when H(k) passed the check */
+    double residual; /* largest relative residual over the check's k-points */
 } cry_op;
 
 typedef struct cry_info cry_info;
@@ -81,8 +81,8 @@ int cry_little_group(const cry_info *c, const double k[3], int *ops);
  * leave k invariant), the eigenvalues of psi^dagger V(k) psi (nband of them, sorted by phase)
  * into ev. Meaningful when the band set is separated from the others at k (a full degenerate
  * multiplet). BS_EINVAL when op does not leave k invariant. */
-int cry_band_eigenvalues(const tb_model *m, const cry_info *c, int op, const double k[3], int lo,
-                         int nband, double complex *ev, bs_err *err);
+int cry_band_eigenvalues(const tb_model *m, const cry_info *c, int op, const double k[3], int lo, int nband,
+                         double complex *ev, bs_err *err);
 
 /* Real-space action of operation op on a Hamiltonian: (g.H)(q) = V(W^T q) H(W^T q) V(W^T q)^+,
  * so that g.H = H exactly when g is a symmetry. With h(R) = H(R)/deg(R),
@@ -98,6 +98,7 @@ int cry_breaking_ev(const tb_model *m, const cry_info *c, int op, double *bound_
 /* 1 when the operations ops[0..nops-1] are closed under composition (modulo lattice translations). */
 int cry_is_group(const cry_info *c, const int *ops, int nops);
 
-int cry_symmetrise(const tb_model *m, const cry_info *c, const int *ops, int nops, tb_model **out, bs_err *err);
+int cry_symmetrise(const tb_model *m, const cry_info *c, const int *ops, int nops, tb_model **out,
+                   bs_err *err);
 
 #endif

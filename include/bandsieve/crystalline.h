@@ -23,14 +23,14 @@ int cz_z4(const par_result *p, int *kappa, bs_err *err);
 enum { CZ_DONE = 1, CZ_AMBIGUOUS = 2 };
 
 typedef struct cz_mirror {
-    int status;             /* CZ_DONE or CZ_AMBIGUOUS */
-    int op;                 /* the mirror's index in the cry_info */
-    double normal[3];       /* Cartesian mirror normal; the plane is oriented along it */
-    int g[2][3];            /* the invariant k-plane: k = k0 + s g[0] + t g[1], s, t in [0,1) */
-    double k0[3];           /* offset of the plane (0 for the plane through Gamma) */
-    int n_plus, n_minus;    /* occupied states per sector (+i or +1 / -i or -1) */
-    int c_plus, c_minus;    /* sector Chern numbers */
-    int mirror_chern;       /* (c_plus - c_minus)/2, or c_plus - c_minus when that is odd */
+    int status;          /* CZ_DONE or CZ_AMBIGUOUS */
+    int op;              /* the mirror's index in the cry_info */
+    double normal[3];    /* Cartesian mirror normal; the plane is oriented along it */
+    int g[2][3];         /* the invariant k-plane: k = k0 + s g[0] + t g[1], s, t in [0,1) */
+    double k0[3];        /* offset of the plane (0 for the plane through Gamma) */
+    int n_plus, n_minus; /* occupied states per sector (+i or +1 / -i or -1) */
+    int c_plus, c_minus; /* sector Chern numbers */
+    int mirror_chern;    /* (c_plus - c_minus)/2, or c_plus - c_minus when that is odd */
     int mesh;
     double min_gap_ev;
     char reason[160];
@@ -65,10 +65,10 @@ enum {
 };
 
 typedef struct cz_prediction {
-    int kind;               /* CZ_PRED_* */
-    int op;                 /* the operation that decided it, -1 for none */
+    int kind;                          /* CZ_PRED_* */
+    int op;                            /* the operation that decided it, -1 for none */
     double complex ev_lower, ev_upper; /* its eigenvalues on the two bands */
-    char text[200];         /* one line for people */
+    char text[200];                    /* one line for people */
 } cz_prediction;
 
 /* Prediction for bands lower, lower+1 (0-based) of m at k. Both bands must be non-degenerate at

@@ -10,18 +10,18 @@
 #include "bandsieve/result.h"
 
 typedef struct diag_opts {
-    int mesh;               /* base k-mesh per reduced direction (0: default) */
-    int mesh_factor;        /* when mesh is 0: the default mesh times this (0 or 1: the default);
-                               a rescreen uses 2 so that 2D and 3D entries are both refined */
-    double max_seconds;     /* wall-clock budget for this material (0: none) */
-    int want_flows;         /* keep Wannier-centre flows in the result (artifacts) */
-    unsigned long long seed;/* for random verification points */
-    double symmetry_tol;    /* relative residual under which a symmetry is exact (0: 1e-6); larger
-                               breakings are measured in eV and judged against the gap */
-    double pos_tol_ang;     /* Angstrom tolerance of the inversion map from orbital centres (0: 0.05) */
-    int magnetism;          /* 0: the card's statement; 1 + TB_MAG_* overrides it for this run */
-    const eig_dist *dist;   /* distributed eigensolver for large matrices (a rank group's, whose
-                               members then run the diagnosis in lockstep); borrowed; NULL: LAPACK */
+    int mesh;                /* base k-mesh per reduced direction (0: default) */
+    int mesh_factor;         /* when mesh is 0: the default mesh times this (0 or 1: the default);
+                                a rescreen uses 2 so that 2D and 3D entries are both refined */
+    double max_seconds;      /* wall-clock budget for this material (0: none) */
+    int want_flows;          /* keep Wannier-centre flows in the result (artifacts) */
+    unsigned long long seed; /* for random verification points */
+    double symmetry_tol;     /* relative residual under which a symmetry is exact (0: 1e-6); larger
+                                breakings are measured in eV and judged against the gap */
+    double pos_tol_ang;      /* Angstrom tolerance of the inversion map from orbital centres (0: 0.05) */
+    int magnetism;           /* 0: the card's statement; 1 + TB_MAG_* overrides it for this run */
+    const eig_dist *dist;    /* distributed eigensolver for large matrices (a rank group's, whose
+                                members then run the diagnosis in lockstep); borrowed; NULL: LAPACK */
 } diag_opts;
 
 /* The default k-mesh per direction for a model of dimension dim (36 in 2D, 14 in 3D). */

@@ -17,7 +17,8 @@ typedef struct eig_dist {
     void *ctx;
     int (*values)(void *ctx, int n, double complex *A, double *w, bs_err *err);
     int (*vectors)(void *ctx, int n, double complex *A, double *w, bs_err *err);
-    int (*range)(void *ctx, int n, double complex *A, int il, int iu, double *w, double complex *Z, bs_err *err);
+    int (*range)(void *ctx, int n, double complex *A, int il, int iu, double *w, double complex *Z,
+                 bs_err *err);
 } eig_dist;
 
 /* Workspace for n x n Hermitian problems. The caller owns *out. */
@@ -39,7 +40,6 @@ int eig_vectors(eig_ws *ws, double complex *A, double *w, bs_err *err);
 
 /* Eigenvalues with indices il..iu (0-based, inclusive) into w[iu-il+1]; vectors into the
  * column-major n x (iu-il+1) array Z when Z is not NULL. A is destroyed. */
-int eig_range(eig_ws *ws, double complex *A, int il, int iu, double *w, double complex *Z,
-              bs_err *err);
+int eig_range(eig_ws *ws, double complex *A, int il, int iu, double *w, double complex *Z, bs_err *err);
 
 #endif

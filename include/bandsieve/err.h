@@ -5,16 +5,16 @@
 
 enum {
     BS_OK = 0,
-    BS_EPARSE = -1,   /* malformed input text or JSON */
-    BS_EIO = -2,      /* file cannot be opened, read or written */
-    BS_ENOMEM = -3,   /* allocation failed */
-    BS_EINVAL = -4,   /* input well-formed but not acceptable (ranges, hermiticity, ...) */
-    BS_ENUMERIC = -5, /* numerical failure: LAPACK info != 0, non-convergence */
-    BS_EHDF5 = -6,    /* HDF5 call failed */
-    BS_ESQL = -7,     /* SQLite call failed */
-    BS_EMPI = -8,     /* MPI call failed */
-    BS_ETIMEOUT = -9, /* time budget exceeded */
-    BS_EUSAGE = -10,  /* bad command-line usage */
+    BS_EPARSE = -1,       /* malformed input text or JSON */
+    BS_EIO = -2,          /* file cannot be opened, read or written */
+    BS_ENOMEM = -3,       /* allocation failed */
+    BS_EINVAL = -4,       /* input well-formed but not acceptable (ranges, hermiticity, ...) */
+    BS_ENUMERIC = -5,     /* numerical failure: LAPACK info != 0, non-convergence */
+    BS_EHDF5 = -6,        /* HDF5 call failed */
+    BS_ESQL = -7,         /* SQLite call failed */
+    BS_EMPI = -8,         /* MPI call failed */
+    BS_ETIMEOUT = -9,     /* time budget exceeded */
+    BS_EUSAGE = -10,      /* bad command-line usage */
     BS_EUNSUPPORTED = -11 /* the binary was built without what is asked (e.g. figures without PLplot) */
 };
 

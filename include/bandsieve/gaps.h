@@ -34,13 +34,13 @@ typedef struct gaps_opts {
 } gaps_opts;
 
 typedef struct gaps_result {
-    double gap_direct_ev;   /* min_k E_{N+1}(k) - E_N(k) */
-    double gap_indirect_ev; /* min_k E_{N+1} - max_k E_N; <= 0 means the bands overlap */
+    double gap_direct_ev;                   /* min_k E_{N+1}(k) - E_N(k) */
+    double gap_indirect_ev;                 /* min_k E_{N+1} - max_k E_N; <= 0 means the bands overlap */
     double k_direct[3], k_vbm[3], k_cbm[3]; /* reduced, in [0,1) (k3 = 0 in 2D) */
-    double vbm_ev, cbm_ev;  /* max E_N, min E_{N+1} */
-    double width_ev;        /* max E_{N+1} - min E_N on the mesh: the scale of the two bands */
-    int metallic;           /* gap_indirect_ev < BS_GAP_CLOSED_EV: metal or semimetal at this filling */
-    int closed;             /* gap_direct_ev < BS_GAP_CLOSED_EV: the two bands touch */
+    double vbm_ev, cbm_ev;                  /* max E_N, min E_{N+1} */
+    double width_ev; /* max E_{N+1} - min E_N on the mesh: the scale of the two bands */
+    int metallic;    /* gap_indirect_ev < BS_GAP_CLOSED_EV: metal or semimetal at this filling */
+    int closed;      /* gap_direct_ev < BS_GAP_CLOSED_EV: the two bands touch */
     int mesh;
     int levels;             /* mesh levels evaluated (1: the coarse mesh only) */
     int converged;          /* the last level changed no gap by more than the tolerance */

@@ -37,8 +37,7 @@ int hk_build(hk_engine *e, int nk, const double *k, double complex *H, bs_err *e
 /* As hk_build, and also dH/dk_i with respect to the reduced coordinates (eV per unit of reduced
  * k, i.e. d/dk_i where k.R = k_i R_i): dH receives nk*3 matrices, dH[(j*3+i)*norb*norb + ...].
  * H may be NULL when only derivatives are wanted. */
-int hk_build_deriv(hk_engine *e, int nk, const double *k, double complex *H, double complex *dH,
-                   bs_err *err);
+int hk_build_deriv(hk_engine *e, int nk, const double *k, double complex *H, double complex *dH, bs_err *err);
 
 /* Dimension-by-dimension partial sums. Fixes reduced coordinate `axis` (0..2) at kval and sums it
  * out: the result is an engine over the remaining lattice-vector components, so H(k) for k with

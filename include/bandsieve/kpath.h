@@ -7,7 +7,7 @@
 #include "bandsieve/err.h"
 
 #define KPATH_MAX_POINTS 32
-#define KPATH_LABEL_LEN 16
+#define KPATH_LABEL_LEN  16
 
 typedef struct kpath_point {
     char label[KPATH_LABEL_LEN]; /* "G" is the zone centre */
@@ -16,8 +16,8 @@ typedef struct kpath_point {
 } kpath_point;
 
 typedef struct kpath {
-    char lattice[16];            /* "CUB", "FCC", "BCC", "TET", "ORC", "HEX", 2D "SQR", "REC", "HEX2D";
-                                    "user" for a given path */
+    char lattice[16]; /* "CUB", "FCC", "BCC", "TET", "ORC", "HEX", 2D "SQR", "REC", "HEX2D";
+                         "user" for a given path */
     int npoint;
     kpath_point point[KPATH_MAX_POINTS];
 } kpath;
@@ -39,11 +39,11 @@ int kpath_parse(const char *text, kpath *out, bs_err *err);
 /* The path sampled into k-points; owned arrays, kpath_samples_clear frees them. */
 typedef struct kpath_samples {
     int nk;
-    double *k;                   /* nk * 3 reduced */
-    double *x;                   /* nk path coordinates, 1/Angstrom (Cartesian length, 2 pi included) */
-    int *vertex;                 /* nk: index of the path point at this sample, or -1 */
-    int nvertex;                 /* equals the path's npoint */
-    double *vertex_x;            /* nvertex: x of each path point (a jump shares the previous x) */
+    double *k;        /* nk * 3 reduced */
+    double *x;        /* nk path coordinates, 1/Angstrom (Cartesian length, 2 pi included) */
+    int *vertex;      /* nk: index of the path point at this sample, or -1 */
+    int nvertex;      /* equals the path's npoint */
+    double *vertex_x; /* nvertex: x of each path point (a jump shares the previous x) */
 } kpath_samples;
 
 /* Samples p with about npoints k-points in all (at least 2 per segment, every path point exactly

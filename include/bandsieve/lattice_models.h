@@ -109,7 +109,7 @@ typedef struct lm_info {
     const char *alias;
     const char *summary;
     const char *reference;
-    int dim;              /* 2 or 3; 0 when a key (dim) chooses */
+    int dim; /* 2 or 3; 0 when a key (dim) chooses */
     int spinful;
     const char *at_defaults;
     int nparam;

@@ -23,8 +23,8 @@ typedef struct ms_entry {
     char id[128];
     int dim, norb, nR, nocc, spinful, status;
     double cost;
-    char content[65];   /* content hash (content.h), "" in sets written before it existed:
-                           ms_content computes it then */
+    char content[65]; /* content hash (content.h), "" in sets written before it existed:
+                         ms_content computes it then */
     /* Family membership, from the card (tb_model.has_family ...) and stored in /families; not
      * part of the /index table. */
     int has_family;

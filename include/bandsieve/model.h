@@ -28,29 +28,29 @@ enum { TB_MAG_UNKNOWN = 0, TB_MAG_NONE = 1, TB_MAG_MAGNETIC = 2 };
 typedef struct tb_model {
     char id[128];
     char formula[64];
-    char source[256];       /* where the model comes from (free text) */
-    int dim;                /* 2 or 3; in 2D, R3 = 0 and k3 is ignored */
-    double lattice[3][3];   /* rows a1, a2, a3, Cartesian, Angstrom */
-    int norb;               /* basis states */
-    int nspatial;           /* spatial orbitals */
+    char source[256];     /* where the model comes from (free text) */
+    int dim;              /* 2 or 3; in 2D, R3 = 0 and k3 is ignored */
+    double lattice[3][3]; /* rows a1, a2, a3, Cartesian, Angstrom */
+    int norb;             /* basis states */
+    int nspatial;         /* spatial orbitals */
     int spinful;
-    int spin_layout;        /* TB_SPIN_* */
-    double (*orb_pos)[3];   /* nspatial reduced positions */
-    int *orb_l;             /* nspatial angular momenta 0..3 */
-    int *orb_shape;         /* nspatial indices within the shell (tb_shape_name), or NULL: the
-                               card named no shapes and the default order applies */
-    int nocc;               /* occupied bands (1..norb-1) */
+    int spin_layout;      /* TB_SPIN_* */
+    double (*orb_pos)[3]; /* nspatial reduced positions */
+    int *orb_l;           /* nspatial angular momenta 0..3 */
+    int *orb_shape;       /* nspatial indices within the shell (tb_shape_name), or NULL: the
+                             card named no shapes and the default order applies */
+    int nocc;             /* occupied bands (1..norb-1) */
     int has_fermi;
     double fermi_ev;
-    int magnetism;          /* TB_MAG_*: the card's statement, TB_MAG_UNKNOWN when it makes none */
-    int has_inversion_op;   /* the card gave an explicit inversion operator */
-    int *inv_perm;          /* norb: state i maps to state inv_perm[i] ... */
-    double *inv_sign;       /* ... with factor inv_sign[i] (+1/-1); inv_shift below */
-    int (*inv_shift)[3];    /* norb: lattice vector added (tau_i -> -tau_i = tau_j + shift) */
+    int magnetism;        /* TB_MAG_*: the card's statement, TB_MAG_UNKNOWN when it makes none */
+    int has_inversion_op; /* the card gave an explicit inversion operator */
+    int *inv_perm;        /* norb: state i maps to state inv_perm[i] ... */
+    double *inv_sign;     /* ... with factor inv_sign[i] (+1/-1); inv_shift below */
+    int (*inv_shift)[3];  /* norb: lattice vector added (tau_i -> -tau_i = tau_j + shift) */
     int nR;
-    int (*R)[3];            /* nR lattice vectors */
-    int *deg;               /* nR degeneracy weights (>= 1) */
-    double complex *H;      /* nR * norb * norb, eV */
+    int (*R)[3];       /* nR lattice vectors */
+    int *deg;          /* nR degeneracy weights (>= 1) */
+    double complex *H; /* nR * norb * norb, eV */
     /* Provenance, not data: the material card as read (compact JSON text: every key including
      * comment, orbital labels and meta), owned, NULL when the model did not come from a card.
      * It does not enter the content hash (content.h). */

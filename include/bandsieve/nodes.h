@@ -21,22 +21,22 @@
 #include "bandsieve/result.h"
 
 typedef struct nodes_opts {
-    int mesh;             /* coarse mesh per reduced direction (0: 16 in 3D, 48 in 2D) */
-    const bp_mesh *grid;  /* optional mesh already evaluated for this model (borrowed; overrides mesh) */
-    double start_frac;    /* refine from mesh cells whose gap is below start_frac * band width
-                             (0: 0.25) */
-    int max_starts;       /* refinements at most (0: 96) */
-    double tol_gap_ev;    /* a refined gap below this is a touching (0: BS_GAP_CLOSED_EV) */
-    double tol_k;         /* final step of the position refinement, reduced units (0: 1e-7) */
-    double merge_dist;    /* touchings closer than this (modulo 1) are one (0: 1e-4) */
-    int min_line_points;  /* a traced curve of at least this many closed-gap points is a line (0: 8) */
-    int skip_chirality;   /* do not compute chiralities (3D) */
-    double deadline;      /* absolute bs_now() seconds (CLOCK_MONOTONIC), 0: none */
+    int mesh;            /* coarse mesh per reduced direction (0: 16 in 3D, 48 in 2D) */
+    const bp_mesh *grid; /* optional mesh already evaluated for this model (borrowed; overrides mesh) */
+    double start_frac;   /* refine from mesh cells whose gap is below start_frac * band width
+                            (0: 0.25) */
+    int max_starts;      /* refinements at most (0: 96) */
+    double tol_gap_ev;   /* a refined gap below this is a touching (0: BS_GAP_CLOSED_EV) */
+    double tol_k;        /* final step of the position refinement, reduced units (0: 1e-7) */
+    double merge_dist;   /* touchings closer than this (modulo 1) are one (0: 1e-4) */
+    int min_line_points; /* a traced curve of at least this many closed-gap points is a line (0: 8) */
+    int skip_chirality;  /* do not compute chiralities (3D) */
+    double deadline;     /* absolute bs_now() seconds (CLOCK_MONOTONIC), 0: none */
 } nodes_opts;
 
 typedef struct nodes_result {
     int nnodes;
-    res_node *nodes;     /* owned: isolated touchings (Weyl nodes in 3D, Dirac points in 2D) */
+    res_node *nodes;      /* owned: isolated touchings (Weyl nodes in 3D, Dirac points in 2D) */
     int net_chirality;    /* sum of the chiralities; zero by Nucl. Phys. B 185, 20 (1981) */
     int chirality_status; /* RES_DONE: every 3D node got an integer flux; RES_AMBIGUOUS: some did
                              not (chirality 0 there); RES_NA: 2D, none found, or skipped */

@@ -16,23 +16,23 @@
 enum { PAR_NA = 0, PAR_DONE = 1, PAR_AMBIGUOUS = 2, PAR_GAP_CLOSED = 4 };
 
 typedef struct par_opts {
-    double gap_tol_ev;      /* E_{N+1} - E_N at a TRIM at or below this is closed (0: BS_GAP_CLOSED_EV) */
-    double parity_tol;      /* largest accepted |xi - (+-1)| of a parity eigenvalue (0: 1e-3) */
-    const eig_dist *dist;   /* distributed eigensolver for large matrices (borrowed; NULL: LAPACK) */
+    double gap_tol_ev;    /* E_{N+1} - E_N at a TRIM at or below this is closed (0: BS_GAP_CLOSED_EV) */
+    double parity_tol;    /* largest accepted |xi - (+-1)| of a parity eigenvalue (0: 1e-3) */
+    const eig_dist *dist; /* distributed eigensolver for large matrices (borrowed; NULL: LAPACK) */
 } par_opts;
 
 typedef struct par_result {
-    int status;             /* PAR_* */
-    char reason[152];       /* why not PAR_DONE (empty when done) */
+    int status;       /* PAR_* */
+    char reason[152]; /* why not PAR_DONE (empty when done) */
     int dim;
-    int ntrim;              /* 4 (2D, k3 = 0) or 8 (3D) */
-    double trim[8][3];      /* reduced k of TRIM t = n1 + 2 n2 + 4 n3: (n1, n2, n3)/2 */
-    double gap_ev[8];       /* E_{N+1} - E_N at each TRIM, N = nocc (eV) */
-    int nodd[8];            /* occupied states of parity -1 (states, not pairs); -1 when not computed */
-    int neven[8];           /* occupied states of parity +1; -1 when not computed */
-    int delta[8];           /* +-1 product over Kramers pairs; 0 when not computed */
-    double max_dev;         /* largest |xi - (+-1)| over every computed parity eigenvalue */
-    int z2[4];              /* 2D: z2[0] = nu; 3D: nu0, nu1, nu2, nu3; -1 when not PAR_DONE */
+    int ntrim;         /* 4 (2D, k3 = 0) or 8 (3D) */
+    double trim[8][3]; /* reduced k of TRIM t = n1 + 2 n2 + 4 n3: (n1, n2, n3)/2 */
+    double gap_ev[8];  /* E_{N+1} - E_N at each TRIM, N = nocc (eV) */
+    int nodd[8];       /* occupied states of parity -1 (states, not pairs); -1 when not computed */
+    int neven[8];      /* occupied states of parity +1; -1 when not computed */
+    int delta[8];      /* +-1 product over Kramers pairs; 0 when not computed */
+    double max_dev;    /* largest |xi - (+-1)| over every computed parity eigenvalue */
+    int z2[4];         /* 2D: z2[0] = nu; 3D: nu0, nu1, nu2, nu3; -1 when not PAR_DONE */
 } par_result;
 
 /* Fills o with the defaults. */

@@ -12,21 +12,21 @@
 enum { PM_MAX_CLOSINGS = 16 };
 
 typedef struct pm_spec {
-    char spec[512];        /* built-in model spec without the two keys ("fkm", "fkm:lambda_SO=0.1") */
+    char spec[512]; /* built-in model spec without the two keys ("fkm", "fkm:lambda_SO=0.1") */
     char xkey[64], ykey[64];
     double x_lo, x_hi, y_lo, y_hi;
-    int nx, ny;            /* grid points (nx >= 3, ny >= 1) */
-    pp_opts opts;          /* path settings for each row (nsamples is set to nx) */
+    int nx, ny;   /* grid points (nx >= 3, ny >= 1) */
+    pp_opts opts; /* path settings for each row (nsamples is set to nx) */
 } pm_spec;
 
 /* The gathered map (rank 0). */
 typedef struct pm_map {
     int nx, ny;
-    double *x, *y;         /* nx, ny */
-    int *cls;              /* ny * nx, row-major, pp_class_name indices */
-    double *gap;           /* ny * nx, eV */
-    int *nclosing;         /* ny */
-    double *closings;      /* ny * PM_MAX_CLOSINGS * 5: x_lo, x_hi, x, single value (0/1), kind code */
+    double *x, *y;    /* nx, ny */
+    int *cls;         /* ny * nx, row-major, pp_class_name indices */
+    double *gap;      /* ny * nx, eV */
+    int *nclosing;    /* ny */
+    double *closings; /* ny * PM_MAX_CLOSINGS * 5: x_lo, x_hi, x, single value (0/1), kind code */
     double seconds;
     int ranks;
 } pm_map;

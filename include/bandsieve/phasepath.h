@@ -49,13 +49,13 @@ void pp_source_free(pp_source *s);
 int pp_same_basis(const tb_model *a, const tb_model *b, bs_err *err);
 
 typedef struct pp_opts {
-    int nsamples;         /* uniform samples of the gap (0: 41) */
-    double tol_x;         /* tolerance on closing positions and interval edges (0: 1e-5) */
-    double closed_ev;     /* a refined direct gap below this is closed (0: 1e-6 eV) */
-    int gap_mesh;         /* k-mesh of the gap scan and node search (0: diag_default_mesh) */
-    int track_steps;      /* continuation steps across a gapless interval (0: 24) */
-    int no_tracks;        /* skip the node tracks */
-    diag_opts diag;       /* for the diagnoses of the intervals */
+    int nsamples;     /* uniform samples of the gap (0: 41) */
+    double tol_x;     /* tolerance on closing positions and interval edges (0: 1e-5) */
+    double closed_ev; /* a refined direct gap below this is closed (0: 1e-6 eV) */
+    int gap_mesh;     /* k-mesh of the gap scan and node search (0: diag_default_mesh) */
+    int track_steps;  /* continuation steps across a gapless interval (0: 24) */
+    int no_tracks;    /* skip the node tracks */
+    diag_opts diag;   /* for the diagnoses of the intervals */
 } pp_opts;
 
 void pp_opts_init(pp_opts *o);
@@ -64,52 +64,52 @@ enum { PP_MAX_KPTS = 16 };
 
 /* A gap closing: a point (x_lo ~ x_hi) or the edge pair of a gapless interval. */
 typedef struct pp_closing {
-    double x_lo, x_hi;    /* closed on [x_lo, x_hi], each edge within tol_x */
-    double x;             /* where g is smallest (point closings) or the middle */
-    double gap_ev;        /* g(x) */
-    int point;            /* 1: a single critical value; 0: a gapless interval of finite width */
-    int nk;               /* touching k-points found at x (point) or at the opening edge (interval) */
+    double x_lo, x_hi; /* closed on [x_lo, x_hi], each edge within tol_x */
+    double x;          /* where g is smallest (point closings) or the middle */
+    double gap_ev;     /* g(x) */
+    int point;         /* 1: a single critical value; 0: a gapless interval of finite width */
+    int nk;            /* touching k-points found at x (point) or at the opening edge (interval) */
     double k[PP_MAX_KPTS][3];
     int at_trim[PP_MAX_KPTS];
     char k_label[PP_MAX_KPTS][24];
-    int all_at_trims;     /* every touching at a TRIM */
-    int parity_checked;   /* both sides have inversion, Kramers pairs and parities */
-    int parity_exchange;  /* occupied odd-parity counts differ at the closing TRIMs */
-    int trim_changed[8];  /* TRIMs (n1 + 2 n2 + 4 n3) whose odd count differs between the sides */
-    int before, after;    /* indices of the intervals on either side */
-    int predicted;        /* prediction holds what the symmetry eigenvalues of the two bands at the
-                             first touching k, just before the closing, say it becomes (crystalline.h);
-                             0 when no prediction could be made (degenerate bands, no symmetry found) */
+    int all_at_trims;    /* every touching at a TRIM */
+    int parity_checked;  /* both sides have inversion, Kramers pairs and parities */
+    int parity_exchange; /* occupied odd-parity counts differ at the closing TRIMs */
+    int trim_changed[8]; /* TRIMs (n1 + 2 n2 + 4 n3) whose odd count differs between the sides */
+    int before, after;   /* indices of the intervals on either side */
+    int predicted;       /* prediction holds what the symmetry eigenvalues of the two bands at the
+                            first touching k, just before the closing, say it becomes (crystalline.h);
+                            0 when no prediction could be made (degenerate bands, no symmetry found) */
     char prediction[200];
-    char kind[48];        /* "band inversion", "gap closing", "Weyl phase", "nodal line", "metal" */
-    char text[240];       /* one line: "band inversion at X (3 TRIMs) at dt = 0.0000" */
+    char kind[48];  /* "band inversion", "gap closing", "Weyl phase", "nodal line", "metal" */
+    char text[240]; /* one line: "band inversion at X (3 TRIMs) at dt = 0.0000" */
 } pp_closing;
 
 typedef struct pp_interval {
     double x_lo, x_hi, x_rep;
     int gapless;
-    double gap_ev;        /* g(x_rep) */
-    res_diag diag;     /* owned: diag_run at x_rep */
-    int diag_rc;          /* 0 or the error of diag_run (then diag.cls is "undetermined") */
+    double gap_ev; /* g(x_rep) */
+    res_diag diag; /* owned: diag_run at x_rep */
+    int diag_rc;   /* 0 or the error of diag_run (then diag.cls is "undetermined") */
 } pp_interval;
 
 /* One Weyl node followed through a gapless interval. */
 typedef struct pp_track {
     int chirality;
     int npts;
-    double *x;            /* npts parameter values */
-    double (*k)[3];       /* npts reduced positions in [0,1) */
+    double *x;                /* npts parameter values */
+    double (*k)[3];           /* npts reduced positions in [0,1) */
     int born_with, died_with; /* partner tracks at creation and annihilation (-1: none found) */
-    int crossings;        /* zone-boundary crossings */
+    int crossings;            /* zone-boundary crossings */
 } pp_track;
 
 enum { PP_EV_CREATED = 0, PP_EV_ANNIHILATED = 1, PP_EV_BOUNDARY = 2, PP_EV_COUNT = 3, PP_EV_NET = 4 };
 
 typedef struct pp_event {
-    int kind;             /* PP_EV_* */
+    int kind; /* PP_EV_* */
     double x;
     double k[3];
-    int a, b;             /* tracks (-1 when none) */
+    int a, b; /* tracks (-1 when none) */
     int interval;
 } pp_event;
 
@@ -117,20 +117,20 @@ typedef struct pp_result {
     int dim;
     double x_lo, x_hi;
     char param[64];
-    double tol_x;         /* the tolerance the closings were refined to */
+    double tol_x; /* the tolerance the closings were refined to */
     int nsamples;
-    double *xs, *gaps;    /* nsamples each, owned */
+    double *xs, *gaps; /* nsamples each, owned */
     int nclosing;
     pp_closing *closings; /* owned, by increasing x */
     int ninterval;
     pp_interval *intervals; /* owned, by increasing x */
     int ntrack;
-    pp_track *tracks;     /* owned */
+    pp_track *tracks; /* owned */
     int nevent;
-    pp_event *events;     /* owned */
-    double confidence;    /* of the path as a whole: lowered by count / chirality events */
-    char note[400];       /* avoided closings, interpolation notice, lowered confidence */
-    long long gap_evals;  /* evaluations of g */
+    pp_event *events;    /* owned */
+    double confidence;   /* of the path as a whole: lowered by count / chirality events */
+    char note[400];      /* avoided closings, interpolation notice, lowered confidence */
+    long long gap_evals; /* evaluations of g */
     long long diag_runs;
     double seconds;
 } pp_result;
@@ -140,8 +140,8 @@ void pp_result_clear(pp_result *r);
 
 /* Runs the path of s (borrowed) over [x_lo, x_hi] (x_lo < x_hi); param names x in the output.
  * o may be NULL. r is initialised by the caller. BS_ENUMERIC from LAPACK, errors of the source. */
-int pp_run(const pp_source *s, const char *param, double x_lo, double x_hi, const pp_opts *o,
-           pp_result *r, bs_err *err);
+int pp_run(const pp_source *s, const char *param, double x_lo, double x_hi, const pp_opts *o, pp_result *r,
+           bs_err *err);
 
 /* The minimal direct gap of m (borrowed) and where it sits (reduced), as the path scans it. */
 int pp_gap(const tb_model *m, int mesh, double *gap_ev, double k[3], bs_err *err);

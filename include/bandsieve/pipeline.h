@@ -17,27 +17,27 @@
 
 /* Counts shown by the progress callback and returned at the end. */
 typedef struct pl_counts {
-    int total;            /* materials this job set out to do (after resume skips) */
-    int skipped;          /* already done in the resumed run */
-    int done;             /* results received */
+    int total;   /* materials this job set out to do (after resume skips) */
+    int skipped; /* already done in the resumed run */
+    int done;    /* results received */
     int ok, invalid, failed, timeout;
     int by_class[RES_NCLASS]; /* per res_class */
-    double elapsed;       /* seconds since the start */
-    int interrupted;      /* stopped early: wall-clock budget or a signal */
+    double elapsed;           /* seconds since the start */
+    int interrupted;          /* stopped early: wall-clock budget or a signal */
     long long run_id;
     int resumed;
-    int missing;          /* rescreen: selected ids that the set does not hold */
-    char missing_ids[256];/* the first few of them, comma-separated */
-    char note[768];       /* what was resumed, or why --rerun resumed; "" when nothing to say */
+    int missing;           /* rescreen: selected ids that the set does not hold */
+    char missing_ids[256]; /* the first few of them, comma-separated */
+    char note[768];        /* what was resumed, or why --rerun resumed; "" when nothing to say */
 } pl_counts;
 
 /* What one material's diagnosis includes besides the topology. */
 typedef struct pl_diag_opts {
     diag_opts diag;
-    int transport;              /* anomalous and spin Hall conductivities with tr below */
-    tr_opts tr;                 /* tr.deadline is set from diag.max_seconds when that is > 0 */
-    int surfaces;               /* surface crossings of a default plane, for classes that promise
-                                   surface or edge states */
+    int transport; /* anomalous and spin Hall conductivities with tr below */
+    tr_opts tr;    /* tr.deadline is set from diag.max_seconds when that is > 0 */
+    int surfaces;  /* surface crossings of a default plane, for classes that promise
+                      surface or edge states */
 } pl_diag_opts;
 
 /* Diagnoses m (borrowed) into r (res_init by the caller): diag_run, then transport and the surface
@@ -72,7 +72,7 @@ typedef struct pl_opts {
                                    an earlier --rerun started is resumed, with a note) */
     int batch_rows;             /* catalogue commit batch (0: default) */
     double batch_seconds;
-    const char *cmdline;        /* recorded in the run row */
+    const char *cmdline; /* recorded in the run row */
     const char *version;
     volatile sig_atomic_t *stop_flag; /* set by a signal handler: finish in-flight work and stop */
     /* Called on rank 0 after every result and about once a second while waiting. */

@@ -6,7 +6,8 @@
  * Colour maps are this project's own: a sequential map whose luminance rises monotonically
  * (dark indigo, teal, green, pale yellow) for magnitudes, and a diverging blue-grey-orange map
  * for signed quantities in which, at every magnitude, the negative side is darker than the
- * positive side, so the sign survives a grey print. Both avoid a red/green contrast. Discrete curve colours differ in luminance too.
+ * positive side, so the sign survives a grey print. Both avoid a red/green contrast. Discrete curve colours
+ * differ in luminance too.
  *
  * When bandsieve is built without PLplot every drawing function fails with BS_EUNSUPPORTED
  * and a message that says how to get figures. */
@@ -24,14 +25,14 @@ typedef struct plot_fig plot_fig;
 
 typedef struct plot_axes {
     const char *title;
-    const char *xlabel, *ylabel;    /* with units, e.g. "energy (eV)" */
-    double x0, x1, y0, y1;          /* ranges shown, x0 < x1, y0 < y1 */
+    const char *xlabel, *ylabel; /* with units, e.g. "energy (eV)" */
+    double x0, x1, y0, y1;       /* ranges shown, x0 < x1, y0 < y1 */
     /* Optional labelled x positions (path points): a vertical line and the label under the axis
      * instead of numeric x ticks; "G" is written as the capital gamma. */
     int nxtick;
     const double *xtick;
     const char *const *xticklabel;
-    int colourbar;                  /* leave room on the right for plot_colourbar */
+    int colourbar; /* leave room on the right for plot_colourbar */
 } plot_axes;
 
 /* 1 when this binary draws figures (built with PLplot), else 0. */
@@ -67,15 +68,15 @@ void plot_curve_mapped(plot_fig *f, int n, const double *x, const double *y, con
 /* Filled markers: circles of radius size (fraction of the panel height) in discrete colour col. */
 void plot_points(plot_fig *f, int n, const double *x, const double *y, int col, double size);
 
-/* Filled triangles with the base on (x, y), pointing up (up = 1, drawn above) or down (below), of size size[i] (fraction of the panel
- * height; 0 skips the point), coloured by value v[i] on cmap over [vmin, vmax] (v may be NULL:
- * discrete colour col). Up and down triangles at one point do not hide each other. */
+/* Filled triangles with the base on (x, y), pointing up (up = 1, drawn above) or down (below), of size
+ * size[i] (fraction of the panel height; 0 skips the point), coloured by value v[i] on cmap over [vmin, vmax]
+ * (v may be NULL: discrete colour col). Up and down triangles at one point do not hide each other. */
 void plot_triangles(plot_fig *f, int n, const double *x, const double *y, const double *size, int up,
                     const double *v, int cmap, double vmin, double vmax, int col);
 
 /* Heat map of z[ix * ny + iy] over [x0,x1] x [y0,y1] on cmap, clipped to [zmin, zmax]. */
-void plot_map(plot_fig *f, int nx, int ny, const double *z, double x0, double x1, double y0, double y1, int cmap,
-              double zmin, double zmax);
+void plot_map(plot_fig *f, int nx, int ny, const double *z, double x0, double x1, double y0, double y1,
+              int cmap, double zmin, double zmax);
 
 /* A colour scale at the right of the current panel for cmap over [zmin, zmax], captioned. */
 void plot_colourbar(plot_fig *f, int cmap, double zmin, double zmax, const char *caption);
@@ -93,16 +94,16 @@ void plot_cmap_rgb(int cmap, double t, double rgb[3]);
 /* x against y curves with shaded x intervals, one panel, in one call: for parameter paths
  * (phase intervals along a path) and any other "quantity along a parameter" figure. */
 typedef struct plot_series {
-    const char *label;              /* legend text, may be NULL */
+    const char *label; /* legend text, may be NULL */
     int n;
     const double *x, *y;
-    int col;                        /* PLOT_* discrete colour */
+    int col; /* PLOT_* discrete colour */
     int dashed;
 } plot_series;
 
 typedef struct plot_interval {
-    double lo, hi;                  /* x range shaded */
-    const char *label;              /* written inside, may be NULL */
+    double lo, hi;     /* x range shaded */
+    const char *label; /* written inside, may be NULL */
 } plot_interval;
 
 int plot_curves_file(const char *path, const plot_axes *ax, int nseries, const plot_series *s, int ninterval,

@@ -39,7 +39,7 @@ typedef struct res_value {
     res_value_type type;
     long long i;
     double x;
-    const char *text;   /* borrowed from r or a static name table */
+    const char *text; /* borrowed from r or a static name table */
 } res_value;
 
 /* Calls fn(ctx, column, value) for every scalar key of the JSON form that has a catalogue column
@@ -47,6 +47,7 @@ typedef struct res_value {
  * The structured keys (index lists, Chern numbers, nodes, transport) are the catalogue's to bind.
  * A new scalar field with a column is then one struct member, one key-table row and one line of
  * db/schema.sql. */
-int res_for_each_column(const res_diag *r, int (*fn)(void *ctx, const char *column, const res_value *v), void *ctx);
+int res_for_each_column(const res_diag *r, int (*fn)(void *ctx, const char *column, const res_value *v),
+                        void *ctx);
 
 #endif

@@ -11,14 +11,14 @@
 
 /* Length of a digest in bytes, and of its lower-case hexadecimal text with the NUL. */
 #define BS_SHA256_BYTES 32
-#define BS_SHA256_HEX 65
+#define BS_SHA256_HEX   65
 
 /* Running state of one hash; the caller owns it (plain struct, no free needed). */
 typedef struct bs_sha256 {
     uint32_t h[8];
-    uint64_t nbytes;   /* message length so far */
+    uint64_t nbytes; /* message length so far */
     unsigned char block[64];
-    size_t used;       /* bytes waiting in block */
+    size_t used; /* bytes waiting in block */
 } bs_sha256;
 
 void bs_sha256_init(bs_sha256 *s);

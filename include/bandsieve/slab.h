@@ -32,8 +32,7 @@ int slab_basis(const tb_model *bulk, const int miller[3], int M[3][3], bs_err *e
 /* Builds the slab of nlayers cells (1 <= nlayers <= BS_MAX_NORB / norb) of bulk (borrowed; not
  * referred to afterwards) for the given Miller indices and termination cut (reduced, any real).
  * The caller owns *out (slab_free). BS_EINVAL for bad indices or layer counts, BS_ENOMEM. */
-int slab_create(const tb_model *bulk, const int miller[3], int nlayers, double cut, slab **out,
-                bs_err *err);
+int slab_create(const tb_model *bulk, const int miller[3], int nlayers, double cut, slab **out, bs_err *err);
 
 /* Frees s; accepts NULL. */
 void slab_free(slab *s);

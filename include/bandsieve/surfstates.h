@@ -12,12 +12,12 @@
 #include "bandsieve/slab.h"
 
 typedef struct ss_opts {
-    int nsurf;          /* layers counted as a surface (0: max(2, nlayers / 8)) */
-    double loc_min;     /* (w_top - w_bottom) / (w_top + w_bottom) above this: a top state; below
-                         * -loc_min: a bottom state (0: 0.5) */
-    int nk;             /* k samples per segment for crossings (0: 240) */
-    int nperp;          /* k_perp samples for projected bulk bands (0: 48) */
-    double deg_tol_ev;  /* eigenvalues closer than this are one degenerate level (0: 2e-3 eV) */
+    int nsurf;         /* layers counted as a surface (0: max(2, nlayers / 8)) */
+    double loc_min;    /* (w_top - w_bottom) / (w_top + w_bottom) above this: a top state; below
+                        * -loc_min: a bottom state (0: 0.5) */
+    int nk;            /* k samples per segment for crossings (0: 240) */
+    int nperp;         /* k_perp samples for projected bulk bands (0: 48) */
+    double deg_tol_ev; /* eigenvalues closer than this are one degenerate level (0: 2e-3 eV) */
 } ss_opts;
 
 /* Fills o with the defaults (all zero, which the functions read as the defaults above). */
@@ -56,16 +56,17 @@ double ss_fermi_default(double vbm, double cbm);
  * segment from ka to kb (in-plane reduced), sampled at nk points including both ends. Bands are
  * followed from sample to sample by eigenvector overlap (so a top and a bottom band crossing each
  * other near E_F are told apart), and a crossing is classified by its weights averaged over the
- * two samples around it; nk should resolve the surface bands. n_other receives crossings by states localised on neither surface, plus any
- * change of the count below E_F that the followed bands do not explain (may be NULL). */
-int ss_crossings(ss_ctx *c, const double ka[2], const double kb[2], double fermi_ev, int *n_top, int *n_bottom,
-                 int *n_other, bs_err *err);
+ * two samples around it; nk should resolve the surface bands. n_other receives crossings by states localised
+ * on neither surface, plus any change of the count below E_F that the followed bands do not explain (may be
+ * NULL). */
+int ss_crossings(ss_ctx *c, const double ka[2], const double kb[2], double fermi_ev, int *n_top,
+                 int *n_bottom, int *n_other, bs_err *err);
 
 typedef struct ss_dirac {
-    double k[2];        /* in-plane reduced k' (a surface TRIM) */
+    double k[2]; /* in-plane reduced k' (a surface TRIM) */
     double energy_ev;
-    int side;           /* SS_TOP or SS_BOTTOM */
-    int degeneracy;     /* surface states of that side in the level (2 for a Kramers pair) */
+    int side;       /* SS_TOP or SS_BOTTOM */
+    int degeneracy; /* surface states of that side in the level (2 for a Kramers pair) */
 } ss_dirac;
 
 enum { SS_TOP = 0, SS_BOTTOM = 1 };

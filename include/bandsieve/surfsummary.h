@@ -26,9 +26,9 @@ void ssum_default_direction(const tb_model *m, int miller[3]);
 /* What the bulk says about the surface: its parity products per TRIM (with inversion) and/or its
  * Z2 indices (from either method); any may be NULL. */
 typedef struct ssum_bulk {
-    const int *par_delta;   /* ntrim values as diag_result.par_delta, or NULL */
+    const int *par_delta; /* ntrim values as diag_result.par_delta, or NULL */
     int ntrim;
-    const int *z2;          /* {nu} in 2D, {nu0, nu1, nu2, nu3} in 3D, or NULL */
+    const int *z2; /* {nu} in 2D, {nu0, nu1, nu2, nu3} in 3D, or NULL */
 } ssum_bulk;
 
 /* Builds the slab of nlayers cells (0: 20 in 3D, 32 in 2D) of m (borrowed) for miller and counts

@@ -63,18 +63,18 @@ enum { SYMFIT_NA = -1, SYMFIT_EXACT = 0, SYMFIT_APPROX = 1, SYMFIT_BROKEN = 2 };
 
 /* Breaking of one operation g by a model, in eV. */
 typedef struct symfit_break {
-    int available;          /* 0 when no candidate operator exists (no inversion map) */
-    double upper_ev;        /* sum_R ||E(R) - gE(R)||: an upper bound of max_k ||H(k) - gH(k)|| */
-    double lower_ev;        /* max over the k mesh of ||H(k) - gH(k)||_2: a lower bound of it */
-    double relative;        /* upper_ev / sum_R ||E(R)||: dimensionless */
+    int available;   /* 0 when no candidate operator exists (no inversion map) */
+    double upper_ev; /* sum_R ||E(R) - gE(R)||: an upper bound of max_k ||H(k) - gH(k)|| */
+    double lower_ev; /* max over the k mesh of ||H(k) - gH(k)||_2: a lower bound of it */
+    double relative; /* upper_ev / sum_R ||E(R)||: dimensionless */
 } symfit_break;
 
 /* Settings of the measure; 0 fields take the defaults in brackets. */
 typedef struct symfit_opts {
-    int mesh;               /* k mesh per periodic direction for the lower bound [2 max|R_i| + 2,
-                               at least 6 and a multiple of 6 up to 18 in 2D, at least 4 and even up
-                               to 8 in 3D]: even sizes contain the TRIM, multiples of 3 the
-                               honeycomb K points */
+    int mesh; /* k mesh per periodic direction for the lower bound [2 max|R_i| + 2,
+                 at least 6 and a multiple of 6 up to 18 in 2D, at least 4 and even up
+                 to 8 in 3D]: even sizes contain the TRIM, multiples of 3 the
+                 honeycomb K points */
 } symfit_opts;
 
 /* An upper bound of the spectral norm of the n x n column-major A: min(||A||_F,
@@ -84,8 +84,8 @@ double symfit_norm_bound(int n, const double complex *A);
 /* Breaking of m (borrowed) by time reversal (which = SYMFIT_TR) or inversion (SYMFIT_INV) with the
  * operators of s (borrowed; from sym_detect on m). o may be NULL. out->available = 0 and 0 returned
  * when s has no inversion candidate. BS_EINVAL (s not of m), BS_ENOMEM, BS_ENUMERIC. */
-int symfit_measure(const tb_model *m, const sym_info *s, int which, const symfit_opts *o,
-                   symfit_break *out, bs_err *err);
+int symfit_measure(const tb_model *m, const sym_info *s, int which, const symfit_opts *o, symfit_break *out,
+                   bs_err *err);
 
 /* The symmetrised model: the average of m over the operations in `which` (SYMFIT_TR, SYMFIT_INV
  * or both). With both, the inversion factors of s are first adjusted so that P Theta = Theta P

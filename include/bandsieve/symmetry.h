@@ -31,13 +31,13 @@
 enum { SYM_INV_NONE = 0, SYM_INV_CARD = 1, SYM_INV_POSITIONS = 2 };
 
 typedef struct sym_opts {
-    int nk;                 /* random k-points for the verification (0: 6) */
-    unsigned long long seed;/* seed of the generator that draws them */
-    double tol;             /* largest accepted relative residual (0: 1e-6, see sym_info) */
-    double pos_tol;         /* reduced-coordinate tolerance when matching positions (0: 1e-3) */
-    double pos_tol_ang;     /* Cartesian tolerance in Angstrom when matching positions (0: 0.05);
-                               two positions match when either tolerance accepts them */
-    int skip_inversion;     /* 1: time reversal only (inversion fields stay empty) */
+    int nk;                  /* random k-points for the verification (0: 6) */
+    unsigned long long seed; /* seed of the generator that draws them */
+    double tol;              /* largest accepted relative residual (0: 1e-6, see sym_info) */
+    double pos_tol;          /* reduced-coordinate tolerance when matching positions (0: 1e-3) */
+    double pos_tol_ang;      /* Cartesian tolerance in Angstrom when matching positions (0: 0.05);
+                                two positions match when either tolerance accepts them */
+    int skip_inversion;      /* 1: time reversal only (inversion fields stay empty) */
 } sym_opts;
 
 /* What sym_detect found. Residuals are relative: the largest, over the random k-points, of
@@ -50,22 +50,22 @@ typedef struct sym_opts {
 typedef struct sym_info {
     int norb, dim, spinful;
 
-    int time_reversal;      /* 1 when Theta passed the check */
-    int tr_squared;         /* Theta^2: -1 spinful (Kramers pairs), +1 spinless */
+    int time_reversal; /* 1 when Theta passed the check */
+    int tr_squared;    /* Theta^2: -1 spinful (Kramers pairs), +1 spinless */
     double tr_residual, tr_residual_ev;
-    int *tr_perm;           /* norb: U carries state i to tr_perm[i] ... */
+    int *tr_perm;              /* norb: U carries state i to tr_perm[i] ... */
     double complex *tr_factor; /* ... with factor tr_factor[i] (unit modulus) */
 
-    int inversion;          /* 1 when P passed the check */
-    int inv_source;         /* SYM_INV_*: where the (best) candidate came from */
+    int inversion;  /* 1 when P passed the check */
+    int inv_source; /* SYM_INV_*: where the (best) candidate came from */
     double inv_residual, inv_residual_ev;
-    double inv_centre[3];   /* reduced coordinates of the centre c (positions candidates) */
-    int *inv_perm;          /* norb each, NULL when inv_source == SYM_INV_NONE */
+    double inv_centre[3]; /* reduced coordinates of the centre c (positions candidates) */
+    int *inv_perm;        /* norb each, NULL when inv_source == SYM_INV_NONE */
     double complex *inv_factor;
     int (*inv_shift)[3];
-    int inv_commutes_tr;    /* 1 when P(-k) U = U P(k)^* holds (checked when both were found) */
+    int inv_commutes_tr; /* 1 when P(-k) U = U P(k)^* holds (checked when both were found) */
 
-    char note[200];         /* why a candidate was rejected (empty when everything was found) */
+    char note[200]; /* why a candidate was rejected (empty when everything was found) */
 } sym_info;
 
 /* Fills o with the defaults (nk 6, seed 1, tol 1e-6, pos_tol 1e-3, pos_tol_ang 0.05). */

@@ -56,27 +56,27 @@ enum {
 
 /* Settings; tr_opts_default fills the defaults named in brackets. */
 typedef struct tr_opts {
-    int mesh;              /* initial cells per direction [0: 8 in 2D, 6 in 3D], at most 1000 in
-                              2D, 100 in 3D; each cell is integrated with a 17-point (2D) or
-                              33-point (3D) cubature pair */
-    int max_depth;         /* times a cell may be halved along each axis [0: 12 in 2D, 8 in 3D];
-                              -1: never (mesh^d cells with the rule pair, no refinement).
-                              Refinement is global (largest errors first), so a deep limit costs
-                              only where the integrand needs it (nodes, Fermi surfaces) */
-    double tol;            /* target total error estimate, output units [0: 1e-3 e^2/h in 2D,
-                              1 S/cm in 3D] */
-    long long max_kpoints; /* refinement stops past this many H(k) evaluations [2000000] */
-    double eta_ev;         /* broadening: (E_m - E_n)^2 -> (E_m - E_n)^2 + eta^2 [0] */
-    double smear_ev;       /* Fermi-Dirac kT, eV; 0 is the T = 0 step [0] */
-    int has_fermi;         /* fermi_ev below is the reference Fermi energy [0] */
-    double fermi_ev;       /* eV */
-    int nscan;             /* extra Fermi energies E_ref + lo + i (hi - lo)/(nscan - 1) [0] */
+    int mesh;                      /* initial cells per direction [0: 8 in 2D, 6 in 3D], at most 1000 in
+                                      2D, 100 in 3D; each cell is integrated with a 17-point (2D) or
+                                      33-point (3D) cubature pair */
+    int max_depth;                 /* times a cell may be halved along each axis [0: 12 in 2D, 8 in 3D];
+                                      -1: never (mesh^d cells with the rule pair, no refinement).
+                                      Refinement is global (largest errors first), so a deep limit costs
+                                      only where the integrand needs it (nodes, Fermi surfaces) */
+    double tol;                    /* target total error estimate, output units [0: 1e-3 e^2/h in 2D,
+                                      1 S/cm in 3D] */
+    long long max_kpoints;         /* refinement stops past this many H(k) evaluations [2000000] */
+    double eta_ev;                 /* broadening: (E_m - E_n)^2 -> (E_m - E_n)^2 + eta^2 [0] */
+    double smear_ev;               /* Fermi-Dirac kT, eV; 0 is the T = 0 step [0] */
+    int has_fermi;                 /* fermi_ev below is the reference Fermi energy [0] */
+    double fermi_ev;               /* eV */
+    int nscan;                     /* extra Fermi energies E_ref + lo + i (hi - lo)/(nscan - 1) [0] */
     double scan_lo_ev, scan_hi_ev; /* offsets from the reference, eV [0, 0] */
-    int gauge;             /* TR_GAUGE_* [TR_GAUGE_POSITION] */
-    int want_shc;          /* compute the SHC of spinful models [1] */
-    double deadline;       /* absolute bs_now() seconds; BS_ETIMEOUT past it (0: none) [0] */
-    const eig_dist *dist;  /* distributed eigensolver for large matrices (a rank group's; borrowed)
-                              [NULL: LAPACK] */
+    int gauge;                     /* TR_GAUGE_* [TR_GAUGE_POSITION] */
+    int want_shc;                  /* compute the SHC of spinful models [1] */
+    double deadline;               /* absolute bs_now() seconds; BS_ETIMEOUT past it (0: none) [0] */
+    const eig_dist *dist;          /* distributed eigensolver for large matrices (a rank group's; borrowed)
+                                      [NULL: LAPACK] */
 } tr_opts;
 
 void tr_opts_default(tr_opts *o);

@@ -16,20 +16,20 @@ typedef struct wilson_ws wilson_ws;
 
 /* Settings; wilson_opts_default fills the defaults named in brackets. */
 typedef struct wilson_opts {
-    int nk;               /* k-points per string at first [24] */
-    int max_nk;           /* a string's k-points are doubled up to this; 0: 8 * nk [0] */
-    int nstring;          /* strings at first, evenly from k_b = 0 to 1/2 inclusive [11] */
-    int max_strings;      /* bisection stops at this many strings per plane [128] */
-    double min_spacing;   /* or when neighbouring strings are this close [1e-3] */
-    double det_min;       /* |det| of a link overlap below this refines the string [0.2] */
-    double gap_frac;      /* a centre within gap_frac x (largest gap) of the neighbouring string's
-                             gap midpoint makes the step unreliable [0.3] */
-    double move_frac;     /* the gap midpoint moving more than move_frac x (largest gap) between
-                             neighbours asks for a bisection [0.5] */
-    double kramers_tol;   /* centres at k_b = 0, 1/2 must pair up within this [1e-3] */
-    double gap_tol_ev;    /* direct gap (band nband-1 to nband) below this is a closing
-                             [BS_GAP_CLOSED_EV] */
-    double deadline;      /* absolute bs_now() seconds; BS_ETIMEOUT past it (0: none) [0] */
+    int nk;             /* k-points per string at first [24] */
+    int max_nk;         /* a string's k-points are doubled up to this; 0: 8 * nk [0] */
+    int nstring;        /* strings at first, evenly from k_b = 0 to 1/2 inclusive [11] */
+    int max_strings;    /* bisection stops at this many strings per plane [128] */
+    double min_spacing; /* or when neighbouring strings are this close [1e-3] */
+    double det_min;     /* |det| of a link overlap below this refines the string [0.2] */
+    double gap_frac;    /* a centre within gap_frac x (largest gap) of the neighbouring string's
+                           gap midpoint makes the step unreliable [0.3] */
+    double move_frac;   /* the gap midpoint moving more than move_frac x (largest gap) between
+                           neighbours asks for a bisection [0.5] */
+    double kramers_tol; /* centres at k_b = 0, 1/2 must pair up within this [1e-3] */
+    double gap_tol_ev;  /* direct gap (band nband-1 to nband) below this is a closing
+                           [BS_GAP_CLOSED_EV] */
+    double deadline;    /* absolute bs_now() seconds; BS_ETIMEOUT past it (0: none) [0] */
 } wilson_opts;
 
 void wilson_opts_default(wilson_opts *o);
@@ -44,12 +44,12 @@ typedef struct wilson_plane {
     int status;
     int z2;
     int gap_closed;
-    double k_gap[3];      /* reduced point of min_gap_ev */
-    double min_gap_ev;    /* smallest direct gap on the strings, eV */
-    double min_det;       /* smallest |det| of a link overlap */
-    int max_nk;           /* most k-points a string needed */
-    long long nk;         /* k-points diagonalised */
-    res_flow flow;       /* owned (wilson_plane_clear): kpar ascending, wcc sorted per string */
+    double k_gap[3];   /* reduced point of min_gap_ev */
+    double min_gap_ev; /* smallest direct gap on the strings, eV */
+    double min_det;    /* smallest |det| of a link overlap */
+    int max_nk;        /* most k-points a string needed */
+    long long nk;      /* k-points diagonalised */
+    res_flow flow;     /* owned (wilson_plane_clear): kpar ascending, wcc sorted per string */
     char reason[160];
 } wilson_plane;
 
@@ -64,7 +64,7 @@ typedef struct wilson_z2 {
     int status;
     int z2[4];
     int gap_closed;
-    int nplane;           /* 1 in 2D, 6 in 3D */
+    int nplane; /* 1 in 2D, 6 in 3D */
     wilson_plane planes[6];
     long long nk;
     double seconds;

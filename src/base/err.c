@@ -44,19 +44,32 @@ int bs_err_context(bs_err *e, const char *fmt, ...)
 const char *bs_err_name(int code)
 {
     switch (code) {
-    case BS_OK: return "ok";
-    case BS_EPARSE: return "parse";
-    case BS_EIO: return "io";
-    case BS_ENOMEM: return "memory";
-    case BS_EINVAL: return "invalid";
-    case BS_ENUMERIC: return "numeric";
-    case BS_EHDF5: return "hdf5";
-    case BS_ESQL: return "sqlite";
-    case BS_EMPI: return "mpi";
-    case BS_ETIMEOUT: return "timeout";
-    case BS_EUSAGE: return "usage";
-    case BS_EUNSUPPORTED: return "unsupported";
-    default: return "unknown";
+    case BS_OK:
+        return "ok";
+    case BS_EPARSE:
+        return "parse";
+    case BS_EIO:
+        return "io";
+    case BS_ENOMEM:
+        return "memory";
+    case BS_EINVAL:
+        return "invalid";
+    case BS_ENUMERIC:
+        return "numeric";
+    case BS_EHDF5:
+        return "hdf5";
+    case BS_ESQL:
+        return "sqlite";
+    case BS_EMPI:
+        return "mpi";
+    case BS_ETIMEOUT:
+        return "timeout";
+    case BS_EUSAGE:
+        return "usage";
+    case BS_EUNSUPPORTED:
+        return "unsupported";
+    default:
+        return "unknown";
     }
 }
 

@@ -14,13 +14,17 @@ static const uint32_t K[64] = {
     0x19a4c116, 0x1e376c08, 0x2748774c, 0x34b0bcb5, 0x391c0cb3, 0x4ed8aa4a, 0x5b9cca4f, 0x682e6ff3,
     0x748f82ee, 0x78a5636f, 0x84c87814, 0x8cc70208, 0x90befffa, 0xa4506ceb, 0xbef9a3f7, 0xc67178f2};
 
-static uint32_t rotr(uint32_t x, int n) { return (x >> n) | (x << (32 - n)); }
+static uint32_t rotr(uint32_t x, int n)
+{
+    return (x >> n) | (x << (32 - n));
+}
 
 static void compress(uint32_t h[8], const unsigned char *p)
 {
     uint32_t w[64];
     for (int t = 0; t < 16; t++)
-        w[t] = (uint32_t)p[4 * t] << 24 | (uint32_t)p[4 * t + 1] << 16 | (uint32_t)p[4 * t + 2] << 8 | p[4 * t + 3];
+        w[t] = (uint32_t)p[4 * t] << 24 | (uint32_t)p[4 * t + 1] << 16 | (uint32_t)p[4 * t + 2] << 8 |
+               p[4 * t + 3];
     for (int t = 16; t < 64; t++) {
         uint32_t s0 = rotr(w[t - 15], 7) ^ rotr(w[t - 15], 18) ^ (w[t - 15] >> 3);
         uint32_t s1 = rotr(w[t - 2], 17) ^ rotr(w[t - 2], 19) ^ (w[t - 2] >> 10);
@@ -30,10 +34,23 @@ static void compress(uint32_t h[8], const unsigned char *p)
     for (int t = 0; t < 64; t++) {
         uint32_t t1 = k + (rotr(e, 6) ^ rotr(e, 11) ^ rotr(e, 25)) + ((e & f) ^ (~e & g)) + K[t] + w[t];
         uint32_t t2 = (rotr(a, 2) ^ rotr(a, 13) ^ rotr(a, 22)) + ((a & b) ^ (a & c) ^ (b & c));
-        k = g; g = f; f = e; e = d + t1;
-        d = c; c = b; b = a; a = t1 + t2;
+        k = g;
+        g = f;
+        f = e;
+        e = d + t1;
+        d = c;
+        c = b;
+        b = a;
+        a = t1 + t2;
     }
-    h[0] += a; h[1] += b; h[2] += c; h[3] += d; h[4] += e; h[5] += f; h[6] += g; h[7] += k;
+    h[0] += a;
+    h[1] += b;
+    h[2] += c;
+    h[3] += d;
+    h[4] += e;
+    h[5] += f;
+    h[6] += g;
+    h[7] += k;
 }
 
 void bs_sha256_init(bs_sha256 *s)
@@ -68,12 +85,14 @@ void bs_sha256_final(bs_sha256 *s, unsigned char out[BS_SHA256_BYTES])
     /* Padding (5.1.1): a 1 bit, zeros up to 56 mod 64 bytes, the length as a 64-bit big-endian. */
     unsigned char pad[72] = {0x80};
     size_t npad = s->used < 56 ? 56 - s->used : 120 - s->used;
-    for (int i = 0; i < 8; i++) pad[npad + i] = (unsigned char)(bits >> (56 - 8 * i));
+    for (int i = 0; i < 8; i++)
+        pad[npad + i] = (unsigned char)(bits >> (56 - 8 * i));
     uint64_t keep = s->nbytes;
     bs_sha256_update(s, pad, npad + 8);
     s->nbytes = keep;
     for (int i = 0; i < 8; i++)
-        for (int j = 0; j < 4; j++) out[4 * i + j] = (unsigned char)(s->h[i] >> (24 - 8 * j));
+        for (int j = 0; j < 4; j++)
+            out[4 * i + j] = (unsigned char)(s->h[i] >> (24 - 8 * j));
 }
 
 void bs_sha256_hex(const unsigned char digest[BS_SHA256_BYTES], char out[BS_SHA256_HEX])

@@ -15,48 +15,48 @@ extern const unsigned char cat_sql_views[];
 
 /* Prepared statements kept for the life of the handle (the hot path of cat_result_put). */
 enum {
-    CAT_ST_RESULT,      /* INSERT INTO results */
-    CAT_ST_EXISTS,      /* does (run, material) have a result row */
-    CAT_ST_DEL_RESULT,  /* DELETE FROM results of one (run, material) */
-    CAT_ST_NODE,        /* INSERT INTO nodes */
-    CAT_ST_DEL_NODES,   /* DELETE FROM nodes of one (run, material) */
-    CAT_ST_DEL_ARTS,    /* DELETE FROM artifacts of one (run, material) */
-    CAT_ST_ARTIFACT,    /* INSERT INTO artifacts */
-    CAT_ST_MAT_ENSURE,  /* INSERT OR IGNORE INTO materials (id and sizes from the diagnosis) */
-    CAT_ST_MAT_UPSERT,  /* full material upsert */
-    CAT_ST_MAT_STALE,   /* is a material's recorded content another than the given one */
-    CAT_ST_BEST_MESH,   /* highest ok mesh of a material's current content */
+    CAT_ST_RESULT,     /* INSERT INTO results */
+    CAT_ST_EXISTS,     /* does (run, material) have a result row */
+    CAT_ST_DEL_RESULT, /* DELETE FROM results of one (run, material) */
+    CAT_ST_NODE,       /* INSERT INTO nodes */
+    CAT_ST_DEL_NODES,  /* DELETE FROM nodes of one (run, material) */
+    CAT_ST_DEL_ARTS,   /* DELETE FROM artifacts of one (run, material) */
+    CAT_ST_ARTIFACT,   /* INSERT INTO artifacts */
+    CAT_ST_MAT_ENSURE, /* INSERT OR IGNORE INTO materials (id and sizes from the diagnosis) */
+    CAT_ST_MAT_UPSERT, /* full material upsert */
+    CAT_ST_MAT_STALE,  /* is a material's recorded content another than the given one */
+    CAT_ST_BEST_MESH,  /* highest ok mesh of a material's current content */
     CAT_ST_COUNT
 };
 
 struct cat_db {
     sqlite3 *db;
-    int mode;                /* CAT_RO / CAT_RW */
-    int from_version;        /* schema version found at open (migrated when older) */
-    char *path;              /* catalogue file, as given */
+    int mode;         /* CAT_RO / CAT_RW */
+    int from_version; /* schema version found at open (migrated when older) */
+    char *path;       /* catalogue file, as given */
     sqlite3_stmt *st[CAT_ST_COUNT];
 
     int batch_rows;
     double batch_seconds;
-    int in_txn;              /* a batch transaction is open */
-    int pending_writes;      /* statements-worth of rows (results + materials) in it */
-    int pending_results;     /* result rows in it */
-    double txn_started;      /* monotonic seconds when it was opened */
+    int in_txn;          /* a batch transaction is open */
+    int pending_writes;  /* statements-worth of rows (results + materials) in it */
+    int pending_results; /* result rows in it */
+    double txn_started;  /* monotonic seconds when it was opened */
 
-    int64_t cur_run;         /* run and session opened on this handle (0: none) */
+    int64_t cur_run; /* run and session opened on this handle (0: none) */
     int cur_session;
 
     volatile sig_atomic_t *stop_flag; /* cat_set_limits: borrowed, may be NULL */
-    double deadline;         /* monotonic seconds after which queries stop (0: none) */
-    double limit_seconds;    /* the limit, for the message */
-    int stopped;             /* why the progress handler stopped the last statement: 1 signal, 2 time */
+    double deadline;                  /* monotonic seconds after which queries stop (0: none) */
+    double limit_seconds;             /* the limit, for the message */
+    int stopped; /* why the progress handler stopped the last statement: 1 signal, 2 time */
 
-    hid_t h5;                /* artifact file being written, or H5I_INVALID_HID */
+    hid_t h5; /* artifact file being written, or H5I_INVALID_HID */
     int64_t h5_run;
     int h5_session;
-    int h5_dirty;            /* written since the last flush */
-    int h5_broken;           /* a write or flush failed: never flushed or closed again */
-    char h5_name[512];       /* its file name relative to the catalogue's folder */
+    int h5_dirty;      /* written since the last flush */
+    int h5_broken;     /* a write or flush failed: never flushed or closed again */
+    char h5_name[512]; /* its file name relative to the catalogue's folder */
 };
 
 /* Monotonic clock in seconds. */
@@ -87,9 +87,8 @@ int cat_session_of(cat_db *cat, int64_t run_id, int *session, bs_err *err);
 
 /* Writes the flow of material_id into the artifact file of (run_id, session), opening or creating
  * it first, and returns the file name and dataset group in file/h5path (caller's buffers). */
-int cat_artifact_write(cat_db *cat, int64_t run_id, int session, const char *material_id,
-                       const res_flow *f, char *file, size_t file_len, char *h5path,
-                       size_t h5path_len, bs_err *err);
+int cat_artifact_write(cat_db *cat, int64_t run_id, int session, const char *material_id, const res_flow *f,
+                       char *file, size_t file_len, char *h5path, size_t h5path_len, bs_err *err);
 
 /* Flushes the open artifact file to disk (before each commit); no-op when none is open. */
 int cat_artifact_flush(cat_db *cat, bs_err *err);

@@ -45,8 +45,10 @@ static void bind_z2(const put_ctx *pc, const char *name, res_status st, const in
 {
     if (st != RES_DONE) return;
     char text[16];
-    if (pc->diag->dim == 2) snprintf(text, sizeof text, "%d", nu[0]);
-    else snprintf(text, sizeof text, "%d;%d%d%d", nu[0], nu[1], nu[2], nu[3]);
+    if (pc->diag->dim == 2)
+        snprintf(text, sizeof text, "%d", nu[0]);
+    else
+        snprintf(text, sizeof text, "%d;%d%d%d", nu[0], nu[1], nu[2], nu[3]);
     bind_text(pc, name, text);
 }
 
@@ -60,7 +62,8 @@ static void bind_chern(const put_ctx *pc)
     if (!res_plane_chern_shown(r)) return;
     char text[96] = "";
     size_t len = 0;
-    for (int i = 0; i < 6; i++) len += (size_t)snprintf(text + len, sizeof text - len, i ? ";%d" : "%d", r->plane_chern[i]);
+    for (int i = 0; i < 6; i++)
+        len += (size_t)snprintf(text + len, sizeof text - len, i ? ";%d" : "%d", r->plane_chern[i]);
     bind_text(pc, ":plane_chern", text);
 }
 
@@ -90,11 +93,17 @@ static int bind_column(void *ctx, const char *column, const res_value *v)
     char name[64];
     snprintf(name, sizeof name, ":%s", column);
     int i = param(pc, name);
-    if (i == 0) return bs_fail(pc->err, BS_EINVAL, "results has no column \"%s\" (schema and key table disagree)", column);
-    if (v->type == RES_VALUE_INT) sqlite3_bind_int64(pc->st, i, v->i);
-    else if (v->type == RES_VALUE_REAL && !isfinite(v->x)) sqlite3_bind_null(pc->st, i); /* as JSON's null */
-    else if (v->type == RES_VALUE_REAL) sqlite3_bind_double(pc->st, i, v->x);
-    else sqlite3_bind_text(pc->st, i, v->text, -1, SQLITE_TRANSIENT);
+    if (i == 0)
+        return bs_fail(pc->err, BS_EINVAL, "results has no column \"%s\" (schema and key table disagree)",
+                       column);
+    if (v->type == RES_VALUE_INT)
+        sqlite3_bind_int64(pc->st, i, v->i);
+    else if (v->type == RES_VALUE_REAL && !isfinite(v->x))
+        sqlite3_bind_null(pc->st, i); /* as JSON's null */
+    else if (v->type == RES_VALUE_REAL)
+        sqlite3_bind_double(pc->st, i, v->x);
+    else
+        sqlite3_bind_text(pc->st, i, v->text, -1, SQLITE_TRANSIENT);
     return 0;
 }
 
@@ -115,7 +124,8 @@ static int bind_diag(const put_ctx *pc)
     bind_z2(pc, ":z2_wcc", r->z2_wcc_status, r->z2_wcc);
     bind_chern(pc);
     int nweyl = 0;
-    for (int i = 0; i < r->nnodes; i++) nweyl += res_node_is_weyl(r, i);
+    for (int i = 0; i < r->nnodes; i++)
+        nweyl += res_node_is_weyl(r, i);
     bind_int(pc, ":n_weyl", nweyl);
     bind_transport(pc);
     return 0;
@@ -133,13 +143,16 @@ static int bind_row(const put_ctx *pc, int64_t run_id, cat_status status, const 
     sqlite3_bind_text(st, param(pc, ":status"), cat_status_name(status), -1, SQLITE_STATIC);
     if (message) sqlite3_bind_text(st, param(pc, ":message"), message, -1, SQLITE_TRANSIENT);
     if (rank >= 0) sqlite3_bind_int(st, param(pc, ":rank"), rank);
-    if (seconds >= 0) bind_num(pc, ":seconds", seconds);
-    else if (pc->diag) bind_num(pc, ":seconds", pc->diag->seconds);
+    if (seconds >= 0)
+        bind_num(pc, ":seconds", seconds);
+    else if (pc->diag)
+        bind_num(pc, ":seconds", pc->diag->seconds);
     if (!pc->diag) return 0;
     int rc = bind_diag(pc);
     if (rc != 0) return rc;
     *diag_text = res_to_text(pc->diag, 0);
-    if (!*diag_text) return bs_fail(pc->err, BS_ENOMEM, "material %s: out of memory printing the diagnosis", pc->mid);
+    if (!*diag_text)
+        return bs_fail(pc->err, BS_ENOMEM, "material %s: out of memory printing the diagnosis", pc->mid);
     sqlite3_bind_text(st, param(pc, ":diagnosis"), *diag_text, -1, SQLITE_STATIC);
     return 0;
 }
@@ -192,7 +205,8 @@ static int insert_nodes(cat_db *cat, int64_t run_id, const char *mid, const res_
         sqlite3_bind_int64(st, 1, run_id);
         sqlite3_bind_text(st, 2, mid, -1, SQLITE_TRANSIENT);
         sqlite3_bind_int(st, 3, row++);
-        for (int d = 0; d < 3; d++) sqlite3_bind_double(st, 4 + d, n->k[d]);
+        for (int d = 0; d < 3; d++)
+            sqlite3_bind_double(st, 4 + d, n->k[d]);
         sqlite3_bind_int(st, 7, n->chirality);
         sqlite3_bind_double(st, 8, n->energy_ev);
         sqlite3_bind_double(st, 9, n->gap_ev);
@@ -201,7 +215,8 @@ static int insert_nodes(cat_db *cat, int64_t run_id, const char *mid, const res_
     return rc;
 }
 
-static int insert_flows(cat_db *cat, int64_t run_id, const char *mid, const res_flow *flows, int n, bs_err *err)
+static int insert_flows(cat_db *cat, int64_t run_id, const char *mid, const res_flow *flows, int n,
+                        bs_err *err)
 {
     if (n == 0) return 0;
     int session = 0;
@@ -209,7 +224,8 @@ static int insert_flows(cat_db *cat, int64_t run_id, const char *mid, const res_
     sqlite3_stmt *st = cat->st[CAT_ST_ARTIFACT];
     for (int i = 0; i < n && rc == 0; i++) {
         char file[512], h5path[512];
-        rc = cat_artifact_write(cat, run_id, session, mid, &flows[i], file, sizeof file, h5path, sizeof h5path, err);
+        rc = cat_artifact_write(cat, run_id, session, mid, &flows[i], file, sizeof file, h5path,
+                                sizeof h5path, err);
         if (rc != 0) break;
         sqlite3_bind_int64(st, 1, run_id);
         sqlite3_bind_text(st, 2, mid, -1, SQLITE_TRANSIENT);
@@ -237,9 +253,9 @@ static int ensure_material(cat_db *cat, const char *mid, const res_diag *diag, b
 }
 
 /* All statements of one result in the batch transaction: either the whole result (row, nodes,
- * artifacts) is in the batch or none of it. A failure here is an SQLite or HDF5 error; it is undone by deleting what this put wrote. (A savepoint per put would
- * do the same, but SQLite allocates a journal buffer for each one, which cost a third of the
- * write rate in bench_catalogue.) */
+ * artifacts) is in the batch or none of it. A failure here is an SQLite or HDF5 error; it is undone by
+ * deleting what this put wrote. (A savepoint per put would do the same, but SQLite allocates a journal buffer
+ * for each one, which cost a third of the write rate in bench_catalogue.) */
 static int write_row(cat_db *cat, int64_t run_id, const char *mid, const res_diag *diag, bs_err *err)
 {
     int rc = cat_txn_begin(cat, err);
@@ -265,10 +281,14 @@ static int write_row(cat_db *cat, int64_t run_id, const char *mid, const res_dia
 
 static int check_args(cat_db *cat, const char *mid, cat_status status, const res_diag *diag, bs_err *err)
 {
-    if (cat->mode != CAT_RW) return bs_fail(err, BS_EINVAL, "%s: results need a catalogue opened for writing", cat->path);
-    if (!mid || !*mid || strlen(mid) > 127) return bs_fail(err, BS_EINVAL, "result: expected a material id of 1 to 127 bytes");
-    if (!cat_status_name(status)) return bs_fail(err, BS_EINVAL, "material %s: result status %d is not a cat_status", mid, (int)status);
-    if (status == CAT_RES_OK && !diag) return bs_fail(err, BS_EINVAL, "material %s: an ok result needs a diagnosis", mid);
+    if (cat->mode != CAT_RW)
+        return bs_fail(err, BS_EINVAL, "%s: results need a catalogue opened for writing", cat->path);
+    if (!mid || !*mid || strlen(mid) > 127)
+        return bs_fail(err, BS_EINVAL, "result: expected a material id of 1 to 127 bytes");
+    if (!cat_status_name(status))
+        return bs_fail(err, BS_EINVAL, "material %s: result status %d is not a cat_status", mid, (int)status);
+    if (status == CAT_RES_OK && !diag)
+        return bs_fail(err, BS_EINVAL, "material %s: an ok result needs a diagnosis", mid);
     if (diag && diag->id[0] && strcmp(diag->id, mid) != 0)
         return bs_fail(err, BS_EINVAL, "material %s: the diagnosis is for \"%s\"", mid, diag->id);
     if (diag && !res_class_name(diag->cls))
@@ -276,8 +296,8 @@ static int check_args(cat_db *cat, const char *mid, cat_status status, const res
     return 0;
 }
 
-int cat_result_put(cat_db *cat, int64_t run_id, const char *material_id, cat_status status, const char *message,
-                   const res_diag *diag, int rank, double seconds, bs_err *err)
+int cat_result_put(cat_db *cat, int64_t run_id, const char *material_id, cat_status status,
+                   const char *message, const res_diag *diag, int rank, double seconds, bs_err *err)
 {
     int rc = check_args(cat, material_id, status, diag, err);
     if (rc != 0) return rc;
@@ -292,15 +312,18 @@ int cat_result_put(cat_db *cat, int64_t run_id, const char *material_id, cat_sta
     return cat_txn_note(cat, 1, err);
 }
 
-int cat_result_put_text(cat_db *cat, int64_t run_id, const char *material_id, cat_status status, const char *message,
-                        const char *text, size_t len, int rank, double seconds, bs_err *err)
+int cat_result_put_text(cat_db *cat, int64_t run_id, const char *material_id, cat_status status,
+                        const char *message, const char *text, size_t len, int rank, double seconds,
+                        bs_err *err)
 {
     if (!text) return cat_result_put(cat, run_id, material_id, status, message, NULL, rank, seconds, err);
     res_diag r;
     res_init(&r);
     int rc = res_from_text(text, len, &r, err);
-    if (rc != 0) bs_err_context(err, "material %s: ", material_id ? material_id : "?");
-    else rc = cat_result_put(cat, run_id, material_id, status, message, &r, rank, seconds, err);
+    if (rc != 0)
+        bs_err_context(err, "material %s: ", material_id ? material_id : "?");
+    else
+        rc = cat_result_put(cat, run_id, material_id, status, message, &r, rank, seconds, err);
     res_clear(&r);
     return rc;
 }

@@ -37,12 +37,16 @@ const char *cat_run_status_name(cat_run_status s)
 cat_status cat_status_from_code(int bs_code)
 {
     switch (bs_code) {
-    case BS_OK: return CAT_RES_OK;
+    case BS_OK:
+        return CAT_RES_OK;
     case BS_EPARSE:
     case BS_EINVAL:
-    case BS_EIO: return CAT_RES_INVALID;
-    case BS_ETIMEOUT: return CAT_RES_TIMEOUT;
-    default: return CAT_RES_FAILED;
+    case BS_EIO:
+        return CAT_RES_INVALID;
+    case BS_ETIMEOUT:
+        return CAT_RES_TIMEOUT;
+    default:
+        return CAT_RES_FAILED;
     }
 }
 
@@ -61,15 +65,18 @@ const char *cat_io_cause(const char *path, int errnum, char *buf, size_t len)
 {
     char dir[1024];
     const char *slash = path ? strrchr(path, '/') : NULL;
-    if (!slash) snprintf(dir, sizeof dir, ".");
-    else snprintf(dir, sizeof dir, "%.*s", (int)(slash - path > 0 ? slash - path : 1), path);
+    if (!slash)
+        snprintf(dir, sizeof dir, ".");
+    else
+        snprintf(dir, sizeof dir, "%.*s", (int)(slash - path > 0 ? slash - path : 1), path);
     struct statvfs vfs;
     int have_vfs = statvfs(dir, &vfs) == 0;
     unsigned long long free_bytes = have_vfs ? (unsigned long long)vfs.f_bavail * vfs.f_frsize : 0;
     if (errnum == ENOSPC || errnum == EDQUOT || (have_vfs && free_bytes < CAT_FULL_BYTES))
         snprintf(buf, len, "disk full (%llu bytes free on the file system of %s)", free_bytes, dir);
     else if (errnum == EACCES || errnum == EPERM || access(dir, W_OK) != 0)
-        snprintf(buf, len, "permission denied (folder %s%s)", dir, access(dir, W_OK) != 0 ? " is not writable" : "");
+        snprintf(buf, len, "permission denied (folder %s%s)", dir,
+                 access(dir, W_OK) != 0 ? " is not writable" : "");
     else if (errnum == EROFS)
         snprintf(buf, len, "read-only file system (%s)", dir);
     else if (errnum != 0)
@@ -88,15 +95,18 @@ int cat_sql_fail(cat_db *cat, bs_err *err, const char *what)
     if (primary == SQLITE_INTERRUPT && cat && cat->stopped == 1)
         return bs_fail(err, BS_ETIMEOUT, "%s: %s: stopped by a signal (SIGTERM or SIGINT)", path, what);
     if (primary == SQLITE_INTERRUPT && cat && cat->stopped == 2)
-        return bs_fail(err, BS_ETIMEOUT, "%s: %s: stopped at the time limit of %g s", path, what, cat->limit_seconds);
-    if (primary == SQLITE_FULL || primary == SQLITE_IOERR || primary == SQLITE_CANTOPEN || primary == SQLITE_READONLY ||
-        primary == SQLITE_PERM) {
+        return bs_fail(err, BS_ETIMEOUT, "%s: %s: stopped at the time limit of %g s", path, what,
+                       cat->limit_seconds);
+    if (primary == SQLITE_FULL || primary == SQLITE_IOERR || primary == SQLITE_CANTOPEN ||
+        primary == SQLITE_READONLY || primary == SQLITE_PERM) {
         /* Storage faults name their cause: the user's fix (free space, permissions) differs. */
         char cause[256];
         cat_io_cause(path, sqlite3_system_errno(db), cause, sizeof cause);
-        return bs_fail(err, BS_ESQL, "%s: %s: %s: %s (sqlite code %d)", path, what, cause, sqlite3_errmsg(db), code);
+        return bs_fail(err, BS_ESQL, "%s: %s: %s: %s (sqlite code %d)", path, what, cause, sqlite3_errmsg(db),
+                       code);
     }
-    return bs_fail(err, BS_ESQL, "%s: %s: %s (sqlite code %d)", path, what, db ? sqlite3_errmsg(db) : "no connection", code);
+    return bs_fail(err, BS_ESQL, "%s: %s: %s (sqlite code %d)", path, what,
+                   db ? sqlite3_errmsg(db) : "no connection", code);
 }
 
 int cat_exec(cat_db *cat, const char *sql, bs_err *err)
@@ -104,7 +114,8 @@ int cat_exec(cat_db *cat, const char *sql, bs_err *err)
     char *msg = NULL;
     if (sqlite3_exec(cat->db, sql, NULL, NULL, &msg) == SQLITE_OK) return 0;
     int primary = sqlite3_errcode(cat->db);
-    if (primary == SQLITE_FULL || primary == SQLITE_IOERR || primary == SQLITE_CANTOPEN || primary == SQLITE_READONLY) {
+    if (primary == SQLITE_FULL || primary == SQLITE_IOERR || primary == SQLITE_CANTOPEN ||
+        primary == SQLITE_READONLY) {
         sqlite3_free(msg);
         return cat_sql_fail(cat, err, "writing");
     }
@@ -147,8 +158,9 @@ static int check_marks(cat_db *cat, int *fresh, bs_err *err)
         return bs_fail(err, BS_EINVAL, "%s: catalogue schema version %d is newer than this program's %d",
                        cat->path, version, CAT_SCHEMA_VERSION);
     if (version < 1)
-        return bs_fail(err, BS_EINVAL, "%s: catalogue schema version %d is older than 1 and no migration exists",
-                       cat->path, version);
+        return bs_fail(err, BS_EINVAL,
+                       "%s: catalogue schema version %d is older than 1 and no migration exists", cat->path,
+                       version);
     cat->from_version = version;
     return 0;
 }
@@ -168,33 +180,36 @@ static const char MIGRATE_1_2[] =
     "ALTER TABLE results ADD COLUMN content TEXT;"
     "ALTER TABLE results ADD COLUMN z2_nu0 INTEGER GENERATED ALWAYS AS (CASE WHEN z2 GLOB '[01]' OR z2 GLOB "
     "'[01];[01][01][01]' THEN CAST(substr(z2, 1, 1) AS INTEGER) END) VIRTUAL;"
-    "ALTER TABLE results ADD COLUMN z2_nu1 INTEGER GENERATED ALWAYS AS (CASE WHEN z2 GLOB '[01];[01][01][01]' "
+    "ALTER TABLE results ADD COLUMN z2_nu1 INTEGER GENERATED ALWAYS AS (CASE WHEN z2 GLOB "
+    "'[01];[01][01][01]' "
     "THEN CAST(substr(z2, 3, 1) AS INTEGER) END) VIRTUAL;"
-    "ALTER TABLE results ADD COLUMN z2_nu2 INTEGER GENERATED ALWAYS AS (CASE WHEN z2 GLOB '[01];[01][01][01]' "
+    "ALTER TABLE results ADD COLUMN z2_nu2 INTEGER GENERATED ALWAYS AS (CASE WHEN z2 GLOB "
+    "'[01];[01][01][01]' "
     "THEN CAST(substr(z2, 4, 1) AS INTEGER) END) VIRTUAL;"
-    "ALTER TABLE results ADD COLUMN z2_nu3 INTEGER GENERATED ALWAYS AS (CASE WHEN z2 GLOB '[01];[01][01][01]' "
+    "ALTER TABLE results ADD COLUMN z2_nu3 INTEGER GENERATED ALWAYS AS (CASE WHEN z2 GLOB "
+    "'[01];[01][01][01]' "
     "THEN CAST(substr(z2, 5, 1) AS INTEGER) END) VIRTUAL;"
-#define PLANE_COL(name, k) \
-    "ALTER TABLE results ADD COLUMN " name " INTEGER GENERATED ALWAYS AS (CASE WHEN json_valid('[' || " \
-    "replace(plane_chern, ';', ',') || ']') THEN json_extract('[' || replace(plane_chern, ';', ',') || ']', '$[" k "]') END) VIRTUAL;"
+#define PLANE_COL(name, k)                                                                                   \
+    "ALTER TABLE results ADD COLUMN " name " INTEGER GENERATED ALWAYS AS (CASE WHEN json_valid('[' || "      \
+    "replace(plane_chern, ';', ',') || ']') THEN json_extract('[' || replace(plane_chern, ';', ',') || "     \
+    "']', '$[" k "]') END) VIRTUAL;"
     PLANE_COL("chern_k1_0", "0") PLANE_COL("chern_k1_half", "1") PLANE_COL("chern_k2_0", "2")
-    PLANE_COL("chern_k2_half", "3") PLANE_COL("chern_k3_0", "4") PLANE_COL("chern_k3_half", "5")
+        PLANE_COL("chern_k2_half", "3") PLANE_COL("chern_k3_0", "4") PLANE_COL("chern_k3_half", "5")
 #undef PLANE_COL
-    "PRAGMA user_version = 2;";
+            "PRAGMA user_version = 2;";
 
 /* Version 2 -> 3: the approximate-symmetry columns of results (db/schema.sql), NULL in old rows. */
-static const char MIGRATE_2_3[] =
-    "ALTER TABLE results ADD COLUMN magnetism TEXT;"
-    "ALTER TABLE results ADD COLUMN tr_verdict TEXT;"
-    "ALTER TABLE results ADD COLUMN inv_verdict TEXT;"
-    "ALTER TABLE results ADD COLUMN tr_breaking_ev REAL;"
-    "ALTER TABLE results ADD COLUMN inv_breaking_ev REAL;"
-    "ALTER TABLE results ADD COLUMN symmetrised INTEGER;"
-    "ALTER TABLE results ADD COLUMN restored TEXT;"
-    "ALTER TABLE results ADD COLUMN breaking_ev REAL;"
-    "ALTER TABLE results ADD COLUMN breaking_bound TEXT;"
-    "ALTER TABLE results ADD COLUMN symmetry_margin REAL;"
-    "PRAGMA user_version = 3;";
+static const char MIGRATE_2_3[] = "ALTER TABLE results ADD COLUMN magnetism TEXT;"
+                                  "ALTER TABLE results ADD COLUMN tr_verdict TEXT;"
+                                  "ALTER TABLE results ADD COLUMN inv_verdict TEXT;"
+                                  "ALTER TABLE results ADD COLUMN tr_breaking_ev REAL;"
+                                  "ALTER TABLE results ADD COLUMN inv_breaking_ev REAL;"
+                                  "ALTER TABLE results ADD COLUMN symmetrised INTEGER;"
+                                  "ALTER TABLE results ADD COLUMN restored TEXT;"
+                                  "ALTER TABLE results ADD COLUMN breaking_ev REAL;"
+                                  "ALTER TABLE results ADD COLUMN breaking_bound TEXT;"
+                                  "ALTER TABLE results ADD COLUMN symmetry_margin REAL;"
+                                  "PRAGMA user_version = 3;";
 
 /* Schema (fresh files only) and views in one immediate transaction, so two coordinators opening
  * the same new file cannot both create it. */
@@ -235,12 +250,16 @@ static const char *const STMT_SQL[CAT_ST_COUNT] = {
         " gap_direct_ev, gap_indirect_ev, k_gap_direct, time_reversal, inversion, z2, z2_parity, z2_wcc,"
         " z2_status, z2_note, chern, chern_status, plane_chern, n_weyl, net_chirality, nodal_line, mesh,"
         " diag_seconds, seconds, rank, finished, ahc_xy, ahc_yz, ahc_zx, ahc_units, shc_xy, shc_units,"
-        " transport_fermi_ev, diagnosis, content, magnetism, tr_verdict, inv_verdict, tr_breaking_ev, inv_breaking_ev,"
+        " transport_fermi_ev, diagnosis, content, magnetism, tr_verdict, inv_verdict, tr_breaking_ev, "
+        "inv_breaking_ev,"
         " symmetrised, restored, breaking_ev, breaking_bound, symmetry_margin) VALUES ("
         " :run_id, :material_id, :status, :message, :class, :confidence, :reason,"
-        " :gap_direct_ev, :gap_indirect_ev, :k_gap_direct, :time_reversal, :inversion, :z2, :z2_parity, :z2_wcc,"
-        " :z2_status, :z2_note, :chern, :chern_status, :plane_chern, :n_weyl, :net_chirality, :nodal_line, :mesh,"
-        " :diag_seconds, :seconds, :rank, " CAT_NOW_SQL ", :ahc_xy, :ahc_yz, :ahc_zx, :ahc_units, :shc_xy, :shc_units,"
+        " :gap_direct_ev, :gap_indirect_ev, :k_gap_direct, :time_reversal, :inversion, :z2, :z2_parity, "
+        ":z2_wcc,"
+        " :z2_status, :z2_note, :chern, :chern_status, :plane_chern, :n_weyl, :net_chirality, :nodal_line, "
+        ":mesh,"
+        " :diag_seconds, :seconds, :rank, " CAT_NOW_SQL
+        ", :ahc_xy, :ahc_yz, :ahc_zx, :ahc_units, :shc_xy, :shc_units,"
         " :transport_fermi_ev, :diagnosis,"
         /* The content the row is about: the coordinator records each entry's content in materials
          * before handing it out (pl coord_setup), so the current one is the one computed. */
@@ -253,8 +272,9 @@ static const char *const STMT_SQL[CAT_ST_COUNT] = {
                     " VALUES (?, ?, ?, ?, ?, ?, ?, ?, ?)",
     [CAT_ST_DEL_NODES] = "DELETE FROM nodes WHERE run_id = ? AND material_id = ?",
     [CAT_ST_DEL_ARTS] = "DELETE FROM artifacts WHERE run_id = ? AND material_id = ?",
-    [CAT_ST_ARTIFACT] = "INSERT INTO artifacts (run_id, material_id, kind, plane, file, h5path, nstring, nband)"
-                        " VALUES (?, ?, ?, ?, ?, ?, ?, ?)",
+    [CAT_ST_ARTIFACT] =
+        "INSERT INTO artifacts (run_id, material_id, kind, plane, file, h5path, nstring, nband)"
+        " VALUES (?, ?, ?, ?, ?, ?, ?, ?)",
     [CAT_ST_MAT_ENSURE] = "INSERT OR IGNORE INTO materials (material_id, dimension, norb, nocc, updated)"
                           " VALUES (?, ?, ?, ?, " CAT_NOW_SQL ")",
     [CAT_ST_MAT_UPSERT] =
@@ -270,7 +290,8 @@ static const char *const STMT_SQL[CAT_ST_COUNT] = {
         " spinful = COALESCE(excluded.spinful, spinful), set_path = COALESCE(excluded.set_path, set_path),"
         " source = CASE WHEN ?16 THEN excluded.source ELSE COALESCE(excluded.source, source) END,"
         " card_json = CASE WHEN ?16 THEN excluded.card_json ELSE COALESCE(excluded.card_json, card_json) END,"
-        " content = COALESCE(excluded.content, content), set_content = COALESCE(excluded.set_content, set_content),"
+        " content = COALESCE(excluded.content, content), set_content = COALESCE(excluded.set_content, "
+        "set_content),"
         " comment = CASE WHEN ?16 THEN excluded.comment ELSE COALESCE(excluded.comment, comment) END,"
         " orbital_labels = CASE WHEN ?16 THEN excluded.orbital_labels"
         " ELSE COALESCE(excluded.orbital_labels, orbital_labels) END,"
@@ -281,7 +302,8 @@ static const char *const STMT_SQL[CAT_ST_COUNT] = {
 static int prepare_all(cat_db *cat, bs_err *err)
 {
     for (int i = 0; i < CAT_ST_COUNT; i++)
-        if (sqlite3_prepare_v3(cat->db, STMT_SQL[i], -1, SQLITE_PREPARE_PERSISTENT, &cat->st[i], NULL) != SQLITE_OK)
+        if (sqlite3_prepare_v3(cat->db, STMT_SQL[i], -1, SQLITE_PREPARE_PERSISTENT, &cat->st[i], NULL) !=
+            SQLITE_OK)
             return cat_sql_fail(cat, err, "preparing catalogue statements");
     return 0;
 }
@@ -290,8 +312,10 @@ static int prepare_all(cat_db *cat, bs_err *err)
 static int on_progress(void *ctx)
 {
     cat_db *cat = ctx;
-    if (cat->stop_flag && *cat->stop_flag) cat->stopped = 1;
-    else if (cat->deadline > 0 && cat_now() > cat->deadline) cat->stopped = 2;
+    if (cat->stop_flag && *cat->stop_flag)
+        cat->stopped = 1;
+    else if (cat->deadline > 0 && cat_now() > cat->deadline)
+        cat->stopped = 2;
     return cat->stopped != 0;
 }
 
@@ -315,17 +339,23 @@ static int check_damage(cat_db *cat, bs_err *err)
 {
     sqlite3_stmt *st = NULL;
     if (sqlite3_prepare_v2(cat->db, "PRAGMA quick_check(5)", -1, &st, NULL) != SQLITE_OK)
-        return bs_fail(err, BS_EINVAL, "%s: the catalogue is damaged: %s (sqlite code %d); restore a copy, or "
-                       "recover the rows with the sqlite3 shell's .recover", cat->path, sqlite3_errmsg(cat->db),
-                       sqlite3_extended_errcode(cat->db));
+        return bs_fail(err, BS_EINVAL,
+                       "%s: the catalogue is damaged: %s (sqlite code %d); restore a copy, or "
+                       "recover the rows with the sqlite3 shell's .recover",
+                       cat->path, sqlite3_errmsg(cat->db), sqlite3_extended_errcode(cat->db));
     char first[300] = "";
     int s = sqlite3_step(st);
-    if (s == SQLITE_ROW) snprintf(first, sizeof first, "%s", (const char *)sqlite3_column_text(st, 0));
-    else snprintf(first, sizeof first, "%s (sqlite code %d)", sqlite3_errmsg(cat->db), sqlite3_extended_errcode(cat->db));
+    if (s == SQLITE_ROW)
+        snprintf(first, sizeof first, "%s", (const char *)sqlite3_column_text(st, 0));
+    else
+        snprintf(first, sizeof first, "%s (sqlite code %d)", sqlite3_errmsg(cat->db),
+                 sqlite3_extended_errcode(cat->db));
     sqlite3_finalize(st);
     if (s == SQLITE_ROW && strcmp(first, "ok") == 0) return 0;
-    return bs_fail(err, BS_EINVAL, "%s: the catalogue is damaged (quick_check: %s); restore a copy, or recover "
-                   "the rows with the sqlite3 shell's .recover", cat->path, first);
+    return bs_fail(err, BS_EINVAL,
+                   "%s: the catalogue is damaged (quick_check: %s); restore a copy, or recover "
+                   "the rows with the sqlite3 shell's .recover",
+                   cat->path, first);
 }
 
 /* Whether a read-only open needs SQLite's immutable mode: a WAL catalogue is read through its
@@ -336,16 +366,20 @@ static int needs_immutable(const char *path, bs_err *err)
 {
     char dir[4096], side[4200];
     const char *slash = strrchr(path, '/');
-    if (!slash) snprintf(dir, sizeof dir, ".");
-    else snprintf(dir, sizeof dir, "%.*s", (int)(slash - path > 0 ? slash - path : 1), path);
+    if (!slash)
+        snprintf(dir, sizeof dir, ".");
+    else
+        snprintf(dir, sizeof dir, "%.*s", (int)(slash - path > 0 ? slash - path : 1), path);
     snprintf(side, sizeof side, "%s-shm", path);
     if (access(side, F_OK) == 0 || access(dir, W_OK) == 0) return 0;
     snprintf(side, sizeof side, "%s-wal", path);
     struct stat stw;
     if (stat(side, &stw) == 0 && stw.st_size > 0)
-        return bs_fail(err, BS_EINVAL, "%s: cannot be read on storage that cannot be written: %s holds commits "
-                       "not yet in the main file, and %s-shm is missing; copy the three files to a writable folder",
-                       path, side, path);
+        return bs_fail(
+            err, BS_EINVAL,
+            "%s: cannot be read on storage that cannot be written: %s holds commits "
+            "not yet in the main file, and %s-shm is missing; copy the three files to a writable folder",
+            path, side, path);
     return 1;
 }
 
@@ -357,8 +391,10 @@ static char *immutable_uri(const char *path)
     if (!uri) return NULL;
     char *o = uri + sprintf(uri, "file:");
     for (const char *p = path; *p; p++) {
-        if (*p == '%' || *p == '?' || *p == '#') o += sprintf(o, "%%%02X", (unsigned char)*p);
-        else *o++ = *p;
+        if (*p == '%' || *p == '?' || *p == '#')
+            o += sprintf(o, "%%%02X", (unsigned char)*p);
+        else
+            *o++ = *p;
     }
     sprintf(o, "?immutable=1");
     return uri;
@@ -366,7 +402,8 @@ static char *immutable_uri(const char *path)
 
 static int configure(cat_db *cat, bs_err *err)
 {
-    if (sqlite3_busy_timeout(cat->db, CAT_BUSY_MS) != SQLITE_OK) return cat_sql_fail(cat, err, "busy timeout");
+    if (sqlite3_busy_timeout(cat->db, CAT_BUSY_MS) != SQLITE_OK)
+        return cat_sql_fail(cat, err, "busy timeout");
     int rc = cat_exec(cat, "PRAGMA foreign_keys = ON", err);
     if (rc != 0 || cat->mode == CAT_RO) return rc;
     /* WAL: readers (query) never block the coordinator, and a crash loses only the open
@@ -391,7 +428,8 @@ int cat_open(const char *path, int mode, cat_db **out, bs_err *err)
 {
     *out = NULL;
     if (!path || !*path) return bs_fail(err, BS_EINVAL, "catalogue path is empty");
-    if (mode != CAT_RO && mode != CAT_RW) return bs_fail(err, BS_EINVAL, "cat_open: mode %d is not CAT_RO or CAT_RW", mode);
+    if (mode != CAT_RO && mode != CAT_RW)
+        return bs_fail(err, BS_EINVAL, "cat_open: mode %d is not CAT_RO or CAT_RW", mode);
     cat_db *cat = calloc(1, sizeof *cat);
     if (!cat) return bs_fail(err, BS_ENOMEM, "cat_open: out of memory");
     cat->mode = mode;
@@ -405,7 +443,8 @@ int cat_open(const char *path, int mode, cat_db **out, bs_err *err)
     if (immutable < 0) rc = immutable;
     char *uri = immutable > 0 ? immutable_uri(path) : NULL;
     if (immutable > 0 && !uri) rc = bs_fail(err, BS_ENOMEM, "cat_open: out of memory");
-    if (rc == 0 && sqlite3_open_v2(uri ? uri : path, &cat->db, flags | (uri ? SQLITE_OPEN_URI : 0), NULL) != SQLITE_OK)
+    if (rc == 0 &&
+        sqlite3_open_v2(uri ? uri : path, &cat->db, flags | (uri ? SQLITE_OPEN_URI : 0), NULL) != SQLITE_OK)
         rc = cat_sql_fail(cat, err, "cannot open catalogue");
     free(uri);
     if (rc == 0) rc = configure(cat, err);
@@ -435,7 +474,8 @@ int cat_close(cat_db *cat, bs_err *err)
     int rc = cat->db ? cat_flush(cat, err) : 0;
     int rc2 = cat_artifact_close(cat, err);
     if (rc == 0) rc = rc2;
-    for (int i = 0; i < CAT_ST_COUNT; i++) sqlite3_finalize(cat->st[i]);
+    for (int i = 0; i < CAT_ST_COUNT; i++)
+        sqlite3_finalize(cat->st[i]);
     if (cat->db && sqlite3_close(cat->db) != SQLITE_OK && rc == 0)
         rc = cat_sql_fail(cat, err, "closing the catalogue");
     free(cat->path);
@@ -446,7 +486,8 @@ int cat_close(cat_db *cat, bs_err *err)
 int cat_set_batch(cat_db *cat, int rows, double seconds, bs_err *err)
 {
     if (rows < 1 || !(seconds > 0))
-        return bs_fail(err, BS_EINVAL, "cat_set_batch: expected rows >= 1 and seconds > 0, found %d and %g", rows, seconds);
+        return bs_fail(err, BS_EINVAL, "cat_set_batch: expected rows >= 1 and seconds > 0, found %d and %g",
+                       rows, seconds);
     cat->batch_rows = rows;
     cat->batch_seconds = seconds;
     return 0;
@@ -523,7 +564,8 @@ static int json_sort(cJSON *item)
     cJSON **v = malloc((size_t)n * sizeof *v);
     if (!v) return -1;
     int i = 0;
-    for (cJSON *c = item->child; c; c = c->next) v[i++] = c;
+    for (cJSON *c = item->child; c; c = c->next)
+        v[i++] = c;
     qsort(v, (size_t)n, sizeof *v, key_cmp);
     for (i = 0; i < n; i++) {
         v[i]->prev = i > 0 ? v[i - 1] : v[n - 1]; /* cJSON keeps child->prev at the last item */
@@ -538,11 +580,14 @@ static int canonical_settings(const char *text, char **out, bs_err *err)
 {
     *out = NULL;
     cJSON *j = cJSON_Parse(text ? text : "{}");
-    if (!j) return bs_fail(err, BS_EPARSE, "run settings: malformed JSON near \"%.40s\"", cJSON_GetErrorPtr() ? cJSON_GetErrorPtr() : "");
+    if (!j)
+        return bs_fail(err, BS_EPARSE, "run settings: malformed JSON near \"%.40s\"",
+                       cJSON_GetErrorPtr() ? cJSON_GetErrorPtr() : "");
     int rc = 0;
     if (!cJSON_IsObject(j)) rc = bs_fail(err, BS_EPARSE, "run settings: expected a JSON object");
     if (rc == 0 && json_sort(j) != 0) rc = bs_fail(err, BS_ENOMEM, "run settings: out of memory");
-    if (rc == 0 && !(*out = cJSON_PrintUnformatted(j))) rc = bs_fail(err, BS_ENOMEM, "run settings: out of memory");
+    if (rc == 0 && !(*out = cJSON_PrintUnformatted(j)))
+        rc = bs_fail(err, BS_ENOMEM, "run settings: out of memory");
     cJSON_Delete(j);
     return rc;
 }
@@ -559,14 +604,18 @@ static int check_info(const cat_db *cat, const cat_run_info *info, bs_err *err)
 
 static void bind_text_or_null(sqlite3_stmt *st, int i, const char *s)
 {
-    if (s) sqlite3_bind_text(st, i, s, -1, SQLITE_TRANSIENT);
-    else sqlite3_bind_null(st, i);
+    if (s)
+        sqlite3_bind_text(st, i, s, -1, SQLITE_TRANSIENT);
+    else
+        sqlite3_bind_null(st, i);
 }
 
 static void bind_int_or_null(sqlite3_stmt *st, int i, int v, int lo)
 {
-    if (v >= lo) sqlite3_bind_int(st, i, v);
-    else sqlite3_bind_null(st, i);
+    if (v >= lo)
+        sqlite3_bind_int(st, i, v);
+    else
+        sqlite3_bind_null(st, i);
 }
 
 /* Runs a one-off statement with the binds done by the caller, then finalises it. */
@@ -586,8 +635,10 @@ static int prepare(cat_db *cat, const char *sql, sqlite3_stmt **st, bs_err *err)
 static int session_insert(cat_db *cat, int64_t run_id, int session, const cat_run_info *info, bs_err *err)
 {
     sqlite3_stmt *st = NULL;
-    int rc = prepare(cat, "INSERT INTO run_sessions (run_id, session, started, ranks, hosts, cmdline)"
-                          " VALUES (?, ?, " CAT_NOW_SQL ", ?, ?, ?)", &st, err);
+    int rc = prepare(cat,
+                     "INSERT INTO run_sessions (run_id, session, started, ranks, hosts, cmdline)"
+                     " VALUES (?, ?, " CAT_NOW_SQL ", ?, ?, ?)",
+                     &st, err);
     if (rc != 0) return rc;
     sqlite3_bind_int64(st, 1, run_id);
     sqlite3_bind_int(st, 2, session);
@@ -602,11 +653,15 @@ static int session_insert(cat_db *cat, int64_t run_id, int session, const cat_ru
     return rc;
 }
 
-static int run_insert(cat_db *cat, const cat_run_info *info, const char *settings, int64_t *run_id, bs_err *err)
+static int run_insert(cat_db *cat, const cat_run_info *info, const char *settings, int64_t *run_id,
+                      bs_err *err)
 {
     sqlite3_stmt *st = NULL;
-    int rc = prepare(cat, "INSERT INTO runs (kind, status, started, version, settings, ranks, hosts, cmdline, set_path,"
-                          " set_content, rerun) VALUES (?, 'running', " CAT_NOW_SQL ", ?, ?, ?, ?, ?, ?, ?, ?)", &st, err);
+    int rc =
+        prepare(cat,
+                "INSERT INTO runs (kind, status, started, version, settings, ranks, hosts, cmdline, set_path,"
+                " set_content, rerun) VALUES (?, 'running', " CAT_NOW_SQL ", ?, ?, ?, ?, ?, ?, ?, ?)",
+                &st, err);
     if (rc != 0) return rc;
     sqlite3_bind_text(st, 1, info->kind, -1, SQLITE_TRANSIENT);
     bind_text_or_null(st, 2, info->version);
@@ -625,18 +680,20 @@ static int run_insert(cat_db *cat, const cat_run_info *info, const char *setting
 
 /* The latest compatible unfinished run, or 0: same kind, settings and version, and the same set,
  * by content hash when info has one (a set staged at another path is the same set), else by path. */
-static int run_find(cat_db *cat, const cat_run_info *info, const char *settings, int64_t *run_id, int *sessions,
-                    int *rerun, bs_err *err)
+static int run_find(cat_db *cat, const cat_run_info *info, const char *settings, int64_t *run_id,
+                    int *sessions, int *rerun, bs_err *err)
 {
     sqlite3_stmt *st = NULL;
     *run_id = 0;
     *rerun = 0;
-    int rc = prepare(cat, info->set_content
-                              ? "SELECT run_id, sessions, rerun FROM runs WHERE kind = ? AND settings = ? AND version IS ?"
-                                " AND set_content = ? AND status IN ('running', 'interrupted') ORDER BY run_id DESC LIMIT 1"
-                              : "SELECT run_id, sessions, rerun FROM runs WHERE kind = ? AND settings = ? AND version IS ?"
-                                " AND set_path IS ? AND status IN ('running', 'interrupted') ORDER BY run_id DESC LIMIT 1",
-                     &st, err);
+    int rc = prepare(
+        cat,
+        info->set_content
+            ? "SELECT run_id, sessions, rerun FROM runs WHERE kind = ? AND settings = ? AND version IS ?"
+              " AND set_content = ? AND status IN ('running', 'interrupted') ORDER BY run_id DESC LIMIT 1"
+            : "SELECT run_id, sessions, rerun FROM runs WHERE kind = ? AND settings = ? AND version IS ?"
+              " AND set_path IS ? AND status IN ('running', 'interrupted') ORDER BY run_id DESC LIMIT 1",
+        &st, err);
     if (rc != 0) return rc;
     sqlite3_bind_text(st, 1, info->kind, -1, SQLITE_TRANSIENT);
     sqlite3_bind_text(st, 2, settings, -1, SQLITE_TRANSIENT);
@@ -657,7 +714,8 @@ static int run_find(cat_db *cat, const cat_run_info *info, const char *settings,
 static int run_reopen(cat_db *cat, int64_t run_id, int session, const cat_run_info *info, bs_err *err)
 {
     sqlite3_stmt *st = NULL;
-    int rc = prepare(cat, "UPDATE runs SET status = 'running', ended = NULL, sessions = ? WHERE run_id = ?", &st, err);
+    int rc = prepare(cat, "UPDATE runs SET status = 'running', ended = NULL, sessions = ? WHERE run_id = ?",
+                     &st, err);
     if (rc != 0) return rc;
     sqlite3_bind_int(st, 1, session);
     sqlite3_bind_int64(st, 2, run_id);
@@ -669,7 +727,8 @@ static int run_reopen(cat_db *cat, int64_t run_id, int session, const cat_run_in
 /* Shared body of begin and resume: one immediate transaction after the pending batch.
  * try_resume 0: always a new run; 1: resume any compatible unfinished run; 2 (--rerun): resume
  * only one that an earlier --rerun started. */
-static int run_start(cat_db *cat, const cat_run_info *info, int try_resume, int64_t *run_id, int *resumed, bs_err *err)
+static int run_start(cat_db *cat, const cat_run_info *info, int try_resume, int64_t *run_id, int *resumed,
+                     bs_err *err)
 {
     *run_id = 0;
     if (resumed) *resumed = 0;
@@ -687,8 +746,10 @@ static int run_start(cat_db *cat, const cat_run_info *info, int try_resume, int6
     int sessions = 0, was_rerun = 0;
     if (try_resume) rc = run_find(cat, info, settings, &id, &sessions, &was_rerun, err);
     if (rc == 0 && id > 0 && try_resume == 2 && !was_rerun) id = 0, sessions = 0;
-    if (rc == 0 && id > 0) rc = run_reopen(cat, id, sessions + 1, info, err);
-    else if (rc == 0) rc = run_insert(cat, info, settings, &id, err);
+    if (rc == 0 && id > 0)
+        rc = run_reopen(cat, id, sessions + 1, info, err);
+    else if (rc == 0)
+        rc = run_insert(cat, info, settings, &id, err);
     free(settings);
     if (rc == 0) rc = cat_exec(cat, "COMMIT", err);
     if (rc != 0) {
@@ -720,8 +781,11 @@ int cat_run_get(cat_db *cat, int64_t run_id, cat_run_state *out, bs_err *err)
 {
     memset(out, 0, sizeof *out);
     sqlite3_stmt *st = NULL;
-    int rc = prepare(cat, "SELECT started, sessions, rerun, (SELECT COUNT(*) FROM results r WHERE r.run_id = u.run_id),"
-                          " COALESCE(set_path, '') FROM runs u WHERE run_id = ?", &st, err);
+    int rc =
+        prepare(cat,
+                "SELECT started, sessions, rerun, (SELECT COUNT(*) FROM results r WHERE r.run_id = u.run_id),"
+                " COALESCE(set_path, '') FROM runs u WHERE run_id = ?",
+                &st, err);
     if (rc != 0) return rc;
     sqlite3_bind_int64(st, 1, run_id);
     if (sqlite3_step(st) == SQLITE_ROW) {
@@ -742,7 +806,8 @@ int cat_run_end(cat_db *cat, int64_t run_id, cat_run_status status, bs_err *err)
     int rc = need_rw(cat, "ending a run", err);
     const char *name = cat_run_status_name(status);
     if (rc == 0 && (!name || status == CAT_RUN_RUNNING))
-        rc = bs_fail(err, BS_EINVAL, "cat_run_end: status %d is not done, interrupted or failed", (int)status);
+        rc =
+            bs_fail(err, BS_EINVAL, "cat_run_end: status %d is not done, interrupted or failed", (int)status);
     if (rc == 0) rc = cat_flush(cat, err);
     if (rc == 0 && cat->h5_run == run_id) rc = cat_artifact_close(cat, err);
     if (rc != 0) return rc;
@@ -754,8 +819,11 @@ int cat_run_end(cat_db *cat, int64_t run_id, cat_run_status status, bs_err *err)
     rc = step_done(cat, st, "ending the run", err);
     if (rc == 0 && sqlite3_changes(cat->db) != 1)
         return bs_fail(err, BS_EINVAL, "%s: cat_run_end: no run %lld", cat->path, (long long)run_id);
-    if (rc == 0) rc = prepare(cat, "UPDATE run_sessions SET ended = " CAT_NOW_SQL " WHERE run_id = ?1 AND session ="
-                                   " (SELECT MAX(session) FROM run_sessions WHERE run_id = ?1)", &st, err);
+    if (rc == 0)
+        rc = prepare(cat,
+                     "UPDATE run_sessions SET ended = " CAT_NOW_SQL " WHERE run_id = ?1 AND session ="
+                     " (SELECT MAX(session) FROM run_sessions WHERE run_id = ?1)",
+                     &st, err);
     if (rc != 0) return rc;
     sqlite3_bind_int64(st, 1, run_id);
     rc = step_done(cat, st, "ending the run session", err);
@@ -773,12 +841,15 @@ int cat_run_discard(cat_db *cat, int64_t run_id, bs_err *err)
     rc = prepare(cat, "SELECT count(*) FROM results WHERE run_id = ?", &st, err);
     if (rc == 0) {
         sqlite3_bind_int64(st, 1, run_id);
-        if (sqlite3_step(st) != SQLITE_ROW) rc = cat_sql_fail(cat, err, "counting a run's results");
+        if (sqlite3_step(st) != SQLITE_ROW)
+            rc = cat_sql_fail(cat, err, "counting a run's results");
         else if (sqlite3_column_int64(st, 0) > 0)
-            rc = bs_fail(err, BS_EINVAL, "%s: run %lld has results and is kept", cat->path, (long long)run_id);
+            rc =
+                bs_fail(err, BS_EINVAL, "%s: run %lld has results and is kept", cat->path, (long long)run_id);
         sqlite3_finalize(st);
     }
-    static const char *const del[] = {"DELETE FROM run_sessions WHERE run_id = ?", "DELETE FROM runs WHERE run_id = ?"};
+    static const char *const del[] = {"DELETE FROM run_sessions WHERE run_id = ?",
+                                      "DELETE FROM runs WHERE run_id = ?"};
     for (int i = 0; rc == 0 && i < 2; i++) {
         rc = prepare(cat, del[i], &st, err);
         if (rc != 0) break;
@@ -804,8 +875,10 @@ int cat_session_of(cat_db *cat, int64_t run_id, int *session, bs_err *err)
     int rc = prepare(cat, "SELECT COALESCE(MAX(session), 1) FROM run_sessions WHERE run_id = ?", &st, err);
     if (rc != 0) return rc;
     sqlite3_bind_int64(st, 1, run_id);
-    if (sqlite3_step(st) == SQLITE_ROW) *session = sqlite3_column_int(st, 0);
-    else rc = cat_sql_fail(cat, err, "looking up the run session");
+    if (sqlite3_step(st) == SQLITE_ROW)
+        *session = sqlite3_column_int(st, 0);
+    else
+        rc = cat_sql_fail(cat, err, "looking up the run session");
     sqlite3_finalize(st);
     return rc;
 }
@@ -813,7 +886,8 @@ int cat_session_of(cat_db *cat, int64_t run_id, int *session, bs_err *err)
 int cat_session_set_file(cat_db *cat, int64_t run_id, int session, const char *file, bs_err *err)
 {
     sqlite3_stmt *st = NULL;
-    int rc = prepare(cat, "UPDATE run_sessions SET artifact_file = ? WHERE run_id = ? AND session = ?", &st, err);
+    int rc =
+        prepare(cat, "UPDATE run_sessions SET artifact_file = ? WHERE run_id = ? AND session = ?", &st, err);
     if (rc != 0) return rc;
     sqlite3_bind_text(st, 1, file, -1, SQLITE_TRANSIENT);
     sqlite3_bind_int64(st, 2, run_id);
@@ -830,7 +904,8 @@ int cat_material_upsert(cat_db *cat, const cat_material *m, bs_err *err)
     if (!m || !m->material_id || !*m->material_id || strlen(m->material_id) > 127)
         return bs_fail(err, BS_EINVAL, "material: expected an id of 1 to 127 bytes");
     if (m->dimension > 0 && m->dimension != 2 && m->dimension != 3)
-        return bs_fail(err, BS_EINVAL, "material %s: dimension must be 2 or 3, found %d", m->material_id, m->dimension);
+        return bs_fail(err, BS_EINVAL, "material %s: dimension must be 2 or 3, found %d", m->material_id,
+                       m->dimension);
     rc = cat_txn_begin(cat, err);
     if (rc != 0) return rc;
     sqlite3_stmt *st = cat->st[CAT_ST_MAT_UPSERT];
@@ -871,7 +946,8 @@ void cat_ids_init(cat_ids *ids)
 void cat_ids_clear(cat_ids *ids)
 {
     if (!ids) return;
-    for (size_t i = 0; i < ids->n; i++) free(ids->id[i]);
+    for (size_t i = 0; i < ids->n; i++)
+        free(ids->id[i]);
     free(ids->id);
     cat_ids_init(ids);
 }
@@ -904,7 +980,8 @@ static int ids_add(void *ctx, const cat_row *row, bs_err *err)
         acc->list.id = grown;
         acc->cap = cap;
     }
-    if (!(acc->list.id[acc->list.n] = strdup(row->text[0]))) return bs_fail(err, BS_ENOMEM, "material id list: out of memory");
+    if (!(acc->list.id[acc->list.n] = strdup(row->text[0])))
+        return bs_fail(err, BS_ENOMEM, "material id list: out of memory");
     acc->list.n++;
     return 0;
 }
@@ -926,11 +1003,16 @@ int cat_finished_ids(cat_db *cat, const cat_run_info *info, cat_ids *ids, bs_err
     sqlite3_stmt *st = NULL;
     /* A row counts when it is about the material's current content: a repacked entry with a new
      * table has a new hash and is done again; the set's path plays no part. */
-    rc = prepare(cat, "SELECT DISTINCT r.material_id FROM results r JOIN runs u ON u.run_id = r.run_id"
-                      " JOIN materials m ON m.material_id = r.material_id"
-                      " WHERE u.kind = ? AND u.settings = ? AND u.version IS ? AND r.content IS m.content"
-                      " ORDER BY r.material_id", &st, err);
-    if (rc != 0) { free(settings); return rc; }
+    rc = prepare(cat,
+                 "SELECT DISTINCT r.material_id FROM results r JOIN runs u ON u.run_id = r.run_id"
+                 " JOIN materials m ON m.material_id = r.material_id"
+                 " WHERE u.kind = ? AND u.settings = ? AND u.version IS ? AND r.content IS m.content"
+                 " ORDER BY r.material_id",
+                 &st, err);
+    if (rc != 0) {
+        free(settings);
+        return rc;
+    }
     sqlite3_bind_text(st, 1, info->kind, -1, SQLITE_TRANSIENT);
     sqlite3_bind_text(st, 2, settings, -1, SQLITE_TRANSIENT);
     bind_text_or_null(st, 3, info->version);
@@ -943,16 +1025,25 @@ int cat_finished_ids(cat_db *cat, const cat_run_info *info, cat_ids *ids, bs_err
         if (acc.n == cap) {
             cap = cap ? 2 * cap : 64;
             char **p = realloc(acc.id, cap * sizeof *p);
-            if (!p) { rc = bs_fail(err, BS_ENOMEM, "out of memory for finished ids"); break; }
+            if (!p) {
+                rc = bs_fail(err, BS_ENOMEM, "out of memory for finished ids");
+                break;
+            }
             acc.id = p;
         }
-        if (!(acc.id[acc.n] = strdup(id))) { rc = bs_fail(err, BS_ENOMEM, "out of memory for finished ids"); break; }
+        if (!(acc.id[acc.n] = strdup(id))) {
+            rc = bs_fail(err, BS_ENOMEM, "out of memory for finished ids");
+            break;
+        }
         acc.n++;
     }
     if (rc == 0 && s != SQLITE_DONE) rc = cat_sql_fail(cat, err, "listing finished materials");
     sqlite3_finalize(st);
     free(settings);
-    if (rc != 0) { cat_ids_clear(&acc); return rc; }
+    if (rc != 0) {
+        cat_ids_clear(&acc);
+        return rc;
+    }
     /* ORDER BY uses SQLite's BINARY collation, the same byte order as strcmp. */
     cat_ids_clear(ids);
     *ids = acc;
@@ -963,12 +1054,16 @@ int cat_material_stale(cat_db *cat, const char *material_id, const char *content
 {
     *stale = 1;
     sqlite3_stmt *st = cat->st[CAT_ST_MAT_STALE];
-    if (!st) return bs_fail(err, BS_EINVAL, "%s: material contents need a catalogue opened for writing", cat->path);
+    if (!st)
+        return bs_fail(err, BS_EINVAL, "%s: material contents need a catalogue opened for writing",
+                       cat->path);
     sqlite3_bind_text(st, 1, material_id, -1, SQLITE_TRANSIENT);
     bind_text_or_null(st, 2, content);
     int rc = 0, s = sqlite3_step(st);
-    if (s == SQLITE_ROW) *stale = !sqlite3_column_int(st, 0);
-    else if (s != SQLITE_DONE) rc = cat_sql_fail(cat, err, "reading a material's content");
+    if (s == SQLITE_ROW)
+        *stale = !sqlite3_column_int(st, 0);
+    else if (s != SQLITE_DONE)
+        rc = cat_sql_fail(cat, err, "reading a material's content");
     sqlite3_reset(st);
     sqlite3_clear_bindings(st);
     return rc;
@@ -981,8 +1076,10 @@ int cat_best_mesh(cat_db *cat, const char *material_id, int *mesh, bs_err *err)
     if (!st) return bs_fail(err, BS_EINVAL, "%s: best meshes need a catalogue opened for writing", cat->path);
     sqlite3_bind_text(st, 1, material_id, -1, SQLITE_TRANSIENT);
     int rc = 0;
-    if (sqlite3_step(st) == SQLITE_ROW) *mesh = sqlite3_column_int(st, 0);
-    else rc = cat_sql_fail(cat, err, "reading the best mesh");
+    if (sqlite3_step(st) == SQLITE_ROW)
+        *mesh = sqlite3_column_int(st, 0);
+    else
+        rc = cat_sql_fail(cat, err, "reading the best mesh");
     sqlite3_reset(st);
     sqlite3_clear_bindings(st);
     return rc;
@@ -1006,16 +1103,20 @@ int cat_select_ids(cat_db *cat, const char *where_sql, cat_ids *ids, bs_err *err
 
 /* Pragmas that only take an object name as argument and read; any other pragma with an argument
  * may set something and is refused. */
-static const char *const READ_PRAGMAS[] = {"table_info", "table_xinfo", "index_list", "index_info",
-                                           "index_xinfo", "foreign_key_list", "integrity_check",
-                                           "quick_check", NULL};
+static const char *const READ_PRAGMAS[] = {"table_info",      "table_xinfo", "index_list",
+                                           "index_info",      "index_xinfo", "foreign_key_list",
+                                           "integrity_check", "quick_check", NULL};
 
-static int query_authorizer(void *ctx, int action, const char *a1, const char *a2, const char *db, const char *trigger)
+static int query_authorizer(void *ctx, int action, const char *a1, const char *a2, const char *db,
+                            const char *trigger)
 {
-    (void)ctx; (void)db; (void)trigger;
+    (void)ctx;
+    (void)db;
+    (void)trigger;
     /* ATTACH would open (or create) another file; BEGIN/SAVEPOINT count as read-only for
      * sqlite3_stmt_readonly but would tangle with the writer's batch transaction. */
-    if (action == SQLITE_ATTACH || action == SQLITE_DETACH || action == SQLITE_TRANSACTION || action == SQLITE_SAVEPOINT)
+    if (action == SQLITE_ATTACH || action == SQLITE_DETACH || action == SQLITE_TRANSACTION ||
+        action == SQLITE_SAVEPOINT)
         return SQLITE_DENY;
     if (action == SQLITE_PRAGMA && a2) {
         for (int i = 0; READ_PRAGMAS[i]; i++)
@@ -1037,22 +1138,27 @@ static int query_prepare(cat_db *cat, const char *sql, sqlite3_stmt **out, bs_er
     sqlite3_set_authorizer(cat->db, NULL, NULL);
     if (s != SQLITE_OK) {
         if (s == SQLITE_AUTH)
-            return bs_fail(err, BS_EINVAL, "query refused: ATTACH, DETACH, transaction control and PRAGMAs that set values"
-                                           " are not allowed (%s)",
+            return bs_fail(err, BS_EINVAL,
+                           "query refused: ATTACH, DETACH, transaction control and PRAGMAs that set values"
+                           " are not allowed (%s)",
                            sqlite3_errmsg(cat->db));
         return cat_sql_fail(cat, err, "query");
     }
     if (!st) return bs_fail(err, BS_EINVAL, "query: no SQL statement in \"%.60s\"", sql);
     int rc = 0;
     if (!sqlite3_stmt_readonly(st))
-        rc = bs_fail(err, BS_EINVAL, "query refused: the statement would modify the catalogue (only read-only SQL is run): %.80s", sql);
+        rc = bs_fail(
+            err, BS_EINVAL,
+            "query refused: the statement would modify the catalogue (only read-only SQL is run): %.80s",
+            sql);
     while (rc == 0 && tail && *tail) {
         sqlite3_stmt *more = NULL;
         const char *next = NULL;
         if (sqlite3_prepare_v2(cat->db, tail, -1, &more, &next) != SQLITE_OK) {
             rc = cat_sql_fail(cat, err, "query (after the first statement)");
         } else if (more) {
-            rc = bs_fail(err, BS_EINVAL, "query refused: one statement at a time, found more after \"%.60s\"", sql);
+            rc = bs_fail(err, BS_EINVAL, "query refused: one statement at a time, found more after \"%.60s\"",
+                         sql);
         }
         sqlite3_finalize(more);
         if (next == tail) break;
@@ -1069,11 +1175,16 @@ static int query_prepare(cat_db *cat, const char *sql, sqlite3_stmt **out, bs_er
 static int col_type(int t)
 {
     switch (t) {
-    case SQLITE_INTEGER: return CAT_COL_INTEGER;
-    case SQLITE_FLOAT: return CAT_COL_REAL;
-    case SQLITE_TEXT: return CAT_COL_TEXT;
-    case SQLITE_BLOB: return CAT_COL_BLOB;
-    default: return CAT_COL_NULL;
+    case SQLITE_INTEGER:
+        return CAT_COL_INTEGER;
+    case SQLITE_FLOAT:
+        return CAT_COL_REAL;
+    case SQLITE_TEXT:
+        return CAT_COL_TEXT;
+    case SQLITE_BLOB:
+        return CAT_COL_BLOB;
+    default:
+        return CAT_COL_NULL;
     }
 }
 
@@ -1100,9 +1211,10 @@ static int query_rows(cat_db *cat, sqlite3_stmt *st, cat_row_fn fn, void *ctx, b
     const char **name = calloc(n, sizeof *name);
     const char **text = calloc(n, sizeof *text);
     int *type = calloc(n, sizeof *type);
-    char (*num)[32] = calloc(n, sizeof *num);
+    char(*num)[32] = calloc(n, sizeof *num);
     int rc = name && text && type && num ? 0 : bs_fail(err, BS_ENOMEM, "query: out of memory");
-    for (int i = 0; rc == 0 && i < ncol; i++) name[i] = sqlite3_column_name(st, i);
+    for (int i = 0; rc == 0 && i < ncol; i++)
+        name[i] = sqlite3_column_name(st, i);
     cat_row row = {ncol, name, NULL, NULL, -1};
     if (rc == 0) rc = fn(ctx, &row, err);
     row.text = text;
@@ -1159,8 +1271,10 @@ static int collect_ids(cat_db *cat, const char *sql, int64_t run_id, cat_ids *id
     if (acc.list.n > 1) qsort(acc.list.id, acc.list.n, sizeof *acc.list.id, str_cmp);
     size_t k = 0; /* drop duplicates (the same id selected twice) */
     for (size_t i = 0; i < acc.list.n; i++) {
-        if (k > 0 && strcmp(acc.list.id[k - 1], acc.list.id[i]) == 0) free(acc.list.id[i]);
-        else acc.list.id[k++] = acc.list.id[i];
+        if (k > 0 && strcmp(acc.list.id[k - 1], acc.list.id[i]) == 0)
+            free(acc.list.id[i]);
+        else
+            acc.list.id[k++] = acc.list.id[i];
     }
     acc.list.n = k;
     cat_ids_clear(ids);
@@ -1177,7 +1291,8 @@ static int check_row(void *ctx, const cat_row *row, bs_err *err)
 {
     (void)err;
     check_acc *acc = ctx;
-    if (row->index == 0) snprintf(acc->first, sizeof acc->first, "%s", row->text[0] ? row->text[0] : "(null)");
+    if (row->index == 0)
+        snprintf(acc->first, sizeof acc->first, "%s", row->text[0] ? row->text[0] : "(null)");
     if (row->index >= 0) acc->nrow++;
     return 0;
 }
@@ -1188,5 +1303,6 @@ int cat_check(cat_db *cat, bs_err *err)
     int rc = cat_query(cat, "PRAGMA integrity_check", check_row, &acc, err);
     if (rc != 0) return rc;
     if (acc.nrow == 1 && strcmp(acc.first, "ok") == 0) return 0;
-    return bs_fail(err, BS_ESQL, "%s: integrity check failed: %s (%lld messages)", cat->path, acc.first, acc.nrow);
+    return bs_fail(err, BS_ESQL, "%s: integrity check failed: %s (%lld messages)", cat->path, acc.first,
+                   acc.nrow);
 }

@@ -18,27 +18,31 @@ static int parse_orbitals(const char *text, int nspatial, unsigned char *mask, b
         char *end;
         long o = strtol(p, &end, 10);
         if (end == p || o < 1 || o > nspatial)
-            return bs_fail(err, BS_EUSAGE, "--weight orbitals: expects 1-based orbitals 1..%d, got '%s'", nspatial,
-                           text);
+            return bs_fail(err, BS_EUSAGE, "--weight orbitals: expects 1-based orbitals 1..%d, got '%s'",
+                           nspatial, text);
         mask[o - 1] = 1;
         n++;
         p = *end == ',' ? end + 1 : end;
         if (*end && *end != ',')
-            return bs_fail(err, BS_EUSAGE, "--weight orbitals: expects a comma-separated list, got '%s'", text);
+            return bs_fail(err, BS_EUSAGE, "--weight orbitals: expects a comma-separated list, got '%s'",
+                           text);
     }
     return n ? 0 : bs_fail(err, BS_EUSAGE, "--weight orbitals: no orbital given");
 }
 
 /* Weight of each eigenvector (columns of Z) into w[norb]. */
-static void state_weights(const tb_model *m, int kind, const unsigned char *mask, const double complex *Z, double *w)
+static void state_weights(const tb_model *m, int kind, const unsigned char *mask, const double complex *Z,
+                          double *w)
 {
     int n = m->norb;
     for (int j = 0; j < n; j++) {
         double s = 0;
         for (int i = 0; i < n; i++) {
             double p = creal(Z[(size_t)j * n + i] * conj(Z[(size_t)j * n + i]));
-            if (kind == BP_WEIGHT_SPIN) s += tb_state_spin(m, i) == 0 ? p : -p;
-            else if (mask[tb_state_orbital(m, i)]) s += p;
+            if (kind == BP_WEIGHT_SPIN)
+                s += tb_state_spin(m, i) == 0 ? p : -p;
+            else if (mask[tb_state_orbital(m, i)])
+                s += p;
         }
         w[j] = s;
     }
@@ -86,8 +90,10 @@ static void path_edges(const tb_model *m, const double *fermi, band_path *bp)
         if (E[v + 1] - E[v] < bp->direct_ev) bp->direct_ev = E[v + 1] - E[v], bp->i_direct = i;
     }
     bp->gapped = bp->cbm_ev > bp->vbm_ev;
-    if (fermi) bp->has_fermi = 1, bp->fermi_ev = *fermi, bp->fermi_source = "option";
-    else if (m->has_fermi) bp->has_fermi = 1, bp->fermi_ev = m->fermi_ev, bp->fermi_source = "card";
+    if (fermi)
+        bp->has_fermi = 1, bp->fermi_ev = *fermi, bp->fermi_source = "option";
+    else if (m->has_fermi)
+        bp->has_fermi = 1, bp->fermi_ev = m->fermi_ev, bp->fermi_source = "card";
     else if (bp->gapped)
         bp->has_fermi = 1, bp->fermi_ev = 0.5 * (bp->vbm_ev + bp->cbm_ev), bp->fermi_source = "mid-gap";
 }
@@ -98,8 +104,9 @@ int band_path_compute(const tb_model *m, const char *spec, int npoints, const ch
     memset(out, 0, sizeof *out);
     out->norb = m->norb, out->nocc = m->nocc;
     unsigned char *mask = NULL;
-    int rc = strcmp(spec, "auto") == 0 ? kpath_auto((const double(*)[3])m->lattice, m->dim, 0, &out->path, err)
-                                       : kpath_parse(spec, &out->path, err);
+    int rc = strcmp(spec, "auto") == 0
+                 ? kpath_auto((const double(*)[3])m->lattice, m->dim, 0, &out->path, err)
+                 : kpath_parse(spec, &out->path, err);
     if (rc == 0 && weight) {
         if (strcmp(weight, "spin") == 0) {
             out->weight_kind = BP_WEIGHT_SPIN;
@@ -107,7 +114,8 @@ int band_path_compute(const tb_model *m, const char *spec, int npoints, const ch
         } else if (strncmp(weight, "orbitals:", 9) == 0) {
             out->weight_kind = BP_WEIGHT_ORBITALS;
             mask = calloc((size_t)m->nspatial, 1);
-            rc = mask ? parse_orbitals(weight, m->nspatial, mask, err) : bs_fail(err, BS_ENOMEM, "out of memory");
+            rc = mask ? parse_orbitals(weight, m->nspatial, mask, err)
+                      : bs_fail(err, BS_ENOMEM, "out of memory");
         } else {
             rc = bs_fail(err, BS_EUSAGE, "--weight expects spin or orbitals:i,j,..., got '%s'", weight);
         }

@@ -13,13 +13,13 @@ typedef struct band_path {
     kpath path;
     kpath_samples s;
     int norb, nocc;
-    double *E;              /* s.nk * norb, eV, ascending per k */
-    int weight_kind;        /* BP_WEIGHT_* */
-    double *w;              /* s.nk * norb: <s_z> in [-1,1] or the orbitals' weight in [0,1]; NULL */
-    int gapped;             /* band nocc-1 stays below band nocc everywhere on the path */
-    double vbm_ev, cbm_ev;  /* top of band nocc-1, bottom of band nocc on the path */
-    int i_vbm, i_cbm;       /* sample indices */
-    double direct_ev;       /* smallest E[nocc] - E[nocc-1] on the path */
+    double *E;             /* s.nk * norb, eV, ascending per k */
+    int weight_kind;       /* BP_WEIGHT_* */
+    double *w;             /* s.nk * norb: <s_z> in [-1,1] or the orbitals' weight in [0,1]; NULL */
+    int gapped;            /* band nocc-1 stays below band nocc everywhere on the path */
+    double vbm_ev, cbm_ev; /* top of band nocc-1, bottom of band nocc on the path */
+    int i_vbm, i_cbm;      /* sample indices */
+    double direct_ev;      /* smallest E[nocc] - E[nocc-1] on the path */
     int i_direct;
     int has_fermi;
     double fermi_ev;

@@ -10,7 +10,8 @@
 
 void cardlist_clear(cardlist *l)
 {
-    for (size_t i = 0; i < l->n; i++) free(l->path[i]);
+    for (size_t i = 0; i < l->n; i++)
+        free(l->path[i]);
     free(l->path);
     memset(l, 0, sizeof *l);
 }
@@ -29,7 +30,10 @@ static int push(cardlist *l, const char *path, bs_err *err)
     return 0;
 }
 
-static int by_name(const void *a, const void *b) { return strcmp(*(char *const *)a, *(char *const *)b); }
+static int by_name(const void *a, const void *b)
+{
+    return strcmp(*(char *const *)a, *(char *const *)b);
+}
 
 static int add_folder(cardlist *l, const char *dir, bs_err *err)
 {
@@ -43,7 +47,8 @@ static int add_folder(cardlist *l, const char *dir, bs_err *err)
         char path[4096];
         if (snprintf(path, sizeof path, "%s/%s", dir, e->d_name) >= (int)sizeof path)
             rc = bs_fail(err, BS_EINVAL, "%s/%s: path too long", dir, e->d_name);
-        else rc = push(l, path, err);
+        else
+            rc = push(l, path, err);
     }
     closedir(d);
     if (rc == 0 && l->n == first) rc = bs_fail(err, BS_EINVAL, "%s: no *.json card in the folder", dir);
@@ -70,20 +75,27 @@ int cardlist_add_file(cardlist *l, const char *list_path, bs_err *err)
         lineno++;
         size_t n = strlen(line);
         if (n == sizeof line - 1 && line[n - 1] != '\n') {
-            rc = bs_fail(err, BS_EPARSE, "%s:%d: line longer than %zu characters", list_path, lineno, sizeof line - 2);
+            rc = bs_fail(err, BS_EPARSE, "%s:%d: line longer than %zu characters", list_path, lineno,
+                         sizeof line - 2);
             break;
         }
-        while (n > 0 && (line[n - 1] == '\n' || line[n - 1] == '\r' || line[n - 1] == ' ' || line[n - 1] == '\t'))
+        while (n > 0 &&
+               (line[n - 1] == '\n' || line[n - 1] == '\r' || line[n - 1] == ' ' || line[n - 1] == '\t'))
             line[--n] = '\0';
         char *p = line;
-        while (*p == ' ' || *p == '\t') p++;
+        while (*p == ' ' || *p == '\t')
+            p++;
         if (!*p || *p == '#') continue;
         char path[8300];
-        if (p[0] == '/' || !slash) snprintf(path, sizeof path, "%s", p);
-        else snprintf(path, sizeof path, "%.*s/%s", dirlen, list_path, p);
+        if (p[0] == '/' || !slash)
+            snprintf(path, sizeof path, "%s", p);
+        else
+            snprintf(path, sizeof path, "%.*s/%s", dirlen, list_path, p);
         struct stat st;
-        if (stat(path, &st) != 0) rc = bs_fail(err, BS_EIO, "%s:%d: %s: %s", list_path, lineno, path, strerror(errno));
-        else rc = cardlist_add_arg(l, path, err);
+        if (stat(path, &st) != 0)
+            rc = bs_fail(err, BS_EIO, "%s:%d: %s: %s", list_path, lineno, path, strerror(errno));
+        else
+            rc = cardlist_add_arg(l, path, err);
     }
     fclose(fp);
     return rc;
@@ -106,7 +118,8 @@ int cardlist_is_hdf5(const char *path)
 static size_t str_hash(const char *s)
 {
     size_t h = 1469598103934665603ULL;
-    for (; *s; s++) h = (h ^ (unsigned char)*s) * 1099511628211ULL;
+    for (; *s; s++)
+        h = (h ^ (unsigned char)*s) * 1099511628211ULL;
     return h;
 }
 
@@ -125,11 +138,16 @@ int cli_strmap_put(cli_strmap *m, const char *key, int val)
         cli_strmap g = {NULL, NULL, m->cap ? 2 * m->cap : 1024, 0};
         g.key = calloc(g.cap, sizeof *g.key);
         g.val = calloc(g.cap, sizeof *g.val);
-        if (!g.key || !g.val) { free(g.key); free(g.val); return -1; }
+        if (!g.key || !g.val) {
+            free(g.key);
+            free(g.val);
+            return -1;
+        }
         for (size_t i = 0; i < m->cap; i++)
             if (m->key[i]) {
                 size_t j = str_hash(m->key[i]) & (g.cap - 1);
-                while (g.key[j]) j = (j + 1) & (g.cap - 1);
+                while (g.key[j])
+                    j = (j + 1) & (g.cap - 1);
                 g.key[j] = m->key[i];
                 g.val[j] = m->val[i];
                 g.n++;
@@ -139,7 +157,8 @@ int cli_strmap_put(cli_strmap *m, const char *key, int val)
         *m = g;
     }
     size_t i = str_hash(key) & (m->cap - 1);
-    while (m->key[i] && strcmp(m->key[i], key)) i = (i + 1) & (m->cap - 1);
+    while (m->key[i] && strcmp(m->key[i], key))
+        i = (i + 1) & (m->cap - 1);
     if (!m->key[i]) {
         if (!(m->key[i] = strdup(key))) return -1;
         m->n++;
@@ -150,9 +169,9 @@ int cli_strmap_put(cli_strmap *m, const char *key, int val)
 
 void cli_strmap_clear(cli_strmap *m)
 {
-    for (size_t i = 0; i < m->cap; i++) free(m->key[i]);
+    for (size_t i = 0; i < m->cap; i++)
+        free(m->key[i]);
     free(m->key);
     free(m->val);
     memset(m, 0, sizeof *m);
 }
-

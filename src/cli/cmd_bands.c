@@ -20,24 +20,24 @@
 
 static void bands_help(FILE *out)
 {
-    fprintf(out,
-            "usage: bandsieve bands SOURCE --k k1,k2,k3 [--k ...] [--json]\n"
-            "       bandsieve bands SOURCE --path auto|\"LABEL:k1,k2,k3 ...\" [--points N] [--fermi E] [--json]\n\n"
-            "Prints the band energies (eV, ascending) of SOURCE at each reduced k-point\n"
-            "(fractions of the reciprocal lattice vectors; in 2D the third is ignored).\n"
-            "SOURCE is a card (path.json), SET.h5:ID, or model:NAME[:key=val,...].\n\n"
-            "  --k K        a k-point, repeatable\n"
-            "  --path P     a band path instead: 'auto' is the standard path of the lattice\n"
-            "               (Comput. Mater. Sci. 49, 299 (2010); CUB FCC BCC TET ORC HEX, 2D square,\n"
-            "               rectangular, hexagonal), or labelled points 'G:0,0,0 X:1/2,0,1/2 | U:...'\n"
-            "               ('|' jumps; fractions allowed). The output labels the path points and\n"
-            "               marks the band edges at the filling and the Fermi level\n"
-            "  --points N   samples along the path (default 200)\n"
-            "  --fermi E    Fermi level in eV (default: the card's, else mid-gap on the path)\n"
-            "  --json       print {\"k\": [[...]], \"energies_eV\": [[...]]}; with --path also\n"
-            "               \"x\", \"labels\", \"path\", \"path_points\", \"lattice_type\",\n"
-            "               \"reciprocal_vectors\" (rows, 1/A), \"gap\", \"fermi_eV\"\n"
-            "  -h, --help   this text\n");
+    fprintf(out, "usage: bandsieve bands SOURCE --k k1,k2,k3 [--k ...] [--json]\n"
+                 "       bandsieve bands SOURCE --path auto|\"LABEL:k1,k2,k3 ...\" [--points N] [--fermi E] "
+                 "[--json]\n\n"
+                 "Prints the band energies (eV, ascending) of SOURCE at each reduced k-point\n"
+                 "(fractions of the reciprocal lattice vectors; in 2D the third is ignored).\n"
+                 "SOURCE is a card (path.json), SET.h5:ID, or model:NAME[:key=val,...].\n\n"
+                 "  --k K        a k-point, repeatable\n"
+                 "  --path P     a band path instead: 'auto' is the standard path of the lattice\n"
+                 "               (Comput. Mater. Sci. 49, 299 (2010); CUB FCC BCC TET ORC HEX, 2D square,\n"
+                 "               rectangular, hexagonal), or labelled points 'G:0,0,0 X:1/2,0,1/2 | U:...'\n"
+                 "               ('|' jumps; fractions allowed). The output labels the path points and\n"
+                 "               marks the band edges at the filling and the Fermi level\n"
+                 "  --points N   samples along the path (default 200)\n"
+                 "  --fermi E    Fermi level in eV (default: the card's, else mid-gap on the path)\n"
+                 "  --json       print {\"k\": [[...]], \"energies_eV\": [[...]]}; with --path also\n"
+                 "               \"x\", \"labels\", \"path\", \"path_points\", \"lattice_type\",\n"
+                 "               \"reciprocal_vectors\" (rows, 1/A), \"gap\", \"fermi_eV\"\n"
+                 "  -h, --help   this text\n");
 }
 
 static int print_json(int nk, const double *k, int norb, const double *E)
@@ -62,7 +62,8 @@ static void print_table(int nk, const double *k, int norb, const double *E)
     printf("# k1 k2 k3 | %d band energies (eV)\n", norb);
     for (int j = 0; j < nk; j++) {
         printf("%.6f %.6f %.6f |", k[3 * j], k[3 * j + 1], k[3 * j + 2]);
-        for (int b = 0; b < norb; b++) printf(" %.8f", E[(size_t)j * norb + b]);
+        for (int b = 0; b < norb; b++)
+            printf(" %.8f", E[(size_t)j * norb + b]);
         printf("\n");
     }
 }
@@ -118,7 +119,8 @@ static int print_path_json(const tb_model *m, const band_path *bp)
     double b[3][3];
     tb_model_reciprocal(m, b);
     cJSON *rv = cJSON_AddArrayToObject(root, "reciprocal_vectors");
-    for (int i = 0; i < 3; i++) cJSON_AddItemToArray(rv, cJSON_CreateDoubleArray(b[i], 3));
+    for (int i = 0; i < 3; i++)
+        cJSON_AddItemToArray(rv, cJSON_CreateDoubleArray(b[i], 3));
     cJSON *pts = cJSON_AddArrayToObject(root, "path_points");
     for (int v = 0; v < bp->path.npoint; v++) {
         cJSON *o = cJSON_CreateObject();
@@ -167,18 +169,24 @@ static void print_path_table(const tb_model *m, const band_path *bp)
     band_path_label(bp, bp->i_vbm, lv, sizeof lv);
     band_path_label(bp, bp->i_cbm, lc, sizeof lc);
     printf("# %s: path %s (%s%s), %d points; %d occupied bands\n", m->id, desc, bp->path.lattice,
-           strcmp(bp->path.lattice, "user") ? ", Comput. Mater. Sci. 49, 299 (2010)" : "", bp->s.nk, bp->nocc);
+           strcmp(bp->path.lattice, "user") ? ", Comput. Mater. Sci. 49, 299 (2010)" : "", bp->s.nk,
+           bp->nocc);
     if (bp->gapped)
-        printf("# gap on the path: %.6f eV indirect (VBM %.6f eV at x = %.4f %s, CBM %.6f eV at x = %.4f %s), "
-               "%.6f eV direct at x = %.4f\n",
-               bp->cbm_ev - bp->vbm_ev, bp->vbm_ev, bp->s.x[bp->i_vbm], lv, bp->cbm_ev, bp->s.x[bp->i_cbm], lc,
-               bp->direct_ev, bp->s.x[bp->i_direct]);
+        printf(
+            "# gap on the path: %.6f eV indirect (VBM %.6f eV at x = %.4f %s, CBM %.6f eV at x = %.4f %s), "
+            "%.6f eV direct at x = %.4f\n",
+            bp->cbm_ev - bp->vbm_ev, bp->vbm_ev, bp->s.x[bp->i_vbm], lv, bp->cbm_ev, bp->s.x[bp->i_cbm], lc,
+            bp->direct_ev, bp->s.x[bp->i_direct]);
     else
-        printf("# no gap at the filling on the path: band %d reaches %.6f eV, band %d comes down to %.6f eV\n",
-               bp->nocc, bp->vbm_ev, bp->nocc + 1, bp->cbm_ev);
-    if (bp->has_fermi) printf("# Fermi level %.6f eV (%s)\n", bp->fermi_ev, bp->fermi_source);
-    else printf("# Fermi level: not determined (no gap on the path and none on the card; give --fermi)\n");
-    printf("# label x(1/A) k1 k2 k3 | %d band energies (eV); '|' separates occupied from empty | mark\n", bp->norb);
+        printf(
+            "# no gap at the filling on the path: band %d reaches %.6f eV, band %d comes down to %.6f eV\n",
+            bp->nocc, bp->vbm_ev, bp->nocc + 1, bp->cbm_ev);
+    if (bp->has_fermi)
+        printf("# Fermi level %.6f eV (%s)\n", bp->fermi_ev, bp->fermi_source);
+    else
+        printf("# Fermi level: not determined (no gap on the path and none on the card; give --fermi)\n");
+    printf("# label x(1/A) k1 k2 k3 | %d band energies (eV); '|' separates occupied from empty | mark\n",
+           bp->norb);
     for (int i = 0; i < bp->s.nk; i++) {
         char lab[KPATH_LABEL_LEN];
         band_path_label(bp, i, lab, sizeof lab);
@@ -208,8 +216,12 @@ static int run_path(const char *source, const char *spec, int npoints, const dou
         status = err.code == BS_EPARSE || err.code == BS_EUSAGE ? 2 : 1;
         goto done;
     }
-    if (json) status = print_path_json(m, &bp);
-    else { print_path_table(m, &bp); status = 0; }
+    if (json)
+        status = print_path_json(m, &bp);
+    else {
+        print_path_table(m, &bp);
+        status = 0;
+    }
 done:
     band_path_clear(&bp);
     tb_model_free(m);
@@ -218,10 +230,13 @@ done:
 
 int cmd_bands(int argc, char **argv)
 {
-    static const struct option longopts[] = {
-        {"k", required_argument, NULL, 'k'}, {"json", no_argument, NULL, 'j'},
-        {"path", required_argument, NULL, 'p'}, {"points", required_argument, NULL, 'n'},
-        {"fermi", required_argument, NULL, 'f'}, {"help", no_argument, NULL, 'h'}, {NULL, 0, NULL, 0}};
+    static const struct option longopts[] = {{"k", required_argument, NULL, 'k'},
+                                             {"json", no_argument, NULL, 'j'},
+                                             {"path", required_argument, NULL, 'p'},
+                                             {"points", required_argument, NULL, 'n'},
+                                             {"fermi", required_argument, NULL, 'f'},
+                                             {"help", no_argument, NULL, 'h'},
+                                             {NULL, 0, NULL, 0}};
     int json = 0, nk = 0, cap = 0, status = 1, has_fermi = 0;
     long npoints = 200;
     double fermi = 0;
@@ -233,21 +248,41 @@ int cmd_bands(int argc, char **argv)
     int c;
     optind = 1;
     while ((c = getopt_long(argc, argv, "h", longopts, NULL)) != -1) {
-        if (c == 'h') { bands_help(stdout); status = 0; goto done; }
-        if (c == 'j') { json = 1; continue; }
-        if (c == 'p') { path = optarg; continue; }
+        if (c == 'h') {
+            bands_help(stdout);
+            status = 0;
+            goto done;
+        }
+        if (c == 'j') {
+            json = 1;
+            continue;
+        }
+        if (c == 'p') {
+            path = optarg;
+            continue;
+        }
         if (c == 'n' && cli_parse_int(optarg, 2, 1000000, &npoints) == 0) continue;
-        if (c == 'f' && cli_parse_double(optarg, &fermi) == 0) { has_fermi = 1; continue; }
+        if (c == 'f' && cli_parse_double(optarg, &fermi) == 0) {
+            has_fermi = 1;
+            continue;
+        }
         if (c == 'n' || c == 'f') {
             fprintf(stderr, "bandsieve bands: --%s: bad value '%s'\n", c == 'n' ? "points" : "fermi", optarg);
             status = 2;
             goto done;
         }
-        if (c != 'k') { bands_help(stderr); status = 2; goto done; }
+        if (c != 'k') {
+            bands_help(stderr);
+            status = 2;
+            goto done;
+        }
         if (nk == cap) {
             cap = cap ? 2 * cap : 16;
             double *p = realloc(k, 3 * (size_t)cap * sizeof *k);
-            if (!p) { fprintf(stderr, "bandsieve bands: out of memory\n"); goto done; }
+            if (!p) {
+                fprintf(stderr, "bandsieve bands: out of memory\n");
+                goto done;
+            }
             k = p;
         }
         if (cli_parse_vec3(optarg, k + 3 * nk) != 0) {
@@ -259,8 +294,10 @@ int cmd_bands(int argc, char **argv)
          * fewer than ten correct digits (doubles hold 16), and at 1e308 it is not even finite. */
         for (int d = 0; d < 3; d++)
             if (fabs(k[3 * nk + d]) > BANDS_MAX_K) {
-                fprintf(stderr, "bandsieve bands: --k %s: component %d is outside +-%g (reduced coordinates "
-                                "repeat with period 1)\n", optarg, d + 1, BANDS_MAX_K);
+                fprintf(stderr,
+                        "bandsieve bands: --k %s: component %d is outside +-%g (reduced coordinates "
+                        "repeat with period 1)\n",
+                        optarg, d + 1, BANDS_MAX_K);
                 status = 2;
                 goto done;
             }
@@ -281,13 +318,20 @@ int cmd_bands(int argc, char **argv)
         goto done;
     }
     E = malloc((size_t)nk * m->norb * sizeof *E);
-    if (!E) { fprintf(stderr, "bandsieve bands: out of memory\n"); goto done; }
+    if (!E) {
+        fprintf(stderr, "bandsieve bands: out of memory\n");
+        goto done;
+    }
     if (compute_bands(m, nk, k, E, &err) != 0) {
         fprintf(stderr, "bandsieve bands: %s: %s\n", m->id, err.msg);
         goto done;
     }
-    if (json) status = print_json(nk, k, m->norb, E);
-    else { print_table(nk, k, m->norb, E); status = 0; }
+    if (json)
+        status = print_json(nk, k, m->norb, E);
+    else {
+        print_table(nk, k, m->norb, E);
+        status = 0;
+    }
 done:
     free(k);
     free(E);

@@ -42,7 +42,7 @@ typedef struct check_state {
     int n, cap;
     int nvalid, ninvalid, dup_ids, dup_contents, conflicts;
     int mesh;
-    char (*where)[300];   /* per valid entry: where it came from, for duplicate messages */
+    char (*where)[300]; /* per valid entry: where it came from, for duplicate messages */
 } check_state;
 
 static int remember(check_state *cs, const char *id, const char *content, const char *where, double cost)
@@ -68,14 +68,15 @@ static int remember(check_state *cs, const char *id, const char *content, const 
         int cap = cs->cap ? 2 * cs->cap : 256;
         double *c = realloc(cs->cost, (size_t)cap * sizeof *c);
         if (c) cs->cost = c;
-        char (*w)[300] = realloc(cs->where, (size_t)cap * sizeof *w);
+        char(*w)[300] = realloc(cs->where, (size_t)cap * sizeof *w);
         if (w) cs->where = w;
         if (!c || !w) return -1;
         cs->cap = cap;
     }
     snprintf(cs->where[cs->n], sizeof cs->where[cs->n], "%s", where);
     cs->cost[cs->n] = cost;
-    if (cli_strmap_put(&cs->ids, id, cs->n) || (same < 0 && cli_strmap_put(&cs->contents, content, cs->n))) return -1;
+    if (cli_strmap_put(&cs->ids, id, cs->n) || (same < 0 && cli_strmap_put(&cs->contents, content, cs->n)))
+        return -1;
     cs->n++;
     return 0;
 }
@@ -171,8 +172,10 @@ static int calibrate(const char *cat_path, double *sec_per_unit, int *nrows, bs_
     int rc = cat_open(cat_path, CAT_RO, &cat, err);
     calib c = {NULL, 0, 0};
     if (rc == 0)
-        rc = cat_query(cat, "SELECT m.dimension, m.norb, m.nr, r.mesh, r.seconds FROM results r JOIN materials m"
-                            " ON m.material_id = r.material_id WHERE r.status = 'ok'", calib_row, &c, err);
+        rc = cat_query(cat,
+                       "SELECT m.dimension, m.norb, m.nr, r.mesh, r.seconds FROM results r JOIN materials m"
+                       " ON m.material_id = r.material_id WHERE r.status = 'ok'",
+                       calib_row, &c, err);
     cat_close(cat, NULL);
     if (rc == 0 && c.n > 0) {
         qsort(c.ratio, (size_t)c.n, sizeof *c.ratio, by_double);
@@ -194,18 +197,22 @@ static void report_cost(check_state *cs, int ranks, double sec_per_unit, int nca
     double span = pl_makespan(cs->cost, cs->n, nworkers);
     double balance = span > 0 ? total / (nworkers * span) : 1;
     printf("estimate for %d rank(s) (%d computing): total %.3g cost units, longest worker %.3g "
-           "(work balance %.0f%%; the largest entry is %.1f%% of the total)\n", ranks, nworkers, total, span,
-           100 * balance, total > 0 ? 100 * largest / total : 0);
+           "(work balance %.0f%%; the largest entry is %.1f%% of the total)\n",
+           ranks, nworkers, total, span, 100 * balance, total > 0 ? 100 * largest / total : 0);
     if (sec_per_unit > 0)
-        printf("estimated wall time: %.3g s (%.2f h), from %.3g s per unit, the median of %d earlier ok rows\n",
-               span * sec_per_unit, span * sec_per_unit / 3600, sec_per_unit, ncal);
+        printf(
+            "estimated wall time: %.3g s (%.2f h), from %.3g s per unit, the median of %d earlier ok rows\n",
+            span * sec_per_unit, span * sec_per_unit / 3600, sec_per_unit, ncal);
 }
 
 int cmd_check(int argc, char **argv)
 {
-    static const struct option opts[] = {{"ranks", required_argument, NULL, 'P'}, {"mesh", required_argument, NULL, 'm'},
-                                         {"catalogue", required_argument, NULL, 'c'}, {"list", required_argument, NULL, 'l'},
-                                         {"help", no_argument, NULL, 'h'}, {NULL, 0, NULL, 0}};
+    static const struct option opts[] = {{"ranks", required_argument, NULL, 'P'},
+                                         {"mesh", required_argument, NULL, 'm'},
+                                         {"catalogue", required_argument, NULL, 'c'},
+                                         {"list", required_argument, NULL, 'l'},
+                                         {"help", no_argument, NULL, 'h'},
+                                         {NULL, 0, NULL, 0}};
     cardlist inputs = {0};
     const char *cat = NULL;
     long ranks = 1, mesh = 0;
@@ -227,15 +234,22 @@ int cmd_check(int argc, char **argv)
                 status = 2;
             }
             break;
-        case 'c': cat = optarg; break;
+        case 'c':
+            cat = optarg;
+            break;
         case 'l':
             if (cardlist_add_file(&inputs, optarg, &err) != 0) {
                 fprintf(stderr, "bandsieve check: %s\n", err.msg);
                 status = 2;
             }
             break;
-        case 'h': check_help(stdout); status = 0; break;
-        default: check_help(stderr); status = 2;
+        case 'h':
+            check_help(stdout);
+            status = 0;
+            break;
+        default:
+            check_help(stderr);
+            status = 2;
         }
     }
     for (int i = optind; status < 0 && i < argc; i++)
@@ -257,7 +271,8 @@ int cmd_check(int argc, char **argv)
     cs.mesh = (int)mesh;
     int rc = 0;
     for (size_t i = 0; rc == 0 && i < inputs.n; i++)
-        rc = cardlist_is_hdf5(inputs.path[i]) ? check_set(&cs, inputs.path[i]) : check_card(&cs, inputs.path[i]);
+        rc = cardlist_is_hdf5(inputs.path[i]) ? check_set(&cs, inputs.path[i])
+                                              : check_card(&cs, inputs.path[i]);
     double spu = 0;
     int ncal = 0;
     if (rc == 0 && cat && calibrate(cat, &spu, &ncal, &err) != 0) {
@@ -265,8 +280,9 @@ int cmd_check(int argc, char **argv)
         rc = -2;
     }
     if (rc == 0) {
-        printf("%d valid, %d invalid; %d repeated id(s) (%d with different content), %d repeated content(s)\n",
-               cs.nvalid, cs.ninvalid, cs.dup_ids, cs.conflicts, cs.dup_contents);
+        printf(
+            "%d valid, %d invalid; %d repeated id(s) (%d with different content), %d repeated content(s)\n",
+            cs.nvalid, cs.ninvalid, cs.dup_ids, cs.conflicts, cs.dup_contents);
         report_cost(&cs, (int)ranks, spu, ncal);
         if (cat && ncal == 0) printf("no ok rows in %s to calibrate seconds from\n", cat);
     } else if (rc == -1) {

@@ -28,10 +28,13 @@ static void demo_help(FILE *out)
 
 int cmd_demo_set(int argc, char **argv)
 {
-    static const struct option longopts[] = {
-        {"output", required_argument, NULL, 'o'}, {"count", required_argument, NULL, 'n'},
-        {"seed", required_argument, NULL, 's'}, {"force", no_argument, NULL, 'f'},
-        {"families", no_argument, NULL, 'F'}, {"help", no_argument, NULL, 'h'}, {NULL, 0, NULL, 0}};
+    static const struct option longopts[] = {{"output", required_argument, NULL, 'o'},
+                                             {"count", required_argument, NULL, 'n'},
+                                             {"seed", required_argument, NULL, 's'},
+                                             {"force", no_argument, NULL, 'f'},
+                                             {"families", no_argument, NULL, 'F'},
+                                             {"help", no_argument, NULL, 'h'},
+                                             {NULL, 0, NULL, 0}};
     int families = 0;
     const char *path = NULL;
     long count = 300, seed = 2026;
@@ -39,17 +42,34 @@ int cmd_demo_set(int argc, char **argv)
     optind = 1;
     while ((c = getopt_long(argc, argv, "o:h", longopts, NULL)) != -1) {
         switch (c) {
-        case 'h': demo_help(stdout); return 0;
-        case 'o': path = optarg; break;
-        case 'f': force = 1; break;
-        case 'F': families = 1; break;
+        case 'h':
+            demo_help(stdout);
+            return 0;
+        case 'o':
+            path = optarg;
+            break;
+        case 'f':
+            force = 1;
+            break;
+        case 'F':
+            families = 1;
+            break;
         case 'n':
-            if (cli_parse_int(optarg, 12, 1000000, &count)) { fprintf(stderr, "bandsieve demo-set: --count expects 12..1000000, got '%s'\n", optarg); return 2; }
+            if (cli_parse_int(optarg, 12, 1000000, &count)) {
+                fprintf(stderr, "bandsieve demo-set: --count expects 12..1000000, got '%s'\n", optarg);
+                return 2;
+            }
             break;
         case 's':
-            if (cli_parse_int(optarg, 0, 1L << 62, &seed)) { fprintf(stderr, "bandsieve demo-set: --seed expects a non-negative integer, got '%s'\n", optarg); return 2; }
+            if (cli_parse_int(optarg, 0, 1L << 62, &seed)) {
+                fprintf(stderr, "bandsieve demo-set: --seed expects a non-negative integer, got '%s'\n",
+                        optarg);
+                return 2;
+            }
             break;
-        default: demo_help(stderr); return 2;
+        default:
+            demo_help(stderr);
+            return 2;
         }
     }
     if (!path || optind != argc) {
@@ -85,8 +105,14 @@ static void models_help(FILE *out)
 
 int cmd_models(int argc, char **argv)
 {
-    if (argc > 1 && (!strcmp(argv[1], "--help") || !strcmp(argv[1], "-h"))) { models_help(stdout); return 0; }
-    if (argc > 2 || (argc == 2 && argv[1][0] == '-')) { models_help(stderr); return 2; }
+    if (argc > 1 && (!strcmp(argv[1], "--help") || !strcmp(argv[1], "-h"))) {
+        models_help(stdout);
+        return 0;
+    }
+    if (argc > 2 || (argc == 2 && argv[1][0] == '-')) {
+        models_help(stderr);
+        return 2;
+    }
     int n = 0;
     const lm_info *all = lm_catalogue(&n);
     int shown = 0;
@@ -100,6 +126,9 @@ int cmd_models(int argc, char **argv)
         for (int p = 0; p < m->nparam; p++)
             printf("    %-10s %10g   %s\n", m->params[p].key, m->params[p].def, m->params[p].meaning);
     }
-    if (argc == 2 && !shown) { fprintf(stderr, "bandsieve models: no built-in model '%s'\n", argv[1]); return 1; }
+    if (argc == 2 && !shown) {
+        fprintf(stderr, "bandsieve models: no built-in model '%s'\n", argv[1]);
+        return 1;
+    }
     return 0;
 }

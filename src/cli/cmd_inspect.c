@@ -15,7 +15,8 @@ static void inspect_help(FILE *out)
 {
     fprintf(out,
             "usage: bandsieve inspect SOURCE [--json] [--mesh N] [--max-seconds S] [--flows] [--transport]\n"
-            "                         [--surfaces] [--magnetism M] [--position-tol A] [--symmetry-tol T] [--seed S]\n\n"
+            "                         [--surfaces] [--magnetism M] [--position-tol A] [--symmetry-tol T] "
+            "[--seed S]\n\n"
             "Diagnoses one material: gaps, time reversal and inversion, Z2 from parities and from\n"
             "the Wannier-centre flow, Chern numbers, Weyl nodes and nodal lines, and a class with a\n"
             "confidence and a one-line reason.\n"
@@ -53,7 +54,8 @@ static void print_indices(const char *label, res_status status, const int *v, in
         printf("-\n");
         return;
     }
-    for (int i = 0; i < (dim == 2 ? 1 : 4); i++) printf(i == 1 ? ";%d" : "%d", v[i]);
+    for (int i = 0; i < (dim == 2 ? 1 : 4); i++)
+        printf(i == 1 ? ";%d" : "%d", v[i]);
     printf("\n");
 }
 
@@ -65,7 +67,8 @@ static void print_transport(const res_transport *t)
     printf("  anomalous Hall        xy %.6g", t->ahc[0][0]);
     if (t->dim == 3) printf(", yz %.6g, zx %.6g", t->ahc[0][1], t->ahc[0][2]);
     printf(" %s (error %.2g) at E_F = %.4f eV\n", t->ahc_units, err, t->fermi_ev[0]);
-    if (t->has_shc) printf("  spin Hall (s_z, xy)   %.6g %s (error %.2g)\n", t->shc[0], t->shc_units, t->shc_err[0]);
+    if (t->has_shc)
+        printf("  spin Hall (s_z, xy)   %.6g %s (error %.2g)\n", t->shc[0], t->shc_units, t->shc_err[0]);
 }
 
 static void print_surface(const res_surface *s)
@@ -115,13 +118,15 @@ static void print_report(const res_diag *r)
     if (r->z2_note[0]) printf("  Z2 note               %s\n", r->z2_note);
     if (r->ntrim > 0) {
         printf("  parity products       ");
-        for (int t = 0; t < r->ntrim; t++) printf("%c", r->par_delta[t] > 0 ? '+' : '-');
+        for (int t = 0; t < r->ntrim; t++)
+            printf("%c", r->par_delta[t] > 0 ? '+' : '-');
         printf("   (TRIM n1 + 2 n2 + 4 n3 order)\n");
     }
     if (r->spacegroup > 0)
-        printf("  crystal symmetry      sites in space group %d, %d operations kept%s\n", r->spacegroup, r->symmetry_ops,
-               r->crystal_symmetrised ? " (restored by averaging a noisy fit)" : "");
-    if (r->crystal_symmetrised) printf("  crystal breaking      <= %.3g eV (bound)\n", r->crystal_breaking_ev);
+        printf("  crystal symmetry      sites in space group %d, %d operations kept%s\n", r->spacegroup,
+               r->symmetry_ops, r->crystal_symmetrised ? " (restored by averaging a noisy fit)" : "");
+    if (r->crystal_symmetrised)
+        printf("  crystal breaking      <= %.3g eV (bound)\n", r->crystal_breaking_ev);
     if (r->gap_symmetry[0]) printf("  at the gap point      %s\n", r->gap_symmetry);
     if (r->z4 >= 0) printf("  Z4 indicator          %d\n", r->z4);
     if (r->mirror_chern_status != RES_NA)
@@ -130,7 +135,8 @@ static void print_report(const res_diag *r)
     if (res_chern_shown(r, &chern)) printf("  Chern number          %d\n", chern);
     if (res_plane_chern_shown(r)) {
         printf("  plane Chern numbers   ");
-        for (int p = 0; p < 6; p++) printf("%d ", r->plane_chern[p]);
+        for (int p = 0; p < 6; p++)
+            printf("%d ", r->plane_chern[p]);
         printf(" (k1=0, k1=1/2, k2=0, k2=1/2, k3=0, k3=1/2)\n");
     }
     if (r->nnodes > 0) {
@@ -147,21 +153,28 @@ static void print_report(const res_diag *r)
     if (r->has_transport) print_transport(&r->transport);
     if (r->has_surface) print_surface(&r->surface);
     if (r->nodal_line)
-        printf("  nodal line            %d points, extent %.3f (reduced)\n", r->nodal_points, r->nodal_extent);
+        printf("  nodal line            %d points, extent %.3f (reduced)\n", r->nodal_points,
+               r->nodal_extent);
     printf("  mesh %d, %lld k-points, %.2f s\n", r->mesh, r->nk_evaluated, r->seconds);
 }
 
 int cmd_inspect(int argc, char **argv)
 {
-    static const struct option longopts[] = {
-        {"json", no_argument, NULL, 'j'}, {"mesh", required_argument, NULL, 'm'},
-        {"max-seconds", required_argument, NULL, 't'}, {"flows", no_argument, NULL, 'f'},
-        {"seed", required_argument, NULL, 's'}, {"symmetry-tol", required_argument, NULL, 'y'},
-        {"transport", no_argument, NULL, 'a'}, {"fermi", required_argument, NULL, 'e'},
-        {"scan", required_argument, NULL, 'n'}, {"eta", required_argument, NULL, 'E'},
-        {"surfaces", no_argument, NULL, 'S'},
-        {"magnetism", required_argument, NULL, 'M'}, {"position-tol", required_argument, NULL, 'P'},
-        {"help", no_argument, NULL, 'h'}, {NULL, 0, NULL, 0}};
+    static const struct option longopts[] = {{"json", no_argument, NULL, 'j'},
+                                             {"mesh", required_argument, NULL, 'm'},
+                                             {"max-seconds", required_argument, NULL, 't'},
+                                             {"flows", no_argument, NULL, 'f'},
+                                             {"seed", required_argument, NULL, 's'},
+                                             {"symmetry-tol", required_argument, NULL, 'y'},
+                                             {"transport", no_argument, NULL, 'a'},
+                                             {"fermi", required_argument, NULL, 'e'},
+                                             {"scan", required_argument, NULL, 'n'},
+                                             {"eta", required_argument, NULL, 'E'},
+                                             {"surfaces", no_argument, NULL, 'S'},
+                                             {"magnetism", required_argument, NULL, 'M'},
+                                             {"position-tol", required_argument, NULL, 'P'},
+                                             {"help", no_argument, NULL, 'h'},
+                                             {NULL, 0, NULL, 0}};
     int json = 0, c;
     pl_diag_opts po;
     memset(&po, 0, sizeof po);
@@ -174,32 +187,60 @@ int cmd_inspect(int argc, char **argv)
         long v;
         double d;
         switch (c) {
-        case 'h': inspect_help(stdout); return 0;
-        case 'j': json = 1; break;
-        case 'f': opts->want_flows = 1; break;
+        case 'h':
+            inspect_help(stdout);
+            return 0;
+        case 'j':
+            json = 1;
+            break;
+        case 'f':
+            opts->want_flows = 1;
+            break;
         case 'm':
-            if (cli_parse_int(optarg, 4, 4096, &v)) { fprintf(stderr, "bandsieve inspect: --mesh expects an integer 4..4096, got '%s'\n", optarg); return 2; }
+            if (cli_parse_int(optarg, 4, 4096, &v)) {
+                fprintf(stderr, "bandsieve inspect: --mesh expects an integer 4..4096, got '%s'\n", optarg);
+                return 2;
+            }
             opts->mesh = (int)v;
             break;
         case 't':
-            if (cli_parse_double(optarg, &d) || d <= 0) { fprintf(stderr, "bandsieve inspect: --max-seconds expects a positive number, got '%s'\n", optarg); return 2; }
+            if (cli_parse_double(optarg, &d) || d <= 0) {
+                fprintf(stderr, "bandsieve inspect: --max-seconds expects a positive number, got '%s'\n",
+                        optarg);
+                return 2;
+            }
             opts->max_seconds = d;
             break;
-        case 'a': po.transport = 1; break;
-        case 'S': po.surfaces = 1; break;
+        case 'a':
+            po.transport = 1;
+            break;
+        case 'S':
+            po.surfaces = 1;
+            break;
         case 'e':
-            if (cli_parse_double(optarg, &d)) { fprintf(stderr, "bandsieve inspect: --fermi expects a number (eV), got '%s'\n", optarg); return 2; }
+            if (cli_parse_double(optarg, &d)) {
+                fprintf(stderr, "bandsieve inspect: --fermi expects a number (eV), got '%s'\n", optarg);
+                return 2;
+            }
             topts->has_fermi = 1;
             topts->fermi_ev = d;
             break;
         case 'E':
-            if (cli_parse_double(optarg, &d) || d < 0) { fprintf(stderr, "bandsieve inspect: --eta expects a non-negative number (eV), got '%s'\n", optarg); return 2; }
+            if (cli_parse_double(optarg, &d) || d < 0) {
+                fprintf(stderr, "bandsieve inspect: --eta expects a non-negative number (eV), got '%s'\n",
+                        optarg);
+                return 2;
+            }
             topts->eta_ev = d;
             break;
         case 'n': {
             double v3[3];
-            if (cli_parse_vec3(optarg, v3) || v3[2] < 2 || v3[2] > TR_MAX_FERMI - 1 || v3[2] != (int)v3[2] || v3[1] <= v3[0]) {
-                fprintf(stderr, "bandsieve inspect: --scan expects LO,HI,N (eV offsets from the Fermi energy, 2 <= N <= %d), got '%s'\n", TR_MAX_FERMI - 1, optarg);
+            if (cli_parse_vec3(optarg, v3) || v3[2] < 2 || v3[2] > TR_MAX_FERMI - 1 || v3[2] != (int)v3[2] ||
+                v3[1] <= v3[0]) {
+                fprintf(stderr,
+                        "bandsieve inspect: --scan expects LO,HI,N (eV offsets from the Fermi energy, 2 <= N "
+                        "<= %d), got '%s'\n",
+                        TR_MAX_FERMI - 1, optarg);
                 return 2;
             }
             topts->scan_lo_ev = v3[0];
@@ -208,24 +249,42 @@ int cmd_inspect(int argc, char **argv)
             break;
         }
         case 'y':
-            if (cli_parse_double(optarg, &d) || d <= 0 || d >= 1) { fprintf(stderr, "bandsieve inspect: --symmetry-tol expects a number in (0,1), got '%s'\n", optarg); return 2; }
+            if (cli_parse_double(optarg, &d) || d <= 0 || d >= 1) {
+                fprintf(stderr, "bandsieve inspect: --symmetry-tol expects a number in (0,1), got '%s'\n",
+                        optarg);
+                return 2;
+            }
             opts->symmetry_tol = d;
             break;
         case 'M': {
             int mag = tb_magnetism_parse(optarg);
-            if (mag < 0) { fprintf(stderr, "bandsieve inspect: --magnetism expects none, magnetic or unknown, got '%s'\n", optarg); return 2; }
+            if (mag < 0) {
+                fprintf(stderr,
+                        "bandsieve inspect: --magnetism expects none, magnetic or unknown, got '%s'\n",
+                        optarg);
+                return 2;
+            }
             opts->magnetism = 1 + mag;
             break;
         }
         case 'P':
-            if (cli_parse_double(optarg, &d) || d <= 0 || d >= 1) { fprintf(stderr, "bandsieve inspect: --position-tol expects Angstrom in (0,1), got '%s'\n", optarg); return 2; }
+            if (cli_parse_double(optarg, &d) || d <= 0 || d >= 1) {
+                fprintf(stderr, "bandsieve inspect: --position-tol expects Angstrom in (0,1), got '%s'\n",
+                        optarg);
+                return 2;
+            }
             opts->pos_tol_ang = d;
             break;
         case 's':
-            if (cli_parse_int(optarg, 1, 1L << 30, &v)) { fprintf(stderr, "bandsieve inspect: --seed expects a positive integer, got '%s'\n", optarg); return 2; }
+            if (cli_parse_int(optarg, 1, 1L << 30, &v)) {
+                fprintf(stderr, "bandsieve inspect: --seed expects a positive integer, got '%s'\n", optarg);
+                return 2;
+            }
             opts->seed = (unsigned long long)v;
             break;
-        default: inspect_help(stderr); return 2;
+        default:
+            inspect_help(stderr);
+            return 2;
         }
     }
     if (!po.transport && (topts->has_fermi || topts->nscan > 0 || topts->eta_ev > 0)) {
@@ -246,8 +305,8 @@ int cmd_inspect(int argc, char **argv)
     }
     int max_mesh = m->dim == 3 ? BS_MAX_MESH_3D : BS_MAX_MESH_2D;
     if (opts->mesh > max_mesh) {
-        fprintf(stderr, "bandsieve inspect: --mesh %d is above %d, the largest mesh for a %dD material\n", opts->mesh,
-                max_mesh, m->dim);
+        fprintf(stderr, "bandsieve inspect: --mesh %d is above %d, the largest mesh for a %dD material\n",
+                opts->mesh, max_mesh, m->dim);
         tb_model_free(m);
         return 2;
     }
@@ -259,8 +318,10 @@ int cmd_inspect(int argc, char **argv)
         status = 1;
     } else if (json) {
         char *text = res_to_text(&r, opts->want_flows);
-        if (text) printf("%s\n", text);
-        else status = 1;
+        if (text)
+            printf("%s\n", text);
+        else
+            status = 1;
         cJSON_free(text);
     } else {
         print_report(&r);

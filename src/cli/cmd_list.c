@@ -31,7 +31,8 @@ static void list_table(const ms_set *set)
 {
     printf("%s: %d material(s)%s\n", ms_path(set), ms_count(set), ms_invented(set) ? ", INVENTED data" : "");
     if (ms_description(set)[0]) printf("description: %s\n", ms_description(set));
-    printf("%-32s %3s %6s %7s %5s %4s %-7s %12s\n", "id", "dim", "states", "R", "occ", "spin", "status", "cost");
+    printf("%-32s %3s %6s %7s %5s %4s %-7s %12s\n", "id", "dim", "states", "R", "occ", "spin", "status",
+           "cost");
     for (int i = 0; i < ms_count(set); i++) {
         const ms_entry *e = ms_entry_at(set, i);
         printf("%-32s %3d %6d %7d %5d %4s %-7s %12.4g\n", e->id, e->dim, e->norb, e->nR, e->nocc,
@@ -40,7 +41,8 @@ static void list_table(const ms_set *set)
 }
 
 /* Members of family `name`: count and value range. */
-static void family_stats(const ms_set *set, const char *name, int *n, double *lo, double *hi, const ms_entry **first)
+static void family_stats(const ms_set *set, const char *name, int *n, double *lo, double *hi,
+                         const ms_entry **first)
 {
     *n = 0;
     *first = NULL;
@@ -138,9 +140,15 @@ int cmd_list(int argc, char **argv)
     optind = 1;
     while ((c = getopt_long(argc, argv, "h", opts, NULL)) != -1) {
         switch (c) {
-        case 'j': json = 1; break;
-        case 'h': list_help(stdout); return 0;
-        default: list_help(stderr); return 2;
+        case 'j':
+            json = 1;
+            break;
+        case 'h':
+            list_help(stdout);
+            return 0;
+        default:
+            list_help(stderr);
+            return 2;
         }
     }
     if (optind != argc - 1) {
@@ -156,7 +164,8 @@ int cmd_list(int argc, char **argv)
         return 1;
     }
     int rc = 0;
-    if (json) rc = list_json(set);
+    if (json)
+        rc = list_json(set);
     else {
         list_table(set);
         list_families(set);

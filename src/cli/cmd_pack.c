@@ -18,31 +18,30 @@
 
 static void pack_help(FILE *out)
 {
-    fprintf(out,
-            "usage: bandsieve pack -o SET.h5 [options] (CARD.json | FOLDER | --list FILE) ...\n\n"
-            "Reads each material card and its hopping table, validates it (hermiticity, counts,\n"
-            "ranges) and stores it in the material set SET.h5 (HDF5; layout in db/material-set.md),\n"
-            "with the card itself and the entry's content hash (what determines its answer).\n"
-            "A FOLDER gives every *.json in it; --list FILE names cards one per line (relative to\n"
-            "the list's folder; blank lines and # comments skipped).\n\n"
-            "When SET.h5 exists the cards are added to it: new ids are appended, an id whose\n"
-            "content is unchanged is kept (its card text refreshed), and an id whose content\n"
-            "differs is replaced only with --force (otherwise reported, and nothing is written).\n"
-            "The same id given twice with the same content is stored once; with different\n"
-            "contents it is an error; two ids with the same content are reported.\n"
-            "A card that fails is reported on stderr with its message; then nothing is written and\n"
-            "the exit status is 1, unless --keep-broken stores it as a broken entry (the model as\n"
-            "given when the card itself could be read, else only the error), which `screen` reports\n"
-            "as invalid.\n\n"
-            "  -o, --output SET.h5   the set to write or add to (replaced only when packing succeeds)\n"
-            "  --list FILE           read card paths from FILE (repeatable)\n"
-            "  --force               replace entries whose content changed\n"
-            "  --keep-broken         store failing cards as broken entries instead of failing\n"
-            "  --description TEXT    free-text description stored in the set (default: the old one)\n"
-            "  --invented            mark the set's data as invented (demonstration data)\n"
-            "  -h, --help            this text\n\n"
-            "Exit status: 0 written, 1 a card failed or a changed entry needs --force (nothing\n"
-            "written), 2 usage.\n");
+    fprintf(out, "usage: bandsieve pack -o SET.h5 [options] (CARD.json | FOLDER | --list FILE) ...\n\n"
+                 "Reads each material card and its hopping table, validates it (hermiticity, counts,\n"
+                 "ranges) and stores it in the material set SET.h5 (HDF5; layout in db/material-set.md),\n"
+                 "with the card itself and the entry's content hash (what determines its answer).\n"
+                 "A FOLDER gives every *.json in it; --list FILE names cards one per line (relative to\n"
+                 "the list's folder; blank lines and # comments skipped).\n\n"
+                 "When SET.h5 exists the cards are added to it: new ids are appended, an id whose\n"
+                 "content is unchanged is kept (its card text refreshed), and an id whose content\n"
+                 "differs is replaced only with --force (otherwise reported, and nothing is written).\n"
+                 "The same id given twice with the same content is stored once; with different\n"
+                 "contents it is an error; two ids with the same content are reported.\n"
+                 "A card that fails is reported on stderr with its message; then nothing is written and\n"
+                 "the exit status is 1, unless --keep-broken stores it as a broken entry (the model as\n"
+                 "given when the card itself could be read, else only the error), which `screen` reports\n"
+                 "as invalid.\n\n"
+                 "  -o, --output SET.h5   the set to write or add to (replaced only when packing succeeds)\n"
+                 "  --list FILE           read card paths from FILE (repeatable)\n"
+                 "  --force               replace entries whose content changed\n"
+                 "  --keep-broken         store failing cards as broken entries instead of failing\n"
+                 "  --description TEXT    free-text description stored in the set (default: the old one)\n"
+                 "  --invented            mark the set's data as invented (demonstration data)\n"
+                 "  -h, --help            this text\n\n"
+                 "Exit status: 0 written, 1 a card failed or a changed entry needs --force (nothing\n"
+                 "written), 2 usage.\n");
 }
 
 /* The card's file name without folder and ".json", with characters a material id cannot hold
@@ -74,8 +73,8 @@ static void peek_id(const char *path, char *id, size_t cap)
     if (!fp) return;
     char *text = NULL;
     long size = fseek(fp, 0, SEEK_END) == 0 ? ftell(fp) : -1;
-    if (size > 0 && size < (64L << 20) && fseek(fp, 0, SEEK_SET) == 0 && (text = calloc((size_t)size + 1, 1)) &&
-        fread(text, 1, (size_t)size, fp) == (size_t)size) {
+    if (size > 0 && size < (64L << 20) && fseek(fp, 0, SEEK_SET) == 0 &&
+        (text = calloc((size_t)size + 1, 1)) && fread(text, 1, (size_t)size, fp) == (size_t)size) {
         cJSON *j = cJSON_Parse(text);
         const char *v = cJSON_GetStringValue(cJSON_GetObjectItemCaseSensitive(j, "id"));
         if (v && card_id_ok(v)) snprintf(id, cap, "%s", v);
@@ -86,11 +85,11 @@ static void peek_id(const char *path, char *id, size_t cap)
 }
 
 typedef struct pack_state {
-    ms_set *set;          /* the writer */
-    const ms_set *old;    /* the existing set, or NULL */
+    ms_set *set;       /* the writer */
+    const ms_set *old; /* the existing set, or NULL */
     int keep, force;
-    cli_strmap ids;           /* ids written from the inputs -> input number */
-    cli_strmap contents;      /* contents written -> input number */
+    cli_strmap ids;      /* ids written from the inputs -> input number */
+    cli_strmap contents; /* contents written -> input number */
     const cardlist *cards;
     int failed, conflicts, nbroken, added, replaced, unchanged, dup_ids, dup_contents;
 } pack_state;
@@ -129,16 +128,19 @@ static int decide(pack_state *ps, int k, const tb_model *m, const char *content)
         bs_err e;
         bs_err_clear(&e);
         /* The earlier input with this id: compare by content. */
-        if (card_read(ps->cards->path[prev], &pm, &e) == 0) tb_content_hash(pm, other);
-        else other[0] = '\0';
+        if (card_read(ps->cards->path[prev], &pm, &e) == 0)
+            tb_content_hash(pm, other);
+        else
+            other[0] = '\0';
         tb_model_free(pm);
         if (!strcmp(other, content)) {
-            fprintf(stderr, "bandsieve pack: %s: id '%s' already given by %s with the same content; stored once\n",
+            fprintf(stderr,
+                    "bandsieve pack: %s: id '%s' already given by %s with the same content; stored once\n",
                     card, m->id, ps->cards->path[prev]);
             return 0;
         }
-        fprintf(stderr, "bandsieve pack: %s: id '%s' already given by %s with different content\n", card, m->id,
-                ps->cards->path[prev]);
+        fprintf(stderr, "bandsieve pack: %s: id '%s' already given by %s with different content\n", card,
+                m->id, ps->cards->path[prev]);
         return -1;
     }
     int same = cli_strmap_get(&ps->contents, content);
@@ -164,8 +166,10 @@ static int decide(pack_state *ps, int k, const tb_model *m, const char *content)
         ps->replaced++;
         return 1;
     }
-    fprintf(stderr, "bandsieve pack: %s: '%s' is in %s with different content (%.12s..., now %.12s...); "
-            "--force replaces it\n", card, m->id, ms_path(ps->old), oldc, content);
+    fprintf(stderr,
+            "bandsieve pack: %s: '%s' is in %s with different content (%.12s..., now %.12s...); "
+            "--force replaces it\n",
+            card, m->id, ms_path(ps->old), oldc, content);
     return -1;
 }
 
@@ -186,7 +190,8 @@ static void pack_one(pack_state *ps, int k)
         int d = decide(ps, k, m, content);
         if (d < 0) ps->conflicts++;
         if (d > 0) rc = ms_add(ps->set, m, &err);
-        if (d > 0 && rc == 0 && (cli_strmap_put(&ps->ids, m->id, k) || cli_strmap_put(&ps->contents, content, k)))
+        if (d > 0 && rc == 0 &&
+            (cli_strmap_put(&ps->ids, m->id, k) || cli_strmap_put(&ps->contents, content, k)))
             rc = bs_fail(&err, BS_ENOMEM, "out of memory");
     }
     tb_model_free(m);
@@ -237,19 +242,33 @@ static int parse_args(int argc, char **argv, const char **output, const char **d
     optind = 1;
     while ((c = getopt_long(argc, argv, "o:h", opts, NULL)) != -1) {
         switch (c) {
-        case 'o': *output = optarg; break;
-        case 'k': *keep = 1; break;
-        case 'd': *description = optarg; break;
-        case 'i': *invented = 1; break;
-        case 'f': *force = 1; break;
+        case 'o':
+            *output = optarg;
+            break;
+        case 'k':
+            *keep = 1;
+            break;
+        case 'd':
+            *description = optarg;
+            break;
+        case 'i':
+            *invented = 1;
+            break;
+        case 'f':
+            *force = 1;
+            break;
         case 'l':
             if (cardlist_add_file(cards, optarg, &err) != 0) {
                 fprintf(stderr, "bandsieve pack: %s\n", err.msg);
                 return 2;
             }
             break;
-        case 'h': pack_help(stdout); return 0;
-        default: pack_help(stderr); return 2;
+        case 'h':
+            pack_help(stdout);
+            return 0;
+        default:
+            pack_help(stderr);
+            return 2;
         }
     }
     for (int i = optind; i < argc; i++)
@@ -284,7 +303,8 @@ int cmd_pack(int argc, char **argv)
     if (stat(output, &out_st) == 0) {
         for (size_t i = 0; i < cards.n && status == 0; i++) {
             struct stat in_st;
-            if (stat(cards.path[i], &in_st) == 0 && in_st.st_dev == out_st.st_dev && in_st.st_ino == out_st.st_ino) {
+            if (stat(cards.path[i], &in_st) == 0 && in_st.st_dev == out_st.st_dev &&
+                in_st.st_ino == out_st.st_ino) {
                 fprintf(stderr, "bandsieve pack: output %s is also an input card\n", output);
                 status = 2;
             }
@@ -299,7 +319,10 @@ int cmd_pack(int argc, char **argv)
     snprintf(partial, sizeof partial, "%s" MS_PARTIAL_SUFFIX, output);
     if (status == 0) cli_remove_on_signal(partial);
     if (status == 0 && (ms_create(output, &set, &err) != 0 ||
-                        ms_set_meta(set, description ? description : old ? ms_description(old) : "",
+                        ms_set_meta(set,
+                                    description ? description
+                                    : old       ? ms_description(old)
+                                                : "",
                                     invented || (old && ms_invented(old)), &err) != 0)) {
         fprintf(stderr, "bandsieve pack: %s\n", err.msg);
         status = 1;
@@ -310,7 +333,8 @@ int cmd_pack(int argc, char **argv)
         fprintf(stderr, "bandsieve pack: %s\n", err.msg);
         status = 1;
     }
-    for (size_t k = 0; status == 0 && k < cards.n; k++) pack_one(&ps, (int)k);
+    for (size_t k = 0; status == 0 && k < cards.n; k++)
+        pack_one(&ps, (int)k);
     if (status == 0 && (ps.failed || ps.conflicts)) {
         fprintf(stderr, "bandsieve pack: %d card(s) failed, %d conflict(s); %s not written%s\n", ps.failed,
                 ps.conflicts, output, ps.failed ? " (--keep-broken stores failing cards)" : "");
@@ -324,8 +348,9 @@ int cmd_pack(int argc, char **argv)
     }
     if (status == 0)
         printf("%s: %d material(s): %d added, %d replaced, %d unchanged, %d kept from before, %d broken; "
-               "%d repeated id(s), %d repeated content(s)\n", output, ms_count(set), ps.added, ps.replaced,
-               ps.unchanged, nkept, ps.nbroken, ps.dup_ids, ps.dup_contents);
+               "%d repeated id(s), %d repeated content(s)\n",
+               output, ms_count(set), ps.added, ps.replaced, ps.unchanged, nkept, ps.nbroken, ps.dup_ids,
+               ps.dup_contents);
     ms_free(set);
     cli_strmap_clear(&ps.ids);
     cli_strmap_clear(&ps.contents);

@@ -82,8 +82,10 @@ static cJSON *invariants_json(const res_diag *d)
     } else {
         cJSON_AddNullToObject(o, "z2");
     }
-    if (d->chern_status == RES_DONE && d->dim == 2) cJSON_AddNumberToObject(o, "chern", d->chern);
-    else cJSON_AddNullToObject(o, "chern");
+    if (d->chern_status == RES_DONE && d->dim == 2)
+        cJSON_AddNumberToObject(o, "chern", d->chern);
+    else
+        cJSON_AddNullToObject(o, "chern");
     if (d->chern_status == RES_DONE && d->dim == 3)
         cJSON_AddItemToObject(o, "plane_chern", cJSON_CreateIntArray(d->plane_chern, 6));
     cJSON_AddNumberToObject(o, "n_weyl", d->nnodes);
@@ -100,8 +102,10 @@ cJSON *path_to_json(const pp_result *r, const char *source, const char *unit, in
     cJSON_AddNumberToObject(p, "from", r->x_lo);
     cJSON_AddNumberToObject(p, "to", r->x_hi);
     cJSON_AddNumberToObject(p, "dimension", r->dim);
-    cJSON_AddStringToObject(p, "interpolation", members ? "linear in H(R) between members (virtual-crystal "
-                            "idea); for pressure or strain series a model of the path" : "none (built-in model)");
+    cJSON_AddStringToObject(p, "interpolation",
+                            members ? "linear in H(R) between members (virtual-crystal "
+                                      "idea); for pressure or strain series a model of the path"
+                                    : "none (built-in model)");
     cJSON *s = cJSON_AddArrayToObject(j, "samples");
     for (int i = 0; i < r->nsamples; i++) {
         cJSON *o = cJSON_CreateObject();
@@ -145,8 +149,10 @@ cJSON *path_to_json(const pp_result *r, const char *source, const char *unit, in
             cJSON_AddItemToArray(ks, kk);
         }
         cJSON_AddBoolToObject(o, "at_trims", c->all_at_trims);
-        if (c->predicted) cJSON_AddStringToObject(o, "symmetry_prediction", c->prediction);
-        else cJSON_AddNullToObject(o, "symmetry_prediction");
+        if (c->predicted)
+            cJSON_AddStringToObject(o, "symmetry_prediction", c->prediction);
+        else
+            cJSON_AddNullToObject(o, "symmetry_prediction");
         if (c->parity_checked) {
             cJSON_AddBoolToObject(o, "parity_exchange", c->parity_exchange);
             cJSON *tc = cJSON_AddArrayToObject(o, "trims_parity_changed");
@@ -155,10 +161,14 @@ cJSON *path_to_json(const pp_result *r, const char *source, const char *unit, in
         } else {
             cJSON_AddNullToObject(o, "parity_exchange");
         }
-        if (c->before >= 0) cJSON_AddNumberToObject(o, "interval_before", c->before);
-        else cJSON_AddNullToObject(o, "interval_before");
-        if (c->after >= 0) cJSON_AddNumberToObject(o, "interval_after", c->after);
-        else cJSON_AddNullToObject(o, "interval_after");
+        if (c->before >= 0)
+            cJSON_AddNumberToObject(o, "interval_before", c->before);
+        else
+            cJSON_AddNullToObject(o, "interval_before");
+        if (c->after >= 0)
+            cJSON_AddNumberToObject(o, "interval_after", c->after);
+        else
+            cJSON_AddNullToObject(o, "interval_after");
         cJSON_AddItemToArray(cl, o);
     }
     cJSON *tr = cJSON_AddArrayToObject(j, "node_tracks");
@@ -166,10 +176,14 @@ cJSON *path_to_json(const pp_result *r, const char *source, const char *unit, in
         const pp_track *t = &r->tracks[i];
         cJSON *o = cJSON_CreateObject();
         cJSON_AddNumberToObject(o, "chirality", t->chirality);
-        if (t->born_with >= 0) cJSON_AddNumberToObject(o, "created_with", t->born_with);
-        else cJSON_AddNullToObject(o, "created_with");
-        if (t->died_with >= 0) cJSON_AddNumberToObject(o, "annihilated_with", t->died_with);
-        else cJSON_AddNullToObject(o, "annihilated_with");
+        if (t->born_with >= 0)
+            cJSON_AddNumberToObject(o, "created_with", t->born_with);
+        else
+            cJSON_AddNullToObject(o, "created_with");
+        if (t->died_with >= 0)
+            cJSON_AddNumberToObject(o, "annihilated_with", t->died_with);
+        else
+            cJSON_AddNullToObject(o, "annihilated_with");
         cJSON_AddNumberToObject(o, "boundary_crossings", t->crossings);
         cJSON *pts = cJSON_AddArrayToObject(o, "points");
         for (int q = 0; q < t->npts; q++) {
@@ -211,23 +225,32 @@ void path_print(const pp_result *r, const char *source, const char *unit, int me
         const pp_interval *in = &r->intervals[i];
         char inv[64] = "";
         const res_diag *d = &in->diag;
-        if (d->z2_status == RES_DONE && d->dim == 2) snprintf(inv, sizeof inv, "Z2 = %d", d->z2[0]);
-        else if (d->z2_status == RES_DONE) snprintf(inv, sizeof inv, "Z2 = %d;%d%d%d", d->z2[0], d->z2[1], d->z2[2], d->z2[3]);
-        else if (d->chern_status == RES_DONE && d->dim == 2) snprintf(inv, sizeof inv, "C = %d", d->chern);
-        else if (d->nnodes > 0) snprintf(inv, sizeof inv, "%d nodes", d->nnodes);
-        printf("  [%+.6f, %+.6f] %s  %-30s %-14s gap %.4g eV at %s = %.4g (confidence %.2f)\n", in->x_lo, in->x_hi,
-               in->gapless ? "closed" : "open  ", res_class_name(d->cls), inv, in->gap_ev, r->param, in->x_rep, d->confidence);
+        if (d->z2_status == RES_DONE && d->dim == 2)
+            snprintf(inv, sizeof inv, "Z2 = %d", d->z2[0]);
+        else if (d->z2_status == RES_DONE)
+            snprintf(inv, sizeof inv, "Z2 = %d;%d%d%d", d->z2[0], d->z2[1], d->z2[2], d->z2[3]);
+        else if (d->chern_status == RES_DONE && d->dim == 2)
+            snprintf(inv, sizeof inv, "C = %d", d->chern);
+        else if (d->nnodes > 0)
+            snprintf(inv, sizeof inv, "%d nodes", d->nnodes);
+        printf("  [%+.6f, %+.6f] %s  %-30s %-14s gap %.4g eV at %s = %.4g (confidence %.2f)\n", in->x_lo,
+               in->x_hi, in->gapless ? "closed" : "open  ", res_class_name(d->cls), inv, in->gap_ev, r->param,
+               in->x_rep, d->confidence);
     }
     printf("transitions\n");
     if (r->nclosing == 0) printf("  none: the gap stays open along the path\n");
     for (int i = 0; i < r->nclosing; i++) {
         const pp_closing *c = &r->closings[i];
         printf("  %s\n", c->text);
-        if (c->point) printf("      critical value %.8g, closed on [%.8g, %.8g], gap %.2g eV\n", c->x, c->x_lo, c->x_hi, c->gap_ev);
-        else printf("      edges %.8g and %.8g (each to %.1g)\n", c->x_lo, c->x_hi, r->tol_x);
+        if (c->point)
+            printf("      critical value %.8g, closed on [%.8g, %.8g], gap %.2g eV\n", c->x, c->x_lo, c->x_hi,
+                   c->gap_ev);
+        else
+            printf("      edges %.8g and %.8g (each to %.1g)\n", c->x_lo, c->x_hi, r->tol_x);
         for (int q = 0; q < c->nk; q++)
             printf("      k = (%.5f, %.5f, %.5f) %s%s\n", c->k[q][0], c->k[q][1], c->k[q][2],
-                   c->at_trim[q] ? "TRIM " : "", c->k_label[q][0] == '(' && !c->at_trim[q] ? "" : c->k_label[q]);
+                   c->at_trim[q] ? "TRIM " : "",
+                   c->k_label[q][0] == '(' && !c->at_trim[q] ? "" : c->k_label[q]);
         if (c->predicted) printf("      symmetry prediction: %s\n", c->prediction);
         if (c->parity_checked)
             printf("      parity exchange at the closing TRIMs: %s\n", c->parity_exchange ? "yes" : "no");
@@ -236,8 +259,8 @@ void path_print(const pp_result *r, const char *source, const char *unit, int me
         printf("Weyl-node tracks: %d\n", r->ntrack);
         for (int i = 0; i < r->ntrack; i++) {
             const pp_track *t = &r->tracks[i];
-            printf("  node %2d  chirality %+d  %s = %.4g..%.4g  (%d points, %d boundary crossings)\n", i, t->chirality,
-                   r->param, t->x[0], t->x[t->npts - 1], t->npts, t->crossings);
+            printf("  node %2d  chirality %+d  %s = %.4g..%.4g  (%d points, %d boundary crossings)\n", i,
+                   t->chirality, r->param, t->x[0], t->x[t->npts - 1], t->npts, t->crossings);
         }
     }
     if (r->nevent > 0) {
@@ -258,15 +281,22 @@ void path_print(const pp_result *r, const char *source, const char *unit, int me
 
 int cmd_path(int argc, char **argv)
 {
-    static const struct option longopts[] = {
-        {"param", required_argument, NULL, 'p'},   {"values", required_argument, NULL, 'v'},
-        {"name", required_argument, NULL, 'n'},    {"unit", required_argument, NULL, 'u'},
-        {"samples", required_argument, NULL, 's'}, {"tol", required_argument, NULL, 't'},
-        {"closed-ev", required_argument, NULL, 'c'}, {"mesh", required_argument, NULL, 'm'},
-        {"track-steps", required_argument, NULL, 'k'}, {"no-tracks", no_argument, NULL, 'N'},
-        {"json", no_argument, NULL, 'j'},          {"direction", required_argument, NULL, 'd'},
-        {"layers", required_argument, NULL, 'l'},  {"family", required_argument, NULL, 'f'},
-        {"help", no_argument, NULL, 'h'},          {NULL, 0, NULL, 0}};
+    static const struct option longopts[] = {{"param", required_argument, NULL, 'p'},
+                                             {"values", required_argument, NULL, 'v'},
+                                             {"name", required_argument, NULL, 'n'},
+                                             {"unit", required_argument, NULL, 'u'},
+                                             {"samples", required_argument, NULL, 's'},
+                                             {"tol", required_argument, NULL, 't'},
+                                             {"closed-ev", required_argument, NULL, 'c'},
+                                             {"mesh", required_argument, NULL, 'm'},
+                                             {"track-steps", required_argument, NULL, 'k'},
+                                             {"no-tracks", no_argument, NULL, 'N'},
+                                             {"json", no_argument, NULL, 'j'},
+                                             {"direction", required_argument, NULL, 'd'},
+                                             {"layers", required_argument, NULL, 'l'},
+                                             {"family", required_argument, NULL, 'f'},
+                                             {"help", no_argument, NULL, 'h'},
+                                             {NULL, 0, NULL, 0}};
     pp_opts o;
     pp_opts_init(&o);
     o.diag.seed = 1;
@@ -278,44 +308,88 @@ int cmd_path(int argc, char **argv)
         long v;
         double d;
         switch (c) {
-        case 'h': path_help(stdout); return 0;
-        case 'p': param = optarg; break;
-        case 'v': values = optarg; break;
-        case 'n': name = optarg; break;
-        case 'u': unit = optarg; break;
-        case 'f': family = optarg; break;
-        case 'l': layers = optarg; break;
+        case 'h':
+            path_help(stdout);
+            return 0;
+        case 'p':
+            param = optarg;
+            break;
+        case 'v':
+            values = optarg;
+            break;
+        case 'n':
+            name = optarg;
+            break;
+        case 'u':
+            unit = optarg;
+            break;
+        case 'f':
+            family = optarg;
+            break;
+        case 'l':
+            layers = optarg;
+            break;
         case 'd':
-            if (cli_parse_vec3(optarg, dir)) { fprintf(stderr, "bandsieve path: --direction expects h,k,l, got '%s'\n", optarg); return 2; }
+            if (cli_parse_vec3(optarg, dir)) {
+                fprintf(stderr, "bandsieve path: --direction expects h,k,l, got '%s'\n", optarg);
+                return 2;
+            }
             have_dir = 1;
             break;
-        case 'j': json = 1; break;
-        case 'N': o.no_tracks = 1; break;
+        case 'j':
+            json = 1;
+            break;
+        case 'N':
+            o.no_tracks = 1;
+            break;
         case 's':
-            if (cli_parse_int(optarg, 3, 100000, &v)) { fprintf(stderr, "bandsieve path: --samples expects an integer 3..100000, got '%s'\n", optarg); return 2; }
+            if (cli_parse_int(optarg, 3, 100000, &v)) {
+                fprintf(stderr, "bandsieve path: --samples expects an integer 3..100000, got '%s'\n", optarg);
+                return 2;
+            }
             o.nsamples = (int)v;
             break;
         case 'k':
-            if (cli_parse_int(optarg, 2, 10000, &v)) { fprintf(stderr, "bandsieve path: --track-steps expects an integer 2..10000, got '%s'\n", optarg); return 2; }
+            if (cli_parse_int(optarg, 2, 10000, &v)) {
+                fprintf(stderr, "bandsieve path: --track-steps expects an integer 2..10000, got '%s'\n",
+                        optarg);
+                return 2;
+            }
             o.track_steps = (int)v;
             break;
         case 'm':
-            if (cli_parse_int(optarg, 4, 4096, &v)) { fprintf(stderr, "bandsieve path: --mesh expects an integer 4..4096, got '%s'\n", optarg); return 2; }
+            if (cli_parse_int(optarg, 4, 4096, &v)) {
+                fprintf(stderr, "bandsieve path: --mesh expects an integer 4..4096, got '%s'\n", optarg);
+                return 2;
+            }
             o.gap_mesh = (int)v;
             break;
         case 't':
-            if (cli_parse_double(optarg, &d) || d <= 0 || d > 0.1) { fprintf(stderr, "bandsieve path: --tol expects a number in (0, 0.1], got '%s'\n", optarg); return 2; }
+            if (cli_parse_double(optarg, &d) || d <= 0 || d > 0.1) {
+                fprintf(stderr, "bandsieve path: --tol expects a number in (0, 0.1], got '%s'\n", optarg);
+                return 2;
+            }
             o.tol_x = d;
             break;
         case 'c':
-            if (cli_parse_double(optarg, &d) || d <= 0 || d > 0.1) { fprintf(stderr, "bandsieve path: --closed-ev expects a number in (0, 0.1], got '%s'\n", optarg); return 2; }
+            if (cli_parse_double(optarg, &d) || d <= 0 || d > 0.1) {
+                fprintf(stderr, "bandsieve path: --closed-ev expects a number in (0, 0.1], got '%s'\n",
+                        optarg);
+                return 2;
+            }
             o.closed_ev = d;
             break;
-        default: path_help(stderr); return 2;
+        default:
+            path_help(stderr);
+            return 2;
         }
     }
     int nsrc = argc - optind;
-    if (nsrc < 1) { fprintf(stderr, "bandsieve path: need a SOURCE\n"); path_help(stderr); return 2; }
+    if (nsrc < 1) {
+        fprintf(stderr, "bandsieve path: need a SOURCE\n");
+        path_help(stderr);
+        return 2;
+    }
     if (layers || have_dir) {
         if (!layers || !have_dir || nsrc != 1 || param || values || family) {
             fprintf(stderr, "bandsieve path: films need exactly one SOURCE with --direction and --layers\n");
@@ -325,7 +399,8 @@ int cmd_path(int argc, char **argv)
     }
     if (family) {
         if (nsrc != 1 || param || values) {
-            fprintf(stderr, "bandsieve path: --family takes one material set (SET.h5) and no --param/--values\n");
+            fprintf(stderr,
+                    "bandsieve path: --family takes one material set (SET.h5) and no --param/--values\n");
             return 2;
         }
         return path_family(argv[optind], family, &o, json);
@@ -342,7 +417,8 @@ int cmd_path(int argc, char **argv)
     const char *label = argv[optind];
     if (param) {
         if (nsrc != 1 || values || strncmp(argv[optind], "model:", 6) != 0) {
-            fprintf(stderr, "bandsieve path: --param needs exactly one built-in model source (model:NAME[:key=val,...])\n");
+            fprintf(stderr, "bandsieve path: --param needs exactly one built-in model source "
+                            "(model:NAME[:key=val,...])\n");
             return 2;
         }
         const char *eq = strchr(param, '=');
@@ -364,7 +440,9 @@ int cmd_path(int argc, char **argv)
         }
     } else {
         if (!values || nsrc < 2) {
-            fprintf(stderr, "bandsieve path: give --param for a built-in model, or two or more SOURCEs with --values\n");
+            fprintf(
+                stderr,
+                "bandsieve path: give --param for a built-in model, or two or more SOURCEs with --values\n");
             return 2;
         }
         members = 1;
@@ -373,13 +451,18 @@ int cmd_path(int argc, char **argv)
         char *copy = strdup(values);
         int nv = 0;
         for (char *tok = strtok(copy, ","); tok; tok = strtok(NULL, ",")) {
-            if (nv >= nsrc || cli_parse_double(tok, &vals[nv])) { nv = -1; break; }
+            if (nv >= nsrc || cli_parse_double(tok, &vals[nv])) {
+                nv = -1;
+                break;
+            }
             nv++;
         }
         free(copy);
         if (nv != nsrc) {
-            fprintf(stderr, "bandsieve path: --values needs one number per SOURCE (%d), got '%s'\n", nsrc, values);
-            free(ms); free(vals);
+            fprintf(stderr, "bandsieve path: --values needs one number per SOURCE (%d), got '%s'\n", nsrc,
+                    values);
+            free(ms);
+            free(vals);
             return 2;
         }
         for (int i = 0; i < nsrc && status == 0; i++)
@@ -410,7 +493,8 @@ int cmd_path(int argc, char **argv)
     pp_result_clear(&r);
     pp_source_free(src);
     if (ms)
-        for (int i = 0; i < nsrc; i++) tb_model_free(ms[i]);
+        for (int i = 0; i < nsrc; i++)
+            tb_model_free(ms[i]);
     free(ms);
     free(vals);
     return status;

@@ -90,15 +90,20 @@ int path_films(const char *source, const double miller_d[3], const char *layers,
             cJSON_AddNumberToObject(e, "gap_indirect_eV", d.gap_indirect_ev);
             cJSON_AddStringToObject(e, "class", res_class_name(d.cls));
             cJSON_AddNumberToObject(e, "confidence", d.confidence);
-            if (z2 >= 0) cJSON_AddNumberToObject(e, "z2", z2);
-            else cJSON_AddNullToObject(e, "z2");
-            if (d.chern_status == RES_DONE) cJSON_AddNumberToObject(e, "chern", d.chern);
-            else cJSON_AddNullToObject(e, "chern");
+            if (z2 >= 0)
+                cJSON_AddNumberToObject(e, "z2", z2);
+            else
+                cJSON_AddNullToObject(e, "z2");
+            if (d.chern_status == RES_DONE)
+                cJSON_AddNumberToObject(e, "chern", d.chern);
+            else
+                cJSON_AddNullToObject(e, "chern");
             cJSON_AddStringToObject(e, "reason", d.reason);
             cJSON_AddItemToArray(films, e);
             if (prev_cls[0] && (strcmp(prev_cls, res_class_name(d.cls)) != 0 || prev_z2 != z2)) {
                 char text[200];
-                snprintf(text, sizeof text, "%ld -> %ld layers: %s -> %s", prev_n, n, prev_cls, res_class_name(d.cls));
+                snprintf(text, sizeof text, "%ld -> %ld layers: %s -> %s", prev_n, n, prev_cls,
+                         res_class_name(d.cls));
                 cJSON_AddItemToArray(trans, cJSON_CreateString(text));
             }
             snprintf(prev_cls, sizeof prev_cls, "%s", res_class_name(d.cls));
@@ -108,8 +113,8 @@ int path_films(const char *source, const double miller_d[3], const char *layers,
                 char zs[16] = "-", cs[16] = "-";
                 if (z2 >= 0) snprintf(zs, sizeof zs, "%d", z2);
                 if (d.chern_status == RES_DONE) snprintf(cs, sizeof cs, "%d", d.chern);
-                printf("  %6ld  %6d  %-11.6f  %-28s %-4s %-6s %.2f\n", n, f->norb, d.gap_direct_ev, res_class_name(d.cls), zs, cs,
-                       d.confidence);
+                printf("  %6ld  %6d  %-11.6f  %-28s %-4s %-6s %.2f\n", n, f->norb, d.gap_direct_ev,
+                       res_class_name(d.cls), zs, cs, d.confidence);
             }
         }
         res_clear(&d);
@@ -123,7 +128,8 @@ int path_films(const char *source, const double miller_d[3], const char *layers,
     } else if (status == 0) {
         int nt = cJSON_GetArraySize(trans);
         if (nt == 0) printf("no change of class with thickness\n");
-        for (int i = 0; i < nt; i++) printf("  %s\n", cJSON_GetArrayItem(trans, i)->valuestring);
+        for (int i = 0; i < nt; i++)
+            printf("  %s\n", cJSON_GetArrayItem(trans, i)->valuestring);
     }
     cJSON_Delete(j);
     tb_model_free(bulk);
@@ -155,7 +161,11 @@ int path_family(const char *set_path, const char *family, const pp_opts *o, int 
     tb_model **ms = calloc((size_t)ms_count(set) + 1, sizeof *ms);
     double *vals = calloc((size_t)ms_count(set) + 1, sizeof *vals);
     const ms_entry *first = NULL;
-    if (!refs || !ms || !vals) { fprintf(stderr, "bandsieve path: out of memory\n"); status = 1; goto done; }
+    if (!refs || !ms || !vals) {
+        fprintf(stderr, "bandsieve path: out of memory\n");
+        status = 1;
+        goto done;
+    }
     for (int i = 0; i < ms_count(set); i++) {
         const ms_entry *e = ms_entry_at(set, i);
         if (!e->has_family || strcmp(e->family, family) != 0) continue;
@@ -165,8 +175,10 @@ int path_family(const char *set_path, const char *family, const pp_opts *o, int 
         n++;
     }
     if (n < 2) {
-        fprintf(stderr, "bandsieve path: %s: family '%s' has %d member(s); a path needs two or more "
-                "(bandsieve list %s)\n", set_path, family, n, set_path);
+        fprintf(stderr,
+                "bandsieve path: %s: family '%s' has %d member(s); a path needs two or more "
+                "(bandsieve list %s)\n",
+                set_path, family, n, set_path);
         status = 2;
         goto done;
     }
@@ -208,7 +220,8 @@ int path_family(const char *set_path, const char *family, const pp_opts *o, int 
         } else {
             printf("members:");
             for (int i = 0; i < n; i++)
-                printf(" %s (%g%s%s)", ms[i]->id, vals[i], first->family_unit[0] ? " " : "", first->family_unit);
+                printf(" %s (%g%s%s)", ms[i]->id, vals[i], first->family_unit[0] ? " " : "",
+                       first->family_unit);
             printf("\n");
             path_print(&r, label, first->family_unit, 1);
         }
@@ -217,7 +230,8 @@ int path_family(const char *set_path, const char *family, const pp_opts *o, int 
     pp_source_free(src);
 done:
     if (ms)
-        for (int i = 0; i < n; i++) tb_model_free(ms[i]);
+        for (int i = 0; i < n; i++)
+            tb_model_free(ms[i]);
     free(ms);
     free(vals);
     free(refs);

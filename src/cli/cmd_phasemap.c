@@ -11,31 +11,33 @@
 
 static void phasemap_help(FILE *out)
 {
-    fprintf(out,
-            "usage: [mpirun -n P] bandsieve phasemap model:NAME[:key=val,...] --x KEY=LO..HI:N --y KEY=LO..HI:M\n"
-            "                     -o MAP.h5 [--svg MAP.svg] [--tol T] [--mesh N] [--closed-ev E] [--quiet]\n\n"
-            "Classifies a built-in model on an N x M grid of two of its parameters. Each row (fixed y)\n"
-            "is one phase path over x (as `bandsieve path`): closings bracketed and refined, each\n"
-            "interval diagnosed once; a grid point takes the class of the interval holding it, or\n"
-            "\"critical point\" within the tolerance of a single-value closing. Rows are dealt\n"
-            "round-robin over the MPI ranks; the map does not depend on the number of ranks.\n"
-            "Rank 0 writes MAP.h5 (datasets x, y, class [M][N], gap_direct_eV, class_names,\n"
-            "closings [M][16][5] = x_lo, x_hi, x, single value, kind; closing_kinds) and prints the map.\n\n"
-            "  --x KEY=LO..HI:N   parameter along the rows and its N >= 3 grid points\n"
-            "  --y KEY=LO..HI:M   parameter across the rows and its M >= 1 grid points\n"
-            "  -o, --output FILE  HDF5 output (required)\n"
-            "  --svg FILE         also a simple SVG of the classes (a stopgap picture)\n"
-            "  --tol T            tolerance on closings and edges in x (default 1e-4)\n"
-            "  --mesh N           k-mesh of the gap scan (default 14 in 3D, 36 in 2D)\n"
-            "  --closed-ev E      a refined gap below E is closed (default 1e-6)\n"
-            "  --quiet            no map on stdout\n"
-            "  -h, --help         this text\n");
+    fprintf(
+        out,
+        "usage: [mpirun -n P] bandsieve phasemap model:NAME[:key=val,...] --x KEY=LO..HI:N --y KEY=LO..HI:M\n"
+        "                     -o MAP.h5 [--svg MAP.svg] [--tol T] [--mesh N] [--closed-ev E] [--quiet]\n\n"
+        "Classifies a built-in model on an N x M grid of two of its parameters. Each row (fixed y)\n"
+        "is one phase path over x (as `bandsieve path`): closings bracketed and refined, each\n"
+        "interval diagnosed once; a grid point takes the class of the interval holding it, or\n"
+        "\"critical point\" within the tolerance of a single-value closing. Rows are dealt\n"
+        "round-robin over the MPI ranks; the map does not depend on the number of ranks.\n"
+        "Rank 0 writes MAP.h5 (datasets x, y, class [M][N], gap_direct_eV, class_names,\n"
+        "closings [M][16][5] = x_lo, x_hi, x, single value, kind; closing_kinds) and prints the map.\n\n"
+        "  --x KEY=LO..HI:N   parameter along the rows and its N >= 3 grid points\n"
+        "  --y KEY=LO..HI:M   parameter across the rows and its M >= 1 grid points\n"
+        "  -o, --output FILE  HDF5 output (required)\n"
+        "  --svg FILE         also a simple SVG of the classes (a stopgap picture)\n"
+        "  --tol T            tolerance on closings and edges in x (default 1e-4)\n"
+        "  --mesh N           k-mesh of the gap scan (default 14 in 3D, 36 in 2D)\n"
+        "  --closed-ev E      a refined gap below E is closed (default 1e-6)\n"
+        "  --quiet            no map on stdout\n"
+        "  -h, --help         this text\n");
 }
 
 static int parse_axis(const char *text, char *key, size_t cap, double *lo, double *hi, long *n)
 {
     const char *eq = strchr(text, '='), *dots = strstr(text, ".."), *colon = strrchr(text, ':');
-    if (!eq || !dots || !colon || eq == text || (size_t)(eq - text) >= cap || dots < eq || colon < dots) return -1;
+    if (!eq || !dots || !colon || eq == text || (size_t)(eq - text) >= cap || dots < eq || colon < dots)
+        return -1;
     memcpy(key, text, (size_t)(eq - text));
     key[eq - text] = '\0';
     char a[64], b[64];
@@ -45,14 +47,15 @@ static int parse_axis(const char *text, char *key, size_t cap, double *lo, doubl
     a[la] = '\0';
     memcpy(b, dots + 2, lb);
     b[lb] = '\0';
-    if (cli_parse_double(a, lo) || cli_parse_double(b, hi) || cli_parse_int(colon + 1, 1, 100000, n)) return -1;
+    if (cli_parse_double(a, lo) || cli_parse_double(b, hi) || cli_parse_int(colon + 1, 1, 100000, n))
+        return -1;
     return *hi >= *lo ? 0 : -1;
 }
 
 static const char CLASS_CHAR[PP_NCLASS] = {'?', 'o', 'S', 'w', 'Q', 'C', 'W', 'N', 'm', '*', 'T'};
-static const char *const CLASS_COLOUR[PP_NCLASS] = {"#bbbbbb", "#f2f2f2", "#1f5fa8", "#7fb3e6", "#3c8d5a",
-                                                    "#d9a400", "#c0392b", "#8e44ad", "#555555", "#000000",
-                                                    "#2aa198"};
+static const char *const CLASS_COLOUR[PP_NCLASS] = {"#bbbbbb", "#f2f2f2", "#1f5fa8", "#7fb3e6",
+                                                    "#3c8d5a", "#d9a400", "#c0392b", "#8e44ad",
+                                                    "#555555", "#000000", "#2aa198"};
 
 static void print_map(const pm_map *m, const pm_spec *s)
 {
@@ -60,17 +63,21 @@ static void print_map(const pm_map *m, const pm_spec *s)
            s->spec, s->xkey, s->x_lo, s->x_hi, m->nx, s->ykey, s->y_lo, s->y_hi, m->ny, m->ranks, m->seconds);
     for (int j = m->ny - 1; j >= 0; j--) {
         printf("  %s = %-10.4g ", s->ykey, m->y[j]);
-        for (int i = 0; i < m->nx; i++) putchar(CLASS_CHAR[m->cls[(size_t)j * m->nx + i]]);
+        for (int i = 0; i < m->nx; i++)
+            putchar(CLASS_CHAR[m->cls[(size_t)j * m->nx + i]]);
         printf("   ");
         for (int k = 0; k < m->nclosing[j]; k++) {
             const double *c = m->closings + ((size_t)j * PM_MAX_CLOSINGS + k) * 5;
-            if (c[3] > 0.5) printf(" %s at %.5g;", pm_kind_name((int)c[4]), c[2]);
-            else printf(" %s %.5g..%.5g;", pm_kind_name((int)c[4]), c[0], c[1]);
+            if (c[3] > 0.5)
+                printf(" %s at %.5g;", pm_kind_name((int)c[4]), c[2]);
+            else
+                printf(" %s %.5g..%.5g;", pm_kind_name((int)c[4]), c[0], c[1]);
         }
         printf("\n");
     }
     printf("  legend:");
-    for (int c = 0; c < PP_NCLASS; c++) printf(" %c %s%s", CLASS_CHAR[c], pp_class_name(c), c + 1 < PP_NCLASS ? "," : "\n");
+    for (int c = 0; c < PP_NCLASS; c++)
+        printf(" %c %s%s", CLASS_CHAR[c], pp_class_name(c), c + 1 < PP_NCLASS ? "," : "\n");
 }
 
 static int write_svg(const pm_map *m, const pm_spec *s, const char *path)
@@ -79,29 +86,39 @@ static int write_svg(const pm_map *m, const pm_spec *s, const char *path)
     if (!fp) return -1;
     int cw = 480 / m->nx > 4 ? 480 / m->nx : 4, ch = 320 / m->ny > 4 ? 320 / m->ny : 4;
     int W = cw * m->nx, H = ch * m->ny, left = 70, top = 20, legend = 200;
-    fprintf(fp, "<svg xmlns=\"http://www.w3.org/2000/svg\" width=\"%d\" height=\"%d\" font-family=\"sans-serif\" "
-                "font-size=\"11\">\n<rect width=\"100%%\" height=\"100%%\" fill=\"white\"/>\n",
+    fprintf(fp,
+            "<svg xmlns=\"http://www.w3.org/2000/svg\" width=\"%d\" height=\"%d\" font-family=\"sans-serif\" "
+            "font-size=\"11\">\n<rect width=\"100%%\" height=\"100%%\" fill=\"white\"/>\n",
             left + W + legend, top + H + 50);
     for (int j = 0; j < m->ny; j++)
         for (int i = 0; i < m->nx; i++) {
             int c = m->cls[(size_t)j * m->nx + i];
-            fprintf(fp, "<rect x=\"%d\" y=\"%d\" width=\"%d\" height=\"%d\" fill=\"%s\"><title>%s = %g, %s = %g: %s"
-                        "</title></rect>\n", left + i * cw, top + (m->ny - 1 - j) * ch, cw, ch, CLASS_COLOUR[c],
-                    s->xkey, m->x[i], s->ykey, m->y[j], pp_class_name(c));
+            fprintf(
+                fp,
+                "<rect x=\"%d\" y=\"%d\" width=\"%d\" height=\"%d\" fill=\"%s\"><title>%s = %g, %s = %g: %s"
+                "</title></rect>\n",
+                left + i * cw, top + (m->ny - 1 - j) * ch, cw, ch, CLASS_COLOUR[c], s->xkey, m->x[i], s->ykey,
+                m->y[j], pp_class_name(c));
         }
-    fprintf(fp, "<rect x=\"%d\" y=\"%d\" width=\"%d\" height=\"%d\" fill=\"none\" stroke=\"black\"/>\n", left, top, W, H);
-    fprintf(fp, "<text x=\"%d\" y=\"%d\" text-anchor=\"middle\">%s (%g .. %g)</text>\n", left + W / 2, top + H + 30,
-            s->xkey, s->x_lo, s->x_hi);
-    fprintf(fp, "<text x=\"14\" y=\"%d\" transform=\"rotate(-90 14 %d)\" text-anchor=\"middle\">%s (%g .. %g)</text>\n",
+    fprintf(fp, "<rect x=\"%d\" y=\"%d\" width=\"%d\" height=\"%d\" fill=\"none\" stroke=\"black\"/>\n", left,
+            top, W, H);
+    fprintf(fp, "<text x=\"%d\" y=\"%d\" text-anchor=\"middle\">%s (%g .. %g)</text>\n", left + W / 2,
+            top + H + 30, s->xkey, s->x_lo, s->x_hi);
+    fprintf(fp,
+            "<text x=\"14\" y=\"%d\" transform=\"rotate(-90 14 %d)\" text-anchor=\"middle\">%s (%g .. "
+            "%g)</text>\n",
             top + H / 2, top + H / 2, s->ykey, s->y_lo, s->y_hi);
     int row = 0;
     for (int c = 0; c < PP_NCLASS; c++) {
         int used = 0;
-        for (int q = 0; q < m->nx * m->ny && !used; q++) used = m->cls[q] == c;
+        for (int q = 0; q < m->nx * m->ny && !used; q++)
+            used = m->cls[q] == c;
         if (!used) continue;
-        fprintf(fp, "<rect x=\"%d\" y=\"%d\" width=\"12\" height=\"12\" fill=\"%s\" stroke=\"black\"/>"
-                    "<text x=\"%d\" y=\"%d\">%s</text>\n", left + W + 14, top + row * 18, CLASS_COLOUR[c],
-                left + W + 32, top + row * 18 + 10, pp_class_name(c));
+        fprintf(fp,
+                "<rect x=\"%d\" y=\"%d\" width=\"12\" height=\"12\" fill=\"%s\" stroke=\"black\"/>"
+                "<text x=\"%d\" y=\"%d\">%s</text>\n",
+                left + W + 14, top + row * 18, CLASS_COLOUR[c], left + W + 32, top + row * 18 + 10,
+                pp_class_name(c));
         row++;
     }
     fprintf(fp, "</svg>\n");
@@ -110,12 +127,16 @@ static int write_svg(const pm_map *m, const pm_spec *s, const char *path)
 
 int cmd_phasemap(int argc, char **argv)
 {
-    static const struct option longopts[] = {
-        {"x", required_argument, NULL, 'x'},      {"y", required_argument, NULL, 'y'},
-        {"output", required_argument, NULL, 'o'}, {"svg", required_argument, NULL, 'g'},
-        {"tol", required_argument, NULL, 't'},    {"mesh", required_argument, NULL, 'm'},
-        {"closed-ev", required_argument, NULL, 'c'}, {"quiet", no_argument, NULL, 'q'},
-        {"help", no_argument, NULL, 'h'},         {NULL, 0, NULL, 0}};
+    static const struct option longopts[] = {{"x", required_argument, NULL, 'x'},
+                                             {"y", required_argument, NULL, 'y'},
+                                             {"output", required_argument, NULL, 'o'},
+                                             {"svg", required_argument, NULL, 'g'},
+                                             {"tol", required_argument, NULL, 't'},
+                                             {"mesh", required_argument, NULL, 'm'},
+                                             {"closed-ev", required_argument, NULL, 'c'},
+                                             {"quiet", no_argument, NULL, 'q'},
+                                             {"help", no_argument, NULL, 'h'},
+                                             {NULL, 0, NULL, 0}};
     pm_spec s;
     memset(&s, 0, sizeof s);
     pp_opts_init(&s.opts);
@@ -129,42 +150,74 @@ int cmd_phasemap(int argc, char **argv)
         long v;
         double d;
         switch (c) {
-        case 'h': phasemap_help(stdout); return 0;
-        case 'x': xs = optarg; break;
-        case 'y': ys = optarg; break;
-        case 'o': out = optarg; break;
-        case 'g': svg = optarg; break;
-        case 'q': quiet = 1; break;
+        case 'h':
+            phasemap_help(stdout);
+            return 0;
+        case 'x':
+            xs = optarg;
+            break;
+        case 'y':
+            ys = optarg;
+            break;
+        case 'o':
+            out = optarg;
+            break;
+        case 'g':
+            svg = optarg;
+            break;
+        case 'q':
+            quiet = 1;
+            break;
         case 't':
-            if (cli_parse_double(optarg, &d) || d <= 0 || d > 0.1) { fprintf(stderr, "bandsieve phasemap: --tol expects a number in (0, 0.1], got '%s'\n", optarg); return 2; }
+            if (cli_parse_double(optarg, &d) || d <= 0 || d > 0.1) {
+                fprintf(stderr, "bandsieve phasemap: --tol expects a number in (0, 0.1], got '%s'\n", optarg);
+                return 2;
+            }
             s.opts.tol_x = d;
             break;
         case 'm':
-            if (cli_parse_int(optarg, 4, 4096, &v)) { fprintf(stderr, "bandsieve phasemap: --mesh expects an integer 4..4096, got '%s'\n", optarg); return 2; }
+            if (cli_parse_int(optarg, 4, 4096, &v)) {
+                fprintf(stderr, "bandsieve phasemap: --mesh expects an integer 4..4096, got '%s'\n", optarg);
+                return 2;
+            }
             s.opts.gap_mesh = (int)v;
             break;
         case 'c':
-            if (cli_parse_double(optarg, &d) || d <= 0 || d > 0.1) { fprintf(stderr, "bandsieve phasemap: --closed-ev expects a number in (0, 0.1], got '%s'\n", optarg); return 2; }
+            if (cli_parse_double(optarg, &d) || d <= 0 || d > 0.1) {
+                fprintf(stderr, "bandsieve phasemap: --closed-ev expects a number in (0, 0.1], got '%s'\n",
+                        optarg);
+                return 2;
+            }
             s.opts.closed_ev = d;
             break;
-        default: phasemap_help(stderr); return 2;
+        default:
+            phasemap_help(stderr);
+            return 2;
         }
     }
     long nx, ny;
     if (optind != argc - 1 || strncmp(argv[optind], "model:", 6) != 0) {
-        fprintf(stderr, "bandsieve phasemap: need exactly one built-in model source (model:NAME[:key=val,...])\n");
+        fprintf(stderr,
+                "bandsieve phasemap: need exactly one built-in model source (model:NAME[:key=val,...])\n");
         return 2;
     }
     if (!xs || parse_axis(xs, s.xkey, sizeof s.xkey, &s.x_lo, &s.x_hi, &nx) || nx < 3 || s.x_hi <= s.x_lo) {
-        fprintf(stderr, "bandsieve phasemap: --x expects KEY=LO..HI:N with LO < HI and N >= 3, got '%s'\n", xs ? xs : "");
+        fprintf(stderr, "bandsieve phasemap: --x expects KEY=LO..HI:N with LO < HI and N >= 3, got '%s'\n",
+                xs ? xs : "");
         return 2;
     }
     if (!ys || parse_axis(ys, s.ykey, sizeof s.ykey, &s.y_lo, &s.y_hi, &ny) || (ny > 1 && s.y_hi <= s.y_lo)) {
         fprintf(stderr, "bandsieve phasemap: --y expects KEY=LO..HI:M with M >= 1, got '%s'\n", ys ? ys : "");
         return 2;
     }
-    if (!out) { fprintf(stderr, "bandsieve phasemap: -o MAP.h5 is required\n"); return 2; }
-    if (strlen(argv[optind] + 6) >= sizeof s.spec) { fprintf(stderr, "bandsieve phasemap: model spec too long\n"); return 2; }
+    if (!out) {
+        fprintf(stderr, "bandsieve phasemap: -o MAP.h5 is required\n");
+        return 2;
+    }
+    if (strlen(argv[optind] + 6) >= sizeof s.spec) {
+        fprintf(stderr, "bandsieve phasemap: model spec too long\n");
+        return 2;
+    }
     snprintf(s.spec, sizeof s.spec, "%s", argv[optind] + 6);
     s.nx = (int)nx;
     s.ny = (int)ny;

@@ -25,25 +25,24 @@ typedef struct plot_args {
 
 static void plot_help(FILE *out)
 {
-    fprintf(out,
-            "usage: bandsieve plot KIND SOURCE -o FILE.svg|FILE.png|FILE.pdf [options]\n\n"
-            "Draws one figure of SOURCE (a card, SET.h5:ID, or model:NAME[:key=val,...]). KIND:\n"
-            "  bands       bands along a path; the gap at the filling shaded, the Fermi level dashed\n"
-            "  flow        Wannier-centre flows of every plane with the largest-gap line\n"
-            "  curvature   Berry curvature of the occupied bands over the 2D zone (3D: a plane)\n"
-            "  nodes       the Weyl nodes found by the diagnosis, projected, coloured by chirality\n"
-            "(slab bands and surface spectral maps: bandsieve slab ... --figure FILE)\n\n"
-            "  -o, --output FILE   the figure; the extension picks SVG, PNG or PDF\n"
-            "  --data FILE.json    also write the plotted arrays as JSON\n"
-            "  --path P            bands: 'auto' (default) or labelled points, as for `bands --path`\n"
-            "  --points N          bands: samples along the path (default 300)\n"
-            "  --weight W          bands: colour by 'spin' (<s_z>) or 'orbitals:i,j' (their weight)\n"
-            "  --fermi E           bands: Fermi level in eV\n"
-            "  --mesh N            flow, nodes: the diagnosis mesh (default: inspect's)\n"
-            "  --map-mesh N        curvature: plaquettes per direction (default 60)\n"
-            "  --plane kI=V        curvature in 3D: the plane normal to b_I at k_I = V (default k3=0)\n"
-            "  --project I         nodes: project along k_I (default 3)\n"
-            "  -h, --help          this text\n");
+    fprintf(out, "usage: bandsieve plot KIND SOURCE -o FILE.svg|FILE.png|FILE.pdf [options]\n\n"
+                 "Draws one figure of SOURCE (a card, SET.h5:ID, or model:NAME[:key=val,...]). KIND:\n"
+                 "  bands       bands along a path; the gap at the filling shaded, the Fermi level dashed\n"
+                 "  flow        Wannier-centre flows of every plane with the largest-gap line\n"
+                 "  curvature   Berry curvature of the occupied bands over the 2D zone (3D: a plane)\n"
+                 "  nodes       the Weyl nodes found by the diagnosis, projected, coloured by chirality\n"
+                 "(slab bands and surface spectral maps: bandsieve slab ... --figure FILE)\n\n"
+                 "  -o, --output FILE   the figure; the extension picks SVG, PNG or PDF\n"
+                 "  --data FILE.json    also write the plotted arrays as JSON\n"
+                 "  --path P            bands: 'auto' (default) or labelled points, as for `bands --path`\n"
+                 "  --points N          bands: samples along the path (default 300)\n"
+                 "  --weight W          bands: colour by 'spin' (<s_z>) or 'orbitals:i,j' (their weight)\n"
+                 "  --fermi E           bands: Fermi level in eV\n"
+                 "  --mesh N            flow, nodes: the diagnosis mesh (default: inspect's)\n"
+                 "  --map-mesh N        curvature: plaquettes per direction (default 60)\n"
+                 "  --plane kI=V        curvature in 3D: the plane normal to b_I at k_I = V (default k3=0)\n"
+                 "  --project I         nodes: project along k_I (default 3)\n"
+                 "  -h, --help          this text\n");
 }
 
 static int parse_plane(const char *text, int *axis, double *v)
@@ -57,28 +56,53 @@ static int parse_args(int argc, char **argv, plot_args *a)
 {
     static const struct option longopts[] = {
         {"output", required_argument, NULL, 'o'}, {"data", required_argument, NULL, 'd'},
-        {"path", required_argument, NULL, 'p'}, {"points", required_argument, NULL, 'n'},
+        {"path", required_argument, NULL, 'p'},   {"points", required_argument, NULL, 'n'},
         {"weight", required_argument, NULL, 'w'}, {"fermi", required_argument, NULL, 'f'},
-        {"mesh", required_argument, NULL, 'm'}, {"map-mesh", required_argument, NULL, 'M'},
-        {"plane", required_argument, NULL, 'P'}, {"project", required_argument, NULL, 'j'},
-        {"help", no_argument, NULL, 'h'}, {NULL, 0, NULL, 0}};
+        {"mesh", required_argument, NULL, 'm'},   {"map-mesh", required_argument, NULL, 'M'},
+        {"plane", required_argument, NULL, 'P'},  {"project", required_argument, NULL, 'j'},
+        {"help", no_argument, NULL, 'h'},         {NULL, 0, NULL, 0}};
     int c;
     optind = 1;
     while ((c = getopt_long(argc, argv, "ho:", longopts, NULL)) != -1) {
         int bad = 0;
         switch (c) {
-        case 'h': plot_help(stdout); return -1;
-        case 'o': a->out = optarg; break;
-        case 'd': a->data = optarg; break;
-        case 'p': a->path = optarg; break;
-        case 'w': a->weight = optarg; break;
-        case 'n': bad = cli_parse_int(optarg, 2, 100000, &a->points); break;
-        case 'm': bad = cli_parse_int(optarg, 4, 400, &a->mesh); break;
-        case 'M': bad = cli_parse_int(optarg, 4, 400, &a->map_mesh); break;
-        case 'j': bad = cli_parse_int(optarg, 1, 3, &a->project); break;
-        case 'f': bad = cli_parse_double(optarg, &a->fermi); a->has_fermi = 1; break;
-        case 'P': bad = parse_plane(optarg, &a->fixed_axis, &a->kfixed); break;
-        default: plot_help(stderr); return 2;
+        case 'h':
+            plot_help(stdout);
+            return -1;
+        case 'o':
+            a->out = optarg;
+            break;
+        case 'd':
+            a->data = optarg;
+            break;
+        case 'p':
+            a->path = optarg;
+            break;
+        case 'w':
+            a->weight = optarg;
+            break;
+        case 'n':
+            bad = cli_parse_int(optarg, 2, 100000, &a->points);
+            break;
+        case 'm':
+            bad = cli_parse_int(optarg, 4, 400, &a->mesh);
+            break;
+        case 'M':
+            bad = cli_parse_int(optarg, 4, 400, &a->map_mesh);
+            break;
+        case 'j':
+            bad = cli_parse_int(optarg, 1, 3, &a->project);
+            break;
+        case 'f':
+            bad = cli_parse_double(optarg, &a->fermi);
+            a->has_fermi = 1;
+            break;
+        case 'P':
+            bad = parse_plane(optarg, &a->fixed_axis, &a->kfixed);
+            break;
+        default:
+            plot_help(stderr);
+            return 2;
         }
         if (bad) {
             fprintf(stderr, "bandsieve plot: bad value '%s' for an option (see --help)\n", optarg);
@@ -91,7 +115,8 @@ static int parse_args(int argc, char **argv, plot_args *a)
         return 2;
     }
     a->kind = argv[optind], a->source = argv[optind + 1];
-    if (strcmp(a->kind, "bands") && strcmp(a->kind, "flow") && strcmp(a->kind, "curvature") && strcmp(a->kind, "nodes")) {
+    if (strcmp(a->kind, "bands") && strcmp(a->kind, "flow") && strcmp(a->kind, "curvature") &&
+        strcmp(a->kind, "nodes")) {
         fprintf(stderr, "bandsieve plot: unknown KIND '%s' (bands, flow, curvature, nodes)\n", a->kind);
         return 2;
     }
@@ -110,14 +135,19 @@ static int draw_diagnosis(const tb_model *m, const plot_args *a, cJSON *data, bs
     char title[200];
     snprintf(title, sizeof title, "%s (%s)", m->id, res_class_name(r.cls));
     if (rc == 0 && o.want_flows) {
-        if (r.nflows == 0) rc = bs_fail(err, BS_EINVAL, "%s: no Wannier-centre flow (%s)", m->id, r.reason);
-        else rc = fig_flows(a->out, title, r.nflows, r.flows, data, err);
+        if (r.nflows == 0)
+            rc = bs_fail(err, BS_EINVAL, "%s: no Wannier-centre flow (%s)", m->id, r.reason);
+        else
+            rc = fig_flows(a->out, title, r.nflows, r.flows, data, err);
     } else if (rc == 0) {
         double(*k)[3] = malloc((size_t)(r.nnodes + 1) * sizeof *k);
         int *ch = malloc((size_t)(r.nnodes + 1) * sizeof *ch);
         if (!k || !ch) rc = bs_fail(err, BS_ENOMEM, "out of memory");
-        for (int i = 0; rc == 0 && i < r.nnodes; i++) memcpy(k[i], r.nodes[i].k, sizeof k[i]), ch[i] = r.nodes[i].chirality;
-        if (rc == 0) rc = fig_nodes(a->out, title, r.nnodes, (const double(*)[3])k, ch, (int)a->project - 1, data, err);
+        for (int i = 0; rc == 0 && i < r.nnodes; i++)
+            memcpy(k[i], r.nodes[i].k, sizeof k[i]), ch[i] = r.nodes[i].chirality;
+        if (rc == 0)
+            rc =
+                fig_nodes(a->out, title, r.nnodes, (const double(*)[3])k, ch, (int)a->project - 1, data, err);
         free(k), free(ch);
     }
     if (data && rc == 0) cJSON_AddStringToObject(data, "class", res_class_name(r.cls));
@@ -142,8 +172,10 @@ static int draw(const tb_model *m, const plot_args *a, cJSON *data, bs_err *err)
         int axis = m->dim == 2 ? 2 : a->fixed_axis;
         int rc = berry_map_plane(m, m->nocc, axis, a->kfixed, (int)a->map_mesh, &bm, err);
         char title[200];
-        if (m->dim == 3) snprintf(title, sizeof title, "%s, plane k%d = %.3g", m->id, axis + 1, a->kfixed);
-        else snprintf(title, sizeof title, "%s", m->id);
+        if (m->dim == 3)
+            snprintf(title, sizeof title, "%s, plane k%d = %.3g", m->id, axis + 1, a->kfixed);
+        else
+            snprintf(title, sizeof title, "%s", m->id);
         if (rc == 0) rc = fig_berry(a->out, title, &bm, data, err);
         berry_map_clear(&bm);
         return rc;

@@ -52,8 +52,8 @@ typedef struct q_table {
     int ncol;
     char **name;
     size_t nrow, cap;
-    char **cell;   /* nrow * ncol, NULL for SQL NULL */
-    int *type;     /* nrow * ncol */
+    char **cell; /* nrow * ncol, NULL for SQL NULL */
+    int *type;   /* nrow * ncol */
 } q_table;
 
 typedef struct q_out {
@@ -82,12 +82,18 @@ static void json_string(FILE *fp, const char *s)
 {
     fputc('"', fp);
     for (const unsigned char *p = (const unsigned char *)s; *p; p++) {
-        if (*p == '"' || *p == '\\') fprintf(fp, "\\%c", *p);
-        else if (*p == '\n') fputs("\\n", fp);
-        else if (*p == '\t') fputs("\\t", fp);
-        else if (*p == '\r') fputs("\\r", fp);
-        else if (*p < 0x20) fprintf(fp, "\\u%04x", *p);
-        else fputc(*p, fp);
+        if (*p == '"' || *p == '\\')
+            fprintf(fp, "\\%c", *p);
+        else if (*p == '\n')
+            fputs("\\n", fp);
+        else if (*p == '\t')
+            fputs("\\t", fp);
+        else if (*p == '\r')
+            fputs("\\r", fp);
+        else if (*p < 0x20)
+            fprintf(fp, "\\u%04x", *p);
+        else
+            fputc(*p, fp);
     }
     fputc('"', fp);
 }
@@ -104,8 +110,10 @@ static void json_value(FILE *fp, const char *s, int type)
     }
     if (type == CAT_COL_REAL) {
         /* The text already reads back as the exact double (cat_query); JSON has no infinity. */
-        if (isfinite(strtod(s, NULL))) fputs(s, fp);
-        else fputs("null", fp);
+        if (isfinite(strtod(s, NULL)))
+            fputs(s, fp);
+        else
+            fputs("null", fp);
         return;
     }
     json_string(fp, s);
@@ -149,7 +157,8 @@ static int row_keep(q_out *o, const cat_row *row, bs_err *err)
         t->ncol = row->ncol;
         t->name = calloc(row->ncol > 0 ? (size_t)row->ncol : 1, sizeof *t->name);
         if (!t->name) return bs_fail(err, BS_ENOMEM, "query: out of memory");
-        for (int i = 0; i < row->ncol; i++) t->name[i] = dup_or_null(row->name[i], &failed);
+        for (int i = 0; i < row->ncol; i++)
+            t->name[i] = dup_or_null(row->name[i], &failed);
         return failed ? bs_fail(err, BS_ENOMEM, "query: out of memory") : 0;
     }
     if (t->nrow == t->cap) {
@@ -207,8 +216,10 @@ static char *cell_text(const char *s, int type, const char *column)
     if (!s) return strdup("");
     if (type == CAT_COL_REAL) {
         double v = strtod(s, NULL);
-        if (is_seconds_column(column)) seconds_text(v, num, sizeof num);
-        else snprintf(num, sizeof num, "%.6g", v);
+        if (is_seconds_column(column))
+            seconds_text(v, num, sizeof num);
+        else
+            snprintf(num, sizeof num, "%.6g", v);
         return strdup(num);
     }
     char *out = strdup(s);
@@ -229,13 +240,16 @@ static size_t wrap_next(const char **pos, size_t width)
         return n;
     }
     size_t cut = width;
-    while (cut > 0 && p[cut] != ' ') cut--;
+    while (cut > 0 && p[cut] != ' ')
+        cut--;
     if (cut == 0) {
         cut = width;
-        while (cut > 1 && ((unsigned char)p[cut] & 0xC0) == 0x80) cut--;
+        while (cut > 1 && ((unsigned char)p[cut] & 0xC0) == 0x80)
+            cut--;
     }
     *pos = p + cut;
-    while (**pos == ' ') (*pos)++;
+    while (**pos == ' ')
+        (*pos)++;
     return cut;
 }
 
@@ -244,10 +258,11 @@ static void table_row(FILE *fp, int ncol, char **shown, const int *type, const s
 {
     const char **pos = malloc((size_t)(ncol > 0 ? ncol : 1) * sizeof *pos);
     if (!pos) return;
-    for (int i = 0; i < ncol; i++) pos[i] = shown[i] ? shown[i] : "";
+    for (int i = 0; i < ncol; i++)
+        pos[i] = shown[i] ? shown[i] : "";
     for (int more = 1; more;) {
         more = 0;
-        size_t pending = 0;   /* padding owed; written only before further text, so no line ends in blanks */
+        size_t pending = 0; /* padding owed; written only before further text, so no line ends in blanks */
         for (int i = 0; i < ncol; i++) {
             const char *from = pos[i];
             size_t len = wrap_next(&pos[i], width[i]);
@@ -285,26 +300,31 @@ static void table_print(const q_table *t, FILE *fp)
         width[i] = head > longest ? head : longest;
         if (width[i] == 0) width[i] = 1;
     }
-    for (int i = 0; i < t->ncol; i++) fprintf(fp, "%s%-*s", i ? "  " : "", (int)width[i], t->name[i] ? t->name[i] : "");
+    for (int i = 0; i < t->ncol; i++)
+        fprintf(fp, "%s%-*s", i ? "  " : "", (int)width[i], t->name[i] ? t->name[i] : "");
     fputc('\n', fp);
     for (int i = 0; i < t->ncol; i++) {
         fputs(i ? "  " : "", fp);
-        for (size_t w = 0; w < width[i]; w++) fputc('-', fp);
+        for (size_t w = 0; w < width[i]; w++)
+            fputc('-', fp);
     }
     fputc('\n', fp);
     for (size_t r = 0; r < t->nrow; r++)
         table_row(fp, t->ncol, shown + r * (size_t)t->ncol, t->type + r * (size_t)t->ncol, width);
     fprintf(fp, "(%zu row%s)\n", t->nrow, t->nrow == 1 ? "" : "s");
 done:
-    for (size_t k = 0; shown && k < ncell; k++) free(shown[k]);
+    for (size_t k = 0; shown && k < ncell; k++)
+        free(shown[k]);
     free(shown);
     free(width);
 }
 
 static void table_free(q_table *t)
 {
-    for (int i = 0; t->name && i < t->ncol; i++) free(t->name[i]);
-    for (size_t k = 0; t->cell && k < t->nrow * (size_t)t->ncol; k++) free(t->cell[k]);
+    for (int i = 0; t->name && i < t->ncol; i++)
+        free(t->name[i]);
+    for (size_t k = 0; t->cell && k < t->nrow * (size_t)t->ncol; k++)
+        free(t->cell[k]);
     free(t->name);
     free(t->cell);
     free(t->type);
@@ -332,9 +352,11 @@ static int on_view(void *ctx, const cat_row *row, bs_err *err)
 static int view_sql(cat_db *cat, const char *name, char *sql, size_t len, bs_err *err)
 {
     view_list v = {"", 0, name};
-    int rc = cat_query(cat, "SELECT name FROM sqlite_master WHERE type = 'view' ORDER BY name", on_view, &v, err);
+    int rc =
+        cat_query(cat, "SELECT name FROM sqlite_master WHERE type = 'view' ORDER BY name", on_view, &v, err);
     if (rc != 0) return rc;
-    if (!v.found) return bs_fail(err, BS_EUSAGE, "no view \"%s\" in the catalogue (views: %s)", name, v.names);
+    if (!v.found)
+        return bs_fail(err, BS_EUSAGE, "no view \"%s\" in the catalogue (views: %s)", name, v.names);
     snprintf(sql, len, "SELECT * FROM \"%s\"", name);
     return 0;
 }
@@ -391,7 +413,9 @@ static int parse_args(int argc, char **argv, q_args *a)
         }
     }
     if (!a->path || (!a->sql && !a->view) || (a->sql && a->view)) {
-        fprintf(stderr, "bandsieve query: give a catalogue and either \"SQL\" or --view NAME (bandsieve query --help)\n");
+        fprintf(
+            stderr,
+            "bandsieve query: give a catalogue and either \"SQL\" or --view NAME (bandsieve query --help)\n");
         return 2;
     }
     return 0;

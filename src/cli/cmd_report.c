@@ -102,8 +102,10 @@ static int collect_row(void *ctx, const cat_row *row, bs_err *err)
     if (row->index > 0) return 0;
     for (int i = 0; i < row->ncol; i++) {
         if (strcmp(row->name[i], "card_json") == 0) continue;
-        if (row->text[i]) cJSON_AddStringToObject(o, row->name[i], row->text[i]);
-        else cJSON_AddNullToObject(o, row->name[i]);
+        if (row->text[i])
+            cJSON_AddStringToObject(o, row->name[i], row->text[i]);
+        else
+            cJSON_AddNullToObject(o, row->name[i]);
     }
     return 0;
 }
@@ -123,8 +125,8 @@ static void sql_quote(const char *s, char *buf, size_t n)
 }
 
 /* Catalogue mode for one material: the summary row's run, its diagnosis, flows and provenance. */
-static int report_catalogue_one(cat_db *cat, const char *cat_path, const char *id, const char *set, const char *out,
-                                bs_err *err)
+static int report_catalogue_one(cat_db *cat, const char *cat_path, const char *id, const char *set,
+                                const char *out, bs_err *err)
 {
     char q[512], sql[1400];
     sql_quote(id, q, sizeof q);
@@ -138,18 +140,24 @@ static int report_catalogue_one(cat_db *cat, const char *cat_path, const char *i
     int rc = cat_query(cat, sql, collect_row, sum, err);
     const cJSON *rid = cJSON_GetObjectItemCaseSensitive(sum, "run_id");
     if (rc == 0 && !cJSON_IsString(rid))
-        rc = bs_fail(err, BS_EINVAL, "%s: material '%s' has no successful result in the catalogue", cat_path, id);
+        rc = bs_fail(err, BS_EINVAL, "%s: material '%s' has no successful result in the catalogue", cat_path,
+                     id);
     long long run_id = rc == 0 ? atoll(rid->valuestring) : 0;
     if (rc == 0) {
-        snprintf(sql, sizeof sql, "SELECT diagnosis FROM results WHERE run_id = %lld AND material_id = %s", run_id, q);
+        snprintf(sql, sizeof sql, "SELECT diagnosis FROM results WHERE run_id = %lld AND material_id = %s",
+                 run_id, q);
         rc = cat_query(cat, sql, collect_row, res, err);
     }
-    const char *dtext = rc == 0 ? cJSON_GetStringValue(cJSON_GetObjectItemCaseSensitive(res, "diagnosis")) : NULL;
+    const char *dtext =
+        rc == 0 ? cJSON_GetStringValue(cJSON_GetObjectItemCaseSensitive(res, "diagnosis")) : NULL;
     if (rc == 0 && !(dtext && (diag = cJSON_Parse(dtext))))
-        rc = bs_fail(err, BS_EPARSE, "%s: results.diagnosis of '%s' (run %lld) is not JSON", cat_path, id, run_id);
+        rc = bs_fail(err, BS_EPARSE, "%s: results.diagnosis of '%s' (run %lld) is not JSON", cat_path, id,
+                     run_id);
     if (rc == 0) {
-        snprintf(sql, sizeof sql, "SELECT run_id, kind, status, started, ended, version, settings, set_path, ranks, "
-                 "cmdline FROM runs WHERE run_id = %lld", run_id);
+        snprintf(sql, sizeof sql,
+                 "SELECT run_id, kind, status, started, ended, version, settings, set_path, ranks, "
+                 "cmdline FROM runs WHERE run_id = %lld",
+                 run_id);
         rc = cat_query(cat, sql, collect_row, run, err);
     }
     if (rc == 0) {
@@ -196,9 +204,11 @@ static int report_catalogue_one(cat_db *cat, const char *cat_path, const char *i
         rc = rep_write(&in, out, t.path, err);
         tmpdir_remove(&t);
     }
-    for (int i = 0; i < nflow; i++) free(flows[i].kpar), free(flows[i].wcc);
+    for (int i = 0; i < nflow; i++)
+        free(flows[i].kpar), free(flows[i].wcc);
     tb_model_free(m);
-    cJSON_Delete(sum), cJSON_Delete(res), cJSON_Delete(run), cJSON_Delete(mat), cJSON_Delete(diag), cJSON_Delete(prov);
+    cJSON_Delete(sum), cJSON_Delete(res), cJSON_Delete(run), cJSON_Delete(mat), cJSON_Delete(diag),
+        cJSON_Delete(prov);
     return rc;
 }
 
@@ -220,34 +230,48 @@ static int collect_rows(void *ctx, const cat_row *row, bs_err *err)
 static void html_esc(FILE *fp, const char *s)
 {
     for (; s && *s; s++) {
-        if (*s == '<') fputs("&lt;", fp);
-        else if (*s == '>') fputs("&gt;", fp);
-        else if (*s == '&') fputs("&amp;", fp);
-        else if (*s == '"') fputs("&quot;", fp);
-        else fputc(*s, fp);
+        if (*s == '<')
+            fputs("&lt;", fp);
+        else if (*s == '>')
+            fputs("&gt;", fp);
+        else if (*s == '&')
+            fputs("&amp;", fp);
+        else if (*s == '"')
+            fputs("&quot;", fp);
+        else
+            fputc(*s, fp);
     }
 }
 
 /* The file name of a material's page: its id is [A-Za-z0-9_.+-] (card rule), safe as a name. */
-static int report_top(cat_db *cat, const char *cat_path, long n, const char *set, const char *dir, bs_err *err)
+static int report_top(cat_db *cat, const char *cat_path, long n, const char *set, const char *dir,
+                      bs_err *err)
 {
-    if (mkdir(dir, 0777) != 0 && errno != EEXIST) return bs_fail(err, BS_EIO, "%s: cannot create the folder", dir);
+    if (mkdir(dir, 0777) != 0 && errno != EEXIST)
+        return bs_fail(err, BS_EIO, "%s: cannot create the folder", dir);
     top_rows t = {cJSON_CreateArray()};
     char sql[300];
-    snprintf(sql, sizeof sql, "SELECT material_id, class, confidence, z2, chern, n_weyl, gap_indirect_ev, why "
-             "FROM candidates LIMIT %ld", n);
+    snprintf(sql, sizeof sql,
+             "SELECT material_id, class, confidence, z2, chern, n_weyl, gap_indirect_ev, why "
+             "FROM candidates LIMIT %ld",
+             n);
     int rc = cat_query(cat, sql, collect_rows, &t, err);
     char path[1200];
     snprintf(path, sizeof path, "%s/index.html", dir);
     FILE *fp = rc == 0 ? fopen(path, "w") : NULL;
     if (rc == 0 && !fp) rc = bs_fail(err, BS_EIO, "%s: cannot be written", path);
     if (fp) {
-        fprintf(fp, "<!DOCTYPE html>\n<html lang=\"en\"><head><meta charset=\"utf-8\"><title>bandsieve candidates"
-                    "</title><style>body{font-family:sans-serif;max-width:980px;margin:1.5em auto}table{border-collapse:"
-                    "collapse}th,td{border:1px solid #ccd;padding:.2em .6em}th{background:#f2f3f7}</style></head><body>\n"
-                    "<h1>Best %d candidates</h1>\n<p>From ", cJSON_GetArraySize(t.rows));
+        fprintf(fp,
+                "<!DOCTYPE html>\n<html lang=\"en\"><head><meta charset=\"utf-8\"><title>bandsieve candidates"
+                "</title><style>body{font-family:sans-serif;max-width:980px;margin:1.5em "
+                "auto}table{border-collapse:"
+                "collapse}th,td{border:1px solid #ccd;padding:.2em "
+                ".6em}th{background:#f2f3f7}</style></head><body>\n"
+                "<h1>Best %d candidates</h1>\n<p>From ",
+                cJSON_GetArraySize(t.rows));
         html_esc(fp, cat_path);
-        fprintf(fp, " (view <code>candidates</code>: nontrivial with confidence at least 0.7 first, then by gap).</p>\n"
+        fprintf(fp, " (view <code>candidates</code>: nontrivial with confidence at least 0.7 first, then by "
+                    "gap).</p>\n"
                     "<table><tr><th>material</th><th>class</th><th>confidence</th><th>Z2</th><th>Chern</th>"
                     "<th>Weyl nodes</th><th>indirect gap (eV)</th><th>why listed</th></tr>\n");
     }
@@ -261,7 +285,8 @@ static int report_top(cat_db *cat, const char *cat_path, long n, const char *set
         fprintf(fp, "<tr><td><a href=\"%s.html\">", id);
         html_esc(fp, id);
         fprintf(fp, "</a></td>");
-        static const char *const cols[] = {"class", "confidence", "z2", "chern", "n_weyl", "gap_indirect_ev", "why"};
+        static const char *const cols[] = {"class",  "confidence",      "z2", "chern",
+                                           "n_weyl", "gap_indirect_ev", "why"};
         for (size_t c = 0; c < sizeof cols / sizeof cols[0]; c++) {
             fprintf(fp, "<td>");
             html_esc(fp, cJSON_GetStringValue(cJSON_GetObjectItemCaseSensitive(r, cols[c])));
@@ -281,18 +306,25 @@ int cmd_report(int argc, char **argv)
 {
     static const struct option longopts[] = {
         {"output", required_argument, NULL, 'o'}, {"catalogue", required_argument, NULL, 'c'},
-        {"top", required_argument, NULL, 't'}, {"mesh", required_argument, NULL, 'm'},
-        {"help", no_argument, NULL, 'h'}, {NULL, 0, NULL, 0}};
+        {"top", required_argument, NULL, 't'},    {"mesh", required_argument, NULL, 'm'},
+        {"help", no_argument, NULL, 'h'},         {NULL, 0, NULL, 0}};
     const char *out = NULL, *catp = NULL;
     long top = 0, mesh = 0;
     int c;
     optind = 1;
     while ((c = getopt_long(argc, argv, "ho:c:", longopts, NULL)) != -1) {
-        if (c == 'h') { report_help(stdout); return 0; }
-        if (c == 'o') out = optarg;
-        else if (c == 'c') catp = optarg;
-        else if (c == 't' && cli_parse_int(optarg, 1, 100000, &top) == 0) continue;
-        else if (c == 'm' && cli_parse_int(optarg, 4, 400, &mesh) == 0) continue;
+        if (c == 'h') {
+            report_help(stdout);
+            return 0;
+        }
+        if (c == 'o')
+            out = optarg;
+        else if (c == 'c')
+            catp = optarg;
+        else if (c == 't' && cli_parse_int(optarg, 1, 100000, &top) == 0)
+            continue;
+        else if (c == 'm' && cli_parse_int(optarg, 4, 400, &mesh) == 0)
+            continue;
         else {
             if (c == 't' || c == 'm') fprintf(stderr, "bandsieve report: bad value '%s'\n", optarg);
             report_help(stderr);
@@ -302,7 +334,8 @@ int cmd_report(int argc, char **argv)
     int npos = argc - optind;
     int ok = out && (catp ? (top ? npos <= 1 : (npos == 1 || npos == 2)) : (!top && npos == 1));
     if (!ok) {
-        fprintf(stderr, "bandsieve report: need SOURCE -o FILE, -c CAT ID [SET] -o FILE, or --top N -c CAT [SET] -o DIR\n");
+        fprintf(stderr, "bandsieve report: need SOURCE -o FILE, -c CAT ID [SET] -o FILE, or --top N -c CAT "
+                        "[SET] -o DIR\n");
         report_help(stderr);
         return 2;
     }
@@ -315,8 +348,10 @@ int cmd_report(int argc, char **argv)
         cat_db *cat = NULL;
         rc = cat_open(catp, CAT_RO, &cat, &err);
         const char *set = top ? (npos == 1 ? argv[optind] : NULL) : (npos == 2 ? argv[optind + 1] : NULL);
-        if (rc == 0 && top) rc = report_top(cat, catp, top, set, out, &err);
-        else if (rc == 0) rc = report_catalogue_one(cat, catp, argv[optind], set, out, &err);
+        if (rc == 0 && top)
+            rc = report_top(cat, catp, top, set, out, &err);
+        else if (rc == 0)
+            rc = report_catalogue_one(cat, catp, argv[optind], set, out, &err);
         bs_err cerr;
         if (cat) cat_close(cat, &cerr);
     }

@@ -39,7 +39,7 @@ static void on_signal(int sig)
 typedef struct progress_state {
     int tty;
     double next_plain;
-    double plain_every;   /* 0: the default schedule */
+    double plain_every; /* 0: the default schedule */
     const char *what;
 } progress_state;
 
@@ -54,7 +54,8 @@ static double next_plain_after(const progress_state *p, double elapsed)
 
 static void format_classes(const pl_counts *c, char *buf, size_t len)
 {
-    static const char *const abbrev[RES_NCLASS] = {"triv", "STI", "WTI", "2DTI", "CI", "WSM", "NLSM", "metal", "undet", "TCI"};
+    static const char *const abbrev[RES_NCLASS] = {"triv", "STI",  "WTI",   "2DTI",  "CI",
+                                                   "WSM",  "NLSM", "metal", "undet", "TCI"};
     size_t n = 0;
     buf[0] = '\0';
     for (int i = 0; i < RES_NCLASS && n < len; i++)
@@ -68,9 +69,9 @@ static void format_progress(const pl_counts *c, char *buf, size_t len)
     double eta = rate > 0 ? left / rate : 0;
     int n = snprintf(buf, len, "%d/%d done", c->done, c->total);
     if (c->skipped) n += snprintf(buf + n, len - n, " (+%d resumed)", c->skipped);
-    n += snprintf(buf + n, len - n, ", %.2f/s, %s %.0fs | ok %d invalid %d failed %d timeout %d |",
-                  rate, left > 0 ? "left" : "took", left > 0 ? eta : c->elapsed, c->ok, c->invalid,
-                  c->failed, c->timeout);
+    n += snprintf(buf + n, len - n, ", %.2f/s, %s %.0fs | ok %d invalid %d failed %d timeout %d |", rate,
+                  left > 0 ? "left" : "took", left > 0 ? eta : c->elapsed, c->ok, c->invalid, c->failed,
+                  c->timeout);
     if (n > 0 && (size_t)n < len) format_classes(c, buf + n, len - (size_t)n);
 }
 
@@ -96,8 +97,8 @@ static void announce(void *ctx, const pl_counts *c, const char *kind)
 {
     progress_state *p = ctx;
     if (c->missing > 0)
-        fprintf(stderr, "%s: warning: %d selected material%s not in the set, left out: %s%s\n", p->what, c->missing,
-                c->missing == 1 ? " is" : "s are", c->missing_ids, c->missing > 5 ? ", ..." : "");
+        fprintf(stderr, "%s: warning: %d selected material%s not in the set, left out: %s%s\n", p->what,
+                c->missing, c->missing == 1 ? " is" : "s are", c->missing_ids, c->missing > 5 ? ", ..." : "");
     if (c->note[0]) fprintf(stderr, "%s: %s\n", p->what, c->note);
     if (c->run_id == 0)
         fprintf(stderr, "%s: 0 materials to do, %d already done (nothing new, so no run is added)\n", p->what,
@@ -117,10 +118,14 @@ static int parse_bytes(const char *text, double *out)
     double v = strtod(text, &end);
     if (end == text || !(v > 0) || v > 1e18) return -1;
     double unit = 1;
-    if (*end == 'k' || *end == 'K') unit = 1024.0, end++;
-    else if (*end == 'm' || *end == 'M') unit = 1024.0 * 1024, end++;
-    else if (*end == 'g' || *end == 'G') unit = 1024.0 * 1024 * 1024, end++;
-    else if (*end == 't' || *end == 'T') unit = 1024.0 * 1024 * 1024 * 1024, end++;
+    if (*end == 'k' || *end == 'K')
+        unit = 1024.0, end++;
+    else if (*end == 'm' || *end == 'M')
+        unit = 1024.0 * 1024, end++;
+    else if (*end == 'g' || *end == 'G')
+        unit = 1024.0 * 1024 * 1024, end++;
+    else if (*end == 't' || *end == 'T')
+        unit = 1024.0 * 1024 * 1024 * 1024, end++;
     if (*end == 'B' || *end == 'b') end++;
     if (*end) return -1;
     *out = v * unit;
@@ -130,58 +135,62 @@ static int parse_bytes(const char *text, double *out)
 static void screen_help(FILE *out, int rescreen)
 {
     if (rescreen)
-        fprintf(out, "usage: mpirun -n P bandsieve rescreen SET.h5 -c CAT.sqlite --where \"SQL condition\" [options]\n\n"
-                     "Reruns the materials whose row in the catalogue's summary view matches the condition,\n"
-                     "as a new run at a higher resolution; summary then shows the more resolved result.\n\n"
-                     "  --where COND        condition on the summary view, e.g. \"confidence < 0.7\"\n"
-                     "  --where-timeout S   stop selecting after S seconds (exit status 3); SIGTERM and\n"
-                     "                      SIGINT stop the selection at once in any case\n"
-                     "  --mesh N            k-mesh of the rerun (default: twice the mesh of each material's\n"
-                     "                      best result, so the rerun is always finer; twice the default mesh\n"
-                     "                      for a material without an ok result)\n"
-                     "  --rerun             start a new run even when the same rescreen was done before\n");
+        fprintf(out,
+                "usage: mpirun -n P bandsieve rescreen SET.h5 -c CAT.sqlite --where \"SQL condition\" "
+                "[options]\n\n"
+                "Reruns the materials whose row in the catalogue's summary view matches the condition,\n"
+                "as a new run at a higher resolution; summary then shows the more resolved result.\n\n"
+                "  --where COND        condition on the summary view, e.g. \"confidence < 0.7\"\n"
+                "  --where-timeout S   stop selecting after S seconds (exit status 3); SIGTERM and\n"
+                "                      SIGINT stop the selection at once in any case\n"
+                "  --mesh N            k-mesh of the rerun (default: twice the mesh of each material's\n"
+                "                      best result, so the rerun is always finer; twice the default mesh\n"
+                "                      for a material without an ok result)\n"
+                "  --rerun             start a new run even when the same rescreen was done before\n");
     else
-        fprintf(out, "usage: mpirun -n P bandsieve screen SET.h5 -c CAT.sqlite [options]\n\n"
-                     "Diagnoses every material of the set into the catalogue. Rank 0 coordinates and writes\n"
-                     "the catalogue; ranks 1.. compute (P = 1 does everything in one process). Running it\n"
-                     "again on the same catalogue resumes: materials whose content already has a result\n"
-                     "with the same settings are skipped, whatever the set's path; changed ones are redone.\n\n"
-                     "  --mesh N            k-mesh per direction (default 36 in 2D, 14 in 3D; at most 4096\n"
-                     "                      in 2D and 256 in 3D: a larger one is refused when the set\n"
-                     "                      holds 3D materials)\n"
-                     "  --rerun             start a new run and redo every material (otherwise a screen\n"
-                     "                      resumes an unfinished run and skips what earlier runs with\n"
-                     "                      the same settings already did); an unfinished run that an\n"
-                     "                      earlier --rerun started is resumed, with a note\n");
-    fprintf(out, "  -c, --catalogue F   the SQLite catalogue (created if missing)\n"
-                 "  --max-seconds S     wall-clock budget of the job: stop handing out work and\n"
-                 "                      leave the rest for a resumed run (status interrupted)\n"
-                 "  --material-seconds S  budget per material; over it the row is `timeout`\n"
-                 "  --material-memory M   memory one material may use (e.g. 4G; default: the node's\n"
-                 "                      memory divided by the ranks on it); an entry whose estimate\n"
-                 "                      is larger gets an `invalid` row saying so, before any work\n"
-                 "  --symmetry-tol T    relative residual under which time reversal and inversion are\n"
-                 "                      exact (default 1e-6); larger breakings are judged in eV\n"
-                 "                      against the gap (approximate: restored; broken: not)\n"
-                 "  --magnetism M       none | magnetic | unknown for every material, overriding the\n"
-                 "                      cards' \"magnetism\" key (default: each card's statement)\n"
-                 "  --position-tol A    Angstrom tolerance of the inversion map (default 0.05)\n"
-                 "  --transport         also the intrinsic anomalous and spin Hall conductivities\n"
-                 "                      (catalogue columns ahc_*, shc_xy; view top_spin_hall)\n"
-                 "  --surfaces          for nontrivial insulators, also the Fermi-level crossings of\n"
-                 "                      surface states on a default plane (view surfaces)\n"
-                 "  --group-size G      the last G ranks form a group that diagonalises materials of\n"
-                 "                      at least --group-min-states states (default 800) together\n"
-                 "                      with ScaLAPACK; smaller ones go to the single ranks\n"
-                 "  --batch N           commit the catalogue every N results (default 64) or 2 s\n"
-                 "  --progress-every S  seconds between progress lines when stderr is not a terminal\n"
-                 "                      (default: at 5, 10 and 20 s, then every 30 s)\n"
-                 "  --strict            exit 1 when any material is not ok (invalid, failed, timeout)\n"
-                 "  -h, --help          this text\n\n"
-                 "Exit status: 0 the run completed, whatever the materials' statuses (counted in the\n"
-                 "last line and the catalogue); 1 with --strict, some material is not ok; 2 usage%s;\n"
-                 "3 the job itself failed (set, catalogue, MPI); 4 interrupted by a signal or by\n"
-                 "--max-seconds: run the same command again to resume.\n",
+        fprintf(out,
+                "usage: mpirun -n P bandsieve screen SET.h5 -c CAT.sqlite [options]\n\n"
+                "Diagnoses every material of the set into the catalogue. Rank 0 coordinates and writes\n"
+                "the catalogue; ranks 1.. compute (P = 1 does everything in one process). Running it\n"
+                "again on the same catalogue resumes: materials whose content already has a result\n"
+                "with the same settings are skipped, whatever the set's path; changed ones are redone.\n\n"
+                "  --mesh N            k-mesh per direction (default 36 in 2D, 14 in 3D; at most 4096\n"
+                "                      in 2D and 256 in 3D: a larger one is refused when the set\n"
+                "                      holds 3D materials)\n"
+                "  --rerun             start a new run and redo every material (otherwise a screen\n"
+                "                      resumes an unfinished run and skips what earlier runs with\n"
+                "                      the same settings already did); an unfinished run that an\n"
+                "                      earlier --rerun started is resumed, with a note\n");
+    fprintf(out,
+            "  -c, --catalogue F   the SQLite catalogue (created if missing)\n"
+            "  --max-seconds S     wall-clock budget of the job: stop handing out work and\n"
+            "                      leave the rest for a resumed run (status interrupted)\n"
+            "  --material-seconds S  budget per material; over it the row is `timeout`\n"
+            "  --material-memory M   memory one material may use (e.g. 4G; default: the node's\n"
+            "                      memory divided by the ranks on it); an entry whose estimate\n"
+            "                      is larger gets an `invalid` row saying so, before any work\n"
+            "  --symmetry-tol T    relative residual under which time reversal and inversion are\n"
+            "                      exact (default 1e-6); larger breakings are judged in eV\n"
+            "                      against the gap (approximate: restored; broken: not)\n"
+            "  --magnetism M       none | magnetic | unknown for every material, overriding the\n"
+            "                      cards' \"magnetism\" key (default: each card's statement)\n"
+            "  --position-tol A    Angstrom tolerance of the inversion map (default 0.05)\n"
+            "  --transport         also the intrinsic anomalous and spin Hall conductivities\n"
+            "                      (catalogue columns ahc_*, shc_xy; view top_spin_hall)\n"
+            "  --surfaces          for nontrivial insulators, also the Fermi-level crossings of\n"
+            "                      surface states on a default plane (view surfaces)\n"
+            "  --group-size G      the last G ranks form a group that diagonalises materials of\n"
+            "                      at least --group-min-states states (default 800) together\n"
+            "                      with ScaLAPACK; smaller ones go to the single ranks\n"
+            "  --batch N           commit the catalogue every N results (default 64) or 2 s\n"
+            "  --progress-every S  seconds between progress lines when stderr is not a terminal\n"
+            "                      (default: at 5, 10 and 20 s, then every 30 s)\n"
+            "  --strict            exit 1 when any material is not ok (invalid, failed, timeout)\n"
+            "  -h, --help          this text\n\n"
+            "Exit status: 0 the run completed, whatever the materials' statuses (counted in the\n"
+            "last line and the catalogue); 1 with --strict, some material is not ok; 2 usage%s;\n"
+            "3 the job itself failed (set, catalogue, MPI); 4 interrupted by a signal or by\n"
+            "--max-seconds: run the same command again to resume.\n",
             rescreen ? " or no such catalogue" : "");
 }
 
@@ -192,21 +201,30 @@ static int final_line(const char *name, const pl_counts *c, const pl_opts *o, in
     char classes[256];
     format_classes(c, classes, sizeof classes);
     int not_ok = c->done - c->ok;
-    fprintf(stderr, "%s: run %lld %s: %d done (%d ok, %d invalid, %d failed, %d timeout), %d skipped as "
-                    "already done, %.1f s |%s\n", name, c->run_id, c->interrupted ? "interrupted" : "finished",
-            c->done, c->ok, c->invalid, c->failed, c->timeout, c->skipped, c->elapsed, classes[0] ? classes : " -");
+    fprintf(stderr,
+            "%s: run %lld %s: %d done (%d ok, %d invalid, %d failed, %d timeout), %d skipped as "
+            "already done, %.1f s |%s\n",
+            name, c->run_id, c->interrupted ? "interrupted" : "finished", c->done, c->ok, c->invalid,
+            c->failed, c->timeout, c->skipped, c->elapsed, classes[0] ? classes : " -");
     if (c->interrupted) {
         char why[96];
-        if (stop_signal) snprintf(why, sizeof why, "by signal %d (%s)", (int)stop_signal,
-                                  stop_signal == SIGTERM ? "SIGTERM" : stop_signal == SIGINT ? "SIGINT" :
-                                  stop_signal == SIGUSR1 ? "SIGUSR1" : "signal");
-        else snprintf(why, sizeof why, "by the --max-seconds budget of %g s", o->max_seconds);
-        fprintf(stderr, "%s: stopped %s with %d material(s) left; to resume, run the same command again "
-                        "(exit status %d)\n", name, why, c->total - c->done, SCREEN_EXIT_INTERRUPTED);
+        if (stop_signal)
+            snprintf(why, sizeof why, "by signal %d (%s)", (int)stop_signal,
+                     stop_signal == SIGTERM   ? "SIGTERM"
+                     : stop_signal == SIGINT  ? "SIGINT"
+                     : stop_signal == SIGUSR1 ? "SIGUSR1"
+                                              : "signal");
+        else
+            snprintf(why, sizeof why, "by the --max-seconds budget of %g s", o->max_seconds);
+        fprintf(stderr,
+                "%s: stopped %s with %d material(s) left; to resume, run the same command again "
+                "(exit status %d)\n",
+                name, why, c->total - c->done, SCREEN_EXIT_INTERRUPTED);
         return SCREEN_EXIT_INTERRUPTED;
     }
     if (strict && not_ok > 0) {
-        fprintf(stderr, "%s: --strict: %d material(s) not ok (exit status %d)\n", name, not_ok, SCREEN_EXIT_STRICT);
+        fprintf(stderr, "%s: --strict: %d material(s) not ok (exit status %d)\n", name, not_ok,
+                SCREEN_EXIT_STRICT);
         return SCREEN_EXIT_STRICT;
     }
     return SCREEN_EXIT_DONE;
@@ -214,16 +232,26 @@ static int final_line(const char *name, const pl_counts *c, const pl_opts *o, in
 
 static int screen_main(int argc, char **argv, int rescreen)
 {
-    static const struct option longopts[] = {
-        {"catalogue", required_argument, NULL, 'c'}, {"mesh", required_argument, NULL, 'm'},
-        {"max-seconds", required_argument, NULL, 't'}, {"material-seconds", required_argument, NULL, 'T'},
-        {"rerun", no_argument, NULL, 'r'}, {"where", required_argument, NULL, 'w'},
-        {"where-timeout", required_argument, NULL, 'W'}, {"material-memory", required_argument, NULL, 'M'},
-        {"batch", required_argument, NULL, 'b'}, {"symmetry-tol", required_argument, NULL, 'y'},
-        {"magnetism", required_argument, NULL, 'N'}, {"position-tol", required_argument, NULL, 'P'},
-        {"transport", no_argument, NULL, 'A'}, {"surfaces", no_argument, NULL, 'S'},
-        {"group-size", required_argument, NULL, 'g'}, {"group-min-states", required_argument, NULL, 'G'}, {"progress-every", required_argument, NULL, 'p'}, {"strict", no_argument, NULL, 's'},
-        {"help", no_argument, NULL, 'h'}, {NULL, 0, NULL, 0}};
+    static const struct option longopts[] = {{"catalogue", required_argument, NULL, 'c'},
+                                             {"mesh", required_argument, NULL, 'm'},
+                                             {"max-seconds", required_argument, NULL, 't'},
+                                             {"material-seconds", required_argument, NULL, 'T'},
+                                             {"rerun", no_argument, NULL, 'r'},
+                                             {"where", required_argument, NULL, 'w'},
+                                             {"where-timeout", required_argument, NULL, 'W'},
+                                             {"material-memory", required_argument, NULL, 'M'},
+                                             {"batch", required_argument, NULL, 'b'},
+                                             {"symmetry-tol", required_argument, NULL, 'y'},
+                                             {"magnetism", required_argument, NULL, 'N'},
+                                             {"position-tol", required_argument, NULL, 'P'},
+                                             {"transport", no_argument, NULL, 'A'},
+                                             {"surfaces", no_argument, NULL, 'S'},
+                                             {"group-size", required_argument, NULL, 'g'},
+                                             {"group-min-states", required_argument, NULL, 'G'},
+                                             {"progress-every", required_argument, NULL, 'p'},
+                                             {"strict", no_argument, NULL, 's'},
+                                             {"help", no_argument, NULL, 'h'},
+                                             {NULL, 0, NULL, 0}};
     const char *name = rescreen ? "bandsieve rescreen" : "bandsieve screen";
     pl_opts o;
     memset(&o, 0, sizeof o);
@@ -237,64 +265,110 @@ static int screen_main(int argc, char **argv, int rescreen)
         long v;
         double d;
         switch (c) {
-        case 'h': screen_help(stdout, rescreen); return 0;
-        case 'c': o.catalogue_path = optarg; break;
-        case 'r': o.rerun = 1; break;
-        case 's': strict = 1; break;
-        case 'A': o.transport = 1; break;
-        case 'S': o.surfaces = 1; break;
-        case 'g': case 'G':
+        case 'h':
+            screen_help(stdout, rescreen);
+            return 0;
+        case 'c':
+            o.catalogue_path = optarg;
+            break;
+        case 'r':
+            o.rerun = 1;
+            break;
+        case 's':
+            strict = 1;
+            break;
+        case 'A':
+            o.transport = 1;
+            break;
+        case 'S':
+            o.surfaces = 1;
+            break;
+        case 'g':
+        case 'G':
             if (cli_parse_int(optarg, c == 'g' ? 2 : 2, 1 << 20, &v)) {
                 fprintf(stderr, "%s: --%s expects an integer >= 2, got '%s'\n", name,
                         c == 'g' ? "group-size" : "group-min-states", optarg);
                 return 2;
             }
-            if (c == 'g') o.group_size = (int)v;
-            else o.group_min_states = (int)v;
+            if (c == 'g')
+                o.group_size = (int)v;
+            else
+                o.group_min_states = (int)v;
             break;
-        case 'w': o.where_sql = optarg; break;
+        case 'w':
+            o.where_sql = optarg;
+            break;
         case 'M':
             if (parse_bytes(optarg, &o.material_memory)) {
-                fprintf(stderr, "%s: --material-memory expects a size such as 4G, 500M or 2e9 (bytes), got '%s'\n",
+                fprintf(stderr,
+                        "%s: --material-memory expects a size such as 4G, 500M or 2e9 (bytes), got '%s'\n",
                         name, optarg);
                 return 2;
             }
             break;
         case 'm':
-            if (cli_parse_int(optarg, 4, 4096, &v)) { fprintf(stderr, "%s: --mesh expects an integer 4..4096, got '%s'\n", name, optarg); return 2; }
+            if (cli_parse_int(optarg, 4, 4096, &v)) {
+                fprintf(stderr, "%s: --mesh expects an integer 4..4096, got '%s'\n", name, optarg);
+                return 2;
+            }
             o.mesh = (int)v;
             break;
         case 'b':
-            if (cli_parse_int(optarg, 1, 1000000, &v)) { fprintf(stderr, "%s: --batch expects a positive integer, got '%s'\n", name, optarg); return 2; }
+            if (cli_parse_int(optarg, 1, 1000000, &v)) {
+                fprintf(stderr, "%s: --batch expects a positive integer, got '%s'\n", name, optarg);
+                return 2;
+            }
             o.batch_rows = (int)v;
             break;
         case 'N': {
             int mag = tb_magnetism_parse(optarg);
-            if (mag < 0) { fprintf(stderr, "%s: --magnetism expects none, magnetic or unknown, got '%s'\n", name, optarg); return 2; }
+            if (mag < 0) {
+                fprintf(stderr, "%s: --magnetism expects none, magnetic or unknown, got '%s'\n", name,
+                        optarg);
+                return 2;
+            }
             o.magnetism = 1 + mag;
             break;
         }
         case 'P':
-            if (cli_parse_double(optarg, &d) || d <= 0 || d >= 1) { fprintf(stderr, "%s: --position-tol expects Angstrom in (0,1), got '%s'\n", name, optarg); return 2; }
+            if (cli_parse_double(optarg, &d) || d <= 0 || d >= 1) {
+                fprintf(stderr, "%s: --position-tol expects Angstrom in (0,1), got '%s'\n", name, optarg);
+                return 2;
+            }
             o.pos_tol_ang = d;
             break;
         case 'y':
-            if (cli_parse_double(optarg, &d) || d <= 0 || d >= 1) { fprintf(stderr, "%s: --symmetry-tol expects a number in (0,1), got '%s'\n", name, optarg); return 2; }
-            o.symmetry_tol = d;
-            break;
-        case 't': case 'T': case 'p': case 'W':
-            if (cli_parse_double(optarg, &d) || d <= 0) {
-                fprintf(stderr, "%s: --%s expects a positive number, got '%s'\n", name,
-                        c == 't' ? "max-seconds" : c == 'T' ? "material-seconds" : c == 'W' ? "where-timeout"
-                                                                                    : "progress-every", optarg);
+            if (cli_parse_double(optarg, &d) || d <= 0 || d >= 1) {
+                fprintf(stderr, "%s: --symmetry-tol expects a number in (0,1), got '%s'\n", name, optarg);
                 return 2;
             }
-            if (c == 'W') o.where_seconds = d;
-            else if (c == 't') o.max_seconds = d;
-            else if (c == 'T') o.material_seconds = d;
-            else ps.plain_every = d;
+            o.symmetry_tol = d;
             break;
-        default: screen_help(stderr, rescreen); return 2;
+        case 't':
+        case 'T':
+        case 'p':
+        case 'W':
+            if (cli_parse_double(optarg, &d) || d <= 0) {
+                fprintf(stderr, "%s: --%s expects a positive number, got '%s'\n", name,
+                        c == 't'   ? "max-seconds"
+                        : c == 'T' ? "material-seconds"
+                        : c == 'W' ? "where-timeout"
+                                   : "progress-every",
+                        optarg);
+                return 2;
+            }
+            if (c == 'W')
+                o.where_seconds = d;
+            else if (c == 't')
+                o.max_seconds = d;
+            else if (c == 'T')
+                o.material_seconds = d;
+            else
+                ps.plain_every = d;
+            break;
+        default:
+            screen_help(stderr, rescreen);
+            return 2;
         }
     }
     if (optind != argc - 1 || !o.catalogue_path) {
@@ -313,14 +387,16 @@ static int screen_main(int argc, char **argv, int rescreen)
     o.set_path = realpath(argv[optind], set_real) ? set_real : argv[optind];
     /* The command line is recorded whole (a --where condition can be long). */
     size_t cmd_len = sizeof "bandsieve";
-    for (int i = 0; i < argc; i++) cmd_len += strlen(argv[i]) + 1;
+    for (int i = 0; i < argc; i++)
+        cmd_len += strlen(argv[i]) + 1;
     char *cmdline = malloc(cmd_len);
     if (!cmdline) {
         fprintf(stderr, "%s: out of memory\n", name);
         return 3;
     }
     size_t used = (size_t)snprintf(cmdline, cmd_len, "bandsieve");
-    for (int i = 0; i < argc; i++) used += (size_t)snprintf(cmdline + used, cmd_len - used, " %s", argv[i]);
+    for (int i = 0; i < argc; i++)
+        used += (size_t)snprintf(cmdline + used, cmd_len - used, " %s", argv[i]);
     o.cmdline = cmdline;
     o.stop_flag = &stop_requested;
     o.progress = show_progress;
@@ -349,8 +425,10 @@ static int screen_main(int argc, char **argv, int rescreen)
     if (rescreen) MPI_Bcast(&missing, 1, MPI_INT, 0, MPI_COMM_WORLD);
     if (missing) {
         if (rank == 0)
-            fprintf(stderr, "%s: %s: no such catalogue (rescreen reruns entries of an existing catalogue; "
-                            "`screen` creates one)\n", name, o.catalogue_path);
+            fprintf(stderr,
+                    "%s: %s: no such catalogue (rescreen reruns entries of an existing catalogue; "
+                    "`screen` creates one)\n",
+                    name, o.catalogue_path);
         MPI_Finalize();
         free(cmdline);
         return SCREEN_EXIT_USAGE;
@@ -367,5 +445,11 @@ static int screen_main(int argc, char **argv, int rescreen)
     return final_line(name, &counts, &o, strict);
 }
 
-int cmd_screen(int argc, char **argv) { return screen_main(argc, argv, 0); }
-int cmd_rescreen(int argc, char **argv) { return screen_main(argc, argv, 1); }
+int cmd_screen(int argc, char **argv)
+{
+    return screen_main(argc, argv, 0);
+}
+int cmd_rescreen(int argc, char **argv)
+{
+    return screen_main(argc, argv, 1);
+}

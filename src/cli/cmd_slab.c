@@ -23,15 +23,15 @@
 
 /* Said when no Dirac point is found: the slab alone cannot tell a trivial surface from two
  * surfaces that still hybridise; the bulk parities can (screen --surfaces checks them). */
-#define THIN_NOTE                                                                                          \
-    "no surface Dirac point at this thickness: a trivial surface, or, for a strong or 2D TI, a slab too " \
-    "thin whose two surfaces still hybridise (add --layers; screen --surfaces grows the slab and checks " \
+#define THIN_NOTE                                                                                            \
+    "no surface Dirac point at this thickness: a trivial surface, or, for a strong or 2D TI, a slab too "    \
+    "thin whose two surfaces still hybridise (add --layers; screen --surfaces grows the slab and checks "    \
     "the counts against the bulk parities)"
 
 typedef struct slab_args {
     const char *source, *svg, *arrays;
     int miller[3], nmiller, layers, nsurf, nk, mesh, json, side, has_fermi, has_energy, has_window;
-    int between[2];             /* surface TRIM indices t = n1 + 2 n2 */
+    int between[2]; /* surface TRIM indices t = n1 + 2 n2 */
     int npath;
     double path[SLAB_MAX_PATH][2];
     double cut, fermi, energy, eta, window[2];
@@ -39,36 +39,38 @@ typedef struct slab_args {
 
 static void slab_help(FILE *out)
 {
-    fprintf(out,
-            "usage: bandsieve slab SOURCE --direction h,k,l --layers N [options]\n\n"
-            "Cuts SOURCE along the lattice plane with Miller indices h,k,l (relative to the model's own\n"
-            "lattice vectors; for a 2D model the edge line h,k, giving a ribbon) and keeps N cells.\n"
-            "Reports the bulk gap, the Fermi-level crossings by top- and bottom-surface states between\n"
-            "two surface TRIMs (odd: the surface cannot be trivial), and the surface Dirac points\n"
-            "(Kramers points of surface bands at surface TRIMs inside the bulk gap).\n"
-            "Surface TRIMs are named by n1n2 for k' = (n1, n2)/2: 00 10 01 11 (a ribbon: 0 1).\n\n"
-            "  --direction h,k,l   Miller indices (coprime; h,k for a 2D model)\n"
-            "  --layers N          cells in the slab (2..%d / states per cell)\n"
-            "  --between A,B       the two surface TRIMs for the crossing count (default 00,10; ribbon 0,1)\n"
-            "  --fermi E           Fermi level in eV (default: 60%% of the way up the bulk gap)\n"
-            "  --surface-layers S  cells counted as a surface (default max(2, N/8))\n"
-            "  --cut C             termination: orbitals at stacking coordinate [C, C+1) form a cell (default 0)\n"
-            "  --path P            surface path, points k1,k2 (ribbon: k1) joined by ':'\n"
-            "                      (default 0,0:0.5,0:0.5,0.5:0,0; ribbon 0:0.5:1)\n"
-            "  --nk N              samples per path segment (default 60)\n"
-            "  --energy E          surface spectral function at E (eV): a map over the zone, and along the path\n"
-            "  --window LO,HI      energy-resolved spectral function along the path over LO..HI (eV)\n"
-            "  --eta ETA           broadening in eV (default 0.01)\n"
-            "  --mesh M            map resolution M x M (default 60)\n"
-            "  --side top|bottom   surface for the spectral function (default top)\n"
-            "  --json              print one JSON object\n"
-            "  --figure FILE       figure (.svg, .png or .pdf): the --window path map, else the --energy\n"
-            "                      map, else the slab bands with top (up triangles) and bottom (down)\n"
-            "                      surface weights; --svg FILE is the same option\n"
-            "  --arrays FILE.h5    write the computed arrays (path, bands and weights, spectral map and\n"
-            "                      path spectra) as HDF5 datasets, for an artifacts folder\n"
-            "  -h, --help          this text\n",
-            20000);
+    fprintf(
+        out,
+        "usage: bandsieve slab SOURCE --direction h,k,l --layers N [options]\n\n"
+        "Cuts SOURCE along the lattice plane with Miller indices h,k,l (relative to the model's own\n"
+        "lattice vectors; for a 2D model the edge line h,k, giving a ribbon) and keeps N cells.\n"
+        "Reports the bulk gap, the Fermi-level crossings by top- and bottom-surface states between\n"
+        "two surface TRIMs (odd: the surface cannot be trivial), and the surface Dirac points\n"
+        "(Kramers points of surface bands at surface TRIMs inside the bulk gap).\n"
+        "Surface TRIMs are named by n1n2 for k' = (n1, n2)/2: 00 10 01 11 (a ribbon: 0 1).\n\n"
+        "  --direction h,k,l   Miller indices (coprime; h,k for a 2D model)\n"
+        "  --layers N          cells in the slab (2..%d / states per cell)\n"
+        "  --between A,B       the two surface TRIMs for the crossing count (default 00,10; ribbon 0,1)\n"
+        "  --fermi E           Fermi level in eV (default: 60%% of the way up the bulk gap)\n"
+        "  --surface-layers S  cells counted as a surface (default max(2, N/8))\n"
+        "  --cut C             termination: orbitals at stacking coordinate [C, C+1) form a cell (default "
+        "0)\n"
+        "  --path P            surface path, points k1,k2 (ribbon: k1) joined by ':'\n"
+        "                      (default 0,0:0.5,0:0.5,0.5:0,0; ribbon 0:0.5:1)\n"
+        "  --nk N              samples per path segment (default 60)\n"
+        "  --energy E          surface spectral function at E (eV): a map over the zone, and along the path\n"
+        "  --window LO,HI      energy-resolved spectral function along the path over LO..HI (eV)\n"
+        "  --eta ETA           broadening in eV (default 0.01)\n"
+        "  --mesh M            map resolution M x M (default 60)\n"
+        "  --side top|bottom   surface for the spectral function (default top)\n"
+        "  --json              print one JSON object\n"
+        "  --figure FILE       figure (.svg, .png or .pdf): the --window path map, else the --energy\n"
+        "                      map, else the slab bands with top (up triangles) and bottom (down)\n"
+        "                      surface weights; --svg FILE is the same option\n"
+        "  --arrays FILE.h5    write the computed arrays (path, bands and weights, spectral map and\n"
+        "                      path spectra) as HDF5 datasets, for an artifacts folder\n"
+        "  -h, --help          this text\n",
+        20000);
 }
 
 static int parse_ints(const char *text, int *v, int max, int *count)
@@ -101,7 +103,8 @@ static int parse_between(const char *text, int kdim, int t[2])
 {
     const char *comma = strchr(text, ',');
     if (!comma) return -1;
-    if (parse_trim(text, (size_t)(comma - text), kdim, &t[0]) || parse_trim(comma + 1, strlen(comma + 1), kdim, &t[1]))
+    if (parse_trim(text, (size_t)(comma - text), kdim, &t[0]) ||
+        parse_trim(comma + 1, strlen(comma + 1), kdim, &t[1]))
         return -1;
     return t[0] == t[1] ? -1 : 0;
 }
@@ -136,50 +139,70 @@ static int usage_error(const char *msg, const char *arg)
  * path are kept as text until the dimension is known. */
 static int parse_args(int argc, char **argv, slab_args *a, const char **between, const char **path)
 {
-    static const struct option longopts[] = {
-        {"direction", required_argument, NULL, 'd'}, {"layers", required_argument, NULL, 'n'},
-        {"between", required_argument, NULL, 'b'}, {"fermi", required_argument, NULL, 'f'},
-        {"surface-layers", required_argument, NULL, 's'}, {"cut", required_argument, NULL, 'c'},
-        {"path", required_argument, NULL, 'p'}, {"nk", required_argument, NULL, 'k'},
-        {"energy", required_argument, NULL, 'e'}, {"window", required_argument, NULL, 'w'},
-        {"eta", required_argument, NULL, 't'}, {"mesh", required_argument, NULL, 'm'},
-        {"side", required_argument, NULL, 'S'}, {"json", no_argument, NULL, 'j'},
-        {"svg", required_argument, NULL, 'g'}, {"figure", required_argument, NULL, 'g'}, {"arrays", required_argument, NULL, 'A'},
-        {"help", no_argument, NULL, 'h'}, {NULL, 0, NULL, 0}};
+    static const struct option longopts[] = {{"direction", required_argument, NULL, 'd'},
+                                             {"layers", required_argument, NULL, 'n'},
+                                             {"between", required_argument, NULL, 'b'},
+                                             {"fermi", required_argument, NULL, 'f'},
+                                             {"surface-layers", required_argument, NULL, 's'},
+                                             {"cut", required_argument, NULL, 'c'},
+                                             {"path", required_argument, NULL, 'p'},
+                                             {"nk", required_argument, NULL, 'k'},
+                                             {"energy", required_argument, NULL, 'e'},
+                                             {"window", required_argument, NULL, 'w'},
+                                             {"eta", required_argument, NULL, 't'},
+                                             {"mesh", required_argument, NULL, 'm'},
+                                             {"side", required_argument, NULL, 'S'},
+                                             {"json", no_argument, NULL, 'j'},
+                                             {"svg", required_argument, NULL, 'g'},
+                                             {"figure", required_argument, NULL, 'g'},
+                                             {"arrays", required_argument, NULL, 'A'},
+                                             {"help", no_argument, NULL, 'h'},
+                                             {NULL, 0, NULL, 0}};
     long v;
     double wv[3];
     int c;
     optind = 1;
     while ((c = getopt_long(argc, argv, "h", longopts, NULL)) != -1) {
         switch (c) {
-        case 'h': slab_help(stdout); return -1;
+        case 'h':
+            slab_help(stdout);
+            return -1;
         case 'd':
             if (parse_ints(optarg, a->miller, 3, &a->nmiller) || a->nmiller < 2)
                 return usage_error("--direction expects h,k,l (or h,k for a 2D model) integers, got", optarg);
             break;
         case 'n':
-            if (cli_parse_int(optarg, 2, 20000, &v)) return usage_error("--layers expects an integer 2..20000, got", optarg);
+            if (cli_parse_int(optarg, 2, 20000, &v))
+                return usage_error("--layers expects an integer 2..20000, got", optarg);
             a->layers = (int)v;
             break;
-        case 'b': *between = optarg; break;
+        case 'b':
+            *between = optarg;
+            break;
         case 'f':
-            if (cli_parse_double(optarg, &a->fermi)) return usage_error("--fermi expects a number (eV), got", optarg);
+            if (cli_parse_double(optarg, &a->fermi))
+                return usage_error("--fermi expects a number (eV), got", optarg);
             a->has_fermi = 1;
             break;
         case 's':
-            if (cli_parse_int(optarg, 1, 20000, &v)) return usage_error("--surface-layers expects a positive integer, got", optarg);
+            if (cli_parse_int(optarg, 1, 20000, &v))
+                return usage_error("--surface-layers expects a positive integer, got", optarg);
             a->nsurf = (int)v;
             break;
         case 'c':
             if (cli_parse_double(optarg, &a->cut)) return usage_error("--cut expects a number, got", optarg);
             break;
-        case 'p': *path = optarg; break;
+        case 'p':
+            *path = optarg;
+            break;
         case 'k':
-            if (cli_parse_int(optarg, 2, 100000, &v)) return usage_error("--nk expects an integer >= 2, got", optarg);
+            if (cli_parse_int(optarg, 2, 100000, &v))
+                return usage_error("--nk expects an integer >= 2, got", optarg);
             a->nk = (int)v;
             break;
         case 'e':
-            if (cli_parse_double(optarg, &a->energy)) return usage_error("--energy expects a number (eV), got", optarg);
+            if (cli_parse_double(optarg, &a->energy))
+                return usage_error("--energy expects a number (eV), got", optarg);
             a->has_energy = 1;
             break;
         case 'w':
@@ -190,21 +213,34 @@ static int parse_args(int argc, char **argv, slab_args *a, const char **between,
             a->has_window = 1;
             break;
         case 't':
-            if (cli_parse_double(optarg, &a->eta) || !(a->eta > 0)) return usage_error("--eta expects a positive number (eV), got", optarg);
+            if (cli_parse_double(optarg, &a->eta) || !(a->eta > 0))
+                return usage_error("--eta expects a positive number (eV), got", optarg);
             break;
         case 'm':
-            if (cli_parse_int(optarg, 2, 2000, &v)) return usage_error("--mesh expects an integer 2..2000, got", optarg);
+            if (cli_parse_int(optarg, 2, 2000, &v))
+                return usage_error("--mesh expects an integer 2..2000, got", optarg);
             a->mesh = (int)v;
             break;
         case 'S':
-            if (!strcmp(optarg, "top")) a->side = SG_TOP;
-            else if (!strcmp(optarg, "bottom")) a->side = SG_BOTTOM;
-            else return usage_error("--side expects top or bottom, got", optarg);
+            if (!strcmp(optarg, "top"))
+                a->side = SG_TOP;
+            else if (!strcmp(optarg, "bottom"))
+                a->side = SG_BOTTOM;
+            else
+                return usage_error("--side expects top or bottom, got", optarg);
             break;
-        case 'j': a->json = 1; break;
-        case 'g': a->svg = optarg; break;
-        case 'A': a->arrays = optarg; break;
-        default: slab_help(stderr); return 2;
+        case 'j':
+            a->json = 1;
+            break;
+        case 'g':
+            a->svg = optarg;
+            break;
+        case 'A':
+            a->arrays = optarg;
+            break;
+        default:
+            slab_help(stderr);
+            return 2;
         }
     }
     if (optind != argc - 1) return usage_error("need exactly one SOURCE (bandsieve slab --help)", NULL);
@@ -224,9 +260,11 @@ static int finish_args(slab_args *a, int kdim, const char *between, const char *
     a->between[1] = 1;
     if (between && parse_between(between, kdim, a->between))
         return usage_error(kdim == 2 ? "--between expects two different surface TRIMs among 00,10,01,11, got"
-                                     : "--between expects 0,1 or 1,0 for a ribbon, got", between);
+                                     : "--between expects 0,1 or 1,0 for a ribbon, got",
+                           between);
     if (path) {
-        if (parse_path(path, a)) return usage_error("--path expects at least two points k1[,k2] joined by ':', got", path);
+        if (parse_path(path, a))
+            return usage_error("--path expects at least two points k1[,k2] joined by ':', got", path);
     } else if (kdim == 2) {
         static const double def[4][2] = {{0, 0}, {0.5, 0}, {0.5, 0.5}, {0, 0}};
         memcpy(a->path, def, sizeof def);
@@ -237,7 +275,8 @@ static int finish_args(slab_args *a, int kdim, const char *between, const char *
         a->npath = 3;
     }
     if (kdim == 1)
-        for (int i = 0; i < a->npath; i++) a->path[i][1] = 0;
+        for (int i = 0; i < a->npath; i++)
+            a->path[i][1] = 0;
     return 0;
 }
 
@@ -246,18 +285,25 @@ typedef struct slab_result {
     int n_top, n_bottom, n_other;
     int ndirac;
     ss_dirac dirac[16];
-    int nkp;                    /* path samples */
-    double *kp, *xp;            /* 2 nkp in-plane k, nkp distances along the path */
-    double *E, *wt, *wb;        /* nkp * nstates bands and weights (when computed) */
-    double *map;                /* mesh^2 (or mesh) spectral map at the energy */
-    double *apath;              /* nkp spectral function at the energy along the path */
+    int nkp;             /* path samples */
+    double *kp, *xp;     /* 2 nkp in-plane k, nkp distances along the path */
+    double *E, *wt, *wb; /* nkp * nstates bands and weights (when computed) */
+    double *map;         /* mesh^2 (or mesh) spectral map at the energy */
+    double *apath;       /* nkp spectral function at the energy along the path */
     int ne;
-    double *awin;               /* nkp * ne energy-resolved along the path */
+    double *awin; /* nkp * ne energy-resolved along the path */
 } slab_result;
 
 static void result_clear(slab_result *r)
 {
-    free(r->kp); free(r->xp); free(r->E); free(r->wt); free(r->wb); free(r->map); free(r->apath); free(r->awin);
+    free(r->kp);
+    free(r->xp);
+    free(r->E);
+    free(r->wt);
+    free(r->wb);
+    free(r->map);
+    free(r->apath);
+    free(r->awin);
 }
 
 /* Samples the path (Cartesian length from the rebased reciprocal vectors, so segments are drawn
@@ -280,7 +326,8 @@ static int sample_path(const slab *s, const slab_args *a, slab_result *r, bs_err
             k[1] = a->path[g][1] + t * (a->path[g + 1][1] - a->path[g][1]);
             if (j > 0) {
                 double d[3] = {0, 0, 0};
-                for (int c = 0; c < 3; c++) d[c] = (k[0] - k[-2]) * b[0][c] + (k[1] - k[-1]) * b[1][c];
+                for (int c = 0; c < 3; c++)
+                    d[c] = (k[0] - k[-2]) * b[0][c] + (k[1] - k[-1]) * b[1][c];
                 x += sqrt(d[0] * d[0] + d[1] * d[1] + d[2] * d[2]);
             }
             r->xp[j++] = x;
@@ -297,7 +344,8 @@ static int compute_bands(ss_ctx *c, int ns, slab_result *r, bs_err *err)
     if (!r->E || !r->wt || !r->wb) return bs_fail(err, BS_ENOMEM, "out of memory for the slab bands");
     int rc = 0;
     for (int j = 0; j < r->nkp && rc == 0; j++)
-        rc = ss_bands(c, r->kp + 2 * j, r->E + (size_t)j * ns, r->wt + (size_t)j * ns, r->wb + (size_t)j * ns, err);
+        rc = ss_bands(c, r->kp + 2 * j, r->E + (size_t)j * ns, r->wt + (size_t)j * ns, r->wb + (size_t)j * ns,
+                      err);
     return rc;
 }
 
@@ -310,13 +358,15 @@ static int compute_spectral(const slab *s, const slab_args *a, slab_result *r, b
         r->apath = malloc((size_t)r->nkp * sizeof *r->apath);
         if (!r->map || !r->apath) rc = bs_fail(err, BS_ENOMEM, "out of memory for the spectral map");
         if (rc == 0) rc = sg_map(g, a->energy, a->eta, a->side, a->mesh, n2, r->map, err);
-        for (int j = 0; rc == 0 && j < r->nkp; j++) rc = sg_spectral(g, r->kp + 2 * j, a->energy, a->eta, a->side, &r->apath[j], err);
+        for (int j = 0; rc == 0 && j < r->nkp; j++)
+            rc = sg_spectral(g, r->kp + 2 * j, a->energy, a->eta, a->side, &r->apath[j], err);
     }
     if (rc == 0 && a->has_window) {
         r->ne = 121;
         r->awin = malloc((size_t)r->nkp * r->ne * sizeof *r->awin);
         if (!r->awin) rc = bs_fail(err, BS_ENOMEM, "out of memory for the spectral path");
-        if (rc == 0) rc = sg_path(g, r->nkp, r->kp, r->ne, a->window[0], a->window[1], a->eta, a->side, r->awin, err);
+        if (rc == 0)
+            rc = sg_path(g, r->nkp, r->kp, r->ne, a->window[0], a->window[1], a->eta, a->side, r->awin, err);
     }
     sg_free(g);
     return rc;
@@ -336,8 +386,8 @@ static int analyse(const slab *s, const tb_model *m, const slab_args *a, slab_re
     int nt;
     if (rc == 0) {
         ss_trims(c, kt, &nt);
-        rc = ss_crossings(c, kt + 2 * a->between[0], kt + 2 * a->between[1], r->fermi, &r->n_top, &r->n_bottom,
-                          &r->n_other, err);
+        rc = ss_crossings(c, kt + 2 * a->between[0], kt + 2 * a->between[1], r->fermi, &r->n_top,
+                          &r->n_bottom, &r->n_other, err);
     }
     if (rc == 0) rc = ss_dirac_points(c, r->dirac, 16, &r->ndirac, err);
     /* Dirac points are kept only inside the global bulk gap by a margin and two-fold (a projected
@@ -348,7 +398,8 @@ static int analyse(const slab *s, const tb_model *m, const slab_args *a, slab_re
         if (ssum_dirac_ok(&r->dirac[i], r->vbm, r->cbm)) r->dirac[keep++] = r->dirac[i];
     if (rc == 0) r->ndirac = keep;
     if (rc == 0) rc = sample_path(s, a, r, err);
-    if (rc == 0 && (a->json || a->arrays || (a->svg && !a->has_energy && !a->has_window))) rc = compute_bands(c, slab_nstates(s), r, err);
+    if (rc == 0 && (a->json || a->arrays || (a->svg && !a->has_energy && !a->has_window)))
+        rc = compute_bands(c, slab_nstates(s), r, err);
     ss_free(c);
     if (rc == 0 && (a->has_energy || a->has_window)) rc = compute_spectral(s, a, r, err);
     return rc;
@@ -371,7 +422,8 @@ static cJSON *dirac_json(const slab_result *r, int side, int kdim)
 static cJSON *rows_json(const double *v, int nrow, int ncol)
 {
     cJSON *arr = cJSON_CreateArray();
-    for (int j = 0; j < nrow; j++) cJSON_AddItemToArray(arr, cJSON_CreateDoubleArray(v + (size_t)j * ncol, ncol));
+    for (int j = 0; j < nrow; j++)
+        cJSON_AddItemToArray(arr, cJSON_CreateDoubleArray(v + (size_t)j * ncol, ncol));
     return arr;
 }
 
@@ -385,7 +437,8 @@ static int print_json(const slab *s, const slab_args *a, const slab_result *r)
     cJSON_AddNumberToObject(root, "layers", a->layers);
     cJSON_AddNumberToObject(root, "states", ns);
     cJSON *basis = cJSON_AddArrayToObject(root, "basis");
-    for (int i = 0; i < 3; i++) cJSON_AddItemToArray(basis, cJSON_CreateIntArray(M[i], 3));
+    for (int i = 0; i < 3; i++)
+        cJSON_AddItemToArray(basis, cJSON_CreateIntArray(M[i], 3));
     cJSON *gap = cJSON_AddObjectToObject(root, "bulk_edges_eV");
     cJSON_AddNumberToObject(gap, "valence_max", r->vbm);
     cJSON_AddNumberToObject(gap, "conduction_min", r->cbm);
@@ -395,9 +448,13 @@ static int print_json(const slab *s, const slab_args *a, const slab_result *r)
     cJSON_AddNumberToObject(cr, "bottom", r->n_bottom);
     cJSON_AddNumberToObject(cr, "other", r->n_other);
     double kt[8];
-    for (int t = 0; t < 4; t++) { kt[2 * t] = 0.5 * (t % 2); kt[2 * t + 1] = 0.5 * (t / 2); }
+    for (int t = 0; t < 4; t++) {
+        kt[2 * t] = 0.5 * (t % 2);
+        kt[2 * t + 1] = 0.5 * (t / 2);
+    }
     cJSON *bt = cJSON_AddArrayToObject(cr, "between");
-    for (int i = 0; i < 2; i++) cJSON_AddItemToArray(bt, cJSON_CreateDoubleArray(kt + 2 * a->between[i], kdim));
+    for (int i = 0; i < 2; i++)
+        cJSON_AddItemToArray(bt, cJSON_CreateDoubleArray(kt + 2 * a->between[i], kdim));
     cJSON_AddItemToObject(root, "surface_dirac_points", dirac_json(r, SS_TOP, kdim));
     cJSON_AddItemToObject(root, "bottom_dirac_points", dirac_json(r, SS_BOTTOM, kdim));
     if (r->ndirac == 0 && r->cbm > r->vbm) cJSON_AddStringToObject(root, "note", THIN_NOTE);
@@ -439,16 +496,18 @@ static void print_text(const slab *s, const slab_args *a, const slab_result *r)
 {
     int M[3][3];
     slab_matrix(s, M);
-    printf("%s: %s %d,%d,%d, %d cells, %d states\n", a->source, slab_kdim(s) == 2 ? "slab" : "ribbon", a->miller[0],
-           a->miller[1], a->miller[2], a->layers, slab_nstates(s));
-    printf("basis (rows, old reduced): [%d %d %d] [%d %d %d] [%d %d %d]\n", M[0][0], M[0][1], M[0][2], M[1][0], M[1][1],
-           M[1][2], M[2][0], M[2][1], M[2][2]);
-    printf("bulk valence max %.6f eV, conduction min %.6f eV, Fermi level %.6f eV\n", r->vbm, r->cbm, r->fermi);
-    printf("crossings between TRIMs %d and %d: top %d, bottom %d, other %d\n", a->between[0], a->between[1], r->n_top,
-           r->n_bottom, r->n_other);
+    printf("%s: %s %d,%d,%d, %d cells, %d states\n", a->source, slab_kdim(s) == 2 ? "slab" : "ribbon",
+           a->miller[0], a->miller[1], a->miller[2], a->layers, slab_nstates(s));
+    printf("basis (rows, old reduced): [%d %d %d] [%d %d %d] [%d %d %d]\n", M[0][0], M[0][1], M[0][2],
+           M[1][0], M[1][1], M[1][2], M[2][0], M[2][1], M[2][2]);
+    printf("bulk valence max %.6f eV, conduction min %.6f eV, Fermi level %.6f eV\n", r->vbm, r->cbm,
+           r->fermi);
+    printf("crossings between TRIMs %d and %d: top %d, bottom %d, other %d\n", a->between[0], a->between[1],
+           r->n_top, r->n_bottom, r->n_other);
     for (int i = 0; i < r->ndirac; i++)
-        printf("surface Dirac point (%s): k' = (%.3f, %.3f), E = %.6f eV\n", r->dirac[i].side == SS_TOP ? "top" : "bottom",
-               r->dirac[i].k[0], r->dirac[i].k[1], r->dirac[i].energy_ev);
+        printf("surface Dirac point (%s): k' = (%.3f, %.3f), E = %.6f eV\n",
+               r->dirac[i].side == SS_TOP ? "top" : "bottom", r->dirac[i].k[0], r->dirac[i].k[1],
+               r->dirac[i].energy_ev);
     if (r->ndirac == 0 && r->cbm > r->vbm) printf("note: %s\n", THIN_NOTE);
 }
 
@@ -458,8 +517,10 @@ static void path_ticks(const slab *s, const slab_args *a, const slab_result *r, 
 {
     for (int g = 0; g < a->npath; g++) {
         xt[g] = r->xp[g * (a->nk - 1)];
-        if (slab_kdim(s) == 2) snprintf(lab[g], sizeof lab[g], "%.3g,%.3g", a->path[g][0], a->path[g][1]);
-        else snprintf(lab[g], sizeof lab[g], "%.3g", a->path[g][0]);
+        if (slab_kdim(s) == 2)
+            snprintf(lab[g], sizeof lab[g], "%.3g,%.3g", a->path[g][0], a->path[g][1]);
+        else
+            snprintf(lab[g], sizeof lab[g], "%.3g", a->path[g][0]);
         labp[g] = lab[g];
     }
 }
@@ -476,24 +537,27 @@ static int write_figure(const slab *s, const slab_args *a, const slab_result *r,
     double x1 = r->xp[r->nkp - 1] > r->xp[0] ? r->xp[r->nkp - 1] : r->xp[0] + 1;
     if (r->awin) {
         snprintf(title, sizeof title, "%s: %s-surface spectral function along the path", a->source, side);
-        return fig_heatmap(a->svg, title, "surface path, k' (reduced) at the vertices", "energy (eV)", "A(k,E) (1/eV)",
-                           r->nkp, r->ne, r->awin, r->xp[0], x1, a->window[0], a->window[1], 1, a->npath, xt, labp, err);
+        return fig_heatmap(a->svg, title, "surface path, k' (reduced) at the vertices", "energy (eV)",
+                           "A(k,E) (1/eV)", r->nkp, r->ne, r->awin, r->xp[0], x1, a->window[0], a->window[1],
+                           1, a->npath, xt, labp, err);
     }
     if (r->map) {
-        snprintf(title, sizeof title, "%s: %s-surface spectral function at E = %.3f eV", a->source, side, a->energy);
+        snprintf(title, sizeof title, "%s: %s-surface spectral function at E = %.3f eV", a->source, side,
+                 a->energy);
         int n2 = slab_kdim(s) == 2 ? a->mesh : 1;
         return fig_heatmap(a->svg, title, "k'1 (reduced)", slab_kdim(s) == 2 ? "k'2 (reduced)" : "(ribbon)",
                            "A(k,E) (1/eV)", a->mesh, n2, r->map, -0.5, 0.5, -0.5, 0.5, 1, 0, NULL, NULL, err);
     }
-    snprintf(title, sizeof title, "%s: %s %d,%d,%d, %d cells", a->source, slab_kdim(s) == 2 ? "slab" : "ribbon",
-             a->miller[0], a->miller[1], a->miller[2], a->layers);
-    fig_slab_data d = {r->nkp, slab_nstates(s), r->xp, r->E, r->wt, r->wb, r->vbm, r->cbm, r->fermi,
-                       a->npath, xt, labp};
+    snprintf(title, sizeof title, "%s: %s %d,%d,%d, %d cells", a->source,
+             slab_kdim(s) == 2 ? "slab" : "ribbon", a->miller[0], a->miller[1], a->miller[2], a->layers);
+    fig_slab_data d = {r->nkp, slab_nstates(s), r->xp,    r->E,     r->wt, r->wb,
+                       r->vbm, r->cbm,          r->fermi, a->npath, xt,    labp};
     return fig_slab_bands(a->svg, title, &d, NULL, err);
 }
 
 /* The computed arrays (path, bands and weights, spectral map and path spectra) into an HDF5 file. */
-static int write_arrays(const slab *s, const tb_model *m, const slab_args *a, const slab_result *r, bs_err *err)
+static int write_arrays(const slab *s, const tb_model *m, const slab_args *a, const slab_result *r,
+                        bs_err *err)
 {
     int ns = slab_nstates(s), n2 = slab_kdim(s) == 2 ? a->mesh : 1;
     ar_array arr[] = {
@@ -502,9 +566,21 @@ static int write_arrays(const slab *s, const tb_model *m, const slab_args *a, co
         {"bands", r->E, 2, {r->nkp, ns}, "slab energies (eV) per path sample"},
         {"weight_top", r->wt, 2, {r->nkp, ns}, "weight of each state on the top layers"},
         {"weight_bottom", r->wb, 2, {r->nkp, ns}, "weight of each state on the bottom layers"},
-        {"spectral_map", r->map, 2, {a->mesh, n2}, "surface spectral function at --energy over the surface zone"},
-        {"spectral_path_energy", r->apath, 1, {r->nkp, 0}, "surface spectral function at --energy along the path"},
-        {"spectral_path_window", r->awin, 2, {r->nkp, r->ne}, "surface spectral function along the path over --window"},
+        {"spectral_map",
+         r->map,
+         2,
+         {a->mesh, n2},
+         "surface spectral function at --energy over the surface zone"},
+        {"spectral_path_energy",
+         r->apath,
+         1,
+         {r->nkp, 0},
+         "surface spectral function at --energy along the path"},
+        {"spectral_path_window",
+         r->awin,
+         2,
+         {r->nkp, r->ne},
+         "surface spectral function along the path over --window"},
     };
     return ar_write(a->arrays, m->id, arr, (int)(sizeof arr / sizeof arr[0]), err);
 }
@@ -542,8 +618,12 @@ int cmd_slab(int argc, char **argv)
         fprintf(stderr, "bandsieve slab: %s: %s\n", m->id, err.msg);
         goto done;
     }
-    if (a.json) status = print_json(s, &a, &r);
-    else { print_text(s, &a, &r); status = 0; }
+    if (a.json)
+        status = print_json(s, &a, &r);
+    else {
+        print_text(s, &a, &r);
+        status = 0;
+    }
 done:
     result_clear(&r);
     slab_free(s);

@@ -50,7 +50,8 @@ static cJSON *op_json(const cry_op *op)
     cJSON_AddStringToObject(o, "kind", op->kind);
     cJSON_AddItemToObject(o, "axis", cJSON_CreateDoubleArray(op->axis, 3));
     cJSON *W = cJSON_AddArrayToObject(o, "W");
-    for (int i = 0; i < 3; i++) cJSON_AddItemToArray(W, cJSON_CreateIntArray(op->W[i], 3));
+    for (int i = 0; i < 3; i++)
+        cJSON_AddItemToArray(W, cJSON_CreateIntArray(op->W[i], 3));
     cJSON_AddItemToObject(o, "t", cJSON_CreateDoubleArray(op->t, 3));
     cJSON_AddBoolToObject(o, "kept", op->verified);
     cJSON_AddNumberToObject(o, "residual", op->residual);
@@ -58,7 +59,8 @@ static cJSON *op_json(const cry_op *op)
 }
 
 /* Band multiplets at k and the eigenvalues of every little-group operation on each. */
-static int kpoint_report(const tb_model *m, const cry_info *c, const double k[3], cJSON *arr, int json, bs_err *err)
+static int kpoint_report(const tb_model *m, const cry_info *c, const double k[3], cJSON *arr, int json,
+                         bs_err *err)
 {
     int n = m->norb, *lg = malloc((size_t)cry_nops(c) * sizeof *lg);
     double *w = malloc((size_t)n * sizeof *w);
@@ -69,7 +71,8 @@ static int kpoint_report(const tb_model *m, const cry_info *c, const double k[3]
     }
     int nl = cry_little_group(c, k, lg), rc = 0;
     hk_build_direct(m, k, H);
-    if (LAPACKE_zheevd(LAPACK_COL_MAJOR, 'N', 'U', n, H, n, w) != 0) rc = bs_fail(err, BS_ENUMERIC, "zheevd failed");
+    if (LAPACKE_zheevd(LAPACK_COL_MAJOR, 'N', 'U', n, H, n, w) != 0)
+        rc = bs_fail(err, BS_ENUMERIC, "zheevd failed");
     cJSON *kj = cJSON_CreateObject();
     cJSON_AddItemToObject(kj, "k", cJSON_CreateDoubleArray(k, 3));
     cJSON_AddItemToObject(kj, "little_group", cJSON_CreateIntArray(lg, nl));
@@ -77,13 +80,16 @@ static int kpoint_report(const tb_model *m, const cry_info *c, const double k[3]
     if (!json) printf("\nk = (%g, %g, %g): little group of %d kept operations\n", k[0], k[1], k[2], nl);
     for (int b = 0; rc == 0 && b < n;) {
         int e = b + 1;
-        while (e < n && w[e] - w[b] < 1e-6) e++;
+        while (e < n && w[e] - w[b] < 1e-6)
+            e++;
         cJSON *mj = cJSON_CreateObject();
         int bands[2] = {b + 1, e};
         cJSON_AddItemToObject(mj, "bands", cJSON_CreateIntArray(bands, 2));
         cJSON_AddNumberToObject(mj, "energy_eV", w[b]);
         cJSON *evs = cJSON_AddObjectToObject(mj, "eigenvalues");
-        if (!json) printf("  bands %d-%d at %.6f eV%s\n", b + 1, e, w[b], b < m->nocc && e > m->nocc ? " (split by the filling)" : "");
+        if (!json)
+            printf("  bands %d-%d at %.6f eV%s\n", b + 1, e, w[b],
+                   b < m->nocc && e > m->nocc ? " (split by the filling)" : "");
         for (int i = 0; rc == 0 && i < nl; i++) {
             const cry_op *op = cry_get_op(c, lg[i]);
             if (!strcmp(op->kind, "1")) continue;
@@ -123,9 +129,14 @@ static int indices_report(const tb_model *m, const cry_info *c, cJSON *root, int
         bs_err_clear(&e2);
         if (rc == 0 && pr.status == PAR_DONE && cz_z4(&pr, &kappa, &e2) == 0) {
             cJSON_AddNumberToObject(root, "z4", kappa);
-            if (!json) printf("\nZ4 indicator kappa = %d%s\n", kappa, kappa == 2 && pr.z2[0] == 0 ? " (beyond Z2: higher-order or crystalline candidate)" : "");
-        } else if (!json) printf("\nZ4 indicator: not available (%s)\n", pr.reason[0] ? pr.reason : e2.msg);
-    } else if (!json) printf("\nZ4 indicator: needs a 3D model with inversion and time reversal\n");
+            if (!json)
+                printf("\nZ4 indicator kappa = %d%s\n", kappa,
+                       kappa == 2 && pr.z2[0] == 0 ? " (beyond Z2: higher-order or crystalline candidate)"
+                                                   : "");
+        } else if (!json)
+            printf("\nZ4 indicator: not available (%s)\n", pr.reason[0] ? pr.reason : e2.msg);
+    } else if (!json)
+        printf("\nZ4 indicator: needs a 3D model with inversion and time reversal\n");
     sym_info_free(s);
     cJSON *mc = cJSON_AddArrayToObject(root, "mirror_chern");
     for (int i = 0; rc == 0 && i < cry_nops(c); i++) {
@@ -151,12 +162,14 @@ static int indices_report(const tb_model *m, const cry_info *c, cJSON *root, int
             cJSON_AddItemToArray(mc, o);
             if (!json) {
                 if (pl[p].status == CZ_DONE)
-                    printf("mirror op %d, normal (%.3f, %.3f, %.3f), plane through (%g, %g, %g): C+ = %d, C- = %d, "
-                           "mirror Chern %d\n", i, pl[p].normal[0], pl[p].normal[1], pl[p].normal[2], pl[p].k0[0],
-                           pl[p].k0[1], pl[p].k0[2], pl[p].c_plus, pl[p].c_minus, pl[p].mirror_chern);
+                    printf("mirror op %d, normal (%.3f, %.3f, %.3f), plane through (%g, %g, %g): C+ = %d, C- "
+                           "= %d, "
+                           "mirror Chern %d\n",
+                           i, pl[p].normal[0], pl[p].normal[1], pl[p].normal[2], pl[p].k0[0], pl[p].k0[1],
+                           pl[p].k0[2], pl[p].c_plus, pl[p].c_minus, pl[p].mirror_chern);
                 else
-                    printf("mirror op %d, plane through (%g, %g, %g): undetermined (%s)\n", i, pl[p].k0[0], pl[p].k0[1],
-                           pl[p].k0[2], pl[p].reason);
+                    printf("mirror op %d, plane through (%g, %g, %g): undetermined (%s)\n", i, pl[p].k0[0],
+                           pl[p].k0[1], pl[p].k0[2], pl[p].reason);
             }
         }
     }
@@ -165,11 +178,13 @@ static int indices_report(const tb_model *m, const cry_info *c, cJSON *root, int
 
 int cmd_symmetry(int argc, char **argv)
 {
-    static const struct option longopts[] = {
-        {"k", required_argument, NULL, 'k'},         {"indices", no_argument, NULL, 'i'},
-        {"json", no_argument, NULL, 'j'},            {"site-tol", required_argument, NULL, 's'},
-        {"tol", required_argument, NULL, 't'},       {"help", no_argument, NULL, 'h'},
-        {NULL, 0, NULL, 0}};
+    static const struct option longopts[] = {{"k", required_argument, NULL, 'k'},
+                                             {"indices", no_argument, NULL, 'i'},
+                                             {"json", no_argument, NULL, 'j'},
+                                             {"site-tol", required_argument, NULL, 's'},
+                                             {"tol", required_argument, NULL, 't'},
+                                             {"help", no_argument, NULL, 'h'},
+                                             {NULL, 0, NULL, 0}};
     int json = 0, indices = 0, nk = 0, cap = 0, status = 1, c;
     double *k = NULL;
     tb_model *m = NULL;
@@ -181,9 +196,19 @@ int cmd_symmetry(int argc, char **argv)
     bs_err_clear(&err);
     optind = 1;
     while ((c = getopt_long(argc, argv, "h", longopts, NULL)) != -1) {
-        if (c == 'h') { symmetry_help(stdout); status = 0; goto done; }
-        if (c == 'j') { json = 1; continue; }
-        if (c == 'i') { indices = 1; continue; }
+        if (c == 'h') {
+            symmetry_help(stdout);
+            status = 0;
+            goto done;
+        }
+        if (c == 'j') {
+            json = 1;
+            continue;
+        }
+        if (c == 'i') {
+            indices = 1;
+            continue;
+        }
         if (c == 's' || c == 't') {
             double v;
             if (cli_parse_double(optarg, &v) != 0 || !(v > 0) || v > 1.0) {
@@ -192,20 +217,30 @@ int cmd_symmetry(int argc, char **argv)
                 status = 2;
                 goto done;
             }
-            if (c == 's') o.site_tol_ang = v;
-            else o.tol = v;
+            if (c == 's')
+                o.site_tol_ang = v;
+            else
+                o.tol = v;
             continue;
         }
-        if (c != 'k') { symmetry_help(stderr); status = 2; goto done; }
+        if (c != 'k') {
+            symmetry_help(stderr);
+            status = 2;
+            goto done;
+        }
         if (nk == cap) {
             cap = cap ? 2 * cap : 8;
             double *p = realloc(k, 3 * (size_t)cap * sizeof *k);
-            if (!p) { fprintf(stderr, "bandsieve symmetry: out of memory\n"); goto done; }
+            if (!p) {
+                fprintf(stderr, "bandsieve symmetry: out of memory\n");
+                goto done;
+            }
             k = p;
         }
         if (cli_parse_vec3(optarg, k + 3 * nk) != 0 || fabs(k[3 * nk]) > 1e3 || fabs(k[3 * nk + 1]) > 1e3 ||
             fabs(k[3 * nk + 2]) > 1e3) {
-            fprintf(stderr, "bandsieve symmetry: --k expects k1,k2[,k3] reduced coordinates, got '%s'\n", optarg);
+            fprintf(stderr, "bandsieve symmetry: --k expects k1,k2[,k3] reduced coordinates, got '%s'\n",
+                    optarg);
             status = 2;
             goto done;
         }
@@ -234,15 +269,17 @@ int cmd_symmetry(int argc, char **argv)
     cJSON_AddNumberToObject(root, "operations_kept", cry_nverified(ci));
     cJSON *ops = cJSON_AddArrayToObject(root, "operations");
     if (!json)
-        printf("%s: the sites (%d) have space group %d (%s); the Hamiltonian keeps %d of its %d operations\n", m->id,
-               cry_nsites(ci), cry_spacegroup(ci), cry_symbol(ci), cry_nverified(ci), cry_nops(ci));
-    if (!json) printf("  op  kind  axis or normal (Cartesian)      translation (reduced)     residual  kept\n");
+        printf("%s: the sites (%d) have space group %d (%s); the Hamiltonian keeps %d of its %d operations\n",
+               m->id, cry_nsites(ci), cry_spacegroup(ci), cry_symbol(ci), cry_nverified(ci), cry_nops(ci));
+    if (!json)
+        printf("  op  kind  axis or normal (Cartesian)      translation (reduced)     residual  kept\n");
     for (int i = 0; i < cry_nops(ci); i++) {
         const cry_op *op = cry_get_op(ci, i);
         cJSON_AddItemToArray(ops, op_json(op));
         if (!json)
-            printf("  %-3d %-4s (%6.3f, %6.3f, %6.3f)  (%6.3f, %6.3f, %6.3f)  %8.1e  %s\n", i, op->kind, op->axis[0],
-                   op->axis[1], op->axis[2], op->t[0], op->t[1], op->t[2], op->residual, op->verified ? "yes" : "no");
+            printf("  %-3d %-4s (%6.3f, %6.3f, %6.3f)  (%6.3f, %6.3f, %6.3f)  %8.1e  %s\n", i, op->kind,
+                   op->axis[0], op->axis[1], op->axis[2], op->t[0], op->t[1], op->t[2], op->residual,
+                   op->verified ? "yes" : "no");
     }
     cJSON *karr = cJSON_AddArrayToObject(root, "kpoints");
     for (int q = 0; q < nk; q++)

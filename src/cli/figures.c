@@ -14,7 +14,8 @@ static void add_array(cJSON *o, const char *key, const double *v, int n)
 }
 
 /* Path ticks of a band path: one per path point, a jump joining two labels at one x. */
-static int path_ticks(const band_path *bp, double *xt, char (*lab)[2 * KPATH_LABEL_LEN + 2], const char **labp)
+static int path_ticks(const band_path *bp, double *xt, char (*lab)[2 * KPATH_LABEL_LEN + 2],
+                      const char **labp)
 {
     int n = 0;
     for (int v = 0; v < bp->path.npoint; v++) {
@@ -35,7 +36,8 @@ int fig_bands(const char *path, const char *title, const band_path *bp, cJSON *d
 {
     int nk = bp->s.nk, nb = bp->norb;
     double lo = INFINITY, hi = -INFINITY;
-    for (size_t i = 0; i < (size_t)nk * nb; i++) lo = fmin(lo, bp->E[i]), hi = fmax(hi, bp->E[i]);
+    for (size_t i = 0; i < (size_t)nk * nb; i++)
+        lo = fmin(lo, bp->E[i]), hi = fmax(hi, bp->E[i]);
     double pad = 0.05 * (hi - lo) + 1e-3;
     double xt[KPATH_MAX_POINTS];
     char lab[KPATH_MAX_POINTS][2 * KPATH_LABEL_LEN + 2];
@@ -46,9 +48,17 @@ int fig_bands(const char *path, const char *title, const band_path *bp, cJSON *d
         free(y), free(c);
         return bs_fail(err, BS_ENOMEM, "out of memory for the band figure");
     }
-    plot_axes ax = {title, "wave vector along the path (1/A)", "energy (eV)", bp->s.x[0],
-                    bp->s.x[nk - 1] > bp->s.x[0] ? bp->s.x[nk - 1] : bp->s.x[0] + 1, lo - pad, hi + pad,
-                    ntick, xt, labp, bp->w != NULL};
+    plot_axes ax = {title,
+                    "wave vector along the path (1/A)",
+                    "energy (eV)",
+                    bp->s.x[0],
+                    bp->s.x[nk - 1] > bp->s.x[0] ? bp->s.x[nk - 1] : bp->s.x[0] + 1,
+                    lo - pad,
+                    hi + pad,
+                    ntick,
+                    xt,
+                    labp,
+                    bp->w != NULL};
     plot_fig *f = NULL;
     int rc = plot_open(path, 900, 650, 1, 1, &f, err);
     if (rc == 0) rc = plot_panel(f, &ax, err);
@@ -57,9 +67,11 @@ int fig_bands(const char *path, const char *title, const band_path *bp, cJSON *d
     int cmap = bp->weight_kind == BP_WEIGHT_SPIN ? PLOT_DIVERGING : PLOT_SEQUENTIAL;
     double cmin = bp->weight_kind == BP_WEIGHT_SPIN ? -1 : 0;
     for (int b = 0; rc == 0 && b < nb; b++) {
-        for (int i = 0; i < nk; i++) y[i] = bp->E[(size_t)i * nb + b];
+        for (int i = 0; i < nk; i++)
+            y[i] = bp->E[(size_t)i * nb + b];
         if (bp->w) {
-            for (int i = 0; i < nk; i++) c[i] = bp->w[(size_t)i * nb + b];
+            for (int i = 0; i < nk; i++)
+                c[i] = bp->w[(size_t)i * nb + b];
             plot_curve_mapped(f, nk, bp->s.x, y, c, cmap, cmin, 1, 2.0);
         } else {
             plot_curve(f, nk, bp->s.x, y, b < bp->nocc ? PLOT_INK : PLOT_BLUE, 1.6, 0);
@@ -73,7 +85,8 @@ int fig_bands(const char *path, const char *title, const band_path *bp, cJSON *d
     }
     if (rc == 0 && bp->w)
         plot_colourbar(f, cmap, cmin, 1,
-                       bp->weight_kind == BP_WEIGHT_SPIN ? "spin <s#dz#u> (units of hbar/2)" : "orbital weight");
+                       bp->weight_kind == BP_WEIGHT_SPIN ? "spin <s#dz#u> (units of hbar/2)"
+                                                         : "orbital weight");
     if (data) {
         add_array(data, "x", bp->s.x, nk);
         add_array(data, "tick_x", xt, ntick);
@@ -106,7 +119,8 @@ static const char *plane_name(int p, int dim)
 
 int fig_flows(const char *path, const char *title, int nflow, const res_flow *flows, cJSON *data, bs_err *err)
 {
-    if (nflow < 1) return bs_fail(err, BS_EINVAL, "no Wannier-centre flows to draw (run inspect with --flows)");
+    if (nflow < 1)
+        return bs_fail(err, BS_EINVAL, "no Wannier-centre flows to draw (run inspect with --flows)");
     int dim = nflow == 1 && flows[0].plane == 4 ? 2 : 3;
     int nx = nflow == 1 ? 1 : 3, ny = (nflow + nx - 1) / nx;
     plot_fig *f = NULL;
@@ -127,7 +141,8 @@ int fig_flows(const char *path, const char *title, int nflow, const res_flow *fl
         double *px = malloc((size_t)fl->nband * sizeof *px);
         if (!gx || !gy || !px) rc = bs_fail(err, BS_ENOMEM, "out of memory for the flow figure");
         for (int s = 0; rc == 0 && s < fl->nstring; s++) {
-            for (int j = 0; j < fl->nband; j++) px[j] = fl->kpar[s];
+            for (int j = 0; j < fl->nband; j++)
+                px[j] = fl->kpar[s];
             plot_points(f, fl->nband, px, fl->wcc + (size_t)s * fl->nband, PLOT_INK, 0.007);
             gx[s] = fl->kpar[s];
             gy[s] = fig_largest_gap_mid(fl->nband, fl->wcc + (size_t)s * fl->nband);
@@ -159,7 +174,8 @@ int fig_berry(const char *path, const char *title, const berry_map *bm, cJSON *d
 {
     int n = bm->n;
     double zmax = 0;
-    for (int i = 0; i < n * n; i++) zmax = fmax(zmax, fabs(bm->omega[i]));
+    for (int i = 0; i < n * n; i++)
+        zmax = fmax(zmax, fabs(bm->omega[i]));
     if (zmax == 0) zmax = 1;
     char xl[48], yl[48], ttl[200];
     snprintf(xl, sizeof xl, "k%d (units of b%d)", bm->axis_a + 1, bm->axis_a + 1);
@@ -184,13 +200,20 @@ int fig_berry(const char *path, const char *title, const berry_map *bm, cJSON *d
 }
 
 /* Reduced coordinate in the centred zone [-1/2, 1/2). */
-static double centred(double k) { return k - floor(k + 0.5); }
+static double centred(double k)
+{
+    return k - floor(k + 0.5);
+}
 
-int fig_nodes(const char *path, const char *title, int n, const double (*k)[3], const int *chirality, int proj,
-              cJSON *data, bs_err *err)
+int fig_nodes(const char *path, const char *title, int n, const double (*k)[3], const int *chirality,
+              int proj, cJSON *data, bs_err *err)
 {
     int a = (proj + 1) % 3, b = (proj + 2) % 3;
-    if (a > b) { int t = a; a = b; b = t; }
+    if (a > b) {
+        int t = a;
+        a = b;
+        b = t;
+    }
     double *x = malloc((size_t)(n + 1) * sizeof *x), *y = malloc((size_t)(n + 1) * sizeof *y);
     double *sz = malloc((size_t)(n + 1) * sizeof *sz);
     if (!x || !y || !sz) {
@@ -224,9 +247,12 @@ int fig_nodes(const char *path, const char *title, int n, const double (*k)[3], 
         count[sign + 1] = m;
         /* +1: orange up triangles, -1: blue down triangles, unresolved: grey circles; the shape
          * carries the sign without colour. Centred on the node: shifted by half a marker. */
-        for (int i = 0; i < m; i++) y[i] += sign > 0 ? -0.0175 : (sign < 0 ? 0.0175 : 0);
-        if (sign == 0) plot_points(f, m, x, y, PLOT_GREY, 0.012);
-        else plot_triangles(f, m, x, y, sz, sign > 0, NULL, 0, 0, 0, sign > 0 ? PLOT_ORANGE : PLOT_BLUE);
+        for (int i = 0; i < m; i++)
+            y[i] += sign > 0 ? -0.0175 : (sign < 0 ? 0.0175 : 0);
+        if (sign == 0)
+            plot_points(f, m, x, y, PLOT_GREY, 0.012);
+        else
+            plot_triangles(f, m, x, y, sz, sign > 0, NULL, 0, 0, 0, sign > 0 ? PLOT_ORANGE : PLOT_BLUE);
     }
     if (rc == 0) {
         char t[64];
@@ -248,7 +274,8 @@ int fig_slab_bands(const char *path, const char *title, const fig_slab_data *d, 
 {
     size_t tot = (size_t)d->nkp * d->ns;
     double lo = INFINITY, hi = -INFINITY;
-    for (size_t i = 0; i < tot; i++) lo = fmin(lo, d->E[i]), hi = fmax(hi, d->E[i]);
+    for (size_t i = 0; i < tot; i++)
+        lo = fmin(lo, d->E[i]), hi = fmax(hi, d->E[i]);
     double pad = 0.05 * (hi - lo) + 1e-3;
     double *x = malloc(tot * sizeof *x), *st = malloc(tot * sizeof *st), *sb = malloc(tot * sizeof *sb);
     if (!x || !st || !sb) {
@@ -263,9 +290,17 @@ int fig_slab_bands(const char *path, const char *title, const fig_slab_data *d, 
         sb[i] = d->wb[i] > 0.2 ? 0.006 + 0.014 * d->wb[i] : 0;
         ntop += st[i] > 0, nbot += sb[i] > 0;
     }
-    plot_axes ax = {title, "surface wave vector along the path (1/A)", "energy (eV)", d->xp[0],
-                    d->xp[d->nkp - 1] > d->xp[0] ? d->xp[d->nkp - 1] : d->xp[0] + 1, lo - pad, hi + pad,
-                    d->ntick, d->xt, d->labels, 0};
+    plot_axes ax = {title,
+                    "surface wave vector along the path (1/A)",
+                    "energy (eV)",
+                    d->xp[0],
+                    d->xp[d->nkp - 1] > d->xp[0] ? d->xp[d->nkp - 1] : d->xp[0] + 1,
+                    lo - pad,
+                    hi + pad,
+                    d->ntick,
+                    d->xt,
+                    d->labels,
+                    0};
     plot_fig *f = NULL;
     int rc = plot_open(path, 900, 650, 1, 1, &f, err);
     if (rc == 0) rc = plot_panel(f, &ax, err);
@@ -288,16 +323,18 @@ int fig_slab_bands(const char *path, const char *title, const fig_slab_data *d, 
     return rc ? rc : rc2;
 }
 
-int fig_heatmap(const char *path, const char *title, const char *xlabel, const char *ylabel, const char *clabel,
-                int nx, int ny, const double *z, double x0, double x1, double y0, double y1, int log_scale,
-                int ntick, const double *xt, const char *const *labels, bs_err *err)
+int fig_heatmap(const char *path, const char *title, const char *xlabel, const char *ylabel,
+                const char *clabel, int nx, int ny, const double *z, double x0, double x1, double y0,
+                double y1, int log_scale, int ntick, const double *xt, const char *const *labels, bs_err *err)
 {
     size_t n = (size_t)nx * ny;
     double *v = malloc(n * sizeof *v);
     if (!v) return bs_fail(err, BS_ENOMEM, "out of memory for the map");
     double zmax = -INFINITY, zmin = INFINITY;
-    for (size_t i = 0; i < n; i++) zmax = fmax(zmax, z[i]), zmin = fmin(zmin, z[i]);
-    for (size_t i = 0; i < n; i++) v[i] = log_scale ? log10(fmax(z[i], zmax * 1e-6 + 1e-300)) : z[i];
+    for (size_t i = 0; i < n; i++)
+        zmax = fmax(zmax, z[i]), zmin = fmin(zmin, z[i]);
+    for (size_t i = 0; i < n; i++)
+        v[i] = log_scale ? log10(fmax(z[i], zmax * 1e-6 + 1e-300)) : z[i];
     double lo = log_scale ? log10(zmax * 1e-6 + 1e-300) : zmin, hi = log_scale ? log10(zmax + 1e-300) : zmax;
     if (!(hi > lo)) hi = lo + 1;
     char cl[96];

@@ -34,8 +34,9 @@ static const command COMMANDS[] = {
 
 static void usage(FILE *out)
 {
-    fprintf(out, "bandsieve %s: screen tight-binding Hamiltonians for band topology\n\n"
-                 "usage: bandsieve COMMAND [options]   (bandsieve COMMAND --help for each)\n\n",
+    fprintf(out,
+            "bandsieve %s: screen tight-binding Hamiltonians for band topology\n\n"
+            "usage: bandsieve COMMAND [options]   (bandsieve COMMAND --help for each)\n\n",
             BS_VERSION);
     for (size_t i = 0; i < sizeof COMMANDS / sizeof COMMANDS[0]; i++)
         fprintf(out, "  %-10s %s\n", COMMANDS[i].name, COMMANDS[i].summary);
@@ -67,7 +68,8 @@ int main(int argc, char **argv)
      * command, so every solve of every command and rank runs under the same setting. */
     const char *bad = NULL;
     blas_threads_init(&bad);
-    if (bad) fprintf(stderr, "bandsieve: BS_BLAS_THREADS='%s' is not a thread count of 1 or more; using 1\n", bad);
+    if (bad)
+        fprintf(stderr, "bandsieve: BS_BLAS_THREADS='%s' is not a thread count of 1 or more; using 1\n", bad);
     for (size_t i = 0; i < sizeof COMMANDS / sizeof COMMANDS[0]; i++)
         if (!strcmp(argv[1], COMMANDS[i].name)) {
             if (!COMMANDS[i].run) {

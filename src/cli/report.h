@@ -12,12 +12,12 @@
 #include "bandsieve/model.h"
 
 typedef struct rep_input {
-    const cJSON *diag;          /* the diagnosis object (inspect --json / results.diagnosis) */
-    const tb_model *model;      /* NULL: figures that need H(k) are listed as not available */
+    const cJSON *diag;     /* the diagnosis object (inspect --json / results.diagnosis) */
+    const tb_model *model; /* NULL: figures that need H(k) are listed as not available */
     int nflow;
-    const res_flow *flows;     /* stored or computed Wannier-centre flows; may be NULL */
-    const char *flow_note;      /* why there are no flows, when nflow is 0; may be NULL */
-    const cJSON *provenance;    /* object of name -> value rows; may be NULL */
+    const res_flow *flows;   /* stored or computed Wannier-centre flows; may be NULL */
+    const char *flow_note;   /* why there are no flows, when nflow is 0; may be NULL */
+    const cJSON *provenance; /* object of name -> value rows; may be NULL */
 } rep_input;
 
 /* Writes the page to out_path; figures are drawn into tmpdir (an existing folder the caller

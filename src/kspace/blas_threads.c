@@ -31,7 +31,8 @@ static void set_threads(int n)
     if (ob) ob(n);
     void (*mkl)(int) = (void (*)(int))find((void *)MKL_Set_Num_Threads, "MKL_Set_Num_Threads");
     if (mkl) mkl(n);
-    void (*bli)(long) = (void (*)(long))find((void *)bli_thread_set_num_threads, "bli_thread_set_num_threads");
+    void (*bli)(long) =
+        (void (*)(long))find((void *)bli_thread_set_num_threads, "bli_thread_set_num_threads");
     if (bli) bli(n);
 }
 
@@ -41,7 +42,8 @@ int blas_threads_current(void)
     if (ob) return ob();
     int (*mkl)(void) = (int (*)(void))find((void *)MKL_Get_Max_Threads, "MKL_Get_Max_Threads");
     if (mkl) return mkl();
-    long (*bli)(void) = (long (*)(void))find((void *)bli_thread_get_num_threads, "bli_thread_get_num_threads");
+    long (*bli)(void) =
+        (long (*)(void))find((void *)bli_thread_get_num_threads, "bli_thread_get_num_threads");
     if (bli) return (int)bli();
     return 0;
 }

@@ -10,7 +10,7 @@ struct eig_ws {
     double *rwork;
     lapack_int *iwork;
     lapack_int *isuppz;
-    double *wtmp;       /* n values for zheevr, which may write past the requested range */
+    double *wtmp;         /* n values for zheevr, which may write past the requested range */
     const eig_dist *dist; /* distributed solver for this size, or NULL */
     lapack_int lwork, lrwork, liwork;
 };
@@ -20,17 +20,20 @@ static int grow(eig_ws *w, lapack_int lwork, lapack_int lrwork, lapack_int liwor
     if (lwork > w->lwork) {
         void *p = realloc(w->work, (size_t)lwork * sizeof *w->work);
         if (!p) return -1;
-        w->work = p; w->lwork = lwork;
+        w->work = p;
+        w->lwork = lwork;
     }
     if (lrwork > w->lrwork) {
         void *p = realloc(w->rwork, (size_t)lrwork * sizeof *w->rwork);
         if (!p) return -1;
-        w->rwork = p; w->lrwork = lrwork;
+        w->rwork = p;
+        w->lrwork = lrwork;
     }
     if (liwork > w->liwork) {
         void *p = realloc(w->iwork, (size_t)liwork * sizeof *w->iwork);
         if (!p) return -1;
-        w->iwork = p; w->liwork = liwork;
+        w->iwork = p;
+        w->liwork = liwork;
     }
     return 0;
 }
@@ -57,18 +60,32 @@ int eig_create(int n, eig_ws **out, bs_err *err)
     double qr;
     lapack_int qi, m;
     lapack_int info = LAPACKE_zheevd_work(LAPACK_COL_MAJOR, 'V', 'U', n, a, n, wq, &qw, -1, &qr, -1, &qi, -1);
-    if (info != 0) { rc = bs_fail(err, BS_ENUMERIC, "zheevd workspace query failed (info %d)", (int)info); goto done; }
-    if (grow(w, (lapack_int)creal(qw) + 1, (lapack_int)qr + 1, qi + 1)) { rc = bs_fail(err, BS_ENOMEM, "out of memory"); goto done; }
+    if (info != 0) {
+        rc = bs_fail(err, BS_ENUMERIC, "zheevd workspace query failed (info %d)", (int)info);
+        goto done;
+    }
+    if (grow(w, (lapack_int)creal(qw) + 1, (lapack_int)qr + 1, qi + 1)) {
+        rc = bs_fail(err, BS_ENOMEM, "out of memory");
+        goto done;
+    }
     info = LAPACKE_zheevr_work(LAPACK_COL_MAJOR, 'V', 'I', 'U', n, a, n, 0, 0, 1, n, 0.0, &m, wq, z, n,
                                w->isuppz, &qw, -1, &qr, -1, &qi, -1);
-    if (info != 0) { rc = bs_fail(err, BS_ENUMERIC, "zheevr workspace query failed (info %d)", (int)info); goto done; }
-    if (grow(w, (lapack_int)creal(qw) + 1, (lapack_int)qr + 1, qi + 1)) { rc = bs_fail(err, BS_ENOMEM, "out of memory"); goto done; }
+    if (info != 0) {
+        rc = bs_fail(err, BS_ENUMERIC, "zheevr workspace query failed (info %d)", (int)info);
+        goto done;
+    }
+    if (grow(w, (lapack_int)creal(qw) + 1, (lapack_int)qr + 1, qi + 1)) {
+        rc = bs_fail(err, BS_ENOMEM, "out of memory");
+        goto done;
+    }
 done:
     free(wq);
     free(a);
     free(z);
-    if (rc != 0) eig_free(w);
-    else *out = w;
+    if (rc != 0)
+        eig_free(w);
+    else
+        *out = w;
     return rc;
 }
 
@@ -95,8 +112,7 @@ static int solve_all(eig_ws *ws, char jobz, double complex *A, double *w, bs_err
     int n = ws->n;
     lapack_int info = LAPACKE_zheevd_work(LAPACK_COL_MAJOR, jobz, 'U', n, A, n, w, ws->work, ws->lwork,
                                           ws->rwork, ws->lrwork, ws->iwork, ws->liwork);
-    if (info != 0)
-        return bs_fail(err, BS_ENUMERIC, "zheevd failed for n = %d (info %d)", n, (int)info);
+    if (info != 0) return bs_fail(err, BS_ENUMERIC, "zheevd failed for n = %d (info %d)", n, (int)info);
     return 0;
 }
 
@@ -123,13 +139,13 @@ int eig_range(eig_ws *ws, double complex *A, int il, int iu, double *w, double c
     double *wt = ws->wtmp;
     lapack_int info = LAPACKE_zheevr_work(LAPACK_COL_MAJOR, Z ? 'V' : 'N', 'I', 'U', n, A, n, 0.0, 0.0,
                                           il + 1, iu + 1, 0.0, &m, wt, Z ? Z : &dummy, n, ws->isuppz,
-                                          ws->work, ws->lwork, ws->rwork, ws->lrwork, ws->iwork,
-                                          ws->liwork);
+                                          ws->work, ws->lwork, ws->rwork, ws->lrwork, ws->iwork, ws->liwork);
     int rc = 0;
     if (info != 0 || m != iu - il + 1)
-        rc = bs_fail(err, BS_ENUMERIC, "zheevr failed for n = %d, range %d..%d (info %d, %d found)", n,
-                     il, iu, (int)info, (int)m);
+        rc = bs_fail(err, BS_ENUMERIC, "zheevr failed for n = %d, range %d..%d (info %d, %d found)", n, il,
+                     iu, (int)info, (int)m);
     else
-        for (int i = 0; i < m; i++) w[i] = wt[i];
+        for (int i = 0; i < m; i++)
+            w[i] = wt[i];
     return rc;
 }

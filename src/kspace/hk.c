@@ -22,27 +22,29 @@ static int is_half_d(const double R[3])
     return R[2] > 0;
 }
 
-static int is_half(const int R[3]) { return is_half_d((const double[3]){R[0], R[1], R[2]}); }
+static int is_half(const int R[3])
+{
+    return is_half_d((const double[3]){R[0], R[1], R[2]});
+}
 
 struct hk_engine {
     int norb;
-    int npair;          /* norb (norb + 1) / 2 upper-triangle elements */
-    int nhalf;          /* lattice vectors in the half set (R = 0 excluded) */
-    int ncol;           /* 1 + 2 nhalf */
+    int npair; /* norb (norb + 1) / 2 upper-triangle elements */
+    int nhalf; /* lattice vectors in the half set (R = 0 excluded) */
+    int ncol;  /* 1 + 2 nhalf */
     int max_batch;
-    double *Rhalf;      /* nhalf x 3 lattice vectors as doubles */
-    double *coef;       /* (2 npair) x ncol, column-major */
-    double *phase;      /* ncol x (4 max_batch) */
-    double *packed;     /* (2 npair) x (4 max_batch) */
+    double *Rhalf;  /* nhalf x 3 lattice vectors as doubles */
+    double *coef;   /* (2 npair) x ncol, column-major */
+    double *phase;  /* ncol x (4 max_batch) */
+    double *packed; /* (2 npair) x (4 max_batch) */
     /* Set only on engines made by hk_reduce: where each source column goes. */
-    int axis;           /* fixed axis, -1 for a full engine */
+    int axis; /* fixed axis, -1 for a full engine */
     int src_ncol;
-    int *map_cos;       /* src column -> dst cosine column (0 for the constant) */
-    int *map_sin;       /* src column -> dst sine column, or -1 when the target is the constant */
-    double *map_sign;   /* +1, or -1 when the target vector is -R' (sine flips) */
-    double *src_Rax;    /* the source vectors' component along axis (0 for the constant) */
+    int *map_cos;     /* src column -> dst cosine column (0 for the constant) */
+    int *map_sin;     /* src column -> dst sine column, or -1 when the target is the constant */
+    double *map_sign; /* +1, or -1 when the target vector is -R' (sine flips) */
+    double *src_Rax;  /* the source vectors' component along axis (0 for the constant) */
 };
-
 
 /* Hermitian-symmetrised hopping block for R (divided by its weight): averages H_R with
  * H_{-R}^dagger when both are present so that round-off in a table cannot make H(k) non-Hermitian. */
@@ -57,8 +59,8 @@ static double complex hop_element(const tb_model *m, int r, int rm, int a, int b
 
 /* Fills column col of the coefficient table: the packed upper triangle of
  * alpha * X + beta * X^dagger, where X = H_R (symmetrised). */
-static void fill_column(hk_engine *e, const tb_model *m, int r, int rm, int col,
-                        double complex alpha, double complex beta)
+static void fill_column(hk_engine *e, const tb_model *m, int r, int rm, int col, double complex alpha,
+                        double complex beta)
 {
     int n = m->norb;
     double *c = e->coef + (size_t)col * 2 * e->npair;
@@ -85,8 +87,10 @@ int hk_create(const tb_model *m, int max_batch, hk_engine **out, bs_err *err)
     e->axis = -1;
     int r0 = -1;
     for (int r = 0; r < m->nR; r++) {
-        if (is_half(m->R[r])) e->nhalf++;
-        else if (m->R[r][0] == 0 && m->R[r][1] == 0 && m->R[r][2] == 0) r0 = r;
+        if (is_half(m->R[r]))
+            e->nhalf++;
+        else if (m->R[r][0] == 0 && m->R[r][1] == 0 && m->R[r][2] == 0)
+            r0 = r;
     }
     e->ncol = 1 + 2 * e->nhalf;
     size_t rows = 2 * (size_t)e->npair;
@@ -106,9 +110,10 @@ int hk_create(const tb_model *m, int max_batch, hk_engine **out, bs_err *err)
         if (!is_half(m->R[r])) continue;
         int minus[3] = {-m->R[r][0], -m->R[r][1], -m->R[r][2]};
         int rm = tb_model_find_R(m, minus);
-        for (int d = 0; d < 3; d++) e->Rhalf[3 * h + d] = m->R[r][d];
-        fill_column(e, m, r, rm, 1 + h, 1.0, 1.0);                 /* C_R */
-        fill_column(e, m, r, rm, 1 + e->nhalf + h, I, -I);         /* S_R */
+        for (int d = 0; d < 3; d++)
+            e->Rhalf[3 * h + d] = m->R[r][d];
+        fill_column(e, m, r, rm, 1 + h, 1.0, 1.0);         /* C_R */
+        fill_column(e, m, r, rm, 1 + e->nhalf + h, I, -I); /* S_R */
         h++;
     }
     *out = e;
@@ -136,10 +141,10 @@ static int half_index(hk_engine *dst, const double R[3])
         if (dst->Rhalf[3 * h] == R[0] && dst->Rhalf[3 * h + 1] == R[1] && dst->Rhalf[3 * h + 2] == R[2])
             return h;
     int h = dst->nhalf++;
-    for (int d = 0; d < 3; d++) dst->Rhalf[3 * h + d] = R[d];
+    for (int d = 0; d < 3; d++)
+        dst->Rhalf[3 * h + d] = R[d];
     return h;
 }
-
 
 int hk_reduce(const hk_engine *src, int axis, double kval, int max_batch, hk_engine **out, bs_err *err)
 {
@@ -165,19 +170,29 @@ int hk_reduce(const hk_engine *src, int axis, double kval, int max_batch, hk_eng
     }
     /* Source column 0 is the constant; columns 1+h and 1+nhalf+h are the cosine and sine of Rhalf[h].
      * For the pair h the target is R' = R with the axis component removed, folded into the half set. */
-    e->map_cos[0] = 0; e->map_sin[0] = -1; e->map_sign[0] = 1.0; e->src_Rax[0] = 0.0;
+    e->map_cos[0] = 0;
+    e->map_sin[0] = -1;
+    e->map_sign[0] = 1.0;
+    e->src_Rax[0] = 0.0;
     int *target = malloc((size_t)(src->nhalf + 1) * sizeof *target);
     double *sign = malloc((size_t)(src->nhalf + 1) * sizeof *sign);
     if (!target || !sign) {
-        free(target); free(sign); hk_free(e);
+        free(target);
+        free(sign);
+        hk_free(e);
         return bs_fail(err, BS_ENOMEM, "out of memory for a reduced H(k) engine");
     }
     for (int h = 0; h < src->nhalf; h++) {
         double Rp[3] = {src->Rhalf[3 * h], src->Rhalf[3 * h + 1], src->Rhalf[3 * h + 2]};
         Rp[axis] = 0.0;
-        if (Rp[0] == 0 && Rp[1] == 0 && Rp[2] == 0) { target[h] = -1; sign[h] = 1.0; continue; }
+        if (Rp[0] == 0 && Rp[1] == 0 && Rp[2] == 0) {
+            target[h] = -1;
+            sign[h] = 1.0;
+            continue;
+        }
         sign[h] = is_half_d(Rp) ? 1.0 : -1.0;
-        for (int d = 0; d < 3; d++) Rp[d] *= sign[h];
+        for (int d = 0; d < 3; d++)
+            Rp[d] *= sign[h];
         target[h] = half_index(e, Rp);
     }
     e->ncol = 1 + 2 * e->nhalf;
@@ -202,7 +217,10 @@ int hk_reduce(const hk_engine *src, int axis, double kval, int max_batch, hk_eng
         return bs_fail(err, BS_ENOMEM, "out of memory for a reduced H(k) engine");
     }
     int rc = hk_rereduce(e, src, kval, err);
-    if (rc != 0) { hk_free(e); return rc; }
+    if (rc != 0) {
+        hk_free(e);
+        return rc;
+    }
     *out = e;
     return 0;
 }
@@ -234,8 +252,14 @@ int hk_rereduce(hk_engine *dst, const hk_engine *src, double kval, bs_err *err)
     return 0;
 }
 
-int hk_norb(const hk_engine *e) { return e->norb; }
-int hk_max_batch(const hk_engine *e) { return e->max_batch; }
+int hk_norb(const hk_engine *e)
+{
+    return e->norb;
+}
+int hk_max_batch(const hk_engine *e)
+{
+    return e->max_batch;
+}
 
 /* Phase table for nk points; with derivs, blocks 1..3 hold d/dk_i of block 0. */
 static void fill_phases(hk_engine *e, int nk, const double *k, int nblock)
@@ -244,7 +268,8 @@ static void fill_phases(hk_engine *e, int nk, const double *k, int nblock)
     for (int j = 0; j < nk; j++) {
         double *p0 = e->phase + (size_t)j * ncol;
         p0[0] = 1.0;
-        for (int b = 1; b < nblock; b++) e->phase[(size_t)(b * nk + j) * ncol] = 0.0;
+        for (int b = 1; b < nblock; b++)
+            e->phase[(size_t)(b * nk + j) * ncol] = 0.0;
         for (int h = 0; h < nh; h++) {
             const double *R = e->Rhalf + 3 * h;
             double theta = 2.0 * M_PI * (k[3 * j] * R[0] + k[3 * j + 1] * R[1] + k[3 * j + 2] * R[2]);
@@ -271,7 +296,8 @@ static void unpack(const hk_engine *e, const double *packed, double complex *H)
             H[a + (size_t)b * n] = v;
             H[b + (size_t)a * n] = conj(v);
         }
-    for (int a = 0; a < n; a++) H[a + (size_t)a * n] = creal(H[a + (size_t)a * n]);
+    for (int a = 0; a < n; a++)
+        H[a + (size_t)a * n] = creal(H[a + (size_t)a * n]);
 }
 
 static int run_batch(hk_engine *e, int nk, const double *k, int nblock, bs_err *err)
@@ -280,8 +306,8 @@ static int run_batch(hk_engine *e, int nk, const double *k, int nblock, bs_err *
         return bs_fail(err, BS_EINVAL, "batch of %d k-points exceeds the engine's %d", nk, e->max_batch);
     fill_phases(e, nk, k, nblock);
     int rows = 2 * e->npair;
-    cblas_dgemm(CblasColMajor, CblasNoTrans, CblasNoTrans, rows, nblock * nk, e->ncol, 1.0, e->coef,
-                rows, e->phase, e->ncol, 0.0, e->packed, rows);
+    cblas_dgemm(CblasColMajor, CblasNoTrans, CblasNoTrans, rows, nblock * nk, e->ncol, 1.0, e->coef, rows,
+                e->phase, e->ncol, 0.0, e->packed, rows);
     return 0;
 }
 
@@ -290,12 +316,12 @@ int hk_build(hk_engine *e, int nk, const double *k, double complex *H, bs_err *e
     int rc = run_batch(e, nk, k, 1, err);
     if (rc != 0) return rc;
     size_t nn = (size_t)e->norb * e->norb, rows = 2 * (size_t)e->npair;
-    for (int j = 0; j < nk; j++) unpack(e, e->packed + j * rows, H + j * nn);
+    for (int j = 0; j < nk; j++)
+        unpack(e, e->packed + j * rows, H + j * nn);
     return 0;
 }
 
-int hk_build_deriv(hk_engine *e, int nk, const double *k, double complex *H, double complex *dH,
-                   bs_err *err)
+int hk_build_deriv(hk_engine *e, int nk, const double *k, double complex *H, double complex *dH, bs_err *err)
 {
     int rc = run_batch(e, nk, k, 4, err);
     if (rc != 0) return rc;
@@ -310,11 +336,11 @@ int hk_build_deriv(hk_engine *e, int nk, const double *k, double complex *H, dou
 
 struct hk_lines {
     hk_engine *full;
-    hk_engine *plane, *line;   /* NULL until first needed */
+    hk_engine *plane, *line; /* NULL until first needed */
     int plane_axis, line_axis;
     double plane_val, line_val;
-    int line_fresh;            /* line was reduced from the current plane */
-    double prev[3];            /* constant coordinates of the previous batch (NAN: not constant) */
+    int line_fresh; /* line was reduced from the current plane */
+    double prev[3]; /* constant coordinates of the previous batch (NAN: not constant) */
 };
 
 int hk_lines_create(hk_engine *full, hk_lines **out, bs_err *err)
@@ -324,7 +350,8 @@ int hk_lines_create(hk_engine *full, hk_lines **out, bs_err *err)
     if (!l) return bs_fail(err, BS_ENOMEM, "out of memory for the line cache");
     l->full = full;
     l->plane_axis = l->line_axis = -1;
-    for (int d = 0; d < 3; d++) l->prev[d] = NAN;
+    for (int d = 0; d < 3; d++)
+        l->prev[d] = NAN;
     *out = l;
     return 0;
 }
@@ -385,7 +412,8 @@ int hk_lines_build(hk_lines *l, int nk, const double *k, double complex *H, bs_e
     }
     /* A reduction costs about two k-points of the full engine: below 8 points it does not pay. */
     if (nk < 8 || nconst < 2 || l->full->nhalf < 4) {
-        for (int d = 0; d < 3; d++) l->prev[d] = cur[d];
+        for (int d = 0; d < 3; d++)
+            l->prev[d] = cur[d];
         return hk_build(l->full, nk, k, H, err);
     }
     /* The plane axis: the current one if it still holds, else a coordinate that was also fixed, at
@@ -398,8 +426,12 @@ int hk_lines_build(hk_lines *l, int nk, const double *k, double complex *H, bs_e
         if (!isnan(cur[d])) pa = d;
     int la = -1;
     for (int d = 0; d < 3; d++)
-        if (d != pa && !isnan(cur[d])) { la = d; break; }
-    for (int d = 0; d < 3; d++) l->prev[d] = cur[d];
+        if (d != pa && !isnan(cur[d])) {
+            la = d;
+            break;
+        }
+    for (int d = 0; d < 3; d++)
+        l->prev[d] = cur[d];
     int rc = lines_plane(l, pa, cur[pa], err);
     if (rc == 0) rc = lines_line(l, la, cur[la], err);
     if (rc == 0) rc = hk_build(l->line, nk, k, H, err);
@@ -417,7 +449,9 @@ void hk_build_direct(const tb_model *m, const double k[3], double complex *H)
         double theta = 2.0 * M_PI * (k[0] * m->R[r][0] + k[1] * m->R[r][1] + k[2] * m->R[r][2]);
         double complex ph = cexp(I * theta) / m->deg[r];
         const double complex *Hr = m->H + r * nn;
-        for (size_t p = 0; p < nn; p++) H[p] += ph * Hr[p];
+        for (size_t p = 0; p < nn; p++)
+            H[p] += ph * Hr[p];
     }
-    for (size_t p = 0; p < nn; p++) H[p] = conj(H[p]);
+    for (size_t p = 0; p < nn; p++)
+        H[p] = conj(H[p]);
 }

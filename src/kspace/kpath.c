@@ -15,8 +15,14 @@
  * the matching function of the same row. 2D rows are the k3 = 0 faces of TET, ORC and HEX. */
 typedef int (*metric_fn)(const double l[3], const double c[3], double tol);
 
-static int eq(double x, double y, double tol) { return fabs(x - y) <= tol * (fabs(x) + fabs(y)) * 0.5 + 1e-12; }
-static int near(double x, double y, double tol) { return fabs(x - y) <= tol; }
+static int eq(double x, double y, double tol)
+{
+    return fabs(x - y) <= tol * (fabs(x) + fabs(y)) * 0.5 + 1e-12;
+}
+static int near(double x, double y, double tol)
+{
+    return fabs(x - y) <= tol;
+}
 
 /* l: lengths |a1|, |a2|, |a3|; c: cosines of (a2,a3), (a1,a3), (a1,a2). */
 static int is_cub(const double l[3], const double c[3], double t)
@@ -39,14 +45,18 @@ static int is_hex(const double l[3], const double c[3], double t)
 }
 static int is_tet(const double l[3], const double c[3], double t)
 {
-    return eq(l[0], l[1], t) && !eq(l[0], l[2], t) && near(c[0], 0, t) && near(c[1], 0, t) && near(c[2], 0, t);
+    return eq(l[0], l[1], t) && !eq(l[0], l[2], t) && near(c[0], 0, t) && near(c[1], 0, t) &&
+           near(c[2], 0, t);
 }
 static int is_orc(const double l[3], const double c[3], double t)
 {
     return l[0] < l[1] && l[1] < l[2] && !eq(l[0], l[1], t) && !eq(l[1], l[2], t) && near(c[0], 0, t) &&
            near(c[1], 0, t) && near(c[2], 0, t);
 }
-static int is_sqr(const double l[3], const double c[3], double t) { return eq(l[0], l[1], t) && near(c[2], 0, t); }
+static int is_sqr(const double l[3], const double c[3], double t)
+{
+    return eq(l[0], l[1], t) && near(c[2], 0, t);
+}
 static int is_rec(const double l[3], const double c[3], double t)
 {
     return l[0] < l[1] && !eq(l[0], l[1], t) && near(c[2], 0, t);
@@ -64,11 +74,13 @@ typedef struct std_path {
 } std_path;
 
 static const std_path STD_PATHS[] = {
-    {"CUB", 3, is_cub, "G:0,0,0 X:0,1/2,0 M:1/2,1/2,0 G:0,0,0 R:1/2,1/2,1/2 X:0,1/2,0 | M:1/2,1/2,0 R:1/2,1/2,1/2"},
+    {"CUB", 3, is_cub,
+     "G:0,0,0 X:0,1/2,0 M:1/2,1/2,0 G:0,0,0 R:1/2,1/2,1/2 X:0,1/2,0 | M:1/2,1/2,0 R:1/2,1/2,1/2"},
     {"FCC", 3, is_fcc,
      "G:0,0,0 X:1/2,0,1/2 W:1/2,1/4,3/4 K:3/8,3/8,3/4 G:0,0,0 L:1/2,1/2,1/2 U:5/8,1/4,5/8 W:1/2,1/4,3/4 "
      "L:1/2,1/2,1/2 K:3/8,3/8,3/4 | U:5/8,1/4,5/8 X:1/2,0,1/2"},
-    {"BCC", 3, is_bcc, "G:0,0,0 H:1/2,-1/2,1/2 N:0,0,1/2 G:0,0,0 P:1/4,1/4,1/4 H:1/2,-1/2,1/2 | P:1/4,1/4,1/4 N:0,0,1/2"},
+    {"BCC", 3, is_bcc,
+     "G:0,0,0 H:1/2,-1/2,1/2 N:0,0,1/2 G:0,0,0 P:1/4,1/4,1/4 H:1/2,-1/2,1/2 | P:1/4,1/4,1/4 N:0,0,1/2"},
     {"HEX", 3, is_hex,
      "G:0,0,0 M:1/2,0,0 K:1/3,1/3,0 G:0,0,0 A:0,0,1/2 L:1/2,0,1/2 H:1/3,1/3,1/2 A:0,0,1/2 | L:1/2,0,1/2 "
      "M:1/2,0,0 | K:1/3,1/3,0 H:1/3,1/3,1/2"},
@@ -83,11 +95,15 @@ static const std_path STD_PATHS[] = {
     {"REC", 2, is_rec, "G:0,0,0 X:1/2,0,0 S:1/2,1/2,0 Y:0,1/2,0 G:0,0,0"},
 };
 
-static double dot3(const double *x, const double *y) { return x[0] * y[0] + x[1] * y[1] + x[2] * y[2]; }
+static double dot3(const double *x, const double *y)
+{
+    return x[0] * y[0] + x[1] * y[1] + x[2] * y[2];
+}
 
 static int det3i(const int M[3][3])
 {
-    return M[0][0] * (M[1][1] * M[2][2] - M[1][2] * M[2][1]) - M[0][1] * (M[1][0] * M[2][2] - M[1][2] * M[2][0]) +
+    return M[0][0] * (M[1][1] * M[2][2] - M[1][2] * M[2][1]) -
+           M[0][1] * (M[1][0] * M[2][2] - M[1][2] * M[2][0]) +
            M[0][2] * (M[1][0] * M[2][1] - M[1][1] * M[2][0]);
 }
 
@@ -96,8 +112,10 @@ static void metric(const int M[3][3], const double a[3][3], double l[3], double 
 {
     double v[3][3];
     for (int i = 0; i < 3; i++)
-        for (int x = 0; x < 3; x++) v[i][x] = M[i][0] * a[0][x] + M[i][1] * a[1][x] + M[i][2] * a[2][x];
-    for (int i = 0; i < 3; i++) l[i] = sqrt(dot3(v[i], v[i]));
+        for (int x = 0; x < 3; x++)
+            v[i][x] = M[i][0] * a[0][x] + M[i][1] * a[1][x] + M[i][2] * a[2][x];
+    for (int i = 0; i < 3; i++)
+        l[i] = sqrt(dot3(v[i], v[i]));
     c[0] = dot3(v[1], v[2]) / (l[1] * l[2]);
     c[1] = dot3(v[0], v[2]) / (l[0] * l[2]);
     c[2] = dot3(v[0], v[1]) / (l[0] * l[1]);
@@ -110,16 +128,19 @@ static int find_basis(const std_path *sp, const double a[3][3], double tol, int 
     int e[9];
     const int nfree = sp->dim == 3 ? 9 : 4;
     long total = 1;
-    for (int i = 0; i < nfree; i++) total *= 3;
+    for (int i = 0; i < nfree; i++)
+        total *= 3;
     /* Digits map to 0, 1, -1 and the search starts from the identity's code, so a cell that is
      * already standard keeps its basis (and its reduced coordinates read as published). */
     static const int digit[3] = {0, 1, -1};
     const long ident_code = sp->dim == 3 ? 1 + 81 + 6561 : 1 + 27;
     for (long step = 0; step < total; step++) {
         long c = (ident_code + step) % total;
-        for (int i = 0; i < nfree; i++, c /= 3) e[i] = digit[c % 3];
+        for (int i = 0; i < nfree; i++, c /= 3)
+            e[i] = digit[c % 3];
         if (sp->dim == 3) {
-            for (int i = 0; i < 9; i++) M[i / 3][i % 3] = e[i];
+            for (int i = 0; i < 9; i++)
+                M[i / 3][i % 3] = e[i];
         } else {
             memset(M, 0, 9 * sizeof(int));
             M[0][0] = e[0], M[0][1] = e[1], M[1][0] = e[2], M[1][1] = e[3], M[2][2] = 1;
@@ -166,7 +187,8 @@ int kpath_auto(const double a[3][3], int dim, double tol, kpath *out, bs_err *er
         inverse3i((const int(*)[3])M, inv);
         for (int i = 0; i < out->npoint; i++) {
             double k[3], *kp = out->point[i].k;
-            for (int x = 0; x < 3; x++) k[x] = inv[x][0] * kp[0] + inv[x][1] * kp[1] + inv[x][2] * kp[2];
+            for (int x = 0; x < 3; x++)
+                k[x] = inv[x][0] * kp[0] + inv[x][1] * kp[1] + inv[x][2] * kp[2];
             memcpy(kp, k, sizeof k);
         }
         snprintf(out->lattice, sizeof out->lattice, "%s", sp->name);
@@ -178,7 +200,8 @@ int kpath_auto(const double a[3][3], int dim, double tol, kpath *out, bs_err *er
     return bs_fail(err, BS_EINVAL,
                    "no standard path for this lattice (|a| = %.4f %.4f %.4f A, angles %.2f %.2f %.2f deg): "
                    "recognised are CUB FCC BCC TET ORC HEX (2D: square, rectangular, hexagonal); give --path",
-                   l[0], l[1], l[2], acos(c[0]) * 180 / M_PI, acos(c[1]) * 180 / M_PI, acos(c[2]) * 180 / M_PI);
+                   l[0], l[1], l[2], acos(c[0]) * 180 / M_PI, acos(c[1]) * 180 / M_PI,
+                   acos(c[2]) * 180 / M_PI);
 }
 
 /* One coordinate "x" or "p/q". */
@@ -232,7 +255,8 @@ int kpath_parse(const char *text, kpath *out, bs_err *err)
     int jump = 0;
     const char *p = text;
     while (*p) {
-        while (isspace((unsigned char)*p)) p++;
+        while (isspace((unsigned char)*p))
+            p++;
         if (!*p) break;
         size_t len = strcspn(p, " \t\n");
         if (len == 1 && *p == '|') {
@@ -243,8 +267,8 @@ int kpath_parse(const char *text, kpath *out, bs_err *err)
                 return bs_fail(err, BS_EPARSE, "path: more than %d points", KPATH_MAX_POINTS);
             kpath_point *pt = &out->point[out->npoint];
             if (parse_item(p, len, pt) != 0)
-                return bs_fail(err, BS_EPARSE, "path: item %d '%.*s' is not LABEL:k1,k2[,k3]", out->npoint + 1,
-                               (int)(len > 60 ? 60 : len), p);
+                return bs_fail(err, BS_EPARSE, "path: item %d '%.*s' is not LABEL:k1,k2[,k3]",
+                               out->npoint + 1, (int)(len > 60 ? 60 : len), p);
             pt->jump = jump;
             jump = 0;
             out->npoint++;
@@ -252,7 +276,8 @@ int kpath_parse(const char *text, kpath *out, bs_err *err)
         p += len;
     }
     if (jump) return bs_fail(err, BS_EPARSE, "path: ends with '|'");
-    if (out->npoint < 2) return bs_fail(err, BS_EPARSE, "path: needs at least two points, found %d", out->npoint);
+    if (out->npoint < 2)
+        return bs_fail(err, BS_EPARSE, "path: needs at least two points, found %d", out->npoint);
     return 0;
 }
 
@@ -270,7 +295,8 @@ static double seg_length(const double b[3][3], const double *k0, const double *k
 {
     double d[3] = {0, 0, 0};
     for (int i = 0; i < 3; i++)
-        for (int x = 0; x < 3; x++) d[x] += (k1[i] - k0[i]) * b[i][x];
+        for (int x = 0; x < 3; x++)
+            d[x] += (k1[i] - k0[i]) * b[i][x];
     return sqrt(dot3(d, d));
 }
 
@@ -307,7 +333,8 @@ int kpath_sample(const kpath *p, const double a[3][3], int npoints, kpath_sample
             double len = seg_length(b, k0, k1);
             for (int j = 1; j < nint[i]; j++, n++) {
                 double f = (double)j / nint[i];
-                for (int c = 0; c < 3; c++) out->k[3 * n + c] = k0[c] + f * (k1[c] - k0[c]);
+                for (int c = 0; c < 3; c++)
+                    out->k[3 * n + c] = k0[c] + f * (k1[c] - k0[c]);
                 out->x[n] = x + f * len;
                 out->vertex[n] = -1;
             }

@@ -15,7 +15,7 @@
 #include "bandsieve/hopfile.h"
 
 #define CARD_MAX_BYTES (64L << 20) /* a card with an inversion operator for 20000 states is ~2 MB */
-#define CARD_POS_TOL 1e-4          /* reduced; positions are printed to 5-6 digits (common practice) */
+#define CARD_POS_TOL   1e-4        /* reduced; positions are printed to 5-6 digits (common practice) */
 
 static int key_line(const char *text, const char *key, int nth);
 
@@ -23,7 +23,7 @@ typedef struct card_ctx {
     const char *path;
     const char *text;
     bs_err *err;
-    char *notes;        /* where notes go (may be NULL), capacity notes_cap */
+    char *notes; /* where notes go (may be NULL), capacity notes_cap */
     size_t notes_cap;
 } card_ctx;
 
@@ -33,8 +33,10 @@ static void add_note(const card_ctx *c, const char *key, const char *what)
     if (!c->notes || c->notes_cap == 0) return;
     size_t used = strlen(c->notes);
     int line = key_line(c->text, key, 0);
-    if (line > 0) snprintf(c->notes + used, c->notes_cap - used, "%s:%d: key '%s': %s\n", c->path, line, key, what);
-    else snprintf(c->notes + used, c->notes_cap - used, "%s: key '%s': %s\n", c->path, key, what);
+    if (line > 0)
+        snprintf(c->notes + used, c->notes_cap - used, "%s:%d: key '%s': %s\n", c->path, line, key, what);
+    else
+        snprintf(c->notes + used, c->notes_cap - used, "%s: key '%s': %s\n", c->path, key, what);
 }
 
 /* Line of the nth (0-based) occurrence of "key" followed by ':' in the text, or 0. */
@@ -46,18 +48,19 @@ static int key_line(const char *text, const char *key, int nth)
         if (*p == '\n') line++;
         if (*p != '"' || strncmp(p + 1, key, klen) != 0 || p[1 + klen] != '"') continue;
         const char *q = p + 2 + klen;
-        while (*q == ' ' || *q == '\t' || *q == '\r' || *q == '\n') q++;
+        while (*q == ' ' || *q == '\t' || *q == '\r' || *q == '\n')
+            q++;
         if (*q == ':' && nth-- == 0) return line;
     }
     return 0;
 }
 
-static int fail_key(const card_ctx *c, int code, const char *key, const char *label, int nth,
-                    const char *fmt, ...) __attribute__((format(printf, 6, 7)));
+static int fail_key(const card_ctx *c, int code, const char *key, const char *label, int nth, const char *fmt,
+                    ...) __attribute__((format(printf, 6, 7)));
 
 /* key is searched for in the text; label is what the message calls it (e.g. "orbitals[3].l"). */
-static int fail_key(const card_ctx *c, int code, const char *key, const char *label, int nth,
-                    const char *fmt, ...)
+static int fail_key(const card_ctx *c, int code, const char *key, const char *label, int nth, const char *fmt,
+                    ...)
 {
     char what[400];
     va_list ap;
@@ -122,8 +125,8 @@ static int get_string(const card_ctx *c, const cJSON *obj, const char *key, int 
 }
 
 /* A list of exactly n numbers (integers when want_int). */
-static int get_vector(const card_ctx *c, const cJSON *j, const char *key, const char *label, int nth,
-                      int n, int want_int, double *v)
+static int get_vector(const card_ctx *c, const cJSON *j, const char *key, const char *label, int nth, int n,
+                      int want_int, double *v)
 {
     if (!cJSON_IsArray(j) || cJSON_GetArraySize(j) != n)
         return fail_key(c, BS_EPARSE, key, label, nth, "expected a list of %d %s, found %s%s", n,
@@ -141,9 +144,10 @@ static int get_vector(const card_ctx *c, const cJSON *j, const char *key, const 
     return 0;
 }
 
-static const char *const card_keys[] = {"id", "dimension", "lattice", "hoppings", "occupied_bands",
-                                        "electrons", "spinful", "spin_layout", "orbitals", "formula",
-                                        "source", "fermi_energy_eV", "inversion", "magnetism", "comment", "meta", "family", NULL};
+static const char *const card_keys[] = {
+    "id",        "dimension",   "lattice",  "hoppings", "occupied_bands", "electrons",
+    "spinful",   "spin_layout", "orbitals", "formula",  "source",         "fermi_energy_eV",
+    "inversion", "magnetism",   "comment",  "meta",     "family",         NULL};
 static const char *const family_keys[] = {"name", "parameter", "unit", "value", NULL};
 
 /* Edit distance (insertions, deletions, substitutions, and swaps of neighbours) between two
@@ -153,8 +157,10 @@ static int key_distance(const char *a, const char *b)
     size_t na = strlen(a), nb = strlen(b);
     if (na > 40 || nb > 40) return 9;
     int d[41][41];
-    for (size_t i = 0; i <= na; i++) d[i][0] = (int)i;
-    for (size_t j = 0; j <= nb; j++) d[0][j] = (int)j;
+    for (size_t i = 0; i <= na; i++)
+        d[i][0] = (int)i;
+    for (size_t j = 0; j <= nb; j++)
+        d[0][j] = (int)j;
     for (size_t i = 1; i <= na; i++)
         for (size_t j = 1; j <= nb; j++) {
             int sub = d[i - 1][j - 1] + (a[i - 1] != b[j - 1]);
@@ -189,13 +195,17 @@ static int check_unknown_keys(const card_ctx *c, const cJSON *obj, const char *c
 {
     for (const cJSON *e = obj->child; e; e = e->next) {
         int ok = 0;
-        for (const char *const *k = allowed; *k && !ok; k++) ok = strcmp(*k, e->string) == 0;
+        for (const char *const *k = allowed; *k && !ok; k++)
+            ok = strcmp(*k, e->string) == 0;
         char label[200];
         snprintf(label, sizeof label, "%s%s", where, e->string);
         if (!ok) {
             const char *near = suggest_key(e->string, allowed);
-            if (near) return fail_key(c, BS_EPARSE, e->string, label, nth, "unknown key; did you mean '%s%s'?", where, near);
-            return fail_key(c, BS_EPARSE, e->string, label, nth, "unknown key (extra information goes in the object 'meta')");
+            if (near)
+                return fail_key(c, BS_EPARSE, e->string, label, nth, "unknown key; did you mean '%s%s'?",
+                                where, near);
+            return fail_key(c, BS_EPARSE, e->string, label, nth,
+                            "unknown key (extra information goes in the object 'meta')");
         }
         /* JSON allows a repeated key and cJSON keeps the first: refuse it rather than guess. */
         for (const cJSON *f = obj->child; f != e; f = f->next)
@@ -240,16 +250,16 @@ static int read_lattice(const card_ctx *c, const cJSON *root, double lat[3][3])
     for (i = 0; i < 3; i++) {
         double len = sqrt(lat[i][0] * lat[i][0] + lat[i][1] * lat[i][1] + lat[i][2] * lat[i][2]);
         if (!(len >= BS_MIN_LATTICE_A && len <= BS_MAX_LATTICE_A))
-            return fail_key(c, BS_EINVAL, "lattice", "lattice", 0, "row %d has length %g A, outside %g..%g A", i + 1,
-                            len, BS_MIN_LATTICE_A, BS_MAX_LATTICE_A);
+            return fail_key(c, BS_EINVAL, "lattice", "lattice", 0, "row %d has length %g A, outside %g..%g A",
+                            i + 1, len, BS_MIN_LATTICE_A, BS_MAX_LATTICE_A);
     }
     double det = lat[0][0] * (lat[1][1] * lat[2][2] - lat[1][2] * lat[2][1]) -
                  lat[0][1] * (lat[1][0] * lat[2][2] - lat[1][2] * lat[2][0]) +
                  lat[0][2] * (lat[1][0] * lat[2][1] - lat[1][1] * lat[2][0]);
     /* A cell below 1e-6 A^3 is no crystal: the rows are dependent or the units are wrong. */
     if (!(fabs(det) > 1e-6))
-        return fail_key(c, BS_EINVAL, "lattice", "lattice", 0, "rows are linearly dependent (volume %.3g A^3)",
-                        det);
+        return fail_key(c, BS_EINVAL, "lattice", "lattice", 0,
+                        "rows are linearly dependent (volume %.3g A^3)", det);
     return 0;
 }
 
@@ -259,7 +269,8 @@ static int read_spin(const card_ctx *c, const cJSON *root, card_head *h)
     int rc = get_key(c, root, "spinful", 1, &j);
     if (rc != 0) return rc;
     if (!cJSON_IsBool(j))
-        return fail_key(c, BS_EPARSE, "spinful", "spinful", 0, "expected true or false, found %s", json_type(j));
+        return fail_key(c, BS_EPARSE, "spinful", "spinful", 0, "expected true or false, found %s",
+                        json_type(j));
     h->spinful = cJSON_IsTrue(j);
     const cJSON *lay = cJSON_GetObjectItemCaseSensitive(root, "spin_layout");
     if (!h->spinful) {
@@ -269,12 +280,15 @@ static int read_spin(const card_ctx *c, const cJSON *root, card_head *h)
         h->layout = TB_SPIN_NONE;
         return 0;
     }
-    if (!lay) return bs_fail(c->err, BS_EPARSE, "%s: missing key 'spin_layout' (required when spinful)", c->path);
+    if (!lay)
+        return bs_fail(c->err, BS_EPARSE, "%s: missing key 'spin_layout' (required when spinful)", c->path);
     if (!cJSON_IsString(lay))
         return fail_key(c, BS_EPARSE, "spin_layout", "spin_layout", 0,
                         "expected \"blocks\" or \"interleaved\", found %s", json_type(lay));
-    if (strcmp(lay->valuestring, "blocks") == 0) h->layout = TB_SPIN_BLOCKS;
-    else if (strcmp(lay->valuestring, "interleaved") == 0) h->layout = TB_SPIN_INTERLEAVED;
+    if (strcmp(lay->valuestring, "blocks") == 0)
+        h->layout = TB_SPIN_BLOCKS;
+    else if (strcmp(lay->valuestring, "interleaved") == 0)
+        h->layout = TB_SPIN_INTERLEAVED;
     else
         return fail_key(c, BS_EINVAL, "spin_layout", "spin_layout", 0,
                         "expected \"blocks\" or \"interleaved\", found \"%.40s\"", lay->valuestring);
@@ -286,8 +300,10 @@ static int table_path(const card_ctx *c, const char *name, char *dst, size_t cap
 {
     const char *slash = strrchr(c->path, '/');
     int n;
-    if (name[0] == '/' || !slash) n = snprintf(dst, cap, "%s", name);
-    else n = snprintf(dst, cap, "%.*s/%s", (int)(slash - c->path), c->path, name);
+    if (name[0] == '/' || !slash)
+        n = snprintf(dst, cap, "%s", name);
+    else
+        n = snprintf(dst, cap, "%.*s/%s", (int)(slash - c->path), c->path, name);
     if (n < 0 || (size_t)n >= cap)
         return fail_key(c, BS_EINVAL, "hoppings", "hoppings", 0, "path longer than %zu characters", cap - 1);
     return 0;
@@ -302,10 +318,12 @@ static int read_filling(const card_ctx *c, const cJSON *root, card_head *h)
     const cJSON *ob = cJSON_GetObjectItemCaseSensitive(root, "occupied_bands");
     const cJSON *el = cJSON_GetObjectItemCaseSensitive(root, "electrons");
     if (ob && el)
-        return fail_key(c, BS_EPARSE, "electrons", "electrons", 0, "give either 'occupied_bands' or 'electrons', not both");
+        return fail_key(c, BS_EPARSE, "electrons", "electrons", 0,
+                        "give either 'occupied_bands' or 'electrons', not both");
     if (!el) return get_int(c, root, "occupied_bands", &h->nocc);
     if (!json_is_int(el))
-        return fail_key(c, BS_EPARSE, "electrons", "electrons", 0, "expected an integer, found %s", json_type(el));
+        return fail_key(c, BS_EPARSE, "electrons", "electrons", 0, "expected an integer, found %s",
+                        json_type(el));
     int ne = (int)el->valuedouble;
     if (ne < 1)
         return fail_key(c, BS_EINVAL, "electrons", "electrons", 0, "expected a positive count, found %d", ne);
@@ -314,8 +332,10 @@ static int read_filling(const card_ctx *c, const cJSON *root, card_head *h)
         return 0;
     }
     if (ne % 2)
-        return fail_key(c, BS_EINVAL, "electrons", "electrons", 0, "%d electrons in a spinless model (2 per band) "
-                        "leave a band half filled; give 'occupied_bands' or a spinful model", ne);
+        return fail_key(c, BS_EINVAL, "electrons", "electrons", 0,
+                        "%d electrons in a spinless model (2 per band) "
+                        "leave a band half filled; give 'occupied_bands' or a spinful model",
+                        ne);
     h->nocc = ne / 2;
     return 0;
 }
@@ -325,8 +345,10 @@ static int read_head(const card_ctx *c, const cJSON *root, card_head *h)
     int rc = check_unknown_keys(c, root, card_keys, "", 0);
     if (rc == 0) rc = get_string(c, root, "id", 1, h->id, sizeof h->id);
     if (rc == 0 && !card_id_ok(h->id))
-        rc = fail_key(c, BS_EINVAL, "id", "id", 0, "'%s' is not a valid id (1..127 of A-Z a-z 0-9 _ . + -, "
-                      "not starting with '.')", h->id);
+        rc = fail_key(c, BS_EINVAL, "id", "id", 0,
+                      "'%s' is not a valid id (1..127 of A-Z a-z 0-9 _ . + -, "
+                      "not starting with '.')",
+                      h->id);
     if (rc == 0) rc = get_int(c, root, "dimension", &h->dim);
     if (rc == 0 && h->dim != 2 && h->dim != 3)
         rc = fail_key(c, BS_EINVAL, "dimension", "dimension", 0, "expected 2 or 3, found %d", h->dim);
@@ -340,7 +362,8 @@ static int read_head(const card_ctx *c, const cJSON *root, card_head *h)
     const cJSON *orb = NULL;
     if (rc == 0) rc = get_key(c, root, "orbitals", 1, &orb);
     if (rc == 0 && (!cJSON_IsArray(orb) || cJSON_GetArraySize(orb) < 1))
-        rc = fail_key(c, BS_EPARSE, "orbitals", "orbitals", 0, "expected a non-empty list of orbitals, found %s",
+        rc = fail_key(c, BS_EPARSE, "orbitals", "orbitals", 0,
+                      "expected a non-empty list of orbitals, found %s",
                       cJSON_IsArray(orb) ? "an empty list" : json_type(orb));
     if (rc == 0) h->nspatial = cJSON_GetArraySize(orb);
     return rc;
@@ -375,14 +398,16 @@ static int read_orbitals(const card_ctx *c, const cJSON *root, tb_model *m)
         snprintf(label, sizeof label, "orbitals[%d].shape", i + 1);
         int idx = cJSON_IsString(shape) ? tb_shape_index(m->orb_l[i], shape->valuestring) : -1;
         if (idx < 0)
-            return fail_key(c, BS_EINVAL, "shape", label, i, "expected a shape of l = %d (%s%s%s...), found %s",
-                            m->orb_l[i], tb_shape_name(m->orb_l[i], 0),
-                            m->orb_l[i] > 0 ? ", " : "", m->orb_l[i] > 0 ? tb_shape_name(m->orb_l[i], 1) : "",
+            return fail_key(c, BS_EINVAL, "shape", label, i,
+                            "expected a shape of l = %d (%s%s%s...), found %s", m->orb_l[i],
+                            tb_shape_name(m->orb_l[i], 0), m->orb_l[i] > 0 ? ", " : "",
+                            m->orb_l[i] > 0 ? tb_shape_name(m->orb_l[i], 1) : "",
                             cJSON_IsString(shape) ? shape->valuestring : json_type(shape));
         if (!m->orb_shape) {
             m->orb_shape = malloc((size_t)m->nspatial * sizeof *m->orb_shape);
             if (!m->orb_shape) return bs_fail(c->err, BS_ENOMEM, "out of memory (orbital shapes)");
-            for (int q = 0; q < m->nspatial; q++) m->orb_shape[q] = -1;
+            for (int q = 0; q < m->nspatial; q++)
+                m->orb_shape[q] = -1;
         }
         m->orb_shape[i] = idx;
     }
@@ -419,7 +444,8 @@ static int read_inversion_entry(const card_ctx *c, const cJSON *e, int i, tb_mod
     if ((rc = get_vector(c, sh, "shift", label, i, 3, 1, shift)) != 0) return rc;
     m->inv_perm[i] = (int)to->valuedouble - 1;
     m->inv_sign[i] = sg->valuedouble;
-    for (int d = 0; d < 3; d++) m->inv_shift[i][d] = (int)shift[d];
+    for (int d = 0; d < 3; d++)
+        m->inv_shift[i][d] = (int)shift[d];
     return 0;
 }
 
@@ -442,9 +468,10 @@ static int check_inversion_geometry(const card_ctx *c, tb_model *m)
         int ncheck = m->dim == 2 ? 2 : 3;
         for (int d = 0; d < ncheck && rc == 0; d++)
             if (fabs(-ti[d] - tj[d] - m->inv_shift[i][d]) > CARD_POS_TOL)
-                rc = fail_key(c, BS_EINVAL, "shift", label, i, "-tau_%d - tau_%d - shift = %.6g in component "
-                              "%d, expected 0 (shift = -tau_i - tau_j)", i + 1, j + 1,
-                              -ti[d] - tj[d] - m->inv_shift[i][d], d + 1);
+                rc = fail_key(c, BS_EINVAL, "shift", label, i,
+                              "-tau_%d - tau_%d - shift = %.6g in component "
+                              "%d, expected 0 (shift = -tau_i - tau_j)",
+                              i + 1, j + 1, -ti[d] - tj[d] - m->inv_shift[i][d], d + 1);
         if (rc == 0 && m->dim == 2 && m->inv_shift[i][2] != 0)
             rc = fail_key(c, BS_EINVAL, "shift", label, i, "third component must be 0 in 2D");
     }
@@ -457,8 +484,10 @@ static int read_inversion(const card_ctx *c, const cJSON *root, tb_model *m)
     const cJSON *inv = cJSON_GetObjectItemCaseSensitive(root, "inversion");
     if (!inv) return 0;
     if (!cJSON_IsArray(inv) || cJSON_GetArraySize(inv) != m->norb)
-        return fail_key(c, BS_EINVAL, "inversion", "inversion", 0, "expected a list of %d entries (one per "
-                        "state), found %s%s", m->norb, json_type(inv), cJSON_IsArray(inv) ? " of another length" : "");
+        return fail_key(c, BS_EINVAL, "inversion", "inversion", 0,
+                        "expected a list of %d entries (one per "
+                        "state), found %s%s",
+                        m->norb, json_type(inv), cJSON_IsArray(inv) ? " of another length" : "");
     m->inv_perm = malloc((size_t)m->norb * sizeof *m->inv_perm);
     m->inv_sign = malloc((size_t)m->norb * sizeof *m->inv_sign);
     m->inv_shift = malloc((size_t)m->norb * sizeof *m->inv_shift);
@@ -466,7 +495,8 @@ static int read_inversion(const card_ctx *c, const cJSON *root, tb_model *m)
         return bs_fail(c->err, BS_ENOMEM, "%s: out of memory for the inversion operator", c->path);
     m->has_inversion_op = 1;
     int i = 0, rc = 0;
-    for (const cJSON *e = inv->child; e && rc == 0; e = e->next, i++) rc = read_inversion_entry(c, e, i, m);
+    for (const cJSON *e = inv->child; e && rc == 0; e = e->next, i++)
+        rc = read_inversion_entry(c, e, i, m);
     if (rc == 0) rc = check_inversion_geometry(c, m);
     return rc;
 }
@@ -477,21 +507,24 @@ static int read_family(const card_ctx *c, const cJSON *root, tb_model *m)
     const cJSON *f = cJSON_GetObjectItemCaseSensitive(root, "family");
     if (!f) return 0;
     if (!cJSON_IsObject(f))
-        return fail_key(c, BS_EPARSE, "family", "family", 0, "expected an object {name, parameter, unit, value}, "
-                        "found %s", json_type(f));
+        return fail_key(c, BS_EPARSE, "family", "family", 0,
+                        "expected an object {name, parameter, unit, value}, "
+                        "found %s",
+                        json_type(f));
     int rc = check_unknown_keys(c, f, family_keys, "family.", 0);
     if (rc == 0) rc = get_string(c, f, "name", 1, m->family, sizeof m->family);
     if (rc == 0) rc = get_string(c, f, "parameter", 1, m->family_param, sizeof m->family_param);
     if (rc == 0) rc = get_string(c, f, "unit", 0, m->family_unit, sizeof m->family_unit);
     if (rc != 0) return rc;
     if (!card_id_ok(m->family))
-        return fail_key(c, BS_EINVAL, "name", "family.name", 0, "'%s': expected 1-63 characters from [A-Za-z0-9_.+-]",
-                        m->family);
+        return fail_key(c, BS_EINVAL, "name", "family.name", 0,
+                        "'%s': expected 1-63 characters from [A-Za-z0-9_.+-]", m->family);
     if (!m->family_param[0]) return fail_key(c, BS_EINVAL, "parameter", "family.parameter", 0, "empty");
     const cJSON *v = cJSON_GetObjectItemCaseSensitive(f, "value");
     if (!v) return bs_fail(c->err, BS_EPARSE, "%s: missing key 'family.value'", c->path);
     if (!cJSON_IsNumber(v) || !isfinite(v->valuedouble))
-        return fail_key(c, BS_EPARSE, "value", "family.value", 0, "expected a finite number, found %s", json_type(v));
+        return fail_key(c, BS_EPARSE, "value", "family.value", 0, "expected a finite number, found %s",
+                        json_type(v));
     m->family_value = v->valuedouble;
     m->has_family = 1;
     return 0;
@@ -504,11 +537,12 @@ static int read_optional(const card_ctx *c, const cJSON *root, tb_model *m)
     const cJSON *ef = cJSON_GetObjectItemCaseSensitive(root, "fermi_energy_eV");
     if (rc == 0 && ef) {
         if (!cJSON_IsNumber(ef))
-            return fail_key(c, BS_EPARSE, "fermi_energy_eV", "fermi_energy_eV", 0, "expected a number, found %s",
-                            json_type(ef));
+            return fail_key(c, BS_EPARSE, "fermi_energy_eV", "fermi_energy_eV", 0,
+                            "expected a number, found %s", json_type(ef));
         if (!isfinite(ef->valuedouble) || fabs(ef->valuedouble) > BS_MAX_HOPPING_EV)
             return fail_key(c, BS_EINVAL, "fermi_energy_eV", "fermi_energy_eV", 0,
-                            "%g eV is outside +-%g eV (not finite or wrong units)", ef->valuedouble, BS_MAX_HOPPING_EV);
+                            "%g eV is outside +-%g eV (not finite or wrong units)", ef->valuedouble,
+                            BS_MAX_HOPPING_EV);
         m->has_fermi = 1;
         m->fermi_ev = ef->valuedouble;
     }
@@ -545,13 +579,17 @@ static int build_model(const card_ctx *c, const cJSON *root, const card_head *h,
     }
     int want = (h->spinful ? 2 : 1) * h->nspatial;
     if (m->norb != want) {
-        rc = fail_key(c, BS_EINVAL, "orbitals", "orbitals", 0, "%d orbitals%s need %d states, but the table %s "
-                      "has %d", h->nspatial, h->spinful ? " (spinful)" : "", want, h->table, m->norb);
+        rc = fail_key(c, BS_EINVAL, "orbitals", "orbitals", 0,
+                      "%d orbitals%s need %d states, but the table %s "
+                      "has %d",
+                      h->nspatial, h->spinful ? " (spinful)" : "", want, h->table, m->norb);
         goto done;
     }
     if (!(flags & CARD_NO_VALIDATE) && (h->nocc < 1 || h->nocc >= m->norb)) {
-        rc = fail_key(c, BS_EINVAL, "occupied_bands", "occupied_bands", 0, "expected 1..%d for %d states, "
-                      "found %d", m->norb - 1, m->norb, h->nocc);
+        rc = fail_key(c, BS_EINVAL, "occupied_bands", "occupied_bands", 0,
+                      "expected 1..%d for %d states, "
+                      "found %d",
+                      m->norb - 1, m->norb, h->nocc);
         goto done;
     }
     memcpy(m->id, h->id, sizeof m->id);
@@ -624,10 +662,13 @@ static int json_parse(const card_ctx *c, cJSON **root)
     const char *end = NULL;
     *root = cJSON_ParseWithOpts(c->text, &end, 1);
     if (*root && cJSON_IsObject(*root)) return 0;
-    if (*root) return bs_fail(c->err, BS_EPARSE, "%s:1: expected a JSON object, found %s", c->path, json_type(*root));
+    if (*root)
+        return bs_fail(c->err, BS_EPARSE, "%s:1: expected a JSON object, found %s", c->path,
+                       json_type(*root));
     int line = 1;
     const char *stop = end ? end : c->text;
-    for (const char *p = c->text; p < stop && *p; p++) line += *p == '\n';
+    for (const char *p = c->text; p < stop && *p; p++)
+        line += *p == '\n';
     char near[24];
     snprintf(near, sizeof near, "%s", stop);
     for (char *p = near; *p; p++)
@@ -661,12 +702,16 @@ int card_read_opts(const char *path, int flags, tb_model **out, bs_err *err)
     return card_read_notes(path, flags, out, NULL, 0, err);
 }
 
-int card_read(const char *path, tb_model **out, bs_err *err) { return card_read_opts(path, 0, out, err); }
+int card_read(const char *path, tb_model **out, bs_err *err)
+{
+    return card_read_opts(path, 0, out, err);
+}
 
 static cJSON *json_vec(const double *v, int n)
 {
     cJSON *a = cJSON_CreateArray();
-    for (int i = 0; a && i < n; i++) cJSON_AddItemToArray(a, cJSON_CreateNumber(v[i]));
+    for (int i = 0; a && i < n; i++)
+        cJSON_AddItemToArray(a, cJSON_CreateNumber(v[i]));
     return a;
 }
 
@@ -678,14 +723,17 @@ static cJSON *card_json(const tb_model *m, const char *table_name)
     if (m->source[0]) cJSON_AddStringToObject(root, "source", m->source);
     cJSON_AddNumberToObject(root, "dimension", m->dim);
     cJSON *lat = cJSON_AddArrayToObject(root, "lattice");
-    for (int i = 0; lat && i < 3; i++) cJSON_AddItemToArray(lat, json_vec(m->lattice[i], 3));
+    for (int i = 0; lat && i < 3; i++)
+        cJSON_AddItemToArray(lat, json_vec(m->lattice[i], 3));
     cJSON_AddStringToObject(root, "hoppings", table_name);
     cJSON_AddNumberToObject(root, "occupied_bands", m->nocc);
     cJSON_AddBoolToObject(root, "spinful", m->spinful);
     if (m->spinful)
-        cJSON_AddStringToObject(root, "spin_layout", m->spin_layout == TB_SPIN_INTERLEAVED ? "interleaved" : "blocks");
+        cJSON_AddStringToObject(root, "spin_layout",
+                                m->spin_layout == TB_SPIN_INTERLEAVED ? "interleaved" : "blocks");
     if (m->has_fermi) cJSON_AddNumberToObject(root, "fermi_energy_eV", m->fermi_ev);
-    if (m->magnetism != TB_MAG_UNKNOWN) cJSON_AddStringToObject(root, "magnetism", tb_magnetism_name(m->magnetism));
+    if (m->magnetism != TB_MAG_UNKNOWN)
+        cJSON_AddStringToObject(root, "magnetism", tb_magnetism_name(m->magnetism));
     if (m->has_family) {
         cJSON *f = cJSON_AddObjectToObject(root, "family");
         cJSON_AddStringToObject(f, "name", m->family);
@@ -734,7 +782,8 @@ int card_write(const tb_model *m, const char *dir, char *card_path, size_t cap, 
     cJSON_Delete(root);
     if (!text) return bs_fail(err, BS_ENOMEM, "%s: out of memory printing the card", card);
     FILE *fp = fopen(card, "wb");
-    if (!fp) rc = bs_fail(err, BS_EIO, "%s: cannot create card: %s", card, strerror(errno));
+    if (!fp)
+        rc = bs_fail(err, BS_EIO, "%s: cannot create card: %s", card, strerror(errno));
     else {
         int bad = fputs(text, fp) < 0 || fputc('\n', fp) == EOF;
         if (fclose(fp) != 0 || bad) rc = bs_fail(err, BS_EIO, "%s: write failed: %s", card, strerror(errno));

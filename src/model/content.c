@@ -8,7 +8,8 @@ static void put_i64(bs_sha256 *s, long long v)
 {
     unsigned char b[8];
     unsigned long long u = (unsigned long long)v;
-    for (int i = 0; i < 8; i++) b[i] = (unsigned char)(u >> (8 * i));
+    for (int i = 0; i < 8; i++)
+        b[i] = (unsigned char)(u >> (8 * i));
     bs_sha256_update(s, b, 8);
 }
 
@@ -18,7 +19,8 @@ static void put_f64(bs_sha256 *s, double v)
     unsigned long long u;
     memcpy(&u, &v, 8);
     unsigned char b[8];
-    for (int i = 0; i < 8; i++) b[i] = (unsigned char)(u >> (8 * i));
+    for (int i = 0; i < 8; i++)
+        b[i] = (unsigned char)(u >> (8 * i));
     bs_sha256_update(s, b, 8);
 }
 
@@ -28,14 +30,16 @@ static void put_model_head(bs_sha256 *s, const tb_model *m)
     bs_sha256_update(s, tag, sizeof tag);
     put_i64(s, m->dim);
     for (int i = 0; i < 3; i++)
-        for (int j = 0; j < 3; j++) put_f64(s, m->lattice[i][j]);
+        for (int j = 0; j < 3; j++)
+            put_f64(s, m->lattice[i][j]);
     put_i64(s, m->norb);
     put_i64(s, m->nspatial);
     put_i64(s, m->spinful);
     put_i64(s, m->spin_layout);
     put_i64(s, m->nocc);
     for (int o = 0; o < m->nspatial; o++) {
-        for (int d = 0; d < 3; d++) put_f64(s, m->orb_pos[o][d]);
+        for (int d = 0; d < 3; d++)
+            put_f64(s, m->orb_pos[o][d]);
         put_i64(s, m->orb_l[o]);
     }
     /* Orbital shapes fix the symmetry representations (crystalline invariants); a model without
@@ -43,7 +47,8 @@ static void put_model_head(bs_sha256 *s, const tb_model *m)
     if (m->orb_shape) {
         static const char mark[] = "orbital-shapes";
         bs_sha256_update(s, mark, sizeof mark);
-        for (int o = 0; o < m->nspatial; o++) put_i64(s, m->orb_shape[o]);
+        for (int o = 0; o < m->nspatial; o++)
+            put_i64(s, m->orb_shape[o]);
     }
     put_i64(s, m->has_fermi);
     put_f64(s, m->has_fermi ? m->fermi_ev : 0.0);
@@ -51,7 +56,8 @@ static void put_model_head(bs_sha256 *s, const tb_model *m)
     for (int i = 0; m->has_inversion_op && i < m->norb; i++) {
         put_i64(s, m->inv_perm[i]);
         put_f64(s, m->inv_sign[i]);
-        for (int d = 0; d < 3; d++) put_i64(s, m->inv_shift[i][d]);
+        for (int d = 0; d < 3; d++)
+            put_i64(s, m->inv_shift[i][d]);
     }
 }
 
@@ -63,7 +69,8 @@ void tb_content_hash(const tb_model *m, char hex[BS_SHA256_HEX])
     put_i64(&s, m->nR);
     size_t nn = (size_t)m->norb * (size_t)m->norb;
     for (int r = 0; r < m->nR; r++) {
-        for (int d = 0; d < 3; d++) put_i64(&s, m->R[r][d]);
+        for (int d = 0; d < 3; d++)
+            put_i64(&s, m->R[r][d]);
         put_i64(&s, m->deg[r]);
         const double complex *h = m->H + (size_t)r * nn;
         for (size_t k = 0; k < nn; k++) {

@@ -71,7 +71,10 @@ static void draw_spec(demo_rng *g, char *spec, int len)
     }
 }
 
-static int nbroken(int count) { return count / 50 > 4 ? count / 50 : 4; }
+static int nbroken(int count)
+{
+    return count / 50 > 4 ? count / 50 : 4;
+}
 
 void demo_entry(int i, int count, uint64_t seed, char *spec, int speclen, char *formula, int formlen,
                 int *broken, double *noise_rel, uint64_t *noise_seed)
@@ -106,8 +109,8 @@ int demo_model(int i, int count, uint64_t seed, tb_model **out, bs_err *err)
         tb_model_free(m);
         if (rc != 0) return rc;
         m = noisy;
-        snprintf(m->source, sizeof m->source, "invented demo entry with invented fit noise %.1e; model %.180s",
-                 noise, spec);
+        snprintf(m->source, sizeof m->source,
+                 "invented demo entry with invented fit noise %.1e; model %.180s", noise, spec);
     } else {
         snprintf(m->source, sizeof m->source, "invented demo entry; model %.200s", spec);
     }
@@ -124,7 +127,10 @@ static void damage(tb_model *m, int kind)
     if (kind == 1) {
         /* Break hermiticity: one hopping of R != 0 changes without its partner at -R. */
         for (int r = 0; r < m->nR; r++)
-            if (m->R[r][0] || m->R[r][1] || m->R[r][2]) { m->H[r * nn + 1] += 0.05; break; }
+            if (m->R[r][0] || m->R[r][1] || m->R[r][2]) {
+                m->H[r * nn + 1] += 0.05;
+                break;
+            }
     } else if (kind == 2) {
         m->nocc = m->norb;
     } else if (kind == 3) {
@@ -192,10 +198,13 @@ int demo_write_set_families(const char *path, int count, uint64_t seed, int fami
     int rc = ms_create(path, &set, err);
     if (rc != 0) return rc;
     char desc[512];
-    snprintf(desc, sizeof desc, "INVENTED demonstration family (the fictitious Jo-Qu compounds, seed %llu, %d "
-             "entries): built-in published lattice models with drawn parameters, invented fit noise (1e-4 to "
-             "1e-3 of the largest hopping) on about a quarter of them, and a few deliberately broken entries. "
-             "Not real materials.", (unsigned long long)seed, count);
+    snprintf(
+        desc, sizeof desc,
+        "INVENTED demonstration family (the fictitious Jo-Qu compounds, seed %llu, %d "
+        "entries): built-in published lattice models with drawn parameters, invented fit noise (1e-4 to "
+        "1e-3 of the largest hopping) on about a quarter of them, and a few deliberately broken entries. "
+        "Not real materials.",
+        (unsigned long long)seed, count);
     rc = ms_set_meta(set, desc, 1, err);
     for (int i = 0; rc == 0 && i < count; i++) {
         char spec[256], formula[32], id[64];
@@ -206,8 +215,10 @@ int demo_write_set_families(const char *path, int count, uint64_t seed, int fami
         snprintf(id, sizeof id, "JQ-%04d", i + 1);
         if (broken == 4) {
             char msg[256];
-            snprintf(msg, sizeof msg, "cards/%s.json:7: key \"occupied_bands\" must be an integer, found a string "
-                     "(invented broken card)", id);
+            snprintf(msg, sizeof msg,
+                     "cards/%s.json:7: key \"occupied_bands\" must be an integer, found a string "
+                     "(invented broken card)",
+                     id);
             rc = ms_add_error(set, id, BS_EPARSE, msg, err);
             continue;
         }

@@ -34,7 +34,7 @@ static int half_of(const int R[3])
 static int (*grow_shell(const tb_model *m, int *n))[3]
 {
     int cap = m->nR * (1 + 2 * m->dim), k = m->nR;
-    int (*R)[3] = malloc((size_t)cap * sizeof *R);
+    int(*R)[3] = malloc((size_t)cap * sizeof *R);
     if (!R) return NULL;
     memcpy(R, m->R, (size_t)m->nR * sizeof *R);
     for (int r = 0; r < m->nR; r++)
@@ -53,9 +53,10 @@ int fitnoise_apply(const tb_model *m, double rel, uint64_t seed, tb_model **out,
     *out = NULL;
     int n = m->norb, nR = 0;
     size_t n2 = (size_t)n * n;
-    int (*R)[3] = grow_shell(m, &nR);
+    int(*R)[3] = grow_shell(m, &nR);
     tb_model *c = NULL;
-    int rc = R ? tb_model_create(n, nR, m->spinful, &c, err) : bs_fail(err, BS_ENOMEM, "out of memory for noise");
+    int rc =
+        R ? tb_model_create(n, nR, m->spinful, &c, err) : bs_fail(err, BS_ENOMEM, "out of memory for noise");
     tb_model *tmp = NULL;
     if (rc == 0) rc = tb_model_copy(m, &tmp, err);
     if (rc != 0) {
@@ -64,7 +65,9 @@ int fitnoise_apply(const tb_model *m, double rel, uint64_t seed, tb_model **out,
         return rc;
     }
     /* The copy carries every field of m; its arrays are swapped for the grown ones. */
-    free(tmp->R); free(tmp->deg); free(tmp->H);
+    free(tmp->R);
+    free(tmp->deg);
+    free(tmp->H);
     tmp->R = R;
     tmp->deg = c->deg;
     tmp->H = c->H;

@@ -16,9 +16,9 @@
 #include "bandsieve/config.h"
 
 #define HOP_BUF_BYTES (4u << 20) /* one read buffer; also the longest line accepted */
-#define HOP_MAX_R 1000000        /* |R_i| above this is not a lattice vector of any real table */
-#define HOP_MAX_DEG 1000000      /* a Wigner-Seitz weight is at most a few dozen in practice */
-#define HOP_PER_LINE 15          /* degeneracy weights per line, fixed by the format */
+#define HOP_MAX_R     1000000    /* |R_i| above this is not a lattice vector of any real table */
+#define HOP_MAX_DEG   1000000    /* a Wigner-Seitz weight is at most a few dozen in practice */
+#define HOP_PER_LINE  15         /* degeneracy weights per line, fixed by the format */
 
 typedef struct hop_reader {
     FILE *fp;
@@ -61,31 +61,36 @@ static int rd_line(hop_reader *r, const char **s, const char **e, bs_err *err)
         r->len += got;
         if (got < HOP_BUF_BYTES - rest) {
             if (ferror(r->fp))
-                return bs_fail(err, BS_EIO, "%s:%ld: read error: %s", r->path, r->line + 1,
-                               strerror(errno));
+                return bs_fail(err, BS_EIO, "%s:%ld: read error: %s", r->path, r->line + 1, strerror(errno));
             r->eof = 1;
         }
     }
 }
 
-static int is_space(char c) { return c == ' ' || c == '\t' || c == '\r' || c == '\f' || c == '\v'; }
+static int is_space(char c)
+{
+    return c == ' ' || c == '\t' || c == '\r' || c == '\f' || c == '\v';
+}
 
 static const char *skip_space(const char *p, const char *e)
 {
-    while (p < e && is_space(*p)) p++;
+    while (p < e && is_space(*p))
+        p++;
     return p;
 }
 
 static const char *token_end(const char *p, const char *e)
 {
-    while (p < e && !is_space(*p)) p++;
+    while (p < e && !is_space(*p))
+        p++;
     return p;
 }
 
 static int count_fields(const char *p, const char *e)
 {
     int n = 0;
-    for (p = skip_space(p, e); p < e; p = skip_space(token_end(p, e), e)) n++;
+    for (p = skip_space(p, e); p < e; p = skip_space(token_end(p, e), e))
+        n++;
     return n;
 }
 
@@ -110,9 +115,8 @@ static int tok_int(const char **p, const char *e, long long *v)
     return TOK_OK;
 }
 
-static const double hop_pow10[23] = {1e0,  1e1,  1e2,  1e3,  1e4,  1e5,  1e6,  1e7,
-                                     1e8,  1e9,  1e10, 1e11, 1e12, 1e13, 1e14, 1e15,
-                                     1e16, 1e17, 1e18, 1e19, 1e20, 1e21, 1e22};
+static const double hop_pow10[23] = {1e0,  1e1,  1e2,  1e3,  1e4,  1e5,  1e6,  1e7,  1e8,  1e9,  1e10, 1e11,
+                                     1e12, 1e13, 1e14, 1e15, 1e16, 1e17, 1e18, 1e19, 1e20, 1e21, 1e22};
 
 /* Slow path: the C library's correctly rounded conversion of a NUL-terminated copy. */
 static int tok_double_libc(const char *q, const char *end, double *v)
@@ -145,14 +149,23 @@ static int tok_double(const char **p, const char *e, double *v)
     int nsig = 0, exp10 = 0, ndig = 0, slow = 0;
     for (; s < end && *s >= '0' && *s <= '9'; s++, ndig++) {
         if (mant == 0 && *s == '0') continue;
-        if (nsig >= 15) { slow = 1; continue; }
+        if (nsig >= 15) {
+            slow = 1;
+            continue;
+        }
         mant = mant * 10 + (uint64_t)(*s - '0');
         nsig++;
     }
     if (s < end && *s == '.') {
         for (s++; s < end && *s >= '0' && *s <= '9'; s++, ndig++) {
-            if (mant == 0 && *s == '0') { exp10--; continue; }
-            if (nsig >= 15) { slow = 1; continue; }
+            if (mant == 0 && *s == '0') {
+                exp10--;
+                continue;
+            }
+            if (nsig >= 15) {
+                slow = 1;
+                continue;
+            }
             mant = mant * 10 + (uint64_t)(*s - '0');
             nsig++;
             exp10--;
@@ -168,8 +181,7 @@ static int tok_double(const char **p, const char *e, double *v)
         if (nex == 0) return TOK_BAD;
         exp10 += eneg ? -ex : ex;
     }
-    if (ndig == 0 || s != end || slow || exp10 < -22 || exp10 > 22)
-        return tok_double_libc(q, end, v);
+    if (ndig == 0 || s != end || slow || exp10 < -22 || exp10 > 22) return tok_double_libc(q, end, v);
     double x = (double)mant;
     x = exp10 >= 0 ? x * hop_pow10[exp10] : x / hop_pow10[-exp10];
     *v = neg ? -x : x;
@@ -180,7 +192,8 @@ static int tok_double(const char **p, const char *e, double *v)
 static void token_text(const char *line_s, const char *line_e, int field, char *out, size_t cap)
 {
     const char *p = skip_space(line_s, line_e);
-    for (int i = 0; i < field && p < line_e; i++) p = skip_space(token_end(p, line_e), line_e);
+    for (int i = 0; i < field && p < line_e; i++)
+        p = skip_space(token_end(p, line_e), line_e);
     const char *q = token_end(p, line_e);
     size_t len = (size_t)(q - p);
     if (len >= cap) len = cap - 1;
@@ -188,8 +201,8 @@ static void token_text(const char *line_s, const char *line_e, int field, char *
     out[len] = '\0';
 }
 
-static int fail_token(hop_reader *r, int tok, const char *s, const char *e, int field,
-                      const char *what, bs_err *err)
+static int fail_token(hop_reader *r, int tok, const char *s, const char *e, int field, const char *what,
+                      bs_err *err)
 {
     char text[40];
     token_text(s, e, field, text, sizeof text);
@@ -226,7 +239,8 @@ static int read_header(hop_reader *r, int spinful, int *norb, int *nR, bs_err *e
     long long n = 0, nr = 0;
     if ((rc = read_header_int(r, "number of orbitals", &n, err)) != 0) return rc;
     if (n < 1 || n > BS_MAX_NORB)
-        return bs_fail(err, BS_EINVAL, "%s:2: number of orbitals %lld outside 1..%d", r->path, n, BS_MAX_NORB);
+        return bs_fail(err, BS_EINVAL, "%s:2: number of orbitals %lld outside 1..%d", r->path, n,
+                       BS_MAX_NORB);
     if (spinful && n % 2 != 0)
         return bs_fail(err, BS_EINVAL, "%s:2: spinful model needs an even number of orbitals, found %lld",
                        r->path, n);
@@ -235,8 +249,10 @@ static int read_header(hop_reader *r, int spinful, int *norb, int *nR, bs_err *e
         return bs_fail(err, BS_EINVAL, "%s:3: number of lattice vectors %lld outside 1..%d", r->path, nr,
                        BS_MAX_NR);
     if (nr * n * n > BS_MAX_HR_ELEMENTS)
-        return bs_fail(err, BS_EINVAL, "%s:3: %lld lattice vectors x %lld^2 orbitals exceeds the limit of "
-                       "%lld hopping elements", r->path, nr, n, (long long)BS_MAX_HR_ELEMENTS);
+        return bs_fail(err, BS_EINVAL,
+                       "%s:3: %lld lattice vectors x %lld^2 orbitals exceeds the limit of "
+                       "%lld hopping elements",
+                       r->path, nr, n, (long long)BS_MAX_HR_ELEMENTS);
     *norb = (int)n;
     *nR = (int)nr;
     return 0;
@@ -255,15 +271,19 @@ static int read_weights(hop_reader *r, tb_model *m, bs_err *err)
         int want = m->nR - done < HOP_PER_LINE ? m->nR - done : HOP_PER_LINE;
         int nf = count_fields(s, e);
         if (nf != want)
-            return bs_fail(err, BS_EPARSE, "%s:%ld: expected %d degeneracy weights on this line (15 per "
-                           "line, %d in all), found %d fields", r->path, r->line, want, m->nR, nf);
+            return bs_fail(err, BS_EPARSE,
+                           "%s:%ld: expected %d degeneracy weights on this line (15 per "
+                           "line, %d in all), found %d fields",
+                           r->path, r->line, want, m->nR, nf);
         const char *p = s;
         for (int i = 0; i < want; i++) {
             long long w = 0;
             if (tok_int(&p, e, &w) != TOK_OK) return fail_token(r, TOK_BAD_INT, s, e, i, "degeneracy", err);
             if (w < 1 || w > HOP_MAX_DEG)
-                return bs_fail(err, BS_EINVAL, "%s:%ld: degeneracy weight %lld of lattice vector %d "
-                               "outside 1..%d", r->path, r->line, w, done + 1, HOP_MAX_DEG);
+                return bs_fail(err, BS_EINVAL,
+                               "%s:%ld: degeneracy weight %lld of lattice vector %d "
+                               "outside 1..%d",
+                               r->path, r->line, w, done + 1, HOP_MAX_DEG);
             m->deg[done++] = (int)w;
         }
     }
@@ -274,23 +294,27 @@ static const char *const hop_field_names[7] = {"R1", "R2", "R3", "m", "n", "Re",
 
 /* Parses one hopping line into R, the orbital pair and the value. A wrong field count is reported
  * before a bad number, since a missing field shifts every other one. */
-static int parse_hop_line(hop_reader *r, const char *s, const char *e, long long v[5], double *re,
-                          double *im, bs_err *err)
+static int parse_hop_line(hop_reader *r, const char *s, const char *e, long long v[5], double *re, double *im,
+                          bs_err *err)
 {
     const char *p = s;
     int f = 0, tok = TOK_OK;
-    for (; f < 5 && tok == TOK_OK; f++) tok = tok_int(&p, e, &v[f]);
+    for (; f < 5 && tok == TOK_OK; f++)
+        tok = tok_int(&p, e, &v[f]);
     if (tok == TOK_OK) tok = tok_double(&p, e, re), f = 6;
     if (tok == TOK_OK) tok = tok_double(&p, e, im), f = 7;
     if (tok == TOK_OK && skip_space(p, e) == e) return 0;
     int nf = count_fields(s, e);
     if (nf != 7)
-        return bs_fail(err, BS_EPARSE, "%s:%ld: expected 7 fields (R1 R2 R3 m n Re Im), found %d",
-                       r->path, r->line, nf);
+        return bs_fail(err, BS_EPARSE, "%s:%ld: expected 7 fields (R1 R2 R3 m n Re Im), found %d", r->path,
+                       r->line, nf);
     return fail_token(r, tok, s, e, f - 1, hop_field_names[f - 1], err);
 }
 
-static long block_line(long first, int r, int n) { return first + (long)r * n * n; }
+static long block_line(long first, int r, int n)
+{
+    return first + (long)r * n * n;
+}
 
 static int check_hop_fields(hop_reader *r, tb_model *m, int ir, int row, int col, const long long v[5],
                             long first_line, bs_err *err)
@@ -298,23 +322,26 @@ static int check_hop_fields(hop_reader *r, tb_model *m, int ir, int row, int col
     int n = m->norb;
     for (int d = 0; d < 3; d++)
         if (v[d] < -HOP_MAX_R || v[d] > HOP_MAX_R)
-            return bs_fail(err, BS_EINVAL, "%s:%ld: lattice-vector component %lld outside -%d..%d",
-                           r->path, r->line, v[d], HOP_MAX_R, HOP_MAX_R);
+            return bs_fail(err, BS_EINVAL, "%s:%ld: lattice-vector component %lld outside -%d..%d", r->path,
+                           r->line, v[d], HOP_MAX_R, HOP_MAX_R);
     if (row == 0 && col == 0) {
-        for (int d = 0; d < 3; d++) m->R[ir][d] = (int)v[d];
+        for (int d = 0; d < 3; d++)
+            m->R[ir][d] = (int)v[d];
     } else if (v[0] != m->R[ir][0] || v[1] != m->R[ir][1] || v[2] != m->R[ir][2]) {
-        return bs_fail(err, BS_EPARSE, "%s:%ld: R = (%lld,%lld,%lld) inside the block of R = (%d,%d,%d) "
-                       "that starts at line %ld; expected n^2 = %d lines per R", r->path, r->line, v[0],
-                       v[1], v[2], m->R[ir][0], m->R[ir][1], m->R[ir][2],
+        return bs_fail(err, BS_EPARSE,
+                       "%s:%ld: R = (%lld,%lld,%lld) inside the block of R = (%d,%d,%d) "
+                       "that starts at line %ld; expected n^2 = %d lines per R",
+                       r->path, r->line, v[0], v[1], v[2], m->R[ir][0], m->R[ir][1], m->R[ir][2],
                        block_line(first_line, ir, n), n * n);
     }
     if (v[3] < 1 || v[3] > n || v[4] < 1 || v[4] > n)
         return bs_fail(err, BS_EINVAL, "%s:%ld: orbital index m = %lld, n = %lld outside 1..%d", r->path,
                        r->line, v[3], v[4], n);
     if (v[3] != row + 1 || v[4] != col + 1)
-        return bs_fail(err, BS_EPARSE, "%s:%ld: orbital indices out of order: expected m = %d, n = %d "
-                       "(m varies fastest), found m = %lld, n = %lld", r->path, r->line, row + 1, col + 1,
-                       v[3], v[4]);
+        return bs_fail(err, BS_EPARSE,
+                       "%s:%ld: orbital indices out of order: expected m = %d, n = %d "
+                       "(m varies fastest), found m = %lld, n = %lld",
+                       r->path, r->line, row + 1, col + 1, v[3], v[4]);
     return 0;
 }
 
@@ -349,8 +376,10 @@ static int read_hoppings(hop_reader *r, tb_model *m, long *first_line, bs_err *e
                 int rc = rd_line(r, &s, &e, err);
                 if (rc < 0) return rc;
                 if (rc == 0)
-                    return bs_fail(err, BS_EPARSE, "%s:%ld: file ends after %lld of %lld hopping lines "
-                                   "(N_R = %d x n^2 = %d)", r->path, r->line + 1, done, total, m->nR, n * n);
+                    return bs_fail(err, BS_EPARSE,
+                                   "%s:%ld: file ends after %lld of %lld hopping lines "
+                                   "(N_R = %d x n^2 = %d)",
+                                   r->path, r->line + 1, done, total, m->nR, n * n);
                 long long v[5] = {0, 0, 0, 0, 0};
                 double re = 0.0, im = 0.0;
                 if ((rc = parse_hop_line(r, s, e, v, &re, &im, err)) != 0) return rc;
@@ -420,7 +449,8 @@ int hop_read(const char *path, int spinful, tb_model **out, bs_err *err)
     struct stat st;
     if (fstat(fd, &st) != 0 || !S_ISREG(st.st_mode)) {
         close(fd);
-        return bs_fail(err, BS_EIO, "%s: the hopping table is not a regular file (a FIFO, device or folder)", path);
+        return bs_fail(err, BS_EIO, "%s: the hopping table is not a regular file (a FIFO, device or folder)",
+                       path);
     }
     fcntl(fd, F_SETFL, fcntl(fd, F_GETFL) & ~O_NONBLOCK);
     r.fp = fdopen(fd, "rb");
@@ -456,7 +486,8 @@ done:
 static void write_comment(FILE *fp, const char *comment)
 {
     if (!comment || !*comment) comment = "hopping table written by bandsieve";
-    for (const char *c = comment; *c; c++) fputc(*c == '\n' || *c == '\r' ? ' ' : *c, fp);
+    for (const char *c = comment; *c; c++)
+        fputc(*c == '\n' || *c == '\r' ? ' ' : *c, fp);
     fputc('\n', fp);
 }
 

@@ -11,8 +11,14 @@
 #include "lm_acc.h"
 
 #define LM_ANY -INFINITY, INFINITY
-#define LM_LATT(def) {"a", def, "lattice constant (Angstrom); does not change H(k) in reduced k", 0, 0.01, 1000}
-#define LM_LAYOUT {"layout", 0, "spin layout: 0 all spin-up states then all spin-down, 1 interleaved", 1, 0, 1}
+#define LM_LATT(def)                                                                                         \
+    {                                                                                                        \
+        "a", def, "lattice constant (Angstrom); does not change H(k) in reduced k", 0, 0.01, 1000            \
+    }
+#define LM_LAYOUT                                                                                            \
+    {                                                                                                        \
+        "layout", 0, "spin layout: 0 all spin-up states then all spin-down, 1 interleaved", 1, 0, 1          \
+    }
 
 static const lm_param GR_PARAMS[GR_N] = {
     [GR_T] = {"t", 2.7, "nearest-neighbour hopping (eV), H_AB = -t", 0, LM_ANY},
@@ -31,8 +37,8 @@ static const lm_param KM_PARAMS[KM_N] = {
     [KM_T] = {"t", 1.0, "nearest-neighbour hopping (eV)", 0, LM_ANY},
     [KM_LSO] = {"lambda_SO", 0.06, "intrinsic spin-orbit coupling (eV), i lambda_SO nu_ij s_z", 0, LM_ANY},
     [KM_LR] = {"lambda_R", 0.05, "Rashba coupling (eV), i lambda_R (s x d_ij)_z", 0, LM_ANY},
-    [KM_LV] = {"lambda_v", 0.1, "staggered sublattice potential (eV): +lambda_v on A, -lambda_v on B",
-               0, LM_ANY},
+    [KM_LV] = {"lambda_v", 0.1, "staggered sublattice potential (eV): +lambda_v on A, -lambda_v on B", 0,
+               LM_ANY},
     [KM_A] = LM_LATT(2.46),
     [KM_LAYOUT] = LM_LAYOUT,
 };
@@ -44,8 +50,10 @@ static const lm_param BHZ_PARAMS[BHZ_N] = {
     [BHZ_D] = {"D", 0.0, "particle-hole asymmetric curvature (eV)", 0, LM_ANY},
     [BHZ_M] = {"M", 1.0, "mass at Gamma (eV); 2D TI for 0 < M/B < 8", 0, LM_ANY},
     [BHZ_G] = {"g", 0.0, "S_z-breaking term g sin ky s_x tau_x (eV), keeps T and inversion", 0, LM_ANY},
-    [BHZ_DELTA] = {"delta", 0.0, "constant spin-block coupling delta s_y tau_y (eV), keeps T, breaks "
-                   "S_z and inversion", 0, LM_ANY},
+    [BHZ_DELTA] = {"delta", 0.0,
+                   "constant spin-block coupling delta s_y tau_y (eV), keeps T, breaks "
+                   "S_z and inversion",
+                   0, LM_ANY},
     [BHZ_LATT] = LM_LATT(1.0),
     [BHZ_LAYOUT] = LM_LAYOUT,
 };
@@ -54,8 +62,8 @@ static const lm_param FKM_PARAMS[FKM_N] = {
     [FKM_T] = {"t", 1.0, "nearest-neighbour hopping (eV)", 0, LM_ANY},
     [FKM_DT] = {"dt", 0.4, "change of the [111] bond's hopping (eV): > 0 strong TI, < 0 weak TI", 0, LM_ANY},
     [FKM_LSO] = {"lambda_SO", 0.125, "second-neighbour spin-orbit coupling (eV)", 0, LM_ANY},
-    [FKM_STAG] = {"stag", 0.0, "staggered potential (eV), +stag on A, -stag on B; breaks inversion",
-                  0, LM_ANY},
+    [FKM_STAG] = {"stag", 0.0, "staggered potential (eV), +stag on A, -stag on B; breaks inversion", 0,
+                  LM_ANY},
     [FKM_A] = LM_LATT(3.567),
     [FKM_LAYOUT] = LM_LAYOUT,
 };
@@ -91,7 +99,10 @@ static const lm_param ME_PARAMS[ME_N] = {
 };
 
 static const lm_param RS_PARAMS[RS_N] = {
-    [RS_M] = {"m", 1.65, "sublattice mass (eV): +m on site 1, -m on site 2; m > 0 inverted (crystalline insulator), m < 0 trivial", 0, LM_ANY},
+    [RS_M] = {"m", 1.65,
+              "sublattice mass (eV): +m on site 1, -m on site 2; m > 0 inverted (crystalline insulator), m < "
+              "0 trivial",
+              0, LM_ANY},
     [RS_T12] = {"t12", 0.9, "nearest-neighbour sigma hopping between the sublattices (eV)", 0, LM_ANY},
     [RS_T11] = {"t11", 0.5, "second-neighbour sigma hopping (eV): t11 on site 1, -t11 on site 2", 0, LM_ANY},
     [RS_L1] = {"lambda1", -0.7, "spin-orbit coupling on site 1 (eV)", 0, LM_ANY},
@@ -127,8 +138,8 @@ static const lm_info LM_MODELS[] = {
      "Weyl semimetal, nodes (+-1/4,0,0) with chirality -1/+1", WE_N, WE_PARAMS},
     {"nodal_line", NULL, "two-band cubic nodal-line semimetal (mirror-protected loop)",
      "common practice form", 3, 0, "nodal line: k3 = 0, cos kx + cos ky = 1", NL_N, NL_PARAMS},
-    {"atomic", "trivial", "two-sublattice atomic-limit insulator, spinful",
-     "common practice form", 0, 1, "trivial insulator, gap 2 delta = 4 eV", AT_N, AT_PARAMS},
+    {"atomic", "trivial", "two-sublattice atomic-limit insulator, spinful", "common practice form", 0, 1,
+     "trivial insulator, gap 2 delta = 4 eV", AT_N, AT_PARAMS},
     {"metal", NULL, "two overlapping bands at half filling", "common practice form", 0, 0,
      "metal (bands overlap, Fermi surface)", ME_N, ME_PARAMS},
     {"rocksalt_tci", NULL, "rock-salt p-orbital model of a topological crystalline insulator, spinful",
@@ -140,9 +151,9 @@ static const lm_info LM_MODELS[] = {
 };
 
 static const lm_builder LM_BUILDERS[] = {
-    lm_build_graphene, lm_build_haldane, lm_build_kane_mele, lm_build_bhz, lm_build_fkm,
-    lm_build_weyl, lm_build_nodal_line, lm_build_atomic, lm_build_metal, lm_build_rocksalt_tci,
-    lm_build_rashba,
+    lm_build_graphene, lm_build_haldane,      lm_build_kane_mele,  lm_build_bhz,
+    lm_build_fkm,      lm_build_weyl,         lm_build_nodal_line, lm_build_atomic,
+    lm_build_metal,    lm_build_rocksalt_tci, lm_build_rashba,
 };
 
 #define LM_COUNT ((int)(sizeof LM_MODELS / sizeof LM_MODELS[0]))
@@ -150,7 +161,7 @@ _Static_assert(sizeof LM_MODELS / sizeof LM_MODELS[0] == sizeof LM_BUILDERS / si
                "one builder per catalogue entry");
 
 /* Longest spec accepted: it becomes the model id (tb_model.id holds 127 characters). */
-#define LM_SPEC_MAX 127
+#define LM_SPEC_MAX   127
 #define LM_MAX_PARAMS 16
 
 const lm_info *lm_catalogue(int *count)
@@ -177,21 +188,21 @@ const lm_info *lm_find(const char *name)
 }
 
 /* Parses one "key=value" item of len characters into vals (seen marks keys already given). */
-static int lm_parse_item(const char *spec, const lm_info *info, const char *item, size_t len,
-                         double *vals, int *seen, bs_err *err)
+static int lm_parse_item(const char *spec, const lm_info *info, const char *item, size_t len, double *vals,
+                         int *seen, bs_err *err)
 {
     const char *eq = memchr(item, '=', len);
     if (!eq)
-        return bs_fail(err, BS_EINVAL, "model spec '%s': expected key=value, found '%.*s'", spec,
-                       (int)len, item);
+        return bs_fail(err, BS_EINVAL, "model spec '%s': expected key=value, found '%.*s'", spec, (int)len,
+                       item);
     size_t klen = (size_t)(eq - item);
     int j = 0;
-    while (j < info->nparam && !(strlen(info->params[j].key) == klen &&
-                                 strncmp(info->params[j].key, item, klen) == 0))
+    while (j < info->nparam &&
+           !(strlen(info->params[j].key) == klen && strncmp(info->params[j].key, item, klen) == 0))
         j++;
     if (j == info->nparam)
-        return bs_fail(err, BS_EINVAL, "model spec '%s': model %s has no parameter '%.*s'", spec,
-                       info->name, (int)klen, item);
+        return bs_fail(err, BS_EINVAL, "model spec '%s': model %s has no parameter '%.*s'", spec, info->name,
+                       (int)klen, item);
     if (seen[j])
         return bs_fail(err, BS_EINVAL, "model spec '%s': parameter %s given twice", spec,
                        info->params[j].key);
@@ -235,7 +246,8 @@ int lm_build(const char *spec, tb_model **out, bs_err *err)
     const lm_info *info = &LM_MODELS[idx];
     double vals[LM_MAX_PARAMS];
     int seen[LM_MAX_PARAMS] = {0};
-    for (int j = 0; j < info->nparam; j++) vals[j] = info->params[j].def;
+    for (int j = 0; j < info->nparam; j++)
+        vals[j] = info->params[j].def;
     if (colon) {
         const char *item = colon + 1;
         for (;;) {

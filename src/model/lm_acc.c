@@ -15,8 +15,7 @@ const double complex lm_pauli[4][2][2] = {
     {{1, 0}, {0, -1}},
 };
 
-int lm_acc_init(lm_acc *acc, int nspatial, int spinful, int layout, const double lattice[3][3],
-                bs_err *err)
+int lm_acc_init(lm_acc *acc, int nspatial, int spinful, int layout, const double lattice[3][3], bs_err *err)
 {
     memset(acc, 0, sizeof *acc);
     acc->err = err;
@@ -29,7 +28,8 @@ int lm_acc_init(lm_acc *acc, int nspatial, int spinful, int layout, const double
     double b[3][3];
     tb_lattice_reciprocal((const double(*)[3])acc->lattice, b);
     for (int i = 0; i < 3; i++)
-        for (int d = 0; d < 3; d++) acc->to_reduced[i][d] = b[i][d] / (2.0 * M_PI);
+        for (int d = 0; d < 3; d++)
+            acc->to_reduced[i][d] = b[i][d] / (2.0 * M_PI);
     acc->pos = calloc((size_t)nspatial, sizeof *acc->pos);
     acc->orb_l = calloc((size_t)nspatial, sizeof *acc->orb_l);
     if (!acc->pos || !acc->orb_l) {
@@ -45,7 +45,10 @@ void lm_acc_clear(lm_acc *acc)
     free(acc->orb_l);
     free(acc->R);
     free(acc->H);
-    acc->pos = NULL; acc->orb_l = NULL; acc->R = NULL; acc->H = NULL;
+    acc->pos = NULL;
+    acc->orb_l = NULL;
+    acc->R = NULL;
+    acc->H = NULL;
     acc->nR = acc->cap = 0;
 }
 
@@ -64,7 +67,7 @@ static int acc_slot(lm_acc *acc, const int R[3])
     size_t nn = (size_t)acc->norb * acc->norb;
     if (acc->nR == acc->cap) {
         int cap = acc->cap ? 2 * acc->cap : 32;
-        int (*nr)[3] = realloc(acc->R, (size_t)cap * sizeof *nr);
+        int(*nr)[3] = realloc(acc->R, (size_t)cap * sizeof *nr);
         if (nr) acc->R = nr;
         double complex *nh = nr ? realloc(acc->H, (size_t)cap * nn * sizeof *nh) : NULL;
         if (!nh) {
@@ -136,13 +139,14 @@ void lm_acc_bond_R(lm_acc *acc, int o_dst, int o_src, const double d[3], int R[3
         R[i] = (int)lrint(f);
         /* Builder geometry is exact up to round-off; anything larger is our bug. */
         if (fabs(f - R[i]) > 1e-8 && acc->rc == 0)
-            acc->rc = bs_fail(acc->err, BS_EINVAL, "lattice model: bond %d <- %d does not end on a "
-                              "lattice site (reduced %.6f along a%d)", o_dst, o_src, f, i + 1);
+            acc->rc = bs_fail(acc->err, BS_EINVAL,
+                              "lattice model: bond %d <- %d does not end on a "
+                              "lattice site (reduced %.6f along a%d)",
+                              o_dst, o_src, f, i + 1);
     }
 }
 
-void lm_nnn_path(const double (*delta)[3], int sub, int k, int l, double d1[3], double d2[3],
-                 double disp[3])
+void lm_nnn_path(const double (*delta)[3], int sub, int k, int l, double d1[3], double d2[3], double disp[3])
 {
     double sign = sub == 0 ? 1.0 : -1.0;
     for (int i = 0; i < 3; i++) {
@@ -152,8 +156,8 @@ void lm_nnn_path(const double (*delta)[3], int sub, int k, int l, double d1[3], 
     }
 }
 
-int lm_acc_finish(lm_acc *acc, int dim, int nocc, const char *spec, const char *name,
-                  const char *source, tb_model **out)
+int lm_acc_finish(lm_acc *acc, int dim, int nocc, const char *spec, const char *name, const char *source,
+                  tb_model **out)
 {
     *out = NULL;
     if (acc->rc != 0) return acc->rc;

@@ -14,12 +14,12 @@
 typedef struct lm_acc {
     int nspatial, norb, spinful, layout;
     double lattice[3][3];
-    double to_reduced[3][3];  /* rows b_i / (2 pi): f_i = to_reduced[i] . r */
-    double (*pos)[3];         /* nspatial reduced positions, filled by the builder */
-    int *orb_l;               /* nspatial angular momenta, filled by the builder */
+    double to_reduced[3][3]; /* rows b_i / (2 pi): f_i = to_reduced[i] . r */
+    double (*pos)[3];        /* nspatial reduced positions, filled by the builder */
+    int *orb_l;              /* nspatial angular momenta, filled by the builder */
     int nR, cap;
     int (*R)[3];
-    double complex *H;        /* cap * norb * norb, row-major per R */
+    double complex *H; /* cap * norb * norb, row-major per R */
     int rc;
     bs_err *err;
 } lm_acc;
@@ -29,8 +29,7 @@ extern const double complex lm_pauli[4][2][2];
 
 /* Starts an accumulator for nspatial orbitals, spinful or not, layout 0 (blocks) or 1 (interleaved),
  * with the given lattice rows (Angstrom). err is borrowed until lm_acc_finish or lm_acc_clear. */
-int lm_acc_init(lm_acc *acc, int nspatial, int spinful, int layout, const double lattice[3][3],
-                bs_err *err);
+int lm_acc_init(lm_acc *acc, int nspatial, int spinful, int layout, const double lattice[3][3], bs_err *err);
 
 /* Frees what acc holds; safe after a failed init. */
 void lm_acc_clear(lm_acc *acc);
@@ -63,13 +62,12 @@ void lm_acc_bond_R(lm_acc *acc, int o_dst, int o_src, const double d[3], int R[3
  * goes from the source site along d1 to the shared neighbour and along d2 to the destination
  * (A: d1 = delta_k, d2 = -delta_l; B: d1 = -delta_k, d2 = delta_l); disp = -(d1 + d2) is the
  * source's Cartesian displacement from the destination. */
-void lm_nnn_path(const double (*delta)[3], int sub, int k, int l, double d1[3], double d2[3],
-                 double disp[3]);
+void lm_nnn_path(const double (*delta)[3], int sub, int k, int l, double d1[3], double d2[3], double disp[3]);
 
 /* Makes the tb_model: dim, nocc, id (the spec), formula (a short name) and source (the reference).
  * The caller owns *out. Returns acc->rc when an earlier call failed. */
-int lm_acc_finish(lm_acc *acc, int dim, int nocc, const char *spec, const char *name,
-                  const char *source, tb_model **out);
+int lm_acc_finish(lm_acc *acc, int dim, int nocc, const char *spec, const char *name, const char *source,
+                  tb_model **out);
 
 /* Builders: p holds the values of the model's parameters in catalogue order. */
 int lm_build_graphene(const double *p, const char *spec, tb_model **out, bs_err *err);

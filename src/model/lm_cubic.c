@@ -23,8 +23,7 @@ static const int R_Z[3] = {0, 0, 1};
 
 /* Square (dim 2, a3 = (0,0,20) Angstrom) or simple cubic lattice of constant a, every orbital at
  * the origin with l = 0 unless the builder changes it. */
-static int cubic_init(lm_acc *acc, int dim, double a, int nspatial, int spinful, int layout,
-                      bs_err *err)
+static int cubic_init(lm_acc *acc, int dim, double a, int nspatial, int spinful, int layout, bs_err *err)
 {
     const double lat[3][3] = {{a, 0, 0}, {0, a, 0}, {0, 0, dim == 2 ? 20.0 : a}};
     return lm_acc_init(acc, nspatial, spinful, layout, lat, err);
@@ -91,7 +90,8 @@ int lm_build_nodal_line(const double *p, const char *spec, tb_model **out, bs_er
     /* t(m - cos kx - cos ky - cos kz) s_z + tz sin kz s_x: real, so PT = K. */
     lm_acc_matrix(&acc, R_ZERO, t * p[NL_M], NULL, PAULI(3));
     const int *axes[3] = {R_X, R_Y, R_Z};
-    for (int i = 0; i < 3; i++) lm_acc_matrix(&acc, axes[i], -0.5 * t, NULL, PAULI(3));
+    for (int i = 0; i < 3; i++)
+        lm_acc_matrix(&acc, axes[i], -0.5 * t, NULL, PAULI(3));
     lm_acc_matrix(&acc, R_Z, p[NL_TZ] / (2.0 * I), NULL, PAULI(1));
     rc = lm_acc_finish(&acc, 3, 1, spec, "nodal-line semimetal model", NODAL_REF, out);
 done:
@@ -106,13 +106,15 @@ int lm_build_atomic(const double *p, const char *spec, tb_model **out, bs_err *e
     double a = p[AT_A];
     int rc = cubic_init(&acc, dim, a, 2, 1, (int)p[AT_LAYOUT], err);
     if (rc != 0) goto done;
-    for (int i = 0; i < dim; i++) acc.pos[1][i] = 0.5;
+    for (int i = 0; i < dim; i++)
+        acc.pos[1][i] = 0.5;
     lm_acc_spin_hop(&acc, R_ZERO, 0, 0, p[AT_DELTA], lm_pauli[0]);
     lm_acc_spin_hop(&acc, R_ZERO, 1, 1, -p[AT_DELTA], lm_pauli[0]);
     /* A-B bonds to the 2^dim body-centre (face-centre in 2D) neighbours (+-a/2, +-a/2[, +-a/2]). */
     for (int c = 0; c < (1 << dim); c++) {
         double d[3] = {0, 0, 0};
-        for (int i = 0; i < dim; i++) d[i] = (c >> i & 1) ? 0.5 * a : -0.5 * a;
+        for (int i = 0; i < dim; i++)
+            d[i] = (c >> i & 1) ? 0.5 * a : -0.5 * a;
         int R[3];
         lm_acc_bond_R(&acc, 0, 1, d, R);
         lm_acc_spin_hop(&acc, R, 0, 1, p[AT_T], lm_pauli[0]);
@@ -133,7 +135,8 @@ int lm_build_metal(const double *p, const char *spec, tb_model **out, bs_err *er
     lm_acc_matrix(&acc, R_ZERO, 0.5 * p[ME_DELTA], NULL, PAULI(3));
     lm_acc_matrix(&acc, R_ZERO, p[ME_V], NULL, PAULI(1));
     const int *axes[3] = {R_X, R_Y, R_Z};
-    for (int i = 0; i < dim; i++) lm_acc_matrix(&acc, axes[i], -p[ME_T], NULL, PAULI(0));
+    for (int i = 0; i < dim; i++)
+        lm_acc_matrix(&acc, axes[i], -p[ME_T], NULL, PAULI(0));
     rc = lm_acc_finish(&acc, dim, 1, spec, "two-band metal model", METAL_REF, out);
 done:
     lm_acc_clear(&acc);

@@ -12,17 +12,19 @@ int lm_build_fkm(const double *p, const char *spec, tb_model **out, bs_err *err)
     double a = p[FKM_A];
     const double lat[3][3] = {{0, 0.5 * a, 0.5 * a}, {0.5 * a, 0, 0.5 * a}, {0.5 * a, 0.5 * a, 0}};
     /* Bonds from A to its four B neighbours; delta[0] is the [111] bond, the one given t + dt. */
-    const double delta[4][3] = {{0.25 * a, 0.25 * a, 0.25 * a}, {0.25 * a, -0.25 * a, -0.25 * a},
-                                {-0.25 * a, 0.25 * a, -0.25 * a}, {-0.25 * a, -0.25 * a, 0.25 * a}};
+    const double delta[4][3] = {{0.25 * a, 0.25 * a, 0.25 * a},
+                                {0.25 * a, -0.25 * a, -0.25 * a},
+                                {-0.25 * a, 0.25 * a, -0.25 * a},
+                                {-0.25 * a, -0.25 * a, 0.25 * a}};
     lm_acc acc;
     int rc = lm_acc_init(&acc, 2, 1, (int)p[FKM_LAYOUT], lat, err);
     if (rc != 0) goto done;
-    for (int i = 0; i < 3; i++) acc.pos[FKM_SITE_B][i] = 0.25;
+    for (int i = 0; i < 3; i++)
+        acc.pos[FKM_SITE_B][i] = 0.25;
     for (int k = 0; k < 4; k++) {
         int R[3];
         lm_acc_bond_R(&acc, FKM_SITE_A, FKM_SITE_B, delta[k], R);
-        lm_acc_spin_hop(&acc, R, FKM_SITE_A, FKM_SITE_B, p[FKM_T] + (k == 0 ? p[FKM_DT] : 0.0),
-                        lm_pauli[0]);
+        lm_acc_spin_hop(&acc, R, FKM_SITE_A, FKM_SITE_B, p[FKM_T] + (k == 0 ? p[FKM_DT] : 0.0), lm_pauli[0]);
     }
     /* Twelve second neighbours per site, each reached through exactly one shared neighbour; the
      * six with k < l are entered and the reverses (d1 x d2 -> -(d1 x d2)) follow by conjugation. */
@@ -41,7 +43,7 @@ int lm_build_fkm(const double *p, const char *spec, tb_model **out, bs_err *err)
                         S[s1][s2] = c[0] * lm_pauli[1][s1][s2] + c[1] * lm_pauli[2][s1][s2] +
                                     c[2] * lm_pauli[3][s1][s2];
                 lm_acc_bond_R(&acc, sub, sub, disp, R);
-                lm_acc_spin_hop(&acc, R, sub, sub, soc, (const double complex (*)[2])S);
+                lm_acc_spin_hop(&acc, R, sub, sub, soc, (const double complex(*)[2])S);
             }
     const int zero[3] = {0, 0, 0};
     lm_acc_spin_hop(&acc, zero, FKM_SITE_A, FKM_SITE_A, p[FKM_STAG], lm_pauli[0]);

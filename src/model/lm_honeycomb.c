@@ -8,13 +8,13 @@
 
 enum { HC_A = 0, HC_B = 1 };
 
-static const char GRAPHENE_REF[] = "graphene, nearest-neighbour tight binding: Rev. Mod. Phys. 81, 109 (2009)";
+static const char GRAPHENE_REF[] =
+    "graphene, nearest-neighbour tight binding: Rev. Mod. Phys. 81, 109 (2009)";
 static const char HALDANE_REF[] = "Haldane model: Phys. Rev. Lett. 61, 2015 (1988)";
 static const char KM_REF[] = "Kane-Mele model: Phys. Rev. Lett. 95, 226801 (2005); 95, 146802 (2005)";
 
 /* Lattice, orbitals and nearest-neighbour vectors (Cartesian, Angstrom). */
-static int honeycomb_init(lm_acc *acc, double a, int spinful, int layout, double delta[3][3],
-                          bs_err *err)
+static int honeycomb_init(lm_acc *acc, double a, int spinful, int layout, double delta[3][3], bs_err *err)
 {
     const double lat[3][3] = {{a, 0, 0}, {0.5 * a, 0.5 * sqrt(3.0) * a, 0}, {0, 0, 20.0}};
     int rc = lm_acc_init(acc, 2, spinful, layout, lat, err);
@@ -72,7 +72,7 @@ int lm_build_haldane(const double *p, const char *spec, tb_model **out, bs_err *
             for (int l = k + 1; l < 3; l++) {
                 double d1[3], d2[3], disp[3];
                 int R[3];
-                lm_nnn_path((const double (*)[3])delta, sub, k, l, d1, d2, disp);
+                lm_nnn_path((const double(*)[3])delta, sub, k, l, d1, d2, disp);
                 lm_acc_bond_R(&acc, sub, sub, disp, R);
                 lm_acc_hop(&acc, R, sub, sub, p[HA_T2] * cexp(I * nnn_nu(d1, d2) * phi));
             }
@@ -108,7 +108,7 @@ int lm_build_kane_mele(const double *p, const char *spec, tb_model **out, bs_err
         double complex S[2][2];
         km_nn_matrix(p[KM_T], p[KM_LR], delta[k], S);
         lm_acc_bond_R(&acc, HC_A, HC_B, delta[k], R);
-        lm_acc_spin_hop(&acc, R, HC_A, HC_B, 1.0, (const double complex (*)[2])S);
+        lm_acc_spin_hop(&acc, R, HC_A, HC_B, 1.0, (const double complex(*)[2])S);
     }
     /* i lambda_SO nu_ij s_z with |nu_ij| = 1: spin up is the Haldane model at phi = pi/2 and
      * t2 = lambda_SO, whence the boundary lambda_v = 3 sqrt3 lambda_SO at lambda_R = 0. */
@@ -117,7 +117,7 @@ int lm_build_kane_mele(const double *p, const char *spec, tb_model **out, bs_err
             for (int l = k + 1; l < 3; l++) {
                 double d1[3], d2[3], disp[3];
                 int R[3];
-                lm_nnn_path((const double (*)[3])delta, sub, k, l, d1, d2, disp);
+                lm_nnn_path((const double(*)[3])delta, sub, k, l, d1, d2, disp);
                 lm_acc_bond_R(&acc, sub, sub, disp, R);
                 lm_acc_spin_hop(&acc, R, sub, sub, I * p[KM_LSO] * nnn_nu(d1, d2), lm_pauli[3]);
             }

@@ -16,10 +16,10 @@
 #include "bandsieve/config.h"
 #include "bandsieve/content.h"
 
-#define MS_FORMAT "bandsieve-material-set"
+#define MS_FORMAT         "bandsieve-material-set"
 #define MS_FORMAT_VERSION 1
-#define MS_MAX_ENTRIES 1000000 /* an index larger than this is not ours (160 MB in memory) */
-#define MS_MAX_TEXT 4096        /* description and error texts */
+#define MS_MAX_ENTRIES    1000000 /* an index larger than this is not ours (160 MB in memory) */
+#define MS_MAX_TEXT       4096    /* description and error texts */
 
 struct ms_set {
     hid_t file;
@@ -28,7 +28,7 @@ struct ms_set {
     char partial[4200];
     ms_entry *entries;
     int n, cap;
-    int *by_id;         /* reader: entry indices in strcmp order of their ids, for ms_find */
+    int *by_id; /* reader: entry indices in strcmp order of their ids, for ms_find */
     char description[MS_MAX_TEXT];
     int invented;
 };
@@ -53,7 +53,8 @@ static int h5_fail(bs_err *err, const char *fmt, ...)
     va_end(ap);
     H5Ewalk2(H5E_DEFAULT, H5E_WALK_DOWNWARD, h5_walk, deep);
     int corrupt = 0;
-    for (const char *p = deep; *p && !corrupt; p++) corrupt = strncasecmp(p, "checksum", 8) == 0;
+    for (const char *p = deep; *p && !corrupt; p++)
+        corrupt = strncasecmp(p, "checksum", 8) == 0;
     if (corrupt) return bs_fail(err, BS_EPARSE, "%s: the file is corrupt (HDF5: %s)", what, deep);
     if (deep[0]) return bs_fail(err, BS_EHDF5, "%s (HDF5: %s)", what, deep);
     return bs_fail(err, BS_EHDF5, "%s", what);
@@ -88,7 +89,10 @@ static int attr_write(hid_t loc, const char *name, hid_t type, const void *v)
     return st < 0 ? -1 : 0;
 }
 
-static int attr_write_int(hid_t loc, const char *name, int v) { return attr_write(loc, name, H5T_NATIVE_INT, &v); }
+static int attr_write_int(hid_t loc, const char *name, int v)
+{
+    return attr_write(loc, name, H5T_NATIVE_INT, &v);
+}
 
 static int attr_write_double(hid_t loc, const char *name, double v)
 {
@@ -99,8 +103,9 @@ static int attr_write_str(hid_t loc, const char *name, const char *v)
 {
     hid_t t = H5Tcopy(H5T_C_S1);
     if (t < 0) return -1;
-    int rc = H5Tset_size(t, strlen(v) + 1) < 0 || H5Tset_strpad(t, H5T_STR_NULLTERM) < 0 ? -1
-                                                                                           : attr_write(loc, name, t, v);
+    int rc = H5Tset_size(t, strlen(v) + 1) < 0 || H5Tset_strpad(t, H5T_STR_NULLTERM) < 0
+                 ? -1
+                 : attr_write(loc, name, t, v);
     H5Tclose(t);
     return rc;
 }
@@ -214,8 +219,8 @@ static int dset_write(hid_t loc, const char *name, hid_t type, int rank, const h
 }
 
 /* Reads dataset name of exactly the shape dims into buf, checking the shape before reading. */
-static int dset_read(hid_t loc, const char *where, const char *name, hid_t type, int rank, const hsize_t *dims,
-                     void *buf, bs_err *err)
+static int dset_read(hid_t loc, const char *where, const char *name, hid_t type, int rank,
+                     const hsize_t *dims, void *buf, bs_err *err)
 {
     if (H5Lexists(loc, name, H5P_DEFAULT) <= 0)
         return read_fail(err, BS_EPARSE, "%s/%s: dataset missing", where, name);
@@ -272,7 +277,10 @@ static hid_t index_type_v(int with_content)
     return t;
 }
 
-static hid_t index_type(void) { return index_type_v(1); }
+static hid_t index_type(void)
+{
+    return index_type_v(1);
+}
 
 static int index_write(ms_set *s, bs_err *err)
 {
@@ -314,9 +322,11 @@ static int sort_ids(ms_set *s, bs_err *err)
         free(keys);
         return bs_fail(err, BS_ENOMEM, "%s:/index: out of memory for the id order", s->path);
     }
-    for (int i = 0; i < s->n; i++) keys[i] = (id_key){s->entries[i].id, i};
+    for (int i = 0; i < s->n; i++)
+        keys[i] = (id_key){s->entries[i].id, i};
     qsort(keys, (size_t)s->n, sizeof *keys, id_key_cmp);
-    for (int i = 0; i < s->n; i++) s->by_id[i] = keys[i].index;
+    for (int i = 0; i < s->n; i++)
+        s->by_id[i] = keys[i].index;
     free(keys);
     return 0;
 }
@@ -336,7 +346,8 @@ static int index_read(ms_set *s, bs_err *err)
     hssize_t n = sp < 0 ? -1 : H5Sget_simple_extent_npoints(sp);
     int rc = 0;
     if (sp < 0 || H5Sget_simple_extent_ndims(sp) != 1 || n < 0 || n > MS_MAX_ENTRIES) {
-        rc = bs_fail(err, BS_EPARSE, "%s:/index: expected a list of at most %d entries", s->path, MS_MAX_ENTRIES);
+        rc = bs_fail(err, BS_EPARSE, "%s:/index: expected a list of at most %d entries", s->path,
+                     MS_MAX_ENTRIES);
         goto done;
     }
     s->entries = calloc(n > 0 ? (size_t)n : 1, sizeof *s->entries);
@@ -396,8 +407,10 @@ static int create_impl(const char *path, ms_set **out, bs_err *err)
         rc = h5_fail(err, "%s: cannot write the set's header", s->partial);
     if (g >= 0) H5Gclose(g);
 done:
-    if (rc != 0) ms_free(s);
-    else *out = s;
+    if (rc != 0)
+        ms_free(s);
+    else
+        *out = s;
     return rc;
 }
 
@@ -405,7 +418,10 @@ int ms_create(const char *path, ms_set **out, bs_err *err)
 {
     *out = NULL;
     int rc;
-    H5E_BEGIN_TRY { rc = create_impl(path, out, err); }
+    H5E_BEGIN_TRY
+    {
+        rc = create_impl(path, out, err);
+    }
     H5E_END_TRY;
     return rc;
 }
@@ -457,11 +473,13 @@ static int write_attrs(hid_t g, const tb_model *m, int status)
               attr_write_int(g, "nspatial", m->nspatial) < 0 || attr_write_int(g, "nR", m->nR) < 0 ||
               attr_write_int(g, "nocc", m->nocc) < 0 || attr_write_int(g, "spinful", m->spinful) < 0 ||
               attr_write_int(g, "spin_layout", m->spin_layout) < 0 ||
-              attr_write_int(g, "has_fermi", m->has_fermi) < 0 || attr_write_double(g, "fermi_ev", m->fermi_ev) < 0 ||
+              attr_write_int(g, "has_fermi", m->has_fermi) < 0 ||
+              attr_write_double(g, "fermi_ev", m->fermi_ev) < 0 ||
               attr_write_int(g, "has_inversion_op", m->has_inversion_op) < 0 ||
               attr_write_int(g, "magnetism", m->magnetism) < 0;
     if (!bad && m->has_family)
-        bad = attr_write_str(g, "family", m->family) < 0 || attr_write_str(g, "family_parameter", m->family_param) < 0 ||
+        bad = attr_write_str(g, "family", m->family) < 0 ||
+              attr_write_str(g, "family_parameter", m->family_param) < 0 ||
               attr_write_str(g, "family_unit", m->family_unit) < 0 ||
               attr_write_double(g, "family_value", m->family_value) < 0;
     return bad ? -1 : 0;
@@ -531,8 +549,14 @@ static void entry_of(const tb_model *m, int status, ms_entry *e)
     /* FNV-1a over what interpolation between members needs to agree on */
     unsigned long long h = 1469598103934665603ULL;
     int key[6] = {m->dim, m->norb, m->nspatial, m->spinful, m->spin_layout, m->nocc};
-    for (int i = 0; i < 6; i++) { h ^= (unsigned long long)(unsigned)key[i]; h *= 1099511628211ULL; }
-    for (int o = 0; o < m->nspatial && m->orb_l; o++) { h ^= (unsigned long long)(unsigned)m->orb_l[o]; h *= 1099511628211ULL; }
+    for (int i = 0; i < 6; i++) {
+        h ^= (unsigned long long)(unsigned)key[i];
+        h *= 1099511628211ULL;
+    }
+    for (int o = 0; o < m->nspatial && m->orb_l; o++) {
+        h ^= (unsigned long long)(unsigned)m->orb_l[o];
+        h *= 1099511628211ULL;
+    }
     e->basis = h;
 }
 
@@ -558,11 +582,15 @@ static int family_check(const ms_set *s, const ms_entry *e, bs_err *err)
         const ms_entry *o = &s->entries[i];
         if (!o->has_family || strcmp(o->family, e->family) != 0) continue;
         if (strcmp(o->family_param, e->family_param) != 0)
-            return bs_fail(err, BS_EINVAL, "%s: members '%s' and '%s' of family %s give different parameters "
-                           "('%s', '%s')", s->path, o->id, e->id, e->family, o->family_param, e->family_param);
+            return bs_fail(err, BS_EINVAL,
+                           "%s: members '%s' and '%s' of family %s give different parameters "
+                           "('%s', '%s')",
+                           s->path, o->id, e->id, e->family, o->family_param, e->family_param);
         if (o->basis != e->basis)
-            return bs_fail(err, BS_EINVAL, "%s: members '%s' and '%s' of family %s do not share a basis (states, "
-                           "orbitals and their l, spin layout, filling)", s->path, o->id, e->id, e->family);
+            return bs_fail(err, BS_EINVAL,
+                           "%s: members '%s' and '%s' of family %s do not share a basis (states, "
+                           "orbitals and their l, spin layout, filling)",
+                           s->path, o->id, e->id, e->family);
         if (o->family_value == e->family_value)
             return bs_fail(err, BS_EINVAL, "%s: members '%s' and '%s' of family %s sit at the same value %g",
                            s->path, o->id, e->id, e->family, e->family_value);
@@ -592,7 +620,10 @@ int ms_add(ms_set *s, const tb_model *m, bs_err *err)
 {
     int rc = tb_model_validate(m, BS_HERMITIAN_TOL_EV, m->id, err);
     if (rc != 0) return rc;
-    H5E_BEGIN_TRY { rc = add_impl(s, m, MS_STATUS_OK, err); }
+    H5E_BEGIN_TRY
+    {
+        rc = add_impl(s, m, MS_STATUS_OK, err);
+    }
     H5E_END_TRY;
     return rc;
 }
@@ -600,7 +631,10 @@ int ms_add(ms_set *s, const tb_model *m, bs_err *err)
 int ms_add_broken(ms_set *s, const tb_model *m, bs_err *err)
 {
     int rc;
-    H5E_BEGIN_TRY { rc = add_impl(s, m, MS_STATUS_BROKEN, err); }
+    H5E_BEGIN_TRY
+    {
+        rc = add_impl(s, m, MS_STATUS_BROKEN, err);
+    }
     H5E_END_TRY;
     return rc;
 }
@@ -627,9 +661,13 @@ static int add_error_impl(ms_set *s, const char *id, int code, const char *messa
 
 int ms_add_error(ms_set *s, const char *id, int code, const char *message, bs_err *err)
 {
-    if (code >= 0) return bs_fail(err, BS_EINVAL, "%s: error entry '%s' needs a negative error code", s->path, id);
+    if (code >= 0)
+        return bs_fail(err, BS_EINVAL, "%s: error entry '%s' needs a negative error code", s->path, id);
     int rc;
-    H5E_BEGIN_TRY { rc = add_error_impl(s, id, code, message, err); }
+    H5E_BEGIN_TRY
+    {
+        rc = add_error_impl(s, id, code, message, err);
+    }
     H5E_END_TRY;
     return rc;
 }
@@ -648,8 +686,8 @@ static hid_t family_type(void)
 {
     hid_t t = H5Tcreate(H5T_COMPOUND, sizeof(ms_family_row));
     const char *names[4] = {"id", "family", "parameter", "unit"};
-    size_t off[4] = {HOFFSET(ms_family_row, id), HOFFSET(ms_family_row, family), HOFFSET(ms_family_row, parameter),
-                     HOFFSET(ms_family_row, unit)};
+    size_t off[4] = {HOFFSET(ms_family_row, id), HOFFSET(ms_family_row, family),
+                     HOFFSET(ms_family_row, parameter), HOFFSET(ms_family_row, unit)};
     size_t len[4] = {128, 64, 32, 16};
     for (int i = 0; i < 4; i++) {
         hid_t st = H5Tcopy(H5T_C_S1);
@@ -665,7 +703,8 @@ static hid_t family_type(void)
 static int families_write(ms_set *s, bs_err *err)
 {
     int n = 0;
-    for (int i = 0; i < s->n; i++) n += s->entries[i].has_family;
+    for (int i = 0; i < s->n; i++)
+        n += s->entries[i].has_family;
     if (n == 0) return 0;
     ms_family_row *rows = calloc((size_t)n, sizeof *rows);
     if (!rows) return bs_fail(err, BS_ENOMEM, "%s:/families: out of memory", s->path);
@@ -704,11 +743,15 @@ static int families_read(ms_set *s, bs_err *err)
     ms_family_row *rows = NULL;
     int rc = 0;
     if (sp < 0 || H5Sget_simple_extent_ndims(sp) != 1 || n < 0 || n > MS_MAX_ENTRIES) {
-        rc = bs_fail(err, BS_EPARSE, "%s:/families: expected a list of at most %d rows", s->path, MS_MAX_ENTRIES);
+        rc = bs_fail(err, BS_EPARSE, "%s:/families: expected a list of at most %d rows", s->path,
+                     MS_MAX_ENTRIES);
         goto done;
     }
     rows = calloc(n > 0 ? (size_t)n : 1, sizeof *rows);
-    if (!rows) { rc = bs_fail(err, BS_ENOMEM, "%s:/families: out of memory", s->path); goto done; }
+    if (!rows) {
+        rc = bs_fail(err, BS_ENOMEM, "%s:/families: out of memory", s->path);
+        goto done;
+    }
     if (n > 0 && H5Dread(d, t, H5S_ALL, H5S_ALL, H5P_DEFAULT, rows) < 0) {
         rc = h5_fail(err, "%s:/families: cannot read", s->path);
         goto done;
@@ -744,7 +787,8 @@ int ms_families(const ms_set *s, const char **names, int cap)
         const ms_entry *e = &s->entries[i];
         if (!e->has_family) continue;
         int seen = 0;
-        for (int j = 0; j < n && !seen; j++) seen = strcmp(names[j], e->family) == 0;
+        for (int j = 0; j < n && !seen; j++)
+            seen = strcmp(names[j], e->family) == 0;
         if (!seen && n < cap) names[n++] = e->family;
     }
     return n;
@@ -760,7 +804,8 @@ static int close_impl(ms_set *s, bs_err *err)
                         attr_write_int(s->file, "invented", s->invented) < 0))
             rc = h5_fail(err, "%s: cannot write the set's metadata", s->partial);
     }
-    if (H5Fclose(s->file) < 0 && rc == 0) rc = h5_fail(err, "%s: cannot close", s->writer ? s->partial : s->path);
+    if (H5Fclose(s->file) < 0 && rc == 0)
+        rc = h5_fail(err, "%s: cannot close", s->writer ? s->partial : s->path);
     s->file = -1;
     if (rc == 0 && s->writer && rename(s->partial, s->path) != 0)
         rc = bs_fail(err, BS_EIO, "%s: cannot rename %s onto it: %s", s->path, s->partial, strerror(errno));
@@ -771,7 +816,10 @@ int ms_close(ms_set *s, bs_err *err)
 {
     if (s->closed || s->file < 0) return 0;
     int rc;
-    H5E_BEGIN_TRY { rc = close_impl(s, err); }
+    H5E_BEGIN_TRY
+    {
+        rc = close_impl(s, err);
+    }
     H5E_END_TRY;
     s->closed = rc == 0;
     return rc;
@@ -781,7 +829,10 @@ void ms_free(ms_set *s)
 {
     if (!s) return;
     if (s->file >= 0) {
-        H5E_BEGIN_TRY { H5Fclose(s->file); }
+        H5E_BEGIN_TRY
+        {
+            H5Fclose(s->file);
+        }
         H5E_END_TRY;
     }
     if (s->writer && !s->closed && s->partial[0]) unlink(s->partial);
@@ -796,8 +847,10 @@ static int check_header(ms_set *s, bs_err *err)
 {
     char format[64];
     if (attr_read_str(s->file, "format", format, sizeof format) < 0 || strcmp(format, MS_FORMAT) != 0)
-        return read_fail(err, BS_EPARSE, "%s: an HDF5 file but not a bandsieve material set (no format "
-                       "attribute \"%s\")", s->path, MS_FORMAT);
+        return read_fail(err, BS_EPARSE,
+                         "%s: an HDF5 file but not a bandsieve material set (no format "
+                         "attribute \"%s\")",
+                         s->path, MS_FORMAT);
     int version = 0;
     if (attr_read_int(s->file, "format_version", &version) < 0 || version != MS_FORMAT_VERSION)
         return bs_fail(err, BS_EPARSE, "%s: material-set format version %d, this program reads version %d",
@@ -831,8 +884,10 @@ static int open_impl(const char *path, ms_set **out, bs_err *err)
     if (rc == 0) rc = check_header(s, err);
     if (rc == 0) rc = index_read(s, err);
     if (rc == 0) rc = families_read(s, err);
-    if (rc != 0) ms_free(s);
-    else *out = s;
+    if (rc != 0)
+        ms_free(s);
+    else
+        *out = s;
     return rc;
 }
 
@@ -840,14 +895,23 @@ int ms_open(const char *path, ms_set **out, bs_err *err)
 {
     *out = NULL;
     int rc;
-    H5E_BEGIN_TRY { rc = open_impl(path, out, err); }
+    H5E_BEGIN_TRY
+    {
+        rc = open_impl(path, out, err);
+    }
     H5E_END_TRY;
     return rc;
 }
 
-int ms_count(const ms_set *s) { return s->n; }
+int ms_count(const ms_set *s)
+{
+    return s->n;
+}
 
-const ms_entry *ms_entry_at(const ms_set *s, int i) { return i >= 0 && i < s->n ? &s->entries[i] : NULL; }
+const ms_entry *ms_entry_at(const ms_set *s, int i)
+{
+    return i >= 0 && i < s->n ? &s->entries[i] : NULL;
+}
 
 int ms_find(const ms_set *s, const char *id)
 {
@@ -861,15 +925,26 @@ int ms_find(const ms_set *s, const char *id)
     int lo = 0, hi = s->n;
     while (lo < hi) {
         int mid = lo + (hi - lo) / 2;
-        if (strcmp(s->entries[s->by_id[mid]].id, id) < 0) lo = mid + 1;
-        else hi = mid;
+        if (strcmp(s->entries[s->by_id[mid]].id, id) < 0)
+            lo = mid + 1;
+        else
+            hi = mid;
     }
     return lo < s->n && strcmp(s->entries[s->by_id[lo]].id, id) == 0 ? s->by_id[lo] : -1;
 }
 
-const char *ms_description(const ms_set *s) { return s->description; }
-int ms_invented(const ms_set *s) { return s->invented; }
-const char *ms_path(const ms_set *s) { return s->path; }
+const char *ms_description(const ms_set *s)
+{
+    return s->description;
+}
+int ms_invented(const ms_set *s)
+{
+    return s->invented;
+}
+const char *ms_path(const ms_set *s)
+{
+    return s->path;
+}
 
 typedef struct ms_sizes {
     int norb, nspatial, nR, spinful, status;
@@ -885,7 +960,8 @@ static int read_sizes(hid_t g, const char *where, ms_sizes *z, bs_err *err)
             return read_fail(err, BS_EPARSE, "%s: attribute '%s' missing or not an integer", where, names[i]);
     if (z->norb < 1 || z->norb > BS_MAX_NORB || z->nR < 1 || z->nR > BS_MAX_NR ||
         (long long)z->nR * z->norb * z->norb > BS_MAX_HR_ELEMENTS)
-        return bs_fail(err, BS_EINVAL, "%s: sizes norb = %d, nR = %d outside the limits", where, z->norb, z->nR);
+        return bs_fail(err, BS_EINVAL, "%s: sizes norb = %d, nR = %d outside the limits", where, z->norb,
+                       z->nR);
     if (z->nspatial != (z->spinful ? z->norb / 2 : z->norb) || (z->spinful && z->norb % 2))
         return bs_fail(err, BS_EPARSE, "%s: nspatial = %d disagrees with norb = %d (spinful = %d)", where,
                        z->nspatial, z->norb, z->spinful);
@@ -899,27 +975,32 @@ static int read_model_attrs(hid_t g, const char *where, tb_model *m, bs_err *err
     for (int i = 0; i < 5; i++)
         if (attr_read_int(g, names[i], dst[i]) < 0)
             return read_fail(err, BS_EPARSE, "%s: attribute '%s' missing or not an integer", where, names[i]);
-    if (attr_read_double(g, "fermi_ev", &m->fermi_ev) < 0 || attr_read_str(g, "id", m->id, sizeof m->id) < 0 ||
+    if (attr_read_double(g, "fermi_ev", &m->fermi_ev) < 0 ||
+        attr_read_str(g, "id", m->id, sizeof m->id) < 0 ||
         attr_read_str(g, "formula", m->formula, sizeof m->formula) < 0 ||
         attr_read_str(g, "source", m->source, sizeof m->source) < 0)
         return read_fail(err, BS_EPARSE, "%s: attributes fermi_ev, id, formula or source missing", where);
     /* Sets written before the key existed have no magnetism attribute: the statement is unknown. */
     if (attr_read_int(g, "magnetism", &m->magnetism) < 0) m->magnetism = TB_MAG_UNKNOWN;
     if (m->magnetism < TB_MAG_UNKNOWN || m->magnetism > TB_MAG_MAGNETIC)
-        return read_fail(err, BS_EPARSE, "%s: attribute 'magnetism' is %d, expected 0..2", where, m->magnetism);
+        return read_fail(err, BS_EPARSE, "%s: attribute 'magnetism' is %d, expected 0..2", where,
+                         m->magnetism);
     if (H5Aexists(g, "family") > 0) {
         if (attr_read_str(g, "family", m->family, sizeof m->family) < 0 ||
             attr_read_str(g, "family_parameter", m->family_param, sizeof m->family_param) < 0 ||
             attr_read_str(g, "family_unit", m->family_unit, sizeof m->family_unit) < 0 ||
             attr_read_double(g, "family_value", &m->family_value) < 0)
-            return read_fail(err, BS_EPARSE, "%s: family attributes incomplete (family, family_parameter, family_unit, "
-                           "family_value)", where);
+            return read_fail(err, BS_EPARSE,
+                             "%s: family attributes incomplete (family, family_parameter, family_unit, "
+                             "family_value)",
+                             where);
         m->has_family = 1;
     }
     int want = m->spinful ? (m->spin_layout == TB_SPIN_BLOCKS || m->spin_layout == TB_SPIN_INTERLEAVED)
                           : m->spin_layout == TB_SPIN_NONE;
-    if (!want) return bs_fail(err, BS_EPARSE, "%s: spin_layout %d does not fit spinful = %d", where, m->spin_layout,
-                              m->spinful);
+    if (!want)
+        return bs_fail(err, BS_EPARSE, "%s: spin_layout %d does not fit spinful = %d", where, m->spin_layout,
+                       m->spinful);
     return 0;
 }
 
@@ -940,8 +1021,8 @@ static int read_model_arrays(hid_t g, const char *where, tb_model *m, bs_err *er
         rc = dset_read(g, where, "orb_shape", H5T_NATIVE_INT, 1, dl, m->orb_shape, err);
         for (int i = 0; rc == 0 && i < m->nspatial; i++)
             if (m->orb_shape[i] < -1 || m->orb_shape[i] > 2 * m->orb_l[i])
-                rc = bs_fail(err, BS_EINVAL, "%s/orb_shape: orbital %d has shape index %d for l = %d", where, i + 1,
-                             m->orb_shape[i], m->orb_l[i]);
+                rc = bs_fail(err, BS_EINVAL, "%s/orb_shape: orbital %d has shape index %d for l = %d", where,
+                             i + 1, m->orb_shape[i], m->orb_l[i]);
     }
     if (rc != 0 || !m->has_inversion_op) return rc;
     size_t n = (size_t)m->norb;
@@ -955,7 +1036,8 @@ static int read_model_arrays(hid_t g, const char *where, tb_model *m, bs_err *er
     if (rc == 0) rc = dset_read(g, where, "inv_sign", H5T_NATIVE_DOUBLE, 1, dv, m->inv_sign, err);
     if (rc == 0) rc = dset_read(g, where, "inv_shift", H5T_NATIVE_INT, 2, dsh, m->inv_shift, err);
     for (size_t i = 0; rc == 0 && i < n; i++)
-        if (m->inv_perm[i] < 0 || m->inv_perm[i] >= m->norb || (m->inv_sign[i] != 1.0 && m->inv_sign[i] != -1.0))
+        if (m->inv_perm[i] < 0 || m->inv_perm[i] >= m->norb ||
+            (m->inv_sign[i] != 1.0 && m->inv_sign[i] != -1.0))
             rc = bs_fail(err, BS_EINVAL, "%s/inv_perm: state %zu maps to %d with sign %g", where, i + 1,
                          m->inv_perm[i] + 1, m->inv_sign[i]);
     return rc;
@@ -966,7 +1048,8 @@ static int read_stored_error(hid_t g, const char *where, bs_err *err)
     int code = BS_EINVAL;
     char text[MS_MAX_TEXT];
     if (attr_read_int(g, "error_code", &code) < 0 || code >= 0) code = BS_EINVAL;
-    if (attr_read_str(g, "error", text, sizeof text) < 0) snprintf(text, sizeof text, "(no error text stored)");
+    if (attr_read_str(g, "error", text, sizeof text) < 0)
+        snprintf(text, sizeof text, "(no error text stored)");
     return bs_fail(err, code, "%s: stored as broken: %s", where, text);
 }
 
@@ -1015,7 +1098,10 @@ int ms_read_id(const ms_set *s, const char *id, tb_model **out, bs_err *err)
     if (s->file < 0) return bs_fail(err, BS_EINVAL, "%s: closed", s->path);
     if (ms_find(s, id) < 0) return bs_fail(err, BS_EINVAL, "%s: no material '%s' in the set", s->path, id);
     int rc;
-    H5E_BEGIN_TRY { rc = read_impl(s, id, 1, out, err); }
+    H5E_BEGIN_TRY
+    {
+        rc = read_impl(s, id, 1, out, err);
+    }
     H5E_END_TRY;
     return rc;
 }
@@ -1023,10 +1109,14 @@ int ms_read_id(const ms_set *s, const char *id, tb_model **out, bs_err *err)
 int ms_read(const ms_set *s, int i, tb_model **out, bs_err *err)
 {
     *out = NULL;
-    if (i < 0 || i >= s->n) return bs_fail(err, BS_EINVAL, "%s: entry %d outside 0..%d", s->path, i, s->n - 1);
+    if (i < 0 || i >= s->n)
+        return bs_fail(err, BS_EINVAL, "%s: entry %d outside 0..%d", s->path, i, s->n - 1);
     if (s->writer || s->file < 0) return bs_fail(err, BS_EINVAL, "%s: not open for reading", s->path);
     int rc;
-    H5E_BEGIN_TRY { rc = read_impl(s, s->entries[i].id, 1, out, err); }
+    H5E_BEGIN_TRY
+    {
+        rc = read_impl(s, s->entries[i].id, 1, out, err);
+    }
     H5E_END_TRY;
     return rc;
 }
@@ -1059,14 +1149,18 @@ static int content_impl(const ms_set *s, int i, char hex[65], bs_err *err)
 int ms_content(const ms_set *s, int i, char hex[65], bs_err *err)
 {
     hex[0] = '\0';
-    if (i < 0 || i >= s->n) return bs_fail(err, BS_EINVAL, "%s: entry %d outside 0..%d", s->path, i, s->n - 1);
+    if (i < 0 || i >= s->n)
+        return bs_fail(err, BS_EINVAL, "%s: entry %d outside 0..%d", s->path, i, s->n - 1);
     if (s->entries[i].content[0]) {
         memcpy(hex, s->entries[i].content, 65);
         return 0;
     }
     if (s->writer || s->file < 0) return bs_fail(err, BS_EINVAL, "%s: not open for reading", s->path);
     int rc;
-    H5E_BEGIN_TRY { rc = content_impl(s, i, hex, err); }
+    H5E_BEGIN_TRY
+    {
+        rc = content_impl(s, i, hex, err);
+    }
     H5E_END_TRY;
     /* Computed once per open set: the index is ours, and the hash cannot change while it is open. */
     if (rc == 0) memcpy(((ms_set *)s)->entries[i].content, hex, 65);
@@ -1122,22 +1216,30 @@ static int read_card_impl(const ms_set *s, const char *id, char **json, bs_err *
     int rc = 0;
     size_t size = ft >= 0 && H5Tget_class(ft) == H5T_STRING && !H5Tis_variable_str(ft) ? H5Tget_size(ft) : 0;
     char *buf = size > 0 && size <= (size_t)(64L << 20) ? calloc(size + 1, 1) : NULL;
-    if (!buf) rc = bs_fail(err, BS_EPARSE, "%s:/%s: expected a fixed-length string", s->path, name);
-    else if (H5Dread(d, ft, H5S_ALL, H5S_ALL, H5P_DEFAULT, buf) < 0) rc = h5_fail(err, "%s:/%s: cannot read", s->path, name);
+    if (!buf)
+        rc = bs_fail(err, BS_EPARSE, "%s:/%s: expected a fixed-length string", s->path, name);
+    else if (H5Dread(d, ft, H5S_ALL, H5S_ALL, H5P_DEFAULT, buf) < 0)
+        rc = h5_fail(err, "%s:/%s: cannot read", s->path, name);
     if (ft >= 0) H5Tclose(ft);
     H5Dclose(d);
-    if (rc == 0) *json = buf;
-    else free(buf);
+    if (rc == 0)
+        *json = buf;
+    else
+        free(buf);
     return rc;
 }
 
 int ms_read_card(const ms_set *s, int i, char **json, bs_err *err)
 {
     *json = NULL;
-    if (i < 0 || i >= s->n) return bs_fail(err, BS_EINVAL, "%s: entry %d outside 0..%d", s->path, i, s->n - 1);
+    if (i < 0 || i >= s->n)
+        return bs_fail(err, BS_EINVAL, "%s: entry %d outside 0..%d", s->path, i, s->n - 1);
     if (s->writer || s->file < 0) return bs_fail(err, BS_EINVAL, "%s: not open for reading", s->path);
     int rc;
-    H5E_BEGIN_TRY { rc = read_card_impl(s, s->entries[i].id, json, err); }
+    H5E_BEGIN_TRY
+    {
+        rc = read_card_impl(s, s->entries[i].id, json, err);
+    }
     H5E_END_TRY;
     return rc;
 }
@@ -1157,11 +1259,15 @@ static int copy_impl(ms_set *dst, const ms_set *src, int i, bs_err *err)
 
 int ms_copy_entry(ms_set *dst, const ms_set *src, int i, bs_err *err)
 {
-    if (i < 0 || i >= src->n) return bs_fail(err, BS_EINVAL, "%s: entry %d outside 0..%d", src->path, i, src->n - 1);
+    if (i < 0 || i >= src->n)
+        return bs_fail(err, BS_EINVAL, "%s: entry %d outside 0..%d", src->path, i, src->n - 1);
     char hex[65];
     int rc = ms_content(src, i, hex, err);
     if (rc != 0) return rc;
-    H5E_BEGIN_TRY { rc = copy_impl(dst, src, i, err); }
+    H5E_BEGIN_TRY
+    {
+        rc = copy_impl(dst, src, i, err);
+    }
     H5E_END_TRY;
     return rc;
 }

@@ -15,8 +15,10 @@ int tb_model_create(int norb, int nR, int spinful, tb_model **out, bs_err *err)
     if (nR < 1 || nR > BS_MAX_NR)
         return bs_fail(err, BS_EINVAL, "lattice-vector count %d outside 1..%d", nR, BS_MAX_NR);
     if ((long long)nR * norb * norb > BS_MAX_HR_ELEMENTS)
-        return bs_fail(err, BS_EINVAL, "%d lattice vectors x %d^2 orbitals exceeds the limit of %lld "
-                       "hopping elements", nR, norb, (long long)BS_MAX_HR_ELEMENTS);
+        return bs_fail(err, BS_EINVAL,
+                       "%d lattice vectors x %d^2 orbitals exceeds the limit of %lld "
+                       "hopping elements",
+                       nR, norb, (long long)BS_MAX_HR_ELEMENTS);
     if (spinful && norb % 2 != 0)
         return bs_fail(err, BS_EINVAL, "spinful model needs an even number of states, got %d", norb);
     tb_model *m = calloc(1, sizeof *m);
@@ -28,7 +30,8 @@ int tb_model_create(int norb, int nR, int spinful, tb_model **out, bs_err *err)
     m->nspatial = spinful ? norb / 2 : norb;
     m->nR = nR;
     m->nocc = norb / 2 > 0 ? norb / 2 : 1;
-    for (int i = 0; i < 3; i++) m->lattice[i][i] = 1.0;
+    for (int i = 0; i < 3; i++)
+        m->lattice[i][i] = 1.0;
     m->orb_pos = calloc((size_t)m->nspatial, sizeof *m->orb_pos);
     m->orb_l = calloc((size_t)m->nspatial, sizeof *m->orb_l);
     m->R = calloc((size_t)nR, sizeof *m->R);
@@ -38,7 +41,8 @@ int tb_model_create(int norb, int nR, int spinful, tb_model **out, bs_err *err)
         tb_model_free(m);
         return bs_fail(err, BS_ENOMEM, "out of memory for %d x %d^2 hoppings", nR, norb);
     }
-    for (int r = 0; r < nR; r++) m->deg[r] = 1;
+    for (int r = 0; r < nR; r++)
+        m->deg[r] = 1;
     *out = m;
     return 0;
 }
@@ -75,17 +79,25 @@ int tb_model_copy(const tb_model *m, tb_model **out, bs_err *err)
     tb_model *c = NULL;
     int rc = tb_model_create(m->norb, m->nR, m->spinful, &c, err);
     if (rc != 0) return rc;
-    double (*pos)[3] = c->orb_pos;
+    double(*pos)[3] = c->orb_pos;
     int *l = c->orb_l, (*R)[3] = c->R, *deg = c->deg;
     double complex *H = c->H;
     *c = *m;
-    c->orb_pos = pos; c->orb_l = l; c->R = R; c->deg = deg; c->H = H;
+    c->orb_pos = pos;
+    c->orb_l = l;
+    c->R = R;
+    c->deg = deg;
+    c->H = H;
     memcpy(c->orb_pos, m->orb_pos, (size_t)m->nspatial * sizeof *m->orb_pos);
     memcpy(c->orb_l, m->orb_l, (size_t)m->nspatial * sizeof *m->orb_l);
     memcpy(c->R, m->R, (size_t)m->nR * sizeof *m->R);
     memcpy(c->deg, m->deg, (size_t)m->nR * sizeof *m->deg);
     memcpy(c->H, m->H, (size_t)m->nR * m->norb * m->norb * sizeof *m->H);
-    c->inv_perm = NULL; c->inv_sign = NULL; c->inv_shift = NULL; c->orb_shape = NULL; c->card_json = NULL;
+    c->inv_perm = NULL;
+    c->inv_sign = NULL;
+    c->inv_shift = NULL;
+    c->orb_shape = NULL;
+    c->card_json = NULL;
     size_t n = (size_t)m->norb;
     if (dup_array((void **)&c->card_json, m->card_json, m->card_json ? strlen(m->card_json) + 1 : 0) ||
         dup_array((void **)&c->inv_perm, m->inv_perm, n * sizeof *m->inv_perm) ||
@@ -129,28 +141,30 @@ static int validate_header(const tb_model *m, const char *where, bs_err *err)
     if (m->dim != 2 && m->dim != 3)
         return bs_fail(err, BS_EINVAL, "%s: dimension must be 2 or 3, found %d", where, m->dim);
     if (m->nocc < 1 || m->nocc >= m->norb)
-        return bs_fail(err, BS_EINVAL, "%s: occupied_bands must be in 1..%d for %d states, found %d",
-                       where, m->norb - 1, m->norb, m->nocc);
+        return bs_fail(err, BS_EINVAL, "%s: occupied_bands must be in 1..%d for %d states, found %d", where,
+                       m->norb - 1, m->norb, m->nocc);
     for (int i = 0; i < m->nspatial; i++) {
         if (m->orb_l[i] < 0 || m->orb_l[i] > 3)
             return bs_fail(err, BS_EINVAL, "%s: orbital %d has l = %d, expected 0..3", where, i + 1,
                            m->orb_l[i]);
         for (int d = 0; d < 3; d++)
             if (!isfinite(m->orb_pos[i][d]) || fabs(m->orb_pos[i][d]) > BS_MAX_REDUCED_POS)
-                return bs_fail(err, BS_EINVAL, "%s: orbitals[%d].position[%d] = %g is not a reduced coordinate "
-                               "within %g of the home cell", where, i + 1, d + 1, m->orb_pos[i][d], BS_MAX_REDUCED_POS);
+                return bs_fail(err, BS_EINVAL,
+                               "%s: orbitals[%d].position[%d] = %g is not a reduced coordinate "
+                               "within %g of the home cell",
+                               where, i + 1, d + 1, m->orb_pos[i][d], BS_MAX_REDUCED_POS);
     }
     for (int a = 0; a < 3; a++) {
         double len2 = 0;
         for (int b = 0; b < 3; b++) {
             if (!isfinite(m->lattice[a][b]) || fabs(m->lattice[a][b]) > BS_MAX_LATTICE_A)
-                return bs_fail(err, BS_EINVAL, "%s: lattice row %d element %d = %g A is outside +-%g A", where, a + 1,
-                               b + 1, m->lattice[a][b], BS_MAX_LATTICE_A);
+                return bs_fail(err, BS_EINVAL, "%s: lattice row %d element %d = %g A is outside +-%g A",
+                               where, a + 1, b + 1, m->lattice[a][b], BS_MAX_LATTICE_A);
             len2 += m->lattice[a][b] * m->lattice[a][b];
         }
         if (!(sqrt(len2) >= BS_MIN_LATTICE_A))
-            return bs_fail(err, BS_EINVAL, "%s: lattice row %d has length %g A, below %g A", where, a + 1, sqrt(len2),
-                           BS_MIN_LATTICE_A);
+            return bs_fail(err, BS_EINVAL, "%s: lattice row %d has length %g A, below %g A", where, a + 1,
+                           sqrt(len2), BS_MIN_LATTICE_A);
     }
     if (m->has_fermi && (!isfinite(m->fermi_ev) || fabs(m->fermi_ev) > BS_MAX_HOPPING_EV))
         return bs_fail(err, BS_EINVAL, "%s: fermi_energy_eV = %g is outside +-%g eV", where, m->fermi_ev,
@@ -165,11 +179,11 @@ int tb_model_validate(const tb_model *m, double tol_ev, const char *where, bs_er
     int n = m->norb;
     for (int r = 0; r < m->nR; r++) {
         if (m->deg[r] < 1)
-            return bs_fail(err, BS_EINVAL, "%s: degeneracy weight %d of R = (%d,%d,%d) must be >= 1",
-                           where, m->deg[r], m->R[r][0], m->R[r][1], m->R[r][2]);
+            return bs_fail(err, BS_EINVAL, "%s: degeneracy weight %d of R = (%d,%d,%d) must be >= 1", where,
+                           m->deg[r], m->R[r][0], m->R[r][1], m->R[r][2]);
         if (m->dim == 2 && m->R[r][2] != 0)
-            return bs_fail(err, BS_EINVAL, "%s: 2D model has R3 = %d at R = (%d,%d,%d)", where,
-                           m->R[r][2], m->R[r][0], m->R[r][1], m->R[r][2]);
+            return bs_fail(err, BS_EINVAL, "%s: 2D model has R3 = %d at R = (%d,%d,%d)", where, m->R[r][2],
+                           m->R[r][0], m->R[r][1], m->R[r][2]);
         int minus[3] = {-m->R[r][0], -m->R[r][1], -m->R[r][2]};
         int rm = tb_model_find_R(m, minus);
         if (rm < 0)
@@ -184,17 +198,19 @@ int tb_model_validate(const tb_model *m, double tol_ev, const char *where, bs_er
                     return bs_fail(err, BS_EINVAL, "%s: non-finite hopping at R = (%d,%d,%d), m = %d, n = %d",
                                    where, m->R[r][0], m->R[r][1], m->R[r][2], a + 1, b + 1);
                 if (cabs(h) > BS_MAX_HOPPING_EV)
-                    return bs_fail(err, BS_EINVAL, "%s: hopping of %.3g eV at R = (%d,%d,%d), m = %d, n = %d is "
-                                   "implausible (limit %g eV; wrong units?)", where, cabs(h), m->R[r][0],
-                                   m->R[r][1], m->R[r][2], a + 1, b + 1, BS_MAX_HOPPING_EV);
+                    return bs_fail(err, BS_EINVAL,
+                                   "%s: hopping of %.3g eV at R = (%d,%d,%d), m = %d, n = %d is "
+                                   "implausible (limit %g eV; wrong units?)",
+                                   where, cabs(h), m->R[r][0], m->R[r][1], m->R[r][2], a + 1, b + 1,
+                                   BS_MAX_HOPPING_EV);
                 double complex hd = conj(Hm[(size_t)b * n + a]);
                 /* Compare H_R / deg_R: the weights of R and -R may differ only in a broken file. */
                 double d = cabs(h / m->deg[r] - hd / m->deg[rm]);
                 if (d > tol_ev)
                     return bs_fail(err, BS_EINVAL,
                                    "%s: not Hermitian: H(R)[%d,%d] != conj(H(-R)[%d,%d]) at R = (%d,%d,%d), "
-                                   "difference %.3g eV", where, a + 1, b + 1, b + 1, a + 1,
-                                   m->R[r][0], m->R[r][1], m->R[r][2], d);
+                                   "difference %.3g eV",
+                                   where, a + 1, b + 1, b + 1, a + 1, m->R[r][0], m->R[r][1], m->R[r][2], d);
             }
     }
     return 0;
@@ -216,7 +232,8 @@ void tb_lattice_reciprocal(const double a[3][3], double b[3][3])
     }
     double vol = a[0][0] * cross[0][0] + a[0][1] * cross[0][1] + a[0][2] * cross[0][2];
     for (int i = 0; i < 3; i++)
-        for (int d = 0; d < 3; d++) b[i][d] = 2.0 * M_PI * cross[i][d] / vol;
+        for (int d = 0; d < 3; d++)
+            b[i][d] = 2.0 * M_PI * cross[i][d] / vol;
 }
 
 static const char *const tb_shapes[4][7] = {

@@ -18,7 +18,8 @@ static int ends_with(const char *s, const char *tail)
 static const char *set_split(const char *source)
 {
     const char *hit = NULL;
-    for (const char *p = strstr(source, ".h5:"); p; p = strstr(p + 1, ".h5:")) hit = p + 3;
+    for (const char *p = strstr(source, ".h5:"); p; p = strstr(p + 1, ".h5:"))
+        hit = p + 3;
     return hit;
 }
 
@@ -47,6 +48,6 @@ int src_load(const char *source, tb_model **out, bs_err *err)
     if (ends_with(source, ".h5"))
         return bs_fail(err, BS_EUSAGE, "%s: a material set; name one entry as %s:ID", source, source);
     if (ends_with(source, ".json")) return card_read(source, out, err);
-    return bs_fail(err, BS_EUSAGE, "%s: not a source; expected CARD.json, SET.h5:ID or model:NAME[:key=val,...]",
-                   source);
+    return bs_fail(err, BS_EUSAGE,
+                   "%s: not a source; expected CARD.json, SET.h5:ID or model:NAME[:key=val,...]", source);
 }

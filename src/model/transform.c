@@ -12,7 +12,8 @@ static int check_perm(const int *p, int n, const char *what, bs_err *err)
     int rc = 0;
     for (int i = 0; i < n && rc == 0; i++) {
         if (p[i] < 0 || p[i] >= n)
-            rc = bs_fail(err, BS_EINVAL, "%s permutation: entry %d is %d, expected 0..%d", what, i, p[i], n - 1);
+            rc = bs_fail(err, BS_EINVAL, "%s permutation: entry %d is %d, expected 0..%d", what, i, p[i],
+                         n - 1);
         else if (seen[p[i]]++)
             rc = bs_fail(err, BS_EINVAL, "%s permutation: %d appears twice", what, p[i]);
     }
@@ -30,12 +31,14 @@ int tf_permute_states(const tb_model *m, const int *old_of_new, tb_model **out, 
     int *new_of_old = malloc((size_t)n * sizeof *new_of_old);
     if (!new_of_old) return bs_fail(err, BS_ENOMEM, "out of memory for a permutation");
     if ((rc = tb_model_copy(m, &c, err)) != 0) goto done;
-    for (int a = 0; a < n; a++) new_of_old[old_of_new[a]] = a;
+    for (int a = 0; a < n; a++)
+        new_of_old[old_of_new[a]] = a;
     for (int r = 0; r < m->nR; r++) {
         const double complex *H = m->H + (size_t)r * n * n;
         double complex *Hc = c->H + (size_t)r * n * n;
         for (int a = 0; a < n; a++)
-            for (int b = 0; b < n; b++) Hc[(size_t)a * n + b] = H[(size_t)old_of_new[a] * n + old_of_new[b]];
+            for (int b = 0; b < n; b++)
+                Hc[(size_t)a * n + b] = H[(size_t)old_of_new[a] * n + old_of_new[b]];
     }
     /* P|old i> = s_i |old j>: new state a = old i maps to new state new_of_old[j]. */
     if (m->has_inversion_op)
@@ -86,19 +89,23 @@ int tf_phase(const tb_model *m, const double *phi, tb_model **out, bs_err *err)
     tb_model *c = NULL;
     int rc = tb_model_copy(m, &c, err);
     if (rc != 0) goto done;
-    for (int a = 0; a < n; a++) u[a] = cexp(I * phi[tb_state_orbital(m, a)]);
+    for (int a = 0; a < n; a++)
+        u[a] = cexp(I * phi[tb_state_orbital(m, a)]);
     for (int r = 0; r < m->nR; r++) {
         double complex *H = c->H + (size_t)r * n * n;
         for (int a = 0; a < n; a++)
-            for (int b = 0; b < n; b++) H[(size_t)a * n + b] *= conj(u[a]) * u[b];
+            for (int b = 0; b < n; b++)
+                H[(size_t)a * n + b] *= conj(u[a]) * u[b];
     }
     for (int i = 0; c->has_inversion_op && i < n; i++) {
         int j = m->inv_perm[i];
         double d = phi[tb_state_orbital(m, i)] - phi[tb_state_orbital(m, j)];
         /* exp(i d) must be +-1: 1e-9 rad admits round-off in phases computed as multiples of pi. */
         if (fabs(sin(d)) > 1e-9) {
-            rc = bs_fail(err, BS_EINVAL, "phases of states %d and %d (inversion partners) differ by %.6g rad, "
-                         "not a multiple of pi: the inversion sign would not be real", i + 1, j + 1, d);
+            rc = bs_fail(err, BS_EINVAL,
+                         "phases of states %d and %d (inversion partners) differ by %.6g rad, "
+                         "not a multiple of pi: the inversion sign would not be real",
+                         i + 1, j + 1, d);
             goto done;
         }
         c->inv_sign[i] = m->inv_sign[i] * (cos(d) > 0 ? 1.0 : -1.0);

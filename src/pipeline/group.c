@@ -30,7 +30,8 @@ static int share(pl_group *g, double *w, int nw, double complex *Z, long long nz
     if (MPI_Bcast(w, nw, MPI_DOUBLE, 0, g->comm) != MPI_SUCCESS)
         return bs_fail(err, BS_EMPI, "group: broadcast of eigenvalues failed");
     if (Z && nz > 0) {
-        if (nz > 2147483647LL) return bs_fail(err, BS_EMPI, "group: %lld eigenvector elements exceed one message", nz);
+        if (nz > 2147483647LL)
+            return bs_fail(err, BS_EMPI, "group: %lld eigenvector elements exceed one message", nz);
         if (MPI_Bcast(Z, (int)nz, MPI_C_DOUBLE_COMPLEX, 0, g->comm) != MPI_SUCCESS)
             return bs_fail(err, BS_EMPI, "group: broadcast of eigenvectors failed");
     }
@@ -53,7 +54,8 @@ static int g_vectors(void *ctx, int n, double complex *A, double *w, bs_err *err
     return rc ? rc : share(g, w, n, A, (long long)n * n, err);
 }
 
-static int g_range(void *ctx, int n, double complex *A, int il, int iu, double *w, double complex *Z, bs_err *err)
+static int g_range(void *ctx, int n, double complex *A, int il, int iu, double *w, double complex *Z,
+                   bs_err *err)
 {
     pl_group *g = ctx;
     int rc = ensure(g, n, err);
@@ -83,4 +85,7 @@ void pl_group_free(pl_group *g)
     free(g);
 }
 
-const eig_dist *pl_group_solver(pl_group *g) { return &g->dist; }
+const eig_dist *pl_group_solver(pl_group *g)
+{
+    return &g->dist;
+}

@@ -35,13 +35,20 @@ int pl_journal_open(const char *path, int64_t run_id, pl_journal **out, bs_err *
 
 static int journal_line(pl_journal *j, char kind, const char *id, bs_err *err)
 {
-    if (fprintf(j->fp, "%c %lld %s %s\n", kind, (long long)j->run_id, j->session, id) < 0 || fflush(j->fp) != 0)
+    if (fprintf(j->fp, "%c %lld %s %s\n", kind, (long long)j->run_id, j->session, id) < 0 ||
+        fflush(j->fp) != 0)
         return bs_fail(err, BS_EIO, "cannot write the hand-out journal: %s", strerror(errno));
     return 0;
 }
 
-int pl_journal_handed(pl_journal *j, const char *id, bs_err *err) { return journal_line(j, 'H', id, err); }
-int pl_journal_received(pl_journal *j, const char *id, bs_err *err) { return journal_line(j, 'R', id, err); }
+int pl_journal_handed(pl_journal *j, const char *id, bs_err *err)
+{
+    return journal_line(j, 'H', id, err);
+}
+int pl_journal_received(pl_journal *j, const char *id, bs_err *err)
+{
+    return journal_line(j, 'R', id, err);
+}
 
 void pl_journal_close(pl_journal *j)
 {
@@ -74,7 +81,10 @@ int pl_journal_lost(const char *path, int64_t run_id, char ***ids, int **strikes
     *strikes = NULL;
     *n = 0;
     FILE *fp = fopen(path, "r");
-    if (!fp) return errno == ENOENT ? 0 : bs_fail(err, BS_EIO, "%s: cannot read the journal: %s", path, strerror(errno));
+    if (!fp)
+        return errno == ENOENT
+                   ? 0
+                   : bs_fail(err, BS_EIO, "%s: cannot read the journal: %s", path, strerror(errno));
     pair_list open = {0};
     char line[512];
     int rc = 0;
@@ -87,7 +97,10 @@ int pl_journal_lost(const char *path, int64_t run_id, char ***ids, int **strikes
             if (open.n == open.cap) {
                 int cap = open.cap ? 2 * open.cap : 64;
                 open_pair *p = realloc(open.p, (size_t)cap * sizeof *p);
-                if (!p) { rc = bs_fail(err, BS_ENOMEM, "out of memory reading the journal"); break; }
+                if (!p) {
+                    rc = bs_fail(err, BS_ENOMEM, "out of memory reading the journal");
+                    break;
+                }
                 open.p = p;
                 open.cap = cap;
             }
@@ -102,20 +115,28 @@ int pl_journal_lost(const char *path, int64_t run_id, char ***ids, int **strikes
     /* Count, per id, the sessions that left it open. */
     char **out_ids = rc == 0 ? calloc((size_t)open.n + 1, sizeof *out_ids) : NULL;
     int *out_strikes = rc == 0 ? calloc((size_t)open.n + 1, sizeof *out_strikes) : NULL;
-    if (rc == 0 && (!out_ids || !out_strikes)) rc = bs_fail(err, BS_ENOMEM, "out of memory reading the journal");
+    if (rc == 0 && (!out_ids || !out_strikes))
+        rc = bs_fail(err, BS_ENOMEM, "out of memory reading the journal");
     int k = 0;
     for (int i = 0; rc == 0 && i < open.n; i++) {
         int found = -1;
         for (int q = 0; q < k && found < 0; q++)
             if (!strcmp(out_ids[q], open.p[i].id)) found = q;
-        if (found >= 0) { out_strikes[found]++; continue; }
+        if (found >= 0) {
+            out_strikes[found]++;
+            continue;
+        }
         out_ids[k] = strdup(open.p[i].id);
-        if (!out_ids[k]) { rc = bs_fail(err, BS_ENOMEM, "out of memory reading the journal"); break; }
+        if (!out_ids[k]) {
+            rc = bs_fail(err, BS_ENOMEM, "out of memory reading the journal");
+            break;
+        }
         out_strikes[k++] = 1;
     }
     free(open.p);
     if (rc != 0) {
-        for (int q = 0; q < k; q++) free(out_ids[q]);
+        for (int q = 0; q < k; q++)
+            free(out_ids[q]);
         free(out_ids);
         free(out_strikes);
         return rc;

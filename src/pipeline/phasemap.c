@@ -13,7 +13,10 @@
 
 static const char *const PM_KINDS[5] = {"band inversion", "gap closing", "Weyl phase", "nodal line", "metal"};
 
-const char *pm_kind_name(int code) { return code >= 0 && code < 5 ? PM_KINDS[code] : "?"; }
+const char *pm_kind_name(int code)
+{
+    return code >= 0 && code < 5 ? PM_KINDS[code] : "?";
+}
 
 static int kind_code(const char *kind)
 {
@@ -51,7 +54,10 @@ static int mpi_fail(int code, const char *what, bs_err *err)
 }
 
 /* One row into buf: [rc, nclosing, cls[nx], gap[nx], closings[PM_MAX_CLOSINGS * 5]]. */
-static int row_len(int nx) { return 2 + 2 * nx + PM_MAX_CLOSINGS * 5; }
+static int row_len(int nx)
+{
+    return 2 + 2 * nx + PM_MAX_CLOSINGS * 5;
+}
 
 static void compute_row(const pm_spec *s, int j, double *buf, bs_err *err)
 {
@@ -67,7 +73,8 @@ static void compute_row(const pm_spec *s, int j, double *buf, bs_err *err)
     int rc = cls ? pp_source_builtin(spec, s->xkey, &src, err) : bs_fail(err, BS_ENOMEM, "out of memory");
     if (rc == 0) rc = pp_map_row(src, s->xkey, s->x_lo, s->x_hi, nx, &s->opts, cls, buf + 2 + nx, &r, err);
     if (rc == 0) {
-        for (int i = 0; i < nx; i++) buf[2 + i] = cls[i];
+        for (int i = 0; i < nx; i++)
+            buf[2 + i] = cls[i];
         int nc = r.nclosing < PM_MAX_CLOSINGS ? r.nclosing : PM_MAX_CLOSINGS;
         buf[1] = nc;
         double *c = buf + 2 + 2 * nx;
@@ -93,7 +100,8 @@ static int store_row(pm_map *m, int j, const double *buf, int nx)
         m->gap[(size_t)j * nx + i] = buf[2 + nx + i];
     }
     m->nclosing[j] = (int)buf[1];
-    memcpy(m->closings + (size_t)j * PM_MAX_CLOSINGS * 5, buf + 2 + 2 * nx, PM_MAX_CLOSINGS * 5 * sizeof *buf);
+    memcpy(m->closings + (size_t)j * PM_MAX_CLOSINGS * 5, buf + 2 + 2 * nx,
+           PM_MAX_CLOSINGS * 5 * sizeof *buf);
     return (int)buf[0];
 }
 
@@ -128,7 +136,8 @@ int pm_run(int *argc, char ***argv, const pm_spec *s, pm_map **out, int *is_root
         }
         if (!m || !m->x || !m->y || !m->cls || !m->gap || !m->nclosing || !m->closings)
             rc = bs_fail(err, BS_ENOMEM, "phase map: out of memory for %d x %d points", nx, ny);
-        for (int i = 0; rc == 0 && i < nx; i++) m->x[i] = s->x_lo + (s->x_hi - s->x_lo) * i / (nx - 1);
+        for (int i = 0; rc == 0 && i < nx; i++)
+            m->x[i] = s->x_lo + (s->x_hi - s->x_lo) * i / (nx - 1);
         for (int j = 0; rc == 0 && j < ny; j++)
             m->y[j] = ny > 1 ? s->y_lo + (s->y_hi - s->y_lo) * j / (ny - 1) : s->y_lo;
     }
@@ -140,7 +149,10 @@ int pm_run(int *argc, char ***argv, const pm_spec *s, pm_map **out, int *is_root
         bs_err e;
         bs_err_clear(&e);
         compute_row(s, j, buf, &e);
-        if (buf[0] != 0 && !row_failed) { row_failed = 1; row_err = e; }
+        if (buf[0] != 0 && !row_failed) {
+            row_failed = 1;
+            row_err = e;
+        }
         if (rank == 0) {
             if (rc == 0) store_row(m, j, buf, nx);
         } else {
@@ -151,11 +163,16 @@ int pm_run(int *argc, char ***argv, const pm_spec *s, pm_map **out, int *is_root
     if (rank == 0 && buf) {
         for (int j = 0; j < ny; j++) {
             if (j % size == 0) continue;
-            int mrc = mpi_fail(MPI_Recv(buf, len, MPI_DOUBLE, j % size, j, comm, MPI_STATUS_IGNORE), "MPI_Recv", err);
-            if (mrc != 0) { if (rc == 0) rc = mrc; break; }
+            int mrc = mpi_fail(MPI_Recv(buf, len, MPI_DOUBLE, j % size, j, comm, MPI_STATUS_IGNORE),
+                               "MPI_Recv", err);
+            if (mrc != 0) {
+                if (rc == 0) rc = mrc;
+                break;
+            }
             if (rc == 0 && store_row(m, j, buf, nx) != 0 && !row_failed) {
                 row_failed = 1;
-                bs_fail(&row_err, (int)buf[0], "row %d (%s = %g) failed on rank %d", j, s->ykey, m->y[j], j % size);
+                bs_fail(&row_err, (int)buf[0], "row %d (%s = %g) failed on rank %d", j, s->ykey, m->y[j],
+                        j % size);
             }
         }
     }
@@ -168,8 +185,10 @@ int pm_run(int *argc, char ***argv, const pm_spec *s, pm_map **out, int *is_root
         m->seconds = now() - t0;
         m->ranks = size;
     }
-    if (rank == 0 && rc == 0) *out = m;
-    else pm_map_free(m);
+    if (rank == 0 && rc == 0)
+        *out = m;
+    else
+        pm_map_free(m);
     MPI_Finalize();
     return rc;
 }
@@ -203,7 +222,8 @@ static int write_names(hid_t f, const char *ds, const char *(*name)(int), int n,
 {
     char *buf = calloc((size_t)n, (size_t)w);
     if (!buf) return -1;
-    for (int i = 0; i < n; i++) snprintf(buf + (size_t)i * w, (size_t)w, "%s", name(i));
+    for (int i = 0; i < n; i++)
+        snprintf(buf + (size_t)i * w, (size_t)w, "%s", name(i));
     hid_t t = H5Tcopy(H5T_C_S1);
     H5Tset_size(t, (size_t)w);
     H5Tset_strpad(t, H5T_STR_NULLTERM);
@@ -222,10 +242,12 @@ int pm_write_h5(const pm_map *m, const pm_spec *s, const char *path, bs_err *err
     {
         f = H5Fcreate(path, H5F_ACC_TRUNC, H5P_DEFAULT, H5P_DEFAULT);
         if (f >= 0) {
-            hsize_t dx[1] = {(hsize_t)m->nx}, dy[1] = {(hsize_t)m->ny}, dg[2] = {(hsize_t)m->ny, (hsize_t)m->nx};
+            hsize_t dx[1] = {(hsize_t)m->nx}, dy[1] = {(hsize_t)m->ny},
+                    dg[2] = {(hsize_t)m->ny, (hsize_t)m->nx};
             hsize_t dc[3] = {(hsize_t)m->ny, PM_MAX_CLOSINGS, 5};
-            bad = write_str_attr(f, "format", "bandsieve-phase-map") < 0 || write_str_attr(f, "model", s->spec) < 0 ||
-                  write_str_attr(f, "x_parameter", s->xkey) < 0 || write_str_attr(f, "y_parameter", s->ykey) < 0 ||
+            bad = write_str_attr(f, "format", "bandsieve-phase-map") < 0 ||
+                  write_str_attr(f, "model", s->spec) < 0 || write_str_attr(f, "x_parameter", s->xkey) < 0 ||
+                  write_str_attr(f, "y_parameter", s->ykey) < 0 ||
                   write_ds(f, "x", H5T_NATIVE_DOUBLE, 1, dx, m->x) < 0 ||
                   write_ds(f, "y", H5T_NATIVE_DOUBLE, 1, dy, m->y) < 0 ||
                   write_ds(f, "class", H5T_NATIVE_INT, 2, dg, m->cls) < 0 ||

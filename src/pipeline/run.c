@@ -51,9 +51,9 @@ typedef struct wire_head {
 /* Coordinator -> worker. */
 typedef struct wire_work {
     int index;
-    int mesh;            /* this entry's k-mesh, 0: the job's */
-    int group;           /* compute as the rank group (lockstep, distributed eigensolver) */
-    int job_limited;     /* the budget below is what remains of the job, not the material budget */
+    int mesh;        /* this entry's k-mesh, 0: the job's */
+    int group;       /* compute as the rank group (lockstep, distributed eigensolver) */
+    int job_limited; /* the budget below is what remains of the job, not the material budget */
     double max_seconds;
 } wire_work;
 
@@ -64,20 +64,20 @@ typedef struct coord {
     ms_set *set;
     pl_item *items;
     int nitems, next;
-    unsigned char *taken;   /* nitems: handed out */
+    unsigned char *taken;       /* nitems: handed out */
     int next_large, next_small; /* cursors of the group's and the single workers' queues */
-    int leader;             /* world rank of the group leader, -1 without a group */
-    int nworkers;           /* ranks that ask the coordinator for work (group members do not) */
+    int leader;                 /* world rank of the group leader, -1 without a group */
+    int nworkers;               /* ranks that ask the coordinator for work (group members do not) */
     int64_t run_id;
     double t0;
     double last_tick;
     pl_task task;
     pl_counts counts;
-    int lock_fd;        /* CAT.sqlite.lock, held with flock for the whole job; -1 when none */
-    int lock_held;      /* this job holds the lock: it removes the file at the end */
+    int lock_fd;   /* CAT.sqlite.lock, held with flock for the whole job; -1 when none */
+    int lock_held; /* this job holds the lock: it removes the file at the end */
     char lock_path[4096];
-    pl_journal *journal;/* CAT.sqlite.journal: hand-outs and outcomes */
-    int discarded;      /* the new run had nothing to do and was removed again */
+    pl_journal *journal;  /* CAT.sqlite.journal: hand-outs and outcomes */
+    int discarded;        /* the new run had nothing to do and was removed again */
     double memory_budget; /* bytes per material (per rank; a group has group_size times it) */
 } coord;
 
@@ -101,14 +101,16 @@ static int gather_hosts(MPI_Comm comm, int rank, int size, char *out, size_t out
     MPI_Get_processor_name(name, &len);
     char *all = rank == 0 ? calloc((size_t)size, MPI_MAX_PROCESSOR_NAME) : NULL;
     if (rank == 0 && !all) return bs_fail(err, BS_ENOMEM, "out of memory for host names");
-    int rc = mpi_check(MPI_Gather(name, MPI_MAX_PROCESSOR_NAME, MPI_CHAR, all, MPI_MAX_PROCESSOR_NAME,
-                                  MPI_CHAR, 0, comm), "MPI_Gather of host names", err);
+    int rc = mpi_check(
+        MPI_Gather(name, MPI_MAX_PROCESSOR_NAME, MPI_CHAR, all, MPI_MAX_PROCESSOR_NAME, MPI_CHAR, 0, comm),
+        "MPI_Gather of host names", err);
     if (rank == 0 && rc == 0) {
         out[0] = '\0';
         for (int r = 0; r < size; r++) {
             const char *h = all + (size_t)r * MPI_MAX_PROCESSOR_NAME;
             int seen = 0;
-            for (int q = 0; q < r; q++) seen |= !strcmp(h, all + (size_t)q * MPI_MAX_PROCESSOR_NAME);
+            for (int q = 0; q < r; q++)
+                seen |= !strcmp(h, all + (size_t)q * MPI_MAX_PROCESSOR_NAME);
             if (seen) continue;
             size_t used = strlen(out);
             snprintf(out + used, outlen - used, "%s%s", used ? "," : "", h);
@@ -121,7 +123,8 @@ static int gather_hosts(MPI_Comm comm, int rank, int size, char *out, size_t out
 /* The per-material settings of a job. */
 static pl_task task_of(const pl_opts *o, const struct eig_dist *dist)
 {
-    pl_task t = {o->mesh, o->mesh_factor, o->symmetry_tol, o->transport, o->surfaces, dist, o->magnetism, o->pos_tol_ang};
+    pl_task t = {o->mesh,     o->mesh_factor, o->symmetry_tol, o->transport,
+                 o->surfaces, dist,           o->magnetism,    o->pos_tol_ang};
     return t;
 }
 
@@ -178,8 +181,10 @@ static int take_lock(coord *c, bs_err *err)
             int e = errno;
             close(fd);
             if (e == EWOULDBLOCK)
-                return bs_fail(err, BS_EIO, "%s is being written by another screen or rescreen (%s is locked); "
-                               "wait for it to finish", c->o->catalogue_path, path);
+                return bs_fail(err, BS_EIO,
+                               "%s is being written by another screen or rescreen (%s is locked); "
+                               "wait for it to finish",
+                               c->o->catalogue_path, path);
             return 0;
         }
         struct stat held, at_path;
@@ -217,13 +222,16 @@ static int give_up_lost(coord *c, const char *jpath, bs_err *err)
     for (int i = 0; rc == 0 && i < n; i++) {
         if (strikes[i] < PL_MAX_STRIKES || cat_ids_contains(&done, ids[i])) continue;
         char msg[256];
-        snprintf(msg, sizeof msg, "its job died while it was being computed in %d sessions (a worker crash, for "
-                 "instance on a corrupt entry, or a kill); not retried again (screen --rerun tries it in a new run)",
+        snprintf(msg, sizeof msg,
+                 "its job died while it was being computed in %d sessions (a worker crash, for "
+                 "instance on a corrupt entry, or a kill); not retried again (screen --rerun tries it in a "
+                 "new run)",
                  strikes[i]);
         rc = cat_result_put_text(c->cat, c->run_id, ids[i], CAT_RES_FAILED, msg, NULL, 0, -1, 0.0, err);
     }
     if (rc == 0) rc = cat_flush(c->cat, err);
-    for (int i = 0; i < n; i++) free(ids[i]);
+    for (int i = 0; i < n; i++)
+        free(ids[i]);
     free(ids);
     free(strikes);
     cat_ids_clear(&done);
@@ -280,10 +288,22 @@ static int record_material(coord *c, int i, const char *set_content, bs_err *err
         formula = cJSON_GetStringValue(cJSON_GetObjectItemCaseSensitive(j, "formula"));
         source = cJSON_GetStringValue(cJSON_GetObjectItemCaseSensitive(j, "source"));
     }
-    cat_material mat = {.material_id = e->id, .formula = formula, .dimension = e->dim, .norb = e->norb,
-                        .nr = e->nR, .nocc = e->nocc, .spinful = e->spinful, .set_path = c->o->set_path,
-                        .source = source, .card_json = card, .content = content, .set_content = set_content,
-                        .comment = comment, .orbital_labels = labels, .meta = meta, .provenance = stale};
+    cat_material mat = {.material_id = e->id,
+                        .formula = formula,
+                        .dimension = e->dim,
+                        .norb = e->norb,
+                        .nr = e->nR,
+                        .nocc = e->nocc,
+                        .spinful = e->spinful,
+                        .set_path = c->o->set_path,
+                        .source = source,
+                        .card_json = card,
+                        .content = content,
+                        .set_content = set_content,
+                        .comment = comment,
+                        .orbital_labels = labels,
+                        .meta = meta,
+                        .provenance = stale};
     rc = cat_material_upsert(c->cat, &mat, err);
     cJSON_Delete(j);
     free(card);
@@ -320,8 +340,10 @@ static int check_mesh(coord *c, bs_err *err)
         const ms_entry *e = ms_entry_at(c->set, i);
         int max = e->dim == 3 ? BS_MAX_MESH_3D : BS_MAX_MESH_2D;
         if ((e->dim == 2 || e->dim == 3) && c->o->mesh > max)
-            return bs_fail(err, BS_EUSAGE, "--mesh %d is above %d, the largest mesh for %dD materials such as %s "
-                           "(screen 2D and 3D materials separately, or use a smaller mesh)", c->o->mesh, max, e->dim, e->id);
+            return bs_fail(err, BS_EUSAGE,
+                           "--mesh %d is above %d, the largest mesh for %dD materials such as %s "
+                           "(screen 2D and 3D materials separately, or use a smaller mesh)",
+                           c->o->mesh, max, e->dim, e->id);
     }
     return 0;
 }
@@ -340,8 +362,8 @@ static void note_missing(coord *c, const cat_ids *sel)
         if (ms_find(c->set, sel->id[i]) >= 0) continue;
         if (c->counts.missing++ < 5) {
             size_t used = strlen(c->counts.missing_ids);
-            snprintf(c->counts.missing_ids + used, sizeof c->counts.missing_ids - used, "%s%s", used ? ", " : "",
-                     sel->id[i]);
+            snprintf(c->counts.missing_ids + used, sizeof c->counts.missing_ids - used, "%s%s",
+                     used ? ", " : "", sel->id[i]);
         }
     }
 }
@@ -353,9 +375,11 @@ static void note_resumed(coord *c, int rerun_asked, bs_err *err)
         bs_err_clear(err);
         return;
     }
-    int n = snprintf(c->counts.note, sizeof c->counts.note, "resuming run %lld (started %s%s, session %d, %lld "
-                     "results so far, set first read from %s)", (long long)c->run_id, rs.started,
-                     rs.rerun ? " by --rerun" : "", rs.sessions, rs.nresults, rs.set_path);
+    int n = snprintf(c->counts.note, sizeof c->counts.note,
+                     "resuming run %lld (started %s%s, session %d, %lld "
+                     "results so far, set first read from %s)",
+                     (long long)c->run_id, rs.started, rs.rerun ? " by --rerun" : "", rs.sessions,
+                     rs.nresults, rs.set_path);
     if (rerun_asked && n > 0 && (size_t)n < sizeof c->counts.note)
         snprintf(c->counts.note + n, sizeof c->counts.note - (size_t)n,
                  "; --rerun resumes the unfinished run it started instead of starting over, and starts a "
@@ -380,9 +404,15 @@ static int coord_setup(coord *c, int ranks, const char *hosts, bs_err *err)
         free(settings);
         return rc;
     }
-    cat_run_info info = {.kind = o->kind, .settings_json = settings, .version = o->version, .ranks = ranks,
-                         .hosts = hosts, .cmdline = o->cmdline, .set_path = o->set_path,
-                         .set_content = set_content, .rerun = o->rerun};
+    cat_run_info info = {.kind = o->kind,
+                         .settings_json = settings,
+                         .version = o->version,
+                         .ranks = ranks,
+                         .hosts = hosts,
+                         .cmdline = o->cmdline,
+                         .set_path = o->set_path,
+                         .set_content = set_content,
+                         .rerun = o->rerun};
     cat_ids sel, done;
     cat_ids_init(&sel);
     cat_ids_init(&done);
@@ -400,14 +430,17 @@ static int coord_setup(coord *c, int ranks, const char *hosts, bs_err *err)
      * seconds for 10^5 entries); the result batching is restored after. */
     if (rc == 0) rc = cat_set_batch(c->cat, 1 << 30, 1e9, err);
     for (int i = 0; rc == 0 && i < ms_count(c->set); i++)
-        if (!o->where_sql || cat_ids_contains(&sel, ms_entry_at(c->set, i)->id)) rc = record_material(c, i, set_content, err);
+        if (!o->where_sql || cat_ids_contains(&sel, ms_entry_at(c->set, i)->id))
+            rc = record_material(c, i, set_content, err);
     if (rc == 0) rc = cat_flush(c->cat, err);
     if (rc == 0)
         rc = cat_set_batch(c->cat, o->batch_rows > 0 ? o->batch_rows : CAT_BATCH_ROWS,
                            o->batch_seconds > 0 ? o->batch_seconds : CAT_BATCH_SECONDS, err);
     if (rc == 0) {
-        if (o->rerun) rc = cat_run_rerun(c->cat, &info, &c->run_id, &resumed, err);
-        else rc = cat_run_resume(c->cat, &info, &c->run_id, &resumed, err);
+        if (o->rerun)
+            rc = cat_run_rerun(c->cat, &info, &c->run_id, &resumed, err);
+        else
+            rc = cat_run_resume(c->cat, &info, &c->run_id, &resumed, err);
     }
     char jpath[4096];
     snprintf(jpath, sizeof jpath, "%s.journal", o->catalogue_path);
@@ -420,8 +453,8 @@ static int coord_setup(coord *c, int ranks, const char *hosts, bs_err *err)
     if (rc == 0) rc = pl_journal_open(jpath, c->run_id, &c->journal, err);
     int nmissing = 0;
     if (rc == 0)
-        rc = pl_work_list(c->set, o->where_sql ? &sel : NULL, &done, o->mesh, o->mesh_factor, &c->items, &c->nitems,
-                          &nmissing, err);
+        rc = pl_work_list(c->set, o->where_sql ? &sel : NULL, &done, o->mesh, o->mesh_factor, &c->items,
+                          &c->nitems, &nmissing, err);
     if (rc == 0 && !strcmp(o->kind, "rescreen") && o->mesh == 0) {
         rc = double_best_meshes(c, err);
         if (rc == 0) qsort(c->items, (size_t)c->nitems, sizeof *c->items, by_item_cost);
@@ -465,14 +498,18 @@ static int refuse_over_budget(coord *c, bs_err *err)
     for (int i = 0; rc == 0 && c->memory_budget > 0 && i < c->nitems; i++) {
         const ms_entry *e = ms_entry_at(c->set, c->items[i].index);
         if (e->status != MS_STATUS_OK || (e->dim != 2 && e->dim != 3)) continue;
-        int mesh = o->mesh > 0 ? o->mesh : (o->mesh_factor > 1 ? o->mesh_factor : 1) * diag_default_mesh(e->dim);
+        int mesh =
+            o->mesh > 0 ? o->mesh : (o->mesh_factor > 1 ? o->mesh_factor : 1) * diag_default_mesh(e->dim);
         double need = diag_memory_bytes(e->dim, e->norb, e->nR, e->nocc, mesh);
         double budget = c->memory_budget * (c->leader >= 0 && item_large(c, i) ? o->group_size : 1);
         if (!(need > budget)) continue;
         char msg[400];
-        snprintf(msg, sizeof msg, "needs an estimated %.1f MB (%d states, %d lattice vectors, mesh %d), above the "
-                 "per-material memory budget of %.1f MB; screen it with a larger --material-memory (fewer ranks per "
-                 "node) or in a rank group (--group-size)", need / 1e6, e->norb, e->nR, mesh, budget / 1e6);
+        snprintf(msg, sizeof msg,
+                 "needs an estimated %.1f MB (%d states, %d lattice vectors, mesh %d), above the "
+                 "per-material memory budget of %.1f MB; screen it with a larger --material-memory (fewer "
+                 "ranks per "
+                 "node) or in a rank group (--group-size)",
+                 need / 1e6, e->norb, e->nR, mesh, budget / 1e6);
         rc = cat_result_put_text(c->cat, c->run_id, e->id, CAT_RES_INVALID, msg, NULL, 0, 0, 0.0, err);
         c->taken[i] = 1;
         c->counts.done++;
@@ -499,9 +536,11 @@ static int coord_record(coord *c, const pl_outcome *out, int job_limited, bs_err
     res_init(&r);
     int has = out->json != NULL;
     int rc = has ? res_from_text(out->json, strlen(out->json), &r, err) : 0;
-    if (rc != 0) bs_err_context(err, "from rank %d: ", out->rank);
-    else rc = cat_result_put(c->cat, c->run_id, out->id, st, out->code ? out->message : NULL, has ? &r : NULL,
-                             out->rank, out->seconds, err);
+    if (rc != 0)
+        bs_err_context(err, "from rank %d: ", out->rank);
+    else
+        rc = cat_result_put(c->cat, c->run_id, out->id, st, out->code ? out->message : NULL, has ? &r : NULL,
+                            out->rank, out->seconds, err);
     if (rc != 0 && is_storage_fault(rc)) {
         /* The result is fine but cannot be stored (disk full, unwritable artifact file): it is
          * not recorded at all, so a resumed run computes it again, and the job stops. */
@@ -516,15 +555,20 @@ static int coord_record(coord *c, const pl_outcome *out, int job_limited, bs_err
         snprintf(msg, sizeof msg, "catalogue refused the result: %s", err->msg);
         bs_err_clear(err);
         has = 0;
-        rc = cat_result_put(c->cat, c->run_id, out->id, CAT_RES_FAILED, msg, NULL, out->rank, out->seconds, err);
+        rc = cat_result_put(c->cat, c->run_id, out->id, CAT_RES_FAILED, msg, NULL, out->rank, out->seconds,
+                            err);
         st = CAT_RES_FAILED;
     }
     if (rc == 0) {
         c->counts.done++;
-        if (st == CAT_RES_OK) c->counts.ok++;
-        else if (st == CAT_RES_INVALID) c->counts.invalid++;
-        else if (st == CAT_RES_TIMEOUT) c->counts.timeout++;
-        else c->counts.failed++;
+        if (st == CAT_RES_OK)
+            c->counts.ok++;
+        else if (st == CAT_RES_INVALID)
+            c->counts.invalid++;
+        else if (st == CAT_RES_TIMEOUT)
+            c->counts.timeout++;
+        else
+            c->counts.failed++;
     }
     if (rc == 0 && st == CAT_RES_OK && has) {
         c->counts.by_class[r.cls]++;
@@ -552,14 +596,17 @@ static int pick_item(coord *c, int from_leader)
 {
     int has_group = c->leader >= 0;
     if (!has_group) {
-        while (c->next < c->nitems && c->taken[c->next]) c->next++;
+        while (c->next < c->nitems && c->taken[c->next])
+            c->next++;
         return c->next < c->nitems ? c->next : -1;
     }
     if (from_leader) {
-        while (c->next_large < c->nitems && (c->taken[c->next_large] || !item_large(c, c->next_large))) c->next_large++;
+        while (c->next_large < c->nitems && (c->taken[c->next_large] || !item_large(c, c->next_large)))
+            c->next_large++;
         if (c->next_large < c->nitems) return c->next_large;
     }
-    while (c->next_small < c->nitems && (c->taken[c->next_small] || item_large(c, c->next_small))) c->next_small++;
+    while (c->next_small < c->nitems && (c->taken[c->next_small] || item_large(c, c->next_small)))
+        c->next_small++;
     return c->next_small < c->nitems ? c->next_small : -1;
 }
 
@@ -567,9 +614,15 @@ static int pick_item(coord *c, int from_leader)
 static int coord_next(coord *c, int from, wire_work *w)
 {
     const pl_opts *o = c->o;
-    if (o->stop_flag && *o->stop_flag) { c->counts.interrupted = 1; return 0; }
+    if (o->stop_flag && *o->stop_flag) {
+        c->counts.interrupted = 1;
+        return 0;
+    }
     double left = o->max_seconds > 0 ? o->max_seconds - (bs_now() - c->t0) : 0;
-    if (o->max_seconds > 0 && left <= 0.5) { c->counts.interrupted = 1; return 0; }
+    if (o->max_seconds > 0 && left <= 0.5) {
+        c->counts.interrupted = 1;
+        return 0;
+    }
     int from_leader = c->leader >= 0 && from == c->leader;
     int i = pick_item(c, from_leader);
     if (i < 0) return 0;
@@ -615,7 +668,8 @@ static int run_serial(coord *c, bs_err *err)
     return rc;
 }
 
-static int recv_outcome(MPI_Comm comm, MPI_Status *st, pl_outcome *out, int *job_limited, int *kind, bs_err *err)
+static int recv_outcome(MPI_Comm comm, MPI_Status *st, pl_outcome *out, int *job_limited, int *kind,
+                        bs_err *err)
 {
     int nbytes = 0;
     int rc = mpi_check(MPI_Get_count(st, MPI_BYTE, &nbytes), "MPI_Get_count", err);
@@ -625,7 +679,8 @@ static int recv_outcome(MPI_Comm comm, MPI_Status *st, pl_outcome *out, int *job
     rc = mpi_check(MPI_Recv(buf, nbytes, MPI_BYTE, st->MPI_SOURCE, TAG_RESULT, comm, MPI_STATUS_IGNORE),
                    "MPI_Recv of a result", err);
     memset(out, 0, sizeof *out);
-    if (rc == 0 && (size_t)nbytes < sizeof(wire_head)) rc = bs_fail(err, BS_EMPI, "short result message (%d bytes)", nbytes);
+    if (rc == 0 && (size_t)nbytes < sizeof(wire_head))
+        rc = bs_fail(err, BS_EMPI, "short result message (%d bytes)", nbytes);
     if (rc == 0) {
         wire_head h;
         memcpy(&h, buf, sizeof h);
@@ -641,8 +696,12 @@ static int recv_outcome(MPI_Comm comm, MPI_Status *st, pl_outcome *out, int *job
         size_t jlen = (size_t)nbytes - sizeof h;
         if (h.code == 0 && jlen > 0) {
             out->json = malloc(jlen + 1);
-            if (!out->json) rc = bs_fail(err, BS_ENOMEM, "out of memory");
-            else { memcpy(out->json, buf + sizeof h, jlen); out->json[jlen] = '\0'; }
+            if (!out->json)
+                rc = bs_fail(err, BS_ENOMEM, "out of memory");
+            else {
+                memcpy(out->json, buf + sizeof h, jlen);
+                out->json[jlen] = '\0';
+            }
         }
     }
     free(buf);
@@ -671,7 +730,8 @@ static int run_coordinator(coord *c, int size, bs_err *err)
         int job_limited = 0, kind = 0;
         mrc = recv_outcome(c->comm, &st, &out, &job_limited, &kind, err);
         if (mrc != 0) return mrc;
-        if (kind == 1 && rc == 0) rc = coord_record(c, &out, job_limited, err);
+        if (kind == 1 && rc == 0)
+            rc = coord_record(c, &out, job_limited, err);
         else if (kind == 1 && c->journal) {
             /* After a storage fault results are dropped, not lost: no strike against them. */
             bs_err jerr;
@@ -682,9 +742,11 @@ static int run_coordinator(coord *c, int size, bs_err *err)
         wire_work w;
         /* After a catalogue error nothing more is handed out: results could not be kept. */
         if (rc == 0 && coord_next(c, st.MPI_SOURCE, &w)) {
-            mrc = mpi_check(MPI_Send(&w, (int)sizeof w, MPI_BYTE, st.MPI_SOURCE, TAG_WORK, c->comm), "MPI_Send of work", err);
+            mrc = mpi_check(MPI_Send(&w, (int)sizeof w, MPI_BYTE, st.MPI_SOURCE, TAG_WORK, c->comm),
+                            "MPI_Send of work", err);
         } else {
-            mrc = mpi_check(MPI_Send(NULL, 0, MPI_BYTE, st.MPI_SOURCE, TAG_STOP, c->comm), "MPI_Send of stop", err);
+            mrc = mpi_check(MPI_Send(NULL, 0, MPI_BYTE, st.MPI_SOURCE, TAG_STOP, c->comm), "MPI_Send of stop",
+                            err);
             active--;
         }
         if (mrc != 0) return mrc;
@@ -707,21 +769,23 @@ static int send_outcome(MPI_Comm comm, int kind, const pl_outcome *out, int job_
         memcpy(h.message, out->message, sizeof h.message);
     }
     size_t jlen = out && out->json ? strlen(out->json) : 0;
-    if (sizeof h + jlen > (size_t)2147483647) return bs_fail(err, BS_EMPI, "result of %zu bytes too large for one message", jlen);
+    if (sizeof h + jlen > (size_t)2147483647)
+        return bs_fail(err, BS_EMPI, "result of %zu bytes too large for one message", jlen);
     char *buf = malloc(sizeof h + jlen);
     if (!buf) return bs_fail(err, BS_ENOMEM, "out of memory");
     memcpy(buf, &h, sizeof h);
     if (jlen) memcpy(buf + sizeof h, out->json, jlen);
-    int rc = mpi_check(MPI_Send(buf, (int)(sizeof h + jlen), MPI_BYTE, 0, TAG_RESULT, comm), "MPI_Send of a result", err);
+    int rc = mpi_check(MPI_Send(buf, (int)(sizeof h + jlen), MPI_BYTE, 0, TAG_RESULT, comm),
+                       "MPI_Send of a result", err);
     free(buf);
     return rc;
 }
 
 /* What a group leader tells its members: stop, or compute entry `index` together. */
 typedef struct group_cmd {
-    int cmd;            /* 0 stop, 1 compute */
+    int cmd; /* 0 stop, 1 compute */
     int index;
-    int mesh;           /* the entry's k-mesh, 0: the job's */
+    int mesh; /* the entry's k-mesh, 0: the job's */
 } group_cmd;
 
 /* Broadcast from the leader (group rank 0), waiting by polling and napping rather than spinning. */
@@ -761,11 +825,13 @@ static int run_worker(const pl_opts *o, MPI_Comm comm, MPI_Comm gcomm, pl_group 
         }
         if (rc != 0) break;
         if (st.MPI_TAG == TAG_STOP) {
-            rc = mpi_check(MPI_Recv(NULL, 0, MPI_BYTE, 0, TAG_STOP, comm, MPI_STATUS_IGNORE), "MPI_Recv of stop", err);
+            rc = mpi_check(MPI_Recv(NULL, 0, MPI_BYTE, 0, TAG_STOP, comm, MPI_STATUS_IGNORE),
+                           "MPI_Recv of stop", err);
             break;
         }
         wire_work w;
-        rc = mpi_check(MPI_Recv(&w, (int)sizeof w, MPI_BYTE, 0, TAG_WORK, comm, MPI_STATUS_IGNORE), "MPI_Recv of work", err);
+        rc = mpi_check(MPI_Recv(&w, (int)sizeof w, MPI_BYTE, 0, TAG_WORK, comm, MPI_STATUS_IGNORE),
+                       "MPI_Recv of work", err);
         if (rc != 0) break;
         pl_outcome out;
         pl_task task = task_of(o, NULL);
@@ -783,7 +849,8 @@ static int run_worker(const pl_opts *o, MPI_Comm comm, MPI_Comm gcomm, pl_group 
             out.code = BS_EIO;
             out.rank = rank;
             snprintf(out.id, sizeof out.id, "#%d", w.index);
-            snprintf(out.message, sizeof out.message, "worker %d cannot read the set: %.400s", rank, open_err.msg);
+            snprintf(out.message, sizeof out.message, "worker %d cannot read the set: %.400s", rank,
+                     open_err.msg);
         }
         rc = send_outcome(comm, 1, &out, w.job_limited, err);
         pl_outcome_clear(&out);
@@ -793,7 +860,10 @@ static int run_worker(const pl_opts *o, MPI_Comm comm, MPI_Comm gcomm, pl_group 
         bs_err gerr;
         bs_err_clear(&gerr);
         int grc = group_bcast(gcomm, &cmd, &gerr);
-        if (rc == 0 && grc != 0) { *err = gerr; rc = grc; }
+        if (rc == 0 && grc != 0) {
+            *err = gerr;
+            rc = grc;
+        }
     }
     ms_free(set);
     return rc;
@@ -874,15 +944,18 @@ int pl_run(MPI_Comm user_comm, const pl_opts *o, pl_counts *counts, int *is_root
     int in_group = gsize && rank >= leader;
     MPI_Comm gcomm = MPI_COMM_NULL;
     if (rc == 0 && gsize)
-        rc = mpi_check(MPI_Comm_split(comm, in_group ? 1 : MPI_UNDEFINED, rank, &gcomm), "MPI_Comm_split", err);
+        rc = mpi_check(MPI_Comm_split(comm, in_group ? 1 : MPI_UNDEFINED, rank, &gcomm), "MPI_Comm_split",
+                       err);
     if (rank != 0) {
         int setup_ok = 0;
         pl_group *group = NULL;
         if (rc == 0) rc = mpi_check(MPI_Bcast(&setup_ok, 1, MPI_INT, 0, comm), "MPI_Bcast", err);
         if (rc == 0 && in_group) rc = pl_group_create(gcomm, o->group_min_states, &group, err);
         if (rc == 0 && setup_ok) {
-            if (in_group && rank != leader) rc = run_member(o, gcomm, group, rank, err);
-            else rc = run_worker(o, comm, in_group ? gcomm : MPI_COMM_NULL, group, rank, err);
+            if (in_group && rank != leader)
+                rc = run_member(o, gcomm, group, rank, err);
+            else
+                rc = run_worker(o, comm, in_group ? gcomm : MPI_COMM_NULL, group, rank, err);
         }
         pl_group_free(group);
         if (gcomm != MPI_COMM_NULL) MPI_Comm_free(&gcomm);
@@ -913,8 +986,12 @@ int pl_run(MPI_Comm user_comm, const pl_opts *o, pl_counts *counts, int *is_root
         /* A storage fault (disk full, unwritable artifacts) leaves the run interrupted, so that
          * the same command resumes it once the fault is fixed; other job failures end it failed. */
         cat_run_status rs = rc != 0 ? (is_storage_fault(rc) ? CAT_RUN_INTERRUPTED : CAT_RUN_FAILED)
-                          : c.counts.interrupted ? CAT_RUN_INTERRUPTED : CAT_RUN_DONE;
-        if (cat_run_end(c.cat, c.run_id, rs, &end_err) != 0 && rc == 0) { *err = end_err; rc = end_err.code; }
+                            : c.counts.interrupted ? CAT_RUN_INTERRUPTED
+                                                   : CAT_RUN_DONE;
+        if (cat_run_end(c.cat, c.run_id, rs, &end_err) != 0 && rc == 0) {
+            *err = end_err;
+            rc = end_err.code;
+        }
     }
     if (setup_ok) coord_tick(&c, 1);
     *counts = c.counts;

@@ -86,8 +86,9 @@ int pl_work_list(const ms_set *set, const cat_ids *ids, const cat_ids *done, int
         /* k-points scale as mesh^dim for the gap and node meshes, the dominant fixed cost. */
         keys[k].item.index = i;
         keys[k].item.mesh = 0;
-        keys[k].item.cost = e->cost > 0 ? pl_cost(e->dim, e->norb, e->nR, mesh, mesh_factor)
-                                        : pow(pl_entry_mesh(e->dim, mesh, mesh_factor), e->dim > 0 ? e->dim : 3);
+        keys[k].item.cost = e->cost > 0
+                                ? pl_cost(e->dim, e->norb, e->nR, mesh, mesh_factor)
+                                : pow(pl_entry_mesh(e->dim, mesh, mesh_factor), e->dim > 0 ? e->dim : 3);
         keys[k].id = e->id;
         k++;
     }
@@ -97,7 +98,8 @@ int pl_work_list(const ms_set *set, const cat_ids *ids, const cat_ids *done, int
         free(keys);
         return bs_fail(err, BS_ENOMEM, "out of memory for the work list");
     }
-    for (int i = 0; i < k; i++) out[i] = keys[i].item;
+    for (int i = 0; i < k; i++)
+        out[i] = keys[i].item;
     free(keys);
     *items = out;
     *nitems = k;
@@ -112,8 +114,10 @@ int pl_diagnose(const tb_model *m, const pl_diag_opts *o, res_diag *r, bs_err *e
         tr_opts to = o->tr;
         if (o->diag.max_seconds > 0) to.deadline = t0 + o->diag.max_seconds;
         rc = tr_compute(m, &to, &r->transport, err);
-        if (rc == 0) r->has_transport = 1;
-        else bs_err_context(err, "transport: ");
+        if (rc == 0)
+            r->has_transport = 1;
+        else
+            bs_err_context(err, "transport: ");
     }
     if (rc == 0 && o->surfaces && res_class_has_surface_states(r->cls)) {
         int miller[3];
@@ -121,8 +125,10 @@ int pl_diagnose(const tb_model *m, const pl_diag_opts *o, res_diag *r, bs_err *e
         /* The expected crossing parities come from the parities, else from the Z2 indices. */
         ssum_bulk bulk = {r->ntrim ? r->par_delta : NULL, r->ntrim, r->z2_status == RES_DONE ? r->z2 : NULL};
         rc = ssum_compute(m, miller, 0, 0, &bulk, &r->surface, err);
-        if (rc == 0) r->has_surface = 1;
-        else bs_err_context(err, "surface: ");
+        if (rc == 0)
+            r->has_surface = 1;
+        else
+            bs_err_context(err, "surface: ");
     }
     return rc;
 }

@@ -15,11 +15,14 @@
 struct plot_fig {
     char path[1024];
     int nx, ny, panel;
-    double x0, x1, y0, y1;      /* current panel's world range */
-    double vp[4];               /* current panel's viewport (normalised subpage coordinates) */
+    double x0, x1, y0, y1; /* current panel's world range */
+    double vp[4];          /* current panel's viewport (normalised subpage coordinates) */
 };
 
-int plot_available(void) { return 1; }
+int plot_available(void)
+{
+    return 1;
+}
 
 static const char *device_for(const char *path)
 {
@@ -33,14 +36,15 @@ static const char *device_for(const char *path)
 
 /* Discrete colours (cmap0): ink, blue, orange, teal, grey, shade. Chosen here; luminances
  * 0.02, 0.10, 0.42, 0.20, 0.33, 0.84 so that curves stay apart in grey as well. */
-static const int CMAP0[6][3] = {{25, 25, 35}, {30, 80, 160}, {230, 140, 30}, {20, 140, 130}, {130, 130, 130},
-                                {232, 232, 236}};
+static const int CMAP0[6][3] = {{25, 25, 35},   {30, 80, 160},   {230, 140, 30},
+                                {20, 140, 130}, {130, 130, 130}, {232, 232, 236}};
 
 static void set_cmap1(int cmap)
 {
     const plot_cmap_def *d = plot_cmap_get(cmap);
     PLFLT pos[PLOT_CMAP_MAXPT], r[PLOT_CMAP_MAXPT], g[PLOT_CMAP_MAXPT], b[PLOT_CMAP_MAXPT];
-    for (int i = 0; i < d->n; i++) pos[i] = d->pos[i], r[i] = d->rgb[i][0], g[i] = d->rgb[i][1], b[i] = d->rgb[i][2];
+    for (int i = 0; i < d->n; i++)
+        pos[i] = d->pos[i], r[i] = d->rgb[i][0], g[i] = d->rgb[i][1], b[i] = d->rgb[i][2];
     plscmap1n(256);
     plscmap1l(1, d->n, pos, r, g, b, NULL);
 }
@@ -50,7 +54,8 @@ int plot_open(const char *path, int width, int height, int nx, int ny, plot_fig 
     *out = NULL;
     const char *dev = device_for(path);
     if (!dev) return bs_fail(err, BS_EINVAL, "%s: figure files end in .svg, .png or .pdf", path);
-    if (nx < 1 || ny < 1 || width < 100 || height < 100) return bs_fail(err, BS_EINVAL, "%s: bad figure size", path);
+    if (nx < 1 || ny < 1 || width < 100 || height < 100)
+        return bs_fail(err, BS_EINVAL, "%s: bad figure size", path);
     FILE *probe = fopen(path, "w");
     if (!probe) return bs_fail(err, BS_EIO, "%s: cannot be written", path);
     fclose(probe);
@@ -66,7 +71,8 @@ int plot_open(const char *path, int width, int height, int nx, int ny, plot_fig 
     snprintf(geom, sizeof geom, "%dx%d", width, height);
     plsetopt("geometry", geom);
     plscmap0n(16);
-    for (int i = 0; i < 6; i++) plscol0(i + 1, CMAP0[i][0], CMAP0[i][1], CMAP0[i][2]);
+    for (int i = 0; i < 6; i++)
+        plscol0(i + 1, CMAP0[i][0], CMAP0[i][1], CMAP0[i][2]);
     plscolbg(255, 255, 255);
     plstar(nx, ny);
     plfontld(1);
@@ -80,7 +86,8 @@ int plot_close(plot_fig *f, bs_err *err)
     plend1();
     struct stat st;
     int rc = 0;
-    if (stat(f->path, &st) != 0 || st.st_size == 0) rc = bs_fail(err, BS_EIO, "%s: figure was not written", f->path);
+    if (stat(f->path, &st) != 0 || st.st_size == 0)
+        rc = bs_fail(err, BS_EIO, "%s: figure was not written", f->path);
     free(f);
     return rc;
 }
@@ -92,17 +99,20 @@ static void tick_text(const char *label, char *buf, size_t n)
     buf[0] = '\0';
     for (const char *p = label; *p && used + 4 < n; p++) {
         int alone = *p == 'G' && (p == label || p[-1] == '|') && (p[1] == '\0' || p[1] == '|');
-        if (alone) used += (size_t)snprintf(buf + used, n - used, "#gG");
-        else buf[used++] = *p, buf[used] = '\0';
+        if (alone)
+            used += (size_t)snprintf(buf + used, n - used, "#gG");
+        else
+            buf[used++] = *p, buf[used] = '\0';
     }
 }
 
 int plot_panel(plot_fig *f, const plot_axes *ax, bs_err *err)
 {
-    if (!(ax->x1 > ax->x0) || !(ax->y1 > ax->y0) || !isfinite(ax->x0) || !isfinite(ax->x1) || !isfinite(ax->y0) ||
-        !isfinite(ax->y1))
+    if (!(ax->x1 > ax->x0) || !(ax->y1 > ax->y0) || !isfinite(ax->x0) || !isfinite(ax->x1) ||
+        !isfinite(ax->y0) || !isfinite(ax->y1))
         return bs_fail(err, BS_EINVAL, "%s: empty or non-finite axis range", f->path);
-    if (f->panel >= f->nx * f->ny) return bs_fail(err, BS_EINVAL, "%s: more panels than the figure holds", f->path);
+    if (f->panel >= f->nx * f->ny)
+        return bs_fail(err, BS_EINVAL, "%s: more panels than the figure holds", f->path);
     pladv(++f->panel);
     plcol0(1);
     plschr(0, 0.85);
@@ -246,19 +256,22 @@ void plot_triangles(plot_fig *f, int n, const double *x, const double *y, const 
          * at the same point lie on opposite sides and are both seen. */
         PLFLT xs[3] = {x[i] - size[i] * sx * 0.6, x[i] + size[i] * sx * 0.6, x[i]};
         PLFLT ys[3] = {y[i], y[i], y[i] + s * size[i] * sy};
-        if (v) plcol1(unit(v[i], vmin, vmax));
-        else plcol0(col + 1);
+        if (v)
+            plcol1(unit(v[i], vmin, vmax));
+        else
+            plcol0(col + 1);
         plfill(3, xs, ys);
     }
     plcol0(1);
 }
 
-void plot_map(plot_fig *f, int nx, int ny, const double *z, double x0, double x1, double y0, double y1, int cmap,
-              double zmin, double zmax)
+void plot_map(plot_fig *f, int nx, int ny, const double *z, double x0, double x1, double y0, double y1,
+              int cmap, double zmin, double zmax)
 {
     PLFLT **cols = malloc((size_t)nx * sizeof *cols);
     if (!cols) return;
-    for (int i = 0; i < nx; i++) cols[i] = (PLFLT *)(z + (size_t)i * ny);
+    for (int i = 0; i < nx; i++)
+        cols[i] = (PLFLT *)(z + (size_t)i * ny);
     set_cmap1(cmap);
     plimage((PLFLT_MATRIX)cols, nx, ny, x0, x1, y0, y1, zmin, zmax, x0, x1, y0, y1);
     free(cols);
@@ -270,7 +283,8 @@ void plot_colourbar(plot_fig *f, int cmap, double zmin, double zmax, const char 
 {
     const int n = 64;
     PLFLT col[64], *cols[2] = {col, col};
-    for (int i = 0; i < n; i++) col[i] = zmin + (zmax - zmin) * i / (n - 1);
+    for (int i = 0; i < n; i++)
+        col[i] = zmin + (zmax - zmin) * i / (n - 1);
     plvpor(f->vp[1] + 0.04, f->vp[1] + 0.07, f->vp[2], f->vp[3]);
     plwind(0, 1, zmin, zmax);
     set_cmap1(cmap);
@@ -312,7 +326,8 @@ int plot_curves_file(const char *path, const plot_axes *ax, int nseries, const p
     plot_fig *f = NULL;
     int rc = plot_open(path, 900, 600, 1, 1, &f, err);
     if (rc == 0) rc = plot_panel(f, ax, err);
-    for (int i = 0; rc == 0 && i < ninterval; i++) plot_xspan(f, iv[i].lo, iv[i].hi, iv[i].label);
+    for (int i = 0; rc == 0 && i < ninterval; i++)
+        plot_xspan(f, iv[i].lo, iv[i].hi, iv[i].label);
     for (int i = 0; rc == 0 && i < nseries; i++) {
         plot_curve(f, s[i].n, s[i].x, s[i].y, s[i].col, 2.0, s[i].dashed);
         if (s[i].label) plot_legend(f, i, s[i].col, s[i].label);

@@ -11,16 +11,11 @@
 static const char *const STATUS_NAMES[] = {"not applicable", "done", "ambiguous", "disagree"};
 
 static const char *const CLASS_NAMES[RES_NCLASS] = {
-    [RES_TRIVIAL] = "trivial insulator",
-    [RES_STRONG_TI] = "strong topological insulator",
-    [RES_WEAK_TI] = "weak topological insulator",
-    [RES_2D_TI] = "2D topological insulator",
-    [RES_CHERN_INSULATOR] = "Chern insulator",
-    [RES_WEYL] = "Weyl semimetal",
-    [RES_NODAL_LINE] = "nodal-line semimetal",
-    [RES_METAL] = "metal",
-    [RES_UNDETERMINED] = "undetermined",
-    [RES_TCI] = "topological crystalline insulator"};
+    [RES_TRIVIAL] = "trivial insulator",          [RES_STRONG_TI] = "strong topological insulator",
+    [RES_WEAK_TI] = "weak topological insulator", [RES_2D_TI] = "2D topological insulator",
+    [RES_CHERN_INSULATOR] = "Chern insulator",    [RES_WEYL] = "Weyl semimetal",
+    [RES_NODAL_LINE] = "nodal-line semimetal",    [RES_METAL] = "metal",
+    [RES_UNDETERMINED] = "undetermined",          [RES_TCI] = "topological crystalline insulator"};
 
 static const char *const FERMI_SOURCE_NAMES[] = {"given", "card", "midgap", "filling"};
 static const char *const GAUGE_NAMES[] = {"position", "lattice"};
@@ -57,7 +52,8 @@ int res_class_is_insulator(res_class c)
 
 int res_class_has_surface_states(res_class c)
 {
-    return c == RES_STRONG_TI || c == RES_WEAK_TI || c == RES_2D_TI || c == RES_CHERN_INSULATOR || c == RES_TCI;
+    return c == RES_STRONG_TI || c == RES_WEAK_TI || c == RES_2D_TI || c == RES_CHERN_INSULATOR ||
+           c == RES_TCI;
 }
 
 const char *res_fermi_source_name(int source)
@@ -68,10 +64,14 @@ const char *res_fermi_source_name(int source)
 const char *res_limit_name(int limit)
 {
     switch (limit) {
-    case RES_LIMIT_NONE: return "none";
-    case RES_LIMIT_BUDGET: return "k-point budget";
-    case RES_LIMIT_DEPTH: return "depth limit";
-    default: return "unknown";
+    case RES_LIMIT_NONE:
+        return "none";
+    case RES_LIMIT_BUDGET:
+        return "k-point budget";
+    case RES_LIMIT_DEPTH:
+        return "depth limit";
+    default:
+        return "unknown";
     }
 }
 
@@ -84,9 +84,12 @@ int res_chern_shown(const res_diag *r, int *c)
 {
     int computed = r->chern_status == RES_DONE || r->chern_status == RES_AMBIGUOUS;
     if (r->dim != 2) return 0;
-    if (computed) *c = r->chern;
-    else if (r->time_reversal && r->gap_direct_ev > BS_GAP_CLOSED_EV) *c = 0;
-    else return 0;
+    if (computed)
+        *c = r->chern;
+    else if (r->time_reversal && r->gap_direct_ev > BS_GAP_CLOSED_EV)
+        *c = 0;
+    else
+        return 0;
     return 1;
 }
 
@@ -105,7 +108,8 @@ int res_node_is_weyl(const res_diag *r, int i)
 int res_weyl_count(const res_diag *r)
 {
     int n = 0;
-    for (int i = 0; i < r->nnodes; i++) n += res_node_is_weyl(r, i);
+    for (int i = 0; i < r->nnodes; i++)
+        n += res_node_is_weyl(r, i);
     return n;
 }
 
@@ -114,7 +118,8 @@ void res_init(res_diag *r)
     memset(r, 0, sizeof *r);
     r->cls = RES_UNDETERMINED;
     r->z4 = -1;
-    for (int i = 0; i < 4; i++) r->z2[i] = r->z2_parity[i] = r->z2_wcc[i] = -1;
+    for (int i = 0; i < 4; i++)
+        r->z2[i] = r->z2_parity[i] = r->z2_wcc[i] = -1;
     r->tr_verdict = r->inv_verdict = RES_SYM_NA;
     r->inv_break_ev = r->inv_break_lower_ev = -1;
     r->margin = INFINITY;
@@ -124,10 +129,14 @@ void res_init(res_diag *r)
 const char *res_verdict_name(res_verdict v)
 {
     switch (v) {
-    case RES_SYM_EXACT: return "exact";
-    case RES_SYM_APPROX: return "approximate";
-    case RES_SYM_BROKEN: return "broken";
-    default: return "not applicable";
+    case RES_SYM_EXACT:
+        return "exact";
+    case RES_SYM_APPROX:
+        return "approximate";
+    case RES_SYM_BROKEN:
+        return "broken";
+    default:
+        return "not applicable";
     }
 }
 

@@ -13,24 +13,24 @@
 #include "bandsieve/err.h"
 
 typedef enum key_kind {
-    KEY_STR,        /* char array, always written */
+    KEY_STR,          /* char array, always written */
     KEY_STR_NONEMPTY, /* char array, written only when not empty */
     KEY_INT,
-    KEY_INT_OPT,    /* int, -1 written as null (not computed) */
+    KEY_INT_OPT, /* int, -1 written as null (not computed) */
     KEY_LLONG,
     KEY_NUM,
     KEY_BOOL,
-    KEY_VEC3,       /* double[3] */
-    KEY_CLASS,      /* res_class by name */
-    KEY_STATUS,     /* res_status by name */
-    KEY_VERDICT,    /* res_verdict by name */
-    KEY_SPECIAL     /* written by the row's own function */
+    KEY_VEC3,    /* double[3] */
+    KEY_CLASS,   /* res_class by name */
+    KEY_STATUS,  /* res_status by name */
+    KEY_VERDICT, /* res_verdict by name */
+    KEY_SPECIAL  /* written by the row's own function */
 } key_kind;
 
 typedef struct key_row {
     const char *name;
     key_kind kind;
-    size_t off, size; /* of the member (0 for KEY_SPECIAL) */
+    size_t off, size;   /* of the member (0 for KEY_SPECIAL) */
     const char *column; /* catalogue column holding the same value (results table), or NULL */
     /* KEY_SPECIAL: adds the key(s) of this row; 0, or -1 when out of memory. */
     int (*write)(cJSON *o, const res_diag *r, int with_flows);
@@ -40,7 +40,10 @@ typedef struct key_row {
 
 #define AT(m) offsetof(res_diag, m), sizeof(((res_diag *)0)->m)
 
-static int nz2(const res_diag *r) { return r->dim == 2 ? 1 : 4; }
+static int nz2(const res_diag *r)
+{
+    return r->dim == 2 ? 1 : 4;
+}
 
 /* An index list when its method is done, else null. */
 static int add_indices(cJSON *o, const char *key, res_status st, const int *v, int n)
@@ -49,7 +52,10 @@ static int add_indices(cJSON *o, const char *key, res_status st, const int *v, i
     return x && cJSON_AddItemToObject(o, key, x) ? 0 : (cJSON_Delete(x), -1);
 }
 
-static int w_z2(cJSON *o, const res_diag *r, int f) { return add_indices(o, "z2", r->z2_status, r->z2, nz2(r)); }
+static int w_z2(cJSON *o, const res_diag *r, int f)
+{
+    return add_indices(o, "z2", r->z2_status, r->z2, nz2(r));
+}
 static int w_z2_parity(cJSON *o, const res_diag *r, int f)
 {
     return add_indices(o, "z2_parity", r->z2_parity_status, r->z2_parity, nz2(r));
@@ -145,15 +151,19 @@ static int w_transport(cJSON *o, const res_diag *r, int f)
     int nahc = t->dim == 3 ? 3 : 1;
     cJSON *ahc = cJSON_AddObjectToObject(o, "ahc");
     if (!ahc || !cJSON_AddNumberToObject(ahc, "xy", t->ahc[0][0])) return -1;
-    if (nahc == 3 && (!cJSON_AddNumberToObject(ahc, "yz", t->ahc[0][1]) || !cJSON_AddNumberToObject(ahc, "zx", t->ahc[0][2])))
+    if (nahc == 3 && (!cJSON_AddNumberToObject(ahc, "yz", t->ahc[0][1]) ||
+                      !cJSON_AddNumberToObject(ahc, "zx", t->ahc[0][2])))
         return -1;
-    if (!cJSON_AddStringToObject(ahc, "units", t->ahc_units) || !cJSON_AddNumberToObject(ahc, "fermi_eV", t->fermi_ev[0]) ||
+    if (!cJSON_AddStringToObject(ahc, "units", t->ahc_units) ||
+        !cJSON_AddNumberToObject(ahc, "fermi_eV", t->fermi_ev[0]) ||
         !cJSON_AddNumberToObject(ahc, "error", max_err(t->ahc_err[0], nahc)))
         return -1;
     if (t->has_shc) {
         cJSON *shc = cJSON_AddObjectToObject(o, "shc");
-        if (!shc || !cJSON_AddNumberToObject(shc, "xy_z", t->shc[0]) || !cJSON_AddStringToObject(shc, "units", t->shc_units) ||
-            !cJSON_AddNumberToObject(shc, "fermi_eV", t->fermi_ev[0]) || !cJSON_AddNumberToObject(shc, "error", t->shc_err[0]))
+        if (!shc || !cJSON_AddNumberToObject(shc, "xy_z", t->shc[0]) ||
+            !cJSON_AddStringToObject(shc, "units", t->shc_units) ||
+            !cJSON_AddNumberToObject(shc, "fermi_eV", t->fermi_ev[0]) ||
+            !cJSON_AddNumberToObject(shc, "error", t->shc_err[0]))
             return -1;
     }
     cJSON *tr = cJSON_AddObjectToObject(o, "transport");
@@ -170,11 +180,14 @@ static int w_transport(cJSON *o, const res_diag *r, int f)
                            !cJSON_AddNumberToObject(p, "shc_error", t->shc_err[e])))
             return -1;
     }
-    int ok = cJSON_AddNumberToObject(tr, "kpoints", (double)t->nk) && cJSON_AddNumberToObject(tr, "cells", (double)t->ncells) &&
-             cJSON_AddNumberToObject(tr, "depth", t->depth) && cJSON_AddBoolToObject(tr, "converged", t->converged) &&
+    int ok = cJSON_AddNumberToObject(tr, "kpoints", (double)t->nk) &&
+             cJSON_AddNumberToObject(tr, "cells", (double)t->ncells) &&
+             cJSON_AddNumberToObject(tr, "depth", t->depth) &&
+             cJSON_AddBoolToObject(tr, "converged", t->converged) &&
              cJSON_AddNumberToObject(tr, "tolerance", t->tol) &&
              cJSON_AddStringToObject(tr, "fermi_source", res_fermi_source_name(t->fermi_source)) &&
-             cJSON_AddNumberToObject(tr, "eta_eV", t->eta_ev) && cJSON_AddNumberToObject(tr, "smear_eV", t->smear_ev) &&
+             cJSON_AddNumberToObject(tr, "eta_eV", t->eta_ev) &&
+             cJSON_AddNumberToObject(tr, "smear_eV", t->smear_ev) &&
              cJSON_AddStringToObject(tr, "gauge", res_gauge_name(t->gauge)) &&
              cJSON_AddNumberToObject(tr, "min_gap_eV", t->min_gap_ev);
     /* What limits the result: the Fermi-surface cells (transport.c); null where there were none. */
@@ -208,16 +221,18 @@ static int w_surface(cJSON *o, const res_diag *r, int f)
     const res_surface *s = &r->surface;
     cJSON *x = cJSON_AddObjectToObject(o, "surface");
     cJSON *cr = NULL, *bt = NULL;
-    int ok = x && cJSON_AddItemToObject(x, "direction", cJSON_CreateIntArray(s->miller, s->kdim == 1 ? 2 : 3)) &&
-             cJSON_AddNumberToObject(x, "layers", s->layers) && cJSON_AddNumberToObject(x, "fermi_eV", s->fermi_ev) &&
-             (cr = cJSON_AddObjectToObject(x, "crossings")) && cJSON_AddNumberToObject(cr, "top", s->n_top) &&
-             cJSON_AddNumberToObject(cr, "bottom", s->n_bottom) && cJSON_AddNumberToObject(cr, "other", s->n_other) &&
-             (bt = cJSON_AddArrayToObject(x, "between")) &&
-             cJSON_AddItemToArray(bt, cJSON_CreateDoubleArray(s->ka, s->kdim)) &&
-             cJSON_AddItemToArray(bt, cJSON_CreateDoubleArray(s->kb, s->kdim)) &&
-             cJSON_AddNumberToObject(x, "dirac_points_top", s->ndirac_top) &&
-             cJSON_AddStringToObject(x, "status", SURF_STATUS[s->status]) &&
-             cJSON_AddStringToObject(x, "reason", s->reason);
+    int ok =
+        x && cJSON_AddItemToObject(x, "direction", cJSON_CreateIntArray(s->miller, s->kdim == 1 ? 2 : 3)) &&
+        cJSON_AddNumberToObject(x, "layers", s->layers) &&
+        cJSON_AddNumberToObject(x, "fermi_eV", s->fermi_ev) &&
+        (cr = cJSON_AddObjectToObject(x, "crossings")) && cJSON_AddNumberToObject(cr, "top", s->n_top) &&
+        cJSON_AddNumberToObject(cr, "bottom", s->n_bottom) &&
+        cJSON_AddNumberToObject(cr, "other", s->n_other) && (bt = cJSON_AddArrayToObject(x, "between")) &&
+        cJSON_AddItemToArray(bt, cJSON_CreateDoubleArray(s->ka, s->kdim)) &&
+        cJSON_AddItemToArray(bt, cJSON_CreateDoubleArray(s->kb, s->kdim)) &&
+        cJSON_AddNumberToObject(x, "dirac_points_top", s->ndirac_top) &&
+        cJSON_AddStringToObject(x, "status", SURF_STATUS[s->status]) &&
+        cJSON_AddStringToObject(x, "reason", s->reason);
     cJSON *sp = ok ? cJSON_AddArrayToObject(x, "surface_parities") : NULL, *pairs = NULL;
     ok = ok && sp && (pairs = cJSON_AddArrayToObject(x, "pairs"));
     for (int t = 0; ok && t < s->ntrim; t++)
@@ -227,8 +242,10 @@ static int w_surface(cJSON *o, const res_diag *r, int f)
         const res_surface_pair *p = &s->pair[i];
         cJSON *q = cJSON_CreateObject();
         const char *ab[2] = {SURF_TRIM[s->kdim == 1][p->a & 3], SURF_TRIM[s->kdim == 1][p->b & 3]};
-        ok = q && cJSON_AddItemToArray(pairs, q) && cJSON_AddItemToObject(q, "between", cJSON_CreateStringArray(ab, 2)) &&
-             cJSON_AddNumberToObject(q, "top", p->n_top) && cJSON_AddNumberToObject(q, "bottom", p->n_bottom) &&
+        ok = q && cJSON_AddItemToArray(pairs, q) &&
+             cJSON_AddItemToObject(q, "between", cJSON_CreateStringArray(ab, 2)) &&
+             cJSON_AddNumberToObject(q, "top", p->n_top) &&
+             cJSON_AddNumberToObject(q, "bottom", p->n_bottom) &&
              cJSON_AddNumberToObject(q, "other", p->n_other);
         if (ok && p->expected_odd < 0)
             ok = cJSON_AddNullToObject(q, "expected_odd") && cJSON_AddNullToObject(q, "agrees");
@@ -307,8 +324,10 @@ static int read_bool(const cJSON *o, const char *key, int *out, bs_err *err)
     const cJSON *v = member(o, key);
     int x = 0;
     if (!v) return 0;
-    if (cJSON_IsBool(v)) x = cJSON_IsTrue(v);
-    else if (json_int(v, &x) != 0 || (x != 0 && x != 1)) return key_fail(err, key, "true or false");
+    if (cJSON_IsBool(v))
+        x = cJSON_IsTrue(v);
+    else if (json_int(v, &x) != 0 || (x != 0 && x != 1))
+        return key_fail(err, key, "true or false");
     *out = x;
     return 0;
 }
@@ -337,7 +356,10 @@ static int read_indices(const cJSON *o, const char *key, res_status *st, int *v,
     return 0;
 }
 
-static int r_z2(const cJSON *o, res_diag *r, bs_err *err) { return read_indices(o, "z2", NULL, r->z2, err); }
+static int r_z2(const cJSON *o, res_diag *r, bs_err *err)
+{
+    return read_indices(o, "z2", NULL, r->z2, err);
+}
 static int r_z2_parity(const cJSON *o, res_diag *r, bs_err *err)
 {
     return read_indices(o, "z2_parity", &r->z2_parity_status, r->z2_parity, err);
@@ -354,7 +376,8 @@ static int r_parities(const cJSON *o, res_diag *r, bs_err *err)
     if (!p) return 0;
     const cJSON *d = cJSON_IsObject(p) ? member(p, "delta") : NULL;
     int n = cJSON_IsArray(d) ? cJSON_GetArraySize(d) : -1;
-    if ((n != 4 && n != 8) || json_ints(d, n, r->par_delta) != 0 || json_ints(member(p, "odd_occupied"), n, r->par_nodd) != 0)
+    if ((n != 4 && n != 8) || json_ints(d, n, r->par_delta) != 0 ||
+        json_ints(member(p, "odd_occupied"), n, r->par_nodd) != 0)
         return key_fail(err, "parities", expected);
     r->ntrim = n;
     return 0;
@@ -364,7 +387,8 @@ static int r_chern(const cJSON *o, res_diag *r, bs_err *err)
 {
     const cJSON *c = member(o, "chern"), *pc = member(o, "plane_chern");
     if (c && json_int(c, &r->chern) != 0) return key_fail(err, "chern", "an integer");
-    if (pc && json_ints(pc, 6, r->plane_chern) != 0) return key_fail(err, "plane_chern", "a list of 6 integers");
+    if (pc && json_ints(pc, 6, r->plane_chern) != 0)
+        return key_fail(err, "plane_chern", "a list of 6 integers");
     return 0;
 }
 
@@ -381,7 +405,8 @@ static int add_node(res_diag *r, const res_node *n, int cap)
 static int r_nodes(const cJSON *o, res_diag *r, bs_err *err)
 {
     const cJSON *w = member(o, "weyl_nodes"), *g = member(o, "gap_closings");
-    const char *expected = "a list of {\"k\": [3 numbers], \"chirality\": integer, \"energy_eV\": number, \"gap_eV\": number}";
+    const char *expected =
+        "a list of {\"k\": [3 numbers], \"chirality\": integer, \"energy_eV\": number, \"gap_eV\": number}";
     if ((w && !cJSON_IsArray(w))) return key_fail(err, "weyl_nodes", expected);
     if (g && !cJSON_IsArray(g)) return key_fail(err, "gap_closings", "a list of [3 numbers]");
     int cap = (w ? cJSON_GetArraySize(w) : 0) + (g ? cJSON_GetArraySize(g) : 0);
@@ -394,8 +419,8 @@ static int r_nodes(const cJSON *o, res_diag *r, bs_err *err)
     for (const cJSON *x = w ? w->child : NULL; x; x = x->next) {
         res_node n = {{0, 0, 0}, 0, 0, 0};
         if (!cJSON_IsObject(x) || json_vec(cJSON_GetObjectItemCaseSensitive(x, "k"), 3, n.k) != 0 ||
-            read_int(x, "chirality", &n.chirality, &inner) || read_num(x, "energy_eV", &n.energy_ev, &inner) ||
-            read_num(x, "gap_eV", &n.gap_ev, &inner))
+            read_int(x, "chirality", &n.chirality, &inner) ||
+            read_num(x, "energy_eV", &n.energy_ev, &inner) || read_num(x, "gap_eV", &n.gap_ev, &inner))
             return key_fail(err, "weyl_nodes", expected);
         zero_weyl |= n.chirality == 0;
         add_node(r, &n, cap);
@@ -405,22 +430,26 @@ static int r_nodes(const cJSON *o, res_diag *r, bs_err *err)
         if (json_vec(x, 3, n.k) != 0) return key_fail(err, "gap_closings", "a list of [3 numbers]");
         add_node(r, &n, cap);
     }
-    if (zero_weyl) r->chirality_status = RES_AMBIGUOUS;
-    else if (g && cJSON_GetArraySize(g) > 0) r->chirality_status = RES_DONE;
+    if (zero_weyl)
+        r->chirality_status = RES_AMBIGUOUS;
+    else if (g && cJSON_GetArraySize(g) > 0)
+        r->chirality_status = RES_DONE;
     return 0;
 }
 
 static int read_flow(const cJSON *o, res_flow *f, bs_err *err)
 {
-    const char *expected = "a list of {\"plane\": 0..5, \"kpar\": [n numbers], \"wcc\": [n lists of nband numbers]}";
+    const char *expected =
+        "a list of {\"plane\": 0..5, \"kpar\": [n numbers], \"wcc\": [n lists of nband numbers]}";
     const cJSON *kpar = cJSON_IsObject(o) ? member(o, "kpar") : NULL;
     const cJSON *wcc = cJSON_IsObject(o) ? member(o, "wcc") : NULL;
-    if (!kpar || json_int(member(o, "plane"), &f->plane) != 0 || f->plane < 0 || f->plane > 5 || !cJSON_IsArray(kpar) ||
-        !cJSON_IsArray(wcc))
+    if (!kpar || json_int(member(o, "plane"), &f->plane) != 0 || f->plane < 0 || f->plane > 5 ||
+        !cJSON_IsArray(kpar) || !cJSON_IsArray(wcc))
         return key_fail(err, "wcc_flows", expected);
     f->nstring = cJSON_GetArraySize(kpar);
     f->nband = f->nstring > 0 ? cJSON_GetArraySize(cJSON_GetArrayItem(wcc, 0)) : 0;
-    if (f->nstring < 1 || f->nband < 1 || cJSON_GetArraySize(wcc) != f->nstring) return key_fail(err, "wcc_flows", expected);
+    if (f->nstring < 1 || f->nband < 1 || cJSON_GetArraySize(wcc) != f->nstring)
+        return key_fail(err, "wcc_flows", expected);
     f->kpar = malloc((size_t)f->nstring * sizeof *f->kpar);
     f->wcc = malloc((size_t)f->nstring * (size_t)f->nband * sizeof *f->wcc);
     if (!f->kpar || !f->wcc) return bs_fail(err, BS_ENOMEM, "out of memory for a flow");
@@ -447,7 +476,8 @@ static int r_flows(const cJSON *o, res_diag *r, bs_err *err)
         int rc = read_flow(x, &r->flows[i], err);
         if (rc != 0) return rc;
         for (int j = 0; j < i; j++)
-            if (r->flows[j].plane == r->flows[i].plane) return key_fail(err, "wcc_flows", "at most one flow per plane");
+            if (r->flows[j].plane == r->flows[i].plane)
+                return key_fail(err, "wcc_flows", "at most one flow per plane");
     }
     return 0;
 }
@@ -478,13 +508,17 @@ static int r_transport(const cJSON *o, res_diag *r, bs_err *err)
     int bad = 0;
     if (ahc) {
         bad |= read_num(ahc, "xy", &t->ahc[0][0], &inner) || read_num(ahc, "yz", &t->ahc[0][1], &inner) ||
-               read_num(ahc, "zx", &t->ahc[0][2], &inner) || read_str(ahc, "units", t->ahc_units, sizeof t->ahc_units, &inner) ||
-               read_num(ahc, "fermi_eV", &t->fermi_ev[0], &inner) || read_num(ahc, "error", &t->ahc_err[0][0], &inner);
+               read_num(ahc, "zx", &t->ahc[0][2], &inner) ||
+               read_str(ahc, "units", t->ahc_units, sizeof t->ahc_units, &inner) ||
+               read_num(ahc, "fermi_eV", &t->fermi_ev[0], &inner) ||
+               read_num(ahc, "error", &t->ahc_err[0][0], &inner);
         if (bad) return key_fail(err, "ahc", expected);
     }
     if (shc) {
-        bad |= read_num(shc, "xy_z", &t->shc[0], &inner) || read_str(shc, "units", t->shc_units, sizeof t->shc_units, &inner) ||
-               read_num(shc, "error", &t->shc_err[0], &inner) || (!ahc && read_num(shc, "fermi_eV", &t->fermi_ev[0], &inner));
+        bad |= read_num(shc, "xy_z", &t->shc[0], &inner) ||
+               read_str(shc, "units", t->shc_units, sizeof t->shc_units, &inner) ||
+               read_num(shc, "error", &t->shc_err[0], &inner) ||
+               (!ahc && read_num(shc, "fermi_eV", &t->fermi_ev[0], &inner));
         if (bad) return key_fail(err, "shc", expected);
     }
     if (!tr) return r->has_transport = 1, 0;
@@ -495,21 +529,26 @@ static int r_transport(const cJSON *o, res_diag *r, bs_err *err)
     for (const cJSON *p = scan ? scan->child : NULL; p; p = p->next, e++) {
         bad |= !cJSON_IsObject(p) || read_num(p, "fermi_eV", &t->fermi_ev[e], &inner) ||
                read_num(p, "ahc_xy", &t->ahc[e][0], &inner) || read_num(p, "ahc_yz", &t->ahc[e][1], &inner) ||
-               read_num(p, "ahc_zx", &t->ahc[e][2], &inner) || read_num(p, "ahc_error", &t->ahc_err[e][0], &inner) ||
-               read_num(p, "shc_xy_z", &t->shc[e], &inner) || read_num(p, "shc_error", &t->shc_err[e], &inner);
+               read_num(p, "ahc_zx", &t->ahc[e][2], &inner) ||
+               read_num(p, "ahc_error", &t->ahc_err[e][0], &inner) ||
+               read_num(p, "shc_xy_z", &t->shc[e], &inner) ||
+               read_num(p, "shc_error", &t->shc_err[e], &inner);
         if (bad) return key_fail(err, "transport", "scan entries of numbers");
     }
     if (e > 0) {
         t->nfermi = e;
-        for (int a = 1; a < 3; a++) t->ahc_err[0][a] = 0;
+        for (int a = 1; a < 3; a++)
+            t->ahc_err[0][a] = 0;
     }
     char source[16] = "", gauge[16] = "";
     double nk = 0, ncells = 0;
     bad |= read_num(tr, "kpoints", &nk, &inner) || read_num(tr, "cells", &ncells, &inner) ||
            read_int(tr, "depth", &t->depth, &inner) || read_bool(tr, "converged", &t->converged, &inner) ||
-           read_num(tr, "tolerance", &t->tol, &inner) || read_str(tr, "fermi_source", source, sizeof source, &inner) ||
+           read_num(tr, "tolerance", &t->tol, &inner) ||
+           read_str(tr, "fermi_source", source, sizeof source, &inner) ||
            read_num(tr, "eta_eV", &t->eta_ev, &inner) || read_num(tr, "smear_eV", &t->smear_ev, &inner) ||
-           read_str(tr, "gauge", gauge, sizeof gauge, &inner) || read_num(tr, "min_gap_eV", &t->min_gap_ev, &inner);
+           read_str(tr, "gauge", gauge, sizeof gauge, &inner) ||
+           read_num(tr, "min_gap_eV", &t->min_gap_ev, &inner);
     if (bad) return key_fail(err, "transport", "the integration's numbers, flags and names");
     t->nk = (long long)nk;
     t->ncells = (long long)ncells;
@@ -522,11 +561,14 @@ static int r_transport(const cJSON *o, res_diag *r, bs_err *err)
         char limit[24] = "";
         double cells = 0, open = 0;
         bad |= !cJSON_IsObject(fs) || read_num(fs, "cells", &cells, &inner) ||
-               read_num(fs, "unresolved_cells", &open, &inner) || read_str(fs, "limited_by", limit, sizeof limit, &inner) ||
+               read_num(fs, "unresolved_cells", &open, &inner) ||
+               read_str(fs, "limited_by", limit, sizeof limit, &inner) ||
                read_num(fs, "smallest_split_eV", &t->fs_split_ev, &inner) ||
                read_num(fs, "smallest_feature", &t->fs_feature, &inner) ||
                read_num(fs, "finest_cell", &t->fs_finest_cell, &inner);
-        if (bad) return key_fail(err, "transport", "a \"fermi_surface\" object of numbers and a \"limited_by\" name");
+        if (bad)
+            return key_fail(err, "transport",
+                            "a \"fermi_surface\" object of numbers and a \"limited_by\" name");
         t->fs_cells = (long long)cells;
         t->fs_open = (long long)open;
         for (int i = 0; i < 3; i++)
@@ -542,12 +584,14 @@ static int read_surface_check(const cJSON *x, res_surface *s)
     bs_err inner;
     bs_err_clear(&inner);
     char st[16] = "";
-    if (read_str(x, "status", st, sizeof st, &inner) || read_str(x, "reason", s->reason, sizeof s->reason, &inner))
+    if (read_str(x, "status", st, sizeof st, &inner) ||
+        read_str(x, "reason", s->reason, sizeof s->reason, &inner))
         return -1;
     for (int i = 0; i < 3; i++)
         if (!strcmp(st, SURF_STATUS[i])) s->status = (res_surface_status)i;
     const cJSON *sp = member(x, "surface_parities"), *pairs = member(x, "pairs");
-    int nt = cJSON_IsArray(sp) ? cJSON_GetArraySize(sp) : 0, np = cJSON_IsArray(pairs) ? cJSON_GetArraySize(pairs) : 0;
+    int nt = cJSON_IsArray(sp) ? cJSON_GetArraySize(sp) : 0,
+        np = cJSON_IsArray(pairs) ? cJSON_GetArraySize(pairs) : 0;
     if (nt > 4 || np > 6 || (sp && !cJSON_IsArray(sp)) || (pairs && !cJSON_IsArray(pairs))) return -1;
     s->ntrim = nt;
     for (int t = 0; t < nt; t++) {
@@ -556,7 +600,8 @@ static int read_surface_check(const cJSON *x, res_surface *s)
     }
     s->npair = np;
     for (int i = 0; i < np; i++) {
-        const cJSON *q = cJSON_GetArrayItem(pairs, i), *bt = member(q, "between"), *e = member(q, "expected_odd");
+        const cJSON *q = cJSON_GetArrayItem(pairs, i), *bt = member(q, "between"),
+                    *e = member(q, "expected_odd");
         res_surface_pair *p = &s->pair[i];
         if (!cJSON_IsArray(bt) || cJSON_GetArraySize(bt) != 2) return -1;
         for (int j = 0; j < 2; j++) {
@@ -578,24 +623,28 @@ static int read_surface_check(const cJSON *x, res_surface *s)
 static int r_surface(const cJSON *o, res_diag *r, bs_err *err)
 {
     const cJSON *x = member(o, "surface");
-    const char *expected = "{\"direction\", \"layers\", \"fermi_eV\", \"crossings\", \"between\", \"dirac_points_top\"}";
+    const char *expected =
+        "{\"direction\", \"layers\", \"fermi_eV\", \"crossings\", \"between\", \"dirac_points_top\"}";
     if (!x) return 0;
     res_surface *s = &r->surface;
-    const cJSON *dir = cJSON_IsObject(x) ? member(x, "direction") : NULL, *cr = cJSON_IsObject(x) ? member(x, "crossings") : NULL;
+    const cJSON *dir = cJSON_IsObject(x) ? member(x, "direction") : NULL,
+                *cr = cJSON_IsObject(x) ? member(x, "crossings") : NULL;
     const cJSON *bt = cJSON_IsObject(x) ? member(x, "between") : NULL;
     int nd = cJSON_IsArray(dir) ? cJSON_GetArraySize(dir) : -1;
     s->kdim = nd == 2 ? 1 : 2;
     bs_err inner;
     bs_err_clear(&inner);
-    if ((nd != 2 && nd != 3) || json_ints(dir, nd, s->miller) != 0 || !cJSON_IsObject(cr) || !cJSON_IsArray(bt) ||
-        cJSON_GetArraySize(bt) != 2 || json_vec(cJSON_GetArrayItem(bt, 0), s->kdim, s->ka) != 0 ||
-        json_vec(cJSON_GetArrayItem(bt, 1), s->kdim, s->kb) != 0 || read_int(x, "layers", &s->layers, &inner) ||
-        read_num(x, "fermi_eV", &s->fermi_ev, &inner) || read_int(cr, "top", &s->n_top, &inner) ||
-        read_int(cr, "bottom", &s->n_bottom, &inner) || read_int(cr, "other", &s->n_other, &inner) ||
-        read_int(x, "dirac_points_top", &s->ndirac_top, &inner))
+    if ((nd != 2 && nd != 3) || json_ints(dir, nd, s->miller) != 0 || !cJSON_IsObject(cr) ||
+        !cJSON_IsArray(bt) || cJSON_GetArraySize(bt) != 2 ||
+        json_vec(cJSON_GetArrayItem(bt, 0), s->kdim, s->ka) != 0 ||
+        json_vec(cJSON_GetArrayItem(bt, 1), s->kdim, s->kb) != 0 ||
+        read_int(x, "layers", &s->layers, &inner) || read_num(x, "fermi_eV", &s->fermi_ev, &inner) ||
+        read_int(cr, "top", &s->n_top, &inner) || read_int(cr, "bottom", &s->n_bottom, &inner) ||
+        read_int(cr, "other", &s->n_other, &inner) || read_int(x, "dirac_points_top", &s->ndirac_top, &inner))
         return key_fail(err, "surface", expected);
     if (read_surface_check(x, s) != 0)
-        return key_fail(err, "surface", "\"status\", \"reason\", \"surface_parities\" and \"pairs\" as written");
+        return key_fail(err, "surface",
+                        "\"status\", \"reason\", \"surface_parities\" and \"pairs\" as written");
     r->has_surface = 1;
     return 0;
 }
@@ -667,15 +716,21 @@ static int write_row(cJSON *o, const key_row *k, const res_diag *r, int with_flo
 {
     const char *base = (const char *)r + k->off;
     switch (k->kind) {
-    case KEY_STR: return cJSON_AddStringToObject(o, k->name, base) ? 0 : -1;
-    case KEY_STR_NONEMPTY: return !*base || cJSON_AddStringToObject(o, k->name, base) ? 0 : -1;
-    case KEY_INT: return cJSON_AddNumberToObject(o, k->name, *(const int *)base) ? 0 : -1;
+    case KEY_STR:
+        return cJSON_AddStringToObject(o, k->name, base) ? 0 : -1;
+    case KEY_STR_NONEMPTY:
+        return !*base || cJSON_AddStringToObject(o, k->name, base) ? 0 : -1;
+    case KEY_INT:
+        return cJSON_AddNumberToObject(o, k->name, *(const int *)base) ? 0 : -1;
     case KEY_INT_OPT:
         if (*(const int *)base == -1) return cJSON_AddNullToObject(o, k->name) ? 0 : -1;
         return cJSON_AddNumberToObject(o, k->name, *(const int *)base) ? 0 : -1;
-    case KEY_LLONG: return cJSON_AddNumberToObject(o, k->name, (double)*(const long long *)base) ? 0 : -1;
-    case KEY_NUM: return cJSON_AddNumberToObject(o, k->name, *(const double *)base) ? 0 : -1;
-    case KEY_BOOL: return cJSON_AddBoolToObject(o, k->name, *(const int *)base) ? 0 : -1;
+    case KEY_LLONG:
+        return cJSON_AddNumberToObject(o, k->name, (double)*(const long long *)base) ? 0 : -1;
+    case KEY_NUM:
+        return cJSON_AddNumberToObject(o, k->name, *(const double *)base) ? 0 : -1;
+    case KEY_BOOL:
+        return cJSON_AddBoolToObject(o, k->name, *(const int *)base) ? 0 : -1;
     case KEY_VEC3: {
         cJSON *v = cJSON_CreateDoubleArray((const double *)base, 3);
         return v && cJSON_AddItemToObject(o, k->name, v) ? 0 : (cJSON_Delete(v), -1);
@@ -684,9 +739,12 @@ static int write_row(cJSON *o, const key_row *k, const res_diag *r, int with_flo
         const char *name = res_class_name(*(const res_class *)base);
         return cJSON_AddStringToObject(o, k->name, name ? name : res_class_name(RES_UNDETERMINED)) ? 0 : -1;
     }
-    case KEY_STATUS: return cJSON_AddStringToObject(o, k->name, res_status_name(*(const res_status *)base)) ? 0 : -1;
-    case KEY_VERDICT: return cJSON_AddStringToObject(o, k->name, res_verdict_name(*(const res_verdict *)base)) ? 0 : -1;
-    case KEY_SPECIAL: return k->write(o, r, with_flows);
+    case KEY_STATUS:
+        return cJSON_AddStringToObject(o, k->name, res_status_name(*(const res_status *)base)) ? 0 : -1;
+    case KEY_VERDICT:
+        return cJSON_AddStringToObject(o, k->name, res_verdict_name(*(const res_verdict *)base)) ? 0 : -1;
+    case KEY_SPECIAL:
+        return k->write(o, r, with_flows);
     }
     return -1;
 }
@@ -715,8 +773,10 @@ static int read_row(const cJSON *o, const key_row *k, res_diag *r, bs_err *err)
     char *base = (char *)r + k->off;
     switch (k->kind) {
     case KEY_STR:
-    case KEY_STR_NONEMPTY: return read_str(o, k->name, base, k->size, err);
-    case KEY_INT: return read_int(o, k->name, (int *)base, err);
+    case KEY_STR_NONEMPTY:
+        return read_str(o, k->name, base, k->size, err);
+    case KEY_INT:
+        return read_int(o, k->name, (int *)base, err);
     case KEY_INT_OPT: {
         const cJSON *v = member(o, k->name);
         if (v && cJSON_IsNull(v)) {
@@ -731,8 +791,10 @@ static int read_row(const cJSON *o, const key_row *k, res_diag *r, bs_err *err)
         if (rc == 0 && member(o, k->name)) *(long long *)base = (long long)v;
         return rc;
     }
-    case KEY_NUM: return read_num(o, k->name, (double *)base, err);
-    case KEY_BOOL: return read_bool(o, k->name, (int *)base, err);
+    case KEY_NUM:
+        return read_num(o, k->name, (double *)base, err);
+    case KEY_BOOL:
+        return read_bool(o, k->name, (int *)base, err);
     case KEY_VEC3: {
         const cJSON *v = member(o, k->name);
         return v && json_vec(v, 3, (double *)base) != 0 ? key_fail(err, k->name, "a list of 3 numbers") : 0;
@@ -740,7 +802,8 @@ static int read_row(const cJSON *o, const key_row *k, res_diag *r, bs_err *err)
     case KEY_CLASS: {
         const cJSON *v = member(o, k->name);
         int c = v && cJSON_IsString(v) ? res_class_parse(v->valuestring) : -1;
-        if (v && c < 0) return key_fail(err, k->name, "a class name (\"trivial insulator\", ..., \"undetermined\")");
+        if (v && c < 0)
+            return key_fail(err, k->name, "a class name (\"trivial insulator\", ..., \"undetermined\")");
         if (v) *(res_class *)base = (res_class)c;
         return 0;
     }
@@ -756,11 +819,13 @@ static int read_row(const cJSON *o, const key_row *k, res_diag *r, bs_err *err)
         const cJSON *v = member(o, k->name);
         int vd = v && cJSON_IsString(v) ? res_verdict_parse(v->valuestring) : -2;
         if (v && vd < -1)
-            return key_fail(err, k->name, "one of \"exact\", \"approximate\", \"broken\", \"not applicable\"");
+            return key_fail(err, k->name,
+                            "one of \"exact\", \"approximate\", \"broken\", \"not applicable\"");
         if (v) *(res_verdict *)base = (res_verdict)vd;
         return 0;
     }
-    case KEY_SPECIAL: return k->read(o, r, err);
+    case KEY_SPECIAL:
+        return k->read(o, r, err);
     }
     return BS_EINVAL;
 }
@@ -770,12 +835,15 @@ int res_from_json(const cJSON *o, res_diag *r, bs_err *err)
     res_clear(r);
     if (!cJSON_IsObject(o)) return bs_fail(err, BS_EPARSE, "the diagnosis is not a JSON object");
     int rc = 0;
-    for (size_t i = 0; rc == 0 && i < sizeof KEYS / sizeof KEYS[0]; i++) rc = read_row(o, &KEYS[i], r, err);
+    for (size_t i = 0; rc == 0 && i < sizeof KEYS / sizeof KEYS[0]; i++)
+        rc = read_row(o, &KEYS[i], r, err);
     if (rc == 0 && r->has_transport) r->transport.dim = r->dim;
     /* A diagnosis written by hand may leave out the statuses: lists that are there were done. */
     if (rc == 0 && !member(o, "z2_status") && member(o, "z2")) r->z2_status = RES_DONE;
-    if (rc == 0 && !member(o, "chern_status") && (member(o, "chern") || member(o, "plane_chern"))) r->chern_status = RES_DONE;
-    if (rc == 0 && r->z2_status == RES_DONE && !member(o, "z2")) rc = key_fail(err, "z2", "a list when z2_status is \"done\"");
+    if (rc == 0 && !member(o, "chern_status") && (member(o, "chern") || member(o, "plane_chern")))
+        r->chern_status = RES_DONE;
+    if (rc == 0 && r->z2_status == RES_DONE && !member(o, "z2"))
+        rc = key_fail(err, "z2", "a list when z2_status is \"done\"");
     if (rc != 0) res_clear(r);
     return rc;
 }
@@ -793,14 +861,16 @@ int res_from_text(const char *text, size_t len, res_diag *r, bs_err *err)
     for (const char *p = end; p < text + len; p++)
         if (*p != ' ' && *p != '\t' && *p != '\n' && *p != '\r' && *p != '\0') {
             cJSON_Delete(o);
-            return bs_fail(err, BS_EPARSE, "unexpected bytes after the diagnosis JSON at byte %ld of %zu", (long)(p - text), len);
+            return bs_fail(err, BS_EPARSE, "unexpected bytes after the diagnosis JSON at byte %ld of %zu",
+                           (long)(p - text), len);
         }
     int rc = res_from_json(o, r, err);
     cJSON_Delete(o);
     return rc;
 }
 
-int res_for_each_column(const res_diag *r, int (*fn)(void *ctx, const char *column, const res_value *v), void *ctx)
+int res_for_each_column(const res_diag *r, int (*fn)(void *ctx, const char *column, const res_value *v),
+                        void *ctx)
 {
     for (size_t i = 0; i < sizeof KEYS / sizeof KEYS[0]; i++) {
         const key_row *k = &KEYS[i];
@@ -809,19 +879,39 @@ int res_for_each_column(const res_diag *r, int (*fn)(void *ctx, const char *colu
         res_value v = {RES_VALUE_INT, 0, 0, NULL};
         switch (k->kind) {
         case KEY_STR:
-        case KEY_STR_NONEMPTY: v.type = RES_VALUE_TEXT; v.text = base; break;
+        case KEY_STR_NONEMPTY:
+            v.type = RES_VALUE_TEXT;
+            v.text = base;
+            break;
         case KEY_INT:
-        case KEY_BOOL: v.i = *(const int *)base; break;
+        case KEY_BOOL:
+            v.i = *(const int *)base;
+            break;
         case KEY_INT_OPT:
             v.i = *(const int *)base;
             if (v.i == -1) v.type = RES_VALUE_TEXT, v.text = NULL; /* bound as NULL */
             break;
-        case KEY_LLONG: v.i = *(const long long *)base; break;
-        case KEY_NUM: v.type = RES_VALUE_REAL; v.x = *(const double *)base; break;
-        case KEY_CLASS: v.type = RES_VALUE_TEXT; v.text = res_class_name(*(const res_class *)base); break;
-        case KEY_STATUS: v.type = RES_VALUE_TEXT; v.text = res_status_name(*(const res_status *)base); break;
-        case KEY_VERDICT: v.type = RES_VALUE_TEXT; v.text = res_verdict_name(*(const res_verdict *)base); break;
-        default: continue; /* structured keys have no column of their own here */
+        case KEY_LLONG:
+            v.i = *(const long long *)base;
+            break;
+        case KEY_NUM:
+            v.type = RES_VALUE_REAL;
+            v.x = *(const double *)base;
+            break;
+        case KEY_CLASS:
+            v.type = RES_VALUE_TEXT;
+            v.text = res_class_name(*(const res_class *)base);
+            break;
+        case KEY_STATUS:
+            v.type = RES_VALUE_TEXT;
+            v.text = res_status_name(*(const res_status *)base);
+            break;
+        case KEY_VERDICT:
+            v.type = RES_VALUE_TEXT;
+            v.text = res_verdict_name(*(const res_verdict *)base);
+            break;
+        default:
+            continue; /* structured keys have no column of their own here */
         }
         if (k->kind == KEY_BOOL) v.i = v.i != 0;
         int rc = fn(ctx, k->column, &v);

@@ -32,7 +32,8 @@ int ar_write(const char *path, const char *source, const ar_array *arrays, int n
         hsize_t dims[2] = {(hsize_t)a->dims[0], (hsize_t)(a->rank == 2 ? a->dims[1] : 1)};
         hid_t space = H5Screate_simple(a->rank, dims, NULL);
         hid_t ds = space >= 0 ? H5Dcreate2(file, a->name, H5T_NATIVE_DOUBLE, space, H5P_DEFAULT, H5P_DEFAULT,
-                                           H5P_DEFAULT) : -1;
+                                           H5P_DEFAULT)
+                              : -1;
         if (ds < 0 || H5Dwrite(ds, H5T_NATIVE_DOUBLE, H5S_ALL, H5S_ALL, H5P_DEFAULT, a->data) < 0 ||
             (a->note && put_string_attr(ds, "description", a->note) != 0))
             rc = bs_fail(err, BS_EHDF5, "%s:/%s: cannot write the dataset", path, a->name);

@@ -11,22 +11,26 @@
 
 struct slab {
     int M[3][3];
-    int dim, ax, kdim;         /* bulk dimension, stacking axis, in-plane dimension */
+    int dim, ax, kdim; /* bulk dimension, stacking axis, in-plane dimension */
     int norb, nlayers, range;
-    tb_model *rebased;         /* bulk in the new lattice, orbitals in their home layers */
+    tb_model *rebased; /* bulk in the new lattice, orbitals in their home layers */
     /* Hoppings grouped by stacking distance r = -range..range: entries [first[r+range],
      * first[r+range+1]) of rpar (in-plane R') and hop (H/deg, norb x norb, row-major as in model.h). */
     int *first;
     int (*rpar)[2];
     double complex *hop;
-    double complex *blk;       /* (2 range + 1) couplings: slab_hk's workspace */
+    double complex *blk; /* (2 range + 1) couplings: slab_hk's workspace */
 };
 
 static int gcd_int(int a, int b)
 {
     a = abs(a);
     b = abs(b);
-    while (b) { int t = a % b; a = b; b = t; }
+    while (b) {
+        int t = a % b;
+        a = b;
+        b = t;
+    }
     return a;
 }
 
@@ -34,11 +38,15 @@ static double cart_len(const tb_model *m, const int n[3])
 {
     double v[3] = {0, 0, 0};
     for (int j = 0; j < 3; j++)
-        for (int c = 0; c < 3; c++) v[c] += n[j] * m->lattice[j][c];
+        for (int c = 0; c < 3; c++)
+            v[c] += n[j] * m->lattice[j][c];
     return sqrt(v[0] * v[0] + v[1] * v[1] + v[2] * v[2]);
 }
 
-typedef struct cand { int n[3]; double len; } cand;
+typedef struct cand {
+    int n[3];
+    double len;
+} cand;
 
 /* Shortest first; equal lengths (within 1e-9 Angstrom) in descending lexicographic order, so that
  * (1,0,0) precedes (0,1,0) precedes (-1,0,0): the basis is reproducible and right-handed where it can. */
@@ -81,7 +89,9 @@ static int candidates(const tb_model *m, const int G[3], int target, int bound, 
                 if (a == 0 && b == 0 && z == 0) continue;
                 if (G[0] * a + G[1] * b + G[2] * z != target) continue;
                 cand *p = &c[nc++];
-                p->n[0] = a; p->n[1] = b; p->n[2] = z;
+                p->n[0] = a;
+                p->n[1] = b;
+                p->n[2] = z;
                 p->len = cart_len(m, p->n);
             }
     qsort(c, (size_t)nc, sizeof *c, cand_cmp);
@@ -96,15 +106,18 @@ int slab_basis(const tb_model *bulk, const int miller[3], int M[3][3], bs_err *e
     if (G[0] == 0 && G[1] == 0 && G[2] == 0)
         return bs_fail(err, BS_EINVAL, "slab direction: Miller indices 0,0,0 name no plane");
     if (bulk->dim == 2 && G[2] != 0)
-        return bs_fail(err, BS_EINVAL, "slab direction: a 2D model takes an edge h,k (third index 0), found %d,%d,%d",
-                       G[0], G[1], G[2]);
+        return bs_fail(err, BS_EINVAL,
+                       "slab direction: a 2D model takes an edge h,k (third index 0), found %d,%d,%d", G[0],
+                       G[1], G[2]);
     if (gcd_int(gcd_int(G[0], G[1]), G[2]) != 1)
-        return bs_fail(err, BS_EINVAL, "slab direction: Miller indices %d,%d,%d must be coprime", G[0], G[1], G[2]);
+        return bs_fail(err, BS_EINVAL, "slab direction: Miller indices %d,%d,%d must be coprime", G[0], G[1],
+                       G[2]);
     int gmax = abs(G[0]) > abs(G[1]) ? abs(G[0]) : abs(G[1]);
     if (abs(G[2]) > gmax) gmax = abs(G[2]);
     if (gmax > 12)
-        return bs_fail(err, BS_EINVAL, "slab direction: Miller indices up to 12 are supported, found %d,%d,%d",
-                       G[0], G[1], G[2]);
+        return bs_fail(err, BS_EINVAL,
+                       "slab direction: Miller indices up to 12 are supported, found %d,%d,%d", G[0], G[1],
+                       G[2]);
     /* A primitive in-plane basis exists within |n| <= max|G| (the vectors (G_j, -G_i, 0) style
      * combinations span it), and a step vector with G.n = 1 within the same bound (Bezout). */
     int bound = gmax + 1;
@@ -131,17 +144,23 @@ int slab_basis(const tb_model *bulk, const int miller[3], int M[3][3], bs_err *e
         if (found && nstep > 0) memcpy(M[2], step[0].n, sizeof M[2]);
     } else {
         /* The edge line's primitive vector is (-k, h) up to sign since gcd(h, k) = 1. */
-        M[0][0] = -G[1]; M[0][1] = G[0];
+        M[0][0] = -G[1];
+        M[0][1] = G[0];
         M[2][2] = 1;
-        if (nstep > 0) { memcpy(M[1], step[0].n, sizeof M[1]); found = 1; }
+        if (nstep > 0) {
+            memcpy(M[1], step[0].n, sizeof M[1]);
+            found = 1;
+        }
     }
     if (!found || nstep == 0) {
         rc = bs_fail(err, BS_EINVAL, "slab direction %d,%d,%d: no lattice basis found", G[0], G[1], G[2]);
         goto done;
     }
     if (det3(M) < 0)
-        for (int c = 0; c < 3; c++) M[0][c] = -M[0][c];
-    if (det3(M) != 1) rc = bs_fail(err, BS_EINVAL, "slab basis for %d,%d,%d is not unimodular", G[0], G[1], G[2]);
+        for (int c = 0; c < 3; c++)
+            M[0][c] = -M[0][c];
+    if (det3(M) != 1)
+        rc = bs_fail(err, BS_EINVAL, "slab basis for %d,%d,%d is not unimodular", G[0], G[1], G[2]);
 done:
     free(in);
     free(step);
@@ -174,7 +193,8 @@ static int rebase(const tb_model *bulk, const int M[3][3], int ax, double cut, t
     for (int i = 0; i < 3; i++)
         for (int c = 0; c < 3; c++) {
             double v = 0;
-            for (int j = 0; j < 3; j++) v += M[i][j] * bulk->lattice[j][c];
+            for (int j = 0; j < 3; j++)
+                v += M[i][j] * bulk->lattice[j][c];
             m->lattice[i][c] = v;
         }
     int *shift = malloc((size_t)m->nspatial * sizeof *shift);
@@ -183,7 +203,8 @@ static int rebase(const tb_model *bulk, const int M[3][3], int ax, double cut, t
         double p[3];
         for (int i = 0; i < 3; i++) {
             p[i] = 0;
-            for (int j = 0; j < 3; j++) p[i] += T[i][j] * bulk->orb_pos[o][j];
+            for (int j = 0; j < 3; j++)
+                p[i] += T[i][j] * bulk->orb_pos[o][j];
         }
         /* 1e-9 so that an orbital exactly on the cut plane stays in the layer above it. */
         shift[o] = (int)floor(p[ax] - cut + 1e-9);
@@ -194,7 +215,8 @@ static int rebase(const tb_model *bulk, const int M[3][3], int ax, double cut, t
     size_t nn = (size_t)n * n;
     /* Each (R, m, n) moves to R~ = R' + (d_m - d_n) e_ax: rebuild the table over the new set. */
     int dmax = 0;
-    for (int o = 0; o < m->nspatial; o++) dmax = abs(shift[o]) > dmax ? abs(shift[o]) : dmax;
+    for (int o = 0; o < m->nspatial; o++)
+        dmax = abs(shift[o]) > dmax ? abs(shift[o]) : dmax;
     tb_model *t = NULL;
     /* Upper bound on distinct R~: every R' with each of the 4 dmax + 1 offsets. */
     long cap = (long)bulk->nR * (4 * dmax + 1);
@@ -203,14 +225,19 @@ static int rebase(const tb_model *bulk, const int M[3][3], int ax, double cut, t
     if (rc != 0) goto done;
     int nR = 0, noff = 4 * dmax + 1;
     int *slot = malloc((size_t)noff * sizeof *slot);
-    if (!slot) { rc = bs_fail(err, BS_ENOMEM, "out of memory rebasing the slab"); goto done; }
+    if (!slot) {
+        rc = bs_fail(err, BS_ENOMEM, "out of memory rebasing the slab");
+        goto done;
+    }
     for (int r = 0; r < bulk->nR && rc == 0; r++) {
         int Rp[3];
         for (int i = 0; i < 3; i++) {
             Rp[i] = 0;
-            for (int j = 0; j < 3; j++) Rp[i] += T[i][j] * bulk->R[r][j];
+            for (int j = 0; j < 3; j++)
+                Rp[i] += T[i][j] * bulk->R[r][j];
         }
-        for (int o = 0; o < noff; o++) slot[o] = -1;   /* index of R' + (o - 2 dmax) e_ax, found lazily */
+        for (int o = 0; o < noff; o++)
+            slot[o] = -1; /* index of R' + (o - 2 dmax) e_ax, found lazily */
         for (int a = 0; a < n && rc == 0; a++)
             for (int b = 0; b < n; b++) {
                 double complex h = bulk->H[(size_t)r * nn + (size_t)a * n + b] / bulk->deg[r];
@@ -223,7 +250,10 @@ static int rebase(const tb_model *bulk, const int M[3][3], int ax, double cut, t
                     t->nR = nR;
                     *idx = tb_model_find_R(t, Rt);
                     if (*idx < 0) {
-                        if (nR == cap) { rc = bs_fail(err, BS_EINVAL, "slab: too many lattice vectors after rebasing"); break; }
+                        if (nR == cap) {
+                            rc = bs_fail(err, BS_EINVAL, "slab: too many lattice vectors after rebasing");
+                            break;
+                        }
                         *idx = nR++;
                         memcpy(t->R[*idx], Rt, sizeof Rt);
                         t->deg[*idx] = 1;
@@ -234,16 +264,25 @@ static int rebase(const tb_model *bulk, const int M[3][3], int ax, double cut, t
     }
     free(slot);
     if (rc != 0) goto done;
-    free(m->R); free(m->deg); free(m->H);
-    m->R = t->R; m->deg = t->deg; m->H = t->H;
-    t->R = NULL; t->deg = NULL; t->H = NULL;
+    free(m->R);
+    free(m->deg);
+    free(m->H);
+    m->R = t->R;
+    m->deg = t->deg;
+    m->H = t->H;
+    t->R = NULL;
+    t->deg = NULL;
+    t->H = NULL;
     m->nR = nR;
-    m->has_inversion_op = 0;    /* the explicit operator's shifts refer to the old cell */
+    m->has_inversion_op = 0; /* the explicit operator's shifts refer to the old cell */
 done:
     if (t) t->nR = 0;
     tb_model_free(t);
     free(shift);
-    if (rc != 0) { tb_model_free(*out); *out = NULL; }
+    if (rc != 0) {
+        tb_model_free(*out);
+        *out = NULL;
+    }
     return rc;
 }
 
@@ -252,7 +291,8 @@ static int group(slab *s, bs_err *err)
 {
     const tb_model *m = s->rebased;
     int ax = s->ax, range = 0;
-    for (int r = 0; r < m->nR; r++) range = abs(m->R[r][ax]) > range ? abs(m->R[r][ax]) : range;
+    for (int r = 0; r < m->nR; r++)
+        range = abs(m->R[r][ax]) > range ? abs(m->R[r][ax]) : range;
     s->range = range;
     int nbin = 2 * range + 1;
     size_t nn = (size_t)s->norb * s->norb;
@@ -294,8 +334,10 @@ int slab_create(const tb_model *bulk, const int miller[3], int nlayers, double c
     int rc = slab_basis(bulk, miller, s->M, err);
     if (rc == 0) rc = rebase(bulk, s->M, s->ax, cut, &s->rebased, err);
     if (rc == 0) rc = group(s, err);
-    if (rc != 0) slab_free(s);
-    else *out = s;
+    if (rc != 0)
+        slab_free(s);
+    else
+        *out = s;
     return rc;
 }
 
@@ -310,13 +352,34 @@ void slab_free(slab *s)
     free(s);
 }
 
-int slab_nstates(const slab *s) { return s->norb * s->nlayers; }
-int slab_nlayers(const slab *s) { return s->nlayers; }
-int slab_norb(const slab *s) { return s->norb; }
-int slab_kdim(const slab *s) { return s->kdim; }
-int slab_range(const slab *s) { return s->range; }
-const tb_model *slab_rebased(const slab *s) { return s->rebased; }
-void slab_matrix(const slab *s, int M[3][3]) { memcpy(M, s->M, sizeof s->M); }
+int slab_nstates(const slab *s)
+{
+    return s->norb * s->nlayers;
+}
+int slab_nlayers(const slab *s)
+{
+    return s->nlayers;
+}
+int slab_norb(const slab *s)
+{
+    return s->norb;
+}
+int slab_kdim(const slab *s)
+{
+    return s->kdim;
+}
+int slab_range(const slab *s)
+{
+    return s->range;
+}
+const tb_model *slab_rebased(const slab *s)
+{
+    return s->rebased;
+}
+void slab_matrix(const slab *s, int M[3][3])
+{
+    memcpy(M, s->M, sizeof s->M);
+}
 
 void slab_coupling(const slab *s, const double kpar[2], int r, double complex *out)
 {
@@ -332,7 +395,8 @@ void slab_coupling(const slab *s, const double kpar[2], int r, double complex *o
         const double complex *h = s->hop + (size_t)e * nn;
         /* model.h stores row-major (m*norb + n); out is column-major. */
         for (int a = 0; a < n; a++)
-            for (int b = 0; b < n; b++) out[a + (size_t)b * n] += f * h[(size_t)a * n + b];
+            for (int b = 0; b < n; b++)
+                out[a + (size_t)b * n] += f * h[(size_t)a * n + b];
     }
 }
 
@@ -341,7 +405,8 @@ void slab_hk(const slab *s, const double kpar[2], double complex *H)
     int n = s->norb, N = s->nlayers, ns = n * N, L = s->range;
     size_t nn = (size_t)n * n;
     memset(H, 0, (size_t)ns * ns * sizeof *H);
-    for (int r = -L; r <= L; r++) slab_coupling(s, kpar, r, s->blk + (size_t)(r + L) * nn);
+    for (int r = -L; r <= L; r++)
+        slab_coupling(s, kpar, r, s->blk + (size_t)(r + L) * nn);
     for (int j = 0; j < N; j++)
         for (int jp = j - L; jp <= j + L; jp++) {
             if (jp < 0 || jp >= N) continue;
@@ -382,28 +447,38 @@ int slab_film_model(const slab *s, const tb_model *bulk, tb_model **out, bs_err 
     const tb_model *m = s->rebased;
     int n = s->norb, N = s->nlayers, nf = n * N, L = s->range;
     /* distinct in-plane R' */
-    int (*Rp)[2] = malloc((size_t)m->nR * sizeof *Rp), nRp = 0;
+    int(*Rp)[2] = malloc((size_t)m->nR * sizeof *Rp), nRp = 0;
     if (!Rp) return bs_fail(err, BS_ENOMEM, "out of memory for a film");
     for (int r = 0; r < m->nR; r++) {
         int seen = 0;
-        for (int q = 0; q < nRp && !seen; q++) seen = Rp[q][0] == m->R[r][0] && Rp[q][1] == m->R[r][1];
-        if (!seen) { Rp[nRp][0] = m->R[r][0]; Rp[nRp][1] = m->R[r][1]; nRp++; }
+        for (int q = 0; q < nRp && !seen; q++)
+            seen = Rp[q][0] == m->R[r][0] && Rp[q][1] == m->R[r][1];
+        if (!seen) {
+            Rp[nRp][0] = m->R[r][0];
+            Rp[nRp][1] = m->R[r][1];
+            nRp++;
+        }
     }
     tb_model *f = NULL;
     int rc = tb_model_create(nf, nRp, bulk->spinful, &f, err);
-    if (rc != 0) { free(Rp); return rc; }
-    snprintf(f->id, sizeof f->id, "%.80s film (%d,%d,%d)x%d", bulk->id, s->M[2][0], s->M[2][1], s->M[2][2], N);
+    if (rc != 0) {
+        free(Rp);
+        return rc;
+    }
+    snprintf(f->id, sizeof f->id, "%.80s film (%d,%d,%d)x%d", bulk->id, s->M[2][0], s->M[2][1], s->M[2][2],
+             N);
     snprintf(f->formula, sizeof f->formula, "%s", bulk->formula);
     snprintf(f->source, sizeof f->source, "film of %d layers cut from %.200s", N, bulk->id);
     f->dim = 2;
     f->nocc = N * bulk->nocc;
     f->spin_layout = bulk->spinful ? TB_SPIN_BLOCKS : TB_SPIN_NONE;
     /* lattice: the two in-plane rows, and the unit normal times the film thickness plus vacuum */
-    const double (*a)[3] = (const double (*)[3])m->lattice;
+    const double(*a)[3] = (const double(*)[3])m->lattice;
     double nrm[3] = {a[0][1] * a[1][2] - a[0][2] * a[1][1], a[0][2] * a[1][0] - a[0][0] * a[1][2],
                      a[0][0] * a[1][1] - a[0][1] * a[1][0]};
     double ln = sqrt(nrm[0] * nrm[0] + nrm[1] * nrm[1] + nrm[2] * nrm[2]);
-    for (int c = 0; c < 3; c++) nrm[c] /= ln;
+    for (int c = 0; c < 3; c++)
+        nrm[c] /= ln;
     double spacing = fabs(a[2][0] * nrm[0] + a[2][1] * nrm[1] + a[2][2] * nrm[2]);
     double height = N * spacing + 20.0;
     for (int c = 0; c < 3; c++) {
@@ -426,11 +501,13 @@ int slab_film_model(const slab *s, const tb_model *bulk, tb_model **out, bs_err 
         for (int o = 0; o < m->nspatial; o++) {
             double red[3] = {m->orb_pos[o][0], m->orb_pos[o][1], m->orb_pos[o][2] + j}, r[3] = {0, 0, 0};
             for (int c = 0; c < 3; c++)
-                for (int q = 0; q < 3; q++) r[c] += red[q] * a[q][c];
+                for (int q = 0; q < 3; q++)
+                    r[c] += red[q] * a[q][c];
             int fo = j * m->nspatial + o;
             for (int q = 0; q < 3; q++) {
                 double x = 0;
-                for (int c = 0; c < 3; c++) x += r[c] * inv[q][c];
+                for (int c = 0; c < 3; c++)
+                    x += r[c] * inv[q][c];
                 f->orb_pos[fo][q] = x;
             }
             f->orb_l[fo] = m->orb_l[o];
@@ -444,7 +521,8 @@ int slab_film_model(const slab *s, const tb_model *bulk, tb_model **out, bs_err 
     }
     for (int r = 0; r < m->nR; r++) {
         int q = 0;
-        while (Rp[q][0] != m->R[r][0] || Rp[q][1] != m->R[r][1]) q++;
+        while (Rp[q][0] != m->R[r][0] || Rp[q][1] != m->R[r][1])
+            q++;
         int dz = m->R[r][2];
         if (dz < -L || dz > L) continue;
         const double complex *h = m->H + (size_t)r * nn;

@@ -10,12 +10,12 @@
 #include <stdlib.h>
 #include <string.h>
 
-#define SG_MAX_ITER 200
-#define SG_COUPLING_TOL 1e-12   /* eV; well below any eta used for plots (common practice) */
+#define SG_MAX_ITER     200
+#define SG_COUPLING_TOL 1e-12 /* eV; well below any eta used for plots (common practice) */
 
 struct sg_ws {
     const slab *s;
-    int p;                      /* principal-layer states: range * norb */
+    int p; /* principal-layer states: range * norb */
     double complex *h00, *h01, *blk;
     double complex *eps_s, *eps, *alpha, *beta, *g, *ga, *gb, *t1;
     lapack_int *ipiv;
@@ -25,15 +25,19 @@ int sg_create(const slab *s, sg_ws **out, bs_err *err)
 {
     *out = NULL;
     int L = slab_range(s), n = slab_norb(s);
-    if (L < 1) return bs_fail(err, BS_EINVAL, "surface Green's function: the cells do not couple along the stacking axis");
+    if (L < 1)
+        return bs_fail(err, BS_EINVAL,
+                       "surface Green's function: the cells do not couple along the stacking axis");
     sg_ws *w = calloc(1, sizeof *w);
     if (!w) return bs_fail(err, BS_ENOMEM, "out of memory for the surface Green's function");
     w->s = s;
     w->p = L * n;
     size_t pp = (size_t)w->p * w->p;
-    double complex **bufs[] = {&w->h00, &w->h01, &w->eps_s, &w->eps, &w->alpha, &w->beta, &w->g, &w->ga, &w->gb, &w->t1};
+    double complex **bufs[] = {&w->h00,  &w->h01, &w->eps_s, &w->eps, &w->alpha,
+                               &w->beta, &w->g,   &w->ga,    &w->gb,  &w->t1};
     int ok = 1;
-    for (size_t i = 0; i < sizeof bufs / sizeof bufs[0]; i++) ok = ok && (*bufs[i] = malloc(pp * sizeof(double complex)));
+    for (size_t i = 0; i < sizeof bufs / sizeof bufs[0]; i++)
+        ok = ok && (*bufs[i] = malloc(pp * sizeof(double complex)));
     w->blk = malloc((size_t)n * n * sizeof *w->blk);
     w->ipiv = malloc((size_t)w->p * sizeof *w->ipiv);
     if (!ok || !w->blk || !w->ipiv) {
@@ -47,8 +51,10 @@ int sg_create(const slab *s, sg_ws **out, bs_err *err)
 void sg_free(sg_ws *w)
 {
     if (!w) return;
-    double complex *bufs[] = {w->h00, w->h01, w->eps_s, w->eps, w->alpha, w->beta, w->g, w->ga, w->gb, w->t1, w->blk};
-    for (size_t i = 0; i < sizeof bufs / sizeof bufs[0]; i++) free(bufs[i]);
+    double complex *bufs[] = {w->h00, w->h01, w->eps_s, w->eps, w->alpha, w->beta,
+                              w->g,   w->ga,  w->gb,    w->t1,  w->blk};
+    for (size_t i = 0; i < sizeof bufs / sizeof bufs[0]; i++)
+        free(bufs[i]);
     free(w->ipiv);
     free(w);
 }
@@ -68,26 +74,32 @@ static void principal_blocks(sg_ws *w, const double kpar[2])
                 slab_coupling(w->s, kpar, r, w->blk);
                 double complex *dst = which ? w->h01 : w->h00;
                 for (int j = 0; j < n; j++)
-                    for (int i = 0; i < n; i++) dst[(size_t)(a * n + i) + (size_t)(b * n + j) * p] = w->blk[i + (size_t)j * n];
+                    for (int i = 0; i < n; i++)
+                        dst[(size_t)(a * n + i) + (size_t)(b * n + j) * p] = w->blk[i + (size_t)j * n];
             }
 }
 
 /* out = z - A (p x p, column-major), in place into out. */
 static void shift_from(int p, double complex z, const double complex *A, double complex *out)
 {
-    for (size_t i = 0; i < (size_t)p * p; i++) out[i] = -A[i];
-    for (int i = 0; i < p; i++) out[i + (size_t)i * p] += z;
+    for (size_t i = 0; i < (size_t)p * p; i++)
+        out[i] = -A[i];
+    for (int i = 0; i < p; i++)
+        out[i + (size_t)i * p] += z;
 }
 
 static int invert(sg_ws *w, double complex *A, bs_err *err)
 {
     lapack_int info = LAPACKE_zgetrf(LAPACK_COL_MAJOR, w->p, w->p, A, w->p, w->ipiv);
     if (info == 0) info = LAPACKE_zgetri(LAPACK_COL_MAJOR, w->p, A, w->p, w->ipiv);
-    if (info != 0) return bs_fail(err, BS_ENUMERIC, "surface Green's function: singular matrix (zgetrf/zgetri info %d)", (int)info);
+    if (info != 0)
+        return bs_fail(err, BS_ENUMERIC, "surface Green's function: singular matrix (zgetrf/zgetri info %d)",
+                       (int)info);
     return 0;
 }
 
-static void gemm(int p, const double complex *A, const double complex *B, double complex beta, double complex *C)
+static void gemm(int p, const double complex *A, const double complex *B, double complex beta,
+                 double complex *C)
 {
     const double complex one = 1.0;
     cblas_zgemm(CblasColMajor, CblasNoTrans, CblasNoTrans, p, p, p, &one, A, p, B, p, &beta, C, p);
@@ -96,7 +108,8 @@ static void gemm(int p, const double complex *A, const double complex *B, double
 static double max_abs(int p, const double complex *A)
 {
     double m = 0;
-    for (size_t i = 0; i < (size_t)p * p; i++) m = fmax(m, cabs(A[i]));
+    for (size_t i = 0; i < (size_t)p * p; i++)
+        m = fmax(m, cabs(A[i]));
     return m;
 }
 
@@ -114,15 +127,19 @@ static int decimate(sg_ws *w, double complex z, bs_err *err)
         if (rc != 0) return rc;
         gemm(p, w->g, w->alpha, 0.0, w->ga);
         gemm(p, w->g, w->beta, 0.0, w->gb);
-        gemm(p, w->alpha, w->gb, 0.0, w->t1);          /* alpha g beta */
-        for (size_t i = 0; i < (size_t)p * p; i++) { w->eps_s[i] += w->t1[i]; w->eps[i] += w->t1[i]; }
-        gemm(p, w->beta, w->ga, 1.0, w->eps);          /* + beta g alpha */
+        gemm(p, w->alpha, w->gb, 0.0, w->t1); /* alpha g beta */
+        for (size_t i = 0; i < (size_t)p * p; i++) {
+            w->eps_s[i] += w->t1[i];
+            w->eps[i] += w->t1[i];
+        }
+        gemm(p, w->beta, w->ga, 1.0, w->eps); /* + beta g alpha */
         gemm(p, w->alpha, w->ga, 0.0, w->t1);
         memcpy(w->alpha, w->t1, (size_t)p * p * sizeof *w->t1);
         gemm(p, w->beta, w->gb, 0.0, w->t1);
         memcpy(w->beta, w->t1, (size_t)p * p * sizeof *w->t1);
     }
-    return bs_fail(err, BS_ENUMERIC, "surface Green's function: decimation did not converge in %d steps at E = %g%+gi eV",
+    return bs_fail(err, BS_ENUMERIC,
+                   "surface Green's function: decimation did not converge in %d steps at E = %g%+gi eV",
                    SG_MAX_ITER, creal(z), cimag(z));
 }
 
@@ -152,19 +169,23 @@ static int spectral_at(sg_ws *w, double energy_ev, double eta_ev, int side, doub
     rc = invert(w, w->g, err);
     if (rc != 0) return rc;
     double tr = 0;
-    for (int i = 0; i < w->p; i++) tr += cimag(w->g[i + (size_t)i * w->p]);
+    for (int i = 0; i < w->p; i++)
+        tr += cimag(w->g[i + (size_t)i * w->p]);
     *a_out = -tr / M_PI;
     return 0;
 }
 
 static int check_args(double eta_ev, int side, bs_err *err)
 {
-    if (!(eta_ev > 0) || !isfinite(eta_ev)) return bs_fail(err, BS_EINVAL, "surface Green's function: broadening %g eV must be positive", eta_ev);
-    if (side != SG_TOP && side != SG_BOTTOM) return bs_fail(err, BS_EINVAL, "surface Green's function: side %d is neither top nor bottom", side);
+    if (!(eta_ev > 0) || !isfinite(eta_ev))
+        return bs_fail(err, BS_EINVAL, "surface Green's function: broadening %g eV must be positive", eta_ev);
+    if (side != SG_TOP && side != SG_BOTTOM)
+        return bs_fail(err, BS_EINVAL, "surface Green's function: side %d is neither top nor bottom", side);
     return 0;
 }
 
-int sg_spectral(sg_ws *w, const double kpar[2], double energy_ev, double eta_ev, int side, double *a_out, bs_err *err)
+int sg_spectral(sg_ws *w, const double kpar[2], double energy_ev, double eta_ev, int side, double *a_out,
+                bs_err *err)
 {
     int rc = check_args(eta_ev, side, err);
     if (rc != 0) return rc;
@@ -177,7 +198,8 @@ int sg_map(sg_ws *w, double energy_ev, double eta_ev, int side, int n1, int n2, 
     int rc = check_args(eta_ev, side, err);
     if (rc != 0) return rc;
     if (slab_kdim(w->s) == 1) n2 = 1;
-    if (n1 < 1 || n2 < 1) return bs_fail(err, BS_EINVAL, "surface map: mesh %d x %d must be positive", n1, n2);
+    if (n1 < 1 || n2 < 1)
+        return bs_fail(err, BS_EINVAL, "surface map: mesh %d x %d must be positive", n1, n2);
     for (int i1 = 0; i1 < n1; i1++)
         for (int i2 = 0; i2 < n2; i2++) {
             double k[2] = {(double)i1 / n1 - 0.5, slab_kdim(w->s) == 2 ? (double)i2 / n2 - 0.5 : 0.0};
@@ -193,7 +215,9 @@ int sg_path(sg_ws *w, int nk, const double *kpar, int ne, double e_lo, double e_
     int rc = check_args(eta_ev, side, err);
     if (rc != 0) return rc;
     if (nk < 1 || ne < 2 || !(e_hi > e_lo))
-        return bs_fail(err, BS_EINVAL, "surface path: need nk >= 1, ne >= 2 and e_hi > e_lo (got %d, %d, %g..%g)", nk, ne, e_lo, e_hi);
+        return bs_fail(err, BS_EINVAL,
+                       "surface path: need nk >= 1, ne >= 2 and e_hi > e_lo (got %d, %d, %g..%g)", nk, ne,
+                       e_lo, e_hi);
     for (int j = 0; j < nk; j++) {
         principal_blocks(w, kpar + 2 * j);
         for (int ie = 0; ie < ne; ie++) {

@@ -16,20 +16,20 @@ struct ss_ctx {
     ss_opts o;
     int ns;
     eig_ws *eig;
-    double complex *H;          /* ns x ns: slab H, then its eigenvectors */
-    double complex *D;          /* ns x ns: P_top - P_bottom within a degenerate level */
-    double *Dw;                 /* ns */
-    double complex *V;          /* ns x ns: rotated copy of a level */
-    hk_engine *bulk;            /* rebased bulk, batches of nperp */
+    double complex *H; /* ns x ns: slab H, then its eigenvectors */
+    double complex *D; /* ns x ns: P_top - P_bottom within a degenerate level */
+    double *Dw;        /* ns */
+    double complex *V; /* ns x ns: rotated copy of a level */
+    hk_engine *bulk;   /* rebased bulk, batches of nperp */
     eig_ws *bulk_eig;
-    double complex *Hb;         /* nperp bulk matrices */
-    double *Eb;                 /* bulk energies, norb */
-    double *kb;                 /* 3 nperp */
+    double complex *Hb; /* nperp bulk matrices */
+    double *Eb;         /* bulk energies, norb */
+    double *kb;         /* 3 nperp */
     /* Crossing workspace: energies and weight differences at the previous and current samples. */
     double *E0, *E1, *L0, *L1, *wt, *wb;
-    double complex *V0;         /* ns x ns eigenvectors at the previous sample */
-    int *match;                 /* 2 SS_MATCH_MARGIN + ns */
-    double *O;                  /* ns x ns overlaps */
+    double complex *V0; /* ns x ns eigenvectors at the previous sample */
+    int *match;         /* 2 SS_MATCH_MARGIN + ns */
+    double *O;          /* ns x ns overlaps */
 };
 
 /* States matched beyond those whose side of E_F changed: bands that cross E_F in opposite
@@ -40,9 +40,15 @@ struct ss_ctx {
  * or the partner lies outside the window (common practice for band tracking). */
 #define SS_MATCH_MIN 0.5
 
-static int ns_match(int ns) { return ns + 2 * SS_MATCH_MARGIN; }
+static int ns_match(int ns)
+{
+    return ns + 2 * SS_MATCH_MARGIN;
+}
 
-void ss_opts_default(ss_opts *o) { memset(o, 0, sizeof *o); }
+void ss_opts_default(ss_opts *o)
+{
+    memset(o, 0, sizeof *o);
+}
 
 static void fill_defaults(ss_opts *o, int nlayers)
 {
@@ -81,12 +87,16 @@ int ss_create(const slab *s, const ss_opts *opts, ss_ctx **out, bs_err *err)
         c->kb = malloc(3 * (size_t)np * sizeof *c->kb);
         double **arr[] = {&c->E0, &c->E1, &c->L0, &c->L1, &c->wt, &c->wb};
         int ok = 1;
-        for (size_t i = 0; i < sizeof arr / sizeof arr[0]; i++) ok = ok && (*arr[i] = malloc((size_t)c->ns * sizeof(double)));
-        if (!ok || !c->H || !c->V0 || !c->O || !c->match || !c->D || !c->V || !c->Dw || !c->Hb || !c->Eb || !c->kb)
+        for (size_t i = 0; i < sizeof arr / sizeof arr[0]; i++)
+            ok = ok && (*arr[i] = malloc((size_t)c->ns * sizeof(double)));
+        if (!ok || !c->H || !c->V0 || !c->O || !c->match || !c->D || !c->V || !c->Dw || !c->Hb || !c->Eb ||
+            !c->kb)
             rc = bs_fail(err, BS_ENOMEM, "out of memory for surface states (%d slab states)", c->ns);
     }
-    if (rc != 0) ss_free(c);
-    else *out = c;
+    if (rc != 0)
+        ss_free(c);
+    else
+        *out = c;
     return rc;
 }
 
@@ -96,8 +106,10 @@ void ss_free(ss_ctx *c)
     eig_free(c->eig);
     eig_free(c->bulk_eig);
     hk_free(c->bulk);
-    void *p[] = {c->V0, c->O, c->match, c->H, c->D, c->V, c->Dw, c->Hb, c->Eb, c->kb, c->E0, c->E1, c->L0, c->L1, c->wt, c->wb};
-    for (size_t i = 0; i < sizeof p / sizeof p[0]; i++) free(p[i]);
+    void *p[] = {c->V0, c->O,  c->match, c->H,  c->D,  c->V,  c->Dw, c->Hb,
+                 c->Eb, c->kb, c->E0,    c->E1, c->L0, c->L1, c->wt, c->wb};
+    for (size_t i = 0; i < sizeof p / sizeof p[0]; i++)
+        free(p[i]);
     free(c);
 }
 
@@ -118,15 +130,19 @@ static int rotate_level(ss_ctx *c, int i0, int d, bs_err *err)
     for (int a = 0; a < d; a++)
         for (int b = 0; b < d; b++) {
             double complex sum = 0;
-            for (int x = 0; x < ns; x++) sum += conj(Vc[x + (size_t)a * ns]) * side_sign(c, x) * Vc[x + (size_t)b * ns];
+            for (int x = 0; x < ns; x++)
+                sum += conj(Vc[x + (size_t)a * ns]) * side_sign(c, x) * Vc[x + (size_t)b * ns];
             c->D[a + (size_t)b * d] = sum;
         }
     lapack_int info = LAPACKE_zheevd(LAPACK_COL_MAJOR, 'V', 'U', d, c->D, d, c->Dw);
-    if (info != 0) return bs_fail(err, BS_ENUMERIC, "surface weights: zheev failed on a %d-fold level (info %d)", d, (int)info);
+    if (info != 0)
+        return bs_fail(err, BS_ENUMERIC, "surface weights: zheev failed on a %d-fold level (info %d)", d,
+                       (int)info);
     for (int b = 0; b < d; b++)
         for (int x = 0; x < ns; x++) {
             double complex sum = 0;
-            for (int a = 0; a < d; a++) sum += Vc[x + (size_t)a * ns] * c->D[a + (size_t)b * d];
+            for (int a = 0; a < d; a++)
+                sum += Vc[x + (size_t)a * ns] * c->D[a + (size_t)b * d];
             c->V[x + (size_t)b * ns] = sum;
         }
     memcpy(Vc, c->V, (size_t)d * ns * sizeof *Vc);
@@ -140,7 +156,8 @@ int ss_bands(ss_ctx *c, const double kpar[2], double *E, double *w_top, double *
     int rc = eig_vectors(c->eig, c->H, E, err);
     for (int i0 = 0; rc == 0 && i0 < ns;) {
         int d = 1;
-        while (i0 + d < ns && E[i0 + d] - E[i0 + d - 1] < c->o.deg_tol_ev) d++;
+        while (i0 + d < ns && E[i0 + d] - E[i0 + d - 1] < c->o.deg_tol_ev)
+            d++;
         if (d > 1) rc = rotate_level(c, i0, d, err);
         i0 += d;
     }
@@ -168,7 +185,10 @@ int ss_projected_edges(ss_ctx *c, const double kpar[2], double *vmax, double *cm
     double v = -INFINITY, cc = INFINITY;
     for (int j = 0; rc == 0 && j < np; j++) {
         rc = eig_values(c->bulk_eig, c->Hb + (size_t)j * norb * norb, c->Eb, err);
-        if (rc == 0) { v = fmax(v, c->Eb[m->nocc - 1]); cc = fmin(cc, c->Eb[m->nocc]); }
+        if (rc == 0) {
+            v = fmax(v, c->Eb[m->nocc - 1]);
+            cc = fmin(cc, c->Eb[m->nocc]);
+        }
     }
     *vmax = v;
     *cmin = cc;
@@ -197,7 +217,10 @@ int ss_bulk_edges(const tb_model *m, int mesh, double *vbm, double *cbm, bs_err 
             rc = hk_build(hk, mesh, k, H, err);
             for (int i1 = 0; rc == 0 && i1 < mesh; i1++) {
                 rc = eig_values(ws, H + (size_t)i1 * norb * norb, E, err);
-                if (rc == 0) { v = fmax(v, E[m->nocc - 1]); cc = fmin(cc, E[m->nocc]); }
+                if (rc == 0) {
+                    v = fmax(v, E[m->nocc - 1]);
+                    cc = fmin(cc, E[m->nocc]);
+                }
             }
         }
     *vbm = v;
@@ -226,7 +249,8 @@ static double side_asymmetry(double wt, double wb)
 static int below(const double *E, int ns, double ef)
 {
     int n = 0;
-    while (n < ns && E[n] < ef) n++;
+    while (n < ns && E[n] < ef)
+        n++;
     return n;
 }
 
@@ -244,31 +268,41 @@ static void match_states(ss_ctx *c, int lo, int hi, int *match)
         for (int b = 0; b < d; b++) {
             double complex sum = 0;
             const double complex *u = c->H + (size_t)(lo + a) * ns, *v = c->V0 + (size_t)(lo + b) * ns;
-            for (int x = 0; x < ns; x++) sum += conj(v[x]) * u[x];
+            for (int x = 0; x < ns; x++)
+                sum += conj(v[x]) * u[x];
             O[a * d + b] = creal(sum) * creal(sum) + cimag(sum) * cimag(sum);
         }
-    for (int a = 0; a < d; a++) match[a] = -1;
+    for (int a = 0; a < d; a++)
+        match[a] = -1;
     for (int step = 0; step < d; step++) {
         int ba = -1, bb = -1;
         double best = SS_MATCH_MIN;
         for (int a = 0; a < d; a++)
             for (int b = 0; b < d; b++)
-                if (O[a * d + b] > best) { best = O[a * d + b]; ba = a; bb = b; }
-        if (ba < 0) break;          /* the rest have no clear partner (window edges) */
+                if (O[a * d + b] > best) {
+                    best = O[a * d + b];
+                    ba = a;
+                    bb = b;
+                }
+        if (ba < 0) break; /* the rest have no clear partner (window edges) */
         match[ba] = lo + bb;
-        for (int x = 0; x < d; x++) { O[ba * d + x] = -2; O[x * d + bb] = -2; }
+        for (int x = 0; x < d; x++) {
+            O[ba * d + x] = -2;
+            O[x * d + bb] = -2;
+        }
     }
 }
 
-int ss_crossings(ss_ctx *c, const double ka[2], const double kb[2], double fermi_ev, int *n_top, int *n_bottom,
-                 int *n_other, bs_err *err)
+int ss_crossings(ss_ctx *c, const double ka[2], const double kb[2], double fermi_ev, int *n_top,
+                 int *n_bottom, int *n_other, bs_err *err)
 {
     int ns = c->ns, nk = c->o.nk, top = 0, bot = 0, other = 0, rc = 0;
     for (int j = 0; j < nk && rc == 0; j++) {
         double t = (double)j / (nk - 1), k[2] = {ka[0] + t * (kb[0] - ka[0]), ka[1] + t * (kb[1] - ka[1])};
         rc = ss_bands(c, k, c->E1, c->wt, c->wb, err);
         if (rc != 0) break;
-        for (int i = 0; i < ns; i++) c->L1[i] = side_asymmetry(c->wt[i], c->wb[i]);
+        for (int i = 0; i < ns; i++)
+            c->L1[i] = side_asymmetry(c->wt[i], c->wb[i]);
         if (j > 0) {
             /* Only states near E_F can have crossed it: the index window around both counts,
              * widened to whole degenerate levels in both samples. */
@@ -277,8 +311,10 @@ int ss_crossings(ss_ctx *c, const double ka[2], const double kb[2], double fermi
             if (lo < 0) lo = 0;
             if (hi > ns) hi = ns;
             double tol = c->o.deg_tol_ev;
-            while (lo > 0 && (c->E0[lo] - c->E0[lo - 1] < tol || c->E1[lo] - c->E1[lo - 1] < tol)) lo--;
-            while (hi < ns && (c->E0[hi] - c->E0[hi - 1] < tol || c->E1[hi] - c->E1[hi - 1] < tol)) hi++;
+            while (lo > 0 && (c->E0[lo] - c->E0[lo - 1] < tol || c->E1[lo] - c->E1[lo - 1] < tol))
+                lo--;
+            while (hi < ns && (c->E0[hi] - c->E0[hi - 1] < tol || c->E1[hi] - c->E1[hi - 1] < tol))
+                hi++;
             match_states(c, lo, hi, c->match);
             int net = 0;
             for (int a = lo; a < hi; a++) {
@@ -286,16 +322,23 @@ int ss_crossings(ss_ctx *c, const double ka[2], const double kb[2], double fermi
                 if (b < 0 || (c->E0[b] < fermi_ev) == (c->E1[a] < fermi_ev)) continue;
                 net += c->E1[a] < fermi_ev ? 1 : -1;
                 double lam = 0.5 * (c->L0[b] + c->L1[a]);
-                if (lam > c->o.loc_min) top++;
-                else if (lam < -c->o.loc_min) bot++;
-                else other++;
+                if (lam > c->o.loc_min)
+                    top++;
+                else if (lam < -c->o.loc_min)
+                    bot++;
+                else
+                    other++;
             }
             /* The followed crossings must account for the change of the count below E_F;
              * what they miss is reported as unresolved. */
             other += abs(n1 - n0 - net);
         }
-        double *sw = c->E0; c->E0 = c->E1; c->E1 = sw;
-        sw = c->L0; c->L0 = c->L1; c->L1 = sw;
+        double *sw = c->E0;
+        c->E0 = c->E1;
+        c->E1 = sw;
+        sw = c->L0;
+        c->L0 = c->L1;
+        c->L1 = sw;
         memcpy(c->V0, c->H, (size_t)ns * ns * sizeof *c->V0);
     }
     *n_top = top;
@@ -324,7 +367,8 @@ int ss_dirac_points(ss_ctx *c, ss_dirac *out, int max, int *count, bs_err *err)
         if (rc == 0) rc = ss_projected_edges(c, kt + 2 * t, &vmax, &cmin, err);
         for (int i0 = 0; rc == 0 && i0 < ns;) {
             int d = 1;
-            while (i0 + d < ns && c->E1[i0 + d] - c->E1[i0 + d - 1] < c->o.deg_tol_ev) d++;
+            while (i0 + d < ns && c->E1[i0 + d] - c->E1[i0 + d - 1] < c->o.deg_tol_ev)
+                d++;
             double e = c->E1[i0];
             if (d > 1 && e > vmax && e < cmin)
                 for (int side = 0; side < 2; side++) {

@@ -25,7 +25,8 @@ int ssum_dirac_ok(const ss_dirac *d, double vbm_ev, double cbm_ev)
  * is divided out anyway). */
 static void inverse3i(const int M[3][3], int inv[3][3])
 {
-    int d = M[0][0] * (M[1][1] * M[2][2] - M[1][2] * M[2][1]) - M[0][1] * (M[1][0] * M[2][2] - M[1][2] * M[2][0]) +
+    int d = M[0][0] * (M[1][1] * M[2][2] - M[1][2] * M[2][1]) -
+            M[0][1] * (M[1][0] * M[2][2] - M[1][2] * M[2][0]) +
             M[0][2] * (M[1][0] * M[2][1] - M[1][1] * M[2][0]);
     for (int i = 0; i < 3; i++)
         for (int j = 0; j < 3; j++) {
@@ -45,7 +46,7 @@ static void surface_parities(const slab *s, int dim, const int *delta, ssum_resu
     for (int t = 0; t < out->ntrim; t++) {
         int prod = 1;
         for (int h = 0; h < 2; h++) {
-            int n2[3] = {0, 0, 0};          /* 2 k' */
+            int n2[3] = {0, 0, 0}; /* 2 k' */
             n2[0] = t % 2, n2[1] = dim == 3 ? t / 2 : h;
             if (dim == 3) n2[stack] = h;
             int idx = 0;
@@ -71,7 +72,8 @@ static int expected_from_z2(const slab *s, int dim, const int *z2, int a, int b)
     int M[3][3];
     slab_matrix(s, M);
     int nu[2];
-    for (int i = 0; i < 2; i++) nu[i] = ((M[i][0] * z2[1] + M[i][1] * z2[2] + M[i][2] * z2[3]) % 2 + 2) % 2;
+    for (int i = 0; i < 2; i++)
+        nu[i] = ((M[i][0] * z2[1] + M[i][1] * z2[2] + M[i][2] * z2[3]) % 2 + 2) % 2;
     int d1 = (a ^ b) & 1, d2 = ((a ^ b) >> 1) & 1;
     int m1 = d1 && d2 ? 1 : d2, m2 = d1 && d2 ? 1 : d1;
     int c = (m1 * (a & 1) + m2 * ((a >> 1) & 1)) & 1;
@@ -102,11 +104,13 @@ static int count_at(const tb_model *m, const int miller[3], int layers, ssum_res
             p->a = a, p->b = b;
             p->expected_odd = delta ? out->surface_parity[a] * out->surface_parity[b] < 0
                                     : (z2 ? expected_from_z2(s, m->dim, z2, a, b) : -1);
-            rc = ss_crossings(c, kt + 2 * a, kt + 2 * b, out->fermi_ev, &p->n_top, &p->n_bottom, &p->n_other, err);
+            rc = ss_crossings(c, kt + 2 * a, kt + 2 * b, out->fermi_ev, &p->n_top, &p->n_bottom, &p->n_other,
+                              err);
         }
     if (rc == 0) {
         out->ka[0] = kt[0], out->ka[1] = kt[1], out->kb[0] = kt[2], out->kb[1] = kt[3];
-        out->n_top = out->pair[0].n_top, out->n_bottom = out->pair[0].n_bottom, out->n_other = out->pair[0].n_other;
+        out->n_top = out->pair[0].n_top, out->n_bottom = out->pair[0].n_bottom,
+        out->n_other = out->pair[0].n_other;
     }
     ss_dirac dirac[16];
     int nd = 0;
@@ -134,7 +138,8 @@ static int strong_index(const tb_model *m, const int *delta, const int *z2)
 {
     if (delta) {
         int prod = 1;
-        for (int t = 0; t < (m->dim == 3 ? 8 : 4); t++) prod *= delta[t];
+        for (int t = 0; t < (m->dim == 3 ? 8 : 4); t++)
+            prod *= delta[t];
         return prod < 0;
     }
     return z2 ? z2[0] & 1 : -1;
@@ -157,7 +162,8 @@ int ssum_compute(const tb_model *m, const int miller[3], int nlayers, int max_la
     int cap = BS_MAX_NORB / m->norb;
     if (max_layers <= 0) max_layers = 4 * out->layers;
     if (max_layers > cap) max_layers = cap;
-    const int *delta = bulk && bulk->par_delta && bulk->ntrim == (m->dim == 3 ? 8 : 4) ? bulk->par_delta : NULL;
+    const int *delta =
+        bulk && bulk->par_delta && bulk->ntrim == (m->dim == 3 ? 8 : 4) ? bulk->par_delta : NULL;
     const int *z2 = bulk ? bulk->z2 : NULL;
     /* 24 points per axis hold every TRIM and the K points of hexagonal lattices. */
     int rc = ss_bulk_edges(m, 24, &out->vbm_ev, &out->cbm_ev, err);
@@ -179,26 +185,29 @@ int ssum_compute(const tb_model *m, const int miller[3], int nlayers, int max_la
     } else if (bad >= 0) {
         const ssum_pair *p = &out->pair[bad];
         out->status = RES_SURF_INCONCLUSIVE;
-        int w = snprintf(out->reason, sizeof out->reason,
-                         "%d top crossings between %s and %s where the bulk parities require an %s count, from %d up "
-                         "to %d layers: slab too thin or surface bands away from the Fermi level",
-                         p->n_top, TRIM_NAME[p->a], TRIM_NAME[p->b], p->expected_odd ? "odd" : "even", start,
-                         out->layers);
+        int w = snprintf(
+            out->reason, sizeof out->reason,
+            "%d top crossings between %s and %s where the bulk parities require an %s count, from %d up "
+            "to %d layers: slab too thin or surface bands away from the Fermi level",
+            p->n_top, TRIM_NAME[p->a], TRIM_NAME[p->b], p->expected_odd ? "odd" : "even", start, out->layers);
         if (p->n_other > 0 && w > 0 && (size_t)w < sizeof out->reason)
             snprintf(out->reason + w, sizeof out->reason - (size_t)w,
-                     "; %d crossings by states on neither surface (top and bottom states still hybridised, or weakly localised)", p->n_other);
+                     "; %d crossings by states on neither surface (top and bottom states still hybridised, "
+                     "or weakly localised)",
+                     p->n_other);
     } else {
         /* The counts agree. A strong TI without an in-gap Dirac point on the top surface is still
          * consistent: the Kramers point may lie inside the projected bulk bands; the slab was grown
          * in case its surfaces hybridised, and the reason says so. */
         out->status = RES_SURF_CONSISTENT;
         int nodirac = strong == 1 && out->ndirac_top % 2 == 0;
-        snprintf(out->reason, sizeof out->reason,
-                 "every pair of surface TRIMs has the crossing parity the bulk requires (%d layers%s)%s", out->layers,
-                 out->layers > start ? ", grown from a thinner slab whose surfaces hybridised" : "",
-                 nodirac ? "; no in-gap Dirac point on the top surface: its surfaces may still hybridise, or the "
-                           "Dirac point lies in the bulk bands"
-                         : "");
+        snprintf(
+            out->reason, sizeof out->reason,
+            "every pair of surface TRIMs has the crossing parity the bulk requires (%d layers%s)%s",
+            out->layers, out->layers > start ? ", grown from a thinner slab whose surfaces hybridised" : "",
+            nodirac ? "; no in-gap Dirac point on the top surface: its surfaces may still hybridise, or the "
+                      "Dirac point lies in the bulk bands"
+                    : "");
     }
     return 0;
 }

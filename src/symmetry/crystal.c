@@ -15,7 +15,7 @@
 #include "bandsieve/realharm.h"
 
 struct cry_info {
-    const tb_model *m;      /* borrowed for the matrices; the caller keeps it alive */
+    const tb_model *m; /* borrowed for the matrices; the caller keeps it alive */
     int spacegroup;
     char symbol[16];
     int nops, nverified;
@@ -63,25 +63,46 @@ void cry_info_free(cry_info *c)
     free(c->shell_no);
     free(c->img_site);
     free(c->L);
-    for (int l = 0; l <= RH_LMAX; l++) free(c->D[l]);
+    for (int l = 0; l <= RH_LMAX; l++)
+        free(c->D[l]);
     free(c->U);
     free(c);
 }
 
-int cry_spacegroup(const cry_info *c) { return c->spacegroup; }
-const char *cry_symbol(const cry_info *c) { return c->symbol; }
-int cry_nops(const cry_info *c) { return c->nops; }
-const cry_op *cry_get_op(const cry_info *c, int i) { return &c->ops[i]; }
-int cry_nverified(const cry_info *c) { return c->nverified; }
-int cry_nsites(const cry_info *c) { return c->nsites; }
+int cry_spacegroup(const cry_info *c)
+{
+    return c->spacegroup;
+}
+const char *cry_symbol(const cry_info *c)
+{
+    return c->symbol;
+}
+int cry_nops(const cry_info *c)
+{
+    return c->nops;
+}
+const cry_op *cry_get_op(const cry_info *c, int i)
+{
+    return &c->ops[i];
+}
+int cry_nverified(const cry_info *c)
+{
+    return c->nverified;
+}
+int cry_nsites(const cry_info *c)
+{
+    return c->nsites;
+}
 
 /* Cartesian length of the reduced difference d folded to its nearest lattice image. */
 static double folded_distance(const double a[3][3], const double d[3])
 {
     double f[3], r[3] = {0, 0, 0};
-    for (int i = 0; i < 3; i++) f[i] = d[i] - round(d[i]);
     for (int i = 0; i < 3; i++)
-        for (int x = 0; x < 3; x++) r[x] += f[i] * a[i][x];
+        f[i] = d[i] - round(d[i]);
+    for (int i = 0; i < 3; i++)
+        for (int x = 0; x < 3; x++)
+            r[x] += f[i] * a[i][x];
     return sqrt(r[0] * r[0] + r[1] * r[1] + r[2] * r[2]);
 }
 
@@ -97,7 +118,8 @@ static int find_sites(cry_info *c, const tb_model *m, double tol)
         int s = 0;
         for (; s < c->nsites; s++) {
             double d[3];
-            for (int i = 0; i < 3; i++) d[i] = m->orb_pos[o][i] - c->site_pos[s][i];
+            for (int i = 0; i < 3; i++)
+                d[i] = m->orb_pos[o][i] - c->site_pos[s][i];
             if (folded_distance(m->lattice, d) < tol) break;
         }
         if (s == c->nsites) {
@@ -121,7 +143,8 @@ static int assign_shells(cry_info *c, const tb_model *m, const int *given, bs_er
         int l = m->orb_l[o], nm = 2 * l + 1, before = 0;
         if (l < 0 || l > RH_LMAX) return bs_fail(err, BS_EINVAL, "orbital %d: l = %d outside 0..3", o + 1, l);
         int idx = given ? given[o] : -1;
-        if (idx < -1 || idx >= nm) return bs_fail(err, BS_EINVAL, "orbital %d: shell index %d outside 0..%d", o + 1, idx, nm - 1);
+        if (idx < -1 || idx >= nm)
+            return bs_fail(err, BS_EINVAL, "orbital %d: shell index %d outside 0..%d", o + 1, idx, nm - 1);
         for (int p = 0; p < o; p++)
             if (c->site[p] == c->site[o] && m->orb_l[p] == l) before++;
         if (idx < 0) {
@@ -157,17 +180,20 @@ static void cartesian_matrix(const double a[3][3], const int W[3][3], double Rc[
 {
     double at[3][3], ati[3][3], tmp[3][3];
     for (int i = 0; i < 3; i++)
-        for (int j = 0; j < 3; j++) at[i][j] = a[j][i];
+        for (int j = 0; j < 3; j++)
+            at[i][j] = a[j][i];
     inverse3(at, ati);
     for (int i = 0; i < 3; i++)
         for (int j = 0; j < 3; j++) {
             tmp[i][j] = 0;
-            for (int k = 0; k < 3; k++) tmp[i][j] += at[i][k] * W[k][j];
+            for (int k = 0; k < 3; k++)
+                tmp[i][j] += at[i][k] * W[k][j];
         }
     for (int i = 0; i < 3; i++)
         for (int j = 0; j < 3; j++) {
             Rc[i][j] = 0;
-            for (int k = 0; k < 3; k++) Rc[i][j] += tmp[i][k] * ati[k][j];
+            for (int k = 0; k < 3; k++)
+                Rc[i][j] += tmp[i][k] * ati[k][j];
         }
 }
 
@@ -180,15 +206,21 @@ static void classify_op(cry_op *op)
                  R[0][2] * (R[1][0] * R[2][1] - R[1][1] * R[2][0]);
     double s = det < 0 ? -1.0 : 1.0, P[3][3];
     for (int i = 0; i < 3; i++)
-        for (int j = 0; j < 3; j++) P[i][j] = s * R[i][j];
+        for (int j = 0; j < 3; j++)
+            P[i][j] = s * R[i][j];
     double tr = P[0][0] + P[1][1] + P[2][2];
     /* proper part: trace 1 + 2 cos(2 pi / n) */
     int n = 1;
-    if (tr > 2.5) n = 1;
-    else if (tr > 1.5) n = 6;
-    else if (tr > 0.5) n = 4;
-    else if (tr > -0.5) n = 3;
-    else n = 2;
+    if (tr > 2.5)
+        n = 1;
+    else if (tr > 1.5)
+        n = 6;
+    else if (tr > 0.5)
+        n = 4;
+    else if (tr > -0.5)
+        n = 3;
+    else
+        n = 2;
     static const char *proper[7] = {"", "1", "2", "3", "4", "", "6"};
     static const char *improper[7] = {"", "-1", "m", "-3", "-4", "", "-6"};
     snprintf(op->kind, sizeof op->kind, "%s", s > 0 ? proper[n] : improper[n]);
@@ -200,10 +232,12 @@ static void classify_op(cry_op *op)
         int best = 0;
         for (int c = 1; c < 3; c++)
             if (P[c][c] > P[best][best]) best = c;
-        for (int i = 0; i < 3; i++) ax[i] = 0.5 * (P[i][best] + (i == best));
+        for (int i = 0; i < 3; i++)
+            ax[i] = 0.5 * (P[i][best] + (i == best));
         len = sqrt(ax[0] * ax[0] + ax[1] * ax[1] + ax[2] * ax[2]);
     }
-    for (int i = 0; i < 3; i++) op->axis[i] = ax[i] / len;
+    for (int i = 0; i < 3; i++)
+        op->axis[i] = ax[i] / len;
 }
 
 static int keeps_plane(const int W[3][3], const double t[3])
@@ -220,12 +254,14 @@ static int map_sites(cry_info *c, const tb_model *m, int iop, double tol)
         double y[3];
         for (int i = 0; i < 3; i++) {
             y[i] = op->t[i];
-            for (int j = 0; j < 3; j++) y[i] += op->W[i][j] * c->site_pos[s][j];
+            for (int j = 0; j < 3; j++)
+                y[i] += op->W[i][j] * c->site_pos[s][j];
         }
         int found = -1;
         for (int s2 = 0; s2 < c->nsites && found < 0; s2++) {
             double d[3];
-            for (int i = 0; i < 3; i++) d[i] = y[i] - c->site_pos[s2][i];
+            for (int i = 0; i < 3; i++)
+                d[i] = y[i] - c->site_pos[s2][i];
             if (folded_distance(m->lattice, d) < tol) found = s2;
         }
         c->img_site[iop * c->nsites + s] = found;
@@ -240,8 +276,7 @@ static int map_sites(cry_info *c, const tb_model *m, int iop, double tol)
 static int find_orbital(const cry_info *c, const tb_model *m, int s, int l, int sh, int idx)
 {
     for (int o = 0; o < m->nspatial; o++)
-        if (c->site[o] == s && m->orb_l[o] == l && c->shell_no[o] == sh && c->shell_idx[o] == idx)
-            return o;
+        if (c->site[o] == s && m->orb_l[o] == l && c->shell_no[o] == sh && c->shell_idx[o] == idx) return o;
     return -1;
 }
 
@@ -254,9 +289,11 @@ int cry_op_matrix(const cry_info *c, int iop, const double k[3], double complex 
     double kp[3]; /* W^-T k: W is unimodular, so its inverse is integer; use the adjugate */
     double Wd[3][3], Wi[3][3];
     for (int i = 0; i < 3; i++)
-        for (int j = 0; j < 3; j++) Wd[i][j] = op->W[i][j];
+        for (int j = 0; j < 3; j++)
+            Wd[i][j] = op->W[i][j];
     inverse3(Wd, Wi);
-    for (int i = 0; i < 3; i++) kp[i] = Wi[0][i] * k[0] + Wi[1][i] * k[1] + Wi[2][i] * k[2];
+    for (int i = 0; i < 3; i++)
+        kp[i] = Wi[0][i] * k[0] + Wi[1][i] * k[1] + Wi[2][i] * k[2];
     int nspin = m->spinful ? 2 : 1;
     for (int o = 0; o < m->nspatial; o++) {
         int l = m->orb_l[o], nm = 2 * l + 1, s = c->site[o];
@@ -302,13 +339,15 @@ static int verify_op(cry_info *c, hk_engine *e, int iop, const double *ks, int n
     const double complex one = 1.0, zero = 0.0;
     double Wd[3][3], Wi[3][3];
     for (int i = 0; i < 3; i++)
-        for (int j = 0; j < 3; j++) Wd[i][j] = c->ops[iop].W[i][j];
+        for (int j = 0; j < 3; j++)
+            Wd[i][j] = c->ops[iop].W[i][j];
     inverse3(Wd, Wi);
     *res = 0.0;
     for (int q = 0; q < nk; q++) {
         const double *k = ks + 3 * q;
         double kp[3];
-        for (int i = 0; i < 3; i++) kp[i] = Wi[0][i] * k[0] + Wi[1][i] * k[1] + Wi[2][i] * k[2];
+        for (int i = 0; i < 3; i++)
+            kp[i] = Wi[0][i] * k[0] + Wi[1][i] * k[1] + Wi[2][i] * k[2];
         int rc = hk_build(e, 1, k, H, err);
         if (rc == 0) rc = hk_build(e, 1, kp, Hp, err);
         if (rc == 0) rc = cry_op_matrix(c, iop, k, V, err);
@@ -337,7 +376,8 @@ static int call_spglib(cry_info *c, const tb_model *m, double symprec, bs_err *e
         return bs_fail(err, BS_ENOMEM, "out of memory (sites)");
     }
     for (int i = 0; i < 3; i++)
-        for (int j = 0; j < 3; j++) lat[i][j] = m->lattice[j][i]; /* spglib: vectors as columns */
+        for (int j = 0; j < 3; j++)
+            lat[i][j] = m->lattice[j][i]; /* spglib: vectors as columns */
     /* A site's type: its orbitals' l in order, as a base-5 number (see crystal.h). */
     for (int s = 0; s < c->nsites; s++) {
         memcpy(pos[s], c->site_pos[s], sizeof pos[s]);
@@ -362,7 +402,8 @@ static int call_spglib(cry_info *c, const tb_model *m, double symprec, bs_err *e
         if (m->dim == 2 && !keeps_plane(ds->rotations[i], ds->translations[i])) continue;
         cry_op *op = &c->ops[c->nops++];
         memcpy(op->W, ds->rotations[i], sizeof op->W);
-        for (int j = 0; j < 3; j++) op->t[j] = ds->translations[i][j];
+        for (int j = 0; j < 3; j++)
+            op->t[j] = ds->translations[i][j];
         cartesian_matrix(m->lattice, op->W, op->Rc);
         classify_op(op);
     }
@@ -451,7 +492,8 @@ int cry_little_group(const cry_info *c, const double k[3], int *ops)
         if (!c->ops[i].verified) continue;
         double Wd[3][3], Wi[3][3], kp[3];
         for (int a = 0; a < 3; a++)
-            for (int b = 0; b < 3; b++) Wd[a][b] = c->ops[i].W[a][b];
+            for (int b = 0; b < 3; b++)
+                Wd[a][b] = c->ops[i].W[a][b];
         inverse3(Wd, Wi);
         int same = 1;
         for (int a = 0; a < dim; a++) {
@@ -464,15 +506,17 @@ int cry_little_group(const cry_info *c, const double k[3], int *ops)
     return n;
 }
 
-int cry_band_eigenvalues(const tb_model *m, const cry_info *c, int iop, const double k[3], int lo,
-                         int nband, double complex *ev, bs_err *err)
+int cry_band_eigenvalues(const tb_model *m, const cry_info *c, int iop, const double k[3], int lo, int nband,
+                         double complex *ev, bs_err *err)
 {
     int n = m->norb;
-    if (lo < 0 || nband < 1 || lo + nband > n) return bs_fail(err, BS_EINVAL, "bands %d..%d outside 1..%d", lo + 1, lo + nband, n);
+    if (lo < 0 || nband < 1 || lo + nband > n)
+        return bs_fail(err, BS_EINVAL, "bands %d..%d outside 1..%d", lo + 1, lo + nband, n);
     int *lg = malloc((size_t)c->nops * sizeof *lg);
     if (!lg) return bs_fail(err, BS_ENOMEM, "out of memory");
     int nl = cry_little_group(c, k, lg), inside = 0;
-    for (int i = 0; i < nl; i++) inside |= lg[i] == iop;
+    for (int i = 0; i < nl; i++)
+        inside |= lg[i] == iop;
     free(lg);
     if (!inside) return bs_fail(err, BS_EINVAL, "operation %d does not leave k invariant", iop + 1);
     size_t nn = (size_t)n * n;
@@ -492,7 +536,8 @@ int cry_band_eigenvalues(const tb_model *m, const cry_info *c, int iop, const do
         const double complex one = 1.0, zero = 0.0;
         const double complex *psi = H + (size_t)lo * n;
         cblas_zgemm(CblasColMajor, CblasNoTrans, CblasNoTrans, n, nband, n, &one, V, n, psi, n, &zero, T, n);
-        cblas_zgemm(CblasColMajor, CblasConjTrans, CblasNoTrans, nband, nband, n, &one, psi, n, T, n, &zero, M, nband);
+        cblas_zgemm(CblasColMajor, CblasConjTrans, CblasNoTrans, nband, nband, n, &one, psi, n, T, n, &zero,
+                    M, nband);
         lapack_int info = LAPACKE_zgeev(LAPACK_COL_MAJOR, 'N', 'N', nband, M, nband, ev, NULL, 1, NULL, 1);
         if (info != 0) rc = bs_fail(err, BS_ENUMERIC, "zgeev failed (info %d)", (int)info);
     }
@@ -516,14 +561,15 @@ int cry_band_eigenvalues(const tb_model *m, const cry_info *c, int iop, const do
 typedef struct rmap {
     int n, cap, norb, hcap;
     int (*R)[3];
-    double complex *h;      /* cap * norb * norb, row-major <a|h|b> */
-    int *slot;              /* hcap entries: index into R, or -1 */
+    double complex *h; /* cap * norb * norb, row-major <a|h|b> */
+    int *slot;         /* hcap entries: index into R, or -1 */
 } rmap;
 
 static unsigned rhash(const int R[3])
 {
     unsigned h = 2166136261u;
-    for (int i = 0; i < 3; i++) h = (h ^ (unsigned)(R[i] + 1024)) * 16777619u;
+    for (int i = 0; i < 3; i++)
+        h = (h ^ (unsigned)(R[i] + 1024)) * 16777619u;
     return h;
 }
 
@@ -533,12 +579,14 @@ static int rmap_init(rmap *r, int norb, int cap)
     r->norb = norb;
     r->cap = cap;
     r->hcap = 1;
-    while (r->hcap < 4 * cap) r->hcap *= 2;
+    while (r->hcap < 4 * cap)
+        r->hcap *= 2;
     r->R = malloc((size_t)cap * sizeof *r->R);
     r->h = calloc((size_t)cap * norb * norb, sizeof *r->h);
     r->slot = malloc((size_t)r->hcap * sizeof *r->slot);
     if (!r->R || !r->h || !r->slot) return -1;
-    for (int i = 0; i < r->hcap; i++) r->slot[i] = -1;
+    for (int i = 0; i < r->hcap; i++)
+        r->slot[i] = -1;
     return 0;
 }
 
@@ -564,10 +612,12 @@ static int rmap_grow(rmap *r)
     r->h = h;
     int *slot = malloc((size_t)hcap * sizeof *slot);
     if (!slot) return -1;
-    for (int i = 0; i < hcap; i++) slot[i] = -1;
+    for (int i = 0; i < hcap; i++)
+        slot[i] = -1;
     for (int q = 0; q < r->n; q++) {
         unsigned k = rhash(r->R[q]) & (unsigned)(hcap - 1);
-        while (slot[k] >= 0) k = (k + 1) & (unsigned)(hcap - 1);
+        while (slot[k] >= 0)
+            k = (k + 1) & (unsigned)(hcap - 1);
         slot[k] = q;
     }
     free(r->slot);
@@ -583,7 +633,8 @@ static double complex *rmap_block(rmap *r, const int R[3])
     unsigned h = rhash(R) & (unsigned)(r->hcap - 1);
     while (r->slot[h] >= 0) {
         const int *q = r->R[r->slot[h]];
-        if (q[0] == R[0] && q[1] == R[1] && q[2] == R[2]) return r->h + (size_t)r->slot[h] * r->norb * r->norb;
+        if (q[0] == R[0] && q[1] == R[1] && q[2] == R[2])
+            return r->h + (size_t)r->slot[h] * r->norb * r->norb;
         h = (h + 1) & (unsigned)(r->hcap - 1);
     }
     if (r->n == r->cap) {
@@ -614,13 +665,14 @@ static int apply_op(const tb_model *m, const cry_info *c, int iop, double weight
 {
     int n = m->norb;
     double complex *D = malloc((size_t)n * n * sizeof *D);
-    int (*Ls)[3] = malloc((size_t)n * sizeof *Ls);
+    int(*Ls)[3] = malloc((size_t)n * sizeof *Ls);
     int rc = (!D || !Ls) ? bs_fail(err, BS_ENOMEM, "out of memory (symmetrisation)") : 0;
     if (rc == 0) rc = op_state_matrix(c, iop, D, Ls, err);
     const cry_op *op = &c->ops[iop];
     for (int r = 0; rc == 0 && r < m->nR; r++) {
         int WR[3];
-        for (int i = 0; i < 3; i++) WR[i] = op->W[i][0] * m->R[r][0] + op->W[i][1] * m->R[r][1] + op->W[i][2] * m->R[r][2];
+        for (int i = 0; i < 3; i++)
+            WR[i] = op->W[i][0] * m->R[r][0] + op->W[i][1] * m->R[r][1] + op->W[i][2] * m->R[r][2];
         const double complex *h = m->H + (size_t)r * n * n;
         double inv_deg = 1.0 / m->deg[r];
         for (int i = 0; i < n && rc == 0; i++)
@@ -628,7 +680,8 @@ static int apply_op(const tb_model *m, const cry_info *c, int iop, double weight
                 double complex hij = h[(size_t)i * n + j] * inv_deg;
                 if (hij == 0.0) continue;
                 int Rp[3];
-                for (int x = 0; x < 3; x++) Rp[x] = WR[x] - Ls[i][x] + Ls[j][x];
+                for (int x = 0; x < 3; x++)
+                    Rp[x] = WR[x] - Ls[i][x] + Ls[j][x];
                 double complex *blk = rmap_block(out, Rp);
                 if (!blk) {
                     rc = bs_fail(err, BS_ENOMEM, "out of memory (symmetrisation)");
@@ -667,7 +720,8 @@ int cry_breaking_ev(const tb_model *m, const cry_info *c, int iop, double *bound
             rc = bs_fail(err, BS_ENOMEM, "out of memory (symmetry breaking)");
             break;
         }
-        for (size_t e = 0; e < (size_t)n * n; e++) blk[e] -= m->H[(size_t)r * n * n + e] / m->deg[r];
+        for (size_t e = 0; e < (size_t)n * n; e++)
+            blk[e] -= m->H[(size_t)r * n * n + e] / m->deg[r];
     }
     for (int r = 0; rc == 0 && r < gm.n; r++) {
         double f = 0.0;
@@ -681,7 +735,8 @@ int cry_breaking_ev(const tb_model *m, const cry_info *c, int iop, double *bound
     return rc;
 }
 
-int cry_symmetrise(const tb_model *m, const cry_info *c, const int *ops, int nops, tb_model **out, bs_err *err)
+int cry_symmetrise(const tb_model *m, const cry_info *c, const int *ops, int nops, tb_model **out,
+                   bs_err *err)
 {
     *out = NULL;
     if (nops < 1) return bs_fail(err, BS_EINVAL, "symmetrisation needs at least one operation");
@@ -692,12 +747,13 @@ int cry_symmetrise(const tb_model *m, const cry_info *c, const int *ops, int nop
         return bs_fail(err, BS_ENOMEM, "out of memory (symmetrisation)");
     }
     int rc = 0;
-    for (int i = 0; i < nops && rc == 0; i++) rc = apply_op(m, c, ops[i], 1.0 / nops, &acc, err);
+    for (int i = 0; i < nops && rc == 0; i++)
+        rc = apply_op(m, c, ops[i], 1.0 / nops, &acc, err);
     tb_model *s = NULL;
     if (rc == 0) rc = tb_model_copy(m, &s, err);
     if (rc == 0) {
         /* new arrays for the grown set of lattice vectors */
-        int (*R)[3] = malloc((size_t)acc.n * sizeof *R);
+        int(*R)[3] = malloc((size_t)acc.n * sizeof *R);
         int *deg = malloc((size_t)acc.n * sizeof *deg);
         double complex *H = malloc((size_t)acc.n * n * n * sizeof *H);
         if (!R || !deg || !H) {
@@ -706,7 +762,8 @@ int cry_symmetrise(const tb_model *m, const cry_info *c, const int *ops, int nop
         } else {
             memcpy(R, acc.R, (size_t)acc.n * sizeof *R);
             memcpy(H, acc.h, (size_t)acc.n * n * n * sizeof *H);
-            for (int r = 0; r < acc.n; r++) deg[r] = 1;
+            for (int r = 0; r < acc.n; r++)
+                deg[r] = 1;
             free(s->R), free(s->deg), free(s->H);
             s->R = R, s->deg = deg, s->H = H, s->nR = acc.n;
         }
@@ -731,7 +788,8 @@ int cry_is_group(const cry_info *c, const int *ops, int nops)
                 t[i] = x->t[i];
                 for (int j = 0; j < 3; j++) {
                     W[i][j] = 0;
-                    for (int q = 0; q < 3; q++) W[i][j] += x->W[i][q] * y->W[q][j];
+                    for (int q = 0; q < 3; q++)
+                        W[i][j] += x->W[i][q] * y->W[q][j];
                     t[i] += x->W[i][j] * y->t[j];
                 }
             }

@@ -8,12 +8,21 @@
 #include <math.h>
 #include <string.h>
 
-const char *rh_name(int l, int idx) { return tb_shape_name(l, idx); }
+const char *rh_name(int l, int idx)
+{
+    return tb_shape_name(l, idx);
+}
 
-int rh_index(int l, const char *name) { return tb_shape_index(l, name); }
+int rh_index(int l, const char *name)
+{
+    return tb_shape_index(l, name);
+}
 
 /* m of shell index idx: 0, +1, -1, +2, -2, ... */
-static int idx_to_m(int idx) { return idx == 0 ? 0 : (idx % 2 ? (idx + 1) / 2 : -(idx / 2)); }
+static int idx_to_m(int idx)
+{
+    return idx == 0 ? 0 : (idx % 2 ? (idx + 1) / 2 : -(idx / 2));
+}
 
 /* Associated Legendre function P_l^m(x), m >= 0, without the Condon–Shortley phase, by the
  * standard upward recurrence in l (common practice; e.g. Numerical Recipes, 3rd ed., sec. 6.7). */
@@ -21,7 +30,8 @@ static double legendre(int l, int m, double x)
 {
     double pmm = 1.0;
     double s = sqrt(fmax(0.0, (1.0 - x) * (1.0 + x)));
-    for (int i = 1; i <= m; i++) pmm *= (2 * i - 1) * s;
+    for (int i = 1; i <= m; i++)
+        pmm *= (2 * i - 1) * s;
     if (l == m) return pmm;
     double pm1 = x * (2 * m + 1) * pmm;
     if (l == m + 1) return pm1;
@@ -37,7 +47,8 @@ static double legendre(int l, int m, double x)
 static double factorial(int n)
 {
     double f = 1.0;
-    for (int i = 2; i <= n; i++) f *= i;
+    for (int i = 2; i <= n; i++)
+        f *= i;
     return f;
 }
 
@@ -73,7 +84,8 @@ static int check_orthogonal(const double R[3][3], bs_err *err)
     for (int a = 0; a < 3; a++)
         for (int b = 0; b < 3; b++) {
             double s = 0.0;
-            for (int c = 0; c < 3; c++) s += R[c][a] * R[c][b];
+            for (int c = 0; c < 3; c++)
+                s += R[c][a] * R[c][b];
             if (fabs(s - (a == b)) > 1e-8)
                 return bs_fail(err, BS_EINVAL, "rotation matrix is not orthogonal (R^T R - 1 = %.2g)",
                                s - (a == b));
@@ -91,7 +103,8 @@ int rh_rotation(int l, const double R[3][3], double *D, bs_err *err)
     for (int p = 0; p < RH_NPOINT; p++) {
         double r[3], rr[3];
         fib_point(p, r);
-        for (int a = 0; a < 3; a++) rr[a] = R[0][a] * r[0] + R[1][a] * r[1] + R[2][a] * r[2];
+        for (int a = 0; a < 3; a++)
+            rr[a] = R[0][a] * r[0] + R[1][a] * r[1] + R[2][a] * r[2];
         for (int j = 0; j < nm; j++) {
             A[p + j * RH_NPOINT] = rh_eval(l, j, r);
             B[p + j * RH_NPOINT] = rh_eval(l, j, rr);
@@ -100,7 +113,8 @@ int rh_rotation(int l, const double R[3][3], double *D, bs_err *err)
     lapack_int info = LAPACKE_dgels(LAPACK_COL_MAJOR, 'N', RH_NPOINT, nm, nm, A, RH_NPOINT, B, RH_NPOINT);
     if (info != 0) return bs_fail(err, BS_ENUMERIC, "dgels failed fitting D^%d (info %d)", l, (int)info);
     for (int j = 0; j < nm; j++)
-        for (int i = 0; i < nm; i++) D[i + j * nm] = B[i + j * RH_NPOINT];
+        for (int i = 0; i < nm; i++)
+            D[i + j * nm] = B[i + j * RH_NPOINT];
     return 0;
 }
 
@@ -115,13 +129,15 @@ void rh_spin_rotation(const double R[3][3], double complex U[4])
 {
     double P[3][3], s = det3(R) < 0 ? -1.0 : 1.0;
     for (int a = 0; a < 3; a++)
-        for (int b = 0; b < 3; b++) P[a][b] = s * R[a][b];
+        for (int b = 0; b < 3; b++)
+            P[a][b] = s * R[a][b];
     double tr = P[0][0] + P[1][1] + P[2][2];
     double theta = acos(fmax(-1.0, fmin(1.0, 0.5 * (tr - 1.0))));
     double n[3] = {P[2][1] - P[1][2], P[0][2] - P[2][0], P[1][0] - P[0][1]};
     double nlen = sqrt(n[0] * n[0] + n[1] * n[1] + n[2] * n[2]);
     if (nlen > 1e-8) {
-        for (int a = 0; a < 3; a++) n[a] /= nlen;
+        for (int a = 0; a < 3; a++)
+            n[a] /= nlen;
     } else if (theta > 1.0) {
         /* theta = pi: the axis is the column of (P + 1)/2 = n n^T with the largest norm. */
         int best = 0;
@@ -136,7 +152,8 @@ void rh_spin_rotation(const double R[3][3], double complex U[4])
             len += n[a] * n[a];
         }
         len = sqrt(len);
-        for (int a = 0; a < 3; a++) n[a] /= len;
+        for (int a = 0; a < 3; a++)
+            n[a] /= len;
     } else {
         n[0] = 0.0, n[1] = 0.0, n[2] = 1.0;
         theta = 0.0;

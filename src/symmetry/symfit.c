@@ -18,7 +18,7 @@
 typedef struct rset {
     int n, cap, norb;
     int (*R)[3];
-    int *slot;              /* hash table of indices into R, -1 empty; hcap entries */
+    int *slot; /* hash table of indices into R, -1 empty; hcap entries */
     int hcap;
 } rset;
 
@@ -32,7 +32,8 @@ static void rset_clear(rset *s)
 static uint32_t r_hash(const int R[3])
 {
     uint32_t h = 2166136261u;
-    for (int d = 0; d < 3; d++) h = (h ^ (uint32_t)(R[d] + 0x8000)) * 16777619u;
+    for (int d = 0; d < 3; d++)
+        h = (h ^ (uint32_t)(R[d] + 0x8000)) * 16777619u;
     return h;
 }
 
@@ -40,10 +41,12 @@ static int rset_rehash(rset *s, int hcap)
 {
     int *slot = malloc((size_t)hcap * sizeof *slot);
     if (!slot) return -1;
-    for (int i = 0; i < hcap; i++) slot[i] = -1;
+    for (int i = 0; i < hcap; i++)
+        slot[i] = -1;
     for (int r = 0; r < s->n; r++) {
         uint32_t h = r_hash(s->R[r]) & (uint32_t)(hcap - 1);
-        while (slot[h] >= 0) h = (h + 1) & (uint32_t)(hcap - 1);
+        while (slot[h] >= 0)
+            h = (h + 1) & (uint32_t)(hcap - 1);
         slot[h] = r;
     }
     free(s->slot);
@@ -70,7 +73,7 @@ static int rset_add(rset *s, const int R[3])
     if (r >= 0) return r;
     if (s->n == s->cap) {
         int cap = s->cap ? 2 * s->cap : 64;
-        int (*nR)[3] = realloc(s->R, (size_t)cap * sizeof *nR);
+        int(*nR)[3] = realloc(s->R, (size_t)cap * sizeof *nR);
         if (!nR) return -1;
         s->R = nR;
         s->cap = cap;
@@ -79,7 +82,8 @@ static int rset_add(rset *s, const int R[3])
     s->n++;
     if (4 * s->n > s->hcap) return rset_rehash(s, 2 * s->hcap) == 0 ? s->n - 1 : -1;
     uint32_t h = r_hash(R) & (uint32_t)(s->hcap - 1);
-    while (s->slot[h] >= 0) h = (h + 1) & (uint32_t)(s->hcap - 1);
+    while (s->slot[h] >= 0)
+        h = (h + 1) & (uint32_t)(s->hcap - 1);
     s->slot[h] = s->n - 1;
     return s->n - 1;
 }
@@ -89,7 +93,8 @@ static int rset_init(rset *s, const tb_model *m)
     memset(s, 0, sizeof *s);
     s->norb = m->norb;
     int hcap = 64;
-    while (hcap < 8 * m->nR) hcap *= 2;
+    while (hcap < 8 * m->nR)
+        hcap *= 2;
     if (rset_rehash(s, hcap) != 0) return -1;
     for (int r = 0; r < m->nR; r++)
         if (rset_add(s, m->R[r]) < 0) return -1;
@@ -99,9 +104,9 @@ static int rset_init(rset *s, const tb_model *m)
 /* The inversion's shift classes: states with equal shift vectors share a class. */
 typedef struct inv_map {
     int nclass;
-    int *cls;               /* norb */
-    int (*shift)[3];        /* nclass */
-    int *tgt;               /* n_R * nclass^2: index of -R - s_ca + s_cb, or -1 */
+    int *cls;        /* norb */
+    int (*shift)[3]; /* nclass */
+    int *tgt;        /* n_R * nclass^2: index of -R - s_ca + s_cb, or -1 */
 } inv_map;
 
 static void inv_map_clear(inv_map *v)
@@ -120,7 +125,8 @@ static int inv_classes(const sym_info *s, inv_map *v)
     if (!v->cls || !v->shift) return -1;
     for (int a = 0; a < n; a++) {
         int c = 0;
-        while (c < v->nclass && memcmp(v->shift[c], s->inv_shift[a], sizeof v->shift[c]) != 0) c++;
+        while (c < v->nclass && memcmp(v->shift[c], s->inv_shift[a], sizeof v->shift[c]) != 0)
+            c++;
         if (c == v->nclass) memcpy(v->shift[v->nclass++], s->inv_shift[a], sizeof v->shift[c]);
         v->cls[a] = c;
     }
@@ -137,14 +143,16 @@ static int inv_close(rset *rs, double complex **E, const sym_info *s, inv_map *v
     for (int r = 0; r < n0; r++)
         for (int b = 0; b < n; b++)
             for (int a = 0; a < n; a++)
-                if ((*E)[((size_t)r * n + a) * n + b] != 0) nonzero[((size_t)r * nc + v->cls[a]) * nc + v->cls[b]] = 1;
+                if ((*E)[((size_t)r * n + a) * n + b] != 0)
+                    nonzero[((size_t)r * nc + v->cls[a]) * nc + v->cls[b]] = 1;
     int rc = 0;
     for (int r = 0; r < n0 && rc == 0; r++)
         for (int ca = 0; ca < nc && rc == 0; ca++)
             for (int cb = 0; cb < nc && rc == 0; cb++) {
                 if (!nonzero[((size_t)r * nc + ca) * nc + cb]) continue;
                 int T[3];
-                for (int d = 0; d < 3; d++) T[d] = -rs->R[r][d] - v->shift[ca][d] + v->shift[cb][d];
+                for (int d = 0; d < 3; d++)
+                    T[d] = -rs->R[r][d] - v->shift[ca][d] + v->shift[cb][d];
                 if (rset_add(rs, T) < 0) rc = -1;
             }
     free(nonzero);
@@ -161,7 +169,8 @@ static int inv_close(rset *rs, double complex **E, const sym_info *s, inv_map *v
         for (int ca = 0; ca < nc; ca++)
             for (int cb = 0; cb < nc; cb++) {
                 int T[3];
-                for (int d = 0; d < 3; d++) T[d] = -rs->R[r][d] - v->shift[ca][d] + v->shift[cb][d];
+                for (int d = 0; d < 3; d++)
+                    T[d] = -rs->R[r][d] - v->shift[ca][d] + v->shift[cb][d];
                 v->tgt[((size_t)r * nc + ca) * nc + cb] = rset_find(rs, T);
             }
     return 0;
@@ -184,7 +193,8 @@ static void apply_tr(const sym_info *s, int nR, const double complex *src, doubl
 }
 
 /* dst = P src (see symfit.h); every nonzero element has a target after inv_close. */
-static void apply_inv(const sym_info *s, const inv_map *v, int nR, const double complex *src, double complex *dst)
+static void apply_inv(const sym_info *s, const inv_map *v, int nR, const double complex *src,
+                      double complex *dst)
 {
     int n = s->norb, nc = v->nclass;
     memset(dst, 0, (size_t)nR * n * n * sizeof *dst);
@@ -228,7 +238,8 @@ double symfit_norm_bound(int n, const double complex *A)
 static double sum_bound(int n, int nR, const double complex *E)
 {
     double sum = 0;
-    for (int r = 0; r < nR; r++) sum += symfit_norm_bound(n, E + (size_t)r * n * n);
+    for (int r = 0; r < nR; r++)
+        sum += symfit_norm_bound(n, E + (size_t)r * n * n);
     return sum;
 }
 
@@ -240,18 +251,23 @@ static int model_from(const tb_model *m, const rset *rs, const double complex *E
     int rc = tb_model_copy(m, &c, err);
     if (rc != 0) return rc;
     size_t n2 = (size_t)m->norb * m->norb;
-    int (*R)[3] = malloc((size_t)rs->n * sizeof *R);
+    int(*R)[3] = malloc((size_t)rs->n * sizeof *R);
     int *deg = malloc((size_t)rs->n * sizeof *deg);
     double complex *H = malloc((size_t)rs->n * n2 * sizeof *H);
     if (!R || !deg || !H) {
-        free(R); free(deg); free(H);
+        free(R);
+        free(deg);
+        free(H);
         tb_model_free(c);
         return bs_fail(err, BS_ENOMEM, "out of memory for a model of %d lattice vectors", rs->n);
     }
     memcpy(R, rs->R, (size_t)rs->n * sizeof *R);
-    for (int r = 0; r < rs->n; r++) deg[r] = 1;
+    for (int r = 0; r < rs->n; r++)
+        deg[r] = 1;
     memcpy(H, E, (size_t)rs->n * n2 * sizeof *H);
-    free(c->R); free(c->deg); free(c->H);
+    free(c->R);
+    free(c->deg);
+    free(c->H);
     c->R = R;
     c->deg = deg;
     c->H = H;
@@ -267,14 +283,16 @@ static double complex *load_effective(const tb_model *m)
     double complex *E = malloc((size_t)m->nR * n2 * sizeof *E);
     if (!E) return NULL;
     for (int r = 0; r < m->nR; r++)
-        for (size_t i = 0; i < n2; i++) E[r * n2 + i] = m->H[r * n2 + i] / m->deg[r];
+        for (size_t i = 0; i < n2; i++)
+            E[r * n2 + i] = m->H[r * n2 + i] / m->deg[r];
     return E;
 }
 
 static int check_info(const tb_model *m, const sym_info *s, int which, bs_err *err)
 {
     if (s->norb != m->norb)
-        return bs_fail(err, BS_EINVAL, "symmetry information for %d states given for a model of %d", s->norb, m->norb);
+        return bs_fail(err, BS_EINVAL, "symmetry information for %d states given for a model of %d", s->norb,
+                       m->norb);
     if ((which & SYMFIT_INV) && (s->inv_source == SYM_INV_NONE || !s->inv_perm))
         return bs_fail(err, BS_EINVAL, "no inversion operator to average over");
     if ((which & SYMFIT_TR) && !s->tr_perm)
@@ -298,20 +316,23 @@ static double power_norm(int n, const double complex *D, double complex *v, doub
         v[i] = (double)(z >> 11) * 0x1.0p-53 + 0.5 + I * ((double)((z >> 7) & 0xffff) / 65536.0 - 0.5);
         nv += creal(v[i] * conj(v[i]));
     }
-    for (int i = 0; i < n; i++) v[i] /= sqrt(nv);
+    for (int i = 0; i < n; i++)
+        v[i] /= sqrt(nv);
     double best = 0;
     for (int step = 0; step < POWER_STEPS; step++) {
         double nw = 0;
         for (int a = 0; a < n; a++) {
             double complex acc = 0;
-            for (int b = 0; b < n; b++) acc += D[a + (size_t)b * n] * v[b];
+            for (int b = 0; b < n; b++)
+                acc += D[a + (size_t)b * n] * v[b];
             w[a] = acc;
             nw += creal(acc * conj(acc));
         }
         nw = sqrt(nw);
         if (nw > best) best = nw;
         if (nw == 0) break;
-        for (int a = 0; a < n; a++) v[a] = w[a] / nw;
+        for (int a = 0; a < n; a++)
+            v[a] = w[a] / nw;
     }
     return best;
 }
@@ -322,7 +343,8 @@ static int mesh_norm(const tb_model *d, int mesh, double *out, bs_err *err)
 {
     *out = 0;
     int n = d->norb, nk = 1;
-    for (int i = 0; i < d->dim; i++) nk *= mesh;
+    for (int i = 0; i < d->dim; i++)
+        nk *= mesh;
     const int batch = 16;
     hk_engine *hk = NULL;
     double complex *H = malloc((size_t)batch * n * n * sizeof *H), *v = malloc((size_t)2 * n * sizeof *v);
@@ -339,7 +361,8 @@ static int mesh_norm(const tb_model *d, int mesh, double *out, bs_err *err)
             }
         }
         rc = hk_build(hk, nb, k, H, err);
-        for (int j = 0; rc == 0 && j < nb; j++) *out = fmax(*out, power_norm(n, H + (size_t)j * n * n, v, v + n));
+        for (int j = 0; rc == 0 && j < nb; j++)
+            *out = fmax(*out, power_norm(n, H + (size_t)j * n * n, v, v + n));
     }
     hk_free(hk);
     free(H);
@@ -353,7 +376,8 @@ static int default_mesh(const tb_model *m)
 {
     int rmax = 0;
     for (int r = 0; r < m->nR; r++)
-        for (int d = 0; d < m->dim; d++) rmax = abs(m->R[r][d]) > rmax ? abs(m->R[r][d]) : rmax;
+        for (int d = 0; d < m->dim; d++)
+            rmax = abs(m->R[r][d]) > rmax ? abs(m->R[r][d]) : rmax;
     int n = 2 * rmax + 2;
     if (m->dim == 2) {
         n = n < 6 ? 6 : 6 * ((n + 5) / 6);
@@ -365,8 +389,8 @@ static int default_mesh(const tb_model *m)
 
 /* Fills b from the difference D (rs.n matrices) and the reference E: upper and relative bounds,
  * and the mesh maximum unless mesh is 0. */
-static int fill_break(const tb_model *m, const rset *rs, const double complex *E, const double complex *D, int mesh,
-                      symfit_break *b, bs_err *err)
+static int fill_break(const tb_model *m, const rset *rs, const double complex *E, const double complex *D,
+                      int mesh, symfit_break *b, bs_err *err)
 {
     int n = m->norb;
     double norm = sum_bound(n, rs->n, E);
@@ -392,12 +416,13 @@ double symfit_estimate(const symfit_break *b, const char **which)
     return use_mesh ? mesh : b->upper_ev;
 }
 
-int symfit_measure(const tb_model *m, const sym_info *s, int which, const symfit_opts *o,
-                   symfit_break *out, bs_err *err)
+int symfit_measure(const tb_model *m, const sym_info *s, int which, const symfit_opts *o, symfit_break *out,
+                   bs_err *err)
 {
     memset(out, 0, sizeof *out);
     if (which == SYMFIT_INV && (s->inv_source == SYM_INV_NONE || !s->inv_perm)) return 0;
-    if (which != SYMFIT_TR && which != SYMFIT_INV) return bs_fail(err, BS_EINVAL, "measure one operation at a time");
+    if (which != SYMFIT_TR && which != SYMFIT_INV)
+        return bs_fail(err, BS_EINVAL, "measure one operation at a time");
     int rc = check_info(m, s, which, err);
     if (rc != 0) return rc;
     int n = m->norb, mesh = o && o->mesh > 0 ? o->mesh : default_mesh(m);
@@ -418,9 +443,12 @@ int symfit_measure(const tb_model *m, const sym_info *s, int which, const symfit
         rc = bs_fail(err, BS_ENOMEM, "out of memory for the breaking measure");
         goto done;
     }
-    if (which == SYMFIT_TR) apply_tr(s, rs.n, E, G);
-    else apply_inv(s, &v, rs.n, E, G);
-    for (size_t i = 0; i < (size_t)rs.n * n2; i++) G[i] = E[i] - G[i];
+    if (which == SYMFIT_TR)
+        apply_tr(s, rs.n, E, G);
+    else
+        apply_inv(s, &v, rs.n, E, G);
+    for (size_t i = 0; i < (size_t)rs.n * n2; i++)
+        G[i] = E[i] - G[i];
     rc = fill_break(m, &rs, E, G, mesh, out, err);
 done:
     free(E);
@@ -440,8 +468,10 @@ static int make_commute(sym_info *s, bs_err *err)
     int n = s->norb;
     for (int a = 0; a < n; a++) {
         int t = s->tr_perm[a], p = s->inv_perm[a];
-        if (s->tr_perm[p] != s->inv_perm[t] || memcmp(s->inv_shift[a], s->inv_shift[t], sizeof s->inv_shift[a]) != 0)
-            return bs_fail(err, BS_EINVAL, "the maps of inversion and time reversal do not commute at state %d", a + 1);
+        if (s->tr_perm[p] != s->inv_perm[t] ||
+            memcmp(s->inv_shift[a], s->inv_shift[t], sizeof s->inv_shift[a]) != 0)
+            return bs_fail(err, BS_EINVAL,
+                           "the maps of inversion and time reversal do not commute at state %d", a + 1);
     }
     double complex *x = s->inv_factor;
     const double complex *u = s->tr_factor;
@@ -466,7 +496,8 @@ static void make_involution(sym_info *s)
     for (int a = 0; a < s->norb; a++) {
         int p = s->inv_perm[a];
         if (p < a) continue;
-        if (p == a) x[a] = creal(x[a]) < 0 ? -1.0 : 1.0;
+        if (p == a)
+            x[a] = creal(x[a]) < 0 ? -1.0 : 1.0;
         else {
             x[a] /= cabs(x[a]);
             x[p] = conj(x[a]);
@@ -481,8 +512,10 @@ int symfit_symmetrise(const tb_model *m, sym_info *s, int which, const symfit_op
     if (moved) memset(moved, 0, sizeof *moved);
     if (which < 1 || which > 3) return bs_fail(err, BS_EINVAL, "nothing to symmetrise over");
     int rc = check_info(m, s, which, err);
-    if (rc == 0 && which == (SYMFIT_TR | SYMFIT_INV)) rc = make_commute(s, err);
-    else if (rc == 0 && which == SYMFIT_INV) make_involution(s);
+    if (rc == 0 && which == (SYMFIT_TR | SYMFIT_INV))
+        rc = make_commute(s, err);
+    else if (rc == 0 && which == SYMFIT_INV)
+        make_involution(s);
     if (rc != 0) return rc;
     int n = m->norb;
     size_t n2 = (size_t)n * n;
@@ -509,14 +542,17 @@ int symfit_symmetrise(const tb_model *m, sym_info *s, int which, const symfit_op
     double w = which == 3 ? 0.25 : 0.5;
     if (which & SYMFIT_TR) {
         apply_tr(s, rs.n, E, A);
-        for (size_t i = 0; i < total; i++) S[i] += A[i];
+        for (size_t i = 0; i < total; i++)
+            S[i] += A[i];
     }
     if (which & SYMFIT_INV) {
         apply_inv(s, &v, rs.n, E, B);
-        for (size_t i = 0; i < total; i++) S[i] += B[i];
+        for (size_t i = 0; i < total; i++)
+            S[i] += B[i];
         if (which & SYMFIT_TR) {
             apply_inv(s, &v, rs.n, A, B);
-            for (size_t i = 0; i < total; i++) S[i] += B[i];
+            for (size_t i = 0; i < total; i++)
+                S[i] += B[i];
         }
     }
     for (size_t i = 0; i < total; i++) {
@@ -558,9 +594,13 @@ double symfit_confidence_factor(double margin)
 const char *symfit_verdict_name(int v)
 {
     switch (v) {
-    case SYMFIT_EXACT: return "exact";
-    case SYMFIT_APPROX: return "approximate";
-    case SYMFIT_BROKEN: return "broken";
-    default: return "not applicable";
+    case SYMFIT_EXACT:
+        return "exact";
+    case SYMFIT_APPROX:
+        return "approximate";
+    case SYMFIT_BROKEN:
+        return "broken";
+    default:
+        return "not applicable";
     }
 }

@@ -16,7 +16,7 @@
 typedef struct sym_op {
     int *perm;
     double complex *fac;
-    int (*shift)[3];        /* NULL: no phases */
+    int (*shift)[3]; /* NULL: no phases */
     int anti;
 } sym_op;
 
@@ -97,7 +97,8 @@ static double complex op_phase(const sym_op *op, int i, const double k[3])
 static double op_residual(const sym_op *op, int n, const double k[3], const double complex *Hk,
                           const double complex *Hmk, double complex *ph, double *abs_ev)
 {
-    for (int a = 0; a < n; a++) ph[a] = op->fac[a] * op_phase(op, a, k);
+    for (int a = 0; a < n; a++)
+        ph[a] = op->fac[a] * op_phase(op, a, k);
     double diff2 = 0, norm2 = 0, maxabs = 0;
     for (int b = 0; b < n; b++) {
         int pb = op->perm[b];
@@ -121,11 +122,11 @@ typedef struct sym_ctx {
     const tb_model *m;
     hk_engine *hk;
     int nk;
-    double *kpts;           /* 6 * nk: pairs (k, -k) */
-    double complex *H;      /* 2 * norb^2 */
-    double complex *ph;     /* norb */
-    double complex *guess;  /* norb */
-    int *comp, *done;       /* norb each: block roots and bookkeeping of the factor solver */
+    double *kpts;          /* 6 * nk: pairs (k, -k) */
+    double complex *H;     /* 2 * norb^2 */
+    double complex *ph;    /* norb */
+    double complex *guess; /* norb */
+    int *comp, *done;      /* norb each: block roots and bookkeeping of the factor solver */
     double tol;
 } sym_ctx;
 
@@ -158,8 +159,8 @@ static int op_verify(sym_ctx *c, const sym_op *op, double *rel, double *abs_ev, 
  * any element: inversion leaves spin alone (+1), time reversal is i s_y on it (-1), whatever the
  * orbital phases. Without this a spin rotation combined with the map (a C2 about z for a flat
  * layer, say) could pass as "inversion" and anticommute with Theta. */
-static int solve_factors(sym_ctx *c, sym_op *op, const double complex *guess, double spin_ratio,
-                         int *comp, bs_err *err)
+static int solve_factors(sym_ctx *c, sym_op *op, const double complex *guess, double spin_ratio, int *comp,
+                         bs_err *err)
 {
     const tb_model *m = c->m;
     int n = m->norb;
@@ -194,7 +195,7 @@ static int solve_factors(sym_ctx *c, sym_op *op, const double complex *guess, do
             op->fac[v] = guess[v];
         } else if (mate[v] == u) {
             comp[v] = comp[u];
-            op->fac[v] = spin_ratio * op->fac[u];     /* spin_ratio = +-1 is its own inverse */
+            op->fac[v] = spin_ratio * op->fac[u]; /* spin_ratio = +-1 is its own inverse */
         } else {
             double complex h = Hk[v + (size_t)u * n];
             double complex g = op->anti ? conj(h) : op_phase(op, v, k) * conj(op_phase(op, u, k)) * h;
@@ -300,7 +301,8 @@ static int same_site(const double *x, const double *y, int dim, const site_tol *
         double cart2 = 0;
         for (int j = 0; j < 3; j++) {
             double cj = 0;
-            for (int d = 0; d < 3; d++) cj += rem[d] * tol->lat[d][j];
+            for (int d = 0; d < 3; d++)
+                cj += rem[d] * tol->lat[d][j];
             cart2 += cj * cj;
         }
         if (!(sqrt(cart2) <= tol->ang)) return 0;
@@ -336,7 +338,8 @@ static int match_positions(const tb_model *m, const double c[3], const site_tol 
     memset(used, 0, (size_t)ns * sizeof *used);
     for (int a = 0; a < ns; a++) {
         double t[3];
-        for (int d = 0; d < 3; d++) t[d] = 2.0 * c[d] - m->orb_pos[a][d];
+        for (int d = 0; d < 3; d++)
+            t[d] = 2.0 * c[d] - m->orb_pos[a][d];
         int found = -1;
         for (int b = 0; b < ns && found < 0; b++) {
             if (m->orb_l[b] != m->orb_l[a] || rank[b] != rank[a] || size[b] != size[a]) continue;
@@ -356,7 +359,8 @@ static void expand_spatial(const tb_model *m, const int *sperm, const int (*sshi
         int o = tb_state_orbital(m, i), s = tb_state_spin(m, i);
         op->perm[i] = tb_state_index(m, sperm[o], s);
         op->fac[i] = (m->orb_l[o] % 2) ? -1.0 : 1.0;
-        for (int d = 0; d < 3; d++) op->shift[i][d] = m->dim == 2 && d == 2 ? 0 : sshift[o][d];
+        for (int d = 0; d < 3; d++)
+            op->shift[i][d] = m->dim == 2 && d == 2 ? 0 : sshift[o][d];
     }
 }
 
@@ -369,8 +373,8 @@ static int card_operator(const tb_model *m, sym_op *op, bs_err *err)
         return bs_fail(err, BS_EINVAL, "inversion operator flagged but its arrays are missing");
     for (int i = 0; i < n; i++)
         if (m->inv_perm[i] < 0 || m->inv_perm[i] >= n)
-            return bs_fail(err, BS_EINVAL, "inversion operator: state %d maps to %d, outside 1..%d",
-                           i + 1, m->inv_perm[i] + 1, n);
+            return bs_fail(err, BS_EINVAL, "inversion operator: state %d maps to %d, outside 1..%d", i + 1,
+                           m->inv_perm[i] + 1, n);
     for (int i = 0; i < n; i++) {
         int j = m->inv_perm[i];
         if (fabs(fabs(m->inv_sign[i]) - 1.0) > 1e-9)
@@ -380,15 +384,17 @@ static int card_operator(const tb_model *m, sym_op *op, bs_err *err)
         for (int d = 0; d < 3; d++)
             if (m->inv_shift[j][d] != m->inv_shift[i][d] && !(m->dim == 2 && d == 2)) shift_ok = 0;
         if (m->inv_perm[j] != i || m->inv_sign[i] * m->inv_sign[j] < 0 || !shift_ok)
-            return bs_fail(err, BS_EINVAL, "inversion operator does not square to one: state %d -> %d -> %d "
-                           "(factors %g, %g)", i + 1, j + 1, m->inv_perm[j] + 1, m->inv_sign[i],
-                           m->inv_sign[j]);
+            return bs_fail(err, BS_EINVAL,
+                           "inversion operator does not square to one: state %d -> %d -> %d "
+                           "(factors %g, %g)",
+                           i + 1, j + 1, m->inv_perm[j] + 1, m->inv_sign[i], m->inv_sign[j]);
     }
     if (op_alloc(op, n, 1) != 0) return bs_fail(err, BS_ENOMEM, "out of memory for an operator");
     for (int i = 0; i < n; i++) {
         op->perm[i] = m->inv_perm[i];
         op->fac[i] = m->inv_sign[i] < 0 ? -1.0 : 1.0;
-        for (int d = 0; d < 3; d++) op->shift[i][d] = m->dim == 2 && d == 2 ? 0 : m->inv_shift[i][d];
+        for (int d = 0; d < 3; d++)
+            op->shift[i][d] = m->dim == 2 && d == 2 ? 0 : m->inv_shift[i][d];
     }
     return 0;
 }
@@ -406,7 +412,8 @@ static void keep_inversion(sym_info *s, sym_op *op, int source, const double c[3
     s->inv_source = source;
     s->inv_residual = rel;
     s->inv_residual_ev = ab;
-    for (int d = 0; d < 3; d++) s->inv_centre[d] = c ? c[d] : 0.0;
+    for (int d = 0; d < 3; d++)
+        s->inv_centre[d] = c ? c[d] : 0.0;
 }
 
 static void note_append(sym_info *s, const char *text)
@@ -448,8 +455,8 @@ static int inversion_from_positions(sym_ctx *c, sym_info *s, const site_tol *pos
     int ns = m->nspatial, rc = 0, matched = 0;
     int *rank = malloc((size_t)ns * sizeof *rank), *size = malloc((size_t)ns * sizeof *size);
     int *sperm = malloc((size_t)ns * sizeof *sperm), *used = malloc((size_t)ns * sizeof *used);
-    int (*sshift)[3] = malloc((size_t)ns * sizeof *sshift);
-    double (*tried)[3] = malloc((size_t)(ns + 1) * sizeof *tried);
+    int(*sshift)[3] = malloc((size_t)ns * sizeof *sshift);
+    double(*tried)[3] = malloc((size_t)(ns + 1) * sizeof *tried);
     sym_op op = {0};
     if (!rank || !size || !sperm || !used || !sshift || !tried) {
         rc = bs_fail(err, BS_ENOMEM, "out of memory matching %d orbital positions", ns);
@@ -467,7 +474,8 @@ static int inversion_from_positions(sym_ctx *c, sym_info *s, const site_tol *pos
             }
         }
         int seen = 0;
-        for (int t = 0; t < ntried && !seen; t++) seen = same_centre2(tried[t], c2, m->dim, pos_tol);
+        for (int t = 0; t < ntried && !seen; t++)
+            seen = same_centre2(tried[t], c2, m->dim, pos_tol);
         if (seen) continue;
         memcpy(tried[ntried++], c2, sizeof c2);
         if (!match_positions(m, centre, pos_tol, rank, size, sperm, sshift, used)) continue;
@@ -476,7 +484,7 @@ static int inversion_from_positions(sym_ctx *c, sym_info *s, const site_tol *pos
             rc = bs_fail(err, BS_ENOMEM, "out of memory for an operator");
             goto done;
         }
-        expand_spatial(m, sperm, (const int (*)[3])sshift, &op);
+        expand_spatial(m, sperm, (const int(*)[3])sshift, &op);
         memcpy(c->guess, op.fac, (size_t)m->norb * sizeof *op.fac);
         rc = solve_factors(c, &op, c->guess, 1.0, c->comp, err);
         if (rc != 0) goto done;
@@ -484,7 +492,8 @@ static int inversion_from_positions(sym_ctx *c, sym_info *s, const site_tol *pos
         rc = consider(c, s, &op, SYM_INV_POSITIONS, centre, err);
         if (rc != 0) goto done;
     }
-    if (!matched) note_append(s, "no orbital map r -> 2c - r preserves positions and l");
+    if (!matched)
+        note_append(s, "no orbital map r -> 2c - r preserves positions and l");
     else if (!s->inversion) {
         char text[96];
         snprintf(text, sizeof text, "inversion from positions fails on H(k): residual %.3g", s->inv_residual);
@@ -492,7 +501,12 @@ static int inversion_from_positions(sym_ctx *c, sym_info *s, const site_tol *pos
     }
 done:
     op_clear(&op);
-    free(rank); free(size); free(sperm); free(used); free(sshift); free(tried);
+    free(rank);
+    free(size);
+    free(sperm);
+    free(used);
+    free(sshift);
+    free(tried);
     return rc;
 }
 
@@ -600,7 +614,7 @@ int sym_detect(const tb_model *m, const sym_opts *opts, sym_info **out, bs_err *
     if (rc != 0) goto done;
     draw_kpoints(&c, o.seed);
     rc = detect_tr(&c, s, err);
-    site_tol st = {o.pos_tol, o.pos_tol_ang, (const double (*)[3])m->lattice};
+    site_tol st = {o.pos_tol, o.pos_tol_ang, (const double(*)[3])m->lattice};
     if (rc == 0 && !o.skip_inversion) rc = detect_inversion(&c, s, &st, err);
     if (rc == 0 && s->time_reversal && s->inversion) s->inv_commutes_tr = inversion_commutes(s);
     if (rc == 0) {
@@ -633,7 +647,8 @@ void sym_info_free(sym_info *s)
 static double complex inv_factor(const sym_info *s, int i, const double k[3])
 {
     double kr = 0;
-    for (int d = 0; d < 3; d++) kr += (s->dim == 2 && d == 2 ? 0.0 : k[d]) * s->inv_shift[i][d];
+    for (int d = 0; d < 3; d++)
+        kr += (s->dim == 2 && d == 2 ? 0.0 : k[d]) * s->inv_shift[i][d];
     return s->inv_factor[i] * cexp(2.0 * M_PI * I * kr);
 }
 
@@ -642,7 +657,8 @@ int sym_inversion_matrix(const sym_info *s, const double k[3], double complex *P
     if (s->inv_source == SYM_INV_NONE || !s->inv_perm) return BS_EINVAL;
     int n = s->norb;
     memset(P, 0, (size_t)n * n * sizeof *P);
-    for (int i = 0; i < n; i++) P[s->inv_perm[i] + (size_t)i * n] = inv_factor(s, i, k);
+    for (int i = 0; i < n; i++)
+        P[s->inv_perm[i] + (size_t)i * n] = inv_factor(s, i, k);
     return 0;
 }
 
@@ -654,7 +670,8 @@ int sym_inversion_apply(const sym_info *s, const double k[3], int ncol, const do
     for (int i = 0; i < n; i++) {
         double complex f = inv_factor(s, i, k);
         int p = s->inv_perm[i];
-        for (int j = 0; j < ncol; j++) out[p + (size_t)j * n] = f * V[i + (size_t)j * n];
+        for (int j = 0; j < ncol; j++)
+            out[p + (size_t)j * n] = f * V[i + (size_t)j * n];
     }
     return 0;
 }
@@ -663,5 +680,6 @@ void sym_tr_matrix(const sym_info *s, double complex *U)
 {
     int n = s->norb;
     memset(U, 0, (size_t)n * n * sizeof *U);
-    for (int i = 0; i < n; i++) U[s->tr_perm[i] + (size_t)i * n] = s->tr_factor[i];
+    for (int i = 0; i < n; i++)
+        U[s->tr_perm[i] + (size_t)i * n] = s->tr_factor[i];
 }

@@ -20,13 +20,13 @@
 struct bp_eval {
     const tb_model *m;
     hk_engine *hk;
-    hk_lines *lines;    /* partial sums for batches along mesh rows */
+    hk_lines *lines; /* partial sums for batches along mesh rows */
     eig_ws *ws;
     int norb, nocc, dim, batch, use_range;
     double deadline;
     const eig_dist *dist; /* borrowed, NULL: LAPACK */
-    double complex *H;  /* batch * norb^2 */
-    double *w;          /* norb */
+    double complex *H;    /* batch * norb^2 */
+    double *w;            /* norb */
     long long count;
 };
 
@@ -35,7 +35,10 @@ int bp_create(const tb_model *m, hk_engine *hk, double deadline, bp_eval **out, 
     return bp_create_dist(m, hk, NULL, deadline, out, err);
 }
 
-const eig_dist *bp_solver(const bp_eval *e) { return e->dist; }
+const eig_dist *bp_solver(const bp_eval *e)
+{
+    return e->dist;
+}
 
 int bp_create_dist(const tb_model *m, hk_engine *hk, const eig_dist *dist, double deadline, bp_eval **out,
                    bs_err *err)
@@ -60,8 +63,7 @@ int bp_create_dist(const tb_model *m, hk_engine *hk, const eig_dist *dist, doubl
     e->H = malloc((size_t)e->batch * e->norb * e->norb * sizeof *e->H);
     e->w = malloc((size_t)e->norb * sizeof *e->w);
     int rc = 0;
-    if (!e->H || !e->w)
-        rc = bs_fail(err, BS_ENOMEM, "bandpair: out of memory for %d matrices", e->batch);
+    if (!e->H || !e->w) rc = bs_fail(err, BS_ENOMEM, "bandpair: out of memory for %d matrices", e->batch);
     if (rc == 0) rc = eig_create_dist(e->norb, dist, &e->ws, err);
     if (rc == 0) rc = hk_lines_create(e->hk, &e->lines, err);
     if (rc != 0) {
@@ -82,8 +84,14 @@ void bp_free(bp_eval *e)
     free(e);
 }
 
-long long bp_count(const bp_eval *e) { return e->count; }
-int bp_dim(const bp_eval *e) { return e->dim; }
+long long bp_count(const bp_eval *e)
+{
+    return e->count;
+}
+int bp_dim(const bp_eval *e)
+{
+    return e->dim;
+}
 
 int bp_bands(bp_eval *e, int nk, const double *k, double *lo, double *hi, bs_err *err)
 {
@@ -131,7 +139,8 @@ int bp_mesh_eval_offset(bp_eval *e, int n, const double off[3], bp_mesh **out, b
     g->dim = e->dim;
     g->n = n;
     g->npts = e->dim == 3 ? n * n * n : n * n;
-    for (int a = 0; a < 3; a++) g->off[a] = a < e->dim ? off[a] : 0.0;
+    for (int a = 0; a < 3; a++)
+        g->off[a] = a < e->dim ? off[a] : 0.0;
     g->lo = malloc((size_t)g->npts * sizeof *g->lo);
     g->hi = malloc((size_t)g->npts * sizeof *g->hi);
     int chunk = e->batch;
@@ -144,7 +153,8 @@ int bp_mesh_eval_offset(bp_eval *e, int n, const double off[3], bp_mesh **out, b
     for (int r0 = 0; rc == 0 && r0 < g->npts; r0 += n)
         for (int i0 = r0; rc == 0 && i0 < r0 + n; i0 += chunk) {
             int nb = r0 + n - i0 < chunk ? r0 + n - i0 : chunk;
-            for (int j = 0; j < nb; j++) bp_mesh_k(g, i0 + j, k + 3 * j);
+            for (int j = 0; j < nb; j++)
+                bp_mesh_k(g, i0 + j, k + 3 * j);
             rc = bp_bands(e, nb, k, g->lo + i0, g->hi + i0, err);
         }
     free(k);
@@ -273,17 +283,21 @@ static int fit_quad(bp_eval *e, int what, const double x[3], double r, double gr
         double row[10];
         int c = 0;
         row[c++] = 1.0;
-        for (int a = 0; a < dim; a++) row[c++] = d[a];
         for (int a = 0; a < dim; a++)
-            for (int b = a; b < dim; b++) row[c++] = a == b ? 0.5 * d[a] * d[a] : d[a] * d[b];
-        for (int j = 0; j < nc; j++) M[p + np * j] = row[j];
+            row[c++] = d[a];
+        for (int a = 0; a < dim; a++)
+            for (int b = a; b < dim; b++)
+                row[c++] = a == b ? 0.5 * d[a] * d[a] : d[a] * d[b];
+        for (int j = 0; j < nc; j++)
+            M[p + np * j] = row[j];
         double g = fval(what, lo[p], hi[p]);
         y[p] = what == BP_GAP ? g * g : g;
     }
     if (LAPACKE_dgels(LAPACK_COL_MAJOR, 'N', np, nc, 1, M, np, y, np) != 0) return 1;
     memset(vec, 0, 9 * sizeof *vec);
     int c = 1;
-    for (int a = 0; a < dim; a++) grad[a] = y[c++];
+    for (int a = 0; a < dim; a++)
+        grad[a] = y[c++];
     for (int a = 0; a < dim; a++)
         for (int b = a; b < dim; b++) {
             vec[a + dim * b] = y[c];
@@ -296,8 +310,8 @@ static int fit_quad(bp_eval *e, int what, const double x[3], double r, double gr
 
 /* The Newton point of the fit restricted to the fit's positive curvatures: along a nodal line the
  * curvature vanishes and only the perpendicular part of the step is taken. Returns as fit_quad. */
-static int quad_fit_step(bp_eval *e, int what, const double x[3], double r, double xn[3],
-                         stencil_best *sb, bs_err *err)
+static int quad_fit_step(bp_eval *e, int what, const double x[3], double r, double xn[3], stencil_best *sb,
+                         bs_err *err)
 {
     int dim = e->dim;
     double grad[3] = {0}, A[9], ev[3];
@@ -309,14 +323,18 @@ static int quad_fit_step(bp_eval *e, int what, const double x[3], double r, doub
     for (int j = 0; j < dim; j++) {
         if (ev[j] <= 1e-6 * emax) continue;
         double proj = 0;
-        for (int a = 0; a < dim; a++) proj += A[a + dim * j] * grad[a];
-        for (int a = 0; a < dim; a++) step[a] -= A[a + dim * j] * proj / ev[j];
+        for (int a = 0; a < dim; a++)
+            proj += A[a + dim * j] * grad[a];
+        for (int a = 0; a < dim; a++)
+            step[a] -= A[a + dim * j] * proj / ev[j];
     }
     double len = 0;
-    for (int a = 0; a < dim; a++) len += step[a] * step[a];
+    for (int a = 0; a < dim; a++)
+        len += step[a] * step[a];
     len = sqrt(len);
     double scale = len > 3.0 ? 3.0 / len : 1.0; /* trust region of three stencil spacings */
-    for (int a = 0; a < 3; a++) xn[a] = x[a] + (a < dim ? r * scale * step[a] : 0.0);
+    for (int a = 0; a < 3; a++)
+        xn[a] = x[a] + (a < dim ? r * scale * step[a] : 0.0);
     return 0;
 }
 
@@ -326,7 +344,8 @@ int bp_gap_curvature(bp_eval *e, const double k[3], double r, double ev[3], doub
     int rc = fit_quad(e, BP_GAP, k, r, grad, vec, ev, NULL, err);
     if (rc < 0) return rc;
     if (rc > 0) return bs_fail(err, BS_ENUMERIC, "gap curvature: least-squares fit failed");
-    for (int j = 0; j < e->dim; j++) ev[j] /= r * r;
+    for (int j = 0; j < e->dim; j++)
+        ev[j] /= r * r;
     if (e->dim == 2) ev[2] = 0.0;
     return 0;
 }
@@ -367,7 +386,8 @@ int bp_minimise(bp_eval *e, int what, const double k0[3], double step0, double t
             continue;
         }
         double len = 0;
-        for (int a = 0; a < dim; a++) len += (xn[a] - x[a]) * (xn[a] - x[a]);
+        for (int a = 0; a < dim; a++)
+            len += (xn[a] - x[a]) * (xn[a] - x[a]);
         len = sqrt(len);
         memcpy(x, xn, sizeof xn);
         fx = fn;
@@ -389,4 +409,3 @@ int bp_minimise(bp_eval *e, int what, const double k0[3], double step0, double t
     if (hi) *hi = hx;
     return 0;
 }
-

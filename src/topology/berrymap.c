@@ -52,11 +52,12 @@ static double complex link(const double complex *A, const double complex *B, int
                            double complex *M, lapack_int *ipiv)
 {
     const double complex one = 1, zero = 0;
-    cblas_zgemm(CblasColMajor, CblasConjTrans, CblasNoTrans, nband, nband, norb, &one, A, norb, B, norb, &zero, M,
-                nband);
+    cblas_zgemm(CblasColMajor, CblasConjTrans, CblasNoTrans, nband, nband, norb, &one, A, norb, B, norb,
+                &zero, M, nband);
     if (LAPACKE_zgetrf(LAPACK_COL_MAJOR, nband, nband, M, nband, ipiv) < 0) return 1;
     double complex d = 1;
-    for (int i = 0; i < nband; i++) d *= (ipiv[i] != i + 1 ? -1 : 1) * M[(size_t)i * nband + i];
+    for (int i = 0; i < nband; i++)
+        d *= (ipiv[i] != i + 1 ? -1 : 1) * M[(size_t)i * nband + i];
     double a = cabs(d);
     return a > 0 ? d / a : 1;
 }
@@ -65,11 +66,12 @@ int berry_map_plane(const tb_model *m, int nband, int fixed_axis, double kfixed,
                     bs_err *err)
 {
     memset(out, 0, sizeof *out);
-    if (nband < 1 || nband >= m->norb) return bs_fail(err, BS_EINVAL, "Berry map: %d bands of %d", nband, m->norb);
+    if (nband < 1 || nband >= m->norb)
+        return bs_fail(err, BS_EINVAL, "Berry map: %d bands of %d", nband, m->norb);
     if (n < 4 || n > 400) return bs_fail(err, BS_EINVAL, "Berry map: mesh %d outside 4..400", n);
     if (fixed_axis < 0 || fixed_axis > 2 || (m->dim == 2 && fixed_axis != 2))
-        return bs_fail(err, BS_EINVAL, "Berry map: plane normal to axis %d not available in %dD", fixed_axis + 1,
-                       m->dim);
+        return bs_fail(err, BS_EINVAL, "Berry map: plane normal to axis %d not available in %dD",
+                       fixed_axis + 1, m->dim);
     int fa = (fixed_axis + 1) % 3, fb = (fixed_axis + 2) % 3;
     size_t blk = (size_t)m->norb * nband;
     double complex *U = malloc((size_t)n * n * blk * sizeof *U);
@@ -85,7 +87,8 @@ int berry_map_plane(const tb_model *m, int nband, int fixed_axis, double kfixed,
     double cr[3] = {b[fa][1] * b[fb][2] - b[fa][2] * b[fb][1], b[fa][2] * b[fb][0] - b[fa][0] * b[fb][2],
                     b[fa][0] * b[fb][1] - b[fa][1] * b[fb][0]};
     double area = sqrt(cr[0] * cr[0] + cr[1] * cr[1] + cr[2] * cr[2]) / ((double)n * n);
-    double orient = cr[0] * b[fixed_axis][0] + cr[1] * b[fixed_axis][1] + cr[2] * b[fixed_axis][2] >= 0 ? 1 : -1;
+    double orient =
+        cr[0] * b[fixed_axis][0] + cr[1] * b[fixed_axis][1] + cr[2] * b[fixed_axis][2] >= 0 ? 1 : -1;
     double total = 0;
     for (int ia = 0; rc == 0 && ia < n; ia++)
         for (int ib = 0; ib < n; ib++) {
@@ -93,8 +96,9 @@ int berry_map_plane(const tb_model *m, int nband, int fixed_axis, double kfixed,
             const double complex *u10 = U + ((size_t)((ia + 1) % n) * n + ib) * blk;
             const double complex *u11 = U + ((size_t)((ia + 1) % n) * n + (ib + 1) % n) * blk;
             const double complex *u01 = U + ((size_t)ia * n + (ib + 1) % n) * blk;
-            double complex loop = link(u00, u10, m->norb, nband, M, ipiv) * link(u10, u11, m->norb, nband, M, ipiv) *
-                                  link(u11, u01, m->norb, nband, M, ipiv) * link(u01, u00, m->norb, nband, M, ipiv);
+            double complex loop =
+                link(u00, u10, m->norb, nband, M, ipiv) * link(u10, u11, m->norb, nband, M, ipiv) *
+                link(u11, u01, m->norb, nband, M, ipiv) * link(u01, u00, m->norb, nband, M, ipiv);
             double F = -orient * carg(loop);
             total += F;
             if (fabs(F) > out->max_f) out->max_f = fabs(F);

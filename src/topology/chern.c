@@ -32,13 +32,13 @@ struct chern_ws {
     const tb_model *m;
     int norb, nband;
     occ_ws *occ;
-    int cap;                    /* points per row the buffers hold */
-    double complex *row[3];     /* cap x norb x nband each */
-    double complex *link[4];    /* cap each: a-links of the first, previous, current row; b-links */
-    double *k;                  /* 3 cap */
-    double *gap;                /* cap */
-    double complex *M;          /* nband x nband */
-    lapack_int *ipiv;           /* nband */
+    int cap;                 /* points per row the buffers hold */
+    double complex *row[3];  /* cap x norb x nband each */
+    double complex *link[4]; /* cap each: a-links of the first, previous, current row; b-links */
+    double *k;               /* 3 cap */
+    double *gap;             /* cap */
+    double complex *M;       /* nband x nband */
+    lapack_int *ipiv;        /* nband */
 };
 
 /* Running totals over one mesh. */
@@ -89,8 +89,10 @@ done:
 
 static void free_rows(chern_ws *w)
 {
-    for (int i = 0; i < 3; i++) free(w->row[i]), w->row[i] = NULL;
-    for (int i = 0; i < 4; i++) free(w->link[i]), w->link[i] = NULL;
+    for (int i = 0; i < 3; i++)
+        free(w->row[i]), w->row[i] = NULL;
+    for (int i = 0; i < 4; i++)
+        free(w->link[i]), w->link[i] = NULL;
     free(w->k);
     free(w->gap);
     w->k = NULL;
@@ -115,28 +117,28 @@ static int reserve(chern_ws *w, int np, bs_err *err)
     free_rows(w);
     size_t blk = (size_t)w->norb * (size_t)w->nband * (size_t)np;
     int ok = 1;
-    for (int i = 0; i < 3; i++) ok &= (w->row[i] = malloc(blk * sizeof(double complex))) != NULL;
+    for (int i = 0; i < 3; i++)
+        ok &= (w->row[i] = malloc(blk * sizeof(double complex))) != NULL;
     for (int i = 0; i < 4; i++)
         ok &= (w->link[i] = malloc((size_t)np * sizeof(double complex))) != NULL;
     ok &= (w->k = malloc(3 * (size_t)np * sizeof *w->k)) != NULL;
     ok &= (w->gap = malloc((size_t)np * sizeof *w->gap)) != NULL;
     if (!ok) {
         free_rows(w);
-        return bs_fail(err, BS_ENOMEM, "Chern mesh rows of %d points x %d x %d: out of memory", np,
-                       w->norb, w->nband);
+        return bs_fail(err, BS_ENOMEM, "Chern mesh rows of %d points x %d x %d: out of memory", np, w->norb,
+                       w->nband);
     }
     w->cap = np;
     return 0;
 }
 
 /* det(A^dagger B) / |det| for two norb x nband blocks; counts a nearly singular overlap. */
-static double complex link(chern_ws *w, const double complex *A, const double complex *B,
-                           sheet_acc *acc)
+static double complex link(chern_ws *w, const double complex *A, const double complex *B, sheet_acc *acc)
 {
     const double complex one = 1.0, zero = 0.0;
     int n = w->nband;
-    cblas_zgemm(CblasColMajor, CblasConjTrans, CblasNoTrans, n, n, w->norb, &one, A, w->norb, B,
-                w->norb, &zero, w->M, n);
+    cblas_zgemm(CblasColMajor, CblasConjTrans, CblasNoTrans, n, n, w->norb, &one, A, w->norb, B, w->norb,
+                &zero, w->M, n);
     lapack_int info = LAPACKE_zgetrf(LAPACK_COL_MAJOR, n, n, w->M, n, w->ipiv);
     double complex det = 1.0;
     if (info >= 0)
@@ -153,12 +155,12 @@ static double complex link(chern_ws *w, const double complex *A, const double co
 }
 
 /* States and a-links of one row of np points k = o + s da + t db, s = 0..np-1 (row t). */
-static int eval_row(chern_ws *w, const double o[3], const double da[3], const double db[3], int t,
-                    int np, int periodic, double complex *U, double complex *la, sheet_acc *acc,
-                    bs_err *err)
+static int eval_row(chern_ws *w, const double o[3], const double da[3], const double db[3], int t, int np,
+                    int periodic, double complex *U, double complex *la, sheet_acc *acc, bs_err *err)
 {
     for (int s = 0; s < np; s++)
-        for (int i = 0; i < 3; i++) w->k[3 * s + i] = o[i] + s * da[i] + t * db[i];
+        for (int i = 0; i < 3; i++)
+            w->k[3 * s + i] = o[i] + s * da[i] + t * db[i];
     int rc = occ_states(w->occ, np, w->k, U, w->gap, err);
     if (rc != 0) return rc;
     for (int s = 0; s < np; s++)
@@ -176,8 +178,8 @@ static int eval_row(chern_ws *w, const double o[3], const double da[3], const do
 /* Sums F over the mesh spanned by da, db from o: np x np points. periodic: the mesh is a torus
  * (np plaquettes per direction, the last row and column linking back to the first); otherwise an
  * open square of np - 1 plaquettes per direction. */
-static int sheet(chern_ws *w, const double o[3], const double da[3], const double db[3], int np,
-                 int periodic, double deadline, sheet_acc *acc, bs_err *err)
+static int sheet(chern_ws *w, const double o[3], const double da[3], const double db[3], int np, int periodic,
+                 double deadline, sheet_acc *acc, bs_err *err)
 {
     int rc = reserve(w, np, err);
     if (rc != 0) return rc;
@@ -198,7 +200,8 @@ static int sheet(chern_ws *w, const double o[3], const double da[3], const doubl
             cur = first;
             la_cur = la_first;
         }
-        for (int s = 0; s < np; s++) lb[s] = link(w, prev + s * blk, cur + s * blk, acc);
+        for (int s = 0; s < np; s++)
+            lb[s] = link(w, prev + s * blk, cur + s * blk, acc);
         for (int s = 0; s < ncol; s++) {
             double complex p = la_prev[s] * lb[(s + 1) % np] * conj(la_cur[s]) * conj(lb[s]);
             double f = carg(p);
@@ -223,8 +226,7 @@ static void acc_init(sheet_acc *a)
 }
 
 /* Turns totals into a value; returns 1 when the mesh should be refined. */
-static int judge(const sheet_acc *a, double sign, const chern_opts *o, int mesh, long long nk,
-                 chern_value *v)
+static int judge(const sheet_acc *a, double sign, const chern_opts *o, int mesh, long long nk, chern_value *v)
 {
     memset(v, 0, sizeof *v);
     /* U = <u(k)|u(k+dk)> ~ exp(-i A.dk) with A = i<u|grad u>, so the plaquette phase is -Omega dS:
@@ -250,22 +252,21 @@ static int judge(const sheet_acc *a, double sign, const chern_opts *o, int mesh,
     }
     v->status = RES_AMBIGUOUS;
     if (a->bad_links)
-        snprintf(v->reason, sizeof v->reason, "%d nearly orthogonal link overlaps at mesh %d",
-                 a->bad_links, mesh);
+        snprintf(v->reason, sizeof v->reason, "%d nearly orthogonal link overlaps at mesh %d", a->bad_links,
+                 mesh);
     else
-        snprintf(v->reason, sizeof v->reason, "max |F| %.2f rad above %.2f at mesh %d", a->max_f,
-                 o->fmax, mesh);
+        snprintf(v->reason, sizeof v->reason, "max |F| %.2f rad above %.2f at mesh %d", a->max_f, o->fmax,
+                 mesh);
     return 2 * mesh <= o->max_mesh;
 }
 
 static int check_opts(const chern_opts *o, bs_err *err)
 {
-    if (o->mesh < 2 || o->max_mesh < o->mesh || !(o->fmax > 0 && o->fmax < M_PI) ||
-        !(o->gap_tol_ev >= 0))
+    if (o->mesh < 2 || o->max_mesh < o->mesh || !(o->fmax > 0 && o->fmax < M_PI) || !(o->gap_tol_ev >= 0))
         return bs_fail(err, BS_EINVAL,
                        "Chern options: expected mesh >= 2, max_mesh >= mesh, 0 < fmax < pi, "
-                       "gap_tol >= 0; found %d, %d, %g, %g", o->mesh, o->max_mesh, o->fmax,
-                       o->gap_tol_ev);
+                       "gap_tol >= 0; found %d, %d, %g, %g",
+                       o->mesh, o->max_mesh, o->fmax, o->gap_tol_ev);
     return 0;
 }
 
@@ -301,8 +302,8 @@ int chern_plane(chern_ws *w, int p, const chern_opts *o, chern_value *out, bs_er
     return 0;
 }
 
-int chern_surface_flux(chern_ws *w, const double k0[3], double h, const chern_opts *o,
-                       chern_value *out, bs_err *err)
+int chern_surface_flux(chern_ws *w, const double k0[3], double h, const chern_opts *o, chern_value *out,
+                       bs_err *err)
 {
     chern_opts def;
     if (!o) {
@@ -316,8 +317,7 @@ int chern_surface_flux(chern_ws *w, const double k0[3], double h, const chern_op
         return bs_fail(err, BS_EINVAL, "Chern flux through a cube: expected a 3D model, found %dD",
                        w->m->dim);
     if (!(h > 0 && h <= 0.25) || !isfinite(k0[0]) || !isfinite(k0[1]) || !isfinite(k0[2]))
-        return bs_fail(err, BS_EINVAL,
-                       "Chern flux: expected 0 < h <= 0.25 and a finite k0, found h = %g", h);
+        return bs_fail(err, BS_EINVAL, "Chern flux: expected 0 < h <= 0.25 and a finite k0, found h = %g", h);
     double hand = occ_handedness(w->m);
     for (int n = o->mesh;; n *= 2) {
         sheet_acc acc;

@@ -70,7 +70,8 @@ int cz_mirror_planes(const cry_info *c, int iop, cz_mirror out[2], bs_err *err)
         for (int y = -2; y <= 2; y++)
             for (int z = -2; z <= 2; z++) {
                 int g[3] = {x, y, z}, same = (x || y || z);
-                for (int i = 0; i < 3 && same; i++) same = A[i][0] * x + A[i][1] * y + A[i][2] * z == g[i];
+                for (int i = 0; i < 3 && same; i++)
+                    same = A[i][0] * x + A[i][1] * y + A[i][2] * z == g[i];
                 if (same) memcpy(fixed[nf++], g, sizeof g);
             }
     int best = -1, bi = 0, bj = 0;
@@ -86,7 +87,8 @@ int cz_mirror_planes(const cry_info *c, int iop, cz_mirror out[2], bs_err *err)
     int n_int[3];
     cross_int(fixed[bi], fixed[bj], n_int);
     int g = gcd(gcd(n_int[0], n_int[1]), n_int[2]);
-    for (int i = 0; i < 3; i++) n_int[i] /= g;
+    for (int i = 0; i < 3; i++)
+        n_int[i] /= g;
     int nplanes = 1;
     out[0].op = iop;
     memcpy(out[0].g[0], fixed[bi], sizeof out[0].g[0]);
@@ -100,7 +102,8 @@ int cz_mirror_planes(const cry_info *c, int iop, cz_mirror out[2], bs_err *err)
         int off = n_int[0] * hv[0] + n_int[1] * hv[1] + n_int[2] * hv[2]; /* 2 (n . k0) */
         if (!inv || off % 2 == 0) continue;
         out[1] = out[0];
-        for (int i = 0; i < 3; i++) out[1].k0[i] = 0.5 * hv[i];
+        for (int i = 0; i < 3; i++)
+            out[1].k0[i] = 0.5 * hv[i];
         nplanes = 2;
     }
     return nplanes;
@@ -127,13 +130,15 @@ static int sector_states(sector_ws *s, const cry_info *c, int iop, const double 
     if (info != 0) return bs_fail(err, BS_ENUMERIC, "zheevd failed (info %d)", (int)info);
     *gap = s->w[no] - s->w[no - 1];
     cblas_zgemm(CblasColMajor, CblasNoTrans, CblasNoTrans, n, no, n, &one, s->V, n, s->H, n, &zero, s->T, n);
-    cblas_zgemm(CblasColMajor, CblasConjTrans, CblasNoTrans, no, no, n, &one, s->H, n, s->T, n, &zero, s->Mo, no);
+    cblas_zgemm(CblasColMajor, CblasConjTrans, CblasNoTrans, no, no, n, &one, s->H, n, s->T, n, &zero, s->Mo,
+                no);
     /* deviation of M^2 from -1 (spinful) or +1 */
     double sgn = s->spinful ? -1.0 : 1.0, d = 0.0;
     for (int i = 0; i < no; i++)
         for (int j = 0; j < no; j++) {
             double complex v = 0;
-            for (int q = 0; q < no; q++) v += s->Mo[i + q * no] * s->Mo[q + j * no];
+            for (int q = 0; q < no; q++)
+                v += s->Mo[i + q * no] * s->Mo[q + j * no];
             d = fmax(d, cabs(v - (i == j ? sgn : 0.0)));
         }
     *dev = d;
@@ -146,16 +151,19 @@ static int sector_states(sector_ws *s, const cry_info *c, int iop, const double 
     info = LAPACKE_zheevd(LAPACK_COL_MAJOR, 'V', 'U', no, s->vec, no, s->wm);
     if (info != 0) return bs_fail(err, BS_ENUMERIC, "zheevd failed on the mirror (info %d)", (int)info);
     int nminus = 0;
-    while (nminus < no && s->wm[nminus] < 0) nminus++;
+    while (nminus < no && s->wm[nminus] < 0)
+        nminus++;
     *np = no - nminus;
     /* sector states: psi times the eigenvectors into out (n x nocc); the eigenvalues ascend, so
      * the minus sector comes first and the plus sector starts at column nocc - np */
-    cblas_zgemm(CblasColMajor, CblasNoTrans, CblasNoTrans, n, no, no, &one, s->H, n, s->vec, no, &zero, out, n);
+    cblas_zgemm(CblasColMajor, CblasNoTrans, CblasNoTrans, n, no, no, &one, s->H, n, s->vec, no, &zero, out,
+                n);
     return 0;
 }
 
 /* Normalised det(a^+ b) of two n x nb blocks (the link variable). */
-static double complex link(int n, int nb, const double complex *x, const double complex *y, double complex *tmp)
+static double complex link(int n, int nb, const double complex *x, const double complex *y,
+                           double complex *tmp)
 {
     const double complex one = 1.0, zero = 0.0;
     cblas_zgemm(CblasColMajor, CblasConjTrans, CblasNoTrans, nb, nb, n, &one, x, n, y, n, &zero, tmp, nb);
@@ -164,7 +172,8 @@ static double complex link(int n, int nb, const double complex *x, const double 
     if (!ipiv) return 0.0;
     lapack_int info = LAPACKE_zgetrf(LAPACK_COL_MAJOR, nb, nb, tmp, nb, ipiv);
     if (info < 0) det = 0.0;
-    for (int i = 0; i < nb && info >= 0; i++) det *= (ipiv[i] != i + 1 ? -1.0 : 1.0) * tmp[i + (size_t)i * nb];
+    for (int i = 0; i < nb && info >= 0; i++)
+        det *= (ipiv[i] != i + 1 ? -1.0 : 1.0) * tmp[i + (size_t)i * nb];
     free(ipiv);
     double a = cabs(det);
     return a > 0 ? det / a : 0.0;
@@ -195,7 +204,8 @@ static void orient_plane(const tb_model *m, cz_mirror *pl)
     double b[3][3], v[2][3];
     tb_model_reciprocal(m, b);
     for (int a = 0; a < 2; a++)
-        for (int x = 0; x < 3; x++) v[a][x] = pl->g[a][0] * b[0][x] + pl->g[a][1] * b[1][x] + pl->g[a][2] * b[2][x];
+        for (int x = 0; x < 3; x++)
+            v[a][x] = pl->g[a][0] * b[0][x] + pl->g[a][1] * b[1][x] + pl->g[a][2] * b[2][x];
     double cr[3] = {v[0][1] * v[1][2] - v[0][2] * v[1][1], v[0][2] * v[1][0] - v[0][0] * v[1][2],
                     v[0][0] * v[1][1] - v[0][1] * v[1][0]};
     if (cr[0] * pl->normal[0] + cr[1] * pl->normal[1] + cr[2] * pl->normal[2] < 0) {
@@ -233,7 +243,8 @@ static int mirror_chern_at(const tb_model *m, const cry_info *c, cz_mirror *pl, 
     for (size_t p = 0; p < npts && rc == 0; p++) {
         int i = (int)(p / N), j = (int)(p % N), np = 0;
         double k[3], gap = 0.0, dev = 0.0;
-        for (int x = 0; x < 3; x++) k[x] = pl->k0[x] + (double)i / N * pl->g[0][x] + (double)j / N * pl->g[1][x];
+        for (int x = 0; x < 3; x++)
+            k[x] = pl->k0[x] + (double)i / N * pl->g[0][x] + (double)j / N * pl->g[1][x];
         double complex *base = store + p * (size_t)n * no;
         rc = sector_states(&s, c, pl->op, k, base, &np, &gap, &dev, err);
         if (rc != 0) break;
@@ -243,12 +254,14 @@ static int mirror_chern_at(const tb_model *m, const cry_info *c, cz_mirror *pl, 
         if (pl->n_plus < 0) pl->n_plus = np;
         if (np != pl->n_plus && pl->status == CZ_DONE) {
             pl->status = CZ_AMBIGUOUS;
-            snprintf(pl->reason, sizeof pl->reason, "mirror sector sizes change over the plane (%d, %d)", pl->n_plus, np);
+            snprintf(pl->reason, sizeof pl->reason, "mirror sector sizes change over the plane (%d, %d)",
+                     pl->n_plus, np);
         }
         if (dev > 1e-6 && pl->status == CZ_DONE) {
             pl->status = CZ_AMBIGUOUS;
-            snprintf(pl->reason, sizeof pl->reason, "mirror eigenvalues off %s by %.2g (glide or broken mirror)",
-                     m->spinful ? "+-i" : "+-1", dev);
+            snprintf(pl->reason, sizeof pl->reason,
+                     "mirror eigenvalues off %s by %.2g (glide or broken mirror)", m->spinful ? "+-i" : "+-1",
+                     dev);
         }
     }
     if (rc == 0 && pl->min_gap_ev < gap_tol_ev && pl->status == CZ_DONE) {
@@ -266,8 +279,8 @@ static int mirror_chern_at(const tb_model *m, const cry_info *c, cz_mirror *pl, 
         int diff = pl->c_plus - pl->c_minus;
         pl->mirror_chern = diff % 2 == 0 ? diff / 2 : diff;
         if (diff % 2 != 0)
-            snprintf(pl->reason, sizeof pl->reason, "sector Chern numbers %d and %d are not opposite", pl->c_plus,
-                     pl->c_minus);
+            snprintf(pl->reason, sizeof pl->reason, "sector Chern numbers %d and %d are not opposite",
+                     pl->c_plus, pl->c_minus);
     }
     pl->mesh = N;
     hk_free(s.e);
@@ -285,9 +298,11 @@ static int mirror_chern_at(const tb_model *m, const cry_info *c, cz_mirror *pl, 
     return rc;
 }
 
-int cz_mirror_chern(const tb_model *m, const cry_info *c, cz_mirror *pl, int mesh, double gap_tol_ev, bs_err *err)
+int cz_mirror_chern(const tb_model *m, const cry_info *c, cz_mirror *pl, int mesh, double gap_tol_ev,
+                    bs_err *err)
 {
-    if (m->nocc < 1 || m->nocc >= m->norb) return bs_fail(err, BS_EINVAL, "filling %d outside 1..%d", m->nocc, m->norb - 1);
+    if (m->nocc < 1 || m->nocc >= m->norb)
+        return bs_fail(err, BS_EINVAL, "filling %d outside 1..%d", m->nocc, m->norb - 1);
     if (mesh < 4) mesh = 24;
     orient_plane(m, pl);
     for (int N = mesh; N <= 4 * mesh; N *= 2) {
@@ -308,12 +323,18 @@ int cz_mirror_chern(const tb_model *m, const cry_info *c, cz_mirror *pl, int mes
 const char *cz_prediction_name(int kind)
 {
     switch (kind) {
-    case CZ_PRED_GENERIC_WEYL: return "Weyl pairs at generic k";
-    case CZ_PRED_AXIS_WEYL: return "Weyl pair on the axis";
-    case CZ_PRED_REPEL: return "level repulsion on the axis";
-    case CZ_PRED_NODAL_LINE: return "nodal line in the mirror plane";
-    case CZ_PRED_INVERSION: return "parity exchange (band inversion)";
-    default: return "unknown";
+    case CZ_PRED_GENERIC_WEYL:
+        return "Weyl pairs at generic k";
+    case CZ_PRED_AXIS_WEYL:
+        return "Weyl pair on the axis";
+    case CZ_PRED_REPEL:
+        return "level repulsion on the axis";
+    case CZ_PRED_NODAL_LINE:
+        return "nodal line in the mirror plane";
+    case CZ_PRED_INVERSION:
+        return "parity exchange (band inversion)";
+    default:
+        return "unknown";
     }
 }
 
@@ -327,7 +348,8 @@ static int eigen_pair(const tb_model *m, const cry_info *c, int op, const double
     /* a single band's eigenvalue has modulus 1; less means the band is part of a multiplet that the
      * operation mixes (a degeneracy the energy test missed) */
     if (rc == 0 && (fabs(cabs(*lo) - 1) > 1e-3 || fabs(cabs(*up) - 1) > 1e-3))
-        rc = bs_fail(err, BS_EINVAL, "bands %d, %d are degenerate with others at this k", lower + 1, lower + 2);
+        rc = bs_fail(err, BS_EINVAL, "bands %d, %d are degenerate with others at this k", lower + 1,
+                     lower + 2);
     if (rc == 0) *differ = cabs(*lo - *up) > 1e-3;
     return rc;
 }
@@ -337,7 +359,8 @@ int cz_predict_closing(const tb_model *m, const cry_info *c, const double k[3], 
 {
     memset(out, 0, sizeof *out);
     out->op = -1;
-    if (lower < 0 || lower + 1 >= m->norb) return bs_fail(err, BS_EINVAL, "band %d outside the basis", lower + 1);
+    if (lower < 0 || lower + 1 >= m->norb)
+        return bs_fail(err, BS_EINVAL, "band %d outside the basis", lower + 1);
     {
         /* both bands must be single: a Kramers or symmetry multiplet needs its own analysis */
         int n = m->norb;
@@ -353,7 +376,9 @@ int cz_predict_closing(const tb_model *m, const cry_info *c, const double k[3], 
         free(H);
         free(w);
         if (bad) return bs_fail(err, BS_ENUMERIC, "bands at k could not be computed");
-        if (degenerate) return bs_fail(err, BS_EINVAL, "bands %d, %d are degenerate with others at this k", lower + 1, lower + 2);
+        if (degenerate)
+            return bs_fail(err, BS_EINVAL, "bands %d, %d are degenerate with others at this k", lower + 1,
+                           lower + 2);
     }
     int *lg = malloc((size_t)cry_nops(c) * sizeof *lg);
     if (!lg) return bs_fail(err, BS_ENOMEM, "out of memory");
@@ -362,8 +387,8 @@ int cz_predict_closing(const tb_model *m, const cry_info *c, const double k[3], 
     double complex elo[3] = {0}, eup[3] = {0};
     for (int i = 0; i < nl && rc == 0; i++) {
         const cry_op *op = cry_get_op(c, lg[i]);
-        int proper_rot = strcmp(op->kind, "2") == 0 || strcmp(op->kind, "3") == 0 || strcmp(op->kind, "4") == 0 ||
-                         strcmp(op->kind, "6") == 0;
+        int proper_rot = strcmp(op->kind, "2") == 0 || strcmp(op->kind, "3") == 0 ||
+                         strcmp(op->kind, "4") == 0 || strcmp(op->kind, "6") == 0;
         int mirror = strcmp(op->kind, "m") == 0, inversion = strcmp(op->kind, "-1") == 0;
         if (!proper_rot && !mirror && !inversion) continue;
         double complex lo, up;
@@ -375,12 +400,14 @@ int cz_predict_closing(const tb_model *m, const cry_info *c, const double k[3], 
             out->op = lg[i], out->ev_lower = lo, out->ev_upper = up;
             if (m->dim == 2) /* a rotation about the normal leaves isolated points of a 2D zone */
                 snprintf(out->text, sizeof out->text,
-                         "%s-fold point, eigenvalues %.2f%+.2fi and %.2f%+.2fi differ: the bands can cross here at "
+                         "%s-fold point, eigenvalues %.2f%+.2fi and %.2f%+.2fi differ: the bands can cross "
+                         "here at "
                          "one parameter value (a 2D Dirac point)",
                          op->kind, creal(lo), cimag(lo), creal(up), cimag(up));
             else
                 snprintf(out->text, sizeof out->text,
-                         "on a %s-fold axis, eigenvalues %.2f%+.2fi and %.2f%+.2fi differ: a Weyl pair is created on the axis",
+                         "on a %s-fold axis, eigenvalues %.2f%+.2fi and %.2f%+.2fi differ: a Weyl pair is "
+                         "created on the axis",
                          op->kind, creal(lo), cimag(lo), creal(up), cimag(up));
             free(lg);
             return 0;
@@ -393,14 +420,16 @@ int cz_predict_closing(const tb_model *m, const cry_info *c, const double k[3], 
     if (rc != 0) return rc;
     if (inv >= 0) {
         out->kind = CZ_PRED_INVERSION, out->op = inv, out->ev_lower = elo[2], out->ev_upper = eup[2];
-        snprintf(out->text, sizeof out->text, "inversion-invariant point, parities %+.0f and %+.0f: a parity exchange",
-                 creal(elo[2]), creal(eup[2]));
+        snprintf(out->text, sizeof out->text,
+                 "inversion-invariant point, parities %+.0f and %+.0f: a parity exchange", creal(elo[2]),
+                 creal(eup[2]));
     } else if (rot_equal >= 0) {
         out->kind = CZ_PRED_REPEL, out->op = rot_equal, out->ev_lower = elo[0], out->ev_upper = eup[0];
-        snprintf(out->text, sizeof out->text,
-                 "on a %s-fold axis with equal eigenvalues %.2f%+.2fi: the bands repel there; a closing can only "
-                 "happen off the axis",
-                 cry_get_op(c, rot_equal)->kind, creal(elo[0]), cimag(elo[0]));
+        snprintf(
+            out->text, sizeof out->text,
+            "on a %s-fold axis with equal eigenvalues %.2f%+.2fi: the bands repel there; a closing can only "
+            "happen off the axis",
+            cry_get_op(c, rot_equal)->kind, creal(elo[0]), cimag(elo[0]));
     } else if (mirror_diff >= 0) {
         out->kind = CZ_PRED_NODAL_LINE, out->op = mirror_diff, out->ev_lower = elo[1], out->ev_upper = eup[1];
         snprintf(out->text, sizeof out->text,
@@ -408,7 +437,8 @@ int cz_predict_closing(const tb_model *m, const cry_info *c, const double k[3], 
                  creal(elo[1]), cimag(elo[1]), creal(eup[1]), cimag(eup[1]));
     } else {
         out->kind = CZ_PRED_GENERIC_WEYL;
-        snprintf(out->text, sizeof out->text, "no protecting symmetry at this k: Weyl nodes are created in pairs");
+        snprintf(out->text, sizeof out->text,
+                 "no protecting symmetry at this k: Weyl nodes are created in pairs");
     }
     return 0;
 }

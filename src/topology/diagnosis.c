@@ -32,19 +32,22 @@ typedef struct diag_ctx {
     bp_eval *bp;
     bp_mesh *mesh;
     sym_info *sym;
-    int z4;                 /* from the parity counts, -1 when not computed */
-    tb_model *ms;           /* the symmetrised model (owned), NULL when nothing was restored */
-    const tb_model *zm;     /* model of the symmetry-protected quantities: ms, or m */
+    int z4;             /* from the parity counts, -1 when not computed */
+    tb_model *ms;       /* the symmetrised model (owned), NULL when nothing was restored */
+    const tb_model *zm; /* model of the symmetry-protected quantities: ms, or m */
     symfit_break trb, invb;
-    int tr_exact, inv_exact;/* what sym_detect found on H itself */
-    int mag;                /* TB_MAG_* statement used: the card's, or the run's override */
-    int tr_physical;        /* time reversal broken for real: the card says so, or the breaking
-                               reaches the gap even at its lower bound, or a Chern number is nonzero */
+    int tr_exact, inv_exact; /* what sym_detect found on H itself */
+    int mag;                 /* TB_MAG_* statement used: the card's, or the run's override */
+    int tr_physical;         /* time reversal broken for real: the card says so, or the breaking
+                                reaches the gap even at its lower bound, or a Chern number is nonzero */
     gaps_result gaps;
     nodes_result nodes;
 } diag_ctx;
 
-int diag_default_mesh(int dim) { return dim == 2 ? 36 : 14; }
+int diag_default_mesh(int dim)
+{
+    return dim == 2 ? 36 : 14;
+}
 
 /* Elements of H(k) held per batch (the same budget as the occupied-state batches of occ.c). */
 #define DIAG_BATCH_ELEMENTS (64.0 * 200 * 200)
@@ -58,11 +61,11 @@ int diag_batch(int norb)
 double diag_memory_bytes(int dim, int norb, int nR, int nocc, int mesh)
 {
     double n2 = (double)norb * norb, batch = diag_batch(norb);
-    double model = 16.0 * n2 * nR;             /* H(R), complex */
-    double tables = 3 * 8.0 * n2 * (nR + 1);   /* coefficient tables: full, plane and line engines */
+    double model = 16.0 * n2 * nR;                  /* H(R), complex */
+    double tables = 3 * 8.0 * n2 * (nR + 1);        /* coefficient tables: full, plane and line engines */
     double batches = (32.0 + 16 + 16) * n2 * batch; /* packed triangles, H(k) and states per batch */
-    double solver = 64.0 * n2;                 /* zheevd: matrix copy, work and rwork (~2 n^2 each) */
-    double points = 24.0 * pow((double)mesh, dim); /* band edges and k of the coarse mesh */
+    double solver = 64.0 * n2;                      /* zheevd: matrix copy, work and rwork (~2 n^2 each) */
+    double points = 24.0 * pow((double)mesh, dim);  /* band edges and k of the coarse mesh */
     double strings = 2 * 16.0 * (double)(2 * mesh) * norb * nocc; /* occupied states along a string */
     /* 25% for what the terms leave out (node search lists, LAPACK's blocked workspaces): a random
      * 160-state 2D metal peaked 154 MB above the process baseline against 142 MB of terms. */
@@ -83,7 +86,7 @@ static int default_mesh(const tb_model *m, const diag_opts *o)
  * DIAG_LAYOUT_RATIO times the card's (so that fit noise on top of a wrong layout, which raises
  * both, still points to the right one, and a magnetic model that happens to fit another layout
  * less badly, as the Haldane model read as spinful does at 0.08 against 0.42, is not refused). */
-#define DIAG_LAYOUT_PASS 0.05
+#define DIAG_LAYOUT_PASS  0.05
 #define DIAG_LAYOUT_RATIO 0.3
 
 static const char *layout_name(int spinful, int layout)
@@ -100,10 +103,12 @@ static int relayout(const tb_model *m, int layout, tb_model **out, bs_err *err)
     int rc = tb_model_copy(m, &c, err);
     if (rc != 0) return rc;
     int ns = layout == TB_SPIN_NONE ? m->norb : m->norb / 2;
-    double (*pos)[3] = malloc((size_t)ns * sizeof *pos);
+    double(*pos)[3] = malloc((size_t)ns * sizeof *pos);
     int *l = malloc((size_t)ns * sizeof *l);
     if (!pos || !l) {
-        free(pos); free(l); tb_model_free(c);
+        free(pos);
+        free(l);
+        tb_model_free(c);
         return bs_fail(err, BS_ENOMEM, "out of memory checking the spin layout");
     }
     c->spinful = layout != TB_SPIN_NONE;
@@ -115,12 +120,18 @@ static int relayout(const tb_model *m, int layout, tb_model **out, bs_err *err)
         memcpy(pos[o], m->orb_pos[src], sizeof pos[o]);
         l[o] = m->orb_l[src];
     }
-    free(c->orb_pos); free(c->orb_l); free(c->orb_shape);
+    free(c->orb_pos);
+    free(c->orb_l);
+    free(c->orb_shape);
     c->orb_pos = pos;
     c->orb_l = l;
     c->orb_shape = NULL;
-    free(c->inv_perm); free(c->inv_sign); free(c->inv_shift);
-    c->inv_perm = NULL; c->inv_sign = NULL; c->inv_shift = NULL;
+    free(c->inv_perm);
+    free(c->inv_sign);
+    free(c->inv_shift);
+    c->inv_perm = NULL;
+    c->inv_sign = NULL;
+    c->inv_shift = NULL;
     c->has_inversion_op = 0;
     *out = c;
     return 0;
@@ -135,7 +146,8 @@ static int spin_diagonal(const tb_model *m)
     for (int r = 0; r < m->nR; r++)
         for (size_t a = 0; a < n; a++)
             for (size_t b = 0; b < n; b++)
-                if (tb_state_spin(m, (int)a) != tb_state_spin(m, (int)b) && m->H[(r * n + a) * n + b] != 0) return 0;
+                if (tb_state_spin(m, (int)a) != tb_state_spin(m, (int)b) && m->H[(r * n + a) * n + b] != 0)
+                    return 0;
     return 1;
 }
 
@@ -165,12 +177,14 @@ static int check_spin_layout(diag_ctx *c, const sym_opts *so, bs_err *err)
         tb_model_free(alt);
         if (rc != 0) return rc;
         if (res <= DIAG_LAYOUT_PASS && res <= DIAG_LAYOUT_RATIO * c->sym->tr_residual)
-            return bs_fail(err, BS_EINVAL, "time reversal fails with the card's spin layout (%s: residual %.2g) "
-                           "but holds for %s (residual %.2g): the table looks %s; correct the card's spinful / "
-                           "spin_layout, or state \"magnetism\": \"magnetic\" if the compound breaks time reversal",
-                           layout_name(m->spinful, m->spin_layout), c->sym->tr_residual,
-                           layout_name(alts[i] != TB_SPIN_NONE, alts[i]), res,
-                           layout_name(alts[i] != TB_SPIN_NONE, alts[i]));
+            return bs_fail(
+                err, BS_EINVAL,
+                "time reversal fails with the card's spin layout (%s: residual %.2g) "
+                "but holds for %s (residual %.2g): the table looks %s; correct the card's spinful / "
+                "spin_layout, or state \"magnetism\": \"magnetic\" if the compound breaks time reversal",
+                layout_name(m->spinful, m->spin_layout), c->sym->tr_residual,
+                layout_name(alts[i] != TB_SPIN_NONE, alts[i]), res,
+                layout_name(alts[i] != TB_SPIN_NONE, alts[i]));
     }
     return 0;
 }
@@ -228,7 +242,8 @@ static int restore(diag_ctx *c, res_diag *r, int which, bs_err *err)
     r->restored = which & ~((r->tr_verdict == RES_SYM_EXACT ? SYMFIT_TR : 0) |
                             (r->inv_verdict == RES_SYM_EXACT ? SYMFIT_INV : 0));
     r->symmetrised = r->restored != 0;
-    snprintf(r->restored_names, sizeof r->restored_names, "%s%s%s", r->restored & SYMFIT_TR ? "time_reversal" : "",
+    snprintf(r->restored_names, sizeof r->restored_names, "%s%s%s",
+             r->restored & SYMFIT_TR ? "time_reversal" : "",
              r->restored == (SYMFIT_TR | SYMFIT_INV) ? "," : "", r->restored & SYMFIT_INV ? "inversion" : "");
     /* 2 max ||H - H_s|| is the breaking that the margin compares with the gap (symfit.h). */
     const char *bound = NULL;
@@ -266,17 +281,19 @@ static int run_breaking(diag_ctx *c, res_diag *r, int gapless, bs_err *err)
     /* Physical against the direct gap, zero when gapless: there any coherent breaking is real
      * (the time-reversal-broken Weyl model's, say), however it compares with the bandwidth. */
     double gap = gapless ? 0.0 : scale;
-    c->tr_physical = mag == TB_MAG_MAGNETIC ||
-                     (mag == TB_MAG_UNKNOWN && r->tr_verdict != RES_SYM_EXACT && symfit_physical(&c->trb, gap));
+    c->tr_physical = mag == TB_MAG_MAGNETIC || (mag == TB_MAG_UNKNOWN && r->tr_verdict != RES_SYM_EXACT &&
+                                                symfit_physical(&c->trb, gap));
     /* A physical breaking is a broken symmetry whatever the margin would allow. */
-    if (c->tr_physical && r->tr_verdict == RES_SYM_APPROX && mag != TB_MAG_NONE) r->tr_verdict = RES_SYM_BROKEN;
+    if (c->tr_physical && r->tr_verdict == RES_SYM_APPROX && mag != TB_MAG_NONE)
+        r->tr_verdict = RES_SYM_BROKEN;
     if (r->inv_verdict == RES_SYM_APPROX && symfit_physical(&c->invb, gap)) r->inv_verdict = RES_SYM_BROKEN;
     int tr_holds = mag != TB_MAG_MAGNETIC && (r->tr_verdict == RES_SYM_EXACT || mag == TB_MAG_NONE ||
                                               (r->tr_verdict == RES_SYM_APPROX && !c->tr_physical));
     /* Inversion only adds the parity method (the flow needs time reversal alone), so it is
      * restored only with a safe margin of its own rather than thinning the margin of the class. */
-    int inv_holds = r->inv_verdict == RES_SYM_EXACT ||
-                    (r->inv_verdict == RES_SYM_APPROX && scale >= SYMFIT_MARGIN_SAFE * symfit_estimate(&c->invb, NULL));
+    int inv_holds =
+        r->inv_verdict == RES_SYM_EXACT ||
+        (r->inv_verdict == RES_SYM_APPROX && scale >= SYMFIT_MARGIN_SAFE * symfit_estimate(&c->invb, NULL));
     r->time_reversal = tr_holds;
     r->inversion = inv_holds;
     if (gapless || !tr_holds) return 0;
@@ -500,8 +517,8 @@ static void classify_pocket_metal(res_diag *r)
                  nweyl, nweyl == 1 ? "" : "s", r->net_chirality);
     if (nother > 0) {
         size_t used = strlen(ev);
-        snprintf(ev + used, sizeof ev - used, "%s%d other gap closing%s", used ? ", " : "; evidence: ",
-                 nother, nother == 1 ? "" : "s");
+        snprintf(ev + used, sizeof ev - used, "%s%d other gap closing%s",
+                 used ? ", " : "; evidence: ", nother, nother == 1 ? "" : "s");
     }
     if (r->nodal_line) {
         size_t used = strlen(ev);
@@ -530,47 +547,65 @@ static void classify_gapless(res_diag *r, int degenerate, int tr_exact, int inv_
         return;
     }
     if (r->dim == 3 && r->nodal_line) {
-        set_class(r, RES_NODAL_LINE, 0.8, "the gap closes on a curve: %d touching points over %.3g "
-                  "(reduced units)", r->nodal_points, r->nodal_extent);
+        set_class(r, RES_NODAL_LINE, 0.8,
+                  "the gap closes on a curve: %d touching points over %.3g "
+                  "(reduced units)",
+                  r->nodal_points, r->nodal_extent);
         return;
     }
     int nweyl = res_weyl_count(r), nchiral = 0;
-    for (int i = 0; i < r->nnodes; i++) nchiral += r->nodes[i].chirality != 0;
+    for (int i = 0; i < r->nnodes; i++)
+        nchiral += r->nodes[i].chirality != 0;
     /* With inversion and time reversal the Berry curvature vanishes (or the bands are Kramers
      * degenerate) at every k, so no Weyl node can exist (common practice). */
     int weyl_forbidden = inv_exact && tr_exact;
     if (r->dim == 3 && r->nnodes > 0 && nchiral == 0 && (r->chirality_status == RES_DONE || weyl_forbidden)) {
-        set_class(r, RES_METAL, 0.5, "the gap closes at %d points of zero chirality (Dirac points%s): a semimetal, "
-                  "at a phase transition or protected", r->nnodes, weyl_forbidden ? "; inversion with time "
-                  "reversal forbids Weyl nodes" : "");
+        set_class(r, RES_METAL, 0.5,
+                  "the gap closes at %d points of zero chirality (Dirac points%s): a semimetal, "
+                  "at a phase transition or protected",
+                  r->nnodes,
+                  weyl_forbidden ? "; inversion with time "
+                                   "reversal forbids Weyl nodes"
+                                 : "");
         return;
     }
     if (r->dim == 3 && r->nnodes > 0 && nchiral == 0) {
-        set_class(r, RES_UNDETERMINED, 0.3, "the gap closes at %d points whose chirality could not be resolved",
-                  r->nnodes);
+        set_class(r, RES_UNDETERMINED, 0.3,
+                  "the gap closes at %d points whose chirality could not be resolved", r->nnodes);
         return;
     }
     if (r->dim == 3 && r->nnodes > 0) {
         double conf = 0.9;
         char extra[160] = "";
-        if (r->chirality_status != RES_DONE) { conf = 0.4; snprintf(extra, sizeof extra, "; some chiralities not integer"); }
-        else if (r->net_chirality != 0) { conf = 0.4; snprintf(extra, sizeof extra, "; net chirality %+d: nodes were missed", r->net_chirality); }
-        else if (r->time_reversal && !r->nodes_tr_ok) { conf = 0.6; snprintf(extra, sizeof extra, "; nodes not in time-reversed sets of four"); }
+        if (r->chirality_status != RES_DONE) {
+            conf = 0.4;
+            snprintf(extra, sizeof extra, "; some chiralities not integer");
+        } else if (r->net_chirality != 0) {
+            conf = 0.4;
+            snprintf(extra, sizeof extra, "; net chirality %+d: nodes were missed", r->net_chirality);
+        } else if (r->time_reversal && !r->nodes_tr_ok) {
+            conf = 0.6;
+            snprintf(extra, sizeof extra, "; nodes not in time-reversed sets of four");
+        }
         if (r->gap_indirect_ev < -BS_GAP_CLOSED_EV) {
             conf *= 0.8;
             size_t used = strlen(extra);
-            snprintf(extra + used, sizeof extra - used, "; shallow pockets: the bands overlap by %.2g eV", -r->gap_indirect_ev);
+            snprintf(extra + used, sizeof extra - used, "; shallow pockets: the bands overlap by %.2g eV",
+                     -r->gap_indirect_ev);
         }
         set_class(r, RES_WEYL, conf, "%d Weyl nodes, net chirality %d%s", nweyl, r->net_chirality, extra);
         return;
     }
     if (r->dim == 2 && r->nnodes > 0) {
-        set_class(r, RES_METAL, 0.5, "the 2D gap closes at %d points: a Dirac semimetal at this filling, at a phase "
-                  "transition or protected", r->nnodes);
+        set_class(r, RES_METAL, 0.5,
+                  "the 2D gap closes at %d points: a Dirac semimetal at this filling, at a phase "
+                  "transition or protected",
+                  r->nnodes);
         return;
     }
     if (r->gap_direct_ev < BS_GAP_CLOSED_EV) {
-        set_class(r, RES_METAL, 0.5, "the direct gap closes (%.2g eV) but no isolated node or line was resolved",
+        set_class(r, RES_METAL, 0.5,
+                  "the direct gap closes (%.2g eV) but no isolated node or line was resolved",
                   r->gap_direct_ev);
         return;
     }
@@ -580,12 +615,12 @@ static void classify_gapless(res_diag *r, int degenerate, int tr_exact, int inv_
 
 /* What the classification needs to know about the symmetry call besides r. */
 typedef struct sym_call {
-    int tr_physical;        /* diag_ctx.tr_physical */
-    int both_readings;      /* time reversal neither approximate nor physically broken: r's Z2 (if
-                               any) is the reading of the time-reversal-restored model */
-    int spinful;            /* the model has Kramers pairs when time reversal holds */
-    double tr_fit_ev;       /* upper bound of a fit-like (incoherent, symfit.h) time-reversal
-                               breaking when the card does not say magnetic, else 0 */
+    int tr_physical;   /* diag_ctx.tr_physical */
+    int both_readings; /* time reversal neither approximate nor physically broken: r's Z2 (if
+                          any) is the reading of the time-reversal-restored model */
+    int spinful;       /* the model has Kramers pairs when time reversal holds */
+    double tr_fit_ev;  /* upper bound of a fit-like (incoherent, symfit.h) time-reversal
+                          breaking when the card does not say magnetic, else 0 */
 } sym_call;
 
 static void classify_no_tr(res_diag *r, const sym_call *sc, double small)
@@ -595,7 +630,8 @@ static void classify_no_tr(res_diag *r, const sym_call *sc, double small)
         return;
     }
     int any = 0;
-    for (int p = 0; p < (r->dim == 2 ? 0 : 6); p++) any |= r->plane_chern[p] != 0;
+    for (int p = 0; p < (r->dim == 2 ? 0 : 6); p++)
+        any |= r->plane_chern[p] != 0;
     if (r->dim == 2) any = r->chern != 0;
     double conf = (r->chern_status == RES_DONE ? 0.95 : 0.5) * small;
     if (any && sc->tr_fit_ev > 0) {
@@ -607,9 +643,10 @@ static void classify_no_tr(res_diag *r, const sym_call *sc, double small)
         if (r->dim == 2)
             set_class(r, RES_CHERN_INSULATOR, conf, "time reversal broken, Chern number %d", r->chern);
         else
-            set_class(r, RES_CHERN_INSULATOR, conf, "time reversal broken, plane Chern numbers %d,%d,%d,%d,%d,%d",
-                      r->plane_chern[0], r->plane_chern[1], r->plane_chern[2], r->plane_chern[3],
-                      r->plane_chern[4], r->plane_chern[5]);
+            set_class(r, RES_CHERN_INSULATOR, conf,
+                      "time reversal broken, plane Chern numbers %d,%d,%d,%d,%d,%d", r->plane_chern[0],
+                      r->plane_chern[1], r->plane_chern[2], r->plane_chern[3], r->plane_chern[4],
+                      r->plane_chern[5]);
         return;
     }
     const char *planes = r->dim == 3 ? "s of all six planes" : "";
@@ -618,24 +655,28 @@ static void classify_no_tr(res_diag *r, const sym_call *sc, double small)
             set_class(r, RES_TRIVIAL, conf * (r->dim == 3 ? 0.9 : 1.0),
                       "time reversal broken (the card says magnetic), Chern number%s zero", planes);
         else
-            set_class(r, RES_TRIVIAL, conf * (r->dim == 3 ? 0.9 : 1.0),
-                      "time reversal broken by %.3g eV (at least %.3g eV), %.2g x the direct gap: physical; Chern "
-                      "number%s zero", r->tr_break_ev, r->tr_break_lower_ev, r->tr_break_lower_ev / r->gap_direct_ev,
-                      planes);
+            set_class(
+                r, RES_TRIVIAL, conf * (r->dim == 3 ? 0.9 : 1.0),
+                "time reversal broken by %.3g eV (at least %.3g eV), %.2g x the direct gap: physical; Chern "
+                "number%s zero",
+                r->tr_break_ev, r->tr_break_lower_ev, r->tr_break_lower_ev / r->gap_direct_ev, planes);
         return;
     }
     /* Between the regimes: the breaking may be fit error or physical. Both readings are given;
      * a label only where they agree (spinless: no Z2 either way; or a trivial restored Z2). */
     if (!sc->both_readings && sc->spinful) {
-        set_class(r, RES_UNDETERMINED, 0.2, "time reversal broken by %.3g eV (at least %.3g eV) against a direct gap of "
-                  "%.3g eV: fit error or physical, and the Chern number%s could not be settled", r->tr_break_ev,
-                  r->tr_break_lower_ev, r->gap_direct_ev, planes);
+        set_class(r, RES_UNDETERMINED, 0.2,
+                  "time reversal broken by %.3g eV (at least %.3g eV) against a direct gap of "
+                  "%.3g eV: fit error or physical, and the Chern number%s could not be settled",
+                  r->tr_break_ev, r->tr_break_lower_ev, r->gap_direct_ev, planes);
         return;
     }
     if (!sc->both_readings) {
-        set_class(r, RES_TRIVIAL, 0.6 * small, "time reversal broken by %.3g eV (at least %.3g eV) against "
+        set_class(r, RES_TRIVIAL, 0.6 * small,
+                  "time reversal broken by %.3g eV (at least %.3g eV) against "
                   "a direct gap of %.3g eV: fit error or physical, the Chern number%s zero and no Z2 index "
-                  "(spinless) make it trivial either way", r->tr_break_ev, r->tr_break_lower_ev, r->gap_direct_ev, planes);
+                  "(spinless) make it trivial either way",
+                  r->tr_break_ev, r->tr_break_lower_ev, r->gap_direct_ev, planes);
         return;
     }
     char reading[96] = "the Z2 of the restored model could not be determined";
@@ -645,12 +686,13 @@ static void classify_no_tr(res_diag *r, const sym_call *sc, double small)
         snprintf(reading, sizeof reading, "Z2 = %d of the restored model (%s)", r->z2[0],
                  r->z2[0] ? "2D topological insulator" : "trivial insulator");
     else if (done)
-        snprintf(reading, sizeof reading, "Z2 = %d;%d%d%d of the restored model%s", r->z2[0], r->z2[1], r->z2[2],
-                 r->z2[3], trivial ? " (trivial)" : "");
-    set_class(r, trivial ? RES_TRIVIAL : RES_UNDETERMINED, trivial ? 0.6 * small : 0.3,
-              "time reversal broken by %.3g eV (at least %.3g eV) against a direct gap of %.3g eV: if fit error, "
-              "%s; if physical, Chern number%s zero (trivial); state \"magnetism\" on the card to decide",
-              r->tr_break_ev, r->tr_break_lower_ev, r->gap_direct_ev, reading, planes);
+        snprintf(reading, sizeof reading, "Z2 = %d;%d%d%d of the restored model%s", r->z2[0], r->z2[1],
+                 r->z2[2], r->z2[3], trivial ? " (trivial)" : "");
+    set_class(
+        r, trivial ? RES_TRIVIAL : RES_UNDETERMINED, trivial ? 0.6 * small : 0.3,
+        "time reversal broken by %.3g eV (at least %.3g eV) against a direct gap of %.3g eV: if fit error, "
+        "%s; if physical, Chern number%s zero (trivial); state \"magnetism\" on the card to decide",
+        r->tr_break_ev, r->tr_break_lower_ev, r->gap_direct_ev, reading, planes);
 }
 
 static int any_chern(const res_diag *r)
@@ -687,23 +729,29 @@ static void classify_insulator(res_diag *r, int kramers, const sym_call *sc)
         return;
     }
     if (r->z2_status != RES_DONE) {
-        set_class(r, RES_UNDETERMINED, 0.2, "Z2 could not be determined: %s", r->z2_note[0] ? r->z2_note : "no method applied");
+        set_class(r, RES_UNDETERMINED, 0.2, "Z2 could not be determined: %s",
+                  r->z2_note[0] ? r->z2_note : "no method applied");
         return;
     }
     int both = r->z2_parity_status == RES_DONE && r->z2_wcc_status == RES_DONE;
     int other_ambiguous = r->z2_parity_status == RES_AMBIGUOUS || r->z2_wcc_status == RES_AMBIGUOUS;
     double conf = (both ? 0.97 : other_ambiguous ? 0.6 : 0.9) * small;
-    const char *how = both ? "parity and Wannier-centre flow agree" :
-                      r->z2_parity_status == RES_DONE ? "from parities only" : "from the Wannier-centre flow";
+    const char *how = both                              ? "parity and Wannier-centre flow agree"
+                      : r->z2_parity_status == RES_DONE ? "from parities only"
+                                                        : "from the Wannier-centre flow";
     if (r->dim == 2) {
-        if (r->z2[0]) set_class(r, RES_2D_TI, conf, "Z2 = 1 (%s)", how);
-        else set_class(r, RES_TRIVIAL, conf, "Z2 = 0 (%s)", how);
+        if (r->z2[0])
+            set_class(r, RES_2D_TI, conf, "Z2 = 1 (%s)", how);
+        else
+            set_class(r, RES_TRIVIAL, conf, "Z2 = 0 (%s)", how);
         return;
     }
-    if (r->z2[0]) set_class(r, RES_STRONG_TI, conf, "Z2 = %d;%d%d%d (%s)", r->z2[0], r->z2[1], r->z2[2], r->z2[3], how);
+    if (r->z2[0])
+        set_class(r, RES_STRONG_TI, conf, "Z2 = %d;%d%d%d (%s)", r->z2[0], r->z2[1], r->z2[2], r->z2[3], how);
     else if (r->z2[1] || r->z2[2] || r->z2[3])
         set_class(r, RES_WEAK_TI, conf, "Z2 = 0;%d%d%d (%s)", r->z2[1], r->z2[2], r->z2[3], how);
-    else set_class(r, RES_TRIVIAL, conf, "Z2 = 0;000 (%s)", how);
+    else
+        set_class(r, RES_TRIVIAL, conf, "Z2 = 0;000 (%s)", how);
 }
 
 /* Crystal symmetry (crystal.h): the space group of the sites and the operations H keeps. On a
@@ -714,11 +762,11 @@ static void classify_insulator(res_diag *r, int kramers, const sym_call *sc)
  * (crystalline.h): a nonzero one makes it a topological crystalline insulator. Failures of this
  * optional evidence (a structure spglib cannot read) leave the fields empty, not the result. */
 enum { CRYSTAL_MIRROR_MESH = 16 };
-#define CRYSTAL_APPROX_RESIDUAL 0.05 /* relative residual of an operation a fit breaks only by noise */
+#define CRYSTAL_APPROX_RESIDUAL     0.05 /* relative residual of an operation a fit breaks only by noise */
 #define CRYSTAL_APPROX_GAP_FRACTION 0.25
 
-static int restore_approximate(const tb_model *m, cry_info *ci, double gap_ev, res_diag *r, tb_model **sym_out,
-                               cry_info **ci_out, bs_err *err)
+static int restore_approximate(const tb_model *m, cry_info *ci, double gap_ev, res_diag *r,
+                               tb_model **sym_out, cry_info **ci_out, bs_err *err)
 {
     *sym_out = NULL;
     *ci_out = NULL;
@@ -788,7 +836,8 @@ static int mirror_cherns(const tb_model *m, const cry_info *ci, res_diag *r, bs_
         if (seen) continue;
         /* in 2D only the mirror of the plane itself leaves the whole zone invariant; a vertical
          * mirror's invariant set is a line, which carries no Chern number */
-        if (m->dim == 2 && !(op->W[0][0] == 1 && op->W[1][1] == 1 && op->W[0][1] == 0 && op->W[1][0] == 0)) continue;
+        if (m->dim == 2 && !(op->W[0][0] == 1 && op->W[1][1] == 1 && op->W[0][1] == 0 && op->W[1][0] == 0))
+            continue;
         cz_mirror pl[2];
         int np = cz_mirror_planes(ci, i, pl, err);
         if (np < 0) return np;
@@ -813,13 +862,14 @@ static int mirror_cherns(const tb_model *m, const cry_info *ci, res_diag *r, bs_
     r->mirror_chern_status = nambiguous ? RES_AMBIGUOUS : RES_DONE;
     if (best != 0) {
         double conf = r->confidence * (nambiguous ? 0.8 : 1.0);
-        set_class(r, RES_TCI, conf, "Z2 trivial, mirror Chern number %d on the mirror plane normal to (%.3f, %.3f, %.3f)%s",
+        set_class(r, RES_TCI, conf,
+                  "Z2 trivial, mirror Chern number %d on the mirror plane normal to (%.3f, %.3f, %.3f)%s",
                   best, best_normal[0], best_normal[1], best_normal[2],
                   r->crystal_symmetrised ? "; crystal symmetry restored by averaging a noisy fit" : "");
     } else if (nambiguous) {
         size_t used = strlen(r->reason);
-        snprintf(r->reason + used, sizeof r->reason - used, "; %d mirror Chern number%s undetermined", nambiguous,
-                 nambiguous > 1 ? "s" : "");
+        snprintf(r->reason + used, sizeof r->reason - used, "; %d mirror Chern number%s undetermined",
+                 nambiguous, nambiguous > 1 ? "s" : "");
     }
     return 0;
 }
@@ -837,8 +887,8 @@ static void gap_point_symmetry(const tb_model *m, const cry_info *ci, res_diag *
     int *lg = malloc((size_t)cry_nops(ci) * sizeof *lg);
     if (!lg) return;
     int nl = cry_little_group(ci, r->k_gap_direct, lg);
-    snprintf(r->gap_symmetry, sizeof r->gap_symmetry, "little group of %d operation%s; %s", nl, nl == 1 ? "" : "s",
-             pred.text);
+    snprintf(r->gap_symmetry, sizeof r->gap_symmetry, "little group of %d operation%s; %s", nl,
+             nl == 1 ? "" : "s", pred.text);
     free(lg);
 }
 
@@ -851,17 +901,22 @@ static int run_crystal(diag_ctx *c, res_diag *r, int kramers, bs_err *err)
     tb_model *msym = NULL;
     bs_err local;
     bs_err_clear(&local);
-    if (cry_detect(c->m, &o, &ci, &local) != 0) return local.code == BS_ENOMEM ? bs_fail(err, BS_ENOMEM, "%s", local.msg) : 0;
+    if (cry_detect(c->m, &o, &ci, &local) != 0)
+        return local.code == BS_ENOMEM ? bs_fail(err, BS_ENOMEM, "%s", local.msg) : 0;
     r->spacegroup = cry_spacegroup(ci);
     r->symmetry_ops = cry_nverified(ci);
     int rc = 0, insulator = res_class_is_insulator(r->cls) && r->gap_direct_ev > BS_GAP_CLOSED_EV;
     if (insulator) rc = restore_approximate(c->m, ci, r->gap_direct_ev, r, &msym, &ci_sym, err);
     if (rc == 0 && ci_sym) r->symmetry_ops = cry_nverified(ci_sym);
-    if (rc == 0 && r->gap_direct_ev > BS_GAP_CLOSED_EV) gap_point_symmetry(msym ? msym : c->m, ci_sym ? ci_sym : ci, r);
-    int z2_trivial = r->z2_status == RES_DONE && !r->z2[0] && (r->dim == 2 || (!r->z2[1] && !r->z2[2] && !r->z2[3]));
+    if (rc == 0 && r->gap_direct_ev > BS_GAP_CLOSED_EV)
+        gap_point_symmetry(msym ? msym : c->m, ci_sym ? ci_sym : ci, r);
+    int z2_trivial =
+        r->z2_status == RES_DONE && !r->z2[0] && (r->dim == 2 || (!r->z2[1] && !r->z2[2] && !r->z2[3]));
     if (rc == 0 && insulator && kramers && r->cls == RES_TRIVIAL && z2_trivial) {
-        if (c->deadline > 0 && bs_now() > c->deadline) rc = bs_fail(err, BS_ETIMEOUT, "time budget exceeded");
-        else rc = mirror_cherns(msym ? msym : c->m, ci_sym ? ci_sym : ci, r, err);
+        if (c->deadline > 0 && bs_now() > c->deadline)
+            rc = bs_fail(err, BS_ETIMEOUT, "time budget exceeded");
+        else
+            rc = mirror_cherns(msym ? msym : c->m, ci_sym ? ci_sym : ci, r, err);
     }
     cry_info_free(ci_sym);
     tb_model_free(msym);
@@ -885,8 +940,9 @@ static void append_reason(res_diag *r, const char *fmt, ...)
 static void apply_margin(res_diag *r)
 {
     if (!r->restored || !r->time_reversal) return;
-    const char *what = r->restored == (SYMFIT_TR | SYMFIT_INV) ? "time reversal and inversion" :
-                       r->restored == SYMFIT_TR ? "time reversal" : "inversion";
+    const char *what = r->restored == (SYMFIT_TR | SYMFIT_INV) ? "time reversal and inversion"
+                       : r->restored == SYMFIT_TR              ? "time reversal"
+                                                               : "inversion";
     /* Only inversion restored and the flow done on H with exact time reversal: the class does not
      * rest on the restored symmetry (a parity disagreement would have made it undetermined). */
     if (!(r->restored == SYMFIT_INV && r->z2_wcc_status == RES_DONE))
@@ -895,7 +951,8 @@ static void apply_margin(res_diag *r)
                   r->breaking_ev, r->gap_direct_ev, r->margin,
                   r->margin < SYMFIT_MARGIN_SAFE ? ", thin: the symmetric reading is not certain" : "");
     if (strcmp(r->magnetism, "none") == 0 && (r->restored & SYMFIT_TR) && r->margin < SYMFIT_MARGIN_SAFE)
-        append_reason(r, "; the card says non-magnetic, but the time-reversal breaking is not small against the gap");
+        append_reason(
+            r, "; the card says non-magnetic, but the time-reversal breaking is not small against the gap");
 }
 
 /* A fit whose fit-like symmetry breaking reaches this relative residual (||gH - H|| / ||H|| at
@@ -925,7 +982,8 @@ static int check_gapless_artefact(diag_ctx *c, res_diag *r, bs_err *err)
         which |= SYMFIT_INV;
         fit = fmax(fit, symfit_estimate(&c->invb, NULL));
     }
-    if (!which || !(r->gap_direct_ev < BS_GAP_CLOSED_EV || -r->gap_indirect_ev < 10 * SYMFIT_MARGIN_SAFE * fit))
+    if (!which ||
+        !(r->gap_direct_ev < BS_GAP_CLOSED_EV || -r->gap_indirect_ev < 10 * SYMFIT_MARGIN_SAFE * fit))
         return 0;
     tb_model *ms = NULL;
     hk_engine *hk = NULL;
@@ -946,8 +1004,11 @@ static int check_gapless_artefact(diag_ctx *c, res_diag *r, bs_err *err)
     if (rc == 0 && !g.closed && !g.metallic && moved > 0) {
         double margin = g.gap_direct_ev / (2 * moved);
         r->confidence *= symfit_confidence_factor(margin);
-        append_reason(r, "; restoring the fit-like symmetry breaking (%.2g eV) opens a gap of %.3g eV: possibly an "
-                      "artefact of the fit", 2 * moved, g.gap_direct_ev);
+        append_reason(
+            r,
+            "; restoring the fit-like symmetry breaking (%.2g eV) opens a gap of %.3g eV: possibly an "
+            "artefact of the fit",
+            2 * moved, g.gap_direct_ev);
     } else if (rc == 0) {
         /* Gapless either way: the call stands unless the fit's error is a sizeable part of H
          * itself (its relative residual against DIAG_FIT_RESIDUAL, margin counted as for a gap). */
@@ -957,8 +1018,10 @@ static int check_gapless_artefact(diag_ctx *c, res_diag *r, bs_err *err)
          * material lacks the symmetry (a random metal), and the gapless call does not rest on it. */
         if (rho < 10 * DIAG_FIT_RESIDUAL && margin < 10 * SYMFIT_MARGIN_SAFE) {
             r->confidence *= symfit_confidence_factor(margin);
-            append_reason(r, "; the fit breaks its symmetries by %.2g of H (relative residual): features of the "
-                          "gapless bands may not be resolved", rho);
+            append_reason(r,
+                          "; the fit breaks its symmetries by %.2g of H (relative residual): features of the "
+                          "gapless bands may not be resolved",
+                          rho);
         }
     }
     hk_free(hk);
@@ -972,12 +1035,15 @@ static void append_unsure_gap(res_diag *r)
 {
     if (!gaps_unsure(r->gap_indirect_ev, r->gap_resolution_ev)) return;
     const char *other = res_class_is_insulator(r->cls) ? "possible semimetal"
-                        : r->cls == RES_METAL ? "possible insulator" : NULL;
+                        : r->cls == RES_METAL          ? "possible insulator"
+                                                       : NULL;
     if (!other || r->gap_direct_ev < BS_GAP_CLOSED_EV) return;
     if (r->confidence > 0.4) r->confidence = 0.4;
     size_t used = strlen(r->reason);
-    snprintf(r->reason + used, sizeof r->reason - used, "; %s: indirect gap %.2g eV within %.0f times the gap "
-             "search's resolution %.2g eV%s", other, r->gap_indirect_ev, GAPS_UNSURE_FACTOR, r->gap_resolution_ev,
+    snprintf(r->reason + used, sizeof r->reason - used,
+             "; %s: indirect gap %.2g eV within %.0f times the gap "
+             "search's resolution %.2g eV%s",
+             other, r->gap_indirect_ev, GAPS_UNSURE_FACTOR, r->gap_resolution_ev,
              r->gap_converged ? "" : " (not converged)");
 }
 
@@ -986,7 +1052,8 @@ static void append_small_gap_note(res_diag *r)
     if (!res_class_is_insulator(r->cls)) return;
     if (r->gap_indirect_ev > 0 && r->gap_indirect_ev < 5e-3) {
         size_t used = strlen(r->reason);
-        snprintf(r->reason + used, sizeof r->reason - used, "; gap only %.2g eV: near a transition", r->gap_indirect_ev);
+        snprintf(r->reason + used, sizeof r->reason - used, "; gap only %.2g eV: near a transition",
+                 r->gap_indirect_ev);
     }
 }
 
@@ -1039,7 +1106,8 @@ int diag_run(const tb_model *m, const diag_opts *opts, res_diag *r, bs_err *err)
         int thin = (r->restored & SYMFIT_TR) && r->margin < SYMFIT_MARGIN_SAFE;
         if (rc == 0 && direct_open && (!r->time_reversal || thin)) rc = run_chern(&c, r, err);
         sc.tr_physical = c.tr_physical;
-        if (!c.tr_exact && c.mag != TB_MAG_MAGNETIC && c.trb.lower_ev < SYMFIT_COHERENT_RATIO * c.trb.upper_ev)
+        if (!c.tr_exact && c.mag != TB_MAG_MAGNETIC &&
+            c.trb.lower_ev < SYMFIT_COHERENT_RATIO * c.trb.upper_ev)
             sc.tr_fit_ev = symfit_estimate(&c.trb, NULL);
         if (rc == 0 && direct_open && !r->time_reversal && !c.tr_physical && m->spinful &&
             r->chern_status == RES_DONE && !any_chern(r)) {
@@ -1060,8 +1128,10 @@ int diag_run(const tb_model *m, const diag_opts *opts, res_diag *r, bs_err *err)
     take_gaps(&c.gaps, r);
     if (rc == 0) {
         combine_z2(r);
-        if (gapless) classify_gapless(r, c.nodes.degenerate, c.tr_exact, c.inv_exact, c.gaps.width_ev);
-        else classify_insulator(r, kramers, &sc);
+        if (gapless)
+            classify_gapless(r, c.nodes.degenerate, c.tr_exact, c.inv_exact, c.gaps.width_ev);
+        else
+            classify_insulator(r, kramers, &sc);
         apply_margin(r);
         if (gapless) rc = check_gapless_artefact(&c, r, err);
         if (rc == 0) rc = run_crystal(&c, r, kramers, err);

@@ -23,12 +23,14 @@
 /* Mesh displacements of the levels after the first, in half steps: the body centre first (the
  * points farthest from the coarse mesh), then the face and edge centres; in 2D only those in the
  * plane. Together with the coarse mesh they make the mesh of twice the density. */
-static const double LEVEL_OFF[8][3] = {{0, 0, 0},       {0.5, 0.5, 0.5}, {0.5, 0, 0},
-                                       {0, 0.5, 0},     {0.5, 0.5, 0},   {0, 0, 0.5},
-                                       {0.5, 0, 0.5},   {0, 0.5, 0.5}};
+static const double LEVEL_OFF[8][3] = {{0, 0, 0},     {0.5, 0.5, 0.5}, {0.5, 0, 0},   {0, 0.5, 0},
+                                       {0.5, 0.5, 0}, {0, 0, 0.5},     {0.5, 0, 0.5}, {0, 0.5, 0.5}};
 static const int LEVEL_2D[4] = {0, 4, 2, 3};
 
-void gaps_opts_init(gaps_opts *o) { memset(o, 0, sizeof *o); }
+void gaps_opts_init(gaps_opts *o)
+{
+    memset(o, 0, sizeof *o);
+}
 
 int gaps_unsure(double gap_indirect_ev, double resolution_ev)
 {
@@ -118,8 +120,7 @@ static int plateau_repeat(const bp_mesh *g, const double *f, int i)
  * variation), lowest first, at most nmax of them, skipping explored basins. Work array idx (npts)
  * from the caller. */
 static int refine_quantity(bp_eval *e, const bp_mesh *g, const double *f, int *idx, int q, int nmax,
-                           double tol_k, double tol, gaps_best *b, gaps_ends *ends, int *nrun,
-                           bs_err *err)
+                           double tol_k, double tol, gaps_best *b, gaps_ends *ends, int *nrun, bs_err *err)
 {
     int nmin = bp_mesh_minima(g, f, g->npts, idx), done = 0, rc = 0;
     double step = 1.0 / g->n;
@@ -212,7 +213,8 @@ int gaps_find_eval(bp_eval *e, const gaps_opts *o, gaps_result *out, bs_err *err
         bp_mesh_free(h);
         out->levels++;
         change = 0;
-        for (int q = 0; q < 3; q++) change = fmax(change, before[q] - b.v[q]);
+        for (int q = 0; q < 3; q++)
+            change = fmax(change, before[q] - b.v[q]);
         if (change <= tol) break;
     }
     for (int q = 0; q < 3; q++) {

@@ -14,7 +14,7 @@
 typedef struct touch {
     double k[3];
     double lo, hi;
-    int hits;       /* refinements that converged here */
+    int hits; /* refinements that converged here */
 } touch;
 
 typedef struct search {
@@ -25,13 +25,16 @@ typedef struct search {
     double tol_gap, tol_k, merge;
     touch *t;
     int nt;
-    double (*line)[3];  /* points traced along nodal lines */
+    double (*line)[3]; /* points traced along nodal lines */
     int nline, line_cap;
     double min_gap;
     int nstarts;
 } search;
 
-void nodes_opts_init(nodes_opts *o) { memset(o, 0, sizeof *o); }
+void nodes_opts_init(nodes_opts *o)
+{
+    memset(o, 0, sizeof *o);
+}
 
 void nodes_result_init(nodes_result *r)
 {
@@ -133,10 +136,12 @@ static int run_starts(search *s, const double *f, double thresh, bs_err *err)
     for (int i = 0; rc == 0 && g->dim == 3 && used < s->cap && i < g->npts; i++) {
         if (f[i] >= thresh || !is_valley(g, f, i)) continue;
         int dup = 0;
-        for (int j = 0; j < used && !dup; j++) dup = idx[j] == i;
+        for (int j = 0; j < used && !dup; j++)
+            dup = idx[j] == i;
         if (!dup) nval = insert_capped(idx + used, nval, s->cap - used, f, i);
     }
-    for (int i = 0; i < nval && rc == 0; i++) rc = refine_from(s, idx[used + i], 1, err);
+    for (int i = 0; i < nval && rc == 0; i++)
+        rc = refine_from(s, idx[used + i], 1, err);
     free(idx);
     return rc;
 }
@@ -150,7 +155,8 @@ static int line_tangent(search *s, const double k[3], double tan[3], bs_err *err
     double ev[3], vec[9];
     *rc = bp_gap_curvature(s->e, k, 1e-3, ev, vec, err);
     if (*rc != 0 || !(ev[2] > 0) || ev[0] > 1e-3 * ev[2] || ev[1] < 1e-2 * ev[2]) return 0;
-    for (int a = 0; a < 3; a++) tan[a] = vec[a];
+    for (int a = 0; a < 3; a++)
+        tan[a] = vec[a];
     return 1;
 }
 
@@ -175,7 +181,8 @@ static int trace_dir(search *s, const double p0[3], const double t0[3], double s
     }
     for (int step = 0; step < (int)(4.0 / delta) && s->nline < s->line_cap; step++) {
         double q[3], k[3], gap, tn[3];
-        for (int a = 0; a < 3; a++) q[a] = p[a] + delta * t[a];
+        for (int a = 0; a < 3; a++)
+            q[a] = p[a] + delta * t[a];
         *rc = bp_minimise(s->e, BP_GAP, q, 0.25 * delta, 1e-6, k, &gap, NULL, NULL, err);
         if (*rc != 0) return added;
         double moved = bp_kdist(s->dim, k, p);
@@ -200,7 +207,8 @@ static int trace_dir(search *s, const double p0[3], const double t0[3], double s
 static int find_lines(search *s, int min_pts, int *absorbed, bs_err *err)
 {
     double delta = 0.25 / s->g->n;
-    for (int i = 0; i < s->nt; i++) absorbed[i] = 0;
+    for (int i = 0; i < s->nt; i++)
+        absorbed[i] = 0;
     if (s->dim != 3) return 0;
     for (int i = 0; i < s->nt; i++) {
         if (near_line(s, s->t[i].k, 2 * delta)) continue;
@@ -216,7 +224,8 @@ static int find_lines(search *s, int min_pts, int *absorbed, bs_err *err)
         if (rc != 0) return rc;
         if (s->nline - before < min_pts) s->nline = before;
     }
-    for (int i = 0; i < s->nt; i++) absorbed[i] = near_line(s, s->t[i].k, 2 * delta);
+    for (int i = 0; i < s->nt; i++)
+        absorbed[i] = near_line(s, s->t[i].k, 2 * delta);
     return 0;
 }
 
@@ -240,8 +249,8 @@ static double nearest(const search *s, int i)
  * the nearest other touching (so no other node is inside) and at most 0.05; halved up to three
  * times while the value is ambiguous: a smaller cube keeps its surface away from a close partner
  * node, where the curvature is too concentrated for the plaquettes, and from other closings. */
-static int flux_at(const search *s, chern_ws *cw, int i, double deadline, chern_value *v,
-                   long long *nk, bs_err *err)
+static int flux_at(const search *s, chern_ws *cw, int i, double deadline, chern_value *v, long long *nk,
+                   bs_err *err)
 {
     double h = 0.4 * nearest(s, i);
     if (h > 0.05) h = 0.05;
@@ -265,7 +274,8 @@ static int collect(search *s, chern_ws *cw, const int *absorbed, double deadline
                    bs_err *err)
 {
     int nabs = 0;
-    for (int i = 0; i < s->nt; i++) nabs += absorbed[i];
+    for (int i = 0; i < s->nt; i++)
+        nabs += absorbed[i];
     out->nnodes = s->nt - nabs;
     out->nodal_points = s->nline;
     out->nodes = out->nnodes ? calloc((size_t)out->nnodes, sizeof *out->nodes) : NULL;
@@ -285,8 +295,10 @@ static int collect(search *s, chern_ws *cw, const int *absorbed, double deadline
         chern_value v;
         int rc = flux_at(s, cw, i, deadline, &v, &out->nk_evaluated, err);
         if (rc != 0) return rc;
-        if (v.status == RES_DONE) d->chirality = v.chern;
-        else ambiguous = 1;
+        if (v.status == RES_DONE)
+            d->chirality = v.chern;
+        else
+            ambiguous = 1;
         out->net_chirality += d->chirality;
     }
     if (cw && out->nnodes) out->chirality_status = ambiguous ? RES_AMBIGUOUS : RES_DONE;
@@ -307,7 +319,8 @@ static int classify(search *s, const nodes_opts *o, nodes_result *out, bs_err *e
     int min_pts = o->min_line_points > 0 ? o->min_line_points : 8;
     int rc = find_lines(s, min_pts, absorbed, err);
     int isolated = 0;
-    for (int i = 0; rc == 0 && i < s->nt; i++) isolated += !absorbed[i];
+    for (int i = 0; rc == 0 && i < s->nt; i++)
+        isolated += !absorbed[i];
     if (rc == 0 && isolated && s->dim == 3 && !o->skip_chirality)
         rc = chern_create_dist(s->m, s->m->nocc, bp_solver(s->e), &cw, err);
     if (rc == 0) rc = collect(s, cw, absorbed, o->deadline, out, err);

@@ -16,12 +16,12 @@ enum { OCC_BATCH_ELEMENTS = 64 * 200 * 200, OCC_MAX_BATCH = 64 };
 struct occ_ws {
     int norb, nband, batch;
     hk_engine *hk;
-    hk_lines *lines;       /* partial sums for batches along strings and mesh rows */
+    hk_lines *lines; /* partial sums for batches along strings and mesh rows */
     eig_ws *eig;
-    double complex *H;     /* batch x norb x norb */
-    double complex *Z;     /* norb x (nband + 1) */
-    double *w;             /* norb eigenvalues */
-    int partial;           /* compute vectors 0..nband only (zheevr) rather than all (zheevd) */
+    double complex *H; /* batch x norb x norb */
+    double complex *Z; /* norb x (nband + 1) */
+    double *w;         /* norb eigenvalues */
+    int partial;       /* compute vectors 0..nband only (zheevr) rather than all (zheevd) */
     long long count;
 };
 
@@ -73,8 +73,14 @@ void occ_free(occ_ws *w)
     free(w);
 }
 
-long long occ_count(const occ_ws *w) { return w->count; }
-int occ_batch(const occ_ws *w) { return w->batch; }
+long long occ_count(const occ_ws *w)
+{
+    return w->count;
+}
+int occ_batch(const occ_ws *w)
+{
+    return w->batch;
+}
 
 int occ_states(occ_ws *w, int nk, const double *k, double complex *U, double *gap, bs_err *err)
 {
@@ -105,9 +111,9 @@ int occ_states(occ_ws *w, int nk, const double *k, double complex *U, double *ga
 
 int occ_handedness(const tb_model *m)
 {
-    const double (*a)[3] = m->lattice;
-    double det = a[0][0] * (a[1][1] * a[2][2] - a[1][2] * a[2][1])
-               - a[0][1] * (a[1][0] * a[2][2] - a[1][2] * a[2][0])
-               + a[0][2] * (a[1][0] * a[2][1] - a[1][1] * a[2][0]);
+    const double(*a)[3] = m->lattice;
+    double det = a[0][0] * (a[1][1] * a[2][2] - a[1][2] * a[2][1]) -
+                 a[0][1] * (a[1][0] * a[2][2] - a[1][2] * a[2][0]) +
+                 a[0][2] * (a[1][0] * a[2][1] - a[1][1] * a[2][0]);
     return det < 0 ? -1 : 1;
 }

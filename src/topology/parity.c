@@ -27,11 +27,11 @@ typedef struct par_ws {
     int n, nocc;
     hk_engine *hk;
     eig_ws *eig_n, *eig_occ;
-    double complex *H;      /* n^2 */
-    double complex *V;      /* n x (nocc+1) eigenvectors */
-    double complex *PV;     /* n x nocc */
-    double complex *M;      /* nocc^2: V_occ^dagger P V_occ */
-    double *w;              /* n */
+    double complex *H;  /* n^2 */
+    double complex *V;  /* n x (nocc+1) eigenvectors */
+    double complex *PV; /* n x nocc */
+    double complex *M;  /* nocc^2: V_occ^dagger P V_occ */
+    double *w;          /* n */
 } par_ws;
 
 static void ws_free(par_ws *ws)
@@ -84,8 +84,8 @@ static int parity_matrix(par_ws *ws, const sym_info *s, const double k[3], doubl
     int n = ws->n, no = ws->nocc;
     if (sym_inversion_apply(s, k, no, ws->V, ws->PV) != 0) return BS_EINVAL;
     const double complex one = 1.0, zero = 0.0;
-    cblas_zgemm(CblasColMajor, CblasConjTrans, CblasNoTrans, no, no, n, &one, ws->V, n, ws->PV, n,
-                &zero, ws->M, no);
+    cblas_zgemm(CblasColMajor, CblasConjTrans, CblasNoTrans, no, no, n, &one, ws->V, n, ws->PV, n, &zero,
+                ws->M, no);
     double worst = 0;
     for (int b = 0; b < no; b++)
         for (int a = 0; a <= b; a++) {
@@ -99,8 +99,8 @@ static int parity_matrix(par_ws *ws, const sym_info *s, const double k[3], doubl
 }
 
 /* Parities at TRIM t into r; returns 0 or a library error. */
-static int one_trim(par_ws *ws, const sym_info *s, const par_opts *o, int kramers, int t,
-                    par_result *r, bs_err *err)
+static int one_trim(par_ws *ws, const sym_info *s, const par_opts *o, int kramers, int t, par_result *r,
+                    bs_err *err)
 {
     const double *k = r->trim[t];
     int no = ws->nocc;
@@ -135,8 +135,10 @@ static int one_trim(par_ws *ws, const sym_info *s, const par_opts *o, int kramer
     /* Kramers partners share their parity (P commutes with Theta), so both counts are even and
      * one parity per pair enters delta. */
     if (nodd % 2 != 0 || (no - nodd) % 2 != 0) {
-        set_reason(r, PAR_AMBIGUOUS, "odd number of odd-parity occupied states at TRIM %s (%g): "
-                   "Kramers pairs not resolved", k, (double)nodd);
+        set_reason(r, PAR_AMBIGUOUS,
+                   "odd number of odd-parity occupied states at TRIM %s (%g): "
+                   "Kramers pairs not resolved",
+                   k, (double)nodd);
         return 0;
     }
     r->delta[t] = (nodd / 2) % 2 ? -1 : 1;
@@ -150,16 +152,19 @@ static void result_init(const tb_model *m, par_result *r)
     r->dim = m->dim;
     r->ntrim = m->dim == 2 ? 4 : 8;
     for (int t = 0; t < 8; t++) {
-        for (int d = 0; d < 3; d++) r->trim[t][d] = 0.5 * ((t >> d) & 1);
+        for (int d = 0; d < 3; d++)
+            r->trim[t][d] = 0.5 * ((t >> d) & 1);
         r->nodd[t] = r->neven[t] = -1;
     }
-    for (int i = 0; i < 4; i++) r->z2[i] = -1;
+    for (int i = 0; i < 4; i++)
+        r->z2[i] = -1;
 }
 
 static void combine(par_result *r)
 {
     int prod = 1;
-    for (int t = 0; t < r->ntrim; t++) prod *= r->delta[t];
+    for (int t = 0; t < r->ntrim; t++)
+        prod *= r->delta[t];
     r->z2[0] = prod < 0;
     if (r->dim == 2) return;
     for (int j = 0; j < 3; j++) {
@@ -179,21 +184,25 @@ int par_z2(const tb_model *m, const sym_info *s, const par_opts *opts, par_resul
     if (opts) o.dist = opts->dist;
     result_init(m, out);
     if (s->norb != m->norb)
-        return bs_fail(err, BS_EINVAL, "parity: symmetry record for %d states, model has %d", s->norb, m->norb);
+        return bs_fail(err, BS_EINVAL, "parity: symmetry record for %d states, model has %d", s->norb,
+                       m->norb);
     if (!s->inversion) {
         out->status = PAR_NA;
-        snprintf(out->reason, sizeof out->reason, "no inversion symmetry: the parity criterion does not apply");
+        snprintf(out->reason, sizeof out->reason,
+                 "no inversion symmetry: the parity criterion does not apply");
         return 0;
     }
     int kramers = s->time_reversal && s->tr_squared == -1;
     if (kramers && !s->inv_commutes_tr) {
         out->status = PAR_AMBIGUOUS;
-        snprintf(out->reason, sizeof out->reason, "inversion and time reversal do not commute: "
+        snprintf(out->reason, sizeof out->reason,
+                 "inversion and time reversal do not commute: "
                  "Kramers partners need not share their parity");
     }
     par_ws ws;
     int rc = ws_create(m, o.dist, &ws, err);
-    for (int t = 0; t < out->ntrim && rc == 0; t++) rc = one_trim(&ws, s, &o, kramers, t, out, err);
+    for (int t = 0; t < out->ntrim && rc == 0; t++)
+        rc = one_trim(&ws, s, &o, kramers, t, out, err);
     ws_free(&ws);
     if (rc != 0) return rc;
     if (!kramers && out->status == PAR_DONE) {
@@ -210,6 +219,8 @@ void par_format(const par_result *r, char *buf, int len)
     if (len <= 0) return;
     buf[0] = '\0';
     if (r->status != PAR_DONE) return;
-    if (r->dim == 2) snprintf(buf, (size_t)len, "%d", r->z2[0]);
-    else snprintf(buf, (size_t)len, "%d;%d%d%d", r->z2[0], r->z2[1], r->z2[2], r->z2[3]);
+    if (r->dim == 2)
+        snprintf(buf, (size_t)len, "%d", r->z2[0]);
+    else
+        snprintf(buf, (size_t)len, "%d;%d%d%d", r->z2[0], r->z2[1], r->z2[2], r->z2[3]);
 }

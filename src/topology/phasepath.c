@@ -24,7 +24,7 @@
 typedef struct pp_segment {
     int nR;
     int (*R)[3];
-    int *ia, *ib;         /* index of R in the lower / upper member, -1 when absent */
+    int *ia, *ib; /* index of R in the lower / upper member, -1 when absent */
 } pp_segment;
 
 struct pp_source {
@@ -34,7 +34,7 @@ struct pp_source {
     int n;
     const tb_model *const *members;
     double *values;
-    pp_segment *seg;      /* n - 1 */
+    pp_segment *seg; /* n - 1 */
 };
 
 void pp_source_free(pp_source *s)
@@ -56,7 +56,8 @@ int pp_source_builtin(const char *spec, const char *param, pp_source **out, bs_e
     *out = NULL;
     char name[64];
     size_t len = strcspn(spec, ":");
-    if (len == 0 || len >= sizeof name) return bs_fail(err, BS_EINVAL, "model spec '%s': no model name", spec);
+    if (len == 0 || len >= sizeof name)
+        return bs_fail(err, BS_EINVAL, "model spec '%s': no model name", spec);
     memcpy(name, spec, len);
     name[len] = '\0';
     const lm_info *info = lm_find(name);
@@ -69,14 +70,17 @@ int pp_source_builtin(const char *spec, const char *param, pp_source **out, bs_e
             return bs_fail(err, BS_EINVAL, "parameter '%s' of %s is an integer key: a path needs a real one",
                            param, name);
     }
-    if (!found) return bs_fail(err, BS_EINVAL, "model %s has no parameter '%s' (bandsieve models %s)", name, param, name);
+    if (!found)
+        return bs_fail(err, BS_EINVAL, "model %s has no parameter '%s' (bandsieve models %s)", name, param,
+                       name);
     /* the spec must not set the varied key itself */
     const char *p = spec + len;
     while (*p) {
         p++;
         size_t kl = strcspn(p, "=");
         if (kl == strlen(param) && strncmp(p, param, kl) == 0)
-            return bs_fail(err, BS_EINVAL, "model spec '%s' sets '%s', the parameter of the path", spec, param);
+            return bs_fail(err, BS_EINVAL, "model spec '%s' sets '%s', the parameter of the path", spec,
+                           param);
         p += strcspn(p, ",");
     }
     if (strlen(spec) >= sizeof((pp_source *)0)->spec - 64 || strlen(param) >= 64)
@@ -93,14 +97,22 @@ int pp_source_builtin(const char *spec, const char *param, pp_source **out, bs_e
 int pp_same_basis(const tb_model *a, const tb_model *b, bs_err *err)
 {
     const char *what = NULL;
-    if (a->dim != b->dim) what = "dimension";
-    else if (a->norb != b->norb) what = "number of states";
-    else if (a->nspatial != b->nspatial) what = "number of spatial orbitals";
-    else if (a->spinful != b->spinful || a->spin_layout != b->spin_layout) what = "spin layout";
-    else if (a->nocc != b->nocc) what = "filling (occupied_bands)";
+    if (a->dim != b->dim)
+        what = "dimension";
+    else if (a->norb != b->norb)
+        what = "number of states";
+    else if (a->nspatial != b->nspatial)
+        what = "number of spatial orbitals";
+    else if (a->spinful != b->spinful || a->spin_layout != b->spin_layout)
+        what = "spin layout";
+    else if (a->nocc != b->nocc)
+        what = "filling (occupied_bands)";
     else
         for (int o = 0; o < a->nspatial; o++)
-            if (a->orb_l[o] != b->orb_l[o]) { what = "orbital angular momenta (order of the orbitals)"; break; }
+            if (a->orb_l[o] != b->orb_l[o]) {
+                what = "orbital angular momenta (order of the orbitals)";
+                break;
+            }
     if (what)
         return bs_fail(err, BS_EINVAL, "members '%s' and '%s' of a family do not share a basis: %s differs",
                        a->id, b->id, what);
@@ -165,13 +177,14 @@ static int interpolate(const pp_source *s, int seg, double t, tb_model **out, bs
     if (rc != 0) return rc;
     snprintf(m->id, sizeof m->id, "%.56s~%.56s@%.6g", a->id, b->id, t);
     snprintf(m->formula, sizeof m->formula, "%s", a->formula);
-    snprintf(m->source, sizeof m->source, "interpolated between %.90s and %.90s (virtual crystal)",
-             a->id, b->id);
+    snprintf(m->source, sizeof m->source, "interpolated between %.90s and %.90s (virtual crystal)", a->id,
+             b->id);
     m->dim = a->dim;
     m->spin_layout = a->spin_layout;
     m->nocc = a->nocc;
     for (int i = 0; i < 3; i++)
-        for (int j = 0; j < 3; j++) m->lattice[i][j] = (1 - t) * a->lattice[i][j] + t * b->lattice[i][j];
+        for (int j = 0; j < 3; j++)
+            m->lattice[i][j] = (1 - t) * a->lattice[i][j] + t * b->lattice[i][j];
     for (int o = 0; o < a->nspatial; o++) {
         m->orb_l[o] = a->orb_l[o];
         for (int j = 0; j < 3; j++) {
@@ -189,12 +202,14 @@ static int interpolate(const pp_source *s, int seg, double t, tb_model **out, bs
         if (g->ia[r] >= 0) {
             const double complex *ha = a->H + (size_t)g->ia[r] * nn;
             double w = (1 - t) / a->deg[g->ia[r]];
-            for (size_t e = 0; e < nn; e++) h[e] += w * ha[e];
+            for (size_t e = 0; e < nn; e++)
+                h[e] += w * ha[e];
         }
         if (g->ib[r] >= 0) {
             const double complex *hb = b->H + (size_t)g->ib[r] * nn;
             double w = t / b->deg[g->ib[r]];
-            for (size_t e = 0; e < nn; e++) h[e] += w * hb[e];
+            for (size_t e = 0; e < nn; e++)
+                h[e] += w * hb[e];
         }
     }
     *out = m;
@@ -213,7 +228,8 @@ int pp_source_model(const pp_source *s, double x, tb_model **out, bs_err *err)
     if (x < lo - slack || x > hi + slack)
         return bs_fail(err, BS_EINVAL, "path value %g outside the members' range [%g, %g]", x, lo, hi);
     int seg = 0;
-    while (seg + 2 < s->n && x > s->values[seg + 1]) seg++;
+    while (seg + 2 < s->n && x > s->values[seg + 1])
+        seg++;
     double t = (x - s->values[seg]) / (s->values[seg + 1] - s->values[seg]);
     if (t < 0) t = 0;
     if (t > 1) t = 1;
@@ -282,8 +298,10 @@ static int bisect_edge(gapfn *f, double x_open, double x_closed, double *edge, b
         double mid = 0.5 * (a + b), g;
         int rc = gap_at(f, mid, &g, NULL, err);
         if (rc != 0) return rc;
-        if (g < f->o->closed_ev) b = mid;
-        else a = mid;
+        if (g < f->o->closed_ev)
+            b = mid;
+        else
+            a = mid;
     }
     *edge = 0.5 * (a + b);
     return 0;
@@ -299,11 +317,15 @@ static int golden_min(gapfn *f, double a, double b, double *xmin, double *gmin, 
     double stop = f->o->tol_x * 1e-4;
     while (rc == 0 && b - a > stop && fmin(gc, gd) >= f->o->closed_ev) {
         if (gc < gd) {
-            b = d; d = c; gd = gc;
+            b = d;
+            d = c;
+            gd = gc;
             c = b - r * (b - a);
             rc = gap_at(f, c, &gc, NULL, err);
         } else {
-            a = c; c = d; gc = gd;
+            a = c;
+            c = d;
+            gc = gd;
             d = a + r * (b - a);
             rc = gap_at(f, d, &gd, NULL, err);
         }
@@ -316,7 +338,10 @@ static int golden_min(gapfn *f, double a, double b, double *xmin, double *gmin, 
 
 /* ---------------------------------------------------------------- labels */
 
-static double vlen(const double v[3]) { return sqrt(v[0] * v[0] + v[1] * v[1] + v[2] * v[2]); }
+static double vlen(const double v[3])
+{
+    return sqrt(v[0] * v[0] + v[1] * v[1] + v[2] * v[2]);
+}
 
 static double vangle(const double a[3], const double b[3])
 {
@@ -324,32 +349,55 @@ static double vangle(const double a[3], const double b[3])
     return acos(fmax(-1.0, fmin(1.0, d))) * 180.0 / M_PI;
 }
 
-static double wrap01(double v) { return v - floor(v); }
+static double wrap01(double v)
+{
+    return v - floor(v);
+}
 
-static int near(double a, double b) { double d = a - b; d -= round(d); return fabs(d) < 1e-3; }
+static int near(double a, double b)
+{
+    double d = a - b;
+    d -= round(d);
+    return fabs(d) < 1e-3;
+}
 
 void pp_kpoint_label(const tb_model *m, const double k[3], char *buf, int len, int *trim)
 {
     int dim = m->dim, h[3] = {0, 0, 0}, is_trim = 1;
     for (int i = 0; i < dim; i++) {
-        if (near(k[i], 0)) h[i] = 0;
-        else if (near(k[i], 0.5)) h[i] = 1;
-        else is_trim = 0;
+        if (near(k[i], 0))
+            h[i] = 0;
+        else if (near(k[i], 0.5))
+            h[i] = 1;
+        else
+            is_trim = 0;
     }
     *trim = is_trim;
-    const double (*a)[3] = (const double (*)[3])m->lattice;
+    const double(*a)[3] = (const double(*)[3])m->lattice;
     double la = vlen(a[0]), lb = vlen(a[1]), lc = vlen(a[2]);
     int eq2 = fabs(la - lb) < 1e-6 * la, eq3 = eq2 && fabs(la - lc) < 1e-6 * la;
     double g12 = vangle(a[0], a[1]), g13 = vangle(a[0], a[2]), g23 = vangle(a[1], a[2]);
     int nhalf = h[0] + h[1] + h[2];
-    if (is_trim && nhalf == 0) { snprintf(buf, len, "Gamma"); return; }
+    if (is_trim && nhalf == 0) {
+        snprintf(buf, len, "Gamma");
+        return;
+    }
     if (dim == 2 && eq2 && (fabs(g12 - 60) < 1e-4 || fabs(g12 - 120) < 1e-4)) {
-        if (is_trim) { snprintf(buf, len, "M"); return; }
+        if (is_trim) {
+            snprintf(buf, len, "M");
+            return;
+        }
         /* zone corners: (1/3, 2/3) and (2/3, 1/3) for 60 degrees, (1/3, 1/3) and (2/3, 2/3) for 120 */
         int sixty = fabs(g12 - 60) < 1e-4;
         double c1[2] = {1.0 / 3, sixty ? 2.0 / 3 : 1.0 / 3}, c2[2] = {2.0 / 3, sixty ? 1.0 / 3 : 2.0 / 3};
-        if (near(k[0], c1[0]) && near(k[1], c1[1])) { snprintf(buf, len, "K"); return; }
-        if (near(k[0], c2[0]) && near(k[1], c2[1])) { snprintf(buf, len, "K'"); return; }
+        if (near(k[0], c1[0]) && near(k[1], c1[1])) {
+            snprintf(buf, len, "K");
+            return;
+        }
+        if (near(k[0], c2[0]) && near(k[1], c2[1])) {
+            snprintf(buf, len, "K'");
+            return;
+        }
     }
     if (is_trim && dim == 2 && eq2 && fabs(g12 - 90) < 1e-4) {
         snprintf(buf, len, nhalf == 1 ? "X" : "M");
@@ -366,7 +414,8 @@ void pp_kpoint_label(const tb_model *m, const double k[3], char *buf, int len, i
         }
     }
     if (is_trim) {
-        snprintf(buf, len, "(%s,%s,%s)", h[0] ? "1/2" : "0", h[1] ? "1/2" : "0", dim == 3 && h[2] ? "1/2" : "0");
+        snprintf(buf, len, "(%s,%s,%s)", h[0] ? "1/2" : "0", h[1] ? "1/2" : "0",
+                 dim == 3 && h[2] ? "1/2" : "0");
         return;
     }
     snprintf(buf, len, "(%.4f,%.4f,%.4f)", wrap01(k[0]), wrap01(k[1]), dim == 3 ? wrap01(k[2]) : 0.0);
@@ -375,18 +424,27 @@ void pp_kpoint_label(const tb_model *m, const double k[3], char *buf, int len, i
 const char *pp_event_name(int kind)
 {
     switch (kind) {
-    case PP_EV_CREATED: return "pair created";
-    case PP_EV_ANNIHILATED: return "pair annihilated";
-    case PP_EV_BOUNDARY: return "node crosses the zone boundary";
-    case PP_EV_COUNT: return "node count not a multiple of 4 under time reversal";
-    case PP_EV_NET: return "net chirality not zero";
-    default: return "?";
+    case PP_EV_CREATED:
+        return "pair created";
+    case PP_EV_ANNIHILATED:
+        return "pair annihilated";
+    case PP_EV_BOUNDARY:
+        return "node crosses the zone boundary";
+    case PP_EV_COUNT:
+        return "node count not a multiple of 4 under time reversal";
+    case PP_EV_NET:
+        return "net chirality not zero";
+    default:
+        return "?";
     }
 }
 
 /* ---------------------------------------------------------------- results */
 
-void pp_opts_init(pp_opts *o) { memset(o, 0, sizeof *o); }
+void pp_opts_init(pp_opts *o)
+{
+    memset(o, 0, sizeof *o);
+}
 
 void pp_result_init(pp_result *r)
 {
@@ -400,7 +458,8 @@ void pp_result_clear(pp_result *r)
     free(r->xs);
     free(r->gaps);
     free(r->closings);
-    for (int i = 0; i < r->ninterval; i++) res_clear(&r->intervals[i].diag);
+    for (int i = 0; i < r->ninterval; i++)
+        res_clear(&r->intervals[i].diag);
     free(r->intervals);
     for (int i = 0; i < r->ntrack; i++) {
         free(r->tracks[i].x);
@@ -417,7 +476,10 @@ static void add_note(pp_result *r, const char *fmt, ...)
 {
     size_t used = strlen(r->note);
     if (used + 4 >= sizeof r->note) return;
-    if (used) { snprintf(r->note + used, sizeof r->note - used, "; "); used += 2; }
+    if (used) {
+        snprintf(r->note + used, sizeof r->note - used, "; ");
+        used += 2;
+    }
     va_list ap;
     va_start(ap, fmt);
     vsnprintf(r->note + used, sizeof r->note - used, fmt, ap);
@@ -428,7 +490,8 @@ static int grow(void **p, int *cap, int need, size_t size)
 {
     if (need <= *cap) return 0;
     int nc = *cap ? 2 * *cap : 8;
-    while (nc < need) nc *= 2;
+    while (nc < need)
+        nc *= 2;
     void *q = realloc(*p, (size_t)nc * size);
     if (!q) return -1;
     *p = q;
@@ -463,8 +526,8 @@ static int add_region(pp_result *r, int *cap, double lo, double hi, double x, do
 }
 
 /* Touching k-points of the model at x (nodes_find without chirality), labelled. */
-static int closing_kpoints(const pp_source *s, const pp_opts *o, double x, double gap_hint, const double k_hint[3],
-                           pp_closing *c, bs_err *err)
+static int closing_kpoints(const pp_source *s, const pp_opts *o, double x, double gap_hint,
+                           const double k_hint[3], pp_closing *c, bs_err *err)
 {
     tb_model *m = NULL;
     hk_engine *hk = NULL;
@@ -484,7 +547,8 @@ static int closing_kpoints(const pp_source *s, const pp_opts *o, double x, doubl
     }
     if (rc == 0) {
         c->nk = 0;
-        for (int i = 0; i < nr.nnodes && c->nk < PP_MAX_KPTS; i++) memcpy(c->k[c->nk++], nr.nodes[i].k, sizeof c->k[0]);
+        for (int i = 0; i < nr.nnodes && c->nk < PP_MAX_KPTS; i++)
+            memcpy(c->k[c->nk++], nr.nodes[i].k, sizeof c->k[0]);
         for (int i = 0; i < nr.nodal_points && c->nk < PP_MAX_KPTS && nr.nnodes == 0; i++)
             memcpy(c->k[c->nk++], nr.line_k[i], sizeof c->k[0]);
         if (c->nk == 0) {
@@ -527,19 +591,24 @@ static void predict(const pp_source *s, double xp, pp_closing *c)
 static int trim_index(const double k[3])
 {
     int t = 0;
-    for (int i = 0; i < 3; i++) if (near(k[i], 0.5)) t |= 1 << i;
+    for (int i = 0; i < 3; i++)
+        if (near(k[i], 0.5)) t |= 1 << i;
     return t;
 }
 
 static void z2_text(const res_diag *d, char *buf, int len)
 {
     if (d->z2_status != RES_DONE) {
-        if (d->chern_status == RES_DONE && !d->time_reversal && d->dim == 2) snprintf(buf, len, "C = %d", d->chern);
-        else snprintf(buf, len, "-");
+        if (d->chern_status == RES_DONE && !d->time_reversal && d->dim == 2)
+            snprintf(buf, len, "C = %d", d->chern);
+        else
+            snprintf(buf, len, "-");
         return;
     }
-    if (d->dim == 2) snprintf(buf, len, "Z2 = %d", d->z2[0]);
-    else snprintf(buf, len, "Z2 = %d;%d%d%d", d->z2[0], d->z2[1], d->z2[2], d->z2[3]);
+    if (d->dim == 2)
+        snprintf(buf, len, "Z2 = %d", d->z2[0]);
+    else
+        snprintf(buf, len, "Z2 = %d;%d%d%d", d->z2[0], d->z2[1], d->z2[2], d->z2[3]);
 }
 
 static void describe(pp_result *r, pp_closing *c, const char *param)
@@ -547,7 +616,8 @@ static void describe(pp_result *r, pp_closing *c, const char *param)
     const pp_interval *b = c->before >= 0 ? &r->intervals[c->before] : NULL;
     const pp_interval *a = c->after >= 0 ? &r->intervals[c->after] : NULL;
     /* parities: both sides inversion-symmetric Kramers insulators with parity counts */
-    if (b && a && b->diag.ntrim > 0 && b->diag.ntrim == a->diag.ntrim && b->diag.inversion && a->diag.inversion) {
+    if (b && a && b->diag.ntrim > 0 && b->diag.ntrim == a->diag.ntrim && b->diag.inversion &&
+        a->diag.inversion) {
         c->parity_checked = 1;
         for (int t = 0; t < b->diag.ntrim; t++)
             c->trim_changed[t] = b->diag.par_nodd[t] >= 0 && a->diag.par_nodd[t] >= 0 &&
@@ -562,19 +632,22 @@ static void describe(pp_result *r, pp_closing *c, const char *param)
     int used = 0;
     for (int i = 0; i < c->nk; i++) {
         int seen = 0;
-        for (int j = 0; j < i; j++) seen |= strcmp(c->k_label[i], c->k_label[j]) == 0;
+        for (int j = 0; j < i; j++)
+            seen |= strcmp(c->k_label[i], c->k_label[j]) == 0;
         if (seen) continue;
         int count = 0;
-        for (int j = i; j < c->nk; j++) count += strcmp(c->k_label[i], c->k_label[j]) == 0;
+        for (int j = i; j < c->nk; j++)
+            count += strcmp(c->k_label[i], c->k_label[j]) == 0;
         if (!c->at_trim[i] && c->k_label[i][0] == '(') continue;
-        used += snprintf(where + used, sizeof where - used > 0 ? sizeof where - used : 0, "%s%s", used ? ", " : "",
-                         c->k_label[i]);
+        used += snprintf(where + used, sizeof where - used > 0 ? sizeof where - used : 0, "%s%s",
+                         used ? ", " : "", c->k_label[i]);
         if (count > 1 && used < (int)sizeof where)
             used += snprintf(where + used, sizeof where - used, " (x%d)", count);
         if (used >= (int)sizeof where) break;
     }
     int generic = 0;
-    for (int i = 0; i < c->nk; i++) generic += !c->at_trim[i] && c->k_label[i][0] == '(';
+    for (int i = 0; i < c->nk; i++)
+        generic += !c->at_trim[i] && c->k_label[i][0] == '(';
     char sides[200] = "";
     if (b && a) {
         char zb[32], za[32];
@@ -584,39 +657,53 @@ static void describe(pp_result *r, pp_closing *c, const char *param)
                  res_class_name(a->diag.cls), za);
     }
     if (c->point) {
-        if (c->all_at_trims && c->parity_exchange) snprintf(c->kind, sizeof c->kind, "band inversion");
-        else snprintf(c->kind, sizeof c->kind, "gap closing");
+        if (c->all_at_trims && c->parity_exchange)
+            snprintf(c->kind, sizeof c->kind, "band inversion");
+        else
+            snprintf(c->kind, sizeof c->kind, "gap closing");
         char at[160];
-        if (generic && !where[0]) snprintf(at, sizeof at, "%d generic k point%s", generic, generic > 1 ? "s" : "");
-        else if (generic) snprintf(at, sizeof at, "%s and %d generic k point%s", where, generic, generic > 1 ? "s" : "");
-        else snprintf(at, sizeof at, "%s", where);
+        if (generic && !where[0])
+            snprintf(at, sizeof at, "%d generic k point%s", generic, generic > 1 ? "s" : "");
+        else if (generic)
+            snprintf(at, sizeof at, "%s and %d generic k point%s", where, generic, generic > 1 ? "s" : "");
+        else
+            snprintf(at, sizeof at, "%s", where);
         snprintf(c->text, sizeof c->text, "%s at %s, %s = %.6g%s", c->kind, at, param, c->x, sides);
     } else {
         const pp_interval *g = NULL;
         for (int i = 0; i < r->ninterval; i++)
             if (r->intervals[i].gapless && fabs(r->intervals[i].x_lo - c->x_lo) < 1e-12) g = &r->intervals[i];
         res_class cls = g ? g->diag.cls : RES_UNDETERMINED;
-        if (cls == RES_WEYL) snprintf(c->kind, sizeof c->kind, "Weyl phase");
-        else if (cls == RES_NODAL_LINE) snprintf(c->kind, sizeof c->kind, "nodal line");
-        else snprintf(c->kind, sizeof c->kind, "metal");
-        snprintf(c->text, sizeof c->text, "%s from %s = %.6g to %.6g%s", c->kind, param, c->x_lo, c->x_hi, sides);
+        if (cls == RES_WEYL)
+            snprintf(c->kind, sizeof c->kind, "Weyl phase");
+        else if (cls == RES_NODAL_LINE)
+            snprintf(c->kind, sizeof c->kind, "nodal line");
+        else
+            snprintf(c->kind, sizeof c->kind, "metal");
+        snprintf(c->text, sizeof c->text, "%s from %s = %.6g to %.6g%s", c->kind, param, c->x_lo, c->x_hi,
+                 sides);
     }
 }
 
 /* ---------------------------------------------------------------- node tracks */
 
-static double kdiff(double a, double b) { double d = a - b; return d - round(d); }
+static double kdiff(double a, double b)
+{
+    double d = a - b;
+    return d - round(d);
+}
 
 static int track_push(pp_track *t, double x, const double k[3])
 {
     double *nx = realloc(t->x, (size_t)(t->npts + 1) * sizeof *nx);
     if (!nx) return -1;
     t->x = nx;
-    double (*nk)[3] = realloc(t->k, (size_t)(t->npts + 1) * sizeof *nk);
+    double(*nk)[3] = realloc(t->k, (size_t)(t->npts + 1) * sizeof *nk);
     if (!nk) return -1;
     t->k = nk;
     t->x[t->npts] = x;
-    for (int i = 0; i < 3; i++) t->k[t->npts][i] = wrap01(k[i]);
+    for (int i = 0; i < 3; i++)
+        t->k[t->npts][i] = wrap01(k[i]);
     t->npts++;
     return 0;
 }
@@ -627,7 +714,8 @@ static int add_event(pp_result *r, int *cap, int kind, double x, const double k[
     pp_event *e = &r->events[r->nevent++];
     e->kind = kind;
     e->x = x;
-    for (int i = 0; i < 3; i++) e->k[i] = k ? wrap01(k[i]) : 0;
+    for (int i = 0; i < 3; i++)
+        e->k[i] = k ? wrap01(k[i]) : 0;
     e->a = a;
     e->b = b;
     e->interval = iv;
@@ -652,7 +740,10 @@ static int pair_events(pp_result *r, int *ecap, const int *ids, int n, int first
             if (tj->chirality != -ti->chirality) continue;
             const double *kj = first ? tj->k[0] : tj->k[tj->npts - 1];
             double d = bp_kdist(3, ki, kj);
-            if (d < bd) { bd = d; best = j; }
+            if (d < bd) {
+                bd = d;
+                best = j;
+            }
         }
         used[i] = 1;
         double k[3];
@@ -662,13 +753,22 @@ static int pair_events(pp_result *r, int *ecap, const int *ids, int n, int first
             other = ids[best];
             pp_track *tj = &r->tracks[other];
             const double *kj = first ? tj->k[0] : tj->k[tj->npts - 1];
-            for (int c = 0; c < 3; c++) k[c] = ki[c] + 0.5 * kdiff(kj[c], ki[c]);
-            if (first) { ti->born_with = other; tj->born_with = ids[i]; }
-            else { ti->died_with = other; tj->died_with = ids[i]; }
+            for (int c = 0; c < 3; c++)
+                k[c] = ki[c] + 0.5 * kdiff(kj[c], ki[c]);
+            if (first) {
+                ti->born_with = other;
+                tj->born_with = ids[i];
+            } else {
+                ti->died_with = other;
+                tj->died_with = ids[i];
+            }
         } else {
             memcpy(k, ki, sizeof k);
         }
-        if (add_event(r, ecap, kind, x, k, ids[i], other, iv) != 0) { free(used); return -1; }
+        if (add_event(r, ecap, kind, x, k, ids[i], other, iv) != 0) {
+            free(used);
+            return -1;
+        }
         if (best < 0) {
             r->confidence *= 0.7;
             add_note(r, "a node at %s = %.4g has no partner of opposite chirality", r->param, x);
@@ -686,7 +786,8 @@ static int find_nodes(const tb_model *m, bp_eval *bp, int mesh, nodes_result *nr
     return nodes_find_eval(m, bp, &no, nr, err);
 }
 
-static int run_tracks(const pp_source *s, const pp_opts *o, pp_result *r, int iv, int *tcap, int *ecap, bs_err *err)
+static int run_tracks(const pp_source *s, const pp_opts *o, pp_result *r, int iv, int *tcap, int *ecap,
+                      bs_err *err)
 {
     const pp_interval *in = &r->intervals[iv];
     int nsteps = o->track_steps;
@@ -717,7 +818,8 @@ static int run_tracks(const pp_source *s, const pp_opts *o, pp_result *r, int iv
             }
         }
         int nweyl = 0;
-        for (int i = 0; rc == 0 && i < nr.nnodes; i++) nweyl += nr.nodes[i].chirality != 0;
+        for (int i = 0; rc == 0 && i < nr.nnodes; i++)
+            nweyl += nr.nodes[i].chirality != 0;
         if (rc == 0 && tr && nweyl % 4 != 0) {
             if (add_event(r, ecap, PP_EV_COUNT, x, NULL, -1, -1, iv) != 0) rc = BS_ENOMEM;
             r->confidence *= 0.7;
@@ -754,21 +856,28 @@ static int run_tracks(const pp_source *s, const pp_opts *o, pp_result *r, int iv
                 for (int i = 0; i < nr.nnodes; i++) {
                     if (claimed[i] || nr.nodes[i].chirality != t->chirality) continue;
                     double d = bp_kdist(3, kmin, nr.nodes[i].k);
-                    if (d < bd) { bd = d; match[a] = i; }
+                    if (d < bd) {
+                        bd = d;
+                        match[a] = i;
+                    }
                 }
                 if (match[a] >= 0) claimed[match[a]] = 1;
             }
         int nnew_alive = 0;
         for (int a = 0; rc == 0 && a < nalive; a++) {
             pp_track *t = &r->tracks[alive[a]];
-            if (match[a] < 0) { died_step[alive[a] - first_track] = step; continue; }
+            if (match[a] < 0) {
+                died_step[alive[a] - first_track] = step;
+                continue;
+            }
             const double *kn = nr.nodes[match[a]].k, *prev = t->k[t->npts - 1];
             /* the boundary of the Gamma-centred reduced cell, k_i = 1/2 */
             for (int c = 0; c < 3; c++) {
                 double cn = kn[c] - round(kn[c]), cp = prev[c] - round(prev[c]);
                 if (fabs(cn - cp) > 0.5) {
                     t->crossings++;
-                    if (add_event(r, ecap, PP_EV_BOUNDARY, x - 0.5 * h, kn, alive[a], -1, iv) != 0) rc = BS_ENOMEM;
+                    if (add_event(r, ecap, PP_EV_BOUNDARY, x - 0.5 * h, kn, alive[a], -1, iv) != 0)
+                        rc = BS_ENOMEM;
                     break;
                 }
             }
@@ -780,20 +889,30 @@ static int run_tracks(const pp_source *s, const pp_opts *o, pp_result *r, int iv
         /* nodes no track reached: new tracks */
         for (int i = 0; rc == 0 && i < nr.nnodes; i++) {
             if (claimed[i] || nr.nodes[i].chirality == 0) continue;
-            if (grow((void **)&r->tracks, tcap, r->ntrack + 1, sizeof *r->tracks) != 0) { rc = BS_ENOMEM; break; }
+            if (grow((void **)&r->tracks, tcap, r->ntrack + 1, sizeof *r->tracks) != 0) {
+                rc = BS_ENOMEM;
+                break;
+            }
             int id = r->ntrack++;
             pp_track *t = &r->tracks[id];
             memset(t, 0, sizeof *t);
             t->chirality = nr.nodes[i].chirality;
             t->born_with = t->died_with = -1;
-            if (track_push(t, x, nr.nodes[i].k) != 0) { rc = BS_ENOMEM; break; }
+            if (track_push(t, x, nr.nodes[i].k) != 0) {
+                rc = BS_ENOMEM;
+                break;
+            }
             int n = id - first_track + 1;
-            int *na = realloc(alive, (size_t)n * sizeof *na), *nb = realloc(born_step, (size_t)n * sizeof *nb);
+            int *na = realloc(alive, (size_t)n * sizeof *na),
+                *nb = realloc(born_step, (size_t)n * sizeof *nb);
             if (na) alive = na;
             if (nb) born_step = nb;
             int *nd = realloc(died_step, (size_t)n * sizeof *nd);
             if (nd) died_step = nd;
-            if (!na || !nb || !nd) { rc = BS_ENOMEM; break; }
+            if (!na || !nb || !nd) {
+                rc = BS_ENOMEM;
+                break;
+            }
             born_step[n - 1] = step;
             died_step[n - 1] = -1;
             alive[nalive++] = id;
@@ -811,7 +930,8 @@ static int run_tracks(const pp_source *s, const pp_opts *o, pp_result *r, int iv
     if (rc == 0 && ntr > 0 && !ids) rc = bs_fail(err, BS_ENOMEM, "out of memory for node tracks");
     for (int step = 0; rc == 0 && step < nsteps; step++) {
         int n = 0;
-        for (int i = 0; i < ntr; i++) if (born_step[i] == step) ids[n++] = first_track + i;
+        for (int i = 0; i < ntr; i++)
+            if (born_step[i] == step) ids[n++] = first_track + i;
         double x = step == 0 ? in->x_lo : in->x_lo + step * h;
         /* nodes present where the path starts were not created on it */
         int at_start = step == 0 && in->x_lo <= r->x_lo;
@@ -823,7 +943,8 @@ static int run_tracks(const pp_source *s, const pp_opts *o, pp_result *r, int iv
         }
         x = step == nsteps - 1 ? in->x_hi : in->x_lo + (step + 1) * h;
         int at_end = step == nsteps - 1 && in->x_hi >= r->x_hi;
-        if (rc == 0 && n > 0 && !at_end && pair_events(r, ecap, ids, n, 0, PP_EV_ANNIHILATED, x, iv) != 0) rc = BS_ENOMEM;
+        if (rc == 0 && n > 0 && !at_end && pair_events(r, ecap, ids, n, 0, PP_EV_ANNIHILATED, x, iv) != 0)
+            rc = BS_ENOMEM;
     }
     if (rc == BS_ENOMEM) bs_fail(err, BS_ENOMEM, "out of memory for node events");
     free(ids);
@@ -856,20 +977,24 @@ static int diagnose(const pp_source *s, const pp_opts *o, pp_interval *iv, pp_re
         bs_err_clear(&e2);
         iv->diag_rc = diag_run(m, &o->diag, &iv->diag, &e2);
         r->diag_runs++;
-        if (iv->diag_rc == BS_ENOMEM) rc = bs_fail(err, BS_ENOMEM, "%s", e2.msg);
-        else if (iv->diag_rc != 0) add_note(r, "diagnosis at %s = %.6g failed: %s", r->param, iv->x_rep, e2.msg);
+        if (iv->diag_rc == BS_ENOMEM)
+            rc = bs_fail(err, BS_ENOMEM, "%s", e2.msg);
+        else if (iv->diag_rc != 0)
+            add_note(r, "diagnosis at %s = %.6g failed: %s", r->param, iv->x_rep, e2.msg);
     }
     tb_model_free(m);
     return rc;
 }
 
-int pp_run(const pp_source *s, const char *param, double x_lo, double x_hi, const pp_opts *opts,
-           pp_result *r, bs_err *err)
+int pp_run(const pp_source *s, const char *param, double x_lo, double x_hi, const pp_opts *opts, pp_result *r,
+           bs_err *err)
 {
     double t0 = bs_now();
     pp_opts o;
-    if (opts) o = *opts;
-    else pp_opts_init(&o);
+    if (opts)
+        o = *opts;
+    else
+        pp_opts_init(&o);
     if (o.nsamples <= 0) o.nsamples = 41;
     if (o.nsamples < 3) o.nsamples = 3;
     if (o.tol_x <= 0) o.tol_x = 1e-5;
@@ -885,8 +1010,11 @@ int pp_run(const pp_source *s, const char *param, double x_lo, double x_hi, cons
     r->nsamples = n;
     r->xs = malloc((size_t)n * sizeof *r->xs);
     r->gaps = malloc((size_t)n * sizeof *r->gaps);
-    double (*ks)[3] = malloc((size_t)n * sizeof *ks);
-    if (!r->xs || !r->gaps || !ks) { free(ks); return bs_fail(err, BS_ENOMEM, "out of memory for path samples"); }
+    double(*ks)[3] = malloc((size_t)n * sizeof *ks);
+    if (!r->xs || !r->gaps || !ks) {
+        free(ks);
+        return bs_fail(err, BS_ENOMEM, "out of memory for path samples");
+    }
     {
         tb_model *m0 = NULL;
         rc = pp_source_model(s, x_lo, &m0, err);
@@ -902,12 +1030,14 @@ int pp_run(const pp_source *s, const char *param, double x_lo, double x_hi, cons
     for (int j = 0; j < n && rc == 0; j++) {
         if (r->gaps[j] >= o.closed_ev || (j > 0 && r->gaps[j - 1] < o.closed_ev)) continue;
         int e = j;
-        while (e + 1 < n && r->gaps[e + 1] < o.closed_ev) e++;
+        while (e + 1 < n && r->gaps[e + 1] < o.closed_ev)
+            e++;
         double lo = x_lo, hi = x_hi;
         if (j > 0) rc = bisect_edge(&f, r->xs[j - 1], r->xs[j], &lo, err);
         if (rc == 0 && e < n - 1) rc = bisect_edge(&f, r->xs[e + 1], r->xs[e], &hi, err);
         int best = j;
-        for (int i = j; i <= e; i++) if (r->gaps[i] < r->gaps[best]) best = i;
+        for (int i = j; i <= e; i++)
+            if (r->gaps[i] < r->gaps[best]) best = i;
         if (rc == 0) rc = add_region(r, &ccap, lo, hi, r->xs[best], r->gaps[best], err);
     }
     /* isolated minima of open samples: golden section */
@@ -929,10 +1059,14 @@ int pp_run(const pp_source *s, const char *param, double x_lo, double x_hi, cons
             continue;
         }
         double lo = a, hi = b;
-        if (xm - a > o.tol_x) rc = bisect_edge(&f, a, xm, &lo, err);
-        else lo = a;
-        if (rc == 0 && b - xm > o.tol_x) rc = bisect_edge(&f, b, xm, &hi, err);
-        else hi = b;
+        if (xm - a > o.tol_x)
+            rc = bisect_edge(&f, a, xm, &lo, err);
+        else
+            lo = a;
+        if (rc == 0 && b - xm > o.tol_x)
+            rc = bisect_edge(&f, b, xm, &hi, err);
+        else
+            hi = b;
         if (rc == 0) rc = add_region(r, &ccap, lo, hi, xm, gm, err);
     }
     free(ks);
@@ -945,7 +1079,10 @@ int pp_run(const pp_source *s, const char *param, double x_lo, double x_hi, cons
             if (w > 0 && r->closings[i].x_lo <= r->closings[w - 1].x_hi + o.tol_x) {
                 pp_closing *p = &r->closings[w - 1];
                 if (r->closings[i].x_hi > p->x_hi) p->x_hi = r->closings[i].x_hi;
-                if (r->closings[i].gap_ev < p->gap_ev) { p->gap_ev = r->closings[i].gap_ev; p->x = r->closings[i].x; }
+                if (r->closings[i].gap_ev < p->gap_ev) {
+                    p->gap_ev = r->closings[i].gap_ev;
+                    p->x = r->closings[i].x;
+                }
                 continue;
             }
             r->closings[w++] = r->closings[i];
@@ -975,7 +1112,10 @@ int pp_run(const pp_source *s, const char *param, double x_lo, double x_hi, cons
     }
     /* intervals */
     r->intervals = calloc((size_t)(2 * r->nclosing + 1), sizeof *r->intervals);
-    if (!r->intervals) { rc = bs_fail(err, BS_ENOMEM, "out of memory for intervals"); goto done; }
+    if (!r->intervals) {
+        rc = bs_fail(err, BS_ENOMEM, "out of memory for intervals");
+        goto done;
+    }
     {
         double cur = x_lo;
         for (int i = 0; i < r->nclosing; i++) {
@@ -983,17 +1123,21 @@ int pp_run(const pp_source *s, const char *param, double x_lo, double x_hi, cons
             double start = c->point ? c->x : c->x_lo;
             if (start > cur + o.tol_x) {
                 pp_interval *iv = &r->intervals[r->ninterval++];
-                iv->x_lo = cur; iv->x_hi = start;
+                iv->x_lo = cur;
+                iv->x_hi = start;
             }
             if (!c->point) {
                 pp_interval *iv = &r->intervals[r->ninterval++];
-                iv->x_lo = c->x_lo; iv->x_hi = c->x_hi; iv->gapless = 1;
+                iv->x_lo = c->x_lo;
+                iv->x_hi = c->x_hi;
+                iv->gapless = 1;
             }
             cur = c->point ? c->x : c->x_hi;
         }
         if (cur < x_hi - o.tol_x) {
             pp_interval *iv = &r->intervals[r->ninterval++];
-            iv->x_lo = cur; iv->x_hi = x_hi;
+            iv->x_lo = cur;
+            iv->x_hi = x_hi;
         }
         /* the gapped intervals on either side of each closing */
         for (int i = 0; i < r->nclosing; i++) {
@@ -1006,7 +1150,8 @@ int pp_run(const pp_source *s, const char *param, double x_lo, double x_hi, cons
             }
         }
     }
-    for (int i = 0; i < r->ninterval; i++) res_init(&r->intervals[i].diag);
+    for (int i = 0; i < r->ninterval; i++)
+        res_init(&r->intervals[i].diag);
     for (int i = 0; i < r->ninterval && rc == 0; i++) {
         pp_interval *iv = &r->intervals[i];
         iv->x_rep = 0.5 * (iv->x_lo + iv->x_hi);
@@ -1026,7 +1171,9 @@ int pp_run(const pp_source *s, const char *param, double x_lo, double x_hi, cons
             /* The prediction counts conditions for a 3D two-band crossing of non-degenerate bands:
              * not for 2D, and not where inversion with time reversal makes every band a Kramers
              * pair (the bands at the filling are then degenerate with their partners). */
-            const pp_interval *side = c->before >= 0 ? &r->intervals[c->before] : c->after >= 0 ? &r->intervals[c->after] : NULL;
+            const pp_interval *side = c->before >= 0  ? &r->intervals[c->before]
+                                      : c->after >= 0 ? &r->intervals[c->after]
+                                                      : NULL;
             int kramers_everywhere = side && side->diag.inversion && side->diag.time_reversal;
             if (xp > x_lo && xp < x_hi && r->dim == 3 && !kramers_everywhere) predict(s, xp, c);
         }
@@ -1050,12 +1197,22 @@ done:
     return rc;
 }
 
-static const char *const PP_CLASSES[PP_NCLASS] = {
-    "undetermined", "trivial insulator", "strong topological insulator", "weak topological insulator",
-    "2D topological insulator", "Chern insulator", "Weyl semimetal", "nodal-line semimetal", "metal",
-    "critical point", "topological crystalline insulator"};
+static const char *const PP_CLASSES[PP_NCLASS] = {"undetermined",
+                                                  "trivial insulator",
+                                                  "strong topological insulator",
+                                                  "weak topological insulator",
+                                                  "2D topological insulator",
+                                                  "Chern insulator",
+                                                  "Weyl semimetal",
+                                                  "nodal-line semimetal",
+                                                  "metal",
+                                                  "critical point",
+                                                  "topological crystalline insulator"};
 
-const char *pp_class_name(int i) { return i >= 0 && i < PP_NCLASS ? PP_CLASSES[i] : "?"; }
+const char *pp_class_name(int i)
+{
+    return i >= 0 && i < PP_NCLASS ? PP_CLASSES[i] : "?";
+}
 
 int pp_class_index(const char *cls)
 {
@@ -1069,8 +1226,10 @@ int pp_map_row(const pp_source *s, const char *param, double x_lo, double x_hi, 
 {
     if (nx < 3) return bs_fail(err, BS_EINVAL, "phase map: at least 3 points per row, got %d", nx);
     pp_opts oo;
-    if (o) oo = *o;
-    else pp_opts_init(&oo);
+    if (o)
+        oo = *o;
+    else
+        pp_opts_init(&oo);
     oo.nsamples = nx;
     int rc = pp_run(s, param, x_lo, x_hi, &oo, r, err);
     if (rc != 0) return rc;

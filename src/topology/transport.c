@@ -55,10 +55,10 @@
  * shell), but not below TR_FS_FLOOR_EV (or the smearing): splits smaller than that are reported,
  * not resolved.
  * Bands closer than TR_DEGEN_EV are one degenerate level (their pair terms cancel or are dropped). */
-#define TR_FS_SAFETY 1.5
-#define TR_FS_FRAC 0.5
+#define TR_FS_SAFETY   1.5
+#define TR_FS_FRAC     0.5
 #define TR_FS_FLOOR_EV 1e-3
-#define TR_DEGEN_EV 1e-6
+#define TR_DEGEN_EV    1e-6
 
 /* Heap key of a Fermi-surface cell that is not yet resolved: above any error estimate, larger
  * cells first. */
@@ -73,22 +73,22 @@ static const int comp_ops[4][2] = {{OP_VX, OP_VY}, {OP_VY, OP_VZ}, {OP_VZ, OP_VX
 typedef struct tr_ws {
     const tb_model *m;
     int n, dim, nocc;
-    int nahc, has_shc, ncomp;       /* components: nahc AHC, then SHC */
-    int comp[4];                    /* index into comp_ops */
-    int nE, nv;                     /* Fermi energies; values per point = ncomp * nE */
+    int nahc, has_shc, ncomp; /* components: nahc AHC, then SHC */
+    int comp[4];              /* index into comp_ops */
+    int nE, nv;               /* Fermi energies; values per point = ncomp * nE */
     int gauge;
     double eta2, smear;
     double fermi[TR_MAX_FERMI];
-    double jac[3][3];               /* jac[i][c] = a_i[c] / (2 pi) */
-    double jinv[3][3];              /* jinv[c][i] = dk_c / dk_i (Cartesian per reduced) */
-    double unit[4];                 /* per component: output units per (reduced volume x Omega) */
-    double *spin;                   /* n: +1 up, -1 down */
-    double (*rc)[3];                /* n Cartesian positions, Angstrom */
+    double jac[3][3];  /* jac[i][c] = a_i[c] / (2 pi) */
+    double jinv[3][3]; /* jinv[c][i] = dk_c / dk_i (Cartesian per reduced) */
+    double unit[4];    /* per component: output units per (reduced volume x Omega) */
+    double *spin;      /* n: +1 up, -1 down */
+    double (*rc)[3];   /* n Cartesian positions, Angstrom */
     hk_engine *hk;
     eig_ws *eig;
-    double complex *H, *dH;         /* TR_KBATCH n^2 and 3 TR_KBATCH n^2 */
-    double complex *D, *V, *T;      /* NOP n^2 (orbital basis), NOP n^2 (eigenbasis), n^2 */
-    double *E, *X, *cut, *f;        /* n; ncomp n^2; ncomp (n+1); n */
+    double complex *H, *dH;    /* TR_KBATCH n^2 and 3 TR_KBATCH n^2 */
+    double complex *D, *V, *T; /* NOP n^2 (orbital basis), NOP n^2 (eigenbasis), n^2 */
+    double *E, *X, *cut, *f;   /* n; ncomp n^2; ncomp (n+1); n */
     long long nk;
     double min_gap;
     double deadline;
@@ -126,17 +126,18 @@ static void ws_free(tr_ws *w)
  * (2 pi / A) int dk_red sum f Omega; the SHC takes hbar/(2e) of the same: (pi / A) in e/(2 pi). */
 static int set_geometry(tr_ws *w, bs_err *err)
 {
-    const double (*a)[3] = w->m->lattice;
+    const double(*a)[3] = w->m->lattice;
     for (int i = 0; i < 3; i++)
-        for (int c = 0; c < 3; c++) w->jac[i][c] = a[i][c] / (2 * M_PI);
+        for (int c = 0; c < 3; c++)
+            w->jac[i][c] = a[i][c] / (2 * M_PI);
     if (w->dim == 2) {
         double scale = fabs(a[0][0]) + fabs(a[0][1]) + fabs(a[1][0]) + fabs(a[1][1]);
         double area = fabs(a[0][0] * a[1][1] - a[0][1] * a[1][0]);
         if (fabs(a[0][2]) > 1e-9 * scale || fabs(a[1][2]) > 1e-9 * scale || !(area > 0))
             return bs_fail(err, BS_EINVAL,
                            "transport: expected a 2D lattice with a1, a2 in the xy plane, found "
-                           "a1 = (%g, %g, %g), a2 = (%g, %g, %g)", a[0][0], a[0][1], a[0][2],
-                           a[1][0], a[1][1], a[1][2]);
+                           "a1 = (%g, %g, %g), a2 = (%g, %g, %g)",
+                           a[0][0], a[0][1], a[0][2], a[1][0], a[1][1], a[1][2]);
         w->unit[0] = 2 * M_PI / area; /* component 0: AHC xy; component 1: SHC */
         w->unit[1] = M_PI / area;
         double det = w->jac[0][0] * w->jac[1][1] - w->jac[0][1] * w->jac[1][0];
@@ -151,11 +152,13 @@ static int set_geometry(tr_ws *w, bs_err *err)
                       a[0][2] * (a[1][0] * a[2][1] - a[1][1] * a[2][0]));
     if (!(vol > 0))
         return bs_fail(err, BS_EINVAL, "transport: expected a cell volume > 0, found %g A^3", vol);
-    for (int c = 0; c < 3; c++) w->unit[c] = TR_E2_HBAR_S_ANG_PER_CM / vol;
+    for (int c = 0; c < 3; c++)
+        w->unit[c] = TR_E2_HBAR_S_ANG_PER_CM / vol;
     w->unit[3] = 0.5 * TR_E2_HBAR_S_ANG_PER_CM / vol;
     /* Inverse of jac by cofactors: jinv[c][i] = cof(jac)[i][c] / det. */
-    double (*J)[3] = w->jac, det = 0;
-    for (int c = 0; c < 3; c++) det += J[0][c] * (J[1][(c + 1) % 3] * J[2][(c + 2) % 3] - J[1][(c + 2) % 3] * J[2][(c + 1) % 3]);
+    double(*J)[3] = w->jac, det = 0;
+    for (int c = 0; c < 3; c++)
+        det += J[0][c] * (J[1][(c + 1) % 3] * J[2][(c + 2) % 3] - J[1][(c + 2) % 3] * J[2][(c + 1) % 3]);
     for (int i = 0; i < 3; i++)
         for (int c = 0; c < 3; c++) {
             int i1 = (i + 1) % 3, i2 = (i + 2) % 3, c1 = (c + 1) % 3, c2 = (c + 2) % 3;
@@ -181,7 +184,8 @@ static int ws_create(const tb_model *m, const tr_opts *o, tr_ws **out, bs_err *e
     w->nahc = m->dim == 3 ? 3 : 1;
     w->has_shc = m->spinful && o->want_shc;
     w->ncomp = w->nahc + w->has_shc;
-    for (int c = 0; c < w->nahc; c++) w->comp[c] = c;
+    for (int c = 0; c < w->nahc; c++)
+        w->comp[c] = c;
     if (w->has_shc) w->comp[w->nahc] = 3;
     int rc = set_geometry(w, err);
     if (rc != 0) goto done;
@@ -200,8 +204,8 @@ static int ws_create(const tb_model *m, const tr_opts *o, tr_ws **out, bs_err *e
     w->X = malloc(4 * n2 * sizeof *w->X);
     w->cut = malloc(4 * (n + 1) * sizeof *w->cut);
     w->f = malloc(n * sizeof *w->f);
-    if (!w->spin || !w->rc || !w->H || !w->dH || !w->D || !w->V || !w->T || !w->E || !w->X ||
-        !w->cut || !w->f) {
+    if (!w->spin || !w->rc || !w->H || !w->dH || !w->D || !w->V || !w->T || !w->E || !w->X || !w->cut ||
+        !w->f) {
         rc = bs_fail(err, BS_ENOMEM, "transport workspace for %d states: out of memory", w->n);
         goto done;
     }
@@ -210,8 +214,7 @@ static int ws_create(const tb_model *m, const tr_opts *o, tr_ws **out, bs_err *e
         w->spin[s] = m->spinful ? (tb_state_spin(m, s) == 0 ? 1.0 : -1.0) : 0.0;
         const double *t = m->orb_pos[tb_state_orbital(m, s)];
         for (int c = 0; c < 3; c++)
-            w->rc[s][c] =
-                t[0] * m->lattice[0][c] + t[1] * m->lattice[1][c] + t[2] * m->lattice[2][c];
+            w->rc[s][c] = t[0] * m->lattice[0][c] + t[1] * m->lattice[1][c] + t[2] * m->lattice[2][c];
     }
     *out = w;
     w = NULL;
@@ -231,8 +234,8 @@ static void velocities(tr_ws *w, const double complex *H, const double complex *
         for (int b = 0; b < n; b++)
             for (int a = 0; a < n; a++) {
                 size_t idx = (size_t)a + (size_t)b * n;
-                double complex d = w->jac[0][c] * dH[idx] + w->jac[1][c] * dH[n2 + idx] +
-                                   w->jac[2][c] * dH[2 * n2 + idx];
+                double complex d =
+                    w->jac[0][c] * dH[idx] + w->jac[1][c] * dH[n2 + idx] + w->jac[2][c] * dH[2 * n2 + idx];
                 if (w->gauge == TR_GAUGE_POSITION) d -= I * (w->rc[a][c] - w->rc[b][c]) * H[idx];
                 Dc[idx] = d;
             }
@@ -260,10 +263,10 @@ static void to_eigenbasis(tr_ws *w, const double complex *U)
     }
     for (int op = 0; op < NOP; op++) {
         if (!used[op]) continue;
-        cblas_zgemm(CblasColMajor, CblasNoTrans, CblasNoTrans, n, n, n, &one, w->D + op * n2, n, U,
-                    n, &zero, w->T, n);
-        cblas_zgemm(CblasColMajor, CblasConjTrans, CblasNoTrans, n, n, n, &one, U, n, w->T, n,
-                    &zero, w->V + op * n2, n);
+        cblas_zgemm(CblasColMajor, CblasNoTrans, CblasNoTrans, n, n, n, &one, w->D + op * n2, n, U, n, &zero,
+                    w->T, n);
+        cblas_zgemm(CblasColMajor, CblasConjTrans, CblasNoTrans, n, n, n, &one, U, n, w->T, n, &zero,
+                    w->V + op * n2, n);
     }
 }
 
@@ -288,8 +291,10 @@ static void pair_terms(tr_ws *w)
         S[0] = 0;
         for (int N = 0; N < n; N++) {
             double s = S[N];
-            for (int q = N + 1; q < n; q++) s += X[N + (size_t)q * n];
-            for (int p = 0; p < N; p++) s -= X[p + (size_t)N * n];
+            for (int q = N + 1; q < n; q++)
+                s += X[N + (size_t)q * n];
+            for (int p = 0; p < N; p++)
+                s -= X[p + (size_t)N * n];
             S[N + 1] = s;
         }
     }
@@ -304,7 +309,8 @@ static void fermi_values(tr_ws *w, double *val)
         double ef = w->fermi[e];
         if (w->smear == 0) {
             int N = 0;
-            while (N < n && w->E[N] < ef) N++;
+            while (N < n && w->E[N] < ef)
+                N++;
             for (int c = 0; c < w->ncomp; c++)
                 val[c * w->nE + e] = -2.0 * w->unit[c] * w->cut[c * (n + 1) + N];
             continue;
@@ -318,7 +324,8 @@ static void fermi_values(tr_ws *w, double *val)
             const double *X = w->X + c * n2;
             double s = 0;
             for (int q = 0; q < n; q++)
-                for (int p = 0; p < q; p++) s += (w->f[p] - w->f[q]) * X[p + (size_t)q * n];
+                for (int p = 0; p < q; p++)
+                    s += (w->f[p] - w->f[q]) * X[p + (size_t)q * n];
             val[c * w->nE + e] = -2.0 * w->unit[c] * s;
         }
     }
@@ -335,7 +342,8 @@ static void band_data(const tr_ws *w, double *b)
         o[0] = w->E[p];
         for (int i = 0; i < d; i++) {
             double g = 0;
-            for (int c = 0; c < d; c++) g += creal(w->V[c * n2 + (size_t)p * (n + 1)]) * w->jinv[c][i];
+            for (int c = 0; c < d; c++)
+                g += creal(w->V[c * n2 + (size_t)p * (n + 1)]) * w->jinv[c][i];
             o[1 + i] = fabs(g);
         }
     }
@@ -349,8 +357,7 @@ static int eval_points(tr_ws *w, int np, const double *k, double *val, double *b
     size_t n2 = (size_t)n * n;
     for (int start = 0; start < np; start += TR_KBATCH) {
         if (w->deadline > 0 && bs_now() > w->deadline)
-            return bs_fail(err, BS_ETIMEOUT, "transport: time budget exceeded after %lld k-points",
-                           w->nk);
+            return bs_fail(err, BS_ETIMEOUT, "transport: time budget exceeded after %lld k-points", w->nk);
         int nb = np - start < TR_KBATCH ? np - start : TR_KBATCH;
         int rc = hk_build_deriv(w->hk, nb, k + 3 * (size_t)start, w->H, w->dH, err);
         if (rc != 0) return rc;
@@ -443,31 +450,31 @@ done:
 
 typedef struct tr_cell {
     double c[3], hw[3];
-    unsigned char level[3];    /* halvings along each axis */
-    signed char split;         /* axis to halve next, -1 when every axis is at the depth limit */
-    signed char fs;            /* FS_NONE, FS_RESOLVED, FS_OPEN (may hold a Fermi crossing) */
-    int alive;                 /* 0 once refined */
-    double err;                /* largest component error of the cell, output units */
-    double key;                /* heap key: err, or above every err while fs == FS_OPEN */
-    double fs_split;           /* FS cells: smallest distance (eV) of a crossing band to another */
-    double fs_feature;         /* FS cells: that distance over the band velocity, reduced k */
-    double pmax;               /* largest |integrand| at the cell's points (any component) */
+    unsigned char level[3]; /* halvings along each axis */
+    signed char split;      /* axis to halve next, -1 when every axis is at the depth limit */
+    signed char fs;         /* FS_NONE, FS_RESOLVED, FS_OPEN (may hold a Fermi crossing) */
+    int alive;              /* 0 once refined */
+    double err;             /* largest component error of the cell, output units */
+    double key;             /* heap key: err, or above every err while fs == FS_OPEN */
+    double fs_split;        /* FS cells: smallest distance (eV) of a crossing band to another */
+    double fs_feature;      /* FS cells: that distance over the band velocity, reduced k */
+    double pmax;            /* largest |integrand| at the cell's points (any component) */
 } tr_cell;
 
 enum { FS_NONE = 0, FS_RESOLVED = 1, FS_OPEN = 2 };
 
 typedef struct tr_mesh {
     tr_cell *cell;
-    double *val, *cerr;        /* ncell x nv: degree-7 value and |R7 - R5| */
+    double *val, *cerr; /* ncell x nv: degree-7 value and |R7 - R5| */
     long long ncell, cap;
-    int *heap;                 /* refinable cells, max-heap on err */
+    int *heap; /* refinable cells, max-heap on err */
     long long nheap;
-    double *k, *pv, *pb;       /* points, point values and band data of one round */
-    double *vscale;            /* nv: largest |integrand| seen at any point (per unit volume) */
+    double *k, *pv, *pb; /* points, point values and band data of one round */
+    double *vscale;      /* nv: largest |integrand| seen at any point (per unit volume) */
     long long kcap;
-    int npt;                   /* points per cell */
-    double (*off)[3];          /* npt offsets in units of hw */
-    int *grp;                  /* npt: group 0..4 of each point */
+    int npt;          /* points per cell */
+    double (*off)[3]; /* npt offsets in units of hw */
+    int *grp;         /* npt: group 0..4 of each point */
     double w7[5], w5[5];
 } tr_mesh;
 
@@ -492,8 +499,7 @@ static int mesh_rule(tr_mesh *g, int d, bs_err *err)
     g->npt = (1 << d) + 2 * d * d + 2 * d + 1;
     g->off = calloc((size_t)g->npt, sizeof *g->off);
     g->grp = calloc((size_t)g->npt, sizeof *g->grp);
-    if (!g->off || !g->grp)
-        return bs_fail(err, BS_ENOMEM, "transport: cubature rule: out of memory");
+    if (!g->off || !g->grp) return bs_fail(err, BS_ENOMEM, "transport: cubature rule: out of memory");
     int q = 1;
     for (int grp = 1; grp <= 2; grp++)
         for (int i = 0; i < d; i++)
@@ -510,7 +516,8 @@ static int mesh_rule(tr_mesh *g, int d, bs_err *err)
                     g->grp[q++] = 3;
                 }
     for (int s = 0; s < (1 << d); s++) {
-        for (int i = 0; i < d; i++) g->off[q][i] = ((s >> i) & 1) ? -GM_L5 : GM_L5;
+        for (int i = 0; i < d; i++)
+            g->off[q][i] = ((s >> i) & 1) ? -GM_L5 : GM_L5;
         g->grp[q++] = 4;
     }
     double dd = d;
@@ -531,7 +538,8 @@ static int mesh_reserve(tr_mesh *g, long long ncell, int nv, bs_err *err)
 {
     if (ncell <= g->cap) return 0;
     long long cap = g->cap ? g->cap : 1024;
-    while (cap < ncell) cap *= 2;
+    while (cap < ncell)
+        cap *= 2;
     if (cap > INT_MAX) return bs_fail(err, BS_EINVAL, "transport: more than %d cells", INT_MAX);
     tr_cell *c = realloc(g->cell, (size_t)cap * sizeof *c);
     if (c) g->cell = c;
@@ -630,7 +638,8 @@ static void fermi_cell(const tr_ws *w, const double *pb, int npt, int max_depth,
             const double *b = pb + ((size_t)q * n + p) * st;
             lo = fmin(lo, b[0]);
             hi = fmax(hi, b[0]);
-            for (int i = 0; i < d; i++) gmax[i] = fmax(gmax[i], b[1 + i]);
+            for (int i = 0; i < d; i++)
+                gmax[i] = fmax(gmax[i], b[1 + i]);
         }
         double M = 0, gnorm = 0;
         for (int i = 0; i < d; i++) {
@@ -641,15 +650,18 @@ static void fermi_cell(const tr_ws *w, const double *pb, int npt, int max_depth,
         lo -= M;
         hi += M;
         int crosses = 0;
-        for (int e = 0; e < w->nE && !crosses; e++) crosses = w->fermi[e] >= lo && w->fermi[e] <= hi;
+        for (int e = 0; e < w->nE && !crosses; e++)
+            crosses = w->fermi[e] >= lo && w->fermi[e] <= hi;
         if (!crosses) continue;
         double split = HUGE_VAL;
-        for (int q = 0; q < npt; q++) split = fmin(split, band_split(pb + (size_t)q * n * st, n, st, p));
+        for (int q = 0; q < npt; q++)
+            split = fmin(split, band_split(pb + (size_t)q * n * st, n, st, p));
         double eres = fmax(TR_FS_FRAC * split, floor_ev);
         int open = hi - lo >= eres;
         if (open || cl->fs == FS_NONE) cl->fs = open ? FS_OPEN : FS_RESOLVED;
         if (open)
-            for (int i = 0; i < d; i++) axis_w[i] = fmax(axis_w[i], gmax[i] * cl->hw[i]);
+            for (int i = 0; i < d; i++)
+                axis_w[i] = fmax(axis_w[i], gmax[i] * cl->hw[i]);
         cl->fs_split = fmin(cl->fs_split, split);
         if (gnorm > 0) cl->fs_feature = fmin(cl->fs_feature, split / sqrt(gnorm));
     }
@@ -661,8 +673,7 @@ static void fermi_cell(const tr_ws *w, const double *pb, int npt, int max_depth,
 }
 
 /* Evaluates cells first..first+count-1 (already placed): value, error and the next split axis. */
-static int eval_cells(tr_ws *w, tr_mesh *g, long long first, long long count, int max_depth,
-                      bs_err *err)
+static int eval_cells(tr_ws *w, tr_mesh *g, long long first, long long count, int max_depth, bs_err *err)
 {
     int d = w->dim, per = g->npt, nv = w->nv;
     long long np = count * per;
@@ -695,12 +706,14 @@ static int eval_cells(tr_ws *w, tr_mesh *g, long long first, long long count, in
     for (long long c = 0; c < count; c++) {
         tr_cell *cl = &g->cell[first + c];
         double vol = 1;
-        for (int i = 0; i < d; i++) vol *= 2 * cl->hw[i];
+        for (int i = 0; i < d; i++)
+            vol *= 2 * cl->hw[i];
         const double *pa = g->pv + (size_t)(c * per) * nv;
         double *val = g->val + (size_t)(first + c) * nv, *ce = g->cerr + (size_t)(first + c) * nv;
         cl->err = 0;
         cl->pmax = 0;
-        for (long long q = 0; q < (long long)per * nv; q++) cl->pmax = fmax(cl->pmax, fabs(pa[q]));
+        for (long long q = 0; q < (long long)per * nv; q++)
+            cl->pmax = fmax(cl->pmax, fabs(pa[q]));
         for (int v = 0; v < nv; v++) {
             double r7 = 0, r5 = 0;
             for (int q = 0; q < per; q++) {
@@ -763,8 +776,7 @@ static void check_children(tr_ws *w, tr_mesh *g, int parent, long long child)
  * tol and no refinable cell may hold an unresolved Fermi crossing (those go first, whatever their
  * estimate: a zero estimate there only means no point fell between two Fermi sheets), the k-point
  * budget is spent, or every cell left over is at the depth limit. */
-static int refine(tr_ws *w, tr_mesh *g, const tr_opts *o, double tol, int max_depth, int *depth,
-                  bs_err *err)
+static int refine(tr_ws *w, tr_mesh *g, const tr_opts *o, double tol, int max_depth, int *depth, bs_err *err)
 {
     int round = w->dim == 3 ? 64 : 128;
     double total = 0;
@@ -782,8 +794,7 @@ static int refine(tr_ws *w, tr_mesh *g, const tr_opts *o, double tol, int max_de
     while (g->nheap > 0 && (total > tol || nopen > 0) && w->nk < o->max_kpoints) {
         int npick = 0;
         double left = total;
-        while (g->nheap > 0 && npick < round &&
-               (left > tol || g->cell[g->heap[0]].fs == FS_OPEN)) {
+        while (g->nheap > 0 && npick < round && (left > tol || g->cell[g->heap[0]].fs == FS_OPEN)) {
             int ci = heap_pop(g);
             pick[npick++] = ci;
             left -= g->cell[ci].err;
@@ -808,7 +819,8 @@ static int refine(tr_ws *w, tr_mesh *g, const tr_opts *o, double tol, int max_de
         }
         rc = eval_cells(w, g, first, g->ncell - first, max_depth, err);
         if (rc != 0) break;
-        for (int i = 0; i < npick; i++) check_children(w, g, pick[i], first + 2LL * i);
+        for (int i = 0; i < npick; i++)
+            check_children(w, g, pick[i], first + 2LL * i);
         for (long long c = first; c < g->ncell; c++) {
             const tr_cell *cl = &g->cell[c];
             total += cl->err;
@@ -827,26 +839,28 @@ static int refine(tr_ws *w, tr_mesh *g, const tr_opts *o, double tol, int max_de
 static int check_inputs(const tb_model *m, const tr_opts *o, bs_err *err)
 {
     if (m->dim != 2 && m->dim != 3)
-        return bs_fail(err, BS_EINVAL, "transport: expected a 2D or 3D model, found dim %d",
-                       m->dim);
+        return bs_fail(err, BS_EINVAL, "transport: expected a 2D or 3D model, found dim %d", m->dim);
     if (m->nocc < 1 || m->nocc >= m->norb)
-        return bs_fail(err, BS_EINVAL, "transport: expected 1 <= occupied bands < %d, found %d",
-                       m->norb, m->nocc);
+        return bs_fail(err, BS_EINVAL, "transport: expected 1 <= occupied bands < %d, found %d", m->norb,
+                       m->nocc);
     int mesh_max = m->dim == 3 ? 100 : 1000; /* at most 1e6 initial cells */
     if (o->mesh < 0 || o->mesh > mesh_max || o->max_depth < -1 || o->max_depth > 20)
         return bs_fail(err, BS_EINVAL,
                        "transport: expected 0 <= mesh <= %d and -1 <= max_depth <= 20, found %d "
-                       "and %d", mesh_max, o->mesh, o->max_depth);
+                       "and %d",
+                       mesh_max, o->mesh, o->max_depth);
     if (!(o->tol >= 0) || !isfinite(o->tol) || o->max_kpoints < 1 || !(o->eta_ev >= 0) ||
         !isfinite(o->eta_ev) || !(o->smear_ev >= 0) || !isfinite(o->smear_ev))
         return bs_fail(err, BS_EINVAL,
                        "transport: expected tol >= 0, max_kpoints >= 1, eta >= 0, smearing >= 0, "
-                       "found %g, %lld, %g, %g", o->tol, o->max_kpoints, o->eta_ev, o->smear_ev);
-    if (o->nscan < 0 || o->nscan > TR_MAX_FERMI - 1 || !isfinite(o->scan_lo_ev) ||
-        !isfinite(o->scan_hi_ev) || (o->has_fermi && !isfinite(o->fermi_ev)))
+                       "found %g, %lld, %g, %g",
+                       o->tol, o->max_kpoints, o->eta_ev, o->smear_ev);
+    if (o->nscan < 0 || o->nscan > TR_MAX_FERMI - 1 || !isfinite(o->scan_lo_ev) || !isfinite(o->scan_hi_ev) ||
+        (o->has_fermi && !isfinite(o->fermi_ev)))
         return bs_fail(err, BS_EINVAL,
                        "transport: expected 0 <= nscan <= %d, finite scan limits and Fermi energy, "
-                       "found %d", TR_MAX_FERMI - 1, o->nscan);
+                       "found %d",
+                       TR_MAX_FERMI - 1, o->nscan);
     if (o->gauge != TR_GAUGE_POSITION && o->gauge != TR_GAUGE_LATTICE)
         return bs_fail(err, BS_EINVAL, "transport: unknown gauge %d", o->gauge);
     return 0;
@@ -920,7 +934,8 @@ static void collect(const tr_ws *w, const tr_mesh *g, tr_result *out)
     out->fs_feature = HUGE_VAL;
     out->fs_finest_cell = HUGE_VAL;
     double vmax = 0;
-    for (int v = 0; v < w->nv; v++) vmax = fmax(vmax, g->vscale[v]);
+    for (int v = 0; v < w->nv; v++)
+        vmax = fmax(vmax, g->vscale[v]);
     for (long long c = 0; c < g->ncell; c++) {
         const tr_cell *cl = &g->cell[c];
         if (!cl->alive) continue;
@@ -997,8 +1012,7 @@ int tr_compute(const tb_model *m, const tr_opts *o, tr_result *out, bs_err *err)
     out->nk = w->nk;
     out->tol = tol;
     out->converged = out->err_total <= tol;
-    out->limit = out->converged ? TR_LIMIT_NONE
-                 : w->nk >= o->max_kpoints ? TR_LIMIT_BUDGET : TR_LIMIT_DEPTH;
+    out->limit = out->converged ? TR_LIMIT_NONE : w->nk >= o->max_kpoints ? TR_LIMIT_BUDGET : TR_LIMIT_DEPTH;
     out->min_gap_ev = w->min_gap;
     out->eta_ev = o->eta_ev;
     out->smear_ev = o->smear_ev;

@@ -40,17 +40,17 @@ struct wilson_ws {
     const tb_model *m;
     int norb, nband;
     occ_ws *occ;
-    int batch;                /* k-points diagonalised at a time (occ_batch) */
-    double complex *U;        /* (batch + 2) x norb x nband: a batch, the first point, the last
-                                 point of the previous batch */
-    double *k, *gap;          /* 3 batch, batch */
-    double *tau;              /* norb x 3: reduced position of each basis state's orbital */
-    double complex *phase;    /* norb: D(b) of the current string */
-    double complex *V;        /* norb x nband */
+    int batch;                     /* k-points diagonalised at a time (occ_batch) */
+    double complex *U;             /* (batch + 2) x norb x nband: a batch, the first point, the last
+                                      point of the previous batch */
+    double *k, *gap;               /* 3 batch, batch */
+    double *tau;                   /* norb x 3: reduced position of each basis state's orbital */
+    double complex *phase;         /* norb: D(b) of the current string */
+    double complex *V;             /* norb x nband */
     double complex *M, *W, *T, *P; /* nband x nband */
-    double complex *lam;      /* nband */
-    lapack_int *ipiv;         /* nband */
-    double *rwork;            /* 2 nband */
+    double complex *lam;           /* nband */
+    lapack_int *ipiv;              /* nband */
+    double *rwork;                 /* 2 nband */
     double complex *work;
     lapack_int lwork;
 };
@@ -82,7 +82,8 @@ void wilson_plane_clear(wilson_plane *p)
 
 void wilson_z2_clear(wilson_z2 *r)
 {
-    for (int i = 0; i < 6; i++) wilson_plane_clear(&r->planes[i]);
+    for (int i = 0; i < 6; i++)
+        wilson_plane_clear(&r->planes[i]);
     memset(r, 0, sizeof *r);
 }
 
@@ -91,11 +92,10 @@ static int query_lwork(int n, lapack_int *lwork, bs_err *err)
 {
     lapack_complex_double q = 0, dummy = 0;
     double rdummy = 0;
-    lapack_int info = LAPACKE_zgeev_work(LAPACK_COL_MAJOR, 'N', 'N', n, &dummy, n, &dummy, &dummy, 1,
-                                         &dummy, 1, &q, -1, &rdummy);
+    lapack_int info = LAPACKE_zgeev_work(LAPACK_COL_MAJOR, 'N', 'N', n, &dummy, n, &dummy, &dummy, 1, &dummy,
+                                         1, &q, -1, &rdummy);
     if (info != 0)
-        return bs_fail(err, BS_ENUMERIC, "zgeev workspace query for n = %d failed (info %d)", n,
-                       (int)info);
+        return bs_fail(err, BS_ENUMERIC, "zgeev workspace query for n = %d failed (info %d)", n, (int)info);
     *lwork = (lapack_int)creal(q) + 1;
     return 0;
 }
@@ -133,8 +133,8 @@ int wilson_create_dist(const tb_model *m, int nband, const eig_dist *dist, wilso
     w->ipiv = malloc((size_t)nband * sizeof *w->ipiv);
     w->rwork = malloc(2 * (size_t)nband * sizeof *w->rwork);
     w->work = malloc((size_t)w->lwork * sizeof *w->work);
-    if (!w->U || !w->k || !w->gap || !w->tau || !w->phase || !w->V || !w->M || !w->W || !w->T || !w->P || !w->lam ||
-        !w->ipiv || !w->rwork || !w->work) {
+    if (!w->U || !w->k || !w->gap || !w->tau || !w->phase || !w->V || !w->M || !w->W || !w->T || !w->P ||
+        !w->lam || !w->ipiv || !w->rwork || !w->work) {
         rc = bs_fail(err, BS_ENOMEM, "Wilson-loop workspace for %d bands: out of memory", nband);
         goto done;
     }
@@ -187,11 +187,11 @@ static int push_link(wilson_ws *w, double *det_abs, bs_err *err)
         return bs_fail(err, BS_ENUMERIC, "zgetrf of a %d x %d link overlap failed (info %d)", n, n,
                        (int)info);
     double logd = 0;
-    for (int i = 0; i < n; i++) logd += log(cabs(w->P[i + (size_t)i * n]));
+    for (int i = 0; i < n; i++)
+        logd += log(cabs(w->P[i + (size_t)i * n]));
     *det_abs = info > 0 ? 0.0 : exp(logd);
     double complex scale = info > 0 ? 1.0 : exp(-logd / n);
-    cblas_zgemm(CblasColMajor, CblasNoTrans, CblasNoTrans, n, n, n, &scale, w->W, n, w->M, n, &zero,
-                w->T, n);
+    cblas_zgemm(CblasColMajor, CblasNoTrans, CblasNoTrans, n, n, n, &scale, w->W, n, w->M, n, &zero, w->T, n);
     double complex *t = w->W;
     w->W = w->T;
     w->T = t;
@@ -199,34 +199,35 @@ static int push_link(wilson_ws *w, double *det_abs, bs_err *err)
 }
 
 /* W <- W (A^dagger D(b) B) for the occupied blocks A = U(k_j), B = U(k_j+1); |det| into *det. */
-static int link(wilson_ws *w, const double complex *A, const double complex *B, double *det,
-                bs_err *err)
+static int link(wilson_ws *w, const double complex *A, const double complex *B, double *det, bs_err *err)
 {
     const double complex one = 1.0, zero = 0.0;
     int n = w->nband, norb = w->norb;
     for (int c = 0; c < n; c++)
         for (int a = 0; a < norb; a++)
             w->V[a + (size_t)c * norb] = w->phase[a] * B[a + (size_t)c * norb];
-    cblas_zgemm(CblasColMajor, CblasConjTrans, CblasNoTrans, n, n, norb, &one, A, norb, w->V, norb,
-                &zero, w->M, n);
+    cblas_zgemm(CblasColMajor, CblasConjTrans, CblasNoTrans, n, n, norb, &one, A, norb, w->V, norb, &zero,
+                w->M, n);
     return push_link(w, det, err);
 }
 
 /* wilson_string, and the point of the smallest gap into k_gap. The string is streamed a batch of
  * k-points at a time, so memory does not grow with nk. */
-static int string_eval(wilson_ws *w, int dir, const double k0[3], int nk, double *wcc,
-                       double *min_det, double *min_gap_ev, double k_gap[3], bs_err *err)
+static int string_eval(wilson_ws *w, int dir, const double k0[3], int nk, double *wcc, double *min_det,
+                       double *min_gap_ev, double k_gap[3], bs_err *err)
 {
     if (dir < 0 || dir > 2 || nk < 2)
-        return bs_fail(err, BS_EINVAL,
-                       "Wilson string: expected direction 0..2 and nk >= 2, found %d, %d", dir, nk);
+        return bs_fail(err, BS_EINVAL, "Wilson string: expected direction 0..2 and nk >= 2, found %d, %d",
+                       dir, nk);
     int n = w->nband, norb = w->norb, rc = 0;
     size_t blk = (size_t)norb * (size_t)n;
     double complex *first = w->U + (size_t)w->batch * blk, *last = first + blk;
     const double complex *prev = NULL;
-    for (int a = 0; a < norb; a++) w->phase[a] = cexp(-2.0 * M_PI * I * w->tau[3 * a + dir] / nk);
+    for (int a = 0; a < norb; a++)
+        w->phase[a] = cexp(-2.0 * M_PI * I * w->tau[3 * a + dir] / nk);
     memset(w->W, 0, (size_t)n * n * sizeof *w->W);
-    for (int i = 0; i < n; i++) w->W[i + (size_t)i * n] = 1.0;
+    for (int i = 0; i < n; i++)
+        w->W[i + (size_t)i * n] = 1.0;
     double dmin = HUGE_VAL, gmin = HUGE_VAL, d = 0;
     for (int j0 = 0; j0 < nk; j0 += w->batch) {
         int nb = nk - j0 < w->batch ? nk - j0 : w->batch;
@@ -260,8 +261,8 @@ static int string_eval(wilson_ws *w, int dir, const double k0[3], int nk, double
     if (rc != 0) return rc;
     if (d < dmin) dmin = d;
     lapack_complex_double dummy = 0;
-    lapack_int info = LAPACKE_zgeev_work(LAPACK_COL_MAJOR, 'N', 'N', n, w->W, n, w->lam, &dummy, 1,
-                                         &dummy, 1, w->work, w->lwork, w->rwork);
+    lapack_int info = LAPACKE_zgeev_work(LAPACK_COL_MAJOR, 'N', 'N', n, w->W, n, w->lam, &dummy, 1, &dummy, 1,
+                                         w->work, w->lwork, w->rwork);
     if (info != 0)
         return bs_fail(err, BS_ENUMERIC, "zgeev of the %d x %d Wilson loop failed (info %d)", n, n,
                        (int)info);
@@ -349,11 +350,11 @@ typedef struct plane_run {
     wilson_plane *out;
     int dir, pump;
     double fixed[3];
-    int nk;                   /* current points per string: only grows */
-    int max_nk;               /* o->max_nk, or 8 o->nk when that is 0 */
+    int nk;     /* current points per string: only grows */
+    int max_nk; /* o->max_nk, or 8 o->nk when that is 0 */
     int n, cap;
     double *kpar, *wcc, *z, *g;
-    double *scratch;          /* nband centres of the string being computed */
+    double *scratch; /* nband centres of the string being computed */
     int det_fail;
     double det_fail_kb;
 } plane_run;
@@ -375,8 +376,7 @@ static int add_string(plane_run *r, int at, double kb, bs_err *err)
     const wilson_opts *o = r->o;
     int nb = w->nband;
     if (o->deadline > 0 && bs_now() > o->deadline)
-        return bs_fail(err, BS_ETIMEOUT,
-                       "Wilson loops of plane %d: time budget exceeded after %d strings",
+        return bs_fail(err, BS_ETIMEOUT, "Wilson loops of plane %d: time budget exceeded after %d strings",
                        r->out->plane, r->n);
     double k0[3];
     memcpy(k0, r->fixed, sizeof k0);
@@ -454,8 +454,8 @@ static int refine(plane_run *r, bs_err *err)
 
 static int check_opts(const wilson_opts *o, bs_err *err)
 {
-    if (o->nk < 2 || (o->max_nk != 0 && o->max_nk < o->nk) || o->nstring < 2 ||
-        o->max_strings < o->nstring || !(o->min_spacing > 0) || !(o->det_min >= 0 && o->det_min < 1) ||
+    if (o->nk < 2 || (o->max_nk != 0 && o->max_nk < o->nk) || o->nstring < 2 || o->max_strings < o->nstring ||
+        !(o->min_spacing > 0) || !(o->det_min >= 0 && o->det_min < 1) ||
         !(o->gap_frac >= 0 && o->gap_frac < 0.5) || !(o->move_frac > 0) || !(o->kramers_tol > 0) ||
         !(o->gap_tol_ev >= 0))
         return bs_fail(err, BS_EINVAL,
@@ -478,27 +478,28 @@ static void judge_plane(plane_run *r)
     out->status = RES_AMBIGUOUS;
     if (nb % 2) {
         snprintf(out->reason, sizeof out->reason,
-                 "%d occupied bands, an odd number: no Kramers pairs, so no Z2 (time reversal broken)",
-                 nb);
+                 "%d occupied bands, an odd number: no Kramers pairs, so no Z2 (time reversal broken)", nb);
         return;
     }
     if (s0 > r->o->kramers_tol || s1 > r->o->kramers_tol) {
         snprintf(out->reason, sizeof out->reason,
                  "centres at k_b = 0 and 1/2 do not form Kramers pairs (split %.1e, %.1e): "
-                 "no time reversal?", s0, s1);
+                 "no time reversal?",
+                 s0, s1);
         return;
     }
     for (int i = 0; i + 1 < r->n; i++)
         if (step_unreliable(r, i)) {
             snprintf(out->reason, sizeof out->reason,
                      "a centre stays near the largest-gap midpoint between k_b = %.4f and %.4f "
-                     "after %d strings", r->kpar[i], r->kpar[i + 1], r->n);
+                     "after %d strings",
+                     r->kpar[i], r->kpar[i + 1], r->n);
             return;
         }
     if (r->det_fail) {
         snprintf(out->reason, sizeof out->reason,
-                 "link overlap |det| below %.4g at k_b = %.4f with %d points per string",
-                 r->o->det_min, r->det_fail_kb, r->nk);
+                 "link overlap |det| below %.4g at k_b = %.4f with %d points per string", r->o->det_min,
+                 r->det_fail_kb, r->nk);
         return;
     }
     out->status = RES_DONE;
@@ -517,8 +518,13 @@ int wilson_plane_z2(wilson_ws *w, int p, const wilson_opts *o, wilson_plane *out
     if (p < 0 || p > 5 || (w->m->dim == 2 && p != 4))
         return bs_fail(err, BS_EINVAL, "Wilson plane: expected 0..5 (4 only in 2D), found %d", p);
     int fix = p / 2;
-    plane_run r = {.w = w, .o = o, .out = out, .dir = (fix + 1) % 3, .pump = (fix + 2) % 3,
-                   .nk = o->nk, .max_nk = o->max_nk ? o->max_nk : 8 * o->nk,
+    plane_run r = {.w = w,
+                   .o = o,
+                   .out = out,
+                   .dir = (fix + 1) % 3,
+                   .pump = (fix + 2) % 3,
+                   .nk = o->nk,
+                   .max_nk = o->max_nk ? o->max_nk : 8 * o->nk,
                    .cap = o->max_strings};
     r.fixed[fix] = 0.5 * (p % 2);
     out->plane = p;
@@ -598,13 +604,15 @@ int wilson_z2_run(wilson_ws *w, const wilson_opts *o, wilson_z2 *out, bs_err *er
     /* Phys. Rev. Lett. 98, 106803 (2007): nu_i = Z2(k_i = 1/2), nu0 = Z2(k_i = 0) + Z2(k_i = 1/2)
      * mod 2 for every i; the three values must agree. */
     int nu0[3];
-    for (int i = 0; i < 3; i++) nu0[i] = (out->planes[2 * i].z2 + out->planes[2 * i + 1].z2) % 2;
+    for (int i = 0; i < 3; i++)
+        nu0[i] = (out->planes[2 * i].z2 + out->planes[2 * i + 1].z2) % 2;
     out->z2[0] = nu0[0];
-    for (int i = 0; i < 3; i++) out->z2[i + 1] = out->planes[2 * i + 1].z2;
+    for (int i = 0; i < 3; i++)
+        out->z2[i + 1] = out->planes[2 * i + 1].z2;
     if (nu0[0] != nu0[1] || nu0[0] != nu0[2]) {
         out->status = RES_AMBIGUOUS;
-        snprintf(out->reason, sizeof out->reason,
-                 "nu0 from the k1, k2, k3 plane pairs disagree: %d, %d, %d", nu0[0], nu0[1], nu0[2]);
+        snprintf(out->reason, sizeof out->reason, "nu0 from the k1, k2, k3 plane pairs disagree: %d, %d, %d",
+                 nu0[0], nu0[1], nu0[2]);
     }
     return 0;
 }
@@ -614,7 +622,8 @@ int wilson_z2_take_flows(wilson_z2 *r, res_flow **flows, int *nflows, bs_err *er
     *flows = NULL;
     *nflows = 0;
     int n = 0;
-    for (int i = 0; i < r->nplane; i++) n += r->planes[i].flow.kpar != NULL;
+    for (int i = 0; i < r->nplane; i++)
+        n += r->planes[i].flow.kpar != NULL;
     if (n == 0) return 0;
     res_flow *f = calloc((size_t)n, sizeof *f);
     if (!f) return bs_fail(err, BS_ENOMEM, "Wannier-centre flows: out of memory");

@@ -17,7 +17,8 @@ static void hex_of(const void *data, size_t len, size_t chunk, char out[BS_SHA25
     bs_sha256 s;
     bs_sha256_init(&s);
     const unsigned char *p = data;
-    for (size_t i = 0; i < len; i += chunk) bs_sha256_update(&s, p + i, len - i < chunk ? len - i : chunk);
+    for (size_t i = 0; i < len; i += chunk)
+        bs_sha256_update(&s, p + i, len - i < chunk ? len - i : chunk);
     unsigned char d[BS_SHA256_BYTES];
     bs_sha256_final(&s, d);
     bs_sha256_hex(d, out);

@@ -67,7 +67,8 @@ static void tmp_remove(tmpdir *t)
 static int remove_all_dirs(void **state)
 {
     (void)state;
-    for (int i = 0; i < nmade; i++) dir_remove(made_dirs[i]);
+    for (int i = 0; i < nmade; i++)
+        dir_remove(made_dirs[i]);
     return 0;
 }
 
@@ -140,8 +141,9 @@ static void close_ok(cat_db *cat)
     if (cat_close(cat, &err) != 0) fail_msg("cat_close: %s", err.msg);
 }
 
-static const cat_run_info RUN_A = {"screen", "{\"mesh\": 8, \"tasks\": [\"z2\", \"chern\"]}", "0.1.0", 2, "node1",
-                                   "bandsieve screen set.h5 -c cat.sqlite", "set.h5", NULL, 0};
+static const cat_run_info RUN_A = {"screen", "{\"mesh\": 8, \"tasks\": [\"z2\", \"chern\"]}", "0.1.0",  2,
+                                   "node1",  "bandsieve screen set.h5 -c cat.sqlite",         "set.h5", NULL,
+                                   0};
 
 static int64_t begin(cat_db *cat, const cat_run_info *info)
 {
@@ -153,26 +155,30 @@ static int64_t begin(cat_db *cat, const cat_run_info *info)
 }
 
 /* An invented diagnosis as JSON text (test data, no physics). */
-static void diag_json(char *buf, size_t len, const char *id, const char *cls, double conf, double gap, const char *z2,
-                      int mesh, int nnodes)
+static void diag_json(char *buf, size_t len, const char *id, const char *cls, double conf, double gap,
+                      const char *z2, int mesh, int nnodes)
 {
     char nodes[512] = "";
     size_t k = 0;
     for (int i = 0; i < nnodes; i++)
-        k += (size_t)snprintf(nodes + k, sizeof nodes - k, "%s{\"k\":[%g,0.25,0],\"chirality\":%d,\"energy_eV\":0.01,\"gap_eV\":1e-5}",
+        k += (size_t)snprintf(nodes + k, sizeof nodes - k,
+                              "%s{\"k\":[%g,0.25,0],\"chirality\":%d,\"energy_eV\":0.01,\"gap_eV\":1e-5}",
                               i ? "," : "", 0.1 * (i + 1), i % 2 ? -1 : 1);
     /* A list of one index is a 2D material; the status says done exactly when there is a list. */
     int dim = strchr(z2, ',') || !strcmp(z2, "null") ? 3 : 2;
-    snprintf(buf, len,
-             "{\"id\":\"%s\",\"class\":\"%s\",\"confidence\":%g,\"reason\":\"invented\",\"dimension\":%d,"
-             "\"gap_direct_eV\":%g,\"gap_indirect_eV\":%g,\"k_gap_direct\":[0,0.5,0],\"time_reversal\":true,"
-             "\"inversion\":false,\"z2\":%s,\"z2_parity\":null,\"z2_wcc\":%s,\"z2_status\":\"%s\",\"chern\":null,"
-             "\"plane_chern\":[0,0,0,0,0,0],\"weyl_nodes\":[%s],\"net_chirality\":0,\"nodal_line\":false,"
-             "\"mesh\":%d,\"seconds\":1.5}",
-             id, cls, conf, dim, gap + 0.05, gap, z2, z2, strcmp(z2, "null") ? "done" : "not applicable", nodes, mesh);
+    snprintf(
+        buf, len,
+        "{\"id\":\"%s\",\"class\":\"%s\",\"confidence\":%g,\"reason\":\"invented\",\"dimension\":%d,"
+        "\"gap_direct_eV\":%g,\"gap_indirect_eV\":%g,\"k_gap_direct\":[0,0.5,0],\"time_reversal\":true,"
+        "\"inversion\":false,\"z2\":%s,\"z2_parity\":null,\"z2_wcc\":%s,\"z2_status\":\"%s\",\"chern\":null,"
+        "\"plane_chern\":[0,0,0,0,0,0],\"weyl_nodes\":[%s],\"net_chirality\":0,\"nodal_line\":false,"
+        "\"mesh\":%d,\"seconds\":1.5}",
+        id, cls, conf, dim, gap + 0.05, gap, z2, z2, strcmp(z2, "null") ? "done" : "not applicable", nodes,
+        mesh);
 }
 
-static void put_text(cat_db *cat, int64_t run, const char *id, cat_status st, const char *msg, const char *json)
+static void put_text(cat_db *cat, int64_t run, const char *id, cat_status st, const char *msg,
+                     const char *json)
 {
     bs_err err;
     bs_err_clear(&err);
@@ -180,7 +186,8 @@ static void put_text(cat_db *cat, int64_t run, const char *id, cat_status st, co
     if (rc != 0) fail_msg("put %s: %s", id, err.msg);
 }
 
-static void put_ok(cat_db *cat, int64_t run, const char *id, const char *cls, double conf, double gap, const char *z2, int mesh)
+static void put_ok(cat_db *cat, int64_t run, const char *id, const char *cls, double conf, double gap,
+                   const char *z2, int mesh)
 {
     char buf[2048];
     diag_json(buf, sizeof buf, id, cls, conf, gap, z2, mesh, 0);
@@ -200,8 +207,9 @@ static void test_schema_applies(void **state)
     assert_int_equal(q_int(cat, "PRAGMA application_id"), CAT_APPLICATION_ID);
     dump d;
     q(cat, "SELECT name FROM sqlite_master WHERE type IN ('table', 'view') ORDER BY name", &d);
-    assert_string_equal(d.text, "artifacts\ncandidates\nconflicts\nfailures\nmaterials\nnodes\nresults\nrun_progress\n"
-                                "run_sessions\nruns\nsummary\nsurfaces\ntop_spin_hall\n");
+    assert_string_equal(
+        d.text, "artifacts\ncandidates\nconflicts\nfailures\nmaterials\nnodes\nresults\nrun_progress\n"
+                "run_sessions\nruns\nsummary\nsurfaces\ntop_spin_hall\n");
     close_ok(cat);
     /* WAL mode is a property of the file: a plain connection sees it. (cat_query refuses even
      * a bare "PRAGMA journal_mode", which sqlite3_stmt_readonly counts as a write.) */
@@ -277,10 +285,14 @@ static void test_migrate_v2(void **state)
     close_ok(cat);
     sqlite3 *db = NULL;
     assert_int_equal(sqlite3_open(t.cat, &db), SQLITE_OK);
-    static const char *const cols[] = {"magnetism", "tr_verdict", "inv_verdict", "tr_breaking_ev", "inv_breaking_ev",
-                                       "symmetrised", "restored", "breaking_ev", "breaking_bound", "symmetry_margin"};
-    assert_int_equal(sqlite3_exec(db, "DROP VIEW IF EXISTS conflicts; DROP VIEW candidates; DROP VIEW top_spin_hall; DROP VIEW surfaces; DROP VIEW summary;",
-                                  NULL, NULL, NULL), SQLITE_OK);
+    static const char *const cols[] = {"magnetism",       "tr_verdict",     "inv_verdict", "tr_breaking_ev",
+                                       "inv_breaking_ev", "symmetrised",    "restored",    "breaking_ev",
+                                       "breaking_bound",  "symmetry_margin"};
+    assert_int_equal(sqlite3_exec(db,
+                                  "DROP VIEW IF EXISTS conflicts; DROP VIEW candidates; DROP VIEW "
+                                  "top_spin_hall; DROP VIEW surfaces; DROP VIEW summary;",
+                                  NULL, NULL, NULL),
+                     SQLITE_OK);
     for (size_t i = 0; i < sizeof cols / sizeof cols[0]; i++) {
         char sql[128];
         snprintf(sql, sizeof sql, "ALTER TABLE results DROP COLUMN %s", cols[i]);
@@ -297,16 +309,21 @@ static void test_migrate_v2(void **state)
     cat = open_rw(t.cat);
     assert_int_equal(q_int(cat, "PRAGMA user_version"), CAT_SCHEMA_VERSION);
     char buf[2048];
-    snprintf(buf, sizeof buf, "{\"id\":\"new\",\"class\":\"strong topological insulator\",\"confidence\":0.9,"
-             "\"reason\":\"invented\",\"gap_direct_eV\":0.5,\"magnetism\":\"none\",\"time_reversal_verdict\":\"approximate\","
+    snprintf(buf, sizeof buf,
+             "{\"id\":\"new\",\"class\":\"strong topological insulator\",\"confidence\":0.9,"
+             "\"reason\":\"invented\",\"gap_direct_eV\":0.5,\"magnetism\":\"none\",\"time_reversal_verdict\":"
+             "\"approximate\","
              "\"inversion_verdict\":\"exact\",\"time_reversal_breaking_eV\":0.01,\"inversion_breaking_eV\":0,"
              "\"symmetrised\":true,\"restored\":\"time_reversal\",\"breaking_eV\":0.01,"
              "\"breaking_bound\":\"mesh x 1.5\",\"symmetry_margin\":50,\"mesh\":8}");
     put_text(cat, run, "new", CAT_RES_OK, NULL, buf);
     assert_int_equal(cat_flush(cat, &err), 0);
     dump d;
-    q(cat, "SELECT material_id, COALESCE(magnetism, 'NULL'), COALESCE(tr_verdict, 'NULL'), COALESCE(restored, 'NULL'), "
-           "COALESCE(symmetry_margin, 'NULL') FROM summary ORDER BY material_id", &d);
+    q(cat,
+      "SELECT material_id, COALESCE(magnetism, 'NULL'), COALESCE(tr_verdict, 'NULL'), COALESCE(restored, "
+      "'NULL'), "
+      "COALESCE(symmetry_margin, 'NULL') FROM summary ORDER BY material_id",
+      &d);
     assert_string_equal(d.text, "new|none|approximate|time_reversal|50.0\nold|NULL|NULL|NULL|NULL\n");
     close_ok(cat);
     tmp_remove(&t);
@@ -323,7 +340,8 @@ static void test_put_and_read_back(void **state)
     int64_t run = begin(cat, &RUN_A);
     bs_err err;
     bs_err_clear(&err);
-    cat_material mat = {"mat-1", "Bi2Se3", 3, 40, 300, 20, 1, "set.h5", "invented", NULL, NULL, NULL, NULL, NULL, NULL, 0};
+    cat_material mat = {"mat-1",    "Bi2Se3", 3,    40,   300,  20,   1,    "set.h5",
+                        "invented", NULL,     NULL, NULL, NULL, NULL, NULL, 0};
     assert_int_equal(cat_material_upsert(cat, &mat, &err), 0);
 
     char buf[4096];
@@ -343,19 +361,27 @@ static void test_put_and_read_back(void **state)
     dump d;
     /* z2 text forms of the contract: "1;000" in 3D, "1" in 2D, NULL where the list is null; plane
      * Chern numbers only in 3D. */
-    q(cat, "SELECT material_id, status, class, z2, z2_wcc, z2_parity, plane_chern, n_weyl, net_chirality, nodal_line,"
-           " time_reversal, inversion, k_gap_direct, mesh, seconds, diag_seconds, rank FROM results ORDER BY material_id", &d);
-    assert_string_equal(d.text,
-                        "mat-1|ok|Weyl semimetal|NULL|NULL|NULL|0;0;0;0;0;0|2|0|0|1|0|[0,0.5,0]|16|2.0|1.5|3\n"
-                        "mat-2|ok|strong topological insulator|1;000|1;000|NULL|0;0;0;0;0;0|0|0|0|1|0|[0,0.5,0]|12|2.0|1.5|3\n"
-                        "mat-3|ok|2D topological insulator|1|1|NULL|NULL|0|0|0|1|0|[0,0.5,0]|24|2.0|1.5|3\n");
+    q(cat,
+      "SELECT material_id, status, class, z2, z2_wcc, z2_parity, plane_chern, n_weyl, net_chirality, "
+      "nodal_line,"
+      " time_reversal, inversion, k_gap_direct, mesh, seconds, diag_seconds, rank FROM results ORDER BY "
+      "material_id",
+      &d);
+    assert_string_equal(
+        d.text, "mat-1|ok|Weyl semimetal|NULL|NULL|NULL|0;0;0;0;0;0|2|0|0|1|0|[0,0.5,0]|16|2.0|1.5|3\n"
+                "mat-2|ok|strong topological "
+                "insulator|1;000|1;000|NULL|0;0;0;0;0;0|0|0|0|1|0|[0,0.5,0]|12|2.0|1.5|3\n"
+                "mat-3|ok|2D topological insulator|1|1|NULL|NULL|0|0|0|1|0|[0,0.5,0]|24|2.0|1.5|3\n");
     /* Numbers come back bit for bit (SQLite REAL is an IEEE double). */
     assert_true(raw_double(t.cat, "SELECT confidence FROM results WHERE material_id = 'mat-2'") == 0.95);
     assert_true(raw_double(t.cat, "SELECT gap_indirect_ev FROM results WHERE material_id = 'mat-2'") == 0.2);
     assert_true(raw_double(t.cat, "SELECT gap_direct_ev FROM results WHERE material_id = 'mat-2'") == 0.25);
-    q(cat, "SELECT material_id, ahc_xy, ahc_yz, ahc_zx, ahc_units, shc_xy, shc_units, transport_fermi_ev,"
-           " json_extract(diagnosis, '$.transport.kpoints') FROM results WHERE ahc_units IS NOT NULL OR material_id = 'mat-2'"
-           " ORDER BY material_id", &d);
+    q(cat,
+      "SELECT material_id, ahc_xy, ahc_yz, ahc_zx, ahc_units, shc_xy, shc_units, transport_fermi_ev,"
+      " json_extract(diagnosis, '$.transport.kpoints') FROM results WHERE ahc_units IS NOT NULL OR "
+      "material_id = 'mat-2'"
+      " ORDER BY material_id",
+      &d);
     assert_string_equal(d.text, "mat-2|NULL|NULL|NULL|NULL|NULL|NULL|NULL|NULL\n"
                                 "mat-3|0.25|NULL|NULL|e^2/h|-0.5|e/2pi|0.125|4096\n");
     q(cat, "SELECT node, k1, k2, k3, chirality, energy_ev, gap_ev FROM nodes ORDER BY node", &d);
@@ -368,10 +394,13 @@ static void test_put_and_read_back(void **state)
     assert_string_equal(d.text, "0.30000000000000004\n");
     assert_true(strtod(d.text, NULL) == 0.1 + 0.2);
     /* The stored diagnosis is the JSON we were given. */
-    q(cat, "SELECT json_extract(diagnosis, '$.weyl_nodes[1].chirality'), json_extract(diagnosis, '$.reason')"
-           " FROM results WHERE material_id = 'mat-1'", &d);
+    q(cat,
+      "SELECT json_extract(diagnosis, '$.weyl_nodes[1].chirality'), json_extract(diagnosis, '$.reason')"
+      " FROM results WHERE material_id = 'mat-1'",
+      &d);
     assert_string_equal(d.text, "-1|invented\n");
-    q(cat, "SELECT formula, dimension, norb, nr, nocc, spinful FROM materials WHERE material_id = 'mat-1'", &d);
+    q(cat, "SELECT formula, dimension, norb, nr, nocc, spinful FROM materials WHERE material_id = 'mat-1'",
+      &d);
     assert_string_equal(d.text, "Bi2Se3|3|40|300|20|1\n");
     /* A put for an unknown material records the material id. */
     assert_int_equal(q_int(cat, "SELECT count(*) FROM materials"), 4);
@@ -421,7 +450,8 @@ static void test_struct_and_flows(void **state)
     r.flows[0] = (res_flow){4, 3, 2, malloc(3 * sizeof(double)), malloc(6 * sizeof(double))};
     for (int s = 0; s < 3; s++) {
         r.flows[0].kpar[s] = 0.25 * s;
-        for (int b = 0; b < 2; b++) r.flows[0].wcc[s * 2 + b] = 0.1 * s + 0.3 * b + 1.0 / 3.0;
+        for (int b = 0; b < 2; b++)
+            r.flows[0].wcc[s * 2 + b] = 0.1 * s + 0.3 * b + 1.0 / 3.0;
     }
     bs_err err;
     bs_err_clear(&err);
@@ -449,7 +479,8 @@ static void test_struct_and_flows(void **state)
     /* Exact: doubles are stored as IEEE 64-bit and read back unchanged. */
     for (int s = 0; s < 3; s++) {
         assert_true(f.kpar[s] == r.flows[0].kpar[s]);
-        for (int b = 0; b < 2; b++) assert_true(f.wcc[s * 2 + b] == r.flows[0].wcc[s * 2 + b]);
+        for (int b = 0; b < 2; b++)
+            assert_true(f.wcc[s * 2 + b] == r.flows[0].wcc[s * 2 + b]);
     }
     cat_flow_clear(&f);
     bs_err_clear(&err);
@@ -477,11 +508,15 @@ static void test_missing_keys_and_failures(void **state)
     put_text(cat, run, "slow", CAT_RES_TIMEOUT, "time budget of 60 s exceeded", NULL);
     assert_int_equal(cat_flush(cat, &err), 0);
     dump d;
-    q(cat, "SELECT material_id, status, class, confidence, z2, chern, n_weyl, mesh, diagnosis IS NULL, message"
-           " FROM results ORDER BY material_id", &d);
-    assert_string_equal(d.text, "broken|invalid|NULL|NULL|NULL|NULL|NULL|NULL|1|cards/broken.json:3: expected 7 fields, found 5\n"
-                                "slow|timeout|NULL|NULL|NULL|NULL|NULL|NULL|1|time budget of 60 s exceeded\n"
-                                "sparse|ok|metal|0.0|NULL|NULL|0|0|0|NULL\n");
+    q(cat,
+      "SELECT material_id, status, class, confidence, z2, chern, n_weyl, mesh, diagnosis IS NULL, message"
+      " FROM results ORDER BY material_id",
+      &d);
+    assert_string_equal(
+        d.text,
+        "broken|invalid|NULL|NULL|NULL|NULL|NULL|NULL|1|cards/broken.json:3: expected 7 fields, found 5\n"
+        "slow|timeout|NULL|NULL|NULL|NULL|NULL|NULL|1|time budget of 60 s exceeded\n"
+        "sparse|ok|metal|0.0|NULL|NULL|0|0|0|NULL\n");
     /* failures lists the non-ok rows with their messages; none is resolved yet. */
     q(cat, "SELECT material_id, status, message, resolved FROM failures ORDER BY material_id", &d);
     assert_string_equal(d.text, "broken|invalid|cards/broken.json:3: expected 7 fields, found 5|0\n"
@@ -495,8 +530,8 @@ static void test_missing_keys_and_failures(void **state)
     tmp_remove(&t);
 }
 
-static void expect_put_error(cat_db *cat, int64_t run, const char *id, cat_status st, const char *json, int code,
-                             const char *needle)
+static void expect_put_error(cat_db *cat, int64_t run, const char *id, cat_status st, const char *json,
+                             int code, const char *needle)
 {
     bs_err err;
     bs_err_clear(&err);
@@ -512,23 +547,29 @@ static void test_malformed_diagnosis(void **state)
     tmp_make(&t);
     cat_db *cat = open_rw(t.cat);
     int64_t run = begin(cat, &RUN_A);
-    expect_put_error(cat, run, "m", CAT_RES_OK, "{\"id\":\"m\",\"class\":", BS_EPARSE, "malformed diagnosis JSON at byte");
+    expect_put_error(cat, run, "m", CAT_RES_OK, "{\"id\":\"m\",\"class\":", BS_EPARSE,
+                     "malformed diagnosis JSON at byte");
     expect_put_error(cat, run, "m", CAT_RES_OK, "[1,2]", BS_EPARSE, "not a JSON object");
-    expect_put_error(cat, run, "m", CAT_RES_OK, "{\"id\":\"m\"} {\"id\":\"n\"}", BS_EPARSE, "unexpected bytes after");
+    expect_put_error(cat, run, "m", CAT_RES_OK, "{\"id\":\"m\"} {\"id\":\"n\"}", BS_EPARSE,
+                     "unexpected bytes after");
     expect_put_error(cat, run, "m", CAT_RES_OK, "{\"z2\":\"1;000\"}", BS_EPARSE, "key \"z2\"");
     expect_put_error(cat, run, "m", CAT_RES_OK, "{\"z2\":[1,0,0]}", BS_EPARSE, "key \"z2\"");
     expect_put_error(cat, run, "m", CAT_RES_OK, "{\"z2\":[2]}", BS_EPARSE, "key \"z2\"");
-    expect_put_error(cat, run, "m", CAT_RES_OK, "{\"plane_chern\":[0,0,0,0,0]}", BS_EPARSE, "key \"plane_chern\"");
-    expect_put_error(cat, run, "m", CAT_RES_OK, "{\"chern\":0.5}", BS_EPARSE, "key \"chern\": expected an integer");
+    expect_put_error(cat, run, "m", CAT_RES_OK, "{\"plane_chern\":[0,0,0,0,0]}", BS_EPARSE,
+                     "key \"plane_chern\"");
+    expect_put_error(cat, run, "m", CAT_RES_OK, "{\"chern\":0.5}", BS_EPARSE,
+                     "key \"chern\": expected an integer");
     expect_put_error(cat, run, "m", CAT_RES_OK, "{\"confidence\":\"high\"}", BS_EPARSE, "key \"confidence\"");
-    expect_put_error(cat, run, "m", CAT_RES_OK, "{\"weyl_nodes\":[{\"k\":[0,0]}]}", BS_EPARSE, "key \"weyl_nodes\"");
+    expect_put_error(cat, run, "m", CAT_RES_OK, "{\"weyl_nodes\":[{\"k\":[0,0]}]}", BS_EPARSE,
+                     "key \"weyl_nodes\"");
     expect_put_error(cat, run, "m", CAT_RES_OK, "{\"z2_status\":\"maybe\"}", BS_EPARSE, "key \"z2_status\"");
     expect_put_error(cat, run, "m", CAT_RES_OK, "{\"ahc\":[1,2,3]}", BS_EPARSE, "key \"ahc\"");
     expect_put_error(cat, run, "m", CAT_RES_OK, "{\"shc\":{\"xy_z\":\"big\"}}", BS_EPARSE, "key \"shc\"");
     expect_put_error(cat, run, "m", CAT_RES_OK,
                      "{\"wcc_flows\":[{\"plane\":1,\"kpar\":[0,0.5],\"wcc\":[[0.1,0.2],[0.3]]}]}", BS_EPARSE,
                      "same number of centres");
-    expect_put_error(cat, run, "m", CAT_RES_OK, "{\"id\":\"other\"}", BS_EINVAL, "the diagnosis is for \"other\"");
+    expect_put_error(cat, run, "m", CAT_RES_OK, "{\"id\":\"other\"}", BS_EINVAL,
+                     "the diagnosis is for \"other\"");
     expect_put_error(cat, run, "m", CAT_RES_OK, NULL, BS_EINVAL, "an ok result needs a diagnosis");
     expect_put_error(cat, run, "", CAT_RES_FAILED, NULL, BS_EINVAL, "material id");
     expect_put_error(cat, run, "m", (cat_status)7, NULL, BS_EINVAL, "not a cat_status");
@@ -575,7 +616,8 @@ static void test_artifact_write_failure(void **state)
              ",\"wcc_flows\":[{\"plane\":0,\"kpar\":[0,0.5],\"wcc\":[[0.1],[0.2]]}]}");
     bs_err err;
     bs_err_clear(&err);
-    assert_int_equal(cat_result_put_text(cat, run, "flowed", CAT_RES_OK, NULL, buf, strlen(buf), 0, 1, &err), BS_EHDF5);
+    assert_int_equal(cat_result_put_text(cat, run, "flowed", CAT_RES_OK, NULL, buf, strlen(buf), 0, 1, &err),
+                     BS_EHDF5);
     assert_non_null(strstr(err.msg, "cannot create or open the artifact file"));
     put_ok(cat, run, "after", "metal", 1, -1, "null", 8);
     bs_err_clear(&err);
@@ -616,7 +658,10 @@ static void test_summary_most_resolved(void **state)
     bs_err_clear(&err);
     assert_int_equal(cat_flush(cat, &err), 0);
     dump d;
-    q(cat, "SELECT material_id, status, class, run_id, mesh, z2, confidence, nontrivial FROM summary ORDER BY material_id", &d);
+    q(cat,
+      "SELECT material_id, status, class, run_id, mesh, z2, confidence, nontrivial FROM summary ORDER BY "
+      "material_id",
+      &d);
     char expect[512];
     snprintf(expect, sizeof expect,
              "A|ok|strong topological insulator|%lld|16|1;000|0.9|1\n"
@@ -626,8 +671,10 @@ static void test_summary_most_resolved(void **state)
              (long long)r2, (long long)r2, (long long)r3, (long long)r1);
     assert_string_equal(d.text, expect);
     /* The columns the design promises are all there. */
-    q(cat, "SELECT material_id, status, class, gap_direct_ev, gap_indirect_ev, z2, chern, n_weyl, net_chirality,"
-           " confidence, mesh, run_id FROM summary WHERE material_id = 'A'", &d);
+    q(cat,
+      "SELECT material_id, status, class, gap_direct_ev, gap_indirect_ev, z2, chern, n_weyl, net_chirality,"
+      " confidence, mesh, run_id FROM summary WHERE material_id = 'A'",
+      &d);
     assert_int_equal(d.nrow, 1);
     close_ok(cat);
     tmp_remove(&t);
@@ -684,7 +731,8 @@ static void put_shc(cat_db *cat, int64_t run, const char *id, int mesh, double s
 {
     char buf[512];
     if (units)
-        snprintf(buf, sizeof buf, "{\"id\":\"%s\",\"class\":\"metal\",\"mesh\":%d,\"shc\":{\"xy_z\":%g,\"units\":\"%s\"}}", id,
+        snprintf(buf, sizeof buf,
+                 "{\"id\":\"%s\",\"class\":\"metal\",\"mesh\":%d,\"shc\":{\"xy_z\":%g,\"units\":\"%s\"}}", id,
                  mesh, shc, units);
     else
         snprintf(buf, sizeof buf, "{\"id\":\"%s\",\"class\":\"metal\",\"mesh\":%d}", id, mesh);
@@ -699,11 +747,11 @@ static void test_top_spin_hall(void **state)
     cat_db *cat = open_rw(t.cat);
     int64_t r1 = begin(cat, &RUN_A), r2 = begin(cat, &RUN_A);
     put_shc(cat, r1, "p", 8, 120.0, "(hbar/e)S/cm");
-    put_shc(cat, r2, "p", 16, 0, NULL);                 /* finer, but without transport */
-    put_shc(cat, r1, "q", 8, -300.0, "(hbar/e)S/cm");    /* sorted by magnitude */
+    put_shc(cat, r2, "p", 16, 0, NULL);               /* finer, but without transport */
+    put_shc(cat, r1, "q", 8, -300.0, "(hbar/e)S/cm"); /* sorted by magnitude */
     put_shc(cat, r1, "r", 8, 50.0, "(hbar/e)S/cm");
-    put_shc(cat, r2, "r", 12, 60.0, "(hbar/e)S/cm");     /* the finer one wins */
-    put_shc(cat, r1, "s", 36, 2.0, "e/2pi");             /* 2D units form their own group */
+    put_shc(cat, r2, "r", 12, 60.0, "(hbar/e)S/cm"); /* the finer one wins */
+    put_shc(cat, r1, "s", 36, 2.0, "e/2pi");         /* 2D units form their own group */
     bs_err err;
     bs_err_clear(&err);
     assert_int_equal(cat_flush(cat, &err), 0);
@@ -757,8 +805,8 @@ static void test_batching(void **state)
     tmp_remove(&t);
 }
 
-#define RESUME_N 40
-#define RESUME_BATCH 8
+#define RESUME_N       40
+#define RESUME_BATCH   8
 #define RESUME_KILL_AT 29 /* results put before the kill: 3 full batches committed, 5 pending */
 
 static void resume_id(int i, char *id, size_t len)
@@ -773,18 +821,21 @@ static int resume_put(cat_db *cat, int64_t run, int i)
 {
     char id[16], buf[4096];
     resume_id(i, id, sizeof id);
-    diag_json(buf, sizeof buf, id, i % 4 ? "trivial insulator" : "strong topological insulator", 0.5 + 0.01 * i, 0.01 * i,
-              i % 4 ? "[0,0,0,0]" : "[1,0,0,0]", 10, i % 5 == 0 ? 2 : 0);
+    diag_json(buf, sizeof buf, id, i % 4 ? "trivial insulator" : "strong topological insulator",
+              0.5 + 0.01 * i, 0.01 * i, i % 4 ? "[0,0,0,0]" : "[1,0,0,0]", 10, i % 5 == 0 ? 2 : 0);
     if (i % 3 == 0) {
         size_t len = strlen(buf);
-        snprintf(buf + len - 1, sizeof buf - len + 1, ",\"wcc_flows\":[{\"plane\":0,\"kpar\":[0,0.25,0.5],"
-                                                      "\"wcc\":[[0.1,%g],[0.2,0.6],[0.3,0.7]]}]}", i / 64.0);
+        snprintf(buf + len - 1, sizeof buf - len + 1,
+                 ",\"wcc_flows\":[{\"plane\":0,\"kpar\":[0,0.25,0.5],"
+                 "\"wcc\":[[0.1,%g],[0.2,0.6],[0.3,0.7]]}]}",
+                 i / 64.0);
     }
     int failed = i % 7 == 6;
     bs_err err;
     bs_err_clear(&err);
-    return cat_result_put_text(cat, run, id, failed ? CAT_RES_FAILED : CAT_RES_OK, failed ? "invented failure" : NULL,
-                               failed ? NULL : buf, failed ? 0 : strlen(buf), 1, 0.5, &err);
+    return cat_result_put_text(cat, run, id, failed ? CAT_RES_FAILED : CAT_RES_OK,
+                               failed ? "invented failure" : NULL, failed ? NULL : buf,
+                               failed ? 0 : strlen(buf), 1, 0.5, &err);
 }
 
 /* A whole screen: resume (or begin) the run, skip what is done, put the rest, end it. */
@@ -836,7 +887,8 @@ static void test_resume_after_sigkill(void **state)
             if (resume_put(cat, run, i) != 0) _exit(5);
         char ok = cat_pending(cat) == RESUME_KILL_AT % RESUME_BATCH ? 'y' : 'n';
         if (write(sync[1], &ok, 1) != 1) _exit(4);
-        for (;;) pause(); /* waits for SIGKILL with the open transaction */
+        for (;;)
+            pause(); /* waits for SIGKILL with the open transaction */
     }
     close(sync[1]);
     char ok = 0;
@@ -887,8 +939,9 @@ static void test_resume_after_sigkill(void **state)
 
     cat = open_rw(t.cat);
     cat_db *rc = open_rw(ref.cat);
-    const char *cols = "SELECT material_id, status, class, confidence, gap_direct_ev, gap_indirect_ev, z2, chern, n_weyl,"
-                       " net_chirality, mesh, run_id, message FROM summary ORDER BY material_id";
+    const char *cols =
+        "SELECT material_id, status, class, confidence, gap_direct_ev, gap_indirect_ev, z2, chern, n_weyl,"
+        " net_chirality, mesh, run_id, message FROM summary ORDER BY material_id";
     dump a, b;
     q(cat, cols, &a);
     q(rc, cols, &b);
@@ -1088,7 +1141,8 @@ static void test_cli_query(void **state)
     cJSON_Delete(j);
 
     /* csv quotes the comma in the id (RFC 4180). */
-    snprintf(cmd, sizeof cmd, "%s query %s \"SELECT material_id, mesh FROM summary\" --format csv", BS_BINARY, t.cat);
+    snprintf(cmd, sizeof cmd, "%s query %s \"SELECT material_id, mesh FROM summary\" --format csv", BS_BINARY,
+             t.cat);
     p = popen(cmd, "r");
     n = fread(out, 1, sizeof out - 1, p);
     out[n] = '\0';
@@ -1101,7 +1155,8 @@ static void test_cli_query(void **state)
     out[n] = '\0';
     st = pclose(p);
     assert_int_equal(WEXITSTATUS(st), 2);
-    assert_non_null(strstr(out, "views: candidates, conflicts, failures, run_progress, summary, surfaces, top_spin_hall"));
+    assert_non_null(strstr(
+        out, "views: candidates, conflicts, failures, run_progress, summary, surfaces, top_spin_hall"));
     tmp_remove(&t);
 }
 
@@ -1135,7 +1190,8 @@ static char *run_capture(const char *cmd)
 static void test_inspect_output_round_trip(void **state)
 {
     (void)state;
-    static const char *const models[] = {"haldane", "kane_mele", "fkm", "weyl", "nodal_line", "metal", "atomic"};
+    static const char *const models[] = {"haldane",    "kane_mele", "fkm",   "weyl",
+                                         "nodal_line", "metal",     "atomic"};
     tmpdir t;
     tmp_make(&t);
     cat_db *cat = open_rw(t.cat);
@@ -1157,25 +1213,36 @@ static void test_inspect_output_round_trip(void **state)
         /* class and z2 in the documented text form */
         const cJSON *z2 = cJSON_GetObjectItem(j, "z2");
         char z2_text[16] = "NULL";
-        if (cJSON_GetArraySize(z2) == 1) snprintf(z2_text, sizeof z2_text, "%d", cJSON_GetArrayItem(z2, 0)->valueint);
+        if (cJSON_GetArraySize(z2) == 1)
+            snprintf(z2_text, sizeof z2_text, "%d", cJSON_GetArrayItem(z2, 0)->valueint);
         if (cJSON_GetArraySize(z2) == 4)
-            snprintf(z2_text, sizeof z2_text, "%d;%d%d%d", cJSON_GetArrayItem(z2, 0)->valueint, cJSON_GetArrayItem(z2, 1)->valueint,
-                     cJSON_GetArrayItem(z2, 2)->valueint, cJSON_GetArrayItem(z2, 3)->valueint);
-        snprintf(sql, sizeof sql, "SELECT class, COALESCE(z2, 'NULL'), n_weyl, mesh FROM results WHERE material_id = '%s'", id);
+            snprintf(z2_text, sizeof z2_text, "%d;%d%d%d", cJSON_GetArrayItem(z2, 0)->valueint,
+                     cJSON_GetArrayItem(z2, 1)->valueint, cJSON_GetArrayItem(z2, 2)->valueint,
+                     cJSON_GetArrayItem(z2, 3)->valueint);
+        snprintf(sql, sizeof sql,
+                 "SELECT class, COALESCE(z2, 'NULL'), n_weyl, mesh FROM results WHERE material_id = '%s'",
+                 id);
         q(cat, sql, &d);
         char expect[256];
-        snprintf(expect, sizeof expect, "%s|%s|%d|%d\n", cJSON_GetObjectItem(j, "class")->valuestring, z2_text,
-                 cJSON_GetArraySize(cJSON_GetObjectItem(j, "weyl_nodes")), cJSON_GetObjectItem(j, "mesh")->valueint);
+        snprintf(expect, sizeof expect, "%s|%s|%d|%d\n", cJSON_GetObjectItem(j, "class")->valuestring,
+                 z2_text, cJSON_GetArraySize(cJSON_GetObjectItem(j, "weyl_nodes")),
+                 cJSON_GetObjectItem(j, "mesh")->valueint);
         assert_string_equal(d.text, expect);
         /* the symmetry verdicts and the statement, as the program wrote them */
-        snprintf(sql, sizeof sql, "SELECT tr_verdict, inv_verdict, magnetism, symmetrised FROM results WHERE material_id = '%s'", id);
+        snprintf(
+            sql, sizeof sql,
+            "SELECT tr_verdict, inv_verdict, magnetism, symmetrised FROM results WHERE material_id = '%s'",
+            id);
         q(cat, sql, &d);
-        snprintf(expect, sizeof expect, "%s|%s|%s|%d\n", cJSON_GetObjectItem(j, "time_reversal_verdict")->valuestring,
-                 cJSON_GetObjectItem(j, "inversion_verdict")->valuestring, cJSON_GetObjectItem(j, "magnetism")->valuestring,
+        snprintf(expect, sizeof expect, "%s|%s|%s|%d\n",
+                 cJSON_GetObjectItem(j, "time_reversal_verdict")->valuestring,
+                 cJSON_GetObjectItem(j, "inversion_verdict")->valuestring,
+                 cJSON_GetObjectItem(j, "magnetism")->valuestring,
                  cJSON_IsTrue(cJSON_GetObjectItem(j, "symmetrised")));
         assert_string_equal(d.text, expect);
         /* nodes: the stored chiralities add up to the program's net chirality */
-        snprintf(sql, sizeof sql, "SELECT COALESCE(SUM(chirality), 0) FROM nodes WHERE material_id = '%s'", id);
+        snprintf(sql, sizeof sql, "SELECT COALESCE(SUM(chirality), 0) FROM nodes WHERE material_id = '%s'",
+                 id);
         assert_int_equal(q_int(cat, sql), cJSON_GetObjectItem(j, "net_chirality")->valueint);
         /* transport: the Hall conductivity is stored bit for bit. Read as a double through a
          * plain connection: SQL text such as "ahc_xy = 0.1234..." would go through SQLite's own
@@ -1184,12 +1251,14 @@ static void test_inspect_output_round_trip(void **state)
         sqlite3 *db = NULL;
         sqlite3_stmt *st = NULL;
         assert_int_equal(sqlite3_open_v2(t.cat, &db, SQLITE_OPEN_READONLY, NULL), SQLITE_OK);
-        assert_int_equal(sqlite3_prepare_v2(db, "SELECT ahc_xy, ahc_units FROM results WHERE material_id = ?", -1, &st, NULL),
+        assert_int_equal(sqlite3_prepare_v2(db, "SELECT ahc_xy, ahc_units FROM results WHERE material_id = ?",
+                                            -1, &st, NULL),
                          SQLITE_OK);
         sqlite3_bind_text(st, 1, id, -1, SQLITE_STATIC);
         assert_int_equal(sqlite3_step(st), SQLITE_ROW);
         assert_true(sqlite3_column_double(st, 0) == cJSON_GetObjectItem(ahc, "xy")->valuedouble);
-        assert_string_equal((const char *)sqlite3_column_text(st, 1), cJSON_GetObjectItem(ahc, "units")->valuestring);
+        assert_string_equal((const char *)sqlite3_column_text(st, 1),
+                            cJSON_GetObjectItem(ahc, "units")->valuestring);
         sqlite3_finalize(st);
         sqlite3_close(db);
         /* flows: one artifact per plane, each equal to the printed arrays */
@@ -1198,13 +1267,15 @@ static void test_inspect_output_round_trip(void **state)
         assert_int_equal(q_int(cat, sql), cJSON_GetArraySize(flows));
         for (const cJSON *fl = flows ? flows->child : NULL; fl; fl = fl->next) {
             cat_flow f;
-            if (cat_flow_read(cat, run, id, cJSON_GetObjectItem(fl, "plane")->valueint, &f, &err) != 0) fail_msg("%s", err.msg);
+            if (cat_flow_read(cat, run, id, cJSON_GetObjectItem(fl, "plane")->valueint, &f, &err) != 0)
+                fail_msg("%s", err.msg);
             const cJSON *kpar = cJSON_GetObjectItem(fl, "kpar"), *wcc = cJSON_GetObjectItem(fl, "wcc");
             assert_int_equal(f.nstring, cJSON_GetArraySize(kpar));
             for (int s = 0; s < f.nstring; s++) {
                 assert_true(f.kpar[s] == cJSON_GetArrayItem(kpar, s)->valuedouble);
                 for (int b = 0; b < f.nband; b++)
-                    assert_true(f.wcc[s * f.nband + b] == cJSON_GetArrayItem(cJSON_GetArrayItem(wcc, s), b)->valuedouble);
+                    assert_true(f.wcc[s * f.nband + b] ==
+                                cJSON_GetArrayItem(cJSON_GetArrayItem(wcc, s), b)->valuedouble);
             }
             cat_flow_clear(&f);
         }
@@ -1220,7 +1291,8 @@ int main(void)
 {
     const struct CMUnitTest tests[] = {
         cmocka_unit_test(test_schema_applies),
-        cmocka_unit_test(test_open_refuses_foreign_files), cmocka_unit_test(test_migrate_v2),
+        cmocka_unit_test(test_open_refuses_foreign_files),
+        cmocka_unit_test(test_migrate_v2),
         cmocka_unit_test(test_put_and_read_back),
         cmocka_unit_test(test_struct_and_flows),
         cmocka_unit_test(test_missing_keys_and_failures),

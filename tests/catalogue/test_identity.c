@@ -30,7 +30,10 @@ static int teardown(void **state)
     return bs_test_rmtree(tmpdir);
 }
 
-static void cat_path(const char *name, char *out, size_t cap) { snprintf(out, cap, "%s/%s", tmpdir, name); }
+static void cat_path(const char *name, char *out, size_t cap)
+{
+    snprintf(out, cap, "%s/%s", tmpdir, name);
+}
 
 static cat_db *open_rw(const char *path)
 {
@@ -85,13 +88,15 @@ static void material(cat_db *cat, const char *id, const char *content)
 
 /* An invented diagnosis with the given class, mesh, Z2 (JSON list or null) and plane Chern list;
  * 2D when the Z2 list has one entry. */
-static void put(cat_db *cat, int64_t run, const char *id, const char *cls, int mesh, const char *z2, const char *planes)
+static void put(cat_db *cat, int64_t run, const char *id, const char *cls, int mesh, const char *z2,
+                const char *planes)
 {
     char json[1024];
     int dim = z2[0] == '[' && !strchr(z2, ',') ? 2 : 3;
     snprintf(json, sizeof json,
              "{\"id\":\"%s\",\"class\":\"%s\",\"confidence\":0.9,\"z2\":%s,\"plane_chern\":%s,\"mesh\":%d,"
-             "\"dimension\":%d,\"norb\":4,\"occupied_bands\":2}", id, cls, z2, planes, mesh, dim);
+             "\"dimension\":%d,\"norb\":4,\"occupied_bands\":2}",
+             id, cls, z2, planes, mesh, dim);
     bs_err err;
     bs_err_clear(&err);
     if (cat_result_put_text(cat, run, id, CAT_RES_OK, NULL, json, strlen(json), 1, 1.0, &err) != 0)
@@ -100,8 +105,13 @@ static void put(cat_db *cat, int64_t run, const char *id, const char *cls, int m
 
 static int64_t begin(cat_db *cat, const char *settings, const char *set_content, int rerun)
 {
-    cat_run_info info = {.kind = "screen", .settings_json = settings, .version = "t", .ranks = 1,
-                         .set_path = "/a/set.h5", .set_content = set_content, .rerun = rerun};
+    cat_run_info info = {.kind = "screen",
+                         .settings_json = settings,
+                         .version = "t",
+                         .ranks = 1,
+                         .set_path = "/a/set.h5",
+                         .set_content = set_content,
+                         .rerun = rerun};
     int64_t id = 0;
     bs_err err;
     bs_err_clear(&err);
@@ -136,11 +146,14 @@ static void test_migration_from_v1(void **state)
     char marks[200];
     snprintf(marks, sizeof marks, "PRAGMA application_id = %d; PRAGMA user_version = 1;", CAT_APPLICATION_ID);
     assert_int_equal(sqlite3_exec(db, marks, NULL, NULL, NULL), SQLITE_OK);
-    assert_int_equal(sqlite3_exec(db, "INSERT INTO runs (kind, started) VALUES ('screen', 'x');"
-                                      "INSERT INTO materials (material_id, updated) VALUES ('m', 'x');"
-                                      "INSERT INTO results (run_id, material_id, status, finished, z2, plane_chern)"
-                                      " VALUES (1, 'm', 'ok', 'x', '1;011', '0;1;-2;0;3;0');", NULL, NULL, NULL),
-                     SQLITE_OK);
+    assert_int_equal(
+        sqlite3_exec(db,
+                     "INSERT INTO runs (kind, started) VALUES ('screen', 'x');"
+                     "INSERT INTO materials (material_id, updated) VALUES ('m', 'x');"
+                     "INSERT INTO results (run_id, material_id, status, finished, z2, plane_chern)"
+                     " VALUES (1, 'm', 'ok', 'x', '1;011', '0;1;-2;0;3;0');",
+                     NULL, NULL, NULL),
+        SQLITE_OK);
     sqlite3_close(db);
     close_ok(open_rw(old));
     close_ok(open_rw(fresh));
@@ -148,7 +161,8 @@ static void test_migration_from_v1(void **state)
     const char *tables[] = {"runs", "run_sessions", "materials", "results", "nodes", "artifacts"};
     for (int t = 0; t < 6; t++) {
         char sql[200];
-        snprintf(sql, sizeof sql, "SELECT name, type, hidden FROM pragma_table_xinfo('%s') ORDER BY name", tables[t]);
+        snprintf(sql, sizeof sql, "SELECT name, type, hidden FROM pragma_table_xinfo('%s') ORDER BY name",
+                 tables[t]);
         dump da, db2;
         q(a, sql, &da);
         q(b, sql, &db2);
@@ -176,8 +190,10 @@ static void test_invariant_integer_columns(void **state)
     put(cat, run, "b", "2D topological insulator", 8, "[1]", "null");
     put(cat, run, "c", "metal", 8, "null", "null");
     dump d;
-    q(cat, "SELECT material_id, z2, z2_nu0, z2_nu1, z2_nu2, z2_nu3, chern_k1_0, chern_k1_half, chern_k2_0,"
-           " chern_k2_half, chern_k3_0, chern_k3_half FROM results ORDER BY material_id", &d);
+    q(cat,
+      "SELECT material_id, z2, z2_nu0, z2_nu1, z2_nu2, z2_nu3, chern_k1_0, chern_k1_half, chern_k2_0,"
+      " chern_k2_half, chern_k3_0, chern_k3_half FROM results ORDER BY material_id",
+      &d);
     assert_string_equal(d.text, "a|1;011|1|0|1|1|0|1|-2|0|3|0\n"
                                 "b|1|1|NULL|NULL|NULL|NULL|NULL|NULL|NULL|NULL|NULL\n"
                                 "c|NULL|NULL|NULL|NULL|NULL|NULL|NULL|NULL|NULL|NULL|NULL\n");
@@ -228,8 +244,11 @@ static void test_finished_ids_follow_content(void **state)
     put(cat, r1, "b", "metal", 14, "null", "null");
     end(cat, r1, CAT_RUN_INTERRUPTED);
     material(cat, "b", "cb2");
-    cat_run_info info = {.kind = "screen", .settings_json = "{\"mesh_3d\": 14}", .version = "t",
-                         .set_path = "/elsewhere/set.h5", .set_content = "s2"};
+    cat_run_info info = {.kind = "screen",
+                         .settings_json = "{\"mesh_3d\": 14}",
+                         .version = "t",
+                         .set_path = "/elsewhere/set.h5",
+                         .set_content = "s2"};
     cat_ids ids;
     cat_ids_init(&ids);
     bs_err err;
@@ -254,7 +273,10 @@ static void test_resume_by_set_content_and_rerun(void **state)
     cat_db *cat = open_rw(path);
     int64_t r1 = begin(cat, "{}", "s1", 0);
     end(cat, r1, CAT_RUN_INTERRUPTED);
-    cat_run_info info = {.kind = "screen", .settings_json = "{}", .version = "t", .set_path = "/scratch/job9/set.h5",
+    cat_run_info info = {.kind = "screen",
+                         .settings_json = "{}",
+                         .version = "t",
+                         .set_path = "/scratch/job9/set.h5",
                          .set_content = "s1"};
     int64_t id = 0;
     int resumed = 0;
@@ -298,15 +320,19 @@ static void test_failures_cause_first(void **state)
     int64_t run = begin(cat, "{}", "s1", 0);
     bs_err err;
     bs_err_clear(&err);
-    const char *msg = "/very/long/scratch/path/of/the/job/that/staged/the/set/materials.h5:/materials/JQ-0013:"
-                      " not Hermitian: H(R)[1,2] != conj(H(-R)[2,1]) at R = (1,0,0)";
-    assert_int_equal(cat_result_put_text(cat, run, "JQ-0013", CAT_RES_INVALID, msg, NULL, 0, 1, 0.1, &err), 0);
-    assert_int_equal(cat_result_put_text(cat, run, "JQ-0020", CAT_RES_FAILED, "eigensolver did not converge", NULL, 0,
-                                         1, 0.1, &err), 0);
+    const char *msg =
+        "/very/long/scratch/path/of/the/job/that/staged/the/set/materials.h5:/materials/JQ-0013:"
+        " not Hermitian: H(R)[1,2] != conj(H(-R)[2,1]) at R = (1,0,0)";
+    assert_int_equal(cat_result_put_text(cat, run, "JQ-0013", CAT_RES_INVALID, msg, NULL, 0, 1, 0.1, &err),
+                     0);
+    assert_int_equal(cat_result_put_text(cat, run, "JQ-0020", CAT_RES_FAILED, "eigensolver did not converge",
+                                         NULL, 0, 1, 0.1, &err),
+                     0);
     dump d;
     q(cat, "SELECT cause FROM failures ORDER BY material_id", &d);
-    assert_string_equal(d.text, "not Hermitian: H(R)[1,2] != conj(H(-R)[2,1]) at R = (1,0,0) [materials/JQ-0013]\n"
-                                "eigensolver did not converge\n");
+    assert_string_equal(d.text,
+                        "not Hermitian: H(R)[1,2] != conj(H(-R)[2,1]) at R = (1,0,0) [materials/JQ-0013]\n"
+                        "eigensolver did not converge\n");
     q(cat, "SELECT name FROM pragma_table_info('failures') LIMIT 1", &d);
     assert_string_equal(d.text, "cause\n");
     close_ok(cat);

@@ -39,7 +39,8 @@ static int teardown(void **state)
 static int run(const char *args)
 {
     char cmd[4096];
-    snprintf(cmd, sizeof cmd, "cd '%s' && '%s' %s >'%s/out' 2>'%s/err'", tmpdir, BS_BINARY, args, tmpdir, tmpdir);
+    snprintf(cmd, sizeof cmd, "cd '%s' && '%s' %s >'%s/out' 2>'%s/err'", tmpdir, BS_BINARY, args, tmpdir,
+             tmpdir);
     int st = system(cmd);
     return WIFEXITED(st) ? WEXITSTATUS(st) : -1;
 }

@@ -68,8 +68,9 @@ static void test_pack_and_list(void **state)
 {
     (void)state;
     char args[2048];
-    snprintf(args, sizeof args, "pack -o '%s/set.h5' '%s/good/graphene_gap.json' '%s/good/graphene_spinful.json'",
-             tmpdir, BS_TEST_DATA, BS_TEST_DATA);
+    snprintf(args, sizeof args,
+             "pack -o '%s/set.h5' '%s/good/graphene_gap.json' '%s/good/graphene_spinful.json'", tmpdir,
+             BS_TEST_DATA, BS_TEST_DATA);
     assert_int_equal(run(args), 0);
     snprintf(args, sizeof args, "list '%s/set.h5' --json", tmpdir);
     assert_int_equal(run(args), 0);
@@ -91,8 +92,10 @@ static void test_failing_cards(void **state)
     (void)state;
     char args[2048], set[320];
     snprintf(set, sizeof set, "%s/broken.h5", tmpdir);
-    snprintf(args, sizeof args, "pack -o '%s' '%s/good/graphene_gap.json' '%s/broken/nonhermitian.json' "
-             "'%s/broken/bad_json.json'", set, BS_TEST_DATA, BS_TEST_DATA, BS_TEST_DATA);
+    snprintf(args, sizeof args,
+             "pack -o '%s' '%s/good/graphene_gap.json' '%s/broken/nonhermitian.json' "
+             "'%s/broken/bad_json.json'",
+             set, BS_TEST_DATA, BS_TEST_DATA, BS_TEST_DATA);
     assert_int_equal(run(args), 1);
     const char *err = slurp("err");
     assert_non_null(strstr(err, "nonhermitian.json"));
@@ -100,7 +103,8 @@ static void test_failing_cards(void **state)
     assert_non_null(strstr(err, "bad_json.json:6:"));
     assert_int_not_equal(access(set, F_OK), 0); /* nothing written */
 
-    snprintf(args, sizeof args, "pack --keep-broken --invented --description 'two broken' -o '%s' "
+    snprintf(args, sizeof args,
+             "pack --keep-broken --invented --description 'two broken' -o '%s' "
              "'%s/good/graphene_gap.json' '%s/broken/nonhermitian.json' '%s/broken/bad_json.json'",
              set, BS_TEST_DATA, BS_TEST_DATA, BS_TEST_DATA);
     assert_int_equal(run(args), 0);
@@ -122,7 +126,8 @@ static void test_failing_cards(void **state)
     assert_int_equal(run(args), 1);
     assert_non_null(strstr(slurp("err"), "not an HDF5 file"));
     /* Fault injection: an output folder that does not exist. */
-    snprintf(args, sizeof args, "pack -o /nonexistent-folder-bs/x.h5 '%s/good/graphene_gap.json'", BS_TEST_DATA);
+    snprintf(args, sizeof args, "pack -o /nonexistent-folder-bs/x.h5 '%s/good/graphene_gap.json'",
+             BS_TEST_DATA);
     assert_int_equal(run(args), 1);
     assert_non_null(strstr(slurp("err"), "/nonexistent-folder-bs/x.h5"));
 }

@@ -15,7 +15,8 @@ static const char *fuzz_file(const char *suffix, const uint8_t *data, size_t siz
     static char path[512];
     if (!path[0]) {
         const char *tmp = getenv("TMPDIR");
-        snprintf(path, sizeof path, "%s/bandsieve-fuzz-%d%s", tmp && *tmp ? tmp : "/tmp", (int)getpid(), suffix);
+        snprintf(path, sizeof path, "%s/bandsieve-fuzz-%d%s", tmp && *tmp ? tmp : "/tmp", (int)getpid(),
+                 suffix);
     }
     FILE *fp = fopen(path, "wb");
     if (!fp) abort();

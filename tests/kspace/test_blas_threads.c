@@ -62,8 +62,10 @@ static void bad_value_reported(void **state)
         const char *got = NULL;
         assert_int_equal(blas_threads_init(&got), 1);
         /* An empty value counts as unset: nothing to report. */
-        if (bad[i][0]) assert_string_equal(got, bad[i]);
-        else assert_null(got);
+        if (bad[i][0])
+            assert_string_equal(got, bad[i]);
+        else
+            assert_null(got);
     }
     clear_env();
 }

@@ -19,7 +19,8 @@ static void random_hermitian(int n, uint64_t seed, double complex *A)
 {
     for (int j = 0; j < n; j++)
         for (int i = 0; i <= j; i++) {
-            double complex v = (bs_test_uniform(&seed) - 0.5) + (i == j ? 0 : I * (bs_test_uniform(&seed) - 0.5));
+            double complex v =
+                (bs_test_uniform(&seed) - 0.5) + (i == j ? 0 : I * (bs_test_uniform(&seed) - 0.5));
             A[i + j * n] = v;
             A[j + i * n] = conj(v);
         }
@@ -43,7 +44,8 @@ static void test_vectors_diagonalise(void **state)
         double res = 0;
         for (int i = 0; i < n; i++) {
             double complex s = 0;
-            for (int l = 0; l < n; l++) s += A[i + l * n] * V[l + j * n];
+            for (int l = 0; l < n; l++)
+                s += A[i + l * n] * V[l + j * n];
             res = fmax(res, cabs(s - w[j] * V[i + j * n]));
         }
         assert_true(res < 1e-12);
@@ -52,18 +54,25 @@ static void test_vectors_diagonalise(void **state)
     double complex *B = malloc((size_t)n * n * sizeof *B), *Z = malloc((size_t)n * 5 * sizeof *Z);
     memcpy(B, A, (size_t)n * n * sizeof *A);
     assert_int_equal(eig_values(ws, B, w2, &err), 0);
-    for (int j = 0; j < n; j++) assert_true(fabs(w2[j] - w[j]) < 1e-12);
+    for (int j = 0; j < n; j++)
+        assert_true(fabs(w2[j] - w[j]) < 1e-12);
     memcpy(B, A, (size_t)n * n * sizeof *A);
     assert_int_equal(eig_range(ws, B, 10, 14, w2, Z, &err), 0);
     for (int j = 0; j < 5; j++) {
         assert_true(fabs(w2[j] - w[10 + j]) < 1e-12);
         double complex ov = 0;
-        for (int i = 0; i < n; i++) ov += conj(V[i + (10 + j) * n]) * Z[i + j * n];
+        for (int i = 0; i < n; i++)
+            ov += conj(V[i + (10 + j) * n]) * Z[i + j * n];
         assert_true(fabs(cabs(ov) - 1.0) < 1e-9);
     }
     assert_int_equal(eig_range(ws, B, 5, 50, w2, NULL, &err), BS_EINVAL);
     eig_free(ws);
-    free(A); free(V); free(w); free(w2); free(B); free(Z);
+    free(A);
+    free(V);
+    free(w);
+    free(w2);
+    free(B);
+    free(Z);
 }
 
 static void test_bad_size_refused(void **state)

@@ -27,7 +27,9 @@ static tb_model *random_model(int norb, uint64_t seed)
     for (int a = -2; a <= 2; a++)
         for (int b = -2; b <= 2; b++)
             for (int c = -2; c <= 2; c++, r++) {
-                m->R[r][0] = a; m->R[r][1] = b; m->R[r][2] = c;
+                m->R[r][0] = a;
+                m->R[r][1] = b;
+                m->R[r][2] = c;
                 m->deg[r] = 1 + (abs(a + 2 * b + 3 * c) % 3);
             }
     size_t nn = (size_t)norb * norb;
@@ -56,7 +58,8 @@ static tb_model *random_model(int norb, uint64_t seed)
 static double max_diff(const double complex *a, const double complex *b, size_t n)
 {
     double d = 0;
-    for (size_t i = 0; i < n; i++) d = fmax(d, cabs(a[i] - b[i]));
+    for (size_t i = 0; i < n; i++)
+        d = fmax(d, cabs(a[i] - b[i]));
     return d;
 }
 
@@ -72,7 +75,8 @@ static void test_batched_matches_direct_sum(void **state)
     assert_int_equal(hk_create(m, 16, &e, &err), 0);
     uint64_t seed = 99;
     double *k = malloc(3 * nk * sizeof *k);
-    for (int i = 0; i < 3 * nk; i++) k[i] = bs_test_uniform(&seed) * 2 - 0.5;
+    for (int i = 0; i < 3 * nk; i++)
+        k[i] = bs_test_uniform(&seed) * 2 - 0.5;
     size_t nn = (size_t)norb * norb;
     double complex *H = malloc(16 * nn * sizeof *H), *Hd = malloc(nn * sizeof *Hd);
     for (int j0 = 0; j0 < nk; j0 += 16) {
@@ -87,7 +91,9 @@ static void test_batched_matches_direct_sum(void **state)
     }
     /* A batch larger than the engine's is refused, not overrun. */
     assert_int_equal(hk_build(e, 17, k, H, &err), BS_EINVAL);
-    free(k); free(H); free(Hd);
+    free(k);
+    free(H);
+    free(Hd);
     hk_free(e);
     tb_model_free(m);
 }
@@ -109,15 +115,20 @@ static void test_derivative_matches_finite_difference(void **state)
     const double h = 1e-5;
     for (int i = 0; i < 3; i++) {
         double kp[3] = {k[0], k[1], k[2]}, km[3] = {k[0], k[1], k[2]};
-        kp[i] += h; km[i] -= h;
+        kp[i] += h;
+        km[i] -= h;
         hk_build_direct(m, kp, Hp);
         hk_build_direct(m, km, Hm);
         double worst = 0;
-        for (size_t p = 0; p < nn; p++) worst = fmax(worst, cabs((Hp[p] - Hm[p]) / (2 * h) - dH[i * nn + p]));
+        for (size_t p = 0; p < nn; p++)
+            worst = fmax(worst, cabs((Hp[p] - Hm[p]) / (2 * h) - dH[i * nn + p]));
         /* Central difference error ~ h^2 |H'''| ~ 1e-10 * (2 pi * 2)^3 ~ 2e-7; round-off ~ 1e-16/h. */
         assert_true(worst < 1e-5);
     }
-    free(H); free(dH); free(Hp); free(Hm);
+    free(H);
+    free(dH);
+    free(Hp);
+    free(Hm);
     hk_free(e);
     tb_model_free(m);
 }
@@ -137,7 +148,11 @@ static void test_reduced_engines_match_direct_sum(void **state)
     size_t nn = (size_t)norb * norb;
     double complex *H = malloc(8 * nn * sizeof *H), *Hd = malloc(nn * sizeof *Hd);
     double k[24];
-    for (int j = 0; j < 8; j++) { k[3 * j] = -0.21; k[3 * j + 1] = 0.1 * j - 0.3; k[3 * j + 2] = 0.37; }
+    for (int j = 0; j < 8; j++) {
+        k[3 * j] = -0.21;
+        k[3 * j + 1] = 0.1 * j - 0.3;
+        k[3 * j + 2] = 0.37;
+    }
     assert_int_equal(hk_build(line, 8, k, H, &err), 0);
     for (int j = 0; j < 8; j++) {
         hk_build_direct(m, k + 3 * j, Hd);
@@ -150,7 +165,8 @@ static void test_reduced_engines_match_direct_sum(void **state)
     }
     /* Re-reducing for another value reuses the structure and stays exact. */
     assert_int_equal(hk_rereduce(line, plane, 0.45, &err), 0);
-    for (int j = 0; j < 8; j++) k[3 * j] = 0.45;
+    for (int j = 0; j < 8; j++)
+        k[3 * j] = 0.45;
     assert_int_equal(hk_build(line, 8, k, H, &err), 0);
     for (int j = 0; j < 8; j++) {
         hk_build_direct(m, k + 3 * j, Hd);
@@ -158,8 +174,11 @@ static void test_reduced_engines_match_direct_sum(void **state)
     }
     /* A reduced engine refuses a source it was not made from. */
     assert_int_equal(hk_rereduce(line, full, 0.1, &err), BS_EINVAL);
-    free(H); free(Hd);
-    hk_free(line); hk_free(plane); hk_free(full);
+    free(H);
+    free(Hd);
+    hk_free(line);
+    hk_free(plane);
+    hk_free(full);
     tb_model_free(m);
 }
 
@@ -186,9 +205,17 @@ static void test_line_cache_matches_direct_sum(void **state)
         for (int s = 0; s < 4; s++) {
             for (int j = 0; j < nb; j++) {
                 double t = (double)j / nb, v = 0.1 * s + 0.05;
-                if (family == 0) { k[3 * j] = t; k[3 * j + 1] = v; k[3 * j + 2] = 0.5; }
-                else if (family == 1) { k[3 * j] = 0.0; k[3 * j + 1] = t; k[3 * j + 2] = v; }
-                else for (int d = 0; d < 3; d++) k[3 * j + d] = bs_test_uniform(&seed);
+                if (family == 0) {
+                    k[3 * j] = t;
+                    k[3 * j + 1] = v;
+                    k[3 * j + 2] = 0.5;
+                } else if (family == 1) {
+                    k[3 * j] = 0.0;
+                    k[3 * j + 1] = t;
+                    k[3 * j + 2] = v;
+                } else
+                    for (int d = 0; d < 3; d++)
+                        k[3 * j + d] = bs_test_uniform(&seed);
             }
             assert_int_equal(hk_lines_build(lines, nb, k, H, &err), 0);
             for (int j = 0; j < nb; j++) {
@@ -196,7 +223,8 @@ static void test_line_cache_matches_direct_sum(void **state)
                 assert_true(max_diff(H + j * nn, Hd, nn) < 1e-12);
             }
         }
-    free(H); free(Hd);
+    free(H);
+    free(Hd);
     hk_lines_free(lines);
     hk_free(full);
     tb_model_free(m);

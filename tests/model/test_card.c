@@ -84,7 +84,8 @@ static void test_good_spinful_inversion(void **state)
 static void test_round_trip(void **state)
 {
     (void)state;
-    const char *cards[] = {BS_TEST_DATA "/good/graphene_gap.json", BS_TEST_DATA "/good/graphene_spinful.json"};
+    const char *cards[] = {BS_TEST_DATA "/good/graphene_gap.json",
+                           BS_TEST_DATA "/good/graphene_spinful.json"};
     for (int c = 0; c < 2; c++) {
         tb_model *m = read_ok(cards[c]);
         /* Values no decimal text holds exactly, so that the round trip is exercised at 17 digits. */
@@ -126,10 +127,12 @@ static void test_broken_cards(void **state)
     expect_broken("mistyped_key.json", BS_EPARSE, "mistyped_key.json:5: key 'dimension'", "found a string");
     expect_broken("nocc_range.json", BS_EINVAL, "nocc_range.json:24: key 'occupied_bands'", "found 2");
     expect_broken("spinful_odd.json", BS_EINVAL, "spinful_odd.json:23: key 'hoppings'", "odd3_hop.dat:2:");
-    expect_broken("missing_table.json", BS_EIO, "missing_table.json:23: key 'hoppings'", "no_such_table_hop.dat");
+    expect_broken("missing_table.json", BS_EIO, "missing_table.json:23: key 'hoppings'",
+                  "no_such_table_hop.dat");
     expect_broken("bad_json.json", BS_EPARSE, "bad_json.json:6:", "JSON syntax");
     expect_broken("orbital_count.json", BS_EINVAL, "orbital_count.json:26: key 'orbitals'", "has 2");
-    expect_broken("bad_spin_layout.json", BS_EINVAL, "bad_spin_layout.json:47: key 'spin_layout'", "sideways");
+    expect_broken("bad_spin_layout.json", BS_EINVAL, "bad_spin_layout.json:47: key 'spin_layout'",
+                  "sideways");
     expect_broken("unknown_key.json", BS_EPARSE, "unknown_key.json:47: key 'ocupied_bands'", "unknown key");
     /* Regression, review of 2026-12-02: a repeated key was accepted and the first one won. */
     expect_broken("duplicate_key.json", BS_EPARSE, "duplicate_key.json:6: key 'dimension'", "given twice");
@@ -137,7 +140,8 @@ static void test_broken_cards(void **state)
     expect_broken("orbital_l.json", BS_EINVAL, "orbital_l.json:42: key 'orbitals[2].l'", "found 4");
     expect_broken("lattice_singular.json", BS_EINVAL, "lattice_singular.json:6: key 'lattice'", "dependent");
     expect_broken("table_truncated.json", BS_EPARSE, "table_truncated.json:23:", "truncated_hop.dat:14:");
-    expect_broken("bad_magnetism.json", BS_EINVAL, "bad_magnetism.json:47: key 'magnetism'", "another string");
+    expect_broken("bad_magnetism.json", BS_EINVAL, "bad_magnetism.json:47: key 'magnetism'",
+                  "another string");
     expect_broken("no_such_card.json", BS_EIO, "no_such_card.json", "cannot open");
 }
 
@@ -153,7 +157,8 @@ static void test_no_validate(void **state)
     assert_int_equal(tb_model_validate(m, 1e-5, "x", &err), BS_EINVAL);
     tb_model_free(m);
     bs_err_clear(&err);
-    assert_int_equal(card_read_opts(BS_TEST_DATA "/broken/missing_key.json", CARD_NO_VALIDATE, &m, &err), BS_EPARSE);
+    assert_int_equal(card_read_opts(BS_TEST_DATA "/broken/missing_key.json", CARD_NO_VALIDATE, &m, &err),
+                     BS_EPARSE);
     assert_null(m);
 }
 

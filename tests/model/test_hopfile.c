@@ -76,12 +76,13 @@ static void test_good_fixture(void **state)
     int R1[3] = {-1, 0, 0};
     int r0 = tb_model_find_R(m, (int[3]){0, 0, 0}), r1 = tb_model_find_R(m, R1);
     assert_true(r0 >= 0 && r1 >= 0);
-    assert_true(creal(m->H[(size_t)r0 * 4 + 0]) == 0.5);      /* A on-site */
-    assert_true(creal(m->H[(size_t)r0 * 4 + 3]) == -0.5);     /* B on-site */
-    assert_true(creal(m->H[(size_t)r0 * 4 + 1]) == -2.7);     /* row A, column B */
-    assert_true(creal(m->H[(size_t)r1 * 4 + 1]) == -2.7);     /* <A,0|H|B,(-1,0,0)> */
-    assert_true(creal(m->H[(size_t)r1 * 4 + 2]) == 0.0);      /* <B,0|H|A,(-1,0,0)>: no bond */
-    for (int r = 0; r < m->nR; r++) assert_int_equal(m->deg[r], 1);
+    assert_true(creal(m->H[(size_t)r0 * 4 + 0]) == 0.5);  /* A on-site */
+    assert_true(creal(m->H[(size_t)r0 * 4 + 3]) == -0.5); /* B on-site */
+    assert_true(creal(m->H[(size_t)r0 * 4 + 1]) == -2.7); /* row A, column B */
+    assert_true(creal(m->H[(size_t)r1 * 4 + 1]) == -2.7); /* <A,0|H|B,(-1,0,0)> */
+    assert_true(creal(m->H[(size_t)r1 * 4 + 2]) == 0.0);  /* <B,0|H|A,(-1,0,0)>: no bond */
+    for (int r = 0; r < m->nR; r++)
+        assert_int_equal(m->deg[r], 1);
     tb_model_free(m);
 
     bs_err_clear(&err);
@@ -130,7 +131,8 @@ static void check_against_strtod(const char *fmt, uint64_t seed)
     FILE *fp = fopen(path, "w");
     assert_non_null(fp);
     fprintf(fp, "format %s\n%d\n%d\n", fmt, n, nR);
-    for (int r = 0; r < nR; r++) fprintf(fp, "%5d%s", m->deg[r], (r % 15 == 14 || r == nR - 1) ? "\n" : "");
+    for (int r = 0; r < nR; r++)
+        fprintf(fp, "%5d%s", m->deg[r], (r % 15 == 14 || r == nR - 1) ? "\n" : "");
     double *want = malloc((size_t)nR * n * n * 2 * sizeof *want);
     char buf[64];
     for (int r = 0; r < nR; r++)
@@ -160,11 +162,11 @@ static void check_against_strtod(const char *fmt, uint64_t seed)
 static void test_parser_matches_strtod(void **state)
 {
     (void)state;
-    check_against_strtod("%12.6f", 1);  /* the usual Wannier output: fast path */
-    check_against_strtod("%.15g", 2);   /* 15 significant digits: fast path limit */
-    check_against_strtod("%.16e", 3);   /* 17 digits with exponent: slow path */
-    check_against_strtod("%+.3E", 4);   /* explicit sign, upper-case exponent */
-    check_against_strtod("%.0f", 5);    /* integers without a decimal point */
+    check_against_strtod("%12.6f", 1); /* the usual Wannier output: fast path */
+    check_against_strtod("%.15g", 2);  /* 15 significant digits: fast path limit */
+    check_against_strtod("%.16e", 3);  /* 17 digits with exponent: slow path */
+    check_against_strtod("%+.3E", 4);  /* explicit sign, upper-case exponent */
+    check_against_strtod("%.0f", 5);   /* integers without a decimal point */
     check_against_strtod("%.10f", 6);
 }
 
@@ -251,9 +253,9 @@ static void test_write_failures(void **state)
 int main(void)
 {
     const struct CMUnitTest tests[] = {
-        cmocka_unit_test(test_good_fixture),        cmocka_unit_test(test_round_trip),
+        cmocka_unit_test(test_good_fixture),          cmocka_unit_test(test_round_trip),
         cmocka_unit_test(test_parser_matches_strtod), cmocka_unit_test(test_broken_tables),
-        cmocka_unit_test(test_absurd_product),      cmocka_unit_test(test_write_failures),
+        cmocka_unit_test(test_absurd_product),        cmocka_unit_test(test_write_failures),
     };
     return cmocka_run_group_tests(tests, setup, teardown);
 }

@@ -49,7 +49,8 @@ static cJSON *fixture(const char *name)
     cJSON *j = cJSON_Parse(text);
     assert_non_null(j);
     char table[600];
-    snprintf(table, sizeof table, "%s/good/%s", BS_TEST_DATA, cJSON_GetObjectItem(j, "hoppings")->valuestring);
+    snprintf(table, sizeof table, "%s/good/%s", BS_TEST_DATA,
+             cJSON_GetObjectItem(j, "hoppings")->valuestring);
     cJSON_ReplaceItemInObject(j, "hoppings", cJSON_CreateString(table));
     return j;
 }
@@ -85,7 +86,8 @@ static void test_hash_covers_the_answer_only(void **state)
     assert_string_equal(h0, h1);
     /* -0.0 and +0.0 give the same H(k): the same hash. */
     size_t nh = (size_t)m->nR * m->norb * m->norb, k = 0;
-    while (k < nh && creal(m->H[k]) != 0) k++;
+    while (k < nh && creal(m->H[k]) != 0)
+        k++;
     assert_true(k < nh);
     m->H[k] = CMPLX(-0.0, cimag(m->H[k]));
     tb_content_hash(m, h1);
@@ -137,7 +139,8 @@ static void test_card_meta_and_card_text(void **state)
     assert_string_equal(notes, "");
     assert_non_null(m->card_json);
     cJSON *back = cJSON_Parse(m->card_json);
-    assert_string_equal(cJSON_GetObjectItem(cJSON_GetObjectItem(back, "meta"), "doi_note")->valuestring, "any text");
+    assert_string_equal(cJSON_GetObjectItem(cJSON_GetObjectItem(back, "meta"), "doi_note")->valuestring,
+                        "any text");
     assert_string_equal(cJSON_GetObjectItem(back, "comment")->valuestring, "kept as given");
     cJSON_Delete(back);
     tb_model_free(m);
@@ -154,8 +157,10 @@ static void test_card_misspelt_keys(void **state)
     tb_model *m = NULL;
     bs_err err;
     char notes[512];
-    const char *typos[][2] = {{"ocupied_bands", "occupied_bands"}, {"dimensoin", "dimension"},
-                              {"spin_layuot", "spin_layout"}, {"Formula", "formula"}};
+    const char *typos[][2] = {{"ocupied_bands", "occupied_bands"},
+                              {"dimensoin", "dimension"},
+                              {"spin_layuot", "spin_layout"},
+                              {"Formula", "formula"}};
     for (int i = 0; i < 4; i++) {
         cJSON *j = fixture("graphene_gap");
         cJSON_AddNumberToObject(j, typos[i][0], 1);

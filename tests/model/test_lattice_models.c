@@ -89,10 +89,12 @@ static void test_every_model_validates(void **state)
             assert_true(strlen(m->source) > 10);
             assert_int_equal(m->spinful, cat[i].spinful);
             assert_int_equal(m->spin_layout, !m->spinful ? TB_SPIN_NONE
-                                             : layout ? TB_SPIN_INTERLEAVED : TB_SPIN_BLOCKS);
+                                             : layout    ? TB_SPIN_INTERLEAVED
+                                                         : TB_SPIN_BLOCKS);
             if (cat[i].dim) assert_int_equal(m->dim, cat[i].dim);
             assert_true(m->nocc >= 1 && m->nocc < m->norb);
-            for (int r = 0; r < m->nR; r++) assert_int_equal(m->deg[r], 1);
+            for (int r = 0; r < m->nR; r++)
+                assert_int_equal(m->deg[r], 1);
             for (int j = 0; j < cat[i].nparam; j++) {
                 const lm_param *p = &cat[i].params[j];
                 assert_true(p->def >= p->lo && p->def <= p->hi);
@@ -127,7 +129,8 @@ static void test_graphene_dispersion(void **state)
         double complex H[4], Hd[4];
         assert_int_equal(hk_build(hk, 1, k, H, &err), 0);
         hk_build_direct(m, k, Hd);
-        for (int i = 0; i < 4; i++) assert_true(cabs(H[i] - Hd[i]) < 1e-12);
+        for (int i = 0; i < 4; i++)
+            assert_true(cabs(H[i] - Hd[i]) < 1e-12);
     }
     /* Orbital positions are the true ones: A (1/3,1/3), B (2/3,2/3), bond length a/sqrt3. */
     assert_near(m->orb_pos[0][0], 1.0 / 3.0, 1e-15);
@@ -150,7 +153,8 @@ static void test_kane_mele_gap_at_K(void **state)
     for (int v = 0; v < 2; v++) {
         double w[4];
         bands_at(m, K[v], w, NULL);
-        for (int i = 0; i < 4; i++) assert_near(w[i], expect[i], 1e-12);
+        for (int i = 0; i < 4; i++)
+            assert_near(w[i], expect[i], 1e-12);
     }
     tb_model_free(m);
     /* On the boundary lambda_v = 3 sqrt3 lambda_SO the gap at K is zero (within round-off). */
@@ -178,8 +182,10 @@ static void test_kane_mele_rashba_closing(void **state)
         tb_model *m = build_ok(spec);
         double w[4];
         bands_at(m, K, w, NULL);
-        if (i == 0) assert_true(w[2] - w[1] < 1e-12);
-        else assert_true(w[2] - w[1] > 0.05);
+        if (i == 0)
+            assert_true(w[2] - w[1] < 1e-12);
+        else
+            assert_true(w[2] - w[1] > 0.05);
         tb_model_free(m);
     }
 }
@@ -221,9 +227,12 @@ static double chern_lower(const tb_model *m, int n)
 static void test_haldane_chern(void **state)
 {
     (void)state;
-    static const struct { const char *spec; double chern; } cases[] = {
-        {"haldane", -1}, {"haldane:phi=-0.5", 1}, {"haldane:M=0.45", -1}, {"haldane:M=0.6", 0},
-        {"haldane:M=-0.6", 0}, {"haldane:t2=-0.1,phi=0.3", 1},
+    static const struct {
+        const char *spec;
+        double chern;
+    } cases[] = {
+        {"haldane", -1},      {"haldane:phi=-0.5", 1}, {"haldane:M=0.45", -1},
+        {"haldane:M=0.6", 0}, {"haldane:M=-0.6", 0},   {"haldane:t2=-0.1,phi=0.3", 1},
     };
     for (size_t i = 0; i < sizeof cases / sizeof cases[0]; i++) {
         tb_model *m = build_ok(cases[i].spec);
@@ -283,7 +292,8 @@ static void fkm_indices(const char *spec, int nu[4])
             if (t >> j & 1) weak[j] *= delta[t];
     }
     nu[0] = all < 0;
-    for (int j = 0; j < 3; j++) nu[j + 1] = weak[j] < 0;
+    for (int j = 0; j < 3; j++)
+        nu[j + 1] = weak[j] < 0;
     tb_model_free(m);
 }
 
@@ -551,7 +561,8 @@ static void test_parity_from_l(void **state)
 {
     (void)state;
     const char *sym[] = {"bhz", "bhz:g=0.3,layout=1", "weyl", "weyl:w=0.1,m=2", "nodal_line", "metal"};
-    for (size_t i = 0; i < sizeof sym / sizeof sym[0]; i++) assert_true(parity_residual(sym[i]) < 1e-12);
+    for (size_t i = 0; i < sizeof sym / sizeof sym[0]; i++)
+        assert_true(parity_residual(sym[i]) < 1e-12);
     assert_true(parity_residual("bhz:delta=0.2") > 0.1);
 }
 
@@ -559,23 +570,17 @@ static void test_parity_from_l(void **state)
 static void test_bad_specs(void **state)
 {
     (void)state;
-    static const struct { const char *spec, *needle; } bad[] = {
-        {"kane_mel", "unknown model"},
-        {"kane_mele:lamda_SO=0.1", "no parameter 'lamda_SO'"},
-        {"haldane:phi=pi", "finite number"},
-        {"haldane:phi=", "finite number"},
-        {"haldane:phi", "key=value"},
-        {"graphene:", "key=value"},
-        {"graphene:t=1,", "key=value"},
-        {"graphene:t=1,t=2", "given twice"},
-        {"graphene:t=nan", "finite number"},
-        {"graphene:t=1e999", "finite number"},
-        {"graphene:t=1.5x", "finite number"},
-        {"graphene:a=0", "outside"},
-        {"bhz:layout=0.5", "integer"},
-        {"fkm:layout=2", "outside"},
-        {"atomic:dim=4", "outside"},
-        {"weyl:w=0.7", "outside"},
+    static const struct {
+        const char *spec, *needle;
+    } bad[] = {
+        {"kane_mel", "unknown model"},        {"kane_mele:lamda_SO=0.1", "no parameter 'lamda_SO'"},
+        {"haldane:phi=pi", "finite number"},  {"haldane:phi=", "finite number"},
+        {"haldane:phi", "key=value"},         {"graphene:", "key=value"},
+        {"graphene:t=1,", "key=value"},       {"graphene:t=1,t=2", "given twice"},
+        {"graphene:t=nan", "finite number"},  {"graphene:t=1e999", "finite number"},
+        {"graphene:t=1.5x", "finite number"}, {"graphene:a=0", "outside"},
+        {"bhz:layout=0.5", "integer"},        {"fkm:layout=2", "outside"},
+        {"atomic:dim=4", "outside"},          {"weyl:w=0.7", "outside"},
         {"Graphene", "unknown model"},
     };
     for (size_t i = 0; i < sizeof bad / sizeof bad[0]; i++) {

@@ -48,8 +48,10 @@ static tb_model *random_model(const char *id, uint64_t seed)
     m->spin_layout = TB_SPIN_INTERLEAVED;
     m->nocc = 2;
     for (int i = 0; i < 3; i++) {
-        for (int d = 0; d < 3; d++) m->lattice[i][d] = (i == d ? 4.0 : 0.0) + bs_test_uniform(&seed) * 0.1;
-        for (int d = 0; d < 3; d++) m->orb_pos[i][d] = bs_test_uniform(&seed);
+        for (int d = 0; d < 3; d++)
+            m->lattice[i][d] = (i == d ? 4.0 : 0.0) + bs_test_uniform(&seed) * 0.1;
+        for (int d = 0; d < 3; d++)
+            m->orb_pos[i][d] = bs_test_uniform(&seed);
         m->orb_l[i] = i;
     }
     int n = 6, r = 0;
@@ -104,7 +106,8 @@ static void write_set(const char *path, tb_model **models)
     assert_int_equal(ms_add(s, broken, &err), BS_EINVAL);
     bs_err_clear(&err);
     assert_int_equal(ms_add_broken(s, broken, &err), 0);
-    assert_int_equal(ms_add_error(s, "unreadable", BS_EPARSE, "cards/unreadable.json:3: JSON syntax error", &err), 0);
+    assert_int_equal(
+        ms_add_error(s, "unreadable", BS_EPARSE, "cards/unreadable.json:3: JSON syntax error", &err), 0);
     /* Duplicate and bad ids are refused. */
     assert_int_equal(ms_add(s, models[0], &err), BS_EINVAL);
     assert_non_null(strstr(err.msg, "already in the set"));
@@ -151,7 +154,8 @@ static void test_round_trip(void **state)
     assert_int_equal(ms_find(s, "nope"), -1);
     assert_null(ms_entry_at(s, 6));
     ms_free(s);
-    for (int i = 0; i < 4; i++) tb_model_free(models[i]);
+    for (int i = 0; i < 4; i++)
+        tb_model_free(models[i]);
 }
 
 static void test_broken_entries(void **state)
@@ -161,7 +165,8 @@ static void test_broken_entries(void **state)
     snprintf(path, sizeof path, "%s/broken.h5", tmpdir);
     tb_model *models[4];
     write_set(path, models);
-    for (int i = 0; i < 4; i++) tb_model_free(models[i]);
+    for (int i = 0; i < 4; i++)
+        tb_model_free(models[i]);
     bs_err err;
     bs_err_clear(&err);
     ms_set *s = NULL;
@@ -191,7 +196,8 @@ static void test_tampered(void **state)
     snprintf(path, sizeof path, "%s/tamper.h5", tmpdir);
     tb_model *models[4];
     write_set(path, models);
-    for (int i = 0; i < 4; i++) tb_model_free(models[i]);
+    for (int i = 0; i < 4; i++)
+        tb_model_free(models[i]);
     hid_t f = H5Fopen(path, H5F_ACC_RDWR, H5P_DEFAULT);
     assert_true(f >= 0);
     assert_true(H5Ldelete(f, "/materials/random-1/H", H5P_DEFAULT) >= 0);
@@ -285,7 +291,8 @@ static void test_concurrent_readers(void **state)
         assert_int_equal(waitpid(kids[k], &status, 0), kids[k]);
         assert_true(WIFEXITED(status) && WEXITSTATUS(status) == 0);
     }
-    for (int i = 0; i < 4; i++) tb_model_free(models[i]);
+    for (int i = 0; i < 4; i++)
+        tb_model_free(models[i]);
 }
 
 static void test_writer_failures(void **state)
@@ -323,8 +330,8 @@ static void test_writer_failures(void **state)
 int main(void)
 {
     const struct CMUnitTest tests[] = {
-        cmocka_unit_test(test_round_trip),  cmocka_unit_test(test_broken_entries),
-        cmocka_unit_test(test_tampered),    cmocka_unit_test(test_not_a_set),
+        cmocka_unit_test(test_round_trip),         cmocka_unit_test(test_broken_entries),
+        cmocka_unit_test(test_tampered),           cmocka_unit_test(test_not_a_set),
         cmocka_unit_test(test_concurrent_readers), cmocka_unit_test(test_writer_failures),
     };
     return cmocka_run_group_tests(tests, setup, teardown);

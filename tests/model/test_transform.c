@@ -25,7 +25,8 @@ static void hk_direct(const tb_model *m, const double k[3], double complex *H)
     for (int r = 0; r < m->nR; r++) {
         double ph = 2 * M_PI * (k[0] * m->R[r][0] + k[1] * m->R[r][1] + k[2] * m->R[r][2]);
         double complex f = cexp(I * ph) / m->deg[r];
-        for (int i = 0; i < n * n; i++) H[i] += f * m->H[(size_t)r * n * n + i];
+        for (int i = 0; i < n * n; i++)
+            H[i] += f * m->H[(size_t)r * n * n + i];
     }
 }
 
@@ -38,7 +39,8 @@ static void eigenvalues(const tb_model *m, const double k[3], double *w)
     free(H);
 }
 
-static const double kpts[4][3] = {{0.1, 0.27, 0.0}, {0.5, 0.0, 0.0}, {1.0 / 3, -1.0 / 3, 0.0}, {-0.41, 0.13, 0.0}};
+static const double kpts[4][3] = {
+    {0.1, 0.27, 0.0}, {0.5, 0.0, 0.0}, {1.0 / 3, -1.0 / 3, 0.0}, {-0.41, 0.13, 0.0}};
 
 /* Spectra agree within 1e-10 eV: both are zheev of unitarily equivalent matrices with entries of a
  * few eV, so the difference is round-off (~1e-14) far below this (common practice). */
@@ -49,7 +51,8 @@ static void expect_same_spectrum(const tb_model *a, const tb_model *b)
     for (int q = 0; q < 4; q++) {
         eigenvalues(a, kpts[q], wa);
         eigenvalues(b, kpts[q], wb);
-        for (int i = 0; i < a->norb; i++) assert_true(fabs(wa[i] - wb[i]) < 1e-10);
+        for (int i = 0; i < a->norb; i++)
+            assert_true(fabs(wa[i] - wb[i]) < 1e-10);
     }
 }
 
@@ -65,14 +68,16 @@ static double inversion_residual(const tb_model *m, const double k[3])
     hk_direct(m, mk, Hm);
     for (int i = 0; i < n; i++) {
         const int *s = m->inv_shift[i];
-        V[(size_t)m->inv_perm[i] * n + i] = m->inv_sign[i] * cexp(2 * M_PI * I * (k[0] * s[0] + k[1] * s[1] + k[2] * s[2]));
+        V[(size_t)m->inv_perm[i] * n + i] =
+            m->inv_sign[i] * cexp(2 * M_PI * I * (k[0] * s[0] + k[1] * s[1] + k[2] * s[2]));
     }
     double worst = 0;
     for (int a = 0; a < n; a++)
         for (int b = 0; b < n; b++) {
             double complex v = 0;
             for (int c = 0; c < n; c++)
-                for (int d = 0; d < n; d++) v += V[(size_t)a * n + c] * H[(size_t)c * n + d] * conj(V[(size_t)b * n + d]);
+                for (int d = 0; d < n; d++)
+                    v += V[(size_t)a * n + c] * H[(size_t)c * n + d] * conj(V[(size_t)b * n + d]);
             worst = fmax(worst, cabs(v - Hm[(size_t)a * n + b]));
         }
     free(H);
@@ -85,7 +90,8 @@ static double inversion_residual(const tb_model *m, const double k[3])
 static void expect_inversion_kept(const tb_model *m)
 {
     assert_int_equal(m->has_inversion_op, 1);
-    for (int q = 0; q < 4; q++) assert_true(inversion_residual(m, kpts[q]) < 1e-12);
+    for (int q = 0; q < 4; q++)
+        assert_true(inversion_residual(m, kpts[q]) < 1e-12);
 }
 
 static tb_model *load(const char *path)
@@ -147,7 +153,8 @@ static void test_phase(void **state)
     assert_int_equal(tb_model_validate(p, 1e-12, "phased", &err), 0);
     /* ... and undoing the phases restores it within round-off of two complex products (1e-14 eV). */
     assert_int_equal(tf_phase(p, minus, &back, &err), 0);
-    for (size_t i = 0; i < (size_t)m->nR * 4; i++) assert_true(cabs(back->H[i] - m->H[i]) < 1e-14);
+    for (size_t i = 0; i < (size_t)m->nR * 4; i++)
+        assert_true(cabs(back->H[i] - m->H[i]) < 1e-14);
     tb_model_free(back);
     tb_model_free(p);
     tb_model_free(m);

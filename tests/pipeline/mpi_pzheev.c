@@ -17,7 +17,8 @@ static int nfail, rank;
 static void check(int ok, const char *what, double value, double limit)
 {
     if (!ok) nfail++;
-    if (rank == 0 || !ok) printf("[rank %d] %s: %s (%.3g, limit %.3g)\n", rank, ok ? "ok" : "FAIL", what, value, limit);
+    if (rank == 0 || !ok)
+        printf("[rank %d] %s: %s (%.3g, limit %.3g)\n", rank, ok ? "ok" : "FAIL", what, value, limit);
 }
 
 /* Fu-Kane-Mele slab (Phys. Rev. Lett. 98, 106803 (2007)) on (111), 4 states per cell, at a
@@ -45,7 +46,10 @@ static double complex *fkm_slab_matrix(int nlayers, int *n)
 static double max_abs_diff_rel(int n, const double *a, const double *b)
 {
     double d = 0, scale = 0;
-    for (int i = 0; i < n; i++) { d = fmax(d, fabs(a[i] - b[i])); scale = fmax(scale, fabs(b[i])); }
+    for (int i = 0; i < n; i++) {
+        d = fmax(d, fabs(a[i] - b[i]));
+        scale = fmax(scale, fabs(b[i]));
+    }
     return d / scale;
 }
 
@@ -56,7 +60,8 @@ static double residual(int n, const double complex *H, int ncol, const double *w
     for (int j = 0; j < ncol; j++)
         for (int i = 0; i < n; i++) {
             double complex s = -w[j] * Z[i + (size_t)j * n];
-            for (int l = 0; l < n; l++) s += H[i + (size_t)l * n] * Z[l + (size_t)j * n];
+            for (int l = 0; l < n; l++)
+                s += H[i + (size_t)l * n] * Z[l + (size_t)j * n];
             r = fmax(r, cabs(s));
         }
     return r;
@@ -71,7 +76,7 @@ int main(int argc, char **argv)
     bs_err err;
     bs_err_clear(&err);
     int n;
-    double complex *H = fkm_slab_matrix(500, &n);           /* 2000 states */
+    double complex *H = fkm_slab_matrix(500, &n); /* 2000 states */
     double complex *A = malloc((size_t)n * n * sizeof *A);
     double *w_ref = malloc((size_t)n * sizeof *w_ref), *w = malloc((size_t)n * sizeof *w);
 
@@ -79,7 +84,10 @@ int main(int argc, char **argv)
     if (rank == 0) {
         eig_ws *ws = NULL;
         memcpy(A, H, (size_t)n * n * sizeof *A);
-        if (eig_create(n, &ws, &err) || eig_values(ws, A, w_ref, &err)) { printf("lapack: %s\n", err.msg); MPI_Abort(MPI_COMM_WORLD, 2); }
+        if (eig_create(n, &ws, &err) || eig_values(ws, A, w_ref, &err)) {
+            printf("lapack: %s\n", err.msg);
+            MPI_Abort(MPI_COMM_WORLD, 2);
+        }
         eig_free(ws);
     }
     MPI_Bcast(w_ref, n, MPI_DOUBLE, 0, MPI_COMM_WORLD);
@@ -87,7 +95,10 @@ int main(int argc, char **argv)
     pz_ctx *pz = NULL;
     int rc = pz_create(MPI_COMM_WORLD, n, 0, &pz, &err);
     check(rc == 0, "pz_create", rc, 0);
-    if (rc != 0) { printf("%s\n", err.msg); MPI_Abort(MPI_COMM_WORLD, 2); }
+    if (rc != 0) {
+        printf("%s\n", err.msg);
+        MPI_Abort(MPI_COMM_WORLD, 2);
+    }
     int pr, pc;
     pz_grid(pz, &pr, &pc);
     check(pr * pc == size && pr <= pc, "grid covers every rank", pr * pc, size);
@@ -131,7 +142,8 @@ int main(int argc, char **argv)
     if (rc == 0) {
         double r = residual(n, Hs, n, w, Zs);
         check(r < 1e-9, "pz_vectors residual |Hz - wz| (eV)", r, 1e-9);
-    } else printf("%s\n", err.msg);
+    } else
+        printf("%s\n", err.msg);
     pz_free(small);
 
     /* Dispatcher on the n = 400 slab: distributes above a threshold of 300 and stays on LAPACK
@@ -140,12 +152,16 @@ int main(int argc, char **argv)
     {
         eig_ws *ws = NULL;
         memcpy(A, Hs, (size_t)n * n * sizeof *A);
-        if (eig_create(n, &ws, &err) || eig_values(ws, A, ws_ref, &err)) { printf("lapack: %s\n", err.msg); MPI_Abort(MPI_COMM_WORLD, 2); }
+        if (eig_create(n, &ws, &err) || eig_values(ws, A, ws_ref, &err)) {
+            printf("lapack: %s\n", err.msg);
+            MPI_Abort(MPI_COMM_WORLD, 2);
+        }
         eig_free(ws);
     }
     pz_auto *au = NULL;
     rc = pz_auto_create(MPI_COMM_WORLD, n, 300, &au, &err);
-    check(rc == 0 && pz_auto_distributed(au) == (size > 1), "dispatcher distributes above the threshold", rc, 0);
+    check(rc == 0 && pz_auto_distributed(au) == (size > 1), "dispatcher distributes above the threshold", rc,
+          0);
     rc = pz_auto_values(au, 0, rank == 0 ? Hs : NULL, w, &err);
     d = max_abs_diff_rel(n, w, ws_ref);
     check(rc == 0 && d < 1e-10, "dispatcher (ScaLAPACK) values vs LAPACK, relative", d, 1e-10);
@@ -161,7 +177,13 @@ int main(int argc, char **argv)
     int total = 0;
     MPI_Allreduce(&nfail, &total, 1, MPI_INT, MPI_SUM, MPI_COMM_WORLD);
     if (rank == 0) printf("%d ranks: %d failed checks\n", size, total);
-    free(H); free(Hs); free(A); free(Z); free(Zs); free(w); free(w_ref);
+    free(H);
+    free(Hs);
+    free(A);
+    free(Z);
+    free(Zs);
+    free(w);
+    free(w_ref);
     MPI_Finalize();
     return total ? 1 : 0;
 }

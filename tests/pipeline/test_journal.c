@@ -22,7 +22,8 @@ static int strikes_of(char **ids, int *strikes, int n, const char *id)
 
 static void free_list(char **ids, int *strikes, int n)
 {
-    for (int i = 0; i < n; i++) free(ids[i]);
+    for (int i = 0; i < n; i++)
+        free(ids[i]);
     free(ids);
     free(strikes);
 }

@@ -47,7 +47,8 @@ static void test_order_and_skips(void **state)
     for (int i = 1; i < n; i++) {
         assert_true(items[i - 1].cost >= items[i].cost);
         if (items[i - 1].cost == items[i].cost)
-            assert_true(strcmp(ms_entry_at(set, items[i - 1].index)->id, ms_entry_at(set, items[i].index)->id) < 0);
+            assert_true(
+                strcmp(ms_entry_at(set, items[i - 1].index)->id, ms_entry_at(set, items[i].index)->id) < 0);
     }
     /* The cost is the index's per-k cost times mesh^dim (defaults 36 in 2D, 14 in 3D). */
     const ms_entry *e = ms_entry_at(set, items[0].index);
@@ -60,7 +61,8 @@ static void test_order_and_skips(void **state)
     cat_ids done = {2, done_ids}, sel = {3, sel_ids};
     assert_int_equal(pl_work_list(set, NULL, &done, 0, 0, &items, &n, &missing, &err), 0);
     assert_int_equal(n, ms_count(set) - 2);
-    for (int i = 0; i < n; i++) assert_false(cat_ids_contains(&done, ms_entry_at(set, items[i].index)->id));
+    for (int i = 0; i < n; i++)
+        assert_false(cat_ids_contains(&done, ms_entry_at(set, items[i].index)->id));
     free(items);
     assert_int_equal(pl_work_list(set, &sel, &done, 0, 0, &items, &n, &missing, &err), 0);
     assert_int_equal(n, 1);

@@ -75,7 +75,8 @@ static void test_curves_file(void **state)
     snprintf(png, sizeof png, "%s/path.png", dir);
     snprintf(svg, sizeof svg, "%s/path.svg", dir);
     double x[50], y1[50], y2[50];
-    for (int i = 0; i < 50; i++) x[i] = i / 49.0, y1[i] = sin(6 * x[i]), y2[i] = cos(6 * x[i]);
+    for (int i = 0; i < 50; i++)
+        x[i] = i / 49.0, y1[i] = sin(6 * x[i]), y2[i] = cos(6 * x[i]);
     plot_series s[2] = {{"gap", 50, x, y1, PLOT_INK, 0}, {"other", 50, x, y2, PLOT_BLUE, 1}};
     plot_interval iv[1] = {{0.3, 0.5, "Weyl"}};
     plot_axes ax = {"a path", "parameter", "gap (eV)", 0, 1, -1.2, 1.2, 0, NULL, NULL, 0};

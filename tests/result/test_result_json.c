@@ -27,7 +27,8 @@ static void test_name_tables(void **state)
     }
     assert_null(res_class_name(RES_NCLASS));
     assert_int_equal(res_class_parse("topological metal"), -1);
-    for (int s = RES_NA; s <= RES_DISAGREE; s++) assert_int_equal(res_status_parse(res_status_name((res_status)s)), s);
+    for (int s = RES_NA; s <= RES_DISAGREE; s++)
+        assert_int_equal(res_status_parse(res_status_name((res_status)s)), s);
     assert_int_equal(res_status_parse("maybe"), -1);
     assert_true(res_class_is_insulator(RES_CHERN_INSULATOR));
     assert_false(res_class_is_insulator(RES_WEYL));
@@ -35,7 +36,10 @@ static void test_name_tables(void **state)
     assert_false(res_class_has_surface_states(RES_TRIVIAL));
 }
 
-static int has_key(const cJSON *o, const char *k) { return cJSON_GetObjectItemCaseSensitive(o, k) != NULL; }
+static int has_key(const cJSON *o, const char *k)
+{
+    return cJSON_GetObjectItemCaseSensitive(o, k) != NULL;
+}
 
 /* Prints r, reads it back and prints again: the two texts must be the same bytes. */
 static void expect_round_trip(const res_diag *r, const char *what)
@@ -63,7 +67,8 @@ static void expect_round_trip(const res_diag *r, const char *what)
 static void test_round_trip_models(void **state)
 {
     (void)state;
-    static const char *const specs[] = {"kane_mele", "haldane", "fkm", "weyl", "nodal_line", "metal", "graphene"};
+    static const char *const specs[] = {"kane_mele",  "haldane", "fkm",     "weyl",
+                                        "nodal_line", "metal",   "graphene"};
     for (size_t i = 0; i < sizeof specs / sizeof specs[0]; i++) {
         tb_model *m = bs_test_build(specs[i]);
         pl_diag_opts o;
@@ -125,7 +130,8 @@ static void test_layout(void **state)
     assert_string_equal(cJSON_GetObjectItemCaseSensitive(t, "fermi_source")->valuestring, "midgap");
     const cJSON *s = cJSON_GetObjectItemCaseSensitive(j, "surface");
     assert_int_equal(cJSON_GetArraySize(cJSON_GetObjectItemCaseSensitive(s, "direction")), 2);
-    assert_int_equal(cJSON_GetArraySize(cJSON_GetArrayItem(cJSON_GetObjectItemCaseSensitive(s, "between"), 1)), 1);
+    assert_int_equal(
+        cJSON_GetArraySize(cJSON_GetArrayItem(cJSON_GetObjectItemCaseSensitive(s, "between"), 1)), 1);
     /* No formula: no key; no flows asked: no key. */
     assert_false(has_key(j, "formula"));
     assert_false(has_key(j, "wcc_flows"));
@@ -177,7 +183,8 @@ static int see_column(void *ctx, const char *column, const res_value *v)
 {
     col_seen *c = ctx;
     c->n++;
-    if (!strcmp(column, "class")) c->class_ok = v->type == RES_VALUE_TEXT && !strcmp(v->text, "Weyl semimetal");
+    if (!strcmp(column, "class"))
+        c->class_ok = v->type == RES_VALUE_TEXT && !strcmp(v->text, "Weyl semimetal");
     if (!strcmp(column, "time_reversal")) c->tr_ok = v->type == RES_VALUE_INT && v->i == 1;
     return 0;
 }
@@ -219,10 +226,12 @@ static void test_read_errors(void **state)
     expect_read_error("{\"z2\":[1,0,0]}", "key \"z2\"");
     expect_read_error("{\"z2_status\":\"done\"}", "key \"z2\": expected a list when");
     expect_read_error("{\"weyl_nodes\":[{\"k\":[0,0]}]}", "key \"weyl_nodes\"");
-    expect_read_error("{\"weyl_nodes\":[{\"k\":[0,0,0],\"chirality\":1}],\"gap_closings\":[[0,0]]}", "key \"gap_closings\"");
+    expect_read_error("{\"weyl_nodes\":[{\"k\":[0,0,0],\"chirality\":1}],\"gap_closings\":[[0,0]]}",
+                      "key \"gap_closings\"");
     expect_read_error("{\"surface\":{\"direction\":[0,0,1]}}", "key \"surface\"");
     expect_read_error("{\"transport\":{\"scan\":[]},\"ahc\":{\"xy\":\"x\"}}", "key \"ahc\"");
-    expect_read_error("{\"wcc_flows\":[{\"plane\":4,\"kpar\":[0],\"wcc\":[[0.1]]},{\"plane\":4,\"kpar\":[0],\"wcc\":[[0.1]]}]}",
+    expect_read_error("{\"wcc_flows\":[{\"plane\":4,\"kpar\":[0],\"wcc\":[[0.1]]},{\"plane\":4,\"kpar\":[0],"
+                      "\"wcc\":[[0.1]]}]}",
                       "one flow per plane");
     expect_read_error("{\"id\":", "malformed diagnosis JSON at byte");
     expect_read_error("{} []", "unexpected bytes after");
@@ -231,8 +240,9 @@ static void test_read_errors(void **state)
 int main(void)
 {
     const struct CMUnitTest tests[] = {
-        cmocka_unit_test(test_name_tables),  cmocka_unit_test(test_round_trip_models), cmocka_unit_test(test_layout),
-        cmocka_unit_test(test_chern_rule),   cmocka_unit_test(test_columns),   cmocka_unit_test(test_read_errors),
+        cmocka_unit_test(test_name_tables), cmocka_unit_test(test_round_trip_models),
+        cmocka_unit_test(test_layout),      cmocka_unit_test(test_chern_rule),
+        cmocka_unit_test(test_columns),     cmocka_unit_test(test_read_errors),
     };
     return cmocka_run_group_tests(tests, NULL, NULL);
 }

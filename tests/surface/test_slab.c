@@ -21,7 +21,8 @@
 
 static int det3(int M[3][3])
 {
-    return M[0][0] * (M[1][1] * M[2][2] - M[1][2] * M[2][1]) - M[0][1] * (M[1][0] * M[2][2] - M[1][2] * M[2][0]) +
+    return M[0][0] * (M[1][1] * M[2][2] - M[1][2] * M[2][1]) -
+           M[0][1] * (M[1][0] * M[2][2] - M[1][2] * M[2][0]) +
            M[0][2] * (M[1][0] * M[2][1] - M[1][1] * M[2][0]);
 }
 
@@ -30,7 +31,8 @@ static int det3(int M[3][3])
 static void test_basis_properties(void **state)
 {
     (void)state;
-    static const int planes[][3] = {{1, 1, 1}, {0, 0, 1}, {1, 1, 0}, {1, 0, 0}, {1, -1, 2}, {2, 1, 3}, {-3, 2, 5}, {0, 1, 1}};
+    static const int planes[][3] = {{1, 1, 1},  {0, 0, 1}, {1, 1, 0},  {1, 0, 0},
+                                    {1, -1, 2}, {2, 1, 3}, {-3, 2, 5}, {0, 1, 1}};
     const char *specs[] = {"fkm", "weyl"};
     for (int s = 0; s < 2; s++) {
         tb_model *m = bs_test_build(specs[s]);
@@ -62,7 +64,7 @@ static void test_basis_ribbon(void **state)
     assert_int_equal(slab_basis(m, G, M, &err), 0);
     int id[3][3] = {{1, 0, 0}, {0, 1, 0}, {0, 0, 1}};
     assert_memory_equal(M, id, sizeof M);
-    int G2[3] = {1, 1, 0};      /* armchair-type line */
+    int G2[3] = {1, 1, 0}; /* armchair-type line */
     assert_int_equal(slab_basis(m, G2, M, &err), 0);
     assert_int_equal(G2[0] * M[0][0] + G2[1] * M[0][1], 0);
     assert_int_equal(G2[0] * M[1][0] + G2[1] * M[1][1], 1);
@@ -104,10 +106,12 @@ static void test_rebased_spectrum(void **state)
         slab_matrix(s, M);
         for (int q = 0; q < 3; q++) {
             double kp[3], E0[4], E1[4];
-            for (int i = 0; i < 3; i++) kp[i] = M[i][0] * ks[q][0] + M[i][1] * ks[q][1] + M[i][2] * ks[q][2];
+            for (int i = 0; i < 3; i++)
+                kp[i] = M[i][0] * ks[q][0] + M[i][1] * ks[q][1] + M[i][2] * ks[q][2];
             eigenvalues_bulk(m, ks[q], E0);
             eigenvalues_bulk(slab_rebased(s), kp, E1);
-            for (int b = 0; b < 4; b++) assert_true(fabs(E0[b] - E1[b]) < 1e-10);
+            for (int b = 0; b < 4; b++)
+                assert_true(fabs(E0[b] - E1[b]) < 1e-10);
         }
         /* Home layers: every orbital sits in [cut, cut + 1) along the stacking axis. */
         const tb_model *r = slab_rebased(s);
@@ -151,11 +155,16 @@ static void test_slab_blocks_weyl(void **state)
             for (int a = 0; a < 2; a++)
                 for (int b = 0; b < 2; b++) {
                     double complex want = 0;
-                    if (jp == j) want = on[a][b];
-                    else if (jp == j + 1) want = up[a][b];
-                    else if (jp == j - 1) want = conj(up[b][a]);
+                    if (jp == j)
+                        want = on[a][b];
+                    else if (jp == j + 1)
+                        want = up[a][b];
+                    else if (jp == j - 1)
+                        want = conj(up[b][a]);
                     double complex got = H[(j * 2 + a) + (size_t)(jp * 2 + b) * ns];
-                    if (cabs(got - want) >= 1e-12) fail_msg("block (%d,%d) elem (%d,%d): got %g%+gi want %g%+gi", j, jp, a, b, creal(got), cimag(got), creal(want), cimag(want));
+                    if (cabs(got - want) >= 1e-12)
+                        fail_msg("block (%d,%d) elem (%d,%d): got %g%+gi want %g%+gi", j, jp, a, b,
+                                 creal(got), cimag(got), creal(want), cimag(want));
                 }
     free(H);
     slab_free(s);
@@ -191,7 +200,12 @@ static void test_bad_input(void **state)
     tb_model *m3 = bs_test_build("fkm"), *m2 = bs_test_build("kane_mele");
     slab *s = NULL;
     bs_err err;
-    struct { tb_model *m; int G[3]; int N; const char *msg; } cases[] = {
+    struct {
+        tb_model *m;
+        int G[3];
+        int N;
+        const char *msg;
+    } cases[] = {
         {m3, {0, 0, 0}, 4, "0,0,0"},
         {m3, {2, 2, 0}, 4, "coprime"},
         {m2, {0, 1, 1}, 4, "2D model"},

@@ -21,7 +21,8 @@ static void open_slab(const char *spec, int h, int k, int l, int layers, tb_mode
     bs_err err;
     bs_err_clear(&err);
     int G[3] = {h, k, l};
-    if (lm_build(spec, m, &err) || slab_create(*m, G, layers, 0.0, s, &err)) fail_msg("%s: %s", spec, err.msg);
+    if (lm_build(spec, m, &err) || slab_create(*m, G, layers, 0.0, s, &err))
+        fail_msg("%s: %s", spec, err.msg);
 }
 
 /* A semi-infinite crystal seen from one end is, with a broadening eta, a thick slab seen from the
@@ -104,8 +105,14 @@ static double arc_end(sg_ws *g, int side, double sign)
 static void test_weyl_arcs(void **state)
 {
     (void)state;
-    struct { const char *spec; double w; int G[3]; } cases[] = {
-        {"weyl", 0.25, {0, 0, 1}}, {"weyl", 0.25, {0, 1, 0}}, {"weyl:w=0.15", 0.15, {0, 0, 1}},
+    struct {
+        const char *spec;
+        double w;
+        int G[3];
+    } cases[] = {
+        {"weyl", 0.25, {0, 0, 1}},
+        {"weyl", 0.25, {0, 1, 0}},
+        {"weyl:w=0.15", 0.15, {0, 0, 1}},
     };
     for (size_t c = 0; c < sizeof cases / sizeof cases[0]; c++) {
         tb_model *m = NULL;
@@ -115,7 +122,7 @@ static void test_weyl_arcs(void **state)
         slab_matrix(s, M);
         /* Projected nodes: k' = M k for k = (+-w, 0, 0); the first two components. */
         double node1 = M[0][0] * cases[c].w, node2 = M[1][0] * cases[c].w;
-        assert_true(fabs(node2) < 1e-12);      /* the node line projects onto k'2 = 0 */
+        assert_true(fabs(node2) < 1e-12); /* the node line projects onto k'2 = 0 */
         sg_ws *g = NULL;
         bs_err err;
         bs_err_clear(&err);
@@ -124,8 +131,8 @@ static void test_weyl_arcs(void **state)
             for (int sg = -1; sg <= 1; sg += 2) {
                 double end = arc_end(g, side, sg), want = sg * fabs(node1);
                 if (!(fabs(end - want) < 0.01))
-                    fail_msg("%s (%d%d%d) side %d: arc ends at %.4f, projected node %.4f", cases[c].spec, cases[c].G[0],
-                             cases[c].G[1], cases[c].G[2], side, end, want);
+                    fail_msg("%s (%d%d%d) side %d: arc ends at %.4f, projected node %.4f", cases[c].spec,
+                             cases[c].G[0], cases[c].G[1], cases[c].G[2], side, end, want);
             }
         /* Away from the arc line (k'2 = 0.2, beyond the arc's width) the weight stays near the
          * eta tail: well below 5% of the arc value 1/(pi eta) = 31.8 per eV (by construction). */
@@ -153,7 +160,8 @@ static void test_weyl_map(void **state)
     enum { NM = 40 };
     double *map = malloc(NM * NM * sizeof *map), amax = 0;
     assert_int_equal(sg_map(g, 0.0, 0.01, SG_TOP, NM, NM, map, &err), 0);
-    for (int i = 0; i < NM * NM; i++) amax = fmax(amax, map[i]);
+    for (int i = 0; i < NM * NM; i++)
+        amax = fmax(amax, map[i]);
     int on_arc = 0;
     for (int i1 = 0; i1 < NM; i1++)
         for (int i2 = 0; i2 < NM; i2++) {
@@ -197,8 +205,10 @@ static void test_bad_input(void **state)
 int main(void)
 {
     const struct CMUnitTest tests[] = {
-        cmocka_unit_test(test_decimation_vs_slab), cmocka_unit_test(test_weyl_arcs),
-        cmocka_unit_test(test_weyl_map), cmocka_unit_test(test_bad_input),
+        cmocka_unit_test(test_decimation_vs_slab),
+        cmocka_unit_test(test_weyl_arcs),
+        cmocka_unit_test(test_weyl_map),
+        cmocka_unit_test(test_bad_input),
     };
     return cmocka_run_group_tests(tests, NULL, NULL);
 }

@@ -44,7 +44,7 @@ static void probe_open(probe *p, const char *spec, int h, int k, int l, int laye
     if (lm_build(spec, &p->m, &err) || slab_create(p->m, G, layers, 0.0, &p->s, &err) ||
         ss_create(p->s, &o, &p->c, &err) || ss_bulk_edges(p->m, 24, &p->vbm, &p->cbm, &err))
         fail_msg("%s: %s", spec, err.msg);
-    assert_true(p->cbm > p->vbm);     /* every model used here is an insulator */
+    assert_true(p->cbm > p->vbm); /* every model used here is an insulator */
     p->fermi = ss_fermi_default(p->vbm, p->cbm);
 }
 
@@ -63,9 +63,12 @@ static void crossings(probe *p, int ta, int tb, int *top, int *bottom)
     bs_err err;
     bs_err_clear(&err);
     ss_trims(p->c, kt, &nt);
-    if (ss_crossings(p->c, kt + 2 * ta, kt + 2 * tb, p->fermi, top, bottom, &other, &err)) fail_msg("%s", err.msg);
+    if (ss_crossings(p->c, kt + 2 * ta, kt + 2 * tb, p->fermi, top, bottom, &other, &err))
+        fail_msg("%s", err.msg);
     /* Inside the bulk gap every state crossing E_F must belong to one surface. */
-    if (other != 0) fail_msg("%s: TRIMs %d-%d: %d crossings by states on neither surface (top %d, bottom %d)", p->m->id, ta, tb, other, *top, *bottom);
+    if (other != 0)
+        fail_msg("%s: TRIMs %d-%d: %d crossings by states on neither surface (top %d, bottom %d)", p->m->id,
+                 ta, tb, other, *top, *bottom);
 }
 
 /* Top-surface Dirac points inside the global bulk gap; *mask gets bit t for TRIM t. */
@@ -92,7 +95,10 @@ static int top_dirac(probe *p, int *mask)
 static void test_kane_mele_ribbons(void **state)
 {
     (void)state;
-    struct { const char *spec; int topological; } cases[] = {
+    struct {
+        const char *spec;
+        int topological;
+    } cases[] = {
         {"kane_mele", 1},
         {"kane_mele:lambda_R=0,lambda_v=0.2", 1},
         {"kane_mele:lambda_v=0.5", 0},
@@ -134,7 +140,9 @@ static void test_fkm_strong(void **state)
         probe p;
         probe_open(&p, "fkm", planes[i][0], planes[i][1], planes[i][2], 24, 120);
         int mask, n = top_dirac(&p, &mask);
-        if (n % 2 != 1) fail_msg("fkm %d,%d,%d: %d top Dirac points, expected odd", planes[i][0], planes[i][1], planes[i][2], n);
+        if (n % 2 != 1)
+            fail_msg("fkm %d,%d,%d: %d top Dirac points, expected odd", planes[i][0], planes[i][1],
+                     planes[i][2], n);
         /* Choose one TRIM with a Dirac point and one without (both exist when n is 1 or 3). */
         int a = -1, b = -1;
         for (int t = 0; t < 4; t++) {
@@ -179,8 +187,10 @@ static void test_fkm_weak_001(void **state)
     if (n != 2) fail_msg("fkm weak cubic (001): %d top Dirac points, expected 2", n);
     int with[2], without[2], nw = 0, nwo = 0;
     for (int t = 0; t < 4; t++) {
-        if (mask >> t & 1) with[nw++] = t;
-        else without[nwo++] = t;
+        if (mask >> t & 1)
+            with[nw++] = t;
+        else
+            without[nwo++] = t;
     }
     int top, bottom;
     crossings(&p, with[0], with[1], &top, &bottom);

@@ -53,8 +53,10 @@ static void assert_honest(const ssum_result *sr)
     int agree = 1;
     for (int i = 0; i < sr->npair; i++)
         agree &= (sr->pair[i].n_top % 2 == 1) == sr->pair[i].expected_odd;
-    if (sr->status == RES_SURF_CONSISTENT) assert_true(agree);
-    else assert_int_equal(sr->status, RES_SURF_INCONCLUSIVE);
+    if (sr->status == RES_SURF_CONSISTENT)
+        assert_true(agree);
+    else
+        assert_int_equal(sr->status, RES_SURF_INCONCLUSIVE);
     assert_true(sr->reason[0] != '\0');
 }
 
@@ -72,8 +74,10 @@ static void test_fkm_12_layers(void **state)
     assert_true(any_odd(&sr));
     assert_honest(&sr);
     assert_true(sr.layers > 12 && sr.layers <= 48);
-    if (sr.status == RES_SURF_CONSISTENT) assert_int_equal(sr.ndirac_top % 2, 1);
-    else assert_non_null(strstr(sr.reason, "layers"));
+    if (sr.status == RES_SURF_CONSISTENT)
+        assert_int_equal(sr.ndirac_top % 2, 1);
+    else
+        assert_non_null(strstr(sr.reason, "layers"));
     surface_of("fkm", G, 12, 12, &sr);
     assert_int_equal(sr.ndirac_top, 0);
     assert_non_null(strstr(sr.reason, "hybridise"));
@@ -110,7 +114,8 @@ static void test_z2_route_agrees(void **state)
             ssum_result a, b;
             surface_by(specs[i], planes[p], 6, 6, 0, &a);
             surface_by(specs[i], planes[p], 6, 6, 1, &b);
-            for (int q = 0; q < a.npair; q++) assert_int_equal(a.pair[q].expected_odd, b.pair[q].expected_odd);
+            for (int q = 0; q < a.npair; q++)
+                assert_int_equal(a.pair[q].expected_odd, b.pair[q].expected_odd);
         }
     const int G[3] = {1, 0, 0};
     ssum_result a, b;
@@ -137,7 +142,8 @@ static void test_unchecked(void **state)
  * (the artefact of issue 14, 2026-12-02) and a two-fold one 1 meV inside the edge are refused. */
 static void test_dirac_filter(void **state)
 {
-    ss_dirac mid = {{0, 0}, 0.0, SS_TOP, 2}, edge12 = {{0, 0}, 0.4, SS_TOP, 12}, near = {{0, 0}, 0.399, SS_TOP, 2};
+    ss_dirac mid = {{0, 0}, 0.0, SS_TOP, 2}, edge12 = {{0, 0}, 0.4, SS_TOP, 12},
+             near = {{0, 0}, 0.399, SS_TOP, 2};
     assert_true(ssum_dirac_ok(&mid, -0.4, 0.4));
     assert_false(ssum_dirac_ok(&edge12, -0.4, 0.4));
     assert_false(ssum_dirac_ok(&near, -0.4, 0.4));
@@ -146,10 +152,8 @@ static void test_dirac_filter(void **state)
 int main(void)
 {
     const struct CMUnitTest tests[] = {
-        cmocka_unit_test(test_fkm_12_layers),
-        cmocka_unit_test(test_ribbons),
-        cmocka_unit_test(test_z2_route_agrees),
-        cmocka_unit_test(test_unchecked),
+        cmocka_unit_test(test_fkm_12_layers),   cmocka_unit_test(test_ribbons),
+        cmocka_unit_test(test_z2_route_agrees), cmocka_unit_test(test_unchecked),
         cmocka_unit_test(test_dirac_filter),
     };
     return cmocka_run_group_tests(tests, NULL, NULL);

@@ -98,7 +98,8 @@ static void test_graphene(void **state)
 static double sk(int a, int b, const double d[3], const double V[4])
 {
     double len = sqrt(d[0] * d[0] + d[1] * d[1] + d[2] * d[2]), c[3];
-    for (int i = 0; i < 3; i++) c[i] = d[i] / len;
+    for (int i = 0; i < 3; i++)
+        c[i] = d[i] / len;
     if (a == 0 && b == 0) return V[0];
     if (a == 0) return c[b - 1] * V[1];
     if (b == 0) return -c[a - 1] * V[1];
@@ -117,7 +118,8 @@ static tb_model *sp3_cubic(int spinful, double lso)
     bs_err_clear(&err);
     if (tb_model_create(n, nR, spinful, &m, &err) != 0) fail_msg("%s", err.msg);
     for (int i = 0; i < 3; i++)
-        for (int j = 0; j < 3; j++) m->lattice[i][j] = (i == j) ? 3.0 : 0.0;
+        for (int j = 0; j < 3; j++)
+            m->lattice[i][j] = (i == j) ? 3.0 : 0.0;
     m->orb_l[0] = 0;
     m->orb_l[1] = m->orb_l[2] = m->orb_l[3] = 1;
     m->nocc = spinful ? 2 : 1;
@@ -138,17 +140,20 @@ static tb_model *sp3_cubic(int spinful, double lso)
                             m->H[((size_t)r * n + tb_state_index(m, a, s)) * n + tb_state_index(m, b, s)] = v;
                     }
                 if (nn == 0 && spinful) {
-                    const double complex sig[3][2][2] = {{{0, 1}, {1, 0}}, {{0, -I}, {I, 0}}, {{1, 0}, {0, -1}}};
+                    const double complex sig[3][2][2] = {
+                        {{0, 1}, {1, 0}}, {{0, -I}, {I, 0}}, {{1, 0}, {0, -1}}};
                     for (int k = 0; k < 3; k++)
                         for (int i = 0; i < 3; i++)
                             for (int j = 0; j < 3; j++) {
-                                int e = (k == i || i == j || k == j) ? 0 : ((i == (k + 1) % 3) ? 1 : -1); /* eps_kij */
+                                int e = (k == i || i == j || k == j)
+                                            ? 0
+                                            : ((i == (k + 1) % 3) ? 1 : -1); /* eps_kij */
                                 if (!e) continue;
                                 double complex L = -I * e;
                                 for (int s1 = 0; s1 < 2; s1++)
                                     for (int s2 = 0; s2 < 2; s2++)
-                                        m->H[((size_t)r * n + tb_state_index(m, 1 + i, s1)) * n + tb_state_index(m, 1 + j, s2)] +=
-                                            0.5 * lso * L * sig[k][s1][s2];
+                                        m->H[((size_t)r * n + tb_state_index(m, 1 + i, s1)) * n +
+                                             tb_state_index(m, 1 + j, s2)] += 0.5 * lso * L * sig[k][s1][s2];
                             }
                 }
                 r++;
@@ -200,12 +205,13 @@ static void test_eigenvalues_at_gamma(void **state)
     assert_int_equal(cry_band_eigenvalues(m, c, inv, g, 0, 1, ev, &err), 0);
     assert_true(cabs(ev[0] - 1.0) < 1e-9);
     assert_int_equal(cry_band_eigenvalues(m, c, inv, g, 1, 3, ev, &err), 0);
-    for (int i = 0; i < 3; i++) assert_true(cabs(ev[i] + 1.0) < 1e-9);
+    for (int i = 0; i < 3; i++)
+        assert_true(cabs(ev[i] + 1.0) < 1e-9);
     assert_int_equal(cry_band_eigenvalues(m, c, c4, g, 1, 3, ev, &err), 0);
     double complex sum = ev[0] + ev[1] + ev[2], prod = ev[0] * ev[1] * ev[2];
     assert_true(cabs(sum - 1.0) < 1e-9);  /* 1 + i - i */
     assert_true(cabs(prod - 1.0) < 1e-9); /* 1 * i * -i */
-    const double x[3] = {0.5, 0.13, 0}; /* C4z does not leave this k invariant */
+    const double x[3] = {0.5, 0.13, 0};   /* C4z does not leave this k invariant */
     assert_int_not_equal(cry_band_eigenvalues(m, c, c4, x, 1, 3, ev, &err), 0);
     cry_info_free(c);
     tb_model_free(m);
@@ -233,7 +239,8 @@ static void add_noise(tb_model *m, double eps, uint64_t seed)
 {
     int n = m->norb;
     double hmax = 0;
-    for (size_t e = 0; e < (size_t)m->nR * n * n; e++) hmax = fmax(hmax, cabs(m->H[e]));
+    for (size_t e = 0; e < (size_t)m->nR * n * n; e++)
+        hmax = fmax(hmax, cabs(m->H[e]));
     for (int r = 0; r < m->nR; r++) {
         int neg[3] = {-m->R[r][0], -m->R[r][1], -m->R[r][2]};
         int q = tb_model_find_R(m, neg);
@@ -241,7 +248,8 @@ static void add_noise(tb_model *m, double eps, uint64_t seed)
         for (int a = 0; a < n; a++)
             for (int b = 0; b < n; b++) {
                 if (q == r && b < a) continue;
-                double complex z = eps * hmax * ((2 * bs_test_uniform(&seed) - 1) + I * (2 * bs_test_uniform(&seed) - 1));
+                double complex z =
+                    eps * hmax * ((2 * bs_test_uniform(&seed) - 1) + I * (2 * bs_test_uniform(&seed) - 1));
                 if (q == r && a == b) z = creal(z);
                 m->H[((size_t)r * n + a) * n + b] += z * m->deg[r];
                 if (q != r || a != b) m->H[((size_t)q * n + b) * n + a] += conj(z) * m->deg[q];
@@ -261,7 +269,8 @@ static double max_band_shift(const tb_model *a, const tb_model *b)
         LAPACKE_zheevd(LAPACK_COL_MAJOR, 'N', 'U', n, H, n, wa);
         hk_build_direct(b, k, H);
         LAPACKE_zheevd(LAPACK_COL_MAJOR, 'N', 'U', n, H, n, wb);
-        for (int i = 0; i < n; i++) worst = fmax(worst, fabs(wa[i] - wb[i]));
+        for (int i = 0; i < n; i++)
+            worst = fmax(worst, fabs(wa[i] - wb[i]));
     }
     free(H), free(wa), free(wb);
     return worst;
@@ -297,7 +306,8 @@ static void test_symmetrise_noisy(void **state)
     cry_info *cs = detect(sym, NULL);
     assert_int_equal(cry_nverified(cs), 12);
     double shift = max_band_shift(noisy, sym);
-    print_message("noise 1e-3: breaking bound %.3g eV, band shift after symmetrising %.3g eV\n", worst_bound, shift);
+    print_message("noise 1e-3: breaking bound %.3g eV, band shift after symmetrising %.3g eV\n", worst_bound,
+                  shift);
     assert_true(shift <= worst_bound);
     assert_true(shift > 0);
     cry_info_free(cs);
@@ -324,9 +334,12 @@ static void test_symmetrise_noisy(void **state)
 int main(void)
 {
     const struct CMUnitTest tests[] = {
-        cmocka_unit_test(test_fkm_full_group),     cmocka_unit_test(test_fkm_lowered_groups),
-        cmocka_unit_test(test_graphene),           cmocka_unit_test(test_sp3_cubic),
-        cmocka_unit_test(test_eigenvalues_at_gamma), cmocka_unit_test(test_permuted_orbitals),
+        cmocka_unit_test(test_fkm_full_group),
+        cmocka_unit_test(test_fkm_lowered_groups),
+        cmocka_unit_test(test_graphene),
+        cmocka_unit_test(test_sp3_cubic),
+        cmocka_unit_test(test_eigenvalues_at_gamma),
+        cmocka_unit_test(test_permuted_orbitals),
         cmocka_unit_test(test_symmetrise_noisy),
     };
     return cmocka_run_group_tests(tests, NULL, NULL);

@@ -21,7 +21,8 @@ static void random_orthogonal(uint64_t *s, int improper, double R[3][3])
         len += n[i] * n[i];
     }
     len = sqrt(len);
-    for (int i = 0; i < 3; i++) n[i] /= len;
+    for (int i = 0; i < 3; i++)
+        n[i] /= len;
     double th = 2 * M_PI * bs_test_uniform(s), c = cos(th), sn = sin(th);
     for (int i = 0; i < 3; i++)
         for (int j = 0; j < 3; j++) {
@@ -41,7 +42,8 @@ static void matmul3(const double A[3][3], const double B[3][3], double C[3][3])
     for (int i = 0; i < 3; i++)
         for (int j = 0; j < 3; j++) {
             C[i][j] = 0;
-            for (int k = 0; k < 3; k++) C[i][j] += A[i][k] * B[k][j];
+            for (int k = 0; k < 3; k++)
+                C[i][j] += A[i][k] * B[k][j];
         }
 }
 
@@ -59,12 +61,15 @@ static void test_rotation_matches_rotated_functions(void **state)
             bs_err_clear(&err);
             assert_int_equal(rh_rotation(l, (const double(*)[3])R, D, &err), 0);
             for (int p = 0; p < 5; p++) {
-                double r[3] = {2 * bs_test_uniform(&s) - 1, 2 * bs_test_uniform(&s) - 1, 2 * bs_test_uniform(&s) - 1};
+                double r[3] = {2 * bs_test_uniform(&s) - 1, 2 * bs_test_uniform(&s) - 1,
+                               2 * bs_test_uniform(&s) - 1};
                 double rr[3];
-                for (int a = 0; a < 3; a++) rr[a] = R[0][a] * r[0] + R[1][a] * r[1] + R[2][a] * r[2];
+                for (int a = 0; a < 3; a++)
+                    rr[a] = R[0][a] * r[0] + R[1][a] * r[1] + R[2][a] * r[2];
                 for (int idx = 0; idx < nm; idx++) {
                     double sum = 0;
-                    for (int j = 0; j < nm; j++) sum += rh_eval(l, j, r) * D[j + idx * nm];
+                    for (int j = 0; j < nm; j++)
+                        sum += rh_eval(l, j, r) * D[j + idx * nm];
                     /* 1e-10: the fit is exact up to round-off of ~50-point least squares */
                     assert_true(fabs(sum - rh_eval(l, idx, rr)) < 1e-10);
                 }
@@ -139,7 +144,8 @@ static void test_named_polynomials(void **state)
                     r[a] = 2 * bs_test_uniform(&s) - 1;
                     len += r[a] * r[a];
                 }
-                for (int a = 0; a < 3; a++) r[a] /= sqrt(len);
+                for (int a = 0; a < 3; a++)
+                    r[a] /= sqrt(len);
                 double q = poly(name, r);
                 assert_false(isnan(q));
                 if (fabs(q) < 1e-3) continue;
@@ -172,7 +178,8 @@ static void test_spin_rotation(void **state)
                             T[i + 2 * l] += U[i + 2 * j] * sig[a][j + 2 * k] * conj(U[l + 2 * k]);
             for (int e = 0; e < 4; e++) {
                 double complex want = 0;
-                for (int b = 0; b < 3; b++) want += sgn * R[b][a] * sig[b][e];
+                for (int b = 0; b < 3; b++)
+                    want += sgn * R[b][a] * sig[b][e];
                 assert_true(cabs(T[e] - want) < 1e-12);
             }
         }

@@ -53,20 +53,29 @@ static tb_model *symmetrise(const tb_model *m, sym_info *s, int which, double *m
     bs_err err;
     bs_err_clear(&err);
     symfit_break mv;
-    if (symfit_symmetrise(m, s, which, NULL, &out, &mv, &err) != 0) fail_msg("symfit_symmetrise(%s): %s", m->id, err.msg);
+    if (symfit_symmetrise(m, s, which, NULL, &out, &mv, &err) != 0)
+        fail_msg("symfit_symmetrise(%s): %s", m->id, err.msg);
     bs_err_clear(&err);
     /* The readers' own check: H(-R) = H(R)^dagger and every -R present. */
     if (tb_model_validate(out, 1e-12, "symmetrised", &err) != 0) fail_msg("%s", err.msg);
-    if (!(mv.upper_ev >= mv.lower_ev)) fail_msg("%s: distance bounds %g < %g", m->id, mv.upper_ev, mv.lower_ev);
+    if (!(mv.upper_ev >= mv.lower_ev))
+        fail_msg("%s: distance bounds %g < %g", m->id, mv.upper_ev, mv.lower_ev);
     *moved = mv.upper_ev;
     return out;
 }
 
 /* Models with both symmetries exact (published; see test_symmetry.c for the sources). */
-static const char *const both_exact[] = {"kane_mele:lambda_v=0,lambda_R=0", "bhz", "bhz:g=0.3", "fkm",
-                                         "fkm:dt=-0.4", "atomic", "atomic:dim=2", NULL};
+static const char *const both_exact[] = {"kane_mele:lambda_v=0,lambda_R=0",
+                                         "bhz",
+                                         "bhz:g=0.3",
+                                         "fkm",
+                                         "fkm:dt=-0.4",
+                                         "atomic",
+                                         "atomic:dim=2",
+                                         NULL};
 
-static void max_hk_diff(const tb_model *a, const tb_model *b, uint64_t seed, int nk, double *maxdiff, double *maxeig)
+static void max_hk_diff(const tb_model *a, const tb_model *b, uint64_t seed, int nk, double *maxdiff,
+                        double *maxeig)
 {
     int n = a->norb;
     double complex *Ha = malloc((size_t)n * n * sizeof *Ha), *Hb = malloc((size_t)n * n * sizeof *Hb);
@@ -76,16 +85,22 @@ static void max_hk_diff(const tb_model *a, const tb_model *b, uint64_t seed, int
     assert_int_equal(eig_create(n, &ws, &err), 0);
     *maxdiff = *maxeig = 0;
     for (int j = 0; j < nk; j++) {
-        double k[3] = {bs_test_uniform(&seed), bs_test_uniform(&seed), a->dim == 3 ? bs_test_uniform(&seed) : 0};
+        double k[3] = {bs_test_uniform(&seed), bs_test_uniform(&seed),
+                       a->dim == 3 ? bs_test_uniform(&seed) : 0};
         hk_build_direct(a, k, Ha);
         hk_build_direct(b, k, Hb);
-        for (int i = 0; i < n * n; i++) *maxdiff = fmax(*maxdiff, cabs(Ha[i] - Hb[i]));
+        for (int i = 0; i < n * n; i++)
+            *maxdiff = fmax(*maxdiff, cabs(Ha[i] - Hb[i]));
         assert_int_equal(eig_values(ws, Ha, wa, &err), 0);
         assert_int_equal(eig_values(ws, Hb, wb, &err), 0);
-        for (int i = 0; i < n; i++) *maxeig = fmax(*maxeig, fabs(wa[i] - wb[i]));
+        for (int i = 0; i < n; i++)
+            *maxeig = fmax(*maxeig, fabs(wa[i] - wb[i]));
     }
     eig_free(ws);
-    free(Ha); free(Hb); free(wa); free(wb);
+    free(Ha);
+    free(Hb);
+    free(wa);
+    free(wb);
 }
 
 /* An exactly symmetric model measures zero breaking and symmetrising it changes nothing. */
@@ -100,12 +115,14 @@ static void test_exact_models_unchanged(void **state)
             symfit_break b = measure(m, s, which);
             assert_true(b.available);
             if (!(b.upper_ev < ROUNDOFF_EV && b.lower_ev < ROUNDOFF_EV))
-                fail_msg("%s op %d: breaking %g / %g eV of an exact symmetry", both_exact[i], which, b.upper_ev, b.lower_ev);
+                fail_msg("%s op %d: breaking %g / %g eV of an exact symmetry", both_exact[i], which,
+                         b.upper_ev, b.lower_ev);
         }
         double moved, diff, eig;
         tb_model *hs = symmetrise(m, s, SYMFIT_TR | SYMFIT_INV, &moved);
         max_hk_diff(m, hs, 7, 8, &diff, &eig);
-        if (!(moved < ROUNDOFF_EV && diff < ROUNDOFF_EV)) fail_msg("%s: moved %g, H(k) changed by %g", both_exact[i], moved, diff);
+        if (!(moved < ROUNDOFF_EV && diff < ROUNDOFF_EV))
+            fail_msg("%s: moved %g, H(k) changed by %g", both_exact[i], moved, diff);
         tb_model_free(hs);
         sym_info_free(s);
         tb_model_free(m);
@@ -126,11 +143,13 @@ static void check_noisy(const char *spec, int which, double rel, uint64_t seed)
         if (!(which & op)) continue;
         symfit_break b = measure(m, s, op);
         assert_true(b.available);
-        if (!(b.upper_ev >= b.lower_ev && b.lower_ev > 0)) fail_msg("%s: bounds %g < %g", spec, b.upper_ev, b.lower_ev);
+        if (!(b.upper_ev >= b.lower_ev && b.lower_ev > 0))
+            fail_msg("%s: bounds %g < %g", spec, b.upper_ev, b.lower_ev);
         /* The clean model is symmetric, so H - gH = N - gN and ||N - gN|| <= 2 ||N|| (the bound is
          * invariant under the signed permutations of g): up to the factors solved from noisy H(k),
          * whose error is itself of the noise's order, hence the factor 3 rather than 2. */
-        if (!(b.upper_ev <= 3 * nb)) fail_msg("%s: breaking %g eV above 3 x noise bound %g", spec, b.upper_ev, nb);
+        if (!(b.upper_ev <= 3 * nb))
+            fail_msg("%s: breaking %g eV above 3 x noise bound %g", spec, b.upper_ev, nb);
     }
     double moved, diff, eig;
     tb_model *hs = symmetrise(m, s, which, &moved);
@@ -139,12 +158,14 @@ static void check_noisy(const char *spec, int which, double rel, uint64_t seed)
     assert_true(moved > 0);
     sym_info *s2 = detect(hs);
     if (which & SYMFIT_TR) assert_true(s2->time_reversal);
-    if ((which & SYMFIT_INV) && !s2->inversion) fail_msg("%s: symmetrised model fails inversion: %s", spec, s2->note);
+    if ((which & SYMFIT_INV) && !s2->inversion)
+        fail_msg("%s: symmetrised model fails inversion: %s", spec, s2->note);
     if (which == 3) assert_true(s2->inv_commutes_tr);
     for (int op = SYMFIT_TR; op <= SYMFIT_INV; op++) {
         if (!(which & op)) continue;
         symfit_break b = measure(hs, s, op);
-        if (!(b.upper_ev < ROUNDOFF_EV)) fail_msg("%s: symmetrised model still breaks op %d by %g eV", spec, op, b.upper_ev);
+        if (!(b.upper_ev < ROUNDOFF_EV))
+            fail_msg("%s: symmetrised model still breaks op %d by %g eV", spec, op, b.upper_ev);
     }
     sym_info_free(s2);
     tb_model_free(hs);
@@ -246,7 +267,8 @@ static void test_position_tolerance_angstrom(void **state)
     tb_model_reciprocal(m, b);
     for (int i = 0; i < 3; i++) {
         double x = 0;
-        for (int j = 0; j < 3; j++) x += b[i][j] * shift[j];
+        for (int j = 0; j < 3; j++)
+            x += b[i][j] * shift[j];
         m->orb_pos[1][i] += x / (2 * M_PI);
     }
     sym_opts o;
@@ -290,10 +312,14 @@ static void test_errors(void **state)
 int main(void)
 {
     const struct CMUnitTest tests[] = {
-        cmocka_unit_test(test_exact_models_unchanged), cmocka_unit_test(test_noisy_symmetrised),
-        cmocka_unit_test(test_exchange_breaking),      cmocka_unit_test(test_staggered_breaking),
-        cmocka_unit_test(test_verdicts),               cmocka_unit_test(test_norm_bound),
-        cmocka_unit_test(test_errors),                 cmocka_unit_test(test_position_tolerance_angstrom),
+        cmocka_unit_test(test_exact_models_unchanged),
+        cmocka_unit_test(test_noisy_symmetrised),
+        cmocka_unit_test(test_exchange_breaking),
+        cmocka_unit_test(test_staggered_breaking),
+        cmocka_unit_test(test_verdicts),
+        cmocka_unit_test(test_norm_bound),
+        cmocka_unit_test(test_errors),
+        cmocka_unit_test(test_position_tolerance_angstrom),
     };
     return cmocka_run_group_tests(tests, NULL, NULL);
 }

@@ -21,11 +21,11 @@
 #include "bandsieve/symmetry.h"
 #include "bandsieve/transform.h"
 
-#define assert_close(a, b, tol)                                                                    \
-    do {                                                                                           \
-        double a_ = (a), b_ = (b);                                                                 \
-        if (!(fabs(a_ - b_) <= (tol)))                                                             \
-            fail_msg("%s = %.12g, expected %.12g within %g", #a, a_, b_, (double)(tol));           \
+#define assert_close(a, b, tol)                                                                              \
+    do {                                                                                                     \
+        double a_ = (a), b_ = (b);                                                                           \
+        if (!(fabs(a_ - b_) <= (tol)))                                                                       \
+            fail_msg("%s = %.12g, expected %.12g within %g", #a, a_, b_, (double)(tol));                     \
     } while (0)
 
 /* Residual of an exact symmetry: sums of O(10) terms of O(1) eV in double precision leave
@@ -99,15 +99,19 @@ static void test_published_models(void **state)
         tb_model *m = bs_test_build(cases[i].spec);
         sym_info *s = detect(m, 7 + i);
         if (s->time_reversal != cases[i].tr || s->inversion != cases[i].inv)
-            fail_msg("%s (%s): TR %d (res %.3g) INV %d (res %.3g), expected %d %d; note: %s",
-                     cases[i].spec, cases[i].why, s->time_reversal, s->tr_residual, s->inversion,
-                     s->inv_residual, cases[i].tr, cases[i].inv, s->note);
+            fail_msg("%s (%s): TR %d (res %.3g) INV %d (res %.3g), expected %d %d; note: %s", cases[i].spec,
+                     cases[i].why, s->time_reversal, s->tr_residual, s->inversion, s->inv_residual,
+                     cases[i].tr, cases[i].inv, s->note);
         /* A found symmetry is exact in these models; a broken one by at least the size of the
          * breaking term relative to ||H|| (>= 1e-3 here), far above the 1e-6 tolerance. */
-        if (s->time_reversal) assert_true(s->tr_residual < EXACT_TOL);
-        else assert_true(s->tr_residual > 1e-4);
-        if (s->inversion) assert_true(s->inv_residual < EXACT_TOL);
-        else assert_true(s->inv_residual < 0 || s->inv_residual > 1e-4);
+        if (s->time_reversal)
+            assert_true(s->tr_residual < EXACT_TOL);
+        else
+            assert_true(s->tr_residual > 1e-4);
+        if (s->inversion)
+            assert_true(s->inv_residual < EXACT_TOL);
+        else
+            assert_true(s->inv_residual < 0 || s->inv_residual > 1e-4);
         if (!s->time_reversal || !s->inversion) assert_true(strlen(s->note) > 0);
         assert_int_equal(s->tr_squared, m->spinful ? -1 : 1);
         if (s->time_reversal && s->inversion) assert_int_equal(s->inv_commutes_tr, 1);
@@ -143,7 +147,8 @@ static void test_graphene_matrix_by_hand(void **state)
     assert_close(cabs(P[3]), 0.0, 1e-14);
     assert_close(cabs(P[1] - ref), 0.0, 1e-14);
     assert_close(cabs(P[2] - ref), 0.0, 1e-14);
-    for (int d = 0; d < 3; d++) assert_close(s->inv_centre[d], 0.0, 1e-14);
+    for (int d = 0; d < 3; d++)
+        assert_close(s->inv_centre[d], 0.0, 1e-14);
     sym_info_free(s);
     tb_model_free(m);
 }
@@ -156,7 +161,10 @@ static void check_matrix(const tb_model *m, const sym_info *s, const double k[3]
     size_t nn = (size_t)n * n;
     double complex *H = malloc(nn * sizeof *H), *Hm = malloc(nn * sizeof *Hm);
     double complex *P = malloc(nn * sizeof *P), *Pm = malloc(nn * sizeof *Pm);
-    assert_non_null(H); assert_non_null(Hm); assert_non_null(P); assert_non_null(Pm);
+    assert_non_null(H);
+    assert_non_null(Hm);
+    assert_non_null(P);
+    assert_non_null(Pm);
     double mk[3] = {-k[0], -k[1], -k[2]};
     hk_build_direct(m, k, H);
     hk_build_direct(m, mk, Hm);
@@ -167,7 +175,8 @@ static void check_matrix(const tb_model *m, const sym_info *s, const double k[3]
         for (int b = 0; b < n; b++) {
             double complex x = 0, y = 0;
             for (int i = 0; i < n; i++) {
-                for (int j = 0; j < n; j++) x += P[a + i * n] * H[i + j * n] * conj(P[b + j * n]);
+                for (int j = 0; j < n; j++)
+                    x += P[a + i * n] * H[i + j * n] * conj(P[b + j * n]);
                 y += Pm[a + i * n] * P[i + b * n];
             }
             diff += pow(cabs(x - Hm[a + b * n]), 2);
@@ -176,7 +185,10 @@ static void check_matrix(const tb_model *m, const sym_info *s, const double k[3]
         }
     assert_true(sqrt(diff / norm) < EXACT_TOL);
     assert_true(sqrt(unit) < EXACT_TOL);
-    free(H); free(Hm); free(P); free(Pm);
+    free(H);
+    free(Hm);
+    free(P);
+    free(Pm);
 }
 
 /* Fu-Kane-Mele diamond: inversion about the bond centre (1/8,1/8,1/8) (Phys. Rev. B 76, 045302
@@ -187,7 +199,8 @@ static void test_fkm_bond_centre_and_matrix(void **state)
     tb_model *m = bs_test_build("fkm");
     sym_info *s = detect(m, 11);
     assert_int_equal(s->inversion, 1);
-    for (int d = 0; d < 3; d++) assert_close(s->inv_centre[d], 0.125, 1e-12);
+    for (int d = 0; d < 3; d++)
+        assert_close(s->inv_centre[d], 0.125, 1e-12);
     double k[3] = {0.31, -0.17, 0.44};
     check_matrix(m, s, k);
     sym_info_free(s);
@@ -208,7 +221,8 @@ static void test_fkm_bond_centre_and_matrix(void **state)
         for (int b = 0; b < n; b++) {
             double complex x = 0;
             for (int i = 0; i < n; i++)
-                for (int j = 0; j < n; j++) x += U[a + i * n] * conj(H[i + j * n]) * conj(U[b + j * n]);
+                for (int j = 0; j < n; j++)
+                    x += U[a + i * n] * conj(H[i + j * n]) * conj(U[b + j * n]);
             diff += pow(cabs(x - Hm[a + b * n]), 2);
         }
     assert_true(sqrt(diff) < EXACT_TOL);
@@ -233,10 +247,13 @@ static tb_model *scramble(const tb_model *m, uint64_t seed, int layout)
     int ns = m->nspatial;
     int *perm = malloc((size_t)ns * sizeof *perm);
     double *phi = malloc((size_t)ns * sizeof *phi);
-    for (int i = 0; i < ns; i++) perm[i] = i;
+    for (int i = 0; i < ns; i++)
+        perm[i] = i;
     for (int i = ns - 1; i > 0; i--) {
         int j = (int)(rng_next(&x) % (uint64_t)(i + 1));
-        int t = perm[i]; perm[i] = perm[j]; perm[j] = t;
+        int t = perm[i];
+        perm[i] = perm[j];
+        perm[j] = t;
     }
     bs_err err;
     bs_err_clear(&err);

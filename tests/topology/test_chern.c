@@ -38,8 +38,8 @@ static chern_value plane_value(const tb_model *m, int p, const chern_opts *o)
     int rc = chern_plane(w, p, o, &v, &err);
     if (rc != 0) fprintf(stderr, "%s: %s\n", m->id, err.msg);
     assert_int_equal(rc, 0);
-    printf("  %-34s plane %d status %d C %2d flux %+.10f max|F| %.3f mesh %d %5lld k %.4f s %s\n",
-           m->id, p, v.status, v.chern, v.flux, v.max_f, v.mesh, v.nk, bs_now() - t0, v.reason);
+    printf("  %-34s plane %d status %d C %2d flux %+.10f max|F| %.3f mesh %d %5lld k %.4f s %s\n", m->id, p,
+           v.status, v.chern, v.flux, v.max_f, v.mesh, v.nk, bs_now() - t0, v.reason);
     chern_free(w);
     return v;
 }
@@ -55,8 +55,8 @@ static chern_value cube_value(const tb_model *m, const double k0[3], double h)
     int rc = chern_surface_flux(w, k0, h, NULL, &v, &err);
     if (rc != 0) fprintf(stderr, "%s: %s\n", m->id, err.msg);
     assert_int_equal(rc, 0);
-    printf("  %-34s cube (%.3f,%.3f,%.3f) h %.3f status %d flux %+.10f mesh %d %4lld k %.4f s %s\n",
-           m->id, k0[0], k0[1], k0[2], h, v.status, v.flux, v.mesh, v.nk, bs_now() - t0, v.reason);
+    printf("  %-34s cube (%.3f,%.3f,%.3f) h %.3f status %d flux %+.10f mesh %d %4lld k %.4f s %s\n", m->id,
+           k0[0], k0[1], k0[2], h, v.status, v.flux, v.mesh, v.nk, bs_now() - t0, v.reason);
     chern_free(w);
     return v;
 }
@@ -328,14 +328,10 @@ static void test_errors(void **state)
 int main(void)
 {
     const struct CMUnitTest tests[] = {
-        cmocka_unit_test(test_haldane_chern_sign),
-        cmocka_unit_test(test_haldane_trivial),
-        cmocka_unit_test(test_time_reversal_zero),
-        cmocka_unit_test(test_weyl_chirality),
-        cmocka_unit_test(test_weyl_planes),
-        cmocka_unit_test(test_refinement),
-        cmocka_unit_test(test_basis_invariance),
-        cmocka_unit_test(test_errors),
+        cmocka_unit_test(test_haldane_chern_sign), cmocka_unit_test(test_haldane_trivial),
+        cmocka_unit_test(test_time_reversal_zero), cmocka_unit_test(test_weyl_chirality),
+        cmocka_unit_test(test_weyl_planes),        cmocka_unit_test(test_refinement),
+        cmocka_unit_test(test_basis_invariance),   cmocka_unit_test(test_errors),
     };
     return cmocka_run_group_tests(tests, NULL, NULL);
 }

@@ -70,11 +70,13 @@ static int kappa_by_hand(const tb_model *m)
         int b = 0;
         while (b < m->nocc) {
             int e = b + 1;
-            while (e < m->nocc && w[e] - w[b] < 1e-8) e++;
+            while (e < m->nocc && w[e] - w[b] < 1e-8)
+                e++;
             double complex tr = 0;
             for (int q = b; q < e; q++)
                 for (int i = 0; i < n; i++)
-                    for (int j = 0; j < n; j++) tr += conj(H[i + (size_t)q * n]) * P[i + (size_t)j * n] * H[j + (size_t)q * n];
+                    for (int j = 0; j < n; j++)
+                        tr += conj(H[i + (size_t)q * n]) * P[i + (size_t)j * n] * H[j + (size_t)q * n];
             sum += (int)lround(creal(tr)); /* n+ - n- of the multiplet */
             b = e;
         }
@@ -110,7 +112,8 @@ static void test_z4(void **state)
         tb_model *m = bs_test_build(specs[i]);
         par_result pr;
         int kappa = kappa_of(m, &pr);
-        print_message("%s: kappa %d, z2 %d;%d%d%d\n", specs[i], kappa, pr.z2[0], pr.z2[1], pr.z2[2], pr.z2[3]);
+        print_message("%s: kappa %d, z2 %d;%d%d%d\n", specs[i], kappa, pr.z2[0], pr.z2[1], pr.z2[2],
+                      pr.z2[3]);
         assert_int_equal(kappa, kappa_by_hand(m));
         assert_int_equal(pr.status, PAR_DONE);
         assert_int_equal(kappa % 2, pr.z2[0]);
@@ -183,9 +186,10 @@ static void test_mirror_chern(void **state)
             assert_int_equal(pl[0].status, CZ_DONE);
             assert_int_equal(pl[0].c_plus, -pl[0].c_minus);
             int z2 = plane_z2(&pl[0], &pr);
-            print_message("copy %d mirror %d: plane g1 (%d,%d,%d) g2 (%d,%d,%d), C+ %d C- %d, C_M %d, plane Z2 %d\n", copy + 1,
-                          i, pl[0].g[0][0], pl[0].g[0][1], pl[0].g[0][2], pl[0].g[1][0], pl[0].g[1][1], pl[0].g[1][2],
-                          pl[0].c_plus, pl[0].c_minus, pl[0].mirror_chern, z2);
+            print_message(
+                "copy %d mirror %d: plane g1 (%d,%d,%d) g2 (%d,%d,%d), C+ %d C- %d, C_M %d, plane Z2 %d\n",
+                copy + 1, i, pl[0].g[0][0], pl[0].g[0][1], pl[0].g[0][2], pl[0].g[1][0], pl[0].g[1][1],
+                pl[0].g[1][2], pl[0].c_plus, pl[0].c_minus, pl[0].mirror_chern, z2);
             if (copy == 0) {
                 assert_int_equal(abs(pl[0].mirror_chern) % 2, z2);
                 odd += z2;
@@ -203,7 +207,6 @@ static void test_mirror_chern(void **state)
     tb_model_free(m);
 }
 
-
 /* Two-band spinless models with time reversal (real H(R)), a two-fold axis along z and no
  * inversion, on the simple cubic lattice (3 Angstrom). Diagonal: d(k) = m - 2t (cos kx + cos ky +
  * cos kz) + 2u cos 2kz on the s orbital, -d(k) on the p orbital; with t = u = 1 the band
@@ -220,12 +223,14 @@ static tb_model *c2_model(int axis_equal, double mass)
     int Rs[64][3], nR = 0;
     for (int x = -1; x <= 1; x++)
         for (int y = -1; y <= 1; y++)
-            for (int z = -2; z <= 2; z++) Rs[nR][0] = x, Rs[nR][1] = y, Rs[nR][2] = z, nR++;
+            for (int z = -2; z <= 2; z++)
+                Rs[nR][0] = x, Rs[nR][1] = y, Rs[nR][2] = z, nR++;
     tb_model *m = NULL;
     bs_err err;
     bs_err_clear(&err);
     if (tb_model_create(2, nR, 0, &m, &err) != 0) fail_msg("%s", err.msg);
-    for (int i = 0; i < 3; i++) m->lattice[i][i] = 3.0;
+    for (int i = 0; i < 3; i++)
+        m->lattice[i][i] = 3.0;
     m->orb_l[0] = 0, m->orb_l[1] = 1;
     m->nocc = 1;
     for (int r = 0; r < nR; r++) {
@@ -276,7 +281,8 @@ static void test_rocksalt_tci(void **state)
         par_result pr;
         assert_int_equal(kappa_of(m, &pr), 0);
         assert_int_equal(pr.status, PAR_DONE);
-        for (int i = 0; i < 4; i++) assert_int_equal(pr.z2[i], 0);
+        for (int i = 0; i < 4; i++)
+            assert_int_equal(pr.z2[i], 0);
         cry_info *c = NULL;
         bs_err err;
         bs_err_clear(&err);
@@ -296,7 +302,8 @@ static void test_rocksalt_tci(void **state)
             assert_int_equal(cz_mirror_chern(m, c, &pl[0], 16, 1e-6, &err), 0);
             assert_int_equal(pl[0].status, CZ_DONE);
             int zeros = 0;
-            for (int x = 0; x < 3; x++) zeros += fabs(op->axis[x]) < 1e-9;
+            for (int x = 0; x < 3; x++)
+                zeros += fabs(op->axis[x]) < 1e-9;
             if (zeros == 1) { /* {110} normal */
                 assert_int_equal(abs(pl[0].mirror_chern), inverted ? 2 : 0);
                 n110++;

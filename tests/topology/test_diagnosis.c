@@ -41,7 +41,8 @@ static void diagnose(const char *spec, res_diag *r)
 static void expect_class(const char *spec, const char *cls, res_diag *r)
 {
     diagnose(spec, r);
-    if (strcmp(res_class_name(r->cls), cls) != 0) fail_msg("%s: expected '%s', got '%s' (%s)", spec, cls, res_class_name(r->cls), r->reason);
+    if (strcmp(res_class_name(r->cls), cls) != 0)
+        fail_msg("%s: expected '%s', got '%s' (%s)", spec, cls, res_class_name(r->cls), r->reason);
 }
 
 /* Kane–Mele, lambda_R = 0: 2D TI for lambda_v < 3 sqrt3 lambda_SO, trivial above
@@ -213,7 +214,8 @@ static void test_weyl_positions(void **state)
     for (int j = 0; j < 2; j++) {
         double *k = r.nodes[j].k;
         double k1 = k[0] > 0.5 ? k[0] - 1 : k[0];
-        double d = fabs(fabs(k1) - 0.2) + fabs(fmod(k[1] + 0.5, 1.0) - 0.5) + fabs(fmod(k[2] + 0.5, 1.0) - 0.5);
+        double d =
+            fabs(fabs(k1) - 0.2) + fabs(fmod(k[1] + 0.5, 1.0) - 0.5) + fabs(fmod(k[2] + 0.5, 1.0) - 0.5);
         assert_true(d < 1e-6);
         assert_int_equal(r.nodes[j].chirality, k1 > 0 ? -1 : +1);
     }
@@ -256,7 +258,8 @@ static tb_model *random_metal(int norb, uint64_t seed)
     assert_int_equal(tb_model_create(norb, 13, 0, &m, &err), 0);
     m->dim = 3;
     m->nocc = norb / 2;
-    for (int i = 0; i < 3; i++) m->lattice[i][i] = 3.0;
+    for (int i = 0; i < 3; i++)
+        m->lattice[i][i] = 3.0;
     snprintf(m->id, sizeof m->id, "random-metal-%d", norb);
     uint64_t s = seed;
     size_t nn = (size_t)norb * norb;
@@ -338,7 +341,8 @@ static void test_sp3_semimetal_regression_20261202(void **state)
         assert_non_null(p);
         double ref[12];
         int n = 0;
-        for (int i = 0; i < 12; i++) n += fscanf(p, "%lf", &ref[i]) == 1;
+        for (int i = 0; i < 12; i++)
+            n += fscanf(p, "%lf", &ref[i]) == 1;
         assert_int_equal(pclose(p), 0);
         assert_int_equal(n, 12);
         snprintf(card, sizeof card, "%s/sp3_%s.json", dir, variants[v]);
@@ -352,8 +356,8 @@ static void test_sp3_semimetal_regression_20261202(void **state)
         res_init(&r);
         assert_int_equal(diag_run(m, &o, &r, &err), 0);
         printf("  %s: %s (%.2f) %s; indirect %.6f (numpy %.6f) eV, resolution %.2g eV, %.2f s\n", m->id,
-               res_class_name(r.cls), r.confidence, r.reason, r.gap_indirect_ev, ref[2] - ref[1], r.gap_resolution_ev,
-               r.seconds);
+               res_class_name(r.cls), r.confidence, r.reason, r.gap_indirect_ev, ref[2] - ref[1],
+               r.gap_resolution_ev, r.seconds);
         assert_true(fabs(r.gap_indirect_ev - (ref[2] - ref[1])) < 1e-5);
         assert_true(r.gap_converged);
         if (v == 0) {
@@ -373,8 +377,12 @@ static void test_sp3_semimetal_regression_20261202(void **state)
 static void test_basis_invariance(void **state)
 {
     (void)state;
-    static const char *specs[] = {"kane_mele:lambda_R=0.05,lambda_v=0.1", "bhz:M=1,delta=0.05",
-                                  "haldane:M=0.2,phi=0.5", "fkm:dt=-0.4", "fkm:dt=0.3,stag=0.2", "weyl"};
+    static const char *specs[] = {"kane_mele:lambda_R=0.05,lambda_v=0.1",
+                                  "bhz:M=1,delta=0.05",
+                                  "haldane:M=0.2,phi=0.5",
+                                  "fkm:dt=-0.4",
+                                  "fkm:dt=0.3,stag=0.2",
+                                  "weyl"};
     uint64_t seed = 20261202;
     for (size_t s = 0; s < sizeof specs / sizeof specs[0]; s++) {
         tb_model *m = NULL, *p = NULL, *q = NULL, *t = NULL;
@@ -384,13 +392,21 @@ static void test_basis_invariance(void **state)
         int no = m->nspatial;
         int perm[16];
         double phi[16];
-        for (int i = 0; i < no; i++) perm[i] = i;
+        for (int i = 0; i < no; i++)
+            perm[i] = i;
         for (int i = no - 1; i > 0; i--) {
             int j = (int)(bs_test_uniform(&seed) * (i + 1));
-            int tmp = perm[i]; perm[i] = perm[j]; perm[j] = tmp;
+            int tmp = perm[i];
+            perm[i] = perm[j];
+            perm[j] = tmp;
         }
-        if (no > 1 && perm[0] == 0) { int tmp = perm[0]; perm[0] = perm[1]; perm[1] = tmp; }
-        for (int i = 0; i < no; i++) phi[i] = 2 * M_PI * bs_test_uniform(&seed);
+        if (no > 1 && perm[0] == 0) {
+            int tmp = perm[0];
+            perm[0] = perm[1];
+            perm[1] = tmp;
+        }
+        for (int i = 0; i < no; i++)
+            phi[i] = 2 * M_PI * bs_test_uniform(&seed);
         assert_int_equal(tf_permute(m, perm, &p, &err), 0);
         assert_int_equal(tf_phase(p, phi, &q, &err), 0);
         if (m->spinful) assert_int_equal(tf_spin_layout(q, TB_SPIN_INTERLEAVED, &t, &err), 0);
@@ -401,7 +417,9 @@ static void test_basis_invariance(void **state)
         res_init(&b);
         assert_int_equal(diag_run(m, &o, &a, &err), 0);
         assert_int_equal(diag_run(t ? t : q, &o, &b, &err), 0);
-        if (strcmp(res_class_name(a.cls), res_class_name(b.cls)) != 0) fail_msg("%s: class %s became %s (%s)", specs[s], res_class_name(a.cls), res_class_name(b.cls), b.reason);
+        if (strcmp(res_class_name(a.cls), res_class_name(b.cls)) != 0)
+            fail_msg("%s: class %s became %s (%s)", specs[s], res_class_name(a.cls), res_class_name(b.cls),
+                     b.reason);
         assert_memory_equal(a.z2, b.z2, sizeof a.z2);
         assert_int_equal(a.chern, b.chern);
         assert_int_equal(a.nnodes, b.nnodes);
@@ -412,7 +430,10 @@ static void test_basis_invariance(void **state)
         assert_true(fabs(a.gap_direct_ev - b.gap_direct_ev) < 1e-6);
         res_clear(&a);
         res_clear(&b);
-        tb_model_free(m); tb_model_free(p); tb_model_free(q); tb_model_free(t);
+        tb_model_free(m);
+        tb_model_free(p);
+        tb_model_free(q);
+        tb_model_free(t);
     }
 }
 
@@ -496,16 +517,20 @@ static void test_crystalline_classes(void **state)
 int main(void)
 {
     const struct CMUnitTest tests[] = {
-        cmocka_unit_test(test_kane_mele_boundary), cmocka_unit_test(test_kane_mele_near_boundary_refuses_to_guess),
+        cmocka_unit_test(test_kane_mele_boundary),
+        cmocka_unit_test(test_kane_mele_near_boundary_refuses_to_guess),
         cmocka_unit_test(test_bhz),
-        cmocka_unit_test(test_haldane), cmocka_unit_test(test_fkm_strong_weak),
-        cmocka_unit_test(test_fkm_sweep_weyl_window), cmocka_unit_test(test_weyl_positions),
-        cmocka_unit_test(test_line_metal_insulator), cmocka_unit_test(test_basis_invariance),
+        cmocka_unit_test(test_haldane),
+        cmocka_unit_test(test_fkm_strong_weak),
+        cmocka_unit_test(test_fkm_sweep_weyl_window),
+        cmocka_unit_test(test_weyl_positions),
+        cmocka_unit_test(test_line_metal_insulator),
+        cmocka_unit_test(test_basis_invariance),
         cmocka_unit_test(test_metal_is_not_weyl_regression_20261202),
         cmocka_unit_test(test_sp3_semimetal_regression_20261202),
-        cmocka_unit_test(test_symmetry_tolerance), cmocka_unit_test(test_timeout),
+        cmocka_unit_test(test_symmetry_tolerance),
+        cmocka_unit_test(test_timeout),
         cmocka_unit_test(test_crystalline_classes),
     };
     return cmocka_run_group_tests(tests, NULL, NULL);
 }
-

@@ -25,11 +25,11 @@
 #include "bandsieve/source.h"
 
 /* cmocka's float comparison is single precision; this one is double. */
-#define assert_close(a, b, tol)                                                                    \
-    do {                                                                                           \
-        double a_ = (a), b_ = (b);                                                                 \
-        if (!(fabs(a_ - b_) <= (tol)))                                                             \
-            fail_msg("%s = %.12g, expected %.12g within %g", #a, a_, b_, (double)(tol));           \
+#define assert_close(a, b, tol)                                                                              \
+    do {                                                                                                     \
+        double a_ = (a), b_ = (b);                                                                           \
+        if (!(fabs(a_ - b_) <= (tol)))                                                                       \
+            fail_msg("%s = %.12g, expected %.12g within %g", #a, a_, b_, (double)(tol));                     \
     } while (0)
 
 #define REF_SCRIPT BS_TEST_DATA "/../topology/gaps_ref.py"
@@ -170,7 +170,8 @@ static int numpy_reference(const char *path, int nocc, int dim, double ref[12])
     FILE *p = popen(cmd, "r");
     if (!p) return -1;
     int n = 0;
-    for (int i = 0; i < 12; i++) n += fscanf(p, "%lf", &ref[i]) == 1;
+    for (int i = 0; i < 12; i++)
+        n += fscanf(p, "%lf", &ref[i]) == 1;
     int st = pclose(p);
     return n == 12 && st == 0 ? 0 : -1;
 }
@@ -224,7 +225,8 @@ static tb_model *sp3_model(const char *variant, char *dir, size_t len, double re
     FILE *p = popen(cmd, "r");
     assert_non_null(p);
     int n = 0;
-    for (int i = 0; i < 12; i++) n += fscanf(p, "%lf", &ref[i]) == 1;
+    for (int i = 0; i < 12; i++)
+        n += fscanf(p, "%lf", &ref[i]) == 1;
     assert_int_equal(pclose(p), 0);
     assert_int_equal(n, 12);
     snprintf(card, sizeof card, "%s/sp3_%s.json", dir, variant);
@@ -271,8 +273,8 @@ static void test_sp3_edges_at_general_k(void **state)
         run_gaps(m, &o, &g);
         printf("  numpy: direct %.9f vbm %.9f cbm %.9f indirect %.9f\n", ref[0], ref[1], ref[2],
                ref[2] - ref[1]);
-        printf("  ours:  direct %.9f vbm %.9f cbm %.9f resolution %.2g eV, %s\n", g.gap_direct_ev,
-               g.vbm_ev, g.cbm_ev, g.resolution_ev, g.converged ? "converged" : "not converged");
+        printf("  ours:  direct %.9f vbm %.9f cbm %.9f resolution %.2g eV, %s\n", g.gap_direct_ev, g.vbm_ev,
+               g.cbm_ev, g.resolution_ev, g.converged ? "converged" : "not converged");
         assert_close(g.gap_direct_ev, ref[0], 1e-5);
         assert_close(g.vbm_ev, ref[1], 1e-5);
         assert_close(g.cbm_ev, ref[2], 1e-5);
@@ -289,8 +291,9 @@ static void test_sp3_edges_at_general_k(void **state)
 /* The convergence check is honest: on the sp3 semimetal with coarse meshes (2 to 8 points per
  * direction) and at most two levels, every gap is either within the stated resolution of the
  * numpy/scipy reference or the search says it did not converge (below 4 points it never claims
- * to: there a 2- or 3-point mesh and its displacements all missed a 60 meV deep basin); with the default three levels the
- * indirect gap's sign (the insulator/semimetal call) is right or flagged as unsure (gaps_unsure). */
+ * to: there a 2- or 3-point mesh and its displacements all missed a 60 meV deep basin); with the default
+ * three levels the indirect gap's sign (the insulator/semimetal call) is right or flagged as unsure
+ * (gaps_unsure). */
 static void test_sp3_resolution_is_honest(void **state)
 {
     (void)state;
@@ -306,7 +309,8 @@ static void test_sp3_resolution_is_honest(void **state)
             o.levels = levels;
             gaps_result g;
             run_gaps(m, &o, &g);
-            double off = fmax(fabs(g.gap_direct_ev - ref[0]), fmax(fabs(g.vbm_ev - ref[1]), fabs(g.cbm_ev - ref[2])));
+            double off =
+                fmax(fabs(g.gap_direct_ev - ref[0]), fmax(fabs(g.vbm_ev - ref[1]), fabs(g.cbm_ev - ref[2])));
             printf("    mesh %d levels %d: off by %.2g eV, resolution %.2g eV, %s\n", mesh, levels, off,
                    g.resolution_ev, g.converged ? "converged" : "not converged");
             assert_true(off <= g.resolution_ev + 1e-6 || !g.converged);
@@ -338,7 +342,8 @@ static void test_band_pair_both_solver_paths(void **state)
         assert_int_equal(eig_create(n, &ws, &err), 0);
         double k[3 * 37], lo[37], hi[37];
         uint64_t s = 99;
-        for (int i = 0; i < 3 * 37; i++) k[i] = lcg(&s) * 3.0;
+        for (int i = 0; i < 3 * 37; i++)
+            k[i] = lcg(&s) * 3.0;
         assert_int_equal(bp_bands(e, 37, k, lo, hi, &err), 0); /* 37 > batch 16: three batches */
         assert_int_equal(bp_count(e), 37);
         double complex *H = malloc((size_t)n * n * sizeof *H);

@@ -21,11 +21,11 @@
 #include "bandsieve/nodes.h"
 
 /* cmocka's float comparison is single precision; this one is double. */
-#define assert_close(a, b, tol)                                                                    \
-    do {                                                                                           \
-        double a_ = (a), b_ = (b);                                                                 \
-        if (!(fabs(a_ - b_) <= (tol)))                                                             \
-            fail_msg("%s = %.12g, expected %.12g within %g", #a, a_, b_, (double)(tol));           \
+#define assert_close(a, b, tol)                                                                              \
+    do {                                                                                                     \
+        double a_ = (a), b_ = (b);                                                                           \
+        if (!(fabs(a_ - b_) <= (tol)))                                                                       \
+            fail_msg("%s = %.12g, expected %.12g within %g", #a, a_, b_, (double)(tol));                     \
     } while (0)
 
 typedef struct run {
@@ -55,8 +55,9 @@ static void run_spec(const char *spec, int mesh, run *x)
     rc = gaps_find(x->m, x->hk, &go, &x->g, &err);
     if (rc != 0) fail_msg("gaps_find(%s): %s", spec, err.msg);
     printf("  %-26s nodes %2d net %+d line %d (%d points) min gap %.2e eV; %lld k in %.3f s "
-           "(gaps %.3f s)\n", spec, x->r.nnodes, x->r.net_chirality, x->r.nodal_line,
-           x->r.nodal_points, x->r.min_gap_ev, x->r.nk_evaluated, x->r.seconds, x->g.seconds);
+           "(gaps %.3f s)\n",
+           spec, x->r.nnodes, x->r.net_chirality, x->r.nodal_line, x->r.nodal_points, x->r.min_gap_ev,
+           x->r.nk_evaluated, x->r.seconds, x->g.seconds);
 }
 
 static void run_free(run *x)
@@ -101,7 +102,8 @@ static void test_weyl_nodes_analytic(void **state)
         for (int i = 0; i < 2; i++) {
             assert_true(x.r.nodes[i].gap_ev < BS_GAP_CLOSED_EV);
             assert_close(x.r.nodes[i].energy_ev, 0.0, 1e-9); /* H has no identity part: E = 0 */
-            for (int a = 0; a < 3; a++) assert_true(x.r.nodes[i].k[a] >= 0 && x.r.nodes[i].k[a] < 1);
+            for (int a = 0; a < 3; a++)
+                assert_true(x.r.nodes[i].k[a] >= 0 && x.r.nodes[i].k[a] < 1);
         }
         assert_false(nodes_check_time_reversal(&x.r, 3, 1e-5));
         /* The gap search alone reaches the node too: the touching is a cone from a mesh point. */
@@ -136,7 +138,8 @@ static void test_nodal_line_loop(void **state)
             assert_close(cos(kx) + cos(ky), mval[c] - 1.0, 1e-5);
             quadrant[(sin(kx) > 0) + 2 * (sin(ky) > 0)] = 1;
         }
-        for (int q = 0; q < 4; q++) assert_true(quadrant[q]);
+        for (int q = 0; q < 4; q++)
+            assert_true(quadrant[q]);
         if (c == 0) {
             assert_true(x.r.nodal_extent > 0.48);
             assert_true(x.r.nodal_extent <= 0.5 + 1e-9);
@@ -299,8 +302,10 @@ static void test_no_nodes_without_touching(void **state)
 static void test_time_reversal_check(void **state)
 {
     (void)state;
-    res_node q[4] = {{{0.1, 0.2, 0.3}, 1, 0, 0}, {{0.9, 0.8, 0.7}, 1, 0, 0},
-                      {{0.4, 0.1, 0.2}, -1, 0, 0}, {{0.6, 0.9, 0.8}, -1, 0, 0}};
+    res_node q[4] = {{{0.1, 0.2, 0.3}, 1, 0, 0},
+                     {{0.9, 0.8, 0.7}, 1, 0, 0},
+                     {{0.4, 0.1, 0.2}, -1, 0, 0},
+                     {{0.6, 0.9, 0.8}, -1, 0, 0}};
     nodes_result r;
     nodes_result_init(&r);
     r.nodes = q;

@@ -41,8 +41,8 @@ static void run(const tb_model *m, const diag_opts *o, res_diag *r)
 typedef struct noisy_case {
     const char *spec;
     int nseed;
-    int first_level;        /* index into levels[] */
-    int magnetic;           /* the class must survive every level */
+    int first_level; /* index into levels[] */
+    int magnetic;    /* the class must survive every level */
 } noisy_case;
 
 static const double levels[] = {1e-5, 1e-4, 1e-3, 1e-2};
@@ -89,15 +89,18 @@ static void check_case(const noisy_case *nc)
             run(m, NULL, &r);
             int same = r.cls == r0.cls;
             if (nc->magnetic && !same)
-                fail_msg("%s, noise %g seed %d: magnetic model became '%s' (%s)", nc->spec, levels[l], seed, res_class_name(r.cls), r.reason);
+                fail_msg("%s, noise %g seed %d: magnetic model became '%s' (%s)", nc->spec, levels[l], seed,
+                         res_class_name(r.cls), r.reason);
             if (nb < r0.gap_direct_ev / 4) {
                 if (!same || !same_z2(&r, &r0) || abs(r.chern) != abs(r0.chern))
-                    fail_msg("%s, noise %g (bound %.3g eV < gap/4 = %.3g) seed %d: '%s' z2 %d chern %d, clean '%s' z2 %d "
-                             "chern %d (%s)", nc->spec, levels[l], nb, r0.gap_direct_ev / 4, seed, res_class_name(r.cls), r.z2[0], r.chern,
-                             res_class_name(r0.cls), r0.z2[0], r0.chern, r.reason);
+                    fail_msg("%s, noise %g (bound %.3g eV < gap/4 = %.3g) seed %d: '%s' z2 %d chern %d, "
+                             "clean '%s' z2 %d "
+                             "chern %d (%s)",
+                             nc->spec, levels[l], nb, r0.gap_direct_ev / 4, seed, res_class_name(r.cls),
+                             r.z2[0], r.chern, res_class_name(r0.cls), r0.z2[0], r0.chern, r.reason);
             } else if (!same && r.confidence >= 0.8) {
-                fail_msg("%s, noise %g seed %d: confident (%.2f) '%s', clean '%s' (%s)", nc->spec, levels[l], seed,
-                         r.confidence, res_class_name(r.cls), res_class_name(r0.cls), r.reason);
+                fail_msg("%s, noise %g seed %d: confident (%.2f) '%s', clean '%s' (%s)", nc->spec, levels[l],
+                         seed, r.confidence, res_class_name(r.cls), res_class_name(r0.cls), r.reason);
             }
             res_clear(&r);
             tb_model_free(m);
@@ -109,7 +112,8 @@ static void check_case(const noisy_case *nc)
 static void test_every_model_noisy(void **state)
 {
     (void)state;
-    for (size_t i = 0; i < sizeof cases / sizeof cases[0]; i++) check_case(&cases[i]);
+    for (size_t i = 0; i < sizeof cases / sizeof cases[0]; i++)
+        check_case(&cases[i]);
 }
 
 /* Kane-Mele (lambda_R = 0, lambda_v = 0.1) with an exchange field m s_z of 0.3 x its gap: time
@@ -125,11 +129,14 @@ static void test_exchange_not_z2(void **state)
     double m_ev = 0.3 * r0.gap_direct_ev;
     for (int noisy = 0; noisy < 2; noisy++) {
         tb_model *m = NULL;
-        if (noisy) assert_int_equal(bs_noise_model(clean, 1e-4, 3, &m, NULL), 0);
-        else assert_int_equal(tb_model_copy(clean, &m, &err), 0);
+        if (noisy)
+            assert_int_equal(bs_noise_model(clean, 1e-4, 3, &m, NULL), 0);
+        else
+            assert_int_equal(tb_model_copy(clean, &m, &err), 0);
         bs_noise_exchange(m, m_ev);
         run(m, NULL, &r);
-        if (strstr(res_class_name(r.cls), "topological insulator")) fail_msg("exchange %.3g eV: called '%s' (%s)", m_ev, res_class_name(r.cls), r.reason);
+        if (strstr(res_class_name(r.cls), "topological insulator"))
+            fail_msg("exchange %.3g eV: called '%s' (%s)", m_ev, res_class_name(r.cls), r.reason);
         assert_int_equal(r.tr_verdict, RES_SYM_BROKEN);
         assert_int_equal(r.time_reversal, 0);
         assert_true(fabs(r.tr_break_lower_ev - 2 * m_ev) < 2e-3);
@@ -197,9 +204,11 @@ static void test_confidence_falls_with_margin(void **state)
         run(m, NULL, &r);
         double margin = r.restored ? r.margin : (strstr(res_class_name(r.cls), "insulator") ? INFINITY : 0);
         if (margin < SYMFIT_MARGIN_SAFE && r.confidence >= 0.8)
-            fail_msg("noise %g: margin %.3g with confidence %.2f ('%s')", lv, margin, r.confidence, res_class_name(r.cls));
+            fail_msg("noise %g: margin %.3g with confidence %.2f ('%s')", lv, margin, r.confidence,
+                     res_class_name(r.cls));
         if (r.confidence > prev_conf + 1e-12)
-            fail_msg("noise %g: confidence rose to %.3f from %.3f (margin %.3g)", lv, r.confidence, prev_conf, margin);
+            fail_msg("noise %g: confidence rose to %.3f from %.3f (margin %.3g)", lv, r.confidence, prev_conf,
+                     margin);
         prev_conf = r.confidence;
         res_clear(&r);
         tb_model_free(m);
@@ -214,7 +223,7 @@ static tb_model *as_spinless(const tb_model *m)
     tb_model *c = NULL;
     bs_err err;
     assert_int_equal(tb_model_copy(m, &c, &err), 0);
-    double (*pos)[3] = malloc((size_t)m->norb * sizeof *pos);
+    double(*pos)[3] = malloc((size_t)m->norb * sizeof *pos);
     int *l = malloc((size_t)m->norb * sizeof *l);
     for (int i = 0; i < m->norb; i++) {
         memcpy(pos[i], m->orb_pos[tb_state_orbital(m, i)], sizeof pos[i]);
@@ -241,7 +250,8 @@ static void expect_layout_refused(tb_model *m, const char *looks)
     bs_err_clear(&err);
     int rc = diag_run(m, &o, &r, &err);
     if (rc != BS_EINVAL || !strstr(err.msg, looks))
-        fail_msg("%s: rc %d, message '%s' (want '%s'); class '%s'", m->id, rc, err.msg, looks, res_class_name(r.cls));
+        fail_msg("%s: rc %d, message '%s' (want '%s'); class '%s'", m->id, rc, err.msg, looks,
+                 res_class_name(r.cls));
     res_clear(&r);
 }
 
@@ -254,8 +264,10 @@ static void test_wrong_spin_layout(void **state)
     bs_err err;
     for (int noisy = 0; noisy < 2; noisy++) {
         tb_model *km = bs_test_build("kane_mele:layout=1"), *m = NULL;
-        if (noisy) assert_int_equal(bs_noise_model(km, 1e-3, 2, &m, NULL), 0);
-        else assert_int_equal(tb_model_copy(km, &m, &err), 0);
+        if (noisy)
+            assert_int_equal(bs_noise_model(km, 1e-3, 2, &m, NULL), 0);
+        else
+            assert_int_equal(tb_model_copy(km, &m, &err), 0);
         m->spin_layout = TB_SPIN_BLOCKS;
         expect_layout_refused(m, "looks interleaved");
         tb_model_free(m);
@@ -306,8 +318,9 @@ static void test_demo_noisy_entries(void **state)
         run(m, NULL, &r);
         int same = r.cls == r0.cls;
         if (nb < r0.gap_direct_ev / 4 ? !same : (!same && r.confidence >= 0.8))
-            fail_msg("demo %d (%s, noise %.1e, bound %.3g, clean gap %.3g): '%s' (%.2f), clean '%s' (%s)", i + 1, spec,
-                     rel, nb, r0.gap_direct_ev, res_class_name(r.cls), r.confidence, res_class_name(r0.cls), r.reason);
+            fail_msg("demo %d (%s, noise %.1e, bound %.3g, clean gap %.3g): '%s' (%.2f), clean '%s' (%s)",
+                     i + 1, spec, rel, nb, r0.gap_direct_ev, res_class_name(r.cls), r.confidence,
+                     res_class_name(r0.cls), r.reason);
         res_clear(&r0);
         res_clear(&r);
         tb_model_free(again);
@@ -320,9 +333,9 @@ static void test_demo_noisy_entries(void **state)
 int main(void)
 {
     const struct CMUnitTest tests[] = {
-        cmocka_unit_test(test_every_model_noisy),         cmocka_unit_test(test_exchange_not_z2),
-        cmocka_unit_test(test_magnetism_statement),       cmocka_unit_test(test_confidence_falls_with_margin),
-        cmocka_unit_test(test_wrong_spin_layout),         cmocka_unit_test(test_demo_noisy_entries),
+        cmocka_unit_test(test_every_model_noisy),   cmocka_unit_test(test_exchange_not_z2),
+        cmocka_unit_test(test_magnetism_statement), cmocka_unit_test(test_confidence_falls_with_margin),
+        cmocka_unit_test(test_wrong_spin_layout),   cmocka_unit_test(test_demo_noisy_entries),
     };
     return cmocka_run_group_tests(tests, NULL, NULL);
 }

@@ -51,8 +51,8 @@ static void expect_z2(const char *spec, int status, const char *z2, const char *
     char got[16];
     par_format(&r, got, sizeof got);
     if (r.status != status || (z2 && strcmp(got, z2) != 0))
-        fail_msg("%s (%s): status %d \"%s\" (%s), expected %d \"%s\"", spec, source, r.status, got,
-                 r.reason, status, z2 ? z2 : "");
+        fail_msg("%s (%s): status %d \"%s\" (%s), expected %d \"%s\"", spec, source, r.status, got, r.reason,
+                 status, z2 ? z2 : "");
     if (status == PAR_DONE) {
         /* Exact symmetries: parities are +-1 to round-off (~1e-15); 1e-10 is generous. */
         assert_true(r.max_dev < 1e-10);
@@ -199,10 +199,13 @@ static tb_model *scramble(const tb_model *m, uint64_t seed, int layout)
     int ns = m->nspatial;
     int *perm = malloc((size_t)ns * sizeof *perm);
     double *phi = malloc((size_t)ns * sizeof *phi);
-    for (int i = 0; i < ns; i++) perm[i] = i;
+    for (int i = 0; i < ns; i++)
+        perm[i] = i;
     for (int i = ns - 1; i > 0; i--) {
         int j = (int)(rng_next(&x) % (uint64_t)(i + 1));
-        int t = perm[i]; perm[i] = perm[j]; perm[j] = t;
+        int t = perm[i];
+        perm[i] = perm[j];
+        perm[j] = t;
     }
     bs_err err;
     bs_err_clear(&err);
@@ -231,8 +234,12 @@ static tb_model *scramble(const tb_model *m, uint64_t seed, int layout)
 static void test_basis_invariance(void **state)
 {
     (void)state;
-    const char *specs[] = {"kane_mele:lambda_v=0,lambda_R=0", "bhz:M=1,g=0.3", "bhz:M=-1",
-                           "fkm:dt=0.4", "fkm:dt=-0.4", "atomic:dim=3"};
+    const char *specs[] = {"kane_mele:lambda_v=0,lambda_R=0",
+                           "bhz:M=1,g=0.3",
+                           "bhz:M=-1",
+                           "fkm:dt=0.4",
+                           "fkm:dt=-0.4",
+                           "atomic:dim=3"};
     for (size_t i = 0; i < sizeof specs / sizeof specs[0]; i++) {
         tb_model *m = bs_test_build(specs[i]);
         par_result ref;
@@ -243,9 +250,11 @@ static void test_basis_invariance(void **state)
             par_result r;
             parity_of(q, &r);
             if (r.status != PAR_DONE) fail_msg("%s scrambled %d: %s", specs[i], trial, r.reason);
-            for (int j = 0; j < 4; j++) assert_int_equal(r.z2[j], ref.z2[j]);
+            for (int j = 0; j < 4; j++)
+                assert_int_equal(r.z2[j], ref.z2[j]);
             int common = r.delta[0] * ref.delta[0];
-            for (int t = 0; t < r.ntrim; t++) assert_int_equal(r.delta[t] * ref.delta[t], common);
+            for (int t = 0; t < r.ntrim; t++)
+                assert_int_equal(r.delta[t] * ref.delta[t], common);
             tb_model_free(q);
         }
         tb_model_free(m);
@@ -258,7 +267,8 @@ static tb_model *direct_sum(const tb_model *a, const tb_model *b)
 {
     int na = a->norb, nb = b->norb, n = na + nb;
     int nR = a->nR;
-    for (int r = 0; r < b->nR; r++) nR += tb_model_find_R(a, b->R[r]) < 0;
+    for (int r = 0; r < b->nR; r++)
+        nR += tb_model_find_R(a, b->R[r]) < 0;
     tb_model *m = NULL;
     bs_err err;
     bs_err_clear(&err);
@@ -275,7 +285,8 @@ static tb_model *direct_sum(const tb_model *a, const tb_model *b)
         memcpy(m->orb_pos[a->nspatial + o], b->orb_pos[o], sizeof m->orb_pos[o]);
         m->orb_l[a->nspatial + o] = b->orb_l[o];
     }
-    for (int r = 0; r < a->nR; r++) memcpy(m->R[r], a->R[r], sizeof m->R[r]);
+    for (int r = 0; r < a->nR; r++)
+        memcpy(m->R[r], a->R[r], sizeof m->R[r]);
     int next = a->nR;
     for (int r = 0; r < b->nR; r++)
         if (tb_model_find_R(a, b->R[r]) < 0) memcpy(m->R[next++], b->R[r], sizeof m->R[0]);
@@ -321,7 +332,8 @@ static void test_direct_sums(void **state)
                 /* Phases and the interleaved layout; no permutation, since shells of equal l on one
                  * site are paired in order of appearance (symmetry.h). */
                 double phi[8];
-                for (int o = 0; o < m->nspatial; o++) phi[o] = 0.7 + 1.3 * o * o;
+                for (int o = 0; o < m->nspatial; o++)
+                    phi[o] = 0.7 + 1.3 * o * o;
                 tb_model *t = NULL;
                 bs_err err;
                 bs_err_clear(&err);
@@ -336,7 +348,7 @@ static void test_direct_sums(void **state)
             if (r.status != PAR_DONE || strcmp(got, pairs[i][2]) != 0)
                 fail_msg("%s + %s (%d): status %d \"%s\" (%s), expected \"%s\"", pairs[i][0], pairs[i][1],
                          variant, r.status, got, r.reason, pairs[i][2]);
-            assert_true(r.max_dev < 1e-10);   /* exact symmetry: round-off only */
+            assert_true(r.max_dev < 1e-10); /* exact symmetry: round-off only */
             if (q != m) tb_model_free(q);
         }
         tb_model_free(m);

@@ -34,7 +34,8 @@ static void run_builtin(const char *spec, const char *param, double lo, double h
 static int count_label(const pp_closing *c, const char *label)
 {
     int n = 0;
-    for (int i = 0; i < c->nk; i++) n += strcmp(c->k_label[i], label) == 0;
+    for (int i = 0; i < c->nk; i++)
+        n += strcmp(c->k_label[i], label) == 0;
     return n;
 }
 
@@ -63,7 +64,8 @@ static void test_fkm_inversion(void **state)
     assert_int_equal(a->z2_status, RES_DONE);
     assert_int_equal(b->z2[0], 0);
     assert_int_equal(a->z2[0], 1);
-    for (int i = 0; i < r.ninterval; i++) assert_false(r.intervals[i].gapless);
+    for (int i = 0; i < r.ninterval; i++)
+        assert_false(r.intervals[i].gapless);
     assert_int_equal(r.ntrack, 0);
     pp_result_clear(&r);
 }
@@ -97,7 +99,8 @@ static void test_kane_mele_rashba(void **state)
     run_builtin("kane_mele:lambda_R=0.05", "lambda_v", 0.01, 0.6, 0, &r);
     assert_int_equal(r.nclosing, 1);
     assert_true(r.closings[0].point);
-    for (int i = 0; i < r.ninterval; i++) assert_false(r.intervals[i].gapless);
+    for (int i = 0; i < r.ninterval; i++)
+        assert_false(r.intervals[i].gapless);
     assert_int_equal(r.ninterval, 2);
     assert_false(r.intervals[0].diag.inversion);
     assert_int_equal(r.intervals[0].diag.z2[0], 1);
@@ -210,9 +213,12 @@ static void test_source_errors(void **state)
 int main(void)
 {
     const struct CMUnitTest tests[] = {
-        cmocka_unit_test(test_fkm_inversion),  cmocka_unit_test(test_kane_mele),
-        cmocka_unit_test(test_kane_mele_rashba), cmocka_unit_test(test_haldane),
-        cmocka_unit_test(test_bhz),            cmocka_unit_test(test_members),
+        cmocka_unit_test(test_fkm_inversion),
+        cmocka_unit_test(test_kane_mele),
+        cmocka_unit_test(test_kane_mele_rashba),
+        cmocka_unit_test(test_haldane),
+        cmocka_unit_test(test_bhz),
+        cmocka_unit_test(test_members),
         cmocka_unit_test(test_source_errors),
     };
     return cmocka_run_group_tests(tests, NULL, NULL);

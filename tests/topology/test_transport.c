@@ -69,10 +69,14 @@ static int plane_chern(const tb_model *m, int p)
 static void test_haldane_phase_diagram(void **state)
 {
     (void)state;
-    const char *spec[8] = {"haldane:M=0",          "haldane:phi=-0.5,M=0",
-                           "haldane:M=0.45",       "haldane:M=-0.45",
-                           "haldane:M=0.6",        "haldane:M=-0.6",
-                           "haldane:phi=0.1666666667,M=0.2", "haldane:phi=0.1666666667,M=0.35"};
+    const char *spec[8] = {"haldane:M=0",
+                           "haldane:phi=-0.5,M=0",
+                           "haldane:M=0.45",
+                           "haldane:M=-0.45",
+                           "haldane:M=0.6",
+                           "haldane:M=-0.6",
+                           "haldane:phi=0.1666666667,M=0.2",
+                           "haldane:phi=0.1666666667,M=0.35"};
     const int topological[8] = {1, 1, 1, 1, 0, 0, 1, 0};
     tr_opts o;
     tr_opts_default(&o);
@@ -140,7 +144,8 @@ static void test_fermi_scan(void **state)
     o.scan_hi_ev = 0.3;
     o.smear_ev = 0.02;
     r = run(m, &o);
-    for (int e = 0; e < 3; e++) assert_true(fabs(r.ahc[e][0] + 1) < 1e-3);
+    for (int e = 0; e < 3; e++)
+        assert_true(fabs(r.ahc[e][0] + 1) < 1e-3);
     /* A broadening eta of the order of the gap reduces |sigma| (it damps the curvature near the
      * gap minimum): common practice, no exact value. */
     o.nscan = 0;
@@ -398,7 +403,8 @@ static int write_ref_model(const tb_model *m, const char *path)
     int n = m->norb;
     fprintf(f, "%d %d %d\n", m->dim, n, m->nR);
     for (int i = 0; i < 3; i++)
-        for (int c = 0; c < 3; c++) fprintf(f, "%.17g ", m->lattice[i][c]);
+        for (int c = 0; c < 3; c++)
+            fprintf(f, "%.17g ", m->lattice[i][c]);
     fprintf(f, "\n");
     for (int s = 0; s < n; s++) {
         const double *t = m->orb_pos[tb_state_orbital(m, s)];

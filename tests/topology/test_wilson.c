@@ -41,9 +41,10 @@ static void run_z2(const tb_model *m, const wilson_opts *o, wilson_z2 *r)
     if (rc != 0) fprintf(stderr, "%s: %s\n", m->id, err.msg);
     assert_int_equal(rc, 0);
     int nstr = 0;
-    for (int i = 0; i < r->nplane; i++) nstr += r->planes[i].flow.nstring;
-    printf("  %-40s status %d z2 %d;%d%d%d  %3d strings  %6lld k  %.3f s  %s\n", m->id, r->status,
-           r->z2[0], r->z2[1], r->z2[2], r->z2[3], nstr, r->nk, now() - t0, r->reason);
+    for (int i = 0; i < r->nplane; i++)
+        nstr += r->planes[i].flow.nstring;
+    printf("  %-40s status %d z2 %d;%d%d%d  %3d strings  %6lld k  %.3f s  %s\n", m->id, r->status, r->z2[0],
+           r->z2[1], r->z2[2], r->z2[3], nstr, r->nk, now() - t0, r->reason);
     wilson_free(w);
 }
 
@@ -55,7 +56,8 @@ static void expect_z2(const char *spec, int status, const int z2[4])
     assert_int_equal(r.status, status);
     if (status == RES_DONE) {
         int n = m->dim == 2 ? 1 : 4;
-        for (int i = 0; i < n; i++) assert_int_equal(r.z2[i], z2[i]);
+        for (int i = 0; i < n; i++)
+            assert_int_equal(r.z2[i], z2[i]);
     }
     wilson_z2_clear(&r);
     tb_model_free(m);
@@ -121,11 +123,13 @@ static void test_atomic_centres(void **state)
         wilson_z2 r;
         run_z2(m, NULL, &r);
         assert_int_equal(r.status, RES_DONE);
-        for (int i = 0; i < 4; i++) assert_int_equal(r.z2[i], 0);
+        for (int i = 0; i < 4; i++)
+            assert_int_equal(r.z2[i], 0);
         for (int p = 0; p < r.nplane; p++) {
             const res_flow *f = &r.planes[p].flow;
             assert_true(f->nstring >= 11);
-            for (int j = 0; j < f->nstring * f->nband; j++) assert_true(fabs(f->wcc[j] - 0.5) < 1e-9);
+            for (int j = 0; j < f->nstring * f->nband; j++)
+                assert_true(fabs(f->wcc[j] - 0.5) < 1e-9);
         }
         wilson_z2_clear(&r);
         tb_model_free(m);
@@ -254,7 +258,8 @@ static void test_basis_invariance(void **state)
         run_z2(c, NULL, &r1);
         assert_int_equal(r0.status, RES_DONE);
         assert_int_equal(r1.status, RES_DONE);
-        for (int i = 0; i < 4; i++) assert_int_equal(r0.z2[i], r1.z2[i]);
+        for (int i = 0; i < 4; i++)
+            assert_int_equal(r0.z2[i], r1.z2[i]);
         for (int p = 0; p < r0.nplane; p++) {
             const res_flow *f0 = &r0.planes[p].flow, *f1 = &r1.planes[p].flow;
             assert_int_equal(f0->nstring, f1->nstring);
@@ -333,7 +338,8 @@ static int numpy_centres(const tb_model *m, int dir, const double k0[3], int nk,
     free(cmd);
     if (!p) return -1;
     int n = 0;
-    for (int i = 0; i < m->nocc; i++) n += fscanf(p, "%lf", &x[i]) == 1;
+    for (int i = 0; i < m->nocc; i++)
+        n += fscanf(p, "%lf", &x[i]) == 1;
     int st = pclose(p);
     unlink(path);
     return n == m->nocc && st == 0 ? 0 : -1;
