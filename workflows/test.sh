@@ -17,5 +17,7 @@ ctest --test-dir "$here/build" --output-on-failure -j2 --timeout 900
 BS_BUILD_DIR="$here/build-sanitize" bash "$here/workflows/build.sh" -DBS_SANITIZE=ON
 # Leak checking stays on for our code; UBSan findings are fatal.
 export UBSAN_OPTIONS=halt_on_error=1:print_stacktrace=1
+# Caches that system libraries (fontconfig, cairo) keep until exit are not our leaks.
+export LSAN_OPTIONS=suppressions=$here/tests/lsan.supp
 ctest --test-dir "$here/build-sanitize" --output-on-failure -j2 -L unit --timeout 900
 bash "$here/tests/scripts/cluster_build.sh"
