@@ -11,6 +11,7 @@
 #include <string.h>
 
 #include "bandsieve/crystal.h"
+#include "bandsieve/fitnoise.h"
 #include "bandsieve/hk.h"
 #include <lapacke.h>
 #include "bandsieve/realharm.h"
@@ -233,30 +234,6 @@ static void test_permuted_orbitals(void **state)
     tb_model_free(m);
 }
 
-/* Random Hermitian noise of relative size eps on every H(R), keeping H(-R) = H(R)^+ (what a
- * Wannier fit does to a symmetric Hamiltonian; common practice for these tests). */
-static void add_noise(tb_model *m, double eps, uint64_t seed)
-{
-    int n = m->norb;
-    double hmax = 0;
-    for (size_t e = 0; e < (size_t)m->nR * n * n; e++)
-        hmax = fmax(hmax, cabs(m->H[e]));
-    for (int r = 0; r < m->nR; r++) {
-        int neg[3] = {-m->R[r][0], -m->R[r][1], -m->R[r][2]};
-        int q = tb_model_find_R(m, neg);
-        if (q < r) continue;
-        for (int a = 0; a < n; a++)
-            for (int b = 0; b < n; b++) {
-                if (q == r && b < a) continue;
-                double complex z =
-                    eps * hmax * ((2 * bs_test_uniform(&seed) - 1) + I * (2 * bs_test_uniform(&seed) - 1));
-                if (q == r && a == b) z = creal(z);
-                m->H[((size_t)r * n + a) * n + b] += z * m->deg[r];
-                if (q != r || a != b) m->H[((size_t)q * n + b) * n + a] += conj(z) * m->deg[q];
-            }
-    }
-}
-
 static double max_band_shift(const tb_model *a, const tb_model *b)
 {
     int n = a->norb;
@@ -284,8 +261,7 @@ static void test_symmetrise_noisy(void **state)
     tb_model *clean = bs_test_build("fkm:dt=0.4"), *noisy = NULL;
     bs_err err;
     bs_err_clear(&err);
-    assert_int_equal(tb_model_copy(clean, &noisy, &err), 0);
-    add_noise(noisy, 1e-3, 99);
+    assert_int_equal(fitnoise_apply(clean, 1e-3, 99, &noisy, &err), 0);
     cry_info *c = detect(noisy, NULL);
     assert_int_equal(cry_nverified(c), 1); /* only the identity survives at round-off */
     int ops[48], nops = 0;
