@@ -114,6 +114,12 @@ CREATE TABLE results (
     breaking_ev     REAL,
     breaking_bound  TEXT,
     symmetry_margin REAL,
+    spacegroup      INTEGER,
+    symmetry_ops    INTEGER,
+    crystal_breaking_ev REAL,
+    z4              INTEGER,
+    mirror_chern    INTEGER,
+    mirror_chern_status TEXT,
     UNIQUE (run_id, material_id)
 );
 

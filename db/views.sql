@@ -53,7 +53,9 @@ SELECT k.material_id,
               OR (k.plane_chern IS NOT NULL AND k.plane_chern GLOB '*[1-9]*')
               OR COALESCE(k.n_weyl, 0) > 0
               OR COALESCE(k.nodal_line, 0) <> 0
-              OR k.class = 'topological crystalline insulator' THEN 1
+              OR k.class = 'topological crystalline insulator'
+              OR COALESCE(k.mirror_chern, 0) <> 0
+              OR k.z4 = 2 THEN 1
             ELSE 0 END AS nontrivial,
        k.mesh,
        k.run_id,
@@ -81,7 +83,12 @@ SELECT k.material_id,
        k.restored,
        k.breaking_ev,
        k.breaking_bound,
-       k.symmetry_margin
+       k.symmetry_margin,
+       k.spacegroup,
+       k.symmetry_ops,
+       k.z4,
+       k.mirror_chern,
+       k.mirror_chern_status
 FROM results k
 LEFT JOIN materials m ON m.material_id = k.material_id
 -- SQLite refuses outer columns in a subquery's ORDER BY, so "current content first" is two
@@ -107,7 +114,9 @@ ORDER BY k.material_id;
 -- gap (indirect gap, else direct) descending.
 CREATE VIEW candidates AS
 SELECT s.*,
-       CASE WHEN s.nontrivial = 1 AND COALESCE(s.confidence, 0) >= 0.7 THEN 'nontrivial'
+       CASE WHEN s.nontrivial = 1 AND COALESCE(s.confidence, 0) >= 0.7 AND s.z4 = 2
+                 AND s.z2 GLOB '0*' AND COALESCE(s.mirror_chern, 0) = 0 THEN 'higher-order candidate (z4 = 2)'
+            WHEN s.nontrivial = 1 AND COALESCE(s.confidence, 0) >= 0.7 THEN 'nontrivial'
             WHEN s.nontrivial = 1 THEN 'nontrivial, low confidence'
             ELSE 'low confidence' END AS why
 FROM summary s

@@ -15,7 +15,7 @@
 #include "bandsieve/result.h"
 
 /* Schema version stored in PRAGMA user_version; PRAGMA application_id is CAT_APPLICATION_ID. */
-#define CAT_SCHEMA_VERSION 3
+#define CAT_SCHEMA_VERSION 4
 #define CAT_APPLICATION_ID 0x42534376 /* "BSCv" */
 
 /* Defaults for the commit batching (cat_set_batch). */

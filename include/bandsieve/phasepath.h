@@ -81,8 +81,12 @@ typedef struct pp_closing {
                             first touching k, just before the closing, say it becomes (crystalline.h);
                             0 when no prediction could be made (degenerate bands, no symmetry found) */
     char prediction[200];
-    char kind[48];  /* "band inversion", "gap closing", "Weyl phase", "nodal line", "metal" */
-    char text[240]; /* one line: "band inversion at X (3 TRIMs) at dt = 0.0000" */
+    int predicted_kind; /* CZ_PRED_* of the prediction (crystalline.h), 0 when none */
+    int agrees;         /* 1: the path found what the symmetry predicts; 0: it found something else
+                           (the intervals on both sides lose confidence, and their reasons say so);
+                           -1: not compared (no prediction, or one that says nothing about the path) */
+    char kind[48];      /* "band inversion", "gap closing", "Weyl phase", "nodal line", "metal" */
+    char text[240];     /* one line: "band inversion at X (3 TRIMs) at dt = 0.0000" */
 } pp_closing;
 
 typedef struct pp_interval {

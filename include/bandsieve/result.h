@@ -53,10 +53,12 @@ int res_class_is_insulator(res_class c);
 int res_class_has_surface_states(res_class c);
 
 typedef struct res_node {
-    double k[3];      /* reduced coordinates, in [0,1) */
-    int chirality;    /* +1 / -1, 0 when the flux was not an integer */
-    double energy_ev; /* mean of the two touching bands */
-    double gap_ev;    /* refined direct gap at the node */
+    double k[3];        /* reduced coordinates, in [0,1) */
+    int chirality;      /* +1 / -1, 0 when the flux was not an integer */
+    double energy_ev;   /* mean of the two touching bands */
+    double gap_ev;      /* refined direct gap at the node */
+    char symmetry[240]; /* on a symmetry line or plane: its little group and the eigenvalues of the
+                           deciding operation on the two crossing bands (crystalline.h); "" else */
 } res_node;
 
 typedef struct res_flow {
@@ -228,7 +230,9 @@ typedef struct res_diag {
     int symmetry_ops;               /* crystal operations the Hamiltonian keeps (or keeps approximately,
                                        see crystal_symmetrised), the order of its point group */
     int crystal_symmetrised;        /* the kept operations were restored by averaging a noisy fit */
-    double crystal_breaking_ev;     /* largest breaking bound of an operation restored by averaging */
+    double crystal_breaking_ev;     /* 2 x the largest breaking bound of an operation restored by
+                                       averaging (the measure of breaking_ev), 0 when none was */
+    char crystal_verdicts[128];     /* the space group's operations as exact / approximate / broken */
     int z4;                         /* Z4 indicator kappa from the parities (3D), -1 when not computed */
     res_status mirror_chern_status; /* of the mirror Chern numbers (computed for Z2-trivial insulators) */
     int mirror_chern;               /* the mirror Chern number of largest magnitude over the kept mirrors */

@@ -123,6 +123,9 @@ static int bind_diag(const put_ctx *pc)
     bind_z2(pc, ":z2_parity", r->z2_parity_status, r->z2_parity);
     bind_z2(pc, ":z2_wcc", r->z2_wcc_status, r->z2_wcc);
     bind_chern(pc);
+    /* NULL when unknown: no space group found (0), no mirror Chern number computed. */
+    if (r->spacegroup > 0) bind_int(pc, ":spacegroup", r->spacegroup);
+    if (r->mirror_chern_status == RES_DONE) bind_int(pc, ":mirror_chern", r->mirror_chern);
     int nweyl = 0;
     for (int i = 0; i < r->nnodes; i++)
         nweyl += res_node_is_weyl(r, i);

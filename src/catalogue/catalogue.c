@@ -211,6 +211,15 @@ static const char MIGRATE_2_3[] = "ALTER TABLE results ADD COLUMN magnetism TEXT
                                   "ALTER TABLE results ADD COLUMN symmetry_margin REAL;"
                                   "PRAGMA user_version = 3;";
 
+/* Version 3 -> 4: the crystal-symmetry columns of results (db/schema.sql), NULL in old rows. */
+static const char MIGRATE_3_4[] = "ALTER TABLE results ADD COLUMN spacegroup INTEGER;"
+                                  "ALTER TABLE results ADD COLUMN symmetry_ops INTEGER;"
+                                  "ALTER TABLE results ADD COLUMN crystal_breaking_ev REAL;"
+                                  "ALTER TABLE results ADD COLUMN z4 INTEGER;"
+                                  "ALTER TABLE results ADD COLUMN mirror_chern INTEGER;"
+                                  "ALTER TABLE results ADD COLUMN mirror_chern_status TEXT;"
+                                  "PRAGMA user_version = 4;";
+
 /* Schema (fresh files only) and views in one immediate transaction, so two coordinators opening
  * the same new file cannot both create it. */
 static int apply_schema(cat_db *cat, bs_err *err)
@@ -233,6 +242,10 @@ static int apply_schema(cat_db *cat, bs_err *err)
         rc = cat_exec(cat, MIGRATE_2_3, err);
         if (rc != 0) bs_err_context(err, "migrating the catalogue from schema version 2 to 3: ");
     }
+    if (rc == 0 && !fresh && cat->from_version <= 3) {
+        rc = cat_exec(cat, MIGRATE_3_4, err);
+        if (rc != 0) bs_err_context(err, "migrating the catalogue from schema version 3 to 4: ");
+    }
     if (rc == 0) rc = cat_exec(cat, (const char *)cat_sql_views, err);
     if (rc == 0) return cat_exec(cat, "COMMIT", err);
     sqlite3_exec(cat->db, "ROLLBACK", NULL, NULL, NULL);
@@ -252,7 +265,8 @@ static const char *const STMT_SQL[CAT_ST_COUNT] = {
         " diag_seconds, seconds, rank, finished, ahc_xy, ahc_yz, ahc_zx, ahc_units, shc_xy, shc_units,"
         " transport_fermi_ev, diagnosis, content, magnetism, tr_verdict, inv_verdict, tr_breaking_ev, "
         "inv_breaking_ev,"
-        " symmetrised, restored, breaking_ev, breaking_bound, symmetry_margin) VALUES ("
+        " symmetrised, restored, breaking_ev, breaking_bound, symmetry_margin, spacegroup, symmetry_ops,"
+        " crystal_breaking_ev, z4, mirror_chern, mirror_chern_status) VALUES ("
         " :run_id, :material_id, :status, :message, :class, :confidence, :reason,"
         " :gap_direct_ev, :gap_indirect_ev, :k_gap_direct, :time_reversal, :inversion, :z2, :z2_parity, "
         ":z2_wcc,"
@@ -265,7 +279,8 @@ static const char *const STMT_SQL[CAT_ST_COUNT] = {
          * before handing it out (pl coord_setup), so the current one is the one computed. */
         " (SELECT content FROM materials WHERE material_id = :material_id),"
         " :magnetism, :tr_verdict, :inv_verdict, :tr_breaking_ev, :inv_breaking_ev,"
-        " :symmetrised, :restored, :breaking_ev, :breaking_bound, :symmetry_margin)",
+        " :symmetrised, :restored, :breaking_ev, :breaking_bound, :symmetry_margin, :spacegroup,"
+        " :symmetry_ops, :crystal_breaking_ev, :z4, :mirror_chern, :mirror_chern_status)",
     [CAT_ST_EXISTS] = "SELECT 1 FROM results WHERE run_id = ? AND material_id = ?",
     [CAT_ST_DEL_RESULT] = "DELETE FROM results WHERE run_id = ? AND material_id = ?",
     [CAT_ST_NODE] = "INSERT INTO nodes (run_id, material_id, node, k1, k2, k3, chirality, energy_ev, gap_ev)"

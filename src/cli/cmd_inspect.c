@@ -126,7 +126,8 @@ static void print_report(const res_diag *r)
         printf("  crystal symmetry      sites in space group %d, %d operations kept%s\n", r->spacegroup,
                r->symmetry_ops, r->crystal_symmetrised ? " (restored by averaging a noisy fit)" : "");
     if (r->crystal_symmetrised)
-        printf("  crystal breaking      <= %.3g eV (bound)\n", r->crystal_breaking_ev);
+        printf("  crystal breaking      <= %.3g eV (bound, 2 max ||gH - H||)\n", r->crystal_breaking_ev);
+    if (r->crystal_verdicts[0]) printf("  operations            %s\n", r->crystal_verdicts);
     if (r->gap_symmetry[0]) printf("  at the gap point      %s\n", r->gap_symmetry);
     if (r->z4 >= 0) printf("  Z4 indicator          %d\n", r->z4);
     if (r->mirror_chern_status != RES_NA)
@@ -146,9 +147,11 @@ static void print_report(const res_diag *r)
                    r->net_chirality, r->nnodes - nweyl);
         else
             printf("  2D gap closings       %d\n", r->nnodes);
-        for (int i = 0; i < r->nnodes; i++)
+        for (int i = 0; i < r->nnodes; i++) {
             printf("      k = (%+.6f, %+.6f, %+.6f)  chirality %+d  E = %.4f eV\n", r->nodes[i].k[0],
                    r->nodes[i].k[1], r->nodes[i].k[2], r->nodes[i].chirality, r->nodes[i].energy_ev);
+            if (r->nodes[i].symmetry[0]) printf("          %s\n", r->nodes[i].symmetry);
+        }
     }
     if (r->has_transport) print_transport(&r->transport);
     if (r->has_surface) print_surface(&r->surface);

@@ -153,6 +153,10 @@ cJSON *path_to_json(const pp_result *r, const char *source, const char *unit, in
             cJSON_AddStringToObject(o, "symmetry_prediction", c->prediction);
         else
             cJSON_AddNullToObject(o, "symmetry_prediction");
+        if (c->agrees >= 0)
+            cJSON_AddBoolToObject(o, "symmetry_agrees", c->agrees);
+        else
+            cJSON_AddNullToObject(o, "symmetry_agrees");
         if (c->parity_checked) {
             cJSON_AddBoolToObject(o, "parity_exchange", c->parity_exchange);
             cJSON *tc = cJSON_AddArrayToObject(o, "trims_parity_changed");
@@ -251,7 +255,11 @@ void path_print(const pp_result *r, const char *source, const char *unit, int me
             printf("      k = (%.5f, %.5f, %.5f) %s%s\n", c->k[q][0], c->k[q][1], c->k[q][2],
                    c->at_trim[q] ? "TRIM " : "",
                    c->k_label[q][0] == '(' && !c->at_trim[q] ? "" : c->k_label[q]);
-        if (c->predicted) printf("      symmetry prediction: %s\n", c->prediction);
+        if (c->predicted)
+            printf("      symmetry prediction: %s%s\n", c->prediction,
+                   c->agrees == 1   ? " (found)"
+                   : c->agrees == 0 ? " (NOT what the path found: confidence lowered on both sides)"
+                                    : "");
         if (c->parity_checked)
             printf("      parity exchange at the closing TRIMs: %s\n", c->parity_exchange ? "yes" : "no");
     }

@@ -108,6 +108,7 @@ static int w_nodes(cJSON *o, const res_diag *r, int f)
             !cJSON_AddNumberToObject(n, "energy_eV", nd->energy_ev) ||
             !cJSON_AddNumberToObject(n, "gap_eV", nd->gap_ev))
             return -1;
+        if (nd->symmetry[0] && !cJSON_AddStringToObject(n, "symmetry", nd->symmetry)) return -1;
     }
     return 0;
 }
@@ -417,16 +418,20 @@ static int r_nodes(const cJSON *o, res_diag *r, bs_err *err)
     bs_err inner;
     bs_err_clear(&inner);
     for (const cJSON *x = w ? w->child : NULL; x; x = x->next) {
-        res_node n = {{0, 0, 0}, 0, 0, 0};
+        res_node n = {{0, 0, 0}, 0, 0, 0, ""};
         if (!cJSON_IsObject(x) || json_vec(cJSON_GetObjectItemCaseSensitive(x, "k"), 3, n.k) != 0 ||
             read_int(x, "chirality", &n.chirality, &inner) ||
             read_num(x, "energy_eV", &n.energy_ev, &inner) || read_num(x, "gap_eV", &n.gap_ev, &inner))
             return key_fail(err, "weyl_nodes", expected);
+        const cJSON *sym = cJSON_GetObjectItemCaseSensitive(x, "symmetry");
+        if (sym && !cJSON_IsString(sym))
+            return key_fail(err, "weyl_nodes", "a node's \"symmetry\" as a string");
+        if (sym) snprintf(n.symmetry, sizeof n.symmetry, "%s", sym->valuestring);
         zero_weyl |= n.chirality == 0;
         add_node(r, &n, cap);
     }
     for (const cJSON *x = g ? g->child : NULL; x; x = x->next) {
-        res_node n = {{0, 0, 0}, 0, 0, 0};
+        res_node n = {{0, 0, 0}, 0, 0, 0, ""};
         if (json_vec(x, 3, n.k) != 0) return key_fail(err, "gap_closings", "a list of [3 numbers]");
         add_node(r, &n, cap);
     }
@@ -697,12 +702,13 @@ static const key_row KEYS[] = {
     {"nodal_points", KEY_INT, AT(nodal_points), NULL, NULL, NULL},
     {"nodal_extent", KEY_NUM, AT(nodal_extent), NULL, NULL, NULL},
     {"spacegroup", KEY_INT, AT(spacegroup), NULL, NULL, NULL},
-    {"symmetry_ops", KEY_INT, AT(symmetry_ops), NULL, NULL, NULL},
+    {"symmetry_ops", KEY_INT, AT(symmetry_ops), "symmetry_ops", NULL, NULL},
     {"crystal_symmetrised", KEY_BOOL, AT(crystal_symmetrised), NULL, NULL, NULL},
-    {"crystal_breaking_eV", KEY_NUM, AT(crystal_breaking_ev), NULL, NULL, NULL},
-    {"z4", KEY_INT_OPT, AT(z4), NULL, NULL, NULL},
+    {"crystal_breaking_eV", KEY_NUM, AT(crystal_breaking_ev), "crystal_breaking_ev", NULL, NULL},
+    {"crystal_verdicts", KEY_STR_NONEMPTY, AT(crystal_verdicts), NULL, NULL, NULL},
+    {"z4", KEY_INT_OPT, AT(z4), "z4", NULL, NULL},
     {"mirror_chern", KEY_INT, AT(mirror_chern), NULL, NULL, NULL},
-    {"mirror_chern_status", KEY_STATUS, AT(mirror_chern_status), NULL, NULL, NULL},
+    {"mirror_chern_status", KEY_STATUS, AT(mirror_chern_status), "mirror_chern_status", NULL, NULL},
     {"gap_point_symmetry", KEY_STR_NONEMPTY, AT(gap_symmetry), NULL, NULL, NULL},
     {"mesh", KEY_INT, AT(mesh), "mesh", NULL, NULL},
     {"seconds", KEY_NUM, AT(seconds), "diag_seconds", NULL, NULL},

@@ -755,22 +755,27 @@ static void classify_insulator(res_diag *r, int kramers, const sym_call *sc)
 }
 
 /* Crystal symmetry (crystal.h): the space group of the sites and the operations H keeps. On a
- * noisy fit, operations whose breaking bound is below a quarter of the direct gap (so that the
- * averaged Hamiltonian is connected to H without closing the gap: Weyl's inequality) and that close
- * into a group with the kept ones are restored by averaging over that group. For a Z2-trivial
- * insulator with Kramers pairs, the mirror Chern numbers of the kept mirrors follow
- * (crystalline.h): a nonzero one makes it a topological crystalline insulator. Failures of this
- * optional evidence (a structure spglib cannot read) leave the fields empty, not the result. */
+ * noisy fit each operation g of the group is, as time reversal and inversion are (symfit.h),
+ * exact (verified to round-off), approximate or broken. Approximate: its relative residual is that
+ * of noise (below CRYSTAL_APPROX_RESIDUAL) and twice its breaking bound b_g = sum_R ||gH - H||_F,
+ * which bounds max_k ||g H(k) g^-1 - H(k)||, is below the direct gap. The average over a group G of
+ * such operations then differs from H by ||H_s - H|| <= max_g b_g, so 2 max_g b_g (the recorded
+ * crystal_breaking_eV, the same measure as breaking_eV) below the direct gap joins H to H_s without
+ * closing the gap (Weyl's inequality): the indices of H_s belong to H. The approximate operations
+ * are restored only when they close into a group with the exact ones; the classes built on them
+ * (mirror Chern numbers) take the margin's confidence factor. For a Z2-trivial insulator with
+ * Kramers pairs, the mirror Chern numbers of the kept mirrors follow (crystalline.h): a nonzero one
+ * makes it a topological crystalline insulator. Failures of this optional evidence (a structure
+ * spglib cannot read) leave the fields empty, not the result. */
 enum { CRYSTAL_MIRROR_MESH = 16 };
-#define CRYSTAL_APPROX_RESIDUAL     0.05 /* relative residual of an operation a fit breaks only by noise */
-#define CRYSTAL_APPROX_GAP_FRACTION 0.25
+#define CRYSTAL_APPROX_RESIDUAL 0.05 /* relative residual of an operation a fit breaks only by noise */
 
 static int restore_approximate(const tb_model *m, cry_info *ci, double gap_ev, res_diag *r,
                                tb_model **sym_out, cry_info **ci_out, bs_err *err)
 {
     *sym_out = NULL;
     *ci_out = NULL;
-    int n = cry_nops(ci), nuse = 0, napprox = 0;
+    int n = cry_nops(ci), nuse = 0, napprox = 0, nexact = 0, nbroken = 0;
     int *use = malloc((size_t)n * sizeof *use);
     if (!use) return bs_fail(err, BS_ENOMEM, "out of memory (crystal symmetry)");
     double worst = 0.0;
@@ -779,25 +784,32 @@ static int restore_approximate(const tb_model *m, cry_info *ci, double gap_ev, r
         const cry_op *op = cry_get_op(ci, i);
         if (op->verified) {
             use[nuse++] = i;
+            nexact++;
             continue;
         }
-        if (op->residual < 0 || op->residual > CRYSTAL_APPROX_RESIDUAL) continue;
-        double bound = 0.0;
-        rc = cry_breaking_ev(m, ci, i, &bound, err);
-        if (rc == 0 && bound < CRYSTAL_APPROX_GAP_FRACTION * gap_ev) {
+        double bound = INFINITY;
+        if (op->residual >= 0 && op->residual <= CRYSTAL_APPROX_RESIDUAL)
+            rc = cry_breaking_ev(m, ci, i, &bound, err);
+        if (rc == 0 && 2.0 * bound < gap_ev) {
             use[nuse++] = i;
             napprox++;
             worst = fmax(worst, bound);
+        } else {
+            nbroken++;
         }
     }
-    if (rc == 0 && napprox > 0 && cry_is_group(ci, use, nuse)) {
+    int group = rc == 0 && napprox > 0 && cry_is_group(ci, use, nuse);
+    snprintf(r->crystal_verdicts, sizeof r->crystal_verdicts, "%d exact, %d approximate%s, %d broken", nexact,
+             napprox, napprox > 0 && !group ? " (not a group with the exact ones: not restored)" : "",
+             nbroken);
+    if (group) {
         rc = cry_symmetrise(m, ci, use, nuse, sym_out, err);
         cry_opts o;
         cry_opts_default(&o);
         if (rc == 0) rc = cry_detect(*sym_out, &o, ci_out, err);
         if (rc == 0) {
             r->crystal_symmetrised = 1;
-            r->crystal_breaking_ev = worst;
+            r->crystal_breaking_ev = 2.0 * worst;
         }
     }
     free(use);
@@ -820,6 +832,8 @@ static int conjugate_mirrors(const cry_info *ci, const cry_op *a, const cry_op *
     }
     return 0;
 }
+
+static void append_reason(res_diag *r, const char *fmt, ...) __attribute__((format(printf, 2, 3)));
 
 static int mirror_cherns(const tb_model *m, const cry_info *ci, res_diag *r, bs_err *err)
 {
@@ -862,10 +876,16 @@ static int mirror_cherns(const tb_model *m, const cry_info *ci, res_diag *r, bs_
     r->mirror_chern_status = nambiguous ? RES_AMBIGUOUS : RES_DONE;
     if (best != 0) {
         double conf = r->confidence * (nambiguous ? 0.8 : 1.0);
+        if (r->crystal_symmetrised && r->crystal_breaking_ev > 0)
+            conf *= symfit_confidence_factor(r->gap_direct_ev / r->crystal_breaking_ev);
         set_class(r, RES_TCI, conf,
                   "Z2 trivial, mirror Chern number %d on the mirror plane normal to (%.3f, %.3f, %.3f)%s",
                   best, best_normal[0], best_normal[1], best_normal[2],
                   r->crystal_symmetrised ? "; crystal symmetry restored by averaging a noisy fit" : "");
+        if (r->crystal_symmetrised)
+            append_reason(r, " (breaking %.2g eV against the direct gap %.3g eV, margin %.3g)",
+                          r->crystal_breaking_ev, r->gap_direct_ev,
+                          r->gap_direct_ev / r->crystal_breaking_ev);
     } else if (nambiguous) {
         size_t used = strlen(r->reason);
         snprintf(r->reason + used, sizeof r->reason - used, "; %d mirror Chern number%s undetermined",
@@ -892,6 +912,45 @@ static void gap_point_symmetry(const tb_model *m, const cry_info *ci, res_diag *
     free(lg);
 }
 
+/* Every Weyl node on a symmetry line or plane (a little group of more than the identity): the
+ * little group and what its eigenvalues on the two crossing bands say. The bands are degenerate at
+ * the node, so the eigenvalues are read a step of 1e-3 away from it inside the invariant line or
+ * plane (a displacement averaged over the little group, which keeps it), where the two bands are
+ * apart and the little group the same (crystalline.h). */
+static void node_symmetry(const tb_model *m, const cry_info *ci, res_diag *r)
+{
+    if (m->nocc < 1 || m->nocc >= m->norb || r->dim != 3) return;
+    int *lg = malloc((size_t)cry_nops(ci) * sizeof *lg);
+    if (!lg) return;
+    for (int i = 0; i < r->nnodes; i++) {
+        res_node *nd = &r->nodes[i];
+        if (!res_node_is_weyl(r, i)) continue;
+        int nl = cry_little_group(ci, nd->k, lg);
+        if (nl <= 1) continue;
+        /* the invariant direction: a generic displacement averaged over the little group. Its
+         * k-space action is W^-T; over a group the average of W^-T d equals that of W^T d (the
+         * group holds every inverse), so no inverse is needed. */
+        const double d0[3] = {0.577, 0.318, 0.751};
+        double d[3] = {0, 0, 0};
+        for (int g = 0; g < nl; g++) {
+            const cry_op *op = cry_get_op(ci, lg[g]);
+            for (int a = 0; a < 3; a++)
+                d[a] += (op->W[0][a] * d0[0] + op->W[1][a] * d0[1] + op->W[2][a] * d0[2]) / nl;
+        }
+        double len = sqrt(d[0] * d[0] + d[1] * d[1] + d[2] * d[2]);
+        if (len < 1e-9) continue; /* an isolated invariant point: no line or plane through it */
+        double kp[3];
+        for (int a = 0; a < 3; a++)
+            kp[a] = nd->k[a] + 1e-3 * d[a] / len;
+        cz_prediction pred;
+        bs_err local;
+        bs_err_clear(&local);
+        if (cz_predict_closing(m, ci, kp, m->nocc - 1, &pred, &local) != 0) continue;
+        snprintf(nd->symmetry, sizeof nd->symmetry, "little group of %d operations; %s", nl, pred.text);
+    }
+    free(lg);
+}
+
 static int run_crystal(diag_ctx *c, res_diag *r, int kramers, bs_err *err)
 {
     r->z4 = c->z4;
@@ -906,10 +965,16 @@ static int run_crystal(diag_ctx *c, res_diag *r, int kramers, bs_err *err)
     r->spacegroup = cry_spacegroup(ci);
     r->symmetry_ops = cry_nverified(ci);
     int rc = 0, insulator = res_class_is_insulator(r->cls) && r->gap_direct_ev > BS_GAP_CLOSED_EV;
-    if (insulator) rc = restore_approximate(c->m, ci, r->gap_direct_ev, r, &msym, &ci_sym, err);
+    if (insulator)
+        rc = restore_approximate(c->m, ci, r->gap_direct_ev, r, &msym, &ci_sym, err);
+    else
+        snprintf(r->crystal_verdicts, sizeof r->crystal_verdicts,
+                 "%d exact; the other %d not judged (no gap to weigh a breaking against)", cry_nverified(ci),
+                 cry_nops(ci) - cry_nverified(ci));
     if (rc == 0 && ci_sym) r->symmetry_ops = cry_nverified(ci_sym);
     if (rc == 0 && r->gap_direct_ev > BS_GAP_CLOSED_EV)
         gap_point_symmetry(msym ? msym : c->m, ci_sym ? ci_sym : ci, r);
+    if (rc == 0 && r->nnodes > 0) node_symmetry(c->m, ci, r);
     int z2_trivial =
         r->z2_status == RES_DONE && !r->z2[0] && (r->dim == 2 || (!r->z2[1] && !r->z2[2] && !r->z2[3]));
     if (rc == 0 && insulator && kramers && r->cls == RES_TRIVIAL && z2_trivial) {

@@ -112,6 +112,9 @@ int pp_same_basis(const tb_model *a, const tb_model *b, bs_err *err)
             if (a->orb_l[o] != b->orb_l[o]) {
                 what = "orbital angular momenta (order of the orbitals)";
                 break;
+            } else if ((a->orb_shape ? a->orb_shape[o] : -1) != (b->orb_shape ? b->orb_shape[o] : -1)) {
+                what = "orbital shapes (order of the orbitals within a shell)";
+                break;
             }
     if (what)
         return bs_fail(err, BS_EINVAL, "members '%s' and '%s' of a family do not share a basis: %s differs",
@@ -185,6 +188,15 @@ static int interpolate(const pp_source *s, int seg, double t, tb_model **out, bs
     for (int i = 0; i < 3; i++)
         for (int j = 0; j < 3; j++)
             m->lattice[i][j] = (1 - t) * a->lattice[i][j] + t * b->lattice[i][j];
+    if (a->orb_shape) {
+        /* the shapes (the same in both members: check_basis) fix the crystal's representations */
+        m->orb_shape = malloc((size_t)a->nspatial * sizeof *m->orb_shape);
+        if (!m->orb_shape) {
+            tb_model_free(m);
+            return bs_fail(err, BS_ENOMEM, "out of memory (orbital shapes)");
+        }
+        memcpy(m->orb_shape, a->orb_shape, (size_t)a->nspatial * sizeof *m->orb_shape);
+    }
     for (int o = 0; o < a->nspatial; o++) {
         m->orb_l[o] = a->orb_l[o];
         for (int j = 0; j < 3; j++) {
@@ -517,6 +529,7 @@ static int add_region(pp_result *r, int *cap, double lo, double hi, double x, do
         return bs_fail(err, BS_ENOMEM, "out of memory for closings");
     pp_closing *c = &r->closings[r->nclosing++];
     memset(c, 0, sizeof *c);
+    c->agrees = -1;
     c->x_lo = lo;
     c->x_hi = hi;
     c->x = x;
@@ -582,10 +595,54 @@ static void predict(const pp_source *s, double xp, pp_closing *c)
     cz_prediction pr;
     if (cry_detect(m, &co, &ci, &e) == 0 && cz_predict_closing(m, ci, c->k[0], m->nocc - 1, &pr, &e) == 0) {
         c->predicted = 1;
+        c->predicted_kind = pr.kind;
         snprintf(c->prediction, sizeof c->prediction, "%s", pr.text);
     }
     cry_info_free(ci);
     tb_model_free(m);
+}
+
+/* The prediction beside what the path found (Sci. Adv. 3, e1602680 (2017), reference from memory;
+ * New J. Phys. 9, 356 (2007)): Weyl nodes (generic or on an axis) open a gapless interval with
+ * nodes; a mirror with different eigenvalues a nodal line; equal eigenvalues on an axis mean the
+ * bands repel there, so a touching found at that point contradicts it. A disagreement lowers the
+ * confidence of the classes on both sides (factor 0.7) and is said in their reasons. */
+static void compare_prediction(pp_result *r, pp_closing *c)
+{
+    c->agrees = -1;
+    if (!c->predicted) return;
+    /* the gapless interval the closing opens (its edges are the closing's) */
+    const pp_interval *in = NULL;
+    for (int i = 0; i < r->ninterval && !in; i++)
+        if (r->intervals[i].gapless && r->intervals[i].x_rep >= c->x_lo && r->intervals[i].x_rep <= c->x_hi)
+            in = &r->intervals[i];
+    int weyl = !c->point && in && (in->diag.cls == RES_WEYL || in->diag.nnodes > 0) && !in->diag.nodal_line;
+    int line = !c->point && in && in->diag.nodal_line;
+    switch (c->predicted_kind) {
+    case CZ_PRED_GENERIC_WEYL:
+    case CZ_PRED_AXIS_WEYL:
+        c->agrees = weyl;
+        break;
+    case CZ_PRED_NODAL_LINE:
+        c->agrees = line;
+        break;
+    case CZ_PRED_REPEL:
+        c->agrees = 0; /* the path found the two bands touching where they must repel */
+        break;
+    default:
+        return;
+    }
+    if (c->agrees) return;
+    int sides[2] = {c->before, c->after};
+    for (int i = 0; i < 2; i++) {
+        if (sides[i] < 0) continue;
+        res_diag *d = &r->intervals[sides[i]].diag;
+        d->confidence *= 0.7;
+        size_t used = strlen(d->reason);
+        snprintf(d->reason + used, sizeof d->reason - used,
+                 "; the neighbouring gap closing disagrees with its symmetry prediction (%s)",
+                 cz_prediction_name(c->predicted_kind));
+    }
 }
 
 static int trim_index(const double k[3])
@@ -1178,6 +1235,7 @@ int pp_run(const pp_source *s, const char *param, double x_lo, double x_hi, cons
             if (xp > x_lo && xp < x_hi && r->dim == 3 && !kramers_everywhere) predict(s, xp, c);
         }
         if (rc == 0) describe(r, c, param);
+        if (rc == 0) compare_prediction(r, c);
     }
     /* Weyl-node tracks through the gapless intervals of a 3D path */
     for (int i = 0; i < r->ninterval && rc == 0 && !o.no_tracks; i++) {

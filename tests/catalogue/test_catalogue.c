@@ -285,9 +285,22 @@ static void test_migrate_v2(void **state)
     close_ok(cat);
     sqlite3 *db = NULL;
     assert_int_equal(sqlite3_open(t.cat, &db), SQLITE_OK);
-    static const char *const cols[] = {"magnetism",       "tr_verdict",     "inv_verdict", "tr_breaking_ev",
-                                       "inv_breaking_ev", "symmetrised",    "restored",    "breaking_ev",
-                                       "breaking_bound",  "symmetry_margin"};
+    static const char *const cols[] = {"magnetism",
+                                       "tr_verdict",
+                                       "inv_verdict",
+                                       "tr_breaking_ev",
+                                       "inv_breaking_ev",
+                                       "symmetrised",
+                                       "restored",
+                                       "breaking_ev",
+                                       "breaking_bound",
+                                       "symmetry_margin",
+                                       "spacegroup",
+                                       "symmetry_ops",
+                                       "crystal_breaking_ev",
+                                       "z4",
+                                       "mirror_chern",
+                                       "mirror_chern_status"};
     assert_int_equal(sqlite3_exec(db,
                                   "DROP VIEW IF EXISTS conflicts; DROP VIEW candidates; DROP VIEW "
                                   "top_spin_hall; DROP VIEW surfaces; DROP VIEW summary;",

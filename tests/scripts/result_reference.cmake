@@ -3,7 +3,7 @@
 add_test(NAME result_reference
          COMMAND ${BS_PYTHON} ${CMAKE_CURRENT_LIST_DIR}/result_reference.py $<TARGET_FILE:bandsieve>
                  ${CMAKE_CURRENT_BINARY_DIR}/result_reference)
-set_tests_properties(result_reference PROPERTIES LABELS "script;catalogue" TIMEOUT 300)
+set_tests_properties(result_reference PROPERTIES LABELS "script;catalogue" TIMEOUT 900)
 # The JSON round trip diagonalises small matrices: one BLAS thread avoids oversubscribing the cores.
 if(TEST result_test_result_json)
   set_tests_properties(result_test_result_json PROPERTIES ENVIRONMENT "OPENBLAS_NUM_THREADS=1")

@@ -10,6 +10,7 @@
 #include <string.h>
 
 #include "bandsieve/crystalline.h"
+#include "bandsieve/phasepath.h"
 #include "bandsieve/hk.h"
 #include "bandsieve/nodes.h"
 #include "bandsieve/realharm.h"
@@ -385,12 +386,66 @@ static void test_c2_closing_rule(void **state)
     }
 }
 
+/* The same two models followed by the phase path (phasepath.h) through the transition: with
+ * different C2 eigenvalues the path predicts a Weyl pair on the axis at the first touching and
+ * finds a gapless interval with Weyl nodes, so the two agree (New J. Phys. 9, 356 (2007)). With
+ * equal eigenvalues the axis stays gapped: no closing there is predicted, and any closing the path
+ * finds is elsewhere, where no protecting symmetry acts (a generic pair). The mass enters H(R)
+ * linearly, so the interpolation between the two members is the model itself. */
+static void test_c2_path_prediction(void **state)
+{
+    (void)state;
+    for (int equal = 0; equal <= 1; equal++) {
+        tb_model *a = c2_model(equal, 6.4), *b = c2_model(equal, 5.6);
+        int shape[2] = {0, rh_index(1, equal ? "pz" : "px")};
+        for (int i = 0; i < 2; i++) {
+            tb_model *m = i ? b : a;
+            m->orb_shape = malloc(sizeof shape);
+            memcpy(m->orb_shape, shape, sizeof shape);
+        }
+        const tb_model *ms[2] = {a, b};
+        double vals[2] = {-6.4, -5.6}; /* increasing values: the parameter is minus the mass */
+        bs_err err;
+        bs_err_clear(&err);
+        pp_source *s = NULL;
+        assert_int_equal(pp_source_members(ms, vals, 2, &s, &err), 0);
+        pp_opts o;
+        pp_opts_init(&o);
+        o.nsamples = 17;
+        o.no_tracks = 1;
+        pp_result r;
+        pp_result_init(&r);
+        if (pp_run(s, "minus_mass", -6.4, -5.6, &o, &r, &err) != 0) fail_msg("%s", err.msg);
+        int weyl_closings = 0;
+        for (int i = 0; i < r.nclosing; i++) {
+            const pp_closing *c = &r.closings[i];
+            print_message("%s: closing %s at %.4f..%.4f, k %.3g %.3g %.6f: %s (agrees %d)\n",
+                          equal ? "s+pz" : "s+px", c->kind, c->x_lo, c->x_hi, c->k[0][0], c->k[0][1],
+                          c->k[0][2], c->predicted ? c->prediction : "no prediction", c->agrees);
+            if (!equal && fabs(c->x_lo + 6.25) < 1e-3) {
+                assert_false(c->point);
+                assert_int_equal(c->predicted_kind, CZ_PRED_AXIS_WEYL);
+                assert_int_equal(c->agrees, 1);
+                weyl_closings++;
+            }
+            if (equal) {
+                assert_true(c->predicted_kind != CZ_PRED_AXIS_WEYL);
+                assert_true(c->agrees != 0);
+            }
+        }
+        if (!equal) assert_int_equal(weyl_closings, 1);
+        pp_result_clear(&r);
+        pp_source_free(s);
+        tb_model_free(a);
+        tb_model_free(b);
+    }
+}
+
 int main(void)
 {
     const struct CMUnitTest tests[] = {
-        cmocka_unit_test(test_z4),
-        cmocka_unit_test(test_mirror_chern),
-        cmocka_unit_test(test_c2_closing_rule),
+        cmocka_unit_test(test_z4),           cmocka_unit_test(test_c2_path_prediction),
+        cmocka_unit_test(test_mirror_chern), cmocka_unit_test(test_c2_closing_rule),
         cmocka_unit_test(test_rocksalt_tci),
     };
     return cmocka_run_group_tests(tests, NULL, NULL);

@@ -218,6 +218,13 @@ static void test_weyl_positions(void **state)
             fabs(fabs(k1) - 0.2) + fabs(fmod(k[1] + 0.5, 1.0) - 0.5) + fabs(fmod(k[2] + 0.5, 1.0) - 0.5);
         assert_true(d < 1e-6);
         assert_int_equal(r.nodes[j].chirality, k1 > 0 ? -1 : +1);
+        /* The nodes sit on the k1 axis, a two-fold rotation axis of the model (the sigma_x and
+         * sigma_y terms are odd in (k2, k3), the sigma_z term even, so C2 about k1 acts as sigma_z
+         * on the s and p orbitals): the two crossing bands carry different C2 eigenvalues there,
+         * which is what protects a crossing on the axis (New J. Phys. 9, 356 (2007)). */
+        print_message("node %d: %s\n", j, r.nodes[j].symmetry);
+        assert_non_null(strstr(r.nodes[j].symmetry, "2-fold axis"));
+        assert_non_null(strstr(r.nodes[j].symmetry, "differ"));
     }
     assert_int_equal(r.net_chirality, 0);
     res_clear(&r);

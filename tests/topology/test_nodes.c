@@ -302,10 +302,10 @@ static void test_no_nodes_without_touching(void **state)
 static void test_time_reversal_check(void **state)
 {
     (void)state;
-    res_node q[4] = {{{0.1, 0.2, 0.3}, 1, 0, 0},
-                     {{0.9, 0.8, 0.7}, 1, 0, 0},
-                     {{0.4, 0.1, 0.2}, -1, 0, 0},
-                     {{0.6, 0.9, 0.8}, -1, 0, 0}};
+    res_node q[4] = {{{0.1, 0.2, 0.3}, 1, 0, 0, ""},
+                     {{0.9, 0.8, 0.7}, 1, 0, 0, ""},
+                     {{0.4, 0.1, 0.2}, -1, 0, 0, ""},
+                     {{0.6, 0.9, 0.8}, -1, 0, 0, ""}};
     nodes_result r;
     nodes_result_init(&r);
     r.nodes = q;
