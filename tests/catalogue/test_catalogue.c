@@ -342,6 +342,49 @@ static void test_migrate_v2(void **state)
     tmp_remove(&t);
 }
 
+/* The crystal-symmetry columns (schema 4) and what the views make of them: a Z2-trivial insulator
+ * with a nonzero mirror Chern number is nontrivial (Phys. Rev. B 78, 045426 (2008)); kappa = 2 with
+ * a trivial strong index flags a higher-order candidate (Phys. Rev. X 8, 031070 (2018)); a mirror
+ * Chern number that was not computed is NULL, and so is a space group that was not found. */
+static void test_crystal_columns(void **state)
+{
+    (void)state;
+    tmpdir t;
+    tmp_make(&t);
+    cat_db *cat = open_rw(t.cat);
+    int64_t run = begin(cat, &RUN_A);
+    static const char *const extra[] = {"\"spacegroup\":221,\"symmetry_ops\":48,\"z4\":0,\"mirror_chern\":-2,"
+                                        "\"mirror_chern_status\":\"done\"",
+                                        "\"spacegroup\":224,\"symmetry_ops\":48,\"z4\":2,\"mirror_chern\":0,"
+                                        "\"mirror_chern_status\":\"done\"",
+                                        "\"spacegroup\":0,\"symmetry_ops\":1,\"z4\":null,\"mirror_chern\":0,"
+                                        "\"mirror_chern_status\":\"not applicable\""};
+    static const char *const ids[] = {"tci", "hoti", "plain"};
+    static const char *const cls[] = {"topological crystalline insulator", "trivial insulator",
+                                      "trivial insulator"};
+    for (int i = 0; i < 3; i++) {
+        char buf[2048];
+        diag_json(buf, sizeof buf, ids[i], cls[i], 0.9, 0.2 + 0.1 * i, "[0,0,0,0]", 8, 0);
+        size_t len = strlen(buf);
+        snprintf(buf + len - 1, sizeof buf - len + 1, ",%s}", extra[i]); /* before the closing brace */
+        put_text(cat, run, ids[i], CAT_RES_OK, NULL, buf);
+    }
+    bs_err err;
+    bs_err_clear(&err);
+    assert_int_equal(cat_flush(cat, &err), 0);
+    dump d;
+    q(cat,
+      "SELECT material_id, COALESCE(spacegroup, 'NULL'), COALESCE(z4, 'NULL'), COALESCE(mirror_chern, "
+      "'NULL'), mirror_chern_status, nontrivial FROM summary ORDER BY material_id",
+      &d);
+    assert_string_equal(d.text,
+                        "hoti|224|2|0|done|1\nplain|NULL|NULL|NULL|not applicable|0\ntci|221|0|-2|done|1\n");
+    q(cat, "SELECT material_id, why FROM candidates", &d);
+    assert_string_equal(d.text, "hoti|higher-order candidate (z4 = 2)\ntci|nontrivial\n");
+    close_ok(cat);
+    tmp_remove(&t);
+}
+
 /* ---- results ---- */
 
 static void test_put_and_read_back(void **state)
@@ -1306,6 +1349,7 @@ int main(void)
         cmocka_unit_test(test_schema_applies),
         cmocka_unit_test(test_open_refuses_foreign_files),
         cmocka_unit_test(test_migrate_v2),
+        cmocka_unit_test(test_crystal_columns),
         cmocka_unit_test(test_put_and_read_back),
         cmocka_unit_test(test_struct_and_flows),
         cmocka_unit_test(test_missing_keys_and_failures),
