@@ -380,7 +380,8 @@ static int run_wcc(diag_ctx *c, res_diag *r, bs_err *err)
     /* The flow needs time reversal only: with time reversal exact it is computed on H itself, so
      * that restoring inversion (for the parities) leaves it untouched. */
     const tb_model *wm = c->tr_exact ? c->m : c->zm;
-    int rc = wilson_create_dist(wm, c->m->nocc, c->o ? c->o->dist : NULL, &w, err);
+    int rc =
+        wilson_create_shared(wm, c->m->nocc, c->o ? c->o->dist : NULL, wm == c->m ? c->hk : NULL, &w, err);
     if (rc != 0) return rc;
     wilson_opts wo;
     wilson_opts_default(&wo);
@@ -418,7 +419,7 @@ static int run_wcc(diag_ctx *c, res_diag *r, bs_err *err)
 static int run_chern(diag_ctx *c, res_diag *r, bs_err *err)
 {
     chern_ws *cw = NULL;
-    int rc = chern_create_dist(c->m, c->m->nocc, c->o ? c->o->dist : NULL, &cw, err);
+    int rc = chern_create_shared(c->m, c->m->nocc, c->o ? c->o->dist : NULL, c->hk, &cw, err);
     if (rc != 0) return rc;
     chern_opts co;
     chern_opts_default(&co, 0);
