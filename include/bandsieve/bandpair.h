@@ -33,6 +33,12 @@ void bp_free(bp_eval *e);
  * internally at the engine's batch size). BS_ETIMEOUT past the deadline, BS_ENUMERIC from LAPACK. */
 int bp_bands(bp_eval *e, int nk, const double *k, double *lo, double *hi, bs_err *err);
 
+/* Declares that E(-k) = E(k) holds to round-off for m (time reversal or inversion exact: the
+ * caller has checked it on H), so that meshes diagonalise one point of each pair k, -k and copy
+ * the other, and the gap search refines one basin of each mirror pair. Off by default. */
+void bp_set_even(bp_eval *e, int even);
+int bp_even(const bp_eval *e);
+
 /* k-points diagonalised so far by e. */
 long long bp_count(const bp_eval *e);
 

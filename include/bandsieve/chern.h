@@ -12,6 +12,7 @@
 
 #include "bandsieve/eig.h"
 #include "bandsieve/err.h"
+#include "bandsieve/hk.h"
 #include "bandsieve/model.h"
 
 typedef struct chern_ws chern_ws;
@@ -51,6 +52,10 @@ int chern_create(const tb_model *m, int nband, chern_ws **out, bs_err *err);
 
 /* As chern_create, diagonalising with dist (borrowed; NULL: LAPACK), e.g. a rank group's solver. */
 int chern_create_dist(const tb_model *m, int nband, const eig_dist *dist, chern_ws **out, bs_err *err);
+
+/* As chern_create_dist, reading H(k) from hk (borrowed, an engine of m; NULL: build one). */
+int chern_create_shared(const tb_model *m, int nband, const eig_dist *dist, hk_engine *hk, chern_ws **out,
+                        bs_err *err);
 
 /* Frees ws; accepts NULL. */
 void chern_free(chern_ws *ws);

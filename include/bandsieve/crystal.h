@@ -22,6 +22,7 @@
 #include <complex.h>
 
 #include "bandsieve/err.h"
+#include "bandsieve/hk.h"
 #include "bandsieve/model.h"
 
 typedef struct cry_opts {
@@ -33,6 +34,7 @@ typedef struct cry_opts {
     unsigned long long seed;
     const int *shell_index; /* nspatial indices within their shell (realharm.h order), or NULL:
                                the model's orb_shape, or the default order without it */
+    hk_engine *hk;          /* H(k) engine of the model to share for the check (borrowed; NULL: build) */
 } cry_opts;
 
 typedef struct cry_op {

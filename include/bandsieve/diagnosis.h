@@ -20,9 +20,18 @@ typedef struct diag_opts {
                                 breakings are measured in eV and judged against the gap */
     double pos_tol_ang;      /* Angstrom tolerance of the inversion map from orbital centres (0: 0.05) */
     int magnetism;           /* 0: the card's statement; 1 + TB_MAG_* overrides it for this run */
+    int verify;              /* compute every method's evidence, also the cross-checks that the plan
+                                skips when cheaper evidence is decisive (a rescreen, --verify) */
+    int tier_min_norb;       /* evidence is planned in tiers from this many states on (0: the default
+                                DIAG_TIER_MIN_NORB; below it every method runs) */
     const eig_dist *dist;    /* distributed eigensolver for large matrices (a rank group's, whose
                                 members then run the diagnosis in lockstep); borrowed; NULL: LAPACK */
 } diag_opts;
+
+/* States from which a 3D diagnosis plans its evidence in tiers: the Wannier-centre flow, whose six
+ * planes of strings are 55-62% of a 3D insulator's eigensolves, is skipped when the parities are
+ * decisive (diagnosis.c, parities_decisive). Below it the flow costs milliseconds and runs always. */
+#define DIAG_TIER_MIN_NORB 16
 
 /* The default k-mesh per direction for a model of dimension dim (36 in 2D, 14 in 3D). */
 int diag_default_mesh(int dim);

@@ -19,6 +19,7 @@ typedef struct par_opts {
     double gap_tol_ev;    /* E_{N+1} - E_N at a TRIM at or below this is closed (0: BS_GAP_CLOSED_EV) */
     double parity_tol;    /* largest accepted |xi - (+-1)| of a parity eigenvalue (0: 1e-3) */
     const eig_dist *dist; /* distributed eigensolver for large matrices (borrowed; NULL: LAPACK) */
+    hk_engine *hk;        /* H(k) engine of the same model to share (borrowed; NULL: build one) */
 } par_opts;
 
 typedef struct par_result {

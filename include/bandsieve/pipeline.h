@@ -65,6 +65,8 @@ typedef struct pl_opts {
     double pos_tol_ang;         /* see diag_opts (0: default) */
     int transport;              /* also anomalous and spin Hall conductivities (--transport) */
     int surfaces;               /* also surface crossings of nontrivial insulators (--surfaces) */
+    int verify;                 /* every method's evidence, the cross-checks that decisive cheaper
+                                   evidence makes optional included (--verify; a rescreen sets it) */
     int group_size;             /* >= 2: the last group_size ranks form a group that diagonalises
                                    materials of at least group_min_states states together */
     int group_min_states;       /* 0: PZ_DEFAULT_THRESHOLD */

@@ -242,7 +242,10 @@ typedef struct res_diag {
 
     int mesh;
     double seconds;
-    long long nk_evaluated; /* k-points diagonalised, for cost reporting */
+    long long nk_evaluated;     /* k-points diagonalised (eigensolves of H(k)), for cost reporting */
+    char evidence[200];         /* the evidence computed, in order, each with its eigensolves:
+                                   "gaps:2744,parity:8,wcc:6120" (the sum is nk_evaluated) */
+    char evidence_skipped[240]; /* evidence the plan left out and why ("" when none) */
 } res_diag;
 
 /* The 2D Chern number as shown (JSON "chern", column chern): 1 with *c when it was computed, or is

@@ -26,6 +26,7 @@
 #include <complex.h>
 
 #include "bandsieve/err.h"
+#include "bandsieve/hk.h"
 #include "bandsieve/model.h"
 
 enum { SYM_INV_NONE = 0, SYM_INV_CARD = 1, SYM_INV_POSITIONS = 2 };
@@ -38,6 +39,10 @@ typedef struct sym_opts {
     double pos_tol_ang;      /* Cartesian tolerance in Angstrom when matching positions (0: 0.05);
                                 two positions match when either tolerance accepts them */
     int skip_inversion;      /* 1: time reversal only (inversion fields stay empty) */
+    hk_engine *hk;           /* H(k) engine of the model's H(R) to use instead of building one
+                                (borrowed, batch of at least 2; NULL: build): the diagnosis shares
+                                its tables with every stage (the coefficient table is as large as
+                                half the model) */
 } sym_opts;
 
 /* What sym_detect found. Residuals are relative: the largest, over the random k-points, of

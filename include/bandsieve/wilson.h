@@ -9,6 +9,7 @@
 
 #include "bandsieve/eig.h"
 #include "bandsieve/err.h"
+#include "bandsieve/hk.h"
 #include "bandsieve/model.h"
 #include "bandsieve/result.h"
 
@@ -79,6 +80,10 @@ int wilson_create(const tb_model *m, int nband, wilson_ws **out, bs_err *err);
 
 /* As wilson_create, diagonalising with dist (borrowed; NULL: LAPACK), e.g. a rank group's solver. */
 int wilson_create_dist(const tb_model *m, int nband, const eig_dist *dist, wilson_ws **out, bs_err *err);
+
+/* As wilson_create_dist, reading H(k) from hk (borrowed, an engine of m; NULL: build one). */
+int wilson_create_shared(const tb_model *m, int nband, const eig_dist *dist, hk_engine *hk, wilson_ws **out,
+                         bs_err *err);
 
 /* Frees w; accepts NULL. */
 void wilson_free(wilson_ws *w);

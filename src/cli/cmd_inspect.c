@@ -16,7 +16,7 @@ static void inspect_help(FILE *out)
     fprintf(out,
             "usage: bandsieve inspect SOURCE [--json] [--mesh N] [--max-seconds S] [--flows] [--transport]\n"
             "                         [--surfaces] [--magnetism M] [--position-tol A] [--symmetry-tol T] "
-            "[--seed S]\n\n"
+            "[--seed S] [--verify]\n\n"
             "Diagnoses one material: gaps, time reversal and inversion, Z2 from parities and from\n"
             "the Wannier-centre flow, Chern numbers, Weyl nodes and nodal lines, and a class with a\n"
             "confidence and a one-line reason.\n"
@@ -26,6 +26,9 @@ static void inspect_help(FILE *out)
             "                   (default 36 in 2D, 14 in 3D); Wilson strings and Chern meshes start at N\n"
             "  --max-seconds S  give up after S seconds (exit 1, status timeout)\n"
             "  --flows          include the Wannier-centre flows in the JSON (key wcc_flows)\n"
+            "  --verify         compute every method: also the Wannier-centre cross-check that\n"
+            "                   decisive parities make optional for 3D materials of 16 or more\n"
+            "                   states (JSON keys evidence, evidence_skipped)\n"
             "  --seed S         seed of the random verification k-points (default 1)\n"
             "  --symmetry-tol T relative residual under which time reversal and inversion are exact\n"
             "                   (default 1e-6); larger breakings are measured in eV against the gap:\n"
@@ -167,6 +170,7 @@ int cmd_inspect(int argc, char **argv)
                                              {"mesh", required_argument, NULL, 'm'},
                                              {"max-seconds", required_argument, NULL, 't'},
                                              {"flows", no_argument, NULL, 'f'},
+                                             {"verify", no_argument, NULL, 'v'},
                                              {"seed", required_argument, NULL, 's'},
                                              {"symmetry-tol", required_argument, NULL, 'y'},
                                              {"transport", no_argument, NULL, 'a'},
@@ -197,7 +201,12 @@ int cmd_inspect(int argc, char **argv)
             json = 1;
             break;
         case 'f':
+            /* the flows asked for are computed, whatever the evidence plan */
             opts->want_flows = 1;
+            opts->verify = 1;
+            break;
+        case 'v':
+            opts->verify = 1;
             break;
         case 'm':
             if (cli_parse_int(optarg, 4, 4096, &v)) {

@@ -129,6 +129,7 @@ static int draw_diagnosis(const tb_model *m, const plot_args *a, cJSON *data, bs
     o.seed = 1;
     o.mesh = (int)a->mesh;
     o.want_flows = strcmp(a->kind, "flow") == 0;
+    o.verify = o.want_flows; /* a flow figure needs the flow whatever the evidence plan */
     res_diag r;
     res_init(&r);
     int rc = diag_run(m, &o, &r, err);

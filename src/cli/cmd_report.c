@@ -74,6 +74,7 @@ static int report_source(const char *source, const char *out, int mesh, bs_err *
     int rc = src_load(source, &m, err);
     diag_opts o = {0};
     o.seed = 1, o.mesh = mesh, o.want_flows = 1;
+    o.verify = 1; /* the report shows every method's evidence, the flows included */
     if (rc == 0) rc = diag_run(m, &o, &r, err);
     if (rc == 0 && !(j = res_to_json(&r, 0))) rc = bs_fail(err, BS_ENOMEM, "out of memory");
     if (rc == 0) rc = tmpdir_make(&t, err);

@@ -179,6 +179,9 @@ static void screen_help(FILE *out, int rescreen)
             "                      (catalogue columns ahc_*, shc_xy; view top_spin_hall)\n"
             "  --surfaces          for nontrivial insulators, also the Fermi-level crossings of\n"
             "                      surface states on a default plane (view surfaces)\n"
+            "  --verify            compute every method, also the Wannier-centre cross-check that\n"
+            "                      decisive parities make optional for large 3D materials (rescreen\n"
+            "                      always does)\n"
             "  --group-size G      the last G ranks form a group that diagonalises materials of\n"
             "                      at least --group-min-states states (default 800) together\n"
             "                      with ScaLAPACK; smaller ones go to the single ranks\n"
@@ -246,6 +249,7 @@ static int screen_main(int argc, char **argv, int rescreen)
                                              {"position-tol", required_argument, NULL, 'P'},
                                              {"transport", no_argument, NULL, 'A'},
                                              {"surfaces", no_argument, NULL, 'S'},
+                                             {"verify", no_argument, NULL, 'V'},
                                              {"group-size", required_argument, NULL, 'g'},
                                              {"group-min-states", required_argument, NULL, 'G'},
                                              {"progress-every", required_argument, NULL, 'p'},
@@ -282,6 +286,9 @@ static int screen_main(int argc, char **argv, int rescreen)
             break;
         case 'S':
             o.surfaces = 1;
+            break;
+        case 'V':
+            o.verify = 1;
             break;
         case 'g':
         case 'G':
@@ -381,6 +388,8 @@ static int screen_main(int argc, char **argv, int rescreen)
         return 2;
     }
     if (rescreen && o.mesh == 0) o.mesh_factor = 2;
+    /* A rescreen is the second look at doubtful or promising entries: every cross-check runs. */
+    if (rescreen) o.verify = 1;
     ps.next_plain = next_plain_after(&ps, 0);
     /* Runs are matched by the set's content; the path is recorded in one canonical spelling. */
     char set_real[4096];

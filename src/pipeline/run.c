@@ -123,8 +123,8 @@ static int gather_hosts(MPI_Comm comm, int rank, int size, char *out, size_t out
 /* The per-material settings of a job. */
 static pl_task task_of(const pl_opts *o, const struct eig_dist *dist)
 {
-    pl_task t = {o->mesh,     o->mesh_factor, o->symmetry_tol, o->transport,
-                 o->surfaces, dist,           o->magnetism,    o->pos_tol_ang};
+    pl_task t = {o->mesh, o->mesh_factor, o->symmetry_tol, o->transport, o->surfaces,
+                 dist,    o->magnetism,   o->pos_tol_ang,  o->verify};
     return t;
 }
 
@@ -157,6 +157,8 @@ static char *settings_json(const pl_opts *o, const ms_set *set)
     if (o->pos_tol_ang > 0) cJSON_AddNumberToObject(s, "position_tol_A", o->pos_tol_ang);
     if (o->transport) cJSON_AddBoolToObject(s, "transport", 1);
     if (o->surfaces) cJSON_AddBoolToObject(s, "surfaces", 1);
+    /* A rescreen always verifies: only a screen's choice is a setting of its own. */
+    if (o->verify && strcmp(o->kind, "rescreen") != 0) cJSON_AddBoolToObject(s, "verify", 1);
     if (o->where_sql) cJSON_AddStringToObject(s, "where", o->where_sql);
     char *text = cJSON_PrintUnformatted(s);
     cJSON_Delete(s);

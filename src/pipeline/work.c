@@ -160,6 +160,7 @@ void pl_compute(const ms_set *set, int index, const pl_task *task, double max_se
         o.diag.symmetry_tol = task->symmetry_tol;
         o.diag.magnetism = task->magnetism;
         o.diag.pos_tol_ang = task->pos_tol_ang;
+        o.diag.verify = task->verify;
         o.diag.dist = task->dist;
         o.transport = task->transport;
         tr_opts_default(&o.tr);

@@ -43,6 +43,7 @@ typedef struct pl_task {
     const struct eig_dist *dist; /* group members: the shared distributed solver, else NULL */
     int magnetism;               /* diag_opts.magnetism: 0 the card's statement, 1 + TB_MAG_* overrides */
     double pos_tol_ang;          /* diag_opts.pos_tol_ang (0: default) */
+    int verify;                  /* diag_opts.verify */
 } pl_task;
 
 /* Reads entry `index` of set and diagnoses it as task says within max_seconds (0: no limit),

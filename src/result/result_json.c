@@ -713,6 +713,8 @@ static const key_row KEYS[] = {
     {"mesh", KEY_INT, AT(mesh), "mesh", NULL, NULL},
     {"seconds", KEY_NUM, AT(seconds), "diag_seconds", NULL, NULL},
     {"k_points", KEY_LLONG, AT(nk_evaluated), NULL, NULL, NULL},
+    {"evidence", KEY_STR_NONEMPTY, AT(evidence), NULL, NULL, NULL},
+    {"evidence_skipped", KEY_STR_NONEMPTY, AT(evidence_skipped), NULL, NULL, NULL},
     {"wcc_flows", KEY_SPECIAL, 0, 0, NULL, w_flows, r_flows},
     {"ahc", KEY_SPECIAL, 0, 0, NULL, w_transport, r_transport}, /* and shc, transport */
     {"surface", KEY_SPECIAL, 0, 0, NULL, w_surface, r_surface},

@@ -51,6 +51,7 @@ static void opts_resolve(const cry_opts *in, cry_opts *o)
     if (in->nk > 0) o->nk = in->nk;
     o->seed = in->seed;
     o->shell_index = in->shell_index;
+    o->hk = in->hk;
 }
 
 void cry_info_free(cry_info *c)
@@ -463,14 +464,15 @@ int cry_detect(const tb_model *m, const cry_opts *opts_in, cry_info **out, bs_er
     for (int q = 0; q < o.nk; q++)
         for (int i = 0; i < 3; i++)
             ks[3 * q + i] = (i < m->dim) ? (double)(sm64(&st) >> 11) * 0x1.0p-53 : 0.0;
-    rc = hk_create(m, 1, &e, err);
+    hk_engine *use = o.hk && hk_norb(o.hk) == m->norb ? o.hk : NULL;
+    if (!use) rc = hk_create(m, 1, &e, err), use = e;
     if (rc != 0) goto done;
     for (int i = 0; i < c->nops; i++) {
         cry_op *op = &c->ops[i];
         op->verified = 0;
         op->residual = -1;
         if (map_sites(c, m, i, fmax(o.site_tol_ang, o.symprec_ang)) != 0) continue;
-        rc = verify_op(c, e, i, ks, o.nk, buf, &op->residual, err);
+        rc = verify_op(c, use, i, ks, o.nk, buf, &op->residual, err);
         if (rc != 0) goto done;
         op->verified = op->residual <= o.tol;
         c->nverified += op->verified;

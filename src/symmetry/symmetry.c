@@ -57,6 +57,7 @@ static double sm64_unit(uint64_t *state)
 
 void sym_opts_default(sym_opts *o)
 {
+    memset(o, 0, sizeof *o);
     o->nk = 6;
     o->seed = 1;
     /* 1e-6 relative: exact models verify at round-off (1e-15); hopping tables printed with six
@@ -82,6 +83,7 @@ static void opts_resolve(const sym_opts *in, sym_opts *o)
     if (in->pos_tol > 0) o->pos_tol = in->pos_tol;
     if (in->pos_tol_ang > 0) o->pos_tol_ang = in->pos_tol_ang;
     o->skip_inversion = in->skip_inversion;
+    o->hk = in->hk;
 }
 
 static double complex op_phase(const sym_op *op, int i, const double k[3])
@@ -610,7 +612,11 @@ int sym_detect(const tb_model *m, const sym_opts *opts, sym_info **out, bs_err *
     s->spinful = m->spinful;
     s->tr_squared = m->spinful ? -1 : 1;
     s->inv_residual = s->inv_residual_ev = -1;
-    rc = hk_create(m, 2, &c.hk, err);
+    hk_engine *own = NULL;
+    if (o.hk && hk_norb(o.hk) == n && hk_max_batch(o.hk) >= 2)
+        c.hk = o.hk;
+    else
+        rc = hk_create(m, 2, &own, err), c.hk = own;
     if (rc != 0) goto done;
     draw_kpoints(&c, o.seed);
     rc = detect_tr(&c, s, err);
@@ -623,7 +629,7 @@ int sym_detect(const tb_model *m, const sym_opts *opts, sym_info **out, bs_err *
     }
 done:
     sym_info_free(s);
-    hk_free(c.hk);
+    hk_free(own);
     free(c.kpts);
     free(c.H);
     free(c.ph);

@@ -23,6 +23,7 @@ struct bp_eval {
     hk_lines *lines; /* partial sums for batches along mesh rows */
     eig_ws *ws;
     int norb, nocc, dim, batch, use_range;
+    int even; /* E(-k) = E(k) to round-off: meshes evaluate one point of each pair k, -k */
     double deadline;
     const eig_dist *dist; /* borrowed, NULL: LAPACK */
     double complex *H;    /* batch * norb^2 */
@@ -82,6 +83,34 @@ void bp_free(bp_eval *e)
     free(e->H);
     free(e->w);
     free(e);
+}
+
+void bp_set_even(bp_eval *e, int even)
+{
+    e->even = even;
+}
+
+int bp_even(const bp_eval *e)
+{
+    return e->even;
+}
+
+/* Index along one direction of the mesh point -k for index i at offset o (0 or 1/2 steps):
+ * -(i + o)/n = (n - i - 2 o)/n modulo 1; -1 for other offsets (no partner on the mesh). */
+static int mesh_partner(int n, int i, double o)
+{
+    if (o == 0.0) return (n - i) % n;
+    if (o == 0.5) return n - 1 - i;
+    return -1;
+}
+
+/* The row (k2, k3 fixed) of the points -k of row `row`, or -1. */
+static int partner_row(const bp_mesh *g, int row)
+{
+    int n = g->n, i2 = row % n, i3 = g->dim == 3 ? row / n : 0;
+    int j2 = mesh_partner(n, i2, g->off[1]), j3 = g->dim == 3 ? mesh_partner(n, i3, g->off[2]) : 0;
+    if (j2 < 0 || j3 < 0 || mesh_partner(n, 0, g->off[0]) < 0) return -1;
+    return j2 + n * j3;
 }
 
 long long bp_count(const bp_eval *e)
@@ -149,14 +178,26 @@ int bp_mesh_eval_offset(bp_eval *e, int n, const double off[3], bp_mesh **out, b
     if (!g->lo || !g->hi || !k)
         rc = bs_fail(err, BS_ENOMEM, "band mesh: out of memory for %d points", g->npts);
     /* Row by row (k1 varies fastest): each call's points share k2 and k3, so the H(k) build runs
-     * from partial sums along the row (hk_lines_build). */
-    for (int r0 = 0; rc == 0 && r0 < g->npts; r0 += n)
+     * from partial sums along the row (hk_lines_build). With E(-k) = E(k) (e->even) a row whose
+     * partner row of points -k came earlier is copied from it instead: the meshes at offsets 0 and
+     * 1/2 are closed under k -> -k, so about half of the rows are diagonalised. */
+    for (int r0 = 0; rc == 0 && r0 < g->npts; r0 += n) {
+        int pr = e->even ? partner_row(g, r0 / n) : -1;
+        if (pr >= 0 && pr < r0 / n) {
+            for (int i1 = 0; i1 < n; i1++) {
+                int j = pr * n + mesh_partner(n, i1, g->off[0]);
+                g->lo[r0 + i1] = g->lo[j];
+                g->hi[r0 + i1] = g->hi[j];
+            }
+            continue;
+        }
         for (int i0 = r0; rc == 0 && i0 < r0 + n; i0 += chunk) {
             int nb = r0 + n - i0 < chunk ? r0 + n - i0 : chunk;
             for (int j = 0; j < nb; j++)
                 bp_mesh_k(g, i0 + j, k + 3 * j);
             rc = bp_bands(e, nb, k, g->lo + i0, g->hi + i0, err);
         }
+    }
     free(k);
     if (rc != 0) {
         bp_mesh_free(g);
@@ -252,8 +293,51 @@ typedef struct stencil_best {
  * cone) and the minimised function itself otherwise. grad receives b, vec the eigenvectors of A
  * (columns) and ev its eigenvalues, ascending (per r^2). Returns 0, 1 when the fit fails, or a
  * negative error code. */
-static int fit_quad(bp_eval *e, int what, const double x[3], double r, double grad[3], double vec[9],
-                    double ev[3], stencil_best *sb, bs_err *err)
+/* 1 when x is a time-reversal-invariant momentum (2x integer in every direction of the model). */
+static int at_trim(int dim, const double x[3])
+{
+    for (int a = 0; a < dim; a++) {
+        double t = 2.0 * x[a];
+        if (fabs(t - nearbyint(t)) > 1e-12) return 0;
+    }
+    return 1;
+}
+
+/* The stencil's band values. centre (lo, hi at x itself, or NULL) is reused, not recomputed. With
+ * E(-k) = E(k) and x a time-reversal-invariant momentum, x - r d = -(x + r d) modulo a reciprocal
+ * vector, so the point of offset -d (index np - 1 - p) has the values of offset d: half the stencil
+ * is diagonalised (a minimum at such a point, the usual case of a band edge, keeps the minimiser
+ * there while its radius shrinks to tol_k, so this halves most refinements). */
+static int stencil_bands(bp_eval *e, const double x[3], const double *k, int np, const double *centre,
+                         double *lo, double *hi, bs_err *err)
+{
+    int mirror = e->even && at_trim(e->dim, x), mid = np / 2, nk = 0, idx[27];
+    double kk[27 * 3], l[27], h[27];
+    for (int p = 0; p < np; p++) {
+        if ((p == mid && centre) || (mirror && p > mid)) continue;
+        memcpy(kk + 3 * nk, k + 3 * p, 3 * sizeof *kk);
+        idx[nk++] = p;
+    }
+    int rc = bp_bands(e, nk, kk, l, h, err);
+    if (rc != 0) return rc;
+    for (int j = 0; j < nk; j++) {
+        lo[idx[j]] = l[j];
+        hi[idx[j]] = h[j];
+    }
+    if (centre) {
+        lo[mid] = centre[0];
+        hi[mid] = centre[1];
+    }
+    if (mirror)
+        for (int p = mid + 1; p < np; p++) {
+            lo[p] = lo[np - 1 - p];
+            hi[p] = hi[np - 1 - p];
+        }
+    return 0;
+}
+
+static int fit_quad(bp_eval *e, int what, const double x[3], double r, const double *centre, double grad[3],
+                    double vec[9], double ev[3], stencil_best *sb, bs_err *err)
 {
     int dim = e->dim, np = dim == 3 ? 27 : 9, nc = dim == 3 ? 10 : 6;
     double k[27 * 3], lo[27], hi[27], off[27][3];
@@ -265,7 +349,7 @@ static int fit_quad(bp_eval *e, int what, const double x[3], double r, double gr
             k[3 * p + a] = x[a] + r * off[p][a];
         }
     }
-    int rc = bp_bands(e, np, k, lo, hi, err);
+    int rc = stencil_bands(e, x, k, np, centre, lo, hi, err);
     if (rc != 0) return rc;
     if (sb) {
         sb->f = INFINITY;
@@ -310,12 +394,12 @@ static int fit_quad(bp_eval *e, int what, const double x[3], double r, double gr
 
 /* The Newton point of the fit restricted to the fit's positive curvatures: along a nodal line the
  * curvature vanishes and only the perpendicular part of the step is taken. Returns as fit_quad. */
-static int quad_fit_step(bp_eval *e, int what, const double x[3], double r, double xn[3], stencil_best *sb,
-                         bs_err *err)
+static int quad_fit_step(bp_eval *e, int what, const double x[3], double r, const double centre[2],
+                         double xn[3], stencil_best *sb, bs_err *err)
 {
     int dim = e->dim;
     double grad[3] = {0}, A[9], ev[3];
-    int rc = fit_quad(e, what, x, r, grad, A, ev, sb, err);
+    int rc = fit_quad(e, what, x, r, centre, grad, A, ev, sb, err);
     if (rc != 0) return rc;
     double emax = ev[dim - 1];
     if (!(emax > 0)) return 1;
@@ -341,7 +425,7 @@ static int quad_fit_step(bp_eval *e, int what, const double x[3], double r, doub
 int bp_gap_curvature(bp_eval *e, const double k[3], double r, double ev[3], double vec[9], bs_err *err)
 {
     double grad[3];
-    int rc = fit_quad(e, BP_GAP, k, r, grad, vec, ev, NULL, err);
+    int rc = fit_quad(e, BP_GAP, k, r, NULL, grad, vec, ev, NULL, err);
     if (rc < 0) return rc;
     if (rc > 0) return bs_fail(err, BS_ENUMERIC, "gap curvature: least-squares fit failed");
     for (int j = 0; j < e->dim; j++)
@@ -367,7 +451,8 @@ int bp_minimise(bp_eval *e, int what, const double k0[3], double step0, double t
     for (int it = 0; r >= tol_k && it < 2000; it++) {
         double xn[3], l = 0, h = 0;
         stencil_best sb;
-        int fit = quad_fit_step(e, what, x, r, xn, &sb, err);
+        const double centre[2] = {lx, hx};
+        int fit = quad_fit_step(e, what, x, r, centre, xn, &sb, err);
         if (fit < 0) return fit;
         double fn = INFINITY;
         if (fit == 0) {

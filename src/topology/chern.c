@@ -66,10 +66,16 @@ int chern_create(const tb_model *m, int nband, chern_ws **out, bs_err *err)
 
 int chern_create_dist(const tb_model *m, int nband, const eig_dist *dist, chern_ws **out, bs_err *err)
 {
+    return chern_create_shared(m, nband, dist, NULL, out, err);
+}
+
+int chern_create_shared(const tb_model *m, int nband, const eig_dist *dist, hk_engine *hk, chern_ws **out,
+                        bs_err *err)
+{
     *out = NULL;
     chern_ws *w = calloc(1, sizeof *w);
     if (!w) return bs_fail(err, BS_ENOMEM, "Chern workspace: out of memory");
-    int rc = occ_create(m, nband, dist, &w->occ, err);
+    int rc = occ_create_shared(m, nband, dist, hk, &w->occ, err);
     if (rc != 0) goto done;
     w->m = m;
     w->norb = m->norb;

@@ -44,6 +44,15 @@ typedef struct diag_ctx {
     nodes_result nodes;
 } diag_ctx;
 
+/* Evidence accounting: appends "stage:eigensolves" to r->evidence (the sum over the stages is
+ * r->nk_evaluated; the text is cut, never the count, when it is full). */
+static void account(res_diag *r, const char *stage, long long nk)
+{
+    size_t used = strlen(r->evidence);
+    if (used + 1 < sizeof r->evidence)
+        snprintf(r->evidence + used, sizeof r->evidence - used, "%s%s:%lld", used ? "," : "", stage, nk);
+}
+
 int diag_default_mesh(int dim)
 {
     return dim == 2 ? 36 : 14;
@@ -196,6 +205,9 @@ static int run_symmetry(diag_ctx *c, res_diag *r, bs_err *err)
     if (c->o && c->o->seed) so.seed = c->o->seed;
     if (c->o && c->o->symmetry_tol > 0) so.tol = c->o->symmetry_tol;
     if (c->o && c->o->pos_tol_ang > 0) so.pos_tol_ang = c->o->pos_tol_ang;
+    /* One coefficient table per material: the checks of other spin layouts (check_spin_layout)
+     * read the same H(R) under other labels, so they share it too. */
+    so.hk = c->hk;
     int rc = sym_detect(c->m, &so, &c->sym, err);
     if (rc != 0) return rc;
     c->mag = c->o && c->o->magnetism > 0 ? c->o->magnetism - 1 : c->m->magnetism;
@@ -303,9 +315,19 @@ static int run_breaking(diag_ctx *c, res_diag *r, int gapless, bs_err *err)
     return which ? restore(c, r, which, err) : 0;
 }
 
+/* Relative residual (sym_detect's) below which time reversal or inversion makes E(-k) = E(k) hold
+ * to round-off, so that the gap and node meshes evaluate one point of each pair k, -k. Exact
+ * symmetries of published models sit at ~1e-16; a fit's approximate ones at 1e-5..1e-2 are not
+ * used: their H is not even, and the symmetry-free quantities are computed on H as given. */
+#define DIAG_EVEN_RESIDUAL 1e-12
+
 static int run_gaps(diag_ctx *c, res_diag *r, bs_err *err)
 {
     int rc = bp_create_dist(c->m, c->hk, c->o ? c->o->dist : NULL, c->deadline, &c->bp, err);
+    const sym_info *s = c->sym;
+    if (rc == 0)
+        bp_set_even(c->bp, (s->time_reversal && s->tr_residual <= DIAG_EVEN_RESIDUAL) ||
+                               (s->inversion && s->inv_residual <= DIAG_EVEN_RESIDUAL));
     if (rc == 0) rc = bp_mesh_eval(c->bp, r->mesh, &c->mesh, err);
     if (rc != 0) return rc;
     gaps_opts go;
@@ -323,11 +345,15 @@ static int run_parity(diag_ctx *c, res_diag *r, bs_err *err)
     par_opts po;
     par_opts_default(&po);
     po.dist = c->o ? c->o->dist : NULL;
+    po.hk = c->zm == c->m ? c->hk : NULL; /* the restored model has tables of its own */
     par_result pr;
     int rc = par_z2(c->zm, c->sym, &po, &pr, err);
     if (rc != 0) return rc;
     if (pr.status == PAR_NA) return 0;
     r->ntrim = pr.ntrim;
+    /* One diagonalisation of H at each time-reversal-invariant momentum. */
+    r->nk_evaluated += pr.ntrim;
+    account(r, "parity", pr.ntrim);
     for (int t = 0; t < pr.ntrim; t++) {
         r->par_delta[t] = pr.delta[t];
         r->par_nodd[t] = pr.nodd[t];
@@ -354,7 +380,8 @@ static int run_wcc(diag_ctx *c, res_diag *r, bs_err *err)
     /* The flow needs time reversal only: with time reversal exact it is computed on H itself, so
      * that restoring inversion (for the parities) leaves it untouched. */
     const tb_model *wm = c->tr_exact ? c->m : c->zm;
-    int rc = wilson_create_dist(wm, c->m->nocc, c->o ? c->o->dist : NULL, &w, err);
+    int rc =
+        wilson_create_shared(wm, c->m->nocc, c->o ? c->o->dist : NULL, wm == c->m ? c->hk : NULL, &w, err);
     if (rc != 0) return rc;
     wilson_opts wo;
     wilson_opts_default(&wo);
@@ -370,6 +397,7 @@ static int run_wcc(diag_ctx *c, res_diag *r, bs_err *err)
     rc = wilson_z2_run(w, &wo, &wz, err);
     if (rc == 0) {
         r->nk_evaluated += wz.nk;
+        account(r, "wcc", wz.nk);
         if (wz.status == RES_DONE) {
             r->z2_wcc_status = RES_DONE;
             memcpy(r->z2_wcc, wz.z2, sizeof wz.z2);
@@ -391,7 +419,7 @@ static int run_wcc(diag_ctx *c, res_diag *r, bs_err *err)
 static int run_chern(diag_ctx *c, res_diag *r, bs_err *err)
 {
     chern_ws *cw = NULL;
-    int rc = chern_create_dist(c->m, c->m->nocc, c->o ? c->o->dist : NULL, &cw, err);
+    int rc = chern_create_shared(c->m, c->m->nocc, c->o ? c->o->dist : NULL, c->hk, &cw, err);
     if (rc != 0) return rc;
     chern_opts co;
     chern_opts_default(&co, 0);
@@ -399,6 +427,7 @@ static int run_chern(diag_ctx *c, res_diag *r, bs_err *err)
     if (r->mesh > co.mesh) co.mesh = r->mesh;
     if (co.max_mesh < 4 * co.mesh) co.max_mesh = 4 * co.mesh;
     int first = c->m->dim == 2 ? 4 : 0, last = c->m->dim == 2 ? 4 : 5;
+    long long before = r->nk_evaluated;
     r->chern_status = RES_DONE;
     for (int p = first; rc == 0 && p <= last; p++) {
         chern_value v;
@@ -409,6 +438,7 @@ static int run_chern(diag_ctx *c, res_diag *r, bs_err *err)
         if (v.status != RES_DONE) r->chern_status = RES_AMBIGUOUS;
         if (p == 4) r->chern = v.chern;
     }
+    account(r, "chern", r->nk_evaluated - before);
     chern_free(cw);
     return rc;
 }
@@ -460,6 +490,7 @@ static int run_nodes(diag_ctx *c, res_diag *r, bs_err *err)
     gaps_merge_nodes(&c->gaps, &c->nodes);
     take_nodes(&c->nodes, r);
     r->nk_evaluated += flux_nk > 0 ? flux_nk : 0;
+    account(r, "nodes", bp_count(c->bp) - before + (flux_nk > 0 ? flux_nk : 0));
     return 0;
 }
 
@@ -615,12 +646,13 @@ static void classify_gapless(res_diag *r, int degenerate, int tr_exact, int inv_
 
 /* What the classification needs to know about the symmetry call besides r. */
 typedef struct sym_call {
-    int tr_physical;   /* diag_ctx.tr_physical */
-    int both_readings; /* time reversal neither approximate nor physically broken: r's Z2 (if
-                          any) is the reading of the time-reversal-restored model */
-    int spinful;       /* the model has Kramers pairs when time reversal holds */
-    double tr_fit_ev;  /* upper bound of a fit-like (incoherent, symfit.h) time-reversal
-                          breaking when the card does not say magnetic, else 0 */
+    int tr_physical;        /* diag_ctx.tr_physical */
+    int both_readings;      /* time reversal neither approximate nor physically broken: r's Z2 (if
+                               any) is the reading of the time-reversal-restored model */
+    int spinful;            /* the model has Kramers pairs when time reversal holds */
+    double tr_fit_ev;       /* upper bound of a fit-like (incoherent, symfit.h) time-reversal
+                               breaking when the card does not say magnetic, else 0 */
+    int crosscheck_skipped; /* the parities were decisive and the flow was not computed */
 } sym_call;
 
 static void classify_no_tr(res_diag *r, const sym_call *sc, double small)
@@ -735,8 +767,12 @@ static void classify_insulator(res_diag *r, int kramers, const sym_call *sc)
     }
     int both = r->z2_parity_status == RES_DONE && r->z2_wcc_status == RES_DONE;
     int other_ambiguous = r->z2_parity_status == RES_AMBIGUOUS || r->z2_wcc_status == RES_AMBIGUOUS;
-    double conf = (both ? 0.97 : other_ambiguous ? 0.6 : 0.9) * small;
-    const char *how = both                              ? "parity and Wannier-centre flow agree"
+    /* Decisive parities whose cross-check was skipped start where two agreeing methods do; the
+     * caller caps the result at DIAG_SKIPPED_CONFIDENCE after the margin factor, so that the
+     * confidence stays continuous and non-decreasing in the margin across the tier boundary. */
+    double conf = (both || sc->crosscheck_skipped ? 0.97 : other_ambiguous ? 0.6 : 0.9) * small;
+    const char *how = both                     ? "parity and Wannier-centre flow agree"
+                      : sc->crosscheck_skipped ? "from decisive parities; Wannier-centre cross-check skipped"
                       : r->z2_parity_status == RES_DONE ? "from parities only"
                                                         : "from the Wannier-centre flow";
     if (r->dim == 2) {
@@ -956,6 +992,7 @@ static int run_crystal(diag_ctx *c, res_diag *r, int kramers, bs_err *err)
     r->z4 = c->z4;
     cry_opts o;
     cry_opts_default(&o);
+    o.hk = c->hk;
     cry_info *ci = NULL, *ci_sym = NULL;
     tb_model *msym = NULL;
     bs_err local;
@@ -1066,6 +1103,7 @@ static int check_gapless_artefact(diag_ctx *c, res_diag *r, bs_err *err)
     if (rc == 0) rc = hk_create(ms, 64, &hk, err);
     if (rc == 0) rc = gaps_find(ms, hk, &go, &g, err);
     if (rc == 0) r->nk_evaluated += g.nk_evaluated;
+    if (rc == 0) account(r, "gaps_restored", g.nk_evaluated);
     if (rc == 0 && !g.closed && !g.metallic && moved > 0) {
         double margin = g.gap_direct_ev / (2 * moved);
         r->confidence *= symfit_confidence_factor(margin);
@@ -1122,6 +1160,46 @@ static void append_small_gap_note(res_diag *r)
     }
 }
 
+/* Evidence in tiers. With time reversal (Kramers pairs) and inversion, the Z2 indices are products
+ * of parity eigenvalues at the eight time-reversal-invariant momenta (Phys. Rev. B 76, 045302
+ * (2007)): eight eigensolves against thousands for the six planes of Wannier-centre strings. The
+ * parities are decisive, and the flow (their cross-check) is skipped, when
+ *  - the diagnosis is 3D with at least tier_min_norb states (below it, or in 2D where the flow is
+ *    one plane, the cross-check is cheap and always runs), and neither opts->verify nor a rescreen
+ *    asked for every method;
+ *  - both symmetries hold: exact, or approximate and restored by averaging with a safe margin
+ *    (SYMFIT_MARGIN_SAFE: a restored model joined to H without closing the gap);
+ *  - the gap is wide: the direct gap is at least DIAG_WIDE_GAP_FRACTION of the two bands' width
+ *    (2.5 times the fraction below which nodes are searched), the indirect gap at least 5 meV (the
+ *    "near a transition" line of the reasons) and sure against the gap search's resolution, and
+ *    the search converged. A closing the coarse mesh missed, which the strings would find, needs a
+ *    gap of the order of the mesh's resolution; a wide gap leaves no room for one.
+ * What is left out of such a diagnosis is what the cross-check guards against: an inversion map that
+ * is wrong for the orbitals (a wrong l on the card). Hence the confidence cap of
+ * DIAG_SKIPPED_CONFIDENCE, just under that of two agreeing methods. */
+#define DIAG_WIDE_GAP_FRACTION  0.05
+#define DIAG_SKIPPED_CONFIDENCE 0.96
+
+static int parities_decisive(const diag_ctx *c, res_diag *r, int searched)
+{
+    const tb_model *m = c->m;
+    int min_norb = c->o && c->o->tier_min_norb > 0 ? c->o->tier_min_norb : DIAG_TIER_MIN_NORB;
+    if ((c->o && c->o->verify) || m->dim != 3 || m->norb < min_norb) return 0;
+    if (r->z2_parity_status != RES_DONE || !r->inversion || !r->time_reversal || searched) return 0;
+    if (r->restored && !(r->margin >= SYMFIT_MARGIN_SAFE)) return 0;
+    const gaps_result *g = &c->gaps;
+    if (g->closed || g->metallic || !g->converged ||
+        g->gap_direct_ev < DIAG_WIDE_GAP_FRACTION * g->width_ev || g->gap_indirect_ev < 5e-3 ||
+        gaps_unsure(g->gap_indirect_ev, g->resolution_ev))
+        return 0;
+    snprintf(r->evidence_skipped, sizeof r->evidence_skipped,
+             "wcc: parities decisive (time reversal and inversion %s, direct gap %.3g eV, %.0f%% of the "
+             "two bands' width); --verify computes it",
+             r->restored ? "restored with a safe margin" : "exact", g->gap_direct_ev,
+             100 * g->gap_direct_ev / g->width_ev);
+    return 1;
+}
+
 int diag_run(const tb_model *m, const diag_opts *opts, res_diag *r, bs_err *err)
 {
     double t0 = bs_now();
@@ -1144,6 +1222,7 @@ int diag_run(const tb_model *m, const diag_opts *opts, res_diag *r, bs_err *err)
     int rc = hk_create(m, diag_batch(m->norb), &c.hk, err);
     if (rc == 0) rc = run_symmetry(&c, r, err);
     if (rc == 0) rc = run_gaps(&c, r, err);
+    if (rc == 0) account(r, "gaps", bp_count(c.bp));
     int gapless = 0, kramers = 0, searched = 0, direct_open = 0;
     if (rc == 0) {
         /* In 3D a small refined gap may hide Weyl nodes between the gap search's basins: search for
@@ -1159,13 +1238,17 @@ int diag_run(const tb_model *m, const diag_opts *opts, res_diag *r, bs_err *err)
         gapless = c.gaps.closed || c.gaps.metallic;
         rc = run_breaking(&c, r, !direct_open, err);
     }
-    sym_call sc = {0, 0, m->spinful, 0};
+    sym_call sc = {0, 0, m->spinful, 0, 0};
     if (rc == 0) {
         /* Symmetry-protected quantities on c.zm (the restored model when one was built), the
          * symmetry-free ones (gaps, nodes, Chern numbers) on m as given. */
         kramers = r->time_reversal && c.sym->tr_squared == -1;
         if (direct_open && kramers && r->inversion) rc = run_parity(&c, r, err);
-        if (rc == 0 && direct_open && kramers) rc = run_wcc(&c, r, err);
+        /* Tiers: the flow is the cross-check of decisive parities, and the only method without them. */
+        if (rc == 0 && direct_open && kramers && parities_decisive(&c, r, searched))
+            sc.crosscheck_skipped = 1;
+        else if (rc == 0 && direct_open && kramers)
+            rc = run_wcc(&c, r, err);
         /* A thin margin is checked against the symmetry-free Chern number, which must vanish if
          * the restored time reversal describes H. */
         int thin = (r->restored & SYMFIT_TR) && r->margin < SYMFIT_MARGIN_SAFE;
@@ -1198,8 +1281,12 @@ int diag_run(const tb_model *m, const diag_opts *opts, res_diag *r, bs_err *err)
         else
             classify_insulator(r, kramers, &sc);
         apply_margin(r);
+        if (sc.crosscheck_skipped && !gapless && r->confidence > DIAG_SKIPPED_CONFIDENCE)
+            r->confidence = DIAG_SKIPPED_CONFIDENCE;
         if (gapless) rc = check_gapless_artefact(&c, r, err);
+        long long before = r->nk_evaluated;
         if (rc == 0) rc = run_crystal(&c, r, kramers, err);
+        if (rc == 0 && r->nk_evaluated > before) account(r, "mirror_chern", r->nk_evaluated - before);
         append_small_gap_note(r);
         append_unsure_gap(r);
     }

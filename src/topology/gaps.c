@@ -78,11 +78,14 @@ static int ends_add(gaps_ends *s, const double k[3], double v, bs_err *err)
 }
 
 /* A start at mesh value f0 within one and a half mesh steps of an end point no higher than f0 is
- * in a basin already refined. */
-static int explored(const gaps_ends *s, int dim, const double k0[3], double f0, double step)
+ * in a basin already refined; with E(-k) = E(k) (even) so is a start whose mirror -k0 is. */
+static int explored(const gaps_ends *s, int dim, const double k0[3], double f0, double step, int even)
 {
+    const double mk[3] = {-k0[0], -k0[1], -k0[2]};
     for (int i = 0; i < s->n; i++)
-        if (s->v[i] <= f0 && bp_kdist(dim, k0, s->k[i]) < 1.5 * step) return 1;
+        if (s->v[i] <= f0 &&
+            (bp_kdist(dim, k0, s->k[i]) < 1.5 * step || (even && bp_kdist(dim, mk, s->k[i]) < 1.5 * step)))
+            return 1;
     return 0;
 }
 
@@ -130,7 +133,7 @@ static int refine_quantity(bp_eval *e, const bp_mesh *g, const double *f, int *i
         if (plateau_repeat(g, f, i)) continue;
         double k0[3], k[3], v, lo, hi;
         bp_mesh_k(g, i, k0);
-        if (explored(ends, g->dim, k0, f[i], step)) continue;
+        if (explored(ends, g->dim, k0, f[i], step, bp_even(e))) continue;
         rc = bp_minimise(e, q, k0, step, tol_k, k, &v, &lo, &hi, err);
         if (rc == 0) rc = ends_add(ends, k, v, err);
         if (rc == 0) best_update(b, k, lo, hi);

@@ -16,7 +16,8 @@ enum { OCC_BATCH_ELEMENTS = 64 * 200 * 200, OCC_MAX_BATCH = 64 };
 struct occ_ws {
     int norb, nband, batch;
     hk_engine *hk;
-    hk_lines *lines; /* partial sums for batches along strings and mesh rows */
+    hk_engine *own_hk; /* hk when built here, NULL when borrowed */
+    hk_lines *lines;   /* partial sums for batches along strings and mesh rows */
     eig_ws *eig;
     double complex *H; /* batch x norb x norb */
     double complex *Z; /* norb x (nband + 1) */
@@ -26,6 +27,12 @@ struct occ_ws {
 };
 
 int occ_create(const tb_model *m, int nband, const eig_dist *dist, occ_ws **out, bs_err *err)
+{
+    return occ_create_shared(m, nband, dist, NULL, out, err);
+}
+
+int occ_create_shared(const tb_model *m, int nband, const eig_dist *dist, hk_engine *hk, occ_ws **out,
+                      bs_err *err)
 {
     *out = NULL;
     if (nband < 1 || nband >= m->norb)
@@ -38,7 +45,13 @@ int occ_create(const tb_model *m, int nband, const eig_dist *dist, occ_ws **out,
     long long per = (long long)m->norb * m->norb;
     long long b = OCC_BATCH_ELEMENTS / per;
     w->batch = b < 1 ? 1 : (b > OCC_MAX_BATCH ? OCC_MAX_BATCH : (int)b);
-    rc = hk_create(m, w->batch, &w->hk, err);
+    if (hk && hk_norb(hk) == m->norb) {
+        w->hk = hk;
+        if (w->batch > hk_max_batch(hk)) w->batch = hk_max_batch(hk);
+    } else {
+        rc = hk_create(m, w->batch, &w->own_hk, err);
+        w->hk = w->own_hk;
+    }
     if (rc != 0) goto done;
     rc = hk_lines_create(w->hk, &w->lines, err);
     if (rc != 0) goto done;
@@ -65,7 +78,7 @@ void occ_free(occ_ws *w)
 {
     if (!w) return;
     hk_lines_free(w->lines);
-    hk_free(w->hk);
+    hk_free(w->own_hk);
     eig_free(w->eig);
     free(w->H);
     free(w->Z);

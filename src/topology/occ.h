@@ -8,6 +8,7 @@
 
 #include "bandsieve/eig.h"
 #include "bandsieve/err.h"
+#include "bandsieve/hk.h"
 #include "bandsieve/model.h"
 
 typedef struct occ_ws occ_ws;
@@ -16,6 +17,11 @@ typedef struct occ_ws occ_ws;
  * diagonalised by dist (borrowed; NULL: LAPACK). The caller owns *out. BS_EINVAL on a bad nband,
  * BS_ENOMEM. */
 int occ_create(const tb_model *m, int nband, const eig_dist *dist, occ_ws **out, bs_err *err);
+
+/* As occ_create, reading H(k) from hk (borrowed; an engine of m's H(R), which must outlive the
+ * workspace; NULL: build one), so that one coefficient table serves every stage of a diagnosis. */
+int occ_create_shared(const tb_model *m, int nband, const eig_dist *dist, hk_engine *hk, occ_ws **out,
+                      bs_err *err);
 
 /* Frees w; accepts NULL. */
 void occ_free(occ_ws *w);

@@ -26,6 +26,7 @@ void par_opts_default(par_opts *o)
 typedef struct par_ws {
     int n, nocc;
     hk_engine *hk;
+    hk_engine *own_hk; /* hk when built here, NULL when borrowed */
     eig_ws *eig_n, *eig_occ;
     double complex *H;  /* n^2 */
     double complex *V;  /* n x (nocc+1) eigenvectors */
@@ -36,7 +37,7 @@ typedef struct par_ws {
 
 static void ws_free(par_ws *ws)
 {
-    hk_free(ws->hk);
+    hk_free(ws->own_hk);
     eig_free(ws->eig_n);
     eig_free(ws->eig_occ);
     free(ws->H);
@@ -46,13 +47,17 @@ static void ws_free(par_ws *ws)
     free(ws->w);
 }
 
-static int ws_create(const tb_model *m, const eig_dist *dist, par_ws *ws, bs_err *err)
+static int ws_create(const tb_model *m, const eig_dist *dist, hk_engine *shared, par_ws *ws, bs_err *err)
 {
     memset(ws, 0, sizeof *ws);
     int n = m->norb, no = m->nocc;
     ws->n = n;
     ws->nocc = no;
-    int rc = hk_create(m, 1, &ws->hk, err);
+    int rc = 0;
+    if (shared && hk_norb(shared) == n)
+        ws->hk = shared;
+    else
+        rc = hk_create(m, 1, &ws->own_hk, err), ws->hk = ws->own_hk;
     if (rc == 0) rc = eig_create_dist(n, dist, &ws->eig_n, err);
     if (rc == 0) rc = eig_create(no, &ws->eig_occ, err);
     if (rc != 0) return rc;
@@ -182,6 +187,7 @@ int par_z2(const tb_model *m, const sym_info *s, const par_opts *opts, par_resul
     if (opts && opts->gap_tol_ev > 0) o.gap_tol_ev = opts->gap_tol_ev;
     if (opts && opts->parity_tol > 0) o.parity_tol = opts->parity_tol;
     if (opts) o.dist = opts->dist;
+    if (opts) o.hk = opts->hk;
     result_init(m, out);
     if (s->norb != m->norb)
         return bs_fail(err, BS_EINVAL, "parity: symmetry record for %d states, model has %d", s->norb,
@@ -200,7 +206,7 @@ int par_z2(const tb_model *m, const sym_info *s, const par_opts *opts, par_resul
                  "Kramers partners need not share their parity");
     }
     par_ws ws;
-    int rc = ws_create(m, o.dist, &ws, err);
+    int rc = ws_create(m, o.dist, o.hk, &ws, err);
     for (int t = 0; t < out->ntrim && rc == 0; t++)
         rc = one_trim(&ws, s, &o, kramers, t, out, err);
     ws_free(&ws);

@@ -107,10 +107,16 @@ int wilson_create(const tb_model *m, int nband, wilson_ws **out, bs_err *err)
 
 int wilson_create_dist(const tb_model *m, int nband, const eig_dist *dist, wilson_ws **out, bs_err *err)
 {
+    return wilson_create_shared(m, nband, dist, NULL, out, err);
+}
+
+int wilson_create_shared(const tb_model *m, int nband, const eig_dist *dist, hk_engine *hk, wilson_ws **out,
+                         bs_err *err)
+{
     *out = NULL;
     wilson_ws *w = calloc(1, sizeof *w);
     if (!w) return bs_fail(err, BS_ENOMEM, "Wilson-loop workspace: out of memory");
-    int rc = occ_create(m, nband, dist, &w->occ, err);
+    int rc = occ_create_shared(m, nband, dist, hk, &w->occ, err);
     if (rc != 0) goto done;
     w->m = m;
     w->norb = m->norb;
