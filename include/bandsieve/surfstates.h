@@ -67,8 +67,9 @@ int ss_fermi_away(ss_ctx *c, double vbm, double cbm, double *fermi_ev, bs_err *e
  * (|asymmetry| <= loc_min), which in a slab thick enough are Kramers pairs of one surface. *n_mixed
  * receives their number over all TRIMs, *split_ev the largest energy spread of such states at one
  * TRIM (0 when none; the gap the hybridisation opens at a surface Dirac point), *trim the TRIM
- * index where it occurs (-1 when none). Errors of the eigensolver. */
-int ss_hybridisation(ss_ctx *c, double vbm, double cbm, int *n_mixed, double *split_ev, int *trim,
+ * index where it occurs (-1 when none), and *n_top the states inside the gap by the same margin at
+ * the TRIMs that are localised on the top surface. Errors of the eigensolver. */
+int ss_hybridisation(ss_ctx *c, double vbm, double cbm, int *n_mixed, double *split_ev, int *trim, int *n_top,
                      bs_err *err);
 
 /* Counts the crossings of fermi_ev by top- and bottom-localised slab states on the straight

@@ -297,12 +297,13 @@ int ss_fermi_away(ss_ctx *c, double vbm, double cbm, double *fermi_ev, bs_err *e
     return 0;
 }
 
-int ss_hybridisation(ss_ctx *c, double vbm, double cbm, int *n_mixed, double *split_ev, int *trim,
+int ss_hybridisation(ss_ctx *c, double vbm, double cbm, int *n_mixed, double *split_ev, int *trim, int *n_top,
                      bs_err *err)
 {
     double kt[8], margin = fmax(0.05 * (cbm - vbm), 2e-3);
     int nt, rc = 0;
     *n_mixed = 0;
+    *n_top = 0;
     *split_ev = 0;
     *trim = -1;
     ss_trims(c, kt, &nt);
@@ -312,7 +313,9 @@ int ss_hybridisation(ss_ctx *c, double vbm, double cbm, int *n_mixed, double *sp
         for (int i = 0; rc == 0 && i < c->ns; i++) {
             double e = c->E1[i];
             if (e <= vbm + margin || e >= cbm - margin) continue;
-            if (fabs(side_asymmetry(c->wt[i], c->wb[i])) > c->o.loc_min) continue;
+            double lam = side_asymmetry(c->wt[i], c->wb[i]);
+            *n_top += lam > c->o.loc_min;
+            if (fabs(lam) > c->o.loc_min) continue;
             (*n_mixed)++;
             lo = fmin(lo, e);
             hi = fmax(hi, e);

@@ -82,7 +82,7 @@ static int expected_from_z2(const slab *s, int dim, const int *z2, int a, int b)
 
 /* How far the two surfaces of the last slab still hybridise (ss_hybridisation). */
 typedef struct hyb_info {
-    int n_mixed, trim;
+    int n_mixed, trim, n_top;
     double split_ev;
 } hyb_info;
 
@@ -102,7 +102,8 @@ static int count_at(const tb_model *m, const int miller[3], int layers, ssum_res
     int nt = 0;
     if (rc == 0) rc = ss_fermi_away(c, out->vbm_ev, out->cbm_ev, &out->fermi_ev, err);
     if (rc == 0)
-        rc = ss_hybridisation(c, out->vbm_ev, out->cbm_ev, &hyb->n_mixed, &hyb->split_ev, &hyb->trim, err);
+        rc = ss_hybridisation(c, out->vbm_ev, out->cbm_ev, &hyb->n_mixed, &hyb->split_ev, &hyb->trim,
+                              &hyb->n_top, err);
     if (rc == 0) {
         ss_trims(c, kt, &nt);
         out->ntrim = nt;
@@ -158,6 +159,13 @@ static int strong_index(const tb_model *m, const int *delta, const int *z2)
 
 static const char *const TRIM_NAME[4] = {"00", "10", "01", "11"};
 
+/* A surface TRIM's name as the JSON writes it: n1n2 on a slab, n1 on a ribbon. */
+static const char *trim_name(const ssum_result *r, int t)
+{
+    static const char *const RIBBON[2] = {"0", "1"};
+    return r->kdim == 1 ? RIBBON[t & 1] : TRIM_NAME[t & 3];
+}
+
 int ssum_compute(const tb_model *m, const int miller[3], int nlayers, int max_layers, const ssum_bulk *bulk,
                  ssum_result *out, bs_err *err)
 {
@@ -174,7 +182,7 @@ int ssum_compute(const tb_model *m, const int miller[3], int nlayers, int max_la
     /* 24 points per axis hold every TRIM and the K points of hexagonal lattices. */
     int rc = ss_bulk_edges(m, 24, &out->vbm_ev, &out->cbm_ev, err);
     int start = out->layers, strong = strong_index(m, delta, z2);
-    hyb_info hyb = {0, -1, 0.0};
+    hyb_info hyb = {0, -1, 0, 0.0};
     /* Only a disagreement grows the slab: each doubling costs about eight times the last, and
      * counts that agree are the evidence, whatever the Dirac points do (see the reason below). */
     for (;;) {
@@ -197,7 +205,8 @@ int ssum_compute(const tb_model *m, const int miller[3], int nlayers, int max_la
             out->reason, sizeof out->reason,
             "%d top crossings between %s and %s where the bulk parities require an %s count, from %d up "
             "to %d layers: slab too thin or surface bands away from the Fermi level",
-            p->n_top, TRIM_NAME[p->a], TRIM_NAME[p->b], p->expected_odd ? "odd" : "even", start, out->layers);
+            p->n_top, trim_name(out, p->a), trim_name(out, p->b), p->expected_odd ? "odd" : "even", start,
+            out->layers);
         if (p->n_other > 0 && w > 0 && (size_t)w < sizeof out->reason)
             snprintf(out->reason + w, sizeof out->reason - (size_t)w,
                      "; %d crossings by states on neither surface (top and bottom states still hybridised, "
@@ -220,7 +229,13 @@ int ssum_compute(const tb_model *m, const int miller[3], int nlayers, int max_la
             snprintf(out->reason + used, sizeof out->reason - used,
                      "; slab too thin for the surface Dirac points: its two surfaces still hybridise at %s "
                      "(%d in-gap states on neither surface, spread over %.1f meV)",
-                     TRIM_NAME[hyb.trim & 3], hyb.n_mixed, 1e3 * hyb.split_ev);
+                     trim_name(out, hyb.trim), hyb.n_mixed, 1e3 * hyb.split_ev);
+        else if (strong == 1 && out->ndirac_top % 2 == 0 && hyb.n_top > 0)
+            snprintf(
+                out->reason + used, sizeof out->reason - used,
+                "; %d in-gap top-surface states at its TRIMs form no two-fold level: a Kramers pair split "
+                "by time-reversal breaking in the Hamiltonian (fit noise), or a Dirac point near a bulk edge",
+                hyb.n_top);
         else if (strong == 1 && out->ndirac_top % 2 == 0)
             snprintf(out->reason + used, sizeof out->reason - used,
                      "; no in-gap Dirac point on the top surface and no hybridised state at its TRIMs: the "
