@@ -18,6 +18,7 @@ typedef struct ss_opts {
     int nk;            /* k samples per segment for crossings (0: 240) */
     int nperp;         /* k_perp samples for projected bulk bands (0: 48) */
     double deg_tol_ev; /* eigenvalues closer than this are one degenerate level (0: 2e-3 eV) */
+    int follow_all;    /* 1: ss_crossings follows levels at every sample, without its pre-pass (a check) */
 } ss_opts;
 
 /* Fills o with the defaults (all zero, which the functions read as the defaults above). */

@@ -472,9 +472,11 @@ int ss_crossings(ss_ctx *c, const double ka[2], const double kb[2], double fermi
     int ns = c->ns, nk = c->o.nk, top = 0, bot = 0, other = 0;
     /* Levels are followed with eigenvectors only over the intervals where one may cross E_F
      * (and their end samples); elsewhere the pre-pass shows that none can. */
-    int rc = crossings_prepass(c, ka, kb, fermi_ev, err);
+    int rc = c->o.follow_all ? 0 : crossings_prepass(c, ka, kb, fermi_ev, err);
     for (int j = 0; j < nk && rc == 0; j++) {
-        int here = j > 0 && interval_active(c, j), next = j < nk - 1 && interval_active(c, j + 1);
+        int all = c->o.follow_all;
+        int here = j > 0 && (all || interval_active(c, j)),
+            next = j < nk - 1 && (all || interval_active(c, j + 1));
         if (!here && !next) continue;
         double t = (double)j / (nk - 1), k[2] = {ka[0] + t * (kb[0] - ka[0]), ka[1] + t * (kb[1] - ka[1])};
         rc = ss_bands(c, k, c->E1, c->wt, c->wb, err);
