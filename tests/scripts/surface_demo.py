@@ -49,6 +49,25 @@ def inspect(binary, source, surfaces):
     return (json.loads(out) if p.returncode == 0 else None), cpu
 
 
+def dirac_inside(binary, source, s, name):
+    """Check 2: the Dirac points of the stored plane and thickness, from `slab --json`, are two-fold
+    (a Kramers pair, common practice) and inside the bulk gap by max(5% of the gap, 2 meV) (the
+    rule of issue 14: a level at a bulk band edge is not a Dirac point), as many as stored."""
+    d = s["direction"]
+    res = subprocess.run([binary, "slab", source, "--direction", ",".join(map(str, d)), "--layers",
+                          str(s["layers"]), "--json", "--nk", "2"], capture_output=True, text=True, env=ENV)
+    if res.returncode != 0:
+        check(False, f"{name}: slab --json ran ({res.stderr.strip()[:80]})")
+        return
+    j = json.loads(res.stdout)
+    vbm, cbm = j["bulk_edges_eV"]["valence_max"], j["bulk_edges_eV"]["conduction_min"]
+    margin = max(0.05 * (cbm - vbm), 2e-3)
+    pts = j["surface_dirac_points"] + j["bottom_dirac_points"]
+    check(all(p["degeneracy"] == 2 and vbm + margin < p["energy_eV"] < cbm - margin for p in pts),
+          f"{name}: {len(pts)} Dirac points two-fold and inside the gap by {1e3 * margin:.1f} meV")
+    check(len(j["surface_dirac_points"]) == s["dirac_points_top"], f"{name}: slab shows the stored Dirac points")
+
+
 def reason_kind(s):
     r = s["reason"]
     if s["status"] == "consistent":
@@ -100,6 +119,8 @@ def main():
                       f"{i}: an even number of Dirac points is explained ({s['reason'][-90:]})")
         else:
             check(len(s["reason"]) > 20, f"{i}: inconclusive with a reason")
+        if s["dirac_points_top"] > 0:
+            dirac_inside(binary, f"{demo}:{i}", s, i)
         kinds[reason_kind(s)] += 1
         print(f"     {i}: {s['status']}, {s['layers']} layers, E = {s['fermi_eV']:.4f} eV, "
               f"Dirac points {s['dirac_points_top']}, {cpu:.1f} s CPU", flush=True)
