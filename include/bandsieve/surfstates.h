@@ -18,6 +18,7 @@ typedef struct ss_opts {
     int nk;            /* k samples per segment for crossings (0: 240) */
     int nperp;         /* k_perp samples for projected bulk bands (0: 48) */
     double deg_tol_ev; /* eigenvalues closer than this are one degenerate level (0: 2e-3 eV) */
+    int follow_all;    /* 1: ss_crossings follows levels at every sample, without its pre-pass (a check) */
 } ss_opts;
 
 /* Fills o with the defaults (all zero, which the functions read as the defaults above). */
@@ -46,17 +47,38 @@ int ss_projected_edges(ss_ctx *c, const double kpar[2], double *vmax, double *cm
  * *cbm = min of band nocc; *cbm < *vbm when there is no global gap. */
 int ss_bulk_edges(const tb_model *m, int mesh, double *vbm, double *cbm, bs_err *err);
 
-/* The Fermi level used when none is given: 60% of the way from vbm to cbm, not mid-gap, because
+/* The Fermi level used when no slab levels are known: 60% of the way from vbm to cbm, not mid-gap, because
  * particle-hole-symmetric models (Kane-Mele at lambda_v = 0, Fu-Kane-Mele) put their surface
  * Kramers points exactly at mid-gap, where a crossing count is ill-defined; without a gap
  * (cbm <= vbm) the midpoint. */
 double ss_fermi_default(double vbm, double cbm);
 
+/* The energy at which crossings are counted when none is given: inside the bulk gap (vbm, cbm),
+ * between 20% and 80% of the way up, as far as that allows from every slab level at the surface
+ * TRIMs, and at ss_fermi_default when no level lies within reach. Reasons: at a TRIM the Kramers
+ * points of the two surfaces meet and hybridise in a finite slab, so a crossing near one is
+ * classified by mixed states and followed ambiguously; the parity of the count does not depend on
+ * where in the gap it is taken (Phys. Rev. Lett. 98, 106803 (2007)); the outer fifths are left
+ * out because surface states reach deep into the slab near the bulk band edges. Without a gap,
+ * ss_fermi_default. Errors of the eigensolver. */
+int ss_fermi_away(ss_ctx *c, double vbm, double cbm, double *fermi_ev, bs_err *err);
+
+/* How far the two surfaces of the slab still hybridise: at each surface TRIM, the slab states
+ * inside the bulk gap (vbm, cbm) by max(5% of the gap, 2 meV) that are localised on neither surface
+ * (|asymmetry| <= loc_min), which in a slab thick enough are Kramers pairs of one surface. *n_mixed
+ * receives their number over all TRIMs, *split_ev the largest energy spread of such states at one
+ * TRIM (0 when none; the gap the hybridisation opens at a surface Dirac point), *trim the TRIM
+ * index where it occurs (-1 when none), and *n_top the states inside the gap by the same margin at
+ * the TRIMs that are localised on the top surface. Errors of the eigensolver. */
+int ss_hybridisation(ss_ctx *c, double vbm, double cbm, int *n_mixed, double *split_ev, int *trim, int *n_top,
+                     bs_err *err);
+
 /* Counts the crossings of fermi_ev by top- and bottom-localised slab states on the straight
  * segment from ka to kb (in-plane reduced), sampled at nk points including both ends. Bands are
  * followed from sample to sample by eigenvector overlap (so a top and a bottom band crossing each
- * other near E_F are told apart), and a crossing is classified by its weights averaged over the
- * two samples around it; nk should resolve the surface bands. n_other receives crossings by states localised
+ * other near E_F are told apart), and a crossing is classified by the weights of the followed state
+ * at the crossing point (placed by interpolation between the two samples around it and
+ * diagonalised there); nk should resolve the surface bands. n_other receives crossings by states localised
  * on neither surface, plus any change of the count below E_F that the followed bands do not explain (may be
  * NULL). */
 int ss_crossings(ss_ctx *c, const double ka[2], const double kb[2], double fermi_ev, int *n_top,

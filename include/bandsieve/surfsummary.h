@@ -32,16 +32,18 @@ typedef struct ssum_bulk {
 } ssum_bulk;
 
 /* Builds the slab of nlayers cells (0: 20 in 3D, 32 in 2D) of m (borrowed) for miller and counts
- * the crossings between every pair of surface TRIMs and the Dirac points. With the bulk parities,
- * or else the Z2 indices, each count is checked against the parity it must have, pi_a pi_b
- * (Phys. Rev. Lett. 98, 106803 (2007)): from the parities directly; from the indices as the
- * product of delta over the four bulk TRIMs projecting onto a and b, a plane of TRIMs whose
- * product the indices give. A strong TI without an odd number of in-gap top Dirac points also
- * grows the slab (its surfaces may hybridise), and the reason says when none appears. A
- * disagreement (a slab too
- * thin: its two surfaces hybridise) doubles the layers up to max_layers (0: 4 x the start,
- * capped by the state limit), and what still disagrees is RES_SURF_INCONCLUSIVE with the reason.
- * Errors of the slab builder and eigensolver. */
+ * the crossings between every pair of surface TRIMs and the Dirac points, at an energy inside the
+ * bulk gap away from the slab's levels at the surface TRIMs (ss_fermi_away). With the bulk
+ * parities, or else the Z2 indices, each count is checked against the parity it must have,
+ * pi_a pi_b (Phys. Rev. Lett. 98, 106803 (2007)): from the parities directly; from the indices as
+ * the product of delta over the four bulk TRIMs projecting onto a and b, a plane of TRIMs whose
+ * product the indices give. Only a disagreement (a slab too thin: its two surfaces hybridise)
+ * grows the slab, doubling the layers up to max_layers (0: 4 x the start, capped by the state
+ * limit); what still disagrees is RES_SURF_INCONCLUSIVE with the reason. A consistent strong TI
+ * without an odd number of in-gap top Dirac points says why in the reason: its surfaces still
+ * hybridise at a TRIM (slab too thin for the Dirac points, with the splitting), its top states at
+ * a TRIM form no two-fold level (time reversal broken in the Hamiltonian as given), or the point
+ * lies in the projected bulk bands. Errors of the slab builder and eigensolver. */
 int ssum_compute(const tb_model *m, const int miller[3], int nlayers, int max_layers, const ssum_bulk *bulk,
                  ssum_result *out, bs_err *err);
 

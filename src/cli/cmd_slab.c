@@ -51,7 +51,8 @@ static void slab_help(FILE *out)
         "  --direction h,k,l   Miller indices (coprime; h,k for a 2D model)\n"
         "  --layers N          cells in the slab (2..%d / states per cell)\n"
         "  --between A,B       the two surface TRIMs for the crossing count (default 00,10; ribbon 0,1)\n"
-        "  --fermi E           Fermi level in eV (default: 60%% of the way up the bulk gap)\n"
+        "  --fermi E           Fermi level in eV (default: inside the bulk gap, 20-80%% of the way\n"
+        "                      up, as far as it allows from the slab's levels at the surface TRIMs)\n"
         "  --surface-layers S  cells counted as a surface (default max(2, N/8))\n"
         "  --cut C             termination: orbitals at stacking coordinate [C, C+1) form a cell (default "
         "0)\n"
@@ -382,6 +383,7 @@ static int analyse(const slab *s, const tb_model *m, const slab_args *a, slab_re
     /* 24 points per axis put every TRIM and the K points of hexagonal lattices (1/3) on the mesh. */
     if (rc == 0) rc = ss_bulk_edges(m, 24, &r->vbm, &r->cbm, err);
     r->fermi = a->has_fermi ? a->fermi : ss_fermi_default(r->vbm, r->cbm);
+    if (rc == 0 && !a->has_fermi) rc = ss_fermi_away(c, r->vbm, r->cbm, &r->fermi, err);
     double kt[8];
     int nt;
     if (rc == 0) {

@@ -80,9 +80,17 @@ static int expected_from_z2(const slab *s, int dim, const int *z2, int a, int b)
     return ((c == 0 ? z2[0] : 0) + m1 * nu[0] + m2 * nu[1]) & 1;
 }
 
-/* Counts at one thickness: every pair, the Dirac points. */
+/* How far the two surfaces of the last slab still hybridise (ss_hybridisation). */
+typedef struct hyb_info {
+    int n_mixed, trim, n_top;
+    double split_ev;
+} hyb_info;
+
+/* Counts at one thickness: every pair, the Dirac points, the hybridisation at the surface TRIMs.
+ * The counting energy is chosen at each thickness away from the slab's levels at the surface
+ * TRIMs (ss_fermi_away). */
 static int count_at(const tb_model *m, const int miller[3], int layers, ssum_result *out, const int *delta,
-                    const int *z2, bs_err *err)
+                    const int *z2, hyb_info *hyb, bs_err *err)
 {
     slab *s = NULL;
     ss_ctx *c = NULL;
@@ -92,6 +100,10 @@ static int count_at(const tb_model *m, const int miller[3], int layers, ssum_res
     if (rc == 0) rc = ss_create(s, &o, &c, err);
     double kt[8];
     int nt = 0;
+    if (rc == 0) rc = ss_fermi_away(c, out->vbm_ev, out->cbm_ev, &out->fermi_ev, err);
+    if (rc == 0)
+        rc = ss_hybridisation(c, out->vbm_ev, out->cbm_ev, &hyb->n_mixed, &hyb->split_ev, &hyb->trim,
+                              &hyb->n_top, err);
     if (rc == 0) {
         ss_trims(c, kt, &nt);
         out->ntrim = nt;
@@ -145,12 +157,14 @@ static int strong_index(const tb_model *m, const int *delta, const int *z2)
     return z2 ? z2[0] & 1 : -1;
 }
 
-static int too_thin(const ssum_result *r, int strong)
-{
-    return first_disagreement(r) >= 0 || (strong == 1 && r->ndirac_top % 2 == 0);
-}
-
 static const char *const TRIM_NAME[4] = {"00", "10", "01", "11"};
+
+/* A surface TRIM's name as the JSON writes it: n1n2 on a slab, n1 on a ribbon. */
+static const char *trim_name(const ssum_result *r, int t)
+{
+    static const char *const RIBBON[2] = {"0", "1"};
+    return r->kdim == 1 ? RIBBON[t & 1] : TRIM_NAME[t & 3];
+}
 
 int ssum_compute(const tb_model *m, const int miller[3], int nlayers, int max_layers, const ssum_bulk *bulk,
                  ssum_result *out, bs_err *err)
@@ -167,11 +181,13 @@ int ssum_compute(const tb_model *m, const int miller[3], int nlayers, int max_la
     const int *z2 = bulk ? bulk->z2 : NULL;
     /* 24 points per axis hold every TRIM and the K points of hexagonal lattices. */
     int rc = ss_bulk_edges(m, 24, &out->vbm_ev, &out->cbm_ev, err);
-    if (rc == 0) out->fermi_ev = ss_fermi_default(out->vbm_ev, out->cbm_ev);
     int start = out->layers, strong = strong_index(m, delta, z2);
+    hyb_info hyb = {0, -1, 0, 0.0};
+    /* Only a disagreement grows the slab: each doubling costs about eight times the last, and
+     * counts that agree are the evidence, whatever the Dirac points do (see the reason below). */
     for (;;) {
-        if (rc == 0) rc = count_at(m, miller, out->layers, out, delta, z2, err);
-        if (rc != 0 || !too_thin(out, strong) || 2 * out->layers > max_layers) break;
+        if (rc == 0) rc = count_at(m, miller, out->layers, out, delta, z2, &hyb, err);
+        if (rc != 0 || first_disagreement(out) < 0 || 2 * out->layers > max_layers) break;
         out->layers *= 2;
     }
     if (rc != 0) return rc;
@@ -189,25 +205,41 @@ int ssum_compute(const tb_model *m, const int miller[3], int nlayers, int max_la
             out->reason, sizeof out->reason,
             "%d top crossings between %s and %s where the bulk parities require an %s count, from %d up "
             "to %d layers: slab too thin or surface bands away from the Fermi level",
-            p->n_top, TRIM_NAME[p->a], TRIM_NAME[p->b], p->expected_odd ? "odd" : "even", start, out->layers);
+            p->n_top, trim_name(out, p->a), trim_name(out, p->b), p->expected_odd ? "odd" : "even", start,
+            out->layers);
         if (p->n_other > 0 && w > 0 && (size_t)w < sizeof out->reason)
             snprintf(out->reason + w, sizeof out->reason - (size_t)w,
                      "; %d crossings by states on neither surface (top and bottom states still hybridised, "
                      "or weakly localised)",
                      p->n_other);
     } else {
-        /* The counts agree. A strong TI without an in-gap Dirac point on the top surface is still
-         * consistent: the Kramers point may lie inside the projected bulk bands; the slab was grown
-         * in case its surfaces hybridised, and the reason says so. */
+        /* The counts agree: crossings are classified where they happen, away from the TRIMs, so
+         * they hold even when the slab is too thin for its Dirac points. A strong TI has an odd
+         * number of them on every surface (Phys. Rev. Lett. 98, 106803 (2007)); an even number
+         * means either that the two surfaces still hybridise at a TRIM (states in the gap on
+         * neither surface: the slab is too thin to show the Dirac point, and the reason says so
+         * with the gap they open) or that the Kramers point lies inside the projected bulk bands. */
         out->status = RES_SURF_CONSISTENT;
-        int nodirac = strong == 1 && out->ndirac_top % 2 == 0;
-        snprintf(
+        int w = snprintf(
             out->reason, sizeof out->reason,
-            "every pair of surface TRIMs has the crossing parity the bulk requires (%d layers%s)%s",
-            out->layers, out->layers > start ? ", grown from a thinner slab whose surfaces hybridised" : "",
-            nodirac ? "; no in-gap Dirac point on the top surface: its surfaces may still hybridise, or the "
-                      "Dirac point lies in the bulk bands"
-                    : "");
+            "every pair of surface TRIMs has the crossing parity the bulk requires (%d layers%s)",
+            out->layers, out->layers > start ? ", grown from a thinner slab whose counts disagreed" : "");
+        size_t used = w > 0 && (size_t)w < sizeof out->reason ? (size_t)w : sizeof out->reason - 1;
+        if (strong == 1 && out->ndirac_top % 2 == 0 && hyb.n_mixed > 0)
+            snprintf(out->reason + used, sizeof out->reason - used,
+                     "; slab too thin for the surface Dirac points: its two surfaces still hybridise at %s "
+                     "(%d in-gap states on neither surface, spread over %.1f meV)",
+                     trim_name(out, hyb.trim), hyb.n_mixed, 1e3 * hyb.split_ev);
+        else if (strong == 1 && out->ndirac_top % 2 == 0 && hyb.n_top > 0)
+            snprintf(
+                out->reason + used, sizeof out->reason - used,
+                "; %d in-gap top-surface states at its TRIMs form no two-fold level: a Kramers pair split "
+                "by time-reversal breaking in the Hamiltonian (fit noise), or a Dirac point near a bulk edge",
+                hyb.n_top);
+        else if (strong == 1 && out->ndirac_top % 2 == 0)
+            snprintf(out->reason + used, sizeof out->reason - used,
+                     "; no in-gap Dirac point on the top surface and no hybridised state at its TRIMs: the "
+                     "Dirac point lies in the projected bulk bands");
     }
     return 0;
 }
