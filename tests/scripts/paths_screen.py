@@ -205,6 +205,22 @@ def case_transitions():
     if pts != rows(cat, "SELECT sum(npoints) FROM path_tracks WHERE family = 'Jo2Qu-pressure'")[0][0]:
         fail("track points do not add up to the tracks' npoints")
 
+    # The path figure: gap against M with the intervals shaded by class, rendered by Chromium: not
+    # blank, the trivial (grey) and Chern (teal) colours of src/cli/figures.c both present.
+    sys.path.insert(0, os.path.dirname(os.path.abspath(__file__)))
+    import figures
+    svg, png = os.path.join(d, "haldane.svg"), os.path.join(d, "haldane_shot.png")
+    run([BIN, "path", "--family", "haldane-M", s, "--samples", "21", "--figure", svg])
+    if not figures.chromium_shot(svg, png, "1300,650"):
+        fail("chromium could not render the path figure")
+    total, drawn, counts = figures.colour_stats(png)
+    grey, teal = figures.near(counts, (219, 219, 214), 10), figures.near(counts, (26, 133, 128), 10)
+    if drawn / total < 0.3 or grey < 5000 or teal < 5000:
+        fail(f"path figure: {drawn / total:.2f} drawn, {grey} trivial and {teal} Chern pixels")
+    p = run([BIN, "path", "--family", "haldane-M", s, "--figure", os.path.join(d, "x.gif")], ok=(2,))
+    if ".svg, .png or .pdf" not in p.stderr:
+        fail(f"--figure x.gif: {p.stderr}")
+
     # Again: every path is done (same members, same tolerance).
     p = screen(s, cat)
     if "0 families' paths to do, 3 already done" not in p.stderr:
