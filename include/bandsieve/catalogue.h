@@ -295,7 +295,8 @@ int cat_path_put(cat_db *cat, int64_t run_id, const cat_path_info *info, const p
  * settings, only by a finer rescreen or a change of the family), else 0. */
 int cat_path_done(cat_db *cat, const char *family, const char *content, double tol_x, int *done, bs_err *err);
 
-/* The tolerance of the stored path of family, or 0 when none is stored. */
-int cat_path_tol(cat_db *cat, const char *family, double *tol_x, bs_err *err);
+/* The tolerance of the stored path of family and the run that computed it; 0 and 0 when none is
+ * stored (run 0 also for a path stored without a run). */
+int cat_path_stored(cat_db *cat, const char *family, double *tol_x, int64_t *run_id, bs_err *err);
 
 #endif

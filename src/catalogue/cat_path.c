@@ -291,12 +291,12 @@ int cat_path_put(cat_db *cat, int64_t run_id, const cat_path_info *in, const pp_
     return rc;
 }
 
-static int path_row(cat_db *cat, const char *family, char *content, size_t len, double *tol_x, int *found,
-                    bs_err *err)
+static int path_row(cat_db *cat, const char *family, char *content, size_t len, double *tol_x,
+                    int64_t *run_id, int *found, bs_err *err)
 {
     sqlite3_stmt *st = NULL;
-    if (sqlite3_prepare_v2(cat->db, "SELECT content, tol_x FROM paths WHERE family = ?1", -1, &st, NULL) !=
-        SQLITE_OK)
+    if (sqlite3_prepare_v2(cat->db, "SELECT content, tol_x, run_id FROM paths WHERE family = ?1", -1, &st,
+                           NULL) != SQLITE_OK)
         return cat_sql_fail(cat, err, "prepare select paths");
     sqlite3_bind_text(st, 1, family, -1, SQLITE_STATIC);
     int s = sqlite3_step(st), rc = 0;
@@ -305,6 +305,7 @@ static int path_row(cat_db *cat, const char *family, char *content, size_t len, 
         const unsigned char *c = sqlite3_column_text(st, 0);
         snprintf(content, len, "%s", c ? (const char *)c : "");
         *tol_x = sqlite3_column_double(st, 1);
+        *run_id = sqlite3_column_int64(st, 2);
     } else if (s != SQLITE_DONE) {
         rc = cat_sql_fail(cat, err, "select paths");
     }
@@ -317,20 +318,23 @@ int cat_path_done(cat_db *cat, const char *family, const char *content, double t
     *done = 0;
     char stored[80];
     double tol = 0;
+    int64_t run = 0;
     int found = 0;
-    int rc = path_row(cat, family, stored, sizeof stored, &tol, &found, err);
+    int rc = path_row(cat, family, stored, sizeof stored, &tol, &run, &found, err);
     /* A relative slack: the tolerance goes through a double column and back. */
     if (rc == 0 && found && !strcmp(stored, content) && tol <= tol_x * (1 + 1e-9)) *done = 1;
     return rc;
 }
 
-int cat_path_tol(cat_db *cat, const char *family, double *tol_x, bs_err *err)
+int cat_path_stored(cat_db *cat, const char *family, double *tol_x, int64_t *run_id, bs_err *err)
 {
     *tol_x = 0;
+    *run_id = 0;
     char stored[80];
     int found = 0;
     double tol = 0;
-    int rc = path_row(cat, family, stored, sizeof stored, &tol, &found, err);
-    if (rc == 0 && found) *tol_x = tol;
+    int64_t run = 0;
+    int rc = path_row(cat, family, stored, sizeof stored, &tol, &run, &found, err);
+    if (rc == 0 && found) *tol_x = tol, *run_id = run;
     return rc;
 }

@@ -468,15 +468,20 @@ typedef struct path_coord {
 } path_coord;
 
 /* The tolerance of a family's path in this job: --path-tol, else the default for a screen, and for
- * a rescreen a tenth of the stored path's (so that a rescreen always refines). */
-static int family_tol(path_coord *pc, const pl_family *f, double *tol, bs_err *err)
+ * a rescreen a tenth of the stored path's (so that a rescreen always refines), unless this very run
+ * stored it (a resumed rescreen: then it is done, *mine = 1). */
+static int family_tol(path_coord *pc, const pl_family *f, double *tol, int *mine, bs_err *err)
 {
+    *mine = 0;
     *tol = pc->o->path_tol > 0 ? pc->o->path_tol : PL_PATH_DEFAULT_TOL;
     if (pc->o->path_tol > 0 || strcmp(pc->o->kind, "rescreen") != 0) return 0;
     double stored = 0;
-    int rc = cat_path_tol(pc->cat, f->name, &stored, err);
-    if (rc == 0) *tol = (stored > 0 ? stored : PL_PATH_DEFAULT_TOL) / 10;
-    return rc;
+    int64_t run = 0;
+    int rc = cat_path_stored(pc->cat, f->name, &stored, &run, err);
+    if (rc != 0) return rc;
+    *mine = run != 0 && run == pc->run_id;
+    *tol = *mine ? stored : (stored > 0 ? stored : PL_PATH_DEFAULT_TOL) / 10;
+    return 0;
 }
 
 /* Families with a member among the --where selection of a rescreen (every family for a screen). */
@@ -504,8 +509,8 @@ static int paths_todo(path_coord *pc, const ms_set *set, bs_err *err)
         const pl_family *f = &pc->fams[i];
         if (!family_selected(f, set, rescreen ? &sel : NULL)) continue;
         double tol = 0;
-        int done = 0;
-        rc = family_tol(pc, f, &tol, err);
+        int done = 0, mine = 0;
+        rc = family_tol(pc, f, &tol, &mine, err);
         if (rc == 0) rc = cat_path_done(pc->cat, f->name, f->content, tol, &done, err);
         if (rc != 0) break;
         if (done) {

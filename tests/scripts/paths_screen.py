@@ -15,6 +15,7 @@ cases:
                  opposite chirality (New J. Phys. 9, 356 (2007); Phys. Rev. B 78, 165313 (2008)).
                A second screen --paths finds every path done; rescreen --paths --path-tol refines one
                family and replaces its rows.
+  ranks        the same paths at 1, 2 and 3 ranks, and the Haldane critical masses.
   resume       a screen --paths on 2 ranks is killed with SIGKILL (mpirun and its ranks) while paths
                are in flight, then resumed; the path tables are compared row by row with a one-shot
                screen --paths of the same set: nothing lost, duplicated or changed.
@@ -328,7 +329,36 @@ def case_resume():
           f"{sum(len(r) for _, r in got)} path rows equal to the one-shot screen")
 
 
-CASES = {"transitions": case_transitions, "resume": case_resume}
+def case_ranks():
+    """The same families screened with --paths at 1, 2 and 3 ranks give the same path rows (a path
+    depends only on its family, whichever rank computes it), and each family is stored once."""
+    d = fresh("ranks")
+    cards = []
+    for i in range(4):
+        cards += haldane_family(d, f"haldane-{i}", 0.1 + 0.05 * i)
+    s = os.path.join(d, "set.h5")
+    run([BIN, "pack", "-o", s, *cards])
+    dumps = []
+    for ranks in (1, 2, 3):
+        cat = os.path.join(d, f"cat{ranks}.sqlite")
+        run(["mpirun", "--oversubscribe", "-n", str(ranks), BIN, "screen", s, "-c", cat, "--paths", *PATH_OPTS])
+        dumps.append(path_dump(cat))
+        used = rows(cat, "SELECT count(DISTINCT rank), count(*) FROM paths")[0]
+        if used[1] != 4 or (ranks == 3 and used[0] != 2):
+            fail(f"{ranks} ranks: {used[1]} paths from {used[0]} distinct ranks (3 ranks: 2 workers expected)")
+        # Haldane closings at M = -+3 sqrt3 t2 (Phys. Rev. Lett. 61, 2015 (1988)), every family.
+        for fam, t2v in ((f"haldane-{i}", 0.1 + 0.05 * i) for i in range(4)):
+            v = [r[0] for r in rows(cat, f"SELECT value FROM transitions WHERE family = '{fam}' ORDER BY value")]
+            mc = 3 * math.sqrt(3) * t2v
+            if len(v) != 2 or not close(v[0], -mc, 1e-4) or not close(v[1], mc, 1e-4):
+                fail(f"{ranks} ranks, {fam}: closings {v}, expected -+{mc:.6f}")
+    for ranks, got in zip((2, 3), dumps[1:]):
+        if got != dumps[0]:
+            fail(f"path rows at {ranks} ranks differ from 1 rank")
+    print(f"ranks: 4 families, identical path rows at 1, 2 and 3 ranks ({sum(len(r) for _, r in dumps[0])} rows)")
+
+
+CASES = {"transitions": case_transitions, "resume": case_resume, "ranks": case_ranks}
 
 if __name__ == "__main__":
     if CASE not in CASES:
