@@ -603,11 +603,37 @@ static int paths_serial(path_coord *pc, const ms_set *set, bs_err *err)
     return rc;
 }
 
-/* Answers requests until every one of the nworkers ranks has been told to stop; hands out work
- * only while rc stays 0 and handing_out is set. */
+/* Sends rank `to` its next family, or a stop when there is none (or handing out is over). Returns
+ * 1 in *stopped when it was a stop. */
+static int path_send_next(path_coord *pc, MPI_Comm comm, int to, int handing_out, int *stopped, bs_err *err)
+{
+    int i = handing_out ? path_next(pc) : -1;
+    *stopped = i < 0;
+    if (i < 0)
+        return pl_wire_check(MPI_Send(NULL, 0, MPI_BYTE, to, TAG_PATH_STOP, comm), "MPI_Send of stop", err);
+    path_work w;
+    memset(&w, 0, sizeof w);
+    w.family = i;
+    snprintf(w.name, sizeof w.name, "%s", pc->fams[i].name);
+    w.task = pc->task;
+    return pl_wire_check(MPI_Send(&w, (int)sizeof w, MPI_BYTE, to, TAG_PATH_WORK, comm), "MPI_Send of a path",
+                         err);
+}
+
+/* Hands the workers (ranks 1..nworkers) their first family or a stop, then answers each path that
+ * comes back with the next one, until every worker has been told to stop. The coordinator speaks
+ * first: a worker that finished the member phase early must not send anything the member loop,
+ * still waiting for the others, would take for a request of its own. Work goes out only while rc
+ * stays 0 and handing_out is set. */
 static int paths_serve(path_coord *pc, MPI_Comm comm, int nworkers, int handing_out, bs_err *err)
 {
     int active = nworkers, rc = 0;
+    for (int to = 1; to <= nworkers; to++) {
+        int stopped = 0;
+        int mrc = path_send_next(pc, comm, to, handing_out, &stopped, err);
+        if (mrc != 0) return mrc;
+        active -= stopped;
+    }
     const struct timespec nap = {0, 500 * 1000};
     while (active > 0) {
         int flag = 0;
@@ -629,21 +655,10 @@ static int paths_serve(path_coord *pc, MPI_Comm comm, int nworkers, int handing_
                              out.id);
         }
         pl_outcome_clear(&out);
-        int i = rc == 0 && handing_out ? path_next(pc) : -1;
-        if (i >= 0) {
-            path_work w;
-            memset(&w, 0, sizeof w);
-            w.family = i;
-            snprintf(w.name, sizeof w.name, "%s", pc->fams[i].name);
-            w.task = pc->task;
-            mrc = pl_wire_check(MPI_Send(&w, (int)sizeof w, MPI_BYTE, st.MPI_SOURCE, TAG_PATH_WORK, comm),
-                                "MPI_Send of a path", err);
-        } else {
-            mrc = pl_wire_check(MPI_Send(NULL, 0, MPI_BYTE, st.MPI_SOURCE, TAG_PATH_STOP, comm),
-                                "MPI_Send of stop", err);
-            active--;
-        }
+        int stopped = 0;
+        mrc = path_send_next(pc, comm, st.MPI_SOURCE, rc == 0 && handing_out, &stopped, err);
         if (mrc != 0) return mrc;
+        active -= stopped;
     }
     return rc;
 }
@@ -700,7 +715,8 @@ int pl_paths_work(MPI_Comm comm, const pl_opts *o, int rank, bs_err *err)
     /* Without the set or its families the worker still takes part, reporting each path as failed. */
     if (ms_open(o->set_path, &set, &open_err) == 0 && pl_families(set, &fams, &nfam, &open_err) != 0)
         nfam = 0;
-    int rc = pl_wire_send(comm, 0, NULL, err);
+    /* The coordinator speaks first (paths_serve): a family or a stop. */
+    int rc = 0;
     const struct timespec nap = {0, 200 * 1000};
     while (rc == 0) {
         MPI_Status st;

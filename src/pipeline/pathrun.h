@@ -57,7 +57,7 @@ char *pl_path_to_text(const pp_result *r);
  * naming what is malformed; BS_ENOMEM. */
 int pl_path_from_text(const char *text, pp_result *r, bs_err *err);
 
-/* The coordinator's side, on rank 0 of comm with nworkers ranks asking for paths (0: everything in
+/* The coordinator's side, on rank 0 of comm with the worker ranks 1..nworkers (0: everything in
  * this process): chooses the families whose stored path is not about their current members or is
  * coarser than the job's tolerance (a rescreen: only families with a member selected by --where),
  * hands them out one at a time, and stores each path as it arrives. prior_rc != 0 (the member
@@ -67,8 +67,9 @@ int pl_path_from_text(const char *text, pp_result *r, bs_err *err);
 int pl_paths_coordinate(MPI_Comm comm, int nworkers, const pl_opts *o, cat_db *cat, const ms_set *set,
                         int64_t run_id, pl_counts *counts, int *discarded, int prior_rc, bs_err *err);
 
-/* A worker's side: asks the coordinator (rank 0) for families and computes their paths until told
- * to stop. Collective on comm with pl_paths_coordinate. */
+/* A worker's side (ranks 1..nworkers of pl_paths_coordinate): computes the families the
+ * coordinator (rank 0) sends and returns each path, until told to stop. Collective on comm with
+ * pl_paths_coordinate. */
 int pl_paths_work(MPI_Comm comm, const pl_opts *o, int rank, bs_err *err);
 
 /* The message helpers of the member phase (run.c), for the path phase: translate an MPI code;
