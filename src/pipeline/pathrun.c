@@ -463,6 +463,7 @@ typedef struct path_coord {
     int ntodo, next;
     pl_path_task task;
     pl_counts *counts;
+    pl_journal *journal;
     double t0;
     int written; /* paths stored by this job */
 } path_coord;
@@ -482,6 +483,48 @@ static int family_tol(path_coord *pc, const pl_family *f, double *tol, int *mine
     *mine = run != 0 && run == pc->run_id;
     *tol = *mine ? stored : (stored > 0 ? stored : PL_PATH_DEFAULT_TOL) / 10;
     return 0;
+}
+
+/* One journal line about family f; a journal that cannot be written loses only the crash
+ * bookkeeping, never a path. */
+static void path_journal(path_coord *pc, const char *family, int handed)
+{
+    if (!pc->journal) return;
+    char id[80];
+    snprintf(id, sizeof id, "%s%s", PL_PATH_JOURNAL_PREFIX, family);
+    bs_err jerr;
+    bs_err_clear(&jerr);
+    if (handed)
+        pl_journal_handed(pc->journal, id, &jerr);
+    else
+        pl_journal_received(pc->journal, id, &jerr);
+}
+
+/* The strikes of family f in the journal of this run (sessions that handed its path out and died). */
+static int path_strikes(char **ids, const int *strikes, int n, const char *family)
+{
+    size_t plen = strlen(PL_PATH_JOURNAL_PREFIX);
+    for (int i = 0; i < n; i++)
+        if (!strncmp(ids[i], PL_PATH_JOURNAL_PREFIX, plen) && !strcmp(ids[i] + plen, family))
+            return strikes[i];
+    return 0;
+}
+
+static int path_record(path_coord *pc, const pl_family *f, const pl_outcome *out, bs_err *err);
+
+/* Records the path of f failed: its job died while computing it in `strikes` sessions. */
+static int give_up_path(path_coord *pc, const pl_family *f, int strikes, bs_err *err)
+{
+    pl_outcome out;
+    memset(&out, 0, sizeof out);
+    snprintf(out.id, sizeof out.id, "%s", f->name);
+    out.code = BS_ENUMERIC;
+    out.rank = -1;
+    snprintf(out.message, sizeof out.message,
+             "its job died while the path was being computed in %d sessions (a worker crash or a kill); not "
+             "retried again (change the family or use screen --rerun)",
+             strikes);
+    return path_record(pc, f, &out, err);
 }
 
 /* Families with a member among the --where selection of a rescreen (every family for a screen). */
@@ -504,7 +547,13 @@ static int paths_todo(path_coord *pc, const ms_set *set, bs_err *err)
     if (rc == 0) rc = pl_families(set, &pc->fams, &pc->nfam, err);
     pc->todo = rc == 0 ? calloc((size_t)pc->nfam + 1, sizeof *pc->todo) : NULL;
     if (rc == 0 && !pc->todo) rc = bs_fail(err, BS_ENOMEM, "out of memory for the path list");
+    char **lost = NULL;
+    int *strikes = NULL, nlost = 0;
+    char jpath[4096];
+    snprintf(jpath, sizeof jpath, "%s.journal", pc->o->catalogue_path);
+    if (rc == 0 && pc->counts->resumed) rc = pl_journal_lost(jpath, pc->run_id, &lost, &strikes, &nlost, err);
     double tol_job = 0;
+    int given_up = 0;
     for (int i = 0; rc == 0 && i < pc->nfam; i++) {
         const pl_family *f = &pc->fams[i];
         if (!family_selected(f, set, rescreen ? &sel : NULL)) continue;
@@ -517,11 +566,22 @@ static int paths_todo(path_coord *pc, const ms_set *set, bs_err *err)
             pc->counts->paths_skipped++;
             continue;
         }
+        int k = path_strikes(lost, strikes, nlost, f->name);
+        if (k >= PL_PATH_MAX_STRIKES) {
+            pc->task.tol_x = tol;
+            rc = give_up_path(pc, f, k, err);
+            given_up++;
+            continue;
+        }
         if (tol_job == 0 || tol < tol_job) tol_job = tol;
         pc->todo[pc->ntodo++] = i;
     }
+    for (int i = 0; i < nlost; i++)
+        free(lost[i]);
+    free(lost);
+    free(strikes);
     pc->task.tol_x = tol_job > 0 ? tol_job : PL_PATH_DEFAULT_TOL;
-    pc->counts->paths_total = pc->ntodo;
+    pc->counts->paths_total = pc->ntodo + given_up;
     cat_ids_clear(&sel);
     return rc;
 }
@@ -529,6 +589,7 @@ static int paths_todo(path_coord *pc, const ms_set *set, bs_err *err)
 /* Stores one path outcome: ok with its rows, or failed/invalid with the message. */
 static int path_record(path_coord *pc, const pl_family *f, const pl_outcome *out, bs_err *err)
 {
+    if (out->rank >= 0) path_journal(pc, f->name, 0);
     pp_result r;
     pp_result_init(&r);
     int code = out->code;
@@ -588,7 +649,9 @@ static int path_next(path_coord *pc)
         pc->counts->interrupted = 1;
         return -1;
     }
-    return pc->todo[pc->next++];
+    int i = pc->todo[pc->next++];
+    path_journal(pc, pc->fams[i].name, 1);
+    return i;
 }
 
 static int paths_serial(path_coord *pc, const ms_set *set, bs_err *err)
@@ -664,11 +727,13 @@ static int paths_serve(path_coord *pc, MPI_Comm comm, int nworkers, int handing_
 }
 
 int pl_paths_coordinate(MPI_Comm comm, int nworkers, const pl_opts *o, cat_db *cat, const ms_set *set,
-                        int64_t run_id, pl_counts *counts, int *discarded, int prior_rc, bs_err *err)
+                        int64_t run_id, pl_journal *journal, pl_counts *counts, int *discarded, int prior_rc,
+                        bs_err *err)
 {
     path_coord pc;
     memset(&pc, 0, sizeof pc);
     pc.o = o;
+    pc.journal = journal;
     pc.cat = cat;
     pc.run_id = run_id;
     pc.counts = counts;

@@ -12,7 +12,16 @@
 #include "bandsieve/matset.h"
 #include "bandsieve/phasepath.h"
 #include "bandsieve/pipeline.h"
+#include "journal.h"
 #include "work.h"
+
+/* Hand-out journal lines of a path name its family with this prefix (material ids cannot hold a
+ * colon, so the two never meet); the member phase leaves such lines to the path phase. */
+#define PL_PATH_JOURNAL_PREFIX "path:"
+
+/* Sessions in which a family's path may take its worker down before it is recorded failed (as
+ * for materials, run.c). */
+#define PL_PATH_MAX_STRIKES 2
 
 /* The tolerance a path is refined to when none is given (phasepath.h: tol_x 0 means 1e-5). */
 #define PL_PATH_DEFAULT_TOL 1e-5
@@ -63,9 +72,13 @@ int pl_path_from_text(const char *text, pp_result *r, bs_err *err);
  * hands them out one at a time, and stores each path as it arrives. prior_rc != 0 (the member
  * phase failed) or an interrupted member phase hands nothing out, but still answers every worker,
  * so that all ranks end together; prior_rc is then returned as it is. A new run that did no member
- * and no path is discarded here (*discarded = 1). Collective on comm with pl_paths_work. */
+ * and no path is discarded here (*discarded = 1). journal (borrowed, may be NULL) gets a line per
+ * path handed out and received; a family that earlier sessions of a resumed run handed out and
+ * never got back PL_PATH_MAX_STRIKES times is recorded failed instead of computed again. Collective on comm
+ * with pl_paths_work. */
 int pl_paths_coordinate(MPI_Comm comm, int nworkers, const pl_opts *o, cat_db *cat, const ms_set *set,
-                        int64_t run_id, pl_counts *counts, int *discarded, int prior_rc, bs_err *err);
+                        int64_t run_id, pl_journal *journal, pl_counts *counts, int *discarded, int prior_rc,
+                        bs_err *err);
 
 /* A worker's side (ranks 1..nworkers of pl_paths_coordinate): computes the families the
  * coordinator (rank 0) sends and returns each path, until told to stop. Collective on comm with

@@ -224,6 +224,8 @@ static int give_up_lost(coord *c, const char *jpath, bs_err *err)
     if (rc == 0 && n > 0) rc = cat_done_ids(c->cat, c->run_id, &done, err);
     for (int i = 0; rc == 0 && i < n; i++) {
         if (strikes[i] < PL_MAX_STRIKES || cat_ids_contains(&done, ids[i])) continue;
+        if (!strncmp(ids[i], PL_PATH_JOURNAL_PREFIX, strlen(PL_PATH_JOURNAL_PREFIX)))
+            continue; /* pathrun.c */
         char msg[256];
         snprintf(msg, sizeof msg,
                  "its job died while it was being computed in %d sessions (a worker crash, for "
@@ -986,8 +988,8 @@ int pl_run(MPI_Comm user_comm, const pl_opts *o, pl_counts *counts, int *is_root
     if (rc == 0 && o->announce) o->announce(o->progress_ctx, &c.counts, o->kind);
     if (rc == 0) rc = size > 1 ? run_coordinator(&c, size, err) : run_serial(&c, err);
     if (setup_ok && o->paths)
-        rc = pl_paths_coordinate(comm, size > 1 ? c.nworkers : 0, o, c.cat, c.set, c.run_id, &c.counts,
-                                 &c.discarded, rc, err);
+        rc = pl_paths_coordinate(comm, size > 1 ? c.nworkers : 0, o, c.cat, c.set, c.run_id, c.journal,
+                                 &c.counts, &c.discarded, rc, err);
     if (setup_ok && !c.discarded) {
         bs_err end_err;
         bs_err_clear(&end_err);
