@@ -230,6 +230,8 @@ CREATE TABLE path_events (
     track_a         INTEGER,
     track_b         INTEGER,
     text            TEXT,
+    prediction      TEXT,
+    prediction_agrees INTEGER,
     PRIMARY KEY (family, event)
 );
 

@@ -23,8 +23,8 @@ static const char *const PATH_SQL[PS_COUNT] = {
                     " VALUES (?1, ?2, ?3, ?4, ?5, ?6, ?7, ?8, ?9, ?10, ?11, ?12, ?13)",
     [PS_EVENT] = "INSERT INTO path_events (family, event, kind, x, x_lo, x_hi, transition, single_value,"
                  " k1, k2, k3, k_label, at_trim, nk, parity_exchange, interval_before, interval_after,"
-                 " interval, track_a, track_b, text) VALUES (?1, ?2, ?3, ?4, ?5, ?6, ?7, ?8, ?9, ?10,"
-                 " ?11, ?12, ?13, ?14, ?15, ?16, ?17, ?18, ?19, ?20, ?21)",
+                 " interval, track_a, track_b, text, prediction, prediction_agrees) VALUES (?1, ?2, ?3, ?4,"
+                 " ?5, ?6, ?7, ?8, ?9, ?10, ?11, ?12, ?13, ?14, ?15, ?16, ?17, ?18, ?19, ?20, ?21, ?22, ?23)",
     [PS_TRACK] = "INSERT INTO path_tracks (family, track, chirality, created_with, annihilated_with,"
                  " boundary_crossings, npoints) VALUES (?1, ?2, ?3, ?4, ?5, ?6, ?7)",
     [PS_POINT] = "INSERT INTO path_track_points (family, track, point, x, k1, k2, k3)"
@@ -137,6 +137,8 @@ static int put_closing(cat_db *cat, sqlite3_stmt *st, const char *fam, int event
     bind_int_or_null(st, 16, c->before, c->before < 0);
     bind_int_or_null(st, 17, c->after, c->after < 0);
     sqlite3_bind_text(st, 21, c->text, -1, SQLITE_STATIC);
+    if (c->predicted) sqlite3_bind_text(st, 22, c->prediction, -1, SQLITE_STATIC);
+    bind_int_or_null(st, 23, c->agrees, c->agrees < 0);
     return step_reset(cat, st, "insert path_events", err);
 }
 

@@ -186,10 +186,9 @@ static cJSON *closing_json(const pp_closing *c)
     cJSON *o = cJSON_CreateObject();
     double xs[4] = {c->x_lo, c->x_hi, c->x, c->gap_ev};
     cJSON_AddItemToObject(o, "x", vec(xs, 4));
-    int ints[9] = {
-        c->point,     c->nk, c->all_at_trims, c->parity_checked, c->parity_exchange, c->before, c->after,
-        c->predicted, 0};
-    cJSON_AddItemToObject(o, "flags", cJSON_CreateIntArray(ints, 8));
+    int ints[10] = {c->point,  c->nk,    c->all_at_trims, c->parity_checked, c->parity_exchange,
+                    c->before, c->after, c->predicted,    c->predicted_kind, c->agrees};
+    cJSON_AddItemToObject(o, "flags", cJSON_CreateIntArray(ints, 10));
     cJSON_AddItemToObject(o, "trim_changed", cJSON_CreateIntArray(c->trim_changed, 8));
     cJSON *ks = cJSON_AddArrayToObject(o, "k");
     for (int q = 0; q < c->nk && q < PP_MAX_KPTS; q++) {
@@ -302,14 +301,15 @@ static int get_string(const cJSON *o, const char *key, char *buf, size_t len)
 static int read_closing(const cJSON *o, pp_closing *c)
 {
     double xs[4];
-    int fl[8];
+    int fl[10];
     if (get_doubles(cJSON_GetObjectItemCaseSensitive(o, "x"), xs, 4) ||
-        get_ints(cJSON_GetObjectItemCaseSensitive(o, "flags"), fl, 8) ||
+        get_ints(cJSON_GetObjectItemCaseSensitive(o, "flags"), fl, 10) ||
         get_ints(cJSON_GetObjectItemCaseSensitive(o, "trim_changed"), c->trim_changed, 8))
         return -1;
     c->x_lo = xs[0], c->x_hi = xs[1], c->x = xs[2], c->gap_ev = xs[3];
     c->point = fl[0], c->nk = fl[1], c->all_at_trims = fl[2], c->parity_checked = fl[3];
     c->parity_exchange = fl[4], c->before = fl[5], c->after = fl[6], c->predicted = fl[7];
+    c->predicted_kind = fl[8], c->agrees = fl[9];
     const cJSON *ks = cJSON_GetObjectItemCaseSensitive(o, "k");
     if (c->nk < 0 || c->nk > PP_MAX_KPTS || !cJSON_IsArray(ks) || cJSON_GetArraySize(ks) != c->nk) return -1;
     int q = 0;

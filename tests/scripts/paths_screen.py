@@ -141,6 +141,11 @@ def check_against_direct(cat, s, family):
             fail(f"{family}: classes {t[5]} -> {t[6]} vs bandsieve path {before} -> {after}")
         if c["k"] and any(not close(t[7 + a], c["k"][0]["k"][a], 1e-12) for a in range(3)):
             fail(f"{family}: k {t[7:10]} vs {c['k'][0]['k']}")
+    agree = [r[0] for r in rows(cat, f"SELECT prediction_agrees FROM path_events WHERE family = '{family}' "
+                                     "AND kind = 'closing' ORDER BY event")]
+    want = [None if c.get("symmetry_agrees") is None else int(c["symmetry_agrees"]) for c in cl]
+    if agree != want:
+        fail(f"{family}: stored symmetry agreement {agree} vs bandsieve path {want}")
     ns = rows(cat, f"SELECT count(*) FROM path_samples WHERE family = '{family}'")[0][0]
     nt = rows(cat, f"SELECT count(*) FROM path_tracks WHERE family = '{family}'")[0][0]
     ne = rows(cat, f"SELECT count(*) FROM path_events WHERE family = '{family}' AND kind <> 'closing'")[0][0]
