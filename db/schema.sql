@@ -1,6 +1,6 @@
--- bandsieve catalogue schema, version 3 (PRAGMA user_version = 3). Version 1 and 2 files are
--- brought to version 3 by cat_open (catalogue.c, MIGRATE_1_2 and MIGRATE_2_3: the same columns
--- added with ALTER TABLE).
+-- bandsieve catalogue schema, version 5 (PRAGMA user_version = 5). Older files are brought to
+-- version 5 by cat_open (catalogue.c, MIGRATE_1_2, MIGRATE_2_3 and MIGRATE_3_4: the same columns
+-- added with ALTER TABLE; MIGRATE_4_5: the same path tables created).
 -- Applied by cat_open (CAT_RW) to a new file in one transaction; embedded in the program at
 -- build time. Every table and column is documented in db/README.md.
 -- Timestamps are UTC text, ISO 8601 with milliseconds ('2026-12-02T00:31:07.123Z').
@@ -152,3 +152,107 @@ CREATE TABLE artifacts (
 );
 
 CREATE UNIQUE INDEX artifacts_key ON artifacts (run_id, material_id, kind, plane);
+
+-- Phase paths of families (schema version 5; `screen --paths`, `rescreen --paths`): one row per
+-- family in paths, holding the latest path computed for it (a new path of a family replaces the old
+-- one and all its rows in one transaction), and its samples, phase intervals, events and node
+-- tracks in the path_* tables. Every path_* row belongs to its family's paths row.
+CREATE TABLE paths (
+    family          TEXT PRIMARY KEY,
+    run_id          INTEGER REFERENCES runs (run_id),
+    status          TEXT NOT NULL CHECK (status IN ('ok', 'invalid', 'failed')),
+    message         TEXT,
+    parameter       TEXT,
+    unit            TEXT,
+    x_from          REAL,
+    x_to            REAL,
+    dimension       INTEGER,
+    nmembers        INTEGER,
+    members         TEXT,
+    content         TEXT NOT NULL,
+    tol_x           REAL NOT NULL,
+    nsamples        INTEGER,
+    gap_mesh        INTEGER,
+    confidence      REAL,
+    note            TEXT,
+    gap_evaluations INTEGER,
+    diagnoses       INTEGER,
+    seconds         REAL,
+    rank            INTEGER,
+    finished        TEXT NOT NULL
+);
+
+CREATE TABLE path_samples (
+    family        TEXT NOT NULL REFERENCES paths (family) ON DELETE CASCADE,
+    sample        INTEGER NOT NULL,
+    x             REAL NOT NULL,
+    gap_direct_ev REAL,
+    PRIMARY KEY (family, sample)
+);
+
+CREATE TABLE path_intervals (
+    family        TEXT NOT NULL REFERENCES paths (family) ON DELETE CASCADE,
+    interval      INTEGER NOT NULL,
+    x_from        REAL NOT NULL,
+    x_to          REAL NOT NULL,
+    x_diagnosed   REAL,
+    gapless       INTEGER NOT NULL CHECK (gapless IN (0, 1)),
+    gap_direct_ev REAL,
+    class         TEXT,
+    z2            TEXT,
+    chern         INTEGER,
+    n_weyl        INTEGER,
+    confidence    REAL,
+    diagnosis     TEXT,
+    PRIMARY KEY (family, interval)
+);
+
+CREATE TABLE path_events (
+    family          TEXT NOT NULL REFERENCES paths (family) ON DELETE CASCADE,
+    event           INTEGER NOT NULL,
+    kind            TEXT NOT NULL CHECK (kind IN ('closing', 'pair created', 'pair annihilated',
+                                                  'boundary crossing', 'node count', 'net chirality')),
+    x               REAL NOT NULL,
+    x_lo            REAL,
+    x_hi            REAL,
+    transition      TEXT,
+    single_value    INTEGER,
+    k1              REAL,
+    k2              REAL,
+    k3              REAL,
+    k_label         TEXT,
+    at_trim         INTEGER,
+    nk              INTEGER,
+    parity_exchange INTEGER,
+    interval_before INTEGER,
+    interval_after  INTEGER,
+    interval        INTEGER,
+    track_a         INTEGER,
+    track_b         INTEGER,
+    text            TEXT,
+    prediction      TEXT,
+    prediction_agrees INTEGER,
+    PRIMARY KEY (family, event)
+);
+
+CREATE TABLE path_tracks (
+    family             TEXT NOT NULL REFERENCES paths (family) ON DELETE CASCADE,
+    track              INTEGER NOT NULL,
+    chirality          INTEGER,
+    created_with       INTEGER,
+    annihilated_with   INTEGER,
+    boundary_crossings INTEGER,
+    npoints            INTEGER,
+    PRIMARY KEY (family, track)
+);
+
+CREATE TABLE path_track_points (
+    family TEXT NOT NULL REFERENCES paths (family) ON DELETE CASCADE,
+    track  INTEGER NOT NULL,
+    point  INTEGER NOT NULL,
+    x      REAL NOT NULL,
+    k1     REAL,
+    k2     REAL,
+    k3     REAL,
+    PRIMARY KEY (family, track, point)
+);

@@ -1,6 +1,7 @@
 -- bandsieve catalogue views. Re-created by every cat_open (CAT_RW), so a new program version
 -- brings its views to an old catalogue; documented in db/README.md.
 
+DROP VIEW IF EXISTS transitions;
 DROP VIEW IF EXISTS conflicts;
 DROP VIEW IF EXISTS surfaces;
 DROP VIEW IF EXISTS top_spin_hall;
@@ -256,3 +257,37 @@ FROM per p
 LEFT JOIN materials m ON m.material_id = p.material_id
 LEFT JOIN runs u ON u.run_id = p.last_run_id
 ORDER BY p.material_id, current DESC, p.last_run_id DESC;
+
+-- transitions: one row per gap closing of every family's stored path (`screen --paths`): where on
+-- the path (value, and for a gapless interval its edges), what kind of transition, where in k (the
+-- first touching point; at_trim), and the phase interval on either side with its class and
+-- invariants. Ordered along each path.
+CREATE VIEW transitions AS
+SELECT p.family,
+       p.parameter,
+       p.unit,
+       e.x AS value,
+       e.x_lo AS value_from,
+       e.x_hi AS value_to,
+       e.single_value,
+       e.transition AS kind,
+       e.k_label,
+       e.k1,
+       e.k2,
+       e.k3,
+       e.at_trim,
+       e.parity_exchange,
+       b.class AS class_before,
+       a.class AS class_after,
+       b.z2 AS z2_before,
+       a.z2 AS z2_after,
+       b.chern AS chern_before,
+       a.chern AS chern_after,
+       p.tol_x,
+       p.run_id
+FROM path_events e
+JOIN paths p ON p.family = e.family
+LEFT JOIN path_intervals b ON b.family = e.family AND b.interval = e.interval_before
+LEFT JOIN path_intervals a ON a.family = e.family AND a.interval = e.interval_after
+WHERE e.kind = 'closing' AND p.status = 'ok'
+ORDER BY p.family, e.x;

@@ -13,7 +13,10 @@ export OMPI_ALLOW_RUN_AS_ROOT=1 OMPI_ALLOW_RUN_AS_ROOT_CONFIRM=1
 [ -f "$out/jq-demo.h5" ] || "$bin" demo-set -o "$out/jq-demo.h5" --count 300 --seed 2026 --families
 # Two ranks: a coordinator and one worker (P = cores + 1 also works: the coordinator sleeps).
 # It exits 0 although a few invented entries are broken on purpose: they are counted, not fatal.
-mpirun -n 2 --oversubscribe "$bin" screen "$out/jq-demo.h5" -c "$out/jq-demo.sqlite"
+# --paths: after the materials, each invented family's phase path is one unit of work (H(R)
+# interpolated between members), stored in the catalogue's path tables.
+mpirun -n 2 --oversubscribe "$bin" screen "$out/jq-demo.h5" -c "$out/jq-demo.sqlite" --paths \
+  --path-samples 21 --path-track-steps 8
 echo
 echo "== classes"
 "$bin" query "$out/jq-demo.sqlite" "SELECT class, COUNT(*) AS n FROM summary GROUP BY class ORDER BY n DESC"
@@ -24,7 +27,8 @@ echo
 echo "== entries that could not be screened"
 "$bin" query "$out/jq-demo.sqlite" --view failures
 echo
-echo "== transitions along the invented families (bandsieve path --family; H(R) interpolated between members)"
-for fam in Jo2Qu-pressure JaQi1-xQox; do
-  "$bin" path --family "$fam" "$out/jq-demo.h5" --samples 21 --track-steps 8 | sed -n '/^transitions/,/^Weyl-node/p' || true
-done
+echo "== transitions along the invented families (catalogue view transitions; H(R) interpolated between members)"
+"$bin" query "$out/jq-demo.sqlite" "SELECT family, parameter, unit, printf('%.5f', value) AS value, kind, k_label, class_before, class_after, z2_before, z2_after FROM transitions"
+echo
+echo "== Weyl-node events along the paths"
+"$bin" query "$out/jq-demo.sqlite" "SELECT family, kind, COUNT(*) AS n, printf('%.4f', MIN(x)) AS first, printf('%.4f', MAX(x)) AS last FROM path_events WHERE kind <> 'closing' GROUP BY family, kind"

@@ -12,10 +12,11 @@
 #include <stdint.h>
 
 #include "bandsieve/err.h"
+#include "bandsieve/phasepath.h"
 #include "bandsieve/result.h"
 
 /* Schema version stored in PRAGMA user_version; PRAGMA application_id is CAT_APPLICATION_ID. */
-#define CAT_SCHEMA_VERSION 4
+#define CAT_SCHEMA_VERSION 5
 #define CAT_APPLICATION_ID 0x42534376 /* "BSCv" */
 
 /* Defaults for the commit batching (cat_set_batch). */
@@ -259,5 +260,43 @@ void cat_flow_clear(cat_flow *f);
  * no such artifact, BS_EHDF5 when the file or datasets cannot be read. */
 int cat_flow_read(cat_db *cat, int64_t run_id, const char *material_id, int plane, cat_flow *out,
                   bs_err *err);
+
+/* ---- phase paths of families (cat_path.c; tables paths and path_*, view transitions) ---- */
+
+/* What a stored path is about besides its computation; strings borrowed. */
+typedef struct cat_path_info {
+    const char *family;       /* required, at most 63 bytes */
+    const char *parameter;    /* the family's parameter name */
+    const char *unit;         /* its unit, may be "" or NULL */
+    const char *content;      /* the family's content hash (members' content hashes and values) */
+    const char *members_json; /* JSON list of {"id": ..., "value": ...} in path order, or NULL */
+    int nmembers;
+    int dimension;
+    double x_from, x_to; /* the path's range (first and last member's values) */
+    double tol_x;        /* the tolerance the path was asked for */
+    int nsamples;        /* uniform gap samples asked for (0: the default) */
+    int gap_mesh;        /* k-mesh asked for (0: the default) */
+    cat_status status;   /* CAT_RES_OK, CAT_RES_INVALID or CAT_RES_FAILED */
+    const char *message; /* why not ok, or NULL */
+    int rank;            /* the rank that computed it */
+    double seconds;      /* its wall time */
+} cat_path_info;
+
+/* Stores the path of info->family, computed in run_id (0: none), replacing whatever was stored for
+ * that family (the paths row and all its path_* rows) in one transaction of its own: pending
+ * batched writes are committed first, then the delete and the inserts are committed together, so
+ * a killed job leaves either the old path or the new one, never a mixture or duplicates. r (borrowed)
+ * is the computation, required for CAT_RES_OK and ignored otherwise. BS_EINVAL for a bad status or
+ * family, BS_ESQL. */
+int cat_path_put(cat_db *cat, int64_t run_id, const cat_path_info *info, const pp_result *r, bs_err *err);
+
+/* *done = 1 when the stored path of family is about content and was computed at a tolerance of at
+ * most tol_x (any status: a failed or invalid path is not retried by a screen with the same
+ * settings, only by a finer rescreen or a change of the family), else 0. */
+int cat_path_done(cat_db *cat, const char *family, const char *content, double tol_x, int *done, bs_err *err);
+
+/* The tolerance of the stored path of family and the run that computed it; 0 and 0 when none is
+ * stored (run 0 also for a path stored without a run). */
+int cat_path_stored(cat_db *cat, const char *family, double *tol_x, int64_t *run_id, bs_err *err);
 
 #endif

@@ -29,6 +29,8 @@ typedef struct pl_counts {
     int missing;           /* rescreen: selected ids that the set does not hold */
     char missing_ids[256]; /* the first few of them, comma-separated */
     char note[768];        /* what was resumed, or why --rerun resumed; "" when nothing to say */
+    /* The path phase (--paths): families to do, stored (ok or not), and already done. */
+    int paths_total, paths_done, paths_ok, paths_failed, paths_skipped;
 } pl_counts;
 
 /* What one material's diagnosis includes besides the topology. */
@@ -74,7 +76,12 @@ typedef struct pl_opts {
                                    an earlier --rerun started is resumed, with a note) */
     int batch_rows;             /* catalogue commit batch (0: default) */
     double batch_seconds;
-    const char *cmdline; /* recorded in the run row */
+    int paths;            /* --paths: after the members, the phase path of every family */
+    double path_tol;      /* tolerance of the paths in the parameter (0: 1e-5 for a screen; a
+                             tenth of the stored path's for a rescreen) */
+    int path_samples;     /* uniform gap samples of a path (0: the default) */
+    int path_track_steps; /* node-track steps across a gapless interval (0: the default) */
+    const char *cmdline;  /* recorded in the run row */
     const char *version;
     volatile sig_atomic_t *stop_flag; /* set by a signal handler: finish in-flight work and stop */
     /* Called on rank 0 after every result and about once a second while waiting. */
@@ -82,6 +89,8 @@ typedef struct pl_opts {
     void *progress_ctx;
     /* Called on rank 0 before work starts, e.g. to print how many materials were selected. */
     void (*announce)(void *ctx, const pl_counts *c, const char *kind);
+    /* Called on rank 0 before the path phase hands out work (--paths). */
+    void (*announce_paths)(void *ctx, const pl_counts *c);
 } pl_opts;
 
 /* The scheduler's cost model, MPI-free, shared with `bandsieve check`: the estimated work of one

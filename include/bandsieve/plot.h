@@ -88,6 +88,14 @@ void plot_text(plot_fig *f, double x, double y, int col, const char *text);
  * the text. */
 void plot_legend(plot_fig *f, int i, int col, const char *text);
 
+/* A filled rectangle [x0, x1] x [y0, y1] (data coordinates, clipped to the panel) in the colour rgb
+ * (each 0..1): cells of a map of categories, intervals shaded by category. */
+void plot_rect_rgb(plot_fig *f, double x0, double x1, double y0, double y1, const double rgb[3]);
+
+/* A legend entry in the margin at the right of the current panel (open the panel with colourbar
+ * set to leave the room), the i-th from the top: a swatch of rgb, outlined, and the text. */
+void plot_legend_rgb(plot_fig *f, int i, const double rgb[3], const char *text);
+
 /* RGB (0..1) of cmap at t in [0, 1]; for tests and for HTML swatches. */
 void plot_cmap_rgb(int cmap, double t, double rgb[3]);
 

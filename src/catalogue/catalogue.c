@@ -220,6 +220,35 @@ static const char MIGRATE_3_4[] = "ALTER TABLE results ADD COLUMN spacegroup INT
                                   "ALTER TABLE results ADD COLUMN mirror_chern_status TEXT;"
                                   "PRAGMA user_version = 4;";
 
+/* Version 4 -> 5: the phase-path tables (db/schema.sql has the same tables for new files;
+ * test_catalogue and test_identity compare the two). Old catalogues simply have no paths yet. */
+static const char MIGRATE_4_5[] =
+    "CREATE TABLE paths (family TEXT PRIMARY KEY, run_id INTEGER REFERENCES runs (run_id), status TEXT "
+    "NOT NULL CHECK (status IN ('ok', 'invalid', 'failed')), message TEXT, parameter TEXT, unit TEXT, "
+    "x_from REAL, x_to REAL, dimension INTEGER, nmembers INTEGER, members TEXT, content TEXT NOT NULL, "
+    "tol_x REAL NOT NULL, nsamples INTEGER, gap_mesh INTEGER, confidence REAL, note TEXT, gap_evaluations "
+    "INTEGER, diagnoses INTEGER, seconds REAL, rank INTEGER, finished TEXT NOT NULL);"
+    "CREATE TABLE path_samples (family TEXT NOT NULL REFERENCES paths (family) ON DELETE CASCADE, sample "
+    "INTEGER NOT NULL, x REAL NOT NULL, gap_direct_ev REAL, PRIMARY KEY (family, sample));"
+    "CREATE TABLE path_intervals (family TEXT NOT NULL REFERENCES paths (family) ON DELETE CASCADE, "
+    "interval INTEGER NOT NULL, x_from REAL NOT NULL, x_to REAL NOT NULL, x_diagnosed REAL, gapless "
+    "INTEGER NOT NULL CHECK (gapless IN (0, 1)), gap_direct_ev REAL, class TEXT, z2 TEXT, chern INTEGER, "
+    "n_weyl INTEGER, confidence REAL, diagnosis TEXT, PRIMARY KEY (family, interval));"
+    "CREATE TABLE path_events (family TEXT NOT NULL REFERENCES paths (family) ON DELETE CASCADE, event "
+    "INTEGER NOT NULL, kind TEXT NOT NULL CHECK (kind IN ('closing', 'pair created', 'pair annihilated', "
+    "'boundary crossing', 'node count', 'net chirality')), x REAL NOT NULL, x_lo REAL, x_hi REAL, "
+    "transition TEXT, single_value INTEGER, k1 REAL, k2 REAL, k3 REAL, k_label TEXT, at_trim INTEGER, nk "
+    "INTEGER, parity_exchange INTEGER, interval_before INTEGER, interval_after INTEGER, interval INTEGER, "
+    "track_a INTEGER, track_b INTEGER, text TEXT, prediction TEXT, prediction_agrees INTEGER, PRIMARY KEY "
+    "(family, event));"
+    "CREATE TABLE path_tracks (family TEXT NOT NULL REFERENCES paths (family) ON DELETE CASCADE, track "
+    "INTEGER NOT NULL, chirality INTEGER, created_with INTEGER, annihilated_with INTEGER, "
+    "boundary_crossings INTEGER, npoints INTEGER, PRIMARY KEY (family, track));"
+    "CREATE TABLE path_track_points (family TEXT NOT NULL REFERENCES paths (family) ON DELETE CASCADE, "
+    "track INTEGER NOT NULL, point INTEGER NOT NULL, x REAL NOT NULL, k1 REAL, k2 REAL, k3 REAL, PRIMARY "
+    "KEY (family, track, point));"
+    "PRAGMA user_version = 5;";
+
 /* Schema (fresh files only) and views in one immediate transaction, so two coordinators opening
  * the same new file cannot both create it. */
 static int apply_schema(cat_db *cat, bs_err *err)
@@ -245,6 +274,10 @@ static int apply_schema(cat_db *cat, bs_err *err)
     if (rc == 0 && !fresh && cat->from_version <= 3) {
         rc = cat_exec(cat, MIGRATE_3_4, err);
         if (rc != 0) bs_err_context(err, "migrating the catalogue from schema version 3 to 4: ");
+    }
+    if (rc == 0 && !fresh && cat->from_version <= 4) {
+        rc = cat_exec(cat, MIGRATE_4_5, err);
+        if (rc != 0) bs_err_context(err, "migrating the catalogue from schema version 4 to 5: ");
     }
     if (rc == 0) rc = cat_exec(cat, (const char *)cat_sql_views, err);
     if (rc == 0) return cat_exec(cat, "COMMIT", err);

@@ -77,3 +77,9 @@ int cli_parse_vec3(const char *text, double v[3])
     }
     return -1;
 }
+
+int cli_figure_path_ok(const char *path)
+{
+    const char *dot = strrchr(path, '.');
+    return dot && (!strcmp(dot, ".svg") || !strcmp(dot, ".png") || !strcmp(dot, ".pdf"));
+}

@@ -11,6 +11,9 @@ int cli_parse_int(const char *text, long lo, long hi, long *out);
 /* Parses a whole finite number; returns 0 or -1. */
 int cli_parse_double(const char *text, double *out);
 
+/* 1 when path ends in .svg, .png or .pdf (the figure formats), else 0: checked before any work. */
+int cli_figure_path_ok(const char *path);
+
 /* Removes the file at path (a partial output) when the process is ended by SIGINT, SIGTERM, SIGHUP
  * or SIGQUIT, then ends it by that signal as before, so an interrupted command leaves nothing
  * behind. One path at a time (copied); NULL disarms. */

@@ -13,44 +13,48 @@
 #include "bandsieve/source.h"
 #include "cliutil.h"
 #include "commands.h"
+#include "figures.h"
 #include "pathfilm.h"
 
 static void path_help(FILE *out)
 {
-    fprintf(out,
-            "usage: bandsieve path model:NAME[:key=val,...] --param KEY=LO..HI [options]\n"
-            "       bandsieve path SOURCE SOURCE ... --values V1,V2,... [--name NAME] [--unit U] [options]\n"
-            "       bandsieve path SOURCE --direction h,k,l --layers LO..HI [options]   (films)\n\n"
-            "Follows a material along a parameter. The minimal direct gap is scanned on a uniform\n"
-            "sample; every closing is bracketed and refined to --tol in the parameter; at each\n"
-            "closing the touching k-points are located (at a TRIM or not) and, when both sides are\n"
-            "inversion-symmetric, the parity exchange is read off the TRIM parities. The path is cut\n"
-            "into phase intervals, each diagnosed once (as `inspect` does) at its midpoint, and the\n"
-            "transition between them is named: band inversion, gap closing, Weyl phase, nodal line\n"
-            "or metal. Inside a gapless 3D interval the Weyl nodes are followed by continuation,\n"
-            "with their chirality and the events: pair created, pair annihilated, zone-boundary\n"
-            "crossing, a node count that is not a multiple of 4 under time reversal.\n\n"
-            "With several SOURCEs (cards, SET.h5:ID, models) at increasing --values, H(R) is\n"
-            "interpolated linearly between neighbours on the union of their lattice vectors (the\n"
-            "virtual-crystal idea). For a pressure or strain series this is a model of the path.\n"
-            "Members must share the basis (state count, orbitals, spin layout, filling).\n\n"
-            "Films: one 3D SOURCE, a lattice plane (--direction) and a range of layer counts: each\n"
-            "film is diagnosed as a 2D material (2D Z2, Chern number, gap).\n\n"
-            "  --param KEY=LO..HI   the built-in model's key and its range\n"
-            "  --values V1,V2,...   the members' parameter values, increasing\n"
-            "  --name NAME          what the parameter is called (default x)\n"
-            "  --unit U             its unit, for the output only\n"
-            "  --family NAME        all members of family NAME in the material set SOURCE (SET.h5)\n"
-            "  --samples N          uniform gap samples (default 41)\n"
-            "  --tol T              tolerance on closing positions and edges (default 1e-5)\n"
-            "  --closed-ev E        a refined direct gap below E counts as closed (default 1e-6)\n"
-            "  --mesh N             k-mesh of the gap scan (default 14 in 3D, 36 in 2D)\n"
-            "  --track-steps N      continuation steps across a gapless interval (default 24)\n"
-            "  --no-tracks          skip the Weyl-node tracks\n"
-            "  --direction h,k,l    film: Miller indices of the plane\n"
-            "  --layers LO..HI      film: layer counts\n"
-            "  --json               one JSON object on stdout\n"
-            "  -h, --help           this text\n");
+    fprintf(
+        out,
+        "usage: bandsieve path model:NAME[:key=val,...] --param KEY=LO..HI [options]\n"
+        "       bandsieve path SOURCE SOURCE ... --values V1,V2,... [--name NAME] [--unit U] [options]\n"
+        "       bandsieve path SOURCE --direction h,k,l --layers LO..HI [options]   (films)\n\n"
+        "Follows a material along a parameter. The minimal direct gap is scanned on a uniform\n"
+        "sample; every closing is bracketed and refined to --tol in the parameter; at each\n"
+        "closing the touching k-points are located (at a TRIM or not) and, when both sides are\n"
+        "inversion-symmetric, the parity exchange is read off the TRIM parities. The path is cut\n"
+        "into phase intervals, each diagnosed once (as `inspect` does) at its midpoint, and the\n"
+        "transition between them is named: band inversion, gap closing, Weyl phase, nodal line\n"
+        "or metal. Inside a gapless 3D interval the Weyl nodes are followed by continuation,\n"
+        "with their chirality and the events: pair created, pair annihilated, zone-boundary\n"
+        "crossing, a node count that is not a multiple of 4 under time reversal.\n\n"
+        "With several SOURCEs (cards, SET.h5:ID, models) at increasing --values, H(R) is\n"
+        "interpolated linearly between neighbours on the union of their lattice vectors (the\n"
+        "virtual-crystal idea). For a pressure or strain series this is a model of the path.\n"
+        "Members must share the basis (state count, orbitals, spin layout, filling).\n\n"
+        "Films: one 3D SOURCE, a lattice plane (--direction) and a range of layer counts: each\n"
+        "film is diagnosed as a 2D material (2D Z2, Chern number, gap).\n\n"
+        "  --param KEY=LO..HI   the built-in model's key and its range\n"
+        "  --values V1,V2,...   the members' parameter values, increasing\n"
+        "  --name NAME          what the parameter is called (default x)\n"
+        "  --unit U             its unit, for the output only\n"
+        "  --family NAME        all members of family NAME in the material set SOURCE (SET.h5)\n"
+        "  --samples N          uniform gap samples (default 41)\n"
+        "  --tol T              tolerance on closing positions and edges (default 1e-5)\n"
+        "  --closed-ev E        a refined direct gap below E counts as closed (default 1e-6)\n"
+        "  --mesh N             k-mesh of the gap scan (default 14 in 3D, 36 in 2D)\n"
+        "  --track-steps N      continuation steps across a gapless interval (default 24)\n"
+        "  --no-tracks          skip the Weyl-node tracks\n"
+        "  --direction h,k,l    film: Miller indices of the plane\n"
+        "  --layers LO..HI      film: layer counts\n"
+        "  --json               one JSON object on stdout\n"
+        "  --figure FILE        the gap against the parameter with the phase intervals shaded by\n"
+        "                       class, and the Weyl-node tracks projected on (k1, k2) (.svg, .png, .pdf)\n"
+        "  -h, --help           this text\n");
 }
 
 static int parse_range(const char *text, double *lo, double *hi)
@@ -287,6 +291,16 @@ void path_print(const pp_result *r, const char *source, const char *unit, int me
            r->diag_runs, r->seconds);
 }
 
+int path_figure(const pp_result *r, const char *figure, const char *title, const char *unit)
+{
+    if (!figure) return 0;
+    bs_err err;
+    bs_err_clear(&err);
+    if (fig_path(figure, title, r, unit, NULL, &err) == 0) return 0;
+    fprintf(stderr, "bandsieve path: %s\n", err.msg);
+    return 1;
+}
+
 int cmd_path(int argc, char **argv)
 {
     static const struct option longopts[] = {{"param", required_argument, NULL, 'p'},
@@ -303,6 +317,7 @@ int cmd_path(int argc, char **argv)
                                              {"direction", required_argument, NULL, 'd'},
                                              {"layers", required_argument, NULL, 'l'},
                                              {"family", required_argument, NULL, 'f'},
+                                             {"figure", required_argument, NULL, 'F'},
                                              {"help", no_argument, NULL, 'h'},
                                              {NULL, 0, NULL, 0}};
     pp_opts o;
@@ -310,6 +325,7 @@ int cmd_path(int argc, char **argv)
     o.diag.seed = 1;
     int json = 0, c, have_dir = 0;
     const char *param = NULL, *values = NULL, *name = "x", *unit = "", *family = NULL, *layers = NULL;
+    const char *figure = NULL;
     double dir[3] = {0, 0, 0};
     optind = 1;
     while ((c = getopt_long(argc, argv, "h", longopts, NULL)) != -1) {
@@ -333,6 +349,14 @@ int cmd_path(int argc, char **argv)
             break;
         case 'f':
             family = optarg;
+            break;
+        case 'F':
+            if (!cli_figure_path_ok(optarg)) {
+                fprintf(stderr, "bandsieve path: --figure %s: figure files end in .svg, .png or .pdf\n",
+                        optarg);
+                return 2;
+            }
+            figure = optarg;
             break;
         case 'l':
             layers = optarg;
@@ -411,7 +435,7 @@ int cmd_path(int argc, char **argv)
                     "bandsieve path: --family takes one material set (SET.h5) and no --param/--values\n");
             return 2;
         }
-        return path_family(argv[optind], family, &o, json);
+        return path_family(argv[optind], family, &o, json, figure);
     }
     bs_err err;
     bs_err_clear(&err);
@@ -487,6 +511,7 @@ int cmd_path(int argc, char **argv)
             status = 1;
         }
     }
+    if (status == 0 && path_figure(&r, figure, label, unit) != 0) status = 1;
     if (status == 0) {
         if (json) {
             cJSON *j = path_to_json(&r, label, unit, members);

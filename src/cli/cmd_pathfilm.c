@@ -147,7 +147,7 @@ static int cmp_member(const void *a, const void *b)
     return (x > y) - (x < y);
 }
 
-int path_family(const char *set_path, const char *family, const pp_opts *o, int json)
+int path_family(const char *set_path, const char *family, const pp_opts *o, int json, const char *figure)
 {
     bs_err err;
     bs_err_clear(&err);
@@ -225,6 +225,9 @@ int path_family(const char *set_path, const char *family, const pp_opts *o, int 
             printf("\n");
             path_print(&r, label, first->family_unit, 1);
         }
+        char title[200];
+        snprintf(title, sizeof title, "family %s", family);
+        if (path_figure(&r, figure, title, first->family_unit) != 0) status = 1;
     }
     pp_result_clear(&r);
     pp_source_free(src);

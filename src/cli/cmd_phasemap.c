@@ -1,5 +1,5 @@
 /* `bandsieve phasemap`: classes on a grid of two parameters of a built-in model, one phase path
- * per row, the rows spread over the MPI ranks; an HDF5 file of arrays and an optional SVG. */
+ * per row, the rows spread over the MPI ranks; an HDF5 file of arrays and an optional figure. */
 #include <getopt.h>
 #include <stdio.h>
 #include <stdlib.h>
@@ -8,13 +8,14 @@
 #include "bandsieve/phasemap.h"
 #include "cliutil.h"
 #include "commands.h"
+#include "figures.h"
 
 static void phasemap_help(FILE *out)
 {
     fprintf(
         out,
         "usage: [mpirun -n P] bandsieve phasemap model:NAME[:key=val,...] --x KEY=LO..HI:N --y KEY=LO..HI:M\n"
-        "                     -o MAP.h5 [--svg MAP.svg] [--tol T] [--mesh N] [--closed-ev E] [--quiet]\n\n"
+        "                     -o MAP.h5 [--figure MAP.svg] [--tol T] [--mesh N] [--closed-ev E] [--quiet]\n\n"
         "Classifies a built-in model on an N x M grid of two of its parameters. Each row (fixed y)\n"
         "is one phase path over x (as `bandsieve path`): closings bracketed and refined, each\n"
         "interval diagnosed once; a grid point takes the class of the interval holding it, or\n"
@@ -25,7 +26,8 @@ static void phasemap_help(FILE *out)
         "  --x KEY=LO..HI:N   parameter along the rows and its N >= 3 grid points\n"
         "  --y KEY=LO..HI:M   parameter across the rows and its M >= 1 grid points\n"
         "  -o, --output FILE  HDF5 output (required)\n"
-        "  --svg FILE         also a simple SVG of the classes (a stopgap picture)\n"
+        "  --figure FILE      also a picture of the classes (.svg, .png or .pdf by the extension);\n"
+        "                     --svg FILE is the same option\n"
         "  --tol T            tolerance on closings and edges in x (default 1e-4)\n"
         "  --mesh N           k-mesh of the gap scan (default 14 in 3D, 36 in 2D)\n"
         "  --closed-ev E      a refined gap below E is closed (default 1e-6)\n"
@@ -53,9 +55,6 @@ static int parse_axis(const char *text, char *key, size_t cap, double *lo, doubl
 }
 
 static const char CLASS_CHAR[PP_NCLASS] = {'?', 'o', 'S', 'w', 'Q', 'C', 'W', 'N', 'm', '*', 'T'};
-static const char *const CLASS_COLOUR[PP_NCLASS] = {"#bbbbbb", "#f2f2f2", "#1f5fa8", "#7fb3e6",
-                                                    "#3c8d5a", "#d9a400", "#c0392b", "#8e44ad",
-                                                    "#555555", "#000000", "#2aa198"};
 
 static void print_map(const pm_map *m, const pm_spec *s)
 {
@@ -80,49 +79,16 @@ static void print_map(const pm_map *m, const pm_spec *s)
         printf(" %c %s%s", CLASS_CHAR[c], pp_class_name(c), c + 1 < PP_NCLASS ? "," : "\n");
 }
 
-static int write_svg(const pm_map *m, const pm_spec *s, const char *path)
+/* The picture of the map through the figures module (the extension of path picks SVG, PNG or PDF). */
+static int write_figure(const pm_map *m, const pm_spec *s, const char *path, bs_err *err)
 {
-    FILE *fp = fopen(path, "w");
-    if (!fp) return -1;
-    int cw = 480 / m->nx > 4 ? 480 / m->nx : 4, ch = 320 / m->ny > 4 ? 320 / m->ny : 4;
-    int W = cw * m->nx, H = ch * m->ny, left = 70, top = 20, legend = 200;
-    fprintf(fp,
-            "<svg xmlns=\"http://www.w3.org/2000/svg\" width=\"%d\" height=\"%d\" font-family=\"sans-serif\" "
-            "font-size=\"11\">\n<rect width=\"100%%\" height=\"100%%\" fill=\"white\"/>\n",
-            left + W + legend, top + H + 50);
-    for (int j = 0; j < m->ny; j++)
-        for (int i = 0; i < m->nx; i++) {
-            int c = m->cls[(size_t)j * m->nx + i];
-            fprintf(
-                fp,
-                "<rect x=\"%d\" y=\"%d\" width=\"%d\" height=\"%d\" fill=\"%s\"><title>%s = %g, %s = %g: %s"
-                "</title></rect>\n",
-                left + i * cw, top + (m->ny - 1 - j) * ch, cw, ch, CLASS_COLOUR[c], s->xkey, m->x[i], s->ykey,
-                m->y[j], pp_class_name(c));
-        }
-    fprintf(fp, "<rect x=\"%d\" y=\"%d\" width=\"%d\" height=\"%d\" fill=\"none\" stroke=\"black\"/>\n", left,
-            top, W, H);
-    fprintf(fp, "<text x=\"%d\" y=\"%d\" text-anchor=\"middle\">%s (%g .. %g)</text>\n", left + W / 2,
-            top + H + 30, s->xkey, s->x_lo, s->x_hi);
-    fprintf(fp,
-            "<text x=\"14\" y=\"%d\" transform=\"rotate(-90 14 %d)\" text-anchor=\"middle\">%s (%g .. "
-            "%g)</text>\n",
-            top + H / 2, top + H / 2, s->ykey, s->y_lo, s->y_hi);
-    int row = 0;
-    for (int c = 0; c < PP_NCLASS; c++) {
-        int used = 0;
-        for (int q = 0; q < m->nx * m->ny && !used; q++)
-            used = m->cls[q] == c;
-        if (!used) continue;
-        fprintf(fp,
-                "<rect x=\"%d\" y=\"%d\" width=\"12\" height=\"12\" fill=\"%s\" stroke=\"black\"/>"
-                "<text x=\"%d\" y=\"%d\">%s</text>\n",
-                left + W + 14, top + row * 18, CLASS_COLOUR[c], left + W + 32, top + row * 18 + 10,
-                pp_class_name(c));
-        row++;
-    }
-    fprintf(fp, "</svg>\n");
-    return fclose(fp) == 0 ? 0 : -1;
+    const char *names[PP_NCLASS];
+    for (int c = 0; c < PP_NCLASS; c++)
+        names[c] = pp_class_name(c);
+    char title[700];
+    snprintf(title, sizeof title, "phase map of %s", s->spec);
+    return fig_classmap(path, title, s->xkey, s->ykey, m->nx, m->ny, m->x, m->y, m->cls, PP_NCLASS, names,
+                        NULL, err);
 }
 
 int cmd_phasemap(int argc, char **argv)
@@ -131,6 +97,7 @@ int cmd_phasemap(int argc, char **argv)
                                              {"y", required_argument, NULL, 'y'},
                                              {"output", required_argument, NULL, 'o'},
                                              {"svg", required_argument, NULL, 'g'},
+                                             {"figure", required_argument, NULL, 'g'},
                                              {"tol", required_argument, NULL, 't'},
                                              {"mesh", required_argument, NULL, 'm'},
                                              {"closed-ev", required_argument, NULL, 'c'},
@@ -163,6 +130,11 @@ int cmd_phasemap(int argc, char **argv)
             out = optarg;
             break;
         case 'g':
+            if (!cli_figure_path_ok(optarg)) {
+                fprintf(stderr, "bandsieve phasemap: --figure %s: figure files end in .svg, .png or .pdf\n",
+                        optarg);
+                return 2;
+            }
             svg = optarg;
             break;
         case 'q':
@@ -246,8 +218,8 @@ int cmd_phasemap(int argc, char **argv)
         fprintf(stderr, "bandsieve phasemap: %s\n", err.msg);
         status = 1;
     }
-    if (svg && write_svg(m, &s, svg) != 0) {
-        fprintf(stderr, "bandsieve phasemap: %s: cannot write the SVG\n", svg);
+    if (svg && write_figure(m, &s, svg, &err) != 0) {
+        fprintf(stderr, "bandsieve phasemap: %s\n", err.msg);
         status = 1;
     }
     if (!quiet) print_map(m, &s);

@@ -111,6 +111,13 @@ static void announce(void *ctx, const pl_counts *c, const char *kind)
     if (p->tty) fputc('\n', stderr);
 }
 
+static void announce_paths(void *ctx, const pl_counts *c)
+{
+    progress_state *p = ctx;
+    fprintf(stderr, "%s: %d famil%s' paths to do, %d already done\n", p->what, c->paths_total,
+            c->paths_total == 1 ? "y" : "ies", c->paths_skipped);
+}
+
 /* "4G", "500M", "64k" (powers of 1024) or a plain number of bytes; 0 or -1. */
 static int parse_bytes(const char *text, double *out)
 {
@@ -189,6 +196,16 @@ static void screen_help(FILE *out, int rescreen)
             "  --progress-every S  seconds between progress lines when stderr is not a terminal\n"
             "                      (default: at 5, 10 and 20 s, then every 30 s)\n"
             "  --strict            exit 1 when any material is not ok (invalid, failed, timeout)\n"
+            "  --paths             after the materials, the phase path of every family of the set\n"
+            "                      (bandsieve path --family), one family per unit of work; stored in\n"
+            "                      the tables paths and path_* and the view transitions. A family's\n"
+            "                      path is redone only when its members change or a finer tolerance\n"
+            "                      is asked; rescreen --paths refines the paths of the families with\n"
+            "                      a member selected by --where, replacing the stored rows\n"
+            "  --path-tol T        tolerance of closings in the parameter (default 1e-5; rescreen:\n"
+            "                      a tenth of the stored path's)\n"
+            "  --path-samples N    uniform gap samples per path (default 41)\n"
+            "  --path-track-steps N  Weyl-node continuation steps per gapless interval (default 24)\n"
             "  -h, --help          this text\n\n"
             "Exit status: 0 the run completed, whatever the materials' statuses (counted in the\n"
             "last line and the catalogue); 1 with --strict, some material is not ok; 2 usage%s;\n"
@@ -209,6 +226,9 @@ static int final_line(const char *name, const pl_counts *c, const pl_opts *o, in
             "already done, %.1f s |%s\n",
             name, c->run_id, c->interrupted ? "interrupted" : "finished", c->done, c->ok, c->invalid,
             c->failed, c->timeout, c->skipped, c->elapsed, classes[0] ? classes : " -");
+    if (o->paths)
+        fprintf(stderr, "%s: paths: %d of %d stored (%d ok, %d not ok), %d already done\n", name,
+                c->paths_done, c->paths_total, c->paths_ok, c->paths_failed, c->paths_skipped);
     if (c->interrupted) {
         char why[96];
         if (stop_signal)
@@ -254,6 +274,10 @@ static int screen_main(int argc, char **argv, int rescreen)
                                              {"group-min-states", required_argument, NULL, 'G'},
                                              {"progress-every", required_argument, NULL, 'p'},
                                              {"strict", no_argument, NULL, 's'},
+                                             {"paths", no_argument, NULL, 'Q'},
+                                             {"path-tol", required_argument, NULL, 'L'},
+                                             {"path-samples", required_argument, NULL, 'X'},
+                                             {"path-track-steps", required_argument, NULL, 'K'},
                                              {"help", no_argument, NULL, 'h'},
                                              {NULL, 0, NULL, 0}};
     const char *name = rescreen ? "bandsieve rescreen" : "bandsieve screen";
@@ -283,6 +307,28 @@ static int screen_main(int argc, char **argv, int rescreen)
             break;
         case 'A':
             o.transport = 1;
+            break;
+        case 'Q':
+            o.paths = 1;
+            break;
+        case 'L':
+            if (cli_parse_double(optarg, &d) || d <= 0 || d > 0.1) {
+                fprintf(stderr, "%s: --path-tol expects a number in (0, 0.1], got '%s'\n", name, optarg);
+                return 2;
+            }
+            o.path_tol = d;
+            break;
+        case 'X':
+        case 'K':
+            if (cli_parse_int(optarg, c == 'X' ? 3 : 2, 100000, &v)) {
+                fprintf(stderr, "%s: --%s expects an integer %d..100000, got '%s'\n", name,
+                        c == 'X' ? "path-samples" : "path-track-steps", c == 'X' ? 3 : 2, optarg);
+                return 2;
+            }
+            if (c == 'X')
+                o.path_samples = (int)v;
+            else
+                o.path_track_steps = (int)v;
             break;
         case 'S':
             o.surfaces = 1;
@@ -390,6 +436,10 @@ static int screen_main(int argc, char **argv, int rescreen)
     if (rescreen && o.mesh == 0) o.mesh_factor = 2;
     /* A rescreen is the second look at doubtful or promising entries: every cross-check runs. */
     if (rescreen) o.verify = 1;
+    if (!o.paths && (o.path_tol > 0 || o.path_samples > 0 || o.path_track_steps > 0)) {
+        fprintf(stderr, "%s: --path-tol, --path-samples and --path-track-steps need --paths\n", name);
+        return 2;
+    }
     ps.next_plain = next_plain_after(&ps, 0);
     /* Runs are matched by the set's content; the path is recorded in one canonical spelling. */
     char set_real[4096];
@@ -410,6 +460,7 @@ static int screen_main(int argc, char **argv, int rescreen)
     o.stop_flag = &stop_requested;
     o.progress = show_progress;
     o.announce = announce;
+    o.announce_paths = announce_paths;
     o.progress_ctx = &ps;
     /* SIGUSR1 too: Open MPI's mpirun forwards it to the ranks, whereas on SIGTERM it ends them
      * itself; Slurm can send it ahead of the time limit (#SBATCH --signal=USR1@300). */

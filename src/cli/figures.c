@@ -351,3 +351,194 @@ int fig_heatmap(const char *path, const char *title, const char *xlabel, const c
     free(v);
     return rc ? rc : rc2;
 }
+
+/* Class colours by name; see figures.h. */
+static const struct {
+    const char *name;
+    double rgb[3];
+} CLASS_RGB[] = {
+    {"trivial insulator", {0.86, 0.86, 0.84}},
+    {"strong topological insulator", {0.12, 0.25, 0.55}},
+    {"weak topological insulator", {0.50, 0.66, 0.88}},
+    {"2D topological insulator", {0.33, 0.27, 0.62}},
+    {"Chern insulator", {0.10, 0.52, 0.50}},
+    {"topological crystalline insulator", {0.62, 0.78, 0.80}},
+    {"Weyl semimetal", {0.93, 0.58, 0.16}},
+    {"nodal-line semimetal", {0.96, 0.82, 0.52}},
+    {"metal", {0.55, 0.33, 0.12}},
+    {"critical point", {0.0, 0.0, 0.0}},
+    {"undetermined", {1.00, 1.00, 1.00}},
+};
+
+void fig_class_rgb(const char *cls, double rgb[3])
+{
+    for (size_t i = 0; i < sizeof CLASS_RGB / sizeof CLASS_RGB[0]; i++)
+        if (cls && !strcmp(cls, CLASS_RGB[i].name)) {
+            memcpy(rgb, CLASS_RGB[i].rgb, sizeof CLASS_RGB[i].rgb);
+            return;
+        }
+    rgb[0] = rgb[1] = rgb[2] = 1.0;
+}
+
+/* Edges of the cells around increasing grid points: midpoints, the ends half a step out (one
+ * point: +-0.5). edges has n + 1 entries. */
+static void cell_edges(int n, const double *v, double *edges)
+{
+    if (n == 1) {
+        edges[0] = v[0] - 0.5, edges[1] = v[0] + 0.5;
+        return;
+    }
+    for (int i = 1; i < n; i++)
+        edges[i] = 0.5 * (v[i - 1] + v[i]);
+    edges[0] = v[0] - 0.5 * (v[1] - v[0]);
+    edges[n] = v[n - 1] + 0.5 * (v[n - 1] - v[n - 2]);
+}
+
+int fig_classmap(const char *path, const char *title, const char *xlabel, const char *ylabel, int nx, int ny,
+                 const double *x, const double *y, const int *cls, int ncls, const char *const *names,
+                 cJSON *data, bs_err *err)
+{
+    double *ex = malloc(((size_t)nx + 1) * sizeof *ex), *ey = malloc(((size_t)ny + 1) * sizeof *ey);
+    int *used = calloc((size_t)ncls + 1, sizeof *used);
+    if (!ex || !ey || !used) {
+        free(ex), free(ey), free(used);
+        return bs_fail(err, BS_ENOMEM, "out of memory for the map");
+    }
+    cell_edges(nx, x, ex);
+    cell_edges(ny, y, ey);
+    plot_axes ax = {title, xlabel, ylabel, ex[0], ex[nx], ey[0], ey[ny], 0, NULL, NULL, 1};
+    plot_fig *f = NULL;
+    /* Wide enough for the longest class name in the legend margin. */
+    int rc = plot_open(path, 1300, 650, 1, 1, &f, err);
+    if (rc == 0) rc = plot_panel(f, &ax, err);
+    for (int j = 0; rc == 0 && j < ny; j++)
+        for (int i = 0; i < nx; i++) {
+            int c = cls[(size_t)j * nx + i];
+            double rgb[3];
+            fig_class_rgb(c >= 0 && c < ncls ? names[c] : NULL, rgb);
+            plot_rect_rgb(f, ex[i], ex[i + 1], ey[j], ey[j + 1], rgb);
+            if (c >= 0 && c < ncls) used[c] = 1;
+        }
+    int row = 0;
+    for (int c = 0; rc == 0 && c < ncls; c++) {
+        if (!used[c]) continue;
+        double rgb[3];
+        fig_class_rgb(names[c], rgb);
+        plot_legend_rgb(f, row++, rgb, names[c]);
+    }
+    int rc2 = plot_close(f, err);
+    if (data) {
+        add_array(data, "x", x, nx);
+        add_array(data, "y", y, ny);
+        cJSON_AddItemToObject(data, "class_names", cJSON_CreateStringArray(names, ncls));
+        cJSON_AddItemToObject(data, "class", cJSON_CreateIntArray(cls, nx * ny));
+    }
+    free(ex), free(ey), free(used);
+    return rc ? rc : rc2;
+}
+
+static int path_gap_panel(plot_fig *f, const char *title, const pp_result *r, const char *unit, cJSON *data,
+                          bs_err *err)
+{
+    double gmax = 0;
+    for (int i = 0; i < r->nsamples; i++)
+        if (isfinite(r->gaps[i])) gmax = fmax(gmax, r->gaps[i]);
+    char xl[128];
+    snprintf(xl, sizeof xl, unit && unit[0] ? "%s (%s)" : "%s", r->param, unit);
+    plot_axes ax = {title, xl, "direct gap (eV)", r->x_lo, r->x_hi, 0, gmax > 0 ? 1.08 * gmax : 1, 0, NULL,
+                    NULL,  1};
+    int rc = plot_panel(f, &ax, err);
+    if (rc != 0) return rc;
+    int row = 0;
+    for (int i = 0; i < r->ninterval; i++) {
+        const char *cls = res_class_name(r->intervals[i].diag.cls);
+        double rgb[3];
+        fig_class_rgb(cls, rgb);
+        plot_rect_rgb(f, r->intervals[i].x_lo, r->intervals[i].x_hi, ax.y0, ax.y1, rgb);
+        int seen = 0;
+        for (int q = 0; q < i; q++)
+            seen |= r->intervals[q].diag.cls == r->intervals[i].diag.cls;
+        if (!seen) plot_legend_rgb(f, row++, rgb, cls);
+    }
+    plot_curve(f, r->nsamples, r->xs, r->gaps, PLOT_INK, 2.0, 0);
+    for (int i = 0; i < r->nclosing; i++) {
+        double xs[2] = {r->closings[i].x, r->closings[i].x}, ys[2] = {ax.y0, ax.y1};
+        plot_curve(f, 2, xs, ys, PLOT_GREY, 1.0, 1);
+        plot_text(f, r->closings[i].x, ax.y1 - (0.06 + 0.05 * (i % 3)) * (ax.y1 - ax.y0), PLOT_INK,
+                  r->closings[i].kind);
+    }
+    if (data) {
+        add_array(data, "x", r->xs, r->nsamples);
+        add_array(data, "gap_direct_eV", r->gaps, r->nsamples);
+        cJSON *iv = cJSON_AddArrayToObject(data, "intervals");
+        for (int i = 0; i < r->ninterval; i++) {
+            cJSON *o = cJSON_CreateObject();
+            cJSON_AddNumberToObject(o, "from", r->intervals[i].x_lo);
+            cJSON_AddNumberToObject(o, "to", r->intervals[i].x_hi);
+            cJSON_AddStringToObject(o, "class", res_class_name(r->intervals[i].diag.cls));
+            cJSON_AddItemToArray(iv, o);
+        }
+    }
+    return 0;
+}
+
+static void path_track_panel(plot_fig *f, const pp_result *r, cJSON *data, bs_err *err)
+{
+    plot_axes ax = {"Weyl-node tracks projected on (k1, k2)",
+                    "k1 (units of b1)",
+                    "k2 (units of b2)",
+                    -0.5,
+                    0.5,
+                    -0.5,
+                    0.5,
+                    0,
+                    NULL,
+                    NULL,
+                    1};
+    if (plot_panel(f, &ax, err) != 0) return;
+    cJSON *tr = data ? cJSON_AddArrayToObject(data, "tracks") : NULL;
+    for (int t = 0; t < r->ntrack; t++) {
+        const pp_track *tk = &r->tracks[t];
+        double *kx = malloc(((size_t)tk->npts + 1) * sizeof *kx),
+               *ky = malloc(((size_t)tk->npts + 1) * sizeof *ky);
+        if (!kx || !ky) {
+            free(kx), free(ky);
+            return;
+        }
+        int col = tk->chirality > 0 ? PLOT_ORANGE : PLOT_BLUE, start = 0;
+        for (int q = 0; q < tk->npts; q++) {
+            kx[q] = centred(tk->k[q][0]), ky[q] = centred(tk->k[q][1]);
+            /* A jump across the zone boundary ends one drawn piece and starts the next. */
+            if (q > start && (fabs(kx[q] - kx[q - 1]) > 0.5 || fabs(ky[q] - ky[q - 1]) > 0.5)) {
+                plot_curve(f, q - start, kx + start, ky + start, col, 2.0, 0);
+                start = q;
+            }
+        }
+        plot_curve(f, tk->npts - start, kx + start, ky + start, col, 2.0, 0);
+        plot_points(f, 1, kx, ky, col, 0.008);
+        if (tr) {
+            cJSON *o = cJSON_CreateObject();
+            cJSON_AddNumberToObject(o, "chirality", tk->chirality);
+            add_array(o, "k1", kx, tk->npts);
+            add_array(o, "k2", ky, tk->npts);
+            cJSON_AddItemToArray(tr, o);
+        }
+        free(kx), free(ky);
+    }
+    double orange[3] = {230 / 255.0, 140 / 255.0, 30 / 255.0},
+           blue[3] = {30 / 255.0, 80 / 255.0, 160 / 255.0};
+    plot_legend_rgb(f, 0, orange, "chirality +1");
+    plot_legend_rgb(f, 1, blue, "chirality -1");
+}
+
+int fig_path(const char *path, const char *title, const pp_result *r, const char *unit, cJSON *data,
+             bs_err *err)
+{
+    int tracks = r->ntrack > 0;
+    plot_fig *f = NULL;
+    int rc = plot_open(path, 1300, tracks ? 1200 : 650, 1, tracks ? 2 : 1, &f, err);
+    if (rc == 0) rc = path_gap_panel(f, title, r, unit, data, err);
+    if (rc == 0 && tracks) path_track_panel(f, r, data, err);
+    int rc2 = plot_close(f, err);
+    return rc ? rc : rc2;
+}

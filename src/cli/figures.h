@@ -10,6 +10,7 @@
 #include "bandsieve/berrymap.h"
 #include "bandsieve/diagnosis.h"
 #include "bandsieve/err.h"
+#include "bandsieve/phasepath.h"
 #include "bandpath.h"
 
 /* Bands along the path: occupied bands in ink, empty ones in blue (or coloured by the weight),
@@ -50,5 +51,24 @@ int fig_heatmap(const char *path, const char *title, const char *xlabel, const c
                 const char *clabel, int nx, int ny, const double *z, double x0, double x1, double y0,
                 double y1, int log_scale, int ntick, const double *xt, const char *const *labels,
                 bs_err *err);
+
+/* The colour (RGB in 0..1) this project gives a class by its name (res_class_name or
+ * pp_class_name): insulators in blues and greys, semimetals and metals in oranges and browns,
+ * luminances apart so that neighbouring classes stay apart in grey too; no red/green contrast. */
+void fig_class_rgb(const char *cls, double rgb[3]);
+
+/* A map of classes: cls[iy * nx + ix] (indices into names, ncls of them) at the grid points x[nx] x
+ * y[ny] (increasing), each drawn as the cell around its point, with a legend of the classes present.
+ * data (may be NULL) receives x, y, the class names and the cells' class indices. */
+int fig_classmap(const char *path, const char *title, const char *xlabel, const char *ylabel, int nx, int ny,
+                 const double *x, const double *y, const int *cls, int ncls, const char *const *names,
+                 cJSON *data, bs_err *err);
+
+/* A phase path: the direct gap against the parameter with the phase intervals shaded in their
+ * class's colour and the closings marked; when r has Weyl-node tracks, a second panel with the
+ * tracks projected on the (k1, k2) plane of the centred zone, coloured by chirality. data (may be
+ * NULL) receives the plotted arrays. */
+int fig_path(const char *path, const char *title, const pp_result *r, const char *unit, cJSON *data,
+             bs_err *err);
 
 #endif

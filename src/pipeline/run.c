@@ -27,6 +27,7 @@
 #include "bandsieve/pzheev.h"
 #include "group.h"
 #include "journal.h"
+#include "pathrun.h"
 #include "work.h"
 
 enum { TAG_RESULT = 11, TAG_WORK = 12, TAG_STOP = 13 };
@@ -223,6 +224,8 @@ static int give_up_lost(coord *c, const char *jpath, bs_err *err)
     if (rc == 0 && n > 0) rc = cat_done_ids(c->cat, c->run_id, &done, err);
     for (int i = 0; rc == 0 && i < n; i++) {
         if (strikes[i] < PL_MAX_STRIKES || cat_ids_contains(&done, ids[i])) continue;
+        if (!strncmp(ids[i], PL_PATH_JOURNAL_PREFIX, strlen(PL_PATH_JOURNAL_PREFIX)))
+            continue; /* pathrun.c */
         char msg[256];
         snprintf(msg, sizeof msg,
                  "its job died while it was being computed in %d sessions (a worker crash, for "
@@ -463,7 +466,7 @@ static int coord_setup(coord *c, int ranks, const char *hosts, bs_err *err)
     }
     c->counts.run_id = c->run_id;
     /* A new run with nothing to do (a repeated screen of a finished set) leaves no trace. */
-    if (rc == 0 && !resumed && c->nitems == 0) {
+    if (rc == 0 && !resumed && c->nitems == 0 && !o->paths) { /* with --paths: pl_paths_coordinate */
         rc = cat_run_discard(c->cat, c->run_id, err);
         if (rc == 0) c->discarded = 1;
     }
@@ -959,6 +962,8 @@ int pl_run(MPI_Comm user_comm, const pl_opts *o, pl_counts *counts, int *is_root
             else
                 rc = run_worker(o, comm, in_group ? gcomm : MPI_COMM_NULL, group, rank, err);
         }
+        if (rc == 0 && setup_ok && o->paths && !(in_group && rank != leader))
+            rc = pl_paths_work(comm, o, rank, err);
         pl_group_free(group);
         if (gcomm != MPI_COMM_NULL) MPI_Comm_free(&gcomm);
         MPI_Comm_free(&comm);
@@ -982,6 +987,9 @@ int pl_run(MPI_Comm user_comm, const pl_opts *o, pl_counts *counts, int *is_root
     }
     if (rc == 0 && o->announce) o->announce(o->progress_ctx, &c.counts, o->kind);
     if (rc == 0) rc = size > 1 ? run_coordinator(&c, size, err) : run_serial(&c, err);
+    if (setup_ok && o->paths)
+        rc = pl_paths_coordinate(comm, size > 1 ? c.nworkers : 0, o, c.cat, c.set, c.run_id, c.journal,
+                                 &c.counts, &c.discarded, rc, err);
     if (setup_ok && !c.discarded) {
         bs_err end_err;
         bs_err_clear(&end_err);
@@ -1001,4 +1009,23 @@ int pl_run(MPI_Comm user_comm, const pl_opts *o, pl_counts *counts, int *is_root
     if (gcomm != MPI_COMM_NULL) MPI_Comm_free(&gcomm);
     MPI_Comm_free(&comm);
     return rc;
+}
+
+/* The member phase's message helpers, for the path phase (pathrun.h). */
+int pl_wire_check(int code, const char *what, bs_err *err)
+{
+    return mpi_check(code, what, err);
+}
+int pl_wire_probe(MPI_Comm comm, int *flag, MPI_Status *st, bs_err *err)
+{
+    return mpi_check(MPI_Iprobe(MPI_ANY_SOURCE, TAG_RESULT, comm, flag, st), "MPI_Iprobe", err);
+}
+int pl_wire_recv(MPI_Comm comm, MPI_Status *st, pl_outcome *out, int *kind, bs_err *err)
+{
+    int job_limited = 0;
+    return recv_outcome(comm, st, out, &job_limited, kind, err);
+}
+int pl_wire_send(MPI_Comm comm, int kind, const pl_outcome *out, bs_err *err)
+{
+    return send_outcome(comm, kind, out, 0, err);
 }

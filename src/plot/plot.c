@@ -320,6 +320,42 @@ void plot_legend(plot_fig *f, int i, int col, const char *text)
     plptex(x + 0.07 * dx, y, 1, 0, 0, text);
 }
 
+/* cmap0 entry 15 is left free by plot_open for colours given as RGB. */
+static void set_rgb(const double rgb[3])
+{
+    plscol0(15, (int)lround(255 * fmin(fmax(rgb[0], 0), 1)), (int)lround(255 * fmin(fmax(rgb[1], 0), 1)),
+            (int)lround(255 * fmin(fmax(rgb[2], 0), 1)));
+    plcol0(15);
+}
+
+void plot_rect_rgb(plot_fig *f, double x0, double x1, double y0, double y1, const double rgb[3])
+{
+    double xa = fmax(fmin(x0, x1), fmin(f->x0, f->x1)), xb = fmin(fmax(x0, x1), fmax(f->x0, f->x1));
+    double ya = fmax(fmin(y0, y1), fmin(f->y0, f->y1)), yb = fmin(fmax(y0, y1), fmax(f->y0, f->y1));
+    if (!(xb > xa) || !(yb > ya)) return;
+    set_rgb(rgb);
+    fill_rect(xa, xb, ya, yb);
+    plcol0(1);
+}
+
+void plot_legend_rgb(plot_fig *f, int i, const double rgb[3], const char *text)
+{
+    /* The margin right of the panel as a unit window; restored after. */
+    plvpor(f->vp[1] + 0.015, 0.995, f->vp[2], f->vp[3]);
+    plwind(0, 1, 0, 1);
+    double y = 1 - 0.075 * (i + 0.5);
+    set_rgb(rgb);
+    fill_rect(0.0, 0.1, y - 0.025, y + 0.025);
+    plcol0(1);
+    PLFLT xs[5] = {0.0, 0.1, 0.1, 0.0, 0.0}, ys[5] = {y - 0.025, y - 0.025, y + 0.025, y + 0.025, y - 0.025};
+    plline(5, xs, ys);
+    plschr(0, 0.7);
+    plptex(0.13, y, 1, 0, 0, text);
+    plschr(0, 0.85);
+    plvpor(f->vp[0], f->vp[1], f->vp[2], f->vp[3]);
+    plwind(f->x0, f->x1, f->y0, f->y1);
+}
+
 int plot_curves_file(const char *path, const plot_axes *ax, int nseries, const plot_series *s, int ninterval,
                      const plot_interval *iv, bs_err *err)
 {

@@ -22,6 +22,7 @@
 #include <sqlite3.h>
 
 #include "bandsieve/catalogue.h"
+#include "bandsieve/phasepath.h"
 #include "bandsieve/result.h"
 
 /* ---- helpers ---- */
@@ -208,8 +209,9 @@ static void test_schema_applies(void **state)
     dump d;
     q(cat, "SELECT name FROM sqlite_master WHERE type IN ('table', 'view') ORDER BY name", &d);
     assert_string_equal(
-        d.text, "artifacts\ncandidates\nconflicts\nfailures\nmaterials\nnodes\nresults\nrun_progress\n"
-                "run_sessions\nruns\nsummary\nsurfaces\ntop_spin_hall\n");
+        d.text, "artifacts\ncandidates\nconflicts\nfailures\nmaterials\nnodes\npath_events\npath_intervals\n"
+                "path_samples\npath_track_points\npath_tracks\npaths\nresults\nrun_progress\n"
+                "run_sessions\nruns\nsummary\nsurfaces\ntop_spin_hall\ntransitions\n");
     close_ok(cat);
     /* WAL mode is a property of the file: a plain connection sees it. (cat_query refuses even
      * a bare "PRAGMA journal_mode", which sqlite3_stmt_readonly counts as a write.) */
@@ -272,6 +274,132 @@ static void test_open_refuses_foreign_files(void **state)
     tmp_remove(&t);
 }
 
+/* The path tables of a catalogue migrated from version 4 equal those of a fresh file, column by
+ * column (name, type, not-null, default, key) and in their foreign keys. */
+static void table_shape(const char *path, const char *table, char *out, size_t len)
+{
+    sqlite3 *db = NULL;
+    assert_int_equal(sqlite3_open_v2(path, &db, SQLITE_OPEN_READONLY, NULL), SQLITE_OK);
+    size_t used = 0;
+    out[0] = '\0';
+    const char *const pragmas[2] = {"PRAGMA table_info(%s)", "PRAGMA foreign_key_list(%s)"};
+    for (int p = 0; p < 2; p++) {
+        char sql[128];
+        snprintf(sql, sizeof sql, pragmas[p], table);
+        sqlite3_stmt *st = NULL;
+        assert_int_equal(sqlite3_prepare_v2(db, sql, -1, &st, NULL), SQLITE_OK);
+        while (sqlite3_step(st) == SQLITE_ROW)
+            for (int c = 0; c < sqlite3_column_count(st); c++) {
+                const unsigned char *v = sqlite3_column_text(st, c);
+                used += (size_t)snprintf(out + used, len - used, "%s%c", v ? (const char *)v : "NULL",
+                                         c + 1 == sqlite3_column_count(st) ? '\n' : '|');
+            }
+        sqlite3_finalize(st);
+    }
+    sqlite3_close(db);
+    assert_true(used > 0);
+}
+
+static const char *const PATH_TABLES[] = {"paths",       "path_samples", "path_intervals",
+                                          "path_events", "path_tracks",  "path_track_points"};
+
+static void test_migrate_paths(void **state)
+{
+    (void)state;
+    tmpdir t;
+    tmp_make(&t);
+    cat_db *cat = open_rw(t.cat);
+    close_ok(cat);
+    char fresh_path[600];
+    snprintf(fresh_path, sizeof fresh_path, "%s/fresh.sqlite", t.dir);
+    close_ok(open_rw(fresh_path));
+    sqlite3 *db = NULL;
+    assert_int_equal(sqlite3_open(t.cat, &db), SQLITE_OK);
+    assert_int_equal(sqlite3_exec(db, "DROP VIEW transitions", NULL, NULL, NULL), SQLITE_OK);
+    for (int i = 5; i >= 0; i--) {
+        char sql[128];
+        snprintf(sql, sizeof sql, "DROP TABLE %s", PATH_TABLES[i]);
+        if (sqlite3_exec(db, sql, NULL, NULL, NULL) != SQLITE_OK) fail_msg("%s: %s", sql, sqlite3_errmsg(db));
+    }
+    assert_int_equal(sqlite3_exec(db, "PRAGMA user_version = 4", NULL, NULL, NULL), SQLITE_OK);
+    sqlite3_close(db);
+    cat = open_rw(t.cat);
+    assert_int_equal(q_int(cat, "PRAGMA user_version"), CAT_SCHEMA_VERSION);
+    assert_int_equal(q_int(cat, "SELECT count(*) FROM transitions"), 0);
+    close_ok(cat);
+    for (int i = 0; i < 6; i++) {
+        static char a[8192], b[8192];
+        table_shape(t.cat, PATH_TABLES[i], a, sizeof a);
+        table_shape(fresh_path, PATH_TABLES[i], b, sizeof b);
+        if (strcmp(a, b) != 0) fail_msg("%s differs after migration:\n%s\nfresh:\n%s", PATH_TABLES[i], a, b);
+    }
+    remove(fresh_path);
+    tmp_remove(&t);
+}
+
+/* A path stored twice for the same family replaces the first (paths and every path_* table), and
+ * the transitions view shows its closings with the classes either side. The path is a real one:
+ * the Haldane model over M in [-1.5, 1.5] at t2 = 0.1, phi = pi/2 closes at M = -+3 sqrt3 t2
+ * (Phys. Rev. Lett. 61, 2015 (1988)), to the path's tolerance 1e-5 (1e-4 allowed). */
+static void test_path_put_replace(void **state)
+{
+    (void)state;
+    tmpdir t;
+    tmp_make(&t);
+    cat_db *cat = open_rw(t.cat);
+    bs_err err;
+    bs_err_clear(&err);
+    pp_source *src = NULL;
+    assert_int_equal(pp_source_builtin("haldane:t2=0.1,phi=0.5", "M", &src, &err), 0);
+    pp_opts o;
+    pp_opts_init(&o);
+    o.nsamples = 15;
+    pp_result r;
+    pp_result_init(&r);
+    if (pp_run(src, "M", -1.5, 1.5, &o, &r, &err) != 0) fail_msg("pp_run: %s", err.msg);
+    assert_int_equal(r.nclosing, 2);
+    cat_path_info info = {.family = "haldane",
+                          .parameter = "M",
+                          .unit = "eV",
+                          .content = "c1",
+                          .nmembers = 2,
+                          .dimension = 2,
+                          .x_from = -1.5,
+                          .x_to = 1.5,
+                          .tol_x = 1e-5,
+                          .status = CAT_RES_OK};
+    for (int pass = 0; pass < 2; pass++)
+        if (cat_path_put(cat, 0, &info, &r, &err) != 0) fail_msg("cat_path_put: %s", err.msg);
+    assert_int_equal(q_int(cat, "SELECT count(*) FROM paths"), 1);
+    assert_int_equal(q_int(cat, "SELECT count(*) FROM path_samples"), r.nsamples);
+    assert_int_equal(q_int(cat, "SELECT count(*) FROM path_intervals"), r.ninterval);
+    assert_int_equal(q_int(cat, "SELECT count(*) FROM path_events"), r.nclosing + r.nevent);
+    dump d;
+    q(cat, "SELECT round(value, 4), class_before, class_after FROM transitions", &d);
+    assert_string_equal(d.text, "-0.5196|trivial insulator|Chern insulator\n"
+                                "0.5196|Chern insulator|trivial insulator\n");
+    int done = 0;
+    assert_int_equal(cat_path_done(cat, "haldane", "c1", 1e-5, &done, &err), 0);
+    assert_int_equal(done, 1);
+    assert_int_equal(cat_path_done(cat, "haldane", "c1", 1e-6, &done, &err), 0);
+    assert_int_equal(done, 0); /* a finer tolerance is not done */
+    assert_int_equal(cat_path_done(cat, "haldane", "c2", 1e-5, &done, &err), 0);
+    assert_int_equal(done, 0); /* other members */
+    /* A failed path replaces the ok one and leaves no rows of it. */
+    info.status = CAT_RES_FAILED;
+    info.message = "numerical failure";
+    assert_int_equal(cat_path_put(cat, 0, &info, NULL, &err), 0);
+    assert_int_equal(q_int(cat, "SELECT count(*) FROM path_samples"), 0);
+    assert_int_equal(q_int(cat, "SELECT count(*) FROM path_events"), 0);
+    assert_int_equal(q_int(cat, "SELECT count(*) FROM transitions"), 0);
+    info.status = CAT_RES_TIMEOUT;
+    assert_int_equal(cat_path_put(cat, 0, &info, NULL, &err), BS_EINVAL);
+    pp_result_clear(&r);
+    pp_source_free(src);
+    close_ok(cat);
+    tmp_remove(&t);
+}
+
 /* A version-2 catalogue (before the approximate-symmetry columns) is migrated when opened for
  * writing: the columns appear, old rows keep NULL there, and new rows fill them. */
 static void test_migrate_v2(void **state)
@@ -301,11 +429,14 @@ static void test_migrate_v2(void **state)
                                        "z4",
                                        "mirror_chern",
                                        "mirror_chern_status"};
-    assert_int_equal(sqlite3_exec(db,
-                                  "DROP VIEW IF EXISTS conflicts; DROP VIEW candidates; DROP VIEW "
-                                  "top_spin_hall; DROP VIEW surfaces; DROP VIEW summary;",
-                                  NULL, NULL, NULL),
-                     SQLITE_OK);
+    assert_int_equal(
+        sqlite3_exec(db,
+                     "DROP VIEW IF EXISTS conflicts; DROP VIEW candidates; DROP VIEW "
+                     "top_spin_hall; DROP VIEW surfaces; DROP VIEW summary; DROP VIEW transitions;"
+                     "DROP TABLE path_track_points; DROP TABLE path_tracks; DROP TABLE path_events;"
+                     "DROP TABLE path_intervals; DROP TABLE path_samples; DROP TABLE paths;",
+                     NULL, NULL, NULL),
+        SQLITE_OK);
     for (size_t i = 0; i < sizeof cols / sizeof cols[0]; i++) {
         char sql[128];
         snprintf(sql, sizeof sql, "ALTER TABLE results DROP COLUMN %s", cols[i]);
@@ -1350,6 +1481,8 @@ int main(void)
         cmocka_unit_test(test_open_refuses_foreign_files),
         cmocka_unit_test(test_migrate_v2),
         cmocka_unit_test(test_crystal_columns),
+        cmocka_unit_test(test_migrate_paths),
+        cmocka_unit_test(test_path_put_replace),
         cmocka_unit_test(test_put_and_read_back),
         cmocka_unit_test(test_struct_and_flows),
         cmocka_unit_test(test_missing_keys_and_failures),

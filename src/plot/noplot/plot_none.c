@@ -50,6 +50,8 @@ void plot_map(plot_fig *f, int nx, int ny, const double *z, double x0, double x1
 void plot_colourbar(plot_fig *f, int cmap, double zmin, double zmax, const char *caption) {}
 void plot_text(plot_fig *f, double x, double y, int col, const char *text) {}
 void plot_legend(plot_fig *f, int i, int col, const char *text) {}
+void plot_rect_rgb(plot_fig *f, double x0, double x1, double y0, double y1, const double rgb[3]) {}
+void plot_legend_rgb(plot_fig *f, int i, const double rgb[3], const char *text) {}
 
 int plot_curves_file(const char *path, const plot_axes *ax, int nseries, const plot_series *s, int ninterval,
                      const plot_interval *iv, bs_err *err)
