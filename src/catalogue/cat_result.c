@@ -144,6 +144,9 @@ static int bind_row(const put_ctx *pc, int64_t run_id, cat_status status, const 
     sqlite3_bind_int64(st, param(pc, ":run_id"), run_id);
     sqlite3_bind_text(st, param(pc, ":material_id"), pc->mid, -1, SQLITE_TRANSIENT);
     sqlite3_bind_text(st, param(pc, ":status"), cat_status_name(status), -1, SQLITE_STATIC);
+    char now[32];
+    sqlite3_bind_text(st, param(pc, ":finished"), cat_now_text(pc->cat, now, sizeof now), -1,
+                      SQLITE_TRANSIENT);
     if (message) sqlite3_bind_text(st, param(pc, ":message"), message, -1, SQLITE_TRANSIENT);
     if (rank >= 0) sqlite3_bind_int(st, param(pc, ":rank"), rank);
     if (seconds >= 0)
@@ -255,6 +258,41 @@ static int ensure_material(cat_db *cat, const char *mid, const res_diag *diag, b
     return step_reset(cat, st, "recording the material", err);
 }
 
+/* The bound results INSERT, stepped and reset with its bindings kept (a retry steps it again).
+ * 0, or the extended SQLite code of the failure. */
+static int step_keep(sqlite3_stmt *st)
+{
+    int s = sqlite3_step(st);
+    int code = s == SQLITE_DONE ? 0 : sqlite3_extended_errcode(sqlite3_db_handle(st));
+    sqlite3_reset(st);
+    return code;
+}
+
+/* The results row, inserted first without looking: the common case (a new row of a material the
+ * coordinator recorded) costs one statement. Only when the insert hits a constraint is the cause
+ * dealt with and the insert repeated: an earlier row of the same (run, material) is replaced
+ * (unique key), a material never recorded gets a row from the diagnosis (foreign key). */
+static int insert_result(cat_db *cat, int64_t run_id, const char *mid, const res_diag *diag, bs_err *err)
+{
+    sqlite3_stmt *ins = cat->st[CAT_ST_RESULT];
+    int code = step_keep(ins);
+    if (code == SQLITE_CONSTRAINT_FOREIGNKEY) {
+        int rc = ensure_material(cat, mid, diag, err);
+        if (rc != 0) return rc;
+        code = step_keep(ins);
+    }
+    if (code == SQLITE_CONSTRAINT_UNIQUE) {
+        int exists = result_exists(cat, run_id, mid, err);
+        if (exists < 0) return exists;
+        if (exists) {
+            int rc = delete_result(cat, run_id, mid, err);
+            if (rc != 0) return rc;
+            code = step_keep(ins);
+        }
+    }
+    return code == 0 ? 0 : cat_sql_fail(cat, err, "writing the result");
+}
+
 /* All statements of one result in the batch transaction: either the whole result (row, nodes,
  * artifacts) is in the batch or none of it. A failure here is an SQLite or HDF5 error; it is undone by
  * deleting what this put wrote. (A savepoint per put would do the same, but SQLite allocates a journal buffer
@@ -263,11 +301,7 @@ static int write_row(cat_db *cat, int64_t run_id, const char *mid, const res_dia
 {
     int rc = cat_txn_begin(cat, err);
     if (rc != 0) return rc;
-    rc = ensure_material(cat, mid, diag, err);
-    int exists = rc == 0 ? result_exists(cat, run_id, mid, err) : 0;
-    if (exists < 0) rc = exists;
-    if (rc == 0 && exists) rc = delete_result(cat, run_id, mid, err);
-    if (rc == 0) rc = step_reset(cat, cat->st[CAT_ST_RESULT], "writing the result", err);
+    rc = insert_result(cat, run_id, mid, diag, err);
     if (rc == 0) rc = insert_nodes(cat, run_id, mid, diag, err);
     if (rc == 0 && diag) rc = insert_flows(cat, run_id, mid, diag->flows, diag->nflows, err);
     if (rc == 0) return 0;
