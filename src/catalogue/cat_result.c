@@ -135,10 +135,10 @@ static int bind_diag(const put_ctx *pc)
 }
 
 /* Binds every results column from the arguments and the diagnosis; the diagnosis column is the
- * JSON form without the bulky flows, which live in the artifact file (*diag_text, the caller frees
- * it with cJSON_free). */
+ * JSON form without the bulky flows, which live in the artifact file: stored (borrowed) when the
+ * caller has it, else printed into *diag_text (the caller frees it with cJSON_free). */
 static int bind_row(const put_ctx *pc, int64_t run_id, cat_status status, const char *message, int rank,
-                    double seconds, char **diag_text)
+                    double seconds, const char *stored, char **diag_text)
 {
     sqlite3_stmt *st = pc->st;
     sqlite3_bind_int64(st, param(pc, ":run_id"), run_id);
@@ -156,6 +156,10 @@ static int bind_row(const put_ctx *pc, int64_t run_id, cat_status status, const 
     if (!pc->diag) return 0;
     int rc = bind_diag(pc);
     if (rc != 0) return rc;
+    if (stored) {
+        sqlite3_bind_text(st, param(pc, ":diagnosis"), stored, -1, SQLITE_STATIC);
+        return 0;
+    }
     *diag_text = res_to_text(pc->diag, 0);
     if (!*diag_text)
         return bs_fail(pc->err, BS_ENOMEM, "material %s: out of memory printing the diagnosis", pc->mid);
@@ -336,11 +340,18 @@ static int check_args(cat_db *cat, const char *mid, cat_status status, const res
 int cat_result_put(cat_db *cat, int64_t run_id, const char *material_id, cat_status status,
                    const char *message, const res_diag *diag, int rank, double seconds, bs_err *err)
 {
+    return cat_result_put_stored(cat, run_id, material_id, status, message, diag, NULL, rank, seconds, err);
+}
+
+int cat_result_put_stored(cat_db *cat, int64_t run_id, const char *material_id, cat_status status,
+                          const char *message, const res_diag *diag, const char *stored_text, int rank,
+                          double seconds, bs_err *err)
+{
     int rc = check_args(cat, material_id, status, diag, err);
     if (rc != 0) return rc;
     put_ctx pc = {cat, cat->st[CAT_ST_RESULT], diag, material_id, err};
     char *diag_text = NULL;
-    rc = bind_row(&pc, run_id, status, message, rank, seconds, &diag_text);
+    rc = bind_row(&pc, run_id, status, message, rank, seconds, stored_text, &diag_text);
     if (rc == 0) rc = write_row(cat, run_id, material_id, diag, err);
     sqlite3_reset(pc.st); /* a failed bind leaves values behind; the next put starts clean */
     sqlite3_clear_bindings(pc.st);

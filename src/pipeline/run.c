@@ -40,12 +40,14 @@ enum { TAG_RESULT = 11, TAG_WORK = 12, TAG_STOP = 13 };
  * setting. */
 #define PL_DEFAULT_SYMMETRY_TOL 1e-6
 
-/* Worker -> coordinator: this header, then the diagnosis JSON (NUL-terminated) when code == 0.
+/* Worker -> coordinator: this header, then, when code == 0, the diagnosis JSON and, when it has
+ * flows, the same without them (stored_len bytes; the catalogue stores that text as it is).
  * kind 0 is the first request of a worker (no result yet). Same binary on every rank, so the
  * struct layout agrees. */
 typedef struct wire_head {
     int kind;
-    int seq; /* the worker's count of messages sent before this one */
+    int seq;        /* the worker's count of messages sent before this one */
+    int stored_len; /* bytes of the text without flows at the end; 0: none (the JSON is that form) */
     int code;
     int rank;
     int job_limited;
@@ -75,7 +77,7 @@ enum { PL_PREFETCH_MAX = 4 };
 #define PL_PREFETCH_COVER   1e-3
 
 /* Messages taken per round, and the coordinator's sleeps between polls (microseconds). */
-enum { PL_ROUND = 16, PL_NAP_MIN_US = 20, PL_NAP_MAX_US = 500 };
+enum { PL_ROUND = 16, PL_NAP_MIN_US = 100, PL_NAP_MAX_US = 500 };
 
 /* The send times a worker keeps, by seq modulo this, to know how long a material waited in its
  * queue; more than it can hold. */
@@ -104,6 +106,7 @@ typedef struct coord {
     int *held;           /* per world rank: materials sent and not yet answered */
     int *depth;          /* per world rank: how many it may hold (1 + a prefetch for short materials) */
     unsigned char *holds_suspect; /* per world rank: it holds a suspect (and nothing else) */
+    int hungry;                   /* requesting ranks that hold fewer materials than their depth */
     cat_ids suspects;             /* ids lost once in an earlier session of this run (give_up_lost) */
     int *susp;                    /* work-list positions of the suspects, in cost order */
     int nsusp, susp_left;         /* how many; how many not yet handed out */
@@ -611,8 +614,9 @@ static int coord_record(coord *c, const pl_outcome *out, int job_limited, bs_err
     if (rc != 0)
         bs_err_context(err, "from rank %d: ", out->rank);
     else
-        rc = cat_result_put(c->cat, c->run_id, out->id, st, out->code ? out->message : NULL, has ? &r : NULL,
-                            out->rank, out->seconds, err);
+        rc = cat_result_put_stored(c->cat, c->run_id, out->id, st, out->code ? out->message : NULL,
+                                   has ? &r : NULL, has ? (out->stored ? out->stored : out->json) : NULL,
+                                   out->rank, out->seconds, err);
     if (rc != 0 && is_storage_fault(rc)) {
         /* The result is fine but cannot be stored (disk full, unwritable artifact file): it is
          * not recorded at all, so a resumed run computes it again, and the job stops. */
@@ -812,8 +816,20 @@ static int recv_outcome(MPI_Comm comm, const MPI_Status *st, msg_in *m, bs_err *
         out->id[sizeof out->id - 1] = '\0';
         memcpy(out->message, h.message, sizeof out->message);
         out->message[sizeof out->message - 1] = '\0';
-        size_t jlen = (size_t)nbytes - sizeof h;
-        if (h.code == 0 && jlen > 0) {
+        size_t rest = (size_t)nbytes - sizeof h;
+        size_t slen = h.stored_len > 0 ? (size_t)h.stored_len : 0;
+        if (slen > rest)
+            rc = bs_fail(err, BS_EMPI, "result message of %d bytes shorter than its parts", nbytes);
+        size_t jlen = rc == 0 ? rest - slen : 0;
+        if (rc == 0 && h.code == 0 && slen > 0) {
+            out->stored = malloc(slen + 1);
+            if (!out->stored) rc = bs_fail(err, BS_ENOMEM, "out of memory for a result of %d bytes", nbytes);
+            if (rc == 0) {
+                memcpy(out->stored, buf + sizeof h + jlen, slen);
+                out->stored[slen] = '\0';
+            }
+        }
+        if (rc == 0 && h.code == 0 && jlen > 0) {
             /* The text is moved, not copied: it starts the buffer, NUL-terminated. */
             memmove(buf, buf + sizeof h, jlen);
             buf[jlen] = '\0';
@@ -837,6 +853,7 @@ typedef struct reply {
 static int plan_replies(coord *c, const msg_in *m, int rc, reply *out, int *nout, int *active)
 {
     int r = m->from;
+    int was_hungry = c->held[r] < c->depth[r];
     if (m->kind == 1) {
         if (c->held[r] > 0) c->held[r]--;
         c->holds_suspect[r] = 0; /* it held the suspect alone: this was its outcome */
@@ -858,14 +875,16 @@ static int plan_replies(coord *c, const msg_in *m, int rc, reply *out, int *nout
         c->held[r]++;
         (*nout)++;
     }
-    if (c->held[r] == 0) {
+    int stop = c->held[r] == 0;
+    if (stop) {
         out[*nout].to = r;
         out[*nout].stop = 1;
         (*nout)++;
         (*active)--;
-        return 1;
+        c->depth[r] = 0; /* gone: never hungry again */
     }
-    return 0;
+    c->hungry += (c->held[r] < c->depth[r]) - was_hungry;
+    return stop;
 }
 
 static int send_replies(coord *c, const reply *rs, int n, bs_err *err)
@@ -899,6 +918,7 @@ static int run_coordinator(coord *c, int size, bs_err *err)
     }
     for (int r = 0; r < size; r++)
         c->depth[r] = 1;
+    c->hungry = c->nworkers;
     long nap_us = PL_NAP_MIN_US;
     int mrc = 0;
     while (mrc == 0 && active > 0) {
@@ -913,6 +933,9 @@ static int run_coordinator(coord *c, int size, bs_err *err)
         }
         if (mrc != 0) break;
         if (n == 0) {
+            /* While every worker holds all it may, the next result is no hurry: each has at least
+             * one more material to compute (its prefetch covers the longest sleep). */
+            if (c->hungry == 0) nap_us = PL_NAP_MAX_US;
             const struct timespec nap = {0, nap_us * 1000};
             nanosleep(&nap, NULL);
             if (nap_us < PL_NAP_MAX_US) nap_us = nap_us * 2 < PL_NAP_MAX_US ? nap_us * 2 : PL_NAP_MAX_US;
@@ -959,13 +982,16 @@ static int send_outcome(MPI_Comm comm, int kind, int seq, const pl_outcome *out,
         memcpy(h.message, out->message, sizeof h.message);
     }
     size_t jlen = out && out->json ? strlen(out->json) : 0;
-    if (sizeof h + jlen > (size_t)2147483647)
-        return bs_fail(err, BS_EMPI, "result of %zu bytes too large for one message", jlen);
-    char *buf = malloc(sizeof h + jlen);
+    size_t slen = jlen && out->stored ? strlen(out->stored) : 0;
+    if (sizeof h + jlen + slen > (size_t)2147483647)
+        return bs_fail(err, BS_EMPI, "result of %zu bytes too large for one message", jlen + slen);
+    h.stored_len = (int)slen;
+    char *buf = malloc(sizeof h + jlen + slen);
     if (!buf) return bs_fail(err, BS_ENOMEM, "out of memory");
     memcpy(buf, &h, sizeof h);
     if (jlen) memcpy(buf + sizeof h, out->json, jlen);
-    int rc = mpi_check(MPI_Send(buf, (int)(sizeof h + jlen), MPI_BYTE, 0, TAG_RESULT, comm),
+    if (slen) memcpy(buf + sizeof h + jlen, out->stored, slen);
+    int rc = mpi_check(MPI_Send(buf, (int)(sizeof h + jlen + slen), MPI_BYTE, 0, TAG_RESULT, comm),
                        "MPI_Send of a result", err);
     free(buf);
     return rc;
