@@ -19,8 +19,11 @@
 #define CAT_SCHEMA_VERSION 5
 #define CAT_APPLICATION_ID 0x42534376 /* "BSCv" */
 
-/* Defaults for the commit batching (cat_set_batch). */
-#define CAT_BATCH_ROWS    64
+/* Defaults for the commit batching (cat_set_batch): whichever comes first. A commit costs the
+ * coordinator about as much as 15 result rows (its WAL frames and, now and then, a checkpoint), so
+ * cheap materials want large batches; expensive ones reach the time limit first. A kill loses at
+ * most the open batch, which a resume computes again. */
+#define CAT_BATCH_ROWS    1024
 #define CAT_BATCH_SECONDS 2.0
 
 typedef struct cat_db cat_db; /* an open catalogue (opaque) */
@@ -165,6 +168,14 @@ int cat_material_upsert(cat_db *cat, const cat_material *m, bs_err *err);
  * transaction, which is committed when the batch is full or due. */
 int cat_result_put(cat_db *cat, int64_t run_id, const char *material_id, cat_status status,
                    const char *message, const res_diag *diag, int rank, double seconds, bs_err *err);
+
+/* As cat_result_put, with the diagnosis column given as text: stored_text (borrowed) is diag's
+ * JSON form without flows, res_to_text(diag, 0), as the worker printed it; it is stored as it is
+ * instead of being printed again from diag (printing was a third of the catalogue's CPU per ok
+ * result). NULL: printed from diag. The caller vouches that the text is diag's form. */
+int cat_result_put_stored(cat_db *cat, int64_t run_id, const char *material_id, cat_status status,
+                          const char *message, const res_diag *diag, const char *stored_text, int rank,
+                          double seconds, bs_err *err);
 
 /* As cat_result_put with the diagnosis as JSON text of len bytes, read with res_from_text (keys
  * that are missing take the values of an empty result); text NULL means no diagnosis. Malformed

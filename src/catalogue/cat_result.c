@@ -135,15 +135,18 @@ static int bind_diag(const put_ctx *pc)
 }
 
 /* Binds every results column from the arguments and the diagnosis; the diagnosis column is the
- * JSON form without the bulky flows, which live in the artifact file (*diag_text, the caller frees
- * it with cJSON_free). */
+ * JSON form without the bulky flows, which live in the artifact file: stored (borrowed) when the
+ * caller has it, else printed into *diag_text (the caller frees it with cJSON_free). */
 static int bind_row(const put_ctx *pc, int64_t run_id, cat_status status, const char *message, int rank,
-                    double seconds, char **diag_text)
+                    double seconds, const char *stored, char **diag_text)
 {
     sqlite3_stmt *st = pc->st;
     sqlite3_bind_int64(st, param(pc, ":run_id"), run_id);
     sqlite3_bind_text(st, param(pc, ":material_id"), pc->mid, -1, SQLITE_TRANSIENT);
     sqlite3_bind_text(st, param(pc, ":status"), cat_status_name(status), -1, SQLITE_STATIC);
+    char now[32];
+    sqlite3_bind_text(st, param(pc, ":finished"), cat_now_text(pc->cat, now, sizeof now), -1,
+                      SQLITE_TRANSIENT);
     if (message) sqlite3_bind_text(st, param(pc, ":message"), message, -1, SQLITE_TRANSIENT);
     if (rank >= 0) sqlite3_bind_int(st, param(pc, ":rank"), rank);
     if (seconds >= 0)
@@ -153,6 +156,10 @@ static int bind_row(const put_ctx *pc, int64_t run_id, cat_status status, const 
     if (!pc->diag) return 0;
     int rc = bind_diag(pc);
     if (rc != 0) return rc;
+    if (stored) {
+        sqlite3_bind_text(st, param(pc, ":diagnosis"), stored, -1, SQLITE_STATIC);
+        return 0;
+    }
     *diag_text = res_to_text(pc->diag, 0);
     if (!*diag_text)
         return bs_fail(pc->err, BS_ENOMEM, "material %s: out of memory printing the diagnosis", pc->mid);
@@ -255,6 +262,41 @@ static int ensure_material(cat_db *cat, const char *mid, const res_diag *diag, b
     return step_reset(cat, st, "recording the material", err);
 }
 
+/* The bound results INSERT, stepped and reset with its bindings kept (a retry steps it again).
+ * 0, or the extended SQLite code of the failure. */
+static int step_keep(sqlite3_stmt *st)
+{
+    int s = sqlite3_step(st);
+    int code = s == SQLITE_DONE ? 0 : sqlite3_extended_errcode(sqlite3_db_handle(st));
+    sqlite3_reset(st);
+    return code;
+}
+
+/* The results row, inserted first without looking: the common case (a new row of a material the
+ * coordinator recorded) costs one statement. Only when the insert hits a constraint is the cause
+ * dealt with and the insert repeated: an earlier row of the same (run, material) is replaced
+ * (unique key), a material never recorded gets a row from the diagnosis (foreign key). */
+static int insert_result(cat_db *cat, int64_t run_id, const char *mid, const res_diag *diag, bs_err *err)
+{
+    sqlite3_stmt *ins = cat->st[CAT_ST_RESULT];
+    int code = step_keep(ins);
+    if (code == SQLITE_CONSTRAINT_FOREIGNKEY) {
+        int rc = ensure_material(cat, mid, diag, err);
+        if (rc != 0) return rc;
+        code = step_keep(ins);
+    }
+    if (code == SQLITE_CONSTRAINT_UNIQUE) {
+        int exists = result_exists(cat, run_id, mid, err);
+        if (exists < 0) return exists;
+        if (exists) {
+            int rc = delete_result(cat, run_id, mid, err);
+            if (rc != 0) return rc;
+            code = step_keep(ins);
+        }
+    }
+    return code == 0 ? 0 : cat_sql_fail(cat, err, "writing the result");
+}
+
 /* All statements of one result in the batch transaction: either the whole result (row, nodes,
  * artifacts) is in the batch or none of it. A failure here is an SQLite or HDF5 error; it is undone by
  * deleting what this put wrote. (A savepoint per put would do the same, but SQLite allocates a journal buffer
@@ -263,11 +305,7 @@ static int write_row(cat_db *cat, int64_t run_id, const char *mid, const res_dia
 {
     int rc = cat_txn_begin(cat, err);
     if (rc != 0) return rc;
-    rc = ensure_material(cat, mid, diag, err);
-    int exists = rc == 0 ? result_exists(cat, run_id, mid, err) : 0;
-    if (exists < 0) rc = exists;
-    if (rc == 0 && exists) rc = delete_result(cat, run_id, mid, err);
-    if (rc == 0) rc = step_reset(cat, cat->st[CAT_ST_RESULT], "writing the result", err);
+    rc = insert_result(cat, run_id, mid, diag, err);
     if (rc == 0) rc = insert_nodes(cat, run_id, mid, diag, err);
     if (rc == 0 && diag) rc = insert_flows(cat, run_id, mid, diag->flows, diag->nflows, err);
     if (rc == 0) return 0;
@@ -302,11 +340,18 @@ static int check_args(cat_db *cat, const char *mid, cat_status status, const res
 int cat_result_put(cat_db *cat, int64_t run_id, const char *material_id, cat_status status,
                    const char *message, const res_diag *diag, int rank, double seconds, bs_err *err)
 {
+    return cat_result_put_stored(cat, run_id, material_id, status, message, diag, NULL, rank, seconds, err);
+}
+
+int cat_result_put_stored(cat_db *cat, int64_t run_id, const char *material_id, cat_status status,
+                          const char *message, const res_diag *diag, const char *stored_text, int rank,
+                          double seconds, bs_err *err)
+{
     int rc = check_args(cat, material_id, status, diag, err);
     if (rc != 0) return rc;
     put_ctx pc = {cat, cat->st[CAT_ST_RESULT], diag, material_id, err};
     char *diag_text = NULL;
-    rc = bind_row(&pc, run_id, status, message, rank, seconds, &diag_text);
+    rc = bind_row(&pc, run_id, status, message, rank, seconds, stored_text, &diag_text);
     if (rc == 0) rc = write_row(cat, run_id, material_id, diag, err);
     sqlite3_reset(pc.st); /* a failed bind leaves values behind; the next put starts clean */
     sqlite3_clear_bindings(pc.st);

@@ -50,6 +50,22 @@ cat_status cat_status_from_code(int bs_code)
     }
 }
 
+const char *cat_now_text(cat_db *cat, char *buf, size_t len)
+{
+    struct timespec ts;
+    clock_gettime(CLOCK_REALTIME, &ts);
+    if (ts.tv_sec != cat->now_sec || !cat->now_prefix[0]) {
+        struct tm tm;
+        time_t sec = ts.tv_sec;
+        gmtime_r(&sec, &tm);
+        strftime(cat->now_prefix, sizeof cat->now_prefix, "%Y-%m-%dT%H:%M:", &tm);
+        cat->now_sec = ts.tv_sec;
+        cat->now_s = tm.tm_sec;
+    }
+    snprintf(buf, len, "%s%02d.%03ldZ", cat->now_prefix, cat->now_s, ts.tv_nsec / 1000000);
+    return buf;
+}
+
 double cat_now(void)
 {
     struct timespec ts;
@@ -305,8 +321,8 @@ static const char *const STMT_SQL[CAT_ST_COUNT] = {
         ":z2_wcc,"
         " :z2_status, :z2_note, :chern, :chern_status, :plane_chern, :n_weyl, :net_chirality, :nodal_line, "
         ":mesh,"
-        " :diag_seconds, :seconds, :rank, " CAT_NOW_SQL
-        ", :ahc_xy, :ahc_yz, :ahc_zx, :ahc_units, :shc_xy, :shc_units,"
+        " :diag_seconds, :seconds, :rank, :finished, :ahc_xy, :ahc_yz, :ahc_zx, :ahc_units, :shc_xy, "
+        ":shc_units,"
         " :transport_fermi_ev, :diagnosis,"
         /* The content the row is about: the coordinator records each entry's content in materials
          * before handing it out (pl coord_setup), so the current one is the one computed. */

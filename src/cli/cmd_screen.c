@@ -192,7 +192,7 @@ static void screen_help(FILE *out, int rescreen)
             "  --group-size G      the last G ranks form a group that diagonalises materials of\n"
             "                      at least --group-min-states states (default 800) together\n"
             "                      with ScaLAPACK; smaller ones go to the single ranks\n"
-            "  --batch N           commit the catalogue every N results (default 64) or 2 s\n"
+            "  --batch N           commit the catalogue every N results (default 1024) or 2 s\n"
             "  --progress-every S  seconds between progress lines when stderr is not a terminal\n"
             "                      (default: at 5, 10 and 20 s, then every 30 s)\n"
             "  --strict            exit 1 when any material is not ok (invalid, failed, timeout)\n"

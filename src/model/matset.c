@@ -1235,6 +1235,9 @@ int ms_read_card(const ms_set *s, int i, char **json, bs_err *err)
     if (i < 0 || i >= s->n)
         return bs_fail(err, BS_EINVAL, "%s: entry %d outside 0..%d", s->path, i, s->n - 1);
     if (s->writer || s->file < 0) return bs_fail(err, BS_EINVAL, "%s: not open for reading", s->path);
+    /* An error entry is only an error text (add_error_impl writes no card): no look-up in the
+     * file, which a screen's set-up would otherwise pay once per such entry. */
+    if (s->entries[i].status == MS_STATUS_ERROR) return 0;
     int rc;
     H5E_BEGIN_TRY
     {

@@ -1,17 +1,22 @@
 /* The hand-out journal (see journal.h). Lines: "H <run> <session> <id>" when a material is handed
- * out, "R <run> <session> <id>" when its outcome arrives. */
+ * out, "R <run> <session> <id>" when its outcome arrives. Lines are collected in memory and
+ * written with one write(2) per pl_journal_sync: the coordinator syncs once per round of
+ * messages instead of calling the kernel twice per material. */
 #include "journal.h"
 
 #include <errno.h>
+#include <fcntl.h>
 #include <stdlib.h>
 #include <string.h>
 #include <time.h>
 #include <unistd.h>
 
 struct pl_journal {
-    FILE *fp;
+    int fd;
     int64_t run_id;
     char session[64];
+    char *buf; /* lines not yet written */
+    size_t len, cap;
 };
 
 int pl_journal_open(const char *path, int64_t run_id, pl_journal **out, bs_err *err)
@@ -19,8 +24,8 @@ int pl_journal_open(const char *path, int64_t run_id, pl_journal **out, bs_err *
     *out = NULL;
     pl_journal *j = calloc(1, sizeof *j);
     if (!j) return bs_fail(err, BS_ENOMEM, "out of memory for the journal");
-    j->fp = fopen(path, "a");
-    if (!j->fp) {
+    j->fd = open(path, O_WRONLY | O_CREAT | O_APPEND | O_CLOEXEC, 0644);
+    if (j->fd < 0) {
         free(j);
         return bs_fail(err, BS_EIO, "%s: cannot open the hand-out journal: %s", path, strerror(errno));
     }
@@ -35,9 +40,19 @@ int pl_journal_open(const char *path, int64_t run_id, pl_journal **out, bs_err *
 
 static int journal_line(pl_journal *j, char kind, const char *id, bs_err *err)
 {
-    if (fprintf(j->fp, "%c %lld %s %s\n", kind, (long long)j->run_id, j->session, id) < 0 ||
-        fflush(j->fp) != 0)
-        return bs_fail(err, BS_EIO, "cannot write the hand-out journal: %s", strerror(errno));
+    size_t need = strlen(j->session) + strlen(id) + 48;
+    if (j->len + need > j->cap) {
+        size_t cap = j->cap ? 2 * j->cap : 4096;
+        while (cap < j->len + need)
+            cap *= 2;
+        char *p = realloc(j->buf, cap);
+        if (!p) return bs_fail(err, BS_ENOMEM, "out of memory for the hand-out journal");
+        j->buf = p;
+        j->cap = cap;
+    }
+    int n = snprintf(j->buf + j->len, j->cap - j->len, "%c %lld %s %s\n", kind, (long long)j->run_id,
+                     j->session, id);
+    if (n > 0) j->len += (size_t)n;
     return 0;
 }
 
@@ -50,10 +65,32 @@ int pl_journal_received(pl_journal *j, const char *id, bs_err *err)
     return journal_line(j, 'R', id, err);
 }
 
+int pl_journal_sync(pl_journal *j, bs_err *err)
+{
+    size_t done = 0;
+    while (done < j->len) {
+        ssize_t w = write(j->fd, j->buf + done, j->len - done);
+        if (w < 0 && errno == EINTR) continue;
+        if (w <= 0) {
+            /* The unwritten lines are dropped: keeping them would only grow the buffer. */
+            j->len = 0;
+            return bs_fail(err, BS_EIO, "cannot write the hand-out journal: %s",
+                           w < 0 ? strerror(errno) : "nothing written");
+        }
+        done += (size_t)w;
+    }
+    j->len = 0;
+    return 0;
+}
+
 void pl_journal_close(pl_journal *j)
 {
     if (!j) return;
-    fclose(j->fp);
+    bs_err err;
+    bs_err_clear(&err);
+    pl_journal_sync(j, &err);
+    close(j->fd);
+    free(j->buf);
     free(j);
 }
 

@@ -18,12 +18,18 @@ typedef struct pl_journal pl_journal;
  * The caller owns *out (pl_journal_close). BS_EIO when the file cannot be opened. */
 int pl_journal_open(const char *path, int64_t run_id, pl_journal **out, bs_err *err);
 
-/* Appends "handed out" / "outcome received" for material id; flushed to the kernel at once, so
- * the line survives the process being killed. BS_EIO on a write error. */
+/* Adds a "handed out" / "outcome received" line for material id to the lines waiting for
+ * pl_journal_sync. BS_ENOMEM when the line cannot be kept. */
 int pl_journal_handed(pl_journal *j, const char *id, bs_err *err);
 int pl_journal_received(pl_journal *j, const char *id, bs_err *err);
 
-/* Closes j; accepts NULL. */
+/* Writes the waiting lines with one write(2), so that they survive the process being killed
+ * (the kernel keeps them). The coordinator syncs before it sends the work a "handed out" line is
+ * about: a worker crash under MPI kills the coordinator too, and the line must be there for the
+ * resume. BS_EIO on a write error (the waiting lines are then dropped). */
+int pl_journal_sync(pl_journal *j, bs_err *err);
+
+/* Writes what is waiting and closes j; accepts NULL. */
 void pl_journal_close(pl_journal *j);
 
 /* Materials of run_id that earlier sessions handed out and never got back, with the number of

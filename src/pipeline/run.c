@@ -1,7 +1,12 @@
 /* The screening job under MPI: rank 0 coordinates and alone writes the catalogue; the other ranks
- * ask for work, compute one material at a time and send back the outcome. The coordinator polls
- * with MPI_Iprobe and sleeps between polls, because Open MPI's blocking receives spin: with
- * P = cores + 1 the coordinator must leave its core to a worker. */
+ * ask for work, compute one material at a time and send back the outcome. A worker whose
+ * materials are short holds one more material than it computes (a prefetch), so it never waits
+ * for the coordinator's reply. The coordinator works in rounds: it takes every message waiting
+ * (up to PL_ROUND), hands out the next materials, writes the journal once, sends, and only then
+ * records the results in the catalogue. Between rounds it polls with MPI_Iprobe and sleeps,
+ * because Open MPI's blocking receives spin (with P = cores + 1 the coordinator must leave its
+ * core to a worker); the sleep doubles from PL_NAP_MIN_US while nothing arrives, up to
+ * PL_NAP_MAX_US, so an idle coordinator wakes about 2,000 times a second and a busy one at once. */
 #include "bandsieve/pipeline.h"
 
 #include <mpi.h>
@@ -36,11 +41,14 @@ enum { TAG_RESULT = 11, TAG_WORK = 12, TAG_STOP = 13 };
  * setting. */
 #define PL_DEFAULT_SYMMETRY_TOL 1e-6
 
-/* Worker -> coordinator: this header, then the diagnosis JSON (NUL-terminated) when code == 0.
+/* Worker -> coordinator: this header, then, when code == 0, the diagnosis JSON and, when it has
+ * flows, the same without them (stored_len bytes; the catalogue stores that text as it is).
  * kind 0 is the first request of a worker (no result yet). Same binary on every rank, so the
  * struct layout agrees. */
 typedef struct wire_head {
     int kind;
+    int seq;        /* the worker's count of messages sent before this one */
+    int stored_len; /* bytes of the text without flows at the end; 0: none (the JSON is that form) */
     int code;
     int rank;
     int job_limited;
@@ -55,8 +63,26 @@ typedef struct wire_work {
     int mesh;        /* this entry's k-mesh, 0: the job's */
     int group;       /* compute as the rank group (lockstep, distributed eigensolver) */
     int job_limited; /* the budget below is what remains of the job, not the material budget */
+    int after;       /* seq of the worker's message this answers: the budget was measured after it */
     double max_seconds;
 } wire_work;
+
+/* Materials a worker may hold beyond the one it computes. While its materials take under
+ * PL_PREFETCH_SECONDS, one more: the round trip to the coordinator (up to a millisecond under
+ * load) is then hidden; for materials shorter than PL_PREFETCH_COVER, enough to cover that
+ * time, up to PL_PREFETCH_MAX, so that the coordinator takes several results per wake-up. Longer
+ * materials gain nothing from it and would only wait in a queue at the end of the job, so they are
+ * handed out one at a time; so is a worker's first material. */
+enum { PL_PREFETCH_MAX = 4 };
+#define PL_PREFETCH_SECONDS 0.25
+#define PL_PREFETCH_COVER   1e-3
+
+/* Messages taken per round, and the coordinator's sleeps between polls (microseconds). */
+enum { PL_ROUND = 16, PL_NAP_MIN_US = 100, PL_NAP_MAX_US = 500 };
+
+/* The send times a worker keeps, by seq modulo this, to know how long a material waited in its
+ * queue; more than it can hold. */
+enum { PL_SENT_RING = 8 };
 
 typedef struct coord {
     const pl_opts *o;
@@ -77,9 +103,16 @@ typedef struct coord {
     int lock_fd;   /* CAT.sqlite.lock, held with flock for the whole job; -1 when none */
     int lock_held; /* this job holds the lock: it removes the file at the end */
     char lock_path[4096];
-    pl_journal *journal;  /* CAT.sqlite.journal: hand-outs and outcomes */
-    int discarded;        /* the new run had nothing to do and was removed again */
-    double memory_budget; /* bytes per material (per rank; a group has group_size times it) */
+    pl_journal *journal; /* CAT.sqlite.journal: hand-outs and outcomes */
+    int *held;           /* per world rank: materials sent and not yet answered */
+    int *depth;          /* per world rank: how many it may hold (1 + a prefetch for short materials) */
+    unsigned char *holds_suspect; /* per world rank: it holds a suspect (and nothing else) */
+    int hungry;                   /* requesting ranks that hold fewer materials than their depth */
+    cat_ids suspects;             /* ids lost once in an earlier session of this run (give_up_lost) */
+    int *susp;                    /* work-list positions of the suspects, in cost order */
+    int nsusp, susp_left;         /* how many; how many not yet handed out */
+    int discarded;                /* the new run had nothing to do and was removed again */
+    double memory_budget;         /* bytes per material (per rank; a group has group_size times it) */
 } coord;
 
 /* Sessions in which a material may take its worker down before it is given up as failed. */
@@ -213,7 +246,27 @@ static void release_lock(coord *c)
 
 /* Materials that earlier sessions of this run handed out and never got back died with their job.
  * One such loss is retried (the job may have been killed for another reason); after
- * PL_MAX_STRIKES the material is recorded failed, so that it cannot take down every resume. */
+ * PL_MAX_STRIKES the material is recorded failed, so that it cannot take down every resume.
+ * Every material in flight when a job dies is lost, the one that killed it and the others that
+ * workers held; so that the others do not collect a second loss beside the same killer, a
+ * material lost once (a suspect) is handed out alone: to a worker that holds nothing, and
+ * nothing is queued behind it (pick_suspect). */
+static int by_string(const void *a, const void *b)
+{
+    return strcmp(*(char *const *)a, *(char *const *)b);
+}
+
+/* Adds id to c->suspects, which stays sorted (cat_ids_contains) once give_up_lost is done. */
+static int add_suspect(coord *c, const char *id, bs_err *err)
+{
+    char **grown = realloc(c->suspects.id, (c->suspects.n + 1) * sizeof *grown);
+    if (!grown) return bs_fail(err, BS_ENOMEM, "out of memory for the journal's lost materials");
+    c->suspects.id = grown;
+    if (!(grown[c->suspects.n] = strdup(id))) return bs_fail(err, BS_ENOMEM, "out of memory");
+    c->suspects.n++;
+    return 0;
+}
+
 static int give_up_lost(coord *c, const char *jpath, bs_err *err)
 {
     char **ids = NULL;
@@ -223,9 +276,13 @@ static int give_up_lost(coord *c, const char *jpath, bs_err *err)
     cat_ids_init(&done);
     if (rc == 0 && n > 0) rc = cat_done_ids(c->cat, c->run_id, &done, err);
     for (int i = 0; rc == 0 && i < n; i++) {
-        if (strikes[i] < PL_MAX_STRIKES || cat_ids_contains(&done, ids[i])) continue;
+        if (cat_ids_contains(&done, ids[i])) continue;
         if (!strncmp(ids[i], PL_PATH_JOURNAL_PREFIX, strlen(PL_PATH_JOURNAL_PREFIX)))
-            continue; /* pathrun.c */
+            continue; /* families: pathrun.c */
+        if (strikes[i] < PL_MAX_STRIKES) {
+            rc = add_suspect(c, ids[i], err);
+            continue;
+        }
         char msg[256];
         snprintf(msg, sizeof msg,
                  "its job died while it was being computed in %d sessions (a worker crash, for "
@@ -235,6 +292,7 @@ static int give_up_lost(coord *c, const char *jpath, bs_err *err)
         rc = cat_result_put_text(c->cat, c->run_id, ids[i], CAT_RES_FAILED, msg, NULL, 0, -1, 0.0, err);
     }
     if (rc == 0) rc = cat_flush(c->cat, err);
+    if (c->suspects.n > 1) qsort(c->suspects.id, c->suspects.n, sizeof *c->suspects.id, by_string);
     for (int i = 0; i < n; i++)
         free(ids[i]);
     free(ids);
@@ -393,6 +451,23 @@ static void note_resumed(coord *c, int rerun_asked, bs_err *err)
 
 static int refuse_over_budget(coord *c, bs_err *err);
 
+/* Moves the suspects of the work list (c->suspects) to their own queue, c->susp, in the list's
+ * order; taken in the list, so its cursors pass them. */
+static int mark_suspects(coord *c, bs_err *err)
+{
+    if (c->suspects.n == 0) return 0;
+    c->susp = malloc(((size_t)c->suspects.n + 1) * sizeof *c->susp);
+    if (!c->susp) return bs_fail(err, BS_ENOMEM, "out of memory for the journal's lost materials");
+    for (int i = 0; i < c->nitems && c->nsusp < (int)c->suspects.n; i++) {
+        if (c->taken[i] || !cat_ids_contains(&c->suspects, ms_entry_at(c->set, c->items[i].index)->id))
+            continue;
+        c->taken[i] = 1;
+        c->susp[c->nsusp++] = i;
+    }
+    c->susp_left = c->nsusp;
+    return 0;
+}
+
 /* Opens set and catalogue, starts or resumes the run, builds the ordered work list. */
 static int coord_setup(coord *c, int ranks, const char *hosts, bs_err *err)
 {
@@ -478,6 +553,7 @@ static int coord_setup(coord *c, int ranks, const char *hosts, bs_err *err)
     if (rc == 0 && !c->taken) rc = bs_fail(err, BS_ENOMEM, "out of memory for the work list");
     if (rc == 0) rc = cat_flush(c->cat, err);
     if (rc == 0) rc = refuse_over_budget(c, err);
+    if (rc == 0) rc = mark_suspects(c, err);
     cat_ids_clear(&sel);
     cat_ids_clear(&done);
     free(settings);
@@ -524,13 +600,10 @@ static int refuse_over_budget(coord *c, bs_err *err)
     return rc;
 }
 
-/* Records one outcome; a timeout caused by the job's own budget is not recorded, so that a
- * resumed run does that material again. */
+/* Records one outcome (its journal line is the caller's); a timeout caused by the job's own
+ * budget is not recorded, so that a resumed run does that material again. */
 static int coord_record(coord *c, const pl_outcome *out, int job_limited, bs_err *err)
 {
-    bs_err jerr;
-    bs_err_clear(&jerr);
-    if (c->journal) pl_journal_received(c->journal, out->id, &jerr);
     if (out->code == BS_ETIMEOUT && job_limited) {
         c->counts.interrupted = 1;
         return 0;
@@ -544,8 +617,9 @@ static int coord_record(coord *c, const pl_outcome *out, int job_limited, bs_err
     if (rc != 0)
         bs_err_context(err, "from rank %d: ", out->rank);
     else
-        rc = cat_result_put(c->cat, c->run_id, out->id, st, out->code ? out->message : NULL, has ? &r : NULL,
-                            out->rank, out->seconds, err);
+        rc = cat_result_put_stored(c->cat, c->run_id, out->id, st, out->code ? out->message : NULL,
+                                   has ? &r : NULL, has ? (out->stored ? out->stored : out->json) : NULL,
+                                   out->rank, out->seconds, err);
     if (rc != 0 && is_storage_fault(rc)) {
         /* The result is fine but cannot be stored (disk full, unwritable artifact file): it is
          * not recorded at all, so a resumed run computes it again, and the job stops. */
@@ -594,6 +668,20 @@ static int item_large(const coord *c, int i)
     return ms_entry_at(c->set, c->items[i].index)->norb >= min;
 }
 
+/* The next suspect for a requester that holds nothing, in the rules of pick_item; -1 when none
+ * is left for it. */
+static int pick_suspect(coord *c, int from_leader)
+{
+    for (int k = 0; c->susp_left > 0 && k < c->nsusp; k++) {
+        int i = c->susp[k];
+        if (i < 0 || (c->leader >= 0 && item_large(c, i) && !from_leader)) continue;
+        c->susp[k] = -1;
+        c->susp_left--;
+        return i;
+    }
+    return -1;
+}
+
 /* The next item for a requester: the group leader takes the largest remaining large item, else a
  * small one that it computes alone; single workers take small items only while a group exists
  * (large ones wait for it); without a group, items go in order. -1 when none is left. */
@@ -629,7 +717,10 @@ static int coord_next(coord *c, int from, wire_work *w)
         return 0;
     }
     int from_leader = c->leader >= 0 && from == c->leader;
-    int i = pick_item(c, from_leader);
+    int alone = !c->held || c->held[from] == 0;
+    int i = alone ? pick_suspect(c, from_leader) : -1;
+    if (i >= 0 && c->holds_suspect) c->holds_suspect[from] = 1;
+    if (i < 0) i = pick_item(c, from_leader);
     if (i < 0) return 0;
     c->taken[i] = 1;
     w->index = c->items[i].index;
@@ -637,8 +728,10 @@ static int coord_next(coord *c, int from, wire_work *w)
     w->group = from_leader && item_large(c, i);
     bs_err jerr;
     bs_err_clear(&jerr);
-    /* A journal that cannot be written loses only the crash bookkeeping, not results. */
+    /* A journal that cannot be written loses only the crash bookkeeping, not results. The line
+     * waits in memory; the caller syncs before it sends the work. */
     if (c->journal) pl_journal_handed(c->journal, ms_entry_at(c->set, w->index)->id, &jerr);
+    w->after = 0;
     w->max_seconds = o->material_seconds;
     w->job_limited = 0;
     if (o->max_seconds > 0 && (w->max_seconds <= 0 || left < w->max_seconds)) {
@@ -655,6 +748,21 @@ static void coord_tick(coord *c, int final)
     c->last_tick = bs_now();
 }
 
+/* The journal's waiting lines to the kernel; a failure costs only the crash bookkeeping. */
+static void journal_sync(coord *c)
+{
+    bs_err jerr;
+    bs_err_clear(&jerr);
+    if (c->journal) pl_journal_sync(c->journal, &jerr);
+}
+
+static void journal_received(coord *c, const char *id)
+{
+    bs_err jerr;
+    bs_err_clear(&jerr);
+    if (c->journal) pl_journal_received(c->journal, id, &jerr);
+}
+
 /* One process does everything (P = 1). */
 static int run_serial(coord *c, bs_err *err)
 {
@@ -664,7 +772,9 @@ static int run_serial(coord *c, bs_err *err)
         pl_outcome out;
         pl_task task = c->task;
         if (w.mesh > 0) task.mesh = w.mesh;
+        journal_sync(c);
         pl_compute(c->set, w.index, &task, w.max_seconds, 0, &out);
+        journal_received(c, out.id);
         rc = coord_record(c, &out, w.job_limited, err);
         pl_outcome_clear(&out);
         if (rc == 0) rc = cat_flush_if_due(c->cat, err);
@@ -673,9 +783,19 @@ static int run_serial(coord *c, bs_err *err)
     return rc;
 }
 
-static int recv_outcome(MPI_Comm comm, MPI_Status *st, pl_outcome *out, int *job_limited, int *kind,
-                        bs_err *err)
+/* One message of a worker, as received. */
+typedef struct msg_in {
+    pl_outcome out;
+    int kind; /* 0 the first request, 1 a result */
+    int job_limited;
+    int seq;
+    int from; /* world rank */
+} msg_in;
+
+static int recv_outcome(MPI_Comm comm, const MPI_Status *st, msg_in *m, bs_err *err)
 {
+    memset(m, 0, sizeof *m);
+    m->from = st->MPI_SOURCE;
     int nbytes = 0;
     int rc = mpi_check(MPI_Get_count(st, MPI_BYTE, &nbytes), "MPI_Get_count", err);
     if (rc != 0) return rc;
@@ -683,14 +803,15 @@ static int recv_outcome(MPI_Comm comm, MPI_Status *st, pl_outcome *out, int *job
     if (!buf) return bs_fail(err, BS_ENOMEM, "out of memory for a result of %d bytes", nbytes);
     rc = mpi_check(MPI_Recv(buf, nbytes, MPI_BYTE, st->MPI_SOURCE, TAG_RESULT, comm, MPI_STATUS_IGNORE),
                    "MPI_Recv of a result", err);
-    memset(out, 0, sizeof *out);
     if (rc == 0 && (size_t)nbytes < sizeof(wire_head))
         rc = bs_fail(err, BS_EMPI, "short result message (%d bytes)", nbytes);
+    pl_outcome *out = &m->out;
     if (rc == 0) {
         wire_head h;
         memcpy(&h, buf, sizeof h);
-        *kind = h.kind;
-        *job_limited = h.job_limited;
+        m->kind = h.kind;
+        m->job_limited = h.job_limited;
+        m->seq = h.seq;
         out->code = h.code;
         out->rank = h.rank;
         out->seconds = h.seconds;
@@ -698,73 +819,163 @@ static int recv_outcome(MPI_Comm comm, MPI_Status *st, pl_outcome *out, int *job
         out->id[sizeof out->id - 1] = '\0';
         memcpy(out->message, h.message, sizeof out->message);
         out->message[sizeof out->message - 1] = '\0';
-        size_t jlen = (size_t)nbytes - sizeof h;
-        if (h.code == 0 && jlen > 0) {
-            out->json = malloc(jlen + 1);
-            if (!out->json)
-                rc = bs_fail(err, BS_ENOMEM, "out of memory");
-            else {
-                memcpy(out->json, buf + sizeof h, jlen);
-                out->json[jlen] = '\0';
+        size_t rest = (size_t)nbytes - sizeof h;
+        size_t slen = h.stored_len > 0 ? (size_t)h.stored_len : 0;
+        if (slen > rest)
+            rc = bs_fail(err, BS_EMPI, "result message of %d bytes shorter than its parts", nbytes);
+        size_t jlen = rc == 0 ? rest - slen : 0;
+        if (rc == 0 && h.code == 0 && slen > 0) {
+            out->stored = malloc(slen + 1);
+            if (!out->stored) rc = bs_fail(err, BS_ENOMEM, "out of memory for a result of %d bytes", nbytes);
+            if (rc == 0) {
+                memcpy(out->stored, buf + sizeof h + jlen, slen);
+                out->stored[slen] = '\0';
             }
+        }
+        if (rc == 0 && h.code == 0 && jlen > 0) {
+            /* The text is moved, not copied: it starts the buffer, NUL-terminated. */
+            memmove(buf, buf + sizeof h, jlen);
+            buf[jlen] = '\0';
+            out->json = buf;
+            buf = NULL;
         }
     }
     free(buf);
     return rc;
 }
 
-/* Coordinator loop with worker ranks 1..size-1. */
-static int run_coordinator(coord *c, int size, bs_err *err)
+/* A reply of a round: work (stop = 0) or stop for world rank `to`. */
+typedef struct reply {
+    int to;
+    int stop;
+    wire_work w;
+} reply;
+
+/* The replies to message m: work until its sender holds as many materials as it may, or stop when
+ * it holds none and none is left for it. Short materials raise the sender's depth. */
+static int plan_replies(coord *c, const msg_in *m, int rc, reply *out, int *nout, int *active)
 {
-    int active = c->nworkers, rc = 0;
-    /* 0.5 ms: a few microseconds of work per wake-up (under 1% of a core) against a latency that
-     * stays small beside materials of milliseconds. */
-    const struct timespec nap = {0, 500 * 1000};
-    while (active > 0) {
-        int flag = 0;
-        MPI_Status st;
-        int mrc = mpi_check(MPI_Iprobe(MPI_ANY_SOURCE, TAG_RESULT, c->comm, &flag, &st), "MPI_Iprobe", err);
-        if (mrc != 0) return mrc;
-        if (!flag) {
-            nanosleep(&nap, NULL);
-            if (rc == 0) rc = cat_flush_if_due(c->cat, err);
-            if (bs_now() - c->last_tick > 1.0) coord_tick(c, 0);
-            continue;
-        }
-        pl_outcome out;
-        int job_limited = 0, kind = 0;
-        mrc = recv_outcome(c->comm, &st, &out, &job_limited, &kind, err);
-        if (mrc != 0) return mrc;
-        if (kind == 1 && rc == 0)
-            rc = coord_record(c, &out, job_limited, err);
-        else if (kind == 1 && c->journal) {
-            /* After a storage fault results are dropped, not lost: no strike against them. */
-            bs_err jerr;
-            bs_err_clear(&jerr);
-            pl_journal_received(c->journal, out.id, &jerr);
-        }
-        pl_outcome_clear(&out);
-        wire_work w;
-        /* After a catalogue error nothing more is handed out: results could not be kept. */
-        if (rc == 0 && coord_next(c, st.MPI_SOURCE, &w)) {
-            mrc = mpi_check(MPI_Send(&w, (int)sizeof w, MPI_BYTE, st.MPI_SOURCE, TAG_WORK, c->comm),
-                            "MPI_Send of work", err);
-        } else {
-            mrc = mpi_check(MPI_Send(NULL, 0, MPI_BYTE, st.MPI_SOURCE, TAG_STOP, c->comm), "MPI_Send of stop",
-                            err);
-            active--;
-        }
-        if (mrc != 0) return mrc;
-        if (kind == 1) coord_tick(c, 0);
+    int r = m->from;
+    int was_hungry = c->held[r] < c->depth[r];
+    if (m->kind == 1) {
+        if (c->held[r] > 0) c->held[r]--;
+        c->holds_suspect[r] = 0; /* it held the suspect alone: this was its outcome */
+        double t = m->out.seconds;
+        int extra = t >= PL_PREFETCH_SECONDS ? 0
+                    : t >= PL_PREFETCH_COVER ? 1
+                                             : (int)ceil(PL_PREFETCH_COVER / (t > 1e-6 ? t : 1e-6));
+        c->depth[r] = 1 + (extra < PL_PREFETCH_MAX ? extra : PL_PREFETCH_MAX);
+    }
+    /* While suspects wait, workers hold one material at a time, so that they soon hold none. */
+    int want = c->susp_left > 0 || c->holds_suspect[r] ? 1 : c->depth[r];
+    /* After a catalogue error nothing more is handed out: results could not be kept. */
+    while (rc == 0 && c->held[r] < want) {
+        reply *p = &out[*nout];
+        if (!coord_next(c, r, &p->w)) break;
+        p->to = r;
+        p->stop = 0;
+        p->w.after = m->seq;
+        c->held[r]++;
+        (*nout)++;
+    }
+    int stop = c->held[r] == 0;
+    if (stop) {
+        out[*nout].to = r;
+        out[*nout].stop = 1;
+        (*nout)++;
+        (*active)--;
+        c->depth[r] = 0; /* gone: never hungry again */
+    }
+    c->hungry += (c->held[r] < c->depth[r]) - was_hungry;
+    return stop;
+}
+
+static int send_replies(coord *c, const reply *rs, int n, bs_err *err)
+{
+    int rc = 0;
+    for (int i = 0; rc == 0 && i < n; i++) {
+        if (rs[i].stop)
+            rc = mpi_check(MPI_Send(NULL, 0, MPI_BYTE, rs[i].to, TAG_STOP, c->comm), "MPI_Send of stop", err);
+        else
+            rc = mpi_check(MPI_Send(&rs[i].w, (int)sizeof rs[i].w, MPI_BYTE, rs[i].to, TAG_WORK, c->comm),
+                           "MPI_Send of work", err);
     }
     return rc;
 }
 
-static int send_outcome(MPI_Comm comm, int kind, const pl_outcome *out, int job_limited, bs_err *err)
+/* Coordinator loop with worker ranks 1..size-1, in rounds (see the top of this file): receive what
+ * is waiting, plan the replies, write the journal (the outcomes received and the hand-outs, before
+ * the work leaves), send, then record the outcomes while the workers compute. */
+static int run_coordinator(coord *c, int size, bs_err *err)
+{
+    int active = c->nworkers, rc = 0;
+    c->held = calloc((size_t)size, sizeof *c->held);
+    c->depth = malloc((size_t)size * sizeof *c->depth);
+    c->holds_suspect = calloc((size_t)size, 1);
+    msg_in *msgs = calloc(PL_ROUND, sizeof *msgs);
+    reply *replies = malloc(PL_ROUND * (size_t)(2 + PL_PREFETCH_MAX) * sizeof *replies);
+    if (!c->held || !c->depth || !c->holds_suspect || !msgs || !replies) {
+        free(msgs);
+        free(replies);
+        return bs_fail(err, BS_ENOMEM, "out of memory for the coordinator");
+    }
+    for (int r = 0; r < size; r++)
+        c->depth[r] = 1;
+    c->hungry = c->nworkers;
+    long nap_us = PL_NAP_MIN_US;
+    int mrc = 0;
+    while (mrc == 0 && active > 0) {
+        int n = 0;
+        while (mrc == 0 && n < PL_ROUND) {
+            int flag = 0;
+            MPI_Status st;
+            mrc = mpi_check(MPI_Iprobe(MPI_ANY_SOURCE, TAG_RESULT, c->comm, &flag, &st), "MPI_Iprobe", err);
+            if (mrc != 0 || !flag) break;
+            mrc = recv_outcome(c->comm, &st, &msgs[n], err);
+            if (mrc == 0) n++;
+        }
+        if (mrc != 0) break;
+        if (n == 0) {
+            /* While every worker holds all it may, the next result is no hurry: each has at least
+             * one more material to compute (its prefetch covers the longest sleep). */
+            if (c->hungry == 0) nap_us = PL_NAP_MAX_US;
+            const struct timespec nap = {0, nap_us * 1000};
+            nanosleep(&nap, NULL);
+            if (nap_us < PL_NAP_MAX_US) nap_us = nap_us * 2 < PL_NAP_MAX_US ? nap_us * 2 : PL_NAP_MAX_US;
+            if (rc == 0) rc = cat_flush_if_due(c->cat, err);
+            if (bs_now() - c->last_tick > 1.0) coord_tick(c, 0);
+            continue;
+        }
+        nap_us = PL_NAP_MIN_US;
+        int nreply = 0;
+        for (int i = 0; i < n; i++) {
+            /* After a storage fault results are dropped, not lost: their line keeps them from
+             * counting against the material. */
+            if (msgs[i].kind == 1) journal_received(c, msgs[i].out.id);
+            plan_replies(c, &msgs[i], rc, replies, &nreply, &active);
+        }
+        journal_sync(c);
+        mrc = send_replies(c, replies, nreply, err);
+        for (int i = 0; i < n; i++) {
+            if (msgs[i].kind == 1 && rc == 0) rc = coord_record(c, &msgs[i].out, msgs[i].job_limited, err);
+            pl_outcome_clear(&msgs[i].out);
+        }
+        if (rc == 0) rc = cat_flush_if_due(c->cat, err);
+        coord_tick(c, 0);
+    }
+    for (int i = 0; i < PL_ROUND; i++)
+        pl_outcome_clear(&msgs[i].out);
+    free(msgs);
+    free(replies);
+    return mrc != 0 ? mrc : rc;
+}
+
+static int send_outcome(MPI_Comm comm, int kind, int seq, const pl_outcome *out, int job_limited, bs_err *err)
 {
     wire_head h;
     memset(&h, 0, sizeof h);
     h.kind = kind;
+    h.seq = seq;
     h.code = out ? out->code : 0;
     h.rank = out ? out->rank : 0;
     h.job_limited = job_limited;
@@ -774,13 +985,16 @@ static int send_outcome(MPI_Comm comm, int kind, const pl_outcome *out, int job_
         memcpy(h.message, out->message, sizeof h.message);
     }
     size_t jlen = out && out->json ? strlen(out->json) : 0;
-    if (sizeof h + jlen > (size_t)2147483647)
-        return bs_fail(err, BS_EMPI, "result of %zu bytes too large for one message", jlen);
-    char *buf = malloc(sizeof h + jlen);
+    size_t slen = jlen && out->stored ? strlen(out->stored) : 0;
+    if (sizeof h + jlen + slen > (size_t)2147483647)
+        return bs_fail(err, BS_EMPI, "result of %zu bytes too large for one message", jlen + slen);
+    h.stored_len = (int)slen;
+    char *buf = malloc(sizeof h + jlen + slen);
     if (!buf) return bs_fail(err, BS_ENOMEM, "out of memory");
     memcpy(buf, &h, sizeof h);
     if (jlen) memcpy(buf + sizeof h, out->json, jlen);
-    int rc = mpi_check(MPI_Send(buf, (int)(sizeof h + jlen), MPI_BYTE, 0, TAG_RESULT, comm),
+    if (slen) memcpy(buf + sizeof h + jlen, out->stored, slen);
+    int rc = mpi_check(MPI_Send(buf, (int)(sizeof h + jlen + slen), MPI_BYTE, 0, TAG_RESULT, comm),
                        "MPI_Send of a result", err);
     free(buf);
     return rc;
@@ -817,7 +1031,11 @@ static int run_worker(const pl_opts *o, MPI_Comm comm, MPI_Comm gcomm, pl_group 
      * it is given as failed, so the coordinator never waits for it. */
     bs_err open_err = *err;
     bs_err_clear(err);
-    rc = send_outcome(comm, 0, NULL, 0, err);
+    /* When each message left, by seq: a material's budget counts from the message it answers. */
+    double sent_at[PL_SENT_RING];
+    int seq = 0;
+    sent_at[0] = bs_now();
+    rc = send_outcome(comm, 0, seq++, NULL, 0, err);
     while (rc == 0) {
         MPI_Status st;
         /* Poll and nap rather than MPI_Probe, which spins: with P = cores + 1 a spinning worker
@@ -838,6 +1056,13 @@ static int run_worker(const pl_opts *o, MPI_Comm comm, MPI_Comm gcomm, pl_group 
         rc = mpi_check(MPI_Recv(&w, (int)sizeof w, MPI_BYTE, 0, TAG_WORK, comm, MPI_STATUS_IGNORE),
                        "MPI_Recv of work", err);
         if (rc != 0) break;
+        /* What is left of the job's time was measured when the work was handed out; a prefetched
+         * material waited in the queue since, at most since the message it answers left. */
+        if (w.job_limited && w.after >= 0 && w.after < seq && seq - w.after <= PL_SENT_RING) {
+            w.max_seconds -= bs_now() - sent_at[w.after % PL_SENT_RING];
+            /* 0 would mean "no limit": a budget used up while waiting times out at once. */
+            if (w.max_seconds < 1e-6) w.max_seconds = 1e-6;
+        }
         pl_outcome out;
         pl_task task = task_of(o, NULL);
         if (w.mesh > 0) task.mesh = w.mesh;
@@ -857,7 +1082,8 @@ static int run_worker(const pl_opts *o, MPI_Comm comm, MPI_Comm gcomm, pl_group 
             snprintf(out.message, sizeof out.message, "worker %d cannot read the set: %.400s", rank,
                      open_err.msg);
         }
-        rc = send_outcome(comm, 1, &out, w.job_limited, err);
+        sent_at[seq % PL_SENT_RING] = bs_now();
+        rc = send_outcome(comm, 1, seq++, &out, w.job_limited, err);
         pl_outcome_clear(&out);
     }
     if (gcomm != MPI_COMM_NULL) {
@@ -907,6 +1133,11 @@ static void coord_clear(coord *c, bs_err *err)
     ms_free(c->set);
     free(c->items);
     free(c->taken);
+    free(c->held);
+    free(c->depth);
+    free(c->holds_suspect);
+    free(c->susp);
+    cat_ids_clear(&c->suspects);
     pl_journal_close(c->journal);
     release_lock(c);
 }
@@ -1022,10 +1253,13 @@ int pl_wire_probe(MPI_Comm comm, int *flag, MPI_Status *st, bs_err *err)
 }
 int pl_wire_recv(MPI_Comm comm, MPI_Status *st, pl_outcome *out, int *kind, bs_err *err)
 {
-    int job_limited = 0;
-    return recv_outcome(comm, st, out, &job_limited, kind, err);
+    msg_in m;
+    int rc = recv_outcome(comm, st, &m, err);
+    *out = m.out; /* the texts move to the caller */
+    *kind = m.kind;
+    return rc;
 }
 int pl_wire_send(MPI_Comm comm, int kind, const pl_outcome *out, bs_err *err)
 {
-    return send_outcome(comm, kind, out, 0, err);
+    return send_outcome(comm, kind, 0, out, 0, err);
 }

@@ -170,8 +170,12 @@ void pl_compute(const ms_set *set, int index, const pl_task *task, double max_se
         res_init(&r);
         rc = pl_diagnose(m, &o, &r, &err);
         if (rc == 0) {
+            /* Printed here, where the diagnosis is, in both forms when they differ: the
+             * coordinator reads the one with flows and stores the other as it is. */
             out->json = res_to_text(&r, 1);
-            if (!out->json) rc = bs_fail(&err, BS_ENOMEM, "out of memory formatting the result");
+            if (out->json && r.nflows > 0) out->stored = res_to_text(&r, 0);
+            if (!out->json || (r.nflows > 0 && !out->stored))
+                rc = bs_fail(&err, BS_ENOMEM, "out of memory formatting the result");
         }
         res_clear(&r);
     }
@@ -185,5 +189,7 @@ void pl_outcome_clear(pl_outcome *out)
 {
     if (!out) return;
     free(out->json);
+    free(out->stored);
     out->json = NULL;
+    out->stored = NULL;
 }

@@ -30,7 +30,9 @@ typedef struct pl_outcome {
     double seconds;
     int rank;
     char message[512];
-    char *json; /* diagnosis JSON text (owned), NULL unless code == BS_OK */
+    char *json;   /* diagnosis JSON text with flows (owned), NULL unless code == BS_OK */
+    char *stored; /* the same without flows, as the catalogue stores it (owned); NULL when json
+                     has no flows (json is then that form) */
 } pl_outcome;
 
 /* What every material of a job gets computed with. */

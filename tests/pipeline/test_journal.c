@@ -68,6 +68,42 @@ static void test_lost_materials_counted_per_session(void **state)
     unlink(path);
 }
 
+/* The lines wait in memory until pl_journal_sync (one write per coordinator round); what a sync
+ * wrote is in the file even if the process then dies without closing (here: the file is read
+ * while the journal is still open), and pl_journal_lost sees it. */
+static void test_lines_reach_the_file_at_sync(void **state)
+{
+    (void)state;
+    char path[] = "/tmp/bs_journal_XXXXXX";
+    int fd = mkstemp(path);
+    assert_true(fd >= 0);
+    close(fd);
+    bs_err err;
+    bs_err_clear(&err);
+    pl_journal *j = NULL;
+    assert_int_equal(pl_journal_open(path, 3, &j, &err), 0);
+    assert_int_equal(pl_journal_handed(j, "X", &err), 0);
+    assert_int_equal(pl_journal_handed(j, "Y", &err), 0);
+    char **ids = NULL;
+    int *strikes = NULL, n = -1;
+    assert_int_equal(pl_journal_lost(path, 3, &ids, &strikes, &n, &err), 0);
+    assert_int_equal(n, 0); /* nothing synced yet */
+    free_list(ids, strikes, n);
+    assert_int_equal(pl_journal_sync(j, &err), 0);
+    assert_int_equal(pl_journal_received(j, "X", &err), 0); /* not synced: X still open on disk */
+    assert_int_equal(pl_journal_lost(path, 3, &ids, &strikes, &n, &err), 0);
+    assert_int_equal(n, 2);
+    assert_int_equal(strikes_of(ids, strikes, n, "X"), 1);
+    assert_int_equal(strikes_of(ids, strikes, n, "Y"), 1);
+    free_list(ids, strikes, n);
+    pl_journal_close(j); /* writes the waiting line */
+    assert_int_equal(pl_journal_lost(path, 3, &ids, &strikes, &n, &err), 0);
+    assert_int_equal(n, 1);
+    assert_int_equal(strikes_of(ids, strikes, n, "Y"), 1);
+    free_list(ids, strikes, n);
+    unlink(path);
+}
+
 static void test_missing_journal_is_empty(void **state)
 {
     (void)state;
@@ -88,6 +124,7 @@ int main(void)
 {
     const struct CMUnitTest tests[] = {
         cmocka_unit_test(test_lost_materials_counted_per_session),
+        cmocka_unit_test(test_lines_reach_the_file_at_sync),
         cmocka_unit_test(test_missing_journal_is_empty),
     };
     return cmocka_run_group_tests(tests, NULL, NULL);
