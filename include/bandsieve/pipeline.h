@@ -91,6 +91,9 @@ typedef struct pl_opts {
     void (*announce)(void *ctx, const pl_counts *c, const char *kind);
     /* Called on rank 0 before the path phase hands out work (--paths). */
     void (*announce_paths)(void *ctx, const pl_counts *c);
+    /* Called on rank 0 when a family's path is stored: its name, status and the worker's seconds
+     * (paths take seconds to minutes each, so each gets a line). */
+    void (*path_done)(void *ctx, const pl_counts *c, const char *family, const char *status, double seconds);
 } pl_opts;
 
 /* The scheduler's cost model, MPI-free, shared with `bandsieve check`: the estimated work of one

@@ -118,6 +118,15 @@ static void announce_paths(void *ctx, const pl_counts *c)
             c->paths_total == 1 ? "y" : "ies", c->paths_skipped);
 }
 
+static void path_done(void *ctx, const pl_counts *c, const char *family, const char *status, double seconds)
+{
+    progress_state *p = ctx;
+    if (p->tty) fputs("\r\033[K", stderr);
+    fprintf(stderr, "%s: path %d/%d %s: %s (%.1f s)\n", p->what, c->paths_done, c->paths_total, family,
+            status, seconds);
+    fflush(stderr);
+}
+
 /* "4G", "500M", "64k" (powers of 1024) or a plain number of bytes; 0 or -1. */
 static int parse_bytes(const char *text, double *out)
 {
@@ -459,6 +468,7 @@ static int screen_main(int argc, char **argv, int rescreen)
     o.cmdline = cmdline;
     o.stop_flag = &stop_requested;
     o.progress = show_progress;
+    o.path_done = path_done;
     o.announce = announce;
     o.announce_paths = announce_paths;
     o.progress_ctx = &ps;

@@ -630,6 +630,8 @@ static int path_record(path_coord *pc, const pl_family *f, const pl_outcome *out
         pc->counts->paths_ok++;
     else
         pc->counts->paths_failed++;
+    if (pc->o->path_done)
+        pc->o->path_done(pc->o->progress_ctx, pc->counts, f->name, cat_status_name(st), out->seconds);
     return 0;
 }
 

@@ -25,6 +25,7 @@ import cmath
 import json
 import math
 import os
+import re
 import shutil
 import signal
 import sqlite3
@@ -166,6 +167,10 @@ def case_transitions():
     p = screen(s, cat)
     if "3 families' paths to do" not in p.stderr:
         fail(f"expected 3 paths to do: {p.stderr[-600:]}")
+    # one progress line per stored path, numbered against the total
+    for fam in ("JaQi1-xQox", "Jo2Qu-pressure", "haldane-M"):
+        if not re.search(r"path [123]/3 " + re.escape(fam) + r": ok \(", p.stderr):
+            fail(f"no progress line for the path of {fam}: {p.stderr[-600:]}")
     st = rows(cat, "SELECT family, status, nmembers FROM paths ORDER BY family")
     if st != [("JaQi1-xQox", "ok", 2), ("Jo2Qu-pressure", "ok", 5), ("haldane-M", "ok", 3)]:
         fail(f"paths rows: {st}")
