@@ -1128,7 +1128,7 @@ int pp_run(const pp_source *s, const char *param, double x_lo, double x_hi, cons
     }
     free(ks);
     if (rc != 0) goto done;
-    qsort(r->closings, (size_t)r->nclosing, sizeof *r->closings, cmp_closing);
+    if (r->nclosing > 1) qsort(r->closings, (size_t)r->nclosing, sizeof *r->closings, cmp_closing);
     /* merge overlapping regions */
     {
         int w = 0;
