@@ -1004,10 +1004,12 @@ static int run_crystal(diag_ctx *c, res_diag *r, int kramers, bs_err *err)
     int rc = 0, insulator = res_class_is_insulator(r->cls) && r->gap_direct_ev > BS_GAP_CLOSED_EV;
     if (insulator)
         rc = restore_approximate(c->m, ci, r->gap_direct_ev, r, &msym, &ci_sym, err);
-    else
+    else if (cry_nops(ci) > cry_nverified(ci))
         snprintf(r->crystal_verdicts, sizeof r->crystal_verdicts,
                  "%d exact; the other %d not judged (no gap to weigh a breaking against)", cry_nverified(ci),
                  cry_nops(ci) - cry_nverified(ci));
+    else
+        snprintf(r->crystal_verdicts, sizeof r->crystal_verdicts, "%d exact", cry_nverified(ci));
     if (rc == 0 && ci_sym) r->symmetry_ops = cry_nverified(ci_sym);
     if (rc == 0 && r->gap_direct_ev > BS_GAP_CLOSED_EV)
         gap_point_symmetry(msym ? msym : c->m, ci_sym ? ci_sym : ci, r);

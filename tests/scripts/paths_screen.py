@@ -21,7 +21,6 @@ cases:
                are in flight, then resumed; the path tables are compared row by row with a one-shot
                screen --paths of the same set: nothing lost, duplicated or changed.
 """
-import cmath
 import json
 import math
 import os
@@ -32,6 +31,9 @@ import sqlite3
 import subprocess
 import sys
 import time
+
+sys.path.insert(0, os.path.dirname(os.path.abspath(__file__)))
+from haldane_card import haldane_card  # noqa: E402
 
 BIN, CASE, WORK = sys.argv[1], sys.argv[2], sys.argv[3]
 ENV = dict(os.environ, OMPI_ALLOW_RUN_AS_ROOT="1", OMPI_ALLOW_RUN_AS_ROOT_CONFIRM="1", OMPI_MCA_rmaps_base_oversubscribe="1")
@@ -57,47 +59,8 @@ def fresh(name):
     return d
 
 
-def haldane_member(folder, mid, family, mass, t2, phi=math.pi / 2):
-    """Card and table of the Haldane model (Phys. Rev. Lett. 61, 2015 (1988)): honeycomb, t1 = 1 eV,
-    next-nearest t2 e^{+-i phi}, staggered mass +-M, as a member of `family` at value M. H(R) is
-    linear in M, so the interpolation between members is exact and the closings are the model's."""
-    h = {}
-
-    def add(R, m, n, v):
-        h[(R, m, n)] = h.get((R, m, n), 0) + v
-        mR = (-R[0], -R[1], 0)
-        if (R, m, n) != (mR, n, m):
-            h[(mR, n, m)] = h.get((mR, n, m), 0) + v.conjugate()
-
-    add((0, 0, 0), 1, 1, complex(mass, 0))
-    add((0, 0, 0), 2, 2, complex(-mass, 0))
-    for R in ((0, 0, 0), (-1, 0, 0), (0, -1, 0)):
-        add(R, 1, 2, complex(-1.0, 0))
-    for d in ((1, 0, 0), (-1, 1, 0), (0, -1, 0)):
-        add(d, 1, 1, t2 * cmath.exp(1j * phi))
-        add(d, 2, 2, t2 * cmath.exp(-1j * phi))
-    Rs = sorted({k[0] for k in h})
-    lines = [f"Haldane model M={mass} t2={t2} (test data)", "2", str(len(Rs)), " ".join("1" for _ in Rs)]
-    for R in Rs:
-        for n in (1, 2):
-            for m in (1, 2):
-                v = h.get((R, m, n), 0j)
-                lines.append(f"{R[0]} {R[1]} {R[2]} {m} {n} {v.real:.15f} {v.imag:.15f}")
-    with open(os.path.join(folder, f"{mid}_hop.dat"), "w") as f:
-        f.write("\n".join(lines) + "\n")
-    card = {"id": mid, "dimension": 2, "formula": "C2", "source": "Haldane model, test data",
-            "lattice": [[1, 0, 0], [0.5, math.sqrt(3) / 2, 0], [0, 0, 10]],
-            "hoppings": f"{mid}_hop.dat", "spinful": False, "occupied_bands": 1,
-            "orbitals": [{"position": [1 / 3, 1 / 3, 0], "l": 1}, {"position": [2 / 3, 2 / 3, 0], "l": 1}],
-            "family": {"name": family, "parameter": "M", "unit": "eV", "value": mass}}
-    path = os.path.join(folder, f"{mid}.json")
-    with open(path, "w") as f:
-        json.dump(card, f)
-    return path
-
-
 def haldane_family(folder, family, t2, masses=(-2.0, 0.0, 2.0)):
-    return [haldane_member(folder, f"{family}_m{i}", family, m, t2) for i, m in enumerate(masses)]
+    return [haldane_card(folder, f"{family}_m{i}", m, t2=t2, family=family) for i, m in enumerate(masses)]
 
 
 def rows(cat, sql):
@@ -219,7 +182,6 @@ def case_transitions():
 
     # The path figure: gap against M with the intervals shaded by class, rendered by Chromium: not
     # blank, the trivial (grey) and Chern (teal) colours of src/cli/figures.c both present.
-    sys.path.insert(0, os.path.dirname(os.path.abspath(__file__)))
     import figures
     svg, png = os.path.join(d, "haldane.svg"), os.path.join(d, "haldane_shot.png")
     run([BIN, "path", "--family", "haldane-M", s, "--samples", "21", "--figure", svg])
