@@ -72,6 +72,13 @@ double cat_now(void);
 
 /* sqlite3 failure: fills err with "what: sqlite3_errmsg (code)" and returns BS_ESQL. */
 int cat_sql_fail(cat_db *cat, bs_err *err, const char *what);
+/* Steps a prepared statement once (it must finish: SQLITE_DONE), then resets it and clears its
+ * bindings for the next use; the error, if any, is read before the reset. */
+int cat_step_reset(cat_db *cat, sqlite3_stmt *st, const char *what, bs_err *err);
+/* Z2 indices as the catalogue's text columns hold them: "nu" in 2D, "nu0;nu1nu2nu3" in 3D (the
+ * strong index before the semicolon, as usually written: Phys. Rev. Lett. 98, 106803 (2007));
+ * "" unless status is RES_DONE. */
+void cat_z2_text(int dim, res_status status, const int *nu, char *buf, size_t len);
 
 /* Why a write to path may have failed, for messages: "disk full (N bytes free in DIR)",
  * "permission denied", ... from errnum (0 when unknown) and the state of path's folder. Writes

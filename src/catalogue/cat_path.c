@@ -51,25 +51,6 @@ static void bind_real_or_null(sqlite3_stmt *st, int i, double v)
         sqlite3_bind_null(st, i);
 }
 
-static int step_reset(cat_db *cat, sqlite3_stmt *st, const char *what, bs_err *err)
-{
-    int rc = sqlite3_step(st) == SQLITE_DONE ? 0 : cat_sql_fail(cat, err, what);
-    sqlite3_reset(st);
-    sqlite3_clear_bindings(st);
-    return rc;
-}
-
-/* The Z2 text of an interval's diagnosis as results.z2 has it ("1" in 2D, "1;000" in 3D), or "". */
-static void z2_text(const res_diag *d, char *buf, size_t len)
-{
-    buf[0] = '\0';
-    if (d->z2_status != RES_DONE) return;
-    if (d->dim == 2)
-        snprintf(buf, len, "%d", d->z2[0]);
-    else
-        snprintf(buf, len, "%d;%d%d%d", d->z2[0], d->z2[1], d->z2[2], d->z2[3]);
-}
-
 static int put_samples(cat_db *cat, sqlite3_stmt *st, const char *fam, const pp_result *r, bs_err *err)
 {
     int rc = 0;
@@ -78,7 +59,7 @@ static int put_samples(cat_db *cat, sqlite3_stmt *st, const char *fam, const pp_
         sqlite3_bind_int(st, 2, i);
         sqlite3_bind_double(st, 3, r->xs[i]);
         bind_real_or_null(st, 4, r->gaps[i]);
-        rc = step_reset(cat, st, "insert path_samples", err);
+        rc = cat_step_reset(cat, st, "insert path_samples", err);
     }
     return rc;
 }
@@ -90,7 +71,7 @@ static int put_intervals(cat_db *cat, sqlite3_stmt *st, const char *fam, const p
         const pp_interval *in = &r->intervals[i];
         const res_diag *d = &in->diag;
         char z2[16];
-        z2_text(d, z2, sizeof z2);
+        cat_z2_text(d->dim, d->z2_status, d->z2, z2, sizeof z2);
         char *diag = res_to_text(d, 0);
         if (!diag) return bs_fail(err, BS_ENOMEM, "out of memory for the diagnosis of interval %d", i);
         sqlite3_bind_text(st, 1, fam, -1, SQLITE_STATIC);
@@ -109,7 +90,7 @@ static int put_intervals(cat_db *cat, sqlite3_stmt *st, const char *fam, const p
         sqlite3_bind_int(st, 11, d->nnodes);
         bind_real_or_null(st, 12, d->confidence);
         sqlite3_bind_text(st, 13, diag, -1, SQLITE_TRANSIENT);
-        rc = step_reset(cat, st, "insert path_intervals", err);
+        rc = cat_step_reset(cat, st, "insert path_intervals", err);
         cJSON_free(diag);
     }
     return rc;
@@ -139,7 +120,7 @@ static int put_closing(cat_db *cat, sqlite3_stmt *st, const char *fam, int event
     sqlite3_bind_text(st, 21, c->text, -1, SQLITE_STATIC);
     if (c->predicted) sqlite3_bind_text(st, 22, c->prediction, -1, SQLITE_STATIC);
     bind_int_or_null(st, 23, c->agrees, c->agrees < 0);
-    return step_reset(cat, st, "insert path_events", err);
+    return cat_step_reset(cat, st, "insert path_events", err);
 }
 
 static int put_event(cat_db *cat, sqlite3_stmt *st, const char *fam, int event, const pp_event *e,
@@ -158,7 +139,7 @@ static int put_event(cat_db *cat, sqlite3_stmt *st, const char *fam, int event, 
     bind_int_or_null(st, 19, e->a, e->a < 0);
     bind_int_or_null(st, 20, e->b, e->b < 0);
     sqlite3_bind_text(st, 21, pp_event_name(e->kind), -1, SQLITE_STATIC);
-    return step_reset(cat, st, "insert path_events", err);
+    return cat_step_reset(cat, st, "insert path_events", err);
 }
 
 static int put_tracks(cat_db *cat, sqlite3_stmt *tr, sqlite3_stmt *pt, const char *fam, const pp_result *r,
@@ -174,7 +155,7 @@ static int put_tracks(cat_db *cat, sqlite3_stmt *tr, sqlite3_stmt *pt, const cha
         bind_int_or_null(tr, 5, t->died_with, t->died_with < 0);
         sqlite3_bind_int(tr, 6, t->crossings);
         sqlite3_bind_int(tr, 7, t->npts);
-        rc = step_reset(cat, tr, "insert path_tracks", err);
+        rc = cat_step_reset(cat, tr, "insert path_tracks", err);
         for (int q = 0; rc == 0 && q < t->npts; q++) {
             sqlite3_bind_text(pt, 1, fam, -1, SQLITE_STATIC);
             sqlite3_bind_int(pt, 2, i);
@@ -182,7 +163,7 @@ static int put_tracks(cat_db *cat, sqlite3_stmt *tr, sqlite3_stmt *pt, const cha
             sqlite3_bind_double(pt, 4, t->x[q]);
             for (int a = 0; a < 3; a++)
                 sqlite3_bind_double(pt, 5 + a, t->k[q][a]);
-            rc = step_reset(cat, pt, "insert path_track_points", err);
+            rc = cat_step_reset(cat, pt, "insert path_track_points", err);
         }
     }
     return rc;

@@ -38,18 +38,12 @@ static void bind_text(const put_ctx *pc, const char *name, const char *text)
     sqlite3_bind_text(pc->st, param(pc, name), text, -1, SQLITE_TRANSIENT);
 }
 
-/* Z2 indices as text, NULL unless the method is done: nu (2D), "nu0;nu1nu2nu3" (3D), the strong
- * index before the semicolon and the weak ones after, as usually written
- * (Phys. Rev. Lett. 98, 106803 (2007)). */
+/* Z2 indices as text (cat_z2_text), NULL unless the method is done. */
 static void bind_z2(const put_ctx *pc, const char *name, res_status st, const int *nu)
 {
-    if (st != RES_DONE) return;
     char text[16];
-    if (pc->diag->dim == 2)
-        snprintf(text, sizeof text, "%d", nu[0]);
-    else
-        snprintf(text, sizeof text, "%d;%d%d%d", nu[0], nu[1], nu[2], nu[3]);
-    bind_text(pc, name, text);
+    cat_z2_text(pc->diag->dim, st, nu, text, sizeof text);
+    if (text[0]) bind_text(pc, name, text);
 }
 
 /* The Chern numbers as the JSON form shows them (res_chern_shown): the 2D number, and the six
@@ -167,14 +161,6 @@ static int bind_row(const put_ctx *pc, int64_t run_id, cat_status status, const 
     return 0;
 }
 
-static int step_reset(cat_db *cat, sqlite3_stmt *st, const char *what, bs_err *err)
-{
-    int s = sqlite3_step(st);
-    sqlite3_reset(st);
-    sqlite3_clear_bindings(st);
-    return s == SQLITE_DONE ? 0 : cat_sql_fail(cat, err, what);
-}
-
 /* Removes the result of (run, material) with its nodes and artifact rows (children first, for
  * the foreign keys). */
 static int delete_result(cat_db *cat, int64_t run_id, const char *mid, bs_err *err)
@@ -185,7 +171,7 @@ static int delete_result(cat_db *cat, int64_t run_id, const char *mid, bs_err *e
         sqlite3_stmt *st = cat->st[which[i]];
         sqlite3_bind_int64(st, 1, run_id);
         sqlite3_bind_text(st, 2, mid, -1, SQLITE_TRANSIENT);
-        rc = step_reset(cat, st, "replacing an earlier result", err);
+        rc = cat_step_reset(cat, st, "replacing an earlier result", err);
     }
     return rc;
 }
@@ -220,7 +206,7 @@ static int insert_nodes(cat_db *cat, int64_t run_id, const char *mid, const res_
         sqlite3_bind_int(st, 7, n->chirality);
         sqlite3_bind_double(st, 8, n->energy_ev);
         sqlite3_bind_double(st, 9, n->gap_ev);
-        rc = step_reset(cat, st, "writing a Weyl node", err);
+        rc = cat_step_reset(cat, st, "writing a Weyl node", err);
     }
     return rc;
 }
@@ -245,7 +231,7 @@ static int insert_flows(cat_db *cat, int64_t run_id, const char *mid, const res_
         sqlite3_bind_text(st, 6, h5path, -1, SQLITE_TRANSIENT);
         sqlite3_bind_int(st, 7, flows[i].nstring);
         sqlite3_bind_int(st, 8, flows[i].nband);
-        rc = step_reset(cat, st, "indexing an artifact", err);
+        rc = cat_step_reset(cat, st, "indexing an artifact", err);
     }
     return rc;
 }
@@ -259,7 +245,7 @@ static int ensure_material(cat_db *cat, const char *mid, const res_diag *diag, b
     if (diag && (diag->dim == 2 || diag->dim == 3)) sqlite3_bind_int(st, 2, diag->dim);
     if (diag && diag->norb >= 1) sqlite3_bind_int(st, 3, diag->norb);
     if (diag && diag->nocc >= 1) sqlite3_bind_int(st, 4, diag->nocc);
-    return step_reset(cat, st, "recording the material", err);
+    return cat_step_reset(cat, st, "recording the material", err);
 }
 
 /* The bound results INSERT, stepped and reset with its bindings kept (a retry steps it again).

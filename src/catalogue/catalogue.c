@@ -125,6 +125,24 @@ int cat_sql_fail(cat_db *cat, bs_err *err, const char *what)
                    db ? sqlite3_errmsg(db) : "no connection", code);
 }
 
+int cat_step_reset(cat_db *cat, sqlite3_stmt *st, const char *what, bs_err *err)
+{
+    int rc = sqlite3_step(st) == SQLITE_DONE ? 0 : cat_sql_fail(cat, err, what);
+    sqlite3_reset(st);
+    sqlite3_clear_bindings(st);
+    return rc;
+}
+
+void cat_z2_text(int dim, res_status status, const int *nu, char *buf, size_t len)
+{
+    buf[0] = '\0';
+    if (status != RES_DONE) return;
+    if (dim == 2)
+        snprintf(buf, len, "%d", nu[0]);
+    else
+        snprintf(buf, len, "%d;%d%d%d", nu[0], nu[1], nu[2], nu[3]);
+}
+
 int cat_exec(cat_db *cat, const char *sql, bs_err *err)
 {
     char *msg = NULL;
