@@ -47,6 +47,8 @@ typedef struct gaps_result {
     double resolution_ev;   /* what the gaps may still be off by: the last level's change, at
                                least the tolerance (so larger when not converged); INFINITY when
                                no check was made (one level, or a mesh below 4 points) */
+    double shift_ev;        /* gaps_find_near only: the largest change of a band at an extreme from
+                               the nearby model's to this one's (0 otherwise) */
     int nbasins;            /* local refinements run, all quantities and levels */
     long long nk_evaluated; /* k-points diagonalised by this call */
     double seconds;         /* wall time of this call */
@@ -62,6 +64,20 @@ int gaps_find(const tb_model *m, hk_engine *hk, const gaps_opts *o, gaps_result 
 /* As gaps_find with an existing evaluator (borrowed), so a caller can share it with nodes_find;
  * o->deadline is ignored here (the evaluator carries its own). */
 int gaps_find_eval(bp_eval *e, const gaps_opts *o, gaps_result *out, bs_err *err);
+
+/* Gaps of a model H (evaluator e, borrowed; need not be even) from a search on a nearby model H_s
+ * (evaluator es, borrowed, typically even: halved meshes) when every band of H lies within shift_ev
+ * of H_s's (Weyl's inequality with shift_ev >= max_k ||H(k) - H_s(k)||_2). H's extremes then lie
+ * where H_s's values are within twice the shift of H_s's best (2 shift_ev per band edge, 4 for
+ * the direct gap): the search on H_s refines every basin that could come that close (not only
+ * those that could beat the best), H is evaluated at those basins' end points and their mirrors -k,
+ * and short local minimisations on H from the most promising of them give H's extremes. out takes
+ * H_s's mesh, levels, convergence, resolution and width, H's extremes, k-points and direct/indirect
+ * gaps, the k-points diagonalised on H in nk_evaluated (es counts its own), and in shift_ev the
+ * largest change of a band (an edge, or half the direct gap) from H_s's extreme to H's, which the
+ * caller can hold against its bound. o as for gaps_find_eval (o->grid: a mesh of H_s). */
+int gaps_find_near(bp_eval *es, bp_eval *e, double shift_ev, const gaps_opts *o, gaps_result *out,
+                   bs_err *err);
 
 struct nodes_result;
 

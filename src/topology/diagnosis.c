@@ -36,6 +36,7 @@ typedef struct diag_ctx {
     tb_model *ms;       /* the symmetrised model (owned), NULL when nothing was restored */
     const tb_model *zm; /* model of the symmetry-protected quantities: ms, or m */
     symfit_break trb, invb;
+    int measured;            /* trb and invb measured already (measure_breaking) */
     int tr_exact, inv_exact; /* what sym_detect found on H itself */
     int mag;                 /* TB_MAG_* statement used: the card's, or the run's override */
     int tr_physical;         /* time reversal broken for real: the card says so, or the breaking
@@ -266,6 +267,21 @@ static int restore(diag_ctx *c, res_diag *r, int which, bs_err *err)
     return 0;
 }
 
+/* Breaking of time reversal and inversion by H where sym_detect did not find them exact, into
+ * c->trb and c->invb; once per diagnosis. */
+static int measure_breaking(diag_ctx *c, bs_err *err)
+{
+    const sym_info *s = c->sym;
+    if (c->measured) return 0;
+    c->measured = 1;
+    c->trb = (symfit_break){.available = 1};
+    c->invb = (symfit_break){.available = s->inv_source != SYM_INV_NONE};
+    int rc = 0;
+    if (!s->time_reversal) rc = symfit_measure(c->m, s, SYMFIT_TR, NULL, &c->trb, err);
+    if (rc == 0 && !s->inversion) rc = symfit_measure(c->m, s, SYMFIT_INV, NULL, &c->invb, err);
+    return rc;
+}
+
 /* Breaking of the symmetries that are not exact, their verdicts against the direct gap (the
  * bandwidth of the two bands when gapless), and the restoring of the approximate ones for a
  * gapped material. The margin uses H's direct gap: Weyl's inequality bounds the gap along the
@@ -275,11 +291,7 @@ static int run_breaking(diag_ctx *c, res_diag *r, int gapless, bs_err *err)
 {
     sym_info *s = c->sym;
     double scale = gapless ? c->gaps.width_ev : c->gaps.gap_direct_ev;
-    int rc = 0;
-    c->trb = (symfit_break){.available = 1};
-    c->invb = (symfit_break){.available = s->inv_source != SYM_INV_NONE};
-    if (!s->time_reversal) rc = symfit_measure(c->m, s, SYMFIT_TR, NULL, &c->trb, err);
-    if (rc == 0 && !s->inversion) rc = symfit_measure(c->m, s, SYMFIT_INV, NULL, &c->invb, err);
+    int rc = measure_breaking(c, err);
     if (rc != 0) return rc;
     r->tr_break_ev = c->trb.upper_ev;
     r->tr_break_lower_ev = c->trb.lower_ev;
@@ -315,19 +327,109 @@ static int run_breaking(diag_ctx *c, res_diag *r, int gapless, bs_err *err)
     return which ? restore(c, r, which, err) : 0;
 }
 
+/* A breaking that is fit-like: incoherent (symfit.h). */
+static int incoherent(const symfit_break *b)
+{
+    return b->available && b->upper_ev > 0 && b->lower_ev < SYMFIT_COHERENT_RATIO * b->upper_ev;
+}
+
 /* Relative residual (sym_detect's) below which time reversal or inversion makes E(-k) = E(k) hold
  * to round-off, so that the gap and node meshes evaluate one point of each pair k, -k. Exact
  * symmetries of published models sit at ~1e-16; a fit's approximate ones at 1e-5..1e-2 are not
  * used: their H is not even, and the symmetry-free quantities are computed on H as given. */
 #define DIAG_EVEN_RESIDUAL 1e-12
 
+/* The gap search of a fit whose time reversal is only approximate (fit-like breaking: incoherent,
+ * symfit.h) runs on the restored model H_s (time reversal, and inversion when its breaking is
+ * fit-like too), whose E(-k) = E(k) halves the meshes: every band of H lies within delta / 2 of
+ * H_s's (Weyl's inequality; delta = restored_breaking, the breaking that verdicts and margins use),
+ * so H's extremes sit in H_s's basins that come within 2 delta of its best, and short local
+ * minimisations on H from those (gaps_find_near) give H's own gaps. Taken only when H's direct gap
+ * so found is at least SYMFIT_MARGIN_SAFE delta (the margin of a class built on the restored
+ * symmetry without reservation), wide enough that no node search is due, the search converged,
+ * and no band at an extreme moved by more than delta / 2 (what the bound allows); otherwise the
+ * search runs on H as given (fallback), and H_s's eigensolves were spent for nothing (at most its
+ * first mesh when that mesh already shows a thin margin). Returns 1 when c->gaps was filled this
+ * way, 0 for the fallback, or an error code. */
+static int gaps_symmetric(diag_ctx *c, res_diag *r, bs_err *err)
+{
+    sym_info *s = c->sym;
+    if (s->time_reversal || c->mag == TB_MAG_MAGNETIC || c->m->dim != 3) return 0;
+    int rc = measure_breaking(c, err);
+    if (rc != 0 || !incoherent(&c->trb)) return rc;
+    /* With inversion restored as well (when its breaking is fit-like too) the bands of H_s are
+     * Kramers doublets everywhere and its band edges sit at the time-reversal-invariant momenta,
+     * as in a clean model, where the refinements diagonalise half their stencils; with time
+     * reversal alone they move off them (the cone of a split doublet) and cost twice as much. */
+    int which = SYMFIT_TR | (!s->inversion && incoherent(&c->invb) ? SYMFIT_INV : 0);
+    tb_model *ms = NULL;
+    rc = symfit_symmetrise(c->m, s, which, NULL, &ms, NULL, err);
+    if (rc == BS_EINVAL && which != SYMFIT_TR) {
+        bs_err_clear(err);
+        which = SYMFIT_TR;
+        rc = symfit_symmetrise(c->m, s, which, NULL, &ms, NULL, err);
+    }
+    if (rc != 0) return rc;
+    const char *bound;
+    double delta = restored_breaking(c, which, &bound);
+    hk_engine *hk = NULL;
+    bp_eval *e = NULL;
+    bp_mesh *g = NULL;
+    rc = hk_create(ms, diag_batch(ms->norb), &hk, err);
+    if (rc == 0) rc = bp_create_dist(ms, hk, c->o ? c->o->dist : NULL, c->deadline, &e, err);
+    if (rc == 0) {
+        bp_set_even(e, 1);
+        rc = bp_mesh_eval(e, r->mesh, &g, err);
+    }
+    /* The mesh's smallest direct gap, and its indirect gap, bound H_s's from above: below the
+     * margin already, the rest of the search here would be spent for nothing (a thin margin, a
+     * metal; where bands overlap or nearly so, many basins fall within the slack of
+     * gaps_find_near). */
+    double mesh_gap = INFINITY, vbm = -INFINITY, cbm = INFINITY;
+    for (int i = 0; rc == 0 && i < g->npts; i++) {
+        mesh_gap = fmin(mesh_gap, g->hi[i] - g->lo[i]);
+        vbm = fmax(vbm, g->lo[i]);
+        cbm = fmin(cbm, g->hi[i]);
+    }
+    int hopeless = rc == 0 && fmin(mesh_gap, cbm - vbm) < SYMFIT_MARGIN_SAFE * delta;
+    if (rc == 0 && !hopeless) {
+        gaps_opts go;
+        gaps_opts_init(&go);
+        go.grid = g;
+        go.deadline = c->deadline;
+        /* ||H - H_s|| <= delta / 2 moves each band by at most that. */
+        rc = gaps_find_near(e, c->bp, 0.5 * delta, &go, &c->gaps, err);
+    }
+    long long nk = e ? bp_count(e) : 0;
+    bp_mesh_free(g);
+    bp_free(e);
+    hk_free(hk);
+    tb_model_free(ms);
+    if (rc != 0) return rc;
+    r->nk_evaluated += nk;
+    account(r, "gaps_symmetric", nk);
+    if (hopeless) return 0;
+    /* H's own gaps (c->gaps) judged as a search on H would be: no node search due, a safe margin,
+     * and H's extremes within the bound of H_s's (the bound is min(upper, mesh x 1.5), symfit.h). */
+    const gaps_result *h = &c->gaps;
+    double suspicious = fmax(BS_GAP_CLOSED_EV, 0.02 * h->width_ev);
+    if (h->closed || h->metallic || !h->converged || h->gap_direct_ev < SYMFIT_MARGIN_SAFE * delta ||
+        h->gap_direct_ev < suspicious || h->shift_ev > 0.5 * delta)
+        return 0;
+    return 1;
+}
+
 static int run_gaps(diag_ctx *c, res_diag *r, bs_err *err)
 {
     int rc = bp_create_dist(c->m, c->hk, c->o ? c->o->dist : NULL, c->deadline, &c->bp, err);
     const sym_info *s = c->sym;
-    if (rc == 0)
-        bp_set_even(c->bp, (s->time_reversal && s->tr_residual <= DIAG_EVEN_RESIDUAL) ||
-                               (s->inversion && s->inv_residual <= DIAG_EVEN_RESIDUAL));
+    int even = (s->time_reversal && s->tr_residual <= DIAG_EVEN_RESIDUAL) ||
+               (s->inversion && s->inv_residual <= DIAG_EVEN_RESIDUAL);
+    if (rc == 0) bp_set_even(c->bp, even);
+    if (rc == 0 && !even) {
+        rc = gaps_symmetric(c, r, err);
+        if (rc == 1) return 0;
+    }
     if (rc == 0) rc = bp_mesh_eval(c->bp, r->mesh, &c->mesh, err);
     if (rc != 0) return rc;
     gaps_opts go;
@@ -474,11 +576,16 @@ static void take_nodes(nodes_result *n, res_diag *r)
 
 static int run_nodes(diag_ctx *c, res_diag *r, bs_err *err)
 {
+    long long before = bp_count(c->bp);
+    /* After a gap search on the restored model, H's own mesh is made here. */
+    if (!c->mesh) {
+        int rc = bp_mesh_eval(c->bp, r->mesh, &c->mesh, err);
+        if (rc != 0) return rc;
+    }
     nodes_opts no;
     nodes_opts_init(&no);
     no.grid = c->mesh;
     no.deadline = c->deadline;
-    long long before = bp_count(c->bp);
     int rc = nodes_find_eval(c->m, c->bp, &no, &c->nodes, err);
     if (rc != 0) return rc;
     /* Only the chirality fluxes are outside the shared evaluator's count. */
@@ -1063,11 +1170,6 @@ static void apply_margin(res_diag *r)
  * random k; 5% of the Hamiltonian) gets margin 1 for its gapless call; ordinary fits (1e-3) are
  * untouched. Our choice, stated in the reason. */
 #define DIAG_FIT_RESIDUAL 0.05
-
-static int incoherent(const symfit_break *b)
-{
-    return b->available && b->upper_ev > 0 && b->lower_ev < SYMFIT_COHERENT_RATIO * b->upper_ev;
-}
 
 /* A gapless call on a fit whose symmetry breaking is fit-like (incoherent, symfit.h) and not small
  * against the band overlap may be an artefact of the fit: restoring those symmetries can open the

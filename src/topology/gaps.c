@@ -120,16 +120,17 @@ static int plateau_repeat(const bp_mesh *g, const double *f, int i)
 
 /* Refines, for quantity q, every local minimum of the mesh values f that could go below the best
  * value found so far by more than tol (its mesh value less GAPS_REACH times its neighbour
- * variation), lowest first, at most nmax of them, skipping explored basins. Work array idx (npts)
- * from the caller. */
+ * variation), or come within slack of it (gaps_find_near), lowest first, at most nmax of them, skipping
+ * explored basins. Work array idx (npts) from the caller. */
 static int refine_quantity(bp_eval *e, const bp_mesh *g, const double *f, int *idx, int q, int nmax,
-                           double tol_k, double tol, gaps_best *b, gaps_ends *ends, int *nrun, bs_err *err)
+                           double tol_k, double tol, double slack, gaps_best *b, gaps_ends *ends, int *nrun,
+                           bs_err *err)
 {
     int nmin = bp_mesh_minima(g, f, g->npts, idx), done = 0, rc = 0;
     double step = 1.0 / g->n;
     for (int j = 0; j < nmin && done < nmax && rc == 0; j++) {
         int i = idx[j];
-        if (f[i] - GAPS_REACH * neighbour_variation(g, f, i) >= b->v[q] - tol) continue;
+        if (f[i] - GAPS_REACH * neighbour_variation(g, f, i) >= b->v[q] - tol + slack) continue;
         if (plateau_repeat(g, f, i)) continue;
         double k0[3], k[3], v, lo, hi;
         bp_mesh_k(g, i, k0);
@@ -144,8 +145,8 @@ static int refine_quantity(bp_eval *e, const bp_mesh *g, const double *f, int *i
 }
 
 /* One mesh level: every mesh point bounds the extremes, then the three quantities are refined. */
-static int search_mesh(bp_eval *e, const bp_mesh *g, int nmax, double tol_k, double tol, gaps_best *b,
-                       gaps_ends ends[3], int *nrun, bs_err *err)
+static int search_mesh(bp_eval *e, const bp_mesh *g, int nmax, double tol_k, double tol,
+                       const double slack[3], gaps_best *b, gaps_ends ends[3], int *nrun, bs_err *err)
 {
     double *f = malloc((size_t)g->npts * sizeof *f);
     int *idx = malloc((size_t)g->npts * sizeof *idx);
@@ -159,14 +160,17 @@ static int search_mesh(bp_eval *e, const bp_mesh *g, int nmax, double tol_k, dou
     for (int q = 0; rc == 0 && q < 3; q++) {
         for (int i = 0; i < g->npts; i++)
             f[i] = q == 0 ? g->hi[i] - g->lo[i] : q == 1 ? -g->lo[i] : g->hi[i];
-        rc = refine_quantity(e, g, f, idx, q, nmax, tol_k, tol, b, &ends[q], nrun, err);
+        rc = refine_quantity(e, g, f, idx, q, nmax, tol_k, tol, slack[q], b, &ends[q], nrun, err);
     }
     free(f);
     free(idx);
     return rc;
 }
 
-int gaps_find_eval(bp_eval *e, const gaps_opts *o, gaps_result *out, bs_err *err)
+/* The search of gaps_find_eval with slack (per quantity, >= 0) added to the refinement threshold;
+ * leaves the refined basins' end points in ends (the caller frees them) and the best points in *best. */
+static int gaps_search(bp_eval *e, const gaps_opts *o, const double slack[3], gaps_result *out,
+                       gaps_best *best, gaps_ends ends[3], bs_err *err)
 {
     gaps_opts d;
     if (!o) {
@@ -198,9 +202,7 @@ int gaps_find_eval(bp_eval *e, const gaps_opts *o, gaps_result *out, bs_err *err
         emax = fmax(emax, g->hi[i]);
     }
     gaps_best b = {{INFINITY, INFINITY, INFINITY}, {{0}}};
-    gaps_ends ends[3];
-    memset(ends, 0, sizeof ends);
-    rc = search_mesh(e, g, nmax, tol_k, tol, &b, ends, &out->nbasins, err);
+    rc = search_mesh(e, g, nmax, tol_k, tol, slack, &b, ends, &out->nbasins, err);
     out->levels = 1;
     double change = INFINITY;
     /* Each further level is the coarse mesh displaced by half a step: a basin that fell between
@@ -212,7 +214,7 @@ int gaps_find_eval(bp_eval *e, const gaps_opts *o, gaps_result *out, bs_err *err
         const double *off = LEVEL_OFF[dim == 3 ? out->levels : LEVEL_2D[out->levels]];
         bp_mesh *h = NULL;
         rc = bp_mesh_eval_offset(e, g->n, off, &h, err);
-        if (rc == 0) rc = search_mesh(e, h, nmax, tol_k, tol, &b, ends, &out->nbasins, err);
+        if (rc == 0) rc = search_mesh(e, h, nmax, tol_k, tol, slack, &b, ends, &out->nbasins, err);
         bp_mesh_free(h);
         out->levels++;
         change = 0;
@@ -220,10 +222,7 @@ int gaps_find_eval(bp_eval *e, const gaps_opts *o, gaps_result *out, bs_err *err
             change = fmax(change, before[q] - b.v[q]);
         if (change <= tol) break;
     }
-    for (int q = 0; q < 3; q++) {
-        free(ends[q].k);
-        free(ends[q].v);
-    }
+    *best = b;
     for (int q = 0; q < 3; q++)
         for (int a = 0; a < 3; a++) {
             double x = a < dim ? b.k[q][a] - floor(b.k[q][a]) : 0.0;
@@ -252,6 +251,25 @@ int gaps_find_eval(bp_eval *e, const gaps_opts *o, gaps_result *out, bs_err *err
     return rc;
 }
 
+static void ends_free(gaps_ends ends[3])
+{
+    for (int q = 0; q < 3; q++) {
+        free(ends[q].k);
+        free(ends[q].v);
+    }
+}
+
+int gaps_find_eval(bp_eval *e, const gaps_opts *o, gaps_result *out, bs_err *err)
+{
+    const double none[3] = {0, 0, 0};
+    gaps_best b;
+    gaps_ends ends[3];
+    memset(ends, 0, sizeof ends);
+    int rc = gaps_search(e, o, none, out, &b, ends, err);
+    ends_free(ends);
+    return rc;
+}
+
 int gaps_find(const tb_model *m, hk_engine *hk, const gaps_opts *o, gaps_result *out, bs_err *err)
 {
     bp_eval *e = NULL;
@@ -259,6 +277,266 @@ int gaps_find(const tb_model *m, hk_engine *hk, const gaps_opts *o, gaps_result 
     if (rc == 0) rc = gaps_find_eval(e, o, out, err);
     bp_free(e);
     return rc;
+}
+
+/* Polishing on H from H_s's basins: the first fit's radius and the radius below which it stops,
+ * reduced units. The perturbation D = H - H_s moves a minimum by about |grad D| / curvature
+ * (~1e-3 of the zone for the fit noise of the tests), well inside the first stencil; one or two
+ * fits on a stencil of that size land on the minimum to ~1e-5 of the zone, where the value is
+ * converged far below GAPS_CONV_TOL_EV (quadratic in the distance). */
+#define GAPS_POLISH_STEP 0.02
+#define GAPS_POLISH_TOL  1e-3
+/* Candidates polished: the one with the lowest value on H at H_s's end point, then every other
+ * whose value there is within the tolerance plus this many times the largest polishing gain seen
+ * so far of the best value. The gain (the value at the end point less the polished one) is second
+ * order in D, much the same in basins of one band. */
+#define GAPS_POLISH_GAIN_FACTOR 4.0
+
+/* One candidate start on H for quantity q: the point and H's value there. */
+typedef struct gaps_cand {
+    double k[3], f;
+} gaps_cand;
+
+static int cand_cmp(const void *a, const void *b)
+{
+    double x = ((const gaps_cand *)a)->f, y = ((const gaps_cand *)b)->f;
+    return (x > y) - (x < y);
+}
+
+/* Starts for quantity q: every basin end of H_s within window of its best value (and the best
+ * point itself), each with its mirror -k unless k is a time-reversal-invariant momentum (H need
+ * not be even), with H's value there; into *out (caller frees), count in *n. */
+static int near_candidates(bp_eval *e, int q, const gaps_best *bs, const gaps_ends *ends, double window,
+                           gaps_cand **out, int *n, bs_err *err)
+{
+    int dim = bp_dim(e), cap = 2 * (ends->n + 1), nc = 0;
+    gaps_cand *c = malloc((size_t)cap * sizeof *c);
+    double *k = malloc((size_t)cap * 3 * sizeof *k), *lo = malloc((size_t)cap * sizeof *lo),
+           *hi = malloc((size_t)cap * sizeof *hi);
+    int rc = 0;
+    if (!c || !k || !lo || !hi) rc = bs_fail(err, BS_ENOMEM, "gaps: out of memory");
+    for (int i = -1; rc == 0 && i < ends->n; i++) {
+        const double *ki = i < 0 ? bs->k[q] : ends->k[i];
+        if (i >= 0 && ends->v[i] > bs->v[q] + window) continue;
+        for (int sgn = 1; sgn >= -1; sgn -= 2) {
+            double x[3] = {0, 0, 0};
+            for (int a = 0; a < dim; a++)
+                x[a] = sgn * ki[a];
+            /* One start per point: -k of a time-reversal-invariant momentum, and ends that the
+             * search reached from several starts or across the cell boundary, are the same. */
+            int seen = 0;
+            for (int t = 0; t < nc && !seen; t++)
+                seen = bp_kdist(dim, x, c[t].k) < 1e-9;
+            if (seen) continue;
+            memcpy(c[nc].k, x, sizeof x);
+            memcpy(k + 3 * nc, x, sizeof x);
+            nc++;
+        }
+    }
+    if (rc == 0) rc = bp_bands(e, nc, k, lo, hi, err);
+    for (int i = 0; rc == 0 && i < nc; i++)
+        c[i].f = q == 0 ? hi[i] - lo[i] : q == 1 ? -lo[i] : hi[i];
+    if (rc == 0) qsort(c, (size_t)nc, sizeof *c, cand_cmp);
+    free(k);
+    free(lo);
+    free(hi);
+    if (rc != 0) {
+        free(c);
+        return rc;
+    }
+    *out = c;
+    *n = nc;
+    return 0;
+}
+
+/* A point of H_s's mesh evaluated on H: its value there and its mesh index. */
+typedef struct gaps_plat {
+    double f;
+    int i;
+} gaps_plat;
+
+static int plat_cmp(const void *a, const void *b)
+{
+    double x = ((const gaps_plat *)a)->f, y = ((const gaps_plat *)b)->f;
+    return (x > y) - (x < y);
+}
+
+/* Plateaus: where H_s's band is flat to within the window, H's extreme can sit anywhere on it, far
+ * from H_s's basin ends (seen: a 4-state cubic fit whose conduction minimum on H lies 0.3 of the
+ * zone from every end point, 1 meV below them). Every point of H_s's first mesh g that could hold
+ * a value below limit (its value less GAPS_REACH times its neighbour variation, as the search
+ * judges basins), that could be a local minimum of H (no neighbour lower by more than flat, twice
+ * the shift of the quantity) and lies outside the basins H_s's search refined (1.5 mesh steps from every end
+ * point of quantity q and its mirror, as the search itself tells explored basins; those within
+ * the window were polished, the others cannot reach it) is evaluated on H; H's local minima among
+ * them (checked against H at all their mesh neighbours) are refined as the search refines its
+ * basins, those that could beat b first. */
+/* Whether mesh point i of f could be a local minimum once every value moves by up to flat / 2:
+ * none of its neighbours lies lower by more than flat. */
+static int near_minimum(const bp_mesh *g, const double *f, int i, double flat)
+{
+    int lim3 = g->dim == 3 ? 1 : 0;
+    for (int a = -1; a <= 1; a++)
+        for (int b = -1; b <= 1; b++)
+            for (int c = -lim3; c <= lim3; c++) {
+                int sh[3] = {a, b, c};
+                if (f[bp_mesh_shift(g, i, sh)] < f[i] - flat) return 0;
+            }
+    return 1;
+}
+
+static int plateau_starts(bp_eval *e, const bp_mesh *g, int q, double limit, double flat,
+                          const gaps_ends *ends, double tol, double tol_k, gaps_best *b, int *nrun,
+                          bs_err *err)
+{
+    int np = g->npts, ns = 0, rc = 0;
+    double step = 1.0 / g->n;
+    double *fs = malloc((size_t)np * sizeof *fs), *var = malloc((size_t)np * sizeof *var);
+    double *k = malloc((size_t)np * 3 * sizeof *k), *lo = malloc((size_t)np * sizeof *lo),
+           *hi = malloc((size_t)np * sizeof *hi);
+    int *pos = malloc((size_t)np * sizeof *pos);
+    gaps_plat *p = malloc((size_t)np * sizeof *p);
+    if (!fs || !var || !k || !lo || !hi || !pos || !p) rc = bs_fail(err, BS_ENOMEM, "gaps: out of memory");
+    for (int i = 0; rc == 0 && i < np; i++)
+        fs[i] = q == 0 ? g->hi[i] - g->lo[i] : q == 1 ? -g->lo[i] : g->hi[i];
+    for (int i = 0; rc == 0 && i < np; i++) {
+        var[i] = neighbour_variation(g, fs, i);
+        pos[i] = -1;
+        if (fs[i] - GAPS_REACH * var[i] > limit || !near_minimum(g, fs, i, flat)) continue;
+        bp_mesh_k(g, i, k + 3 * ns);
+        if (explored(ends, g->dim, k + 3 * ns, INFINITY, step, 1)) continue;
+        p[ns].i = i;
+        pos[i] = ns++;
+    }
+    if (rc == 0 && ns > 0) rc = bp_bands(e, ns, k, lo, hi, err);
+    for (int j = 0; rc == 0 && j < ns; j++) {
+        p[j].f = q == 0 ? hi[j] - lo[j] : q == 1 ? -lo[j] : hi[j];
+        best_update(b, k + 3 * j, lo[j], hi[j]);
+    }
+    /* pos[] indexes the unsorted list: H's values by mesh index before sorting. */
+    double *fh = malloc((size_t)(ns > 0 ? ns : 1) * sizeof *fh);
+    if (rc == 0 && !fh) rc = bs_fail(err, BS_ENOMEM, "gaps: out of memory");
+    for (int j = 0; rc == 0 && j < ns; j++)
+        fh[j] = p[j].f;
+    if (rc == 0) qsort(p, (size_t)ns, sizeof *p, plat_cmp);
+    int lim3 = g->dim == 3 ? 1 : 0;
+    for (int j = 0; rc == 0 && j < ns; j++) {
+        int i = p[j].i;
+        if (p[j].f - GAPS_REACH * var[i] >= b->v[q] - tol) continue;
+        /* A point no higher than the best so far starts a refinement whatever its neighbours (the
+         * minimiser can only go lower); any other only as a local minimum of H on the mesh, as the
+         * search's starts are: first among the points evaluated, then against H at every
+         * neighbour. */
+        if (p[j].f > b->v[q]) {
+            int is_min = 1;
+            for (int a = -1; a <= 1 && is_min; a++)
+                for (int bb = -1; bb <= 1 && is_min; bb++)
+                    for (int cc = -lim3; cc <= lim3 && is_min; cc++) {
+                        int sh[3] = {a, bb, cc}, nb = bp_mesh_shift(g, i, sh);
+                        if (nb != i && pos[nb] >= 0 && fh[pos[nb]] < p[j].f) is_min = 0;
+                    }
+            if (!is_min) continue;
+            double kn[27 * 3], ln[27], hn[27];
+            int nn = 0;
+            for (int a = -1; a <= 1; a++)
+                for (int bb = -1; bb <= 1; bb++)
+                    for (int cc = -lim3; cc <= lim3; cc++) {
+                        int sh[3] = {a, bb, cc}, nb = bp_mesh_shift(g, i, sh);
+                        if (nb != i) bp_mesh_k(g, nb, kn + 3 * nn++);
+                    }
+            rc = bp_bands(e, nn, kn, ln, hn, err);
+            for (int t = 0; rc == 0 && t < nn; t++) {
+                best_update(b, kn + 3 * t, ln[t], hn[t]);
+                if ((q == 0 ? hn[t] - ln[t] : q == 1 ? -ln[t] : hn[t]) < p[j].f) is_min = 0;
+            }
+            if (rc != 0 || !is_min) continue;
+        }
+        double k0[3], kk[3], v, l, h;
+        bp_mesh_k(g, i, k0);
+        rc = bp_minimise(e, q, k0, step, tol_k, kk, &v, &l, &h, err);
+        if (rc == 0) best_update(b, kk, l, h);
+        (*nrun)++;
+    }
+    free(fh);
+    free(fs);
+    free(var);
+    free(k);
+    free(lo);
+    free(hi);
+    free(pos);
+    free(p);
+    return rc;
+}
+
+int gaps_find_near(bp_eval *es, bp_eval *e, double shift_ev, const gaps_opts *o, gaps_result *out,
+                   bs_err *err)
+{
+    double t0 = bs_now();
+    /* Each band of H within shift_ev of H_s's: the direct gap within 2 shift_ev, the band edges
+     * within shift_ev; H's extreme lies where H_s's value is within twice that of H_s's best. */
+    const double dq[3] = {2 * shift_ev, shift_ev, shift_ev};
+    const double slack[3] = {2 * dq[0], 2 * dq[1], 2 * dq[2]};
+    gaps_best bs;
+    gaps_ends ends[3];
+    memset(ends, 0, sizeof ends);
+    gaps_result gs;
+    gaps_opts oo;
+    gaps_opts_init(&oo);
+    if (o) oo = *o;
+    bp_mesh *own = NULL;
+    int rc = 0;
+    if (!oo.grid) {
+        rc = bp_mesh_eval(es, oo.mesh > 0 ? oo.mesh : (bp_dim(es) == 3 ? 16 : 48), &own, err);
+        oo.grid = own;
+    }
+    if (rc == 0) rc = gaps_search(es, &oo, slack, &gs, &bs, ends, err);
+    long long c0 = bp_count(e);
+    if (rc == 0) *out = gs;
+    double tol = oo.conv_tol_ev > 0 ? oo.conv_tol_ev : GAPS_CONV_TOL_EV;
+    double tol_k = oo.tol_k > 0 ? oo.tol_k : 1e-6;
+    gaps_best b = {{INFINITY, INFINITY, INFINITY}, {{0}}};
+    for (int q = 0; q < 3 && rc == 0; q++) {
+        gaps_cand *c = NULL;
+        int nc = 0;
+        rc = near_candidates(e, q, &bs, &ends[q], slack[q], &c, &nc, err);
+        double gain = 0;
+        for (int i = 0; rc == 0 && i < nc; i++) {
+            if (i > 0 && c[i].f - tol - GAPS_POLISH_GAIN_FACTOR * gain >= b.v[q]) break;
+            double k[3], v, lo, hi;
+            rc = bp_minimise(e, q, c[i].k, GAPS_POLISH_STEP, GAPS_POLISH_TOL, k, &v, &lo, &hi, err);
+            if (rc == 0) best_update(&b, k, lo, hi);
+            gain = fmax(gain, c[i].f - v);
+            out->nbasins++;
+        }
+        if (rc == 0)
+            rc = plateau_starts(e, oo.grid, q, bs.v[q] + slack[q], 2 * dq[q], &ends[q], tol, tol_k, &b,
+                                &out->nbasins, err);
+        free(c);
+    }
+    ends_free(ends);
+    bp_mesh_free(own);
+    if (rc != 0) return rc;
+    const double fs[3] = {gs.gap_direct_ev, -gs.vbm_ev, gs.cbm_ev};
+    out->shift_ev = 0;
+    for (int q = 0; q < 3; q++) {
+        out->shift_ev = fmax(out->shift_ev, fabs(b.v[q] - fs[q]) / (q == 0 ? 2.0 : 1.0));
+        for (int a = 0; a < 3; a++) {
+            double x = a < bp_dim(e) ? b.k[q][a] - floor(b.k[q][a]) : 0.0;
+            b.k[q][a] = x >= 1.0 ? 0.0 : x;
+        }
+    }
+    out->gap_direct_ev = b.v[0];
+    out->vbm_ev = -b.v[1];
+    out->cbm_ev = b.v[2];
+    memcpy(out->k_direct, b.k[0], sizeof out->k_direct);
+    memcpy(out->k_vbm, b.k[1], sizeof out->k_vbm);
+    memcpy(out->k_cbm, b.k[2], sizeof out->k_cbm);
+    out->gap_indirect_ev = out->cbm_ev - out->vbm_ev;
+    out->metallic = out->gap_indirect_ev < BS_GAP_CLOSED_EV;
+    out->closed = out->gap_direct_ev < BS_GAP_CLOSED_EV;
+    out->nk_evaluated = bp_count(e) - c0;
+    out->seconds = bs_now() - t0;
+    return 0;
 }
 
 void gaps_merge_nodes(gaps_result *g, const nodes_result *r)
