@@ -348,8 +348,9 @@ static int incoherent(const symfit_break *b)
  * so found is at least SYMFIT_MARGIN_SAFE delta (the margin of a class built on the restored
  * symmetry without reservation), wide enough that no node search is due, the search converged,
  * and no band at an extreme moved by more than delta / 2 (what the bound allows); otherwise the
- * search runs on H as given (fallback), and H_s's eigensolves were spent for nothing (at most its
- * first mesh when that mesh already shows a thin margin). Returns 1 when c->gaps was filled this
+ * search runs on H as given (fallback), and H_s's eigensolves were spent for nothing (only eight
+ * when those at the time-reversal-invariant momenta already show a thin margin, one mesh when the
+ * mesh does). Returns 1 when c->gaps was filled this
  * way, 0 for the fallback, or an error code. */
 static int gaps_symmetric(diag_ctx *c, res_diag *r, bs_err *err)
 {
@@ -377,21 +378,33 @@ static int gaps_symmetric(diag_ctx *c, res_diag *r, bs_err *err)
     bp_mesh *g = NULL;
     rc = hk_create(ms, diag_batch(ms->norb), &hk, err);
     if (rc == 0) rc = bp_create_dist(ms, hk, c->o ? c->o->dist : NULL, c->deadline, &e, err);
-    if (rc == 0) {
-        bp_set_even(e, 1);
-        rc = bp_mesh_eval(e, r->mesh, &g, err);
-    }
-    /* The mesh's smallest direct gap, and its indirect gap, bound H_s's from above: below the
+    /* Any k's direct gap, and the indirect gap of any set of k, bound H_s's from above: below the
      * margin already, the rest of the search here would be spent for nothing (a thin margin, a
      * metal; where bands overlap or nearly so, many basins fall within the slack of
-     * gaps_find_near). */
+     * gaps_find_near). First the eight time-reversal-invariant momenta, where band edges usually
+     * sit (on an even mesh they are mesh points, taken from the band pair's cache), then the mesh. */
+    double trim[8 * 3], tlo[8], thi[8];
+    for (int t = 0; t < 8; t++)
+        for (int a = 0; a < 3; a++)
+            trim[3 * t + a] = 0.5 * ((t >> a) & 1);
+    if (rc == 0) {
+        bp_set_even(e, 1);
+        rc = bp_bands(e, 8, trim, tlo, thi, err);
+    }
     double mesh_gap = INFINITY, vbm = -INFINITY, cbm = INFINITY;
-    for (int i = 0; rc == 0 && i < g->npts; i++) {
+    for (int t = 0; rc == 0 && t < 8; t++) {
+        mesh_gap = fmin(mesh_gap, thi[t] - tlo[t]);
+        vbm = fmax(vbm, tlo[t]);
+        cbm = fmin(cbm, thi[t]);
+    }
+    int hopeless = rc == 0 && fmin(mesh_gap, cbm - vbm) < SYMFIT_MARGIN_SAFE * delta;
+    if (rc == 0 && !hopeless) rc = bp_mesh_eval(e, r->mesh, &g, err);
+    for (int i = 0; rc == 0 && g && i < g->npts; i++) {
         mesh_gap = fmin(mesh_gap, g->hi[i] - g->lo[i]);
         vbm = fmax(vbm, g->lo[i]);
         cbm = fmin(cbm, g->hi[i]);
     }
-    int hopeless = rc == 0 && fmin(mesh_gap, cbm - vbm) < SYMFIT_MARGIN_SAFE * delta;
+    hopeless = hopeless || (rc == 0 && fmin(mesh_gap, cbm - vbm) < SYMFIT_MARGIN_SAFE * delta);
     if (rc == 0 && !hopeless) {
         gaps_opts go;
         gaps_opts_init(&go);
