@@ -33,10 +33,11 @@ struct hk_engine {
     int nhalf; /* lattice vectors in the half set (R = 0 excluded) */
     int ncol;  /* 1 + 2 nhalf */
     int max_batch;
-    double *Rhalf;  /* nhalf x 3 lattice vectors as doubles */
-    double *coef;   /* (2 npair) x ncol, column-major */
-    double *phase;  /* ncol x (4 max_batch) */
-    double *packed; /* (2 npair) x (4 max_batch) */
+    int nblock_alloc; /* blocks per k-point the batch buffers hold: 1 (H), 4 once derivatives are asked */
+    double *Rhalf;    /* nhalf x 3 lattice vectors as doubles */
+    double *coef;     /* (2 npair) x ncol, column-major */
+    double *phase;    /* ncol x (nblock_alloc max_batch) */
+    double *packed;   /* (2 npair) x (nblock_alloc max_batch) */
     /* Set only on engines made by hk_reduce: where each source column goes. */
     int axis; /* fixed axis, -1 for a full engine */
     int src_ncol;
@@ -96,8 +97,9 @@ int hk_create(const tb_model *m, int max_batch, hk_engine **out, bs_err *err)
     size_t rows = 2 * (size_t)e->npair;
     e->Rhalf = calloc((size_t)e->nhalf * 3 + 1, sizeof *e->Rhalf);
     e->coef = calloc(rows * e->ncol, sizeof *e->coef);
-    e->phase = calloc((size_t)e->ncol * 4 * max_batch, sizeof *e->phase);
-    e->packed = calloc(rows * 4 * max_batch, sizeof *e->packed);
+    e->nblock_alloc = 1;
+    e->phase = calloc((size_t)e->ncol * max_batch, sizeof *e->phase);
+    e->packed = calloc(rows * max_batch, sizeof *e->packed);
     if (!e->Rhalf || !e->coef || !e->phase || !e->packed) {
         hk_free(e);
         return bs_fail(err, BS_ENOMEM, "out of memory for the H(k) coefficient table (%d states, %d R)",
@@ -210,8 +212,9 @@ int hk_reduce(const hk_engine *src, int axis, double kval, int max_batch, hk_eng
     free(sign);
     size_t rows = 2 * (size_t)e->npair;
     e->coef = calloc(rows * e->ncol, sizeof *e->coef);
-    e->phase = calloc((size_t)e->ncol * 4 * max_batch, sizeof *e->phase);
-    e->packed = calloc(rows * 4 * max_batch, sizeof *e->packed);
+    e->nblock_alloc = 1;
+    e->phase = calloc((size_t)e->ncol * max_batch, sizeof *e->phase);
+    e->packed = calloc(rows * max_batch, sizeof *e->packed);
     if (!e->coef || !e->phase || !e->packed) {
         hk_free(e);
         return bs_fail(err, BS_ENOMEM, "out of memory for a reduced H(k) engine");
@@ -304,6 +307,19 @@ static int run_batch(hk_engine *e, int nk, const double *k, int nblock, bs_err *
 {
     if (nk < 0 || nk > e->max_batch)
         return bs_fail(err, BS_EINVAL, "batch of %d k-points exceeds the engine's %d", nk, e->max_batch);
+    if (nblock > e->nblock_alloc) {
+        /* The derivative blocks (three more per k-point) are allocated on first use: most engines
+         * never build dH/dk, and at 128 states a batch of 64 is 34 MB per block. */
+        size_t cols = (size_t)nblock * e->max_batch;
+        double *phase = realloc(e->phase, (size_t)e->ncol * cols * sizeof *phase);
+        if (phase) e->phase = phase;
+        double *packed = phase ? realloc(e->packed, 2 * (size_t)e->npair * cols * sizeof *packed) : NULL;
+        if (!phase || !packed)
+            return bs_fail(err, BS_ENOMEM, "out of memory for the H(k) derivative buffers (%d states)",
+                           e->norb);
+        e->packed = packed;
+        e->nblock_alloc = nblock;
+    }
     fill_phases(e, nk, k, nblock);
     int rows = 2 * e->npair;
     cblas_dgemm(CblasColMajor, CblasNoTrans, CblasNoTrans, rows, nblock * nk, e->ncol, 1.0, e->coef, rows,

@@ -98,6 +98,39 @@ static void test_batched_matches_direct_sum(void **state)
     tb_model_free(m);
 }
 
+/* The derivative buffers grow on first use: a full batch of values, then a full batch with
+ * derivatives, then values again on the same engine must each equal the direct sum over R. */
+static void test_batches_before_and_after_derivatives(void **state)
+{
+    (void)state;
+    int norb = 6, nk = 4;
+    tb_model *m = random_model(norb, 4242);
+    bs_err err;
+    bs_err_clear(&err);
+    hk_engine *e = NULL;
+    assert_int_equal(hk_create(m, nk, &e, &err), 0);
+    size_t nn = (size_t)norb * norb;
+    double k[12] = {0.1, 0.2, 0.3, -0.4, 0.05, 0.25, 0.5, 0.5, 0.0, 0.33, -0.21, 0.17};
+    double complex *H = malloc(nk * nn * sizeof *H), *dH = malloc(3 * nk * nn * sizeof *dH);
+    double complex *Hd = malloc(nn * sizeof *Hd);
+    for (int pass = 0; pass < 3; pass++) {
+        if (pass == 1)
+            assert_int_equal(hk_build_deriv(e, nk, k, H, dH, &err), 0);
+        else
+            assert_int_equal(hk_build(e, nk, k, H, &err), 0);
+        for (int j = 0; j < nk; j++) {
+            hk_build_direct(m, k + 3 * j, Hd);
+            for (size_t p = 0; p < nn; p++)
+                assert_true(cabs(H[j * nn + p] - Hd[p]) < 1e-12);
+        }
+    }
+    free(H);
+    free(dH);
+    free(Hd);
+    hk_free(e);
+    tb_model_free(m);
+}
+
 static void test_derivative_matches_finite_difference(void **state)
 {
     (void)state;
@@ -235,6 +268,7 @@ int main(void)
     const struct CMUnitTest tests[] = {
         cmocka_unit_test(test_batched_matches_direct_sum),
         cmocka_unit_test(test_derivative_matches_finite_difference),
+        cmocka_unit_test(test_batches_before_and_after_derivatives),
         cmocka_unit_test(test_reduced_engines_match_direct_sum),
         cmocka_unit_test(test_line_cache_matches_direct_sum),
     };
