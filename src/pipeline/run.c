@@ -72,20 +72,21 @@ typedef struct wire_work {
 
 /* Materials a worker may hold beyond the one it computes. While its materials take under
  * PL_PREFETCH_SECONDS, one more: the round trip to the coordinator (up to a millisecond under
- * load) is then hidden; for materials shorter than PL_PREFETCH_COVER, enough to cover that
- * time, up to PL_PREFETCH_MAX, so that the coordinator takes several results per wake-up. Longer
+ * load) is then hidden; for materials shorter than PL_PREFETCH_COVER, enough to fill that
+ * time, up to PL_PREFETCH_MAX, so that the coordinator can sleep a few milliseconds (on a loaded
+ * machine it may wake late) and take several results per wake-up. Longer
  * materials gain nothing from it and would only wait in a queue at the end of the job, so they are
  * handed out one at a time; so is a worker's first material. */
-enum { PL_PREFETCH_MAX = 16 };
+enum { PL_PREFETCH_MAX = 32 };
 #define PL_PREFETCH_SECONDS 0.25
-#define PL_PREFETCH_COVER   4e-3
+#define PL_PREFETCH_COVER   20e-3
 
 /* Messages taken per round, and the coordinator's sleeps between polls (microseconds). */
 enum { PL_ROUND = 64, PL_NAP_MIN_US = 100, PL_NAP_MAX_US = 500, PL_NAP_LONG_US = 4000 };
 
 /* The send times a worker keeps, by seq modulo this, to know how long a material waited in its
  * queue; more than it can hold. */
-enum { PL_SENT_RING = 8 };
+enum { PL_SENT_RING = PL_PREFETCH_MAX + 4 };
 
 typedef struct coord {
     const pl_opts *o;
@@ -911,8 +912,9 @@ static int send_replies(coord *c, const reply *rs, int n, bs_err *err)
     return rc;
 }
 
-/* The sleep while no worker is hungry (each holds its depth): half of the shortest queue of work
- * beyond the material in hand, as estimated from each worker's last material, but at least
+/* The sleep while no worker is hungry (each holds more than half its depth): a quarter of the
+ * shortest queue of work beyond the material in hand (a quarter: on a loaded machine the
+ * coordinator may wake late), as estimated from each worker's last material, but at least
  * PL_NAP_MAX_US (a worker of materials of 0.25 s or more holds one and waits for the reply that
  * long, 0.2% of its time) and at most PL_NAP_LONG_US. */
 static long coord_nap_us(const coord *c, int size)
@@ -920,7 +922,7 @@ static long coord_nap_us(const coord *c, int size)
     double least = PL_NAP_LONG_US * 1e-6;
     for (int r = 1; r < size; r++) {
         if (c->depth[r] <= 0 || c->held[r] <= 0) continue; /* gone, or a group member */
-        double queued = (c->held[r] - 1) * c->last_seconds[r] * 0.5;
+        double queued = (c->held[r] - 1) * c->last_seconds[r] * 0.25;
         if (queued < least) least = queued;
     }
     long us = (long)(least * 1e6);
