@@ -10,7 +10,8 @@ Figures (each best of --repeat runs; the machine may be shared, so the ratios ar
   * catalogue views on a synthetic catalogue of N materials and 1.1 N results (every material in
     one screen run, every tenth again in a rescreen at a higher mesh, every 50th failed), each
     catalogue made by its own binary so that it has that version's views and indexes: one
-    material's summary row, the full summary, candidates, failures, run_progress;
+    material's summary row, the full summary and candidates (every column of each program's view,
+    and the old program's columns selected by name from both), failures, run_progress;
   * the coordinator's CPU time per result (`screen` with 1 coordinator and 2 workers on a set of
     entries that cost a worker one read each), as results per second of coordinator CPU;
   * `inspect` of a 64-state model: CPU time (user + system) and wall time with the default
