@@ -10,11 +10,18 @@ Figures (each best of --repeat runs; the machine may be shared, so the ratios ar
   * catalogue views on a synthetic catalogue of N materials and 1.1 N results (every material in
     one screen run, every tenth again in a rescreen at a higher mesh, every 50th failed), each
     catalogue made by its own binary so that it has that version's views and indexes: one
-    material's summary row, the full summary, candidates, failures, run_progress;
+    material's summary row, the full summary and candidates (every column of each program's view,
+    and the old program's columns selected by name from both), failures, run_progress;
   * the coordinator's CPU time per result (`screen` with 1 coordinator and 2 workers on a set of
     entries that cost a worker one read each), as results per second of coordinator CPU;
   * `inspect` of a 64-state model: CPU time (user + system) and wall time with the default
-    settings, and with two BLAS threads.
+    settings, and with two BLAS threads;
+  * workers' busy fraction on materials of about 1 ms (`screen` with 1 coordinator and 2 workers,
+    and with 1 worker): the same set of error entries, with bench/busy_preload.c loaded into every
+    rank (LD_PRELOAD; nothing in the program knows of it) so that each worker spends
+    --busy-us microseconds of CPU in a loop whenever it opens a material; the fraction is the sum of
+    the workers' seconds per material (as the catalogue records them) over the run's wall time
+    (runs.started to runs.ended) times the number of workers.
 The synthetic rows and the 64-state model are invented test data (no physics).
 """
 import argparse
@@ -169,10 +176,19 @@ def rescreen_setup(binary, work, set_path, cat, repeat):
     return best
 
 
+# The columns that the old program's summary has (new ones came later: content, current, contents,
+# the symmetry columns): selected by name from both, the two print the same rows and columns.
+OLD_SUMMARY_COLUMNS = ("material_id, formula, dimension, status, class, confidence, gap_direct_ev, "
+                       "gap_indirect_ev, z2, chern, plane_chern, n_weyl, net_chirality, nodal_line, "
+                       "nontrivial, mesh, run_id, finished, reason, message, ahc_xy, ahc_yz, ahc_zx, "
+                       "ahc_units, shc_xy, shc_units")
+
 QUERIES = [
     ("summary, one material", "SELECT * FROM summary WHERE material_id = 's{mid:07d}';"),
     ("summary, all rows", "SELECT * FROM summary;"),
     ("candidates", "SELECT * FROM candidates;"),
+    ("summary, all rows, same columns", f"SELECT {OLD_SUMMARY_COLUMNS} FROM summary;"),
+    ("candidates, same columns", f"SELECT {OLD_SUMMARY_COLUMNS}, why FROM candidates;"),
     ("failures", "SELECT * FROM failures;"),
     ("run_progress", "SELECT * FROM run_progress;"),
     ("rescreen --where selection", "SELECT material_id FROM summary WHERE (confidence < 0.6);"),
@@ -213,6 +229,45 @@ def coordinator_rate(binary, work, set_path, n, repeat):
         f = lines[-1].split()
         cpu = float(f[1]) + float(f[2])
         best = max(best, n / cpu)
+    return best
+
+
+def build_busy_preload(work):
+    so = os.path.join(work, "busy_preload.so")
+    if not os.path.exists(so):
+        cc = os.environ.get("CC", "cc")
+        run([cc, "-O2", "-shared", "-fPIC", "-o", so,
+             os.path.join(os.path.dirname(os.path.abspath(__file__)), "busy_preload.c"), "-ldl"])
+    return so
+
+
+def busy_fraction(binary, work, set_path, workers, busy_us, preload, repeat):
+    """Best of repeat: (fraction of the workers' wall time spent on materials, per-worker fractions,
+    mean seconds per material, run wall seconds)."""
+    import sqlite3
+    env = dict(ENV, LD_PRELOAD=preload, BS_BENCH_BUSY_US=str(busy_us))
+    best = None
+    for _ in range(repeat):
+        cat = os.path.join(work, "busy.sqlite")
+        for f in os.listdir(work):
+            if f.startswith("busy.sqlite"):
+                os.remove(os.path.join(work, f))
+        args = ["mpirun", "--oversubscribe", "-n", "1", binary, "screen", set_path, "-c", cat, ":",
+                "-n", str(workers), binary, "screen", set_path, "-c", cat]
+        # Exit status 1 says "some entries invalid" (all are here); what counts is a finished run.
+        p = run(args, env=env, check=False)
+        con = sqlite3.connect(cat) if os.path.exists(cat) else None
+        row_ = con.execute("SELECT (julianday(ended) - julianday(started)) * 86400 FROM runs"
+                           " WHERE ended IS NOT NULL").fetchone() if con else None
+        if not row_:
+            sys.exit(f"bench_scale: busy run failed:\n{p.stderr[-2000:]}")
+        wall_s = row_[0]
+        per = [r[0] / wall_s for r in con.execute("SELECT SUM(seconds) FROM results GROUP BY rank ORDER BY rank")]
+        mean = con.execute("SELECT AVG(seconds) FROM results").fetchone()[0]
+        con.close()
+        frac = sum(per) / workers
+        if best is None or frac > best[0]:
+            best = (frac, per, mean, wall_s)
     return best
 
 
@@ -282,7 +337,9 @@ def main():
     ap.add_argument("--repeat", type=int, default=3)
     ap.add_argument("--coord-n", type=int, default=20000, help="entries of the coordinator run")
     ap.add_argument("--work", default=None)
-    ap.add_argument("--skip", default="", help="comma list of parts to skip: setup,views,coord,inspect")
+    ap.add_argument("--busy-us", type=int, default=1000, help="CPU microseconds per material of the busy part")
+    ap.add_argument("--busy-n", type=int, default=10000, help="entries of the busy part")
+    ap.add_argument("--skip", default="", help="comma list of parts to skip: setup,views,coord,busy,inspect")
     a = ap.parse_args()
     new = os.path.join(a.build, "bandsieve")
     bench_set = os.path.join(a.build, "bench", "bench_scale_set")
@@ -348,6 +405,21 @@ def main():
         r = rates[0][1]
         print("workers one coordinator core feeds (new): "
               + ", ".join(f"{s:g} s materials {r * s:.3g}" for s in (0.1, 1, 10)), flush=True)
+    if "busy" not in skip:
+        log("workers' busy fraction")
+        set_path = os.path.join(work, f"set_{a.busy_n}.h5")
+        make_set(bench_set, set_path, a.busy_n)
+        preload = build_busy_preload(work)
+        for workers in (2, 1):
+            vals = []
+            for tag, b in bins:
+                frac, per, mean, wall_s = busy_fraction(b, work, set_path, workers, a.busy_us, preload, a.repeat)
+                vals.append((tag, frac))
+                print(f"workers busy, {workers} worker(s), {a.busy_us} us CPU per material: {tag} {frac:.3f} "
+                      f"(per worker {', '.join(f'{x:.3f}' for x in per)}; {mean * 1e3:.2f} ms per material; "
+                      f"run {wall_s:.2f} s)", flush=True)
+            row(f"workers busy fraction, {workers} worker(s)", vals, "", better_high=True)
+        print(f"load average at the end of the busy part: {os.getloadavg()[0]:.1f}", flush=True)
     if "inspect" not in skip:
         log("inspect n = 64")
         card = write_model64(work)

@@ -123,7 +123,7 @@ CREATE TABLE results (
     UNIQUE (run_id, material_id)
 );
 
--- The indexes the views rely on are created by views.sql (results_pick, results_failed, ...).
+-- The indexes the views rely on are created by views.sql (results_best, results_failed, ...).
 
 CREATE TABLE nodes (
     run_id      INTEGER NOT NULL,

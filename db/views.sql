@@ -12,9 +12,16 @@ DROP VIEW IF EXISTS run_progress;
 
 -- Access paths of the views (db/README.md, "Query plans"). Created here rather than in schema.sql
 -- so that cat_open brings them to catalogues made by an older version too.
--- results_pick: one material's rows with the keys that choose its summary row, so the choice
--- reads the index only (covering); it supersedes the (material_id, status) index of version 1.
-CREATE INDEX IF NOT EXISTS results_pick ON results (material_id, status, mesh, run_id, content);
+-- results_best: one material's rows by content, then in the order that chooses its summary row
+-- (ok first, the ok row's mesh, run_id: the expressions of the summary subquery's ORDER BY), so
+-- the choice among the current content's rows is the last entry of one index range, read without
+-- a sort; status and mesh at the end make it covering for failures' resolved and the best-mesh
+-- look-up of the set-up. It supersedes results_pick (material_id, status, mesh, run_id, content),
+-- whose choice sorted each material's rows in a temporary b-tree, and version 1's
+-- (material_id, status) index: one index entry per row, as before.
+CREATE INDEX IF NOT EXISTS results_best ON results (material_id, content, (status = 'ok'),
+    (CASE WHEN status = 'ok' THEN mesh END), run_id, status, mesh);
+DROP INDEX IF EXISTS results_pick;
 DROP INDEX IF EXISTS results_material;
 -- results_failed: the rows that are not 'ok' (a few percent), in the failures view's order.
 CREATE INDEX IF NOT EXISTS results_failed ON results (run_id, material_id) WHERE status <> 'ok';
@@ -29,7 +36,7 @@ CREATE INDEX IF NOT EXISTS results_shc ON results (material_id, mesh, run_id)
 -- (highest mesh among status 'ok', latest run on ties), else the latest row. Only when no row is
 -- about the current content does an older content's row show, with current = 0 (to be redone).
 -- contents > 1 says results of other contents exist for this id (view conflicts lists them).
--- The row is chosen by a correlated subquery over that material's rows (results_pick) rather
+-- The row is chosen by a correlated subquery over that material's rows (results_best) rather
 -- than a window over the whole table, so a filter on the view reaches the base table: one
 -- material costs an index look-up and the whole view is linear in the rows returned.
 -- (run_id, material_id) is unique, so run_id settles every tie.

@@ -6,7 +6,10 @@
  * records the results in the catalogue. Between rounds it polls with MPI_Iprobe and sleeps,
  * because Open MPI's blocking receives spin (with P = cores + 1 the coordinator must leave its
  * core to a worker); the sleep doubles from PL_NAP_MIN_US while nothing arrives, up to
- * PL_NAP_MAX_US, so an idle coordinator wakes about 2,000 times a second and a busy one at once. */
+ * PL_NAP_MAX_US while some worker waits for work. While every worker holds all it may, the sleep
+ * is half the work the least supplied worker has queued (coord_nap_us), up to PL_NAP_LONG_US: each
+ * empty poll costs the coordinator two context switches (Open MPI yields the core in MPI_Iprobe
+ * when ranks outnumber cores, then the sleep), so it polls about as often as results can come. */
 #include "bandsieve/pipeline.h"
 
 #include <mpi.h>
@@ -69,20 +72,21 @@ typedef struct wire_work {
 
 /* Materials a worker may hold beyond the one it computes. While its materials take under
  * PL_PREFETCH_SECONDS, one more: the round trip to the coordinator (up to a millisecond under
- * load) is then hidden; for materials shorter than PL_PREFETCH_COVER, enough to cover that
- * time, up to PL_PREFETCH_MAX, so that the coordinator takes several results per wake-up. Longer
+ * load) is then hidden; for materials shorter than PL_PREFETCH_COVER, enough to fill that
+ * time, up to PL_PREFETCH_MAX, so that the coordinator can sleep a few milliseconds (on a loaded
+ * machine it may wake late) and take several results per wake-up. Longer
  * materials gain nothing from it and would only wait in a queue at the end of the job, so they are
  * handed out one at a time; so is a worker's first material. */
-enum { PL_PREFETCH_MAX = 4 };
+enum { PL_PREFETCH_MAX = 32 };
 #define PL_PREFETCH_SECONDS 0.25
-#define PL_PREFETCH_COVER   1e-3
+#define PL_PREFETCH_COVER   20e-3
 
 /* Messages taken per round, and the coordinator's sleeps between polls (microseconds). */
-enum { PL_ROUND = 16, PL_NAP_MIN_US = 100, PL_NAP_MAX_US = 500 };
+enum { PL_ROUND = 64, PL_NAP_MIN_US = 100, PL_NAP_MAX_US = 500, PL_NAP_LONG_US = 4000 };
 
 /* The send times a worker keeps, by seq modulo this, to know how long a material waited in its
  * queue; more than it can hold. */
-enum { PL_SENT_RING = 8 };
+enum { PL_SENT_RING = PL_PREFETCH_MAX + 4 };
 
 typedef struct coord {
     const pl_opts *o;
@@ -103,11 +107,12 @@ typedef struct coord {
     int lock_fd;   /* CAT.sqlite.lock, held with flock for the whole job; -1 when none */
     int lock_held; /* this job holds the lock: it removes the file at the end */
     char lock_path[4096];
-    pl_journal *journal; /* CAT.sqlite.journal: hand-outs and outcomes */
-    int *held;           /* per world rank: materials sent and not yet answered */
-    int *depth;          /* per world rank: how many it may hold (1 + a prefetch for short materials) */
+    pl_journal *journal;  /* CAT.sqlite.journal: hand-outs and outcomes */
+    int *held;            /* per world rank: materials sent and not yet answered */
+    int *depth;           /* per world rank: how many it may hold (1 + a prefetch for short materials) */
+    double *last_seconds; /* per world rank: its last material's seconds, 0 before the first */
     unsigned char *holds_suspect; /* per world rank: it holds a suspect (and nothing else) */
-    int hungry;                   /* requesting ranks that hold fewer materials than their depth */
+    int hungry;                   /* requesting ranks that hold half their depth or less */
     cat_ids suspects;             /* ids lost once in an earlier session of this run (give_up_lost) */
     int *susp;                    /* work-list positions of the suspects, in cost order */
     int nsusp, susp_left;         /* how many; how many not yet handed out */
@@ -856,11 +861,12 @@ typedef struct reply {
 static int plan_replies(coord *c, const msg_in *m, int rc, reply *out, int *nout, int *active)
 {
     int r = m->from;
-    int was_hungry = c->held[r] < c->depth[r];
+    int was_hungry = c->held[r] <= c->depth[r] / 2;
     if (m->kind == 1) {
         if (c->held[r] > 0) c->held[r]--;
         c->holds_suspect[r] = 0; /* it held the suspect alone: this was its outcome */
         double t = m->out.seconds;
+        c->last_seconds[r] = t > 0 ? t : 0;
         int extra = t >= PL_PREFETCH_SECONDS ? 0
                     : t >= PL_PREFETCH_COVER ? 1
                                              : (int)ceil(PL_PREFETCH_COVER / (t > 1e-6 ? t : 1e-6));
@@ -868,8 +874,11 @@ static int plan_replies(coord *c, const msg_in *m, int rc, reply *out, int *nout
     }
     /* While suspects wait, workers hold one material at a time, so that they soon hold none. */
     int want = c->susp_left > 0 || c->holds_suspect[r] ? 1 : c->depth[r];
+    /* Refilled only once it holds half its depth or less, so that the materials of a deep queue
+     * go out several to a round rather than one per result. */
+    int refill = c->held[r] <= want / 2;
     /* After a catalogue error nothing more is handed out: results could not be kept. */
-    while (rc == 0 && c->held[r] < want) {
+    while (rc == 0 && refill && c->held[r] < want) {
         reply *p = &out[*nout];
         if (!coord_next(c, r, &p->w)) break;
         p->to = r;
@@ -886,7 +895,7 @@ static int plan_replies(coord *c, const msg_in *m, int rc, reply *out, int *nout
         (*active)--;
         c->depth[r] = 0; /* gone: never hungry again */
     }
-    c->hungry += (c->held[r] < c->depth[r]) - was_hungry;
+    c->hungry += (c->depth[r] > 0 && c->held[r] <= c->depth[r] / 2) - was_hungry;
     return stop;
 }
 
@@ -903,6 +912,23 @@ static int send_replies(coord *c, const reply *rs, int n, bs_err *err)
     return rc;
 }
 
+/* The sleep while no worker is hungry (each holds more than half its depth): a quarter of the
+ * shortest queue of work beyond the material in hand (a quarter: on a loaded machine the
+ * coordinator may wake late), as estimated from each worker's last material, but at least
+ * PL_NAP_MAX_US (a worker of materials of 0.25 s or more holds one and waits for the reply that
+ * long, 0.2% of its time) and at most PL_NAP_LONG_US. */
+static long coord_nap_us(const coord *c, int size)
+{
+    double least = PL_NAP_LONG_US * 1e-6;
+    for (int r = 1; r < size; r++) {
+        if (c->depth[r] <= 0 || c->held[r] <= 0) continue; /* gone, or a group member */
+        double queued = (c->held[r] - 1) * c->last_seconds[r] * 0.25;
+        if (queued < least) least = queued;
+    }
+    long us = (long)(least * 1e6);
+    return us < PL_NAP_MAX_US ? PL_NAP_MAX_US : us;
+}
+
 /* Coordinator loop with worker ranks 1..size-1, in rounds (see the top of this file): receive what
  * is waiting, plan the replies, write the journal (the outcomes received and the hand-outs, before
  * the work leaves), send, then record the outcomes while the workers compute. */
@@ -911,10 +937,11 @@ static int run_coordinator(coord *c, int size, bs_err *err)
     int active = c->nworkers, rc = 0;
     c->held = calloc((size_t)size, sizeof *c->held);
     c->depth = malloc((size_t)size * sizeof *c->depth);
+    c->last_seconds = calloc((size_t)size, sizeof *c->last_seconds);
     c->holds_suspect = calloc((size_t)size, 1);
     msg_in *msgs = calloc(PL_ROUND, sizeof *msgs);
     reply *replies = malloc(PL_ROUND * (size_t)(2 + PL_PREFETCH_MAX) * sizeof *replies);
-    if (!c->held || !c->depth || !c->holds_suspect || !msgs || !replies) {
+    if (!c->held || !c->depth || !c->last_seconds || !c->holds_suspect || !msgs || !replies) {
         free(msgs);
         free(replies);
         return bs_fail(err, BS_ENOMEM, "out of memory for the coordinator");
@@ -936,10 +963,10 @@ static int run_coordinator(coord *c, int size, bs_err *err)
         }
         if (mrc != 0) break;
         if (n == 0) {
-            /* While every worker holds all it may, the next result is no hurry: each has at least
-             * one more material to compute (its prefetch covers the longest sleep). */
-            if (c->hungry == 0) nap_us = PL_NAP_MAX_US;
-            const struct timespec nap = {0, nap_us * 1000};
+            /* While every worker holds all it may, the next result is no hurry: each has more
+             * material queued than the sleep (coord_nap_us). */
+            long us = c->hungry == 0 ? coord_nap_us(c, size) : nap_us;
+            const struct timespec nap = {us / 1000000, (us % 1000000) * 1000};
             nanosleep(&nap, NULL);
             if (nap_us < PL_NAP_MAX_US) nap_us = nap_us * 2 < PL_NAP_MAX_US ? nap_us * 2 : PL_NAP_MAX_US;
             if (rc == 0) rc = cat_flush_if_due(c->cat, err);
@@ -962,6 +989,14 @@ static int run_coordinator(coord *c, int size, bs_err *err)
         }
         if (rc == 0) rc = cat_flush_if_due(c->cat, err);
         coord_tick(c, 0);
+        if (mrc == 0 && n < PL_ROUND && c->hungry == 0 && active > 0) {
+            /* Every worker has work queued: sleep before the next poll, so that the next round
+             * takes the results of that time together (one journal write, one poll) rather
+             * than one result each as they trickle in. */
+            long us = coord_nap_us(c, size);
+            const struct timespec nap = {us / 1000000, (us % 1000000) * 1000};
+            nanosleep(&nap, NULL);
+        }
     }
     for (int i = 0; i < PL_ROUND; i++)
         pl_outcome_clear(&msgs[i].out);
@@ -970,7 +1005,46 @@ static int run_coordinator(coord *c, int size, bs_err *err)
     return mrc != 0 ? mrc : rc;
 }
 
-static int send_outcome(MPI_Comm comm, int kind, int seq, const pl_outcome *out, int job_limited, bs_err *err)
+/* A worker's result messages still on their way: sent with MPI_Isend, so that a worker whose
+ * coordinator is between polls goes on computing its queued materials instead of waiting in
+ * MPI_Send (which, with ranks outnumbering cores, yields the core until the coordinator drains its
+ * queue). Each buffer is kept until its send completes. */
+enum { PL_SENDS = PL_PREFETCH_MAX + 2 };
+typedef struct send_queue {
+    MPI_Request req[PL_SENDS];
+    char *buf[PL_SENDS];
+} send_queue;
+
+/* Frees the buffers of completed sends; with wait, waits (polling and napping) until every send
+ * has completed or, with wait = 2, until at least one slot is free. */
+static int sends_settle(send_queue *q, int wait, bs_err *err)
+{
+    const struct timespec nap = {0, 50 * 1000};
+    for (;;) {
+        int pending = 0, free_slot = 0, rc = 0;
+        for (int i = 0; i < PL_SENDS && rc == 0; i++) {
+            if (!q->buf[i]) {
+                free_slot = 1;
+                continue;
+            }
+            int done = 0;
+            rc = mpi_check(MPI_Test(&q->req[i], &done, MPI_STATUS_IGNORE), "MPI_Test of a result send", err);
+            if (rc == 0 && done) {
+                free(q->buf[i]);
+                q->buf[i] = NULL;
+                free_slot = 1;
+            } else {
+                pending++;
+            }
+        }
+        if (rc != 0) return rc;
+        if (wait == 0 || (wait == 1 && pending == 0) || (wait == 2 && free_slot)) return 0;
+        nanosleep(&nap, NULL);
+    }
+}
+
+static int send_outcome_q(MPI_Comm comm, int kind, int seq, const pl_outcome *out, int job_limited,
+                          send_queue *q, bs_err *err)
 {
     wire_head h;
     memset(&h, 0, sizeof h);
@@ -994,10 +1068,33 @@ static int send_outcome(MPI_Comm comm, int kind, int seq, const pl_outcome *out,
     memcpy(buf, &h, sizeof h);
     if (jlen) memcpy(buf + sizeof h, out->json, jlen);
     if (slen) memcpy(buf + sizeof h + jlen, out->stored, slen);
-    int rc = mpi_check(MPI_Send(buf, (int)(sizeof h + jlen + slen), MPI_BYTE, 0, TAG_RESULT, comm),
+    int slot = -1;
+    int rc = q ? sends_settle(q, 2, err) : 0;
+    for (int i = 0; q && rc == 0 && i < PL_SENDS && slot < 0; i++)
+        if (!q->buf[i]) slot = i;
+    if (rc != 0) {
+        free(buf);
+        return rc;
+    }
+    if (slot < 0) {
+        rc = mpi_check(MPI_Send(buf, (int)(sizeof h + jlen + slen), MPI_BYTE, 0, TAG_RESULT, comm),
                        "MPI_Send of a result", err);
-    free(buf);
+        free(buf);
+        return rc;
+    }
+    rc =
+        mpi_check(MPI_Isend(buf, (int)(sizeof h + jlen + slen), MPI_BYTE, 0, TAG_RESULT, comm, &q->req[slot]),
+                  "MPI_Isend of a result", err);
+    if (rc == 0)
+        q->buf[slot] = buf;
+    else
+        free(buf);
     return rc;
+}
+
+static int send_outcome(MPI_Comm comm, int kind, int seq, const pl_outcome *out, int job_limited, bs_err *err)
+{
+    return send_outcome_q(comm, kind, seq, out, job_limited, NULL, err);
 }
 
 /* What a group leader tells its members: stop, or compute entry `index` together. */
@@ -1034,6 +1131,8 @@ static int run_worker(const pl_opts *o, MPI_Comm comm, MPI_Comm gcomm, pl_group 
     /* When each message left, by seq: a material's budget counts from the message it answers. */
     double sent_at[PL_SENT_RING];
     int seq = 0;
+    send_queue sq;
+    memset(&sq, 0, sizeof sq);
     sent_at[0] = bs_now();
     rc = send_outcome(comm, 0, seq++, NULL, 0, err);
     while (rc == 0) {
@@ -1044,6 +1143,7 @@ static int run_worker(const pl_opts *o, MPI_Comm comm, MPI_Comm gcomm, pl_group 
         const struct timespec nap = {0, 200 * 1000};
         while (rc == 0 && !flag) {
             rc = mpi_check(MPI_Iprobe(0, MPI_ANY_TAG, comm, &flag, &st), "MPI_Iprobe", err);
+            if (rc == 0) rc = sends_settle(&sq, 0, err);
             if (rc == 0 && !flag) nanosleep(&nap, NULL);
         }
         if (rc != 0) break;
@@ -1083,8 +1183,17 @@ static int run_worker(const pl_opts *o, MPI_Comm comm, MPI_Comm gcomm, pl_group 
                      open_err.msg);
         }
         sent_at[seq % PL_SENT_RING] = bs_now();
-        rc = send_outcome(comm, 1, seq++, &out, w.job_limited, err);
+        rc = send_outcome_q(comm, 1, seq++, &out, w.job_limited, &sq, err);
         pl_outcome_clear(&out);
+    }
+    /* The stop comes only after every result has arrived; after an error, whatever is still on its
+     * way is finished before the buffers go. */
+    bs_err serr;
+    bs_err_clear(&serr);
+    int src = sends_settle(&sq, 1, &serr);
+    if (rc == 0 && src != 0) {
+        *err = serr;
+        rc = src;
     }
     if (gcomm != MPI_COMM_NULL) {
         group_cmd cmd = {0, 0, 0};
@@ -1135,6 +1244,7 @@ static void coord_clear(coord *c, bs_err *err)
     free(c->taken);
     free(c->held);
     free(c->depth);
+    free(c->last_seconds);
     free(c->holds_suspect);
     free(c->susp);
     cat_ids_clear(&c->suspects);

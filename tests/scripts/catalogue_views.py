@@ -122,6 +122,10 @@ def main():
     sp = plan(con, "SELECT * FROM summary")
     if "WINDOW" in sp.upper() or "CO-ROUTINE" in sp:
         errors.append("the full summary materialises a window or subquery:\n" + sp)
+    # The best row of the current content comes from one range of results_best, in index order:
+    # one temporary b-tree (the fallback over every content) at most, not one per subquery.
+    if "results_best (material_id=? AND content=?)" not in sp or sp.count("TEMP B-TREE FOR ORDER BY") > 1:
+        errors.append("the summary's choice does not read results_best in order:\n" + sp)
     con.close()
     for e in errors:
         print("FAIL:", e)
