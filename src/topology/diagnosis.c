@@ -341,13 +341,16 @@ static int incoherent(const symfit_break *b)
 
 /* The gap search of a fit whose time reversal is only approximate (fit-like breaking: incoherent,
  * symfit.h) runs on the restored model H_s (time reversal, and inversion when its breaking is
- * fit-like too), whose E(-k) = E(k) halves the meshes: every band of H lies within delta / 2 of
- * H_s's (Weyl's inequality; delta = restored_breaking, the breaking that verdicts and margins use),
- * so H's extremes sit in H_s's basins that come within 2 delta of its best, and short local
- * minimisations on H from those (gaps_find_near) give H's own gaps. Taken only when H's direct gap
- * so found is at least SYMFIT_MARGIN_SAFE delta (the margin of a class built on the restored
- * symmetry without reservation), wide enough that no node search is due, the search converged,
- * and no band at an extreme moved by more than delta / 2 (what the bound allows); otherwise the
+ * fit-like too), whose E(-k) = E(k) halves the meshes: every band of H lies within b of H_s's
+ * (Weyl's inequality), b = sum_R ||H(R) - H_s(R)||, an upper bound of max_k ||H(k) - H_s(k)||_2
+ * (symfit_symmetrise's moved.upper_ev); not delta = restored_breaking, the estimate that verdicts
+ * and margins use: its mesh x 1.5 is no bound (a breaking on a lattice vector that the symmetry
+ * mesh aliases, e.g. sin 8 pi k1 on its 8 points, is invisible to it). H's extremes sit in H_s's
+ * basins that come within 2 b of its best, and short local minimisations on H from those
+ * (gaps_find_near) give H's own gaps. Taken only when H's direct gap so found is at least
+ * SYMFIT_MARGIN_SAFE delta (the margin of a class built on the restored symmetry without
+ * reservation), wide enough that no node search is due, the search converged, and no band at an
+ * extreme moved by more than b (what the bound allows); otherwise the
  * search runs on H as given (fallback), and H_s's eigensolves were spent for nothing (only eight
  * when those at the time-reversal-invariant momenta already show a thin margin, one mesh when the
  * mesh does). Returns 1 when c->gaps was filled this
@@ -364,11 +367,12 @@ static int gaps_symmetric(diag_ctx *c, res_diag *r, bs_err *err)
      * reversal alone they move off them (the cone of a split doublet) and cost twice as much. */
     int which = SYMFIT_TR | (!s->inversion && incoherent(&c->invb) ? SYMFIT_INV : 0);
     tb_model *ms = NULL;
-    rc = symfit_symmetrise(c->m, s, which, NULL, &ms, NULL, err);
+    symfit_break moved;
+    rc = symfit_symmetrise(c->m, s, which, NULL, &ms, &moved, err);
     if (rc == BS_EINVAL && which != SYMFIT_TR) {
         bs_err_clear(err);
         which = SYMFIT_TR;
-        rc = symfit_symmetrise(c->m, s, which, NULL, &ms, NULL, err);
+        rc = symfit_symmetrise(c->m, s, which, NULL, &ms, &moved, err);
     }
     if (rc != 0) return rc;
     const char *bound;
@@ -410,8 +414,8 @@ static int gaps_symmetric(diag_ctx *c, res_diag *r, bs_err *err)
         gaps_opts_init(&go);
         go.grid = g;
         go.deadline = c->deadline;
-        /* ||H - H_s|| <= delta / 2 moves each band by at most that. */
-        rc = gaps_find_near(e, c->bp, 0.5 * delta, &go, &c->gaps, err);
+        /* ||H(k) - H_s(k)|| <= moved.upper_ev moves each band by at most that. */
+        rc = gaps_find_near(e, c->bp, moved.upper_ev, &go, &c->gaps, err);
     }
     long long nk = e ? bp_count(e) : 0;
     bp_mesh_free(g);
@@ -423,11 +427,11 @@ static int gaps_symmetric(diag_ctx *c, res_diag *r, bs_err *err)
     account(r, "gaps_symmetric", nk);
     if (hopeless) return 0;
     /* H's own gaps (c->gaps) judged as a search on H would be: no node search due, a safe margin,
-     * and H's extremes within the bound of H_s's (the bound is min(upper, mesh x 1.5), symfit.h). */
+     * and H's extremes within the bound of H_s's. */
     const gaps_result *h = &c->gaps;
     double suspicious = fmax(BS_GAP_CLOSED_EV, 0.02 * h->width_ev);
     if (h->closed || h->metallic || !h->converged || h->gap_direct_ev < SYMFIT_MARGIN_SAFE * delta ||
-        h->gap_direct_ev < suspicious || h->shift_ev > 0.5 * delta)
+        h->gap_direct_ev < suspicious || h->shift_ev > moved.upper_ev)
         return 0;
     return 1;
 }
