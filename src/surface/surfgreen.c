@@ -41,8 +41,9 @@ int sg_create(const slab *s, sg_ws **out, bs_err *err)
     w->blk = malloc((size_t)n * n * sizeof *w->blk);
     w->ipiv = malloc((size_t)w->p * sizeof *w->ipiv);
     if (!ok || !w->blk || !w->ipiv) {
+        int states = w->p;
         sg_free(w);
-        return bs_fail(err, BS_ENOMEM, "out of memory for the surface Green's function (%d states)", w->p);
+        return bs_fail(err, BS_ENOMEM, "out of memory for the surface Green's function (%d states)", states);
     }
     *out = w;
     return 0;
