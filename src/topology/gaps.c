@@ -54,6 +54,26 @@ static void best_update(gaps_best *b, const double k[3], double lo, double hi)
         }
 }
 
+/* Writes the best values into out: k wrapped into [0, 1) (components beyond dim zero), the gaps
+ * and whether they are closed. */
+static void store_best(gaps_result *out, gaps_best b, int dim)
+{
+    for (int q = 0; q < 3; q++)
+        for (int a = 0; a < 3; a++) {
+            double x = a < dim ? b.k[q][a] - floor(b.k[q][a]) : 0.0;
+            b.k[q][a] = x >= 1.0 ? 0.0 : x;
+        }
+    out->gap_direct_ev = b.v[0];
+    out->vbm_ev = -b.v[1];
+    out->cbm_ev = b.v[2];
+    memcpy(out->k_direct, b.k[0], sizeof out->k_direct);
+    memcpy(out->k_vbm, b.k[1], sizeof out->k_vbm);
+    memcpy(out->k_cbm, b.k[2], sizeof out->k_cbm);
+    out->gap_indirect_ev = out->cbm_ev - out->vbm_ev;
+    out->metallic = out->gap_indirect_ev < BS_GAP_CLOSED_EV;
+    out->closed = out->gap_direct_ev < BS_GAP_CLOSED_EV;
+}
+
 /* End points of refinements (per quantity), so a start inside an explored basin is skipped. */
 typedef struct gaps_ends {
     int n, cap;
@@ -223,27 +243,14 @@ static int gaps_search(bp_eval *e, const gaps_opts *o, const double slack[3], ga
         if (change <= tol) break;
     }
     *best = b;
-    for (int q = 0; q < 3; q++)
-        for (int a = 0; a < 3; a++) {
-            double x = a < dim ? b.k[q][a] - floor(b.k[q][a]) : 0.0;
-            b.k[q][a] = x >= 1.0 ? 0.0 : x;
-        }
-    out->gap_direct_ev = b.v[0];
-    out->vbm_ev = -b.v[1];
-    out->cbm_ev = b.v[2];
-    memcpy(out->k_direct, b.k[0], sizeof out->k_direct);
-    memcpy(out->k_vbm, b.k[1], sizeof out->k_vbm);
-    memcpy(out->k_cbm, b.k[2], sizeof out->k_cbm);
+    store_best(out, b, dim);
     /* Below GAPS_MIN_CHECK_MESH points per direction a displaced mesh samples the zone too
      * sparsely for "nothing changed" to mean anything (seen: a 2- or 3-point mesh and its
      * displacements all miss a basin 60 meV deep), so no convergence is claimed there. */
     int credible = g->n >= GAPS_MIN_CHECK_MESH;
     out->converged = credible && change <= tol;
     out->resolution_ev = credible && isfinite(change) ? fmax(change, tol) : INFINITY;
-    out->gap_indirect_ev = out->cbm_ev - out->vbm_ev;
     out->width_ev = emax - emin;
-    out->metallic = out->gap_indirect_ev < BS_GAP_CLOSED_EV;
-    out->closed = out->gap_direct_ev < BS_GAP_CLOSED_EV;
     out->mesh = g->n;
     out->nk_evaluated = bp_count(e) - c0;
     out->seconds = bs_now() - t0;
@@ -518,22 +525,9 @@ int gaps_find_near(bp_eval *es, bp_eval *e, double shift_ev, const gaps_opts *o,
     if (rc != 0) return rc;
     const double fs[3] = {gs.gap_direct_ev, -gs.vbm_ev, gs.cbm_ev};
     out->shift_ev = 0;
-    for (int q = 0; q < 3; q++) {
+    for (int q = 0; q < 3; q++)
         out->shift_ev = fmax(out->shift_ev, fabs(b.v[q] - fs[q]) / (q == 0 ? 2.0 : 1.0));
-        for (int a = 0; a < 3; a++) {
-            double x = a < bp_dim(e) ? b.k[q][a] - floor(b.k[q][a]) : 0.0;
-            b.k[q][a] = x >= 1.0 ? 0.0 : x;
-        }
-    }
-    out->gap_direct_ev = b.v[0];
-    out->vbm_ev = -b.v[1];
-    out->cbm_ev = b.v[2];
-    memcpy(out->k_direct, b.k[0], sizeof out->k_direct);
-    memcpy(out->k_vbm, b.k[1], sizeof out->k_vbm);
-    memcpy(out->k_cbm, b.k[2], sizeof out->k_cbm);
-    out->gap_indirect_ev = out->cbm_ev - out->vbm_ev;
-    out->metallic = out->gap_indirect_ev < BS_GAP_CLOSED_EV;
-    out->closed = out->gap_direct_ev < BS_GAP_CLOSED_EV;
+    store_best(out, b, bp_dim(e));
     out->nk_evaluated = bp_count(e) - c0;
     out->seconds = bs_now() - t0;
     return 0;
