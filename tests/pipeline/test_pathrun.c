@@ -41,16 +41,30 @@ static const pl_family *find(const pl_family *f, int n, const char *name)
     return NULL;
 }
 
+/* The test set and its families, opened for one test. */
+static void open_families(ms_set **set, pl_family **f, int *n)
+{
+    bs_err err;
+    bs_err_clear(&err);
+    assert_int_equal(ms_open(set_path, set, &err), 0);
+    assert_int_equal(pl_families(*set, f, n, &err), 0);
+}
+
+static void close_families(ms_set *set, pl_family *f, int n)
+{
+    pl_families_free(f, n);
+    ms_free(set);
+}
+
 static void test_families(void **state)
 {
     (void)state;
     bs_err err;
     bs_err_clear(&err);
     ms_set *set = NULL;
-    assert_int_equal(ms_open(set_path, &set, &err), 0);
     pl_family *f = NULL;
     int n = 0;
-    assert_int_equal(pl_families(set, &f, &n, &err), 0);
+    open_families(&set, &f, &n);
     assert_int_equal(n, 2);
     const pl_family *p = find(f, n, "Jo2Qu-pressure");
     assert_non_null(p);
@@ -64,8 +78,7 @@ static void test_families(void **state)
     assert_non_null(a);
     assert_string_not_equal(a->content, p->content);
     assert_non_null(strstr(a->members, "\"id\":\"JQF-JaQi\""));
-    pl_families_free(f, n);
-    ms_free(set);
+    close_families(set, f, n);
 }
 
 /* The alloy family is the Kane-Mele model with lambda_v = 0.1 + 0.4 x at lambda_SO = 0.06 (demo.c):
@@ -79,10 +92,9 @@ static void test_compute_and_wire(void **state)
     bs_err err;
     bs_err_clear(&err);
     ms_set *set = NULL;
-    assert_int_equal(ms_open(set_path, &set, &err), 0);
     pl_family *f = NULL;
     int n = 0;
-    assert_int_equal(pl_families(set, &f, &n, &err), 0);
+    open_families(&set, &f, &n);
     pl_path_task t = {1e-6, 15, 0, 0};
     pl_outcome out;
     pl_path_compute(set, find(f, n, "JaQi1-xQox"), &t, 3, &out);
@@ -105,8 +117,7 @@ static void test_compute_and_wire(void **state)
     assert_int_equal(pl_path_from_text("not json", &r, &err), BS_EPARSE);
     assert_int_equal(r.nsamples, 0);
     pl_outcome_clear(&out);
-    pl_families_free(f, n);
-    ms_free(set);
+    close_families(set, f, n);
 }
 
 /* A family of one member cannot make a path: the outcome says so (invalid), nothing crashes. */
@@ -116,10 +127,9 @@ static void test_single_member(void **state)
     bs_err err;
     bs_err_clear(&err);
     ms_set *set = NULL;
-    assert_int_equal(ms_open(set_path, &set, &err), 0);
     pl_family *f = NULL;
     int n = 0;
-    assert_int_equal(pl_families(set, &f, &n, &err), 0);
+    open_families(&set, &f, &n);
     pl_family one = *find(f, n, "JaQi1-xQox");
     one.n = 1;
     pl_path_task t = {1e-5, 0, 0, 0};
@@ -128,8 +138,7 @@ static void test_single_member(void **state)
     assert_int_equal(out.code, BS_EINVAL);
     assert_non_null(strstr(out.message, "two or more"));
     assert_null(out.json);
-    pl_families_free(f, n);
-    ms_free(set);
+    close_families(set, f, n);
 }
 
 int main(void)
