@@ -23,6 +23,7 @@ cp "$good"/*.dat "$work/corpus/table/"
 cp "$good"/*.dat "$work/tmp/"          # the tables the card seeds name, beside the fuzzed card
 "$bin" demo-set -o "$work/corpus/set/demo.h5" --count 12 --seed 3 >/dev/null 2>&1
 "$bin" pack -o "$work/corpus/set/good.h5" "$good"/*.json >/dev/null
+cp "$src"/tests/data/fuzz-found/set/*.h5 "$work/corpus/set/"  # inputs that once broke the reader
 export TMPDIR="$work/tmp"
 # HDF5 keeps library-wide allocations until exit; leak reports would be about those.
 export ASAN_OPTIONS=detect_leaks=0:abort_on_error=1
