@@ -4,6 +4,7 @@
 #include "bandsieve/symfit.h"
 
 #include <assert.h>
+#include <cblas.h>
 #include <math.h>
 #include <stdint.h>
 #include <stdlib.h>
@@ -387,15 +388,271 @@ static int default_mesh(const tb_model *m)
     return n > 8 ? 8 : n;
 }
 
+/* Phase table w[j * nd + (d + L)] = exp(2 pi i j d / M), j < M, |d| <= L (nd = 2 L + 1). */
+static double complex *phase_table(int M, int L)
+{
+    int nd = 2 * L + 1;
+    double complex *w = malloc((size_t)M * nd * sizeof *w);
+    if (!w) return NULL;
+    for (int j = 0; j < M; j++)
+        for (int d = -L; d <= L; d++) {
+            long t = ((long)j * d) % M;
+            w[(size_t)j * nd + d + L] = cexp(2 * M_PI * I * (double)t / M);
+        }
+    return w;
+}
+
+/* Largest value on the M[0] x M[1] x M[2] mesh of the real P(k) = sum_d C[d] exp(2 pi i k.d), C
+ * indexed by ((d0 + L0) nd1 + d1 + L1) nd2 + d2 + L2 with C[-d] = conj(C[d]), summed one
+ * direction at a time: P = Re(sum over d0 = 0) + 2 Re(sum over d0 > 0), so only d0 >= 0 is summed. */
+static int poly_mesh_max(const double complex *C, const int L[3], const int M[3], double *out)
+{
+    int nd[3] = {2 * L[0] + 1, 2 * L[1] + 1, 2 * L[2] + 1}, na = L[0] + 1;
+    size_t m12 = (size_t)M[1] * M[2];
+    double complex *w[3] = {phase_table(M[0], L[0]), phase_table(M[1], L[1]), phase_table(M[2], L[2])};
+    double complex *T1 = malloc((size_t)na * nd[1] * M[2] * sizeof *T1);
+    double complex *T2 = malloc((size_t)na * m12 * sizeof *T2);
+    double *acc = malloc(m12 * sizeof *acc);
+    int rc = w[0] && w[1] && w[2] && T1 && T2 && acc ? 0 : -1;
+    double best = -INFINITY;
+    if (rc == 0) {
+        /* T1[a][b][j2] = sum_c C[L0 + a][b][c] w2[j2][c] */
+        for (int ab = 0; ab < na * nd[1]; ab++)
+            for (int j = 0; j < M[2]; j++) {
+                double complex sum = 0;
+                const double complex *c = C + ((size_t)L[0] * nd[1] + ab) * nd[2];
+                for (int q = 0; q < nd[2]; q++)
+                    sum += c[q] * w[2][(size_t)j * nd[2] + q];
+                T1[(size_t)ab * M[2] + j] = sum;
+            }
+        /* T2[a][j1][j2] = sum_b T1[a][b][j2] w1[j1][b] */
+        for (int a = 0; a < na; a++)
+            for (int j1 = 0; j1 < M[1]; j1++) {
+                double complex *t = T2 + ((size_t)a * M[1] + j1) * M[2];
+                for (int j2 = 0; j2 < M[2]; j2++)
+                    t[j2] = 0;
+                for (int q = 0; q < nd[1]; q++) {
+                    double complex f = w[1][(size_t)j1 * nd[1] + q];
+                    const double complex *u = T1 + ((size_t)a * nd[1] + q) * M[2];
+                    for (int j2 = 0; j2 < M[2]; j2++)
+                        t[j2] += f * u[j2];
+                }
+            }
+        for (int j0 = 0; j0 < M[0]; j0++) {
+            for (size_t j = 0; j < m12; j++)
+                acc[j] = creal(T2[j]);
+            for (int a = 1; a < na; a++) {
+                double complex f = 2 * w[0][(size_t)j0 * nd[0] + L[0] + a];
+                double fr = creal(f), fi = cimag(f);
+                const double complex *t = T2 + (size_t)a * m12;
+                for (size_t j = 0; j < m12; j++)
+                    acc[j] += fr * creal(t[j]) - fi * cimag(t[j]);
+            }
+            for (size_t j = 0; j < m12; j++)
+                best = fmax(best, acc[j]);
+        }
+    }
+    for (int a = 0; a < 3; a++)
+        free(w[a]);
+    free(T1);
+    free(T2);
+    free(acc);
+    *out = best;
+    return rc;
+}
+
+/* One direction of a separable discrete Fourier sum: out[(x * Q + j) * z + y] = sum_s
+ * in[(x * S + s) * z + y] w[j * S + s], for x < X, y < z. */
+static void dft_axis(const double complex *in, int X, int S, int z, const double complex *w, int Q,
+                     double complex *out)
+{
+    for (int x = 0; x < X; x++)
+        for (int j = 0; j < Q; j++) {
+            double complex *o = out + ((size_t)x * Q + j) * z;
+            for (int y = 0; y < z; y++)
+                o[y] = 0;
+            for (int s = 0; s < S; s++) {
+                double complex c = w[(size_t)j * S + s];
+                const double complex *v = in + ((size_t)x * S + s) * z;
+                for (int y = 0; y < z; y++)
+                    o[y] += c * v[y];
+            }
+        }
+}
+
+/* w[j * S + s] = exp(sign 2 pi i j s / Q). */
+static double complex *dft_table(int Q, int S, int sign)
+{
+    double complex *w = malloc((size_t)Q * S * sizeof *w);
+    for (int j = 0; w && j < Q; j++)
+        for (int s = 0; s < S; s++)
+            w[(size_t)j * S + s] = cexp(sign * 2 * M_PI * I * (double)(((long)j * s) % Q) / Q);
+    return w;
+}
+
+int symfit_kmax_bound(int n, int nr, const int (*R)[3], int dim, const double complex *D, double *out,
+                      bs_err *err)
+{
+    *out = INFINITY;
+    if (nr < 1) return 0;
+    size_t n2 = (size_t)n * n;
+    /* The lattice vectors on a box of S_a = L_a + 1 points per direction; P(k) has frequencies
+     * -L_a..L_a, so Q_a = 2 L_a + 1 samples per direction determine it. */
+    int lo[3] = {0, 0, 0}, L[3] = {0, 0, 0}, S[3], Q[3], M[3] = {1, 1, 1}, active = 0;
+    for (int a = 0; a < dim && a < 3; a++) {
+        int hi = R[0][a];
+        lo[a] = R[0][a];
+        for (int r = 1; r < nr; r++) {
+            lo[a] = R[r][a] < lo[a] ? R[r][a] : lo[a];
+            hi = R[r][a] > hi ? R[r][a] : hi;
+        }
+        L[a] = hi - lo[a];
+        active += L[a] > 0;
+    }
+    for (int a = 0; a < 3; a++) {
+        S[a] = L[a] + 1;
+        Q[a] = 2 * L[a] + 1;
+    }
+    size_t box = (size_t)S[0] * S[1] * S[2], nq = (size_t)Q[0] * Q[1] * Q[2];
+    /* Orbital pairs a <= b that hop anywhere (|D_ab(k)| = |D_ba(k)|: D(k) is Hermitian). */
+    size_t *pair = malloc(n2 * sizeof *pair), np = 0;
+    if (!pair) return bs_fail(err, BS_ENOMEM, "out of memory for the breaking's bound");
+    for (int a = 0; a < n; a++)
+        for (int b = a; b < n; b++)
+            for (int r = 0; r < nr; r++)
+                if (D[(size_t)r * n2 + (size_t)a * n + b] != 0) {
+                    pair[np++] = (size_t)a * n + b;
+                    break;
+                }
+    /* Multiply-adds: the transforms per orbital pair, and the mesh (its last direction dominates). */
+    const double wmax = 0.6;
+    double W = 0,
+           madds = (double)S[0] * S[1] * S[2] * Q[2] + (double)S[0] * S[1] * Q[1] * Q[2] + (double)S[0] * nq;
+    madds *= (double)np;
+    for (int a = 0; a < 3; a++) {
+        if (L[a] == 0) continue;
+        M[a] = (int)ceil(active * M_PI * L[a] / wmax); /* W = pi sum_a L_a / M_a <= wmax */
+        W += M_PI * L[a] / M[a];
+    }
+    madds += (double)M[0] * M[1] * M[2] * (L[0] + 1);
+    if (madds > SYMFIT_KMAX_BUDGET * (double)n * n * n) {
+        free(pair);
+        return 0;
+    }
+    /* Pairs in chunks of cp; every array has the pair innermost, so each direction's sum is a
+     * matrix product (rows: pairs and the directions not summed yet). */
+    const size_t cp = 64;
+    double complex *g = malloc(cp * box * sizeof *g), *t1 = malloc(cp * S[0] * S[1] * Q[2] * sizeof *t1);
+    double complex *t2 = malloc(cp * S[0] * Q[1] * Q[2] * sizeof *t2), *v = malloc(cp * nq * sizeof *v);
+    double complex *w[3] = {dft_table(Q[0], S[0], 1), dft_table(Q[1], S[1], 1), dft_table(Q[2], S[2], 1)};
+    double *P = calloc(nq, sizeof *P);
+    size_t *at = malloc((size_t)nr * sizeof *at);
+    int rc = g && t1 && t2 && v && w[0] && w[1] && w[2] && P && at ? 0 : -1;
+    for (int r = 0; rc == 0 && r < nr; r++)
+        at[r] = ((size_t)(R[r][0] - lo[0]) * S[1] + (dim > 1 ? R[r][1] - lo[1] : 0)) * S[2] +
+                (dim > 2 ? R[r][2] - lo[2] : 0);
+    const double complex one = 1, zero = 0;
+    /* P on the Q grid: the sum over orbital pairs of |D_ab(k)|^2. */
+    for (size_t p0 = 0; rc == 0 && p0 < np; p0 += cp) {
+        int c = (int)(np - p0 < cp ? np - p0 : cp);
+        memset(g, 0, (size_t)c * box * sizeof *g);
+        for (int r = 0; r < nr; r++)
+            for (int q = 0; q < c; q++)
+                g[at[r] * c + q] = D[(size_t)r * n2 + pair[p0 + q]];
+        /* Direction 2: per (s0, s1), the c x S2 block times the S2 x Q2 table. */
+        for (int x = 0; x < S[0] * S[1]; x++)
+            cblas_zgemm(CblasColMajor, CblasNoTrans, CblasNoTrans, c, Q[2], S[2], &one,
+                        g + (size_t)x * S[2] * c, c, w[2], S[2], &zero, t1 + (size_t)x * Q[2] * c, c);
+        /* Direction 1: per s0, rows (pair, j2), columns s1. */
+        for (int x = 0; x < S[0]; x++)
+            cblas_zgemm(CblasColMajor, CblasNoTrans, CblasNoTrans, c * Q[2], Q[1], S[1], &one,
+                        t1 + (size_t)x * S[1] * Q[2] * c, c * Q[2], w[1], S[1], &zero,
+                        t2 + (size_t)x * Q[1] * Q[2] * c, c * Q[2]);
+        /* Direction 0: rows (pair, j2, j1), columns s0. */
+        cblas_zgemm(CblasColMajor, CblasNoTrans, CblasNoTrans, c * Q[1] * Q[2], Q[0], S[0], &one, t2,
+                    c * Q[1] * Q[2], w[0], S[0], &zero, v, c * Q[1] * Q[2]);
+        for (size_t j = 0; j < nq; j++) {
+            double sum = 0;
+            for (int q = 0; q < c; q++) {
+                double complex x = v[j * c + q];
+                size_t ab = pair[p0 + q];
+                double weight = ab / n == ab % n ? 1.0 : 2.0;
+                sum += weight * (creal(x) * creal(x) + cimag(x) * cimag(x));
+            }
+            P[j] += sum;
+        }
+    }
+    free(pair);
+    /* Coefficients C[d], |d_a| <= L_a, by the inverse transform of the samples (exact: Q_a > 2 L_a). */
+    double complex *C = NULL;
+    if (rc == 0) {
+        for (int a = 0; a < 3; a++) {
+            free(w[a]);
+            w[a] = dft_table(Q[a], Q[a], -1);
+        }
+        C = malloc(nq * sizeof *C);
+        rc = C && w[0] && w[1] && w[2] ? 0 : -1;
+    }
+    if (rc == 0) {
+        for (size_t j = 0; j < nq; j++)
+            v[j] = P[j] / (double)nq;
+        double complex *u = malloc(nq * sizeof *u), *y = malloc(nq * sizeof *y);
+        rc = u && y ? 0 : -1;
+        if (rc == 0) {
+            dft_axis(v, Q[0] * Q[1], Q[2], 1, w[2], Q[2], u);
+            dft_axis(u, Q[0], Q[1], Q[2], w[1], Q[1], y);
+            dft_axis(y, 1, Q[0], Q[1] * Q[2], w[0], Q[0], u);
+            /* u holds the coefficient of frequency d (mod Q) at index d mod Q; C wants d + L. */
+            for (int i0 = 0; i0 < Q[0]; i0++)
+                for (int i1 = 0; i1 < Q[1]; i1++)
+                    for (int i2 = 0; i2 < Q[2]; i2++) {
+                        int d0 = i0 - L[0], d1 = i1 - L[1], d2 = i2 - L[2];
+                        size_t from = ((size_t)((d0 + Q[0]) % Q[0]) * Q[1] + (d1 + Q[1]) % Q[1]) * Q[2] +
+                                      (d2 + Q[2]) % Q[2];
+                        C[((size_t)i0 * Q[1] + i1) * Q[2] + i2] = u[from];
+                    }
+        }
+        free(u);
+        free(y);
+    }
+    double pmax = 0, c0 = 0;
+    if (rc == 0) {
+        c0 = creal(C[(nq - 1) / 2]);
+        rc = poly_mesh_max(C, L, M, &pmax);
+    }
+    free(g);
+    free(t1);
+    free(t2);
+    free(v);
+    free(P);
+    free(at);
+    free(C);
+    for (int a = 0; a < 3; a++)
+        free(w[a]);
+    if (rc != 0)
+        return bs_fail(err, BS_ENOMEM, "out of memory for the breaking's bound (%d lattice vectors)", nr);
+    /* Round-off of the sums: each |C[d]| <= C[0], the mean of P (Cauchy-Schwarz), so a few ulps of
+     * nq C[0] per transform cover it. */
+    pmax += 1e-13 * (double)nq * c0;
+    *out = sqrt(fmax(pmax, 0) / (1 - 0.5 * W * W));
+    return 0;
+}
+
 /* Fills b from the difference D (rs.n matrices) and the reference E: upper and relative bounds,
- * and the mesh maximum unless mesh is 0. */
+ * the mesh maximum unless mesh is 0, and kmax_ev when kmax is set. */
 static int fill_break(const tb_model *m, const rset *rs, const double complex *E, const double complex *D,
-                      int mesh, symfit_break *b, bs_err *err)
+                      int mesh, int kmax, symfit_break *b, bs_err *err)
 {
     int n = m->norb;
     double norm = sum_bound(n, rs->n, E);
     b->available = 1;
     b->upper_ev = sum_bound(n, rs->n, D);
+    b->kmax_ev = 0;
+    if (kmax) {
+        int rc = symfit_kmax_bound(n, rs->n, (const int(*)[3])rs->R, m->dim, D, &b->kmax_ev, err);
+        if (rc != 0) return rc;
+        b->kmax_ev = fmin(b->kmax_ev, b->upper_ev);
+    }
     b->relative = norm > 0 ? b->upper_ev / norm : b->upper_ev;
     b->lower_ev = 0;
     if (mesh <= 0) return 0;
@@ -449,7 +706,7 @@ int symfit_measure(const tb_model *m, const sym_info *s, int which, const symfit
         apply_inv(s, &v, rs.n, E, G);
     for (size_t i = 0; i < (size_t)rs.n * n2; i++)
         G[i] = E[i] - G[i];
-    rc = fill_break(m, &rs, E, G, mesh, out, err);
+    rc = fill_break(m, &rs, E, G, mesh, 0, out, err);
 done:
     free(E);
     free(G);
@@ -559,7 +816,7 @@ int symfit_symmetrise(const tb_model *m, sym_info *s, int which, const symfit_op
         S[i] *= w;
         A[i] = E[i] - S[i];
     }
-    if (moved) rc = fill_break(m, &rs, E, A, o && o->mesh > 0 ? o->mesh : default_mesh(m), moved, err);
+    if (moved) rc = fill_break(m, &rs, E, A, o && o->mesh > 0 ? o->mesh : default_mesh(m), 1, moved, err);
     if (rc == 0) rc = model_from(m, &rs, S, out, err);
 done:
     free(E);

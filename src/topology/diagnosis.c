@@ -414,8 +414,8 @@ static int gaps_symmetric(diag_ctx *c, res_diag *r, bs_err *err)
         gaps_opts_init(&go);
         go.grid = g;
         go.deadline = c->deadline;
-        /* ||H(k) - H_s(k)|| <= moved.upper_ev moves each band by at most that. */
-        rc = gaps_find_near(e, c->bp, moved.upper_ev, &go, &c->gaps, err);
+        /* ||H(k) - H_s(k)|| <= moved.kmax_ev moves each band by at most that. */
+        rc = gaps_find_near(e, c->bp, moved.kmax_ev, &go, &c->gaps, err);
     }
     long long nk = e ? bp_count(e) : 0;
     bp_mesh_free(g);
@@ -431,7 +431,7 @@ static int gaps_symmetric(diag_ctx *c, res_diag *r, bs_err *err)
     const gaps_result *h = &c->gaps;
     double suspicious = fmax(BS_GAP_CLOSED_EV, 0.02 * h->width_ev);
     if (h->closed || h->metallic || !h->converged || h->gap_direct_ev < SYMFIT_MARGIN_SAFE * delta ||
-        h->gap_direct_ev < suspicious || h->shift_ev > moved.upper_ev)
+        h->gap_direct_ev < suspicious || h->shift_ev > moved.kmax_ev)
         return 0;
     return 1;
 }

@@ -60,6 +60,9 @@ static tb_model *symmetrise(const tb_model *m, sym_info *s, int which, double *m
     if (tb_model_validate(out, 1e-12, "symmetrised", &err) != 0) fail_msg("%s", err.msg);
     if (!(mv.upper_ev >= mv.lower_ev))
         fail_msg("%s: distance bounds %g < %g", m->id, mv.upper_ev, mv.lower_ev);
+    /* The tighter bound lies between the two: it bounds the largest norm on the mesh too. */
+    if (!(mv.kmax_ev >= mv.lower_ev * (1 - 1e-12) && mv.kmax_ev <= mv.upper_ev))
+        fail_msg("%s: k-maximum bound %g outside [%g, %g]", m->id, mv.kmax_ev, mv.lower_ev, mv.upper_ev);
     *moved = mv.upper_ev;
     return out;
 }
@@ -254,6 +257,97 @@ static void test_norm_bound(void **state)
     assert_true(fabs(symfit_norm_bound(2, o) - 2) < 1e-15);
 }
 
+/* Uniform in [-1, 1) (splitmix64; any fixed sequence does). */
+static double test_uniform(uint64_t *x)
+{
+    uint64_t z = (*x += 0x9e3779b97f4a7c15ULL);
+    z = (z ^ (z >> 30)) * 0xbf58476d1ce4e5b9ULL;
+    z = (z ^ (z >> 27)) * 0x94d049bb133111ebULL;
+    z ^= z >> 31;
+    return (double)(z >> 11) / 4503599627370496.0 - 1.0;
+}
+
+/* ||D(k)||_F by direct summation (the test's own, independent of the transforms in symfit.c). */
+static double direct_frobenius(int n, int nr, const int (*R)[3], const double complex *D, const double k[3])
+{
+    double sum = 0;
+    for (int ab = 0; ab < n * n; ab++) {
+        double complex x = 0;
+        for (int r = 0; r < nr; r++)
+            x += D[(size_t)r * n * n + ab] *
+                 cexp(2 * M_PI * I * (k[0] * R[r][0] + k[1] * R[r][1] + k[2] * R[r][2]));
+        sum += creal(x) * creal(x) + cimag(x) * cimag(x);
+    }
+    return sqrt(sum);
+}
+
+/* symfit_kmax_bound against analytic maxima and a direct fine mesh.
+ * (1) On-site only: D(k) = D_0 for every k, so the bound is ||D_0||_F (exact; no mesh slack).
+ * (2) D(k) = A sin(2 pi 4 k_1) with A Hermitian (D_{+4x} = A / 2i, D_{-4x} its adjoint): the
+ *     breaking that a mesh of 8 points per direction misses entirely; max_k ||D(k)||_F = ||A||_F,
+ *     and the bound lies within its stated 10% above it (symfit.h).
+ * (3) Random Hermitian-paired D on the 27 lattice vectors |R_a| <= 1 (4 x 4): the bound is at
+ *     least the largest ||D(k)||_F on a direct 32^3 mesh, and at most 1.22 times it (on that mesh
+ *     Bernstein's inequality, the same argument with W = 6 pi / 32, puts the mesh maximum within
+ *     a factor 0.91 of the true one, and the bound is within 1.105 above the true one), and far
+ *     below the sum over R of the norms (symfit_norm_bound): the square root of 27 is 5. */
+static void test_kmax_bound(void **state)
+{
+    (void)state;
+    bs_err err;
+    bs_err_clear(&err);
+    double bound;
+    int R0[1][3] = {{0, 0, 0}};
+    double complex D0[4] = {1, 2 - I, 2 + I, -3};
+    assert_int_equal(symfit_kmax_bound(2, 1, (const int(*)[3])R0, 3, D0, &bound, &err), 0);
+    if (!(fabs(bound - sqrt(1 + 5 + 5 + 9)) < 1e-12))
+        fail_msg("on-site: bound %.15g, ||D_0||_F %.15g", bound, sqrt(20.0));
+
+    int Rx[2][3] = {{4, 0, 0}, {-4, 0, 0}};
+    double complex A[4] = {0.3, 0.1 + 0.2 * I, 0.1 - 0.2 * I, -0.5}, Dx[8];
+    for (int i = 0; i < 2; i++)
+        for (int j = 0; j < 2; j++) {
+            Dx[i * 2 + j] = A[i * 2 + j] / (2 * I);
+            Dx[4 + i * 2 + j] = conj(A[j * 2 + i] / (2 * I));
+        }
+    double fa = sqrt(0.09 + 2 * 0.05 + 0.25);
+    assert_int_equal(symfit_kmax_bound(2, 2, (const int(*)[3])Rx, 3, Dx, &bound, &err), 0);
+    if (!(bound >= fa && bound <= 1.105 * fa)) fail_msg("sin 8 pi k1: bound %g, ||A||_F %g", bound, fa);
+
+    enum { n = 4, nr = 27 };
+    int R[nr][3];
+    double complex *D = calloc((size_t)nr * n * n, sizeof *D);
+    assert_non_null(D);
+    for (int r = 0; r < nr; r++) {
+        R[r][0] = r % 3 - 1;
+        R[r][1] = r / 3 % 3 - 1;
+        R[r][2] = r / 9 - 1;
+    }
+    uint64_t seed = 7;
+    double sum = 0;
+    for (int r = 0; r < nr; r++) {
+        int mr = nr - 1 - r; /* the index of -R */
+        if (mr < r) continue;
+        for (int a = 0; a < n; a++)
+            for (int b = 0; b < n; b++) {
+                double complex x = test_uniform(&seed) + I * test_uniform(&seed);
+                D[((size_t)r * n + a) * n + b] += x;
+                D[((size_t)mr * n + b) * n + a] += conj(x);
+            }
+    }
+    for (int r = 0; r < nr; r++)
+        sum += symfit_norm_bound(n, D + (size_t)r * n * n);
+    assert_int_equal(symfit_kmax_bound(n, nr, (const int(*)[3])R, 3, D, &bound, &err), 0);
+    double mesh_max = 0;
+    for (int i = 0; i < 32 * 32 * 32; i++) {
+        double k[3] = {(i % 32) / 32.0, (i / 32 % 32) / 32.0, (i / 1024) / 32.0};
+        mesh_max = fmax(mesh_max, direct_frobenius(n, nr, (const int(*)[3])R, D, k));
+    }
+    if (!(bound >= mesh_max && bound <= 1.22 * mesh_max && bound < sum / 2))
+        fail_msg("random: bound %g, direct mesh %g, sum of norms %g", bound, mesh_max, sum);
+    free(D);
+}
+
 /* The inversion map accepts Wannier centres a few hundredths of an Angstrom off their sites
  * (symmetry.h, pos_tol_ang; common practice for unsymmetrised fits): the B site of the CsCl-type
  * model (a = 4 Angstrom, inversion about A) moved by 0.02 Angstrom along x sits 0.04 Angstrom
@@ -318,6 +412,7 @@ int main(void)
         cmocka_unit_test(test_staggered_breaking),
         cmocka_unit_test(test_verdicts),
         cmocka_unit_test(test_norm_bound),
+        cmocka_unit_test(test_kmax_bound),
         cmocka_unit_test(test_errors),
         cmocka_unit_test(test_position_tolerance_angstrom),
     };
