@@ -342,8 +342,10 @@ static int incoherent(const symfit_break *b)
 /* The gap search of a fit whose time reversal is only approximate (fit-like breaking: incoherent,
  * symfit.h) runs on the restored model H_s (time reversal, and inversion when its breaking is
  * fit-like too), whose E(-k) = E(k) halves the meshes: every band of H lies within b of H_s's
- * (Weyl's inequality), b = sum_R ||H(R) - H_s(R)||, an upper bound of max_k ||H(k) - H_s(k)||_2
- * (symfit_symmetrise's moved.upper_ev); not delta = restored_breaking, the estimate that verdicts
+ * (Weyl's inequality), b an upper bound of max_k ||H(k) - H_s(k)||_2 (symfit_symmetrise's
+ * moved.kmax_ev: from ||H(k) - H_s(k)||_F on a mesh with Bernstein's inequality, about the square
+ * root of the number of lattice vectors below the sum over R of ||H(R) - H_s(R)||, which it
+ * falls back to for very long-ranged models); not delta = restored_breaking, the estimate that verdicts
  * and margins use: its mesh x 1.5 is no bound (a breaking on a lattice vector that the symmetry
  * mesh aliases, e.g. sin 8 pi k1 on its 8 points, is invisible to it). H's extremes sit in H_s's
  * basins that come within 2 b of its best, and short local minimisations on H from those
