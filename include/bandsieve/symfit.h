@@ -86,9 +86,11 @@ typedef struct symfit_opts {
 double symfit_norm_bound(int n, const double complex *A);
 
 /* An upper bound of max over all k of ||D(k)||_2, D(k) = sum_r D_r exp(2 pi i k.R_r) (nr matrices
- * n x n, one after another; R_r in reduced coordinates, dim periodic directions): P(k) =
- * ||D(k)||_F^2 >= ||D(k)||_2^2 is a trigonometric polynomial with frequencies |d_a| <= L_a (L_a the
- * spread of R_a); its values on a grid of 2 L_a + 1 points per direction (discrete Fourier sums of
+ * n x n, one after another; R_r in reduced coordinates, dim periodic directions; a vector may repeat)
+ * when D_{-R} = D_R^dagger; otherwise of its Hermitian part (D(k) + D(k)^dagger) / 2, the matrix
+ * that hk.c diagonalises for a model Hermitian only within BS_HERMITIAN_TOL_EV. P(k) =
+ * ||D(k)||_F^2 >= ||D(k)||_2^2 is a trigonometric polynomial with frequencies |d_a| <= L_a (L_a twice
+ * the largest |R_a|); its values on a grid of 2 L_a + 1 points per direction (discrete Fourier sums of
  * each orbital pair) give its coefficients exactly, and its largest value on a mesh of M_a points
  * per direction, divided by 1 - W^2 / 2 with W = pi sum_a L_a / M_a, bounds its maximum
  * (Bernstein's inequality |g''| <= W^2 max|g| for the restriction g to the segment from P's

@@ -496,17 +496,17 @@ int symfit_kmax_bound(int n, int nr, const int (*R)[3], int dim, const double co
     *out = INFINITY;
     if (nr < 1) return 0;
     size_t n2 = (size_t)n * n;
-    /* The lattice vectors on a box of S_a = L_a + 1 points per direction; P(k) has frequencies
-     * -L_a..L_a, so Q_a = 2 L_a + 1 samples per direction determine it. */
+    /* The Hermitian part (D(k) + D(k)^dagger) / 2, the matrix the eigensolvers see (hk.c averages
+     * H_R with H_{-R}^dagger), has coefficients (D_R + D_{-R}^dagger) / 2 on the vectors +-R_r: a box
+     * -h_a..h_a of S_a = L_a + 1 points per direction, L_a = 2 h_a. P(k) has frequencies -L_a..L_a,
+     * so Q_a = 2 L_a + 1 samples per direction determine it. */
     int lo[3] = {0, 0, 0}, L[3] = {0, 0, 0}, S[3], Q[3], M[3] = {1, 1, 1}, active = 0;
     for (int a = 0; a < dim && a < 3; a++) {
-        int hi = R[0][a];
-        lo[a] = R[0][a];
-        for (int r = 1; r < nr; r++) {
-            lo[a] = R[r][a] < lo[a] ? R[r][a] : lo[a];
-            hi = R[r][a] > hi ? R[r][a] : hi;
-        }
-        L[a] = hi - lo[a];
+        int h = 0;
+        for (int r = 0; r < nr; r++)
+            h = abs(R[r][a]) > h ? abs(R[r][a]) : h;
+        lo[a] = -h;
+        L[a] = 2 * h;
         active += L[a] > 0;
     }
     for (int a = 0; a < 3; a++) {
@@ -514,13 +514,14 @@ int symfit_kmax_bound(int n, int nr, const int (*R)[3], int dim, const double co
         Q[a] = 2 * L[a] + 1;
     }
     size_t box = (size_t)S[0] * S[1] * S[2], nq = (size_t)Q[0] * Q[1] * Q[2];
-    /* Orbital pairs a <= b that hop anywhere (|D_ab(k)| = |D_ba(k)|: D(k) is Hermitian). */
+    /* Orbital pairs a <= b that hop anywhere (the Hermitian part has |X_ab(k)| = |X_ba(k)|). */
     size_t *pair = malloc(n2 * sizeof *pair), np = 0;
     if (!pair) return bs_fail(err, BS_ENOMEM, "out of memory for the breaking's bound");
     for (int a = 0; a < n; a++)
         for (int b = a; b < n; b++)
             for (int r = 0; r < nr; r++)
-                if (D[(size_t)r * n2 + (size_t)a * n + b] != 0) {
+                if (D[(size_t)r * n2 + (size_t)a * n + b] != 0 ||
+                    D[(size_t)r * n2 + (size_t)b * n + a] != 0) {
                     pair[np++] = (size_t)a * n + b;
                     break;
                 }
@@ -546,19 +547,25 @@ int symfit_kmax_bound(int n, int nr, const int (*R)[3], int dim, const double co
     double complex *t2 = malloc(cp * S[0] * Q[1] * Q[2] * sizeof *t2), *v = malloc(cp * nq * sizeof *v);
     double complex *w[3] = {dft_table(Q[0], S[0], 1), dft_table(Q[1], S[1], 1), dft_table(Q[2], S[2], 1)};
     double *P = calloc(nq, sizeof *P);
-    size_t *at = malloc((size_t)nr * sizeof *at);
+    size_t *at = malloc(2 * (size_t)nr * sizeof *at); /* box indices of R_r, then of -R_r */
     int rc = g && t1 && t2 && v && w[0] && w[1] && w[2] && P && at ? 0 : -1;
     for (int r = 0; rc == 0 && r < nr; r++)
-        at[r] = ((size_t)(R[r][0] - lo[0]) * S[1] + (dim > 1 ? R[r][1] - lo[1] : 0)) * S[2] +
-                (dim > 2 ? R[r][2] - lo[2] : 0);
+        for (int sign = 1; sign >= -1; sign -= 2)
+            at[sign > 0 ? r : nr + r] =
+                ((size_t)(sign * R[r][0] - lo[0]) * S[1] + (dim > 1 ? sign * R[r][1] - lo[1] : 0)) * S[2] +
+                (dim > 2 ? sign * R[r][2] - lo[2] : 0);
     const double complex one = 1, zero = 0;
     /* P on the Q grid: the sum over orbital pairs of |D_ab(k)|^2. */
     for (size_t p0 = 0; rc == 0 && p0 < np; p0 += cp) {
         int c = (int)(np - p0 < cp ? np - p0 : cp);
         memset(g, 0, (size_t)c * box * sizeof *g);
+        /* Summed, not assigned: a lattice vector may be listed twice. */
         for (int r = 0; r < nr; r++)
-            for (int q = 0; q < c; q++)
-                g[at[r] * c + q] = D[(size_t)r * n2 + pair[p0 + q]];
+            for (int q = 0; q < c; q++) {
+                size_t ab = pair[p0 + q], ba = ab % n * n + ab / n;
+                g[at[r] * c + q] += 0.5 * D[(size_t)r * n2 + ab];
+                g[at[nr + r] * c + q] += 0.5 * conj(D[(size_t)r * n2 + ba]);
+            }
         /* Direction 2: per (s0, s1), the c x S2 block times the S2 x Q2 table. */
         for (int x = 0; x < S[0] * S[1]; x++)
             cblas_zgemm(CblasColMajor, CblasNoTrans, CblasNoTrans, c, Q[2], S[2], &one,

@@ -290,7 +290,11 @@ static double direct_frobenius(int n, int nr, const int (*R)[3], const double co
  *     least the largest ||D(k)||_F on a direct 32^3 mesh, and at most 1.22 times it (on that mesh
  *     Bernstein's inequality, the same argument with W = 6 pi / 32, puts the mesh maximum within
  *     a factor 0.91 of the true one, and the bound is within 1.105 above the true one), and far
- *     below the sum over R of the norms (symfit_norm_bound): the square root of 27 is 5. */
+ *     below the sum over R of the norms (symfit_norm_bound): the square root of 27 is 5.
+ * (4) Input Hermitian only within a tolerance: the bound is of the Hermitian part, the matrix that
+ *     hk.c diagonalises; on-site D_0 = [[0, 0], [1, 0]] has the part [[0, 1/2], [1/2, 0]] of
+ *     Frobenius norm sqrt(1/2) (exact; the upper triangle alone would give 0), and D_0 listed twice
+ *     at R = 0 adds up (the definition of D(k)): 2 sqrt(1/2). */
 static void test_kmax_bound(void **state)
 {
     (void)state;
@@ -346,6 +350,13 @@ static void test_kmax_bound(void **state)
     if (!(bound >= mesh_max && bound <= 1.22 * mesh_max && bound < sum / 2))
         fail_msg("random: bound %g, direct mesh %g, sum of norms %g", bound, mesh_max, sum);
     free(D);
+
+    int R00[2][3] = {{0, 0, 0}, {0, 0, 0}};
+    double complex lower[8] = {0, 0, 1, 0, 0, 0, 1, 0};
+    assert_int_equal(symfit_kmax_bound(2, 1, (const int(*)[3])R00, 3, lower, &bound, &err), 0);
+    if (!(fabs(bound - sqrt(0.5)) < 1e-12)) fail_msg("lower triangle only: bound %.15g, sqrt(1/2)", bound);
+    assert_int_equal(symfit_kmax_bound(2, 2, (const int(*)[3])R00, 3, lower, &bound, &err), 0);
+    if (!(fabs(bound - 2 * sqrt(0.5)) < 1e-12)) fail_msg("R = 0 listed twice: bound %.15g, sqrt(2)", bound);
 }
 
 /* The inversion map accepts Wannier centres a few hundredths of an Angstrom off their sites
