@@ -86,27 +86,31 @@ typedef struct symfit_opts {
 double symfit_norm_bound(int n, const double complex *A);
 
 /* An upper bound of max over all k of ||D(k)||_2, D(k) = sum_r D_r exp(2 pi i k.R_r) (nr matrices
- * n x n, one after another; R_r in reduced coordinates, dim periodic directions; a vector may repeat)
- * when D_{-R} = D_R^dagger; otherwise of its Hermitian part (D(k) + D(k)^dagger) / 2, the matrix
- * that hk.c diagonalises for a model Hermitian only within BS_HERMITIAN_TOL_EV. P(k) =
- * ||D(k)||_F^2 >= ||D(k)||_2^2 is a trigonometric polynomial with frequencies |d_a| <= L_a (L_a twice
- * the largest |R_a|); its values on a grid of 2 L_a + 1 points per direction (discrete Fourier sums of
- * each orbital pair) give its coefficients exactly, and its largest value on a mesh of M_a points
- * per direction, divided by 1 - W^2 / 2 with W = pi sum_a L_a / M_a, bounds its maximum
- * (Bernstein's inequality |g''| <= W^2 max|g| for the restriction g to the segment from P's
- * maximum, where g' = 0, to the nearest mesh point; S. Bernstein, Mem. Acad. Roy. Belg. 4, 1
- * (1912), reference from memory, in the form for functions of exponential type; the mesh is chosen for W <=
- * 0.6, a 10% margin on the norm). For fit noise, uncorrelated between lattice vectors, it is about the square
- * root of their number below the sum of norms per lattice vector, and about sqrt(n) / 2 above the true
- * spectral maximum. *out = INFINITY (no bound) when the transforms and the mesh would cost more than
- * SYMFIT_KMAX_BUDGET n^3 multiply-adds. BS_ENOMEM. */
+ * n x n, one after another; R_r in reduced coordinates, dim periodic directions; a vector may
+ * repeat) when D_{-R} = D_R^dagger; otherwise of its Hermitian part (D(k) + D(k)^dagger) / 2, the
+ * matrix that hk.c diagonalises for a model Hermitian only within BS_HERMITIAN_TOL_EV.
+ * P(k) = ||D(k)||_F^2 >= ||D(k)||_2^2 is a trigonometric polynomial with frequencies |d_a| <= L_a
+ * (L_a twice the largest |R_a|); its values on a grid of 2 L_a + 1 points per direction (discrete
+ * Fourier sums of each orbital pair) give its coefficients exactly. Its largest value on a mesh of
+ * M_a points per direction, divided by 1 - W^2 / 4 with W = pi sum_a L_a / M_a, bounds its
+ * maximum P*: along the segment from P's maximum (where g' = 0) to the nearest mesh point,
+ * g - P* / 2 has frequencies at most W and size at most P* / 2 (0 <= P <= P*), so Bernstein's
+ * inequality gives |g''| <= W^2 P* / 2 (S. Bernstein, Mem. Acad. Roy. Belg. 4, 1 (1912),
+ * reference from memory, in the form for functions of exponential type); the mesh is chosen for
+ * W <= 0.85, at most 10% on the norm. For fit noise, uncorrelated between lattice vectors, the
+ * bound is about the square root of their number below the sum of norms per lattice vector, and
+ * about sqrt(n) / 2 above the true spectral maximum. *out = INFINITY (no bound) when the
+ * transforms and the mesh would cost more than SYMFIT_KMAX_BUDGET n^3 multiply-adds (or
+ * SYMFIT_KMAX_FLOOR, whichever is larger). BS_ENOMEM. */
 int symfit_kmax_bound(int n, int nr, const int (*R)[3], int dim, const double complex *D, double *out,
                       bs_err *err);
 /* The cost cap of symfit_kmax_bound, in units of n^3 complex multiply-adds: the transforms cost
  * about n^2 / 2 (L + 1) (2 L + 1)^3 for hoppings out to L / 2 cells, the mesh less. Measured on the
  * costliest benchmark model (48 states, 639 lattice vectors, L = 10: 2,300 units): 0.14 s, the
- * time of about 450 of its eigensolves, where the tighter window saved 1,100 of them. */
+ * time of about 450 of its eigensolves, where the tighter window saved 1,100 of them. Small models
+ * get the floor instead (2e7 multiply-adds, some 20 ms): their mesh alone exceeds n^3 many times. */
 #define SYMFIT_KMAX_BUDGET 3000
+#define SYMFIT_KMAX_FLOOR  2e7
 
 /* Breaking of m (borrowed) by time reversal (which = SYMFIT_TR) or inversion (SYMFIT_INV) with the
  * operators of s (borrowed; from sym_detect on m). o may be NULL. out->available = 0 and 0 returned

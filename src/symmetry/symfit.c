@@ -526,7 +526,7 @@ int symfit_kmax_bound(int n, int nr, const int (*R)[3], int dim, const double co
                     break;
                 }
     /* Multiply-adds: the transforms per orbital pair, and the mesh (its last direction dominates). */
-    const double wmax = 0.6;
+    const double wmax = 0.85;
     double W = 0,
            madds = (double)S[0] * S[1] * S[2] * Q[2] + (double)S[0] * S[1] * Q[1] * Q[2] + (double)S[0] * nq;
     madds *= (double)np;
@@ -536,7 +536,7 @@ int symfit_kmax_bound(int n, int nr, const int (*R)[3], int dim, const double co
         W += M_PI * L[a] / M[a];
     }
     madds += (double)M[0] * M[1] * M[2] * (L[0] + 1);
-    if (madds > SYMFIT_KMAX_BUDGET * (double)n * n * n) {
+    if (madds > fmax(SYMFIT_KMAX_BUDGET * (double)n * n * n, SYMFIT_KMAX_FLOOR)) {
         free(pair);
         return 0;
     }
@@ -641,7 +641,7 @@ int symfit_kmax_bound(int n, int nr, const int (*R)[3], int dim, const double co
     /* Round-off of the sums: each |C[d]| <= C[0], the mean of P (Cauchy-Schwarz), so a few ulps of
      * nq C[0] per transform cover it. */
     pmax += 1e-13 * (double)nq * c0;
-    *out = sqrt(fmax(pmax, 0) / (1 - 0.5 * W * W));
+    *out = sqrt(fmax(pmax, 0) / (1 - 0.25 * W * W));
     return 0;
 }
 
