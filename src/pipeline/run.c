@@ -77,7 +77,7 @@ typedef struct wire_work {
  * machine it may wake late) and take several results per wake-up. Longer
  * materials gain nothing from it and would only wait in a queue at the end of the job, so they are
  * handed out one at a time; so is a worker's first material. */
-enum { PL_PREFETCH_MAX = 32 };
+enum { PL_PREFETCH_MAX = 64 };
 #define PL_PREFETCH_SECONDS 0.25
 #define PL_PREFETCH_COVER   20e-3
 
