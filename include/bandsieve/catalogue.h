@@ -172,10 +172,13 @@ int cat_result_put(cat_db *cat, int64_t run_id, const char *material_id, cat_sta
 /* As cat_result_put, with the diagnosis column given as text: stored_text (borrowed) is diag's
  * JSON form without flows, res_to_text(diag, 0), as the worker printed it; it is stored as it is
  * instead of being printed again from diag (printing was a third of the catalogue's CPU per ok
- * result). NULL: printed from diag. The caller vouches that the text is diag's form. */
+ * result). NULL: printed from diag. The caller vouches that the text is diag's form. content
+ * (borrowed; NULL: read from the materials row, as cat_result_put does) is the row's content
+ * hash when the caller knows it to be the material's current one (the coordinator recorded it in
+ * the set-up), which saves a look-up per row. */
 int cat_result_put_stored(cat_db *cat, int64_t run_id, const char *material_id, cat_status status,
-                          const char *message, const res_diag *diag, const char *stored_text, int rank,
-                          double seconds, bs_err *err);
+                          const char *message, const res_diag *diag, const char *stored_text,
+                          const char *content, int rank, double seconds, bs_err *err);
 
 /* As cat_result_put with the diagnosis as JSON text of len bytes, read with res_from_text (keys
  * that are missing take the values of an empty result); text NULL means no diagnosis. Malformed
@@ -219,6 +222,10 @@ int cat_finished_ids(cat_db *cat, const cat_run_info *info, cat_ids *ids, bs_err
 /* *stale = 1 when the material row is missing or has another content than `content` (or none):
  * its provenance should be (re)written from the set. */
 int cat_material_stale(cat_db *cat, const char *material_id, const char *content, int *stale, bs_err *err);
+
+/* *any = 1 when the catalogue has at least one material row, 0 when none (a new catalogue): then
+ * every material is stale without a look-up each. */
+int cat_has_materials(cat_db *cat, int *any, bs_err *err);
 
 /* The highest mesh among the `ok` rows of the material's current content, 0 when it has none. */
 int cat_best_mesh(cat_db *cat, const char *material_id, int *mesh, bs_err *err);

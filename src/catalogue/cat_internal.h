@@ -29,12 +29,22 @@ enum {
     CAT_ST_COUNT
 };
 
+/* Slots of the results INSERT's parameter table: a power of two, at least twice its parameters. */
+enum { CAT_RESULT_PARAMS = 128 };
+typedef struct cat_param {
+    char name[40]; /* ":column"; "" for an empty slot */
+    int index;
+} cat_param;
+
 struct cat_db {
     sqlite3 *db;
     int mode;         /* CAT_RO / CAT_RW */
     int from_version; /* schema version found at open (migrated when older) */
     char *path;       /* catalogue file, as given */
     sqlite3_stmt *st[CAT_ST_COUNT];
+    /* The results INSERT's parameters by name (cat_result_param): an open-addressing table, so
+     * that a bind costs one hash instead of SQLite's scan of the statement's 50-odd names. */
+    cat_param result_params[CAT_RESULT_PARAMS];
 
     int batch_rows;
     double batch_seconds;
@@ -43,10 +53,9 @@ struct cat_db {
     int pending_results; /* result rows in it */
     double txn_started;  /* monotonic seconds when it was opened */
 
-    int64_t cur_run; /* run and session opened on this handle (0: none) */
-    int64_t now_sec; /* cat_now_text: the second now_prefix is about, and its seconds field */
-    int now_s;
-    char now_prefix[24];
+    int64_t cur_run;     /* run and session opened on this handle (0: none) */
+    int64_t now_sec;     /* cat_now_text: the second now_prefix is about */
+    char now_prefix[32]; /* that second as "YYYY-MM-DDTHH:MM:SS." */
     int cur_session;
 
     volatile sig_atomic_t *stop_flag; /* cat_set_limits: borrowed, may be NULL */
@@ -66,6 +75,13 @@ struct cat_db {
  * "2026-12-02T14:03:22.123Z", into buf (32 bytes or more), which it returns. Formatted here rather
  * than by strftime('now') in the statement, which cost a fifth of an invalid result's insert. */
 const char *cat_now_text(cat_db *cat, char *buf, size_t len);
+
+/* Fills cat->result_params from the prepared results INSERT (cat->st[CAT_ST_RESULT]); BS_EINVAL
+ * when a name does not fit (our own bug: the statement and the table disagree). */
+int cat_result_params_init(cat_db *cat, bs_err *err);
+
+/* The results INSERT's index of parameter `name` (":column"), 0 when it has none. */
+int cat_result_param(const cat_db *cat, const char *name);
 
 /* Monotonic clock in seconds. */
 double cat_now(void);

@@ -18,9 +18,50 @@ typedef struct put_ctx {
     bs_err *err;
 } put_ctx;
 
+/* FNV-1a (common practice): spreads the parameter names over the table's slots. */
+static unsigned name_hash(const char *name)
+{
+    unsigned h = 2166136261u;
+    for (const unsigned char *p = (const unsigned char *)name; *p; p++)
+        h = (h ^ *p) * 16777619u;
+    return h;
+}
+
+int cat_result_params_init(cat_db *cat, bs_err *err)
+{
+    sqlite3_stmt *st = cat->st[CAT_ST_RESULT];
+    memset(cat->result_params, 0, sizeof cat->result_params);
+    int n = sqlite3_bind_parameter_count(st);
+    if (2 * n > CAT_RESULT_PARAMS)
+        return bs_fail(err, BS_EINVAL, "results insert: %d parameters, more than its table holds", n);
+    for (int i = 1; i <= n; i++) {
+        const char *name = sqlite3_bind_parameter_name(st, i);
+        if (!name || strlen(name) >= sizeof cat->result_params[0].name)
+            return bs_fail(err, BS_EINVAL, "results insert: parameter %d has no usable name", i);
+        unsigned k = name_hash(name) & (CAT_RESULT_PARAMS - 1);
+        while (cat->result_params[k].name[0] && strcmp(cat->result_params[k].name, name) != 0)
+            k = (k + 1) & (CAT_RESULT_PARAMS - 1);
+        if (cat->result_params[k].name[0]) continue; /* a name used twice has one index */
+        memcpy(cat->result_params[k].name, name, strlen(name) + 1);
+        cat->result_params[k].index = i;
+    }
+    return 0;
+}
+
+int cat_result_param(const cat_db *cat, const char *name)
+{
+    unsigned k = name_hash(name) & (CAT_RESULT_PARAMS - 1);
+    /* The table is at most half full, so an empty slot ends every probe. */
+    while (cat->result_params[k].name[0]) {
+        if (strcmp(cat->result_params[k].name, name) == 0) return cat->result_params[k].index;
+        k = (k + 1) & (CAT_RESULT_PARAMS - 1);
+    }
+    return 0;
+}
+
 static int param(const put_ctx *pc, const char *name)
 {
-    return sqlite3_bind_parameter_index(pc->st, name);
+    return cat_result_param(pc->cat, name);
 }
 
 static void bind_num(const put_ctx *pc, const char *name, double v)
@@ -85,7 +126,11 @@ static int bind_column(void *ctx, const char *column, const res_value *v)
 {
     const put_ctx *pc = ctx;
     char name[64];
-    snprintf(name, sizeof name, ":%s", column);
+    size_t len = strlen(column);
+    if (len + 2 > sizeof name)
+        return bs_fail(pc->err, BS_EINVAL, "results column name \"%.40s...\" too long", column);
+    name[0] = ':';
+    memcpy(name + 1, column, len + 1);
     int i = param(pc, name);
     if (i == 0)
         return bs_fail(pc->err, BS_EINVAL, "results has no column \"%s\" (schema and key table disagree)",
@@ -132,16 +177,19 @@ static int bind_diag(const put_ctx *pc)
  * JSON form without the bulky flows, which live in the artifact file: stored (borrowed) when the
  * caller has it, else printed into *diag_text (the caller frees it with cJSON_free). */
 static int bind_row(const put_ctx *pc, int64_t run_id, cat_status status, const char *message, int rank,
-                    double seconds, const char *stored, char **diag_text)
+                    double seconds, const char *stored, const char *content, char **diag_text)
 {
     sqlite3_stmt *st = pc->st;
     sqlite3_bind_int64(st, param(pc, ":run_id"), run_id);
-    sqlite3_bind_text(st, param(pc, ":material_id"), pc->mid, -1, SQLITE_TRANSIENT);
+    /* The caller's strings are bound without a copy: they outlive the statement's bindings,
+     * which cat_result_put_stored clears before it returns. */
+    sqlite3_bind_text(st, param(pc, ":material_id"), pc->mid, -1, SQLITE_STATIC);
+    if (content) sqlite3_bind_text(st, param(pc, ":content"), content, -1, SQLITE_STATIC);
     sqlite3_bind_text(st, param(pc, ":status"), cat_status_name(status), -1, SQLITE_STATIC);
     char now[32];
     sqlite3_bind_text(st, param(pc, ":finished"), cat_now_text(pc->cat, now, sizeof now), -1,
                       SQLITE_TRANSIENT);
-    if (message) sqlite3_bind_text(st, param(pc, ":message"), message, -1, SQLITE_TRANSIENT);
+    if (message) sqlite3_bind_text(st, param(pc, ":message"), message, -1, SQLITE_STATIC);
     if (rank >= 0) sqlite3_bind_int(st, param(pc, ":rank"), rank);
     if (seconds >= 0)
         bind_num(pc, ":seconds", seconds);
@@ -326,18 +374,19 @@ static int check_args(cat_db *cat, const char *mid, cat_status status, const res
 int cat_result_put(cat_db *cat, int64_t run_id, const char *material_id, cat_status status,
                    const char *message, const res_diag *diag, int rank, double seconds, bs_err *err)
 {
-    return cat_result_put_stored(cat, run_id, material_id, status, message, diag, NULL, rank, seconds, err);
+    return cat_result_put_stored(cat, run_id, material_id, status, message, diag, NULL, NULL, rank, seconds,
+                                 err);
 }
 
 int cat_result_put_stored(cat_db *cat, int64_t run_id, const char *material_id, cat_status status,
-                          const char *message, const res_diag *diag, const char *stored_text, int rank,
-                          double seconds, bs_err *err)
+                          const char *message, const res_diag *diag, const char *stored_text,
+                          const char *content, int rank, double seconds, bs_err *err)
 {
     int rc = check_args(cat, material_id, status, diag, err);
     if (rc != 0) return rc;
     put_ctx pc = {cat, cat->st[CAT_ST_RESULT], diag, material_id, err};
     char *diag_text = NULL;
-    rc = bind_row(&pc, run_id, status, message, rank, seconds, stored_text, &diag_text);
+    rc = bind_row(&pc, run_id, status, message, rank, seconds, stored_text, content, &diag_text);
     if (rc == 0) rc = write_row(cat, run_id, material_id, diag, err);
     sqlite3_reset(pc.st); /* a failed bind leaves values behind; the next put starts clean */
     sqlite3_clear_bindings(pc.st);

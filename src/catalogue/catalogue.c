@@ -58,11 +58,23 @@ const char *cat_now_text(cat_db *cat, char *buf, size_t len)
         struct tm tm;
         time_t sec = ts.tv_sec;
         gmtime_r(&sec, &tm);
-        strftime(cat->now_prefix, sizeof cat->now_prefix, "%Y-%m-%dT%H:%M:", &tm);
+        if (strftime(cat->now_prefix, sizeof cat->now_prefix, "%Y-%m-%dT%H:%M:%S.", &tm) == 0)
+            cat->now_prefix[0] = '\0';
         cat->now_sec = ts.tv_sec;
-        cat->now_s = tm.tm_sec;
     }
-    snprintf(buf, len, "%s%02d.%03ldZ", cat->now_prefix, cat->now_s, ts.tv_nsec / 1000000);
+    /* The milliseconds by hand: snprintf of the whole text cost more than the insert it dates. */
+    size_t plen = strlen(cat->now_prefix);
+    long ms = ts.tv_nsec / 1000000;
+    if (plen + 5 > len) {
+        snprintf(buf, len, "%s", cat->now_prefix);
+        return buf;
+    }
+    memcpy(buf, cat->now_prefix, plen);
+    buf[plen] = (char)('0' + ms / 100);
+    buf[plen + 1] = (char)('0' + ms / 10 % 10);
+    buf[plen + 2] = (char)('0' + ms % 10);
+    buf[plen + 3] = 'Z';
+    buf[plen + 4] = '\0';
     return buf;
 }
 
@@ -343,8 +355,9 @@ static const char *const STMT_SQL[CAT_ST_COUNT] = {
         ":shc_units,"
         " :transport_fermi_ev, :diagnosis,"
         /* The content the row is about: the coordinator records each entry's content in materials
-         * before handing it out (pl coord_setup), so the current one is the one computed. */
-        " (SELECT content FROM materials WHERE material_id = :material_id),"
+         * before handing it out (pl coord_setup), so the current one is the one computed; it binds
+         * that hash as :content, and the look-up runs only for callers that do not know it. */
+        " COALESCE(:content, (SELECT content FROM materials WHERE material_id = :material_id)),"
         " :magnetism, :tr_verdict, :inv_verdict, :tr_breaking_ev, :inv_breaking_ev,"
         " :symmetrised, :restored, :breaking_ev, :breaking_bound, :symmetry_margin, :spacegroup,"
         " :symmetry_ops, :crystal_breaking_ev, :z4, :mirror_chern, :mirror_chern_status)",
@@ -362,7 +375,9 @@ static const char *const STMT_SQL[CAT_ST_COUNT] = {
     [CAT_ST_MAT_UPSERT] =
         "INSERT INTO materials (material_id, formula, dimension, norb, nr, nocc, spinful, set_path, source,"
         " card_json, updated, content, set_content, comment, orbital_labels, meta)"
-        " VALUES (?1, ?2, ?3, ?4, ?5, ?6, ?7, ?8, ?9, ?10, " CAT_NOW_SQL ", ?11, ?12, ?13, ?14, ?15)"
+        /* ?17: the time as cat_now_text writes it (the set-up writes a row per entry, and
+         * strftime in SQL cost more than the C formatting of a cached second). */
+        " VALUES (?1, ?2, ?3, ?4, ?5, ?6, ?7, ?8, ?9, ?10, ?17, ?11, ?12, ?13, ?14, ?15)"
         /* ?16 = 1: the provenance fields (formula, source, card, comment, labels, meta) are replaced
          * as a whole, NULLs included, so a new content never keeps the old content's comment. */
         " ON CONFLICT (material_id) DO UPDATE SET"
@@ -387,7 +402,7 @@ static int prepare_all(cat_db *cat, bs_err *err)
         if (sqlite3_prepare_v3(cat->db, STMT_SQL[i], -1, SQLITE_PREPARE_PERSISTENT, &cat->st[i], NULL) !=
             SQLITE_OK)
             return cat_sql_fail(cat, err, "preparing catalogue statements");
-    return 0;
+    return cat_result_params_init(cat, err);
 }
 
 /* SQLite's progress handler: nonzero stops the running statement with SQLITE_INTERRUPT. */
@@ -500,6 +515,12 @@ static int configure(cat_db *cat, bs_err *err)
                      mode ? mode : "unknown", sqlite3_errmsg(cat->db));
     sqlite3_finalize(st);
     if (rc == 0) rc = cat_exec(cat, "PRAGMA synchronous = NORMAL", err);
+    /* The schema's CHECK constraints stay for other writers (the sqlite3 shell, scripts); this
+     * connection checks the same values in C before it binds them (statuses and kinds are names
+     * of our enums, dimension and spinful are checked in cat_material_upsert). SQLite evaluates
+     * results.status IN (four names) by building a temporary b-tree on every insert, which was a
+     * fifth of the coordinator's cost per result. */
+    if (rc == 0) rc = cat_exec(cat, "PRAGMA ignore_check_constraints = ON", err);
     /* 32 MB of page cache for the writer (the default is 2 MB): the results table and its
      * indexes of a 10^5-material screen stay in memory, saving a read per insert. */
     if (rc == 0) rc = cat_exec(cat, "PRAGMA cache_size = -32768", err);
@@ -692,6 +713,16 @@ static void bind_text_or_null(sqlite3_stmt *st, int i, const char *s)
 {
     if (s)
         sqlite3_bind_text(st, i, s, -1, SQLITE_TRANSIENT);
+    else
+        sqlite3_bind_null(st, i);
+}
+
+/* As bind_text_or_null, without SQLite's copy: only for a statement that is stepped, reset and
+ * cleared of its bindings before s goes (the per-entry statements of the set-up). */
+static void bind_borrowed_or_null(sqlite3_stmt *st, int i, const char *s)
+{
+    if (s)
+        sqlite3_bind_text(st, i, s, -1, SQLITE_STATIC);
     else
         sqlite3_bind_null(st, i);
 }
@@ -992,25 +1023,30 @@ int cat_material_upsert(cat_db *cat, const cat_material *m, bs_err *err)
     if (m->dimension > 0 && m->dimension != 2 && m->dimension != 3)
         return bs_fail(err, BS_EINVAL, "material %s: dimension must be 2 or 3, found %d", m->material_id,
                        m->dimension);
+    if (m->spinful > 1)
+        return bs_fail(err, BS_EINVAL, "material %s: spinful must be 0 or 1, found %d", m->material_id,
+                       m->spinful);
     rc = cat_txn_begin(cat, err);
     if (rc != 0) return rc;
     sqlite3_stmt *st = cat->st[CAT_ST_MAT_UPSERT];
-    sqlite3_bind_text(st, 1, m->material_id, -1, SQLITE_TRANSIENT);
-    bind_text_or_null(st, 2, m->formula);
+    sqlite3_bind_text(st, 1, m->material_id, -1, SQLITE_STATIC);
+    bind_borrowed_or_null(st, 2, m->formula);
     bind_int_or_null(st, 3, m->dimension, 1);
     bind_int_or_null(st, 4, m->norb, 1);
     bind_int_or_null(st, 5, m->nr, 1);
     bind_int_or_null(st, 6, m->nocc, 1);
     bind_int_or_null(st, 7, m->spinful, 0);
-    bind_text_or_null(st, 8, m->set_path);
-    bind_text_or_null(st, 9, m->source);
-    bind_text_or_null(st, 10, m->card_json);
-    bind_text_or_null(st, 11, m->content);
-    bind_text_or_null(st, 12, m->set_content);
-    bind_text_or_null(st, 13, m->comment);
-    bind_text_or_null(st, 14, m->orbital_labels);
-    bind_text_or_null(st, 15, m->meta);
+    bind_borrowed_or_null(st, 8, m->set_path);
+    bind_borrowed_or_null(st, 9, m->source);
+    bind_borrowed_or_null(st, 10, m->card_json);
+    bind_borrowed_or_null(st, 11, m->content);
+    bind_borrowed_or_null(st, 12, m->set_content);
+    bind_borrowed_or_null(st, 13, m->comment);
+    bind_borrowed_or_null(st, 14, m->orbital_labels);
+    bind_borrowed_or_null(st, 15, m->meta);
     sqlite3_bind_int(st, 16, m->provenance ? 1 : 0);
+    char now[32];
+    sqlite3_bind_text(st, 17, cat_now_text(cat, now, sizeof now), -1, SQLITE_STATIC);
     int s = sqlite3_step(st);
     sqlite3_reset(st);
     sqlite3_clear_bindings(st);
@@ -1143,8 +1179,8 @@ int cat_material_stale(cat_db *cat, const char *material_id, const char *content
     if (!st)
         return bs_fail(err, BS_EINVAL, "%s: material contents need a catalogue opened for writing",
                        cat->path);
-    sqlite3_bind_text(st, 1, material_id, -1, SQLITE_TRANSIENT);
-    bind_text_or_null(st, 2, content);
+    sqlite3_bind_text(st, 1, material_id, -1, SQLITE_STATIC);
+    bind_borrowed_or_null(st, 2, content);
     int rc = 0, s = sqlite3_step(st);
     if (s == SQLITE_ROW)
         *stale = !sqlite3_column_int(st, 0);
@@ -1152,6 +1188,20 @@ int cat_material_stale(cat_db *cat, const char *material_id, const char *content
         rc = cat_sql_fail(cat, err, "reading a material's content");
     sqlite3_reset(st);
     sqlite3_clear_bindings(st);
+    return rc;
+}
+
+int cat_has_materials(cat_db *cat, int *any, bs_err *err)
+{
+    *any = 1;
+    sqlite3_stmt *st = NULL;
+    int rc = prepare(cat, "SELECT EXISTS (SELECT 1 FROM materials)", &st, err);
+    if (rc != 0) return rc;
+    if (sqlite3_step(st) == SQLITE_ROW)
+        *any = sqlite3_column_int(st, 0);
+    else
+        rc = cat_sql_fail(cat, err, "looking for material rows");
+    sqlite3_finalize(st);
     return rc;
 }
 

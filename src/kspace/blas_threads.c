@@ -29,6 +29,16 @@ static void set_threads(int n)
 {
     void (*ob)(int) = (void (*)(int))find((void *)openblas_set_num_threads, "openblas_set_num_threads");
     if (ob) ob(n);
+    /* OpenBLAS (pthread build) starts its pool when it is loaded, one thread per further core, and
+     * an idle pool thread spins on sched_yield for about 2^28 cycles before it sleeps: 0.04-0.06 s
+     * of CPU in every process of a screen (a tenth of a coordinator's CPU for 20,000 results),
+     * taken from the workers' cores. With one thread the pool is never used, so it is stopped; a
+     * later threaded call (n > 1) starts it again, as OpenBLAS does after fork(). Resolved by name
+     * only: the symbol is exported by OpenBLAS but declared in no header. */
+    if (ob && n == 1) {
+        void (*shutdown)(void) = (void (*)(void))dlsym(RTLD_DEFAULT, "blas_thread_shutdown_");
+        if (shutdown) shutdown();
+    }
     void (*mkl)(int) = (void (*)(int))find((void *)MKL_Set_Num_Threads, "MKL_Set_Num_Threads");
     if (mkl) mkl(n);
     void (*bli)(long) =

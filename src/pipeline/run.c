@@ -77,7 +77,7 @@ typedef struct wire_work {
  * machine it may wake late) and take several results per wake-up. Longer
  * materials gain nothing from it and would only wait in a queue at the end of the job, so they are
  * handed out one at a time; so is a worker's first material. */
-enum { PL_PREFETCH_MAX = 32 };
+enum { PL_PREFETCH_MAX = 64 };
 #define PL_PREFETCH_SECONDS 0.25
 #define PL_PREFETCH_COVER   20e-3
 
@@ -118,6 +118,7 @@ typedef struct coord {
     int nsusp, susp_left;         /* how many; how many not yet handed out */
     int discarded;                /* the new run had nothing to do and was removed again */
     double memory_budget;         /* bytes per material (per rank; a group has group_size times it) */
+    int had_materials;            /* the catalogue had material rows before the set-up (else all stale) */
 } coord;
 
 /* Sessions in which a material may take its worker down before it is given up as failed. */
@@ -338,7 +339,7 @@ static int record_material(coord *c, int i, const char *set_content, bs_err *err
     char content[65];
     int stale = 1;
     int rc = ms_content(c->set, i, content, err);
-    if (rc == 0) rc = cat_material_stale(c->cat, e->id, content, &stale, err);
+    if (rc == 0 && c->had_materials) rc = cat_material_stale(c->cat, e->id, content, &stale, err);
     if (rc != 0) return rc;
     /* --rerun redoes everything, so its few extra reads refresh cards edited without a change of
      * content (a new comment or meta). */
@@ -514,6 +515,8 @@ static int coord_setup(coord *c, int ranks, const char *hosts, bs_err *err)
     /* The material rows go in one transaction (a commit per batch of 64 would cost a sync each,
      * seconds for 10^5 entries); the result batching is restored after. */
     if (rc == 0) rc = cat_set_batch(c->cat, 1 << 30, 1e9, err);
+    /* In a new catalogue every entry is stale: no look-up per entry (the set has no id twice). */
+    if (rc == 0) rc = cat_has_materials(c->cat, &c->had_materials, err);
     for (int i = 0; rc == 0 && i < ms_count(c->set); i++)
         if (!o->where_sql || cat_ids_contains(&sel, ms_entry_at(c->set, i)->id))
             rc = record_material(c, i, set_content, err);
@@ -619,12 +622,19 @@ static int coord_record(coord *c, const pl_outcome *out, int job_limited, bs_err
     res_init(&r);
     int has = out->json != NULL;
     int rc = has ? res_from_text(out->json, strlen(out->json), &r, err) : 0;
+    /* The content hash the set-up recorded for this entry (record_material), kept by the set:
+     * the row's content without a look-up in the catalogue. */
+    char content[65];
+    int at = ms_find(c->set, out->id);
+    bs_err cerr;
+    bs_err_clear(&cerr);
+    int known = at >= 0 && ms_content(c->set, at, content, &cerr) == 0;
     if (rc != 0)
         bs_err_context(err, "from rank %d: ", out->rank);
     else
         rc = cat_result_put_stored(c->cat, c->run_id, out->id, st, out->code ? out->message : NULL,
                                    has ? &r : NULL, has ? (out->stored ? out->stored : out->json) : NULL,
-                                   out->rank, out->seconds, err);
+                                   known ? content : NULL, out->rank, out->seconds, err);
     if (rc != 0 && is_storage_fault(rc)) {
         /* The result is fine but cannot be stored (disk full, unwritable artifact file): it is
          * not recorded at all, so a resumed run computes it again, and the job stops. */

@@ -717,6 +717,59 @@ static void test_missing_keys_and_failures(void **state)
     tmp_remove(&t);
 }
 
+/* The coordinator's write path (2026-12-02): a content hash given with the result is stored as the
+ * materials row's; none given, the row takes it from materials. cat_has_materials tells a new
+ * catalogue (no look-ups in the set-up) from a used one. The connection skips the schema's CHECK
+ * constraints, so the values they guard are refused in C first (db/schema.sql: results.status,
+ * materials.dimension and spinful); the constraints still hold for the sqlite3 shell. */
+static void test_coordinator_write_path(void **state)
+{
+    (void)state;
+    tmpdir t;
+    tmp_make(&t);
+    cat_db *cat = open_rw(t.cat);
+    bs_err err;
+    bs_err_clear(&err);
+    int any = -1;
+    assert_int_equal(cat_has_materials(cat, &any, &err), 0);
+    assert_int_equal(any, 0);
+    const char *hash_a = "aaaa000000000000000000000000000000000000000000000000000000000001";
+    const char *hash_b = "bbbb000000000000000000000000000000000000000000000000000000000002";
+    cat_material ma = {.material_id = "given", .dimension = 3, .spinful = 1, .content = hash_a};
+    cat_material mb = {.material_id = "looked-up", .dimension = 2, .spinful = 0, .content = hash_b};
+    assert_int_equal(cat_material_upsert(cat, &ma, &err), 0);
+    assert_int_equal(cat_material_upsert(cat, &mb, &err), 0);
+    assert_int_equal(cat_has_materials(cat, &any, &err), 0);
+    assert_int_equal(any, 1);
+    int64_t run = begin(cat, &RUN_A);
+    assert_int_equal(cat_result_put_stored(cat, run, "given", CAT_RES_INVALID, "no data", NULL, NULL, hash_a,
+                                           1, 0.5, &err),
+                     0);
+    assert_int_equal(cat_result_put_stored(cat, run, "looked-up", CAT_RES_FAILED, "no data", NULL, NULL, NULL,
+                                           2, 0.5, &err),
+                     0);
+    assert_int_equal(cat_flush(cat, &err), 0);
+    dump d;
+    q(cat,
+      "SELECT r.material_id, r.status, r.content = m.content, r.rank FROM results r"
+      " JOIN materials m USING (material_id) ORDER BY r.material_id",
+      &d);
+    assert_string_equal(d.text, "given|invalid|1|1\nlooked-up|failed|1|2\n");
+    /* What the CHECK constraints would refuse is refused before SQLite sees it. */
+    cat_material bad_dim = {.material_id = "flat", .dimension = 4, .spinful = 0};
+    assert_int_equal(cat_material_upsert(cat, &bad_dim, &err), BS_EINVAL);
+    bs_err_clear(&err);
+    cat_material bad_spin = {.material_id = "spin", .dimension = 3, .spinful = 2};
+    assert_int_equal(cat_material_upsert(cat, &bad_spin, &err), BS_EINVAL);
+    bs_err_clear(&err);
+    assert_int_equal(
+        cat_result_put_stored(cat, run, "given", (cat_status)17, "x", NULL, NULL, hash_a, 1, 0.5, &err),
+        BS_EINVAL);
+    assert_int_equal(q_int(cat, "SELECT count(*) FROM materials WHERE material_id IN ('flat', 'spin')"), 0);
+    close_ok(cat);
+    tmp_remove(&t);
+}
+
 static void expect_put_error(cat_db *cat, int64_t run, const char *id, cat_status st, const char *json,
                              int code, const char *needle)
 {
@@ -1486,6 +1539,7 @@ int main(void)
         cmocka_unit_test(test_put_and_read_back),
         cmocka_unit_test(test_struct_and_flows),
         cmocka_unit_test(test_missing_keys_and_failures),
+        cmocka_unit_test(test_coordinator_write_path),
         cmocka_unit_test(test_malformed_diagnosis),
         cmocka_unit_test(test_artifact_write_failure),
         cmocka_unit_test(test_summary_most_resolved),

@@ -117,8 +117,8 @@ def main():
     if "results_failed" not in fp:
         errors.append("failures does not use the partial index results_failed:\n" + fp)
     rp = plan(con, "SELECT * FROM run_progress")
-    if "COVERING INDEX results_run" not in rp:
-        errors.append("run_progress does not read the covering index results_run:\n" + rp)
+    if "COVERING INDEX results_progress" not in rp:
+        errors.append("run_progress does not read the covering index results_progress:\n" + rp)
     sp = plan(con, "SELECT * FROM summary")
     if "WINDOW" in sp.upper() or "CO-ROUTINE" in sp:
         errors.append("the full summary materialises a window or subquery:\n" + sp)
