@@ -33,11 +33,14 @@ struct hk_engine {
     int nhalf; /* lattice vectors in the half set (R = 0 excluded) */
     int ncol;  /* 1 + 2 nhalf */
     int max_batch;
-    int nblock_alloc; /* blocks per k-point the batch buffers hold: 1 (H), 4 once derivatives are asked */
+    int nblock_alloc; /* blocks per k-point the phases hold: 0 before the first batch, 1 (H), 4 once
+                         derivatives are asked */
     double *Rhalf;    /* nhalf x 3 lattice vectors as doubles */
     double *coef;     /* (2 npair) x ncol, column-major */
     double *phase;    /* ncol x (nblock_alloc max_batch) */
-    double *packed;   /* (2 npair) x (nblock_alloc max_batch) */
+    double *packed;   /* (2 npair) x (npacked_alloc max_batch), for derivatives only */
+    int npacked_alloc;
+    double *col; /* 2 npair: one packed column set aside (hk_build) */
     /* Set only on engines made by hk_reduce: where each source column goes. */
     int axis; /* fixed axis, -1 for a full engine */
     int src_ncol;
@@ -51,10 +54,9 @@ struct hk_engine {
  * H_{-R}^dagger when both are present so that round-off in a table cannot make H(k) non-Hermitian. */
 static double complex hop_element(const tb_model *m, int r, int rm, int a, int b)
 {
-    size_t nn = (size_t)m->norb * m->norb;
-    double complex h = m->H[r * nn + (size_t)a * m->norb + b] / m->deg[r];
+    double complex h = tb_hop(m, r, a, b) / m->deg[r];
     if (rm < 0) return h;
-    double complex hm = conj(m->H[rm * nn + (size_t)b * m->norb + a]) / m->deg[rm];
+    double complex hm = conj(tb_hop(m, rm, b, a)) / m->deg[rm];
     return 0.5 * (h + hm);
 }
 
@@ -97,10 +99,7 @@ int hk_create(const tb_model *m, int max_batch, hk_engine **out, bs_err *err)
     size_t rows = 2 * (size_t)e->npair;
     e->Rhalf = calloc((size_t)e->nhalf * 3 + 1, sizeof *e->Rhalf);
     e->coef = calloc(rows * e->ncol, sizeof *e->coef);
-    e->nblock_alloc = 1;
-    e->phase = calloc((size_t)e->ncol * max_batch, sizeof *e->phase);
-    e->packed = calloc(rows * max_batch, sizeof *e->packed);
-    if (!e->Rhalf || !e->coef || !e->phase || !e->packed) {
+    if (!e->Rhalf || !e->coef) {
         hk_free(e);
         return bs_fail(err, BS_ENOMEM, "out of memory for the H(k) coefficient table (%d states, %d R)",
                        m->norb, m->nR);
@@ -129,6 +128,7 @@ void hk_free(hk_engine *e)
     free(e->coef);
     free(e->phase);
     free(e->packed);
+    free(e->col);
     free(e->map_cos);
     free(e->map_sin);
     free(e->map_sign);
@@ -212,10 +212,7 @@ int hk_reduce(const hk_engine *src, int axis, double kval, int max_batch, hk_eng
     free(sign);
     size_t rows = 2 * (size_t)e->npair;
     e->coef = calloc(rows * e->ncol, sizeof *e->coef);
-    e->nblock_alloc = 1;
-    e->phase = calloc((size_t)e->ncol * max_batch, sizeof *e->phase);
-    e->packed = calloc(rows * max_batch, sizeof *e->packed);
-    if (!e->coef || !e->phase || !e->packed) {
+    if (!e->coef) {
         hk_free(e);
         return bs_fail(err, BS_ENOMEM, "out of memory for a reduced H(k) engine");
     }
@@ -303,43 +300,68 @@ static void unpack(const hk_engine *e, const double *packed, double complex *H)
         H[a + (size_t)a * n] = creal(H[a + (size_t)a * n]);
 }
 
-static int run_batch(hk_engine *e, int nk, const double *k, int nblock, bs_err *err)
+/* Grows the batch buffers, allocated on first use: the phases to nblock blocks per k-point, and
+ * the packed triangles only for derivatives (packed set), since hk_build writes its product into
+ * the caller's H. Most engines never build dH/dk and the plane engines of hk_lines never build at
+ * all; at 128 states a batch of 64 is 8 MB per block of packed triangles. */
+static int grow_buffers(hk_engine *e, int nblock, int packed, bs_err *err)
+{
+    size_t cols = (size_t)nblock * e->max_batch, rows = 2 * (size_t)e->npair;
+    if (nblock > e->nblock_alloc) {
+        double *phase = realloc(e->phase, (size_t)e->ncol * cols * sizeof *phase);
+        if (!phase) return bs_fail(err, BS_ENOMEM, "out of memory for the H(k) phases (%d states)", e->norb);
+        e->phase = phase;
+        e->nblock_alloc = nblock;
+    }
+    if (!e->col) {
+        e->col = malloc(rows * sizeof *e->col);
+        if (!e->col) return bs_fail(err, BS_ENOMEM, "out of memory for the H(k) engine (%d states)", e->norb);
+    }
+    if (packed && nblock > e->npacked_alloc) {
+        double *p = realloc(e->packed, rows * cols * sizeof *p);
+        if (!p)
+            return bs_fail(err, BS_ENOMEM, "out of memory for the H(k) derivative buffers (%d states)",
+                           e->norb);
+        e->packed = p;
+        e->npacked_alloc = nblock;
+    }
+    return 0;
+}
+
+/* The product of the coefficient table with the phases of nk points (nblock blocks each) into out,
+ * (2 npair) x (nblock nk), column-major. */
+static int run_batch(hk_engine *e, int nk, const double *k, int nblock, double *out, bs_err *err)
 {
     if (nk < 0 || nk > e->max_batch)
         return bs_fail(err, BS_EINVAL, "batch of %d k-points exceeds the engine's %d", nk, e->max_batch);
-    if (nblock > e->nblock_alloc) {
-        /* The derivative blocks (three more per k-point) are allocated on first use: most engines
-         * never build dH/dk, and at 128 states a batch of 64 is 34 MB per block. */
-        size_t cols = (size_t)nblock * e->max_batch;
-        double *phase = realloc(e->phase, (size_t)e->ncol * cols * sizeof *phase);
-        if (phase) e->phase = phase;
-        double *packed = phase ? realloc(e->packed, 2 * (size_t)e->npair * cols * sizeof *packed) : NULL;
-        if (!phase || !packed)
-            return bs_fail(err, BS_ENOMEM, "out of memory for the H(k) derivative buffers (%d states)",
-                           e->norb);
-        e->packed = packed;
-        e->nblock_alloc = nblock;
-    }
     fill_phases(e, nk, k, nblock);
     int rows = 2 * e->npair;
     cblas_dgemm(CblasColMajor, CblasNoTrans, CblasNoTrans, rows, nblock * nk, e->ncol, 1.0, e->coef, rows,
-                e->phase, e->ncol, 0.0, e->packed, rows);
+                e->phase, e->ncol, 0.0, out, rows);
     return 0;
 }
 
 int hk_build(hk_engine *e, int nk, const double *k, double complex *H, bs_err *err)
 {
-    int rc = run_batch(e, nk, k, 1, err);
+    int rc = grow_buffers(e, 1, 0, err);
+    /* The packed triangles of the batch go into H itself (C11: a double complex is two doubles),
+     * which holds 2 n^2 >= n (n + 1) doubles per point; they are unpacked from the last point down,
+     * each column copied aside first. Matrix j then only overwrites packed columns >= j, already
+     * unpacked, and its own column, read from the copy. */
+    if (rc == 0) rc = run_batch(e, nk, k, 1, (double *)H, err);
     if (rc != 0) return rc;
     size_t nn = (size_t)e->norb * e->norb, rows = 2 * (size_t)e->npair;
-    for (int j = 0; j < nk; j++)
-        unpack(e, e->packed + j * rows, H + j * nn);
+    for (int j = nk - 1; j >= 0; j--) {
+        memcpy(e->col, (const double *)H + (size_t)j * rows, rows * sizeof *e->col);
+        unpack(e, e->col, H + (size_t)j * nn);
+    }
     return 0;
 }
 
 int hk_build_deriv(hk_engine *e, int nk, const double *k, double complex *H, double complex *dH, bs_err *err)
 {
-    int rc = run_batch(e, nk, k, 4, err);
+    int rc = grow_buffers(e, 4, 1, err);
+    if (rc == 0) rc = run_batch(e, nk, k, 4, e->packed, err);
     if (rc != 0) return rc;
     size_t nn = (size_t)e->norb * e->norb, rows = 2 * (size_t)e->npair;
     for (int j = 0; j < nk; j++) {
@@ -464,9 +486,9 @@ void hk_build_direct(const tb_model *m, const double k[3], double complex *H)
     for (int r = 0; r < m->nR; r++) {
         double theta = 2.0 * M_PI * (k[0] * m->R[r][0] + k[1] * m->R[r][1] + k[2] * m->R[r][2]);
         double complex ph = cexp(I * theta) / m->deg[r];
-        const double complex *Hr = m->H + r * nn;
+        const double complex *Hr = tb_hop_block(m, r, NULL);
         for (size_t p = 0; p < nn; p++)
-            H[p] += ph * Hr[p];
+            H[p] += ph * (Hr ? Hr[p] : tb_hop(m, r, (int)(p / (size_t)n), (int)(p % (size_t)n)));
     }
     for (size_t p = 0; p < nn; p++)
         H[p] = conj(H[p]);

@@ -474,6 +474,7 @@ int hop_read(const char *path, int spinful, tb_model **out, bs_err *err)
     if ((rc = read_hoppings(&r, m, &first_line, err)) != 0) goto done;
     if ((rc = check_trailing(&r, err)) != 0) goto done;
     if ((rc = check_duplicates(&r, m, first_line, err)) != 0) goto done;
+    tb_model_fold(m);
     *out = m;
     m = NULL;
 done:
@@ -501,10 +502,9 @@ int hop_write(const char *path, const tb_model *m, const char *comment, bs_err *
     for (int r = 0; r < m->nR; r++)
         fprintf(fp, "%5d%s", m->deg[r], (r % HOP_PER_LINE == HOP_PER_LINE - 1 || r == m->nR - 1) ? "\n" : "");
     for (int r = 0; r < m->nR && !ferror(fp); r++) {
-        const double complex *H = m->H + (size_t)r * n * n;
         for (int col = 0; col < n; col++)
             for (int row = 0; row < n; row++) {
-                double complex h = H[(size_t)row * n + col];
+                double complex h = tb_hop(m, r, row, col);
                 fprintf(fp, "%4d %4d %4d %5d %5d %.17g %.17g\n", m->R[r][0], m->R[r][1], m->R[r][2], row + 1,
                         col + 1, creal(h), cimag(h));
             }
