@@ -89,8 +89,9 @@ double complex tb_hop(const tb_model *m, int r, int a, int b);
 const double complex *tb_hop_block(const tb_model *m, int r, double complex *buf);
 
 /* Stores H_R and H_-R once wherever H_-R equals H_R^dagger bit for bit (tb_hop gives zero imaginary
- * parts of an adjoint as +0), which halves the memory of a Hermitian table and changes no value
- * read back. Shrinks m->H in place; cannot fail (a refused shrink keeps the larger array). */
+ * parts of an adjoint as +0) and their weights agree, which halves the memory of a Hermitian table and
+ * changes no value read back. Shrinks m->H in place; cannot fail (a refused shrink keeps the larger array).
+ */
 void tb_model_fold(tb_model *m);
 
 /* Undoes tb_model_fold (one block per lattice vector again), for code that writes m->H in place.

@@ -188,7 +188,8 @@ void tb_model_fold(tb_model *m)
         if (src[r] != r) continue;
         int minus[3] = {-m->R[r][0], -m->R[r][1], -m->R[r][2]};
         int q = tb_model_find_R(m, minus);
-        if (q > r && is_adjoint(m->H + (size_t)q * nn, m->H + (size_t)r * nn, n)) src[q] = -1 - r;
+        if (q > r && m->deg[q] == m->deg[r] && is_adjoint(m->H + (size_t)q * nn, m->H + (size_t)r * nn, n))
+            src[q] = -1 - r;
     }
     int nblock = 0;
     for (int r = 0; r < m->nR; r++) {
