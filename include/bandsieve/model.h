@@ -94,6 +94,13 @@ const double complex *tb_hop_block(const tb_model *m, int r, double complex *buf
  */
 void tb_model_fold(tb_model *m);
 
+/* Folding while reading, for a reader that writes one block at a time: block r (its R and deg
+ * set) has just been written at block *nblock of m->H, and m->hsrc (allocated by the reader, nR
+ * entries) holds entries 0..r-1. Records block r as the adjoint of an earlier block where
+ * tb_model_fold would (the slot is then free for the next block), else as its own (*nblock grows).
+ * The reader calls tb_model_fold at the end, which gives back the unused blocks. */
+void tb_model_fold_next(tb_model *m, int r, int *nblock);
+
 /* Undoes tb_model_fold (one block per lattice vector again), for code that writes m->H in place.
  * Fails with BS_ENOMEM, m unchanged. A no-op on an unfolded model. */
 int tb_model_unfold(tb_model *m, bs_err *err);

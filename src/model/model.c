@@ -176,7 +176,10 @@ static int is_adjoint(const double complex *Hq, const double complex *Hr, size_t
 
 void tb_model_fold(tb_model *m)
 {
-    if (m->hsrc) return;
+    if (m->hsrc) { /* folded already, perhaps while read (tb_model_fold_next): give back the rest */
+        shrink_blocks(m, tb_model_nblock(m));
+        return;
+    }
     int *src = malloc((size_t)m->nR * sizeof *src);
     if (!src) return; /* folding only saves memory: an unfolded model is as valid */
     size_t n = (size_t)m->norb, nn = n * n;
@@ -201,6 +204,24 @@ void tb_model_fold(tb_model *m)
         if (src[r] < 0) src[r] = -1 - src[-1 - src[r]];
     m->hsrc = src;
     shrink_blocks(m, (size_t)nblock);
+}
+
+void tb_model_fold_next(tb_model *m, int r, int *nblock)
+{
+    size_t n = (size_t)m->norb, nn = n * n;
+    const double complex *blk = m->H + (size_t)*nblock * nn;
+    for (int q = 0; q < r; q++) {
+        if (m->R[q][0] != -m->R[r][0] || m->R[q][1] != -m->R[r][1] || m->R[q][2] != -m->R[r][2]) continue;
+        /* -R came earlier: fold onto its block, as tb_model_fold would (the first of a pair owns it);
+         * a partner itself folded means a repeated R, which the reader refuses anyway */
+        int s = m->hsrc[q];
+        if (s >= 0 && m->deg[q] == m->deg[r] && is_adjoint(blk, m->H + (size_t)s * nn, n)) {
+            m->hsrc[r] = -1 - s;
+            return;
+        }
+        break;
+    }
+    m->hsrc[r] = (*nblock)++;
 }
 
 int tb_model_unfold(tb_model *m, bs_err *err)
