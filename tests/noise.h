@@ -52,7 +52,7 @@ static inline int bs_noise_model(const tb_model *m, double rel, uint64_t seed, t
 static inline void bs_noise_exchange(tb_model *m, double m_ev)
 {
     bs_err err;
-    if (tb_model_unfold(m, &err) != 0) abort(); /* a test helper: out of memory ends the test */
+    if (tb_model_unfold(m, &err) != 0) abort(); /* out of memory ends the test */
     int zero[3] = {0, 0, 0};
     int r = bs_noise_find(m->R, m->nR, zero);
     for (int i = 0; i < m->norb; i++)
