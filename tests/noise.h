@@ -37,7 +37,9 @@ static inline int bs_noise_model(const tb_model *m, double rel, uint64_t seed, t
     for (int r = 0; r < c->nR; r++) {
         int q = bs_noise_find(m->R, m->nR, c->R[r]);
         for (size_t i = 0; i < n2; i++)
-            d[i] = c->H[r * n2 + i] - (q >= 0 ? m->H[q * n2 + i] / m->deg[q] : 0);
+            d[i] = tb_hop(c, r, (int)(i / (size_t)c->norb), (int)(i % (size_t)c->norb)) -
+                   (q >= 0 ? tb_hop(m, q, (int)(i / (size_t)c->norb), (int)(i % (size_t)c->norb)) / m->deg[q]
+                           : 0);
         bound += symfit_norm_bound(c->norb, d);
     }
     free(d);
@@ -49,6 +51,8 @@ static inline int bs_noise_model(const tb_model *m, double rel, uint64_t seed, t
  * -m_ev on spin-down, at R = 0 (which every built-in model has). A physical time-reversal breaking. */
 static inline void bs_noise_exchange(tb_model *m, double m_ev)
 {
+    bs_err err;
+    if (tb_model_unfold(m, &err) != 0) abort(); /* out of memory ends the test */
     int zero[3] = {0, 0, 0};
     int r = bs_noise_find(m->R, m->nR, zero);
     for (int i = 0; i < m->norb; i++)

@@ -13,6 +13,10 @@
  * 6 decimals, so 1e-5 eV admits round-off and nothing else (common practice). */
 #define BS_HERMITIAN_TOL_EV 1e-5
 
+/* Coefficient table size (bytes) from which hk_create reads a folded model's own blocks instead of
+ * building the table (hk.h): half the memory of model plus table, twice the flops per H(k). */
+#define BS_HK_BORROW_BYTES 64.0e6
+
 /* A hopping or on-site energy larger than this (eV) is refused as implausible: tight-binding
  * elements of real materials are tens of eV at most, and sums of huge values lose the gaps to
  * round-off (LAPACK fails on values near DBL_MAX). */

@@ -16,10 +16,16 @@
 
 typedef struct hk_engine hk_engine;
 
-/* Prepares the folded coefficient table of m (borrowed; must outlive the engine only during
- * create: the engine copies what it needs) for batches of up to max_batch k-points.
- * The caller owns *out. */
+/* Prepares the folded coefficient table of m for batches of up to max_batch k-points, or, for a
+ * folded model (tb_model_fold) whose table would reach BS_HK_BORROW_BYTES, an engine that reads
+ * m's blocks (hk_create_borrowed). m is borrowed and must outlive the engine. The caller owns *out. */
 int hk_create(const tb_model *m, int max_batch, hk_engine **out, bs_err *err);
+
+/* An engine without a table: each batch is one complex product of m's stored blocks (m borrowed,
+ * must outlive the engine) with their phases, H(k) = P + P^dagger. The same H(k) as hk_create's
+ * to round-off, with no copy of the hoppings, at twice the flops of the table's product; reduced
+ * engines (hk_reduce) made from it have tables of their own, as from any engine. */
+int hk_create_borrowed(const tb_model *m, int max_batch, hk_engine **out, bs_err *err);
 
 /* Frees e; accepts NULL. */
 void hk_free(hk_engine *e);

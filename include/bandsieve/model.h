@@ -22,9 +22,12 @@ enum { TB_MAG_UNKNOWN = 0, TB_MAG_NONE = 1, TB_MAG_MAGNETIC = 2 };
  * For a spinful model nspatial = norb/2 and, with TB_SPIN_BLOCKS, state i is orbital i % nspatial
  * with spin up for i < nspatial; with TB_SPIN_INTERLEAVED, state i is orbital i/2, spin up for even i.
  *
- * Hoppings: H[(r*norb + m)*norb + n] = <m, 0| H | n, R_r> in eV, already divided by nothing:
- * the degeneracy weight deg[r] is kept separately and H(k) = sum_r exp(2 pi i k.R_r) H_r / deg[r],
- * k in reduced coordinates (the convention of the plain-text hopping table). */
+ * Hoppings: H_r[m*norb + n] = <m, 0| H | n, R_r> in eV, already divided by nothing: the degeneracy
+ * weight deg[r] is kept separately and H(k) = sum_r exp(2 pi i k.R_r) H_r / deg[r], k in reduced
+ * coordinates (the convention of the plain-text hopping table). Read them with tb_hop or
+ * tb_hop_block: a folded model (tb_model_fold) stores H_R and H_-R once when H_-R = H_R^dagger
+ * exactly. A model fresh from tb_model_create is unfolded: hsrc is NULL and H_r is the block
+ * H + r*norb*norb, which is where builders write. */
 typedef struct tb_model {
     char id[128];
     char formula[64];
@@ -50,7 +53,9 @@ typedef struct tb_model {
     int nR;
     int (*R)[3];       /* nR lattice vectors */
     int *deg;          /* nR degeneracy weights (>= 1) */
-    double complex *H; /* nR * norb * norb, eV */
+    double complex *H; /* hopping blocks, norb * norb each, eV: nR of them unless folded */
+    int *hsrc;         /* nR, or NULL (unfolded): H_r is block hsrc[r], or the adjoint of block
+                          -1 - hsrc[r] when hsrc[r] < 0 */
     /* Provenance, not data: the material card as read (compact JSON text: every key including
      * comment, orbital labels and meta), owned, NULL when the model did not come from a card.
      * It does not enter the content hash (content.h). */
@@ -74,6 +79,34 @@ void tb_model_free(tb_model *m);
 
 /* Deep copy; the caller owns *out. */
 int tb_model_copy(const tb_model *m, tb_model **out, bs_err *err);
+
+/* Element (a, b) of H_r (eV, not divided by deg[r]). */
+double complex tb_hop(const tb_model *m, int r, int a, int b);
+
+/* The block H_r, row-major norb x norb (eV, not divided by deg[r]): a pointer into m when H_r is
+ * stored as such, else buf (norb * norb, the caller's) filled with it, or NULL when buf is NULL.
+ * Valid while m is unchanged. */
+const double complex *tb_hop_block(const tb_model *m, int r, double complex *buf);
+
+/* Stores H_R and H_-R once wherever H_-R equals H_R^dagger bit for bit (tb_hop gives zero imaginary
+ * parts of an adjoint as +0) and their weights agree, which halves the memory of a Hermitian table and
+ * changes no value read back. Shrinks m->H in place; cannot fail (a refused shrink keeps the larger array).
+ */
+void tb_model_fold(tb_model *m);
+
+/* Folding while reading, for a reader that writes one block at a time: block r (its R and deg
+ * set) has just been written at block *nblock of m->H, and m->hsrc (allocated by the reader, nR
+ * entries) holds entries 0..r-1. Records block r as the adjoint of an earlier block where
+ * tb_model_fold would (the slot is then free for the next block), else as its own (*nblock grows).
+ * The reader calls tb_model_fold at the end, which gives back the unused blocks. */
+void tb_model_fold_next(tb_model *m, int r, int *nblock);
+
+/* Undoes tb_model_fold (one block per lattice vector again), for code that writes m->H in place.
+ * Fails with BS_ENOMEM, m unchanged. A no-op on an unfolded model. */
+int tb_model_unfold(tb_model *m, bs_err *err);
+
+/* Replaces the hoppings of m by H (nR blocks, unfolded; m takes ownership) and frees the old ones. */
+void tb_model_set_hops(tb_model *m, double complex *H);
 
 /* Index of the lattice vector R in m, or -1. Linear search; fine outside hot loops. */
 int tb_model_find_R(const tb_model *m, const int R[3]);

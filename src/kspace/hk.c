@@ -9,6 +9,8 @@
  * differentiated phases, in the same product. */
 #include "bandsieve/hk.h"
 
+#include "bandsieve/config.h"
+
 #include <cblas.h>
 #include <math.h>
 #include <stdlib.h>
@@ -33,11 +35,14 @@ struct hk_engine {
     int nhalf; /* lattice vectors in the half set (R = 0 excluded) */
     int ncol;  /* 1 + 2 nhalf */
     int max_batch;
-    int nblock_alloc; /* blocks per k-point the batch buffers hold: 1 (H), 4 once derivatives are asked */
+    int nblock_alloc; /* blocks per k-point the phases hold: 0 before the first batch, 1 (H), 4 once
+                         derivatives are asked */
     double *Rhalf;    /* nhalf x 3 lattice vectors as doubles */
     double *coef;     /* (2 npair) x ncol, column-major */
     double *phase;    /* ncol x (nblock_alloc max_batch) */
-    double *packed;   /* (2 npair) x (nblock_alloc max_batch) */
+    double *packed;   /* (2 npair) x (npacked_alloc max_batch), for derivatives only */
+    int npacked_alloc;
+    double *col; /* 2 npair: one packed column set aside (hk_build) */
     /* Set only on engines made by hk_reduce: where each source column goes. */
     int axis; /* fixed axis, -1 for a full engine */
     int src_ncol;
@@ -45,16 +50,20 @@ struct hk_engine {
     int *map_sin;     /* src column -> dst sine column, or -1 when the target is the constant */
     double *map_sign; /* +1, or -1 when the target vector is -R' (sine flips) */
     double *src_Rax;  /* the source vectors' component along axis (0 for the constant) */
+    /* Set only on borrowing engines (hk_create_borrowed), which have no coefficient table: ncol
+     * and nhalf count m's stored blocks, Rhalf holds the vector each block is stored for. */
+    const tb_model *m;   /* borrowed */
+    double *bscale;      /* nhalf: the weight of each block (borrow_blocks) */
+    double complex *wts; /* nhalf x (nblock_alloc max_batch): the block weights of a batch */
 };
 
 /* Hermitian-symmetrised hopping block for R (divided by its weight): averages H_R with
  * H_{-R}^dagger when both are present so that round-off in a table cannot make H(k) non-Hermitian. */
 static double complex hop_element(const tb_model *m, int r, int rm, int a, int b)
 {
-    size_t nn = (size_t)m->norb * m->norb;
-    double complex h = m->H[r * nn + (size_t)a * m->norb + b] / m->deg[r];
+    double complex h = tb_hop(m, r, a, b) / m->deg[r];
     if (rm < 0) return h;
-    double complex hm = conj(m->H[rm * nn + (size_t)b * m->norb + a]) / m->deg[rm];
+    double complex hm = conj(tb_hop(m, rm, b, a)) / m->deg[rm];
     return 0.5 * (h + hm);
 }
 
@@ -79,6 +88,10 @@ static void fill_column(hk_engine *e, const tb_model *m, int r, int rm, int col,
 int hk_create(const tb_model *m, int max_batch, hk_engine **out, bs_err *err)
 {
     *out = NULL;
+    /* A folded model already holds each pair once: past the size where the table's memory matters,
+     * read its blocks instead of adding a table of the same size. */
+    if (m->hsrc && (double)m->norb * (m->norb + 1) * 8.0 * m->nR >= BS_HK_BORROW_BYTES)
+        return hk_create_borrowed(m, max_batch, out, err);
     if (max_batch < 1) max_batch = 1;
     hk_engine *e = calloc(1, sizeof *e);
     if (!e) return bs_fail(err, BS_ENOMEM, "out of memory for the H(k) engine");
@@ -97,10 +110,7 @@ int hk_create(const tb_model *m, int max_batch, hk_engine **out, bs_err *err)
     size_t rows = 2 * (size_t)e->npair;
     e->Rhalf = calloc((size_t)e->nhalf * 3 + 1, sizeof *e->Rhalf);
     e->coef = calloc(rows * e->ncol, sizeof *e->coef);
-    e->nblock_alloc = 1;
-    e->phase = calloc((size_t)e->ncol * max_batch, sizeof *e->phase);
-    e->packed = calloc(rows * max_batch, sizeof *e->packed);
-    if (!e->Rhalf || !e->coef || !e->phase || !e->packed) {
+    if (!e->Rhalf || !e->coef) {
         hk_free(e);
         return bs_fail(err, BS_ENOMEM, "out of memory for the H(k) coefficient table (%d states, %d R)",
                        m->norb, m->nR);
@@ -122,6 +132,78 @@ int hk_create(const tb_model *m, int max_batch, hk_engine **out, bs_err *err)
     return 0;
 }
 
+/* The blocks of m as a borrowing engine reads them: the vector each is stored for, and its weight.
+ * A block stored for R and -R (tb_model_fold) stands for X + X^dagger, X = H_R / deg; any other
+ * block enters with half its weight, with half of its adjoint. Either way H(k) is the Hermitian
+ * part of sum_r exp(2 pi i k.R_r) H_r / deg_r, as the table's symmetrisation makes it. */
+static int borrow_blocks(hk_engine *e, const tb_model *m)
+{
+    int nb = 0;
+    for (int r = 0; r < m->nR; r++)
+        nb += !m->hsrc || m->hsrc[r] >= 0;
+    e->nhalf = e->ncol = nb;
+    e->Rhalf = malloc((size_t)nb * 3 * sizeof *e->Rhalf);
+    e->bscale = calloc((size_t)nb, sizeof *e->bscale);
+    if (!e->Rhalf || !e->bscale) return -1;
+    for (int r = 0; r < m->nR; r++) {
+        int s = m->hsrc ? m->hsrc[r] : r;
+        if (s >= 0)
+            for (int d = 0; d < 3; d++)
+                e->Rhalf[3 * s + d] = m->R[r][d];
+        /* the fold keeps only pairs of equal weights: 1/(2 deg) from each side */
+        e->bscale[s >= 0 ? s : -1 - s] += 0.5 / m->deg[r];
+    }
+    return 0;
+}
+
+int hk_create_borrowed(const tb_model *m, int max_batch, hk_engine **out, bs_err *err)
+{
+    *out = NULL;
+    hk_engine *e = calloc(1, sizeof *e);
+    if (!e) return bs_fail(err, BS_ENOMEM, "out of memory for the H(k) engine");
+    e->norb = m->norb;
+    e->npair = m->norb * (m->norb + 1) / 2;
+    e->max_batch = max_batch < 1 ? 1 : max_batch;
+    e->axis = -1;
+    e->m = m;
+    if (borrow_blocks(e, m) != 0) {
+        hk_free(e);
+        return bs_fail(err, BS_ENOMEM, "out of memory for the H(k) engine (%d R)", m->nR);
+    }
+    *out = e;
+    return 0;
+}
+
+/* The plane (or line) table of dst at k[axis] = kval from a borrowing source, block by block:
+ * with Y = bscale exp(2 pi i kval R_axis) H_b, the block adds exp(i theta') X + h.c. at R' (R with
+ * its axis component removed), X = Y, or X = Y^dagger where R' is folded to -R' (sign -1); that
+ * is cos theta' (X + X^dagger) + sin theta' i (X - X^dagger), the table's C and S. */
+static void reduce_borrowed(hk_engine *dst, const hk_engine *src, double kval)
+{
+    size_t rows = 2 * (size_t)dst->npair, n = (size_t)src->norb;
+    for (int b = 0; b < src->nhalf; b++) {
+        double complex psi = src->bscale[b] * cexp(I * 2.0 * M_PI * kval * dst->src_Rax[b]);
+        int flip = dst->map_sign[b] < 0;
+        double *dc = dst->coef + (size_t)dst->map_cos[b] * rows;
+        double *ds = dst->map_sin[b] >= 0 ? dst->coef + (size_t)dst->map_sin[b] * rows : NULL;
+        const double complex *B = src->m->H + (size_t)b * n * n;
+        for (size_t j = 0; j < n; j++)
+            for (size_t i = 0; i <= j; i++) {
+                double complex yij = psi * B[i * n + j], yji = psi * B[j * n + i];
+                double complex xij = flip ? conj(yji) : yij, xji = flip ? conj(yij) : yji;
+                double complex c = xij + conj(xji);
+                size_t p = i + j * (j + 1) / 2;
+                dc[2 * p] += creal(c);
+                dc[2 * p + 1] += cimag(c);
+                if (ds) {
+                    double complex s = I * (xij - conj(xji));
+                    ds[2 * p] += creal(s);
+                    ds[2 * p + 1] += cimag(s);
+                }
+            }
+    }
+}
+
 void hk_free(hk_engine *e)
 {
     if (!e) return;
@@ -129,6 +211,9 @@ void hk_free(hk_engine *e)
     free(e->coef);
     free(e->phase);
     free(e->packed);
+    free(e->col);
+    free(e->bscale);
+    free(e->wts);
     free(e->map_cos);
     free(e->map_sin);
     free(e->map_sign);
@@ -200,8 +285,9 @@ int hk_reduce(const hk_engine *src, int axis, double kval, int max_batch, hk_eng
     e->ncol = 1 + 2 * e->nhalf;
     for (int h = 0; h < src->nhalf; h++) {
         int t = target[h];
-        for (int which = 0; which < 2; which++) {
-            int c = 1 + h + which * src->nhalf;
+        /* A table's pair h is two columns (cosine, sine); a borrowing source's block h is one. */
+        for (int which = 0; which < (src->m ? 1 : 2); which++) {
+            int c = src->m ? h : 1 + h + which * src->nhalf;
             e->map_cos[c] = t < 0 ? 0 : 1 + t;
             e->map_sin[c] = t < 0 ? -1 : 1 + e->nhalf + t;
             e->map_sign[c] = sign[h];
@@ -212,10 +298,7 @@ int hk_reduce(const hk_engine *src, int axis, double kval, int max_batch, hk_eng
     free(sign);
     size_t rows = 2 * (size_t)e->npair;
     e->coef = calloc(rows * e->ncol, sizeof *e->coef);
-    e->nblock_alloc = 1;
-    e->phase = calloc((size_t)e->ncol * max_batch, sizeof *e->phase);
-    e->packed = calloc(rows * max_batch, sizeof *e->packed);
-    if (!e->coef || !e->phase || !e->packed) {
+    if (!e->coef) {
         hk_free(e);
         return bs_fail(err, BS_ENOMEM, "out of memory for a reduced H(k) engine");
     }
@@ -234,6 +317,10 @@ int hk_rereduce(hk_engine *dst, const hk_engine *src, double kval, bs_err *err)
         return bs_fail(err, BS_EINVAL, "reduced engine does not belong to this source engine");
     size_t rows = 2 * (size_t)dst->npair;
     memset(dst->coef, 0, rows * dst->ncol * sizeof *dst->coef);
+    if (src->m) {
+        reduce_borrowed(dst, src, kval);
+        return 0;
+    }
     int nh = (src->ncol - 1) / 2;
     cblas_daxpy((int)rows, 1.0, src->coef, 1, dst->coef, 1);
     /* cos(t + phi) C + sin(t + phi) S = cos t [cos phi C + sin phi S] + sin t [cos phi S - sin phi C],
@@ -303,43 +390,134 @@ static void unpack(const hk_engine *e, const double *packed, double complex *H)
         H[a + (size_t)a * n] = creal(H[a + (size_t)a * n]);
 }
 
-static int run_batch(hk_engine *e, int nk, const double *k, int nblock, bs_err *err)
+/* Grows the batch buffers, allocated on first use: the phases to nblock blocks per k-point, and
+ * the packed triangles only for derivatives (packed set), since hk_build writes its product into
+ * the caller's H. Most engines never build dH/dk and the plane engines of hk_lines never build at
+ * all; at 128 states a batch of 64 is 8 MB per block of packed triangles. */
+static int grow_buffers(hk_engine *e, int nblock, int packed, bs_err *err)
+{
+    size_t cols = (size_t)nblock * e->max_batch, rows = 2 * (size_t)e->npair;
+    if (nblock > e->nblock_alloc) {
+        double *phase = realloc(e->phase, (size_t)e->ncol * cols * sizeof *phase);
+        if (!phase) return bs_fail(err, BS_ENOMEM, "out of memory for the H(k) phases (%d states)", e->norb);
+        e->phase = phase;
+        e->nblock_alloc = nblock;
+    }
+    if (!e->col) {
+        e->col = malloc(rows * sizeof *e->col);
+        if (!e->col) return bs_fail(err, BS_ENOMEM, "out of memory for the H(k) engine (%d states)", e->norb);
+    }
+    if (packed && nblock > e->npacked_alloc) {
+        double *p = realloc(e->packed, rows * cols * sizeof *p);
+        if (!p)
+            return bs_fail(err, BS_ENOMEM, "out of memory for the H(k) derivative buffers (%d states)",
+                           e->norb);
+        e->packed = p;
+        e->npacked_alloc = nblock;
+    }
+    return 0;
+}
+
+/* The product of the coefficient table with the phases of nk points (nblock blocks each) into out,
+ * (2 npair) x (nblock nk), column-major. */
+static int run_batch(hk_engine *e, int nk, const double *k, int nblock, double *out, bs_err *err)
 {
     if (nk < 0 || nk > e->max_batch)
         return bs_fail(err, BS_EINVAL, "batch of %d k-points exceeds the engine's %d", nk, e->max_batch);
-    if (nblock > e->nblock_alloc) {
-        /* The derivative blocks (three more per k-point) are allocated on first use: most engines
-         * never build dH/dk, and at 128 states a batch of 64 is 34 MB per block. */
-        size_t cols = (size_t)nblock * e->max_batch;
-        double *phase = realloc(e->phase, (size_t)e->ncol * cols * sizeof *phase);
-        if (phase) e->phase = phase;
-        double *packed = phase ? realloc(e->packed, 2 * (size_t)e->npair * cols * sizeof *packed) : NULL;
-        if (!phase || !packed)
-            return bs_fail(err, BS_ENOMEM, "out of memory for the H(k) derivative buffers (%d states)",
-                           e->norb);
-        e->packed = packed;
-        e->nblock_alloc = nblock;
-    }
     fill_phases(e, nk, k, nblock);
     int rows = 2 * e->npair;
     cblas_dgemm(CblasColMajor, CblasNoTrans, CblasNoTrans, rows, nblock * nk, e->ncol, 1.0, e->coef, rows,
-                e->phase, e->ncol, 0.0, e->packed, rows);
+                e->phase, e->ncol, 0.0, out, rows);
     return 0;
+}
+
+/* Room for the block weights of nblock blocks per k-point (borrowing engines). */
+static int grow_weights(hk_engine *e, int nblock, bs_err *err)
+{
+    if (nblock <= e->nblock_alloc) return 0;
+    double complex *w = realloc(e->wts, (size_t)e->nhalf * nblock * e->max_batch * sizeof *w);
+    if (!w) return bs_fail(err, BS_ENOMEM, "out of memory for the H(k) weights (%d blocks)", e->nhalf);
+    e->wts = w;
+    e->nblock_alloc = nblock;
+    return 0;
+}
+
+/* The block weights of nk points: column j is bscale exp(2 pi i k_j.R) for H(k_j); with nblock 4,
+ * column nk + 3 j + i is its derivative along reduced k_i. */
+static void borrow_weights(hk_engine *e, int nk, const double *k, int nblock)
+{
+    int nb = e->nhalf;
+    for (int j = 0; j < nk; j++)
+        for (int b = 0; b < nb; b++) {
+            const double *R = e->Rhalf + 3 * b;
+            double theta = 2.0 * M_PI * (k[3 * j] * R[0] + k[3 * j + 1] * R[1] + k[3 * j + 2] * R[2]);
+            double complex w = e->bscale[b] * CMPLX(cos(theta), sin(theta));
+            e->wts[(size_t)j * nb + b] = w;
+            for (int i = 0; i + 1 < nblock; i++)
+                e->wts[((size_t)nk + 3 * (size_t)j + i) * nb + b] = I * (2.0 * M_PI * R[i]) * w;
+        }
+}
+
+/* nmat sums P_j = sum_b W[b, j] H_b (one complex product, row-major, into H), each turned into
+ * H_j = P_j + P_j^dagger in place, column-major like hk_build's. */
+static void borrow_product(const hk_engine *e, int nmat, const double complex *W, double complex *H)
+{
+    const double complex one = 1.0, zero = 0.0;
+    int n = e->norb, nn = n * n;
+    cblas_zgemm(CblasColMajor, CblasNoTrans, CblasNoTrans, nn, nmat, e->nhalf, &one, e->m->H, nn, W, e->nhalf,
+                &zero, H, nn);
+    for (int j = 0; j < nmat; j++) {
+        double complex *A = H + (size_t)j * nn;
+        for (size_t b = 0; b < (size_t)n; b++)
+            for (size_t a = 0; a <= b; a++) {
+                size_t p = a * n + b, q = b * n + a; /* (a, b) row-major, and column-major */
+                double complex v = A[p] + conj(A[q]);
+                A[q] = v;
+                A[p] = conj(v);
+            }
+    }
 }
 
 int hk_build(hk_engine *e, int nk, const double *k, double complex *H, bs_err *err)
 {
-    int rc = run_batch(e, nk, k, 1, err);
+    if (e->m) {
+        if (nk < 0 || nk > e->max_batch)
+            return bs_fail(err, BS_EINVAL, "batch of %d k-points exceeds the engine's %d", nk, e->max_batch);
+        int rc = grow_weights(e, 1, err);
+        if (rc != 0) return rc;
+        borrow_weights(e, nk, k, 1);
+        borrow_product(e, nk, e->wts, H);
+        return 0;
+    }
+    int rc = grow_buffers(e, 1, 0, err);
+    /* The packed triangles of the batch go into H itself (C11: a double complex is two doubles),
+     * which holds 2 n^2 >= n (n + 1) doubles per point; they are unpacked from the last point down,
+     * each column copied aside first. Matrix j then only overwrites packed columns >= j, already
+     * unpacked, and its own column, read from the copy. */
+    if (rc == 0) rc = run_batch(e, nk, k, 1, (double *)H, err);
     if (rc != 0) return rc;
     size_t nn = (size_t)e->norb * e->norb, rows = 2 * (size_t)e->npair;
-    for (int j = 0; j < nk; j++)
-        unpack(e, e->packed + j * rows, H + j * nn);
+    for (int j = nk - 1; j >= 0; j--) {
+        memcpy(e->col, (const double *)H + (size_t)j * rows, rows * sizeof *e->col);
+        unpack(e, e->col, H + (size_t)j * nn);
+    }
     return 0;
 }
 
 int hk_build_deriv(hk_engine *e, int nk, const double *k, double complex *H, double complex *dH, bs_err *err)
 {
-    int rc = run_batch(e, nk, k, 4, err);
+    if (e->m) {
+        if (nk < 0 || nk > e->max_batch)
+            return bs_fail(err, BS_EINVAL, "batch of %d k-points exceeds the engine's %d", nk, e->max_batch);
+        int rc = grow_weights(e, 4, err);
+        if (rc != 0) return rc;
+        borrow_weights(e, nk, k, 4);
+        if (H) borrow_product(e, nk, e->wts, H);
+        borrow_product(e, 3 * nk, e->wts + (size_t)nk * e->nhalf, dH);
+        return 0;
+    }
+    int rc = grow_buffers(e, 4, 1, err);
+    if (rc == 0) rc = run_batch(e, nk, k, 4, e->packed, err);
     if (rc != 0) return rc;
     size_t nn = (size_t)e->norb * e->norb, rows = 2 * (size_t)e->npair;
     for (int j = 0; j < nk; j++) {
@@ -464,9 +642,9 @@ void hk_build_direct(const tb_model *m, const double k[3], double complex *H)
     for (int r = 0; r < m->nR; r++) {
         double theta = 2.0 * M_PI * (k[0] * m->R[r][0] + k[1] * m->R[r][1] + k[2] * m->R[r][2]);
         double complex ph = cexp(I * theta) / m->deg[r];
-        const double complex *Hr = m->H + r * nn;
+        const double complex *Hr = tb_hop_block(m, r, NULL);
         for (size_t p = 0; p < nn; p++)
-            H[p] += ph * Hr[p];
+            H[p] += ph * (Hr ? Hr[p] : tb_hop(m, r, (int)(p / (size_t)n), (int)(p % (size_t)n)));
     }
     for (size_t p = 0; p < nn; p++)
         H[p] = conj(H[p]);

@@ -72,10 +72,10 @@ void tb_content_hash(const tb_model *m, char hex[BS_SHA256_HEX])
         for (int d = 0; d < 3; d++)
             put_i64(&s, m->R[r][d]);
         put_i64(&s, m->deg[r]);
-        const double complex *h = m->H + (size_t)r * nn;
         for (size_t k = 0; k < nn; k++) {
-            put_f64(&s, creal(h[k]));
-            put_f64(&s, cimag(h[k]));
+            double complex h = tb_hop(m, r, (int)(k / (size_t)m->norb), (int)(k % (size_t)m->norb));
+            put_f64(&s, creal(h));
+            put_f64(&s, cimag(h));
         }
     }
     unsigned char d[BS_SHA256_BYTES];

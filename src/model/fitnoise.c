@@ -67,10 +67,9 @@ int fitnoise_apply(const tb_model *m, double rel, uint64_t seed, tb_model **out,
     /* The copy carries every field of m; its arrays are swapped for the grown ones. */
     free(tmp->R);
     free(tmp->deg);
-    free(tmp->H);
     tmp->R = R;
     tmp->deg = c->deg;
-    tmp->H = c->H;
+    tb_model_set_hops(tmp, c->H);
     tmp->nR = nR;
     c->deg = NULL;
     c->H = NULL;
@@ -78,7 +77,7 @@ int fitnoise_apply(const tb_model *m, double rel, uint64_t seed, tb_model **out,
     double maxhop = 0;
     for (int r = 0; r < m->nR; r++)
         for (size_t i = 0; i < n2; i++) {
-            tmp->H[r * n2 + i] = m->H[r * n2 + i] / m->deg[r];
+            tmp->H[r * n2 + i] = tb_hop(m, r, (int)(i / n), (int)(i % n)) / m->deg[r];
             if (cabs(tmp->H[r * n2 + i]) > maxhop) maxhop = cabs(tmp->H[r * n2 + i]);
         }
     for (int r = 0; r < nR; r++) {

@@ -542,6 +542,14 @@ static int write_card(hid_t g, const char *json)
 
 static int write_arrays(hid_t g, const tb_model *m)
 {
+    /* The set stores one block per lattice vector: a folded model is unfolded for the write. */
+    size_t nn = (size_t)m->norb * m->norb;
+    double complex *full = m->hsrc ? malloc((size_t)m->nR * nn * sizeof *full) : NULL;
+    if (m->hsrc && !full) return -1;
+    for (int r = 0; full && r < m->nR; r++) {
+        const double complex *h = tb_hop_block(m, r, full + (size_t)r * nn);
+        if (h != full + (size_t)r * nn) memcpy(full + (size_t)r * nn, h, nn * sizeof *full);
+    }
     hsize_t d33[2] = {3, 3}, dR[2] = {(hsize_t)m->nR, 3}, dn[1] = {(hsize_t)m->nR};
     hsize_t dH[4] = {(hsize_t)m->nR, (hsize_t)m->norb, (hsize_t)m->norb, 2};
     hsize_t dpos[2] = {(hsize_t)m->nspatial, 3}, dl[1] = {(hsize_t)m->nspatial};
@@ -549,7 +557,7 @@ static int write_arrays(hid_t g, const tb_model *m)
     int bad = dset_write(g, "lattice", H5T_NATIVE_DOUBLE, 2, d33, m->lattice) < 0 ||
               dset_write(g, "R", H5T_NATIVE_INT, 2, dR, m->R) < 0 ||
               dset_write(g, "deg", H5T_NATIVE_INT, 1, dn, m->deg) < 0 ||
-              dset_write(g, "H", H5T_NATIVE_DOUBLE, 4, dH, m->H) < 0 ||
+              dset_write(g, "H", H5T_NATIVE_DOUBLE, 4, dH, full ? full : m->H) < 0 ||
               dset_write(g, "orb_pos", H5T_NATIVE_DOUBLE, 2, dpos, m->orb_pos) < 0 ||
               dset_write(g, "orb_l", H5T_NATIVE_INT, 1, dl, m->orb_l) < 0 ||
               (m->orb_shape && dset_write(g, "orb_shape", H5T_NATIVE_INT, 1, dl, m->orb_shape) < 0);
@@ -559,6 +567,7 @@ static int write_arrays(hid_t g, const tb_model *m)
               dset_write(g, "inv_sign", H5T_NATIVE_DOUBLE, 1, dv, m->inv_sign) < 0 ||
               dset_write(g, "inv_shift", H5T_NATIVE_INT, 2, dsh, m->inv_shift) < 0;
     }
+    free(full);
     return bad ? -1 : 0;
 }
 
@@ -1119,6 +1128,7 @@ static int read_impl(const ms_set *s, const char *id, int validate, tb_model **o
     }
     if ((rc = read_model_arrays(g, where, m, err)) != 0) goto done;
     if (validate && (rc = tb_model_validate(m, BS_HERMITIAN_TOL_EV, where, err)) != 0) goto done;
+    tb_model_fold(m);
     *out = m;
     m = NULL;
 done:

@@ -56,11 +56,37 @@ void tb_model_free(tb_model *m)
     free(m->R);
     free(m->deg);
     free(m->H);
+    free(m->hsrc);
     free(m->inv_perm);
     free(m->inv_sign);
     free(m->inv_shift);
     free(m->card_json);
     free(m);
+}
+
+/* Blocks stored in m->H. */
+static size_t tb_model_nblock(const tb_model *m)
+{
+    if (!m->hsrc) return (size_t)m->nR;
+    size_t nblock = 0;
+    for (int r = 0; r < m->nR; r++)
+        nblock += m->hsrc[r] >= 0;
+    return nblock;
+}
+
+/* Gives back the memory past nblock blocks; a refused shrink keeps the larger array. */
+static void shrink_blocks(tb_model *m, size_t nblock)
+{
+    if (nblock == (size_t)m->nR || nblock == 0) return;
+    double complex *H = realloc(m->H, nblock * m->norb * m->norb * sizeof *H);
+    if (H) m->H = H;
+}
+
+/* The adjoint's element: conj(z), with a zero imaginary part always +0 so that the fold test
+ * (bitwise) and every read agree on one value. */
+static double complex adjoint_element(double complex z)
+{
+    return CMPLX(creal(z), 0.0 - cimag(z));
 }
 
 static int dup_array(void **dst, const void *src, size_t bytes)
@@ -92,7 +118,9 @@ int tb_model_copy(const tb_model *m, tb_model **out, bs_err *err)
     memcpy(c->orb_l, m->orb_l, (size_t)m->nspatial * sizeof *m->orb_l);
     memcpy(c->R, m->R, (size_t)m->nR * sizeof *m->R);
     memcpy(c->deg, m->deg, (size_t)m->nR * sizeof *m->deg);
-    memcpy(c->H, m->H, (size_t)m->nR * m->norb * m->norb * sizeof *m->H);
+    size_t nblock = tb_model_nblock(m);
+    memcpy(c->H, m->H, nblock * m->norb * m->norb * sizeof *m->H);
+    c->hsrc = NULL;
     c->inv_perm = NULL;
     c->inv_sign = NULL;
     c->inv_shift = NULL;
@@ -103,12 +131,119 @@ int tb_model_copy(const tb_model *m, tb_model **out, bs_err *err)
         dup_array((void **)&c->inv_perm, m->inv_perm, n * sizeof *m->inv_perm) ||
         dup_array((void **)&c->inv_sign, m->inv_sign, n * sizeof *m->inv_sign) ||
         dup_array((void **)&c->inv_shift, m->inv_shift, n * sizeof *m->inv_shift) ||
-        dup_array((void **)&c->orb_shape, m->orb_shape, (size_t)m->nspatial * sizeof *m->orb_shape)) {
+        dup_array((void **)&c->orb_shape, m->orb_shape, (size_t)m->nspatial * sizeof *m->orb_shape) ||
+        dup_array((void **)&c->hsrc, m->hsrc, (size_t)m->nR * sizeof *m->hsrc)) {
         tb_model_free(c);
         return bs_fail(err, BS_ENOMEM, "out of memory copying a model");
     }
+    shrink_blocks(c, nblock);
     *out = c;
     return 0;
+}
+
+double complex tb_hop(const tb_model *m, int r, int a, int b)
+{
+    size_t n = (size_t)m->norb;
+    if (!m->hsrc) return m->H[(size_t)r * n * n + (size_t)a * n + b];
+    int s = m->hsrc[r];
+    if (s >= 0) return m->H[(size_t)s * n * n + (size_t)a * n + b];
+    return adjoint_element(m->H[(size_t)(-1 - s) * n * n + (size_t)b * n + a]);
+}
+
+const double complex *tb_hop_block(const tb_model *m, int r, double complex *buf)
+{
+    size_t n = (size_t)m->norb;
+    int s = m->hsrc ? m->hsrc[r] : r;
+    if (s >= 0) return m->H + (size_t)s * n * n;
+    if (!buf) return NULL;
+    const double complex *src = m->H + (size_t)(-1 - s) * n * n;
+    for (size_t a = 0; a < n; a++)
+        for (size_t b = 0; b < n; b++)
+            buf[a * n + b] = adjoint_element(src[b * n + a]);
+    return buf;
+}
+
+/* H_q (block at Hq) is bit for bit the adjoint of H_r (block at Hr). */
+static int is_adjoint(const double complex *Hq, const double complex *Hr, size_t n)
+{
+    for (size_t a = 0; a < n; a++)
+        for (size_t b = 0; b < n; b++) {
+            double complex z = adjoint_element(Hr[b * n + a]);
+            if (memcmp(&z, &Hq[a * n + b], sizeof z) != 0) return 0;
+        }
+    return 1;
+}
+
+void tb_model_fold(tb_model *m)
+{
+    if (m->hsrc) { /* folded already, perhaps while read (tb_model_fold_next): give back the rest */
+        shrink_blocks(m, tb_model_nblock(m));
+        return;
+    }
+    int *src = malloc((size_t)m->nR * sizeof *src);
+    if (!src) return; /* folding only saves memory: an unfolded model is as valid */
+    size_t n = (size_t)m->norb, nn = n * n;
+    /* First decide (every block still in place), then move the kept blocks down in order: a block
+     * only ever moves to a lower slot, so the moves never overwrite one still to be read. */
+    for (int r = 0; r < m->nR; r++)
+        src[r] = r;
+    for (int r = 0; r < m->nR; r++) {
+        if (src[r] != r) continue;
+        int minus[3] = {-m->R[r][0], -m->R[r][1], -m->R[r][2]};
+        int q = tb_model_find_R(m, minus);
+        if (q > r && m->deg[q] == m->deg[r] && is_adjoint(m->H + (size_t)q * nn, m->H + (size_t)r * nn, n))
+            src[q] = -1 - r;
+    }
+    int nblock = 0;
+    for (int r = 0; r < m->nR; r++) {
+        if (src[r] < 0) continue;
+        if (nblock != r) memmove(m->H + (size_t)nblock * nn, m->H + (size_t)r * nn, nn * sizeof *m->H);
+        src[r] = nblock++;
+    }
+    for (int r = 0; r < m->nR; r++)
+        if (src[r] < 0) src[r] = -1 - src[-1 - src[r]];
+    m->hsrc = src;
+    shrink_blocks(m, (size_t)nblock);
+}
+
+void tb_model_fold_next(tb_model *m, int r, int *nblock)
+{
+    size_t n = (size_t)m->norb, nn = n * n;
+    const double complex *blk = m->H + (size_t)*nblock * nn;
+    for (int q = 0; q < r; q++) {
+        if (m->R[q][0] != -m->R[r][0] || m->R[q][1] != -m->R[r][1] || m->R[q][2] != -m->R[r][2]) continue;
+        /* -R came earlier: fold onto its block, as tb_model_fold would (the first of a pair owns it);
+         * a partner itself folded means a repeated R, which the reader refuses anyway */
+        int s = m->hsrc[q];
+        if (s >= 0 && m->deg[q] == m->deg[r] && is_adjoint(blk, m->H + (size_t)s * nn, n)) {
+            m->hsrc[r] = -1 - s;
+            return;
+        }
+        break;
+    }
+    m->hsrc[r] = (*nblock)++;
+}
+
+int tb_model_unfold(tb_model *m, bs_err *err)
+{
+    if (!m->hsrc) return 0;
+    size_t nn = (size_t)m->norb * m->norb;
+    double complex *H = malloc((size_t)m->nR * nn * sizeof *H);
+    if (!H) return bs_fail(err, BS_ENOMEM, "out of memory for %d x %d^2 hoppings", m->nR, m->norb);
+    for (int r = 0; r < m->nR; r++) {
+        const double complex *h = tb_hop_block(m, r, H + (size_t)r * nn);
+        if (h != H + (size_t)r * nn) memcpy(H + (size_t)r * nn, h, nn * sizeof *H);
+    }
+    tb_model_set_hops(m, H);
+    return 0;
+}
+
+void tb_model_set_hops(tb_model *m, double complex *H)
+{
+    free(m->H);
+    free(m->hsrc);
+    m->H = H;
+    m->hsrc = NULL;
 }
 
 int tb_model_find_R(const tb_model *m, const int R[3])
@@ -189,11 +324,9 @@ int tb_model_validate(const tb_model *m, double tol_ev, const char *where, bs_er
         if (rm < 0)
             return bs_fail(err, BS_EINVAL, "%s: R = (%d,%d,%d) present but -R missing (H is not Hermitian)",
                            where, m->R[r][0], m->R[r][1], m->R[r][2]);
-        const double complex *Hp = m->H + (size_t)r * n * n;
-        const double complex *Hm = m->H + (size_t)rm * n * n;
         for (int a = 0; a < n; a++)
             for (int b = 0; b < n; b++) {
-                double complex h = Hp[(size_t)a * n + b];
+                double complex h = tb_hop(m, r, a, b);
                 if (!isfinite(creal(h)) || !isfinite(cimag(h)))
                     return bs_fail(err, BS_EINVAL, "%s: non-finite hopping at R = (%d,%d,%d), m = %d, n = %d",
                                    where, m->R[r][0], m->R[r][1], m->R[r][2], a + 1, b + 1);
@@ -203,7 +336,7 @@ int tb_model_validate(const tb_model *m, double tol_ev, const char *where, bs_er
                                    "implausible (limit %g eV; wrong units?)",
                                    where, cabs(h), m->R[r][0], m->R[r][1], m->R[r][2], a + 1, b + 1,
                                    BS_MAX_HOPPING_EV);
-                double complex hd = conj(Hm[(size_t)b * n + a]);
+                double complex hd = conj(tb_hop(m, rm, b, a));
                 /* Compare H_R / deg_R: the weights of R and -R may differ only in a broken file. */
                 double d = cabs(h / m->deg[r] - hd / m->deg[rm]);
                 if (d > tol_ev)

@@ -30,15 +30,14 @@ int tf_permute_states(const tb_model *m, const int *old_of_new, tb_model **out, 
     tb_model *c = NULL;
     int *new_of_old = malloc((size_t)n * sizeof *new_of_old);
     if (!new_of_old) return bs_fail(err, BS_ENOMEM, "out of memory for a permutation");
-    if ((rc = tb_model_copy(m, &c, err)) != 0) goto done;
+    if ((rc = tb_model_copy(m, &c, err)) != 0 || (rc = tb_model_unfold(c, err)) != 0) goto done;
     for (int a = 0; a < n; a++)
         new_of_old[old_of_new[a]] = a;
     for (int r = 0; r < m->nR; r++) {
-        const double complex *H = m->H + (size_t)r * n * n;
         double complex *Hc = c->H + (size_t)r * n * n;
         for (int a = 0; a < n; a++)
             for (int b = 0; b < n; b++)
-                Hc[(size_t)a * n + b] = H[(size_t)old_of_new[a] * n + old_of_new[b]];
+                Hc[(size_t)a * n + b] = tb_hop(m, r, old_of_new[a], old_of_new[b]);
     }
     /* P|old i> = s_i |old j>: new state a = old i maps to new state new_of_old[j]. */
     if (m->has_inversion_op)
@@ -88,6 +87,7 @@ int tf_phase(const tb_model *m, const double *phi, tb_model **out, bs_err *err)
     if (!u) return bs_fail(err, BS_ENOMEM, "out of memory for phases");
     tb_model *c = NULL;
     int rc = tb_model_copy(m, &c, err);
+    if (rc == 0) rc = tb_model_unfold(c, err);
     if (rc != 0) goto done;
     for (int a = 0; a < n; a++)
         u[a] = cexp(I * phi[tb_state_orbital(m, a)]);

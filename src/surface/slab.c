@@ -240,7 +240,7 @@ static int rebase(const tb_model *bulk, const int M[3][3], int ax, double cut, t
             slot[o] = -1; /* index of R' + (o - 2 dmax) e_ax, found lazily */
         for (int a = 0; a < n && rc == 0; a++)
             for (int b = 0; b < n; b++) {
-                double complex h = bulk->H[(size_t)r * nn + (size_t)a * n + b] / bulk->deg[r];
+                double complex h = tb_hop(bulk, r, a, b) / bulk->deg[r];
                 if (h == 0) continue;
                 int off = shift[tb_state_orbital(bulk, b)] - shift[tb_state_orbital(bulk, a)];
                 int *idx = &slot[off + 2 * dmax];
@@ -266,10 +266,9 @@ static int rebase(const tb_model *bulk, const int M[3][3], int ax, double cut, t
     if (rc != 0) goto done;
     free(m->R);
     free(m->deg);
-    free(m->H);
     m->R = t->R;
     m->deg = t->deg;
-    m->H = t->H;
+    tb_model_set_hops(m, t->H);
     t->R = NULL;
     t->deg = NULL;
     t->H = NULL;
@@ -307,7 +306,8 @@ static int group(slab *s, bs_err *err)
             if (m->R[r][ax] != bin - range) continue;
             s->rpar[k][0] = m->R[r][0];
             s->rpar[k][1] = ax == 2 ? m->R[r][1] : 0;
-            memcpy(s->hop + (size_t)k * nn, m->H + (size_t)r * nn, nn * sizeof *s->hop);
+            const double complex *h = tb_hop_block(m, r, s->hop + (size_t)k * nn);
+            if (h != s->hop + (size_t)k * nn) memcpy(s->hop + (size_t)k * nn, h, nn * sizeof *s->hop);
             k++;
         }
     }
@@ -512,7 +512,7 @@ int slab_film_model(const slab *s, const tb_model *bulk, tb_model **out, bs_err 
             }
             f->orb_l[fo] = m->orb_l[o];
         }
-    size_t nn = (size_t)n * n, nfn = (size_t)nf * nf;
+    size_t nfn = (size_t)nf * nf;
     for (int q = 0; q < nRp; q++) {
         f->R[q][0] = Rp[q][0];
         f->R[q][1] = Rp[q][1];
@@ -525,14 +525,13 @@ int slab_film_model(const slab *s, const tb_model *bulk, tb_model **out, bs_err 
             q++;
         int dz = m->R[r][2];
         if (dz < -L || dz > L) continue;
-        const double complex *h = m->H + (size_t)r * nn;
         double complex *hf = f->H + (size_t)q * nfn;
         for (int j = 0; j < N; j++) {
             int jp = j + dz;
             if (jp < 0 || jp >= N) continue;
             for (int x = 0; x < n; x++)
                 for (int y = 0; y < n; y++) {
-                    double complex v = h[(size_t)x * n + y] / m->deg[r];
+                    double complex v = tb_hop(m, r, x, y) / m->deg[r];
                     if (v == 0) continue;
                     hf[(size_t)film_state(bulk, N, j, x) * nf + film_state(bulk, N, jp, y)] += v;
                 }

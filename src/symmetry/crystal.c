@@ -667,15 +667,16 @@ static int apply_op(const tb_model *m, const cry_info *c, int iop, double weight
 {
     int n = m->norb;
     double complex *D = malloc((size_t)n * n * sizeof *D);
+    double complex *hbuf = malloc((size_t)n * n * sizeof *hbuf); /* H_R of a folded model */
     int(*Ls)[3] = malloc((size_t)n * sizeof *Ls);
-    int rc = (!D || !Ls) ? bs_fail(err, BS_ENOMEM, "out of memory (symmetrisation)") : 0;
+    int rc = (!D || !hbuf || !Ls) ? bs_fail(err, BS_ENOMEM, "out of memory (symmetrisation)") : 0;
     if (rc == 0) rc = op_state_matrix(c, iop, D, Ls, err);
     const cry_op *op = &c->ops[iop];
     for (int r = 0; rc == 0 && r < m->nR; r++) {
         int WR[3];
         for (int i = 0; i < 3; i++)
             WR[i] = op->W[i][0] * m->R[r][0] + op->W[i][1] * m->R[r][1] + op->W[i][2] * m->R[r][2];
-        const double complex *h = m->H + (size_t)r * n * n;
+        const double complex *h = tb_hop_block(m, r, hbuf);
         double inv_deg = 1.0 / m->deg[r];
         for (int i = 0; i < n && rc == 0; i++)
             for (int j = 0; j < n; j++) {
@@ -701,6 +702,7 @@ static int apply_op(const tb_model *m, const cry_info *c, int iop, double weight
             }
     }
     free(D);
+    free(hbuf);
     free(Ls);
     return rc;
 }
@@ -723,7 +725,7 @@ int cry_breaking_ev(const tb_model *m, const cry_info *c, int iop, double *bound
             break;
         }
         for (size_t e = 0; e < (size_t)n * n; e++)
-            blk[e] -= m->H[(size_t)r * n * n + e] / m->deg[r];
+            blk[e] -= tb_hop(m, r, (int)(e / (size_t)n), (int)(e % (size_t)n)) / m->deg[r];
     }
     for (int r = 0; rc == 0 && r < gm.n; r++) {
         double f = 0.0;
@@ -766,8 +768,9 @@ int cry_symmetrise(const tb_model *m, const cry_info *c, const int *ops, int nop
             memcpy(H, acc.h, (size_t)acc.n * n * n * sizeof *H);
             for (int r = 0; r < acc.n; r++)
                 deg[r] = 1;
-            free(s->R), free(s->deg), free(s->H);
-            s->R = R, s->deg = deg, s->H = H, s->nR = acc.n;
+            free(s->R), free(s->deg);
+            s->R = R, s->deg = deg, s->nR = acc.n;
+            tb_model_set_hops(s, H);
         }
     }
     rmap_clear(&acc);

@@ -268,10 +268,9 @@ static int model_from(const tb_model *m, const rset *rs, const double complex *E
     memcpy(H, E, (size_t)rs->n * n2 * sizeof *H);
     free(c->R);
     free(c->deg);
-    free(c->H);
     c->R = R;
     c->deg = deg;
-    c->H = H;
+    tb_model_set_hops(c, H);
     c->nR = rs->n;
     *out = c;
     return 0;
@@ -285,7 +284,7 @@ static double complex *load_effective(const tb_model *m)
     if (!E) return NULL;
     for (int r = 0; r < m->nR; r++)
         for (size_t i = 0; i < n2; i++)
-            E[r * n2 + i] = m->H[r * n2 + i] / m->deg[r];
+            E[r * n2 + i] = tb_hop(m, r, (int)(i / (size_t)m->norb), (int)(i % (size_t)m->norb)) / m->deg[r];
     return E;
 }
 

@@ -156,7 +156,7 @@ static int spin_diagonal(const tb_model *m)
     for (int r = 0; r < m->nR; r++)
         for (size_t a = 0; a < n; a++)
             for (size_t b = 0; b < n; b++)
-                if (tb_state_spin(m, (int)a) != tb_state_spin(m, (int)b) && m->H[(r * n + a) * n + b] != 0)
+                if (tb_state_spin(m, (int)a) != tb_state_spin(m, (int)b) && tb_hop(m, r, (int)a, (int)b) != 0)
                     return 0;
     return 1;
 }

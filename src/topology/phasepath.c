@@ -212,16 +212,14 @@ static int interpolate(const pp_source *s, int seg, double t, tb_model **out, bs
         m->deg[r] = 1;
         double complex *h = m->H + (size_t)r * nn;
         if (g->ia[r] >= 0) {
-            const double complex *ha = a->H + (size_t)g->ia[r] * nn;
             double w = (1 - t) / a->deg[g->ia[r]];
             for (size_t e = 0; e < nn; e++)
-                h[e] += w * ha[e];
+                h[e] += w * tb_hop(a, g->ia[r], (int)(e / (size_t)a->norb), (int)(e % (size_t)a->norb));
         }
         if (g->ib[r] >= 0) {
-            const double complex *hb = b->H + (size_t)g->ib[r] * nn;
             double w = t / b->deg[g->ib[r]];
             for (size_t e = 0; e < nn; e++)
-                h[e] += w * hb[e];
+                h[e] += w * tb_hop(b, g->ib[r], (int)(e / (size_t)b->norb), (int)(e % (size_t)b->norb));
         }
     }
     *out = m;

@@ -263,6 +263,108 @@ static void test_line_cache_matches_direct_sum(void **state)
     tb_model_free(m);
 }
 
+/* The borrowing engine (no table: m's folded blocks times their phases) against the direct sum,
+ * the definition: H(k), dH/dk, a plane and a line reduced from it, re-reduction and the line
+ * cache. The model is folded, with one pair of R, -R perturbed by 1e-13 so that both of its blocks
+ * stay stored (the half-weight path). Tolerance 1e-12 eV: round-off of sums of 125 terms of size
+ * ~1 (common practice), as for the table engine above. */
+static void test_borrowed_engine_matches_direct_sum(void **state)
+{
+    (void)state;
+    int norb = 6, nk = 8;
+    tb_model *m = random_model(norb, 2718);
+    size_t nn = (size_t)norb * norb;
+    int r1 = tb_model_find_R(m, (int[3]){1, 2, 0});
+    m->H[r1 * nn + 1] += 1e-13;
+    tb_model_fold(m);
+    assert_non_null(m->hsrc);
+    int stored = 0;
+    for (int r = 0; r < m->nR; r++)
+        stored += m->hsrc[r] >= 0;
+    assert_int_equal(stored, 64); /* R = 0, 62 folded pairs, and both blocks of the perturbed pair */
+    bs_err err;
+    bs_err_clear(&err);
+    hk_engine *full = NULL, *plane = NULL, *line = NULL, *table = NULL;
+    assert_int_equal(hk_create_borrowed(m, nk, &full, &err), 0);
+    double complex *H = malloc(nk * nn * sizeof *H), *Hd = malloc(nn * sizeof *Hd);
+    double complex *dH = malloc(3 * nk * nn * sizeof *dH), *Hp = malloc(nn * sizeof *Hp);
+    double k[24];
+    uint64_t seed = 17;
+    for (int i = 0; i < 3 * nk; i++)
+        k[i] = bs_test_uniform(&seed) * 2 - 0.5;
+    assert_int_equal(hk_build(full, nk, k, H, &err), 0);
+    for (int j = 0; j < nk; j++) {
+        hk_build_direct(m, k + 3 * j, Hd);
+        assert_true(max_diff(H + j * nn, Hd, nn) < 1e-12);
+    }
+    /* dH/dk_i against a central difference of the direct sum, step 1e-5: the error h^2 |d3H/dk3| / 6
+     * is below 1e-6 eV here (|R| <= 2, hoppings <= 1); 1e-4 eV is ample (common practice). */
+    assert_int_equal(hk_build_deriv(full, nk, k, H, dH, &err), 0);
+    for (int j = 0; j < nk; j++)
+        for (int i = 0; i < 3; i++) {
+            double kp[3] = {k[3 * j], k[3 * j + 1], k[3 * j + 2]}, km[3] = {kp[0], kp[1], kp[2]}, h = 1e-5;
+            kp[i] += h;
+            km[i] -= h;
+            hk_build_direct(m, kp, Hp);
+            hk_build_direct(m, km, Hd);
+            for (size_t p = 0; p < nn; p++)
+                Hd[p] = (Hp[p] - Hd[p]) / (2 * h);
+            assert_true(max_diff(dH + (size_t)(j * 3 + i) * nn, Hd, nn) < 1e-4);
+        }
+    assert_int_equal(hk_reduce(full, 2, 0.37, nk, &plane, &err), 0);
+    assert_int_equal(hk_reduce(plane, 0, -0.21, nk, &line, &err), 0);
+    for (int j = 0; j < nk; j++) {
+        k[3 * j] = -0.21;
+        k[3 * j + 1] = 0.1 * j - 0.3;
+        k[3 * j + 2] = 0.37;
+    }
+    assert_int_equal(hk_build(line, nk, k, H, &err), 0);
+    for (int j = 0; j < nk; j++) {
+        hk_build_direct(m, k + 3 * j, Hd);
+        assert_true(max_diff(H + j * nn, Hd, nn) < 1e-12);
+    }
+    assert_int_equal(hk_rereduce(plane, full, -0.4, &err), 0);
+    assert_int_equal(hk_rereduce(line, plane, 0.45, &err), 0);
+    for (int j = 0; j < nk; j++) {
+        k[3 * j] = 0.45;
+        k[3 * j + 2] = -0.4;
+    }
+    assert_int_equal(hk_build(line, nk, k, H, &err), 0);
+    for (int j = 0; j < nk; j++) {
+        hk_build_direct(m, k + 3 * j, Hd);
+        assert_true(max_diff(H + j * nn, Hd, nn) < 1e-12);
+    }
+    hk_lines *lines = NULL;
+    assert_int_equal(hk_lines_create(full, &lines, &err), 0);
+    for (int s = 0; s < 3; s++) {
+        for (int j = 0; j < nk; j++) {
+            k[3 * j] = (double)j / nk;
+            k[3 * j + 1] = 0.1 * s + 0.05;
+            k[3 * j + 2] = 0.5;
+        }
+        assert_int_equal(hk_lines_build(lines, nk, k, H, &err), 0);
+        for (int j = 0; j < nk; j++) {
+            hk_build_direct(m, k + 3 * j, Hd);
+            assert_true(max_diff(H + j * nn, Hd, nn) < 1e-12);
+        }
+    }
+    /* Below BS_HK_BORROW_BYTES hk_create keeps the table: the same values to round-off. */
+    assert_int_equal(hk_create(m, nk, &table, &err), 0);
+    assert_int_equal(hk_build(table, nk, k, dH, &err), 0);
+    for (int j = 0; j < nk; j++)
+        assert_true(max_diff(dH + j * nn, H + j * nn, nn) < 1e-12);
+    hk_free(table);
+    hk_lines_free(lines);
+    free(H);
+    free(Hd);
+    free(dH);
+    free(Hp);
+    hk_free(line);
+    hk_free(plane);
+    hk_free(full);
+    tb_model_free(m);
+}
+
 int main(void)
 {
     const struct CMUnitTest tests[] = {
@@ -271,6 +373,7 @@ int main(void)
         cmocka_unit_test(test_batches_before_and_after_derivatives),
         cmocka_unit_test(test_reduced_engines_match_direct_sum),
         cmocka_unit_test(test_line_cache_matches_direct_sum),
+        cmocka_unit_test(test_borrowed_engine_matches_direct_sum),
     };
     return cmocka_run_group_tests(tests, NULL, NULL);
 }

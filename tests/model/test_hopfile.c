@@ -60,7 +60,7 @@ static void expect_same_model(const tb_model *a, const tb_model *b)
     assert_int_equal(a->nR, b->nR);
     assert_memory_equal(a->R, b->R, (size_t)a->nR * sizeof *a->R);
     assert_memory_equal(a->deg, b->deg, (size_t)a->nR * sizeof *a->deg);
-    assert_memory_equal(a->H, b->H, (size_t)a->nR * a->norb * a->norb * sizeof *a->H);
+    assert_true(bs_test_same_hops(a, b));
 }
 
 static void test_good_fixture(void **state)
@@ -76,11 +76,11 @@ static void test_good_fixture(void **state)
     int R1[3] = {-1, 0, 0};
     int r0 = tb_model_find_R(m, (int[3]){0, 0, 0}), r1 = tb_model_find_R(m, R1);
     assert_true(r0 >= 0 && r1 >= 0);
-    assert_true(creal(m->H[(size_t)r0 * 4 + 0]) == 0.5);  /* A on-site */
-    assert_true(creal(m->H[(size_t)r0 * 4 + 3]) == -0.5); /* B on-site */
-    assert_true(creal(m->H[(size_t)r0 * 4 + 1]) == -2.7); /* row A, column B */
-    assert_true(creal(m->H[(size_t)r1 * 4 + 1]) == -2.7); /* <A,0|H|B,(-1,0,0)> */
-    assert_true(creal(m->H[(size_t)r1 * 4 + 2]) == 0.0);  /* <B,0|H|A,(-1,0,0)>: no bond */
+    assert_true(creal(tb_hop(m, r0, 0, 0)) == 0.5);  /* A on-site */
+    assert_true(creal(tb_hop(m, r0, 1, 1)) == -0.5); /* B on-site */
+    assert_true(creal(tb_hop(m, r0, 0, 1)) == -2.7); /* row A, column B */
+    assert_true(creal(tb_hop(m, r1, 0, 1)) == -2.7); /* <A,0|H|B,(-1,0,0)> */
+    assert_true(creal(tb_hop(m, r1, 1, 0)) == 0.0);  /* <B,0|H|A,(-1,0,0)>: no bond */
     for (int r = 0; r < m->nR; r++)
         assert_int_equal(m->deg[r], 1);
     tb_model_free(m);
@@ -91,7 +91,68 @@ static void test_good_fixture(void **state)
     assert_int_equal(m->nspatial, 2);
     assert_int_equal(m->deg[1], 2);
     /* Row 3 (A down), column 1 (A up) at R = 0 is -0.05i in the fixture. */
-    assert_true(cimag(m->H[2 * 4 + 0]) == -0.05);
+    assert_true(cimag(tb_hop(m, 0, 2, 0)) == -0.05);
+    tb_model_free(m);
+}
+
+/* The reader stores H_R and H_-R once when H_-R = H_R^dagger bit for bit (tb_model_fold), and every
+ * value read back, folded or not, is the file's bit for bit (exact by construction: folding may
+ * never change a value; common practice for a lossless storage change). Pairs: (1,0,0) generic;
+ * (0,1,0) with zero imaginary parts written as +0 on both sides (folds); (1,1,0) with one element
+ * of H_-R carrying -0 where the adjoint gives +0 (kept apart, so -0 survives). */
+static void test_folded_storage(void **state)
+{
+    (void)state;
+    const int n = 3, nR = 7;
+    static const int Rs[7][3] = {{0, 0, 0},  {1, 0, 0}, {-1, 0, 0}, {0, 1, 0},
+                                 {0, -1, 0}, {1, 1, 0}, {-1, -1, 0}};
+    tb_model *m = NULL;
+    bs_err err;
+    bs_err_clear(&err);
+    assert_int_equal(tb_model_create(n, nR, 0, &m, &err), 0);
+    uint64_t seed = 7;
+    for (int r = 0; r < nR; r++)
+        memcpy(m->R[r], Rs[r], sizeof Rs[r]);
+    size_t nn = (size_t)n * n;
+    for (int r = 0; r < nR; r += r == 0 ? 1 : 2)
+        for (int a = 0; a < n; a++)
+            for (int b = 0; b < n; b++) {
+                double re = bs_test_uniform(&seed) - 0.5, im = r == 3 ? 0.0 : bs_test_uniform(&seed) - 0.5;
+                if (r == 0 && b < a) continue;
+                if (r == 0 && a == b) im = 0.0;
+                m->H[r * nn + (size_t)a * n + b] = CMPLX(re, im);
+                int q = r == 0 ? 0 : r + 1;
+                if (r == 0 && a == b) continue;
+                m->H[q * nn + (size_t)b * n + a] = CMPLX(re, 0.0 - im);
+            }
+    m->H[6 * nn + 1] = CMPLX(creal(m->H[6 * nn + 1]), -0.0);
+    m->H[5 * nn + 3] = CMPLX(creal(m->H[5 * nn + 3]), 0.0);
+    char path[512];
+    snprintf(path, sizeof path, "%s/folded_hop.dat", tmpdir);
+    assert_int_equal(hop_write(path, m, "folded storage test (invented values)", &err), 0);
+    tb_model *back = NULL, *copy = NULL;
+    assert_int_equal(hop_read(path, 0, &back, &err), 0);
+    assert_true(bs_test_same_hops(back, m));
+    assert_non_null(back->hsrc);
+    int stored = 0;
+    for (int r = 0; r < nR; r++)
+        stored += back->hsrc[r] >= 0;
+    assert_int_equal(stored, 5); /* R = 0, the three pairs once, and the -0 block of (-1,-1,0) */
+    assert_true(back->hsrc[2] < 0 && back->hsrc[4] < 0 && back->hsrc[6] >= 0);
+    double complex buf[9];
+    assert_null(tb_hop_block(back, 2, NULL));
+    assert_ptr_equal(tb_hop_block(back, 2, buf), buf);
+    assert_memory_equal(buf, m->H + 2 * nn, sizeof buf);
+    double complex z = tb_hop(back, 6, 0, 1);
+    assert_true(signbit(cimag(z)));
+    /* Copies keep the folding; unfolding gives one block per vector and the same values. */
+    assert_int_equal(tb_model_copy(back, &copy, &err), 0);
+    assert_true(bs_test_same_hops(copy, m));
+    assert_int_equal(tb_model_unfold(copy, &err), 0);
+    assert_null(copy->hsrc);
+    assert_memory_equal(copy->H, m->H, (size_t)nR * nn * sizeof *m->H);
+    tb_model_free(copy);
+    tb_model_free(back);
     tb_model_free(m);
 }
 
@@ -153,7 +214,12 @@ static void check_against_strtod(const char *fmt, uint64_t seed)
     bs_err_clear(&err);
     tb_model *back = NULL;
     assert_int_equal(hop_read(path, 0, &back, &err), 0);
-    assert_memory_equal(back->H, want, (size_t)nR * n * n * 2 * sizeof *want);
+    for (int r = 0; r < nR; r++)
+        for (int a = 0; a < n; a++)
+            for (int c = 0; c < n; c++) {
+                double complex h = tb_hop(back, r, a, c);
+                assert_memory_equal(&h, want + (((size_t)r * n + a) * n + c) * 2, sizeof h);
+            }
     free(want);
     tb_model_free(back);
     tb_model_free(m);
@@ -253,9 +319,10 @@ static void test_write_failures(void **state)
 int main(void)
 {
     const struct CMUnitTest tests[] = {
-        cmocka_unit_test(test_good_fixture),          cmocka_unit_test(test_round_trip),
-        cmocka_unit_test(test_parser_matches_strtod), cmocka_unit_test(test_broken_tables),
-        cmocka_unit_test(test_absurd_product),        cmocka_unit_test(test_write_failures),
+        cmocka_unit_test(test_good_fixture),   cmocka_unit_test(test_round_trip),
+        cmocka_unit_test(test_folded_storage), cmocka_unit_test(test_parser_matches_strtod),
+        cmocka_unit_test(test_broken_tables),  cmocka_unit_test(test_absurd_product),
+        cmocka_unit_test(test_write_failures),
     };
     return cmocka_run_group_tests(tests, setup, teardown);
 }
