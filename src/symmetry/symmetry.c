@@ -31,6 +31,7 @@ static void op_clear(sym_op *op)
 static int op_alloc(sym_op *op, int n, int with_shift)
 {
     memset(op, 0, sizeof *op);
+    if (n <= 0) return -1;
     op->perm = malloc((size_t)n * sizeof *op->perm);
     op->fac = malloc((size_t)n * sizeof *op->fac);
     if (with_shift) op->shift = calloc((size_t)n, sizeof *op->shift);
