@@ -251,10 +251,12 @@ static int chunks_plausible(hid_t d, hid_t type, int rank)
     return ok;
 }
 
-/* Reads dataset name of exactly the shape dims into buf, checking the shape before reading. */
-static int dset_read(hid_t loc, const char *where, const char *name, hid_t type, int rank,
-                     const hsize_t *dims, void *buf, bs_err *err)
+/* Opens dataset name into *out after checking that it exists, has exactly the shape dims and
+ * plausible chunks; the caller closes it. */
+static int dset_open_checked(hid_t loc, const char *where, const char *name, hid_t type, int rank,
+                             const hsize_t *dims, hid_t *out, bs_err *err)
 {
+    *out = -1;
     if (H5Lexists(loc, name, H5P_DEFAULT) <= 0)
         return read_fail(err, BS_EPARSE, "%s/%s: dataset missing", where, name);
     hid_t d = H5Dopen2(loc, name, H5P_DEFAULT);
@@ -276,10 +278,94 @@ static int dset_read(hid_t loc, const char *where, const char *name, hid_t type,
     } else if (!chunks_plausible(d, type, rank)) {
         rc = bs_fail(err, BS_EPARSE, "%s/%s: damaged dataset (a stored chunk larger than its data)", where,
                      name);
-    } else if (H5Dread(d, type, H5S_ALL, H5S_ALL, H5P_DEFAULT, buf) < 0) {
-        rc = h5_fail(err, "%s/%s: cannot read dataset", where, name);
     }
     if (sp >= 0) H5Sclose(sp);
+    if (rc != 0)
+        H5Dclose(d);
+    else
+        *out = d;
+    return rc;
+}
+
+/* Reads dataset name of exactly the shape dims into buf, checking the shape before reading. */
+static int dset_read(hid_t loc, const char *where, const char *name, hid_t type, int rank,
+                     const hsize_t *dims, void *buf, bs_err *err)
+{
+    hid_t d;
+    int rc = dset_open_checked(loc, where, name, type, rank, dims, &d, err);
+    if (rc != 0) return rc;
+    if (H5Dread(d, type, H5S_ALL, H5S_ALL, H5P_DEFAULT, buf) < 0)
+        rc = h5_fail(err, "%s/%s: cannot read dataset", where, name);
+    H5Dclose(d);
+    return rc;
+}
+
+/* Reads rows [first, first + count) of a dataset whose first dimension is rows (rank <= 8, dims the
+ * whole shape) into buf. */
+static int dset_read_rows(hid_t d, const char *where, const char *name, hid_t type, int rank,
+                          const hsize_t *dims, hsize_t first, hsize_t count, void *buf, bs_err *err)
+{
+    hsize_t start[8] = {0}, cnt[8];
+    for (int i = 0; i < rank; i++)
+        cnt[i] = dims[i];
+    start[0] = first;
+    cnt[0] = count;
+    hid_t fs = H5Dget_space(d), ms = H5Screate_simple(rank, cnt, NULL);
+    herr_t st = fs < 0 || ms < 0 ? -1 : H5Sselect_hyperslab(fs, H5S_SELECT_SET, start, NULL, cnt, NULL);
+    if (st >= 0) st = H5Dread(d, type, ms, fs, H5P_DEFAULT, buf);
+    /* The message before any other HDF5 call, which would clear the error stack that names the
+     * cause (a checksum mismatch: the file is corrupt). */
+    int rc = st < 0 ? h5_fail(err, "%s/%s: cannot read dataset", where, name) : 0;
+    if (ms >= 0) H5Sclose(ms);
+    if (fs >= 0) H5Sclose(fs);
+    return rc;
+}
+
+/* Rows of a dataset read at a time: one stored chunk (each chunk is decoded and checksummed
+ * whole, so a read of whole chunks decodes each once), else MS_CHUNK_BYTES worth. */
+static hsize_t dset_rows_per_read(hid_t d, int rank, hsize_t row_bytes)
+{
+    hsize_t rows = row_bytes < MS_CHUNK_BYTES ? MS_CHUNK_BYTES / row_bytes : 1;
+    hid_t dcpl = H5Dget_create_plist(d);
+    hsize_t chunk[8] = {0};
+    if (dcpl >= 0 && H5Pget_layout(dcpl) == H5D_CHUNKED && H5Pget_chunk(dcpl, 8, chunk) == rank && chunk[0] > 0)
+        rows = chunk[0];
+    if (dcpl >= 0) H5Pclose(dcpl);
+    return rows;
+}
+
+/* The hoppings H (nR x norb x norb complex), folded while read (tb_model_fold_next): a chunk of
+ * blocks is read where the next kept block goes, and a block equal to the adjoint of its -R's
+ * is not kept, so the array's pages beyond the kept blocks and one chunk are never touched (a
+ * 128-state entry of 729 lattice vectors peaks at about 96 MB instead of 191 MB). m->R and
+ * m->deg are read first. Without room for the map it reads the array whole, unfolded. */
+static int read_hoppings(hid_t g, const char *where, tb_model *m, bs_err *err)
+{
+    hsize_t dH[4] = {(hsize_t)m->nR, (hsize_t)m->norb, (hsize_t)m->norb, 2};
+    hid_t d;
+    int rc = dset_open_checked(g, where, "H", H5T_NATIVE_DOUBLE, 4, dH, &d, err);
+    if (rc != 0) return rc;
+    size_t nn = (size_t)m->norb * m->norb;
+    m->hsrc = malloc((size_t)m->nR * sizeof *m->hsrc);
+    if (!m->hsrc) {
+        if (H5Dread(d, H5T_NATIVE_DOUBLE, H5S_ALL, H5S_ALL, H5P_DEFAULT, m->H) < 0)
+            rc = h5_fail(err, "%s/H: cannot read dataset", where);
+    } else {
+        hsize_t per = dset_rows_per_read(d, 4, nn * sizeof *m->H);
+        if (per > (hsize_t)m->nR) per = (hsize_t)m->nR;
+        int nblock = 0;
+        for (int r0 = 0; rc == 0 && r0 < m->nR; r0 += (int)per) {
+            int count = m->nR - r0 < (int)per ? m->nR - r0 : (int)per, base = nblock;
+            rc = dset_read_rows(d, where, "H", H5T_NATIVE_DOUBLE, 4, dH, (hsize_t)r0, (hsize_t)count,
+                                m->H + (size_t)base * nn, err);
+            /* Block j sits at base + j >= nblock: moved down to the next kept slot, then kept or not. */
+            for (int j = 0; rc == 0 && j < count; j++) {
+                if (base + j != nblock)
+                    memmove(m->H + (size_t)nblock * nn, m->H + (size_t)(base + j) * nn, nn * sizeof *m->H);
+                tb_model_fold_next(m, r0 + j, &nblock);
+            }
+        }
+    }
     H5Dclose(d);
     return rc;
 }
@@ -1052,12 +1138,11 @@ static int read_model_attrs(hid_t g, const char *where, tb_model *m, bs_err *err
 static int read_model_arrays(hid_t g, const char *where, tb_model *m, bs_err *err)
 {
     hsize_t d33[2] = {3, 3}, dR[2] = {(hsize_t)m->nR, 3}, dn[1] = {(hsize_t)m->nR};
-    hsize_t dH[4] = {(hsize_t)m->nR, (hsize_t)m->norb, (hsize_t)m->norb, 2};
     hsize_t dpos[2] = {(hsize_t)m->nspatial, 3}, dl[1] = {(hsize_t)m->nspatial};
     int rc = dset_read(g, where, "lattice", H5T_NATIVE_DOUBLE, 2, d33, m->lattice, err);
     if (rc == 0) rc = dset_read(g, where, "R", H5T_NATIVE_INT, 2, dR, m->R, err);
     if (rc == 0) rc = dset_read(g, where, "deg", H5T_NATIVE_INT, 1, dn, m->deg, err);
-    if (rc == 0) rc = dset_read(g, where, "H", H5T_NATIVE_DOUBLE, 4, dH, m->H, err);
+    if (rc == 0) rc = read_hoppings(g, where, m, err);
     if (rc == 0) rc = dset_read(g, where, "orb_pos", H5T_NATIVE_DOUBLE, 2, dpos, m->orb_pos, err);
     if (rc == 0) rc = dset_read(g, where, "orb_l", H5T_NATIVE_INT, 1, dl, m->orb_l, err);
     if (rc == 0 && H5Lexists(g, "orb_shape", H5P_DEFAULT) > 0) { /* optional: cards that name shapes */

@@ -158,6 +158,73 @@ static void test_round_trip(void **state)
         tb_model_free(models[i]);
 }
 
+/* An entry larger than one stored chunk is read a chunk at a time and folded while read: 64
+ * states (64 KiB a block, 16 blocks a chunk) and 45 lattice vectors, so the three chunks split
+ * pairs R, -R between them. Three pairs are Hermitian only to round-off (H(-R) = H(R)^dagger
+ * + 1e-13), which must be kept as stored; every value read back is the one written, bit for bit,
+ * and the kept blocks are one per exact pair, R = 0, and both blocks of each inexact pair. */
+static void test_large_entry_folded(void **state)
+{
+    (void)state;
+    const int n = 64, nR = 45;
+    tb_model *m = NULL;
+    bs_err err;
+    bs_err_clear(&err);
+    assert_int_equal(tb_model_create(n, nR, 0, &m, &err), 0);
+    snprintf(m->id, sizeof m->id, "large-64");
+    snprintf(m->formula, sizeof m->formula, "X64");
+    m->nocc = 32;
+    uint64_t seed = 2026;
+    for (int i = 0; i < 3; i++)
+        m->lattice[i][i] = 5.0;
+    for (int i = 0; i < m->nspatial; i++)
+        for (int d = 0; d < 3; d++)
+            m->orb_pos[i][d] = bs_test_uniform(&seed);
+    int r = 0;
+    for (int a = -2; a <= 2; a++)
+        for (int b = -1; b <= 1; b++)
+            for (int c = -1; c <= 1; c++, r++) {
+                m->R[r][0] = a, m->R[r][1] = b, m->R[r][2] = c;
+                m->deg[r] = 1;
+            }
+    int inexact = 0;
+    for (r = 0; r < nR; r++) {
+        int mr = nR - 1 - r; /* the grid is symmetric: index nR - 1 - r holds -R */
+        if (mr < r) continue;
+        int perturb = r == 1 || r == 9 || r == 20; /* partners in the third, third and second chunk */
+        inexact += perturb;
+        for (int i = 0; i < n; i++)
+            for (int j = 0; j < n; j++) {
+                if (r == mr && j < i) continue;
+                double complex h = CMPLX(bs_test_uniform(&seed) - 0.5, bs_test_uniform(&seed) - 0.5);
+                if (r == mr && i == j) h = creal(h);
+                m->H[((size_t)r * n + i) * n + j] = h;
+                m->H[((size_t)mr * n + j) * n + i] = conj(h) + (perturb && i == 3 && j == 5 ? 1e-13 : 0.0);
+            }
+    }
+    char path[320];
+    snprintf(path, sizeof path, "%s/large.h5", tmpdir);
+    ms_set *s = NULL;
+    assert_int_equal(ms_create(path, &s, &err), 0);
+    assert_int_equal(ms_set_meta(s, "one large random model (invented)", 1, &err), 0);
+    if (ms_add(s, m, &err) != 0) fail_msg("%s", err.msg);
+    assert_int_equal(ms_close(s, &err), 0);
+    ms_free(s);
+    s = NULL;
+    assert_int_equal(ms_open(path, &s, &err), 0);
+    tb_model *back = NULL;
+    if (ms_read(s, 0, &back, &err) != 0) fail_msg("%s", err.msg);
+    bs_test_expect_same_model(m, back);
+    assert_non_null(back->hsrc);
+    int kept = 0;
+    for (r = 0; r < nR; r++)
+        kept += back->hsrc[r] >= 0;
+    assert_int_equal(kept, (nR - 1) / 2 + 1 + inexact);
+    tb_model_free(back);
+    ms_free(s);
+    tb_model_free(m);
+}
+
 static void test_broken_entries(void **state)
 {
     (void)state;
@@ -329,7 +396,8 @@ static void test_writer_failures(void **state)
 int main(void)
 {
     const struct CMUnitTest tests[] = {
-        cmocka_unit_test(test_round_trip),         cmocka_unit_test(test_broken_entries),
+        cmocka_unit_test(test_round_trip),         cmocka_unit_test(test_large_entry_folded),
+        cmocka_unit_test(test_broken_entries),
         cmocka_unit_test(test_tampered),           cmocka_unit_test(test_not_a_set),
         cmocka_unit_test(test_concurrent_readers), cmocka_unit_test(test_writer_failures),
     };
