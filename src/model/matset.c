@@ -328,7 +328,8 @@ static hsize_t dset_rows_per_read(hid_t d, int rank, hsize_t row_bytes)
     hsize_t rows = row_bytes < MS_CHUNK_BYTES ? MS_CHUNK_BYTES / row_bytes : 1;
     hid_t dcpl = H5Dget_create_plist(d);
     hsize_t chunk[8] = {0};
-    if (dcpl >= 0 && H5Pget_layout(dcpl) == H5D_CHUNKED && H5Pget_chunk(dcpl, 8, chunk) == rank && chunk[0] > 0)
+    if (dcpl >= 0 && H5Pget_layout(dcpl) == H5D_CHUNKED && H5Pget_chunk(dcpl, 8, chunk) == rank &&
+        chunk[0] > 0)
         rows = chunk[0];
     if (dcpl >= 0) H5Pclose(dcpl);
     return rows;

@@ -396,10 +396,10 @@ static void test_writer_failures(void **state)
 int main(void)
 {
     const struct CMUnitTest tests[] = {
-        cmocka_unit_test(test_round_trip),         cmocka_unit_test(test_large_entry_folded),
-        cmocka_unit_test(test_broken_entries),
-        cmocka_unit_test(test_tampered),           cmocka_unit_test(test_not_a_set),
-        cmocka_unit_test(test_concurrent_readers), cmocka_unit_test(test_writer_failures),
+        cmocka_unit_test(test_round_trip),      cmocka_unit_test(test_large_entry_folded),
+        cmocka_unit_test(test_broken_entries),  cmocka_unit_test(test_tampered),
+        cmocka_unit_test(test_not_a_set),       cmocka_unit_test(test_concurrent_readers),
+        cmocka_unit_test(test_writer_failures),
     };
     return cmocka_run_group_tests(tests, setup, teardown);
 }
