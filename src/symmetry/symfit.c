@@ -193,26 +193,46 @@ static void apply_tr(const sym_info *s, int nR, const double complex *src, doubl
     }
 }
 
+/* dst += Theta src, one block (Theta keeps R): each element of dst gets one term, the one
+ * apply_tr writes there, so dst = E; dst += Theta E gives E + (Theta E) bit for bit. */
+static void add_tr_block(const sym_info *s, const double complex *S, double complex *D)
+{
+    int n = s->norb;
+    for (int b = 0; b < n; b++) {
+        double complex fb = conj(s->tr_factor[b]);
+        int tb = s->tr_perm[b];
+        for (int a = 0; a < n; a++)
+            D[(size_t)s->tr_perm[a] * n + tb] += s->tr_factor[a] * fb * conj(S[(size_t)a * n + b]);
+    }
+}
+
+/* dst += P applied to block r of src (the block S); P maps it into the blocks of -R - s_a + s_b,
+ * each element of dst getting at most one term (P is one-to-one). */
+static void add_inv_block(const sym_info *s, const inv_map *v, int r, const double complex *S,
+                          double complex *dst)
+{
+    int n = s->norb, nc = v->nclass;
+    for (int b = 0; b < n; b++) {
+        double complex fb = conj(s->inv_factor[b]);
+        int pb = s->inv_perm[b], cb = v->cls[b];
+        for (int a = 0; a < n; a++) {
+            double complex e = S[(size_t)a * n + b];
+            if (e == 0) continue;
+            int t = v->tgt[((size_t)r * nc + v->cls[a]) * nc + cb];
+            assert(t >= 0); /* inv_close added the image of every nonzero block */
+            dst[((size_t)t * n + s->inv_perm[a]) * n + pb] += s->inv_factor[a] * fb * e;
+        }
+    }
+}
+
 /* dst = P src (see symfit.h); every nonzero element has a target after inv_close. */
 static void apply_inv(const sym_info *s, const inv_map *v, int nR, const double complex *src,
                       double complex *dst)
 {
-    int n = s->norb, nc = v->nclass;
+    int n = s->norb;
     memset(dst, 0, (size_t)nR * n * n * sizeof *dst);
-    for (int r = 0; r < nR; r++) {
-        const double complex *S = src + (size_t)r * n * n;
-        for (int b = 0; b < n; b++) {
-            double complex fb = conj(s->inv_factor[b]);
-            int pb = s->inv_perm[b], cb = v->cls[b];
-            for (int a = 0; a < n; a++) {
-                double complex e = S[(size_t)a * n + b];
-                if (e == 0) continue;
-                int t = v->tgt[((size_t)r * nc + v->cls[a]) * nc + cb];
-                assert(t >= 0); /* inv_close added the image of every nonzero block */
-                dst[((size_t)t * n + s->inv_perm[a]) * n + pb] = s->inv_factor[a] * fb * e;
-            }
-        }
-    }
+    for (int r = 0; r < nR; r++)
+        add_inv_block(s, v, r, src + (size_t)r * n * n, dst);
 }
 
 double symfit_norm_bound(int n, const double complex *A)
@@ -244,34 +264,34 @@ static double sum_bound(int n, int nR, const double complex *E)
     return sum;
 }
 
-/* A model with m's fields and the lattice vectors and effective hoppings of rs/E (deg 1). */
-static int model_from(const tb_model *m, const rset *rs, const double complex *E, tb_model **out, bs_err *err)
+/* A model with m's fields and the lattice vectors and effective hoppings of rs/E (deg 1); it takes
+ * *E (set to NULL) and stores each pair R, -R once where the blocks are adjoint bit for bit
+ * (tb_model_fold: no value changes; the array shrinks). */
+static int model_take(const tb_model *m, const rset *rs, double complex **E, tb_model **out, bs_err *err)
 {
     *out = NULL;
     tb_model *c = NULL;
     int rc = tb_model_copy(m, &c, err);
     if (rc != 0) return rc;
-    size_t n2 = (size_t)m->norb * m->norb;
     int(*R)[3] = malloc((size_t)rs->n * sizeof *R);
     int *deg = malloc((size_t)rs->n * sizeof *deg);
-    double complex *H = malloc((size_t)rs->n * n2 * sizeof *H);
-    if (!R || !deg || !H) {
+    if (!R || !deg) {
         free(R);
         free(deg);
-        free(H);
         tb_model_free(c);
         return bs_fail(err, BS_ENOMEM, "out of memory for a model of %d lattice vectors", rs->n);
     }
     memcpy(R, rs->R, (size_t)rs->n * sizeof *R);
     for (int r = 0; r < rs->n; r++)
         deg[r] = 1;
-    memcpy(H, E, (size_t)rs->n * n2 * sizeof *H);
     free(c->R);
     free(c->deg);
     c->R = R;
     c->deg = deg;
-    tb_model_set_hops(c, H);
+    tb_model_set_hops(c, *E);
+    *E = NULL;
     c->nR = rs->n;
+    tb_model_fold(c);
     *out = c;
     return 0;
 }
@@ -644,13 +664,14 @@ int symfit_kmax_bound(int n, int nr, const int (*R)[3], int dim, const double co
     return 0;
 }
 
-/* Fills b from the difference D (rs.n matrices) and the reference E: upper and relative bounds,
- * the mesh maximum unless mesh is 0, and kmax_ev when kmax is set. */
-static int fill_break(const tb_model *m, const rset *rs, const double complex *E, const double complex *D,
-                      int mesh, int kmax, symfit_break *b, bs_err *err)
+/* Fills b from the difference *Dp (rs.n matrices) and norm, the reference's sum_bound: upper and
+ * relative bounds, the mesh maximum unless mesh is 0 (which takes *Dp into a model of its own and
+ * sets it to NULL; the caller frees what is left), and kmax_ev when kmax is set. */
+static int fill_break(const tb_model *m, const rset *rs, double norm, double complex **Dp, int mesh, int kmax,
+                      symfit_break *b, bs_err *err)
 {
     int n = m->norb;
-    double norm = sum_bound(n, rs->n, E);
+    const double complex *D = *Dp;
     b->available = 1;
     b->upper_ev = sum_bound(n, rs->n, D);
     b->kmax_ev = 0;
@@ -663,7 +684,7 @@ static int fill_break(const tb_model *m, const rset *rs, const double complex *E
     b->lower_ev = 0;
     if (mesh <= 0) return 0;
     tb_model *d = NULL;
-    int rc = model_from(m, rs, D, &d, err);
+    int rc = model_take(m, rs, Dp, &d, err);
     if (rc == 0) rc = mesh_norm(d, mesh, &b->lower_ev, err);
     /* Round-off of the two bounds can invert them for an exact symmetry. */
     if (rc == 0 && b->lower_ev > b->upper_ev) b->upper_ev = b->lower_ev;
@@ -712,7 +733,10 @@ int symfit_measure(const tb_model *m, const sym_info *s, int which, const symfit
         apply_inv(s, &v, rs.n, E, G);
     for (size_t i = 0; i < (size_t)rs.n * n2; i++)
         G[i] = E[i] - G[i];
-    rc = fill_break(m, &rs, E, G, mesh, 0, out, err);
+    double norm = sum_bound(n, rs.n, E);
+    free(E);
+    E = NULL;
+    rc = fill_break(m, &rs, norm, &G, mesh, 0, out, err);
 done:
     free(E);
     free(G);
@@ -784,7 +808,7 @@ int symfit_symmetrise(const tb_model *m, sym_info *s, int which, const symfit_op
     size_t n2 = (size_t)n * n;
     rset rs;
     inv_map v = {0};
-    double complex *E = load_effective(m), *A = NULL, *B = NULL, *S = NULL;
+    double complex *E = load_effective(m), *A = NULL, *S = NULL;
     if (!E || rset_init(&rs, m) != 0) {
         rc = bs_fail(err, BS_ENOMEM, "out of memory for the symmetrised model");
         goto done;
@@ -793,41 +817,43 @@ int symfit_symmetrise(const tb_model *m, sym_info *s, int which, const symfit_op
         rc = bs_fail(err, BS_ENOMEM, "out of memory for the inversion images");
         goto done;
     }
+    /* S = E + Theta E + P E + P Theta E, summed in that order for each element, from E and one
+     * block of Theta E at a time: two arrays of the model's size, not four. */
     size_t total = (size_t)rs.n * n2;
-    A = malloc(total * sizeof *A);
-    B = malloc(total * sizeof *B);
     S = malloc(total * sizeof *S);
-    if (!A || !B || !S) {
+    A = (which & SYMFIT_TR) && (which & SYMFIT_INV) ? malloc(n2 * sizeof *A) : NULL;
+    if (!S || ((which & SYMFIT_TR) && (which & SYMFIT_INV) && !A)) {
         rc = bs_fail(err, BS_ENOMEM, "out of memory for the symmetrised model");
         goto done;
     }
     memcpy(S, E, total * sizeof *S);
     double w = which == 3 ? 0.25 : 0.5;
-    if (which & SYMFIT_TR) {
-        apply_tr(s, rs.n, E, A);
-        for (size_t i = 0; i < total; i++)
-            S[i] += A[i];
-    }
+    if (which & SYMFIT_TR)
+        for (int r = 0; r < rs.n; r++)
+            add_tr_block(s, E + (size_t)r * n2, S + (size_t)r * n2);
     if (which & SYMFIT_INV) {
-        apply_inv(s, &v, rs.n, E, B);
-        for (size_t i = 0; i < total; i++)
-            S[i] += B[i];
-        if (which & SYMFIT_TR) {
-            apply_inv(s, &v, rs.n, A, B);
-            for (size_t i = 0; i < total; i++)
-                S[i] += B[i];
+        for (int r = 0; r < rs.n; r++)
+            add_inv_block(s, &v, r, E + (size_t)r * n2, S);
+        for (int r = 0; A && r < rs.n; r++) {
+            apply_tr(s, 1, E + (size_t)r * n2, A);
+            add_inv_block(s, &v, r, A, S);
         }
     }
+    double norm = sum_bound(n, rs.n, E);
     for (size_t i = 0; i < total; i++) {
         S[i] *= w;
-        A[i] = E[i] - S[i];
+        E[i] -= S[i]; /* E is now D = H - H_s */
     }
-    if (moved) rc = fill_break(m, &rs, E, A, o && o->mesh > 0 ? o->mesh : default_mesh(m), 1, moved, err);
-    if (rc == 0) rc = model_from(m, &rs, S, out, err);
+    rc = model_take(m, &rs, &S, out, err);
+    if (rc == 0 && moved)
+        rc = fill_break(m, &rs, norm, &E, o && o->mesh > 0 ? o->mesh : default_mesh(m), 1, moved, err);
+    if (rc != 0) {
+        tb_model_free(*out);
+        *out = NULL;
+    }
 done:
     free(E);
     free(A);
-    free(B);
     free(S);
     inv_map_clear(&v);
     rset_clear(&rs);
