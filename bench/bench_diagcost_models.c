@@ -189,6 +189,8 @@ int main(int argc, char **argv)
         {"fkm_strong_64", "fkm:dt=0.4", 15, 2, 1, 0},
         {"fkm_noinv_48", "fkm:dt=0.4,stag=0.4", 11, 2, 0, 0},
         {"fkm_strong_128_long", "fkm:dt=0.4", 31, 4, 1, 0},
+        /* the same with fit noise of 1e-5: a diagnosis of a noisy fit also holds the restored model */
+        {"fkm_strong_128_long_noisy", "fkm:dt=0.4", 31, 4, 1, 1e-5},
     };
     const char *only = getenv("BENCH_MODELS"); /* comma list of ids, or unset: all */
     for (size_t i = 0; i < sizeof specs / sizeof specs[0]; i++) {

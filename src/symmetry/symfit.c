@@ -136,7 +136,7 @@ static int inv_classes(const sym_info *s, inv_map *v)
 
 /* Adds the images -R - s_a + s_b of every block of E that holds a nonzero element, so that the
  * set is closed under inversion, then tabulates the target of every (R, class pair). */
-static int inv_close(rset *rs, double complex **E, const sym_info *s, inv_map *v)
+static int inv_close(rset *rs, const tb_model *m, const sym_info *s, inv_map *v)
 {
     int n = s->norb, nc = v->nclass, n0 = rs->n;
     char *nonzero = calloc((size_t)n0 * nc * nc, 1);
@@ -144,8 +144,7 @@ static int inv_close(rset *rs, double complex **E, const sym_info *s, inv_map *v
     for (int r = 0; r < n0; r++)
         for (int b = 0; b < n; b++)
             for (int a = 0; a < n; a++)
-                if ((*E)[((size_t)r * n + a) * n + b] != 0)
-                    nonzero[((size_t)r * nc + v->cls[a]) * nc + v->cls[b]] = 1;
+                if (tb_hop(m, r, a, b) != 0) nonzero[((size_t)r * nc + v->cls[a]) * nc + v->cls[b]] = 1;
     int rc = 0;
     for (int r = 0; r < n0 && rc == 0; r++)
         for (int ca = 0; ca < nc && rc == 0; ca++)
@@ -158,12 +157,6 @@ static int inv_close(rset *rs, double complex **E, const sym_info *s, inv_map *v
             }
     free(nonzero);
     if (rc != 0) return rc;
-    if (rs->n > n0) {
-        double complex *grown = realloc(*E, (size_t)rs->n * n * n * sizeof *grown);
-        if (!grown) return -1;
-        memset(grown + (size_t)n0 * n * n, 0, (size_t)(rs->n - n0) * n * n * sizeof *grown);
-        *E = grown;
-    }
     v->tgt = malloc((size_t)rs->n * nc * nc * sizeof *v->tgt);
     if (!v->tgt) return -1;
     for (int r = 0; r < rs->n; r++)
@@ -225,16 +218,6 @@ static void add_inv_block(const sym_info *s, const inv_map *v, int r, const doub
     }
 }
 
-/* dst = P src (see symfit.h); every nonzero element has a target after inv_close. */
-static void apply_inv(const sym_info *s, const inv_map *v, int nR, const double complex *src,
-                      double complex *dst)
-{
-    int n = s->norb;
-    memset(dst, 0, (size_t)nR * n * n * sizeof *dst);
-    for (int r = 0; r < nR; r++)
-        add_inv_block(s, v, r, src + (size_t)r * n * n, dst);
-}
-
 double symfit_norm_bound(int n, const double complex *A)
 {
     double fro = 0, colmax = 0, rowmax = 0;
@@ -271,7 +254,11 @@ static int model_take(const tb_model *m, const rset *rs, double complex **E, tb_
 {
     *out = NULL;
     tb_model *c = NULL;
-    int rc = tb_model_copy(m, &c, err);
+    /* m's fields without its hoppings: a copy of one block, replaced below. */
+    tb_model shell = *m;
+    shell.nR = 1;
+    shell.hsrc = NULL;
+    int rc = tb_model_copy(&shell, &c, err);
     if (rc != 0) return rc;
     int(*R)[3] = malloc((size_t)rs->n * sizeof *R);
     int *deg = malloc((size_t)rs->n * sizeof *deg);
@@ -296,16 +283,18 @@ static int model_take(const tb_model *m, const rset *rs, double complex **E, tb_
     return 0;
 }
 
-/* E = H / deg on the set's first m->nR vectors (the model's own, in order). */
-static double complex *load_effective(const tb_model *m)
+/* Block r of E = H / deg on the set's vectors (the model's own first, in order; zero beyond
+ * them), into E (norb^2). The effective hoppings are never held whole: each pass over the blocks
+ * recomputes them, which costs far less than the diagonalisations that follow. */
+static void effective_block(const tb_model *m, int r, double complex *E)
 {
     size_t n2 = (size_t)m->norb * m->norb;
-    double complex *E = malloc((size_t)m->nR * n2 * sizeof *E);
-    if (!E) return NULL;
-    for (int r = 0; r < m->nR; r++)
-        for (size_t i = 0; i < n2; i++)
-            E[r * n2 + i] = tb_hop(m, r, (int)(i / (size_t)m->norb), (int)(i % (size_t)m->norb)) / m->deg[r];
-    return E;
+    if (r >= m->nR) { /* an image vector that inv_close added: no hopping */
+        memset(E, 0, n2 * sizeof *E);
+        return;
+    }
+    for (size_t i = 0; i < n2; i++)
+        E[i] = tb_hop(m, r, (int)(i / (size_t)m->norb), (int)(i % (size_t)m->norb)) / m->deg[r];
 }
 
 static int check_info(const tb_model *m, const sym_info *s, int which, bs_err *err)
@@ -712,30 +701,37 @@ int symfit_measure(const tb_model *m, const sym_info *s, int which, const symfit
     int n = m->norb, mesh = o && o->mesh > 0 ? o->mesh : default_mesh(m);
     rset rs;
     inv_map v = {0};
-    double complex *E = load_effective(m), *G = NULL;
+    size_t n2 = (size_t)n * n;
+    double complex *E = malloc(n2 * sizeof *E), *G = NULL;
     if (!E || rset_init(&rs, m) != 0) {
         rc = bs_fail(err, BS_ENOMEM, "out of memory for the breaking measure");
         goto done;
     }
-    if (which == SYMFIT_INV && (inv_classes(s, &v) != 0 || inv_close(&rs, &E, s, &v) != 0)) {
+    if (which == SYMFIT_INV && (inv_classes(s, &v) != 0 || inv_close(&rs, m, s, &v) != 0)) {
         rc = bs_fail(err, BS_ENOMEM, "out of memory for the inversion images");
         goto done;
     }
-    size_t n2 = (size_t)n * n;
-    G = malloc((size_t)rs.n * n2 * sizeof *G);
+    /* G = g E, then G = E - G: one array of the model's size, E a block at a time. */
+    G = calloc((size_t)rs.n * n2, sizeof *G);
     if (!G) {
         rc = bs_fail(err, BS_ENOMEM, "out of memory for the breaking measure");
         goto done;
     }
-    if (which == SYMFIT_TR)
-        apply_tr(s, rs.n, E, G);
-    else
-        apply_inv(s, &v, rs.n, E, G);
-    for (size_t i = 0; i < (size_t)rs.n * n2; i++)
-        G[i] = E[i] - G[i];
-    double norm = sum_bound(n, rs.n, E);
-    free(E);
-    E = NULL;
+    double norm = 0;
+    for (int r = 0; r < m->nR; r++) {
+        effective_block(m, r, E);
+        norm += symfit_norm_bound(n, E);
+        if (which == SYMFIT_TR)
+            apply_tr(s, 1, E, G + (size_t)r * n2);
+        else
+            add_inv_block(s, &v, r, E, G);
+    }
+    for (int r = 0; r < rs.n; r++) {
+        effective_block(m, r, E);
+        double complex *D = G + (size_t)r * n2;
+        for (size_t i = 0; i < n2; i++)
+            D[i] = E[i] - D[i];
+    }
     rc = fill_break(m, &rs, norm, &G, mesh, 0, out, err);
 done:
     free(E);
@@ -808,45 +804,61 @@ int symfit_symmetrise(const tb_model *m, sym_info *s, int which, const symfit_op
     size_t n2 = (size_t)n * n;
     rset rs;
     inv_map v = {0};
-    double complex *E = load_effective(m), *A = NULL, *S = NULL;
-    if (!E || rset_init(&rs, m) != 0) {
+    double complex *E = malloc(n2 * sizeof *E), *A = malloc(n2 * sizeof *A), *S = NULL, *D = NULL;
+    if (!E || !A || rset_init(&rs, m) != 0) {
         rc = bs_fail(err, BS_ENOMEM, "out of memory for the symmetrised model");
         goto done;
     }
-    if ((which & SYMFIT_INV) && (inv_classes(s, &v) != 0 || inv_close(&rs, &E, s, &v) != 0)) {
+    if ((which & SYMFIT_INV) && (inv_classes(s, &v) != 0 || inv_close(&rs, m, s, &v) != 0)) {
         rc = bs_fail(err, BS_ENOMEM, "out of memory for the inversion images");
         goto done;
     }
-    /* S = E + Theta E + P E + P Theta E, summed in that order for each element, from E and one
-     * block of Theta E at a time: two arrays of the model's size, not four. */
+    /* S = E + Theta E + P E + P Theta E, summed in that order for each element, in one array of
+     * the model's size: E and Theta E a block at a time (the inversion images, beyond the model's
+     * vectors, have no hopping and add nothing). */
     size_t total = (size_t)rs.n * n2;
-    S = malloc(total * sizeof *S);
-    A = (which & SYMFIT_TR) && (which & SYMFIT_INV) ? malloc(n2 * sizeof *A) : NULL;
-    if (!S || ((which & SYMFIT_TR) && (which & SYMFIT_INV) && !A)) {
+    S = calloc(total, sizeof *S);
+    if (!S) {
         rc = bs_fail(err, BS_ENOMEM, "out of memory for the symmetrised model");
         goto done;
     }
-    memcpy(S, E, total * sizeof *S);
-    double w = which == 3 ? 0.25 : 0.5;
-    if (which & SYMFIT_TR)
-        for (int r = 0; r < rs.n; r++)
-            add_tr_block(s, E + (size_t)r * n2, S + (size_t)r * n2);
+    double w = which == 3 ? 0.25 : 0.5, norm = 0;
+    for (int r = 0; r < m->nR; r++) {
+        double complex *Sr = S + (size_t)r * n2;
+        effective_block(m, r, Sr);
+        norm += symfit_norm_bound(n, Sr);
+        if (which & SYMFIT_TR) {
+            memcpy(E, Sr, n2 * sizeof *E);
+            add_tr_block(s, E, Sr);
+        }
+    }
     if (which & SYMFIT_INV) {
-        for (int r = 0; r < rs.n; r++)
-            add_inv_block(s, &v, r, E + (size_t)r * n2, S);
-        for (int r = 0; A && r < rs.n; r++) {
-            apply_tr(s, 1, E + (size_t)r * n2, A);
+        for (int r = 0; r < m->nR; r++) {
+            effective_block(m, r, E);
+            add_inv_block(s, &v, r, E, S);
+        }
+        for (int r = 0; (which & SYMFIT_TR) && r < m->nR; r++) {
+            effective_block(m, r, E);
+            apply_tr(s, 1, E, A);
             add_inv_block(s, &v, r, A, S);
         }
     }
-    double norm = sum_bound(n, rs.n, E);
-    for (size_t i = 0; i < total; i++) {
+    for (size_t i = 0; i < total; i++)
         S[i] *= w;
-        E[i] -= S[i]; /* E is now D = H - H_s */
-    }
     rc = model_take(m, &rs, &S, out, err);
-    if (rc == 0 && moved)
-        rc = fill_break(m, &rs, norm, &E, o && o->mesh > 0 ? o->mesh : default_mesh(m), 1, moved, err);
+    if (rc == 0 && moved) {
+        /* D = H - H_s, from the restored model's values (folding changed none of them). */
+        D = malloc(total * sizeof *D);
+        if (!D) rc = bs_fail(err, BS_ENOMEM, "out of memory for the symmetrised model");
+        for (int r = 0; rc == 0 && r < rs.n; r++) {
+            double complex *Dr = D + (size_t)r * n2;
+            effective_block(m, r, Dr);
+            for (size_t i = 0; i < n2; i++)
+                Dr[i] -= tb_hop(*out, r, (int)(i / (size_t)n), (int)(i % (size_t)n));
+        }
+        if (rc == 0)
+            rc = fill_break(m, &rs, norm, &D, o && o->mesh > 0 ? o->mesh : default_mesh(m), 1, moved, err);
+    }
     if (rc != 0) {
         tb_model_free(*out);
         *out = NULL;
@@ -855,6 +867,7 @@ done:
     free(E);
     free(A);
     free(S);
+    free(D);
     inv_map_clear(&v);
     rset_clear(&rs);
     return rc;
