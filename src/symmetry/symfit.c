@@ -170,32 +170,15 @@ static int inv_close(rset *rs, const tb_model *m, const sym_info *s, inv_map *v)
     return 0;
 }
 
-/* dst = Theta src on the same lattice vectors (see symfit.h). */
-static void apply_tr(const sym_info *s, int nR, const double complex *src, double complex *dst)
-{
-    int n = s->norb;
-    for (int r = 0; r < nR; r++) {
-        const double complex *S = src + (size_t)r * n * n;
-        double complex *D = dst + (size_t)r * n * n;
-        for (int b = 0; b < n; b++) {
-            double complex fb = conj(s->tr_factor[b]);
-            int tb = s->tr_perm[b];
-            for (int a = 0; a < n; a++)
-                D[(size_t)s->tr_perm[a] * n + tb] = s->tr_factor[a] * fb * conj(S[(size_t)a * n + b]);
-        }
-    }
-}
-
-/* dst += Theta src, one block (Theta keeps R): each element of dst gets one term, the one
- * apply_tr writes there, so dst = E; dst += Theta E gives E + (Theta E) bit for bit. */
-static void add_tr_block(const sym_info *s, const double complex *S, double complex *D)
+/* D = Theta S for one block (Theta keeps R; see symfit.h). */
+static void tr_block(const sym_info *s, const double complex *S, double complex *D)
 {
     int n = s->norb;
     for (int b = 0; b < n; b++) {
         double complex fb = conj(s->tr_factor[b]);
         int tb = s->tr_perm[b];
         for (int a = 0; a < n; a++)
-            D[(size_t)s->tr_perm[a] * n + tb] += s->tr_factor[a] * fb * conj(S[(size_t)a * n + b]);
+            D[(size_t)s->tr_perm[a] * n + tb] = s->tr_factor[a] * fb * conj(S[(size_t)a * n + b]);
     }
 }
 
@@ -396,17 +379,32 @@ static int default_mesh(const tb_model *m)
     return n > 8 ? 8 : n;
 }
 
-/* Phase table w[j * nd + (d + L)] = exp(2 pi i j d / M), j < M, |d| <= L (nd = 2 L + 1). */
-static double complex *phase_table(int M, int L)
+/* One direction of a separable discrete Fourier sum: out[(x * Q + j) * z + y] = sum_s
+ * in[(x * S + s) * z + y] w[j * S + s], for x < X, y < z. */
+static void dft_axis(const double complex *in, int X, int S, int z, const double complex *w, int Q,
+                     double complex *out)
 {
-    int nd = 2 * L + 1;
-    double complex *w = malloc((size_t)M * nd * sizeof *w);
-    if (!w) return NULL;
-    for (int j = 0; j < M; j++)
-        for (int d = -L; d <= L; d++) {
-            long t = ((long)j * d) % M;
-            w[(size_t)j * nd + d + L] = cexp(2 * M_PI * I * (double)t / M);
+    for (int x = 0; x < X; x++)
+        for (int j = 0; j < Q; j++) {
+            double complex *o = out + ((size_t)x * Q + j) * z;
+            for (int y = 0; y < z; y++)
+                o[y] = 0;
+            for (int s = 0; s < S; s++) {
+                double complex c = w[(size_t)j * S + s];
+                const double complex *v = in + ((size_t)x * S + s) * z;
+                for (int y = 0; y < z; y++)
+                    o[y] += c * v[y];
+            }
         }
+}
+
+/* w[j * S + s] = exp(sign 2 pi i j (first + s) / Q), j < Q, s < S. */
+static double complex *dft_table(int Q, int S, int first, int sign)
+{
+    double complex *w = malloc((size_t)Q * S * sizeof *w);
+    for (int j = 0; w && j < Q; j++)
+        for (int s = 0; s < S; s++)
+            w[(size_t)j * S + s] = cexp(sign * 2 * M_PI * I * (double)(((long)j * (first + s)) % Q) / Q);
     return w;
 }
 
@@ -417,35 +415,18 @@ static int poly_mesh_max(const double complex *C, const int L[3], const int M[3]
 {
     int nd[3] = {2 * L[0] + 1, 2 * L[1] + 1, 2 * L[2] + 1}, na = L[0] + 1;
     size_t m12 = (size_t)M[1] * M[2];
-    double complex *w[3] = {phase_table(M[0], L[0]), phase_table(M[1], L[1]), phase_table(M[2], L[2])};
+    double complex *w[3] = {dft_table(M[0], nd[0], -L[0], 1), dft_table(M[1], nd[1], -L[1], 1),
+                            dft_table(M[2], nd[2], -L[2], 1)};
     double complex *T1 = malloc((size_t)na * nd[1] * M[2] * sizeof *T1);
     double complex *T2 = malloc((size_t)na * m12 * sizeof *T2);
     double *acc = malloc(m12 * sizeof *acc);
     int rc = w[0] && w[1] && w[2] && T1 && T2 && acc ? 0 : -1;
     double best = -INFINITY;
     if (rc == 0) {
-        /* T1[a][b][j2] = sum_c C[L0 + a][b][c] w2[j2][c] */
-        for (int ab = 0; ab < na * nd[1]; ab++)
-            for (int j = 0; j < M[2]; j++) {
-                double complex sum = 0;
-                const double complex *c = C + ((size_t)L[0] * nd[1] + ab) * nd[2];
-                for (int q = 0; q < nd[2]; q++)
-                    sum += c[q] * w[2][(size_t)j * nd[2] + q];
-                T1[(size_t)ab * M[2] + j] = sum;
-            }
-        /* T2[a][j1][j2] = sum_b T1[a][b][j2] w1[j1][b] */
-        for (int a = 0; a < na; a++)
-            for (int j1 = 0; j1 < M[1]; j1++) {
-                double complex *t = T2 + ((size_t)a * M[1] + j1) * M[2];
-                for (int j2 = 0; j2 < M[2]; j2++)
-                    t[j2] = 0;
-                for (int q = 0; q < nd[1]; q++) {
-                    double complex f = w[1][(size_t)j1 * nd[1] + q];
-                    const double complex *u = T1 + ((size_t)a * nd[1] + q) * M[2];
-                    for (int j2 = 0; j2 < M[2]; j2++)
-                        t[j2] += f * u[j2];
-                }
-            }
+        /* T1[a][b][j2] = sum_c C[L0 + a][b][c] w2[j2][c], then T2[a][j1][j2] = sum_b T1[a][b][j2] w1[j1][b]
+         */
+        dft_axis(C + (size_t)L[0] * nd[1] * nd[2], na * nd[1], nd[2], 1, w[2], M[2], T1);
+        dft_axis(T1, na, nd[1], M[2], w[1], M[1], T2);
         for (int j0 = 0; j0 < M[0]; j0++) {
             for (size_t j = 0; j < m12; j++)
                 acc[j] = creal(T2[j]);
@@ -467,35 +448,6 @@ static int poly_mesh_max(const double complex *C, const int L[3], const int M[3]
     free(acc);
     *out = best;
     return rc;
-}
-
-/* One direction of a separable discrete Fourier sum: out[(x * Q + j) * z + y] = sum_s
- * in[(x * S + s) * z + y] w[j * S + s], for x < X, y < z. */
-static void dft_axis(const double complex *in, int X, int S, int z, const double complex *w, int Q,
-                     double complex *out)
-{
-    for (int x = 0; x < X; x++)
-        for (int j = 0; j < Q; j++) {
-            double complex *o = out + ((size_t)x * Q + j) * z;
-            for (int y = 0; y < z; y++)
-                o[y] = 0;
-            for (int s = 0; s < S; s++) {
-                double complex c = w[(size_t)j * S + s];
-                const double complex *v = in + ((size_t)x * S + s) * z;
-                for (int y = 0; y < z; y++)
-                    o[y] += c * v[y];
-            }
-        }
-}
-
-/* w[j * S + s] = exp(sign 2 pi i j s / Q). */
-static double complex *dft_table(int Q, int S, int sign)
-{
-    double complex *w = malloc((size_t)Q * S * sizeof *w);
-    for (int j = 0; w && j < Q; j++)
-        for (int s = 0; s < S; s++)
-            w[(size_t)j * S + s] = cexp(sign * 2 * M_PI * I * (double)(((long)j * s) % Q) / Q);
-    return w;
 }
 
 int symfit_kmax_bound(int n, int nr, const int (*R)[3], int dim, const double complex *D, double *out,
@@ -553,7 +505,8 @@ int symfit_kmax_bound(int n, int nr, const int (*R)[3], int dim, const double co
     const size_t cp = 64;
     double complex *g = malloc(cp * box * sizeof *g), *t1 = malloc(cp * S[0] * S[1] * Q[2] * sizeof *t1);
     double complex *t2 = malloc(cp * S[0] * Q[1] * Q[2] * sizeof *t2), *v = malloc(cp * nq * sizeof *v);
-    double complex *w[3] = {dft_table(Q[0], S[0], 1), dft_table(Q[1], S[1], 1), dft_table(Q[2], S[2], 1)};
+    double complex *w[3] = {dft_table(Q[0], S[0], 0, 1), dft_table(Q[1], S[1], 0, 1),
+                            dft_table(Q[2], S[2], 0, 1)};
     double *P = calloc(nq, sizeof *P);
     size_t *at = malloc(2 * (size_t)nr * sizeof *at); /* box indices of R_r, then of -R_r */
     int rc = g && t1 && t2 && v && w[0] && w[1] && w[2] && P && at ? 0 : -1;
@@ -603,7 +556,7 @@ int symfit_kmax_bound(int n, int nr, const int (*R)[3], int dim, const double co
     if (rc == 0) {
         for (int a = 0; a < 3; a++) {
             free(w[a]);
-            w[a] = dft_table(Q[a], Q[a], -1);
+            w[a] = dft_table(Q[a], Q[a], 0, -1);
         }
         C = malloc(nq * sizeof *C);
         rc = C && w[0] && w[1] && w[2] ? 0 : -1;
@@ -722,7 +675,7 @@ int symfit_measure(const tb_model *m, const sym_info *s, int which, const symfit
         effective_block(m, r, E);
         norm += symfit_norm_bound(n, E);
         if (which == SYMFIT_TR)
-            apply_tr(s, 1, E, G + (size_t)r * n2);
+            tr_block(s, E, G + (size_t)r * n2);
         else
             add_inv_block(s, &v, r, E, G);
     }
@@ -825,12 +778,15 @@ int symfit_symmetrise(const tb_model *m, sym_info *s, int which, const symfit_op
     double w = which == 3 ? 0.25 : 0.5, norm = 0;
     for (int r = 0; r < m->nR; r++) {
         double complex *Sr = S + (size_t)r * n2;
-        effective_block(m, r, Sr);
-        norm += symfit_norm_bound(n, Sr);
-        if (which & SYMFIT_TR) {
-            memcpy(E, Sr, n2 * sizeof *E);
-            add_tr_block(s, E, Sr);
+        effective_block(m, r, E);
+        norm += symfit_norm_bound(n, E);
+        if (!(which & SYMFIT_TR)) {
+            memcpy(Sr, E, n2 * sizeof *E);
+            continue;
         }
+        tr_block(s, E, A);
+        for (size_t i = 0; i < n2; i++)
+            Sr[i] = E[i] + A[i];
     }
     if (which & SYMFIT_INV) {
         for (int r = 0; r < m->nR; r++) {
@@ -839,7 +795,7 @@ int symfit_symmetrise(const tb_model *m, sym_info *s, int which, const symfit_op
         }
         for (int r = 0; (which & SYMFIT_TR) && r < m->nR; r++) {
             effective_block(m, r, E);
-            apply_tr(s, 1, E, A);
+            tr_block(s, E, A);
             add_inv_block(s, &v, r, A, S);
         }
     }

@@ -257,16 +257,6 @@ static void test_norm_bound(void **state)
     assert_true(fabs(symfit_norm_bound(2, o) - 2) < 1e-15);
 }
 
-/* Uniform in [-1, 1) (splitmix64; any fixed sequence does). */
-static double test_uniform(uint64_t *x)
-{
-    uint64_t z = (*x += 0x9e3779b97f4a7c15ULL);
-    z = (z ^ (z >> 30)) * 0xbf58476d1ce4e5b9ULL;
-    z = (z ^ (z >> 27)) * 0x94d049bb133111ebULL;
-    z ^= z >> 31;
-    return (double)(z >> 11) / 4503599627370496.0 - 1.0;
-}
-
 /* ||D(k)||_F by direct summation (the test's own, independent of the transforms in symfit.c). */
 static double direct_frobenius(int n, int nr, const int (*R)[3], const double complex *D, const double k[3])
 {
@@ -334,7 +324,8 @@ static void test_kmax_bound(void **state)
         if (mr < r) continue;
         for (int a = 0; a < n; a++)
             for (int b = 0; b < n; b++) {
-                double complex x = test_uniform(&seed) + I * test_uniform(&seed);
+                double re = 2 * bs_test_uniform(&seed) - 1; /* uniform in [-1, 1) */
+                double complex x = re + I * (2 * bs_test_uniform(&seed) - 1);
                 D[((size_t)r * n + a) * n + b] += x;
                 D[((size_t)mr * n + b) * n + a] += conj(x);
             }
